@@ -1,0 +1,60 @@
+"""The demo plant: a plain-SQL logbook shipped as demo.db.sql at the top of the repo."""
+
+from __future__ import annotations
+
+import os
+import sqlite3
+from pathlib import Path
+
+from platformdirs import user_data_dir
+
+from .book import Book, open_book
+from .errors import BookError
+
+SQL_PATH = Path(__file__).resolve().parent.parent / "demo.db.sql"
+
+
+def demo_sql() -> str:
+    try:
+        return SQL_PATH.read_text(encoding="utf-8")
+    except OSError as exc:
+        raise BookError(f"the demo plant file {SQL_PATH} is missing ({exc.strerror})") from exc
+
+
+def load_sql(book: Book, sql: str) -> None:
+    """Run a data-only SQL script (INSERTs) into a freshly migrated book, all or nothing."""
+    if book.conn.execute("SELECT count(*) FROM units").fetchone()[0]:
+        raise BookError("the demo goes only into an empty logbook")
+    try:
+        book.conn.executescript("BEGIN IMMEDIATE;\n" + sql + "\nCOMMIT;")
+    except sqlite3.Error as exc:
+        if book.conn.in_transaction:
+            book.conn.execute("ROLLBACK")
+        raise BookError(f"the demo SQL did not load: {exc}") from exc
+
+
+def create_demo(path: Path, force: bool = False) -> Book:
+    """Write the demo plant to `path`; an existing logbook is kept unless `force`."""
+    path = Path(path)
+    if path.exists() and path.stat().st_size > 0:
+        if not force:
+            raise BookError(f"{path} exists already: add --force to replace it with the demo")
+        for suffix in ("", "-wal", "-shm"):
+            Path(str(path) + suffix).unlink(missing_ok=True)
+    sql = demo_sql()
+    tmp = path.with_name(path.name + ".loading")
+    for suffix in ("", "-wal", "-shm"):
+        Path(str(tmp) + suffix).unlink(missing_ok=True)
+    book = open_book(tmp)
+    try:
+        load_sql(book, sql)
+        book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+    finally:
+        book.close()
+    os.replace(tmp, path)
+    return open_book(path)
+
+
+def demo_path() -> Path:
+    """Where the app keeps the demo it opens when no logbook exists yet."""
+    return Path(user_data_dir("sumpbook", appauthor=False)) / "demo.db"

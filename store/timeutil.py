@@ -1,0 +1,149 @@
+"""Time: entries are stored in UTC and shown in the plant's local time.
+
+Shifts are wall-clock patterns ("06:00, 14:00, 22:00") in the plant's time zone;
+a shift runs until the next one starts, so it may cross midnight and lasts an hour
+more or less on the nights the clocks change (python-dateutil's tz does the rules).
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Sequence
+from dataclasses import dataclass
+from datetime import UTC, date, datetime, time, timedelta, tzinfo
+
+from dateutil import parser as date_parser
+from dateutil import tz
+
+from .errors import BookError
+
+UTC_FORMAT = "%Y-%m-%dT%H:%M:%SZ"
+ENV_NOW = "SUMPBOOK_NOW"  # fixes the clock for demos and tests (any ISO 8601 time)
+MAX_AHEAD = timedelta(days=1)
+
+
+def utc_now() -> datetime:
+    fixed = os.environ.get(ENV_NOW)
+    if fixed:
+        return to_utc(date_parser.isoparse(fixed), tz.UTC)
+    return datetime.now(UTC).replace(microsecond=0)
+
+
+def to_utc(moment: datetime, local: tzinfo) -> datetime:
+    if moment.tzinfo is None:
+        moment = moment.replace(tzinfo=local)
+        if not tz.datetime_exists(moment):
+            raise BookError(
+                f"{moment:%Y-%m-%d %H:%M} does not exist in local time (clocks went forward)"
+            )
+    return moment.astimezone(UTC).replace(microsecond=0)
+
+
+def format_utc(moment: datetime) -> str:
+    return moment.astimezone(UTC).strftime(UTC_FORMAT)
+
+
+def parse_utc(text: str) -> datetime:
+    return datetime.strptime(text, UTC_FORMAT).replace(tzinfo=UTC)
+
+
+def zone(name: str | None) -> tzinfo:
+    """The plant's time zone by IANA name; the machine's own zone when unset."""
+    if not name:
+        return tz.tzlocal()
+    found = tz.gettz(name)
+    if found is None:
+        raise BookError(f"unknown time zone '{name}': use an IANA name such as Europe/Berlin")
+    return found
+
+
+def parse_time(
+    text: str, local: tzinfo, now: datetime | None = None, allow_future: bool = False
+) -> datetime:
+    """Any ISO 8601 time (naive means plant-local) -> UTC; refuses a time far ahead."""
+    try:
+        moment = date_parser.isoparse(text.strip())
+    except (ValueError, OverflowError) as exc:
+        raise BookError(f"'{text}' is not an ISO 8601 time (e.g. 2026-05-13T07:30)") from exc
+    result = to_utc(moment, local)
+    now = now or utc_now()
+    if not allow_future and result > now + MAX_AHEAD:
+        raise BookError(
+            f"{text} is more than a day ahead of this computer's clock ({now:%Y-%m-%d %H:%M} UTC):"
+            " check the time or the clock"
+        )
+    return result
+
+
+def local_text(moment: datetime, local: tzinfo, seconds: bool = False) -> str:
+    return moment.astimezone(local).strftime("%Y-%m-%d %H:%M:%S" if seconds else "%Y-%m-%d %H:%M")
+
+
+def iso_local(moment: datetime, local: tzinfo) -> str:
+    """ISO 8601 with the local offset, e.g. 2026-03-29T07:00:00+02:00."""
+    return moment.astimezone(local).isoformat(timespec="seconds")
+
+
+@dataclass(frozen=True)
+class ShiftSpan:
+    name: str
+    day: date  # local date on which the shift starts
+    start: datetime  # UTC
+    end: datetime  # UTC
+
+    @property
+    def label(self) -> str:
+        return f"{self.day.isoformat()}/{self.name}"
+
+    def holds(self, moment: datetime) -> bool:
+        return self.start <= moment < self.end
+
+
+def _wall(day: date, hhmm: str, local: tzinfo) -> datetime:
+    hour, minute = (int(x) for x in hhmm.split(":"))
+    moment = datetime.combine(day, time(hour, minute), tzinfo=local)
+    # A start inside the spring-forward gap begins at the first valid local minute after it.
+    while not tz.datetime_exists(moment):
+        moment = (moment + timedelta(minutes=1)).replace(tzinfo=local)
+    return moment.astimezone(UTC)
+
+
+def _spans_on(day: date, pattern: Sequence[tuple[str, str]], local: tzinfo) -> list[ShiftSpan]:
+    ordered = sorted(pattern, key=lambda s: s[1])
+    starts = [(_wall(day, hhmm, local), name) for name, hhmm in ordered]
+    starts.append((_wall(day + timedelta(days=1), ordered[0][1], local), ordered[0][0]))
+    return [ShiftSpan(name, day, s, starts[i + 1][0]) for i, (s, name) in enumerate(starts[:-1])]
+
+
+def shift_at(moment: datetime, pattern: Sequence[tuple[str, str]], local: tzinfo) -> ShiftSpan:
+    """The shift holding `moment` (UTC): pattern is [(name, 'HH:MM'), ...]."""
+    if not pattern:
+        pattern = [("day", "00:00")]
+    day = moment.astimezone(local).date()
+    for d in (day, day - timedelta(days=1)):
+        for span in _spans_on(d, pattern, local):
+            if span.holds(moment):
+                return span
+    raise BookError("the shift pattern does not cover that time")  # cannot happen: spans tile days
+
+
+def shift_named(label: str, pattern: Sequence[tuple[str, str]], local: tzinfo) -> ShiftSpan:
+    """'2026-05-13/night' -> that shift."""
+    try:
+        day_text, name = label.split("/", 1)
+        day = date.fromisoformat(day_text)
+    except ValueError as exc:
+        raise BookError(f"'{label}' is not a shift: use YYYY-MM-DD/NAME") from exc
+    for span in _spans_on(day, pattern or [("day", "00:00")], local):
+        if span.name.lower() == name.strip().lower():
+            return span
+    names = ", ".join(n for n, _ in pattern)
+    raise BookError(f"no shift named '{name}': the pattern has {names}")
+
+
+def previous_shift(span: ShiftSpan, pattern: Sequence[tuple[str, str]], local: tzinfo) -> ShiftSpan:
+    return shift_at(span.start - timedelta(seconds=1), pattern, local)
+
+
+def next_shift(span: ShiftSpan, pattern: Sequence[tuple[str, str]], local: tzinfo) -> ShiftSpan:
+    return shift_at(span.end, pattern, local)

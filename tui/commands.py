@@ -1,0 +1,417 @@
+"""What each `sumpbook` command does: parse the edges (units, times), call `store`, print."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from pathlib import Path
+from typing import Any
+
+from rich.console import Console
+
+from store import journal, register
+from store import prefs as laptop
+from store.book import Book, default_path, open_book
+from store.csvio import Prefs as CsvPrefs
+from store.csvio import import_csv, write_csv
+from store.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp, Void
+from store.errors import BookError
+from store.register import Breather, FilterPosition, Fluid, Technician, Unit
+from store.timeutil import parse_time, previous_shift, shift_at, shift_named
+from store.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
+
+from . import render
+
+console = Console(highlight=False)
+
+
+def _book(args: argparse.Namespace, create: bool = False) -> Book:
+    return open_book(args.db or default_path(), create=create)
+
+
+def _pairs(items: list[str]) -> dict[str, str]:
+    result = {}
+    for item in items:
+        key, sep, value = item.partition("=")
+        if not sep or not key.strip():
+            raise BookError(f"'{item}' is not KEY=VALUE")
+        result[key.strip().lower()] = value.strip()
+    return result
+
+
+def _by(args: argparse.Namespace) -> str:
+    who = getattr(args, "by", None) or laptop.load().tech
+    if not who:
+        raise BookError("who is logging? add --by INITIALS or sign in: sumpbook prefs tech=JK")
+    return who
+
+
+def _at(book: Book, args: argparse.Namespace):  # noqa: ANN202 - datetime | None
+    text = getattr(args, "at", None)
+    return parse_time(text, book.local_zone(), now=book.now()) if text else None
+
+
+def cmd_demo(args: argparse.Namespace) -> int:
+    from store.demo import create_demo
+
+    path = args.db or default_path()
+    with create_demo(path, force=args.force) as book:
+        units = len(register.list_all(book, Unit))
+        entries = book.conn.execute("SELECT count(*) FROM entries").fetchone()[0]
+    console.print(f"demo plant written to {path}: {units} units, {entries} entries")
+    return 0
+
+
+# ---- register ------------------------------------------------------------------------------------
+
+
+def _opt_bar(text: str | None, unit: str) -> float | None:
+    return parse_pressure_bar(text, unit) if text else None
+
+
+def cmd_register(args: argparse.Namespace) -> int:
+    prefs = laptop.load()
+    with _book(args, create=True) as book:
+        by = getattr(args, "by", None) or prefs.tech
+        what = args.what
+        if what == "shifts":
+            pattern = [tuple(s.split("=", 1)) for s in args.shifts]
+            if any(len(p) != 2 for p in pattern):
+                raise BookError("give shifts as NAME=HH:MM, e.g. early=06:00")
+            shifts = register.set_shifts(book, pattern, by)  # type: ignore[arg-type]
+            console.print("shifts: " + ", ".join(f"{s.name} from {s.starts}" for s in shifts))
+            return 0
+        if what == "change":
+            return _register_change(book, args, by)
+        record: Any
+        if what == "tech":
+            record = Technician(tag=args.tag, name=args.name)
+        elif what == "fluid":
+            record = Fluid(
+                tag=args.tag,
+                name=args.name,
+                iso_vg=args.vg,
+                nu40_cst=args.nu40,
+                nu100_cst=args.nu100,
+                vi=args.vi,
+                density_kg_l=args.density,
+            )
+        elif what == "unit":
+            record = Unit(
+                tag=args.tag,
+                name=args.name,
+                area=args.area,
+                reservoir_l=parse_volume_l(args.reservoir, prefs.volume)
+                if args.reservoir
+                else None,
+                fluid=args.fluid,
+                normal_temp_c=parse_temperature_c(args.normal_temp, prefs.temperature),
+                max_temp_c=parse_temperature_c(args.max_temp, prefs.temperature),
+                coldest_start_c=parse_temperature_c(args.coldest_start, prefs.temperature),
+                hour_meter=args.hour_meter,
+                target_code=args.target_code,
+            )
+        elif what == "filter":
+            record = FilterPosition(
+                tag=args.tag,
+                unit=args.unit,
+                kind=args.kind,
+                element=args.element,
+                rating_um=args.rating,
+                rating_basis="nominal" if args.nominal else "absolute",
+                beta_ratio=args.beta,
+                bypass_bar=_opt_bar(args.bypass, prefs.pressure),
+                limit_bar=_opt_bar(args.limit, prefs.pressure),
+                clean_bar=_opt_bar(args.clean, prefs.pressure),
+                rated_flow_lpm=args.rated_flow,
+                normal_flow_lpm=args.flow,
+                gauge=not args.indicator_only,
+                reading_interval_h=args.every,
+            )
+        else:
+            record = Breather(
+                tag=args.tag,
+                unit=args.unit,
+                kind=args.kind,
+                rating_um=args.rating,
+                swap_interval_d=args.every,
+            )
+        added = register.add(book, record, by)
+        console.print(f"registered {what} {added.tag}")
+    return 0
+
+
+_CHANGE_TABLES = {
+    "tech": Technician,
+    "fluid": Fluid,
+    "unit": Unit,
+    "filter": FilterPosition,
+    "breather": Breather,
+}
+
+
+def _register_change(book: Book, args: argparse.Namespace, by: str) -> int:
+    cls = _CHANGE_TABLES[args.table]
+    current = register.get(book, cls, args.tag)
+    changes: dict[str, Any] = {}
+    for key, text in _pairs(args.fields).items():
+        if not hasattr(current, key) or key == "tag":
+            raise BookError(f"{args.table} has no field '{key}'")
+        changes[key] = register.parse_field(cls, key, text)
+    updated = register.update(book, cls, args.tag, changes, by)
+    for key in changes:
+        console.print(f"{updated.tag} {key}: {getattr(current, key)} -> {getattr(updated, key)}")
+    return 0
+
+
+# ---- list ----------------------------------------------------------------------------------------
+
+
+def cmd_list(args: argparse.Namespace) -> int:
+    prefs = laptop.load()
+    with _book(args) as book:
+        if args.unit:
+            args.unit = register.get(book, Unit, args.unit).tag
+        if args.what == "entries":
+            since = (
+                parse_time(args.since, book.local_zone(), now=book.now()) if args.since else None
+            )
+            entries = journal.read(
+                book, since=since, unit=args.unit, newest_first=True, limit=args.limit
+            )
+            console.print(render.entries_table(book, list(reversed(entries)), prefs))
+        else:
+            console.print(render.register_table(book, args.what, args.unit, prefs))
+    return 0
+
+
+# ---- log -----------------------------------------------------------------------------------------
+
+
+def cmd_log(args: argparse.Namespace) -> int:
+    prefs = laptop.load()
+    with _book(args) as book:
+        common = {"at": _at(book, args), "by": _by(args), "note": getattr(args, "note", "") or ""}
+        kind = args.kind
+        entry: Any
+        if kind == "reading":
+            if args.dp is None and args.indicator is None:
+                raise BookError("give --dp VALUE or --indicator STATE")
+            entry = Reading(
+                filter=args.tag,
+                dp_bar=parse_pressure_bar(args.dp, prefs.pressure) if args.dp else None,
+                indicator=args.indicator,
+                temp_c=parse_temperature_c(args.temp, prefs.temperature) if args.temp else None,
+                flow_lpm=args.flow,
+                hours=args.hours,
+                **common,
+            )
+        elif kind == "change":
+            entry = ElementChange(
+                filter=args.tag,
+                reason=args.reason,
+                condition=args.condition,
+                batch=args.batch,
+                hours=args.hours,
+                **common,
+            )
+        elif kind == "topup":
+            entry = TopUp(
+                unit=args.tag,
+                volume_l=parse_volume_l(args.volume, prefs.volume),
+                fluid=args.fluid,
+                filtered_um=None if args.unfiltered else args.filtered,
+                hours=args.hours,
+                **common,
+            )
+        elif kind == "breather":
+            entry = BreatherSwap(
+                breather=args.tag, reason=args.reason, condition=args.condition, **common
+            )
+        elif kind == "sample":
+            counts = _counts(args.counts) if args.counts else (None, None, None)
+            entry = Sample(
+                unit=args.tag,
+                c4_per_ml=counts[0],
+                c6_per_ml=counts[1],
+                c14_per_ml=counts[2],
+                code=args.code,
+                water_ppm=args.water,
+                **common,
+            )
+        elif kind == "note":
+            entry = Note(unit=args.unit, **{**common, "note": args.text})
+            if not args.text.strip():
+                raise BookError("the note is empty")
+        else:
+            entry = Void(voids=args.id, **{**common, "note": args.reason})
+        saved = journal.log(book, entry)
+        console.print(render.saved_line(book, saved, prefs))
+        if kind in ("change", "breather"):
+            console.print(render.CAUTION_SHORT)
+    return 0
+
+
+def _counts(text: str) -> tuple[float | None, float, float]:
+    parts = [p.strip() for p in text.split("/")]
+    if len(parts) != 3:
+        raise BookError("counts are ≥4/≥6/≥14 per mL, e.g. 2000/500/60 (or -/500/60)")
+    try:
+        c4 = None if parts[0] in ("-", "") else float(parts[0])
+        return c4, float(parts[1]), float(parts[2])
+    except ValueError as exc:
+        raise BookError(f"'{text}' holds something that is not a count") from exc
+
+
+# ---- status, export, import ----------------------------------------------------------------------
+
+
+def cmd_status(args: argparse.Namespace) -> int:
+    from store import status
+
+    prefs = laptop.load()
+    with _book(args) as book:
+        as_of = parse_time(args.as_of, book.local_zone(), now=book.now()) if args.as_of else None
+        unit = register.get(book, Unit, args.unit).tag if args.unit else None
+        watch = status.watch(book, as_of=as_of, unit=unit)
+        if args.json:
+            json.dump(status.to_json(watch), sys.stdout, indent=1, ensure_ascii=False)
+            sys.stdout.write("\n")
+        else:
+            console.print(render.watch_table(book, watch, prefs))
+    return 0
+
+
+def cmd_export(args: argparse.Namespace) -> int:
+    prefs = laptop.load()
+    with _book(args) as book:
+        local, pattern = book.local_zone(), book.shift_pattern()
+        now = book.now()
+        if args.from_:
+            start = parse_time(args.from_, local, now=now)
+            end = parse_time(args.to, local, now=now) if args.to else now
+            if end <= start:
+                raise BookError("--to must be after --from")
+        else:
+            if args.to:
+                raise BookError("--to goes with --from")
+            choice = (args.shift or "current").strip().lower()
+            if choice == "current":
+                span = shift_at(now, pattern, local)
+            elif choice == "previous":
+                span = previous_shift(shift_at(now, pattern, local), pattern, local)
+            else:
+                span = shift_named(args.shift, pattern, local)
+            start, end = span.start, span.end
+        entries = journal.read(book, since=start, until=end)
+        csv_prefs = CsvPrefs(prefs.pressure, prefs.temperature, prefs.volume)
+        if args.output:
+            out_path: Path = args.output
+            tmp = out_path.with_name(out_path.name + ".part")
+            try:
+                with tmp.open("w", encoding="utf-8", newline="") as out:
+                    count = write_csv(out, book, entries, csv_prefs, local, pattern)
+                tmp.replace(out_path)
+            except OSError as exc:
+                tmp.unlink(missing_ok=True)
+                raise BookError(f"cannot write {out_path}: {exc.strerror}") from exc
+            Console(stderr=True).print(f"{count} entries written to {out_path}")
+        else:
+            write_csv(sys.stdout, book, entries, csv_prefs, local, pattern)
+    return 0
+
+
+def cmd_import(args: argparse.Namespace) -> int:
+    try:
+        data = Path(args.file).read_bytes()
+    except OSError as exc:
+        raise BookError(f"cannot read {args.file}: {exc.strerror}") from exc
+    with _book(args) as book:
+        result = import_csv(book, data, book.local_zone())
+    console.print(
+        f"imported {result.added} entries"
+        + (f"; {result.skipped} were in the book already" if result.skipped else "")
+    )
+    return 0
+
+
+# ---- settings ------------------------------------------------------------------------------------
+
+
+def cmd_prefs(args: argparse.Namespace) -> int:
+    current = laptop.load()
+    if args.settings:
+        changes = _pairs(args.settings)
+        aliases = {"temp": "temperature", "initials": "tech"}
+        changes = {aliases.get(k, k): v for k, v in changes.items()}
+        unknown = set(changes) - set(laptop.Prefs.__dataclass_fields__)
+        if unknown:
+            raise BookError(f"unknown setting {', '.join(sorted(unknown))}")
+        if "tech" in changes:
+            with _book(args) as book:
+                changes["tech"] = register.get(book, Technician, changes["tech"]).tag
+        current = laptop.save(current, **changes)
+    for key, value in current.__dict__.items():
+        console.print(f"{key} = {value}")
+    return 0
+
+
+def cmd_plant(args: argparse.Namespace) -> int:
+    with _book(args, create=True) as book:
+        if args.settings:
+            for key, value in _pairs(args.settings).items():
+                if key not in ("name", "timezone"):
+                    raise BookError(f"unknown plant setting '{key}': use name or timezone")
+                if key == "timezone":
+                    from store.timeutil import zone
+
+                    zone(value)
+                book.set_setting(key, value)
+        for key in ("name", "timezone"):
+            console.print(f"{key} = {book.setting(key, '') or '(this computer' + chr(39) + 's)'}")
+    return 0
+
+
+# ---- files ---------------------------------------------------------------------------------------
+
+
+def cmd_backup(args: argparse.Namespace) -> int:
+    from store.backup import copy_to
+
+    with _book(args) as book:
+        dest = copy_to(book.conn, args.dest)
+    console.print(f"backup written to {dest}")
+    return 0
+
+
+def cmd_restore(args: argparse.Namespace) -> int:
+    from store.backup import restore
+
+    path = args.db or default_path()
+    kept = restore(Path(args.file), path)
+    console.print(
+        f"restored {args.file} into {path}"
+        + (f"; the previous logbook is kept as {kept}" if kept else "")
+    )
+    return 0
+
+
+def cmd_merge(args: argparse.Namespace) -> int:
+    from store.merge import merge
+
+    with _book(args) as book:
+        report = merge(book, Path(args.other))
+    console.print(report.summary())
+    for conflict in report.conflicts:
+        console.print(f"  conflict: {conflict}")
+    return 0 if not report.conflicts else 1
+
+
+def cmd_rebuild(args: argparse.Namespace) -> int:
+    from store import status
+
+    with _book(args) as book:
+        count = status.rebuild(book)
+    console.print(f"status rebuilt for {count} filters")
+    return 0

@@ -1,0 +1,293 @@
+"""Rich tables and lines for the command line (the app has its own widgets)."""
+
+from __future__ import annotations
+
+from datetime import datetime
+from typing import TYPE_CHECKING
+
+from rich.table import Table
+from rich.text import Text
+
+from store import register
+from store.book import Book
+from store.entries import BreatherSwap, ElementChange, Entry, Note, Reading, Sample, TopUp, Void
+from store.prefs import Prefs
+from store.register import Breather, FilterPosition, Fluid, Technician, Unit
+from store.timeutil import local_text
+from store.units import from_bar, from_c, from_l, pressure_label, temperature_label, volume_label
+
+if TYPE_CHECKING:
+    from store.status import Watch
+
+CAUTION_SHORT = (
+    "Safety: isolate and lock out, relieve pressure and accumulators, let hot oil cool, wear "
+    "eye and skin protection, never feel for leaks by hand. The maker's manual and site "
+    "procedures rule."
+)
+
+
+def p_text(value_bar: float | None, prefs: Prefs, unit: bool = True) -> str:
+    if value_bar is None:
+        return "–"
+    value = from_bar(value_bar, prefs.pressure)
+    digits = 1 if prefs.pressure.lower() in ("psi", "kpa") else 2
+    return f"{value:.{digits}f}" + (f" {pressure_label(prefs.pressure)}" if unit else "")
+
+
+def t_text(value_c: float | None, prefs: Prefs) -> str:
+    if value_c is None:
+        return "–"
+    return f"{from_c(value_c, prefs.temperature):.0f} {temperature_label(prefs.temperature)}"
+
+
+def v_text(value_l: float | None, prefs: Prefs) -> str:
+    if value_l is None:
+        return "–"
+    return f"{from_l(value_l, prefs.volume):.1f} {volume_label(prefs.volume)}"
+
+
+def when(book: Book, moment: datetime | None) -> str:
+    return local_text(moment, book.local_zone()) if moment else "–"
+
+
+def describe(entry: Entry, prefs: Prefs) -> str:
+    """One line saying what the entry holds, in the user's units."""
+    if isinstance(entry, Reading):
+        parts = []
+        if entry.dp_bar is not None:
+            parts.append(f"ΔP {p_text(entry.dp_bar, prefs)}")
+        if entry.indicator:
+            parts.append(f"indicator {entry.indicator}")
+        if entry.temp_c is not None:
+            parts.append(f"at {t_text(entry.temp_c, prefs)}")
+        if entry.flow_lpm is not None:
+            parts.append(f"{entry.flow_lpm:g} L/min")
+        if entry.hours is not None:
+            parts.append(f"{entry.hours:g} h")
+        return ", ".join(parts)
+    if isinstance(entry, ElementChange):
+        return (
+            "element changed ("
+            + entry.reason
+            + ")"
+            + (f"; old: {entry.condition}" if entry.condition else "")
+            + (f"; new batch {entry.batch}" if entry.batch else "")
+        )
+    if isinstance(entry, TopUp):
+        how = "unfiltered" if entry.filtered_um is None else f"through {entry.filtered_um:g} µm"
+        return f"topped up {v_text(entry.volume_l, prefs)} {entry.fluid or ''} {how}".replace(
+            "  ", " "
+        )
+    if isinstance(entry, BreatherSwap):
+        return f"breather swapped ({entry.reason})" + (
+            f"; desiccant {entry.condition}" if entry.condition else ""
+        )
+    if isinstance(entry, Sample):
+        parts = [f"code {entry.code}"] if entry.code else []
+        if entry.water_ppm is not None:
+            parts.append(f"water {entry.water_ppm:g} ppm")
+        return "sample: " + ", ".join(parts)
+    if isinstance(entry, Void):
+        return f"voids {entry.voids[:8]}"
+    if isinstance(entry, Note):
+        return "note"
+    return entry.kind
+
+
+def saved_line(book: Book, entry: Entry, prefs: Prefs) -> str:
+    target = entry.target or entry.unit or ""
+    return (
+        f"saved {entry.kind} {entry.id[:8]} {target} {when(book, entry.at)} by {entry.by}: "
+        f"{describe(entry, prefs)}"
+    )
+
+
+def entries_table(book: Book, entries: list[Entry], prefs: Prefs) -> Table:
+    from store.conditions import contexts, normalise
+
+    ctxs = contexts(book)
+    table = Table(title=f"Entries ({len(entries)})", title_justify="left")
+    for name in (
+        "id",
+        "time",
+        "kind",
+        "target",
+        "by",
+        "what",
+        f"ΔP ref ({pressure_label(prefs.pressure)})",
+        "reference",
+        "note",
+    ):
+        table.add_column(name, overflow="fold")
+    for e in entries:
+        ref = reference = ""
+        if isinstance(e, Reading) and e.dp_bar is not None and e.filter in ctxs:
+            n = normalise(ctxs[e.filter], e)
+            ref = p_text(n.dp_ref_bar, prefs, unit=False) if n.dp_ref_bar is not None else ""
+            reference = ctxs[e.filter].reference.label if n.dp_ref_bar is not None else n.problem  # type: ignore[union-attr]
+        style = "strike dim" if e.voided else ""
+        row = [
+            e.id[:8],
+            when(book, e.at),
+            e.kind + (" (void)" if e.voided else ""),
+            e.target or e.unit or "",
+            e.by,
+            describe(e, prefs),
+            ref,
+            reference,
+            e.note,
+        ]
+        table.add_row(*row, style=style)
+    return table
+
+
+def register_table(book: Book, what: str, unit: str | None, prefs: Prefs) -> Table:
+    if what == "shifts":
+        table = Table(title="Shift pattern", title_justify="left")
+        table.add_column("shift")
+        table.add_column("starts")
+        for shift in register.list_shifts(book):
+            table.add_row(shift.name, shift.starts)
+        return table
+    cls = {
+        "units": Unit,
+        "filters": FilterPosition,
+        "breathers": Breather,
+        "fluids": Fluid,
+        "techs": Technician,
+    }[what]
+    rows = register.list_all(book, cls, unit)
+    table = Table(title=f"{what.capitalize()} ({len(rows)})", title_justify="left")
+    if cls is FilterPosition:
+        cols = [
+            "tag",
+            "unit",
+            "kind",
+            "element",
+            "rating",
+            "clean",
+            "limit",
+            "bypass",
+            "flow",
+            "gauge",
+        ]
+        for c in cols:
+            table.add_column(c)
+        for f in rows:
+            table.add_row(
+                f.tag,
+                f.unit,
+                f.kind,
+                f.element,
+                f"{f.rating_um:g} µm {f.rating_basis[:3]}" if f.rating_um else "–",
+                p_text(f.clean_bar, prefs),
+                p_text(f.limit_bar, prefs),
+                p_text(f.bypass_bar, prefs),
+                f"{f.normal_flow_lpm:g} L/min" if f.normal_flow_lpm else "–",
+                "gauge" if f.gauge else "indicator",
+            )
+        return table
+    if cls is Unit:
+        for c in (
+            "tag",
+            "name",
+            "area",
+            "reservoir",
+            "fluid",
+            "normal",
+            "limit",
+            "coldest start",
+            "hour meter",
+            "target code",
+        ):
+            table.add_column(c)
+        for u in rows:
+            table.add_row(
+                u.tag,
+                u.name,
+                u.area,
+                v_text(u.reservoir_l, prefs),
+                u.fluid or "–",
+                t_text(u.normal_temp_c, prefs),
+                t_text(u.max_temp_c, prefs),
+                t_text(u.coldest_start_c, prefs),
+                "yes" if u.hour_meter else "no",
+                u.target_code or "–",
+            )
+        return table
+    names = list(rows[0].__dataclass_fields__) if rows else ["tag"]
+    for n in names:
+        table.add_column(n)
+    for r in rows:
+        table.add_row(*("–" if getattr(r, n) is None else str(getattr(r, n)) for n in names))
+    return table
+
+
+def due_text(book: Book, due) -> str:  # noqa: ANN001 - status.Due | None
+    if due is None:
+        return "–"
+    z = book.local_zone()
+    first, likely, last = (
+        due.earliest.astimezone(z),
+        due.likely.astimezone(z),
+        due.latest.astimezone(z),
+    )
+    return f"{first:%d %b}–{last:%d %b} (likely {likely:%d %b})"
+
+
+def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
+    from store.status import FLAG_WORDS
+
+    table = Table(title=f"Watch list as of {when(book, watch.as_of)}", title_justify="left")
+    for c in (
+        "filter",
+        "unit",
+        "kind",
+        f"ΔP ref ({pressure_label(prefs.pressure)})",
+        "% limit",
+        "due (change)",
+        "basis",
+        "flags",
+    ):
+        table.add_column(c)
+    for f in watch.filters:
+        flags = Text(" ".join(FLAG_WORDS.get(x, x) for x in f.flags))
+        if any(
+            x in ("dp-drop", "at-bypass", "indicator-bypass", "cold-start-bypass") for x in f.flags
+        ):
+            flags.stylize("bold reverse")
+        due = due_text(book, f.due) if f.due else f.state
+        table.add_row(
+            f.filter,
+            f.unit,
+            f.kind,
+            p_text(f.dp_ref_bar, prefs, unit=False),
+            f"{f.percent_of_limit:.0f} %" if f.percent_of_limit is not None else "–",
+            due,
+            f.basis,
+            flags,
+        )
+    for b in watch.breathers:
+        table.add_row(
+            b.breather,
+            b.unit,
+            f"breather ({b.kind})",
+            "",
+            "",
+            when(book, b.forecast.due),
+            b.forecast.basis,
+            " ".join(FLAG_WORDS.get(x, x) for x in b.flags),
+        )
+    for u in watch.units:
+        if u.flags:
+            table.add_row(
+                u.unit,
+                u.unit,
+                "unit",
+                "",
+                "",
+                "",
+                "",
+                " ".join(FLAG_WORDS.get(x, x) for x in u.flags),
+            )
+    return table
