@@ -319,7 +319,9 @@ def import_csv(book: Book, data: bytes, local: tzinfo) -> ImportResult:
     entries, problems = parse_csv(decode(data), local)
     added = skipped = 0
     now = book.now()
-    if not problems:
+    # Rows that parsed are still checked against the book when others did not, so that
+    # one pass reports every bad line; the transaction is rolled back in that case.
+    if entries:
         try:
             with book.atomic():
                 for line, entry in entries:
@@ -338,9 +340,15 @@ def import_csv(book: Book, data: bytes, local: tzinfo) -> ImportResult:
         except _Rejected:
             pass
     if problems:
+        problems.sort(key=_line_of)
         shown = problems[:20] + ([f"… and {len(problems) - 20} more"] if len(problems) > 20 else [])
         raise BookError("nothing imported; " + "; ".join(shown))
     return ImportResult(added, skipped)
+
+
+def _line_of(problem: str) -> int:
+    digits = problem.removeprefix("line ").split(":", 1)[0]
+    return int(digits) if digits.isdigit() else 0
 
 
 class _Rejected(Exception):

@@ -123,9 +123,9 @@ def validate(book: Book, entry: Entry, now: datetime | None = None) -> Entry:
     elif isinstance(entry, Sample):
         changes.update(_sample_fields(entry))
     elif isinstance(entry, Void):
-        changes["voids"] = _voidable(book, entry.voids)
         if not changes["note"]:
             raise BookError("say why the entry is voided")
+        changes["voids"] = _voidable(book, entry.voids)
     return replace(entry, **changes)
 
 

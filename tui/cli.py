@@ -221,3 +221,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     except BrokenPipeError:
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return 0
+    except Exception as exc:  # a bug: one line for the user, the trace on request
+        if os.environ.get("SUMPBOOK_DEBUG"):
+            raise
+        print(f"sumpbook: unexpected error ({type(exc).__name__}: {exc}); nothing more was "
+              "written. Run again with SUMPBOOK_DEBUG=1 for the details.", file=sys.stderr)
+        return 1

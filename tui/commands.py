@@ -23,7 +23,8 @@ from store.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
 
 from . import render
 
-console = Console(highlight=False)
+# Piped output (grep, files, tests) gets wide lines instead of wrapped cells.
+console = Console(highlight=False, width=None if sys.stdout.isatty() else 200)
 
 
 def _book(args: argparse.Namespace, create: bool = False) -> Book:
@@ -155,14 +156,29 @@ def _register_change(book: Book, args: argparse.Namespace, by: str) -> int:
     cls = _CHANGE_TABLES[args.table]
     current = register.get(book, cls, args.tag)
     changes: dict[str, Any] = {}
+    prefs = laptop.load()
     for key, text in _pairs(args.fields).items():
-        if not hasattr(current, key) or key == "tag":
-            raise BookError(f"{args.table} has no field '{key}'")
-        changes[key] = register.parse_field(cls, key, text)
+        name = _field_name(current, key)
+        if name.endswith("_bar") and text.strip().lower() not in ("", "none", "-"):
+            changes[name] = parse_pressure_bar(text, prefs.pressure)
+        elif name.endswith("_c"):
+            changes[name] = parse_temperature_c(text, prefs.temperature)
+        else:
+            changes[name] = register.parse_field(cls, name, text)
     updated = register.update(book, cls, args.tag, changes, by)
     for key in changes:
         console.print(f"{updated.tag} {key}: {getattr(current, key)} -> {getattr(updated, key)}")
     return 0
+
+
+def _field_name(record: Any, key: str) -> str:
+    """'limit' -> 'limit_bar', 'normal_temp' -> 'normal_temp_c': the unit suffix may be left off."""
+    key = key.replace("-", "_")
+    for name in [key] + [key + s for s in ("_bar", "_c", "_l", "_um", "_lpm", "_h", "_d", "_cst")]:
+        if name != "tag" and hasattr(record, name):
+            return name
+    fields = ", ".join(n for n in record.__dataclass_fields__ if n != "tag")
+    raise BookError(f"no field '{key}': use one of {fields}")
 
 
 # ---- list ----------------------------------------------------------------------------------------
@@ -276,7 +292,7 @@ def cmd_status(args: argparse.Namespace) -> int:
         unit = register.get(book, Unit, args.unit).tag if args.unit else None
         watch = status.watch(book, as_of=as_of, unit=unit)
         if args.json:
-            json.dump(status.to_json(watch), sys.stdout, indent=1, ensure_ascii=False)
+            json.dump(status.to_json(watch, book.local_zone()), sys.stdout, indent=1, ensure_ascii=False)
             sys.stdout.write("\n")
         else:
             console.print(render.watch_table(book, watch, prefs))
@@ -290,8 +306,8 @@ def cmd_export(args: argparse.Namespace) -> int:
         now = book.now()
         if args.from_:
             start = parse_time(args.from_, local, now=now)
-            end = parse_time(args.to, local, now=now) if args.to else now
-            if end <= start:
+            end = parse_time(args.to, local, now=now) if args.to else None
+            if end is not None and end <= start:
                 raise BookError("--to must be after --from")
         else:
             if args.to:
