@@ -41,8 +41,15 @@ MAX_NOTE_CHARS = 2000
 CHANGE_REASONS = ("limit", "indicator", "interval", "bypass", "damage", "other")
 BREATHER_REASONS = ("interval", "spent", "damage", "other")
 
-# Called inside the write transaction after each entry lands (the status cache hooks in here).
-AFTER_WRITE: list[Callable[[Book, Entry], None]] = []
+
+def _refresh_status(book: Book, entry: Entry) -> None:
+    from .statuscache import after_entry  # imported late: it pulls in the fitting maths
+
+    after_entry(book, entry)
+
+
+# Called inside the write transaction after each entry lands: keeps the status cache fresh.
+AFTER_WRITE: list[Callable[[Book, Entry], None]] = [_refresh_status]
 
 
 def _finite(name: str, value: float | None, low: float, high: float, unit: str) -> None:
@@ -227,9 +234,18 @@ def read(
     include_voided: bool = True,
     newest_first: bool = False,
     limit: int | None = None,
+    as_of: datetime | None = None,
 ) -> list[Entry]:
-    """Entries in time order (oldest first unless `newest_first`)."""
-    where, params = [], []
+    """Entries in time order (oldest first unless `newest_first`).
+
+    With `as_of`, an entry counts as voided only by a void dated before that time.
+    """
+    where: list[str] = []
+    params: list[Any] = []
+    join = _SELECT
+    if as_of is not None:
+        join += " AND v.at_utc < ?"
+        params.append(format_utc(as_of))
     for column, value in (("unit", unit), ("filter", filter), ("breather", breather)):
         if value:
             where.append(f"e.{column} = ?")
@@ -245,7 +261,7 @@ def read(
         params.extend(kinds)
     if not include_voided:
         where.append("v.id IS NULL")
-    sql = _SELECT + (" WHERE " + " AND ".join(where) if where else "")
+    sql = join + (" WHERE " + " AND ".join(where) if where else "")
     order = "DESC" if newest_first else "ASC"
     sql += f" ORDER BY e.at_utc {order}, e.rowid {order}"
     if limit:

@@ -206,6 +206,8 @@ def _check(book: Book, record: Any) -> Any:
 
 
 def _log_change(book: Book, table: str, tag: str, field: str, old: Any, new: Any, by: str) -> None:
+    # Settings drive the predictions: a register change makes every cached status stale.
+    book.conn.execute("DELETE FROM status_cache")
     book.conn.execute(
         "INSERT INTO register_log(id, at_utc, by, tbl, tag, field, old, new) "
         "VALUES (?, ?, ?, ?, ?, ?, ?, ?)",

@@ -140,6 +140,17 @@ CREATE TRIGGER entries_no_delete BEFORE DELETE ON entries
     BEGIN SELECT RAISE(ABORT, 'entries are append-only: void an entry instead'); END;
 """
 
+# Version 2: a derived cache of each filter's status, kept fresh on every write and
+# always rebuildable from the entries (`sumpbook rebuild`).
+V2 = """
+CREATE TABLE status_cache (
+    filter TEXT PRIMARY KEY COLLATE NOCASE REFERENCES filters(tag) ON DELETE CASCADE,
+    computed_utc TEXT NOT NULL,
+    format INTEGER NOT NULL,
+    data TEXT NOT NULL
+);
+"""
+
 # One SQL script per schema version, in order. Never edit a released step: add one.
-MIGRATIONS: list[str] = [V1]
+MIGRATIONS: list[str] = [V1, V2]
 SCHEMA_VERSION = len(MIGRATIONS)

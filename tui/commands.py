@@ -425,9 +425,9 @@ def cmd_merge(args: argparse.Namespace) -> int:
 
 
 def cmd_rebuild(args: argparse.Namespace) -> int:
-    from store import status
+    from store.statuscache import rebuild
 
     with _book(args) as book:
-        count = status.rebuild(book)
+        count = rebuild(book)
     console.print(f"status rebuilt for {count} filters")
     return 0

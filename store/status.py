@@ -1,0 +1,640 @@
+"""The watch list: per filter, breather and unit, what is due and what looks wrong.
+
+Everything here is derived from the entries and the register; `watch(book, as_of=T)`
+answers as the book stood at T (entries after it are ignored).
+
+Flag codes (also listed in the README):
+  filters   dp-drop, step-up, at-bypass, over-limit, indicator-bypass, indicator-dirty,
+            cold-start-bypass, reading-overdue, hot, no-limits
+  breathers swap-overdue, desiccant-spent
+  units     leak-suspect, unfiltered-topup, coarse-topup, over-target, hot
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from datetime import datetime, timedelta
+from typing import Any
+
+from . import anomaly, trend
+from .book import Book
+from .conditions import FilterContext, contexts
+from .elements import REACHED_REASONS, Element, Point, hours_per_day, split_elements
+from .entries import Entry
+from .errors import BookError
+from .fluidcare import (
+    BreatherForecast,
+    Consumption,
+    breather_forecast,
+    hot_readings,
+    sample_verdict,
+    spent_fraction,
+    topup_consumption,
+    topup_filtration_problem,
+)
+from .journal import read
+from .life import WeibullFit, fit_weibull
+from .normalise import ColdStart, cold_start
+from .register import Breather, FilterPosition, Unit, list_all
+from .timeutil import iso_local
+
+URGENT_FLAGS = ("dp-drop", "at-bypass", "indicator-bypass", "cold-start-bypass")
+HOT_LOOKBACK = timedelta(days=7)
+FLAG_WORDS = {
+    "dp-drop": "ΔP DROP",
+    "step-up": "STEP UP",
+    "at-bypass": "AT BYPASS",
+    "over-limit": "OVER LIMIT",
+    "indicator-bypass": "IND BYPASS",
+    "indicator-dirty": "IND DIRTY",
+    "cold-start-bypass": "COLD START",
+    "reading-overdue": "READ DUE",
+    "hot": "HOT",
+    "no-limits": "NO LIMITS",
+    "swap-overdue": "SWAP DUE",
+    "desiccant-spent": "SPENT",
+    "leak-suspect": "LEAK?",
+    "unfiltered-topup": "UNFILTERED",
+    "coarse-topup": "COARSE FILL",
+    "over-target": "DIRTY OIL",
+}
+
+
+@dataclass(frozen=True)
+class Due:
+    earliest: datetime
+    likely: datetime
+    latest: datetime | None  # None: no upper bound the data can support
+
+
+# The trend model's basis words, as the watch list and the JSON name them.
+BASIS = {"earlier-curves": "trend"}
+
+
+def _due(interval: trend.AgeInterval | None, age_to_time: Any) -> Due | None:
+    if interval is None:
+        return None
+    def at(age_h: float) -> datetime:
+        return age_to_time(age_h).replace(microsecond=0)
+
+    latest = at(interval.latest_h) if math.isfinite(interval.latest_h) else None
+    return Due(at(interval.earliest_h), at(interval.likely_h), latest)
+
+
+@dataclass(frozen=True)
+class LifeSummary:
+    b10_h: float
+    b50_h: float
+    n_failed: int
+    n_censored: int
+    pooled: bool  # includes like positions (same element)
+
+
+@dataclass(frozen=True)
+class FilterStatus:
+    filter: str
+    unit: str
+    kind: str
+    gauge: bool
+    dp_bar: float | None
+    dp_ref_bar: float | None
+    temp_c: float | None
+    indicator: str | None
+    reading_at: datetime | None
+    limit_bar: float | None
+    bypass_bar: float | None
+    clean_bar: float | None
+    percent_of_limit: float | None
+    due: Due | None
+    bypass_due: Due | None
+    basis: str
+    state: str
+    flags: tuple[str, ...]
+    notes: tuple[str, ...]
+    readings_since_change: int
+    changed_at: datetime | None
+    element_age_h: float
+    reference: str
+    cold: ColdStart | None
+    life: LifeSummary | None
+    history: tuple[Point, ...]  # readings of the current element (empty when read from cache)
+    spark: tuple[float, ...] = ()  # normalised ΔP of the current element, for sparklines
+    overdue_at: datetime | None = None  # when the next reading becomes overdue
+    forecast: trend.Forecast | None = field(default=None, compare=False)
+    age_to_time: Any = field(default=None, compare=False)  # element age (h) -> datetime
+
+    @property
+    def urgency(self) -> tuple:
+        urgent = any(f in URGENT_FLAGS for f in self.flags)
+        due_key = self.due.likely.timestamp() if self.due else float("inf")
+        return (
+            0 if urgent else 1,
+            0 if "over-limit" in self.flags else 1,
+            due_key,
+            -(self.percent_of_limit or 0),
+            self.filter,
+        )
+
+
+@dataclass(frozen=True)
+class BreatherStatus:
+    breather: str
+    unit: str
+    kind: str
+    forecast: BreatherForecast
+    flags: tuple[str, ...]
+
+    @property
+    def urgency(self) -> tuple:
+        due = self.forecast.due.timestamp() if self.forecast.due else float("inf")
+        return (0 if self.flags else 1, due, self.breather)
+
+
+@dataclass(frozen=True)
+class UnitStatus:
+    unit: str
+    name: str
+    area: str
+    consumption: Consumption | None
+    latest_code: str | None
+    target_code: str | None
+    sample_text: str
+    flags: tuple[str, ...]
+    notes: tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class Watch:
+    as_of: datetime
+    filters: tuple[FilterStatus, ...]
+    breathers: tuple[BreatherStatus, ...]
+    units: tuple[UnitStatus, ...]
+
+
+# ---- filters -------------------------------------------------------------------------------------
+
+
+def _life(
+    ctx: FilterContext, elements: Sequence[Element], like: Sequence[tuple[float, bool]]
+) -> WeibullFit | None:
+    """Weibull of this position's element lives; pooled with like positions if it has few."""
+    failed, censored = [], []
+    for el in elements[:-1]:
+        life = el.life_h()
+        if life is None or life <= 0:
+            continue
+        (failed if el.reached_limit(ctx.position.limit_bar) else censored).append(life)
+    fit = fit_weibull(failed, censored) if len(failed) >= 3 else None
+    if fit is None and like:
+        fit = fit_weibull(
+            failed + [h for h, r in like if r], censored + [h for h, r in like if not r]
+        )
+    return fit
+
+
+def _past(ctx: FilterContext, elements: Sequence[Element]) -> list[trend.PastElement]:
+    past = []
+    for el in elements[:-1]:
+        pts = [(p.age_h, p.dp_ref_bar) for p in el.points if p.dp_ref_bar is not None]
+        life = el.life_h()
+        if life and life > 0 and pts:
+            past.append(
+                trend.PastElement(
+                    ages_h=tuple(a for a, _ in pts),
+                    dp_ref_bar=tuple(d for _, d in pts),
+                    life_h=life,
+                    reached_limit=el.reached_limit(ctx.position.limit_bar),
+                )
+            )
+    return past
+
+
+def filter_status(
+    ctx: FilterContext,
+    entries: Sequence[Entry],
+    now: datetime,
+    like: Sequence[tuple[float, bool]] = (),
+) -> FilterStatus:
+    """Status of one filter position from its live entries (time order, up to `now`)."""
+    pos, unit = ctx.position, ctx.unit
+    elements = split_elements(ctx, entries)
+    current = elements[-1]
+    points = current.points
+    numeric = [p for p in points if p.dp_ref_bar is not None]
+    last = points[-1] if points else None
+    rate = hours_per_day(elements, now) if unit.hour_meter else None
+    origin = current.fitted_at or (points[0].at if points else now)
+    if rate and current.fitted_hours is not None:
+        last_h = max([p.hours for p in points if p.hours is not None] or [current.fitted_hours])
+        last_t = max([p.at for p in points if p.hours is not None] or [origin])
+        age_now = last_h - current.fitted_hours + rate * (now - last_t).total_seconds() / 86400
+
+        def age_to_time(age_h: float, _h=last_h - current.fitted_hours, _t=last_t) -> datetime:
+            return _t + timedelta(days=(age_h - _h) / rate)
+    else:
+        age_now = max((now - origin).total_seconds() / 3600, 0.0)
+
+        def age_to_time(age_h: float, _o=origin) -> datetime:
+            return _o + timedelta(hours=age_h)
+
+    flags: list[str] = []
+    notes: list[str] = []
+    fit = _life(ctx, elements, like)
+    life = None
+    if fit is not None:
+        life = LifeSummary(
+            fit.age_at_fraction_h(0.10),
+            fit.age_at_fraction_h(0.50),
+            fit.n_failed,
+            fit.n_censored,
+            pooled=bool(like),
+        )
+
+    forecast = None
+    due = bypass_due = None
+    basis, state = "none", "no-readings"
+    if not pos.limit_bar or not pos.bypass_bar:
+        state = "no-limits"
+        flags.append("no-limits")
+        notes.append("set the change limit and bypass ΔP to get a due date")
+    if pos.limit_bar:
+        readings = trend.ElementReadings(
+            ages_h=tuple(p.age_h for p in numeric),
+            dp_ref_bar=tuple(p.dp_ref_bar for p in numeric),  # type: ignore[misc]
+        )
+        last_age = readings.ages_h[-1] if numeric else 0.0
+        forecast = trend.forecast(
+            readings,
+            pos.clean_bar,
+            pos.limit_bar,
+            pos.bypass_bar,
+            max(age_now, last_age),
+            earlier=_past(ctx, elements),
+        )
+        basis, state = BASIS.get(forecast.basis, forecast.basis), forecast.state
+        if forecast.note:
+            notes.append(forecast.note)
+        due = _due(forecast.to_limit, age_to_time)
+        bypass_due = _due(forecast.to_bypass, age_to_time)
+    if (
+        due is None
+        and state in ("too-few-readings", "no-readings", "flat")
+        and fit
+        and pos.limit_bar
+    ):
+        basis = "service-life"
+        b10 = fit.age_at_fraction_h(0.10)
+        due = Due(
+            age_to_time(fit.age_at_fraction_h(0.05)),
+            age_to_time(b10),
+            age_to_time(fit.age_at_fraction_h(0.5)),
+        )
+        notes.append(
+            f"planned from earlier element lives: 10 % reach the limit by {b10:.0f} h of service"
+        )
+    if due is None and basis == "none" and not pos.gauge:
+        basis = "interval"
+
+    dp_ref = numeric[-1].dp_ref_bar if numeric else None
+    percent = 100 * dp_ref / pos.limit_bar if dp_ref is not None and pos.limit_bar else None
+    if dp_ref is not None and pos.bypass_bar and dp_ref >= pos.bypass_bar:
+        flags.append("at-bypass")
+    elif dp_ref is not None and pos.limit_bar and dp_ref >= pos.limit_bar:
+        flags.append("over-limit")
+    if (
+        last
+        and last.dp_bar is not None
+        and pos.bypass_bar
+        and last.dp_bar >= pos.bypass_bar
+        and "at-bypass" not in flags
+    ):
+        flags.append("at-bypass")
+        notes.append("the gauge read at or over the bypass setting: unfiltered oil passed")
+    if last and last.indicator == "bypass":
+        flags.append("indicator-bypass")
+    elif last and last.indicator == "dirty":
+        flags.append("indicator-dirty")
+    series = [(p.age_h, p.dp_ref_bar) for p in numeric]
+    drop = anomaly.drop_without_change(series)
+    if drop is not None:
+        flags.append("dp-drop")
+        notes.append(
+            drop.reason + ": check for a torn, collapsed or missing element or a "
+            "bypass valve stuck open"
+        )
+    step = anomaly.step_up(series)
+    if step is not None:
+        flags.append("step-up")
+        notes.append(step.reason)
+    cold = None
+    if dp_ref is not None and pos.bypass_bar and ctx.curve and ctx.reference:
+        try:
+            cold = cold_start(
+                dp_ref, pos.bypass_bar, unit.coldest_start_c, ctx.curve, ctx.reference
+            )
+        except BookError as exc:
+            notes.append(f"cold start not computed: {exc}")
+        if cold and cold.bypasses:
+            flags.append("cold-start-bypass")
+            notes.append(
+                f"a start at {unit.coldest_start_c:g} °C would give "
+                f"{cold.dp_at_start_bar:.2f} bar and open the bypass "
+                f"(below {cold.bypass_below_c:.0f} °C)"
+            )
+    last_seen = max(
+        [p.at for p in points] + ([current.fitted_at] if current.fitted_at else []), default=None
+    )
+    overdue_at = last_seen + timedelta(hours=pos.reading_interval_h * 1.5) if last_seen else None
+    if overdue_at and now > overdue_at:
+        flags.append("reading-overdue")
+    recent_hot = [
+        p
+        for p in points
+        if p.temp_c is not None and p.temp_c > unit.max_temp_c and now - p.at <= HOT_LOOKBACK
+    ]
+    if recent_hot:
+        flags.append("hot")
+        notes.append(
+            f"fluid at {max(p.temp_c for p in recent_hot):.0f} °C, over the unit's "  # type: ignore[type-var]
+            f"{unit.max_temp_c:g} °C limit"
+        )
+    return FilterStatus(
+        filter=pos.tag,
+        unit=pos.unit,
+        kind=pos.kind,
+        gauge=pos.gauge,
+        dp_bar=last.dp_bar if last else None,
+        dp_ref_bar=dp_ref,
+        temp_c=last.temp_c if last else None,
+        indicator=last.indicator if last else None,
+        reading_at=last.at if last else None,
+        limit_bar=pos.limit_bar,
+        bypass_bar=pos.bypass_bar,
+        clean_bar=pos.clean_bar,
+        percent_of_limit=percent,
+        due=due,
+        bypass_due=bypass_due,
+        basis=basis,
+        state=state,
+        flags=tuple(dict.fromkeys(flags)),
+        notes=tuple(notes),
+        readings_since_change=len(points),
+        changed_at=current.fitted_at,
+        element_age_h=age_now,
+        reference=ctx.reference.label if ctx.reference else ctx.problem,
+        cold=cold,
+        life=life,
+        history=points,
+        spark=tuple(p.dp_ref_bar for p in numeric[-40:]),  # type: ignore[misc]
+        overdue_at=overdue_at,
+        forecast=forecast,
+        age_to_time=age_to_time,
+    )
+
+
+def like_lives(
+    book: Book, ctx: FilterContext, until: datetime | None
+) -> list[tuple[float, bool]]:
+    """(life_h, reached_limit) of removed elements on other positions taking the same element."""
+    if not ctx.position.element:
+        return []
+    lives: list[tuple[float, bool]] = []
+    for other in list_all(book, FilterPosition, None):
+        if other.tag == ctx.position.tag or other.element.lower() != ctx.position.element.lower():
+            continue
+        changes = [
+            e
+            for e in read(book, filter=other.tag, kinds=["change"], until=until, as_of=until)
+            if not e.voided
+        ]
+        for prev, cur in zip(changes, changes[1:], strict=False):
+            life = (cur.at - prev.at).total_seconds() / 3600  # type: ignore[operator]
+            if life > 0:
+                lives.append((life, cur.reason in REACHED_REASONS))  # type: ignore[attr-defined]
+    return lives
+
+
+def status_of(book: Book, ctx: FilterContext, as_of: datetime | None = None) -> FilterStatus:
+    """One filter's status from its own entries (and like positions' lives)."""
+    now = as_of or book.now()
+    # The live view takes every entry (a time up to a day ahead is allowed); an audit only
+    # what existed at that time, voided only by voids dated before it.
+    until = now + timedelta(seconds=1) if as_of else None
+    entries = [
+        e for e in read(book, filter=ctx.position.tag, until=until, as_of=until) if not e.voided
+    ]
+    return filter_status(ctx, entries, now, like_lives(book, ctx, until))
+
+
+# ---- the whole book ------------------------------------------------------------------------------
+
+
+def watch(book: Book, as_of: datetime | None = None, unit: str | None = None) -> Watch:
+    """The watch list. Now: from the status cache (kept fresh on every write);
+    as of a past time: computed from the entries as they stood then."""
+    now = as_of or book.now()
+    ctxs = [c for c in contexts(book).values() if unit is None or c.position.unit == unit]
+    if as_of is None:
+        from .statuscache import cached_filters
+
+        filters = cached_filters(book, ctxs, now)
+    else:
+        filters = [status_of(book, c, now) for c in ctxs]
+    filters.sort(key=lambda s: s.urgency)
+    until = now + timedelta(seconds=1)
+    breathers = []
+    for b in list_all(book, Breather, unit):
+        swaps = [
+            e
+            for e in read(book, breather=b.tag, kinds=["breather"], until=until, as_of=until)
+            if not e.voided
+        ]
+        breathers.append(_breather_status(b, swaps, now))
+    breathers.sort(key=lambda s: s.urgency)
+    units = [
+        _unit_status(book, u, list_all(book, FilterPosition, u.tag), now)
+        for u in list_all(book, Unit)
+        if unit is None or u.tag == unit
+    ]
+    return Watch(now, tuple(filters), tuple(breathers), tuple(units))
+
+
+def _breather_status(breather: Breather, swaps: Sequence[Entry], now: datetime) -> BreatherStatus:
+    forecast = breather_forecast(breather, swaps, now)  # type: ignore[arg-type]
+    flags = []
+    if forecast.overdue:
+        flags.append("swap-overdue")
+    fraction = spent_fraction(forecast.last_condition) if forecast.last_condition else None
+    if fraction is not None and fraction >= 0.99:
+        flags.append("desiccant-spent")
+    return BreatherStatus(breather.tag, breather.unit, breather.kind, forecast, tuple(flags))
+
+
+def _unit_status(
+    book: Book, unit: Unit, filters: Sequence[FilterPosition], now: datetime
+) -> UnitStatus:
+    until = now + timedelta(seconds=1)
+    flags: list[str] = []
+    notes: list[str] = []
+    topups = [
+        e
+        for e in read(book, unit=unit.tag, kinds=["topup"], until=until, as_of=until)
+        if not e.voided
+    ]
+    first = read(book, unit=unit.tag, until=until, limit=1)
+    consumption = topup_consumption(unit, topups, now, first[0].at if first else None)  # type: ignore[arg-type]
+    if consumption and consumption.rising:
+        flags.append("leak-suspect")
+        notes.append(f"fluid use is rising: {consumption.note}; look for a leak (never by hand)")
+    for t in topups:
+        if t.at and now - t.at <= timedelta(days=30):
+            problem = topup_filtration_problem(t, filters)  # type: ignore[arg-type]
+            if problem:
+                flags.append("unfiltered-topup" if t.filtered_um is None else "coarse-topup")  # type: ignore[attr-defined]
+                notes.append(problem)
+    samples = [
+        e
+        for e in read(
+            book,
+            unit=unit.tag,
+            kinds=["sample"],
+            until=until,
+            as_of=until,
+            newest_first=True,
+            limit=5,
+        )
+        if not e.voided and e.code
+    ]  # type: ignore[attr-defined]
+    code = sample_text = None
+    if samples:
+        verdict = sample_verdict(unit, samples[0])  # type: ignore[arg-type]
+        code, sample_text = verdict.code, verdict.text
+        if verdict.meets is False:
+            flags.append("over-target")
+            notes.append(f"latest sample {verdict.text}")
+    recent = [
+        e
+        for e in read(
+            book,
+            unit=unit.tag,
+            kinds=["reading"],
+            since=now - HOT_LOOKBACK,
+            until=until,
+            as_of=until,
+        )
+        if not e.voided
+    ]
+    if hot_readings(unit, recent):  # type: ignore[arg-type]
+        flags.append("hot")
+    return UnitStatus(
+        unit.tag,
+        unit.name,
+        unit.area,
+        consumption,
+        code,
+        unit.target_code,
+        sample_text or "",
+        tuple(dict.fromkeys(flags)),
+        tuple(notes),
+    )
+
+
+# ---- JSON ----------------------------------------------------------------------------------------
+
+
+def _due_json(due: Due | None, local: Any) -> dict[str, str] | None:
+    if due is None:
+        return None
+    return {
+        k: iso_local(getattr(due, k), local) if getattr(due, k) else None
+        for k in ("earliest", "likely", "latest")
+    }
+
+
+def _r(value: float | None, digits: int = 3) -> float | None:
+    return None if value is None else round(value, digits)
+
+
+def to_json(w: Watch, local: Any = None) -> dict[str, Any]:
+    from dateutil import tz
+
+    local = local or tz.UTC
+    return {
+        "as_of": iso_local(w.as_of, local),
+        "filters": [
+            {
+                "filter": f.filter,
+                "unit": f.unit,
+                "kind": f.kind,
+                "dp_bar": _r(f.dp_bar),
+                "dp_ref_bar": _r(f.dp_ref_bar),
+                "temp_c": _r(f.temp_c, 1),
+                "indicator": f.indicator,
+                "reading_at": iso_local(f.reading_at, local) if f.reading_at else None,
+                "reference": f.reference,
+                "limit_bar": f.limit_bar,
+                "bypass_bar": f.bypass_bar,
+                "percent_of_limit": _r(f.percent_of_limit, 1),
+                "due": _due_json(f.due, local),
+                "bypass_due": _due_json(f.bypass_due, local),
+                "basis": f.basis,
+                "state": f.state,
+                "flags": list(f.flags),
+                "notes": list(f.notes),
+                "readings_since_change": f.readings_since_change,
+                "element_age_h": _r(f.element_age_h, 1),
+                "cold_start": None
+                if f.cold is None
+                else {
+                    "start_temp_c": f.cold.start_temp_c,
+                    "dp_at_start_bar": _r(f.cold.dp_at_start_bar),
+                    "bypasses": f.cold.bypasses,
+                    "bypass_below_c": _r(f.cold.bypass_below_c, 1),
+                },
+                "service_life": None
+                if f.life is None
+                else {
+                    "b10_h": _r(f.life.b10_h, 0),
+                    "b50_h": _r(f.life.b50_h, 0),
+                    "failed": f.life.n_failed,
+                    "censored": f.life.n_censored,
+                },
+            }
+            for f in w.filters
+        ],
+        "breathers": [
+            {
+                "breather": b.breather,
+                "unit": b.unit,
+                "kind": b.kind,
+                "last_swap": iso_local(b.forecast.last_swap, local)
+                if b.forecast.last_swap
+                else None,
+                "due": iso_local(b.forecast.due, local) if b.forecast.due else None,
+                "interval_d": _r(b.forecast.interval_d, 1),
+                "basis": b.forecast.basis,
+                "flags": list(b.flags),
+            }
+            for b in w.breathers
+        ],
+        "units": [
+            {
+                "unit": u.unit,
+                "name": u.name,
+                "area": u.area,
+                "topup_l_per_week": _r(u.consumption.recent_l_per_week, 2)
+                if u.consumption
+                else None,
+                "topup_history_l_per_week": _r(u.consumption.history_l_per_week, 2)
+                if u.consumption
+                else None,
+                "latest_code": u.latest_code,
+                "target_code": u.target_code,
+                "flags": list(u.flags),
+                "notes": list(u.notes),
+            }
+            for u in w.units
+        ],
+    }

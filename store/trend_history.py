@@ -1,0 +1,219 @@
+"""Forecast from the loading curves of earlier elements on the same (or a like) position.
+
+Each earlier element that ran to its change limit leaves a curve: ΔP against the share of its
+life used. Elements on one housing, fed by the same system, tend to load along the same shape,
+only faster or slower. So the current readings are matched to every earlier curve stretched in
+time to a candidate life L (and shifted by a small ΔP offset b for a different clean ΔP):
+
+    dp(t) ≈ b + g_j(t / L)
+
+The fit is scored with a Huber loss, the candidate lives carry a prior from the earlier lives
+(a log-normal kernel around each earlier element's own life), and the crossing age of a level
+follows from inverting the stretched curve. The result is a weighted cloud of crossing ages.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+from functools import cached_property
+
+import numpy as np
+from scipy.interpolate import PchipInterpolator
+
+from store.trend_models import HUBER_K, huber_rho, robust_scale
+
+MIN_TEMPLATE_READINGS = 4
+_N_LIVES = 200
+# Lives in the prior kernel: Silverman's rule on log lives, kept within these bounds.
+_TAU_MIN, _TAU_MAX = 0.03, 0.5
+
+
+@dataclass(frozen=True, eq=False)
+class Template:
+    """An earlier element's curve: ΔP (bar) against life fraction, strictly rising."""
+
+    f: np.ndarray
+    g: np.ndarray
+    life_h: float
+
+    def at(self, f: np.ndarray) -> np.ndarray:
+        """ΔP at life fractions f, continued beyond the end along the last slope."""
+        out = np.interp(f, self.f_fine, self.g_fine)
+        return np.where(f > self.f[-1], self.g[-1] + self.end_slope * (f - self.f[-1]), out)
+
+    def inverse(self, dp: np.ndarray) -> np.ndarray:
+        """Life fraction at which the curve reaches dp (0 below its start)."""
+        out = np.interp(dp, self.g_fine, self.f_fine)
+        beyond = self.f[-1] + (dp - self.g[-1]) / self.end_slope
+        return np.where(dp > self.g[-1], beyond, out)
+
+    @cached_property
+    def end_slope(self) -> float:
+        chord = (self.g[-1] - self.g[-2]) / (self.f[-1] - self.f[-2])
+        return float(max(self._pchip.derivative()(self.f[-1]), chord))
+
+    @cached_property
+    def _pchip(self):
+        return PchipInterpolator(self.f, self.g)
+
+    @cached_property
+    def f_fine(self) -> np.ndarray:
+        return np.unique(np.r_[np.linspace(0.0, self.f[-1], 401), self.f])
+
+    @cached_property
+    def g_fine(self) -> np.ndarray:
+        g = np.maximum.accumulate(self._pchip(self.f_fine))
+        return g + np.arange(g.size) * 1e-12 * max(abs(g[-1]), 1.0)
+
+
+def _isotonic(y: np.ndarray) -> np.ndarray:
+    """Least-squares non-decreasing fit (pool adjacent violators)."""
+    vals: list[float] = []
+    wts: list[float] = []
+    for yi in y:
+        vals.append(float(yi))
+        wts.append(1.0)
+        while len(vals) > 1 and vals[-2] > vals[-1]:
+            v, wt = vals.pop(), wts.pop()
+            vals[-1] = (vals[-1] * wts[-1] + v * wt) / (wts[-1] + wt)
+            wts[-1] += wt
+    return np.repeat(vals, np.array(wts, dtype=int))
+
+
+def make_template(
+    ages_h: Sequence[float], dp_bar: Sequence[float], life_h: float, limit_bar: float
+) -> Template | None:
+    """A smooth rising curve from an element's readings, ending at the limit at its life.
+
+    Readings are made monotone (ΔP of one element does not fall while it loads), runs of equal
+    values (a gauge read to its step) are replaced by one point at their middle, and the curve
+    ends at (1, limit) because the element was changed on reaching it. None if too sparse.
+    """
+    t = np.asarray(ages_h, dtype=float)
+    y = np.asarray(dp_bar, dtype=float)
+    ok = np.isfinite(t) & np.isfinite(y) & (t >= 0) & (t <= life_h)
+    t, y = t[ok], y[ok]
+    if t.size < MIN_TEMPLATE_READINGS or life_h <= 0:
+        return None
+    order = np.argsort(t, kind="stable")
+    f = t[order] / life_h
+    y = y[order]
+    if f[-1] < 1.0:
+        f = np.r_[f, 1.0]
+        y = np.r_[y, max(limit_bar, float(y.max()))]
+    f = np.r_[0.0, f]
+    y = np.r_[y[0], y]
+    g = _isotonic(y)
+    # Middle of each run of equal values, plus the two ends.
+    starts = np.r_[0, np.flatnonzero(np.diff(g) > 0) + 1]
+    ends = np.r_[starts[1:], g.size]
+    fm = np.array([f[s:e].mean() for s, e in zip(starts, ends, strict=True)])
+    gm = g[starts]
+    fm[0] = 0.0
+    fm[-1] = f[-1]
+    keep = np.r_[True, np.diff(fm) > 1e-9]
+    fm, gm = fm[keep], gm[keep]
+    if fm.size < 3 or gm[-1] <= gm[0]:
+        return None
+    return Template(fm, gm, float(life_h))
+
+
+@dataclass(frozen=True, eq=False)
+class HistoryFit:
+    """Earlier curves matched to the current readings."""
+
+    templates: tuple[Template, ...]
+    lives_h: np.ndarray  # (G,) candidate lives
+    log_post: np.ndarray  # (J, G) unnormalised log posterior
+    offset_bar: np.ndarray  # (J, G) ΔP offsets
+    sigma_bar: float
+
+    def best_curve(self) -> tuple[Template, float, float]:
+        j, i = np.unravel_index(int(np.argmax(self.log_post)), self.log_post.shape)
+        return self.templates[j], float(self.lives_h[i]), float(self.offset_bar[j, i])
+
+    def dp_at(self, ages_h: np.ndarray) -> np.ndarray:
+        tpl, life, off = self.best_curve()
+        return off + tpl.at(np.asarray(ages_h, dtype=float) / life)
+
+    def crossings(self, levels_bar: tuple[float, ...]) -> tuple[np.ndarray, np.ndarray]:
+        """Crossing ages (one row per level) and weights over all (curve, life) pairs."""
+        w = np.exp(self.log_post - self.log_post.max())
+        keep = w > 1e-9
+        rows = []
+        for level in levels_bar:
+            ages = np.empty_like(self.log_post)
+            for j, tpl in enumerate(self.templates):
+                ages[j] = tpl.inverse(level - self.offset_bar[j]) * self.lives_h
+            rows.append(ages[keep])
+        return np.array(rows), w[keep]
+
+
+def _bandwidth(lives_h: np.ndarray) -> float:
+    if lives_h.size < 2:
+        return _TAU_MAX
+    sd = float(np.std(np.log(lives_h), ddof=1))
+    return min(max(1.06 * sd * lives_h.size ** (-0.2), _TAU_MIN), _TAU_MAX)
+
+
+def fit_history(
+    ages_h: np.ndarray,
+    dp_bar: np.ndarray,
+    weights: np.ndarray,
+    templates: Sequence[Template],
+    sigma_bar: float,
+    sigma_floor_bar: float,
+) -> HistoryFit:
+    """Match the readings (sorted, unique ages) against stretched earlier curves."""
+    t = np.asarray(ages_h, dtype=float)
+    y = np.asarray(dp_bar, dtype=float)
+    w = np.asarray(weights, dtype=float)
+    lives = np.array([tp.life_h for tp in templates])
+    tau = _bandwidth(lives)
+    t_last = float(t[-1])
+    lo = max(float(lives.min()) * math.exp(-4 * tau), 0.8 * t_last)
+    hi = max(float(lives.max()) * math.exp(4 * tau), 4.0 * t_last, 1.5 * lo)
+    grid = np.geomspace(lo, hi, _N_LIVES)
+    # How much clean ΔP differs between elements: spread of the earlier curves' starts.
+    starts = np.array([tp.g[0] for tp in templates])
+    sigma_b = max(float(np.std(starts, ddof=1)) if starts.size > 1 else 0.0, sigma_floor_bar)
+    fit = _match(t, y, w, templates, grid, tau, sigma_bar, sigma_b)
+    # The curves of earlier elements are not the current element's: when the best match leaves
+    # more scatter than the readings' own noise, score with that larger scatter.
+    resid = y - fit.dp_at(t)
+    sigma_match = robust_scale(resid, 2, sigma_floor_bar)
+    if sigma_match > 1.1 * sigma_bar:
+        fit = _match(t, y, w, templates, grid, tau, sigma_match, sigma_b)
+    return fit
+
+
+def _match(
+    t: np.ndarray,
+    y: np.ndarray,
+    w: np.ndarray,
+    templates: Sequence[Template],
+    grid: np.ndarray,
+    tau: float,
+    sigma_bar: float,
+    sigma_b: float,
+) -> HistoryFit:
+    ridge = (sigma_bar / sigma_b) ** 2
+    f = t[None, :] / grid[:, None]  # (G, n)
+    log_post = np.empty((len(templates), grid.size))
+    offsets = np.empty_like(log_post)
+    for j, tpl in enumerate(templates):
+        r = y[None, :] - tpl.at(f)
+        # Offset b: Huber-weighted mean of the residuals, shrunk towards 0.
+        rw = np.ones_like(r)
+        for _ in range(2):
+            ww = w * rw
+            b = (ww * r).sum(1) / (ww.sum(1) + ridge)
+            z = np.abs(r - b[:, None]) / (HUBER_K * sigma_bar)
+            rw = np.where(z <= 1.0, 1.0, 1.0 / np.maximum(z, 1e-300))
+        loss = (w * huber_rho((r - b[:, None]) / sigma_bar)).sum(1) + 0.5 * b * b / sigma_b**2
+        prior = -0.5 * ((np.log(grid) - math.log(tpl.life_h)) / tau) ** 2
+        log_post[j] = prior - loss
+        offsets[j] = b
+    return HistoryFit(tuple(templates), grid, log_post, offsets, sigma_bar)

@@ -1,0 +1,218 @@
+"""The `sumpbook` command line, end to end as a technician would type it."""
+
+import json
+
+import pytest
+
+from tui.cli import main
+
+
+def run(capsys, *argv):
+    code = main(list(argv))
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+@pytest.fixture
+def plant(tmp_path, capsys):
+    """A small plant registered through the command line."""
+    db = str(tmp_path / "cli.db")
+    steps = [
+        ["register", "tech", "AB", "--name", "A.B."],
+        ["register", "fluid", "HV46", "--vg", "46", "--nu40", "46", "--nu100", "6.8"],
+        ["register", "unit", "P1", "--fluid", "hv46", "--reservoir", "400", "--normal-temp", "50",
+         "--target-code", "17/15/12"],
+        ["register", "filter", "P1-RF", "--unit", "p1", "--kind", "return", "--bypass", "3.5",
+         "--limit", "2.5", "--clean", "0.4", "--flow", "120", "--rating", "10"],
+        ["register", "breather", "P1-BR", "--unit", "P1"],
+        ["register", "shifts", "early=06:00", "late=14:00", "night=22:00"],
+        ["prefs", "tech=ab"],
+    ]
+    for step in steps:
+        code, _, err = run(capsys, "--db", db, *step)
+        assert code == 0, err
+    return db
+
+
+def entries(db):
+    import sqlite3
+
+    return sqlite3.connect(db).execute("SELECT count(*) FROM entries").fetchone()[0]
+
+
+def test_log_every_kind_and_list(plant, capsys):
+    db = plant
+    for step in [
+        ["log", "reading", "P1-RF", "--dp", "18psi", "--temp", "113F", "--at", "2026-01-05T07:00"],
+        ["log", "change", "P1-RF", "--reason", "limit", "--condition", "caked"],
+        ["log", "topup", "P1", "--volume", "5gal", "--filtered", "3"],
+        ["log", "breather", "P1-BR", "--condition", "2/3 spent"],
+        ["log", "sample", "P1", "--counts", "3000/500/7", "--water", "150"],
+        ["log", "note", "hose weeps", "--unit", "P1"],
+    ]:
+        code, out, err = run(capsys, "--db", db, *step)
+        assert code == 0, err
+        assert out.startswith("saved")
+    code, out, _ = run(capsys, "--db", db, "list", "entries")
+    assert code == 0
+    # 18 psi = 1.241 bar (NIST SP 811 psi factor); 113 °F = 45 °C (SP 811 App. B)
+    assert "1.24 bar" in out and "45 °C" in out
+    # ISO 4406 worked example (REFERENCES.md §1c): 3000/500/7 per mL is 19/16/10
+    assert "19/16/10" in out
+    # 5 US gal = 18.93 L (SP 811: 1 gal = 3.785412 L)
+    assert "18.9 L" in out
+    assert entries(db) == 6
+
+
+def test_void_through_the_cli(plant, capsys):
+    _, out, _ = run(capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "9")
+    entry_id = out.split()[2]
+    code, out, _ = run(capsys, "--db", plant, "log", "void", entry_id, "--reason", "typo")
+    assert code == 0
+    code, _, err = run(capsys, "--db", plant, "log", "void", entry_id, "--reason", "again")
+    assert code != 0 and "voided already" in err
+    _, out, _ = run(capsys, "--db", plant, "list", "entries")
+    assert "(void)" in out
+
+
+@pytest.mark.parametrize(
+    ("argv", "message"),
+    [
+        (["log", "reading", "P1-RX", "--dp", "1"], "did you mean P1-RF"),
+        (["log", "reading", "P1-RF", "--dp", "-1"], "outside"),
+        (["log", "reading", "P1-RF", "--dp", "150"], "outside"),
+        (["log", "reading", "P1-RF", "--dp", "1", "--temp", "200"], "outside"),
+        (["log", "reading", "P1-RF", "--dp", "1", "--temp", "-45"], "outside"),
+        (["log", "reading", "P1-RF", "--dp", "1 furlong"], "unknown pressure unit"),
+        (["log", "reading", "P1-RF", "--dp", "1", "--at", "yesterday-ish"], "ISO 8601"),
+        (["log", "reading", "P1-RF", "--dp", "1", "--at", "2099-01-01T00:00"], "ahead"),
+        (["log", "reading", "P1-RF"], "--dp"),
+        (["log", "void", "abcdef12", "--reason", "x"], "no entry"),
+        (["log", "topup", "P9", "--volume", "5", "--unfiltered"], "unknown unit"),
+        (["log", "reading", "P1-RF", "--dp", "1", "--by", "QQ"], "unknown technician"),
+    ],
+)
+def test_bad_input_is_one_line_nonzero_and_writes_nothing(plant, capsys, argv, message):
+    code, _, err = run(capsys, "--db", plant, *argv)
+    assert code == 2
+    assert message in err
+    assert err.count("\n") == 1 and "Traceback" not in err
+    assert entries(plant) == 0
+
+
+def test_a_file_that_is_not_a_logbook(tmp_path, capsys):
+    path = tmp_path / "junk.db"
+    path.write_bytes(b"junk" * 1000)
+    code, _, err = run(capsys, "--db", str(path), "list", "units")
+    assert code == 2 and "not a sumpbook logbook" in err
+    assert path.read_bytes() == b"junk" * 1000
+
+
+def test_no_logbook_yet_is_said_plainly(tmp_path, capsys):
+    code, _, err = run(capsys, "--db", str(tmp_path / "none.db"), "list", "entries")
+    assert code == 2 and "no logbook" in err
+    assert not (tmp_path / "none.db").exists()
+
+
+def test_export_import_round_trip(plant, tmp_path, capsys):
+    for step in [
+        ["log", "reading", "P1-RF", "--dp", "1.2", "--temp", "40", "--note", "=1+1 looks like a formula"],
+        ["log", "topup", "P1", "--volume", "20", "--unfiltered"],
+        ["log", "sample", "P1", "--code", "18/16/13"],
+    ]:
+        assert run(capsys, "--db", plant, *step)[0] == 0
+    out_csv = tmp_path / "shift.csv"
+    code, _, err = run(capsys, "--db", plant, "export", "--from", "2000-01-01", "-o", str(out_csv))
+    assert code == 0, err
+    text = out_csv.read_text(encoding="utf-8")
+    header = text.splitlines()[0].split(",")
+    assert {"dp_bar", "temp_c", "dp_ref_bar", "reference", "volume_l"} <= set(header)
+    assert "'=1+1" in text  # neutralised for spreadsheets
+
+    other = str(tmp_path / "other.db")
+    import shutil
+
+    shutil.copy(plant, other)  # same register...
+    import sqlite3
+
+    conn = sqlite3.connect(other)
+    conn.execute("DROP TRIGGER entries_no_delete")  # ...but no entries (test set-up only)
+    conn.execute("DELETE FROM entries")
+    conn.commit()
+    conn.close()
+    code, out, err = run(capsys, "--db", other, "import", str(out_csv))
+    assert code == 0, err
+    assert "imported 3" in out
+    a = sqlite3.connect(plant).execute("SELECT id, kind, dp_bar, temp_c, volume_l, code, note, "
+                                       "filtered_um FROM entries ORDER BY id").fetchall()
+    b = sqlite3.connect(other).execute("SELECT id, kind, dp_bar, temp_c, volume_l, code, note, "
+                                       "filtered_um FROM entries ORDER BY id").fetchall()
+    assert a == b
+    code, out, _ = run(capsys, "--db", other, "import", str(out_csv))
+    assert code == 0 and "imported 0" in out and "3 were in the book already" in out
+
+
+def test_import_minimal_columns_and_all_or_nothing(plant, tmp_path, capsys):
+    good = tmp_path / "good.csv"
+    good.write_text(
+        "time,kind,target,dp,dp_unit,temp,temp_unit,by,note\n"
+        "2026-01-05T07:00,reading,P1-RF,18,psi,113,F,AB,first\n"
+        "2026-01-05T15:00,reading,p1-rf,1.3,bar,50,C,ab,\n",
+        encoding="utf-8",
+    )
+    code, out, err = run(capsys, "--db", plant, "import", str(good))
+    assert code == 0, err
+    assert entries(plant) == 2
+    bad = tmp_path / "bad.csv"
+    bad.write_text(
+        "time,kind,target,dp,dp_unit,temp,temp_unit,by,note\n"
+        "2026-01-06T07:00,reading,P1-RF,1.0,bar,40,C,AB,fine\n"
+        "2026-01-06T08:00,reading,P1-XX,1.0,bar,40,C,AB,unknown tag\n"
+        "2026-01-06T09:00,reading,P1-RF,-3,bar,40,C,AB,negative\n"
+        "not a time,reading,P1-RF,1.0,bar,40,C,AB,bad time\n",
+        encoding="utf-8",
+    )
+    code, _, err = run(capsys, "--db", plant, "import", str(bad))
+    assert code == 2
+    assert "line 3" in err and "line 4" in err and "line 5" in err and "line 2" not in err
+    assert entries(plant) == 2
+
+
+def test_export_shift_choices(plant, capsys):
+    run(capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "1.0")
+    code, out, _ = run(capsys, "--db", plant, "export", "--shift", "current")
+    assert code == 0 and len(out.strip().splitlines()) == 2
+    code, out, _ = run(capsys, "--db", plant, "export", "--shift", "previous")
+    assert code == 0 and len(out.strip().splitlines()) == 1
+    code, _, err = run(capsys, "--db", plant, "export", "--shift", "2026-01-05/lunch")
+    assert code == 2 and "no shift named" in err
+
+
+def test_register_change_is_logged(plant, capsys):
+    code, out, err = run(capsys, "--db", plant, "register", "change", "filter", "P1-RF", "limit=2.4")
+    assert code == 0, err
+    import sqlite3
+
+    rows = sqlite3.connect(plant).execute(
+        "SELECT field, old, new, by FROM register_log WHERE field = 'limit_bar'").fetchall()
+    assert rows == [("limit_bar", "2.5", "2.4", "AB")]
+    code, _, err = run(capsys, "--db", plant, "register", "change", "filter", "P1-RF", "limit=9")
+    assert code == 2 and "below the bypass" in err
+
+
+def test_status_json_has_the_documented_fields(plant, capsys):
+    for dp in ("0.6", "0.7", "0.8"):
+        run(capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", dp, "--temp", "50")
+    code, out, err = run(capsys, "--db", plant, "status", "--json")
+    assert code == 0, err
+    data = json.loads(out)
+    assert set(data) >= {"filters", "breathers", "units"}
+    f = data["filters"][0]
+    for key in ("filter", "unit", "kind", "dp_ref_bar", "limit_bar", "bypass_bar",
+                "percent_of_limit", "due", "bypass_due", "basis", "state", "flags",
+                "readings_since_change", "cold_start", "reference"):
+        assert key in f
+    assert f["filter"] == "P1-RF" and f["readings_since_change"] == 3
+    # at the reference temperature the normalised value is the reading itself
+    assert f["dp_ref_bar"] == pytest.approx(0.8)
+    assert f["basis"] in ("trend", "service-life", "interval", "none")

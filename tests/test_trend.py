@@ -1,0 +1,331 @@
+"""Forecast of the change limit and bypass (store/trend.py and its helpers).
+
+The loading curves here are our own synthetic data, each from a stated generating model with
+seeded noise; the true crossing age follows from that model (checked with scipy's brentq).
+"""
+
+import math
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from scipy.optimize import brentq
+
+from store.errors import BookError
+from store.life import fit_weibull
+from store.trend import (
+    EARLIEST_P,
+    LATEST_P,
+    ElementReadings,
+    PastElement,
+    forecast,
+    prepare_readings,
+)
+from store.trend_history import make_template
+
+LIMIT = 2.0  # bar; a return-filter change limit (REFERENCES.md §7a: bypass 1.7-3.5 bar, memory)
+BYPASS = 2.5
+
+
+def exp_curve(t, life_h=1000.0, clean=0.3, a=0.05):
+    """Exponential growth of the excess over clean, scaled to reach LIMIT at life_h."""
+    k = math.log1p((LIMIT - clean) / a) / life_h
+    return clean + a * np.expm1(k * np.asarray(t, dtype=float))
+
+
+def cubic_curve(t, life_h=1000.0, clean=0.2):
+    """Third-order rise to LIMIT at life_h (REFERENCES.md §7a: ΔP vs life roughly 3rd order)."""
+    return clean + (LIMIT - clean) * (np.asarray(t, dtype=float) / life_h) ** 3
+
+
+def line_curve(t, life_h=1000.0, clean=0.4):
+    return clean + (LIMIT - clean) * np.asarray(t, dtype=float) / life_h
+
+
+def blocking_curve(t, tb=1200.0, clean=0.3):
+    """Complete pore blocking at constant flow: dp = clean / (1 - t / tb) (Hermia, from memory)."""
+    return clean / (1.0 - np.asarray(t, dtype=float) / tb)
+
+
+def readings(curve, t_max, n=20, noise=0.01, seed=0, **kw):
+    t = np.linspace(t_max / n, t_max, n)
+    y = curve(t, **kw) + np.random.default_rng(seed).normal(0.0, noise, n)
+    return t, y
+
+
+def run(t, y, clean=None, limit=LIMIT, bypass=None, now=None, earlier=()):
+    now = float(t[-1]) if now is None and len(t) else (now or 0.0)
+    return forecast(ElementReadings(tuple(t), tuple(y)), clean, limit, bypass, now, earlier)
+
+
+def true_crossing(curve, level=LIMIT, **kw):
+    hi = 0.9999 * kw.get("tb", 1200.0) if curve is blocking_curve else 5000.0
+    return brentq(lambda s: float(curve(s, **kw)) - level, 0.0, hi)
+
+
+CURVES = [(exp_curve, 0.3), (cubic_curve, 0.2), (line_curve, 0.4), (blocking_curve, 0.3)]
+
+
+def read_to(curve, clean, share=0.4):
+    """Age at which ΔP has covered `share` of the way from clean to the limit."""
+    return true_crossing(curve, level=clean + share * (LIMIT - clean))
+
+
+@pytest.mark.parametrize(("curve", "clean"), CURVES)
+def test_recovers_crossing_of_known_curves(curve, clean):
+    # Read until ΔP is 40 % of the way to the limit (about 0.4-0.8 of the life for these shapes).
+    t, y = readings(curve, read_to(curve, clean))
+    fc = run(t, y, clean=clean)
+    truth = true_crossing(curve)
+    assert fc.state == "ok"
+    assert fc.basis == "trend"
+    assert fc.to_limit.likely_h == pytest.approx(truth, rel=0.06)
+    assert fc.to_limit.earliest_h > t[-1]
+
+
+@pytest.mark.parametrize(("curve", "clean"), CURVES[:2])
+def test_interval_covers_the_crossing(curve, clean):
+    # 20 noisy logs (noise 0.03 bar): the 5-95 % interval should hold the truth about 90 % of
+    # the time; demand 15 of 20.
+    truth = true_crossing(curve)
+    t_max = read_to(curve, clean)
+    hits = 0
+    for seed in range(20):
+        t, y = readings(curve, t_max, noise=0.03, seed=seed)
+        iv = run(t, y, clean=clean).to_limit
+        hits += iv.earliest_h <= truth <= iv.latest_h
+    assert hits >= 15
+
+
+def test_bypass_after_limit():
+    t, y = readings(cubic_curve, 700.0)
+    fc = run(t, y, clean=0.2, bypass=BYPASS)
+    # Beyond the limit the cubic goes on: it reaches the bypass at (2.3 / 1.8) ** (1/3) * 1000 h.
+    truth = true_crossing(cubic_curve, level=BYPASS)
+    assert fc.to_bypass.likely_h > fc.to_limit.likely_h
+    assert fc.to_bypass.likely_h == pytest.approx(truth, rel=0.08)
+
+
+def test_half_the_limit_is_late_in_life():
+    # REFERENCES.md §7a (HAWE): at half the permitted ΔP an element is ~80 % through its life.
+    # On the 3rd-order curve that point is (0.5) ** (1/3) = 0.794 of life; read up to it, the
+    # forecast must leave about a fifth of the life, not the half a straight line would.
+    t_half = true_crossing(cubic_curve, level=0.2 + 0.5 * (LIMIT - 0.2))
+    assert t_half / 1000.0 == pytest.approx(0.8, abs=0.01)
+    t, y = readings(cubic_curve, t_half, n=25)
+    fc = run(t, y, clean=0.2)
+    remaining = fc.to_limit.likely_h - t_half
+    assert remaining == pytest.approx(1000.0 - t_half, rel=0.15)
+
+
+@pytest.mark.parametrize(("curve", "clean"), CURVES)
+def test_one_wild_reading_barely_moves_the_date(curve, clean):
+    t, y = readings(curve, read_to(curve, clean))
+    base = run(t, y, clean=clean).to_limit.likely_h
+    for i in (5, 10, 15):
+        wild = y.copy()
+        wild[i] *= 3.0  # a misread gauge, or a cold-oil reading left uncorrected
+        moved = run(t, wild, clean=clean).to_limit.likely_h
+        assert moved == pytest.approx(base, rel=0.03)
+
+
+def test_unsorted_input_gives_the_same_forecast():
+    t, y = readings(exp_curve, 750.0)
+    order = np.random.default_rng(3).permutation(t.size)
+    a = run(t, y, clean=0.3)
+    b = forecast(ElementReadings(tuple(t[order]), tuple(y[order])), 0.3, LIMIT, None, t[-1])
+    assert a == b
+
+
+def test_duplicate_ages_are_averaged():
+    ages, dp, counts = prepare_readings([30.0, 10.0, 30.0, 20.0], [0.5, 0.3, 0.7, 0.4])
+    assert ages.tolist() == [10.0, 20.0, 30.0]
+    assert dp.tolist() == pytest.approx([0.3, 0.4, 0.6])
+    assert counts.tolist() == [1.0, 1.0, 2.0]
+    # A forecast with a reading entered twice stays close to the one with a single entry.
+    t, y = readings(exp_curve, 750.0)
+    once = run(t, y, clean=0.3).to_limit.likely_h
+    twice = run(np.r_[t[5], t], np.r_[y[5], y], clean=0.3).to_limit.likely_h
+    assert twice == pytest.approx(once, rel=0.02)
+
+
+def test_too_few_readings():
+    fc = run([10.0, 20.0], [0.3, 0.31], clean=0.3)
+    assert (fc.state, fc.basis, fc.to_limit) == ("too-few-readings", "none", None)
+    assert run([], [], now=50.0).state == "no-readings"
+
+
+def lives_only(lives, censored=()):
+    return [PastElement((), (), h, True) for h in lives] + [
+        PastElement((), (), h, False) for h in censored
+    ]
+
+
+def test_too_few_readings_falls_back_on_earlier_lives():
+    lives, censored = [900.0, 950.0, 1000.0, 1050.0, 1100.0], [400.0]
+    fc = run([50.0, 100.0], [0.3, 0.31], clean=0.3, earlier=lives_only(lives, censored))
+    assert (fc.state, fc.basis) == ("too-few-readings", "service-life")
+    # Conditional on having lasted to the last reading (100 h), from the censored Weibull.
+    weib = fit_weibull(lives, censored)
+    assert fc.to_limit.likely_h == pytest.approx(100.0 + weib.remaining_quantile_h(100.0, 0.5))
+    assert fc.to_limit.earliest_h == pytest.approx(
+        100.0 + weib.remaining_quantile_h(100.0, EARLIEST_P)
+    )
+    assert fc.to_limit.latest_h == pytest.approx(100.0 + weib.remaining_quantile_h(100.0, LATEST_P))
+
+
+def test_flat_readings():
+    t = np.linspace(10.0, 300.0, 15)
+    y = 0.5 + np.random.default_rng(1).normal(0.0, 0.01, t.size)
+    fc = run(t, y, clean=0.3)
+    assert (fc.state, fc.to_limit) == ("flat", None)
+    with_lives = run(t, y, clean=0.3, earlier=lives_only([900.0, 1000.0, 1100.0]))
+    assert (with_lives.state, with_lives.basis) == ("flat", "service-life")
+    assert with_lives.to_limit.likely_h > 300.0
+
+
+def test_few_readings_are_weighed_against_earlier_lives():
+    # Four early readings of a slow exponential: alone, the trend sees an almost straight line
+    # and puts the limit several lives away; earlier lives pull it back.
+    t = np.array([100.0, 200.0, 300.0, 400.0])
+    y = exp_curve(t) + np.random.default_rng(2).normal(0.0, 0.005, t.size)
+    alone = run(t, y, clean=0.3)
+    lives = [900.0, 950.0, 1000.0, 1050.0, 1100.0]
+    weighed = run(t, y, clean=0.3, earlier=lives_only(lives))
+    assert weighed.basis == "trend" and "earlier lives" in weighed.note
+    assert abs(weighed.to_limit.likely_h - 1000.0) < abs(alone.to_limit.likely_h - 1000.0)
+    assert 900.0 < weighed.to_limit.likely_h < 1300.0
+
+
+def test_past_limit_still_forecasts_the_bypass():
+    t, y = readings(cubic_curve, 1050.0, n=21)
+    assert y[-1] >= LIMIT
+    fc = run(t, y, clean=0.2, bypass=BYPASS)
+    assert (fc.state, fc.to_limit) == ("past-limit", None)
+    truth = true_crossing(cubic_curve, level=BYPASS)
+    assert fc.to_bypass.likely_h == pytest.approx(truth, rel=0.05)
+
+
+def test_past_limit_without_a_bypass_setting():
+    fc = run([100.0, 200.0, 300.0, 400.0], [0.5, 0.9, 1.6, 2.1])
+    assert (fc.state, fc.basis, fc.to_limit, fc.to_bypass) == ("past-limit", "none", None, None)
+
+
+def test_past_bypass():
+    fc = run([100.0, 200.0, 300.0], [0.5, 1.2, 2.6], bypass=BYPASS)
+    assert (fc.state, fc.to_limit, fc.to_bypass) == ("past-bypass", None, None)
+
+
+def test_no_limits():
+    t, y = readings(exp_curve, 750.0)
+    fc = run(t, y, limit=None)
+    assert (fc.state, fc.basis, fc.to_limit, fc.to_bypass) == ("no-limits", "none", None, None)
+    only_bypass = run(t, y, limit=None, bypass=BYPASS, clean=0.3)
+    assert only_bypass.state == "no-limits" and only_bypass.to_bypass is not None
+
+
+def test_stale_readings_say_check_now():
+    t, y = readings(cubic_curve, 800.0)
+    fc = run(t, y, clean=0.2, now=1500.0)
+    assert fc.state == "check-now"
+    assert fc.to_limit.likely_h < 1500.0
+
+
+def test_fitted_curve_follows_the_readings():
+    t, y = readings(cubic_curve, 700.0)
+    fc = run(t, y, clean=0.2)
+    for age in (100.0, 400.0, 700.0):
+        assert fc.dp_at(age) == pytest.approx(float(cubic_curve(age)), abs=0.05)
+    assert math.isnan(fc.dp_at(-5.0))
+
+
+def history(curve, lives, seed=0, n=25, noise=0.01, **kw):
+    """Earlier elements loading along one shape, each stretched to its own life."""
+    rng = np.random.default_rng(seed)
+    out = []
+    for life in lives:
+        t = np.sort(rng.uniform(0.0, life, n))
+        y = curve(t, life_h=life, **kw) + rng.normal(0.0, noise, n)
+        out.append(PastElement(tuple(t), tuple(y), life, True))
+    return out
+
+
+def test_earlier_curves_carry_the_forecast_early():
+    # Half-way through life, an exponential loading curve still looks nearly straight: alone,
+    # the trend cannot tell when the turn comes, earlier elements' curves can.
+    earlier = history(exp_curve, [900.0, 950.0, 1000.0, 1050.0, 1100.0, 980.0, 1020.0])
+    t, y = readings(exp_curve, 500.0, life_h=1000.0)
+    fc = run(t, y, clean=0.3, bypass=BYPASS, earlier=earlier)
+    assert fc.basis == "earlier-curves"
+    assert fc.to_limit.likely_h == pytest.approx(1000.0, rel=0.05)
+    assert fc.to_limit.earliest_h <= 1000.0 <= fc.to_limit.latest_h
+    assert fc.to_bypass.likely_h > fc.to_limit.likely_h
+    alone = run(t, y, clean=0.3)
+    assert abs(alone.to_limit.likely_h - 1000.0) > abs(fc.to_limit.likely_h - 1000.0)
+
+
+def test_earlier_curves_follow_a_faster_element():
+    # Same shape, but this element loads 30 % faster than any earlier one (dirtier oil):
+    # the readings must stretch the curves beyond the lives the history knows.
+    earlier = history(exp_curve, [950.0, 1000.0, 1050.0, 1000.0])
+    t, y = readings(exp_curve, 560.0, n=28, life_h=700.0)
+    fc = run(t, y, clean=0.3, earlier=earlier)
+    assert fc.to_limit.likely_h == pytest.approx(700.0, rel=0.08)
+
+
+def test_unlike_earlier_curves_are_set_aside():
+    # Earlier elements loaded along an exponential; this one rises in a straight line.
+    earlier = history(exp_curve, [900.0, 1000.0, 1100.0])
+    t, y = readings(line_curve, 150.0, n=12, life_h=300.0)
+    fc = run(t, y, clean=0.4, earlier=earlier)
+    assert fc.basis == "trend"
+    assert fc.to_limit.likely_h == pytest.approx(300.0, rel=0.05)
+
+
+def test_template_is_rising_and_ends_at_the_limit():
+    # Readings written to a 0.05 bar gauge step, with a noisy dip: the template must still rise.
+    t = np.linspace(10.0, 950.0, 30)
+    y = np.round(exp_curve(t) / 0.05) * 0.05
+    y[10] -= 0.1
+    tpl = make_template(t, y, 1000.0, LIMIT)
+    assert np.all(np.diff(tpl.g) > 0)
+    assert tpl.f[-1] == 1.0 and tpl.g[-1] == pytest.approx(LIMIT)
+    assert tpl.inverse(np.array([LIMIT]))[0] == pytest.approx(1.0)
+
+
+def test_bad_input():
+    with pytest.raises(BookError):
+        run([1.0, 2.0], [0.3])
+    with pytest.raises(BookError):
+        run([1.0, 2.0, 3.0], [0.3, 0.4, 0.5], bypass=1.5)  # bypass below the limit
+    with pytest.raises(BookError):
+        run([1.0, 2.0, 30.0], [0.3, 0.4, 0.5], now=10.0)  # a reading from the future
+    with pytest.raises(BookError):
+        run([1.0, 2.0, 3.0], [0.3, float("nan"), 0.5])
+    with pytest.raises(BookError):
+        run([1.0, 2.0, 3.0], [0.3, 0.4, 0.5], clean=2.5)
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    st.lists(st.tuples(st.floats(0.0, 2000.0), st.floats(0.0, 3.0)), min_size=0, max_size=40),
+    st.booleans(),
+)
+def test_any_readings_give_an_ordered_answer(pairs, with_history):
+    # Property: whatever the readings, the forecast is one of the documented states, and any
+    # interval it gives is ordered and lies after the last reading below the level.
+    t = [a for a, _ in pairs]
+    y = [d for _, d in pairs]
+    earlier = history(exp_curve, [900.0, 1000.0, 1100.0]) if with_history else ()
+    fc = run(t, y, bypass=BYPASS, now=max(t, default=0.0), earlier=earlier)
+    assert fc.state in {
+        "ok", "check-now", "past-limit", "past-bypass", "too-few-readings", "no-readings",
+        "flat", "no-limits",
+    }  # fmt: skip
+    assert (fc.to_limit is not None or fc.to_bypass is not None) == (fc.basis != "none")
+    for iv in (fc.to_limit, fc.to_bypass):
+        if iv is not None:
+            assert iv.earliest_h <= iv.likely_h <= iv.latest_h
+    if fc.to_limit is not None and fc.basis != "service-life":
+        assert fc.to_limit.earliest_h >= max(t)
