@@ -69,6 +69,8 @@ def gauge_step_bar(dp_bar: np.ndarray) -> float:
     if v.size < 2 or v.size == np.asarray(dp_bar).size:
         return 0.0
     step = float(np.min(np.diff(v)))
+    if step <= 1e-9 * float(np.max(np.abs(v))):
+        return 0.0
     ratio = v / step
     if np.all(np.abs(ratio - np.rint(ratio)) < 1e-3):
         return step
@@ -140,7 +142,8 @@ def step_up(readings: Sequence[tuple[float, float]], noise: float | None = None)
         return None
     sigma = noise if noise is not None else noise_bar(y)
     # A loading element speeds up over several readings; a dirt load arrives in one interval.
-    rates = np.diff(dp) / np.diff(ages)
+    with np.errstate(over="ignore"):
+        rates = np.diff(dp) / np.diff(ages)
     if rates[-1] <= STEP_RATE_TIMES * max(float(np.max(rates[-4:-1])), 0.0):
         return None
     floor = max(sigma, 1e-3 * float(np.max(np.abs(dp))), 1e-12)

@@ -76,6 +76,7 @@ BASIS = {"earlier-curves": "trend"}
 def _due(interval: trend.AgeInterval | None, age_to_time: Any) -> Due | None:
     if interval is None:
         return None
+
     def at(age_h: float) -> datetime:
         return age_to_time(age_h).replace(microsecond=0)
 
@@ -320,14 +321,11 @@ def filter_status(
     drop = anomaly.drop_without_change(series)
     if drop is not None:
         flags.append("dp-drop")
-        notes.append(
-            drop.reason + ": check for a torn, collapsed or missing element or a "
-            "bypass valve stuck open"
-        )
+        notes.append(f"{drop.reason}: {drop.advice}")
     step = anomaly.step_up(series)
     if step is not None:
         flags.append("step-up")
-        notes.append(step.reason)
+        notes.append(f"{step.reason}: {step.advice}")
     cold = None
     if dp_ref is not None and pos.bypass_bar and ctx.curve and ctx.reference:
         try:
@@ -394,9 +392,7 @@ def filter_status(
     )
 
 
-def like_lives(
-    book: Book, ctx: FilterContext, until: datetime | None
-) -> list[tuple[float, bool]]:
+def like_lives(book: Book, ctx: FilterContext, until: datetime | None) -> list[tuple[float, bool]]:
     """(life_h, reached_limit) of removed elements on other positions taking the same element."""
     if not ctx.position.element:
         return []
