@@ -11,14 +11,16 @@ from platformdirs import user_data_dir
 from .book import Book, open_book
 from .errors import BookError
 
+# At the top of a checkout (editable install), or inside the package (wheel install).
 SQL_PATH = Path(__file__).resolve().parent.parent / "demo.db.sql"
+SQL_PATHS = (SQL_PATH, Path(__file__).resolve().parent / "demo.db.sql")
 
 
 def demo_sql() -> str:
-    try:
-        return SQL_PATH.read_text(encoding="utf-8")
-    except OSError as exc:
-        raise BookError(f"the demo plant file {SQL_PATH} is missing ({exc.strerror})") from exc
+    for path in SQL_PATHS:
+        if path.is_file():
+            return path.read_text(encoding="utf-8")
+    raise BookError(f"the demo plant file is missing (looked for {SQL_PATHS[0]})")
 
 
 def load_sql(book: Book, sql: str) -> None:

@@ -12,6 +12,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
+from typing import Any
 
 from .conditions import FilterContext, normalise
 from .entries import ElementChange, Entry, Reading
@@ -76,42 +77,41 @@ def _age_h(
     return max((at - start).total_seconds() / 3600, 0.0)
 
 
+def _element(fitted_at: datetime | None, fitted_hours: float | None, removal: ElementChange | None,
+             readings: Sequence[tuple[Reading, Any]], hour_meter: bool) -> Element:
+    """One element with its points aged in operating hours only where every one can be."""
+    origin = fitted_at or (readings[0][0].at if readings else None)
+    origin_hours = fitted_hours if fitted_at else (readings[0][0].hours if readings else None)
+    uses_hours = (hour_meter and origin_hours is not None
+                  and all(r.hours is not None for r, _ in readings)
+                  and (removal is None or removal.hours is not None))
+    points = tuple(
+        Point(r.at, _age_h(r.at, r.hours, origin, origin_hours, uses_hours),  # type: ignore[arg-type]
+              r.dp_bar, n.dp_ref_bar, r.temp_c, r.indicator, r.flow_lpm, r.hours, r.id)
+        for r, n in readings
+    )
+    return Element(fitted_at, fitted_hours, removal.at if removal else None, removal, points,
+                   uses_hours)
+
+
 def split_elements(ctx: FilterContext, entries: Sequence[Entry]) -> list[Element]:
-    """Cut a position's live entries (time order, voids removed) into elements."""
-    uses_hours = ctx.unit.hour_meter
+    """Cut a position's live entries (time order, voids removed) into elements.
+
+    An element fitted before the book began is aged from its first reading.
+    """
     elements: list[Element] = []
     start: datetime | None = None
     start_hours: float | None = None
-    points: list[Point] = []
-    origin: datetime | None = None
-    origin_hours: float | None = None
+    readings: list[tuple[Reading, Any]] = []
     for e in entries:
         if e.voided:
             continue
         if isinstance(e, Reading):
-            n = normalise(ctx, e)
-            if start is None and not points:  # fitted before the book began: age from here
-                origin, origin_hours = e.at, e.hours
-            elif start is not None:
-                origin, origin_hours = start, start_hours
-            age = _age_h(e.at, e.hours, origin, origin_hours, uses_hours)  # type: ignore[arg-type]
-            points.append(
-                Point(
-                    e.at,
-                    age,
-                    e.dp_bar,
-                    n.dp_ref_bar,
-                    e.temp_c,
-                    e.indicator,  # type: ignore[arg-type]
-                    e.flow_lpm,
-                    e.hours,
-                    e.id,
-                )
-            )
+            readings.append((e, normalise(ctx, e)))
         elif isinstance(e, ElementChange):
-            elements.append(Element(start, start_hours, e.at, e, tuple(points), uses_hours))
-            start, start_hours, points = e.at, e.hours, []
-    elements.append(Element(start, start_hours, None, None, tuple(points), uses_hours))
+            elements.append(_element(start, start_hours, e, readings, ctx.unit.hour_meter))
+            start, start_hours, readings = e.at, e.hours, []
+    elements.append(_element(start, start_hours, None, readings, ctx.unit.hour_meter))
     return elements
 
 

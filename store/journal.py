@@ -48,6 +48,12 @@ def _refresh_status(book: Book, entry: Entry) -> None:
     after_entry(book, entry)
 
 
+def load_hooks() -> None:
+    """Import what the hooks need before taking the write lock (numpy and scipy are slow
+    to import, and other writers wait while the lock is held)."""
+    from . import statuscache  # noqa: F401
+
+
 # Called inside the write transaction after each entry lands: keeps the status cache fresh.
 AFTER_WRITE: list[Callable[[Book, Entry], None]] = [_refresh_status]
 
@@ -173,8 +179,11 @@ def _row(entry: Entry) -> dict[str, Any]:
     return row
 
 
-def insert(book: Book, entry: Entry) -> None:
-    """Write one validated entry inside the caller's transaction."""
+def insert(book: Book, entry: Entry, hooks: bool = True) -> None:
+    """Write one validated entry inside the caller's transaction.
+
+    With hooks=False the caller runs `after_write` once for the whole batch.
+    """
     row = _row(entry)
     columns = ", ".join(row)
     marks = ", ".join("?" for _ in row)
@@ -182,8 +191,23 @@ def insert(book: Book, entry: Entry) -> None:
         book.conn.execute(f"INSERT INTO entries ({columns}) VALUES ({marks})", list(row.values()))
     except sqlite3.IntegrityError as exc:
         raise BookError(f"the book refused the entry: {exc}") from exc
-    for hook in AFTER_WRITE:
-        hook(book, entry)
+    if hooks:
+        after_write(book, [entry])
+
+
+def after_write(book: Book, entries: Sequence[Entry]) -> None:
+    """Run the AFTER_WRITE hooks once per filter, breather or unit a batch touched."""
+    last: dict[str, Entry] = {}
+    for entry in entries:
+        key = getattr(entry, "voids", None) or entry.target or entry.unit or ""
+        last[key] = entry
+    for entry in last.values():
+        for hook in AFTER_WRITE:
+            hook(book, entry)
+
+
+def count(book: Book) -> int:
+    return book.conn.execute("SELECT count(*) FROM entries").fetchone()[0]
 
 
 def log(book: Book, entry: Entry) -> Entry:
@@ -195,12 +219,14 @@ def log_many(book: Book, entries: Iterable[Entry]) -> list[Entry]:
     """All or nothing: every entry is validated and written in one transaction."""
     now = book.now()
     done = []
+    load_hooks()
     with book.atomic():
         for entry in entries:
             entry = validate(book, entry, now)
             entry = replace(entry, id=entry.id or str(uuid.uuid4()), logged=entry.logged or now)
-            insert(book, entry)
+            insert(book, entry, hooks=False)
             done.append(entry)
+        after_write(book, done)
     return done
 
 

@@ -12,7 +12,6 @@ Flag codes (also listed in the README):
 
 from __future__ import annotations
 
-import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from datetime import datetime, timedelta
@@ -40,7 +39,8 @@ from .normalise import ColdStart, cold_start
 from .register import Breather, FilterPosition, Unit, list_all
 from .timeutil import iso_local
 
-URGENT_FLAGS = ("dp-drop", "at-bypass", "indicator-bypass", "cold-start-bypass")
+# Dirty oil is reaching the system now (or the element is gone): these sort first.
+URGENT_FLAGS = ("dp-drop", "at-bypass", "indicator-bypass")
 HOT_LOOKBACK = timedelta(days=7)
 FLAG_WORDS = {
     "dp-drop": "ΔP DROP",
@@ -69,6 +69,8 @@ class Due:
     latest: datetime | None  # None: no upper bound the data can support
 
 
+MAX_AGE_H = 20 * 8766.0  # twenty years of element age: later "dates" are no dates
+
 # The trend model's basis words, as the watch list and the JSON name them.
 BASIS = {"earlier-curves": "trend"}
 
@@ -80,7 +82,9 @@ def _due(interval: trend.AgeInterval | None, age_to_time: Any) -> Due | None:
     def at(age_h: float) -> datetime:
         return age_to_time(age_h).replace(microsecond=0)
 
-    latest = at(interval.latest_h) if math.isfinite(interval.latest_h) else None
+    if not interval.likely_h < MAX_AGE_H:  # beyond any sensible plan: no date
+        return None
+    latest = at(interval.latest_h) if interval.latest_h < MAX_AGE_H else None
     return Due(at(interval.earliest_h), at(interval.likely_h), latest)
 
 
@@ -287,16 +291,16 @@ def filter_status(
     ):
         basis = "service-life"
         b10 = fit.age_at_fraction_h(0.10)
-        due = Due(
-            age_to_time(fit.age_at_fraction_h(0.05)),
-            age_to_time(b10),
-            age_to_time(fit.age_at_fraction_h(0.5)),
-        )
+        # Given it has lasted this long: the 5 %, 10 % (the planned change) and 50 % points.
+        due = _due(trend.AgeInterval(*(age_now + fit.remaining_quantile_h(age_now, p)
+                                       for p in (0.05, 0.10, 0.50))), age_to_time)
         notes.append(
             f"planned from earlier element lives: 10 % reach the limit by {b10:.0f} h of service"
         )
     if due is None and basis == "none" and not pos.gauge:
         basis = "interval"
+    if not pos.gauge and due is None and state in ("no-readings", "too-few-readings"):
+        state = "indicator-only"
 
     dp_ref = numeric[-1].dp_ref_bar if numeric else None
     percent = 100 * dp_ref / pos.limit_bar if dp_ref is not None and pos.limit_bar else None

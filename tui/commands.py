@@ -59,7 +59,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
     path = args.db or default_path()
     with create_demo(path, force=args.force) as book:
         units = len(register.list_all(book, Unit))
-        entries = book.conn.execute("SELECT count(*) FROM entries").fetchone()[0]
+        entries = journal.count(book)
     console.print(f"demo plant written to {path}: {units} units, {entries} entries")
     return 0
 

@@ -63,7 +63,7 @@ def describe(entry: Entry, prefs: Prefs) -> str:
         if entry.flow_lpm is not None:
             parts.append(f"{entry.flow_lpm:g} L/min")
         if entry.hours is not None:
-            parts.append(f"{entry.hours:g} h")
+            parts.append(f"meter {entry.hours:.0f} h")
         return ", ".join(parts)
     if isinstance(entry, ElementChange):
         return (
@@ -125,6 +125,8 @@ def entries_table(book: Book, entries: list[Entry], prefs: Prefs) -> Table:
             n = normalise(ctxs[e.filter], e)
             ref = p_text(n.dp_ref_bar, prefs, unit=False) if n.dp_ref_bar is not None else ""
             reference = ctxs[e.filter].reference.label if n.dp_ref_bar is not None else n.problem  # type: ignore[union-attr]
+            if n.dp_ref_bar is not None and n.temp_assumed:
+                reference += "; temp assumed"
         style = "strike dim" if e.voided else ""
         row = [
             e.id[:8],
@@ -215,28 +217,63 @@ def register_table(book: Book, what: str, unit: str | None, prefs: Prefs) -> Tab
                 u.target_code or "–",
             )
         return table
-    names = list(rows[0].__dataclass_fields__) if rows else ["tag"]
-    for n in names:
-        table.add_column(n)
-    for r in rows:
-        table.add_row(*("–" if getattr(r, n) is None else str(getattr(r, n)) for n in names))
+    if cls is Breather:
+        for c in ("tag", "unit", "kind", "rating", "swap every"):
+            table.add_column(c)
+        for b in rows:
+            table.add_row(
+                b.tag,
+                b.unit,
+                b.kind,
+                f"{b.rating_um:g} µm" if b.rating_um else "–",
+                f"{b.swap_interval_d:g} days",
+            )
+        return table
+    if cls is Fluid:
+        for c in ("tag", "name", "ISO VG", "ν40 (mm²/s)", "ν100 (mm²/s)", "VI", "density"):
+            table.add_column(c)
+        for f in rows:
+            table.add_row(
+                f.tag,
+                f.name,
+                str(f.iso_vg or "–"),
+                _num(f.nu40_cst),
+                _num(f.nu100_cst),
+                _num(f.vi),
+                _num(f.density_kg_l, " kg/L"),
+            )
+        return table
+    for c in ("initials", "name", "active"):
+        table.add_column(c)
+    for t in rows:
+        table.add_row(t.tag, t.name, "yes" if t.active else "no")
     return table
+
+
+def _num(value: float | None, suffix: str = "") -> str:
+    return "–" if value is None else f"{value:g}{suffix}"
 
 
 def due_text(book: Book, due) -> str:  # noqa: ANN001 - status.Due | None
     if due is None:
         return "–"
     z = book.local_zone()
-    first, likely, last = (
-        due.earliest.astimezone(z),
-        due.likely.astimezone(z),
-        due.latest.astimezone(z),
-    )
-    return f"{first:%d %b}–{last:%d %b} (likely {likely:%d %b})"
+    this_year = book.now().astimezone(z).year
+
+    def day(moment: datetime) -> str:
+        local = moment.astimezone(z)
+        return f"{local:%d %b}" if local.year == this_year else f"{local:%d %b %Y}"
+
+    last = day(due.latest) if due.latest else "open"
+    return f"{day(due.earliest)}–{last} (likely {day(due.likely)})"
+
+
+def due_day(book: Book, moment: datetime | None) -> str:
+    return f"{moment.astimezone(book.local_zone()):%d %b %Y}" if moment else "–"
 
 
 def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
-    from store.status import FLAG_WORDS
+    from store.status import FLAG_WORDS, URGENT_FLAGS
 
     table = Table(title=f"Watch list as of {when(book, watch.as_of)}", title_justify="left")
     for c in (
@@ -251,9 +288,9 @@ def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
     ):
         table.add_column(c)
     for f in watch.filters:
-        flags = Text(" ".join(FLAG_WORDS.get(x, x) for x in f.flags))
+        flags = Text(", ".join(FLAG_WORDS.get(x, x) for x in f.flags))
         if any(
-            x in ("dp-drop", "at-bypass", "indicator-bypass", "cold-start-bypass") for x in f.flags
+            x in URGENT_FLAGS for x in f.flags
         ):
             flags.stylize("bold reverse")
         due = due_text(book, f.due) if f.due else f.state
@@ -274,9 +311,9 @@ def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
             f"breather ({b.kind})",
             "",
             "",
-            when(book, b.forecast.due),
+            due_day(book, b.forecast.due),
             b.forecast.basis,
-            " ".join(FLAG_WORDS.get(x, x) for x in b.flags),
+            ", ".join(FLAG_WORDS.get(x, x) for x in b.flags),
         )
     for u in watch.units:
         if u.flags:
@@ -288,6 +325,6 @@ def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
                 "",
                 "",
                 "",
-                " ".join(FLAG_WORDS.get(x, x) for x in u.flags),
+                ", ".join(FLAG_WORDS.get(x, x) for x in u.flags),
             )
     return table
