@@ -216,3 +216,24 @@ def test_status_json_has_the_documented_fields(plant, capsys):
     # at the reference temperature the normalised value is the reading itself
     assert f["dp_ref_bar"] == pytest.approx(0.8)
     assert f["basis"] in ("trend", "service-life", "interval", "none")
+
+
+def test_sample_line_says_whether_it_meets_the_target(plant, capsys):
+    # ISO 4406 table (REFERENCES.md §1c): 2000/500/60 per mL is 18/16/13, one step over
+    # 17/15/12 at every size
+    code, out, _ = run(capsys, "--db", plant, "log", "sample", "P1", "--counts", "2000/500/60")
+    assert code == 0
+    assert "18/16/13" in out and "+1" in out and "17/15/12" in out
+
+
+def test_demo_refuses_to_overwrite_without_force(tmp_path, capsys):
+    db = str(tmp_path / "plant.db")
+    code, out, err = run(capsys, "--db", db, "demo")
+    assert code == 0, err
+    assert "entries" in out
+    code, _, err = run(capsys, "--db", db, "demo")
+    assert code == 2 and "--force" in err
+    code, _, err = run(capsys, "--db", db, "demo", "--force")
+    assert code == 0, err
+    code, out, _ = run(capsys, "--db", db, "status", "--json")
+    assert code == 0 and json.loads(out)["filters"]

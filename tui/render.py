@@ -50,7 +50,7 @@ def when(book: Book, moment: datetime | None) -> str:
     return local_text(moment, book.local_zone()) if moment else "–"
 
 
-def describe(entry: Entry, prefs: Prefs) -> str:
+def describe(entry: Entry, prefs: Prefs, target_code: str | None = None) -> str:
     """One line saying what the entry holds, in the user's units."""
     if isinstance(entry, Reading):
         parts = []
@@ -84,6 +84,12 @@ def describe(entry: Entry, prefs: Prefs) -> str:
         )
     if isinstance(entry, Sample):
         parts = [f"code {entry.code}"] if entry.code else []
+        if entry.code and target_code:
+            from store.cleanliness import compare_to_target, parse_code
+
+            parts.append(
+                compare_to_target(parse_code(entry.code), parse_code(target_code)).describe()
+            )
         if entry.water_ppm is not None:
             parts.append(f"water {entry.water_ppm:g} ppm")
         return "sample: " + ", ".join(parts)
@@ -94,11 +100,18 @@ def describe(entry: Entry, prefs: Prefs) -> str:
     return entry.kind
 
 
+def _target_code(book: Book, entry: Entry) -> str | None:
+    if not isinstance(entry, Sample) or not entry.unit:
+        return None
+    unit = register.find(book, Unit, entry.unit)
+    return unit.target_code if unit else None
+
+
 def saved_line(book: Book, entry: Entry, prefs: Prefs) -> str:
     target = entry.target or entry.unit or ""
     return (
         f"saved {entry.kind} {entry.id[:8]} {target} {when(book, entry.at)} by {entry.by}: "
-        f"{describe(entry, prefs)}"
+        f"{describe(entry, prefs, _target_code(book, entry))}"
     )
 
 
@@ -134,7 +147,7 @@ def entries_table(book: Book, entries: list[Entry], prefs: Prefs) -> Table:
             e.kind + (" (void)" if e.voided else ""),
             e.target or e.unit or "",
             e.by,
-            describe(e, prefs),
+            describe(e, prefs, _target_code(book, e)),
             ref,
             reference,
             e.note,
@@ -289,9 +302,7 @@ def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
         table.add_column(c)
     for f in watch.filters:
         flags = Text(", ".join(FLAG_WORDS.get(x, x) for x in f.flags))
-        if any(
-            x in URGENT_FLAGS for x in f.flags
-        ):
+        if any(x in URGENT_FLAGS for x in f.flags):
             flags.stylize("bold reverse")
         due = due_text(book, f.due) if f.due else f.state
         table.add_row(
