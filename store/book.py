@@ -9,6 +9,7 @@ from contextlib import contextmanager
 from dataclasses import dataclass
 from datetime import datetime, tzinfo
 from pathlib import Path
+from urllib.request import pathname2url
 
 import sqlite_utils
 from platformdirs import user_data_dir
@@ -30,10 +31,15 @@ def default_path() -> Path:
 
 @dataclass
 class Book:
-    """An open logbook. `db` is the sqlite-utils handle; `path` the file."""
+    """An open logbook. `db` is the sqlite-utils handle; `path` the file.
+
+    `readonly` is True when the file or its folder cannot be written (write-protected file,
+    read-only medium): the book can be read, and every write fails with a BookError.
+    """
 
     db: sqlite_utils.Database
     path: Path
+    readonly: bool = False
 
     @property
     def conn(self) -> sqlite3.Connection:
@@ -50,18 +56,37 @@ class Book:
 
     @contextmanager
     def atomic(self) -> Iterator[None]:
-        """All writes inside land together or not at all (BEGIN IMMEDIATE takes the write lock)."""
+        """All writes inside land together or not at all (BEGIN IMMEDIATE takes the write lock).
+
+        A write the file refuses (disk full, read-only, locked by another program too long,
+        damaged) rolls everything back and raises a BookError saying so: nothing half-written,
+        and the caller still holds what it tried to save.
+        """
         conn = self.conn
         if conn.in_transaction:
             yield
             return
-        conn.execute("BEGIN IMMEDIATE")
+        try:
+            conn.execute("BEGIN IMMEDIATE")
+        except sqlite3.Error as exc:
+            raise write_error(exc, self.path) from exc
         try:
             yield
-        except BaseException:
-            conn.execute("ROLLBACK")
+            conn.execute("COMMIT")
+        except BaseException as exc:
+            if conn.in_transaction:  # SQLite may have rolled back already (e.g. disk full)
+                try:
+                    conn.execute("ROLLBACK")
+                except sqlite3.Error:
+                    pass
+            if isinstance(exc, sqlite3.Error) and _translatable(exc):
+                raise write_error(exc, self.path) from exc
+            if isinstance(exc, UnicodeEncodeError):  # e.g. undecodable bytes from a terminal
+                raise BookError(
+                    "some text holds characters that are not valid text (a wrong encoding?): "
+                    "nothing was saved"
+                ) from exc
             raise
-        conn.execute("COMMIT")
 
     def now(self) -> datetime:
         """UTC now; a demo book is frozen at the moment its story ends (setting 'clock')."""
@@ -88,28 +113,124 @@ class Book:
             )
 
 
+# SQLite's primary result codes that mean "the file refused the write", not a bug in our SQL.
+_WRITE_REFUSALS = {
+    sqlite3.SQLITE_FULL,
+    sqlite3.SQLITE_READONLY,
+    sqlite3.SQLITE_BUSY,
+    sqlite3.SQLITE_LOCKED,
+    sqlite3.SQLITE_IOERR,
+    sqlite3.SQLITE_CORRUPT,
+    sqlite3.SQLITE_NOTADB,
+    sqlite3.SQLITE_CANTOPEN,
+    sqlite3.SQLITE_PERM,
+}
+
+
+def _primary_code(exc: sqlite3.Error) -> int | None:
+    code = getattr(exc, "sqlite_errorcode", None)
+    return None if code is None else code & 0xFF
+
+
+def _translatable(exc: sqlite3.Error) -> bool:
+    return _primary_code(exc) in _WRITE_REFUSALS
+
+
+def write_error(exc: sqlite3.Error, path: Path) -> BookError:
+    """One plain line for a write the logbook file refused; other errors keep their text."""
+    code = _primary_code(exc)
+    nothing = "nothing was saved"
+    if code == sqlite3.SQLITE_FULL:
+        return BookError(
+            f"the disk holding {path} is full: {nothing}; free some space and save again"
+        )
+    if code in (sqlite3.SQLITE_READONLY, sqlite3.SQLITE_PERM):
+        return BookError(
+            f"{path} is read-only (write-protected file or medium): {nothing}; "
+            "copy the logbook to a writable folder to keep logging"
+        )
+    if code in (sqlite3.SQLITE_BUSY, sqlite3.SQLITE_LOCKED):
+        return BookError(
+            f"{path} is busy: another sumpbook window or program kept it locked for "
+            f"{BUSY_TIMEOUT_MS // 1000} s; {nothing}; save again in a moment"
+        )
+    if code in (sqlite3.SQLITE_CORRUPT, sqlite3.SQLITE_NOTADB):
+        return BookError(f"{path} is damaged: {nothing}; {backup_hint(path)}")
+    if code in (sqlite3.SQLITE_IOERR, sqlite3.SQLITE_CANTOPEN):
+        return BookError(f"the disk failed writing {path} ({exc}): {nothing}; check the medium")
+    return BookError(f"could not write {path}: {exc}; {nothing}")
+
+
+def backup_hint(path: Path) -> str:
+    """Where the newest automatic backup of `path` is, as advice to restore it."""
+    from .backup import latest_backup
+
+    latest = latest_backup(path)
+    if latest is None:
+        return f"no automatic backup was found beside it (in {path.parent})"
+    return f"the latest backup is {latest}: sumpbook restore '{latest}'"
+
+
+def _uri(path: Path, mode: str) -> str:
+    return f"file:{pathname2url(str(path))}?mode={mode}"
+
+
 def _connect(path: Path, readonly: bool = False) -> sqlite3.Connection:
-    uri = f"file:{path}?mode={'ro' if readonly else 'rwc'}"
-    conn = sqlite3.connect(
-        uri, uri=True, isolation_level=None, check_same_thread=True, timeout=BUSY_TIMEOUT_MS / 1000
+    """A connection with our settings. `readonly` falls back to an immutable open when the
+    folder is write-protected too (SQLite cannot make its WAL index there)."""
+    uris = (
+        [_uri(path, "ro"), _uri(path, "ro") + "&immutable=1"] if readonly else [_uri(path, "rwc")]
     )
-    conn.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_MS}")
-    conn.execute("PRAGMA foreign_keys = ON")
-    return conn
+    for i, uri in enumerate(uris):
+        conn = sqlite3.connect(
+            uri,
+            uri=True,
+            isolation_level=None,
+            check_same_thread=True,
+            timeout=BUSY_TIMEOUT_MS / 1000,
+        )
+        try:
+            conn.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_MS}")
+            conn.execute("PRAGMA foreign_keys = ON")
+            if readonly:
+                conn.execute("PRAGMA schema_version").fetchone()  # forces the file open
+        except sqlite3.OperationalError as exc:
+            conn.close()
+            if i + 1 < len(uris) and _primary_code(exc) in (
+                sqlite3.SQLITE_READONLY,
+                sqlite3.SQLITE_CANTOPEN,
+            ):
+                continue
+            raise
+        return conn
+    raise AssertionError("unreachable")
+
+
+def writable(path: Path) -> bool:
+    """Can this process write the logbook and make its side files (-wal, -shm) beside it?"""
+    folder = path.parent if str(path.parent) else Path(".")
+    return os.access(path, os.W_OK) and os.access(folder, os.W_OK)
 
 
 def _is_empty_file(path: Path) -> bool:
     return not path.exists() or path.stat().st_size == 0
 
 
-def check_header(conn: sqlite3.Connection, path: Path) -> int:
-    """Return the schema version; refuse files that are not ours or are damaged."""
+def check_header(conn: sqlite3.Connection, path: Path, quick: bool = True) -> int:
+    """Return the schema version; refuse files that are not ours or are damaged.
+
+    A database with no tables and a blank header is an empty start (a first creation that was
+    interrupted): it is version 0, to be created again.
+    """
     try:
         app_id = conn.execute("PRAGMA application_id").fetchone()[0]
         version = conn.execute("PRAGMA user_version").fetchone()[0]
-        ok = conn.execute("PRAGMA quick_check").fetchone()[0]
+        blank = conn.execute("SELECT count(*) FROM sqlite_master").fetchone()[0] == 0
+        ok = conn.execute("PRAGMA quick_check").fetchone()[0] if quick else "ok"
     except sqlite3.DatabaseError as exc:
         raise NotALogbook(f"{path} is not a sumpbook logbook or is damaged ({exc})") from exc
+    if app_id == 0 and version == 0 and blank and ok == "ok":
+        return 0
     if app_id != APPLICATION_ID:
         raise NotALogbook(f"{path} is not a sumpbook logbook (it is some other SQLite file)")
     if ok != "ok":
@@ -138,21 +259,37 @@ def migrate(conn: sqlite3.Connection, from_version: int) -> None:
 
 
 def open_book(path: Path | str | None = None, *, create: bool = True) -> Book:
-    """Open (and if needed create or migrate) the logbook at `path`."""
+    """Open (and if needed create or migrate) the logbook at `path`.
+
+    An existing file is checked before anything is written to it (`inspect`); a file that is
+    write-protected or on read-only media opens read-only (`Book.readonly`).
+    """
     path = Path(path) if path is not None else default_path()
     new = _is_empty_file(path)
     if new and not create:
         raise BookError(f"no logbook at {path}: run 'sumpbook demo' or register a unit first")
     if new:
         path.parent.mkdir(parents=True, exist_ok=True)
+    readonly = not new and not writable(path)
+    version = 0 if new else inspect(path, readonly)
     try:
-        conn = _connect(path)
+        conn = _connect(path, readonly=readonly)
     except sqlite3.Error as exc:
         raise BookError(f"cannot open {path}: {exc}") from exc
     try:
-        version = 0 if new else check_header(conn, path)
+        if not new:
+            version = check_header(conn, path, quick=False)
+        if version < SCHEMA_VERSION and readonly:
+            raise BookError(
+                f"{path} is read-only and was written by an older sumpbook: copy it to a "
+                "writable folder so it can be upgraded"
+            )
+        if version == 0:
+            # WAL before the first write: a creation cut short leaves a blank file, not a
+            # half-made one behind a rollback journal.
+            conn.execute("PRAGMA journal_mode = WAL")
         if version < SCHEMA_VERSION:
-            if not new:
+            if version > 0:
                 from .backup import backup_before_migration
 
                 backup_before_migration(conn, path, version)
@@ -162,9 +299,36 @@ def open_book(path: Path | str | None = None, *, create: bool = True) -> Book:
                 if conn.in_transaction:
                     conn.execute("ROLLBACK")
                 raise BookError(f"could not upgrade {path}: {exc}; it was left as it was") from exc
-        conn.execute("PRAGMA journal_mode = WAL")
+        if not readonly:
+            conn.execute("PRAGMA journal_mode = WAL")
         conn.execute("PRAGMA synchronous = FULL")
     except BaseException:
         conn.close()
         raise
-    return Book(db=sqlite_utils.Database(conn), path=path)
+    return Book(db=sqlite_utils.Database(conn), path=path, readonly=readonly)
+
+
+def inspect(path: Path, readonly: bool = True) -> int:
+    """Check an existing file before anything is written to it: application id in the
+    header, quick check, schema version. Returns the version; NotALogbook names the latest
+    backup.
+
+    The check runs on a read-only connection, so a refused file is left as it was; only a
+    file with a hot rollback journal (a write cut short in rollback mode) gets a writing
+    connection, because SQLite must roll that write back before anyone can read the file.
+    """
+    hot = Path(f"{path}-journal")
+    writer = not readonly and hot.exists() and hot.stat().st_size > 0
+    try:
+        conn = _connect(path, readonly=not writer)
+    except sqlite3.Error as exc:
+        raise NotALogbook(
+            f"{path} is not a sumpbook logbook or is damaged ({exc}); it was left untouched; "
+            f"{backup_hint(path)}"
+        ) from exc
+    try:
+        return check_header(conn, path)
+    except NotALogbook as exc:
+        raise NotALogbook(f"{exc}; it was left untouched; {backup_hint(path)}") from exc
+    finally:
+        conn.close()

@@ -1,12 +1,18 @@
 """The shift log as CSV: export, and import back (all or nothing).
 
 Columns (in this order; units in the header names, times ISO 8601 with offset):
-see EXPORT_COLUMNS and README "CSV shift log". Text cells that a spreadsheet would run
-as a formula are written with a leading apostrophe; import takes it off again.
+see Prefs.columns and README "CSV shift log". Every cell that is not a number we wrote
+ourselves and that a spreadsheet would run as a formula (leading =, +, -, @, tab, CR) is
+written with a leading apostrophe; import takes it off again.
+
+Import is all or nothing: the whole file is read and checked first, every problem is
+reported with its line number, and one transaction writes it. Nothing is built into SQL:
+the cells travel as parameters (journal.insert).
 """
 
 from __future__ import annotations
 
+import codecs
 import csv
 import io
 import uuid
@@ -19,7 +25,7 @@ from .book import Book
 from .conditions import FilterContext, contexts, normalise
 from .entries import KINDS, Entry, Reading
 from .errors import BookError
-from .journal import insert, validate
+from .journal import after_write, insert, load_hooks, validate
 from .timeutil import iso_local, parse_time, shift_at
 from .units import (
     from_bar,
@@ -34,8 +40,8 @@ from .units import (
 )
 
 FORMULA_START = ("=", "+", "-", "@", "\t", "\r", "'")
-TEXT_COLUMNS = ("by", "target", "reason", "condition", "batch", "code", "note", "fluid")
 MAX_FIELD_CHARS = 10_000
+MAX_PROBLEMS_SHOWN = 20
 
 
 @dataclass(frozen=True)
@@ -45,6 +51,15 @@ class Prefs:
     pressure: str = "bar"
     temperature: str = "C"
     volume: str = "L"
+
+    def number_columns(self) -> set[str]:
+        """Columns holding numbers we format ourselves (never neutralised)."""
+        p, t, v = (
+            pressure_key(self.pressure),
+            temperature_key(self.temperature),
+            volume_key(self.volume),
+        )
+        return {f"dp_{p}", f"temp_{t}", f"dp_ref_{p}", f"volume_{v}", *NUMBER_COLUMNS}
 
     def columns(self) -> list[str]:
         p, t, v = (
@@ -84,16 +99,35 @@ class Prefs:
         ]
 
 
+NUMBER_COLUMNS = (
+    "flow_lpm",
+    "hours",
+    "filtered_um",
+    "c4_per_ml",
+    "c6_per_ml",
+    "c14_per_ml",
+    "water_ppm",
+)
+
+
 def neutralise(text: str) -> str:
+    """A cell a spreadsheet would run as a formula gets a leading apostrophe (so does a cell
+    that starts with one, so that `restore` gives back exactly what was written)."""
     return "'" + text if text.startswith(FORMULA_START) else text
 
 
 def restore(text: str) -> str:
+    """Undo `neutralise`."""
     return text[1:] if text.startswith("'") and text[1:2] and text[1] in FORMULA_START else text
 
 
 def _num(value: float | None, digits: int = 4) -> str:
-    return "" if value is None else f"{round(value, digits):g}"
+    """A number as plain decimal text, at most `digits` decimals (never 1.2e+06: a count or an
+    hour meter keeps every digit)."""
+    if value is None:
+        return ""
+    text = f"{round(value, digits):.{digits}f}".rstrip("0").rstrip(".")
+    return "0" if text in ("", "-0") else text
 
 
 def export_rows(
@@ -126,15 +160,7 @@ def export_rows(
         for name in ("indicator", "reason", "condition", "batch", "code", "voids", "fluid"):
             if values.get(name) is not None:
                 row[name] = str(values[name])
-        for name in (
-            "flow_lpm",
-            "hours",
-            "filtered_um",
-            "c4_per_ml",
-            "c6_per_ml",
-            "c14_per_ml",
-            "water_ppm",
-        ):
+        for name in NUMBER_COLUMNS:
             row[name] = _num(values.get(name))
         if values.get("dp_bar") is not None:
             row[f"dp_{p}"] = _num(from_bar(values["dp_bar"], p))
@@ -153,9 +179,8 @@ def export_rows(
                 )
             else:
                 row["reference"] = f"not normalised: {n.problem}"
-        for name in TEXT_COLUMNS:
-            row[name] = neutralise(row[name])
-        yield row
+        numbers = prefs.number_columns()
+        yield {k: (cell if k in numbers else neutralise(cell)) for k, cell in row.items()}
 
 
 def write_csv(
@@ -185,16 +210,32 @@ class ImportResult:
 
 
 def decode(data: bytes) -> str:
-    if data.startswith(b"\xef\xbb\xbf"):
-        data = data[3:]
-    if b"\x00" in data:
-        raise BookError("the file is not CSV text (it holds NUL bytes)")
+    """CSV bytes -> text: UTF-8 (with or without BOM), or UTF-16 with its BOM."""
+    for bom, codec in (
+        (codecs.BOM_UTF8, "utf-8"),
+        (codecs.BOM_UTF16_LE, "utf-16-le"),
+        (codecs.BOM_UTF16_BE, "utf-16-be"),
+    ):
+        if data.startswith(bom):
+            data, encoding = data[len(bom) :], codec
+            break
+    else:
+        encoding = "utf-8"
+    if encoding == "utf-8" and b"\x00" in data:
+        line = data.count(b"\n", 0, data.index(b"\x00")) + 1
+        raise BookError(f"line {line}: the file is not CSV text (it holds NUL bytes)")
     try:
-        return data.decode("utf-8")
+        text = data.decode(encoding)
     except UnicodeDecodeError as exc:
+        line = data.count(b"\n", 0, exc.start) + 1 if encoding == "utf-8" else 1
         raise BookError(
-            f"the file is not UTF-8 text (byte {exc.start}): save it as 'CSV UTF-8' and try again"
+            f"line {line}: the file is not {encoding.upper()} text (byte {exc.start}): "
+            "save it as 'CSV UTF-8' and try again"
         ) from exc
+    if "\x00" in text:
+        line = text.count("\n", 0, text.index("\x00")) + 1
+        raise BookError(f"line {line}: the file is not CSV text (it holds NUL characters)")
+    return text
 
 
 def _quantity(
@@ -228,6 +269,17 @@ TEMP_COLS = {"default": "C", "all": ("c", "f")}
 VOLUME_COLS = {"default": "L", "all": ("l", "gal")}
 
 
+def _entry_id(text: str) -> str:
+    """An entry id as the book writes them: a UUID in its 36-character form."""
+    clean = text.strip().lower()
+    try:
+        if len(clean) == 36 and str(uuid.UUID(clean)) == clean:
+            return clean
+    except ValueError:
+        pass
+    raise BookError(f"id '{text[:40]}' is not an entry id (a UUID such as sumpbook writes)")
+
+
 def entry_from_row(row: dict[str, str], local: tzinfo) -> Entry:
     kind = row.get("kind", "").strip().lower()
     if kind not in KINDS:
@@ -242,7 +294,7 @@ def entry_from_row(row: dict[str, str], local: tzinfo) -> Entry:
         "note": row.get("note", ""),
     }
     if row.get("id", "").strip():
-        values["id"] = row["id"].strip().lower()
+        values["id"] = _entry_id(row["id"])
     target = row.get("target", "").strip()
     table = cls.target_table
     if table is not None:
@@ -283,72 +335,125 @@ def entry_from_row(row: dict[str, str], local: tzinfo) -> Entry:
         raise BookError(f"incomplete {kind} row ({exc})") from exc
 
 
-def parse_csv(text: str, local: tzinfo) -> tuple[list[tuple[int, Entry]], list[str]]:
-    """Rows -> entries with their line numbers, and every problem found."""
-    csv.field_size_limit(MAX_FIELD_CHARS)
-    reader = csv.DictReader(io.StringIO(text, newline=""))
-    if not reader.fieldnames:
-        raise BookError("the file is empty")
-    header = [(h or "").strip().lower() for h in reader.fieldnames]
+def one_line(text: str, limit: int = 200) -> str:
+    """A message quoting cell text stays one short printable line."""
+    flat = "".join(ch if ch.isprintable() else " " for ch in text)
+    return flat if len(flat) <= limit else flat[: limit - 1] + "…"
+
+
+def known_columns() -> set[str]:
+    """Every column import understands: what export writes in any units, plus value+unit pairs."""
+    names = set(Prefs().columns())
+    for p in PRESSURE_COLS["all"]:
+        names |= {f"dp_{p}", f"dp_ref_{p}"}
+    names |= {f"temp_{t}" for t in TEMP_COLS["all"]}
+    names |= {f"volume_{v}" for v in VOLUME_COLS["all"]}
+    return names | {"dp", "dp_unit", "temp", "temp_unit", "volume", "volume_unit"}
+
+
+def _header(cells: list[str]) -> list[str]:
+    header = [cell.strip().lower() for cell in cells]
+    named = [h for h in header if h]
+    repeated = sorted({h for h in named if named.count(h) > 1})
+    if repeated:
+        raise BookError(f"line 1: the header repeats the column(s) {one_line(', '.join(repeated))}")
+    unknown = [h for h in named if h not in known_columns()]
+    if unknown:
+        shown = one_line(", ".join(f"'{h[:30]}'" for h in unknown[:5]))
+        raise BookError(
+            f"line 1: unknown column(s) {shown}: use the columns 'sumpbook export' writes"
+        )
     missing = [c for c in ("time", "kind", "by") if c not in header]
     if missing:
-        raise BookError(f"the header lacks the column(s) {', '.join(missing)}")
-    reader.fieldnames = header
-    entries, problems = [], []
-    line = 1
+        raise BookError(f"line 1: the header lacks the column(s) {', '.join(missing)}")
+    return header
+
+
+def parse_csv(text: str, local: tzinfo) -> tuple[list[tuple[int, Entry]], list[tuple[int, str]]]:
+    """Rows -> entries with their line numbers, and every problem found (line, message)."""
+    old_limit = csv.field_size_limit(MAX_FIELD_CHARS)
     try:
-        for raw in reader:
-            line = reader.line_num
-            if None in raw:
-                problems.append(f"line {line}: more cells than the header has columns")
+        return _parse(csv.reader(io.StringIO(text, newline="")), local)
+    finally:
+        csv.field_size_limit(old_limit)
+
+
+def _parse(reader: Any, local: tzinfo) -> tuple[list[tuple[int, Entry]], list[tuple[int, str]]]:
+    entries: list[tuple[int, Entry]] = []
+    problems: list[tuple[int, str]] = []
+    seen: dict[str, int] = {}
+
+    def problem(text: str) -> None:
+        problems.append((reader.line_num, f"line {reader.line_num}: {one_line(text)}"))
+
+    try:
+        first = next(reader, None)
+        if first is None or not any(cell.strip() for cell in first):
+            raise BookError("the file is empty (or its first line is blank)")
+        header = _header(first)
+        nameless = [i for i, h in enumerate(header) if not h]
+        for cells in reader:
+            if not any(cell.strip() for cell in cells):
                 continue
-            row = {k: restore(v or "") for k, v in raw.items()}
-            if not any(v.strip() for v in row.values()):
+            if any(cell.strip() for cell in cells[len(header) :]):
+                problem("more cells than the header has columns")
                 continue
+            if any(i < len(cells) and cells[i].strip() for i in nameless):
+                problem("a cell stands under a column with no name")
+                continue
+            row = {
+                h: restore(cells[i]) if i < len(cells) else "" for i, h in enumerate(header) if h
+            }
             try:
-                entries.append((line, entry_from_row(row, local)))
-            except BookError as exc:
-                problems.append(f"line {line}: {exc}")
+                entry = entry_from_row(row, local)
+            except (ValueError, OverflowError) as exc:  # BookError is a ValueError
+                problem(str(exc))
+                continue
+            if entry.id in seen:
+                problem(f"id {entry.id[:36]} repeats line {seen[entry.id]}")
+                continue
+            if entry.id:
+                seen[entry.id] = reader.line_num
+            entries.append((reader.line_num, entry))
     except csv.Error as exc:
-        problems.append(f"line {reader.line_num}: {exc}")
+        too_long = "field larger than field limit" in str(exc)
+        problem(f"a cell is longer than {MAX_FIELD_CHARS} characters" if too_long else str(exc))
     return entries, problems
 
 
 def import_csv(book: Book, data: bytes, local: tzinfo) -> ImportResult:
-    """Read entries from CSV bytes. One bad row rejects the file: nothing is written."""
+    """Read entries from CSV bytes. One bad row rejects the file: nothing is written, and
+    every problem (reading the file or checking it against the book) is named by line."""
     entries, problems = parse_csv(decode(data), local)
     added = skipped = 0
     now = book.now()
-    # Rows that parsed are still checked against the book when others did not, so that
-    # one pass reports every bad line; the transaction is rolled back in that case.
-    if entries:
-        try:
-            with book.atomic():
-                for line, entry in entries:
-                    if entry.id and _exists(book, entry.id):
-                        skipped += 1
-                        continue
-                    try:
-                        entry = validate(book, entry, now)
-                        entry = replace(entry, id=entry.id or str(uuid.uuid4()), logged=now)
-                        insert(book, entry)
-                        added += 1
-                    except BookError as exc:
-                        problems.append(f"line {line}: {exc}")
-                if problems:
-                    raise _Rejected
-        except _Rejected:
-            pass
+    written: list[Entry] = []
+    load_hooks()
+    try:
+        with book.atomic():
+            for line, entry in entries:
+                if entry.id and _exists(book, entry.id):
+                    skipped += 1
+                    continue
+                try:
+                    entry = validate(book, entry, now)
+                    entry = replace(entry, id=entry.id or str(uuid.uuid4()), logged=now)
+                    insert(book, entry, hooks=False)
+                    written.append(entry)
+                    added += 1
+                except (ValueError, OverflowError) as exc:  # BookError is a ValueError
+                    problems.append((line, f"line {line}: {one_line(str(exc))}"))
+            if problems:
+                raise _Rejected
+            after_write(book, written)  # derived status, once per filter touched
+    except _Rejected:
+        pass
     if problems:
-        problems.sort(key=_line_of)
-        shown = problems[:20] + ([f"… and {len(problems) - 20} more"] if len(problems) > 20 else [])
+        lines = [text for _, text in sorted(problems, key=lambda p: p[0])]
+        extra = len(lines) - MAX_PROBLEMS_SHOWN
+        shown = lines[:MAX_PROBLEMS_SHOWN] + ([f"… and {extra} more"] if extra > 0 else [])
         raise BookError("nothing imported; " + "; ".join(shown))
     return ImportResult(added, skipped)
-
-
-def _line_of(problem: str) -> int:
-    digits = problem.removeprefix("line ").split(":", 1)[0]
-    return int(digits) if digits.isdigit() else 0
 
 
 class _Rejected(Exception):

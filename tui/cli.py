@@ -216,6 +216,10 @@ def main(argv: Sequence[str] | None = None) -> int:
     except BookError as exc:
         print(f"sumpbook: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
+    except UnicodeError:
+        print("sumpbook: the input holds characters that are not text (a wrong encoding?); "
+              "nothing was written", file=sys.stderr)
+        return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         return 130
     except BrokenPipeError:

@@ -377,14 +377,18 @@ def cmd_plant(args: argparse.Namespace) -> int:
     with _book(args, create=True) as book:
         if args.settings:
             for key, value in _pairs(args.settings).items():
-                if key not in ("name", "timezone"):
-                    raise BookError(f"unknown plant setting '{key}': use name or timezone")
+                if key not in ("name", "timezone", "backup_keep"):
+                    raise BookError(
+                        f"unknown plant setting '{key}': use name, timezone or backup_keep"
+                    )
+                if key == "backup_keep" and not (value.isdigit() and int(value) >= 1):
+                    raise BookError("backup_keep must be a whole number of 1 or more")
                 if key == "timezone":
                     from store.timeutil import zone
 
                     zone(value)
                 book.set_setting(key, value)
-        for key in ("name", "timezone"):
+        for key in ("name", "timezone", "backup_keep"):
             console.print(f"{key} = {book.setting(key, '') or '(this computer' + chr(39) + 's)'}")
     return 0
 

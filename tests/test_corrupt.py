@@ -1,0 +1,145 @@
+"""A damaged or foreign file is refused on open, with a clear one-line message and a pointer
+to the latest backup, and nothing is written to it."""
+
+from __future__ import annotations
+
+import random
+import sqlite3
+from pathlib import Path
+
+import pytest
+
+from store import journal, schema
+from store.backup import latest_backup, restore, rolling_backup
+from store.book import open_book
+from store.entries import Note
+from store.errors import NotALogbook
+from tests.conftest import fill_register
+
+
+def _logbook(path: Path, notes: int = 300) -> None:
+    with open_book(path) as book:
+        book.conn.execute("PRAGMA synchronous = OFF")  # test speed only
+        fill_register(book)
+        journal.log_many(
+            book, [Note(unit="P1", note=f"round {i} " + "x" * 200, by="AB") for i in range(notes)]
+        )
+        rolling_backup(book.conn, book.path, "on-close")
+
+
+def _root_page(path: Path, table: str) -> tuple[int, int]:
+    """(byte offset, size) of the root b-tree page of `table`."""
+    conn = sqlite3.connect(path)
+    try:
+        size = conn.execute("PRAGMA page_size").fetchone()[0]
+        root = conn.execute("SELECT rootpage FROM sqlite_master WHERE name = ?", [table])
+        return (root.fetchone()[0] - 1) * size, size
+    finally:
+        conn.close()
+
+
+def _overwrite(path: Path, offset: int, data: bytes) -> None:
+    with path.open("r+b") as f:
+        f.seek(offset)
+        f.write(data)
+
+
+def _noise(n: int, seed: int = 4406) -> bytes:
+    return random.Random(seed).randbytes(n)
+
+
+def _damage(kind: str, path: Path) -> None:
+    size = path.stat().st_size
+    if kind == "random bytes":
+        path.write_bytes(_noise(size))
+    elif kind == "text":
+        path.write_text("time,kind,by\n2026-01-05T07:00,note,AB\n" * 50)
+    elif kind == "header smashed":
+        _overwrite(path, 0, _noise(100))
+    elif kind == "entries page smashed":
+        offset, size = _root_page(path, "entries")
+        _overwrite(path, offset, _noise(size))
+    elif kind == "cut short":
+        with path.open("r+b") as f:
+            f.truncate(size // 2)
+    elif kind == "foreign application id":
+        _overwrite(path, 68, (0x12345678).to_bytes(4, "big"))
+    elif kind == "foreign sqlite file":
+        path.unlink()
+        conn = sqlite3.connect(path)
+        conn.execute("CREATE TABLE entries (id TEXT, note TEXT)")
+        conn.execute("INSERT INTO entries VALUES ('1', 'not ours')")
+        conn.commit()
+        conn.close()
+    else:
+        raise AssertionError(kind)
+
+
+def _files(folder: Path) -> dict[str, bytes]:
+    return {p.name: p.read_bytes() for p in folder.iterdir() if p.is_file()}
+
+
+KINDS = [
+    "random bytes",
+    "text",
+    "header smashed",
+    "entries page smashed",
+    "cut short",
+    "foreign application id",
+    "foreign sqlite file",
+]
+
+
+@pytest.mark.parametrize("kind", KINDS)
+def test_damaged_or_foreign_files_are_refused_untouched(tmp_path, kind):
+    path = tmp_path / "logbook.db"
+    _logbook(path)
+    backup = latest_backup(path)
+    assert backup is not None
+    _damage(kind, path)
+    before = path.read_bytes()
+    with pytest.raises(NotALogbook) as refused:
+        open_book(path)
+    message = str(refused.value)
+    assert "\n" not in message
+    assert "damaged" in message or "not a sumpbook logbook" in message
+    assert str(backup) in message and "sumpbook restore" in message
+    assert path.read_bytes() == before  # nothing written to it
+    assert not Path(f"{path}-journal").exists()
+    # The pointer is good advice: the backup restores, and the damaged file is kept as it was.
+    kept = restore(backup, path)
+    assert kept is not None and kept.read_bytes() == before
+    with open_book(path) as book:
+        assert book.conn.execute("SELECT count(*) FROM entries").fetchone()[0] == 300
+        assert book.conn.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
+
+
+def test_without_a_backup_the_message_says_so(tmp_path):
+    path = tmp_path / "logbook.db"
+    path.write_bytes(_noise(8192))
+    with pytest.raises(NotALogbook, match="no automatic backup was found"):
+        open_book(path)
+
+
+def test_the_quick_check_catches_damage_the_header_hides(tmp_path):
+    # The header is intact (right application id and version): only the check finds it.
+    path = tmp_path / "logbook.db"
+    _logbook(path, notes=600)
+    offset, _ = _root_page(path, "entries")
+    _overwrite(path, offset + 12, _noise(40))  # the root page's cell pointers
+    before = path.read_bytes()
+    conn = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
+    assert conn.execute("PRAGMA application_id").fetchone()[0] == schema.APPLICATION_ID
+    assert conn.execute("PRAGMA user_version").fetchone()[0] == schema.SCHEMA_VERSION
+    conn.close()
+    with pytest.raises(NotALogbook, match="damaged"):
+        open_book(path)
+    assert path.read_bytes() == before
+
+
+def test_an_empty_file_becomes_a_new_logbook(tmp_path):
+    # Not damage: a zero-length file is where a new logbook is started (SQLite's own rule).
+    path = tmp_path / "logbook.db"
+    path.touch()
+    with open_book(path) as book:
+        assert book.conn.execute("PRAGMA application_id").fetchone()[0] == schema.APPLICATION_ID
