@@ -1,29 +1,444 @@
-"""The Textual app: bindings and screen routing only."""
+"""The Textual app: bindings and screen routing. Screens, forms and widgets live beside it."""
 
 from __future__ import annotations
 
+from dataclasses import replace
 from pathlib import Path
+from typing import Any
 
-from textual.app import App, ComposeResult
-from textual.widgets import Footer, Header, Static
+from textual import work
+from textual.app import App, SystemCommand
+from textual.binding import Binding
+from textual.reactive import reactive
+from textual.screen import ModalScreen, Screen
+from textual.theme import Theme
 
+from store import prefs as laptop
+from store import register
 from store.book import Book, default_path, open_book
 from store.demo import create_demo, demo_path
+from store.entries import BreatherSwap, ElementChange, Reading
+from store.errors import BookError
+from store.register import Technician, Unit
+from store.sheets import (
+    TagHit,
+    WatchRow,
+    breather_row,
+    breather_status_of,
+    filter_row,
+    filter_status_of,
+    tag_index,
+)
+from store.timeutil import shift_at
+
+from .forms.base import Saved
+from .forms.breather import BreatherForm
+from .forms.change import ChangeForm
+from .forms.note import NoteForm
+from .forms.reading import ReadingForm
+from .forms.sample import SampleForm
+from .forms.topup import TopUpForm
+from .forms.void import VoidForm
+from .screens.common import guarded, long_name
+from .screens.filter_sheet import FilterSheetScreen
+from .screens.first_run import FirstRunScreen
+from .screens.help import HelpScreen
+from .screens.register import RegisterScreen
+from .screens.shift_log import ShiftLogScreen
+from .screens.sign_in import SignInScreen
+from .screens.tag_prompt import TagPrompt
+from .screens.unit_sheet import UnitSheetScreen
+from .screens.watch import WatchScreen
+from .widgets import fmt
+from .widgets.palette import BookCommands
+
+FORMS = {
+    "reading": ReadingForm,
+    "change": ChangeForm,
+    "breather": BreatherForm,
+    "topup": TopUpForm,
+    "sample": SampleForm,
+    "note": NoteForm,
+    "void": VoidForm,
+}
+THEMES = {
+    "dark": Theme(
+        name="sumpbook-dark",
+        primary="#7fb2c4",
+        secondary="#b9a66e",
+        accent="#e2b45a",
+        warning="#e6a23c",
+        error="#f07060",
+        success="#86c08a",
+        foreground="#e6e3dc",
+        background="#15181b",
+        surface="#1d2125",
+        panel="#283037",
+        dark=True,
+    ),
+    "light": Theme(
+        name="sumpbook-light",
+        primary="#1f5d78",
+        secondary="#6d5a1e",
+        accent="#8a5a00",
+        warning="#9a5400",
+        error="#b3261e",
+        success="#2d6a31",
+        foreground="#1b1b1b",
+        background="#f2efe8",
+        surface="#fbfaf7",
+        panel="#dedad0",
+        dark=False,
+    ),
+    "contrast": Theme(  # black on white, for sunlight on the screen
+        name="sumpbook-contrast",
+        primary="#000000",
+        secondary="#000000",
+        accent="#0000b0",
+        warning="#7a3d00",
+        error="#b00000",
+        success="#005a00",
+        foreground="#000000",
+        background="#ffffff",
+        surface="#ffffff",
+        panel="#d8d8d8",
+        boost="#000000",
+        dark=False,
+    ),
+}
+NAV = ("go", "quick_tag", "sign_in", "quit", "entry")
 
 
 class SumpbookApp(App[None]):
     TITLE = "sumpbook"
-    BINDINGS = [("q", "quit", "Quit")]
+    CSS_PATH = "app.tcss"
+    COMMANDS = App.COMMANDS | {BookCommands}
+    MODES = {"watch": WatchScreen, "shift": ShiftLogScreen, "register": RegisterScreen}
+    DEFAULT_MODE = "watch"
+    BINDINGS = [
+        Binding("t,f2", "quick_tag", "Tag", tooltip="Type or scan a tag", id="quick-tag"),
+        Binding("1", "go('watch')", "Watch", tooltip="The watch list", id="go-watch"),
+        Binding("2", "go('shift')", "Shifts", tooltip="The shift log", id="go-shift"),
+        Binding("3", "go('register')", "Plant", tooltip="The register", id="go-register"),
+        Binding("i", "sign_in", "Who", tooltip="Who is on shift (sign in)", id="sign-in"),
+        Binding("question_mark,f1", "help", "Help", tooltip="Help: keys and words", id="help"),
+        Binding("ctrl+p", "command_palette", "Cmds", tooltip="Every action by name", id="palette"),
+        Binding("q", "quit", "Quit", tooltip="Quit (makes a backup)", id="quit"),
+        Binding("ctrl+q", "quit_now", "Quit", show=False, priority=True, id="quit-now"),
+    ]
 
-    def __init__(self, book: Book, demo: bool = False) -> None:
+    demo: reactive[bool] = reactive(False)
+
+    def __init__(self, book: Book, demo: bool = False, cursor_blink: bool = True) -> None:
         super().__init__()
         self.book = book
-        self.demo = demo
+        self.set_reactive(SumpbookApp.demo, demo)
+        self.cursor_blink = cursor_blink
+        self.prefs = laptop.load()
+        self.statuses: dict[str, WatchRow] = {}
+        self.last_message = ""
+        self.backup_tried = False
+        for theme in THEMES.values():
+            self.register_theme(theme)
+        self.theme = THEMES.get(self.prefs.theme, THEMES["dark"]).name
 
-    def compose(self) -> ComposeResult:
-        yield Header()
-        yield Static(f"Logbook: {self.book.path}")
-        yield Footer()
+    # ---- who and what ----
+
+    @property
+    def tech(self) -> str:
+        """The signed-in technician, if the book knows them."""
+        tag = self.prefs.tech
+        if tag and register.find(self.book, Technician, tag) is not None:
+            return tag.upper()
+        return ""
+
+    def on_mount(self) -> None:
+        self.update_subtitle()
+        if not register.list_all(self.book, Unit):
+            self.push_screen(FirstRunScreen(), self.first_run_choice)
+        elif not self.tech:
+            self.action_sign_in()
+
+    def update_subtitle(self) -> None:
+        parts = []
+        if self.demo:
+            parts.append("demo plant")
+        elif self.book.setting("name"):
+            parts.append(str(self.book.setting("name")))
+        parts.append(f"by {self.tech or 'nobody (press i)'}")
+        try:
+            span = shift_at(self.book.now(), self.book.shift_pattern(), self.book.local_zone())
+            parts.append(f"{span.name} shift")
+        except BookError:
+            pass
+        self.sub_title = " · ".join(parts)
+
+    def remember_rows(self, rows: list[WatchRow]) -> None:
+        self.statuses = {r.tag.upper(): r for r in rows}
+
+    @guarded
+    def change_prefs(self, **changes: str) -> None:
+        self.prefs = laptop.save(self.prefs, **changes)
+        if "theme" in changes:
+            self.theme = THEMES[self.prefs.theme].name
+        self.book_changed()
+
+    def book_changed(self) -> None:
+        """Something the other screens show has changed: they reload when shown again."""
+        self.update_subtitle()
+
+    # ---- routing ----
+
+    def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
+        if action in NAV and isinstance(self.screen, ModalScreen):
+            return False
+        if action == "help" and isinstance(self.screen, HelpScreen):
+            return False
+        return True
+
+    @guarded
+    def action_go(self, mode: str) -> None:
+        if self.current_mode != mode:
+            self.switch_mode(mode)
+        else:
+            while len(self.screen_stack) > 1:
+                self.pop_screen()
+
+    @guarded
+    def open_sheet(self, what: str, tag: str, unit: str) -> None:
+        if what == "filter":
+            self.push_screen(FilterSheetScreen(tag))
+        else:
+            self.push_screen(UnitSheetScreen(unit or tag))
+
+    @guarded
+    def open_form(self, kind: str, tag: str = "", **preset: str) -> None:
+        if isinstance(self.screen, ModalScreen):
+            return
+        before = self.statuses.get(tag.upper()) if tag else None
+        self.push_screen(FORMS[kind](tag, before=before, **preset), self.saved)
+
+    @guarded
+    def route_tag(self, action: str, hit: TagHit) -> None:
+        """Where a tag leads: from the tag prompt ('quick') or a palette command."""
+        if action == "quick":
+            action = {"filter": "reading", "breather": "breather", "unit": "unit-sheet"}[hit.what]
+        if action == "filter-sheet":
+            self.open_sheet("filter", hit.tag, hit.unit)
+        elif action in ("unit-sheet", "breather-unit"):
+            self.open_sheet("unit", hit.unit, hit.unit)
+        else:
+            self.open_form(action, hit.tag)
+
+    def action_quick_tag(self) -> None:
+        try:
+            hits = tag_index(self.book)
+        except BookError as exc:
+            self.notify(str(exc), severity="error")
+            return
+        self.push_screen(
+            TagPrompt(hits, self.cursor_blink),
+            lambda hit: self.route_tag("quick", hit) if hit else None,
+        )
+
+    @guarded
+    def action_sign_in(self) -> None:
+        self.push_screen(SignInScreen(self.tech, self.cursor_blink), self.signed_in)
+
+    def signed_in(self, tag: str | None) -> None:
+        if tag:
+            try:
+                self.prefs = laptop.save(self.prefs, tech=tag)
+            except (BookError, OSError) as exc:
+                self.notify(f"Signed in for now, but not remembered: {exc}", severity="warning")
+                self.prefs = replace(self.prefs, tech=tag)
+            self.notify(f"Signed in: {tag}")
+        self.update_subtitle()
+
+    def action_help(self) -> None:
+        screen = self.screen
+        here = [b for b in getattr(type(screen), "BINDINGS", []) if isinstance(b, Binding)]
+        name = {
+            WatchScreen: "the watch list",
+            UnitSheetScreen: "the unit sheet",
+            FilterSheetScreen: "the filter sheet",
+            ShiftLogScreen: "the shift log",
+            RegisterScreen: "the register",
+        }.get(type(screen), "this screen")
+        anywhere = [b for b in self.BINDINGS if isinstance(b, Binding) and b.show]
+        self.push_screen(HelpScreen(name, here, anywhere))
+
+    def get_system_commands(self, screen: Screen) -> Any:
+        """Every action of the app and of the screen, by name, in the command palette."""
+        yield from super().get_system_commands(screen)
+        seen = set()
+        for node, bindings in ((self, self.BINDINGS), (screen, type(screen).BINDINGS)):
+            for b in bindings:
+                if not isinstance(b, Binding) or not b.description or b.action in seen:
+                    continue
+                if b.action in ("quit", "quit_now", "command_palette"):
+                    continue
+                seen.add(b.action)
+                keys = b.key.split(",")[0]
+                yield SystemCommand(
+                    long_name(b),
+                    f"key {keys}",
+                    lambda n=node, a=b.action: self.run_action(a, n),
+                )
+        for name in THEMES:
+            yield SystemCommand(
+                f"Theme: {name}", "switch and remember", lambda n=name: self.change_prefs(theme=n)
+            )
+        for unit in ("bar", "psi", "kPa"):
+            yield SystemCommand(
+                f"Pressure in {unit}",
+                "show and type ΔP in this unit",
+                lambda u=unit: self.change_prefs(pressure=u),
+            )
+
+    # ---- after a save ----
+
+    def saved(self, result: Saved | None) -> None:
+        if result is None:
+            return
+        self.book_changed()
+        self.after_save(result)
+
+    @work(thread=True, exit_on_error=False, group="after-save")
+    def after_save(self, result: Saved) -> None:
+        entry = result.entry
+        after: WatchRow | None = None
+        try:
+            with open_book(self.book.path, create=False) as book:
+                if isinstance(entry, (Reading, ElementChange)):
+                    st = filter_status_of(book, entry.filter)
+                    after = filter_row(st, "", book.now()) if st else None
+                elif isinstance(entry, BreatherSwap):
+                    bs = breather_status_of(book, entry.breather)
+                    after = breather_row(bs, "") if bs else None
+        except Exception as exc:  # noqa: BLE001 - the entry is saved; say the forecast is not
+            self.call_from_thread(
+                self.notify,
+                f"Saved. The forecast could not be recomputed: {exc}",
+                severity="warning",
+            )
+            return
+        self.call_from_thread(self.say_saved, result, after)
+
+    def say_saved(self, result: Saved, after: WatchRow | None) -> None:
+        entry, before = result.entry, result.before
+        local = self.book.local_zone()
+        text = f"Saved {entry.kind} {entry.id[:8]} on {entry.target or entry.unit or 'the plant'}."
+        if after is not None:
+            self.statuses[after.tag.upper()] = after
+            text += " " + due_change(after, before, local)
+        self.last_message = text
+        self.notify(text, timeout=8)
+
+    # ---- first run, demo ----
+
+    def first_run_choice(self, what: str | None) -> None:
+        if what == "demo":
+            self.open_demo()
+        elif what == "register":
+            self.action_go("register")
+            if not self.tech:
+                self.action_sign_in()
+
+    @work(thread=True, exit_on_error=False, group="demo")
+    def open_demo(self) -> None:
+        self.call_from_thread(self.notify, "Opening the demo plant…")
+        path = demo_path()
+        try:
+            if not (path.exists() and path.stat().st_size > 0):
+                create_demo(path).close()
+        except Exception as exc:  # noqa: BLE001 - shown to the user
+            self.call_from_thread(self.notify, f"No demo: {exc}", severity="error")
+            return
+        self.call_from_thread(self.switch_book, path, True)
+
+    def switch_book(self, path: Path, demo: bool) -> None:
+        try:
+            book = open_book(path, create=False)
+        except BookError as exc:
+            self.notify(str(exc), severity="error")
+            return
+        old, self.book = self.book, book
+        old.close()
+        self.demo = demo
+        self.statuses = {}
+        for mode in ("shift", "register"):
+            if mode in self._screen_stacks:
+                self.remove_mode(mode)
+                self.add_mode(mode, self.MODES[mode])
+        self.update_subtitle()
+        if self.current_mode == "watch":
+            while len(self.screen_stack) > 1:
+                self.pop_screen()
+            base = self.screen_stack[0]
+            if isinstance(base, WatchScreen):
+                base.reload()
+        else:
+            self.switch_mode("watch")
+        if not self.tech:
+            self.action_sign_in()
+
+    # ---- closing ----
+
+    def action_quit(self) -> None:  # type: ignore[override]
+        if not self.backup_tried:
+            self.backup_tried = True
+            problem = backup_on_close(self.book)
+            if problem:
+                self.notify(
+                    f"Backup on close failed: {problem}. Press q again to quit anyway.",
+                    severity="warning",
+                    timeout=15,
+                )
+                return
+        self.exit()
+
+    def action_quit_now(self) -> None:
+        if not self.backup_tried:
+            self.backup_tried = True
+            backup_on_close(self.book)
+        self.exit()
+
+
+def due_change(after: WatchRow, before: Any, local: Any) -> str:
+    """'P1-RF: change due moved from 14 May to 11 May' and the like."""
+    word = "change" if after.what == "filter" else "swap"
+    new = after.due.likely if after.due else None
+    old = before.due.likely if before is not None and before.due is not None else None
+    if new is not None and old is not None:
+        a, b = fmt.day(new, local), fmt.day(old, local)
+        text = (
+            f"{after.tag}: {word} due moved from {b} to {a}"
+            if a != b
+            else (f"{after.tag}: {word} still due {a}")
+        )
+    elif new is not None:
+        text = f"{after.tag}: {word} now due {fmt.due_text(after.due, local)}"
+    else:
+        state = fmt.STATE_WORDS.get(after.state, after.state)
+        text = f"{after.tag}: no due date ({state})"
+        if old is not None:
+            text += f"; it was {fmt.day(old, local)}"
+    gained = [f for f in after.flags if before is None or f not in before.flags]
+    if gained:
+        text += ". New flag: " + fmt.flag_text(gained).plain
+    return text
+
+
+def backup_on_close(book: Book) -> str | None:
+    """A rolling copy beside the logbook; returns the problem instead of raising."""
+    try:
+        from store.backup import rolling_backup
+
+        rolling_backup(book.conn, book.path, "on-close")
+    except Exception as exc:  # noqa: BLE001 - a failed backup only warns
+        return str(exc) or type(exc).__name__
+    return None
 
 
 def open_for_app(db: Path | None) -> tuple[Book, bool]:
@@ -39,8 +454,9 @@ def open_for_app(db: Path | None) -> tuple[Book, bool]:
 
 def run_app(db: Path | None) -> int:
     book, demo = open_for_app(db)
+    app = SumpbookApp(book, demo=demo)
     try:
-        SumpbookApp(book, demo=demo).run()
+        app.run()
     finally:
-        book.close()
+        app.book.close()
     return 0

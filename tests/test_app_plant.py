@@ -1,0 +1,184 @@
+"""The small invented plant the app tests drive, built through the store API, with a frozen
+clock, fixed prefs and no cursor blink. Imported by the test_app_* modules (no tests here)."""
+
+from __future__ import annotations
+
+import json
+from datetime import UTC, datetime, timedelta
+from pathlib import Path
+
+import pytest
+
+from store import journal, register
+from store.book import Book, open_book
+from store.entries import BreatherSwap, ElementChange, Reading, Sample, TopUp
+from store.register import FilterPosition, Unit
+from tests.conftest import fill_register
+
+CLOCK = datetime(2026, 5, 13, 10, 0, tzinfo=UTC)  # the plant's frozen "now" (an early shift)
+START = CLOCK - timedelta(days=140)
+
+
+def build_plant(book: Book) -> None:
+    """Invented history: three elements run out on P1-RF, a fourth on its way; a second unit
+    whose return filter sits at its bypass setting; swaps, top-ups and a sample."""
+    fill_register(book)
+    register.add(
+        book,
+        Unit(
+            tag="P2",
+            name="Saw 2",
+            area="Hall B",
+            reservoir_l=250,
+            fluid="HV46",
+            normal_temp_c=45,
+            coldest_start_c=12,
+        ),
+    )
+    register.add(
+        book,
+        FilterPosition(
+            tag="P2-RF",
+            unit="P2",
+            kind="return",
+            element="RX-10",
+            rating_um=10,
+            bypass_bar=3.5,
+            limit_bar=2.5,
+            clean_bar=0.4,
+            normal_flow_lpm=80,
+        ),
+    )
+    t = START
+    entries = [ElementChange(filter="P1-RF", reason="interval", at=t, by="CD")]  # first known
+    for life_days in (30, 34, 38):  # earlier elements, each read every 3 days to the limit
+        for day in range(0, life_days, 3):
+            dp = 0.5 + 2.0 * (day / life_days) ** 2
+            entries.append(
+                Reading(
+                    filter="P1-RF",
+                    dp_bar=round(dp, 2),
+                    temp_c=48,
+                    at=t + timedelta(days=day),
+                    by="AB",
+                )
+            )
+        t += timedelta(days=life_days)
+        entries.append(
+            ElementChange(
+                filter="P1-RF",
+                reason="limit",
+                condition="caked",
+                batch=f"B{life_days}",
+                at=t,
+                by="CD",
+            )
+        )
+    for day in range(1, 40, 3):  # the element in service now
+        if t + timedelta(days=day) > CLOCK - timedelta(hours=2):
+            break
+        dp = 0.5 + 2.0 * (day / 36) ** 2
+        entries.append(
+            Reading(
+                filter="P1-RF", dp_bar=round(dp, 2), temp_c=46, at=t + timedelta(days=day), by="AB"
+            )
+        )
+    for day, state in ((10, "clean"), (40, "clean"), (80, "dirty")):
+        entries.append(
+            Reading(
+                filter="P1-PF", indicator=state, temp_c=47, at=START + timedelta(days=day), by="CD"
+            )
+        )
+    for day in (5, 35, 60):
+        entries.append(
+            Reading(
+                filter="P2-RF",
+                dp_bar=1.0 + day / 30,
+                temp_c=44,
+                at=CLOCK - timedelta(days=day),
+                by="AB",
+            )
+        )
+    entries.append(
+        Reading(filter="P2-RF", dp_bar=3.6, temp_c=44, at=CLOCK - timedelta(days=1), by="AB")
+    )
+    entries.append(
+        BreatherSwap(
+            breather="P1-BR",
+            reason="interval",
+            condition="1/2 spent",
+            at=START + timedelta(days=2),
+            by="AB",
+        )
+    )
+    entries.append(
+        BreatherSwap(
+            breather="P1-BR",
+            reason="spent",
+            condition="2/3 spent",
+            at=START + timedelta(days=62),
+            by="AB",
+        )
+    )
+    for day in (20, 60, 100, 130):
+        entries.append(
+            TopUp(
+                unit="P1",
+                volume_l=8,
+                fluid="HV46",
+                filtered_um=3,
+                at=START + timedelta(days=day),
+                by="CD",
+            )
+        )
+    entries.append(
+        Sample(unit="P1", code="18/16/13", water_ppm=120, at=CLOCK - timedelta(days=9), by="AB")
+    )
+    entries.sort(key=lambda e: e.at)
+    journal.log_many(book, entries)
+    book.set_setting("clock", CLOCK.strftime("%Y-%m-%dT%H:%M:%SZ"))
+    book.set_setting("timezone", "UTC")
+
+
+def write_prefs(tmp_path: Path, **prefs: str) -> Path:
+    path = tmp_path / "prefs.json"
+    data = {"tech": "AB", "pressure": "bar", "temperature": "C", "volume": "L", "theme": "dark"}
+    data.update(prefs)
+    path.write_text(json.dumps(data), encoding="utf-8")
+    return path
+
+
+@pytest.fixture
+def plant(tmp_path, monkeypatch):
+    """A path to the invented plant's logbook, with this laptop's prefs fixed."""
+    monkeypatch.setenv("SUMPBOOK_CONFIG", str(write_prefs(tmp_path)))
+    monkeypatch.setenv("SUMPBOOK_NOW", CLOCK.isoformat())
+    path = tmp_path / "plant.db"
+    with open_book(path) as book:
+        build_plant(book)
+    return path
+
+
+def make_app(path: Path):
+    from tui.app import SumpbookApp
+
+    return SumpbookApp(open_book(path), cursor_blink=False)
+
+
+async def settle(pilot, screen_type=None, timeout: float = 10.0) -> None:
+    """Wait until the top screen (of `screen_type`, if given) has shown its data."""
+    waited = 0.0
+    while waited < timeout:
+        await pilot.pause()
+        screen = pilot.app.screen
+        ok = screen_type is None or isinstance(screen, screen_type)
+        if ok and getattr(screen, "loaded", True) and not pilot.app.workers._workers:
+            return
+        await pilot.pause(0.02)
+        waited += 0.02
+    raise AssertionError(f"{pilot.app.screen} did not settle")
+
+
+def count_entries(path: Path, kind: str | None = None) -> int:
+    with open_book(path, create=False) as book:
+        return len(journal.read(book, kinds=[kind] if kind else None))

@@ -1,0 +1,140 @@
+"""The watch list driven from the keyboard at 80×24: order, filters, summary, routing, help,
+command palette."""
+
+from __future__ import annotations
+
+from textual.widgets import DataTable, Input
+
+from store import status
+from store.book import open_book
+from tests import test_app_plant as kit
+from tests.test_app_plant import make_app, settle
+from tui.screens.filter_sheet import FilterSheetScreen
+from tui.screens.help import HelpScreen
+from tui.screens.unit_sheet import UnitSheetScreen
+from tui.screens.watch import WatchScreen
+
+plant = kit.plant  # the invented plant (a fixture)
+
+
+def tags_shown(app) -> list[str]:
+    table = app.screen.query_one("#watch-table", DataTable)
+    return [str(table.get_row_at(i)[0]) for i in range(table.row_count)]
+
+
+async def test_opens_on_the_watch_list_most_urgent_first(plant):
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        tags = tags_shown(app)
+        # every filter and breather of the register, and the unit with a flag (dirty sample)
+        assert set(tags) == {"P1-RF", "P1-PF", "P2-RF", "P1-BR", "P1"}
+        # P2-RF read 3.6 bar against a 3.5 bar bypass: unfiltered oil is passing, so it leads
+        # (common practice, no source: a filter in bypass outranks one that is merely due)
+        assert tags[0] == "P2-RF"
+        row = [str(c) for c in app.screen.query_one(DataTable).get_row_at(0)]
+        assert "AT BYPASS" in row[5] and row[1].startswith("OVERDUE")
+        # the cells show the store's numbers: reference ΔP in bar and its share of the limit
+        with open_book(plant, create=False) as book:
+            p2 = next(f for f in status.watch(book).filters if f.filter == "P2-RF")
+        assert row[2].endswith(f"{100 * p2.dp_ref_bar / 2.5:3.0f}%")  # limit 2.5 bar (register)
+        assert row[3] == f"{p2.dp_ref_bar:.2f} bar"
+
+
+async def test_summary_line_counts_what_the_rows_say(plant):
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        screen = app.screen
+        summary = str(screen.query_one("#summary").render())
+        table = screen.query_one(DataTable)
+        overdue = sum("OVERDUE" in str(table.get_row_at(i)[1]) for i in range(table.row_count))
+        assert f"{overdue} overdue" in summary
+        with open_book(plant, create=False) as book:
+            urgent = sum(
+                any(f in status.URGENT_FLAGS for f in x.flags) for x in status.watch(book).filters
+            )
+        assert f"{urgent} urgent" in summary
+
+
+async def test_text_and_area_filters_narrow_the_list(plant):
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        await pilot.press("slash", *"p2-")
+        assert tags_shown(app) == ["P2-RF"]
+        assert "1 of 5 shown" in str(app.screen.query_one("#summary").render())
+        await pilot.press("escape")  # clears the text and returns to the table
+        assert app.screen.query_one("#find", Input).value == ""
+        assert app.focused is app.screen.query_one(DataTable)
+        app.screen.query_one("#area").value = "area:Hall B"
+        await pilot.pause()
+        assert tags_shown(app) == ["P2-RF"]
+        app.screen.query_one("#area").value = "unit:P1"
+        await pilot.pause()
+        assert set(tags_shown(app)) == {"P1-RF", "P1-PF", "P1-BR", "P1"}
+
+
+async def test_enter_opens_the_sheet_and_escape_comes_back(plant):
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        tags = tags_shown(app)
+        await pilot.press(*["down"] * tags.index("P1-RF"), "enter")
+        await settle(pilot, FilterSheetScreen)
+        assert app.screen.tag == "P1-RF"
+        await pilot.press("u")
+        await settle(pilot, UnitSheetScreen)
+        assert app.screen.tag == "P1"
+        await pilot.press("escape", "escape")
+        await settle(pilot, WatchScreen)
+        await pilot.press("2")
+        await pilot.pause()
+        assert app.current_mode == "shift"
+        await pilot.press("1")
+        await settle(pilot, WatchScreen)
+
+
+async def test_help_lists_every_key_of_the_screen_and_the_app(plant):
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        await pilot.press("question_mark")
+        await pilot.pause()
+        assert isinstance(app.screen, HelpScreen)
+        text = str(app.screen.query_one("#help-scroll Static").render())
+        for binding in [*WatchScreen.BINDINGS, *app.BINDINGS]:
+            if binding.show and binding.description:
+                assert (binding.tooltip or binding.description) in text
+        await pilot.press("escape")
+        await pilot.pause()
+        assert isinstance(app.screen, WatchScreen)
+
+
+async def test_palette_offers_every_action_and_every_tag(plant):
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        titles = {c.title for c in app.get_system_commands(app.screen)}
+        for binding in [*WatchScreen.BINDINGS, *app.BINDINGS]:
+            if binding.action not in ("quit", "quit_now", "command_palette"):
+                assert (binding.tooltip or binding.description) in titles
+        from tui.widgets.palette import BookCommands
+
+        provider = BookCommands(app.screen)
+        await provider.startup()
+        texts = {text for text, _, _ in provider.commands()}
+        assert {"Reading on P1-RF", "Breather swap on P1-BR", "Top-up on P2"} <= texts
+        # choosing a command runs it: the reading form for that tag opens
+        dict((t, c) for t, c, _ in provider.commands())["Reading on P2-RF"]()
+        await pilot.pause()
+        assert app.screen.query_one("#f-filter", Input).value == "P2-RF"
+
+
+async def test_scales_up_to_a_big_terminal(plant):
+    app = make_app(plant)
+    async with app.run_test(size=(160, 50)) as pilot:
+        await settle(pilot, WatchScreen)
+        strip = app.screen.query_one("KeyStrip")
+        assert strip.region.height == 1  # every key fits on one line at this width
+        assert len(tags_shown(app)) == 5

@@ -1,0 +1,194 @@
+"""The shape every entry form shares: fields with inline checks, an optional safety
+acknowledgement, save through `store.journal.log`, and nothing written until all is valid.
+"""
+
+from __future__ import annotations
+
+import sqlite3
+from dataclasses import dataclass
+from datetime import datetime
+from typing import TYPE_CHECKING, Any
+
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.screen import ModalScreen
+from textual.widgets import Button, Checkbox, Input, Static
+
+from store import journal
+from store.entries import Entry
+from store.errors import BookError
+from store.register import Technician, list_all
+from store.timeutil import local_text, parse_time
+
+from ..widgets.caution import Caution
+from ..widgets.field import FieldRow, Spec, TickBox
+from .validators import TagValidator, TimeValidator
+
+if TYPE_CHECKING:
+    from ..app import SumpbookApp
+
+
+@dataclass(frozen=True)
+class Saved:
+    """What a form hands back: the entry as the book holds it, and the status before."""
+
+    entry: Entry
+    before: Any = None  # FilterStatus / BreatherStatus before the entry, when known
+
+
+def write_problem(exc: BaseException) -> str:
+    """A one-line reason a write failed, for the form."""
+    if isinstance(exc, BookError):
+        return str(exc)
+    text = str(exc).lower()
+    if "locked" in text or "busy" in text:
+        return "the logbook is busy (another program is writing): try again in a moment"
+    if "readonly" in text or "read-only" in text:
+        return "the logbook is read-only here: check the file's permissions"
+    if "full" in text:
+        return "the disk is full: free some space, then save again"
+    if isinstance(exc, OSError):
+        return f"the file system refused: {exc.strerror or exc}"
+    return f"the logbook refused: {exc}"
+
+
+class EntryForm(ModalScreen[Saved | None]):
+    """Subclasses give `heading`, `specs()`, `build(values)`; `first` names the field to start in."""
+
+    BINDINGS = [
+        Binding("ctrl+s", "save", "Save", id="form-save"),
+        Binding("escape", "cancel", "Cancel", id="form-cancel"),
+    ]
+    heading = "Entry"
+    caution = False
+    first = ""
+
+    def __init__(self, target: str = "", before: Any = None, **preset: str) -> None:
+        super().__init__()
+        self.target = target
+        self.before = before
+        self.preset = preset
+        self.saved: Entry | None = None
+        self.load_problem = ""
+
+    @property
+    def sb(self) -> SumpbookApp:
+        return self.app  # type: ignore[return-value]
+
+    # ---- what subclasses give ----
+
+    def specs(self) -> list[Spec]:
+        raise NotImplementedError
+
+    def build(self, values: dict[str, Any]) -> Entry:
+        raise NotImplementedError
+
+    # ---- common fields ----
+
+    def common_specs(self) -> list[Spec]:
+        book = self.sb.book
+        return [
+            Spec(
+                "time",
+                "Time",
+                self.preset.get("time", local_text(book.now(), book.local_zone())),
+                [TimeValidator(book.local_zone(), book.now)],
+                required=True,
+                hint="plant time",
+            ),
+            Spec(
+                "by",
+                "By",
+                self.preset.get("by", self.sb.tech),
+                [TagValidator(lambda: [t.tag for t in list_all(book, Technician)], "technician")],
+                required=True,
+                hint="initials",
+            ),
+            Spec("note", "Note", self.preset.get("note", "")),
+        ]
+
+    def when(self, text: str) -> datetime | None:
+        """None keeps the book's own 'now' when the time was left as it came."""
+        book = self.sb.book
+        if text == local_text(book.now(), book.local_zone()) and "time" not in self.preset:
+            return None
+        return parse_time(text.replace(" ", "T", 1), book.local_zone(), now=book.now())
+
+    # ---- layout ----
+
+    def compose(self) -> ComposeResult:
+        try:
+            specs = self.specs()  # may set the heading and the first field
+        except (BookError, sqlite3.Error, OSError) as exc:
+            specs, self.first = [], ""
+            self.load_problem = f"The form could not be filled: {write_problem(exc)}"
+        classes = "form-box -caution" if self.caution else "form-box"
+        with Vertical(id="form-box", classes=classes):
+            yield Static(self.heading, id="form-title", classes="form-title", markup=False)
+            if self.caution:
+                yield Caution()
+            with VerticalScroll(id="form-fields"):
+                for spec in specs:
+                    yield FieldRow(spec)
+            if self.caution:
+                yield TickBox("I have made it safe as above (space ticks)", id="ack", compact=True)
+            yield Static("", id="form-msg", classes="form-msg", markup=False)
+            with Horizontal(classes="form-buttons"):
+                yield Button("Save  ctrl+s", id="save", variant="primary", compact=True)
+                yield Button("Cancel  esc", id="cancel", compact=True)
+
+    def on_mount(self) -> None:
+        for inp in self.query(Input):
+            inp.cursor_blink = self.sb.cursor_blink
+        if self.first:
+            self.query_one(f"#f-{self.first}").focus()
+        if self.load_problem:
+            self.say(self.load_problem)
+
+    def rows(self) -> list[FieldRow]:
+        return list(self.query(FieldRow))
+
+    def values(self) -> dict[str, Any]:
+        return {row.spec.name: row.value() for row in self.rows()}
+
+    def say(self, text: str, bad: bool = True) -> None:
+        msg = self.query_one("#form-msg", Static)
+        msg.update(text)
+        msg.set_class(bad, "-bad")
+
+    # ---- saving ----
+
+    def on_input_submitted(self, event: Input.Submitted) -> None:
+        event.stop()
+        self.action_save()
+
+    def on_button_pressed(self, event: Button.Pressed) -> None:
+        event.stop()
+        if event.button.id == "save":
+            self.action_save()
+        else:
+            self.action_cancel()
+
+    def action_cancel(self) -> None:
+        self.dismiss(None)
+
+    def action_save(self) -> None:
+        bad = [(row, p) for row in self.rows() if (p := row.check_value(force=True))]
+        if bad:
+            bad[0][0].control.focus()
+            names = ", ".join(row.spec.label for row, _ in bad)
+            self.say(f"Not saved: check {names}.")
+            return
+        if self.caution and not self.query_one("#ack", Checkbox).value:
+            self.query_one("#ack", Checkbox).focus()
+            self.say("Not saved: tick the safety acknowledgement first.")
+            return
+        try:
+            entry = self.build(self.values())
+            saved = journal.log(self.sb.book, entry)
+        except (BookError, sqlite3.Error, OSError) as exc:
+            self.say("Not saved: " + write_problem(exc))
+            return
+        self.saved = saved
+        self.dismiss(Saved(saved, self.before))

@@ -1,0 +1,62 @@
+"""Breather swap: why, and how spent the old cartridge was."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from store.entries import BreatherSwap, Entry
+from store.journal import BREATHER_REASONS
+from store.register import Breather, find, list_all
+
+from ..widgets.field import Spec
+from .base import EntryForm
+from .validators import TagValidator
+
+REASON_WORDS = {
+    "interval": "planned interval",
+    "spent": "desiccant spent",
+    "damage": "damaged",
+    "other": "other (say in note)",
+}
+
+
+class BreatherForm(EntryForm):
+    heading = "Breather swap"
+    caution = True
+
+    def specs(self) -> list[Spec]:
+        book = self.sb.book
+        breather = find(book, Breather, self.target) if self.target else None
+        if breather is not None:
+            self.heading = (
+                f"Breather swap on {breather.tag} ({breather.kind}, unit {breather.unit})"
+            )
+        self.first = "reason" if self.target else "breather"
+        return [
+            Spec(
+                "breather",
+                "Breather",
+                breather.tag if breather else self.target,
+                [TagValidator(lambda: [b.tag for b in list_all(book, Breather)], "breather")],
+                required=True,
+            ),
+            Spec(
+                "reason",
+                "Why",
+                self.preset.get("reason", "interval"),
+                options=[(REASON_WORDS[r], r) for r in BREATHER_REASONS],
+                required=True,
+            ),
+            Spec("condition", "Old cartridge", "", hint="e.g. 2/3 spent, 80 %, fresh"),
+            *self.common_specs(),
+        ]
+
+    def build(self, v: dict[str, Any]) -> Entry:
+        return BreatherSwap(
+            breather=v["breather"],
+            reason=v["reason"],
+            condition=v["condition"],
+            at=self.when(v["time"]),
+            by=v["by"],
+            note=v["note"],
+        )

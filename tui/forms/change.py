@@ -1,0 +1,67 @@
+"""Element change: why it came out, how it looked, what went in."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from store.entries import ElementChange, Entry
+from store.journal import CHANGE_REASONS
+from store.register import FilterPosition, find, list_all
+
+from ..widgets.field import Spec
+from .base import EntryForm
+from .validators import NumberValidator, TagValidator
+
+REASON_WORDS = {
+    "limit": "ΔP at change limit",
+    "indicator": "indicator tripped",
+    "interval": "planned interval",
+    "bypass": "was in bypass",
+    "damage": "damaged / leaking",
+    "other": "other (say in note)",
+}
+
+
+class ChangeForm(EntryForm):
+    heading = "Element change"
+    caution = True
+
+    def specs(self) -> list[Spec]:
+        book = self.sb.book
+        position = find(book, FilterPosition, self.target) if self.target else None
+        if position is not None:
+            self.heading = f"Element change on {position.tag} ({position.element or 'element'})"
+        self.first = "reason" if self.target else "filter"
+        reason = "limit" if position is None or position.gauge else "indicator"
+        return [
+            Spec(
+                "filter",
+                "Filter",
+                position.tag if position else self.target,
+                [TagValidator(lambda: [f.tag for f in list_all(book, FilterPosition)], "filter")],
+                required=True,
+            ),
+            Spec(
+                "reason",
+                "Why",
+                self.preset.get("reason", reason),
+                options=[(REASON_WORDS[r], r) for r in CHANGE_REASONS],
+                required=True,
+            ),
+            Spec("condition", "Old element", "", hint="as found: caked, torn, metal…"),
+            Spec("batch", "New batch", "", hint="batch or lot of the new one"),
+            Spec("hours", "Hour meter h", "", [NumberValidator(0, 10_000_000, "h")]),
+            *self.common_specs(),
+        ]
+
+    def build(self, v: dict[str, Any]) -> Entry:
+        return ElementChange(
+            filter=v["filter"],
+            reason=v["reason"],
+            condition=v["condition"],
+            batch=v["batch"],
+            hours=float(v["hours"].replace(",", ".")) if v["hours"] else None,
+            at=self.when(v["time"]),
+            by=v["by"],
+            note=v["note"],
+        )

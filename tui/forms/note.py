@@ -1,0 +1,39 @@
+"""Note: free text, on a unit or on the plant as a whole."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from store.entries import Entry, Note
+from store.register import Unit, find, list_all
+
+from ..widgets.field import Spec
+from .base import EntryForm
+from .validators import TagValidator
+
+
+class NoteForm(EntryForm):
+    heading = "Note"
+
+    def specs(self) -> list[Spec]:
+        book = self.sb.book
+        unit = find(book, Unit, self.target) if self.target else None
+        if unit is not None:
+            self.heading = f"Note on {unit.tag}"
+        self.first = "note"
+        specs = [
+            Spec(
+                "unit",
+                "Unit",
+                unit.tag if unit else "",
+                [TagValidator(lambda: [u.tag for u in list_all(book, Unit)], "unit")],
+                hint="blank: the whole plant",
+            ),
+            *self.common_specs(),
+        ]
+        specs[-1].required = True  # the note itself
+        specs[-1].hint = "what you saw or did"
+        return specs
+
+    def build(self, v: dict[str, Any]) -> Entry:
+        return Note(unit=v["unit"] or None, at=self.when(v["time"]), by=v["by"], note=v["note"])

@@ -1,0 +1,87 @@
+"""Reading: a ΔP off the gauge and/or the indicator's state, with the fluid temperature."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from store.entries import Entry, Reading
+from store.errors import BookError
+from store.register import FilterPosition, find, list_all
+from store.sheets import last_temp_c
+from store.units import parse_pressure_bar, parse_temperature_c
+
+from ..widgets import fmt
+from ..widgets.field import Spec
+from .base import EntryForm
+from .validators import DpValidator, NumberValidator, TagValidator, TemperatureValidator
+
+INDICATOR_CHOICES = [("clean", "clean"), ("dirty", "dirty"), ("in bypass", "bypass")]
+
+
+class ReadingForm(EntryForm):
+    heading = "Reading: ΔP and temperature"
+
+    def specs(self) -> list[Spec]:
+        book, prefs = self.sb.book, self.sb.prefs
+        position = find(book, FilterPosition, self.target) if self.target else None
+        temp_hint, temp_text = "", ""
+        if position is not None:
+            last = last_temp_c(book, position.unit)
+            if last is not None:
+                temp_text, temp_hint = fmt.input_temperature(last, prefs), "last logged"
+            self.heading = f"Reading on {position.tag} ({position.kind}, unit {position.unit})"
+        if not self.target:
+            self.first = "filter"
+        elif position is not None and not position.gauge:
+            self.first = "indicator"
+        else:
+            self.first = "dp"
+        return [
+            Spec(
+                "filter",
+                "Filter",
+                position.tag if position else self.target,
+                [TagValidator(lambda: [f.tag for f in list_all(book, FilterPosition)], "filter")],
+                required=True,
+            ),
+            Spec(
+                "dp",
+                f"ΔP {fmt.p_unit(prefs)}",
+                self.preset.get("dp", ""),
+                [DpValidator(prefs.pressure)],
+                hint="as read off the gauge",
+            ),
+            Spec(
+                "temp",
+                f"Temp {fmt.t_unit(prefs)}",
+                self.preset.get("temp", temp_text),
+                [TemperatureValidator(prefs.temperature)],
+                hint=temp_hint or "fluid temperature",
+            ),
+            Spec("indicator", "Indicator", "", options=INDICATOR_CHOICES),
+            Spec(
+                "flow",
+                "Flow L/min",
+                "",
+                [NumberValidator(0.001, 100_000, "L/min")],
+                hint="blank: normal flow",
+            ),
+            Spec("hours", "Hour meter h", "", [NumberValidator(0, 10_000_000, "h")]),
+            *self.common_specs(),
+        ]
+
+    def build(self, v: dict[str, Any]) -> Entry:
+        prefs = self.sb.prefs
+        if not v["dp"] and not v["indicator"]:
+            raise BookError("give the ΔP, or the indicator's state")
+        return Reading(
+            filter=v["filter"],
+            dp_bar=parse_pressure_bar(v["dp"], prefs.pressure) if v["dp"] else None,
+            indicator=v["indicator"] or None,
+            temp_c=parse_temperature_c(v["temp"], prefs.temperature) if v["temp"] else None,
+            flow_lpm=float(v["flow"].replace(",", ".")) if v["flow"] else None,
+            hours=float(v["hours"].replace(",", ".")) if v["hours"] else None,
+            at=self.when(v["time"]),
+            by=v["by"],
+            note=v["note"],
+        )

@@ -1,0 +1,272 @@
+"""Add or edit one register row: technician, fluid, unit, filter position or breather.
+
+Quantities are typed in the user's units and stored canonical. Every change goes through
+`store.register.add/update`, which records who changed what, old -> new.
+"""
+
+from __future__ import annotations
+
+import sqlite3
+from dataclasses import MISSING, fields
+from typing import Any
+
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.screen import ModalScreen
+from textual.widgets import Button, Input, Static
+
+from store import register
+from store.errors import BookError
+from store.register import Breather, FilterPosition, Fluid, Technician, Unit
+from store.schema import FILTER_KINDS
+from store.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
+
+from ..widgets import fmt
+from ..widgets.field import FieldRow, Spec
+from .base import write_problem
+from .validators import (
+    CodeValidator,
+    DpValidator,
+    NewTagValidator,
+    NumberValidator,
+    TemperatureValidator,
+    VolumeValidator,
+)
+
+WHAT = {
+    Technician: "technician",
+    Fluid: "fluid",
+    Unit: "unit",
+    FilterPosition: "filter position",
+    Breather: "breather",
+}
+
+LABELS = {
+    "tag": "Tag",
+    "name": "Name",
+    "active": "Active",
+    "iso_vg": "ISO VG",
+    "nu40_cst": "ν40 mm²/s",
+    "nu100_cst": "ν100 mm²/s",
+    "vi": "Visc. index",
+    "density_kg_l": "Density kg/L",
+    "area": "Area / line",
+    "fluid": "Fluid",
+    "hour_meter": "Hour meter",
+    "target_code": "Target code",
+    "unit": "Unit",
+    "kind": "Kind",
+    "element": "Element part",
+    "rating_um": "Rating µm",
+    "rating_basis": "Rating basis",
+    "beta_ratio": "β ratio",
+    "rated_flow_lpm": "Rated L/min",
+    "normal_flow_lpm": "Normal L/min",
+    "gauge": "Has ΔP gauge",
+    "reading_interval_h": "Read every h",
+    "swap_interval_d": "Swap every d",
+}
+HINTS = {
+    "limit_bar": "indicator trip point",
+    "bypass_bar": "bypass cracking ΔP",
+    "clean_bar": "new element at reference",
+    "coldest_start_c": "coldest expected start",
+    "target_code": "ISO 4406, e.g. 17/15/12",
+    "normal_flow_lpm": "blank: readings not flow-corrected",
+    "iso_vg": "ISO 3448 grade",
+}
+NUMBER_RANGES = {
+    "iso_vg": (2, 3200, "", True),
+    "nu40_cst": (1, 100_000, "mm²/s", False),
+    "nu100_cst": (1, 10_000, "mm²/s", False),
+    "vi": (-100, 500, "", False),
+    "density_kg_l": (0.5, 2.0, "kg/L", False),
+    "rating_um": (0.1, 5000, "µm", False),
+    "beta_ratio": (1, 1e6, "", False),
+    "rated_flow_lpm": (0.001, 100_000, "L/min", False),
+    "normal_flow_lpm": (0.001, 100_000, "L/min", False),
+    "reading_interval_h": (1, 100_000, "h", False),
+    "swap_interval_d": (1, 10_000, "d", False),
+}
+
+
+class RegisterForm(ModalScreen[Any]):
+    """Dismisses with the saved record (or None on Esc)."""
+
+    BINDINGS = [
+        Binding("ctrl+s", "save", "Save", id="form-save"),
+        Binding("escape", "cancel", "Cancel", id="form-cancel"),
+    ]
+
+    def __init__(self, cls: type, record: Any = None) -> None:
+        super().__init__()
+        self.cls = cls
+        self.record = record
+
+    @property
+    def sb(self) -> Any:
+        return self.app
+
+    def specs(self) -> list[Spec]:
+        book, prefs = self.sb.book, self.sb.prefs
+        rec = self.record
+        out = []
+        for f in fields(self.cls):
+            name = f.name
+            if rec is not None:
+                current = getattr(rec, name)
+            else:
+                current = None if f.default is MISSING else f.default
+            label = LABELS.get(name, name)
+            spec = Spec(
+                name, label, "" if current is None else str(current), hint=HINTS.get(name, "")
+            )
+            if name == "tag":
+                spec.required = True
+                spec.disabled = rec is not None
+                if rec is None:
+                    spec.validators = [
+                        NewTagValidator(
+                            lambda: register.tags(book, register.TABLES[self.cls]),
+                            WHAT[self.cls],
+                        )
+                    ]
+                    if self.cls in (FilterPosition, Breather):
+                        other = "breathers" if self.cls is FilterPosition else "filters"
+                        mine = register.TABLES[self.cls]
+                        spec.validators = [
+                            NewTagValidator(
+                                lambda m=mine, o=other: (
+                                    register.tags(book, m) + register.tags(book, o)
+                                ),
+                                WHAT[self.cls],
+                            )
+                        ]
+            elif name in register.BOOL_FIELDS:
+                spec.check = bool(current)
+            elif name.endswith("_bar"):
+                spec.label = f"{name.removesuffix('_bar').capitalize()} {fmt.p_unit(prefs)}"
+                spec.value = fmt.input_pressure(current, prefs)
+                spec.validators = [DpValidator(prefs.pressure)]
+            elif name.endswith("_temp_c") or name == "coldest_start_c":
+                base = {
+                    "normal_temp_c": "Normal",
+                    "max_temp_c": "Limit",
+                    "coldest_start_c": "Cold start",
+                }
+                spec.label = f"{base[name]} {fmt.t_unit(prefs)}"
+                spec.value = fmt.input_temperature(current, prefs)
+                spec.validators = [TemperatureValidator(prefs.temperature)]
+                spec.required = True
+            elif name == "reservoir_l":
+                spec.label = f"Reservoir {fmt.v_unit(prefs)}"
+                spec.value = fmt.input_volume(current, prefs)
+                spec.validators = [VolumeValidator(prefs.volume, 0.1)]
+            elif name == "target_code":
+                spec.validators = [CodeValidator()]
+            elif name in ("unit",):
+                spec.options = [
+                    (f"{u.tag} {u.name}".strip(), u.tag) for u in register.list_all(book, Unit)
+                ]
+                spec.required = True
+            elif name == "fluid":
+                spec.options = [
+                    (f"{x.tag} {x.name}".strip(), x.tag) for x in register.list_all(book, Fluid)
+                ]
+            elif name == "kind" and self.cls is FilterPosition:
+                spec.options = [(k, k) for k in FILTER_KINDS]
+                spec.required = True
+            elif name == "kind" and self.cls is Breather:
+                spec.options = [("desiccant", "desiccant"), ("plain", "plain")]
+                spec.required = True
+            elif name == "rating_basis":
+                spec.options = [("absolute", "absolute"), ("nominal", "nominal")]
+                spec.required = True
+            elif name in NUMBER_RANGES:
+                low, high, unit, integer = NUMBER_RANGES[name]
+                spec.validators = [NumberValidator(low, high, unit, integer)]
+                if name in ("reading_interval_h", "swap_interval_d"):
+                    spec.required = True
+            out.append(spec)
+        return out
+
+    def compose(self) -> ComposeResult:
+        verb = "Edit" if self.record is not None else "Add"
+        heading = f"{verb} {WHAT[self.cls]}" + (f" {self.record.tag}" if self.record else "")
+        with Vertical(id="form-box", classes="form-box"):
+            yield Static(heading, id="form-title", classes="form-title", markup=False)
+            with VerticalScroll(id="form-fields"):
+                for spec in self.specs():
+                    yield FieldRow(spec)
+            yield Static("", id="form-msg", classes="form-msg", markup=False)
+            with Horizontal(classes="form-buttons"):
+                yield Button("Save  ctrl+s", id="save", variant="primary", compact=True)
+                yield Button("Cancel  esc", id="cancel", compact=True)
+
+    def on_mount(self) -> None:
+        for inp in self.query(Input):
+            inp.cursor_blink = self.sb.cursor_blink
+        rows = [r for r in self.query(FieldRow) if not r.spec.disabled]
+        if rows:
+            rows[0].control.focus()
+
+    def say(self, text: str) -> None:
+        msg = self.query_one("#form-msg", Static)
+        msg.update(text)
+        msg.add_class("-bad")
+
+    def on_input_submitted(self, event: Input.Submitted) -> None:
+        event.stop()
+        self.action_save()
+
+    def on_button_pressed(self, event: Button.Pressed) -> None:
+        event.stop()
+        self.action_save() if event.button.id == "save" else self.action_cancel()
+
+    def action_cancel(self) -> None:
+        self.dismiss(None)
+
+    def parsed(self) -> dict[str, Any]:
+        """Field texts -> stored values (canonical units)."""
+        prefs = self.sb.prefs
+        out: dict[str, Any] = {}
+        for row in self.query(FieldRow):
+            name, value = row.spec.name, row.value()
+            if isinstance(value, bool):
+                out[name] = value
+            elif value in (None, ""):
+                out[name] = None if name not in ("name", "area", "element") else ""
+            elif name.endswith("_bar"):
+                out[name] = parse_pressure_bar(value, prefs.pressure)
+            elif name.endswith("_temp_c") or name == "coldest_start_c":
+                out[name] = parse_temperature_c(value, prefs.temperature)
+            elif name == "reservoir_l":
+                out[name] = parse_volume_l(value, prefs.volume)
+            else:
+                out[name] = register.parse_field(self.cls, name, value.replace(",", "."))
+        return out
+
+    def action_save(self) -> None:
+        bad = [(row, p) for row in self.query(FieldRow) if (p := row.check_value(force=True))]
+        if bad:
+            bad[0][0].control.focus()
+            self.say("Not saved: check " + ", ".join(r.spec.label for r, _ in bad) + ".")
+            return
+        by = self.sb.tech
+        try:
+            values = self.parsed()
+            if self.record is None:
+                saved = register.add(self.sb.book, self.cls(**values), by=by)
+            else:
+                changes = {
+                    k: v for k, v in values.items() if k != "tag" and getattr(self.record, k) != v
+                }
+                if not changes:
+                    self.dismiss(None)
+                    return
+                saved = register.update(self.sb.book, self.cls, self.record.tag, changes, by=by)
+        except (BookError, sqlite3.Error, OSError) as exc:
+            self.say("Not saved: " + write_problem(exc))
+            return
+        self.dismiss(saved)

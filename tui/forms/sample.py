@@ -1,0 +1,57 @@
+"""Sample result: particle counts (or the ISO 4406 code) and water content."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from store.entries import Entry, Sample
+from store.register import Unit, find, list_all
+
+from ..widgets.field import Spec
+from .base import EntryForm
+from .validators import CodeValidator, NumberValidator, TagValidator
+
+
+def _num(text: str) -> float | None:
+    return float(text.replace(",", ".")) if text else None
+
+
+class SampleForm(EntryForm):
+    heading = "Fluid sample result"
+
+    def specs(self) -> list[Spec]:
+        book = self.sb.book
+        unit = find(book, Unit, self.target) if self.target else None
+        if unit is not None:
+            target = f", target {unit.target_code}" if unit.target_code else ""
+            self.heading = f"Sample result for {unit.tag}{target}"
+        self.first = "code" if unit else "unit"
+        count = NumberValidator(0, 1e9, "/mL")
+        return [
+            Spec(
+                "unit",
+                "Unit",
+                unit.tag if unit else self.target,
+                [TagValidator(lambda: [u.tag for u in list_all(book, Unit)], "unit")],
+                required=True,
+            ),
+            Spec("code", "ISO 4406 code", "", [CodeValidator()], hint="e.g. 18/16/13"),
+            Spec("c4", "≥4 µm(c) /mL", "", [count], hint="or give the counts"),
+            Spec("c6", "≥6 µm(c) /mL", "", [count]),
+            Spec("c14", "≥14 µm(c) /mL", "", [count]),
+            Spec("water", "Water ppm", "", [NumberValidator(0, 1_000_000, "ppm")]),
+            *self.common_specs(),
+        ]
+
+    def build(self, v: dict[str, Any]) -> Entry:
+        return Sample(
+            unit=v["unit"],
+            code=v["code"] or None,
+            c4_per_ml=_num(v["c4"]),
+            c6_per_ml=_num(v["c6"]),
+            c14_per_ml=_num(v["c14"]),
+            water_ppm=_num(v["water"]),
+            at=self.when(v["time"]),
+            by=v["by"],
+            note=v["note"],
+        )

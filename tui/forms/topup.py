@@ -1,0 +1,79 @@
+"""Top-up: how much oil went in, which oil, and how it was filtered on the way."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from store.entries import Entry, TopUp
+from store.errors import BookError
+from store.register import Fluid, Unit, find, list_all
+from store.units import parse_volume_l
+
+from ..widgets import fmt
+from ..widgets.field import Spec
+from .base import EntryForm
+from .validators import NumberValidator, TagValidator, VolumeValidator
+
+HOW = [("through a filter cart", "filtered"), ("unfiltered (from the drum)", "unfiltered")]
+
+
+class TopUpForm(EntryForm):
+    heading = "Top-up"
+
+    def specs(self) -> list[Spec]:
+        book, prefs = self.sb.book, self.sb.prefs
+        unit = find(book, Unit, self.target) if self.target else None
+        if unit is not None:
+            self.heading = f"Top-up on {unit.tag}" + (f" ({unit.name})" if unit.name else "")
+        self.first = "volume" if unit else "unit"
+        fluids = list_all(book, Fluid)
+        return [
+            Spec(
+                "unit",
+                "Unit",
+                unit.tag if unit else self.target,
+                [TagValidator(lambda: [u.tag for u in list_all(book, Unit)], "unit")],
+                required=True,
+            ),
+            Spec(
+                "volume",
+                f"Volume {fmt.v_unit(prefs)}",
+                "",
+                [VolumeValidator(prefs.volume)],
+                required=True,
+            ),
+            Spec(
+                "fluid",
+                "Fluid",
+                (unit.fluid or "") if unit else "",
+                options=[(f"{f.tag} {f.name}".strip(), f.tag) for f in fluids],
+                hint="the unit's own fluid",
+            ),
+            Spec("how", "Went in", "", options=HOW, required=True),
+            Spec(
+                "filtered",
+                "Cart rating µm",
+                "",
+                [NumberValidator(0.1, 1000, "µm")],
+                hint="finest stage of the cart",
+            ),
+            Spec("hours", "Hour meter h", "", [NumberValidator(0, 10_000_000, "h")]),
+            *self.common_specs(),
+        ]
+
+    def build(self, v: dict[str, Any]) -> Entry:
+        filtered = None
+        if v["how"] == "filtered":
+            if not v["filtered"]:
+                raise BookError("give the cart's rating in µm, or choose 'unfiltered'")
+            filtered = float(v["filtered"].replace(",", "."))
+        return TopUp(
+            unit=v["unit"],
+            volume_l=parse_volume_l(v["volume"], self.sb.prefs.volume),
+            fluid=v["fluid"] or None,
+            filtered_um=filtered,
+            hours=float(v["hours"].replace(",", ".")) if v["hours"] else None,
+            at=self.when(v["time"]),
+            by=v["by"],
+            note=v["note"],
+        )

@@ -1,0 +1,82 @@
+"""Void: cancel a mistaken entry. It stays in the book, marked, with the reason."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from textual.validation import ValidationResult, Validator
+from textual.widgets import Input, Static
+
+from store.entries import Entry, Void
+from store.errors import BookError
+from store.journal import find_entry
+
+from ..render import describe
+from ..widgets import fmt
+from ..widgets.field import Spec
+from .base import EntryForm
+
+
+class EntryIdValidator(Validator):
+    """The first 6 or more characters of an entry id that the book knows."""
+
+    def __init__(self, form: VoidForm) -> None:
+        super().__init__()
+        self.form = form
+
+    def validate(self, value: str) -> ValidationResult:
+        try:
+            entry = find_entry(self.form.sb.book, value)
+        except BookError as exc:
+            return self.failure(str(exc))
+        if entry.kind == "void":
+            return self.failure("a void cannot be voided")
+        if entry.voided:
+            return self.failure("voided already")
+        return self.success()
+
+
+class VoidForm(EntryForm):
+    heading = "Void an entry (it stays in the book, marked void)"
+
+    def specs(self) -> list[Spec]:
+        self.first = "reason" if self.target else "entry"
+        specs = [
+            Spec(
+                "entry",
+                "Entry id",
+                self.target,
+                [EntryIdValidator(self)],
+                required=True,
+                hint="first 6+ characters",
+            ),
+            Spec("reason", "Why void", "", required=True, hint="e.g. wrong filter tag"),
+            *self.common_specs(),
+        ]
+        return [s for s in specs if s.name != "note"]
+
+    def on_mount(self) -> None:
+        super().on_mount()
+        self.query_one("#form-fields").mount(Static("", id="void-what", markup=False), before=0)
+        self.describe_target(self.target)
+
+    def on_input_changed(self, event: Input.Changed) -> None:
+        if event.input.id == "f-entry":
+            self.describe_target(event.value)
+
+    def describe_target(self, text: str) -> None:
+        try:
+            entry = find_entry(self.sb.book, text)
+        except BookError:
+            line = "which entry? (the shift log shows the ids)"
+        else:
+            local = self.sb.book.local_zone()
+            line = (
+                f"{entry.id[:8]} {entry.kind} {entry.target or entry.unit or ''} "
+                f"{fmt.stamp(entry.at, local)} by {entry.by}: {describe(entry, self.sb.prefs)}"
+            )
+        if self.is_mounted and self.query("#void-what"):
+            self.query_one("#void-what", Static).update(line)
+
+    def build(self, v: dict[str, Any]) -> Entry:
+        return Void(voids=v["entry"], note=v["reason"], at=self.when(v["time"]), by=v["by"])

@@ -1,0 +1,124 @@
+"""What the app's full screens share: reading the book in a worker thread, and the entry keys."""
+
+from __future__ import annotations
+
+import functools
+import sqlite3
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any, TypeVar
+
+from textual.binding import Binding
+from textual.screen import Screen
+from textual.worker import get_current_worker
+
+from store.book import Book, open_book
+from store.errors import BookError
+
+if TYPE_CHECKING:
+    from ..app import SumpbookApp
+
+
+F = TypeVar("F", bound=Callable[..., Any])
+PROBLEMS = (BookError, sqlite3.Error, OSError)
+
+
+def guarded(method: F) -> F:
+    """Show a book or file problem as a notification instead of stopping the app."""
+
+    @functools.wraps(method)
+    def wrapper(self: Any, *args: Any, **kwargs: Any) -> Any:
+        try:
+            return method(self, *args, **kwargs)
+        except PROBLEMS as exc:
+            self.app.notify(str(exc) or type(exc).__name__, severity="error", timeout=8)
+            return None
+
+    return wrapper  # type: ignore[return-value]
+
+
+@dataclass(frozen=True)
+class Target:
+    """What the cursor is on: a filter, breather or unit tag, and its unit."""
+
+    what: str
+    tag: str
+    unit: str
+
+
+ENTRY_BINDINGS = [
+    Binding("r", "entry('reading')", "Read", tooltip="Log a ΔP reading", id="log-reading"),
+    Binding("c", "entry('change')", "Change", tooltip="Log an element change", id="log-change"),
+    Binding("b", "entry('breather')", "Swap", tooltip="Log a breather swap", id="log-breather"),
+    Binding("o", "entry('topup')", "Top-up", tooltip="Log an oil top-up", id="log-topup"),
+    Binding("s", "entry('sample')", "Sample", tooltip="Log a sample result", id="log-sample"),
+    Binding("n", "entry('note')", "Note", tooltip="Write a note", id="log-note"),
+]
+
+
+def long_name(binding: Binding) -> str:
+    """The name of an action for the help screen and the command palette."""
+    return binding.tooltip or binding.description
+
+
+class BookScreen(Screen):
+    """A screen that shows the book; it reloads whenever it comes back to the top."""
+
+    loaded = False  # set once the first load has been shown (tests wait on it)
+
+    @property
+    def sb(self) -> SumpbookApp:
+        return self.app  # type: ignore[return-value]
+
+    def on_screen_resume(self) -> None:
+        self.reload()
+
+    def reload(self) -> None:
+        """Start reading; subclasses override."""
+
+    def read_in_thread(
+        self,
+        read: Callable[[Book], Any],
+        show: Callable[[Any], None],
+        group: str,
+    ) -> None:
+        """Run `read` on a connection of its own in a worker thread, then `show` the result.
+
+        A failure is shown as a notification, never as a traceback.
+        """
+        path = self.sb.book.path
+
+        def job() -> None:
+            worker = get_current_worker()
+            try:
+                with open_book(path, create=False) as book:
+                    result = read(book)
+            except Exception as exc:  # noqa: BLE001 - shown to the user, not raised
+                if not worker.is_cancelled:
+                    self.app.call_from_thread(self.failed, exc)
+                return
+            if not worker.is_cancelled:
+                self.app.call_from_thread(show, result)
+
+        self.run_worker(job, thread=True, exclusive=True, group=group, exit_on_error=False)
+
+    def failed(self, exc: BaseException) -> None:
+        self.loaded = True
+        self.notify(f"Could not read the logbook: {exc}", severity="error", timeout=8)
+
+    # ---- entry keys (screens that mix these in define `target()`) ----
+
+    def target(self) -> Target | None:
+        return None
+
+    def action_entry(self, kind: str) -> None:
+        t = self.target()
+        tag = ""
+        if t is not None:
+            if kind in ("reading", "change") and t.what == "filter":
+                tag = t.tag
+            elif kind == "breather" and t.what == "breather":
+                tag = t.tag
+            elif kind in ("topup", "sample", "note"):
+                tag = t.unit
+        self.sb.open_form(kind, tag)

@@ -1,0 +1,201 @@
+"""Filter sheet: the chart of this element, what is predicted and why, the cold-start check,
+and the history of every element the housing has had."""
+
+from __future__ import annotations
+
+import math
+
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import VerticalScroll
+from textual.widgets import DataTable, Header, Static
+
+from store.sheets import FilterSheet, filter_sheet
+
+from ..widgets import fmt
+from ..widgets.banner import DemoBanner
+from ..widgets.keystrip import KeyStrip
+from ..widgets.plot import LEGEND, FilterPlot
+from .common import ENTRY_BINDINGS, BookScreen, Target
+
+BASIS_WORDS = {
+    "trend": "the trend of this element's readings",
+    "earlier-curves": "this element's readings against earlier elements' curves",
+    "service-life": "how long earlier elements lasted (Weibull)",
+    "interval": "the reading interval only",
+    "none": "no basis yet",
+}
+
+
+class FilterSheetScreen(BookScreen):
+    AUTO_FOCUS = "#filter-body"
+    BINDINGS = [
+        Binding("escape", "back", "Back", tooltip="Back to the list", id="back"),
+        *ENTRY_BINDINGS,
+        Binding("u", "unit_sheet", "Unit", tooltip="Open the unit sheet", id="unit-sheet"),
+    ]
+
+    def __init__(self, tag: str) -> None:
+        super().__init__()
+        self.tag = tag
+        self.sheet: FilterSheet | None = None
+
+    def compose(self) -> ComposeResult:
+        yield Header(icon="≋")
+        yield DemoBanner()
+        yield Static(f"FILTER {self.tag}", id="sheet-title", classes="sheet-title", markup=False)
+        yield Static("", id="reference", markup=False)
+        with VerticalScroll(id="filter-body"):
+            yield FilterPlot(id="plot")
+            yield Static(LEGEND, id="legend", markup=False)
+            yield Static("", id="forecast", markup=False)
+            yield Static("", id="cold", markup=False)
+            yield Static("", id="life", markup=False)
+            yield Static("", id="notes", markup=False)
+            yield Static("Element history (newest first)", classes="section", markup=False)
+            yield DataTable(id="elements", cursor_type="row")
+        yield KeyStrip()
+
+    def on_mount(self) -> None:
+        p = fmt.p_unit(self.sb.prefs)
+        self.query_one("#elements", DataTable).add_columns(
+            "Fitted",
+            "Out",
+            "Life",
+            "Why out",
+            "Reached limit",
+            "Readings",
+            f"Peak ref {p}",
+            "Found",
+            "Next batch",
+        )
+        self.query_one("#filter-body").focus()
+
+    def reload(self) -> None:
+        tag = self.tag
+        self.read_in_thread(lambda b: filter_sheet(b, tag), self.show_sheet, "filter-sheet")
+
+    def action_reload(self) -> None:
+        self.reload()
+
+    def action_back(self) -> None:
+        self.app.pop_screen()
+
+    def action_unit_sheet(self) -> None:
+        if self.sheet is not None:
+            self.sb.open_sheet("unit", self.sheet.unit.tag, self.sheet.unit.tag)
+
+    def target(self) -> Target | None:
+        unit = self.sheet.unit.tag if self.sheet else ""
+        return Target("filter", self.tag, unit)
+
+    def show_sheet(self, sheet: FilterSheet) -> None:
+        self.sheet = sheet
+        prefs, local = self.sb.prefs, self.sb.book.local_zone()
+        pos, st = sheet.position, sheet.status
+        rating = ""
+        if pos.rating_um:
+            rating = f" · {pos.rating_um:g} µm {pos.rating_basis}"
+            if pos.beta_ratio:
+                rating += f", β {pos.beta_ratio:g}"
+        self.query_one("#sheet-title", Static).update(
+            f"FILTER {pos.tag} · {pos.kind} on {pos.unit}"
+            + (f" · element {pos.element}" if pos.element else "")
+            + rating
+            + ("" if pos.gauge else " · indicator only")
+        )
+        self.query_one("#reference", Static).update(
+            f"Ref {st.reference} · limit/bypass/clean "
+            + "/".join(
+                fmt.pressure(v, prefs, unit=False)
+                for v in (st.limit_bar, st.bypass_bar, st.clean_bar)
+            )
+            + f" {fmt.p_unit(prefs)}"
+        )
+        self.query_one(FilterPlot).show(sheet, prefs)
+
+        lines = []
+        now = (
+            f"Now: {fmt.pressure(st.dp_ref_bar, prefs)} ref"
+            + (
+                f" ({st.percent_of_limit:.0f} % of limit)"
+                if st.percent_of_limit is not None
+                else ""
+            )
+            + f" · gauge {fmt.pressure(st.dp_bar, prefs)} at {fmt.temperature(st.temp_c, prefs)}"
+            + (f" · indicator {st.indicator}" if st.indicator else "")
+            + f" · element age {fmt.age_text(st.element_age_h)}, {st.readings_since_change} readings"
+        )
+        lines.append(now)
+        if st.due is not None:
+            lines.append(f"Change due {fmt.due_text(st.due, local)}")
+        else:
+            lines.append(f"Change due: {fmt.STATE_WORDS.get(st.state, st.state)}")
+        if st.bypass_due is not None:
+            lines.append(f"Bypass would open {fmt.due_text(st.bypass_due, local)}")
+        basis = BASIS_WORDS.get(st.basis, st.basis)
+        model = st.forecast.model if st.forecast and st.forecast.model else ""
+        lines.append(f"Basis: {basis}" + (f" (model: {model})" if model else ""))
+        self.query_one("#forecast", Static).update("\n".join(lines))
+
+        cold = st.cold
+        if cold is None:
+            cold_text = "Cold start: not computed (needs a reading, the fluid and the bypass)"
+        else:
+            cold_text = (
+                f"Cold start at {fmt.temperature(cold.start_temp_c, prefs)}: ΔP would be "
+                f"{fmt.pressure(cold.dp_at_start_bar, prefs)} against a "
+                f"{fmt.pressure(cold.bypass_bar, prefs)} bypass: "
+            )
+            if cold.bypasses:
+                below = (
+                    f" below {fmt.temperature(cold.bypass_below_c, prefs)}"
+                    if cold.bypass_below_c is not None
+                    else ""
+                )
+                cold_text += f"BYPASS OPENS{below}, unfiltered oil on every cold start"
+            else:
+                cold_text += "stays shut"
+                if cold.bypass_below_c is not None and math.isfinite(cold.bypass_below_c):
+                    cold_text += (
+                        f" (it would open below {fmt.temperature(cold.bypass_below_c, prefs)})"
+                    )
+        self.query_one("#cold", Static).update(cold_text)
+
+        life = st.life
+        if life is None:
+            life_text = "Service life: not enough finished elements yet"
+        else:
+            pooled = " with like positions" if life.pooled else ""
+            life_text = (
+                f"Service life ({life.n_failed} reached the limit, {life.n_censored} taken out "
+                f"early{pooled}): 10 % reach the limit by {fmt.age_text(life.b10_h)}, half by "
+                f"{fmt.age_text(life.b50_h)}"
+            )
+        self.query_one("#life", Static).update(life_text)
+
+        notes = Text()
+        if st.flags:
+            notes.append("Flags: ")
+            notes.append_text(fmt.flag_text(st.flags))
+            notes.append("\n")
+        notes.append("\n".join(st.notes))
+        self.query_one("#notes", Static).update(notes)
+
+        table = self.query_one("#elements", DataTable)
+        table.clear()
+        for i, el in enumerate(sheet.elements):
+            table.add_row(
+                Text(fmt.day(el.fitted_at, local) if el.fitted_at else "before book"),
+                Text(fmt.day(el.removed_at, local) if el.removed_at else "in service"),
+                Text(fmt.age_text(el.life_h)),
+                Text(el.reason),
+                Text("yes" if el.reached_limit else ("–" if el.removed_at is None else "no")),
+                Text(str(el.readings)),
+                Text(fmt.pressure(el.peak_dp_ref_bar, prefs, unit=False)),
+                Text(el.condition),
+                Text(el.batch),
+                key=str(i),
+            )
+        self.loaded = True

@@ -1,0 +1,269 @@
+"""Shift log: what was logged in a shift (voided entries struck through and marked), the
+handover for the next shift, and the export to CSV in the same format as `sumpbook export`."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import VerticalScroll
+from textual.widgets import DataTable, Header, Static
+
+from store import journal
+from store.book import open_book
+from store.csvio import Prefs as CsvPrefs
+from store.csvio import write_csv
+from store.errors import BookError
+from store.sheets import ShiftLog, kind_counts, shift_log
+from store.timeutil import ShiftSpan, next_shift, previous_shift, shift_at, shift_named
+
+from ..render import describe
+from ..widgets import fmt
+from ..widgets.banner import DemoBanner
+from ..widgets.keystrip import KeyStrip
+from .ask import AskScreen
+from .common import BookScreen, Target, guarded
+from .file_prompt import FilePrompt
+
+KIND_WORDS = {
+    "reading": "reading",
+    "change": "element change",
+    "topup": "top-up",
+    "breather": "breather swap",
+    "sample": "sample",
+    "note": "note",
+    "void": "void",
+}
+
+
+def export_file(path: str, dest: Path, span: ShiftSpan, prefs: CsvPrefs) -> int:
+    """Write one shift's entries as CSV (runs in a worker thread on its own connection)."""
+    tmp = dest.with_name(dest.name + ".part")
+    with open_book(path, create=False) as book:
+        entries = journal.read(book, since=span.start, until=span.end)
+        try:
+            with tmp.open("w", encoding="utf-8", newline="") as out:
+                count = write_csv(
+                    out, book, entries, prefs, book.local_zone(), book.shift_pattern()
+                )
+            tmp.replace(dest)
+        except OSError as exc:
+            tmp.unlink(missing_ok=True)
+            raise BookError(f"cannot write {dest}: {exc.strerror or exc}") from exc
+    return count
+
+
+class ShiftLogScreen(BookScreen):
+    AUTO_FOCUS = "#shift-entries"
+    BINDINGS = [
+        Binding(
+            "left_square_bracket",
+            "step(-1)",
+            "Earlier",
+            tooltip="Previous shift",
+            id="shift-earlier",
+        ),
+        Binding("right_square_bracket", "step(1)", "Later", tooltip="Next shift", id="shift-later"),
+        Binding("full_stop", "current", "Now", tooltip="The current shift", id="shift-current"),
+        Binding("g", "go_to", "Go to", tooltip="Go to a shift by date and name", id="shift-go"),
+        Binding("x", "export", "Export", tooltip="Export this shift as CSV", id="shift-export"),
+        Binding("v", "void", "Void", tooltip="Void the selected entry", id="shift-void"),
+        Binding("n", "entry('note')", "Note", tooltip="Write a note", id="log-note"),
+    ]
+
+    def __init__(self) -> None:
+        super().__init__(id="shift")
+        self.span: ShiftSpan | None = None
+        self.shift: ShiftLog | None = None
+        self.exporting = False
+
+    def compose(self) -> ComposeResult:
+        yield Header(icon="≋")
+        yield DemoBanner()
+        yield Static("SHIFT", id="sheet-title", classes="sheet-title", markup=False)
+        yield DataTable(id="shift-entries", cursor_type="row", zebra_stripes=True)
+        with VerticalScroll(id="handover-box"):
+            yield Static("", id="handover", markup=False)
+        yield KeyStrip()
+
+    def on_mount(self) -> None:
+        self.query_one(DataTable).add_columns("Time", "Kind", "Target", "By", "What", "Id")
+        self.query_one(DataTable).focus()
+
+    def current_span(self) -> ShiftSpan:
+        book = self.sb.book
+        return shift_at(book.now(), book.shift_pattern(), book.local_zone())
+
+    @guarded
+    def reload(self) -> None:
+        if self.span is None:
+            self.span = self.current_span()
+        span = self.span
+        self.read_in_thread(lambda b: shift_log(b, span), self.show_log, "shift-log")
+
+    def action_reload(self) -> None:
+        self.reload()
+
+    @guarded
+    def action_step(self, step: int) -> None:
+        book = self.sb.book
+        pattern, local = book.shift_pattern(), book.local_zone()
+        span = self.span or self.current_span()
+        self.span = (next_shift if step > 0 else previous_shift)(span, pattern, local)
+        self.reload()
+
+    @guarded
+    def action_current(self) -> None:
+        self.span = self.current_span()
+        self.reload()
+
+    @guarded
+    def action_go_to(self) -> None:
+        book = self.sb.book
+        span = self.span or self.current_span()
+
+        def accept(label: str) -> str | None:
+            self.span = shift_named(label, book.shift_pattern(), book.local_zone())
+            return None
+
+        self.app.push_screen(
+            AskScreen(
+                "Go to shift (YYYY-MM-DD/NAME):", span.label, accept, blink=self.sb.cursor_blink
+            ),
+            lambda answer: self.reload() if answer else None,
+        )
+
+    def show_log(self, log: ShiftLog) -> None:
+        self.shift = log
+        prefs, local = self.sb.prefs, self.sb.book.local_zone()
+        span = log.span
+        voided = sum(1 for e in log.entries if e.voided)
+        now_span = self.current_span()
+        when = (
+            "this shift" if span == now_span else ("later" if span.start > now_span.start else "")
+        )
+        self.query_one("#sheet-title", Static).update(
+            f"SHIFT {span.label} · {span.start.astimezone(local):%a %H:%M}–"
+            f"{span.end.astimezone(local):%H:%M}"
+            + (f" ({when})" if when else "")
+            + f" · {len(log.entries)} entries"
+            + (f", {voided} voided" if voided else "")
+        )
+        table = self.query_one(DataTable)
+        table.clear()
+        for e in log.entries:
+            style = "strike dim" if e.voided else ""
+            kind = KIND_WORDS.get(e.kind, e.kind) + (" VOIDED" if e.voided else "")
+            table.add_row(
+                Text(fmt.stamp(e.at, local)[11:], style=style),
+                Text(kind, style=style),
+                Text(e.target or e.unit or "", style=style),
+                Text(e.by, style=style),
+                Text(describe(e, prefs) + (f" · {e.note}" if e.note else ""), style=style),
+                Text(e.id[:8], style=style),
+                key=e.id,
+            )
+        self.query_one("#handover", Static).update(self.handover_text(log))
+        self.loaded = True
+
+    def handover_text(self, log: ShiftLog) -> Text:
+        local = self.sb.book.local_zone()
+        text = Text()
+        text.append("HANDOVER\n", style="bold")
+        counts = kind_counts(log.done)
+        if counts:
+            done = ", ".join(f"{n} × {KIND_WORDS.get(k, k)}" for k, n in counts.items())
+            text.append(f"Done: {done}\n")
+            for e in log.done:
+                if e.kind in ("change", "topup", "breather", "sample"):
+                    text.append(f"  {e.target or e.unit}: {describe(e, self.sb.prefs)}\n")
+        else:
+            text.append("Done: nothing logged\n")
+        nxt = log.next_span
+        text.append(
+            f"Due by the end of the next shift ({nxt.name}, to "
+            f"{nxt.end.astimezone(local):%a %H:%M}): "
+        )
+        if log.due_next:
+            text.append("\n")
+            for r in log.due_next:
+                word = "change" if r.what == "filter" else "swap"
+                text.append(f"  {r.tag} {word} {fmt.due_cell(r.due, r.state, r.overdue, local)}\n")
+        else:
+            text.append("nothing\n")
+        text.append("Open flags: ")
+        if log.open_flags:
+            text.append("\n")
+            for r in log.open_flags:
+                text.append(f"  {r.tag}: ")
+                text.append_text(fmt.flag_text(r.flags))
+                text.append("\n")
+        else:
+            text.append("none\n")
+        return text
+
+    # ---- entry ids ----
+
+    def selected_id(self) -> str | None:
+        table = self.query_one(DataTable)
+        if not table.row_count:
+            return None
+        return str(table.coordinate_to_cell_key(table.cursor_coordinate).row_key.value)
+
+    def target(self) -> Target | None:
+        if self.shift is None:
+            return None
+        entry_id = self.selected_id()
+        for e in self.shift.entries:
+            if e.id == entry_id and e.unit:
+                return Target("unit", e.unit, e.unit)
+        return None
+
+    def action_void(self) -> None:
+        self.sb.open_form("void", self.selected_id() or "")
+
+    # ---- export ----
+
+    def default_export(self) -> Path:
+        span = self.span or self.current_span()
+        return Path.cwd() / f"shiftlog-{span.day.isoformat()}-{span.name}.csv"
+
+    @guarded
+    def action_export(self) -> None:
+        if self.exporting:
+            self.notify("An export is running already.")
+            return
+        self.app.push_screen(
+            FilePrompt("Export this shift as CSV to:", self.default_export(), self.sb.cursor_blink),
+            self.export_to,
+        )
+
+    def export_to(self, dest: Path | None) -> None:
+        if dest is None:
+            return
+        span = self.span or self.current_span()
+        p = self.sb.prefs
+        prefs = CsvPrefs(p.pressure, p.temperature, p.volume)
+        path = str(self.sb.book.path)
+        self.exporting = True
+        self.query_one(DataTable).loading = True
+
+        def job() -> None:
+            try:
+                count = export_file(path, dest, span, prefs)
+            except Exception as exc:  # noqa: BLE001 - shown to the user
+                self.app.call_from_thread(self.export_done, dest, None, exc)
+                return
+            self.app.call_from_thread(self.export_done, dest, count, None)
+
+        self.run_worker(job, thread=True, group="export", exit_on_error=False)
+
+    def export_done(self, dest: Path, count: int | None, exc: BaseException | None) -> None:
+        self.exporting = False
+        self.query_one(DataTable).loading = False
+        if exc is not None:
+            self.notify(f"Export failed: {exc}", severity="error", timeout=8)
+        else:
+            self.notify(f"{count} entries written to {dest}", timeout=6)

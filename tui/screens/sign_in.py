@@ -1,0 +1,67 @@
+"""Who is on shift: pick your initials (remembered on this laptop), or add yourself."""
+
+from __future__ import annotations
+
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Vertical
+from textual.screen import ModalScreen
+from textual.widgets import Input, OptionList, Static
+from textual.widgets.option_list import Option
+
+from store import register
+from store.errors import BookError
+from store.register import Technician
+
+
+class SignInScreen(ModalScreen[str | None]):
+    BINDINGS = [Binding("escape", "cancel", "Later", id="sign-in-cancel")]
+
+    def __init__(self, current: str = "", blink: bool = True) -> None:
+        super().__init__()
+        self.current = current
+        self.blink = blink
+
+    def compose(self) -> ComposeResult:
+        with Vertical(id="sign-box", classes="prompt-box"):
+            yield Static(
+                "Who is on shift? Pick your initials, Enter.", classes="form-title", markup=False
+            )
+            yield OptionList(id="techs")
+            yield Static(
+                "New here? Type initials and name, e.g. JK Jan Kowal, Enter:", markup=False
+            )
+            yield Input(placeholder="initials name", compact=True, id="new-tech")
+            yield Static("", id="sign-msg", classes="form-msg", markup=False)
+
+    def on_mount(self) -> None:
+        techs = [t for t in register.list_all(self.app.book, Technician) if t.active]  # type: ignore[attr-defined]
+        options = self.query_one(OptionList)
+        options.add_options([Option(f"{t.tag:<6} {t.name}", id=t.tag) for t in techs])
+        self.query_one(Input).cursor_blink = self.blink
+        if techs:
+            tags = [t.tag for t in techs]
+            options.highlighted = tags.index(self.current) if self.current in tags else 0
+            options.focus()
+        else:
+            self.query_one(Input).focus()
+
+    def on_option_list_option_selected(self, event: OptionList.OptionSelected) -> None:
+        self.dismiss(event.option.id)
+
+    def on_input_submitted(self, event: Input.Submitted) -> None:
+        event.stop()
+        initials, _, name = event.value.strip().partition(" ")
+        try:
+            tech = register.add(
+                self.app.book,  # type: ignore[attr-defined]
+                Technician(tag=initials, name=name.strip()),
+                by=initials.upper(),
+            )
+        except BookError as exc:
+            self.query_one("#sign-msg", Static).update(f"Not added: {exc}")
+            return
+        self.dismiss(tech.tag)
+
+    def action_cancel(self) -> None:
+        self.dismiss(None)

@@ -1,0 +1,265 @@
+"""Watch: every filter, breather and flagged unit in the book, most urgent first."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal
+from textual.widgets import DataTable, Header, Input, Select, Static
+
+from store import status
+from store.book import Book
+from store.register import Unit, list_all
+from store.sheets import Summary, WatchRow, row_matches, summarise, watch_rows
+from store.timeutil import shift_at
+
+from ..widgets import fmt
+from ..widgets.banner import DemoBanner
+from ..widgets.keystrip import KeyStrip
+from .common import ENTRY_BINDINGS, BookScreen, Target
+
+ALL = "*"
+
+
+@dataclass(frozen=True)
+class WatchData:
+    rows: list[WatchRow]
+    summary: Summary
+    as_of_text: str
+    shift_text: str
+    areas: list[tuple[str, str]]  # Select options
+
+
+def read_watch(book: Book) -> WatchData:
+    w = status.watch(book)
+    rows = watch_rows(w)
+    local = book.local_zone()
+    span = shift_at(w.as_of, book.shift_pattern(), local)
+    units = list_all(book, Unit)
+    areas = sorted({u.area for u in units if u.area})
+    options = [(f"area {a}", f"area:{a}") for a in areas]
+    options += [
+        (f"unit {u.tag}" + (f" {u.name}" if u.name else ""), f"unit:{u.tag}") for u in units
+    ]
+    return WatchData(
+        rows=rows,
+        summary=summarise(rows, w.as_of, span.end),
+        as_of_text=fmt.short_stamp(w.as_of, local),
+        shift_text=f"{span.name} to {span.end.astimezone(local):%H:%M}",
+        areas=options,
+    )
+
+
+class WatchScreen(BookScreen):
+    AUTO_FOCUS = "#watch-table"
+    BINDINGS = [
+        *ENTRY_BINDINGS,
+        Binding("u", "unit_sheet", "Unit", tooltip="Open the unit sheet", id="unit-sheet"),
+        Binding("slash", "find", "Find", tooltip="Find by text", id="find"),
+        Binding("a", "area", "Area", tooltip="Show one area or unit", id="area"),
+        Binding("f5", "reload", "Calc", tooltip="Recompute the watch list", id="recompute"),
+    ]
+
+    def __init__(self) -> None:
+        super().__init__(id="watch")
+        self.data: WatchData | None = None
+        self.shown: list[WatchRow] = []
+
+    def compose(self) -> ComposeResult:
+        yield Header(icon="≋")
+        yield DemoBanner()
+        with Horizontal(id="watch-bar"):
+            yield Select(
+                [("all units", ALL)],
+                value=ALL,
+                allow_blank=False,
+                compact=True,
+                id="area",
+            )
+            yield Input(placeholder="/ find: tag, unit, flag…", compact=True, id="find")
+        yield Static("reading the book…", id="summary", markup=False)
+        table: DataTable = DataTable(id="watch-table", cursor_type="row", zebra_stripes=True)
+        yield table
+        yield Static("", id="detail", markup=False)
+        yield KeyStrip()
+
+    def on_mount(self) -> None:
+        table = self.query_one(DataTable)
+        p = fmt.p_unit(self.sb.prefs)
+        for label, key in (
+            ("Tag", "tag"),
+            ("Due", "due"),
+            ("Limit", "limit"),
+            (f"ΔP ref {p}", "dp"),
+            ("Trend", "trend"),
+            ("Flags", "flags"),
+            ("Unit", "unit"),
+            ("Kind", "kind"),
+            ("Basis", "basis"),
+        ):
+            table.add_column(label, key=key)
+        table.loading = True
+        self.query_one("#find", Input).cursor_blink = self.sb.cursor_blink
+        table.focus()
+
+    # ---- loading ----
+
+    def reload(self) -> None:
+        self.query_one("#summary", Static).update("recomputing…")
+        self.read_in_thread(read_watch, self.show_data, "watch")
+
+    def action_reload(self) -> None:
+        self.reload()
+
+    def show_data(self, data: WatchData) -> None:
+        self.data = data
+        self.sb.remember_rows(data.rows)
+        area = self.query_one("#area", Select)
+        current = area.value
+        with self.prevent(Select.Changed):
+            area.set_options([("all units", ALL), *data.areas])
+            values = [v for _, v in data.areas]
+            area.value = current if current in values else ALL
+        self.fill()
+        self.query_one(DataTable).loading = False
+        self.loaded = True
+
+    # ---- the table ----
+
+    def visible(self) -> list[WatchRow]:
+        if self.data is None:
+            return []
+        choice = self.query_one("#area", Select).value
+        text = self.query_one("#find", Input).value
+        rows = self.data.rows
+        if isinstance(choice, str) and choice.startswith("area:"):
+            rows = [r for r in rows if r.area == choice[5:]]
+        elif isinstance(choice, str) and choice.startswith("unit:"):
+            rows = [r for r in rows if r.unit == choice[5:]]
+        if text.strip():
+            rows = [r for r in rows if row_matches(r, text)]
+        return rows
+
+    def fill(self) -> None:
+        table = self.query_one(DataTable)
+        keep = self.current_tag()
+        table.clear()
+        prefs, local = self.sb.prefs, self.sb.book.local_zone()
+        self.shown = self.visible()
+        for r in self.shown:
+            urgent = "bold" if r.tier <= 1 else ""
+            due = fmt.due_cell(r.due, r.state, r.overdue, local)
+            if r.what == "filter" and not r.gauge and r.due is None and not r.overdue:
+                due = "by indicator"
+            table.add_row(
+                Text(r.tag, style=urgent),
+                Text(due, style=urgent),
+                fmt.limit_bar(r.percent_of_limit),
+                Text(fmt.pressure(r.dp_ref_bar, prefs) if r.what == "filter" else ""),
+                Text(fmt.sparkline(r.trend_bar, r.limit_bar)),
+                fmt.flag_text(r.flags),
+                Text(r.unit),
+                Text(fmt.KIND_SHORT.get(r.kind, r.kind) if r.what != "breather" else "breather"),
+                Text(r.basis),
+                key=r.tag,
+            )
+        if keep and any(r.tag == keep for r in self.shown):
+            table.move_cursor(row=table.get_row_index(keep))
+        self.show_summary()
+        self.show_detail()
+
+    def show_summary(self) -> None:
+        data = self.data
+        if data is None:
+            return
+        s = data.summary
+        text = Text()
+        for count, word, loud in (
+            (s.overdue, "overdue", True),
+            (s.due_this_shift, "due this shift", True),
+            (s.due_this_week, "in 7 days", False),
+            (s.urgent, "urgent", True),
+        ):
+            text.append(f"{count} {word}", style="bold reverse" if count and loud else "bold")
+            text.append(" · ")
+        if len(self.shown) != len(data.rows):
+            text.append(f"{len(self.shown)} of {len(data.rows)} shown · ")
+        text.append(f"as of {data.as_of_text}, {data.shift_text}")
+        self.query_one("#summary", Static).update(text)
+
+    def current(self) -> WatchRow | None:
+        table = self.query_one(DataTable)
+        if not self.shown or table.cursor_row is None or table.cursor_row >= len(self.shown):
+            return None
+        return self.shown[table.cursor_row]
+
+    def current_tag(self) -> str | None:
+        row = self.current()
+        return row.tag if row else None
+
+    def show_detail(self) -> None:
+        row = self.current()
+        detail = self.query_one("#detail", Static)
+        if row is None:
+            detail.update("Nothing to show. t: type or scan a tag · 3: register · ?: help")
+            return
+        local = self.sb.book.local_zone()
+        head = f"{row.tag} · " + (fmt.flag_text(row.flags).plain + " · " if row.flags else "")
+        head += f"{row.what} on {row.unit}"
+        if row.due is not None:
+            word = "change" if row.what == "filter" else "swap"
+            head += f" · {word} due {fmt.due_text(row.due, local)}"
+        if row.basis:
+            head += f" · basis {row.basis}"
+        notes = "; ".join(row.notes) if row.notes else fmt.STATE_WORDS.get(row.state, row.state)
+        detail.update(f"{head}\n{notes}")
+
+    def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
+        self.show_detail()
+
+    def on_data_table_row_selected(self, event: DataTable.RowSelected) -> None:
+        row = self.current()
+        if row is not None:
+            self.sb.open_sheet(row.what, row.tag, row.unit)
+
+    # ---- filters ----
+
+    def on_input_changed(self, event: Input.Changed) -> None:
+        if event.input.id == "find":
+            self.fill()
+
+    def on_input_submitted(self, event: Input.Submitted) -> None:
+        if event.input.id == "find":
+            self.query_one(DataTable).focus()
+
+    def on_select_changed(self, event: Select.Changed) -> None:
+        if event.select.id == "area":
+            self.fill()
+
+    def key_escape(self) -> None:
+        find = self.query_one("#find", Input)
+        if find.has_focus and find.value:
+            find.value = ""
+        self.query_one(DataTable).focus()
+
+    def action_find(self) -> None:
+        self.query_one("#find", Input).focus()
+
+    def action_area(self) -> None:
+        area = self.query_one("#area", Select)
+        area.focus()
+        area.action_show_overlay()
+
+    # ---- actions on the row ----
+
+    def target(self) -> Target | None:
+        row = self.current()
+        return Target(row.what, row.tag, row.unit) if row else None
+
+    def action_unit_sheet(self) -> None:
+        row = self.current()
+        if row is not None:
+            self.sb.open_sheet("unit", row.unit, row.unit)

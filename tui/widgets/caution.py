@@ -1,0 +1,28 @@
+"""The safety block shown before an element change or a breather swap."""
+
+from __future__ import annotations
+
+from textual.widgets import Static
+
+CAUTION_TEXT = (
+    "SAFETY FIRST (this app advises; the person on site decides):\n"
+    "• Isolate and lock out; bleed off pressure; discharge accumulators.\n"
+    "• Let hot oil cool. Wear eye protection and oil-proof gloves.\n"
+    "• Never feel for leaks by hand: injected oil needs emergency care.\n"
+    "• Catch spilt oil; dispose of it and the old element properly.\n"
+    "• The maker's manual, site procedures and local rules come first."
+)
+
+
+class Caution(Static):
+    DEFAULT_CSS = """
+    Caution {
+        border: heavy $warning;
+        padding: 0 1;
+        margin: 0;
+        height: auto;
+    }
+    """
+
+    def __init__(self) -> None:
+        super().__init__(CAUTION_TEXT, markup=False, id="caution")
