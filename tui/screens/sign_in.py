@@ -29,7 +29,7 @@ class SignInScreen(ModalScreen[str | None]):
             )
             yield OptionList(id="techs")
             yield Static(
-                "New here? Type initials and name, e.g. JK Jan Kowal, Enter:", markup=False
+                "New here? Type initials and name, e.g. JK J. K., Enter:", markup=False
             )
             yield Input(placeholder="initials name", compact=True, id="new-tech")
             yield Static("", id="sign-msg", classes="form-msg", markup=False)
