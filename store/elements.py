@@ -12,9 +12,8 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
-from typing import Any
 
-from .conditions import FilterContext, normalise
+from .conditions import FilterContext, dp_ref_bar
 from .entries import ElementChange, Entry, Reading
 
 REACHED_REASONS = ("limit", "indicator", "bypass")
@@ -77,21 +76,95 @@ def _age_h(
     return max((at - start).total_seconds() / 3600, 0.0)
 
 
-def _element(fitted_at: datetime | None, fitted_hours: float | None, removal: ElementChange | None,
-             readings: Sequence[tuple[Reading, Any]], hour_meter: bool) -> Element:
-    """One element with its points aged in operating hours only where every one can be."""
-    origin = fitted_at or (readings[0][0].at if readings else None)
-    origin_hours = fitted_hours if fitted_at else (readings[0][0].hours if readings else None)
-    uses_hours = (hour_meter and origin_hours is not None
-                  and all(r.hours is not None for r, _ in readings)
-                  and (removal is None or removal.hours is not None))
-    points = tuple(
-        Point(r.at, _age_h(r.at, r.hours, origin, origin_hours, uses_hours),  # type: ignore[arg-type]
-              r.dp_bar, n.dp_ref_bar, r.temp_c, r.indicator, r.flow_lpm, r.hours, r.id)
-        for r, n in readings
+# A reading as splitting needs it: (at, hours, dp_bar, temp_c, indicator, flow_lpm, entry id).
+ReadingValues = tuple[datetime, float | None, float | None, float | None, str | None,
+                      float | None, str]  # fmt: skip
+
+
+def _aging(
+    fitted_at: datetime | None,
+    fitted_hours: float | None,
+    removal: ElementChange | None,
+    readings: Sequence[tuple[ReadingValues, float | None]],
+    hour_meter: bool,
+) -> tuple[datetime | None, float | None, bool]:
+    """Where an element's ages count from, and whether in operating hours (only where every
+    reading, and the removal, carries the meter)."""
+    origin = fitted_at or (readings[0][0][0] if readings else None)
+    origin_hours = fitted_hours if fitted_at else (readings[0][0][1] if readings else None)
+    uses_hours = (
+        hour_meter
+        and origin_hours is not None
+        and all(r[1] is not None for r, _ in readings)
+        and (removal is None or removal.hours is not None)
     )
-    return Element(fitted_at, fitted_hours, removal.at if removal else None, removal, points,
-                   uses_hours)
+    return origin, origin_hours, bool(uses_hours)
+
+
+def _element(
+    fitted_at: datetime | None,
+    fitted_hours: float | None,
+    removal: ElementChange | None,
+    readings: Sequence[tuple[ReadingValues, float | None]],
+    hour_meter: bool,
+) -> Element:
+    """One element with its points."""
+    origin, origin_hours, uses_hours = _aging(
+        fitted_at, fitted_hours, removal, readings, hour_meter
+    )
+    points = tuple(
+        Point(
+            at,
+            _age_h(at, hours, origin, origin_hours, uses_hours),
+            dp_bar,
+            dp_ref,
+            temp_c,
+            indicator,
+            flow_lpm,
+            hours,
+            entry_id,
+        )
+        for (at, hours, dp_bar, temp_c, indicator, flow_lpm, entry_id), dp_ref in readings
+    )
+    return Element(
+        fitted_at, fitted_hours, removal.at if removal else None, removal, points, uses_hours
+    )
+
+
+def _summary(
+    fitted_at: datetime | None,
+    fitted_hours: float | None,
+    removal: ElementChange,
+    readings: Sequence[tuple[ReadingValues, float | None]],
+    hour_meter: bool,
+) -> ElementSummary:
+    """`summarise(_element(...))` without making a point per reading."""
+    origin, origin_hours, uses_hours = _aging(
+        fitted_at, fitted_hours, removal, readings, hour_meter
+    )
+    ages, dps = [], []
+    for r, dp_ref in readings:
+        if dp_ref is not None:
+            ages.append(_age_h(r[0], r[1], origin, origin_hours, uses_hours))
+            dps.append(dp_ref)
+    pairs = [(r[0], r[1]) for r, _ in readings if r[1] is not None]
+    return ElementSummary(
+        fitted_at=fitted_at,
+        fitted_hours=fitted_hours,
+        removed_at=removal.at,  # type: ignore[arg-type]
+        removal_id=removal.id,
+        reason=removal.reason,
+        condition=removal.condition,
+        batch=removal.batch,
+        removal_hours=removal.hours,
+        uses_hours=uses_hours,
+        readings=len(readings),
+        ages_h=tuple(ages),
+        dp_ref_bar=tuple(dps),
+        hour_readings=len(pairs),
+        first_hours=min(pairs) if pairs else None,  # type: ignore[type-var]
+        last_hours=max(pairs) if pairs else None,  # type: ignore[type-var]
+    )
 
 
 def split_elements(ctx: FilterContext, entries: Sequence[Entry]) -> list[Element]:
@@ -99,35 +172,163 @@ def split_elements(ctx: FilterContext, entries: Sequence[Entry]) -> list[Element
 
     An element fitted before the book began is aged from its first reading.
     """
-    elements: list[Element] = []
-    start: datetime | None = None
-    start_hours: float | None = None
-    readings: list[tuple[Reading, Any]] = []
+    items: list[ElementChange | ReadingValues] = []
     for e in entries:
         if e.voided:
             continue
         if isinstance(e, Reading):
-            readings.append((e, normalise(ctx, e)))
+            items.append((e.at, e.hours, e.dp_bar, e.temp_c, e.indicator, e.flow_lpm, e.id))  # type: ignore[arg-type]
         elif isinstance(e, ElementChange):
-            elements.append(_element(start, start_hours, e, readings, ctx.unit.hour_meter))
-            start, start_hours, readings = e.at, e.hours, []
-    elements.append(_element(start, start_hours, None, readings, ctx.unit.hour_meter))
-    return elements
+            items.append(e)
+    return split_values(ctx, items)
 
 
-def hours_per_day(elements: Sequence[Element], now: datetime) -> float | None:
-    """Recent operating hours per calendar day from hour-meter readings (None if unknown)."""
-    pairs = [(p.at, p.hours) for el in elements[-3:] for p in el.points if p.hours is not None]
-    pairs += [
-        (el.removal.at, el.removal.hours)
-        for el in elements[-3:]
-        if el.removal is not None and el.removal.hours is not None
-    ]
-    pairs.sort()
-    if len(pairs) < 2:
+_Group = tuple[
+    datetime | None, float | None, ElementChange | None, list[tuple[ReadingValues, float | None]]
+]
+
+
+def _groups(ctx: FilterContext, items: Sequence[ElementChange | ReadingValues]) -> list[_Group]:
+    """(fitted at, fitted meter, removal, readings with their reference ΔP) per element."""
+    groups: list[_Group] = []
+    start: datetime | None = None
+    start_hours: float | None = None
+    readings: list[tuple[ReadingValues, float | None]] = []
+    for item in items:
+        if isinstance(item, ElementChange):
+            groups.append((start, start_hours, item, readings))
+            start, start_hours, readings = item.at, item.hours, []
+        else:
+            readings.append((item, dp_ref_bar(ctx, item[2], item[3], item[5])))
+    groups.append((start, start_hours, None, readings))
+    return groups
+
+
+def split_values(
+    ctx: FilterContext, items: Sequence[ElementChange | ReadingValues]
+) -> list[Element]:
+    """`split_elements` over live changes and reading values in time order (what
+    `journal.element_items` reads without building an entry per reading)."""
+    return [_element(*group, ctx.unit.hour_meter) for group in _groups(ctx, items)]
+
+
+def split_summaries(
+    ctx: FilterContext, items: Sequence[ElementChange | ReadingValues]
+) -> tuple[list[ElementSummary], Element]:
+    """The removed elements' summaries and the element in service, from the same items as
+    `split_values` (the same as summarising its elements, with less work)."""
+    groups = _groups(ctx, items)
+    hour_meter = ctx.unit.hour_meter
+    past = [_summary(*group, hour_meter) for group in groups[:-1]]  # type: ignore[arg-type]
+    return past, _element(*groups[-1], hour_meter)
+
+
+@dataclass(frozen=True)
+class ElementSummary:
+    """What the status needs of an element that has been taken out: kept in the derived
+    element cache so that a status never rereads the history of earlier elements.
+
+    `summarise(el)` gives it for any removed `Element`; its `life_h`, `reached_limit` and
+    `hour_span` answer exactly as the element's own.
+    """
+
+    fitted_at: datetime | None
+    fitted_hours: float | None
+    removed_at: datetime
+    removal_id: str
+    reason: str
+    condition: str
+    batch: str
+    removal_hours: float | None
+    uses_hours: bool
+    readings: int  # every reading, indicator-only ones included
+    ages_h: tuple[float, ...]  # the readings with a reference ΔP: element age (h) ...
+    dp_ref_bar: tuple[float, ...]  # ... and reference ΔP (bar)
+    hour_readings: int  # readings that carry the hour meter
+    first_hours: tuple[datetime, float] | None  # smallest (time, meter) of those
+    last_hours: tuple[datetime, float] | None  # largest (time, meter) of those
+
+    def reached_limit(self, limit_bar: float | None) -> bool:
+        if self.reason in REACHED_REASONS:
+            return True
+        return bool(limit_bar and self.dp_ref_bar and self.dp_ref_bar[-1] >= limit_bar)
+
+    def life_h(self) -> float | None:
+        if self.fitted_at is None:
+            return None
+        if self.uses_hours and self.removal_hours is not None and self.fitted_hours is not None:
+            return max(self.removal_hours - self.fitted_hours, 0.0)
+        return (self.removed_at - self.fitted_at).total_seconds() / 3600
+
+    @property
+    def peak_dp_ref_bar(self) -> float | None:
+        return max(self.dp_ref_bar) if self.dp_ref_bar else None
+
+    def hour_span(self) -> tuple[int, tuple[datetime, float] | None, tuple[datetime, float] | None]:
+        return self.hour_readings, self.first_hours, self.last_hours
+
+    def removal_pair(self) -> tuple[datetime, float] | None:
+        return None if self.removal_hours is None else (self.removed_at, self.removal_hours)
+
+
+def summarise(el: Element) -> ElementSummary:
+    """The summary of a removed element."""
+    if el.removal is None or el.removed_at is None:
+        raise ValueError("only an element that has been taken out has a summary")
+    numeric = [p for p in el.points if p.dp_ref_bar is not None]
+    count, first, last = _hour_span(el)
+    return ElementSummary(
+        fitted_at=el.fitted_at,
+        fitted_hours=el.fitted_hours,
+        removed_at=el.removed_at,
+        removal_id=el.removal.id,
+        reason=el.removal.reason,
+        condition=el.removal.condition,
+        batch=el.removal.batch,
+        removal_hours=el.removal.hours,
+        uses_hours=el.uses_hours,
+        readings=len(el.points),
+        ages_h=tuple(p.age_h for p in numeric),
+        dp_ref_bar=tuple(p.dp_ref_bar for p in numeric),  # type: ignore[misc]
+        hour_readings=count,
+        first_hours=first,
+        last_hours=last,
+    )
+
+
+def _hour_span(
+    el: Element,
+) -> tuple[int, tuple[datetime, float] | None, tuple[datetime, float] | None]:
+    pairs = [(p.at, p.hours) for p in el.points if p.hours is not None]
+    if not pairs:
+        return 0, None, None
+    return len(pairs), min(pairs), max(pairs)  # type: ignore[type-var, return-value]
+
+
+def hours_per_day(elements: Sequence[Element | ElementSummary], now: datetime) -> float | None:
+    """Recent operating hours per calendar day from hour-meter readings (None if unknown).
+
+    From the first and the last (time, meter) pair of the last three elements, removals
+    included."""
+    count = 0
+    ends: list[tuple[datetime, float]] = []
+    for el in elements[-3:]:
+        if isinstance(el, ElementSummary):
+            n, first, last = el.hour_span()
+            removal = el.removal_pair()
+        else:
+            n, first, last = _hour_span(el)
+            removal = (
+                (el.removal.at, el.removal.hours)  # type: ignore[assignment]
+                if el.removal is not None and el.removal.hours is not None
+                else None
+            )
+        count += n + (removal is not None)
+        ends += [pair for pair in (first, last, removal) if pair is not None]
+    if count < 2:
         return None
-    (t0, h0), (t1, h1) = pairs[0], pairs[-1]
+    (t0, h0), (t1, h1) = min(ends), max(ends)
     days = (t1 - t0).total_seconds() / 86400
-    if days < 1 or h1 <= h0:  # type: ignore[operator]
+    if days < 1 or h1 <= h0:
         return None
-    return min((h1 - h0) / days, 24.0)  # type: ignore[operator]
+    return min((h1 - h0) / days, 24.0)

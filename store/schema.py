@@ -151,6 +151,48 @@ CREATE TABLE status_cache (
 );
 """
 
+# Version 3: what a plant-sized book (millions of entries) needs to answer at once. All derived
+# or indexes: `sumpbook rebuild` recomputes the tables from the entries.
+# - partial indexes for the few entries that are not readings: element changes by position
+#   (element lives, the last change; with reason and id, so like positions' lives come from
+#   the index alone) and events by unit (top-ups, samples, notes);
+# - element_cache: one row per removed element of a position (its life, why it came out, and
+#   its readings' ages and reference ΔP as float64 for the earlier-curve forecast);
+#   element_state: per position, what the cache was computed from (the normalising context,
+#   the entries seen up to a rowid, the change that ended the last cached element);
+# - status_cache.pools: the status leans on like positions' lives (a change there stales it);
+#   status_cache.stale: the row is known to be out of date (shown only while it is redone);
+# - unit_cache: each unit's fluid-care status (top-ups, samples, hot readings), with the
+#   register rows it was computed from.
+V3 = """
+CREATE INDEX entries_filter_changes ON entries(filter, at_utc, reason, id) WHERE kind = 'change';
+CREATE INDEX entries_unit_events ON entries(unit, kind, at_utc) WHERE kind <> 'reading';
+CREATE TABLE element_cache (
+    filter TEXT NOT NULL COLLATE NOCASE REFERENCES filters(tag) ON DELETE CASCADE,
+    seq INTEGER NOT NULL,
+    removal_id TEXT NOT NULL,
+    data TEXT NOT NULL,
+    curve BLOB NOT NULL,
+    PRIMARY KEY (filter, seq)
+) WITHOUT ROWID;
+CREATE TABLE element_state (
+    filter TEXT PRIMARY KEY COLLATE NOCASE REFERENCES filters(tag) ON DELETE CASCADE,
+    context TEXT NOT NULL,
+    seen_rowid INTEGER NOT NULL,
+    last_change TEXT,
+    last_change_utc TEXT,
+    elements INTEGER NOT NULL
+);
+ALTER TABLE status_cache ADD COLUMN pools INTEGER NOT NULL DEFAULT 1;
+ALTER TABLE status_cache ADD COLUMN stale INTEGER NOT NULL DEFAULT 0;
+CREATE TABLE unit_cache (
+    unit TEXT PRIMARY KEY COLLATE NOCASE REFERENCES units(tag) ON DELETE CASCADE,
+    computed_utc TEXT NOT NULL,
+    register TEXT NOT NULL,
+    data TEXT NOT NULL
+);
+"""
+
 # One SQL script per schema version, in order. Never edit a released step: add one.
-MIGRATIONS: list[str] = [V1, V2]
+MIGRATIONS: list[str] = [V1, V2, V3]
 SCHEMA_VERSION = len(MIGRATIONS)

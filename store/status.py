@@ -15,12 +15,18 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from datetime import datetime, timedelta
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from . import anomaly, trend
 from .book import Book
-from .conditions import FilterContext, contexts
-from .elements import REACHED_REASONS, Element, Point, hours_per_day, split_elements
+from .conditions import FilterContext, contexts_from
+from .elements import (
+    Element,
+    ElementSummary,
+    Point,
+    hours_per_day,
+    split_elements,
+    summarise,
+)
 from .entries import Entry
 from .errors import BookError
 from .fluidcare import (
@@ -33,12 +39,19 @@ from .fluidcare import (
     topup_consumption,
     topup_filtration_problem,
 )
-from .journal import read
-from .life import WeibullFit, fit_weibull
+from .journal import breather_swaps, read
+from .lives import like_lives
 from .normalise import ColdStart, cold_start
-from .register import Breather, FilterPosition, Unit, list_all
+from .register import Breather, FilterPosition, Fluid, Unit, list_all
 from .timeutil import iso_local
 
+if TYPE_CHECKING:  # the fitting maths (numpy, scipy) load on first use: a watch list read
+    from . import trend  # from the status cache needs none of it
+    from .life import WeibullFit
+
+# A cached status is recomputed when older than this: its time-dependent parts (element age,
+# hot readings of the last 7 days, the windows of the fluid-care figures) move on.
+CACHE_MAX_AGE = timedelta(hours=24)
 # Dirty oil is reaching the system now (or the element is gone): these sort first.
 URGENT_FLAGS = ("dp-drop", "at-bypass", "indicator-bypass")
 HOT_LOOKBACK = timedelta(days=7)
@@ -182,11 +195,13 @@ class Watch:
 
 
 def _life(
-    ctx: FilterContext, elements: Sequence[Element], like: Sequence[tuple[float, bool]]
+    ctx: FilterContext, past: Sequence[ElementSummary], like: Sequence[tuple[float, bool]]
 ) -> WeibullFit | None:
     """Weibull of this position's element lives; pooled with like positions if it has few."""
+    from .life import fit_weibull
+
     failed, censored = [], []
-    for el in elements[:-1]:
+    for el in past:
         life = el.life_h()
         if life is None or life <= 0:
             continue
@@ -199,21 +214,34 @@ def _life(
     return fit
 
 
-def _past(ctx: FilterContext, elements: Sequence[Element]) -> list[trend.PastElement]:
-    past = []
-    for el in elements[:-1]:
-        pts = [(p.age_h, p.dp_ref_bar) for p in el.points if p.dp_ref_bar is not None]
+def own_failures(ctx: FilterContext, past: Sequence[ElementSummary]) -> int:
+    """Removed elements that reached the limit: with fewer than 3 the status pools the lives
+    of like positions (so a change on one of those can change it)."""
+    return sum(
+        1
+        for el in past
+        if (life := el.life_h()) is not None
+        and life > 0
+        and el.reached_limit(ctx.position.limit_bar)
+    )
+
+
+def _past(ctx: FilterContext, past: Sequence[ElementSummary]) -> list[trend.PastElement]:
+    from . import trend
+
+    out = []
+    for el in past:
         life = el.life_h()
-        if life and life > 0 and pts:
-            past.append(
+        if life and life > 0 and el.ages_h:
+            out.append(
                 trend.PastElement(
-                    ages_h=tuple(a for a, _ in pts),
-                    dp_ref_bar=tuple(d for _, d in pts),
+                    ages_h=el.ages_h,
+                    dp_ref_bar=el.dp_ref_bar,
                     life_h=life,
                     reached_limit=el.reached_limit(ctx.position.limit_bar),
                 )
             )
-    return past
+    return out
 
 
 def filter_status(
@@ -223,13 +251,27 @@ def filter_status(
     like: Sequence[tuple[float, bool]] = (),
 ) -> FilterStatus:
     """Status of one filter position from its live entries (time order, up to `now`)."""
-    pos, unit = ctx.position, ctx.unit
     elements = split_elements(ctx, entries)
-    current = elements[-1]
+    past = [summarise(el) for el in elements[:-1]]
+    return status_from(ctx, past, elements[-1], now, like)
+
+
+def status_from(
+    ctx: FilterContext,
+    past: Sequence[ElementSummary],
+    current: Element,
+    now: datetime,
+    like: Sequence[tuple[float, bool]] = (),
+) -> FilterStatus:
+    """Status from the summaries of the removed elements and the element in service (the
+    derived element cache keeps the former, so a new reading costs only the latter)."""
+    from . import anomaly, trend
+
+    pos, unit = ctx.position, ctx.unit
     points = current.points
     numeric = [p for p in points if p.dp_ref_bar is not None]
     last = points[-1] if points else None
-    rate = hours_per_day(elements, now) if unit.hour_meter else None
+    rate = hours_per_day([*past[-2:], current], now) if unit.hour_meter else None
     origin = current.fitted_at or (points[0].at if points else now)
     if rate and current.fitted_hours is not None:
         last_h = max([p.hours for p in points if p.hours is not None] or [current.fitted_hours])
@@ -246,7 +288,7 @@ def filter_status(
 
     flags: list[str] = []
     notes: list[str] = []
-    fit = _life(ctx, elements, like)
+    fit = _life(ctx, past, like)
     life = None
     if fit is not None:
         life = LifeSummary(
@@ -276,7 +318,7 @@ def filter_status(
             pos.limit_bar,
             pos.bypass_bar,
             max(age_now, last_age),
-            earlier=_past(ctx, elements),
+            earlier=_past(ctx, past),
         )
         basis, state = BASIS.get(forecast.basis, forecast.basis), forecast.state
         if forecast.note:
@@ -292,8 +334,12 @@ def filter_status(
         basis = "service-life"
         b10 = fit.age_at_fraction_h(0.10)
         # Given it has lasted this long: the 5 %, 10 % (the planned change) and 50 % points.
-        due = _due(trend.AgeInterval(*(age_now + fit.remaining_quantile_h(age_now, p)
-                                       for p in (0.05, 0.10, 0.50))), age_to_time)
+        due = _due(
+            trend.AgeInterval(
+                *(age_now + fit.remaining_quantile_h(age_now, p) for p in (0.05, 0.10, 0.50))
+            ),
+            age_to_time,
+        )
         notes.append(
             f"planned from earlier element lives: 10 % reach the limit by {b10:.0f} h of service"
         )
@@ -396,32 +442,18 @@ def filter_status(
     )
 
 
-def like_lives(book: Book, ctx: FilterContext, until: datetime | None) -> list[tuple[float, bool]]:
-    """(life_h, reached_limit) of removed elements on other positions taking the same element."""
-    if not ctx.position.element:
-        return []
-    lives: list[tuple[float, bool]] = []
-    for other in list_all(book, FilterPosition, None):
-        if other.tag == ctx.position.tag or other.element.lower() != ctx.position.element.lower():
-            continue
-        changes = [
-            e
-            for e in read(book, filter=other.tag, kinds=["change"], until=until, as_of=until)
-            if not e.voided
-        ]
-        for prev, cur in zip(changes, changes[1:], strict=False):
-            life = (cur.at - prev.at).total_seconds() / 3600  # type: ignore[operator]
-            if life > 0:
-                lives.append((life, cur.reason in REACHED_REASONS))  # type: ignore[attr-defined]
-    return lives
-
-
 def status_of(book: Book, ctx: FilterContext, as_of: datetime | None = None) -> FilterStatus:
-    """One filter's status from its own entries (and like positions' lives)."""
-    now = as_of or book.now()
-    # The live view takes every entry (a time up to a day ahead is allowed); an audit only
-    # what existed at that time, voided only by voids dated before it.
-    until = now + timedelta(seconds=1) if as_of else None
+    """One filter's status from its own entries (and like positions' lives).
+
+    Now: from the element cache and the entries since the last element change (the same
+    result, see statuscache); as of a past time: from every entry as it stood then."""
+    if as_of is None:
+        from .statuscache import live_status
+
+        return live_status(book, ctx)[0]
+    now = as_of
+    # An audit takes only what existed at that time, voided only by voids dated before it.
+    until = now + timedelta(seconds=1)
     entries = [
         e for e in read(book, filter=ctx.position.tag, until=until, as_of=until) if not e.voided
     ]
@@ -431,33 +463,43 @@ def status_of(book: Book, ctx: FilterContext, as_of: datetime | None = None) -> 
 # ---- the whole book ------------------------------------------------------------------------------
 
 
-def watch(book: Book, as_of: datetime | None = None, unit: str | None = None) -> Watch:
-    """The watch list. Now: from the status cache (kept fresh on every write);
+def watch(
+    book: Book,
+    as_of: datetime | None = None,
+    unit: str | None = None,
+    max_age: timedelta | None = CACHE_MAX_AGE,
+) -> Watch:
+    """The watch list. Now: from the status caches (kept fresh on every write; rows older
+    than max_age are recomputed first, max_age None takes them as they are, for a screen
+    that shows the list at once and has `statuscache.refresh_stale` catch up behind it);
     as of a past time: computed from the entries as they stood then."""
     now = as_of or book.now()
-    ctxs = [c for c in contexts(book).values() if unit is None or c.position.unit == unit]
+    all_units, positions = list_all(book, Unit), list_all(book, FilterPosition)
+    ctxs = [
+        c
+        for c in contexts_from(all_units, list_all(book, Fluid), positions).values()
+        if unit is None or c.position.unit == unit
+    ]
+    unit_records = [u for u in all_units if unit is None or u.tag == unit]
+    by_unit: dict[str, list[FilterPosition]] = {}
+    for position in positions:
+        by_unit.setdefault(position.unit.upper(), []).append(position)
     if as_of is None:
-        from .statuscache import cached_filters
+        from .statuscache import cached_filters, cached_units
 
-        filters = cached_filters(book, ctxs, now)
+        filters = cached_filters(book, ctxs, now, max_age)
+        units = cached_units(book, unit_records, by_unit, now, max_age)
     else:
         filters = [status_of(book, c, now) for c in ctxs]
+        units = [unit_status(book, u, by_unit.get(u.tag.upper(), []), now) for u in unit_records]
     filters.sort(key=lambda s: s.urgency)
     until = now + timedelta(seconds=1)
     breathers = []
+    all_swaps = breather_swaps(book, until)
     for b in list_all(book, Breather, unit):
-        swaps = [
-            e
-            for e in read(book, breather=b.tag, kinds=["breather"], until=until, as_of=until)
-            if not e.voided
-        ]
+        swaps = [e for e in all_swaps.get(b.tag.upper(), []) if not e.voided]
         breathers.append(_breather_status(b, swaps, now))
     breathers.sort(key=lambda s: s.urgency)
-    units = [
-        _unit_status(book, u, list_all(book, FilterPosition, u.tag), now)
-        for u in list_all(book, Unit)
-        if unit is None or u.tag == unit
-    ]
     return Watch(now, tuple(filters), tuple(breathers), tuple(units))
 
 
@@ -472,9 +514,10 @@ def _breather_status(breather: Breather, swaps: Sequence[Entry], now: datetime) 
     return BreatherStatus(breather.tag, breather.unit, breather.kind, forecast, tuple(flags))
 
 
-def _unit_status(
+def unit_status(
     book: Book, unit: Unit, filters: Sequence[FilterPosition], now: datetime
 ) -> UnitStatus:
+    """A unit's fluid care: top-up use, top-up filtration, latest sample, hot readings."""
     until = now + timedelta(seconds=1)
     flags: list[str] = []
     notes: list[str] = []
