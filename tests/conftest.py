@@ -23,17 +23,49 @@ def fill_register(book: Book) -> None:
     register.add(book, Technician(tag="AB", name="A.B."))
     register.add(book, Technician(tag="CD"))
     # ISO VG 46 oil; ν40 and ν100 typical of a VI ~100 mineral oil (invented test fluid)
-    register.add(book, Fluid(tag="HV46", name="test oil 46", iso_vg=46, nu40_cst=46.0,
-                             nu100_cst=6.8))
-    register.add(book, Unit(tag="P1", name="Press 1", area="Hall A", reservoir_l=400,
-                            fluid="HV46", normal_temp_c=50, coldest_start_c=10,
-                            target_code="17/15/12"))
-    register.add(book, FilterPosition(tag="P1-RF", unit="P1", kind="return", element="RX-10",
-                                      rating_um=10, bypass_bar=3.5, limit_bar=2.5,
-                                      clean_bar=0.4, normal_flow_lpm=120))
-    register.add(book, FilterPosition(tag="P1-PF", unit="P1", kind="pressure", rating_um=3,
-                                      bypass_bar=7.0, limit_bar=5.0, clean_bar=0.8,
-                                      gauge=False))
+    register.add(
+        book, Fluid(tag="HV46", name="test oil 46", iso_vg=46, nu40_cst=46.0, nu100_cst=6.8)
+    )
+    register.add(
+        book,
+        Unit(
+            tag="P1",
+            name="Press 1",
+            area="Hall A",
+            reservoir_l=400,
+            fluid="HV46",
+            normal_temp_c=50,
+            coldest_start_c=10,
+            target_code="17/15/12",
+        ),
+    )
+    register.add(
+        book,
+        FilterPosition(
+            tag="P1-RF",
+            unit="P1",
+            kind="return",
+            element="RX-10",
+            rating_um=10,
+            bypass_bar=3.5,
+            limit_bar=2.5,
+            clean_bar=0.4,
+            normal_flow_lpm=120,
+        ),
+    )
+    register.add(
+        book,
+        FilterPosition(
+            tag="P1-PF",
+            unit="P1",
+            kind="pressure",
+            rating_um=3,
+            bypass_bar=7.0,
+            limit_bar=5.0,
+            clean_bar=0.8,
+            gauge=False,
+        ),
+    )
     register.add(book, Breather(tag="P1-BR", unit="P1", kind="desiccant", swap_interval_d=90))
     register.set_shifts(book, [("early", "06:00"), ("late", "14:00"), ("night", "22:00")])
 

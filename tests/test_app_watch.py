@@ -33,12 +33,12 @@ async def test_opens_on_the_watch_list_most_urgent_first(plant):
         # (common practice, no source: a filter in bypass outranks one that is merely due)
         assert tags[0] == "P2-RF"
         row = [str(c) for c in app.screen.query_one(DataTable).get_row_at(0)]
-        assert "AT BYPASS" in row[5] and row[1].startswith("OVERDUE")
+        assert "AT BYPASS" in row[3] and row[1].startswith("OVERDUE")  # Tag, Due, Limit, Flags
         # the cells show the store's numbers: reference ΔP in bar and its share of the limit
         with open_book(plant, create=False) as book:
             p2 = next(f for f in status.watch(book).filters if f.filter == "P2-RF")
         assert row[2].endswith(f"{100 * p2.dp_ref_bar / 2.5:3.0f}%")  # limit 2.5 bar (register)
-        assert row[3] == f"{p2.dp_ref_bar:.2f} bar"
+        assert row[4] == f"{p2.dp_ref_bar:.2f} bar"
 
 
 async def test_summary_line_counts_what_the_rows_say(plant):

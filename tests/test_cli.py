@@ -20,10 +20,38 @@ def plant(tmp_path, capsys):
     steps = [
         ["register", "tech", "AB", "--name", "A.B."],
         ["register", "fluid", "HV46", "--vg", "46", "--nu40", "46", "--nu100", "6.8"],
-        ["register", "unit", "P1", "--fluid", "hv46", "--reservoir", "400", "--normal-temp", "50",
-         "--target-code", "17/15/12"],
-        ["register", "filter", "P1-RF", "--unit", "p1", "--kind", "return", "--bypass", "3.5",
-         "--limit", "2.5", "--clean", "0.4", "--flow", "120", "--rating", "10"],
+        [
+            "register",
+            "unit",
+            "P1",
+            "--fluid",
+            "hv46",
+            "--reservoir",
+            "400",
+            "--normal-temp",
+            "50",
+            "--target-code",
+            "17/15/12",
+        ],
+        [
+            "register",
+            "filter",
+            "P1-RF",
+            "--unit",
+            "p1",
+            "--kind",
+            "return",
+            "--bypass",
+            "3.5",
+            "--limit",
+            "2.5",
+            "--clean",
+            "0.4",
+            "--flow",
+            "120",
+            "--rating",
+            "10",
+        ],
         ["register", "breather", "P1-BR", "--unit", "P1"],
         ["register", "shifts", "early=06:00", "late=14:00", "night=22:00"],
         ["prefs", "tech=ab"],
@@ -116,7 +144,17 @@ def test_no_logbook_yet_is_said_plainly(tmp_path, capsys):
 
 def test_export_import_round_trip(plant, tmp_path, capsys):
     for step in [
-        ["log", "reading", "P1-RF", "--dp", "1.2", "--temp", "40", "--note", "=1+1 looks like a formula"],
+        [
+            "log",
+            "reading",
+            "P1-RF",
+            "--dp",
+            "1.2",
+            "--temp",
+            "40",
+            "--note",
+            "=1+1 looks like a formula",
+        ],
         ["log", "topup", "P1", "--volume", "20", "--unfiltered"],
         ["log", "sample", "P1", "--code", "18/16/13"],
     ]:
@@ -143,10 +181,22 @@ def test_export_import_round_trip(plant, tmp_path, capsys):
     code, out, err = run(capsys, "--db", other, "import", str(out_csv))
     assert code == 0, err
     assert "imported 3" in out
-    a = sqlite3.connect(plant).execute("SELECT id, kind, dp_bar, temp_c, volume_l, code, note, "
-                                       "filtered_um FROM entries ORDER BY id").fetchall()
-    b = sqlite3.connect(other).execute("SELECT id, kind, dp_bar, temp_c, volume_l, code, note, "
-                                       "filtered_um FROM entries ORDER BY id").fetchall()
+    a = (
+        sqlite3.connect(plant)
+        .execute(
+            "SELECT id, kind, dp_bar, temp_c, volume_l, code, note, "
+            "filtered_um FROM entries ORDER BY id"
+        )
+        .fetchall()
+    )
+    b = (
+        sqlite3.connect(other)
+        .execute(
+            "SELECT id, kind, dp_bar, temp_c, volume_l, code, note, "
+            "filtered_um FROM entries ORDER BY id"
+        )
+        .fetchall()
+    )
     assert a == b
     code, out, _ = run(capsys, "--db", other, "import", str(out_csv))
     assert code == 0 and "imported 0" in out and "3 were in the book already" in out
@@ -189,12 +239,17 @@ def test_export_shift_choices(plant, capsys):
 
 
 def test_register_change_is_logged(plant, capsys):
-    code, out, err = run(capsys, "--db", plant, "register", "change", "filter", "P1-RF", "limit=2.4")
+    code, out, err = run(
+        capsys, "--db", plant, "register", "change", "filter", "P1-RF", "limit=2.4"
+    )
     assert code == 0, err
     import sqlite3
 
-    rows = sqlite3.connect(plant).execute(
-        "SELECT field, old, new, by FROM register_log WHERE field = 'limit_bar'").fetchall()
+    rows = (
+        sqlite3.connect(plant)
+        .execute("SELECT field, old, new, by FROM register_log WHERE field = 'limit_bar'")
+        .fetchall()
+    )
     assert rows == [("limit_bar", "2.5", "2.4", "AB")]
     code, _, err = run(capsys, "--db", plant, "register", "change", "filter", "P1-RF", "limit=9")
     assert code == 2 and "below the bypass" in err
@@ -208,9 +263,23 @@ def test_status_json_has_the_documented_fields(plant, capsys):
     data = json.loads(out)
     assert set(data) >= {"filters", "breathers", "units"}
     f = data["filters"][0]
-    for key in ("filter", "unit", "kind", "dp_ref_bar", "limit_bar", "bypass_bar",
-                "percent_of_limit", "due", "bypass_due", "basis", "state", "flags",
-                "readings_since_change", "cold_start", "reference"):
+    for key in (
+        "filter",
+        "unit",
+        "kind",
+        "dp_ref_bar",
+        "limit_bar",
+        "bypass_bar",
+        "percent_of_limit",
+        "due",
+        "bypass_due",
+        "basis",
+        "state",
+        "flags",
+        "readings_since_change",
+        "cold_start",
+        "reference",
+    ):
         assert key in f
     assert f["filter"] == "P1-RF" and f["readings_since_change"] == 3
     # at the reference temperature the normalised value is the reading itself

@@ -16,20 +16,39 @@ def count(book):
 def test_every_kind_is_written_and_read_back(book):
     at = book.now() - timedelta(hours=2)
     made = [
-        Reading(filter="p1-rf", dp_bar=1.1, temp_c=42.0, flow_lpm=110.0, hours=1200.0, by="ab", at=at),
+        Reading(
+            filter="p1-rf", dp_bar=1.1, temp_c=42.0, flow_lpm=110.0, hours=1200.0, by="ab", at=at
+        ),
         Reading(filter="P1-PF", indicator="dirty", by="AB", at=at),
-        ElementChange(filter="P1-RF", reason="limit", condition="caked", batch="L-77", by="CD", at=at),
+        ElementChange(
+            filter="P1-RF", reason="limit", condition="caked", batch="L-77", by="CD", at=at
+        ),
         TopUp(unit="P1", volume_l=12.5, filtered_um=3.0, by="AB", at=at),
         BreatherSwap(breather="P1-BR", reason="spent", condition="2/3 spent", by="AB", at=at),
-        Sample(unit="P1", c4_per_ml=2000, c6_per_ml=500, c14_per_ml=60, water_ppm=120, by="AB", at=at),
+        Sample(
+            unit="P1", c4_per_ml=2000, c6_per_ml=500, c14_per_ml=60, water_ppm=120, by="AB", at=at
+        ),
         Note(unit="P1", note="hose weeping at the cylinder", by="AB", at=at),
     ]
     saved = journal.log_many(book, made)
     back = journal.read(book)
     assert [e.id for e in back] == [e.id for e in saved]
-    assert [e.kind for e in back] == ["reading", "reading", "change", "topup", "breather", "sample", "note"]
+    assert [e.kind for e in back] == [
+        "reading",
+        "reading",
+        "change",
+        "topup",
+        "breather",
+        "sample",
+        "note",
+    ]
     reading = back[0]
-    assert (reading.filter, reading.unit, reading.dp_bar, reading.temp_c) == ("P1-RF", "P1", 1.1, 42.0)
+    assert (reading.filter, reading.unit, reading.dp_bar, reading.temp_c) == (
+        "P1-RF",
+        "P1",
+        1.1,
+        42.0,
+    )
     assert back[3].fluid == "HV46"  # the unit's fluid by default
     # ISO 4406 table (REFERENCES.md §1c): 2000/500/60 per mL is 18/16/13
     assert back[5].code == "18/16/13"
@@ -60,8 +79,10 @@ def test_void_marks_the_entry_and_keeps_it(book):
         (Reading(filter="P1-RF", indicator="purple", by="AB"), "indicator must be"),
         (Reading(filter="P1-RF", dp_bar=1.0, by="ZZ"), "unknown technician"),
         (Reading(filter="P1-RF", dp_bar=1.0, by=""), "who made"),
-        (Reading(filter="P1-RF", dp_bar=1.0, by="AB",
-                 at=datetime.now(UTC) + timedelta(days=3)), "ahead"),
+        (
+            Reading(filter="P1-RF", dp_bar=1.0, by="AB", at=datetime.now(UTC) + timedelta(days=3)),
+            "ahead",
+        ),
         (ElementChange(filter="P1-RF", reason="bored", by="AB"), "reason"),
         (TopUp(unit="P1", volume_l=0, by="AB"), "outside"),
         (Sample(unit="P1", by="AB"), "needs"),
@@ -99,12 +120,18 @@ def test_log_many_is_all_or_nothing(book):
 
 def test_read_filters_by_time_unit_and_kind(book):
     t0 = book.now() - timedelta(days=3)
-    journal.log_many(book, [
-        Reading(filter="P1-RF", dp_bar=1.0, by="AB", at=t0),
-        TopUp(unit="P1", volume_l=5, by="AB", at=t0 + timedelta(days=1)),
-        Reading(filter="P1-RF", dp_bar=1.1, by="AB", at=t0 + timedelta(days=2)),
-    ])
+    journal.log_many(
+        book,
+        [
+            Reading(filter="P1-RF", dp_bar=1.0, by="AB", at=t0),
+            TopUp(unit="P1", volume_l=5, by="AB", at=t0 + timedelta(days=1)),
+            Reading(filter="P1-RF", dp_bar=1.1, by="AB", at=t0 + timedelta(days=2)),
+        ],
+    )
     assert len(journal.read(book, since=t0 + timedelta(hours=1))) == 2
     assert len(journal.read(book, kinds=["topup"])) == 1
     assert len(journal.read(book, filter="P1-RF", until=t0 + timedelta(days=1))) == 1
-    assert [e.dp_bar for e in journal.read(book, kinds=["reading"], newest_first=True)] == [1.1, 1.0]
+    assert [e.dp_bar for e in journal.read(book, kinds=["reading"], newest_first=True)] == [
+        1.1,
+        1.0,
+    ]

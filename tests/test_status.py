@@ -25,10 +25,15 @@ def d341_book(tmp_path):
     with open_book(tmp_path / "d341.db") as book:
         register.add(book, Technician(tag="AB"))
         register.add(book, Fluid(tag="EX32", nu40_cst=32.0, nu100_cst=5.4))
-        register.add(book, Unit(tag="U1", fluid="EX32", normal_temp_c=80, max_temp_c=90,
-                                coldest_start_c=0))
-        register.add(book, FilterPosition(tag="U1-RF", unit="U1", kind="return", bypass_bar=3.5,
-                                          limit_bar=2.5, clean_bar=0.3))
+        register.add(
+            book, Unit(tag="U1", fluid="EX32", normal_temp_c=80, max_temp_c=90, coldest_start_c=0)
+        )
+        register.add(
+            book,
+            FilterPosition(
+                tag="U1-RF", unit="U1", kind="return", bypass_bar=3.5, limit_bar=2.5, clean_bar=0.3
+            ),
+        )
         book.set_setting("clock", "2026-03-10T12:00:00Z")
         yield book
 
@@ -36,8 +41,9 @@ def d341_book(tmp_path):
 def test_normalised_dp_uses_the_d341_viscosity_ratio(d341_book):
     book = d341_book
     journal.log(book, ElementChange(filter="U1-RF", by="AB", at=T0))
-    journal.log(book, Reading(filter="U1-RF", dp_bar=1.0, temp_c=60, by="AB",
-                              at=T0 + timedelta(days=1)))
+    journal.log(
+        book, Reading(filter="U1-RF", dp_bar=1.0, temp_c=60, by="AB", at=T0 + timedelta(days=1))
+    )
     f = one(status.watch(book), "U1-RF")
     # ASTM D341 worked example (REFERENCES.md §2, T = t + 273.15): ν(80 °C) = 8.5332,
     # ν(60 °C) = 15.186 mm²/s; the element ΔP scales with viscosity (REFERENCES.md §7b)
@@ -49,8 +55,9 @@ def test_normalised_dp_uses_the_d341_viscosity_ratio(d341_book):
 def test_cold_start_bypass_is_flagged_with_its_temperature(d341_book):
     book = d341_book
     journal.log(book, ElementChange(filter="U1-RF", by="AB", at=T0))
-    journal.log(book, Reading(filter="U1-RF", dp_bar=0.8, temp_c=80, by="AB",
-                              at=T0 + timedelta(days=1)))
+    journal.log(
+        book, Reading(filter="U1-RF", dp_bar=0.8, temp_c=80, by="AB", at=T0 + timedelta(days=1))
+    )
     f = one(status.watch(book), "U1-RF")
     # 0.8 bar at 8.53 cSt reaches the 3.5 bar bypass where ν = 8.5332 × 3.5 / 0.8 = 37.3 cSt,
     # which the D341 line of this oil puts near 37 °C; a 0 °C start is far colder
@@ -66,8 +73,12 @@ def test_drop_without_change_is_urgent(book):
     t = book.now() - timedelta(days=20)
     journal.log(book, ElementChange(filter="P1-RF", by="AB", at=t))
     for i, dp in enumerate([0.60, 0.65, 0.70, 0.75, 0.80, 0.85, 0.90, 0.95, 0.45, 0.40]):
-        journal.log(book, Reading(filter="P1-RF", dp_bar=dp, temp_c=50, by="AB",
-                                  at=t + timedelta(days=1 + 2 * i)))
+        journal.log(
+            book,
+            Reading(
+                filter="P1-RF", dp_bar=dp, temp_c=50, by="AB", at=t + timedelta(days=1 + 2 * i)
+            ),
+        )
     w = status.watch(book)
     f = one(w, "P1-RF")
     assert "dp-drop" in f.flags
@@ -77,14 +88,33 @@ def test_drop_without_change_is_urgent(book):
 def test_voided_reading_is_ignored_and_as_of_sees_the_past(book):
     t = book.now() - timedelta(days=10)
     journal.log(book, ElementChange(filter="P1-RF", by="AB", at=t))
-    good = [journal.log(book, Reading(filter="P1-RF", dp_bar=0.5 + 0.05 * i, temp_c=50, by="AB",
-                                      at=t + timedelta(days=i + 1))) for i in range(4)]
-    wrong = journal.log(book, Reading(filter="P1-RF", dp_bar=3.4, temp_c=50, by="AB",
-                                      at=t + timedelta(days=6)))
+    good = [
+        journal.log(
+            book,
+            Reading(
+                filter="P1-RF",
+                dp_bar=0.5 + 0.05 * i,
+                temp_c=50,
+                by="AB",
+                at=t + timedelta(days=i + 1),
+            ),
+        )
+        for i in range(4)
+    ]
+    wrong = journal.log(
+        book, Reading(filter="P1-RF", dp_bar=3.4, temp_c=50, by="AB", at=t + timedelta(days=6))
+    )
     before_void = book.now()
     assert one(status.watch(book), "P1-RF").dp_ref_bar == pytest.approx(3.4)
-    journal.log(book, Void(voids=wrong.id, note="read the wrong gauge", by="AB",
-                           at=before_void + timedelta(minutes=1)))
+    journal.log(
+        book,
+        Void(
+            voids=wrong.id,
+            note="read the wrong gauge",
+            by="AB",
+            at=before_void + timedelta(minutes=1),
+        ),
+    )
     book.set_setting("clock", (before_void + timedelta(hours=1)).strftime("%Y-%m-%dT%H:%M:%SZ"))
     now = one(status.watch(book), "P1-RF")
     assert now.dp_ref_bar == pytest.approx(good[-1].dp_bar)
@@ -103,12 +133,28 @@ def test_cache_agrees_with_a_fresh_computation(book):
     t = book.now() - timedelta(days=30)
     journal.log(book, ElementChange(filter="P1-RF", by="AB", at=t))
     for i in range(12):
-        journal.log(book, Reading(filter="P1-RF", dp_bar=0.5 + 0.04 * i + 0.004 * i * i,
-                                  temp_c=45 + i % 3, by="AB", at=t + timedelta(days=2 * i + 1)))
+        journal.log(
+            book,
+            Reading(
+                filter="P1-RF",
+                dp_bar=0.5 + 0.04 * i + 0.004 * i * i,
+                temp_c=45 + i % 3,
+                by="AB",
+                at=t + timedelta(days=2 * i + 1),
+            ),
+        )
     cached = one(status.watch(book), "P1-RF")
     fresh = one(status.watch(book, as_of=book.now()), "P1-RF")
-    for name in ("dp_ref_bar", "percent_of_limit", "due", "bypass_due", "basis", "state",
-                 "flags", "readings_since_change"):
+    for name in (
+        "dp_ref_bar",
+        "percent_of_limit",
+        "due",
+        "bypass_due",
+        "basis",
+        "state",
+        "flags",
+        "readings_since_change",
+    ):
         assert getattr(cached, name) == getattr(fresh, name), name
     assert rebuild(book) == 2
 
@@ -117,10 +163,21 @@ def test_fluid_care_flags(book):
     now = book.now()
     journal.log(book, TopUp(unit="P1", volume_l=10, by="AB", at=now - timedelta(days=2)))
     # ISO 4406 table (REFERENCES.md §1c): 30000/5000/60 per mL is 22/19/13, over 17/15/12
-    journal.log(book, Sample(unit="P1", c4_per_ml=30000, c6_per_ml=5000, c14_per_ml=60, by="AB",
-                             at=now - timedelta(days=1)))
-    journal.log(book, BreatherSwap(breather="P1-BR", condition="spent", by="AB",
-                                   at=now - timedelta(days=200)))
+    journal.log(
+        book,
+        Sample(
+            unit="P1",
+            c4_per_ml=30000,
+            c6_per_ml=5000,
+            c14_per_ml=60,
+            by="AB",
+            at=now - timedelta(days=1),
+        ),
+    )
+    journal.log(
+        book,
+        BreatherSwap(breather="P1-BR", condition="spent", by="AB", at=now - timedelta(days=200)),
+    )
     w = status.watch(book)
     unit = w.units[0]
     assert "unfiltered-topup" in unit.flags
@@ -133,11 +190,15 @@ def test_rising_top_ups_point_to_a_leak(book):
     # a steady 2 L a week for five months, then 12 L a week for four weeks
     # (invented consumption; the rule is the unit against its own history, DOMAIN.md §5)
     for week in range(24, 4, -1):
-        journal.log(book, TopUp(unit="P1", volume_l=2, filtered_um=3, by="AB",
-                                at=now - timedelta(weeks=week)))
+        journal.log(
+            book,
+            TopUp(unit="P1", volume_l=2, filtered_um=3, by="AB", at=now - timedelta(weeks=week)),
+        )
     for day in (26, 19, 12, 5):
-        journal.log(book, TopUp(unit="P1", volume_l=12, filtered_um=3, by="AB",
-                                at=now - timedelta(days=day)))
+        journal.log(
+            book,
+            TopUp(unit="P1", volume_l=12, filtered_um=3, by="AB", at=now - timedelta(days=day)),
+        )
     unit = status.watch(book).units[0]
     assert "leak-suspect" in unit.flags
     assert unit.consumption.recent_l_per_week == pytest.approx(12.0)
@@ -156,8 +217,9 @@ def test_indicator_only_filter_plans_from_earlier_lives(book):
     journal.log(book, ElementChange(filter="P1-PF", reason="indicator", by="AB", at=t))
     for days in (30, 34, 38, 42):
         t += timedelta(days=days)
-        journal.log(book, Reading(filter="P1-PF", indicator="dirty", by="AB",
-                                  at=t - timedelta(hours=2)))
+        journal.log(
+            book, Reading(filter="P1-PF", indicator="dirty", by="AB", at=t - timedelta(hours=2))
+        )
         journal.log(book, ElementChange(filter="P1-PF", reason="indicator", by="AB", at=t))
     f = one(status.watch(book), "P1-PF")
     assert f.basis == "service-life"
@@ -179,24 +241,43 @@ def test_due_interval_holds_the_true_crossing_of_a_real_run(tmp_path, current):
         register.add(book, Technician(tag="AB"))
         register.add(book, Fluid(tag="RIG", iso_vg=32))
         register.add(book, Unit(tag="RIG", fluid="RIG"))
-        register.add(book, FilterPosition(tag="RIG-F", unit="RIG", kind="return",
-                                          limit_bar=limit, bypass_bar=to_bar(25, "psi"),
-                                          reading_interval_h=1000))
+        register.add(
+            book,
+            FilterPosition(
+                tag="RIG-F",
+                unit="RIG",
+                kind="return",
+                limit_bar=limit,
+                bypass_bar=to_bar(25, "psi"),
+                reading_interval_h=1000,
+            ),
+        )
         t = T0
         for name in history:  # 1 s of rig time = 1 h of service
             journal.log(book, ElementChange(filter="RIG-F", by="AB", at=t))
             ages, dps = technician_log(runs[name], seed=1)
-            journal.log_many(book, [Reading(filter="RIG-F", dp_bar=float(d), by="AB",
-                                            at=t + timedelta(hours=float(a)))
-                                    for a, d in zip(ages, dps, strict=True)])
+            journal.log_many(
+                book,
+                [
+                    Reading(
+                        filter="RIG-F", dp_bar=float(d), by="AB", at=t + timedelta(hours=float(a))
+                    )
+                    for a, d in zip(ages, dps, strict=True)
+                ],
+            )
             t += timedelta(hours=runs[name].life_h)
         journal.log(book, ElementChange(filter="RIG-F", by="AB", at=t))
         run = runs[current]
         ages, dps = technician_log(run, seed=1)
         now_h = 0.7 * run.life_h
-        journal.log_many(book, [Reading(filter="RIG-F", dp_bar=float(d), by="AB",
-                                        at=t + timedelta(hours=float(a)))
-                                for a, d in zip(ages, dps, strict=True) if a <= now_h])
+        journal.log_many(
+            book,
+            [
+                Reading(filter="RIG-F", dp_bar=float(d), by="AB", at=t + timedelta(hours=float(a)))
+                for a, d in zip(ages, dps, strict=True)
+                if a <= now_h
+            ],
+        )
         as_of = t + timedelta(hours=now_h)
         f = one(status.watch(book, as_of=as_of), "RIG-F")
         true_crossing = t + timedelta(hours=run.life_h)

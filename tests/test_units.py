@@ -21,8 +21,9 @@ def test_bar_kpa_and_gallon_against_pint():
     # pint: bar = 1e5 Pa; US gallon = 231 in³ (REFERENCES.md §5)
     assert units.to_bar(14.503773773, "psi") == pytest.approx(1.0, rel=1e-9)
     assert units.to_bar(100, "kPa") == pytest.approx(ureg.Quantity(100, "kPa").to("bar").magnitude)
-    assert units.to_l(1, "gal") == pytest.approx(ureg.Quantity(1, "gallon").to("L").magnitude,
-                                                 rel=1e-12)
+    assert units.to_l(1, "gal") == pytest.approx(
+        ureg.Quantity(1, "gallon").to("L").magnitude, rel=1e-12
+    )
     assert units.L_PER_US_GAL == pytest.approx(3.785411784, rel=1e-12)  # NIST SP 811 App. B
 
 

@@ -217,8 +217,11 @@ def main(argv: Sequence[str] | None = None) -> int:
         print(f"sumpbook: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except UnicodeError:
-        print("sumpbook: the input holds characters that are not text (a wrong encoding?); "
-              "nothing was written", file=sys.stderr)
+        print(
+            "sumpbook: the input holds characters that are not text (a wrong encoding?); "
+            "nothing was written",
+            file=sys.stderr,
+        )
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         return 130
@@ -228,6 +231,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     except Exception as exc:  # a bug: one line for the user, the trace on request
         if os.environ.get("SUMPBOOK_DEBUG"):
             raise
-        print(f"sumpbook: unexpected error ({type(exc).__name__}: {exc}); nothing more was "
-              "written. Run again with SUMPBOOK_DEBUG=1 for the details.", file=sys.stderr)
+        print(
+            f"sumpbook: unexpected error ({type(exc).__name__}: {exc}); nothing more was "
+            "written. Run again with SUMPBOOK_DEBUG=1 for the details.",
+            file=sys.stderr,
+        )
         return 1

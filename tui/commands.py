@@ -292,7 +292,9 @@ def cmd_status(args: argparse.Namespace) -> int:
         unit = register.get(book, Unit, args.unit).tag if args.unit else None
         watch = status.watch(book, as_of=as_of, unit=unit)
         if args.json:
-            json.dump(status.to_json(watch, book.local_zone()), sys.stdout, indent=1, ensure_ascii=False)
+            json.dump(
+                status.to_json(watch, book.local_zone()), sys.stdout, indent=1, ensure_ascii=False
+            )
             sys.stdout.write("\n")
         else:
             console.print(render.watch_table(book, watch, prefs))

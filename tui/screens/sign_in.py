@@ -28,9 +28,7 @@ class SignInScreen(ModalScreen[str | None]):
                 "Who is on shift? Pick your initials, Enter.", classes="form-title", markup=False
             )
             yield OptionList(id="techs")
-            yield Static(
-                "New here? Type initials and name, e.g. JK J. K., Enter:", markup=False
-            )
+            yield Static("New here? Type initials and name, e.g. JK J. K., Enter:", markup=False)
             yield Input(placeholder="initials name", compact=True, id="new-tech")
             yield Static("", id="sign-msg", classes="form-msg", markup=False)
 

@@ -149,7 +149,7 @@ def flag_text(flags: Sequence[str]) -> Text:
     text = Text()
     for i, flag in enumerate(flags):
         if i:
-            text.append(" ")
+            text.append(", ")
         word = FLAG_WORDS.get(flag, flag)
         text.append(word, style="bold reverse" if flag in URGENT_FLAGS else "bold")
     return text
