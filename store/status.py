@@ -311,20 +311,26 @@ def status_from(
             ages_h=tuple(p.age_h for p in numeric),
             dp_ref_bar=tuple(p.dp_ref_bar for p in numeric),  # type: ignore[misc]
         )
-        last_age = readings.ages_h[-1] if numeric else 0.0
-        forecast = trend.forecast(
-            readings,
-            pos.clean_bar,
-            pos.limit_bar,
-            pos.bypass_bar,
-            max(age_now, last_age),
-            earlier=_past(ctx, past),
-        )
-        basis, state = BASIS.get(forecast.basis, forecast.basis), forecast.state
-        if forecast.note:
-            notes.append(forecast.note)
-        due = _due(forecast.to_limit, age_to_time)
-        bypass_due = _due(forecast.to_bypass, age_to_time)
+        last_age = max(readings.ages_h) if numeric else 0.0
+        try:
+            forecast = trend.forecast(
+                readings,
+                pos.clean_bar,
+                pos.limit_bar,
+                pos.bypass_bar,
+                max(age_now, last_age),
+                earlier=_past(ctx, past),
+            )
+        except BookError as exc:  # settings the forecast cannot use: say so, keep the rest
+            forecast = None
+            state = "no-forecast"
+            notes.append(f"no forecast: {exc}")
+        if forecast is not None:
+            basis, state = BASIS.get(forecast.basis, forecast.basis), forecast.state
+            if forecast.note:
+                notes.append(forecast.note)
+            due = _due(forecast.to_limit, age_to_time)
+            bypass_due = _due(forecast.to_bypass, age_to_time)
     if (
         due is None
         and state in ("too-few-readings", "no-readings", "flat")
@@ -367,7 +373,8 @@ def status_from(
         flags.append("indicator-bypass")
     elif last and last.indicator == "dirty":
         flags.append("indicator-dirty")
-    series = [(p.age_h, p.dp_ref_bar) for p in numeric]
+    # In age order: a late entry or an hour meter read out of turn must not stop a save.
+    series = sorted((p.age_h, p.dp_ref_bar) for p in numeric)
     drop = anomaly.drop_without_change(series)
     if drop is not None:
         flags.append("dp-drop")

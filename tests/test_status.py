@@ -285,3 +285,44 @@ def test_due_interval_holds_the_true_crossing_of_a_real_run(tmp_path, current):
         assert f.due.earliest <= true_crossing, "the earliest date came after the crossing"
         remaining = true_crossing - as_of
         assert abs(f.due.likely - true_crossing) < 0.5 * remaining
+
+
+def test_an_hour_meter_read_out_of_turn_does_not_stop_a_save(tmp_path):
+    # an hour-meter unit; a reading logged late carries a meter value below the last one
+    with open_book(tmp_path / "hm.db") as book:
+        register.add(book, Technician(tag="AB"))
+        register.add(book, Fluid(tag="HV46", iso_vg=46))
+        register.add(book, Unit(tag="M1", fluid="HV46", hour_meter=True))
+        register.add(
+            book,
+            FilterPosition(
+                tag="M1-R", unit="M1", kind="return", bypass_bar=3.5, limit_bar=2.5, clean_bar=0.3
+            ),
+        )
+        book.set_setting("clock", "2026-03-20T12:00:00Z")
+        journal.log(book, ElementChange(filter="M1-R", hours=1000, by="AB", at=T0))
+        for day, hours, dp in ((1, 1020, 0.5), (2, 1040, 0.6), (4, 1080, 0.7), (5, 1100, 0.8)):
+            journal.log(
+                book,
+                Reading(
+                    filter="M1-R",
+                    dp_bar=dp,
+                    temp_c=50,
+                    hours=hours,
+                    by="AB",
+                    at=T0 + timedelta(days=day),
+                ),
+            )
+        late = journal.log(
+            book,
+            Reading(
+                filter="M1-R",
+                dp_bar=0.65,
+                temp_c=50,
+                hours=1060,
+                by="AB",
+                at=T0 + timedelta(days=6),
+            ),
+        )
+        f = one(status.watch(book), "M1-R")
+        assert f.readings_since_change == 5 and late.id
