@@ -326,9 +326,18 @@ def inspect(path: Path, readonly: bool = True) -> int:
             f"{path} is not a sumpbook logbook or is damaged ({exc}); it was left untouched; "
             f"{backup_hint(path)}"
         ) from exc
+    key = str(Path(path).resolve())
     try:
-        return check_header(conn, path)
+        version = check_header(conn, path, quick=key not in _CHECKED)
     except NotALogbook as exc:
         raise NotALogbook(f"{exc}; it was left untouched; {backup_hint(path)}") from exc
     finally:
         conn.close()
+    _CHECKED.add(key)
+    return version
+
+
+# Files that passed the whole-file quick check in this process. The check reads every page
+# (seconds on a book of millions of entries); the app's worker threads open the same book
+# again and again, and need only the header checks after the first open.
+_CHECKED: set[str] = set()

@@ -143,12 +143,16 @@ def export_rows(
         temperature_key(prefs.temperature),
         volume_key(prefs.volume),
     )
+    columns = prefs.columns()
+    span = None
     for e in entries:
-        row = dict.fromkeys(prefs.columns(), "")
+        if span is None or not span.holds(e.at):  # entries come in time order: reuse the shift
+            span = shift_at(e.at, pattern, local)  # type: ignore[arg-type]
+        row = dict.fromkeys(columns, "")
         row.update(
             id=e.id,
             time=iso_local(e.at, local),
-            shift=shift_at(e.at, pattern, local).name,  # type: ignore[arg-type]
+            shift=span.name,
             kind=e.kind,
             target=e.target or "",
             unit=e.unit or "",
