@@ -10,8 +10,6 @@ import math
 from bisect import bisect_left
 from dataclasses import dataclass
 
-from scipy.optimize import brentq
-
 from store.errors import BookError
 
 KELVIN_OFFSET = 273.15
@@ -221,6 +219,8 @@ def nu100_from_vi(nu40_cst: float, vi: float) -> float:
         raise FluidRangeError(
             f"no ν100 between {low:g} and {high:g} mm²/s gives VI {vi:g} with ν40 {nu40_cst:g}"
         )
+    from scipy.optimize import brentq  # imported here: every command loads this module
+
     return float(brentq(gap, low, high, xtol=1e-10, rtol=1e-12))
 
 
