@@ -14,7 +14,9 @@ from store.entries import BreatherSwap, ElementChange, Entry, Note, Reading, Sam
 from store.prefs import Prefs
 from store.register import Breather, FilterPosition, Fluid, Technician, Unit
 from store.timeutil import local_text
-from store.units import from_bar, from_c, from_l, pressure_label, temperature_label, volume_label
+from store.units import pressure_label
+
+from .quantities import pressure, temperature, volume
 
 if TYPE_CHECKING:
     from store.status import Watch
@@ -26,26 +28,6 @@ CAUTION_SHORT = (
 )
 
 
-def p_text(value_bar: float | None, prefs: Prefs, unit: bool = True) -> str:
-    if value_bar is None:
-        return "–"
-    value = from_bar(value_bar, prefs.pressure)
-    digits = 1 if prefs.pressure.lower() in ("psi", "kpa") else 2
-    return f"{value:.{digits}f}" + (f" {pressure_label(prefs.pressure)}" if unit else "")
-
-
-def t_text(value_c: float | None, prefs: Prefs) -> str:
-    if value_c is None:
-        return "–"
-    return f"{from_c(value_c, prefs.temperature):.0f} {temperature_label(prefs.temperature)}"
-
-
-def v_text(value_l: float | None, prefs: Prefs) -> str:
-    if value_l is None:
-        return "–"
-    return f"{from_l(value_l, prefs.volume):.1f} {volume_label(prefs.volume)}"
-
-
 def when(book: Book, moment: datetime | None) -> str:
     return local_text(moment, book.local_zone()) if moment else "–"
 
@@ -55,11 +37,11 @@ def describe(entry: Entry, prefs: Prefs, target_code: str | None = None) -> str:
     if isinstance(entry, Reading):
         parts = []
         if entry.dp_bar is not None:
-            parts.append(f"ΔP {p_text(entry.dp_bar, prefs)}")
+            parts.append(f"ΔP {pressure(entry.dp_bar, prefs)}")
         if entry.indicator:
             parts.append(f"indicator {entry.indicator}")
         if entry.temp_c is not None:
-            parts.append(f"at {t_text(entry.temp_c, prefs)}")
+            parts.append(f"at {temperature(entry.temp_c, prefs)}")
         if entry.flow_lpm is not None:
             parts.append(f"{entry.flow_lpm:g} L/min")
         if entry.hours is not None:
@@ -75,7 +57,7 @@ def describe(entry: Entry, prefs: Prefs, target_code: str | None = None) -> str:
         )
     if isinstance(entry, TopUp):
         how = "unfiltered" if entry.filtered_um is None else f"through {entry.filtered_um:g} µm"
-        return f"topped up {v_text(entry.volume_l, prefs)} {entry.fluid or ''} {how}".replace(
+        return f"topped up {volume(entry.volume_l, prefs)} {entry.fluid or ''} {how}".replace(
             "  ", " "
         )
     if isinstance(entry, BreatherSwap):
@@ -136,7 +118,7 @@ def entries_table(book: Book, entries: list[Entry], prefs: Prefs) -> Table:
         ref = reference = ""
         if isinstance(e, Reading) and e.dp_bar is not None and e.filter in ctxs:
             n = normalise(ctxs[e.filter], e)
-            ref = p_text(n.dp_ref_bar, prefs, unit=False) if n.dp_ref_bar is not None else ""
+            ref = pressure(n.dp_ref_bar, prefs, unit=False) if n.dp_ref_bar is not None else ""
             reference = ctxs[e.filter].reference.label if n.dp_ref_bar is not None else n.problem  # type: ignore[union-attr]
             if n.dp_ref_bar is not None and n.temp_assumed:
                 reference += "; temp assumed"
@@ -195,9 +177,9 @@ def register_table(book: Book, what: str, unit: str | None, prefs: Prefs) -> Tab
                 f.kind,
                 f.element,
                 f"{f.rating_um:g} µm {f.rating_basis[:3]}" if f.rating_um else "–",
-                p_text(f.clean_bar, prefs),
-                p_text(f.limit_bar, prefs),
-                p_text(f.bypass_bar, prefs),
+                pressure(f.clean_bar, prefs),
+                pressure(f.limit_bar, prefs),
+                pressure(f.bypass_bar, prefs),
                 f"{f.normal_flow_lpm:g} L/min" if f.normal_flow_lpm else "–",
                 "gauge" if f.gauge else "indicator",
             )
@@ -221,11 +203,11 @@ def register_table(book: Book, what: str, unit: str | None, prefs: Prefs) -> Tab
                 u.tag,
                 u.name,
                 u.area,
-                v_text(u.reservoir_l, prefs),
+                volume(u.reservoir_l, prefs),
                 u.fluid or "–",
-                t_text(u.normal_temp_c, prefs),
-                t_text(u.max_temp_c, prefs),
-                t_text(u.coldest_start_c, prefs),
+                temperature(u.normal_temp_c, prefs),
+                temperature(u.max_temp_c, prefs),
+                temperature(u.coldest_start_c, prefs),
                 "yes" if u.hour_meter else "no",
                 u.target_code or "–",
             )
@@ -309,7 +291,7 @@ def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
             f.filter,
             f.unit,
             f.kind,
-            p_text(f.dp_ref_bar, prefs, unit=False),
+            pressure(f.dp_ref_bar, prefs, unit=False),
             f"{f.percent_of_limit:.0f} %" if f.percent_of_limit is not None else "–",
             due,
             f.basis,

@@ -13,7 +13,16 @@ from rich.text import Text
 
 from store.prefs import Prefs
 from store.status import FLAG_WORDS, URGENT_FLAGS, Due
-from store.units import from_bar, from_c, from_l, pressure_label, temperature_label, volume_label
+from store.units import from_bar, from_c, from_l
+from tui.quantities import (  # noqa: F401 - the app's widgets take them from here
+    p_digits,
+    p_unit,
+    pressure,
+    t_unit,
+    temperature,
+    v_unit,
+    volume,
+)
 
 BLOCKS = "▁▂▃▄▅▆▇█"
 KIND_SHORT = {
@@ -40,43 +49,6 @@ STATE_WORDS = {
     "no-swaps": "no swap yet",
     "flagged": "",
 }
-
-
-def p_unit(prefs: Prefs) -> str:
-    return pressure_label(prefs.pressure)
-
-
-def t_unit(prefs: Prefs) -> str:
-    return temperature_label(prefs.temperature)
-
-
-def v_unit(prefs: Prefs) -> str:
-    return volume_label(prefs.volume)
-
-
-def p_digits(prefs: Prefs) -> int:
-    return 1 if prefs.pressure.lower() in ("psi", "kpa") else 2
-
-
-def pressure(value_bar: float | None, prefs: Prefs, unit: bool = True) -> str:
-    if value_bar is None:
-        return "–"
-    text = f"{from_bar(value_bar, prefs.pressure):.{p_digits(prefs)}f}"
-    return f"{text} {p_unit(prefs)}" if unit else text
-
-
-def temperature(value_c: float | None, prefs: Prefs, unit: bool = True) -> str:
-    if value_c is None:
-        return "–"
-    text = f"{from_c(value_c, prefs.temperature):.0f}"
-    return f"{text} {t_unit(prefs)}" if unit else text
-
-
-def volume(value_l: float | None, prefs: Prefs, unit: bool = True) -> str:
-    if value_l is None:
-        return "–"
-    text = f"{from_l(value_l, prefs.volume):.1f}"
-    return f"{text} {v_unit(prefs)}" if unit else text
 
 
 def input_pressure(value_bar: float | None, prefs: Prefs) -> str:
