@@ -86,6 +86,27 @@ class EntryForm(ModalScreen[Saved | None]):
 
     # ---- common fields ----
 
+    def tag_spec(
+        self,
+        name: str,
+        cls: type,
+        what: str,
+        value: str,
+        required: bool = True,
+        hint: str = "",
+        label: str = "",
+    ) -> Spec:
+        """A field that takes a register tag, checked against the book with a suggestion."""
+        book = self.sb.book
+        return Spec(
+            name,
+            label or what.capitalize(),
+            value,
+            [TagValidator(lambda: [r.tag for r in list_all(book, cls)], what)],
+            required=required,
+            hint=hint,
+        )
+
     def common_specs(self) -> list[Spec]:
         book = self.sb.book
         return [
@@ -97,13 +118,13 @@ class EntryForm(ModalScreen[Saved | None]):
                 required=True,
                 hint="plant time",
             ),
-            Spec(
+            self.tag_spec(
                 "by",
-                "By",
+                Technician,
+                "technician",
                 self.preset.get("by", self.sb.tech),
-                [TagValidator(lambda: [t.tag for t in list_all(book, Technician)], "technician")],
-                required=True,
                 hint="initials",
+                label="By",
             ),
             Spec("note", "Note", self.preset.get("note", "")),
         ]

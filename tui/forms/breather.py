@@ -6,11 +6,10 @@ from typing import Any
 
 from store.entries import BreatherSwap, Entry
 from store.journal import BREATHER_REASONS
-from store.register import Breather, find, list_all
+from store.register import Breather, find
 
 from ..widgets.field import Spec
 from .base import EntryForm
-from .validators import TagValidator
 
 REASON_WORDS = {
     "interval": "planned interval",
@@ -33,12 +32,8 @@ class BreatherForm(EntryForm):
             )
         self.first = "reason" if self.target else "breather"
         return [
-            Spec(
-                "breather",
-                "Breather",
-                breather.tag if breather else self.target,
-                [TagValidator(lambda: [b.tag for b in list_all(book, Breather)], "breather")],
-                required=True,
+            self.tag_spec(
+                "breather", Breather, "breather", breather.tag if breather else self.target
             ),
             Spec(
                 "reason",

@@ -6,11 +6,11 @@ from typing import Any
 
 from store.entries import ElementChange, Entry
 from store.journal import CHANGE_REASONS
-from store.register import FilterPosition, find, list_all
+from store.register import FilterPosition, find
 
 from ..widgets.field import Spec
 from .base import EntryForm
-from .validators import NumberValidator, TagValidator
+from .validators import NumberValidator
 
 REASON_WORDS = {
     "limit": "ΔP at change limit",
@@ -34,12 +34,8 @@ class ChangeForm(EntryForm):
         self.first = "reason" if self.target else "filter"
         reason = "limit" if position is None or position.gauge else "indicator"
         return [
-            Spec(
-                "filter",
-                "Filter",
-                position.tag if position else self.target,
-                [TagValidator(lambda: [f.tag for f in list_all(book, FilterPosition)], "filter")],
-                required=True,
+            self.tag_spec(
+                "filter", FilterPosition, "filter", position.tag if position else self.target
             ),
             Spec(
                 "reason",

@@ -5,11 +5,10 @@ from __future__ import annotations
 from typing import Any
 
 from store.entries import Entry, Note
-from store.register import Unit, find, list_all
+from store.register import Unit, find
 
 from ..widgets.field import Spec
 from .base import EntryForm
-from .validators import TagValidator
 
 
 class NoteForm(EntryForm):
@@ -22,11 +21,12 @@ class NoteForm(EntryForm):
             self.heading = f"Note on {unit.tag}"
         self.first = "note"
         specs = [
-            Spec(
+            self.tag_spec(
                 "unit",
-                "Unit",
+                Unit,
+                "unit",
                 unit.tag if unit else "",
-                [TagValidator(lambda: [u.tag for u in list_all(book, Unit)], "unit")],
+                required=False,
                 hint="blank: the whole plant",
             ),
             *self.common_specs(),

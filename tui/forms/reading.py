@@ -6,14 +6,14 @@ from typing import Any
 
 from store.entries import Entry, Reading
 from store.errors import BookError
-from store.register import FilterPosition, find, list_all
+from store.register import FilterPosition, find
 from store.sheets import last_temp_c
 from store.units import parse_pressure_bar, parse_temperature_c
 
 from ..widgets import fmt
 from ..widgets.field import Spec
 from .base import EntryForm
-from .validators import DpValidator, NumberValidator, TagValidator, TemperatureValidator
+from .validators import DpValidator, NumberValidator, TemperatureValidator
 
 INDICATOR_CHOICES = [("clean", "clean"), ("dirty", "dirty"), ("in bypass", "bypass")]
 
@@ -37,12 +37,8 @@ class ReadingForm(EntryForm):
         else:
             self.first = "dp"
         return [
-            Spec(
-                "filter",
-                "Filter",
-                position.tag if position else self.target,
-                [TagValidator(lambda: [f.tag for f in list_all(book, FilterPosition)], "filter")],
-                required=True,
+            self.tag_spec(
+                "filter", FilterPosition, "filter", position.tag if position else self.target
             ),
             Spec(
                 "dp",

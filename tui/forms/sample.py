@@ -5,11 +5,11 @@ from __future__ import annotations
 from typing import Any
 
 from store.entries import Entry, Sample
-from store.register import Unit, find, list_all
+from store.register import Unit, find
 
 from ..widgets.field import Spec
 from .base import EntryForm
-from .validators import CodeValidator, NumberValidator, TagValidator
+from .validators import CodeValidator, NumberValidator
 
 
 def _num(text: str) -> float | None:
@@ -28,13 +28,7 @@ class SampleForm(EntryForm):
         self.first = "code" if unit else "unit"
         count = NumberValidator(0, 1e9, "/mL")
         return [
-            Spec(
-                "unit",
-                "Unit",
-                unit.tag if unit else self.target,
-                [TagValidator(lambda: [u.tag for u in list_all(book, Unit)], "unit")],
-                required=True,
-            ),
+            self.tag_spec("unit", Unit, "unit", unit.tag if unit else self.target),
             Spec("code", "ISO 4406 code", "", [CodeValidator()], hint="e.g. 18/16/13"),
             Spec("c4", "≥4 µm(c) /mL", "", [count], hint="or give the counts"),
             Spec("c6", "≥6 µm(c) /mL", "", [count]),

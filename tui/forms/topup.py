@@ -12,7 +12,7 @@ from store.units import parse_volume_l
 from ..widgets import fmt
 from ..widgets.field import Spec
 from .base import EntryForm
-from .validators import NumberValidator, TagValidator, VolumeValidator
+from .validators import NumberValidator, VolumeValidator
 
 HOW = [("through a filter cart", "filtered"), ("unfiltered (from the drum)", "unfiltered")]
 
@@ -28,13 +28,7 @@ class TopUpForm(EntryForm):
         self.first = "volume" if unit else "unit"
         fluids = list_all(book, Fluid)
         return [
-            Spec(
-                "unit",
-                "Unit",
-                unit.tag if unit else self.target,
-                [TagValidator(lambda: [u.tag for u in list_all(book, Unit)], "unit")],
-                required=True,
-            ),
+            self.tag_spec("unit", Unit, "unit", unit.tag if unit else self.target),
             Spec(
                 "volume",
                 f"Volume {fmt.v_unit(prefs)}",
