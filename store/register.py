@@ -205,9 +205,24 @@ def _check(book: Book, record: Any) -> Any:
     return type(record)(**{**asdict(record), **changes})
 
 
+# Which cached filter statuses a register change can move (settings drive the predictions).
+_STALE_SQL = {
+    # the filter itself, and those whose life statistics pool like positions' lives
+    "filters": "UPDATE status_cache SET stale = 1 WHERE filter = ? OR pools = 1",
+    "units": "UPDATE status_cache SET stale = 1 WHERE filter IN "
+    "(SELECT tag FROM filters WHERE unit = ?)",
+    "fluids": "UPDATE status_cache SET stale = 1 WHERE filter IN (SELECT f.tag FROM filters f "
+    "JOIN units u ON u.tag = f.unit WHERE u.fluid = ?)",
+}
+
+
+def _mark_stale(book: Book, table: str, tag: str) -> None:
+    if table in _STALE_SQL:
+        book.conn.execute(_STALE_SQL[table], [tag])
+
+
 def _log_change(book: Book, table: str, tag: str, field: str, old: Any, new: Any, by: str) -> None:
-    # Settings drive the predictions: a register change makes every cached status stale.
-    book.conn.execute("DELETE FROM status_cache")
+    _mark_stale(book, table, tag)
     book.conn.execute(
         "INSERT INTO register_log(id, at_utc, by, tbl, tag, field, old, new) "
         "VALUES (?, ?, ?, ?, ?, ?, ?, ?)",

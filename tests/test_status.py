@@ -326,3 +326,19 @@ def test_an_hour_meter_read_out_of_turn_does_not_stop_a_save(tmp_path):
         )
         f = one(status.watch(book), "M1-R")
         assert f.readings_since_change == 5 and late.id
+
+
+def test_a_register_change_reaches_the_cached_watch_list(book):
+    t = book.now() - timedelta(days=10)
+    journal.log(book, ElementChange(filter="P1-RF", by="AB", at=t))
+    journal.log(
+        book, Reading(filter="P1-RF", dp_bar=2.0, temp_c=50, by="AB", at=t + timedelta(days=1))
+    )
+    # 2.0 bar against the 2.5 bar limit; the unit's fluid at its normal temperature
+    assert one(status.watch(book), "P1-RF").percent_of_limit == pytest.approx(80.0)
+    register.update(book, FilterPosition, "P1-RF", {"limit_bar": 2.0}, by="AB")
+    assert "over-limit" in one(status.watch(book), "P1-RF").flags
+    # a colder normal temperature (thicker reference oil) makes the reading larger at reference
+    before = one(status.watch(book), "P1-RF").dp_ref_bar
+    register.update(book, Unit, "P1", {"normal_temp_c": 40.0}, by="AB")
+    assert one(status.watch(book), "P1-RF").dp_ref_bar > before
