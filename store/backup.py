@@ -201,6 +201,9 @@ def restore(file: Path, book_path: Path) -> Path | None:
             _replace(source, book_path)
     finally:
         source.close()
+    from .book import forget_check
+
+    forget_check(book_path)  # another file now: the next write checks it again
     return kept
 
 

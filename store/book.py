@@ -9,14 +9,17 @@ from contextlib import contextmanager
 from dataclasses import dataclass
 from datetime import datetime, tzinfo
 from pathlib import Path
+from typing import TYPE_CHECKING
 from urllib.request import pathname2url
 
-import sqlite_utils
 from platformdirs import user_data_dir
 
 from .errors import BookError, NotALogbook, TooNew
 from .schema import APPLICATION_ID, MIGRATIONS, SCHEMA_VERSION
 from .timeutil import parse_utc, utc_now, zone
+
+if TYPE_CHECKING:
+    import sqlite_utils
 
 BUSY_TIMEOUT_MS = 10_000
 ENV_DB = "SUMPBOOK_DB"
@@ -31,22 +34,27 @@ def default_path() -> Path:
 
 @dataclass
 class Book:
-    """An open logbook. `db` is the sqlite-utils handle; `path` the file.
+    """An open logbook: `conn` the SQLite connection, `path` the file.
 
     `readonly` is True when the file or its folder cannot be written (write-protected file,
     read-only medium): the book can be read, and every write fails with a BookError.
     """
 
-    db: sqlite_utils.Database
+    conn: sqlite3.Connection
     path: Path
     readonly: bool = False
 
     @property
-    def conn(self) -> sqlite3.Connection:
-        return self.db.conn
+    def db(self) -> sqlite_utils.Database:
+        """The same connection as a sqlite-utils database, for table-level work. Made on
+        first use: importing sqlite-utils pulls in numpy and click (about 0.1 s), which the
+        app's start and the quick commands do without."""
+        import sqlite_utils
+
+        return sqlite_utils.Database(self.conn)
 
     def close(self) -> None:
-        self.db.conn.close()
+        self.conn.close()
 
     def __enter__(self) -> Book:
         return self
@@ -66,6 +74,7 @@ class Book:
         if conn.in_transaction:
             yield
             return
+        self.ensure_checked()
         try:
             conn.execute("BEGIN IMMEDIATE")
         except sqlite3.Error as exc:
@@ -87,6 +96,12 @@ class Book:
                     "nothing was saved"
                 ) from exc
             raise
+
+    def ensure_checked(self) -> None:
+        """Run the whole-file check once per process before the first write (see `deep_check`);
+        a damaged file raises NotALogbook and nothing is written."""
+        if not self.readonly and _key(self.path) not in _CHECKED:
+            _quick_check(self.conn, self.path)
 
     def now(self) -> datetime:
         """UTC now; a demo book is frozen at the moment its story ends (setting 'clock')."""
@@ -159,6 +174,14 @@ def write_error(exc: sqlite3.Error, path: Path) -> BookError:
     if code in (sqlite3.SQLITE_IOERR, sqlite3.SQLITE_CANTOPEN):
         return BookError(f"the disk failed writing {path} ({exc}): {nothing}; check the medium")
     return BookError(f"could not write {path}: {exc}; {nothing}")
+
+
+def damaged_read(exc: sqlite3.DatabaseError, path: Path) -> BookError:
+    """A read that SQLite refused (a damaged page, most often), as one line of advice."""
+    return NotALogbook(
+        f"{path} could not be read ({exc}): it may be damaged; nothing was written to it; "
+        f"{backup_hint(Path(path))}"
+    )
 
 
 def backup_hint(path: Path) -> str:
@@ -272,6 +295,8 @@ def open_book(path: Path | str | None = None, *, create: bool = True) -> Book:
         path.parent.mkdir(parents=True, exist_ok=True)
     readonly = not new and not writable(path)
     version = 0 if new else inspect(path, readonly)
+    if 0 < version < SCHEMA_VERSION:
+        deep_check(path)  # before an upgrade writes to it
     try:
         conn = _connect(path, readonly=readonly)
     except sqlite3.Error as exc:
@@ -305,13 +330,19 @@ def open_book(path: Path | str | None = None, *, create: bool = True) -> Book:
     except BaseException:
         conn.close()
         raise
-    return Book(db=sqlite_utils.Database(conn), path=path, readonly=readonly)
+    if new:
+        _CHECKED.add(_key(path))  # made here and now: nothing to check
+    return Book(conn=conn, path=path, readonly=readonly)
 
 
 def inspect(path: Path, readonly: bool = True) -> int:
     """Check an existing file before anything is written to it: application id in the
-    header, quick check, schema version. Returns the version; NotALogbook names the latest
-    backup.
+    header, that SQLite can read its schema, schema version. Returns the version;
+    NotALogbook names the latest backup.
+
+    The whole-file check is not made here (it reads every page: seconds on a book of
+    millions of entries): reading needs none (SQLite refuses a damaged page it meets, and
+    the command says so), and the first write of a process runs it (`Book.ensure_checked`).
 
     The check runs on a read-only connection, so a refused file is left as it was; only a
     file with a hot rollback journal (a write cut short in rollback mode) gets a writing
@@ -319,25 +350,59 @@ def inspect(path: Path, readonly: bool = True) -> int:
     """
     hot = Path(f"{path}-journal")
     writer = not readonly and hot.exists() and hot.stat().st_size > 0
+    conn = _checking_connection(path, readonly=not writer)
     try:
-        conn = _connect(path, readonly=not writer)
+        return check_header(conn, path, quick=False)
+    except NotALogbook as exc:
+        raise NotALogbook(f"{exc}; it was left untouched; {backup_hint(path)}") from exc
+    finally:
+        conn.close()
+
+
+def deep_check(path: Path) -> None:
+    """SQLite's quick check of every page of the file, on a read-only connection of its own
+    (the app runs it in the background after the first paint). Once a file has passed, the
+    process does not check it again; damage raises NotALogbook naming the latest backup."""
+    if _key(path) in _CHECKED:
+        return
+    conn = _checking_connection(path, readonly=True)
+    try:
+        _quick_check(conn, path)
+    finally:
+        conn.close()
+
+
+def forget_check(path: Path) -> None:
+    """The file at `path` was replaced (a restore): check it again before the next write."""
+    _CHECKED.discard(_key(path))
+
+
+def _checking_connection(path: Path, readonly: bool) -> sqlite3.Connection:
+    try:
+        return _connect(path, readonly=readonly)
     except sqlite3.Error as exc:
         raise NotALogbook(
             f"{path} is not a sumpbook logbook or is damaged ({exc}); it was left untouched; "
             f"{backup_hint(path)}"
         ) from exc
-    key = str(Path(path).resolve())
+
+
+def _quick_check(conn: sqlite3.Connection, path: Path) -> None:
     try:
-        version = check_header(conn, path, quick=key not in _CHECKED)
-    except NotALogbook as exc:
-        raise NotALogbook(f"{exc}; it was left untouched; {backup_hint(path)}") from exc
-    finally:
-        conn.close()
-    _CHECKED.add(key)
-    return version
+        ok = conn.execute("PRAGMA quick_check").fetchone()[0]
+    except sqlite3.DatabaseError as exc:
+        ok = str(exc)
+    if ok != "ok":
+        raise NotALogbook(
+            f"{path} is damaged (quick check: {ok}); nothing was written to it; {backup_hint(path)}"
+        )
+    _CHECKED.add(_key(path))
 
 
-# Files that passed the whole-file quick check in this process. The check reads every page
-# (seconds on a book of millions of entries); the app's worker threads open the same book
-# again and again, and need only the header checks after the first open.
+def _key(path: Path) -> str:
+    return str(Path(path).resolve())
+
+
+# Files that passed the whole-file quick check in this process (the app's worker threads
+# open the same book again and again).
 _CHECKED: set[str] = set()

@@ -123,7 +123,9 @@ def _from_row(cls: type[R], row: dict[str, Any]) -> R:
 
 
 def _rows(book: Book, sql: str, params: list[Any]) -> list[dict[str, Any]]:
-    return list(book.db.query(sql, params))
+    cursor = book.conn.execute(sql, params)
+    names = [d[0] for d in cursor.description]
+    return [dict(zip(names, row, strict=True)) for row in cursor]
 
 
 def tags(book: Book, table: str) -> list[str]:

@@ -414,11 +414,9 @@ def _compute_part(path: str, tags: list[str], now_text: str) -> list[_Rebuilt]:
     """In a worker process: its own read-only connection to the book."""
     import sqlite3
 
-    import sqlite_utils
-
     conn = sqlite3.connect(f"file:{path}?mode=ro", uri=True, isolation_level=None)
     try:
-        book = Book(db=sqlite_utils.Database(conn), path=Path(path), readonly=True)
+        book = Book(conn=conn, path=Path(path), readonly=True)
         return _compute_in_snapshot(book, tags, _utc(now_text))
     finally:
         conn.close()

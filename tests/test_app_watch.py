@@ -138,3 +138,27 @@ async def test_scales_up_to_a_big_terminal(plant):
         strip = app.screen.query_one("KeyStrip")
         assert strip.region.height == 1  # every key fits on one line at this width
         assert len(tags_shown(app)) == 5
+
+
+async def test_a_damaged_file_is_named_behind_the_first_paint(plant):
+    # Damage behind an intact header (tests/test_corrupt.py does the same to a bare book):
+    # the whole-file check runs after the list is painted and says so, and nothing is written.
+    from store.backup import rolling_backup
+    from store.book import forget_check
+    from tests.test_corrupt import _noise, _overwrite, _root_page
+
+    with open_book(plant, create=False) as book:
+        rolling_backup(book.conn, book.path, "on-close")
+    forget_check(plant)  # as a new process meets it
+    offset, _ = _root_page(plant, "entries")
+    _overwrite(plant, offset + 12, _noise(40))
+    before = plant.read_bytes()
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        assert app.book_checked
+        messages = [n.message for n in app._notifications]
+        assert any("damaged" in m and "sumpbook restore" in m for m in messages)
+        assert not any("Traceback" in m for m in messages)
+    app.book.close()
+    assert plant.read_bytes() == before

@@ -1,5 +1,7 @@
-"""A damaged or foreign file is refused on open, with a clear one-line message and a pointer
-to the latest backup, and nothing is written to it."""
+"""A damaged or foreign file is refused, with a clear one-line message and a pointer to the
+latest backup, and nothing is written to it: on open when the header or schema is hit, at the
+first write of a process (the whole-file check) when the damage is deeper, and with a one-line
+message when a command only reads and meets a damaged page."""
 
 from __future__ import annotations
 
@@ -11,7 +13,7 @@ import pytest
 
 from store import journal, schema
 from store.backup import latest_backup, restore, rolling_backup
-from store.book import open_book
+from store.book import forget_check, open_book
 from store.entries import Note
 from store.errors import NotALogbook
 from tests.conftest import fill_register
@@ -25,6 +27,12 @@ def _logbook(path: Path, notes: int = 300) -> None:
             book, [Note(unit="P1", note=f"round {i} " + "x" * 200, by="AB") for i in range(notes)]
         )
         rolling_backup(book.conn, book.path, "on-close")
+    forget_check(path)  # the tests damage it "later": as a new process would meet it
+
+
+def _write_note(path: Path) -> None:
+    with open_book(path) as book:
+        journal.log(book, Note(unit="P1", note="one more", by="AB"))
 
 
 def _root_page(path: Path, table: str) -> tuple[int, int]:
@@ -99,7 +107,7 @@ def test_damaged_or_foreign_files_are_refused_untouched(tmp_path, kind):
     _damage(kind, path)
     before = path.read_bytes()
     with pytest.raises(NotALogbook) as refused:
-        open_book(path)
+        _write_note(path)
     message = str(refused.value)
     assert "\n" not in message
     assert "damaged" in message or "not a sumpbook logbook" in message
@@ -121,8 +129,9 @@ def test_without_a_backup_the_message_says_so(tmp_path):
         open_book(path)
 
 
-def test_the_quick_check_catches_damage_the_header_hides(tmp_path):
-    # The header is intact (right application id and version): only the check finds it.
+def test_the_first_write_checks_the_whole_file(tmp_path):
+    # The header is intact (right application id and version): only the whole-file check
+    # finds the damage. Opening to read does not run it; the first write does, and refuses.
     path = tmp_path / "logbook.db"
     _logbook(path, notes=600)
     offset, _ = _root_page(path, "entries")
@@ -132,9 +141,30 @@ def test_the_quick_check_catches_damage_the_header_hides(tmp_path):
     assert conn.execute("PRAGMA application_id").fetchone()[0] == schema.APPLICATION_ID
     assert conn.execute("PRAGMA user_version").fetchone()[0] == schema.SCHEMA_VERSION
     conn.close()
-    with pytest.raises(NotALogbook, match="damaged"):
-        open_book(path)
+    with open_book(path, create=False) as book:
+        # reads what is not damaged
+        assert book.conn.execute("SELECT count(*) FROM technicians").fetchone()[0] > 0
+        with pytest.raises(NotALogbook, match="damaged.*nothing was written"):
+            journal.log(book, Note(unit="P1", note="one more", by="AB"))
     assert path.read_bytes() == before
+
+
+def test_a_read_that_meets_damage_says_so_in_one_line(tmp_path, capsys):
+    from tui.cli import main
+
+    path = tmp_path / "logbook.db"
+    _logbook(path, notes=600)
+    offset, _ = _root_page(path, "entries")
+    _overwrite(path, offset + 12, _noise(40))
+    before = path.read_bytes()
+    out = tmp_path / "all.csv"
+    code = main(["--db", str(path), "export", "--from", "2000-01-01T00:00", "-o", str(out)])
+    err = capsys.readouterr().err
+    assert code == 2
+    assert err.count("\n") == 1 and "damaged" in err and "sumpbook restore" in err
+    assert "Traceback" not in err
+    assert path.read_bytes() == before
+    assert not out.exists() and not list(tmp_path.glob("*.part"))  # no half-written export
 
 
 def test_an_empty_file_becomes_a_new_logbook(tmp_path):

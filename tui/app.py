@@ -15,7 +15,7 @@ from textual.theme import Theme
 
 from store import prefs as laptop
 from store import register
-from store.book import Book, default_path, open_book
+from store.book import Book, deep_check, default_path, open_book
 from store.demo import create_demo, demo_path
 from store.entries import BreatherSwap, ElementChange, Reading
 from store.errors import BookError
@@ -138,6 +138,7 @@ class SumpbookApp(App[None]):
         self.statuses: dict[str, WatchRow] = {}
         self.last_message = ""
         self.backup_tried = False
+        self.book_checked = False  # the background whole-file check has finished
         for theme in THEMES.values():
             self.register_theme(theme)
         self.theme = THEMES.get(self.prefs.theme, THEMES["dark"]).name
@@ -335,6 +336,36 @@ class SumpbookApp(App[None]):
         self.last_message = text
         self.notify(text, timeout=8)
 
+    # ---- behind the first paint ----
+
+    def first_paint_done(self) -> None:
+        """The watch list shows: check the whole file and load the fitting maths behind it,
+        so that neither the first save nor the first filter sheet waits for them."""
+        self.book_checked = False
+        self.check_book(self.book.path)
+
+    @work(thread=True, exit_on_error=False, group="book-check", exclusive=True)
+    def check_book(self, path: Path) -> None:
+        try:
+            deep_check(path)
+        except BookError as exc:
+            self.call_from_thread(
+                self.notify,
+                f"{exc}. Saving is refused until it is restored; copy down what you record "
+                "meanwhile.",
+                title="Logbook file damaged",
+                severity="error",
+                timeout=60,
+            )
+        except Exception as exc:  # noqa: BLE001 - the first save checks again and says why
+            self.call_from_thread(
+                self.notify, f"The logbook could not be checked: {exc}", severity="warning"
+            )
+        from store.statuscache import preload
+
+        preload()
+        self.call_from_thread(setattr, self, "book_checked", True)
+
     # ---- first run, demo ----
 
     def first_run_choice(self, what: str | None) -> None:
@@ -367,6 +398,7 @@ class SumpbookApp(App[None]):
         old.close()
         self.demo = demo
         self.statuses = {}
+        self.first_paint_done()
         for mode in ("shift", "register"):
             if mode in self._screen_stacks:
                 self.remove_mode(mode)

@@ -4,12 +4,13 @@ from __future__ import annotations
 
 import argparse
 import os
+import sqlite3
 import sys
 from collections.abc import Callable, Sequence
 from pathlib import Path
 
 from store import journal
-from store.book import ENV_DB, default_path
+from store.book import ENV_DB, damaged_read, default_path
 from store.errors import BookError
 
 from . import commands
@@ -222,6 +223,9 @@ def main(argv: Sequence[str] | None = None) -> int:
             "nothing was written",
             file=sys.stderr,
         )
+        return EXIT_BAD_INPUT
+    except sqlite3.DatabaseError as exc:  # a read met a damaged page (writes are checked first)
+        print(f"sumpbook: {damaged_read(exc, args.db or default_path())}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         return 130

@@ -12,7 +12,7 @@ from textual.binding import Binding
 from textual.screen import Screen
 from textual.worker import get_current_worker
 
-from store.book import Book, open_book
+from store.book import Book, damaged_read, open_book
 from store.errors import BookError
 
 if TYPE_CHECKING:
@@ -104,6 +104,8 @@ class BookScreen(Screen):
 
     def failed(self, exc: BaseException) -> None:
         self.loaded = True
+        if isinstance(exc, sqlite3.DatabaseError):
+            exc = damaged_read(exc, self.sb.book.path)
         self.notify(f"Could not read the logbook: {exc}", severity="error", timeout=8)
 
     # ---- entry keys (screens that mix these in define `target()`) ----

@@ -125,7 +125,14 @@ class WatchScreen(BookScreen):
             area.value = current if current in values else ALL
         self.fill()
         self.query_one(DataTable).loading = False
+        if not self.loaded:
+            self.sb.first_paint_done()
         self.loaded = True
+
+    def failed(self, exc: BaseException) -> None:
+        if not self.loaded:
+            self.sb.first_paint_done()  # the check behind it says more than the failed read
+        super().failed(exc)
 
     # ---- the table ----
 
