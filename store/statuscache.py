@@ -263,8 +263,9 @@ UNIT_FORMAT = 1
 
 def _unit_key(unit: Unit, filters: Sequence[FilterPosition]) -> str:
     """The register rows a unit's status depends on (its own, its filters' ratings)."""
+    own = {f.name: getattr(unit, f.name) for f in fields(unit)}  # asdict, without its deep copy
     return json.dumps(
-        [UNIT_FORMAT, asdict(unit), [[f.tag, f.rating_um] for f in filters]], ensure_ascii=False
+        [UNIT_FORMAT, own, [[f.tag, f.rating_um] for f in filters]], ensure_ascii=False
     )
 
 
