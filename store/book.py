@@ -10,7 +10,7 @@ from dataclasses import dataclass
 from datetime import datetime, tzinfo
 from pathlib import Path
 from typing import TYPE_CHECKING
-from urllib.request import pathname2url
+from urllib.parse import quote
 
 from platformdirs import user_data_dir
 
@@ -96,6 +96,16 @@ class Book:
                     "nothing was saved"
                 ) from exc
             raise
+
+    def content_stamp(self) -> tuple[object, ...]:
+        """Differs from an earlier stamp once anything a screen shows may have changed: a new
+        entry (voids and merges are entries too), a register edit, a setting or the shift
+        pattern, by any program. Derived caches brought up to date leave it as it was."""
+        return self.conn.execute(
+            "SELECT (SELECT max(rowid) FROM entries), (SELECT max(rowid) FROM register_log), "
+            "(SELECT group_concat(key || '=' || value, ';') FROM settings), "
+            "(SELECT group_concat(name || '@' || starts, ';') FROM shifts)"
+        ).fetchone()
 
     def ensure_checked(self) -> None:
         """Run the whole-file check once per process before the first write (see `deep_check`);
@@ -195,7 +205,11 @@ def backup_hint(path: Path) -> str:
 
 
 def _uri(path: Path, mode: str) -> str:
-    return f"file:{pathname2url(str(path))}?mode={mode}"
+    if os.name == "nt":  # drive letters; urllib.request costs ~15 ms of imports elsewhere
+        from urllib.request import pathname2url
+
+        return f"file:{pathname2url(str(path))}?mode={mode}"
+    return f"file:{quote(str(path))}?mode={mode}"  # what pathname2url does on POSIX
 
 
 def _connect(path: Path, readonly: bool = False) -> sqlite3.Connection:

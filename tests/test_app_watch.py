@@ -162,3 +162,31 @@ async def test_a_damaged_file_is_named_behind_the_first_paint(plant):
         assert not any("Traceback" in m for m in messages)
     app.book.close()
     assert plant.read_bytes() == before
+
+
+async def test_the_list_is_read_again_only_when_the_book_may_show_something_else(plant):
+    from store import journal
+    from store.entries import Note
+
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        watch, reads = app.screen, []
+        read = watch.reload
+        watch.reload = lambda: (reads.append(1), read())[-1]
+
+        async def to_sheet_and_back() -> None:
+            await pilot.press("enter")
+            await settle(pilot, FilterSheetScreen)
+            await pilot.press("escape")
+            await settle(pilot, WatchScreen)
+
+        await to_sheet_and_back()
+        assert reads == []  # nothing changed: the list stays as it was shown
+        with open_book(plant, create=False) as book:  # another program writes (the CLI)
+            journal.log(book, Note(unit="P1", note="hose checked", by="AB"))
+        await to_sheet_and_back()
+        assert reads == [1]
+        app.book_changed()  # a change made in the app (a save, a register edit)
+        await to_sheet_and_back()
+        assert reads == [1, 1]

@@ -2,9 +2,12 @@
 
 from __future__ import annotations
 
+import sqlite3
+from concurrent.futures import Future
 from dataclasses import replace
+from importlib import import_module
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from textual import work
 from textual.app import App, SystemCommand
@@ -31,36 +34,43 @@ from store.sheets import (
 )
 from store.timeutil import shift_at
 
-from .forms.base import Saved
-from .forms.breather import BreatherForm
-from .forms.change import ChangeForm
-from .forms.note import NoteForm
-from .forms.reading import ReadingForm
-from .forms.sample import SampleForm
-from .forms.topup import TopUpForm
-from .forms.void import VoidForm
-from .screens.common import guarded, long_name
-from .screens.filter_sheet import FilterSheetScreen
+from .screens.common import guarded, long_name, read_early
 from .screens.first_run import FirstRunScreen
 from .screens.help import HelpScreen
-from .screens.register import RegisterScreen
-from .screens.shift_log import ShiftLogScreen
 from .screens.sign_in import SignInScreen
-from .screens.tag_prompt import TagPrompt
-from .screens.unit_sheet import UnitSheetScreen
-from .screens.watch import WatchScreen
+from .screens.watch import WatchData, WatchScreen, read_watch
 from .widgets import fmt
 from .widgets.palette import BookCommands
 
-FORMS = {
-    "reading": ReadingForm,
-    "change": ChangeForm,
-    "breather": BreatherForm,
-    "topup": TopUpForm,
-    "sample": SampleForm,
-    "note": NoteForm,
-    "void": VoidForm,
+if TYPE_CHECKING:
+    from .forms.base import Saved
+
+# Screens and forms beyond the watch list are imported when first opened: the app's start
+# (to a painted watch list) loads only what that list needs.
+
+FORMS = {  # entry kind -> (module under tui.forms, class)
+    "reading": ("reading", "ReadingForm"),
+    "change": ("change", "ChangeForm"),
+    "breather": ("breather", "BreatherForm"),
+    "topup": ("topup", "TopUpForm"),
+    "sample": ("sample", "SampleForm"),
+    "note": ("note", "NoteForm"),
+    "void": ("void", "VoidForm"),
 }
+
+
+def _lazy(module: str, name: str) -> Any:
+    return getattr(import_module(f"tui.{module}"), name)
+
+
+def shift_log_screen() -> Screen:
+    return _lazy("screens.shift_log", "ShiftLogScreen")()
+
+
+def register_screen() -> Screen:
+    return _lazy("screens.register", "RegisterScreen")()
+
+
 THEMES = {
     "dark": Theme(
         name="sumpbook-dark",
@@ -113,7 +123,7 @@ class SumpbookApp(App[None]):
     TITLE = "sumpbook"
     CSS_PATH = "app.tcss"
     COMMANDS = App.COMMANDS | {BookCommands}
-    MODES = {"watch": WatchScreen, "shift": ShiftLogScreen, "register": RegisterScreen}
+    MODES = {"watch": WatchScreen, "shift": shift_log_screen, "register": register_screen}
     DEFAULT_MODE = "watch"
     BINDINGS = [
         Binding("t,f2", "quick_tag", "Tag", tooltip="Type or scan a tag", id="quick-tag"),
@@ -139,6 +149,8 @@ class SumpbookApp(App[None]):
         self.last_message = ""
         self.backup_tried = False
         self.book_checked = False  # the background whole-file check has finished
+        self.changes = 0  # counted by book_changed
+        self.early_watch: Future[WatchData] | None = None  # the first list, read at load
         for theme in THEMES.values():
             self.register_theme(theme)
         self.theme = THEMES.get(self.prefs.theme, THEMES["dark"]).name
@@ -152,6 +164,10 @@ class SumpbookApp(App[None]):
         if tag and register.find(self.book, Technician, tag) is not None:
             return tag.upper()
         return ""
+
+    def on_load(self) -> None:
+        # Before the terminal and the screens are set up: read the first watch list meanwhile.
+        self.early_watch = read_early(self.book.path, read_watch)
 
     def on_mount(self) -> None:
         self.update_subtitle()
@@ -186,7 +202,16 @@ class SumpbookApp(App[None]):
 
     def book_changed(self) -> None:
         """Something the other screens show has changed: they reload when shown again."""
+        self.changes += 1
         self.update_subtitle()
+
+    def book_stamp(self) -> tuple[object, ...]:
+        """Differs from an earlier stamp when the book may show something else since: a change
+        made here (`book_changed`) or in the file by any program."""
+        try:
+            return self.changes, *self.book.content_stamp()
+        except sqlite3.Error:
+            return self.changes, None
 
     # ---- routing ----
 
@@ -208,16 +233,17 @@ class SumpbookApp(App[None]):
     @guarded
     def open_sheet(self, what: str, tag: str, unit: str) -> None:
         if what == "filter":
-            self.push_screen(FilterSheetScreen(tag))
+            self.push_screen(_lazy("screens.filter_sheet", "FilterSheetScreen")(tag))
         else:
-            self.push_screen(UnitSheetScreen(unit or tag))
+            self.push_screen(_lazy("screens.unit_sheet", "UnitSheetScreen")(unit or tag))
 
     @guarded
     def open_form(self, kind: str, tag: str = "", **preset: str) -> None:
         if isinstance(self.screen, ModalScreen):
             return
         before = self.statuses.get(tag.upper()) if tag else None
-        self.push_screen(FORMS[kind](tag, before=before, **preset), self.saved)
+        form = _lazy(f"forms.{FORMS[kind][0]}", FORMS[kind][1])
+        self.push_screen(form(tag, before=before, **preset), self.saved)
 
     @guarded
     def route_tag(self, action: str, hit: TagHit) -> None:
@@ -237,8 +263,9 @@ class SumpbookApp(App[None]):
         except BookError as exc:
             self.notify(str(exc), severity="error")
             return
+        prompt = _lazy("screens.tag_prompt", "TagPrompt")
         self.push_screen(
-            TagPrompt(hits, self.cursor_blink),
+            prompt(hits, self.cursor_blink),
             lambda hit: self.route_tag("quick", hit) if hit else None,
         )
 
@@ -259,13 +286,7 @@ class SumpbookApp(App[None]):
     def action_help(self) -> None:
         screen = self.screen
         here = [b for b in getattr(type(screen), "BINDINGS", []) if isinstance(b, Binding)]
-        name = {
-            WatchScreen: "the watch list",
-            UnitSheetScreen: "the unit sheet",
-            FilterSheetScreen: "the filter sheet",
-            ShiftLogScreen: "the shift log",
-            RegisterScreen: "the register",
-        }.get(type(screen), "this screen")
+        name = getattr(screen, "HELP_NAME", "this screen")
         anywhere = [b for b in self.BINDINGS if isinstance(b, Binding) and b.show]
         self.push_screen(HelpScreen(name, here, anywhere))
 

@@ -4,8 +4,12 @@ from __future__ import annotations
 
 import functools
 import sqlite3
+import threading
+import time
 from collections.abc import Callable
+from concurrent.futures import Future
 from dataclasses import dataclass
+from pathlib import Path
 from typing import TYPE_CHECKING, Any, TypeVar
 
 from textual.binding import Binding
@@ -21,6 +25,7 @@ if TYPE_CHECKING:
 
 F = TypeVar("F", bound=Callable[..., Any])
 PROBLEMS = (BookError, sqlite3.Error, OSError)
+RESHOW_AFTER_S = 300.0  # a screen shown again after this long reads the book again anyway
 
 
 def guarded(method: F) -> F:
@@ -35,6 +40,23 @@ def guarded(method: F) -> F:
             return None
 
     return wrapper  # type: ignore[return-value]
+
+
+def read_early(path: Path, read: Callable[[Book], Any]) -> Future[Any]:
+    """Start `read` on a connection of its own in a plain thread now (the app calls it while
+    Textual is still starting, so the first list is read meanwhile); the screen's worker then
+    waits for the result with `read_in_thread(..., early=...)`."""
+    future: Future[Any] = Future()
+
+    def job() -> None:
+        try:
+            with open_book(path, create=False) as book:
+                future.set_result(read(book))
+        except BaseException as exc:  # noqa: BLE001 - handed to the screen's worker
+            future.set_exception(exc)
+
+    threading.Thread(target=job, name="early-read", daemon=True).start()
+    return future
 
 
 @dataclass(frozen=True)
@@ -65,12 +87,20 @@ class BookScreen(Screen):
     """A screen that shows the book; it reloads whenever it comes back to the top."""
 
     loaded = False  # set once the first load has been shown (tests wait on it)
+    shown_stamp: tuple[object, ...] | None = None  # the app's book_stamp at the last read
+    shown_at = 0.0  # time.monotonic() then
 
     @property
     def sb(self) -> SumpbookApp:
         return self.app  # type: ignore[return-value]
 
     def on_screen_resume(self) -> None:
+        """Back on top: read again if the book may show something else now (a save, another
+        program's write, or simply time: due dates and ages move on)."""
+        stamp, now = self.sb.book_stamp(), time.monotonic()
+        if self.shown_stamp == stamp and now - self.shown_at < RESHOW_AFTER_S:
+            return
+        self.shown_stamp, self.shown_at = stamp, now
         self.reload()
 
     def reload(self) -> None:
@@ -81,8 +111,10 @@ class BookScreen(Screen):
         read: Callable[[Book], Any],
         show: Callable[[Any], None],
         group: str,
+        early: Future[Any] | None = None,
     ) -> None:
-        """Run `read` on a connection of its own in a worker thread, then `show` the result.
+        """Run `read` on a connection of its own in a worker thread, then `show` the result;
+        with `early`, a read already under way (see `read_early`), wait for it instead.
 
         A failure is shown as a notification, never as a traceback.
         """
@@ -91,8 +123,11 @@ class BookScreen(Screen):
         def job() -> None:
             worker = get_current_worker()
             try:
-                with open_book(path, create=False) as book:
-                    result = read(book)
+                if early is not None:
+                    result = early.result()
+                else:
+                    with open_book(path, create=False) as book:
+                        result = read(book)
             except Exception as exc:  # noqa: BLE001 - shown to the user, not raised
                 if not worker.is_cancelled:
                     self.app.call_from_thread(self.failed, exc)

@@ -29,6 +29,7 @@ BASIS_WORDS = {
 
 
 class FilterSheetScreen(BookScreen):
+    HELP_NAME = "the filter sheet"
     AUTO_FOCUS = "#filter-body"
     BINDINGS = [
         Binding("escape", "back", "Back", tooltip="Back to the list", id="back"),

@@ -93,6 +93,7 @@ def columns(cls: type, prefs: Any) -> list[tuple[str, Any]]:
 
 
 class RegisterScreen(BookScreen):
+    HELP_NAME = "the register"
     AUTO_FOCUS = "#table-units"
     BINDINGS = [
         Binding("a", "add", "Add", tooltip="Add to the register", id="reg-add"),

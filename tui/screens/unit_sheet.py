@@ -19,6 +19,7 @@ from .common import ENTRY_BINDINGS, BookScreen, Target
 
 
 class UnitSheetScreen(BookScreen):
+    HELP_NAME = "the unit sheet"
     AUTO_FOCUS = "#unit-filters"
     BINDINGS = [
         Binding("escape", "back", "Back", tooltip="Back to the list", id="back"),

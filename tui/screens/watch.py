@@ -54,6 +54,7 @@ def read_watch(book: Book) -> WatchData:
 
 
 class WatchScreen(BookScreen):
+    HELP_NAME = "the watch list"
     AUTO_FOCUS = "#watch-table"
     BINDINGS = [
         *ENTRY_BINDINGS,
@@ -109,7 +110,8 @@ class WatchScreen(BookScreen):
 
     def reload(self) -> None:
         self.query_one("#summary", Static).update("recomputing…")
-        self.read_in_thread(read_watch, self.show_data, "watch")
+        early, self.sb.early_watch = self.sb.early_watch, None
+        self.read_in_thread(read_watch, self.show_data, "watch", early=early)
 
     def action_reload(self) -> None:
         self.reload()
