@@ -2,7 +2,8 @@
 the shift log with its handover, tag look-up and form defaults.
 
 Pure reads over the book (through `journal`, `register` and `status`); each returns plain
-dataclasses so the app only formats them. Nothing here writes.
+dataclasses so the app only formats them. Nothing here writes (but the derived caches a
+read may bring up to date, see store/elementcache.py).
 """
 
 from __future__ import annotations
@@ -16,7 +17,7 @@ from datetime import datetime, timedelta
 from . import status
 from .book import Book
 from .conditions import contexts
-from .elements import Element, split_elements
+from .elements import Element, ElementSummary, split_elements
 from .entries import Entry, Reading, Sample, TopUp
 from .fluidcare import Consumption, sample_verdict
 from .journal import read
@@ -382,9 +383,48 @@ def element_rows(elements: Sequence[Element], limit_bar: float | None) -> list[E
     return rows
 
 
+def summary_rows(
+    past: Sequence[ElementSummary], current: Element, limit_bar: float | None
+) -> list[ElementRow]:
+    """`element_rows` from the element cache's summaries of the removed elements and the
+    element in service (the same rows, without rereading the housing's history)."""
+    rows = [
+        ElementRow(
+            fitted_at=s.fitted_at,
+            removed_at=s.removed_at,
+            life_h=s.life_h(),
+            reason=s.reason,
+            condition=s.condition,
+            batch=s.batch,
+            reached_limit=s.reached_limit(limit_bar),
+            readings=s.readings,
+            peak_dp_ref_bar=s.peak_dp_ref_bar,
+        )
+        for s in past
+    ]
+    rows.reverse()
+    return element_rows([current], limit_bar) + rows
+
+
 def filter_sheet(book: Book, tag: str, as_of: datetime | None = None) -> FilterSheet:
-    """Everything the filter sheet shows, computed in full (with the fitted curve)."""
+    """Everything the filter sheet shows, computed in full (with the fitted curve). Now: from
+    the element cache and the readings of the element in service (`statuscache.filter_view`);
+    as of a past time: from the entries as they stood then."""
     position = get(book, FilterPosition, tag)
+    if as_of is None:
+        from .statuscache import filter_view
+
+        full, els = filter_view(book, position.tag)
+        ctx_unit = get(book, Unit, position.unit)
+        return FilterSheet(
+            position=position,
+            unit=ctx_unit,
+            as_of=book.now(),
+            status=full,
+            elements=tuple(summary_rows(els.past, els.current, position.limit_bar)),
+            uses_hours=ctx_unit.hour_meter
+            and (els.current.uses_hours or any(s.uses_hours for s in els.past)),
+        )
     ctx = contexts(book)[position.tag]
     now = as_of or book.now()
     full = status.status_of(book, ctx, as_of)

@@ -18,7 +18,7 @@ from pathlib import Path
 
 import pytest
 
-from store import elementcache, journal, lives, register, status, statuscache
+from store import elementcache, journal, lives, register, sheets, status, statuscache
 from store.book import Book, open_book
 from store.conditions import contexts
 from store.entries import ElementChange, Note, Reading, Sample, TopUp, Void, from_row
@@ -85,6 +85,13 @@ def assert_cache_is_fresh(book: Book) -> None:
         statuscache._encode(f) for f in audit.filters
     ]
     assert cached.units == audit.units
+    # The filter sheet from the element cache shows what it shows computed from the entries.
+    for tag in ctxs:
+        quick, full = sheets.filter_sheet(book, tag), sheets.filter_sheet(book, tag, as_of=now)
+        assert quick.elements == full.elements, tag
+        assert quick.uses_hours == full.uses_hours, tag
+        assert statuscache._encode(quick.status) == statuscache._encode(full.status), tag
+        assert quick.status.history == full.status.history, tag
 
 
 class Writer:
