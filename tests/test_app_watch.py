@@ -190,3 +190,33 @@ async def test_the_list_is_read_again_only_when_the_book_may_show_something_else
         app.book_changed()  # a change made in the app (a save, a register edit)
         await to_sheet_and_back()
         assert reads == [1, 1]
+
+
+async def test_a_sheet_opened_again_shows_only_the_new_filter(plant):
+    from store import sheets
+
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        tags = tags_shown(app)
+        seen = []
+        for tag in ("P1-RF", "P2-RF", "P1-RF"):
+            app.screen.query_one(DataTable).move_cursor(row=tags.index(tag))
+            await pilot.press("enter")
+            await settle(pilot, FilterSheetScreen)
+            sheet = app.screen
+            seen.append(sheet)
+            assert sheet.tag == tag and sheet.sheet.position.tag == tag
+            assert str(sheet.query_one("#sheet-title").render()).startswith(f"FILTER {tag}")
+            with open_book(plant, create=False) as book:
+                rows = sheets.filter_sheet(book, tag).elements
+            assert sheet.query_one("#elements", DataTable).row_count == len(rows)
+            await pilot.press("escape")
+            await settle(pilot, WatchScreen)
+        assert seen[0] is seen[1] is seen[2]  # one screen kept, its content changed
+        # Before the new filter is read, nothing of the one before is on show.
+        kept = app.filter_sheet_for("P2-RF")
+        assert kept is seen[0] and kept.sheet is None
+        assert kept.query_one("#elements", DataTable).row_count == 0
+        assert str(kept.query_one("#sheet-title").render()) == "FILTER P2-RF"
+        assert str(kept.query_one("#forecast").render()) == "reading the book…"

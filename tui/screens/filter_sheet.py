@@ -73,6 +73,20 @@ class FilterSheetScreen(BookScreen):
         )
         self.query_one("#filter-body").focus()
 
+    def show_tag(self, tag: str) -> None:
+        """Make this (kept) sheet show another filter: nothing of the one before stays on show
+        while the new one is read."""
+        self.tag, self.sheet, self.loaded, self.shown_stamp = tag, None, False, None
+        if not self.is_mounted:
+            return
+        self.query_one("#sheet-title", Static).update(f"FILTER {tag}")
+        for part in ("#reference", "#cold", "#life", "#notes"):
+            self.query_one(part, Static).update("")
+        self.query_one("#forecast", Static).update("reading the book…")
+        self.query_one("#elements", DataTable).clear()
+        self.query_one(FilterPlot).show(None, self.sb.prefs)
+        self.query_one("#filter-body", VerticalScroll).scroll_home(animate=False)
+
     def reload(self) -> None:
         tag = self.tag
         self.read_in_thread(lambda b: filter_sheet(b, tag), self.show_sheet, "filter-sheet")

@@ -44,7 +44,7 @@ class FilterPlot(PlotextPlot):
         self.sheet: FilterSheet | None = None
         self.prefs = Prefs()
 
-    def show(self, sheet: FilterSheet, prefs: Prefs) -> None:
+    def show(self, sheet: FilterSheet | None, prefs: Prefs) -> None:
         self.sheet, self.prefs = sheet, prefs
         self.draw()
 
