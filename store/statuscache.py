@@ -220,6 +220,14 @@ def stale_filters(
     ]
 
 
+def stale_count(book: Book, max_age: timedelta = MAX_AGE) -> int:
+    """How many filters `refresh_stale` would recompute (no contexts built: a quick count for
+    a screen that shows the kept rows at once)."""
+    now, rows = book.now(), _rows(book)
+    tags = book.conn.execute("SELECT tag FROM filters")
+    return sum(1 for (tag,) in tags if not _usable(rows.get(tag.upper()), now, max_age))
+
+
 def cached_filters(
     book: Book,
     ctxs: Sequence[FilterContext],

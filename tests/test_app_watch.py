@@ -220,3 +220,34 @@ async def test_a_sheet_opened_again_shows_only_the_new_filter(plant):
         assert kept.query_one("#elements", DataTable).row_count == 0
         assert str(kept.query_one("#sheet-title").render()) == "FILTER P2-RF"
         assert str(kept.query_one("#forecast").render()) == "reading the book…"
+
+
+async def test_rows_older_than_a_day_show_at_once_and_are_caught_up_behind(plant, monkeypatch):
+    # After a weekend every kept status is older than a day: the list shows them at once and
+    # recomputes them behind, instead of making the technician wait for all of them.
+    from datetime import timedelta
+
+    from store import statuscache
+    from store.timeutil import format_utc
+    from tui.screens import watch as watch_module
+
+    with open_book(plant, create=False) as book:  # the plant's clock, three days on
+        book.set_setting("clock", format_utc(kit.CLOCK + timedelta(days=3)))
+    shown = []
+    show = watch_module.WatchScreen.show_data
+
+    def spy(screen, data):
+        shown.append(data)
+        show(screen, data)
+
+    monkeypatch.setattr(watch_module.WatchScreen, "show_data", spy)
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        assert "updating" not in str(app.screen.query_one("#summary").render())
+    with open_book(plant, create=False) as book:
+        filters = len(status.watch(book, max_age=None).filters)
+        assert statuscache.stale_count(book) == 0  # kept again, as of the new clock
+        fresh = watch_module.read_watch(book, fresh=True)
+    assert shown[0].stale == filters == 3  # the first paint: every row as kept
+    assert shown[-1].stale == 0 and shown[-1].rows == fresh.rows

@@ -10,7 +10,7 @@ from textual.binding import Binding
 from textual.containers import Horizontal
 from textual.widgets import DataTable, Header, Input, Select, Static
 
-from store import status
+from store import status, statuscache
 from store.book import Book
 from store.register import Unit, list_all
 from store.sheets import Summary, WatchRow, row_matches, summarise, watch_rows
@@ -31,10 +31,14 @@ class WatchData:
     as_of_text: str
     shift_text: str
     areas: list[tuple[str, str]]  # Select options
+    stale: int  # rows shown as kept that are older than a day or marked stale
 
 
-def read_watch(book: Book) -> WatchData:
-    w = status.watch(book)
+def read_watch(book: Book, fresh: bool = False) -> WatchData:
+    """The list as kept in the caches, at once: rows older than a day (after a weekend,
+    most of them) are shown as they are and counted, for `catch_up` to recompute behind.
+    `fresh`: recompute such rows first."""
+    w = status.watch(book) if fresh else status.watch(book, max_age=None)
     rows = watch_rows(w)
     local = book.local_zone()
     span = shift_at(w.as_of, book.shift_pattern(), local)
@@ -50,7 +54,15 @@ def read_watch(book: Book) -> WatchData:
         as_of_text=fmt.short_stamp(w.as_of, local),
         shift_text=f"{span.name} to {span.end.astimezone(local):%H:%M}",
         areas=options,
+        stale=0 if fresh else statuscache.stale_count(book),
     )
+
+
+def catch_up(book: Book) -> WatchData:
+    """Recompute the stale rows (each kept as it is done, where the book can be written),
+    then the list with nothing stale."""
+    statuscache.refresh_stale(book)
+    return read_watch(book, fresh=True)
 
 
 class WatchScreen(BookScreen):
@@ -68,6 +80,7 @@ class WatchScreen(BookScreen):
         super().__init__(id="watch")
         self.data: WatchData | None = None
         self.shown: list[WatchRow] = []
+        self.catching_up = False  # stale rows are being recomputed behind the list
 
     def compose(self) -> ComposeResult:
         yield Header(icon="≋")
@@ -130,10 +143,18 @@ class WatchScreen(BookScreen):
         if not self.loaded:
             self.sb.first_paint_done()
         self.loaded = True
+        if data.stale and not self.catching_up:
+            self.catching_up = True
+            self.read_in_thread(catch_up, self.caught_up, "watch-catch-up")
+
+    def caught_up(self, data: WatchData) -> None:
+        self.show_data(data)
+        self.catching_up = False
 
     def failed(self, exc: BaseException) -> None:
         if not self.loaded:
             self.sb.first_paint_done()  # the check behind it says more than the failed read
+        self.catching_up = False
         super().failed(exc)
 
     # ---- the table ----
@@ -197,6 +218,8 @@ class WatchScreen(BookScreen):
         if len(self.shown) != len(data.rows):
             text.append(f"{len(self.shown)} of {len(data.rows)} shown · ")
         text.append(f"as of {data.as_of_text}, {data.shift_text}")
+        if data.stale:
+            text.append(f" · updating {data.stale} rows older than a day…", style="italic")
         self.query_one("#summary", Static).update(text)
 
     def current(self) -> WatchRow | None:
