@@ -15,7 +15,6 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import UTC, date, datetime, time, timedelta, tzinfo
 
-from dateutil import parser as date_parser
 from dateutil import tz
 
 from .errors import BookError
@@ -28,8 +27,16 @@ MAX_AHEAD = timedelta(days=1)
 def utc_now() -> datetime:
     fixed = os.environ.get(ENV_NOW)
     if fixed:
-        return to_utc(date_parser.isoparse(fixed), tz.UTC)
+        return to_utc(_isoparse(fixed), tz.UTC)
     return datetime.now(UTC).replace(microsecond=0)
+
+
+def _isoparse(text: str) -> datetime:
+    """dateutil's ISO 8601 parser (it takes more forms than datetime.fromisoformat), imported
+    on first use: the watch list and status --json parse no typed times."""
+    from dateutil import parser as date_parser
+
+    return date_parser.isoparse(text)
 
 
 def to_utc(moment: datetime, local: tzinfo) -> datetime:
@@ -77,7 +84,7 @@ def parse_time(
 ) -> datetime:
     """Any ISO 8601 time (naive means plant-local) -> UTC; refuses a time far ahead."""
     try:
-        moment = date_parser.isoparse(text.strip())
+        moment = _isoparse(text.strip())
     except (ValueError, OverflowError) as exc:
         raise BookError(f"'{text}' is not an ISO 8601 time (e.g. 2026-05-13T07:30)") from exc
     result = to_utc(moment, local)
