@@ -3,28 +3,42 @@
 from __future__ import annotations
 
 import argparse
+import functools
 import json
 import sys
 from pathlib import Path
-from typing import Any
-
-from rich.console import Console
+from typing import TYPE_CHECKING, Any
 
 from store import journal, register
 from store import prefs as laptop
 from store.book import Book, default_path, open_book
 from store.csvio import Prefs as CsvPrefs
-from store.csvio import import_csv, write_csv
+from store.csvio import import_csv
 from store.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp, Void
 from store.errors import BookError
 from store.register import Breather, FilterPosition, Fluid, Technician, Unit
 from store.timeutil import parse_time, previous_shift, shift_at, shift_named
 from store.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
 
-from . import render
+if TYPE_CHECKING:
+    from rich.console import Console
 
-# Piped output (grep, files, tests) gets wide lines instead of wrapped cells.
-console = Console(highlight=False, width=None if sys.stdout.isatty() else 200)
+
+@functools.cache
+def console(stderr: bool = False) -> Console:
+    """Rich, imported on first use: `status --json` and the exports print no tables.
+    Piped output (grep, files, tests) gets wide lines instead of wrapped cells."""
+    from rich.console import Console
+
+    if stderr:
+        return Console(stderr=True)
+    return Console(highlight=False, width=None if sys.stdout.isatty() else 200)
+
+
+def _render() -> Any:
+    from . import render
+
+    return render
 
 
 def _book(args: argparse.Namespace, create: bool = False) -> Book:
@@ -60,7 +74,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
     with create_demo(path, force=args.force) as book:
         units = len(register.list_all(book, Unit))
         entries = journal.count(book)
-    console.print(f"demo plant written to {path}: {units} units, {entries} entries")
+    console().print(f"demo plant written to {path}: {units} units, {entries} entries")
     return 0
 
 
@@ -81,7 +95,7 @@ def cmd_register(args: argparse.Namespace) -> int:
             if any(len(p) != 2 for p in pattern):
                 raise BookError("give shifts as NAME=HH:MM, e.g. early=06:00")
             shifts = register.set_shifts(book, pattern, by)  # type: ignore[arg-type]
-            console.print("shifts: " + ", ".join(f"{s.name} from {s.starts}" for s in shifts))
+            console().print("shifts: " + ", ".join(f"{s.name} from {s.starts}" for s in shifts))
             return 0
         if what == "change":
             return _register_change(book, args, by)
@@ -139,7 +153,7 @@ def cmd_register(args: argparse.Namespace) -> int:
                 swap_interval_d=args.every,
             )
         added = register.add(book, record, by)
-        console.print(f"registered {what} {added.tag}")
+        console().print(f"registered {what} {added.tag}")
     return 0
 
 
@@ -167,7 +181,7 @@ def _register_change(book: Book, args: argparse.Namespace, by: str) -> int:
             changes[name] = register.parse_field(cls, name, text)
     updated = register.update(book, cls, args.tag, changes, by)
     for key in changes:
-        console.print(f"{updated.tag} {key}: {getattr(current, key)} -> {getattr(updated, key)}")
+        console().print(f"{updated.tag} {key}: {getattr(current, key)} -> {getattr(updated, key)}")
     return 0
 
 
@@ -196,9 +210,9 @@ def cmd_list(args: argparse.Namespace) -> int:
             entries = journal.read(
                 book, since=since, unit=args.unit, newest_first=True, limit=args.limit
             )
-            console.print(render.entries_table(book, list(reversed(entries)), prefs))
+            console().print(_render().entries_table(book, list(reversed(entries)), prefs))
         else:
-            console.print(render.register_table(book, args.what, args.unit, prefs))
+            console().print(_render().register_table(book, args.what, args.unit, prefs))
     return 0
 
 
@@ -263,9 +277,9 @@ def cmd_log(args: argparse.Namespace) -> int:
         else:
             entry = Void(voids=args.id, **{**common, "note": args.reason})
         saved = journal.log(book, entry)
-        console.print(render.saved_line(book, saved, prefs))
+        console().print(_render().saved_line(book, saved, prefs))
         if kind in ("change", "breather"):
-            console.print(render.CAUTION_SHORT)
+            console().print(_render().CAUTION_SHORT)
     return 0
 
 
@@ -292,16 +306,20 @@ def cmd_status(args: argparse.Namespace) -> int:
         unit = register.get(book, Unit, args.unit).tag if args.unit else None
         watch = status.watch(book, as_of=as_of, unit=unit)
         if args.json:
-            json.dump(
-                status.to_json(watch, book.local_zone()), sys.stdout, indent=1, ensure_ascii=False
+            # One line, no indent: json's C encoder does it (an indent means the pure-Python
+            # one, ten times slower on a big plant); pipe it to a pretty-printer to read it.
+            sys.stdout.write(
+                json.dumps(status.to_json(watch, book.local_zone()), ensure_ascii=False)
             )
             sys.stdout.write("\n")
         else:
-            console.print(render.watch_table(book, watch, prefs))
+            console().print(_render().watch_table(book, watch, prefs))
     return 0
 
 
 def cmd_export(args: argparse.Namespace) -> int:
+    from store.csvexport import write_span
+
     prefs = laptop.load()
     with _book(args) as book:
         local, pattern = book.local_zone(), book.shift_pattern()
@@ -322,21 +340,23 @@ def cmd_export(args: argparse.Namespace) -> int:
             else:
                 span = shift_named(args.shift, pattern, local)
             start, end = span.start, span.end
-        entries = journal.read(book, since=start, until=end)
         csv_prefs = CsvPrefs(prefs.pressure, prefs.temperature, prefs.volume)
         if args.output:
             out_path: Path = args.output
             tmp = out_path.with_name(out_path.name + ".part")
             try:
                 with tmp.open("w", encoding="utf-8", newline="") as out:
-                    count = write_csv(out, book, entries, csv_prefs, local, pattern)
+                    count = write_span(out, book, start, end, csv_prefs, local, pattern)
                 tmp.replace(out_path)
             except OSError as exc:
                 tmp.unlink(missing_ok=True)
                 raise BookError(f"cannot write {out_path}: {exc.strerror}") from exc
-            Console(stderr=True).print(f"{count} entries written to {out_path}")
+            except BaseException:
+                tmp.unlink(missing_ok=True)  # a read that failed half-way leaves no file
+                raise
+            console(stderr=True).print(f"{count} entries written to {out_path}")
         else:
-            write_csv(sys.stdout, book, entries, csv_prefs, local, pattern)
+            write_span(sys.stdout, book, start, end, csv_prefs, local, pattern)
     return 0
 
 
@@ -347,7 +367,7 @@ def cmd_import(args: argparse.Namespace) -> int:
         raise BookError(f"cannot read {args.file}: {exc.strerror}") from exc
     with _book(args) as book:
         result = import_csv(book, data, book.local_zone())
-    console.print(
+    console().print(
         f"imported {result.added} entries"
         + (f"; {result.skipped} were in the book already" if result.skipped else "")
     )
@@ -371,7 +391,7 @@ def cmd_prefs(args: argparse.Namespace) -> int:
                 changes["tech"] = register.get(book, Technician, changes["tech"]).tag
         current = laptop.save(current, **changes)
     for key, value in current.__dict__.items():
-        console.print(f"{key} = {value}")
+        console().print(f"{key} = {value}")
     return 0
 
 
@@ -391,7 +411,7 @@ def cmd_plant(args: argparse.Namespace) -> int:
                     zone(value)
                 book.set_setting(key, value)
         for key in ("name", "timezone", "backup_keep"):
-            console.print(f"{key} = {book.setting(key, '') or '(this computer' + chr(39) + 's)'}")
+            console().print(f"{key} = {book.setting(key, '') or '(this computer' + chr(39) + 's)'}")
     return 0
 
 
@@ -403,7 +423,7 @@ def cmd_backup(args: argparse.Namespace) -> int:
 
     with _book(args) as book:
         dest = copy_to(book.conn, args.dest)
-    console.print(f"backup written to {dest}")
+    console().print(f"backup written to {dest}")
     return 0
 
 
@@ -412,7 +432,7 @@ def cmd_restore(args: argparse.Namespace) -> int:
 
     path = args.db or default_path()
     kept = restore(Path(args.file), path)
-    console.print(
+    console().print(
         f"restored {args.file} into {path}"
         + (f"; the previous logbook is kept as {kept}" if kept else "")
     )
@@ -424,9 +444,9 @@ def cmd_merge(args: argparse.Namespace) -> int:
 
     with _book(args) as book:
         report = merge(book, Path(args.other))
-    console.print(report.summary())
+    console().print(report.summary())
     for conflict in report.conflicts:
-        console.print(f"  conflict: {conflict}")
+        console().print(f"  conflict: {conflict}")
     return 0 if not report.conflicts else 1
 
 
@@ -435,5 +455,5 @@ def cmd_rebuild(args: argparse.Namespace) -> int:
 
     with _book(args) as book:
         count = rebuild(book)
-    console.print(f"status rebuilt for {count} filters")
+    console().print(f"status rebuilt for {count} filters")
     return 0
