@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import gc
 import sqlite3
+import time
 from concurrent.futures import Future
 from dataclasses import replace
 from importlib import import_module
@@ -151,6 +152,7 @@ class SumpbookApp(App[None]):
         self.backup_tried = False
         self.book_checked = False  # the background whole-file check has finished
         self.changes = 0  # counted by book_changed
+        self.check_seconds = 0.0  # how long the last whole-file check (and preload) took
         self.kept_filter_sheet: Any = None  # see filter_sheet_for
         self.early_watch: Future[WatchData] | None = None  # the first list, read at load
         for theme in THEMES.values():
@@ -388,6 +390,7 @@ class SumpbookApp(App[None]):
 
     @work(thread=True, exit_on_error=False, group="book-check", exclusive=True)
     def check_book(self, path: Path) -> None:
+        started = time.perf_counter()
         try:
             deep_check(path)
         except BookError as exc:
@@ -406,6 +409,7 @@ class SumpbookApp(App[None]):
         from store.statuscache import preload
 
         preload()
+        self.check_seconds = time.perf_counter() - started  # the speed benchmark reports it
         self.call_from_thread(setattr, self, "book_checked", True)
 
     # ---- first run, demo ----
