@@ -15,13 +15,20 @@ from __future__ import annotations
 
 import csv
 import io
+import multiprocessing
+import os
 import re
+import shutil
 import sqlite3
+import tempfile
+import threading
 from collections.abc import Callable, Iterable, Iterator, Sequence
+from concurrent.futures import ProcessPoolExecutor
 from contextlib import contextmanager
 from dataclasses import dataclass, fields
 from datetime import UTC, datetime, timedelta, tzinfo
 from itertools import islice
+from pathlib import Path
 from typing import IO, Any
 
 from .book import Book
@@ -85,18 +92,29 @@ _INF = float("inf")
 _BATCH = 4096  # lines written to the file at a time
 
 
-def span_query(start: datetime | None, end: datetime | None) -> tuple[str, list[str]]:
+def span_query(start: datetime | None, end: datetime | None) -> tuple[str, list[Any]]:
     """The SQL and parameters for every entry in [start, end), ordered as `journal.read`
     orders them (time, then the order they were written)."""
-    where, params = [], []
-    if start is not None:
-        where.append("e.at_utc >= ?")
-        params.append(format_utc(start))
-    if end is not None:
-        where.append("e.at_utc < ?")
-        params.append(format_utc(end))
-    sql = _SELECT + (" WHERE " + " AND ".join(where) if where else "")
-    return sql + " ORDER BY e.at_utc, e.rowid", params
+    return _span_sql(
+        None if start is None else format_utc(start), None if end is None else format_utc(end)
+    )
+
+
+def _span_sql(
+    start: str | None, end: str | None, upto: int | None = None, select: str = _SELECT
+) -> tuple[str, list[Any]]:
+    """`span_query` with the bounds as stored stamps; `upto`: entries written up to that
+    rowid only (what another process of the same export saw when it began)."""
+    where: list[str] = []
+    params: list[Any] = []
+    for bound, test in ((start, "e.at_utc >= ?"), (end, "e.at_utc < ?"), (upto, "+e.rowid <= ?")):
+        if bound is not None:
+            where.append(test)
+            params.append(bound)
+    sql = select + (" WHERE " + " AND ".join(where) if where else "")
+    if select is _SELECT:
+        sql += " ORDER BY e.at_utc, e.rowid"
+    return sql, params
 
 
 def canonical_stamp(text: str) -> str:
@@ -342,7 +360,12 @@ class SpanLines:
     """Rows of the span query -> CSV lines."""
 
     def __init__(
-        self, book: Book, prefs: Prefs, local: tzinfo, pattern: list[tuple[str, str]]
+        self,
+        book: Book,
+        prefs: Prefs,
+        local: tzinfo,
+        pattern: list[tuple[str, str]],
+        upto: int | None = None,
     ) -> None:
         columns = prefs.columns()
         self.header = csv_line(columns)
@@ -351,7 +374,8 @@ class SpanLines:
         self.pressure = pressure_key(prefs.pressure)
         self.contexts = contexts(book)
         self.conn = book.conn
-        self.voided_by = dict(book.conn.execute(_SELECT_VOIDS).fetchall())
+        voids = _SELECT_VOIDS if upto is None else f"{_SELECT_VOIDS} AND rowid <= {int(upto)}"
+        self.voided_by = dict(book.conn.execute(voids).fetchall())
         self.references: dict[str, FilterReference | None] = {}
         self.time, self.shift = columns.index("time"), columns.index("shift")
         self.void = columns.index("voided_by")
@@ -399,6 +423,13 @@ class SpanLines:
         return self.references[tag]
 
 
+# A span of at least this many entries is written by two processes (on a machine with two
+# cores or more): the first half here, the second half in a child process, joined in order.
+# Below it, starting the child (a new interpreter) costs more than it saves.
+SECOND_PROCESS_FROM = 150_000
+SECOND_SHARE = 0.46  # of the entries: the child opens the book and reads the register first
+
+
 def write_span(
     out: IO[str],
     book: Book,
@@ -407,22 +438,91 @@ def write_span(
     prefs: Prefs,
     local: tzinfo,
     pattern: list[tuple[str, str]],
+    processes: int | None = None,
 ) -> int:
     """Write the entries logged in [start, end) as the shift-log CSV; returns how many.
 
     The same text as `csvio.write_csv(out, book, journal.read(book, since=start,
     until=end), prefs, local, pattern)`; None leaves that end of the span open.
+    `processes`: at most this many (default: 2 where the machine has two cores).
     """
-    sql, params = span_query(start, end)
-    count = 0
+    start_text = None if start is None else format_utc(start)
+    end_text = None if end is None else format_utc(end)
+    if processes is None:
+        processes = min(2, os.cpu_count() or 1)
+    if not _can_fork():
+        processes = 1
     with read_snapshot(book.conn):
         span_lines = SpanLines(book, prefs, local, pattern)
         out.write(span_lines.header)
-        lines = span_lines.lines(book.conn.execute(sql, params))
-        while batch := list(islice(lines, _BATCH)):
-            out.write("\r\n".join(batch) + "\r\n")
-            count += len(batch)
+        cut = _halfway(book, start_text, end_text) if processes > 1 else None
+        if cut is None:
+            sql, params = _span_sql(start_text, end_text)
+            return _write_lines(out, span_lines.lines(book.conn.execute(sql, params)))
+        upto = book.conn.execute("SELECT max(rowid) FROM entries").fetchone()[0]
+        context = multiprocessing.get_context("fork")  # the child needs no imports again
+        with tempfile.TemporaryDirectory(prefix="sumpbook-export-") as folder:
+            part = Path(folder) / "second-half.csv"
+            with ProcessPoolExecutor(1, mp_context=context) as pool:
+                later = pool.submit(
+                    _write_part, str(book.path), cut, end_text, upto, prefs, local, pattern,
+                    str(part),
+                )  # fmt: skip
+                sql, params = _span_sql(start_text, cut)
+                count = _write_lines(out, span_lines.lines(book.conn.execute(sql, params)))
+                count += later.result()
+            with part.open(encoding="utf-8", newline="") as second:
+                shutil.copyfileobj(second, out, 1 << 20)
     return count
+
+
+def _can_fork() -> bool:
+    """A second process by fork: only where there is fork, and only from a process with no
+    other thread (a fork copies one thread and whatever locks the others held: the app's
+    exports, which run in a worker thread, stay in one process)."""
+    return "fork" in multiprocessing.get_all_start_methods() and threading.active_count() == 1
+
+
+def _write_lines(out: IO[str], lines: Iterator[str]) -> int:
+    count = 0
+    while batch := list(islice(lines, _BATCH)):
+        out.write("\r\n".join(batch) + "\r\n")
+        count += len(batch)
+    return count
+
+
+def _halfway(book: Book, start: str | None, end: str | None) -> str | None:
+    """The stored stamp that splits the span in two, SECOND_SHARE of its entries in the
+    second part (which begins with it), or None when the span is too small to share out."""
+    sql, params = _span_sql(start, end, select="SELECT count(*) FROM entries e")
+    count = book.conn.execute(sql, params).fetchone()[0]
+    if count < SECOND_PROCESS_FROM:
+        return None
+    sql, params = _span_sql(start, end)
+    sql = sql.replace(_SELECT, "SELECT e.at_utc FROM entries e", 1) + " LIMIT 1 OFFSET ?"
+    cut = book.conn.execute(sql, [*params, round(count * (1 - SECOND_SHARE))]).fetchone()[0]
+    return None if start is not None and cut <= start else cut
+
+
+def _write_part(
+    path: str,
+    start: str,
+    end: str | None,
+    upto: int,
+    prefs: Prefs,
+    local: tzinfo,
+    pattern: list[tuple[str, str]],
+    dest: str,
+) -> int:
+    """In the child process: the lines of [start, end) as they stood at rowid `upto`, without
+    the header, into the file `dest`."""
+    from .book import open_book
+
+    with open_book(path, create=False) as book, read_snapshot(book.conn):
+        span_lines = SpanLines(book, prefs, local, pattern, upto)
+        sql, params = _span_sql(start, end, upto)
+        with open(dest, "w", encoding="utf-8", newline="") as out:
+            return _write_lines(out, span_lines.lines(book.conn.execute(sql, params)))
 
 
 @contextmanager

@@ -367,3 +367,61 @@ def test_an_export_inside_a_transaction_leaves_it_open(plant):
         assert plant.conn.in_transaction
     assert not plant.conn.in_transaction
     assert out.getvalue() == old
+
+
+# ---- two processes ------------------------------------------------------------------------------
+
+
+def test_two_processes_write_what_one_writes(demo, monkeypatch):
+    # A year of a big plant is shared with a child process; here the threshold is lowered so
+    # that the demo plant is shared too, and the reference is still the entry-based export.
+    from store import csvexport
+
+    cuts = []
+    halfway = csvexport._halfway
+
+    def spy(*args):
+        cuts.append(halfway(*args))
+        return cuts[-1]
+
+    monkeypatch.setattr(csvexport, "SECOND_PROCESS_FROM", 50)
+    monkeypatch.setattr(csvexport, "_can_fork", lambda: True)  # pytest may run a thread
+    monkeypatch.setattr(csvexport, "_halfway", spy)
+    for start, end in ((None, None), (local_moment(demo, "2026-10-01T00:00"), None)):
+        assert_same(demo, start, end, Prefs("psi", "F", "gal"))
+    assert len(cuts) == 2 and all(cuts)  # both were written by two processes
+
+
+def test_the_second_process_sees_the_book_as_the_first_did(book):
+    # Entries written after the export began (rowid beyond `upto`) are not in the child's
+    # part, and neither is a void written then.
+    from store import csvexport
+
+    notes = journal.log_many(book, [Note(unit="P1", note=f"n{i}", by="AB") for i in range(4)])
+    upto = book.conn.execute("SELECT max(rowid) FROM entries").fetchone()[0]
+    later = journal.log(book, Note(unit="P1", note="written during the export", by="AB"))
+    journal.log(book, Void(voids=notes[0].id, note="typed twice", by="AB"))
+    part = book.path.with_name("part.csv")
+    local, pattern = book.local_zone(), book.shift_pattern()
+    count = csvexport._write_part(
+        str(book.path), "2000-01-01T00:00:00Z", None, upto, Prefs(), local, pattern, str(part)
+    )
+    text = part.read_bytes().decode("utf-8")  # as written: CR LF kept
+    assert count == 4 and text.count("\r\n") == 4
+    assert later.id not in text and "typed twice" not in text
+    assert all(n.id in text for n in notes)
+
+
+def test_an_export_from_a_threaded_process_stays_in_one_process():
+    import threading
+
+    from store import csvexport
+
+    stop = threading.Event()
+    other = threading.Thread(target=stop.wait)
+    other.start()
+    try:
+        assert not csvexport._can_fork()  # a fork would copy this thread's locks, not it
+    finally:
+        stop.set()
+        other.join()
