@@ -354,7 +354,9 @@ def cmd_export(args: argparse.Namespace) -> int:
             except BaseException:
                 tmp.unlink(missing_ok=True)  # a read that failed half-way leaves no file
                 raise
-            console(stderr=True).print(f"{count} entries written to {out_path}")
+            console(stderr=True).print(
+                f"{count} {'entry' if count == 1 else 'entries'} written to {out_path}"
+            )
         else:
             write_span(sys.stdout, book, start, end, csv_prefs, local, pattern)
     return 0

@@ -267,4 +267,6 @@ class ShiftLogScreen(BookScreen):
         if exc is not None:
             self.notify(f"Export failed: {exc}", severity="error", timeout=8)
         else:
-            self.notify(f"{count} entries written to {dest}", timeout=6)
+            self.notify(
+                f"{count} {'entry' if count == 1 else 'entries'} written to {dest}", timeout=6
+            )
