@@ -20,6 +20,7 @@ import os
 import re
 import shutil
 import sqlite3
+import sys
 import tempfile
 import threading
 from collections.abc import Callable, Iterable, Iterator, Sequence
@@ -477,10 +478,11 @@ def write_span(
 
 
 def _can_fork() -> bool:
-    """A second process by fork: only where there is fork, and only from a process with no
-    other thread (a fork copies one thread and whatever locks the others held: the app's
-    exports, which run in a worker thread, stay in one process)."""
-    return "fork" in multiprocessing.get_all_start_methods() and threading.active_count() == 1
+    """A second process by fork: only on Linux (macOS has fork, but its system libraries are
+    not safe across one; Windows has none), and only from a process with no other thread (a
+    fork copies one thread and whatever locks the others held: the app's exports, which run
+    in a worker thread, stay in one process)."""
+    return sys.platform.startswith("linux") and threading.active_count() == 1
 
 
 def _write_lines(out: IO[str], lines: Iterator[str]) -> int:
