@@ -251,3 +251,25 @@ async def test_rows_older_than_a_day_show_at_once_and_are_caught_up_behind(plant
         fresh = watch_module.read_watch(book, fresh=True)
     assert shown[0].stale == filters == 3  # the first paint: every row as kept
     assert shown[-1].stale == 0 and shown[-1].rows == fresh.rows
+
+
+async def test_the_key_strip_is_rebuilt_only_when_its_keys_change(plant):
+    from textual.widgets._footer import FooterKey
+
+    from tui.widgets.keystrip import KeyStrip
+
+    def keys(screen) -> list:
+        return list(screen.query_one(KeyStrip).query(FooterKey))
+
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        watch, before = app.screen, keys(app.screen)
+        assert {"Read", "Unit", "Find"} <= {k.description for k in before}
+        await pilot.press("enter")
+        await settle(pilot, FilterSheetScreen)
+        assert "Back" in {k.description for k in keys(app.screen)}  # the sheet's own keys
+        await pilot.press("escape")
+        await settle(pilot, WatchScreen)
+        assert keys(watch) == before  # the very same key widgets: nothing was rebuilt
+        assert all(a is b for a, b in zip(keys(watch), before, strict=True))
