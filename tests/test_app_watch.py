@@ -299,3 +299,48 @@ def test_the_first_list_read_in_a_forked_process_is_the_list(plant, monkeypatch)
 
     with pytest.raises(BookError, match="the register is empty"):
         common.read_early(plant, refuse).result(timeout=60)
+
+
+async def test_a_kept_sheet_is_read_before_it_shows_or_shows_at_once_when_slow(plant, monkeypatch):
+    import asyncio
+    import time
+
+    import tui.app as app_module
+
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        tags = tags_shown(app)
+        table = app.screen.query_one(DataTable)
+        table.move_cursor(row=tags.index("P1-RF"))
+        await pilot.press("enter")  # the first opening makes the kept sheet
+        await settle(pilot, FilterSheetScreen)
+        kept, reloads = app.screen, []
+        read = kept.reload
+        kept.reload = lambda: (reloads.append(kept.tag), read())[-1]
+        await pilot.press("escape")
+        await settle(pilot, WatchScreen)
+        table.move_cursor(row=tags.index("P2-RF"))
+        await pilot.press("enter")
+        await settle(pilot, FilterSheetScreen)
+        assert app.screen is kept and kept.sheet.position.tag == "P2-RF"
+        assert reloads == []  # read once, before it showed: no second read on showing
+        await pilot.press("escape")
+        await settle(pilot, WatchScreen)
+
+        def slow(book, tag):  # a read slower than SHEET_WAIT_S
+            time.sleep(4 * app_module.SHEET_WAIT_S)
+            return sheets_module.filter_sheet(book, tag)
+
+        from store import sheets as sheets_module
+
+        monkeypatch.setattr(app_module, "filter_sheet", slow)
+        table.move_cursor(row=tags.index("P1-RF"))
+        await pilot.press("enter")
+        await asyncio.sleep(2 * app_module.SHEET_WAIT_S)
+        await pilot.pause()
+        assert app.screen is kept and kept.tag == "P1-RF"  # shown before the read ended
+        await asyncio.sleep(4 * app_module.SHEET_WAIT_S)  # the slow read ends: ignored
+        await settle(pilot, FilterSheetScreen)
+        assert kept.sheet.position.tag == "P1-RF" and reloads == ["P1-RF"]  # its own read
+        assert len(app.screen_stack) == 2  # shown once

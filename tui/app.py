@@ -31,6 +31,7 @@ from store.sheets import (
     breather_row,
     breather_status_of,
     filter_row,
+    filter_sheet,
     filter_status_of,
     tag_index,
 )
@@ -118,6 +119,7 @@ THEMES = {
         dark=False,
     ),
 }
+SHEET_WAIT_S = 0.15  # a filter sheet read by then is shown filled, see open_kept_sheet
 NAV = ("go", "quick_tag", "sign_in", "quit", "entry")
 
 
@@ -154,6 +156,7 @@ class SumpbookApp(App[None]):
         self.changes = 0  # counted by book_changed
         self.check_seconds = 0.0  # how long the last whole-file check (and preload) took
         self.kept_filter_sheet: Any = None  # see filter_sheet_for
+        self.sheet_request = 0  # counts the kept sheet's openings (see open_kept_sheet)
         self.early_watch: Future[WatchData] | None = None  # the first list, read at load
         for theme in THEMES.values():
             self.register_theme(theme)
@@ -236,10 +239,50 @@ class SumpbookApp(App[None]):
 
     @guarded
     def open_sheet(self, what: str, tag: str, unit: str) -> None:
-        if what == "filter":
-            self.push_screen(self.filter_sheet_for(tag))
-        else:
+        if what != "filter":
             self.push_screen(_lazy("screens.unit_sheet", "UnitSheetScreen")(unit or tag))
+        elif (
+            self.kept_filter_sheet is not None
+            and self.kept_filter_sheet.is_mounted
+            and not any(self.kept_filter_sheet in stack for stack in self._screen_stacks.values())
+        ):
+            self.open_kept_sheet(tag)
+        else:
+            self.push_screen(self.filter_sheet_for(tag))
+
+    def open_kept_sheet(self, tag: str) -> None:
+        """Read first, then show the kept sheet filled: drawn once instead of emptied and then
+        filled. A read that takes longer than SHEET_WAIT_S shows the sheet at once, emptied,
+        and it fills in when its own read is done."""
+        self.sheet_request += 1
+        request, origin, stamp = self.sheet_request, self.screen, self.book_stamp()
+        path = self.book.path
+
+        def awaited() -> bool:
+            return self.sheet_request == request and self.screen is origin
+
+        def at_once() -> None:
+            if awaited():
+                self.sheet_request += 1  # the read below is no longer waited for
+                self.push_screen(self.filter_sheet_for(tag))
+
+        def filled(sheet: Any) -> None:
+            if awaited():
+                self.sheet_request += 1
+                self.kept_filter_sheet.show_filled(tag, sheet, stamp)
+                self.push_screen(self.kept_filter_sheet)
+
+        def read() -> None:
+            try:
+                with open_book(path, create=False) as book:
+                    sheet = filter_sheet(book, tag)
+            except Exception:  # noqa: BLE001 - the sheet reads again and says what is wrong
+                self.call_from_thread(at_once)
+                return
+            self.call_from_thread(filled, sheet)
+
+        self.set_timer(SHEET_WAIT_S, at_once)
+        self.run_worker(read, thread=True, group="sheet-read", exit_on_error=False)
 
     def filter_sheet_for(self, tag: str) -> Screen:
         """One filter sheet is made once and kept (installed): building a screen of a dozen

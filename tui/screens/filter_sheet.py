@@ -4,6 +4,7 @@ and the history of every element the housing has had."""
 from __future__ import annotations
 
 import math
+import time
 
 from rich.text import Text
 from textual.app import ComposeResult
@@ -86,6 +87,14 @@ class FilterSheetScreen(BookScreen):
         self.query_one("#elements", DataTable).clear()
         self.query_one(FilterPlot).show(None, self.sb.prefs)
         self.query_one("#filter-body", VerticalScroll).scroll_home(animate=False)
+
+    def show_filled(self, tag: str, sheet: FilterSheet, stamp: tuple[object, ...]) -> None:
+        """Make this (kept) sheet show another filter, read already (as the book stood at
+        `stamp`): shown again, it reads again only if the book has changed since."""
+        self.tag = tag
+        self.show_sheet(sheet)
+        self.query_one("#filter-body", VerticalScroll).scroll_home(animate=False)
+        self.shown_stamp, self.shown_at = stamp, time.monotonic()
 
     def reload(self) -> None:
         tag = self.tag
