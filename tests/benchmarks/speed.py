@@ -492,8 +492,8 @@ def notes(f: dict) -> list[str]:
         "forecast, in a worker thread); the rest is Textual switching screens and drawing them: "
         f"the bare app takes median {_med(f['cpu']['bare_sheet']):.0f} ms to show a screen "
         f"with a sheet's widgets and made-up text, {_med(f['cpu']['bare_back']):.0f} ms to "
-        "leave it; the app's sheet has more to draw (the chart, longer texts), and draws "
-        "twice: emptied at once, then filled when its data has been read."
+        "leave it; the app's sheet has more to draw (the chart, longer texts) and its data "
+        "to read and compute in a worker thread, all counted in its CPU time."
     )
     out.append(
         f"- Saving a reading (no target): median {_med(f['save_ms']):.0f} ms, p99 "
