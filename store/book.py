@@ -295,19 +295,22 @@ def migrate(conn: sqlite3.Connection, from_version: int) -> None:
     )
 
 
-def open_book(path: Path | str | None = None, *, create: bool = True) -> Book:
+def open_book(
+    path: Path | str | None = None, *, create: bool = True, readonly: bool = False
+) -> Book:
     """Open (and if needed create or migrate) the logbook at `path`.
 
     An existing file is checked before anything is written to it (`inspect`); a file that is
-    write-protected or on read-only media opens read-only (`Book.readonly`).
+    write-protected or on read-only media opens read-only (`Book.readonly`), and so does any
+    file with `readonly` (a forked child process reads with it: it must never write).
     """
     path = Path(path) if path is not None else default_path()
     new = _is_empty_file(path)
-    if new and not create:
+    if new and (readonly or not create):
         raise BookError(f"no logbook at {path}: run 'sumpbook demo' or register a unit first")
     if new:
         path.parent.mkdir(parents=True, exist_ok=True)
-    readonly = not new and not writable(path)
+    readonly = readonly or (not new and not writable(path))
     version = 0 if new else inspect(path, readonly)
     if 0 < version < SCHEMA_VERSION:
         deep_check(path)  # before an upgrade writes to it

@@ -520,7 +520,9 @@ def _write_part(
     the header, into the file `dest`."""
     from .book import open_book
 
-    with open_book(path, create=False) as book, read_snapshot(book.conn):
+    # Read-only: a forked child must never write. This process keeps its read transaction
+    # open until the child is done, so the file cannot be checkpointed past what both read.
+    with open_book(path, create=False, readonly=True) as book, read_snapshot(book.conn):
         span_lines = SpanLines(book, prefs, local, pattern, upto)
         sql, params = _span_sql(start, end, upto)
         with open(dest, "w", encoding="utf-8", newline="") as out:

@@ -108,3 +108,22 @@ def test_store_never_imports_the_ui():
         "sys.exit(1 if bad else 0)\n"
     )
     assert subprocess.run([sys.executable, "-c", code]).returncode == 0
+
+
+def test_a_book_opened_read_only_reads_and_refuses_every_write(book):
+    # What a forked child process opens: it must never write (SQLite's locks do not carry
+    # across a fork), so a save fails with one line and the file is left as it was.
+    from store import journal
+    from store.entries import Note
+
+    path = book.path
+    before = book.conn.execute("SELECT count(*) FROM entries").fetchone()[0]
+    with open_book(path, create=False, readonly=True) as reader:
+        assert reader.readonly
+        assert reader.conn.execute("SELECT count(*) FROM entries").fetchone()[0] == before
+        with pytest.raises(BookError):
+            journal.log(reader, Note(unit="P1", note="from a child", by="AB"))
+    assert book.conn.execute("SELECT count(*) FROM entries").fetchone()[0] == before
+    with pytest.raises(BookError, match="no logbook"):
+        open_book(path.with_name("none.db"), readonly=True)  # nothing is created either
+    assert not path.with_name("none.db").exists()

@@ -52,8 +52,8 @@ def read_early(path: Path, read: Callable[[Book], Any]) -> Future[Any]:
 
     Where it can, the read runs in a forked process: a thread would share the interpreter
     with Textual's start and take turns with it, a process runs on the other core. The
-    result comes back pickled through a pipe; anything going wrong there is read again in a
-    thread, so the list shows either way."""
+    result comes back pickled through a pipe; anything going wrong there (the child reads
+    read-only and never writes) is read again in a thread, so the list shows either way."""
     future: Future[Any] = Future()
 
     def in_thread() -> None:
@@ -79,8 +79,8 @@ def read_early(path: Path, read: Callable[[Book], Any]) -> Future[Any]:
             return
         if kind == "ok":
             future.set_result(value)
-        else:
-            future.set_exception(BookError(value))
+        else:  # read it again here, the safe way: the error is then the book's own
+            in_thread()
 
     threading.Thread(target=from_child, name="early-read", daemon=True).start()
     return future
@@ -106,7 +106,9 @@ def _fork_read(path: Path, read: Callable[[Book], Any]) -> tuple[int, int]:
     try:
         os.close(pipe)
         try:
-            with open_book(path, create=False) as book:
+            # Read-only: a forked child must never write (SQLite's locks are not carried
+            # across a fork; the app's own connection stays open in the parent).
+            with open_book(path, create=False, readonly=True) as book:
                 payload = pickle.dumps(("ok", read(book)))
         except Exception as exc:  # noqa: BLE001 - sent to the app as one line
             payload = pickle.dumps(("error", str(exc) or type(exc).__name__))
