@@ -93,19 +93,13 @@ _INF = float("inf")
 _BATCH = 4096  # lines written to the file at a time
 
 
-def span_query(start: datetime | None, end: datetime | None) -> tuple[str, list[Any]]:
-    """The SQL and parameters for every entry in [start, end), ordered as `journal.read`
-    orders them (time, then the order they were written)."""
-    return _span_sql(
-        None if start is None else format_utc(start), None if end is None else format_utc(end)
-    )
-
-
 def _span_sql(
     start: str | None, end: str | None, upto: int | None = None, select: str = _SELECT
 ) -> tuple[str, list[Any]]:
-    """`span_query` with the bounds as stored stamps; `upto`: entries written up to that
-    rowid only (what another process of the same export saw when it began)."""
+    """The SQL and parameters for every entry in [start, end) (stored stamps; None leaves
+    that end open), ordered as `journal.read` orders them (time, then the order they were
+    written); `upto`: entries written up to that rowid only (what the other process of the
+    same export saw when it began)."""
     where: list[str] = []
     params: list[Any] = []
     for bound, test in ((start, "e.at_utc >= ?"), (end, "e.at_utc < ?"), (upto, "+e.rowid <= ?")):

@@ -208,24 +208,13 @@ def _usable(row: _Row | None, now: datetime, max_age: timedelta | None) -> bool:
     return not row[3] and computed <= now and now - computed <= max_age
 
 
-def stale_filters(
-    book: Book, ctxs: Sequence[FilterContext], max_age: timedelta = MAX_AGE
-) -> list[str]:
+def stale_filters(book: Book, max_age: timedelta = MAX_AGE) -> list[str]:
     """Tags whose cached status is missing, of an old format, marked stale or older than
-    max_age: what a background refresh should recompute."""
-    now = book.now()
-    rows = _rows(book)
-    return [
-        c.position.tag for c in ctxs if not _usable(rows.get(c.position.tag.upper()), now, max_age)
-    ]
-
-
-def stale_count(book: Book, max_age: timedelta = MAX_AGE) -> int:
-    """How many filters `refresh_stale` would recompute (no contexts built: a quick count for
-    a screen that shows the kept rows at once)."""
+    max_age: what a background refresh should recompute (no contexts built: a screen that
+    shows the kept rows at once counts them too)."""
     now, rows = book.now(), _rows(book)
-    tags = book.conn.execute("SELECT tag FROM filters")
-    return sum(1 for (tag,) in tags if not _usable(rows.get(tag.upper()), now, max_age))
+    tags = book.conn.execute("SELECT tag FROM filters ORDER BY tag")
+    return [tag for (tag,) in tags if not _usable(rows.get(tag.upper()), now, max_age)]
 
 
 def cached_filters(
@@ -258,7 +247,7 @@ def cached_filters(
 def refresh_stale(book: Book, max_age: timedelta = MAX_AGE, limit: int | None = None) -> list[str]:
     """Recompute (at most `limit`) stale rows and keep them; returns the tags done."""
     ctxs = contexts(book)
-    tags = stale_filters(book, list(ctxs.values()), max_age)[:limit]
+    tags = stale_filters(book, max_age)[:limit]
     for tag in tags:
         refresh(book, ctxs[tag.upper()])
     return tags

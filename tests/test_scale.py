@@ -305,7 +305,7 @@ def test_an_old_cache_can_be_shown_at_once_and_caught_up_behind(tmp_path: Path) 
         writer.step()
     book.set_setting("clock", format_utc(CLOCK + timedelta(days=2)))  # two days without a save
     ctxs = list(contexts(book).values())
-    stale = statuscache.stale_filters(book, ctxs)
+    stale = statuscache.stale_filters(book)
     assert sorted(stale) == sorted(c.position.tag for c in ctxs)
     shown = status.watch(book, max_age=None)  # the rows as kept, no recomputation
     computed = {r[0] for r in book.conn.execute("SELECT computed_utc FROM status_cache")}
@@ -313,7 +313,7 @@ def test_an_old_cache_can_be_shown_at_once_and_caught_up_behind(tmp_path: Path) 
     assert {f.filter for f in shown.filters} == {c.position.tag for c in ctxs}
     done = statuscache.refresh_stale(book)
     assert sorted(done) == sorted(stale)
-    assert statuscache.stale_filters(book, ctxs) == []
+    assert statuscache.stale_filters(book) == []
     assert_cache_is_fresh(book)
 
 

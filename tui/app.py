@@ -241,11 +241,7 @@ class SumpbookApp(App[None]):
     def open_sheet(self, what: str, tag: str, unit: str) -> None:
         if what != "filter":
             self.push_screen(_lazy("screens.unit_sheet", "UnitSheetScreen")(unit or tag))
-        elif (
-            self.kept_filter_sheet is not None
-            and self.kept_filter_sheet.is_mounted
-            and not any(self.kept_filter_sheet in stack for stack in self._screen_stacks.values())
-        ):
+        elif self.kept_sheet_free() and self.kept_filter_sheet.is_mounted:
             self.open_kept_sheet(tag)
         else:
             self.push_screen(self.filter_sheet_for(tag))
@@ -294,10 +290,15 @@ class SumpbookApp(App[None]):
             kept = _lazy("screens.filter_sheet", "FilterSheetScreen")(tag)
             self.install_screen(kept, name="filter-sheet")
             self.kept_filter_sheet = kept
-        elif any(kept in stack for stack in self._screen_stacks.values()):
+        elif not self.kept_sheet_free():
             return _lazy("screens.filter_sheet", "FilterSheetScreen")(tag)
         kept.show_tag(tag)
         return kept
+
+    def kept_sheet_free(self) -> bool:
+        """The kept filter sheet exists and is not on show (in no mode's stack)."""
+        kept = self.kept_filter_sheet
+        return kept is not None and not any(kept in st for st in self._screen_stacks.values())
 
     @guarded
     def open_form(self, kind: str, tag: str = "", **preset: str) -> None:

@@ -54,7 +54,7 @@ def read_watch(book: Book, fresh: bool = False) -> WatchData:
         as_of_text=fmt.short_stamp(w.as_of, local),
         shift_text=f"{span.name} to {span.end.astimezone(local):%H:%M}",
         areas=options,
-        stale=0 if fresh else statuscache.stale_count(book),
+        stale=0 if fresh else len(statuscache.stale_filters(book)),
     )
 
 
