@@ -221,6 +221,17 @@ async def test_sign_in_at_start_is_remembered(plant, tmp_path, monkeypatch):
     assert json.loads((tmp_path / "prefs.json").read_text(encoding="utf-8"))["tech"] == "CD"
 
 
+async def test_sign_in_by_typing_the_initials(plant, tmp_path, monkeypatch):
+    monkeypatch.setenv("SUMPBOOK_CONFIG", str(write_prefs(tmp_path, tech="")))
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await pilot.pause()
+        assert isinstance(app.screen, SignInScreen)
+        await pilot.press("c", "enter")  # AB, CD in the list: typing C jumps to CD
+        await pilot.pause()
+        assert app.tech == "CD"
+
+
 async def test_first_run_on_an_empty_logbook(tmp_path):
     with open_book(tmp_path / "empty.db"):
         pass

@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import time
+
+from textual import events
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical
@@ -21,11 +24,14 @@ class SignInScreen(ModalScreen[str | None]):
         super().__init__()
         self.current = current
         self.blink = blink
+        self.typed, self.typed_at = "", 0.0  # type-ahead on the list of initials
 
     def compose(self) -> ComposeResult:
         with Vertical(id="sign-box", classes="prompt-box"):
             yield Static(
-                "Who is on shift? Pick your initials, Enter.", classes="form-title", markup=False
+                "Who is on shift? Type your initials or pick them with ↑↓, Enter.",
+                classes="form-title",
+                markup=False,
             )
             yield OptionList(id="techs")
             yield Static("New here? Type initials and name, e.g. JK J. K., Enter:", markup=False)
@@ -43,6 +49,21 @@ class SignInScreen(ModalScreen[str | None]):
             options.focus()
         else:
             self.query_one(Input).focus()
+
+    def on_key(self, event: events.Key) -> None:
+        """Typed letters on the list jump to the first technician whose initials begin so
+        (a pause of a second starts a new prefix)."""
+        options = self.query_one(OptionList)
+        if not (options.has_focus and event.character and event.character.isalnum()):
+            return
+        now = time.monotonic()
+        self.typed = (self.typed if now - self.typed_at < 1.0 else "") + event.character.upper()
+        self.typed_at = now
+        for i in range(options.option_count):
+            if str(options.get_option_at_index(i).id).startswith(self.typed):
+                options.highlighted = i
+                break
+        event.stop()
 
     def on_option_list_option_selected(self, event: OptionList.OptionSelected) -> None:
         self.dismiss(event.option.id)
