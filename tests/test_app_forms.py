@@ -54,8 +54,9 @@ async def test_typed_tag_without_punctuation_and_row_key(plant):
     app = make_app(plant)
     async with app.run_test(size=(80, 24)) as pilot:
         await settle(pilot, WatchScreen)
-        # the prompt matches p1rf to P1-RF (letters and digits only)
-        overhead = await log_keys(pilot, ["t", *"p1rf", "enter", *"1,6", "enter"])
+        # the prompt offers P1-RF for p1rf (letters and digits only); not exact, so it waits
+        # for a pick (down) before it opens the form
+        overhead = await log_keys(pilot, ["t", *"p1rf", "enter", "down", "enter", *"1,6", "enter"])
         assert overhead <= 8
         await settle(pilot, WatchScreen)
         assert newest(plant, "reading").dp_bar == pytest.approx(1.6)
