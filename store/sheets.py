@@ -248,6 +248,14 @@ def last_temp_c(book: Book, unit: str) -> float | None:
     return None
 
 
+def past_bypass(position: FilterPosition, dp_bar: float | None, indicator: str | None) -> bool:
+    """A reading that says oil is going round the element: the indicator shows bypass, or
+    the gauge ΔP has reached the bypass valve's setting (it cracks open there)."""
+    if indicator == "bypass":
+        return True
+    return dp_bar is not None and position.bypass_bar is not None and dp_bar >= position.bypass_bar
+
+
 def unit_fluid(book: Book, unit: str) -> str | None:
     found = find(book, Unit, unit)
     return found.fluid if found else None

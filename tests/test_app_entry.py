@@ -7,7 +7,8 @@ import pytest
 from textual.widgets import Input, OptionList, Static
 
 from tests import test_app_plant as kit
-from tests.test_app_plant import make_app, settle
+from tests.test_app_plant import count_entries, make_app, settle
+from tui.forms.confirm import ConfirmScreen
 from tui.forms.reading import ReadingForm
 from tui.screens.tag_prompt import TagPrompt
 from tui.screens.watch import WatchScreen
@@ -51,3 +52,86 @@ async def test_a_scanner_burst_opens_the_exact_tag_every_time(plant, typed, tag)
             assert form.query_one("#f-filter", Input).value == tag
             await pilot.press("escape")
             await settle(pilot, WatchScreen)
+
+
+async def test_a_reading_over_the_bypass_asks_first_with_the_caution(plant):
+    app = make_app(plant)
+    before = count_entries(plant, "reading")
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        # P1-RF's bypass valve is set to 3.5 bar (tests/conftest.py): 3.8 bar is past it
+        await pilot.press("t", *"P1-RF", "enter", *"3.8", "enter")
+        await pilot.pause()
+        asked = app.screen
+        assert isinstance(asked, ConfirmScreen)
+        caution = text_of(asked, "#caution")
+        for words in ("bypass", "UNFILTERED OIL IS PASSING", "site procedures", "maker's manual"):
+            assert words in caution
+        await pilot.press("n")  # back to the form, what was typed kept, nothing written
+        await pilot.pause()
+        form = app.screen
+        assert isinstance(form, ReadingForm) and form.query_one("#f-dp", Input).value == "3.8"
+        assert count_entries(plant, "reading") == before
+        await pilot.press("enter")  # Enter alone on the question does not save
+        await pilot.pause()
+        assert isinstance(app.screen, ConfirmScreen)
+        await pilot.press("enter")
+        await pilot.pause()
+        assert app.screen is form and count_entries(plant, "reading") == before
+        await pilot.press("ctrl+s", "y")
+        await settle(pilot, WatchScreen)
+    assert count_entries(plant, "reading") == before + 1
+
+
+async def test_a_reading_below_the_bypass_saves_without_a_question(plant):
+    app = make_app(plant)
+    before = count_entries(plant, "reading")
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        await pilot.press("t", *"P1-RF", "enter", *"3.4", "enter")  # below 3.5 bar
+        await settle(pilot, WatchScreen)
+    assert count_entries(plant, "reading") == before + 1
+
+
+async def test_an_unfiltered_top_up_with_a_cart_rating_is_refused_not_dropped(plant):
+    app = make_app(plant)
+    before = count_entries(plant, "topup")
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        app.open_form("topup", "P1")
+        await pilot.pause()
+        form = app.screen
+        form.query_one("#f-volume", Input).value = "5"
+        form.query_one("#f-how").value = "unfiltered"
+        form.query_one("#f-filtered", Input).value = "3"
+        await pilot.press("ctrl+s")
+        await pilot.pause()
+        assert app.screen is form
+        assert "unfiltered" in text_of(form, "#form-msg")
+        assert app.focused is form.query_one("#f-how")  # the cursor goes to the field at fault
+        assert count_entries(plant, "topup") == before
+        form.query_one("#f-filtered", Input).value = ""
+        await pilot.press("ctrl+s")
+        await settle(pilot, WatchScreen)
+    assert count_entries(plant, "topup") == before + 1
+
+
+async def test_a_choice_clears_its_stale_mark(plant):
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        app.open_form("topup", "P1")
+        await pilot.pause()
+        form = app.screen
+        form.query_one("#f-volume", Input).value = "5"
+        await pilot.press("ctrl+s")
+        await pilot.pause()
+        assert "choose one" in text_of(form, "#m-how")
+        form.query_one("#f-how").value = "filtered"
+        await pilot.pause()
+        assert "✗" not in text_of(form, "#m-how")
+        # a cross-field refusal puts the cursor on the field at fault
+        await pilot.press("ctrl+s")
+        await pilot.pause()
+        assert app.focused is form.query_one("#f-filtered")
+        assert "rating" in text_of(form, "#form-msg")

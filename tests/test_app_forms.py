@@ -241,7 +241,10 @@ async def test_indicator_only_filter_starts_on_the_indicator(plant):
         await pilot.pause()
         assert app.focused is app.screen.query_one("#f-indicator")
         app.screen.query_one("#f-indicator").value = "bypass"
-        await pilot.press("ctrl+s")
+        await pilot.press("ctrl+s")  # in bypass: unfiltered oil is passing, asked first
+        await pilot.pause()
+        assert "UNFILTERED OIL" in str(app.screen.query_one("#caution").render())
+        await pilot.press("y")
         await settle(pilot, WatchScreen)
     saved = newest(plant, "reading")
     assert isinstance(saved, Reading) and saved.indicator == "bypass" and saved.dp_bar is None

@@ -23,6 +23,7 @@ from store.timeutil import local_text, parse_time
 
 from ..widgets.caution import Caution
 from ..widgets.field import FieldRow, Spec, TickBox
+from .confirm import ConfirmScreen
 from .validators import TagValidator, TimeValidator
 
 if TYPE_CHECKING:
@@ -35,6 +36,22 @@ class Saved:
 
     entry: Entry
     before: Any = None  # FilterStatus / BreatherStatus before the entry, when known
+
+
+class FieldError(BookError):
+    """A form's own refusal of a combination, naming the field to put right."""
+
+    def __init__(self, message: str, field: str) -> None:
+        super().__init__(message)
+        self.field = field
+
+
+def fault_field(message: str, clues: dict[str, str]) -> str | None:
+    """The field a refusal is about: of the clue words in the message, the one said first
+    (a combination such as 'the limit must be below the bypass' is about its subject)."""
+    text = message.lower()
+    found = [(text.find(word), name) for word, name in clues.items() if word in text]
+    return min(found)[1] if found else None
 
 
 def write_problem(exc: BaseException) -> str:
@@ -63,6 +80,14 @@ class EntryForm(ModalScreen[Saved | None]):
     heading = "Entry"
     caution = False
     first = ""
+    # words in a refusal -> the field it is about (see fault_field); forms add their own
+    clues: dict[str, str] = {
+        "time": "time",
+        "ahead": "time",
+        "technician": "by",
+        "initials": "by",
+        "note": "note",
+    }
 
     def __init__(self, target: str = "", before: Any = None, **preset: str) -> None:
         super().__init__()
@@ -83,6 +108,10 @@ class EntryForm(ModalScreen[Saved | None]):
 
     def build(self, values: dict[str, Any]) -> Entry:
         raise NotImplementedError
+
+    def question(self, entry: Entry) -> tuple[str, str] | None:
+        """(title, caution) when the entry may be true but is urgent: asked before saving."""
+        return None
 
     # ---- common fields ----
 
@@ -207,9 +236,39 @@ class EntryForm(ModalScreen[Saved | None]):
             return
         try:
             entry = self.build(self.values())
+            ask = self.question(entry)
+        except (BookError, sqlite3.Error, OSError) as exc:
+            self.refused(exc)
+            return
+        if ask is None:
+            self.write(entry)
+            return
+
+        def answered(yes: bool | None) -> None:
+            if yes:
+                self.write(entry)
+            else:
+                self.say("Not saved yet: change what is wrong, or save again to confirm.")
+
+        self.app.push_screen(ConfirmScreen(*ask), answered)
+
+    def write(self, entry: Entry) -> None:
+        try:
             saved = journal.log(self.sb.book, entry)
         except (BookError, sqlite3.Error, OSError) as exc:
-            self.say("Not saved: " + write_problem(exc))
+            self.refused(exc)
             return
         self.saved = saved
         self.dismiss(Saved(saved, self.before))
+
+    def refused(self, exc: BaseException) -> None:
+        """Say why; put the cursor on the field at fault and mark it."""
+        problem = write_problem(exc)
+        self.say("Not saved: " + problem)
+        name = exc.field if isinstance(exc, FieldError) else None
+        if name is None and isinstance(exc, BookError):
+            name = fault_field(problem, self.clues)
+        rows = {row.spec.name: row for row in self.rows()}
+        if name in rows and not rows[name].spec.disabled:
+            rows[name].control.focus()
+            rows[name].show("see below")

@@ -5,21 +5,29 @@ from __future__ import annotations
 from typing import Any
 
 from store.entries import Entry, Reading
-from store.errors import BookError
 from store.register import FilterPosition, find
-from store.sheets import last_temp_c
+from store.sheets import last_temp_c, past_bypass
 from store.units import parse_pressure_bar, parse_temperature_c
 
 from ..widgets import fmt
 from ..widgets.field import Spec
-from .base import EntryForm
+from .base import EntryForm, FieldError
 from .validators import DpValidator, NumberValidator, TemperatureValidator
 
 INDICATOR_CHOICES = [("clean", "clean"), ("dirty", "dirty"), ("in bypass", "bypass")]
 
 
+BYPASS_CAUTION = (
+    "{what}: the bypass valve is open and UNFILTERED OIL IS PASSING to the system.\n"
+    "• Change the element as soon as it can be done safely; do not run on for long.\n"
+    "• Before opening the housing: isolate and lock out, relieve pressure, let hot oil cool.\n"
+    "• Follow site procedures and the equipment maker's manual; they come first."
+)
+
+
 class ReadingForm(EntryForm):
     heading = "Reading: ΔP and temperature"
+    clues = {**EntryForm.clues, "filter": "filter", "δp": "dp", "indicator": "indicator"}
 
     def specs(self) -> list[Spec]:
         book, prefs = self.sb.book, self.sb.prefs
@@ -69,7 +77,7 @@ class ReadingForm(EntryForm):
     def build(self, v: dict[str, Any]) -> Entry:
         prefs = self.sb.prefs
         if not v["dp"] and not v["indicator"]:
-            raise BookError("give the ΔP, or the indicator's state")
+            raise FieldError("give the ΔP, or the indicator's state", "dp")
         return Reading(
             filter=v["filter"],
             dp_bar=parse_pressure_bar(v["dp"], prefs.pressure) if v["dp"] else None,
@@ -81,3 +89,23 @@ class ReadingForm(EntryForm):
             by=v["by"],
             note=v["note"],
         )
+
+    def question(self, entry: Entry) -> tuple[str, str] | None:
+        if not isinstance(entry, Reading):
+            return None
+        position = find(self.sb.book, FilterPosition, entry.filter)
+        if position is None or not past_bypass(position, entry.dp_bar, entry.indicator):
+            return None
+        prefs = self.sb.prefs
+        if entry.indicator == "bypass" and (
+            entry.dp_bar is None
+            or position.bypass_bar is None
+            or entry.dp_bar < position.bypass_bar
+        ):
+            what = "The indicator shows bypass"
+        else:
+            what = (
+                f"ΔP {fmt.pressure(entry.dp_bar, prefs)} is at or over the bypass setting "
+                f"({fmt.pressure(position.bypass_bar, prefs)})"
+            )
+        return f"Save this reading on {position.tag}?", BYPASS_CAUTION.format(what=what)

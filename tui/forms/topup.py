@@ -5,13 +5,12 @@ from __future__ import annotations
 from typing import Any
 
 from store.entries import Entry, TopUp
-from store.errors import BookError
 from store.register import Fluid, Unit, find, list_all
 from store.units import parse_volume_l
 
 from ..widgets import fmt
 from ..widgets.field import Spec
-from .base import EntryForm
+from .base import EntryForm, FieldError
 from .validators import NumberValidator, VolumeValidator
 
 HOW = [("through a filter cart", "filtered"), ("unfiltered (from the drum)", "unfiltered")]
@@ -59,8 +58,14 @@ class TopUpForm(EntryForm):
         filtered = None
         if v["how"] == "filtered":
             if not v["filtered"]:
-                raise BookError("give the cart's rating in µm, or choose 'unfiltered'")
+                raise FieldError("give the cart's rating in µm, or choose 'unfiltered'", "filtered")
             filtered = float(v["filtered"].replace(",", "."))
+        elif v["filtered"]:  # a rating and 'unfiltered' cannot both be true: never drop one
+            raise FieldError(
+                "a cart rating with 'unfiltered': clear the rating, or choose 'through a "
+                "filter cart'",
+                "how",
+            )
         return TopUp(
             unit=v["unit"],
             volume_l=parse_volume_l(v["volume"], self.sb.prefs.volume),

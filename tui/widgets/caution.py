@@ -24,5 +24,5 @@ class Caution(Static):
     }
     """
 
-    def __init__(self) -> None:
-        super().__init__(CAUTION_TEXT, markup=False, id="caution")
+    def __init__(self, text: str = CAUTION_TEXT) -> None:
+        super().__init__(text, markup=False, id="caution")

@@ -139,3 +139,7 @@ class FieldRow(Horizontal):
             self.check_value(force=True)
         elif self.shown:
             self.check_value()
+
+    def on_select_changed(self, event: Select.Changed) -> None:
+        if self.shown:  # a '✗ choose one' (or a refusal) goes once a choice is made
+            self.check_value()
