@@ -176,6 +176,7 @@ async def test_register_add_edit_and_refuse(plant):
         await pilot.press("ctrl+s")
         assert app.screen is form
         assert "below the bypass" in text_of(form, "#form-msg")
+        assert app.focused is form.query_one("#f-limit_bar")  # the field at fault
         await pilot.press("escape")
     with open_book(plant, create=False) as book:
         assert register.get(book, Technician, "EF").name == "E. F."

@@ -24,7 +24,7 @@ from store.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
 
 from ..widgets import fmt
 from ..widgets.field import FieldRow, Spec
-from .base import write_problem
+from .base import fault_field, write_problem
 from .validators import (
     CodeValidator,
     DpValidator,
@@ -40,6 +40,26 @@ WHAT = {
     Unit: "unit",
     FilterPosition: "filter position",
     Breather: "breather",
+}
+
+# words in a refusal -> the field it is about (see fault_field)
+CLUES = {
+    "bypass": "bypass_bar",
+    "limit": "limit_bar",
+    "clean": "clean_bar",
+    "coldest": "coldest_start_c",
+    "temperature": "normal_temp_c",
+    "ν100": "nu100_cst",
+    "ν40": "nu40_cst",
+    "iso vg": "iso_vg",
+    "kind": "kind",
+    "code": "target_code",
+    "time zone": "tag",
+    "tag": "tag",
+    "unit": "unit",
+    "fluid": "fluid",
+    "rating": "rating_um",
+    "flow": "normal_flow_lpm",
 }
 
 LABELS = {
@@ -267,6 +287,12 @@ class RegisterForm(ModalScreen[Any]):
                     return
                 saved = register.update(self.sb.book, self.cls, self.record.tag, changes, by=by)
         except (BookError, sqlite3.Error, OSError) as exc:
-            self.say("Not saved: " + write_problem(exc))
+            problem = write_problem(exc)
+            self.say("Not saved: " + problem)
+            rows = {row.spec.name: row for row in self.query(FieldRow) if not row.spec.disabled}
+            name = fault_field(problem, CLUES) if isinstance(exc, BookError) else None
+            if name in rows:  # the cursor goes to the field at fault
+                rows[name].control.focus()
+                rows[name].show("see below")
             return
         self.dismiss(saved)
