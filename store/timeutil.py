@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import functools
 import os
+import re
 import zoneinfo
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -95,6 +96,48 @@ def parse_time(
             " check the time or the clock"
         )
     return result
+
+
+CLOCK_RE = re.compile(r"^(?:(today|yesterday)\s+)?([01]?\d|2[0-3]):([0-5]\d)$", re.IGNORECASE)
+
+
+@dataclass(frozen=True)
+class TypedTime:
+    at: datetime  # UTC
+    day: str  # "today" or "yesterday" when the date was taken for the person, else ""
+
+
+def parse_typed_time(text: str, local: tzinfo, now: datetime | None = None) -> TypedTime:
+    """A time as a person types it in a form: `HH:MM` (today, or yesterday when today's
+    would still be ahead), `today HH:MM`, `yesterday HH:MM`, or a date and time
+    (`2026-05-13 07:30`, any ISO 8601). Plant-local unless an offset is given; refuses a time
+    more than a day ahead. The message names the whole reason."""
+    now = now or utc_now()
+    typed = text.strip()
+    clock = CLOCK_RE.match(typed)
+    if clock is None:
+        try:
+            moment = _isoparse(typed.replace(" ", "T", 1))
+        except (ValueError, OverflowError) as exc:
+            raise BookError(
+                f"'{typed}' is not a time: type HH:MM, yesterday HH:MM or 2026-05-13 07:30"
+            ) from exc
+        at, day = to_utc(moment, local), ""
+    else:
+        word = (clock.group(1) or "").lower()
+        today = now.astimezone(local).date()
+        wall = time(int(clock.group(2)), int(clock.group(3)))
+        at = to_utc(datetime.combine(today, wall), local)
+        day = word or "today"
+        if word == "yesterday" or (not word and at > now):
+            at = to_utc(datetime.combine(today - timedelta(days=1), wall), local)
+            day = "yesterday"
+    if at > now + MAX_AHEAD:
+        raise BookError(
+            f"{local_text(at, local)} is more than a day after now "
+            f"({local_text(now, local)}): check the time or the clock"
+        )
+    return TypedTime(at, day)
 
 
 def local_text(moment: datetime, local: tzinfo, seconds: bool = False) -> str:

@@ -6,6 +6,8 @@ from __future__ import annotations
 import pytest
 from textual.widgets import Input, OptionList, Static
 
+from store import journal
+from store.book import open_book
 from tests import test_app_plant as kit
 from tests.test_app_plant import count_entries, make_app, settle
 from tui.forms.confirm import ConfirmScreen
@@ -135,3 +137,46 @@ async def test_a_choice_clears_its_stale_mark(plant):
         await pilot.pause()
         assert app.focused is form.query_one("#f-filtered")
         assert "rating" in text_of(form, "#form-msg")
+
+
+async def test_time_field_says_the_whole_reason_and_takes_a_bare_clock(plant):
+    from datetime import UTC, datetime
+
+    app = make_app(plant)
+    before = count_entries(plant, "reading")
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        app.open_form("reading", "P1-RF")
+        await pilot.pause()
+        form = app.screen
+        field = form.query_one("#f-time", Input)
+        # the plant's clock is 2026-05-13 10:00 (UTC zone), see tests/test_app_plant.py
+        for typed, whole in (
+            (
+                "2026-11-29 08:00",
+                "2026-11-29 08:00 is more than a day after now (2026-05-13 10:00)"
+                ": check the time or the clock",
+            ),
+            ("07:3x", "'07:3x' is not a time: type HH:MM, yesterday HH:MM or 2026-05-13 07:30"),
+            ("yesterday 7:3", "'yesterday 7:3' is not a time"),
+        ):
+            field.value = typed
+            await pilot.pause()
+            shown = text_of(form, "#m-time").replace("\n", "")
+            assert whole in shown, shown
+        for typed, said in (
+            ("07:30", "today, Wed 13 May 2026 07:30"),
+            ("23:00", "yesterday, Tue 12 May 2026 23:00"),  # today's 23:00 is still ahead
+            ("yesterday 7:30", "yesterday, Tue 12 May 2026 07:30"),
+        ):
+            field.value = typed
+            await pilot.pause()
+            assert text_of(form, "#m-time") == said
+        field.value = "7:30"
+        form.query_one("#f-dp", Input).value = "1.1"
+        await pilot.press("ctrl+s")
+        await settle(pilot, WatchScreen)
+    assert count_entries(plant, "reading") == before + 1
+    with open_book(plant, create=False) as book:
+        saved = journal.read(book, kinds=["reading"], newest_first=True, limit=1)[0]
+    assert saved.at == datetime(2026, 5, 13, 7, 30, tzinfo=UTC)

@@ -157,3 +157,25 @@ def test_a_csv_row_from_the_future_rejects_the_import_with_its_line(book, monkey
     with pytest.raises(BookError, match="line 3: .*ahead"):
         import_csv(book, data, zone(BERLIN))
     assert book.conn.execute("SELECT count(*) FROM entries").fetchone()[0] == 0
+
+
+def test_a_bare_clock_is_today_or_yesterday_when_still_ahead():
+    from store.timeutil import parse_typed_time
+
+    local = zone(BERLIN)
+    now = datetime(2026, 5, 13, 10, 0, tzinfo=UTC)  # 12:00 in Berlin (CEST, UTC+2)
+    early = parse_typed_time("07:30", local, now=now)
+    assert (early.at, early.day) == (wall(BERLIN, 2026, 5, 13, 7, 30), "today")
+    late = parse_typed_time("13:00", local, now=now)  # today's 13:00 is still ahead
+    assert (late.at, late.day) == (wall(BERLIN, 2026, 5, 12, 13, 0), "yesterday")
+    said = parse_typed_time("Yesterday 7:05", local, now=now)
+    assert (said.at, said.day) == (wall(BERLIN, 2026, 5, 12, 7, 5), "yesterday")
+    dated = parse_typed_time("2026-05-12 07:05", local, now=now)
+    assert (dated.at, dated.day) == (wall(BERLIN, 2026, 5, 12, 7, 5), "")
+    # 02:30 on 2026-03-29 does not exist in Berlin (EU Directive 2000/84/EC)
+    with pytest.raises(BookError, match="does not exist"):
+        parse_typed_time("02:30", local, now=datetime(2026, 3, 29, 9, 0, tzinfo=UTC))
+    with pytest.raises(BookError, match=r"more than a day after now \(2026-05-13 12:00\)"):
+        parse_typed_time("2026-05-15 08:00", local, now=now)
+    with pytest.raises(BookError, match="'24:10' is not a time: type HH:MM"):
+        parse_typed_time("24:10", local, now=now)

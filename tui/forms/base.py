@@ -19,7 +19,7 @@ from store import journal
 from store.entries import Entry
 from store.errors import BookError
 from store.register import Technician, list_all
-from store.timeutil import local_text, parse_time
+from store.timeutil import local_text, parse_typed_time
 
 from ..widgets.caution import Caution
 from ..widgets.field import FieldRow, Spec, TickBox
@@ -163,7 +163,7 @@ class EntryForm(ModalScreen[Saved | None]):
         book = self.sb.book
         if text == local_text(book.now(), book.local_zone()) and "time" not in self.preset:
             return None
-        return parse_time(text.replace(" ", "T", 1), book.local_zone(), now=book.now())
+        return parse_typed_time(text, book.local_zone(), now=book.now()).at
 
     # ---- layout ----
 
@@ -206,6 +206,21 @@ class EntryForm(ModalScreen[Saved | None]):
         msg = self.query_one("#form-msg", Static)
         msg.update(text)
         msg.set_class(bad, "-bad")
+
+    def on_input_changed(self, event: Input.Changed) -> None:
+        if event.input.id == "f-time":
+            self.say_day_taken(event.value)
+
+    def say_day_taken(self, text: str) -> None:
+        """Under a time typed without its date, the date it was taken for."""
+        book = self.sb.book
+        try:
+            typed = parse_typed_time(text, book.local_zone(), now=book.now())
+        except BookError:
+            return  # the field's own check shows why
+        if typed.day:
+            taken = typed.at.astimezone(book.local_zone())
+            self.query_one("#m-time", Static).update(f"{typed.day}, {taken:%a %d %b %Y %H:%M}")
 
     # ---- saving ----
 

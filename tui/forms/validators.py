@@ -16,7 +16,7 @@ from store import journal
 from store.cleanliness import parse_code
 from store.errors import BookError
 from store.register import normalise_tag
-from store.timeutil import parse_time
+from store.timeutil import parse_typed_time
 from store.units import (
     from_bar,
     from_c,
@@ -155,7 +155,8 @@ class QuantityValidator(Validator):
 
 
 class TimeValidator(Validator):
-    """A plant-local time like 2026-05-13 07:30, not more than a day ahead."""
+    """A plant-local time: 07:30 (today, or yesterday if still ahead), yesterday 07:30 or
+    2026-05-13 07:30; not more than a day ahead. The failure says the whole reason."""
 
     def __init__(self, local: tzinfo, now: Callable[[], datetime]) -> None:
         super().__init__()
@@ -163,9 +164,9 @@ class TimeValidator(Validator):
 
     def validate(self, value: str) -> ValidationResult:
         try:
-            parse_time(value.replace(" ", "T", 1), self.local, now=self.now())
+            parse_typed_time(value, self.local, now=self.now())
         except BookError as exc:
-            return self.failure(str(exc).split(":")[0])
+            return self.failure(str(exc))
         return self.success()
 
 

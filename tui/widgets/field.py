@@ -49,11 +49,11 @@ class Spec:
 
 class FieldRow(Horizontal):
     DEFAULT_CSS = """
-    FieldRow { height: 1; margin: 0 0 0 0; }
+    FieldRow { height: auto; margin: 0 0 0 0; }
     FieldRow > Label { width: 15; padding: 0 1 0 0; text-align: right; }
     FieldRow > Input, FieldRow > Select { width: 26; }
     FieldRow > Checkbox { width: 26; }
-    FieldRow > .field-msg { width: 1fr; padding: 0 0 0 1; color: $text-muted; }
+    FieldRow > .field-msg { width: 1fr; height: auto; padding: 0 0 0 1; color: $text-muted; }
     FieldRow > .field-msg.-bad { color: $text-error; text-style: bold; }
     """
 
