@@ -3,10 +3,10 @@
 from __future__ import annotations
 
 import os
+import shutil
 import sqlite3
+import tempfile
 from pathlib import Path
-
-from platformdirs import user_data_dir
 
 from .book import Book, open_book
 from .errors import BookError
@@ -57,6 +57,35 @@ def create_demo(path: Path, force: bool = False) -> Book:
     return open_book(path)
 
 
-def demo_path() -> Path:
-    """Where the app keeps the demo it opens when no logbook exists yet."""
-    return Path(user_data_dir("sumpbook", appauthor=False)) / "demo.db"
+THROWAWAY_PREFIX = "sumpbook-throwaway-"  # the temporary folders of throw-away books
+
+
+def _throwaway_folder() -> Path:
+    return Path(tempfile.mkdtemp(prefix=THROWAWAY_PREFIX))
+
+
+def throwaway_demo() -> Book:
+    """A fresh copy of the demo plant in a new temporary folder, for the app to open when
+    no logbook exists yet: its story starts where it was frozen every time, and nothing
+    logged in it is kept (`discard` removes it when the app closes or moves on)."""
+    return create_demo(_throwaway_folder() / "demo.db")
+
+
+def throwaway_empty() -> Book:
+    """An empty book in a new temporary folder: what the app stands on while it asks
+    whether to create a logbook that does not exist yet."""
+    return open_book(_throwaway_folder() / "empty.db")
+
+
+def is_throwaway(path: Path) -> bool:
+    folder = Path(path).resolve().parent
+    return (
+        folder.name.startswith(THROWAWAY_PREFIX)
+        and folder.parent == Path(tempfile.gettempdir()).resolve()
+    )
+
+
+def discard(path: Path) -> None:
+    """Remove a throw-away book's folder (its copies and backups with it); nothing else."""
+    if is_throwaway(path):
+        shutil.rmtree(Path(path).resolve().parent, ignore_errors=True)

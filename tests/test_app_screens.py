@@ -9,6 +9,7 @@ from textual.widgets import DataTable, Input, Sparkline, Static
 
 from store import register, status
 from store.book import open_book
+from store.demo import discard, is_throwaway
 from store.register import FilterPosition, Technician
 from tests import test_app_plant as kit
 from tests.test_app_plant import count_entries, make_app, settle, write_prefs
@@ -287,9 +288,7 @@ async def test_demo_is_said_plainly(plant):
     assert count_entries(plant) > 0
 
 
-async def test_first_run_can_open_the_demo_plant(tmp_path, monkeypatch):
-    demo = tmp_path / "demo" / "demo.db"
-    monkeypatch.setattr("tui.app.demo_path", lambda: demo)
+async def test_first_run_can_open_the_demo_plant(tmp_path):
     with open_book(tmp_path / "empty.db"):
         pass
     app = SumpbookApp(open_book(tmp_path / "empty.db"), cursor_blink=False)
@@ -301,8 +300,11 @@ async def test_first_run_can_open_the_demo_plant(tmp_path, monkeypatch):
             await pilot.pause(0.02)
             if app.demo and isinstance(app.screen, (SignInScreen, WatchScreen)):
                 break
-        assert app.demo and app.book.path == demo
+        assert app.demo and is_throwaway(app.book.path)  # a fresh copy, nothing kept
         await pilot.press("escape")  # not signing in yet
         await settle(pilot, WatchScreen)
         assert app.screen.query_one("DemoBanner").display
         assert app.screen.query_one(DataTable).row_count > 10
+    app.book.close()
+    discard(app.book.path)
+    assert (tmp_path / "empty.db").exists()  # the user's own empty logbook is left as it was

@@ -20,8 +20,8 @@ from textual.theme import Theme
 
 from store import prefs as laptop
 from store import register
-from store.book import Book, deep_check, default_path, open_book
-from store.demo import create_demo, demo_path
+from store.book import ENV_DB, Book, deep_check, default_path, open_book
+from store.demo import discard, is_throwaway, throwaway_demo, throwaway_empty
 from store.entries import BreatherSwap, ElementChange, Reading
 from store.errors import BookError
 from store.register import Technician, Unit
@@ -143,9 +143,16 @@ class SumpbookApp(App[None]):
 
     demo: reactive[bool] = reactive(False)
 
-    def __init__(self, book: Book, demo: bool = False, cursor_blink: bool = True) -> None:
+    def __init__(
+        self,
+        book: Book,
+        demo: bool = False,
+        cursor_blink: bool = True,
+        new_path: Path | None = None,
+    ) -> None:
         super().__init__()
         self.book = book
+        self.new_path = new_path  # a logbook asked for that does not exist yet: offer it
         self.set_reactive(SumpbookApp.demo, demo)
         self.cursor_blink = cursor_blink
         self.prefs = laptop.load()
@@ -178,7 +185,11 @@ class SumpbookApp(App[None]):
 
     def on_mount(self) -> None:
         self.update_subtitle()
-        if not register.list_all(self.book, Unit):
+        if self.demo:
+            self.say_demo()
+        if self.new_path is not None:
+            self.push_screen(FirstRunScreen(self.new_path), self.first_run_choice)
+        elif not register.list_all(self.book, Unit):
             self.push_screen(FirstRunScreen(), self.first_run_choice)
         elif not self.tech:
             self.action_sign_in()
@@ -458,27 +469,54 @@ class SumpbookApp(App[None]):
 
     # ---- first run, demo ----
 
+    def say_demo(self) -> None:
+        self.notify(
+            "This is the demo plant, a fresh copy each time it opens: what you log here is "
+            "not kept.",
+            title="Demo",
+            timeout=12,
+        )
+
     def first_run_choice(self, what: str | None) -> None:
-        if what == "demo":
+        if what == "quit":
+            self.exit()
+        elif what == "demo":
             self.open_demo()
         elif what == "register":
+            if self.new_path is not None and not self.create_new_book():
+                return
             self.action_go("register")
             if not self.tech:
                 self.action_sign_in()
 
+    def create_new_book(self) -> bool:
+        """Create the logbook asked for (--db NEW.db) and move onto it."""
+        path = self.new_path
+        assert path is not None
+        try:
+            open_book(path).close()
+        except (BookError, OSError, sqlite3.Error) as exc:
+            self.notify(f"No logbook at {path}: {exc}", severity="error", timeout=15)
+            self.push_screen(FirstRunScreen(path), self.first_run_choice)
+            return False
+        self.new_path = None
+        self.switch_book(path, False, sign_in=False)
+        self.notify(f"New logbook: {path}")
+        return True
+
     @work(thread=True, exit_on_error=False, group="demo")
     def open_demo(self) -> None:
         self.call_from_thread(self.notify, "Opening the demo plant…")
-        path = demo_path()
         try:
-            if not (path.exists() and path.stat().st_size > 0):
-                create_demo(path).close()
+            book = throwaway_demo()
         except Exception as exc:  # noqa: BLE001 - shown to the user
             self.call_from_thread(self.notify, f"No demo: {exc}", severity="error")
             return
+        path = book.path
+        book.close()
         self.call_from_thread(self.switch_book, path, True)
 
-    def switch_book(self, path: Path, demo: bool) -> None:
+    def switch_book(self, path: Path, demo: bool, sign_in: bool = True) -> None:
         try:
             book = open_book(path, create=False)
         except BookError as exc:
@@ -486,7 +524,11 @@ class SumpbookApp(App[None]):
             return
         old, self.book = self.book, book
         old.close()
+        if is_throwaway(old.path) and old.path != path:
+            discard(old.path)  # a throw-away demo or empty book left behind is gone
         self.demo = demo
+        if demo:
+            self.say_demo()
         self.statuses = {}
         self.first_paint_done()
         for mode in ("shift", "register"):
@@ -502,7 +544,7 @@ class SumpbookApp(App[None]):
                 base.reload()
         else:
             self.switch_mode("watch")
-        if not self.tech:
+        if sign_in and not self.tech:
             self.action_sign_in()
 
     # ---- closing ----
@@ -563,22 +605,25 @@ def backup_on_close(book: Book) -> str | None:
     return None
 
 
-def open_for_app(db: Path | None) -> tuple[Book, bool]:
-    """The named logbook, or the demo plant when no logbook exists yet."""
+def open_for_app(db: Path | None, named: bool = False) -> tuple[Book, bool, Path | None]:
+    """(book, demo, new path). The logbook when it exists. One named (--db or SUMPBOOK_DB)
+    that does not exist yet: an empty throw-away book to stand on while the app offers to
+    create it. Neither: a fresh throw-away copy of the demo plant, nothing of it kept."""
     path = db or default_path()
     if path.exists() and path.stat().st_size > 0:
-        return open_book(path), False
-    demo = demo_path()
-    if demo.exists() and demo.stat().st_size > 0:
-        return open_book(demo), True
-    return create_demo(demo), True
+        return open_book(path), False, None
+    if named or db is not None:
+        return throwaway_empty(), False, path
+    return throwaway_demo(), True, None
 
 
-def run_app(db: Path | None) -> int:
-    book, demo = open_for_app(db)
-    app = SumpbookApp(book, demo=demo)
+def run_app(db: Path | None, env: dict[str, str] | None = None) -> int:
+    named = db is not None or bool((env or {}).get(ENV_DB))
+    book, demo, new_path = open_for_app(db, named=named)
+    app = SumpbookApp(book, demo=demo, new_path=new_path)
     try:
         app.run()
     finally:
         app.book.close()
+        discard(app.book.path)  # only a throw-away book's folder is removed
     return 0

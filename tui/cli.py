@@ -208,7 +208,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         from .app import run_app
 
         try:
-            return run_app(args.db)
+            return run_app(args.db, dict(os.environ))
         except BookError as exc:
             print(f"sumpbook: {exc}", file=sys.stderr)
             return EXIT_BAD_INPUT

@@ -4,10 +4,7 @@ from __future__ import annotations
 
 from textual.widgets import Static
 
-DEMO_TEXT = (
-    "DEMO PLANT, not your logbook. Your own: sumpbook --db FILE, or start one with "
-    "sumpbook register unit TAG"
-)
+DEMO_TEXT = "DEMO PLANT: what you log here is not kept. Your own: sumpbook --db FILE"
 
 
 class DemoBanner(Static):
