@@ -11,12 +11,13 @@ import re
 import sqlite3
 import uuid
 from dataclasses import asdict, dataclass, fields
+from datetime import datetime
 from typing import Any, TypeVar
 
 from .book import Book
 from .errors import BookError
 from .schema import FILTER_KINDS
-from .timeutil import format_utc, utc_now
+from .timeutil import format_utc, parse_utc, utc_now
 
 TAG_RE = re.compile(r"^[A-Z0-9][A-Z0-9._/-]{0,15}$")
 
@@ -286,6 +287,56 @@ def update(book: Book, cls: type[R], tag: str, changes: dict[str, Any], by: str 
 
 def register_history(book: Book, tag: str) -> list[dict[str, Any]]:
     return _rows(book, "SELECT * FROM register_log WHERE tag = ? ORDER BY at_utc", [tag])
+
+
+@dataclass(frozen=True)
+class RegisterChange:
+    """One recorded change of the register: who, when, which field, old -> new (as stored,
+    canonical units). `field` is '*' for a record added; the shift pattern has tag PATTERN."""
+
+    at: datetime  # UTC
+    by: str
+    what: str  # technician, fluid, unit, filter, breather or shifts
+    tag: str
+    field: str
+    old: str | None
+    new: str | None
+
+
+def history(
+    book: Book, tag: str | None = None, what: str | None = None, limit: int | None = None
+) -> list[RegisterChange]:
+    """The register's changes, oldest first: of one record (`tag`, any case; `what` narrows
+    it to one table: 'filter', 'unit', ...), or of the whole register; `limit` keeps the
+    newest that many."""
+    where, params = [], []
+    if what is not None:
+        tables = [t for t, word in WHAT.items() if word == what] or [what]
+        where.append("tbl = ?")
+        params.append(tables[0])
+    if tag is not None:
+        where.append("tag = ?")
+        params.append(tag.strip())
+    sql = "SELECT at_utc, by, tbl, tag, field, old, new FROM register_log"
+    if where:
+        sql += " WHERE " + " AND ".join(where)
+    sql += " ORDER BY at_utc DESC, rowid DESC"
+    if limit is not None:
+        sql += " LIMIT ?"
+        params.append(limit)
+    rows = _rows(book, sql, params)
+    return [
+        RegisterChange(
+            at=parse_utc(r["at_utc"]),
+            by=r["by"],
+            what=WHAT.get(r["tbl"], r["tbl"]),
+            tag=r["tag"],
+            field=r["field"],
+            old=r["old"],
+            new=r["new"],
+        )
+        for r in reversed(rows)
+    ]
 
 
 def set_shifts(book: Book, shifts: list[tuple[str, str]], by: str = "") -> list[Shift]:

@@ -306,3 +306,18 @@ def test_demo_refuses_to_overwrite_without_force(tmp_path, capsys):
     assert code == 0, err
     code, out, _ = run(capsys, "--db", db, "status", "--json")
     assert code == 0 and json.loads(out)["filters"]
+
+
+def test_register_history_on_the_command_line(plant, capsys):
+    code, _, err = run(capsys, "--db", plant, "register", "change", "filter", "P1-RF", "limit=2.4")
+    assert code == 0, err
+    code, out, err = run(capsys, "--db", plant, "register", "history", "p1-rf")
+    assert code == 0, err
+    lines = [line for line in out.splitlines() if "P1-RF" in line and "│" in line]
+    assert len(lines) == 2  # added, then the limit changed
+    assert "(new record)" in lines[0] and "added" in lines[0]
+    assert "limit_bar" in lines[1] and "2.5 → 2.4" in lines[1] and "AB" in lines[1]
+    code, out, _ = run(capsys, "--db", plant, "register", "history", "--limit", "1")
+    assert code == 0 and "2.5 → 2.4" in out and "(1)" in out
+    code, _, err = run(capsys, "--db", plant, "register", "history", "P9-XX")
+    assert code == 2 and "P9-XX" in err

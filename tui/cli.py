@@ -98,6 +98,11 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("tag")
     p.add_argument("fields", nargs="+", metavar="FIELD=VALUE")
     p.add_argument("--by", help="technician initials")
+    p = rsub.add_parser(
+        "history", help="who changed what in the register, when, old -> new (oldest first)"
+    )
+    p.add_argument("tag", nargs="?", help="one record's tag (default: the whole register)")
+    p.add_argument("--limit", type=int, help="only the newest this many changes")
 
     p = sub.add_parser("list", help="show units, filters, breathers, fluids, techs or entries")
     p.add_argument(

@@ -86,6 +86,8 @@ def _opt_bar(text: str | None, unit: str) -> float | None:
 
 
 def cmd_register(args: argparse.Namespace) -> int:
+    if args.what == "history":
+        return _register_history(args)
     prefs = laptop.load()
     with _book(args, create=True) as book:
         by = getattr(args, "by", None) or prefs.tech
@@ -182,6 +184,24 @@ def _register_change(book: Book, args: argparse.Namespace, by: str) -> int:
     updated = register.update(book, cls, args.tag, changes, by)
     for key in changes:
         console().print(f"{updated.tag} {key}: {getattr(current, key)} -> {getattr(updated, key)}")
+    return 0
+
+
+def _register_history(args: argparse.Namespace) -> int:
+    from .render import history_table
+
+    if args.limit is not None and args.limit < 1:
+        raise BookError("--limit must be 1 or more")
+    with _book(args) as book:
+        tag = args.tag
+        if tag is not None:
+            tag = register.normalise_tag(tag)
+            changes = register.history(book, tag, limit=args.limit)
+            if not changes:
+                raise BookError(f"no register record '{tag}' has a recorded change")
+        else:
+            changes = register.history(book, limit=args.limit)
+        console().print(history_table(book, changes, tag))
     return 0
 
 

@@ -321,3 +321,26 @@ def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
                 ", ".join(FLAG_WORDS.get(x, x) for x in u.flags),
             )
     return table
+
+
+def change_text(change: register.RegisterChange) -> str:
+    """'added', or 'old -> new' with '–' for an empty side."""
+    if change.field == "*":
+        return change.new or "added"
+    return f"{change.old if change.old is not None else '–'} → {change.new if change.new is not None else '–'}"
+
+
+def history_table(book: Book, changes: list[register.RegisterChange], tag: str | None) -> Table:
+    title = f"Register history of {tag.upper()}" if tag else "Register history"
+    table = Table(title=f"{title} ({len(changes)})", title_justify="left")
+    for name in ("time", "by", "record", "field", "change"):
+        table.add_column(name, overflow="fold")
+    for c in changes:
+        table.add_row(
+            when(book, c.at),
+            c.by or "–",
+            f"{c.what} {c.tag}",
+            "(new record)" if c.field == "*" else c.field,
+            change_text(c),
+        )
+    return table

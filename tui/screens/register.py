@@ -14,10 +14,12 @@ from textual.widgets import DataTable, Header, Select, Static, TabbedContent, Ta
 from store import register
 from store.errors import BookError
 from store.prefs import THEMES
-from store.register import Breather, FilterPosition, Fluid, Technician, Unit
+from store.register import TABLES, WHAT, Breather, FilterPosition, Fluid, Technician, Unit
+from store.timeutil import local_text
 from store.units import PRESSURE_UNITS, TEMPERATURE_UNITS, VOLUME_UNITS
 
 from ..forms.register_record import RegisterForm
+from ..render import change_text
 from ..widgets import fmt
 from ..widgets.banner import DemoBanner
 from ..widgets.keystrip import KeyStrip
@@ -31,6 +33,7 @@ TABS = {
     "fluids": Fluid,
     "techs": Technician,
 }
+HISTORY_LINES = 4  # the newest changes shown under the table; the CLI shows them all
 THEME_WORDS = {"dark": "dark", "light": "light", "contrast": "high contrast (sunlight)"}
 
 
@@ -126,6 +129,7 @@ class RegisterScreen(BookScreen):
                         yield DataTable(id="table-shifts", cursor_type="row")
                     else:
                         yield DataTable(id=f"table-{name}", cursor_type="row")
+        yield Static("", id="reg-history", markup=False)
         yield KeyStrip()
 
     def compose_prefs(self) -> ComposeResult:
@@ -179,7 +183,53 @@ class RegisterScreen(BookScreen):
         self.query_one("#pref-who", Static).update(
             f"Signed in on this laptop: {who}  (i: change)\nLogbook: {self.sb.book.path}"
         )
+        self.show_history()
         self.loaded = True
+
+    # ---- the highlighted record's history ----
+
+    def highlighted(self) -> tuple[str, str] | None:
+        """(tag, what) of the record the cursor is on, or the shift pattern."""
+        name = self.active()
+        if name == "shifts":
+            return "PATTERN", "shifts"
+        if name not in TABS:
+            return None
+        table = self.query_one(f"#table-{name}", DataTable)
+        if not table.row_count:
+            return None
+        key = table.coordinate_to_cell_key(table.cursor_coordinate).row_key.value
+        return str(key), WHAT[TABLES[TABS[name]]]
+
+    @guarded
+    def show_history(self) -> None:
+        pane = self.query_one("#reg-history", Static)
+        record = self.highlighted()
+        pane.display = record is not None
+        if record is None:
+            return
+        tag, what = record
+        changes = register.history(self.sb.book, tag, what)
+        name = "The shift pattern" if what == "shifts" else f"{tag}"
+        if not changes:
+            pane.update(f"{name}: no changes recorded")
+            return
+        shown = changes[-HISTORY_LINES:]
+        head = f"{name} history, " + (
+            f"last {len(shown)} of {len(changes)} (all: sumpbook register history {tag})"
+            if len(shown) < len(changes)
+            else f"{len(changes)} change{'s' if len(changes) > 1 else ''}"
+        )
+        local = self.sb.book.local_zone()
+        lines = [
+            f"{local_text(c.at, local)}  {c.by or '–':<4} "
+            f"{'(new record)' if c.field == '*' else c.field}  {change_text(c)}"
+            for c in shown
+        ]
+        pane.update("\n".join([head, *lines]))
+
+    def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
+        self.show_history()
 
     # ---- tabs ----
 
@@ -201,6 +251,7 @@ class RegisterScreen(BookScreen):
         name = self.active()
         if name != "prefs" and self.query(f"#table-{name}"):
             self.query_one(f"#table-{name}").focus()
+        self.show_history()
 
     # ---- add and edit ----
 

@@ -1,0 +1,52 @@
+"""The register screen shows the highlighted record's history: who, when, field, old -> new."""
+
+from __future__ import annotations
+
+from textual.widgets import DataTable, Input, Static
+
+from store import register
+from store.book import open_book
+from store.register import FilterPosition
+from tests import test_app_plant as kit
+from tests.test_app_plant import make_app, settle
+from tui.screens.register import RegisterScreen
+from tui.screens.watch import WatchScreen
+
+plant = kit.plant  # the invented plant (a fixture)
+
+
+def history_text(screen) -> str:
+    return str(screen.query_one("#reg-history", Static).render())
+
+
+async def test_the_register_shows_each_records_history(plant):
+    with open_book(plant, create=False) as book:  # a change made elsewhere, by CD
+        register.update(book, FilterPosition, "P2-RF", {"clean_bar": 0.5}, by="CD")
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        await pilot.press("3")
+        await settle(pilot, RegisterScreen)
+        screen = app.screen
+        screen.show_tab("filters")
+        await pilot.pause()
+        table = screen.query_one("#table-filters", DataTable)
+        table.move_cursor(row=table.get_row_index("P1-RF"))
+        await pilot.pause()
+        assert "P1-RF history" in history_text(screen)
+        assert "(new record)  added" in history_text(screen)
+        await pilot.press("e")
+        await pilot.pause()
+        app.screen.query_one("#f-limit_bar", Input).value = "2.4"
+        await pilot.press("ctrl+s")
+        await settle(pilot, RegisterScreen)
+        shown = history_text(screen)
+        assert "AB   limit_bar  2.5 → 2.4" in shown and "2026-05-13 10:00" in shown
+        table.move_cursor(row=table.get_row_index("P2-RF"))  # the pane follows the cursor
+        await pilot.pause()
+        shown = history_text(screen)
+        assert "P2-RF history" in shown and "CD   clean_bar  0.4 → 0.5" in shown
+        assert "limit_bar" not in shown
+        screen.show_tab("shifts")
+        await pilot.pause()
+        assert "shift pattern" in history_text(screen)
