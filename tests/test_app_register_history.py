@@ -50,3 +50,22 @@ async def test_the_register_shows_each_records_history(plant):
         screen.show_tab("shifts")
         await pilot.pause()
         assert "shift pattern" in history_text(screen)
+
+
+async def test_the_unit_sheet_shows_a_notes_text_shortened(plant):
+    from store import journal
+    from store.entries import Note
+    from tui.screens.unit_sheet import UnitSheetScreen
+
+    text = "hose at the clamp cylinder weeps at the lower fitting, tighten next stop"
+    with open_book(plant, create=False) as book:
+        journal.log(book, Note(unit="P1", note=text, by="CD"))
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        app.open_sheet("unit", "P1", "P1")
+        await settle(pilot, UnitSheetScreen)
+        entries = app.screen.query_one("#unit-entries", DataTable)
+        row = [str(cell) for cell in entries.get_row_at(0)]  # newest first
+        assert row[1] == "note" and row[4].startswith("hose at the clamp")
+        assert row[4].endswith("…") and len(row[4]) <= 30  # no wider than other kinds' lines

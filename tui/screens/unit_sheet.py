@@ -9,6 +9,8 @@ from textual.binding import Binding
 from textual.containers import VerticalScroll
 from textual.widgets import DataTable, Header, Sparkline, Static
 
+from store.entries import Entry, Note
+from store.prefs import Prefs
 from store.sheets import UnitSheet, unit_sheet
 
 from ..render import describe
@@ -16,6 +18,22 @@ from ..widgets import fmt
 from ..widgets.banner import DemoBanner
 from ..widgets.keystrip import KeyStrip
 from .common import ENTRY_BINDINGS, BookScreen, Target
+
+
+NOTE_CELLS = 30  # a note's text in the recent entries, shortened to fit 80 columns
+
+
+def shorten(text: str, cells: int) -> str:
+    """One line of at most `cells` characters, '…' where it was cut."""
+    line = " ".join(text.split())
+    return line if len(line) <= cells else line[: cells - 1].rstrip() + "…"
+
+
+def what_cell(entry: Entry, prefs: Prefs) -> str:
+    """What an entry holds, for the recent entries: a note says its text."""
+    if isinstance(entry, Note):
+        return shorten(entry.note, NOTE_CELLS) or "note"
+    return describe(entry, prefs)
 
 
 class UnitSheetScreen(BookScreen):
@@ -192,7 +210,7 @@ class UnitSheetScreen(BookScreen):
                 Text(e.kind + (" VOID" if e.voided else ""), style=style),
                 Text(e.target or e.unit or "", style=style),
                 Text(e.by, style=style),
-                Text(describe(e, prefs), style=style),
+                Text(what_cell(e, prefs), style=style),
                 Text(e.id[:8], style=style),
                 key=e.id,
             )
