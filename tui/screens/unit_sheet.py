@@ -19,7 +19,6 @@ from ..widgets.banner import DemoBanner
 from ..widgets.keystrip import KeyStrip
 from .common import ENTRY_BINDINGS, BookScreen, Target
 
-
 NOTE_CELLS = 30  # a note's text in the recent entries, shortened to fit 80 columns
 
 
