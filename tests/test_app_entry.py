@@ -180,3 +180,30 @@ async def test_time_field_says_the_whole_reason_and_takes_a_bare_clock(plant):
     with open_book(plant, create=False) as book:
         saved = journal.read(book, kinds=["reading"], newest_first=True, limit=1)[0]
     assert saved.at == datetime(2026, 5, 13, 7, 30, tzinfo=UTC)
+
+
+async def test_focus_on_buttons_and_open_lists_stand_out(plant):
+    from textual.widgets import Button, Select
+    from textual.widgets._select import SelectOverlay
+
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        app.open_form("topup", "P1")
+        await pilot.pause()
+        form = app.screen
+        box = form.query_one("#form-box").styles.background
+        choice = form.query_one("#f-how", Select)
+        choice.focus()
+        await pilot.press("enter")
+        await pilot.pause()
+        overlay = choice.query_one(SelectOverlay)
+        assert overlay.display and overlay.styles.background != box  # apart from the labels
+        assert overlay.styles.border_top[0]  # and framed
+        await pilot.press("escape")
+        save = form.query_one("#save", Button)
+        before = (save.styles.background, save.styles.text_style)
+        save.focus()
+        await pilot.pause()
+        assert (save.styles.background, save.styles.text_style) != before
+        assert save.styles.background != box
