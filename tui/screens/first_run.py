@@ -12,9 +12,9 @@ from textual.screen import ModalScreen
 from textual.widgets import Static
 
 DEMO_CHOICE = """\
-  d   Open the demo plant: a small invented plant with a few months of
-      readings, to see what the app does. A fresh copy each time: what
-      you log there is not kept."""
+  d   Open the demo plant: a small invented plant with a few
+      months of readings, to see what the app does. A fresh copy
+      each time: what you log there is not kept."""
 
 ORDER = """\
         1. yourself (initials)    2. the fluids    3. the units
