@@ -50,7 +50,12 @@ async def test_a_scanner_burst_opens_the_exact_tag_every_time(plant):
     app = make_app(plant)
     async with app.run_test(size=(80, 24)) as pilot:
         await settle(pilot, WatchScreen)
-        for typed, tag in [("P2-RF", "P2-RF"), ("p1-pf", "P1-PF"), ("p1-rf", "P1-RF")] * 2:
+        for typed, tag in [
+            ("P2-RF", "P2-RF"),
+            ("p1-pf", "P1-PF"),
+            ("p1-rf", "P1-RF"),
+            ("P2-RF", "P2-RF"),
+        ]:
             await pilot.press("t", *typed, "enter")  # every character and Enter, no pause
             await pilot.pause()
             form = app.screen
