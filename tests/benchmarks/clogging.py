@@ -487,7 +487,6 @@ def book_likely_h(db: Path, fitted: datetime, now_h: float) -> float:
 
 
 def book_agreement(
-    folder: Path,
     folds: Sequence[Fold],
     fractions=CHECK_FRACTIONS,
     calibration: Calibration | dict[str, Calibration] = SHIPPED,
@@ -571,7 +570,7 @@ def main(argv: Sequence[str] = ()) -> int:
     print("sumpbook basis: " + ", ".join(f"{b} {bases.count(b)}" for b in sorted(set(bases))))
     print()
     if "--no-book" not in argv:
-        agree = book_agreement(folder, folds)
+        agree = book_agreement(folds)
         rel = [abs(b - f) / f for _, _, f, b in agree if math.isfinite(f)]
         print(
             f"Through the book (import, status --json --as-of), shipped calibration: "
