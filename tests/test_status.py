@@ -477,3 +477,25 @@ def test_a_reading_without_the_meter_does_not_move_the_due_date(tmp_path):
     assert abs(without.due.likely - with_meter.due.likely) < timedelta(minutes=1)
     assert abs(without.due.likely - before.due.likely) < timedelta(days=2)
     assert without.element_age_h == pytest.approx(with_meter.element_age_h)
+
+
+def test_a_new_element_without_meter_readings_ages_at_the_units_running_rate(tmp_path):
+    # the element in service has only its fitting's meter value; its readings without the meter
+    # are aged at the 12 h a day the earlier element's meter values show
+    with _meter_book(tmp_path) as book:
+        fitted = T0 + timedelta(days=41)
+        book.set_setting("clock", (fitted + timedelta(days=5)).strftime("%Y-%m-%dT%H:%M:%SZ"))
+        journal.log(book, ElementChange(filter="M1-R", hours=1492, by="AB", at=fitted))
+        journal.log_many(
+            book,
+            [
+                Reading(filter="M1-R", dp_bar=0.3 + 0.01 * day, temp_c=50, by="AB",
+                        at=fitted + timedelta(days=day))
+                for day in (1, 2, 3, 4)
+            ],
+        )  # fmt: skip
+        from store.statuscache import filter_view
+
+        f, _ = filter_view(book, "M1-R")
+        assert [p.age_h for p in f.history] == pytest.approx([12.0, 24.0, 36.0, 48.0])
+        assert f.element_age_h == pytest.approx(60.0)

@@ -1,0 +1,28 @@
+"""The fast-loading flag where a technician sees it: the watch list and the filter sheet."""
+
+from __future__ import annotations
+
+import re
+
+from textual.widgets import Static
+
+from tests.test_app_plant import make_app, settle, write_prefs
+from tests.test_status import _pace_book
+from tui.screens.filter_sheet import FilterSheetScreen
+from tui.screens.watch import WatchScreen
+
+
+async def test_the_filter_sheet_says_how_much_faster_the_element_loads(tmp_path, monkeypatch):
+    monkeypatch.setenv("SUMPBOOK_CONFIG", str(write_prefs(tmp_path)))
+    # 650 h against earlier lives of 950-1050 h (tests/test_status.py): about 1.5x their pace
+    _pace_book(tmp_path, 650.0).close()
+    app = make_app(tmp_path / "pace.db")
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        app.open_sheet("filter", "M2-RF", "M2")
+        await settle(pilot, FilterSheetScreen)
+        notes = str(app.screen.query_one("#notes", Static).render())
+        assert "FAST LOAD" in notes
+        # 1000 / 650 = 1.54, as the forecast of 16 readings makes it
+        assert re.search(r"about 1\.[3-7]× the pace of the last 6 elements", notes), notes
+        assert "take a fluid sample, check the breather and recent top-ups" in notes
