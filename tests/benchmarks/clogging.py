@@ -30,7 +30,7 @@ not a change of operating point to correct for. The limit (and the bypass it pro
 raw ΔP, so raw readings, raw earlier curves and a raw limit keep the forecast on the quantity that
 trips. (In service, where flow and viscosity change for other reasons, the app normalises first.)
 
-Run:  python tests/benchmarks/clogging.py              (about two minutes)
+Run:  python tests/benchmarks/clogging.py              (a few minutes)
       python tests/benchmarks/clogging.py --calibrate  (derive the shipped calibration)
       python tests/benchmarks/clogging.py --no-book    (skip the book path)
       env SUMPBOOK_CLOGGING_DATA overrides the data folder.
