@@ -9,6 +9,7 @@ statistics; one taken out earlier is right-censored.
 
 from __future__ import annotations
 
+import bisect
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
@@ -70,13 +71,20 @@ def meter_at(
     Between two pairs: in proportion to calendar time. Beyond them: at rate_h_per_day, or at
     the rate of the pairs' own span when that covers a day or more. None when neither is known.
     """
-    pts = sorted(pairs)
+    return _meter_at_sorted(sorted(pairs), at, rate_h_per_day)
+
+
+def _meter_at_sorted(
+    pts: Sequence[tuple[datetime, float]], at: datetime, rate_h_per_day: float | None
+) -> float | None:
     if not pts:
         return None
-    for (t0, h0), (t1, h1) in zip(pts, pts[1:], strict=False):
-        if t0 <= at <= t1:
-            span = (t1 - t0).total_seconds()
-            return h0 if span <= 0 else h0 + (h1 - h0) * (at - t0).total_seconds() / span
+    i = bisect.bisect_left(pts, at, key=lambda p: p[0])
+    if i < len(pts) and pts[i][0] == at:
+        return pts[i][1]
+    if 0 < i < len(pts):
+        (t0, h0), (t1, h1) = pts[i - 1], pts[i]
+        return h0 + (h1 - h0) * (at - t0).total_seconds() / (t1 - t0).total_seconds()
     rate = rate_h_per_day
     if rate is None and len(pts) >= 2:
         days = (pts[-1][0] - pts[0][0]).total_seconds() / 86400
@@ -84,7 +92,7 @@ def meter_at(
             rate = min((pts[-1][1] - pts[0][1]) / days, 24.0)
     if rate is None:
         return None
-    if at > pts[-1][0]:
+    if i == len(pts):
         return pts[-1][1] + rate * (at - pts[-1][0]).total_seconds() / 86400
     return max(pts[0][1] - rate * (pts[0][0] - at).total_seconds() / 86400, 0.0)
 
@@ -100,7 +108,7 @@ def _age_h(
 ) -> float:
     if uses_hours and start_hours is not None:
         if hours is None:  # no meter on this reading: estimated from the element's meter pairs
-            hours = meter_at(pairs, at, rate_h_per_day)
+            hours = _meter_at_sorted(pairs, at, rate_h_per_day)
         if hours is not None:
             return max(hours - start_hours, 0.0)
     if start is None:
@@ -138,7 +146,7 @@ def _aging(
         and origin_hours is not None
         and (removal is None or removal.hours is not None)
         and all(
-            r[1] is not None or meter_at(pairs, r[0], rate_h_per_day) is not None
+            r[1] is not None or _meter_at_sorted(pairs, r[0], rate_h_per_day) is not None
             for r, _ in readings
         )
     )
