@@ -487,15 +487,12 @@ def book_likely_h(db: Path, fitted: datetime, now_h: float) -> float:
 
 
 def book_agreement(
-    folds: Sequence[Fold],
-    fractions=CHECK_FRACTIONS,
-    calibration: Calibration | dict[str, Calibration] = SHIPPED,
-    seed: int = 1,
+    folds: Sequence[Fold], fractions=CHECK_FRACTIONS, seed: int = 1
 ) -> list[tuple[str, float, float, float]]:
     """(run, fraction, function's likely age, book's likely age) for every held-out run.
 
-    The book forecasts with the shipped calibration, so with a per-fold one the function is
-    given the shipped one too: this checks the path, not the calibration.
+    The book forecasts with the shipped calibration, and so does the function here: this checks
+    the path, not the calibration.
     """
     import tempfile
 
@@ -515,10 +512,9 @@ def book_agreement(
                     logs_s[run.name] = (np.round(a * 3600) / 3600, d)
                     db, fitted = book_for(Path(tmp), run, fold.history, logs)
                     for frac in fractions:
-                        fc, _, _, now = forecast_at(run, frac, earlier, logs_s, calibration
-                                                    if not isinstance(calibration, dict)
-                                                    else SHIPPED)  # fmt: skip
-                        now = round(now * 3600) / 3600
+                        # the book's clock is whole seconds too
+                        frac_s = round(frac * run.life_h * 3600) / 3600 / run.life_h
+                        fc, _, _, now = forecast_at(run, frac_s, earlier, logs_s, SHIPPED)
                         fn = fc.to_limit.likely_h if fc.to_limit else math.inf
                         out.append((run.name, frac, fn, book_likely_h(db, fitted, now)))
         finally:
