@@ -378,16 +378,17 @@ def _pace_book(tmp_path, current_life_h: float):
     )
     t = T0
     entries = []
-    for life in (950.0, 1000.0, 1050.0, 980.0, 1020.0, 1000.0, current_life_h):
+    lives = (950.0, 1000.0, 1050.0, 980.0, 1020.0, 1000.0, current_life_h)
+    for i, life in enumerate(lives):
         entries.append(ElementChange(filter="M2-RF", reason="limit", by="AB", at=t))
-        last = life if life != current_life_h else 0.6 * life
+        current = i == len(lives) - 1
+        last = 0.6 * life if current else life
         entries += [
             Reading(filter="M2-RF", dp_bar=_exp_dp(h, life), temp_c=50, by="AB",
                     at=t + timedelta(hours=h))
             for h in range(24, int(last), 24)
         ]  # fmt: skip
-        if life != current_life_h:
-            t += timedelta(hours=life)
+        t += timedelta(hours=life)
     journal.log_many(book, entries)
     now = entries[-1].at + timedelta(hours=1)
     book.set_setting("clock", now.strftime("%Y-%m-%dT%H:%M:%SZ"))
@@ -499,3 +500,27 @@ def test_a_new_element_without_meter_readings_ages_at_the_units_running_rate(tmp
         f, _ = filter_view(book, "M1-R")
         assert [p.age_h for p in f.history] == pytest.approx([12.0, 24.0, 36.0, 48.0])
         assert f.element_age_h == pytest.approx(60.0)
+
+
+NOTE_OF_BASIS = {  # README "Basis": the words of the note for each basis
+    "earlier-curves": "matched to the loading curves of",
+    "trend": "fitted to",
+    "service-life": "earlier",
+}
+
+
+def test_basis_names_what_the_note_says(tmp_path):
+    # issue 11: the note said "matched to the loading curves of 23 earlier elements" while the
+    # basis said "trend"
+    from store.statuscache import filter_view
+
+    with _pace_book(tmp_path, 1000.0) as book:
+        f, _ = filter_view(book, "M2-RF")
+        assert f.basis == f.forecast.basis
+        assert NOTE_OF_BASIS[f.basis] in " ".join(f.notes)
+        data = status.to_json(status.watch(book))["filters"][0]
+        assert data["basis"] == f.basis
+        # a new element without readings: planned from the earlier lives
+        journal.log(book, ElementChange(filter="M2-RF", by="AB", at=book.now()))
+        g = one(status.watch(book), "M2-RF")
+        assert g.basis == "service-life" and NOTE_OF_BASIS["service-life"] in " ".join(g.notes)
