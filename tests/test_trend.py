@@ -410,3 +410,31 @@ def test_pace_is_flagged_beyond_the_spread_of_the_earlier_lives():
     assert loading_pace(800.0, lives[:2]) is None  # two lives show no spread
     # only the last six count
     assert loading_pace(800.0, [100.0] * 5 + lives).n == 6
+
+
+def knee_curve(t, life_h=1000.0, clean=0.3):
+    """A slow start, then a sharp late turn to LIMIT at life_h (our own model: the shape of
+    the rig runs in tests/benchmarks/clogging.py, which no free growth shape follows)."""
+    u = np.asarray(t, dtype=float) / life_h
+    return clean + 0.4 * np.sqrt(u) + (LIMIT - clean - 0.4) * u**8
+
+
+def test_an_element_faster_than_every_earlier_one_gets_an_earlier_date():
+    # issue 11: six earlier elements of 950-1050 h on one shape; the current one follows the
+    # same shape to a 650 h life. Read to 75 % of it, the earlier curves carry the forecast,
+    # and the date must come well before every earlier life, with the crossing inside.
+    past = [
+        PastElement(tuple(tt), tuple(yy), life, True)
+        for life in (950.0, 1000.0, 1050.0, 980.0, 1020.0, 1000.0)
+        for tt, yy in [readings(knee_curve, life * 0.999, n=40, life_h=life)]
+    ]
+    true_h = 650.0  # knee_curve reaches LIMIT at life_h by construction
+    t, y = readings(knee_curve, 0.75 * true_h, n=22, life_h=true_h)
+    fc = run(t, y, earlier=past)
+    assert fc.basis == "earlier-curves"
+    assert fc.to_limit.likely_h < 0.8 * 950.0
+    assert fc.to_limit.earliest_h <= true_h <= fc.to_limit.latest_h
+    # an element at the usual pace stays with the earlier lives
+    t, y = readings(knee_curve, 600.0, n=18, life_h=1000.0)
+    usual = run(t, y, earlier=past)
+    assert usual.to_limit.earliest_h <= 1000.0 <= usual.to_limit.latest_h
