@@ -9,6 +9,7 @@ statistics; one taken out earlier is right-censored.
 
 from __future__ import annotations
 
+import bisect
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
@@ -62,15 +63,54 @@ class Element:
         return (self.removal.at - self.fitted_at).total_seconds() / 3600  # type: ignore[operator]
 
 
+def meter_at(
+    pairs: Sequence[tuple[datetime, float]], at: datetime, rate_h_per_day: float | None = None
+) -> float | None:
+    """The hour meter at a time from (time, meter) pairs of one unit.
+
+    Between two pairs: in proportion to calendar time. Beyond them: at rate_h_per_day, or at
+    the rate of the pairs' own span when that covers a day or more. None when neither is known.
+    """
+    return _meter_at_sorted(sorted(pairs), at, rate_h_per_day)
+
+
+def _meter_at_sorted(
+    pts: Sequence[tuple[datetime, float]], at: datetime, rate_h_per_day: float | None
+) -> float | None:
+    if not pts:
+        return None
+    i = bisect.bisect_left(pts, at, key=lambda p: p[0])
+    if i < len(pts) and pts[i][0] == at:
+        return pts[i][1]
+    if 0 < i < len(pts):
+        (t0, h0), (t1, h1) = pts[i - 1], pts[i]
+        return h0 + (h1 - h0) * (at - t0).total_seconds() / (t1 - t0).total_seconds()
+    rate = rate_h_per_day
+    if rate is None and len(pts) >= 2:
+        days = (pts[-1][0] - pts[0][0]).total_seconds() / 86400
+        if days >= 1 and pts[-1][1] > pts[0][1]:
+            rate = min((pts[-1][1] - pts[0][1]) / days, 24.0)
+    if rate is None:
+        return None
+    if i == len(pts):
+        return pts[-1][1] + rate * (at - pts[-1][0]).total_seconds() / 86400
+    return max(pts[0][1] - rate * (pts[0][0] - at).total_seconds() / 86400, 0.0)
+
+
 def _age_h(
     at: datetime,
     hours: float | None,
     start: datetime | None,
     start_hours: float | None,
     uses_hours: bool,
+    pairs: Sequence[tuple[datetime, float]] = (),
+    rate_h_per_day: float | None = None,
 ) -> float:
-    if uses_hours and hours is not None and start_hours is not None:
-        return max(hours - start_hours, 0.0)
+    if uses_hours and start_hours is not None:
+        if hours is None:  # no meter on this reading: estimated from the element's meter pairs
+            hours = _meter_at_sorted(pairs, at, rate_h_per_day)
+        if hours is not None:
+            return max(hours - start_hours, 0.0)
     if start is None:
         return 0.0
     return max((at - start).total_seconds() / 3600, 0.0)
@@ -87,18 +127,30 @@ def _aging(
     removal: ElementChange | None,
     readings: Sequence[tuple[ReadingValues, float | None]],
     hour_meter: bool,
-) -> tuple[datetime | None, float | None, bool]:
-    """Where an element's ages count from, and whether in operating hours (only where every
-    reading, and the removal, carries the meter)."""
+    rate_h_per_day: float | None = None,
+) -> tuple[datetime | None, float | None, bool, list[tuple[datetime, float]]]:
+    """Where an element's ages count from, whether in operating hours, and the element's
+    (time, meter) pairs. Operating hours where the unit has a meter, the start and the removal
+    carry it, and every reading either carries it or can be estimated from the pairs (between
+    them, or beyond them at the running rate)."""
     origin = fitted_at or (readings[0][0][0] if readings else None)
     origin_hours = fitted_hours if fitted_at else (readings[0][0][1] if readings else None)
+    pairs = [(r[0], r[1]) for r, _ in readings if r[1] is not None]
+    if origin is not None and origin_hours is not None:
+        pairs.append((origin, origin_hours))
+    if removal is not None and removal.hours is not None:
+        pairs.append((removal.at, removal.hours))
+    pairs.sort()
     uses_hours = (
         hour_meter
         and origin_hours is not None
-        and all(r[1] is not None for r, _ in readings)
         and (removal is None or removal.hours is not None)
+        and all(
+            r[1] is not None or _meter_at_sorted(pairs, r[0], rate_h_per_day) is not None
+            for r, _ in readings
+        )
     )
-    return origin, origin_hours, bool(uses_hours)
+    return origin, origin_hours, bool(uses_hours), pairs
 
 
 def _element(
@@ -107,15 +159,16 @@ def _element(
     removal: ElementChange | None,
     readings: Sequence[tuple[ReadingValues, float | None]],
     hour_meter: bool,
+    rate_h_per_day: float | None = None,
 ) -> Element:
     """One element with its points."""
-    origin, origin_hours, uses_hours = _aging(
-        fitted_at, fitted_hours, removal, readings, hour_meter
+    origin, origin_hours, uses_hours, pairs = _aging(
+        fitted_at, fitted_hours, removal, readings, hour_meter, rate_h_per_day
     )
     points = tuple(
         Point(
             at,
-            _age_h(at, hours, origin, origin_hours, uses_hours),
+            _age_h(at, hours, origin, origin_hours, uses_hours, pairs, rate_h_per_day),
             dp_bar,
             dp_ref,
             temp_c,
@@ -131,6 +184,19 @@ def _element(
     )
 
 
+def with_running_rate(el: Element, hour_meter: bool, rate_h_per_day: float | None) -> Element:
+    """The element aged in operating hours with the unit's running rate for readings without a
+    meter value beyond its own meter readings (itself where it needs no estimate or none can
+    be made)."""
+    if el.uses_hours or not hour_meter or rate_h_per_day is None or not el.points:
+        return el
+    readings = [
+        ((p.at, p.hours, p.dp_bar, p.temp_c, p.indicator, p.flow_lpm, p.entry_id), p.dp_ref_bar)
+        for p in el.points
+    ]
+    return _element(el.fitted_at, el.fitted_hours, el.removal, readings, hour_meter, rate_h_per_day)
+
+
 def _summary(
     fitted_at: datetime | None,
     fitted_hours: float | None,
@@ -139,13 +205,13 @@ def _summary(
     hour_meter: bool,
 ) -> ElementSummary:
     """`summarise(_element(...))` without making a point per reading."""
-    origin, origin_hours, uses_hours = _aging(
+    origin, origin_hours, uses_hours, meter = _aging(
         fitted_at, fitted_hours, removal, readings, hour_meter
     )
     ages, dps = [], []
     for r, dp_ref in readings:
         if dp_ref is not None:
-            ages.append(_age_h(r[0], r[1], origin, origin_hours, uses_hours))
+            ages.append(_age_h(r[0], r[1], origin, origin_hours, uses_hours, meter))
             dps.append(dp_ref)
     pairs = [(r[0], r[1]) for r, _ in readings if r[1] is not None]
     return ElementSummary(

@@ -17,7 +17,7 @@ from datetime import datetime, timedelta
 from . import status
 from .book import Book
 from .conditions import contexts
-from .elements import Element, ElementSummary, split_elements
+from .elements import Element, ElementSummary, meter_at, split_elements
 from .entries import Entry, Reading, Sample, TopUp
 from .fluidcare import Consumption, sample_verdict
 from .journal import read
@@ -254,6 +254,29 @@ def past_bypass(position: FilterPosition, dp_bar: float | None, indicator: str |
     if indicator == "bypass":
         return True
     return dp_bar is not None and position.bypass_bar is not None and dp_bar >= position.bypass_bar
+
+
+METER_LOOKBACK = 200  # the unit's latest entries that carry the hour meter, for the rate
+
+
+def meter_estimate_h(book: Book, unit: str, at: datetime) -> float | None:
+    """The unit's hour meter at `at`, estimated from its logged meter values: between two of
+    them in proportion to calendar time, after the last at the unit's observed running rate
+    (operating hours per calendar day over its latest meter values, at most 24). None when the
+    unit has no hour meter or fewer than two values a day or more apart."""
+    found = find(book, Unit, unit)
+    if found is None or not found.hour_meter:
+        return None
+    pairs: list[tuple[datetime, float]] = []
+    for e in read(
+        book, unit=unit, kinds=["reading", "change"], newest_first=True, until=at, limit=1000
+    ):
+        hours = getattr(e, "hours", None)
+        if hours is not None and not e.voided:
+            pairs.append((e.at, float(hours)))
+            if len(pairs) == METER_LOOKBACK:
+                break
+    return meter_at(pairs, at)
 
 
 def unit_fluid(book: Book, unit: str) -> str | None:

@@ -4,8 +4,8 @@ Everything here is derived from the entries and the register; `watch(book, as_of
 answers as the book stood at T (entries after it are ignored).
 
 Flag codes (also listed in the README):
-  filters   dp-drop, step-up, at-bypass, over-limit, indicator-bypass, indicator-dirty,
-            cold-start-bypass, reading-overdue, hot, no-limits
+  filters   dp-drop, step-up, fast-loading, at-bypass, over-limit, indicator-bypass,
+            indicator-dirty, cold-start-bypass, reading-overdue, hot, no-limits
   breathers swap-overdue, desiccant-spent
   units     leak-suspect, unfiltered-topup, coarse-topup, over-target, hot
 """
@@ -26,6 +26,7 @@ from .elements import (
     hours_per_day,
     split_elements,
     summarise,
+    with_running_rate,
 )
 from .entries import Entry
 from .errors import BookError
@@ -58,6 +59,7 @@ HOT_LOOKBACK = timedelta(days=7)
 FLAG_WORDS = {
     "dp-drop": "ΔP DROP",
     "step-up": "STEP UP",
+    "fast-loading": "FAST LOAD",
     "at-bypass": "AT BYPASS",
     "over-limit": "OVER LIMIT",
     "indicator-bypass": "IND BYPASS",
@@ -83,9 +85,6 @@ class Due:
 
 
 MAX_AGE_H = 20 * 8766.0  # twenty years of element age: later "dates" are no dates
-
-# The trend model's basis words, as the watch list and the JSON name them.
-BASIS = {"earlier-curves": "trend"}
 
 
 def _due(interval: trend.AgeInterval | None, age_to_time: Any) -> Due | None:
@@ -140,6 +139,7 @@ class FilterStatus:
     history: tuple[Point, ...]  # readings of the current element (empty when read from cache)
     spark: tuple[float, ...] = ()  # normalised ΔP of the current element, for sparklines
     overdue_at: datetime | None = None  # when the next reading becomes overdue
+    pace: float | None = None  # earlier lives / this element's likely life (> 1: faster)
     forecast: trend.Forecast | None = field(default=None, compare=False)
     age_to_time: Any = field(default=None, compare=False)  # element age (h) -> datetime
 
@@ -244,6 +244,30 @@ def _past(ctx: FilterContext, past: Sequence[ElementSummary]) -> list[trend.Past
     return out
 
 
+def _pace(
+    ctx: FilterContext, past: Sequence[ElementSummary], forecast: trend.Forecast | None
+) -> trend.Pace | None:
+    """This element's pace against the earlier elements on the position that ran to the limit,
+    from a forecast fitted to its own readings (not from lives alone)."""
+    from . import trend
+
+    if (
+        forecast is None
+        or forecast.to_limit is None
+        or forecast.basis not in ("earlier-curves", "trend")
+        or forecast.state not in ("ok", "check-now")
+    ):
+        return None
+    lives = [
+        life
+        for el in past
+        if (life := el.life_h()) is not None
+        and life > 0
+        and el.reached_limit(ctx.position.limit_bar)
+    ]
+    return trend.loading_pace(forecast.to_limit.likely_h, lives)
+
+
 def filter_status(
     ctx: FilterContext,
     entries: Sequence[Entry],
@@ -268,10 +292,12 @@ def status_from(
     from . import anomaly, trend
 
     pos, unit = ctx.position, ctx.unit
+    rate = hours_per_day([*past[-2:], current], now) if unit.hour_meter else None
+    # A reading without the meter is aged at the unit's running rate, not in calendar hours.
+    current = with_running_rate(current, unit.hour_meter, rate)
     points = current.points
     numeric = [p for p in points if p.dp_ref_bar is not None]
     last = points[-1] if points else None
-    rate = hours_per_day([*past[-2:], current], now) if unit.hour_meter else None
     origin = current.fitted_at or (points[0].at if points else now)
     if rate and current.fitted_hours is not None:
         last_h = max([p.hours for p in points if p.hours is not None] or [current.fitted_hours])
@@ -326,11 +352,19 @@ def status_from(
             state = "no-forecast"
             notes.append(f"no forecast: {exc}")
         if forecast is not None:
-            basis, state = BASIS.get(forecast.basis, forecast.basis), forecast.state
+            basis, state = forecast.basis, forecast.state
             if forecast.note:
                 notes.append(forecast.note)
             due = _due(forecast.to_limit, age_to_time)
             bypass_due = _due(forecast.to_bypass, age_to_time)
+    pace = _pace(ctx, past, forecast)
+    if pace is not None and pace.fast:
+        flags.append("fast-loading")
+        notes.append(
+            f"loading about {pace.ratio:.1f}× the pace of the last {pace.n} elements: something "
+            "changed (dirt getting in, a wrong or faulty element, wear upstream): take a fluid "
+            "sample, check the breather and recent top-ups"
+        )
     if (
         due is None
         and state in ("too-few-readings", "no-readings", "flat")
@@ -444,6 +478,7 @@ def status_from(
         history=points,
         spark=tuple(p.dp_ref_bar for p in numeric[-40:]),  # type: ignore[misc]
         overdue_at=overdue_at,
+        pace=None if pace is None else round(pace.ratio, 3),
         forecast=forecast,
         age_to_time=age_to_time,
     )
@@ -635,6 +670,7 @@ def to_json(w: Watch, local: Any = None) -> dict[str, Any]:
                 "notes": list(f.notes),
                 "readings_since_change": f.readings_since_change,
                 "element_age_h": _r(f.element_age_h, 1),
+                "pace_vs_earlier": _r(f.pace, 2),
                 "cold_start": None
                 if f.cold is None
                 else {

@@ -49,7 +49,7 @@ from .status import (
 )
 from .timeutil import format_utc
 
-FORMAT = 1  # bump when the stored status shape changes: old rows are then recomputed
+FORMAT = 2  # bump when the stored status shape changes: old rows are then recomputed
 MAX_AGE = CACHE_MAX_AGE  # time-dependent parts (age, hot flag) are refreshed daily
 _SKIP = ("history", "forecast", "age_to_time")
 _TIMES = ("reading_at", "changed_at", "overdue_at")

@@ -6,9 +6,10 @@ turning ages into calendar dates is the caller's job.
 Three ways to a forecast, in order of preference:
 
 - "earlier-curves": the readings matched against the loading curves of earlier elements on the
-  position, stretched in time (store/trend_history.py). Used when at least two earlier elements
-  ran to the limit with logged readings and their curves fit the readings about as well as a
-  free growth curve does.
+  position, stretched in time (store/trend_history.py), the interval recalibrated on held-out
+  conditions (store/trend_calibration.py). Used when at least two earlier elements ran to the
+  limit with logged readings and their curves fit the readings about as well as a free growth
+  curve does.
 - "trend": growth curves fitted to this element's readings alone (store/trend_models.py). With
   few readings the trend is weighed against how long earlier elements lasted (Weibull).
 - "service-life": the Weibull of earlier lives, given that the element has lasted so far
@@ -29,6 +30,7 @@ import numpy as np
 
 from store.errors import BookError
 from store.life import WeibullFit, fit_weibull
+from store.trend_calibration import SHIPPED, Calibration, apply
 from store.trend_history import Template, fit_history, make_template
 from store.trend_models import LINE, TrendFit, aicc, fit_trend, huber_rho
 
@@ -201,13 +203,15 @@ def forecast(
     bypass_bar: float | None,
     now_age_h: float,
     earlier: Sequence[PastElement] = (),
+    calibration: Calibration = SHIPPED,
 ) -> Forecast:
     """Forecast the ages at which this element reaches its change limit and bypass setting.
 
     readings: the current element's normalised ΔP since it went in (any order; readings at the
     same age are averaged). clean_bar, limit_bar, bypass_bar: settings of the position (None
     where not set). now_age_h: the element's age now (readings may be older). earlier: earlier
-    elements on this and like positions, oldest first.
+    elements on this and like positions, oldest first. calibration: factors on the
+    earlier-curves interval (store/trend_calibration.py; IDENTITY for the raw interval).
     """
     limit = _positive_or_none(limit_bar, "the change limit")
     bypass = _positive_or_none(bypass_bar, "the bypass setting")
@@ -267,6 +271,11 @@ def forecast(
     intervals = [_interval(a, weights) for a in ages]
     to_limit = intervals[0] if state == "ok" else None
     to_bypass = intervals[-1] if bypass is not None else None
+    if basis == "earlier-curves" and to_limit is not None:
+        progress = t_last / to_limit.likely_h if to_limit.likely_h > 0 else 0.0
+        to_limit = AgeInterval(*apply(calibration, t_last, _ages(to_limit)))
+        if to_bypass is not None:
+            to_bypass = AgeInterval(*apply(calibration, t_last, _ages(to_bypass), progress))
     tempered = False
     if basis == "trend" and to_limit is not None and weib is not None and n < TEMPER_BELOW:
         # Few readings: weigh the trend against the earlier lives (given survival so far).
@@ -391,3 +400,42 @@ def _flat(
         return _from_lives("flat", n, weib, t_last, now_age_h, why)
     curve = _sample_curve(trend.dp_at, 1.1 * t_last)
     return Forecast("flat", "none", trend.describe(), None, None, why + ".", curve, n)
+
+
+# ---------------------------------------------------------------------------------------------
+# Is this element loading clearly faster than the earlier ones?
+
+PACE_LAST = 6  # compared with the last six elements that ran to the limit
+PACE_MIN_LIVES = 3  # fewer earlier lives have no spread to speak of
+PACE_SPREAD_Z = 2.0  # beyond two standard deviations of the earlier log lives: about 2 % of
+# elements from the same spread would pass it by chance (one-sided normal tail)
+PACE_MIN_RATIO = (
+    1.2  # and at least 20 % faster, however alike the earlier lives  # common practice, no source
+)
+
+
+@dataclass(frozen=True)
+class Pace:
+    """This element's expected life against the last earlier lives (ratio > 1: faster)."""
+
+    ratio: float  # median of the earlier lives / this element's likely life
+    n: int  # earlier lives compared with
+    threshold: float  # the ratio beyond which it counts as clearly faster
+    fast: bool
+
+
+def loading_pace(likely_life_h: float, earlier_lives_h: Sequence[float]) -> Pace | None:
+    """Compare the forecast life of this element with the last earlier lives (oldest first,
+    only those that ran to the limit). None without enough earlier lives.
+
+    Clearly faster: the ratio passes exp(PACE_SPREAD_Z x the standard deviation of the earlier
+    log lives) and PACE_MIN_RATIO, and the likely life is shorter than every one of them.
+    """
+    lives = np.asarray([h for h in earlier_lives_h if h > 0][-PACE_LAST:], dtype=float)
+    if lives.size < PACE_MIN_LIVES or not likely_life_h > 0 or not math.isfinite(likely_life_h):
+        return None
+    ratio = float(np.median(lives)) / likely_life_h
+    sd = float(np.std(np.log(lives), ddof=1))
+    threshold = max(math.exp(PACE_SPREAD_Z * sd), PACE_MIN_RATIO)
+    fast = ratio > threshold and likely_life_h < float(lives.min())
+    return Pace(ratio, int(lives.size), threshold, fast)

@@ -1,6 +1,7 @@
 """The `sumpbook` command line, end to end as a technician would type it."""
 
 import json
+from datetime import datetime
 
 import pytest
 
@@ -284,7 +285,7 @@ def test_status_json_has_the_documented_fields(plant, capsys):
     assert f["filter"] == "P1-RF" and f["readings_since_change"] == 3
     # at the reference temperature the normalised value is the reading itself
     assert f["dp_ref_bar"] == pytest.approx(0.8)
-    assert f["basis"] in ("trend", "service-life", "interval", "none")
+    assert f["basis"] in ("earlier-curves", "trend", "service-life", "interval", "none")
 
 
 def test_sample_line_says_whether_it_meets_the_target(plant, capsys):
@@ -321,3 +322,27 @@ def test_register_history_on_the_command_line(plant, capsys):
     assert code == 0 and "2.5 → 2.4" in out and "(1)" in out
     code, _, err = run(capsys, "--db", plant, "register", "history", "P9-XX")
     assert code == 2 and "P9-XX" in err
+
+
+def _likely(capsys, db, tag):
+    code, out, _ = run(capsys, "--db", db, "status", "--json")
+    assert code == 0
+    f = next(f for f in json.loads(out)["filters"] if f["filter"] == tag)
+    return datetime.fromisoformat(f["due"]["likely"]), f
+
+
+def test_a_reading_without_the_hour_meter_keeps_the_demo_due_date(tmp_path, capsys):
+    # issue 11: on the demo plant (frozen clock), M1-P's likely date is 18 Dec; a reading
+    # logged without --hours moved it to 18 Jan (its ages fell back to calendar hours)
+    db = str(tmp_path / "demo.db")
+    assert run(capsys, "--db", db, "demo")[0] == 0
+    before, f0 = _likely(capsys, db, "M1-P")
+    assert (before.month, before.day) == (12, 18)
+    code, _, err = run(capsys, "--db", db, "log", "reading", "M1-P", "--dp", "3.2", "--temp",
+                       "48", "--by", "BM")  # fmt: skip
+    assert code == 0, err
+    after, f1 = _likely(capsys, db, "M1-P")
+    assert (after.month, after.day) == (12, 18)
+    assert f1["basis"] == "earlier-curves" and "earlier elements" in " ".join(f1["notes"])
+    # the element's age is the meter estimate at the running rate, not frozen at a reading
+    assert f1["element_age_h"] == pytest.approx(f0["element_age_h"], abs=0.05)

@@ -8,7 +8,18 @@ import math
 
 import pytest
 
-from tests.benchmarks.clogging import data_dir, evaluate, load_runs, score
+from store.trend_calibration import SHIPPED
+from tests.benchmarks.clogging import (
+    Fold,
+    book_agreement,
+    conditions,
+    data_dir,
+    derive_calibration,
+    evaluate,
+    grouped_folds,
+    load_runs,
+    score,
+)
 
 SUBSET = ("01", "05", "09", "33", "37", "41")
 
@@ -42,3 +53,37 @@ def test_runs_start_when_the_pump_runs(calls):
     for run in load_runs(data_dir(), names=SUBSET):
         assert 4 <= run.start_s <= 12
         assert run.dp_psi[-1] > 20.0  # cut at the first second over 20 psi (SOURCE.md)
+
+
+def _data_or_skip():
+    folder = data_dir()
+    if not (folder / "runs.csv").is_file():
+        pytest.skip(f"clogging data not found at {folder} (set SUMPBOOK_CLOGGING_DATA)")
+    return folder
+
+
+def test_the_book_path_gives_the_functions_date():
+    """One held-out run of one condition, at 70 % of its life: logged through the book
+    (import of the shift log, status --json --as-of) it gets the function's likely date."""
+    folder = _data_or_skip()
+    runs = load_runs(folder)
+    fold = grouped_folds(runs, conditions(folder))[0]
+    one = Fold(fold.label, fold.held[:1], fold.history)
+    [(name, frac, function_h, book_h)] = book_agreement([one], fractions=(0.7,))
+    assert name == fold.held[0].name and frac == 0.7
+    assert len(fold.history) == 20
+    # dates in the JSON are whole seconds: 1 s in ~250 h is 1e-6
+    assert book_h == pytest.approx(function_h, rel=1e-5)
+
+
+def test_the_shipped_calibration_is_what_the_runs_give():
+    """SHIPPED in store/trend_calibration.py, derived again from the 24 runs (its provenance)."""
+    folder = _data_or_skip()
+    cal = derive_calibration(load_runs(folder), conditions(folder))
+    assert cal.n == SHIPPED.n
+    for got, shipped in (
+        (cal.earliest, SHIPPED.earliest),
+        (cal.likely, SHIPPED.likely),
+        (cal.latest, SHIPPED.latest),
+    ):
+        assert got == pytest.approx(shipped, abs=6e-4)  # printed to 3 decimals

@@ -1,5 +1,6 @@
 """The watch list end to end: entries in the book -> normalised ΔP, due dates, flags, audit."""
 
+import math
 from datetime import UTC, datetime, timedelta
 
 import pytest
@@ -342,3 +343,184 @@ def test_a_register_change_reaches_the_cached_watch_list(book):
     before = one(status.watch(book), "P1-RF").dp_ref_bar
     register.update(book, Unit, "P1", {"normal_temp_c": 40.0}, by="AB")
     assert one(status.watch(book), "P1-RF").dp_ref_bar > before
+
+
+# ---- an element loading faster than the earlier ones (fast-loading) -----------------------------
+
+PACE_LIMIT, PACE_CLEAN = 2.0, 0.3  # bar; a return filter (REFERENCES.md §7a, from memory)
+
+
+def _exp_dp(age_h: float, life_h: float) -> float:
+    """Clean ΔP plus an exponential rise that reaches the limit at life_h (our own model)."""
+    a = 0.05
+    k = math.log1p((PACE_LIMIT - PACE_CLEAN) / a) / life_h
+    return PACE_CLEAN + a * math.expm1(k * age_h)
+
+
+def _pace_book(tmp_path, current_life_h: float):
+    """Six earlier elements of 950-1050 h and a current one of `current_life_h`, read daily to
+    60 % of its life (readings at the unit's normal temperature: reference ΔP = gauge ΔP)."""
+    book = open_book(tmp_path / "pace.db")
+    register.add(book, Technician(tag="AB"))
+    register.add(book, Fluid(tag="HV46", iso_vg=46))
+    register.add(book, Unit(tag="M2", fluid="HV46", normal_temp_c=50))
+    register.add(
+        book,
+        FilterPosition(
+            tag="M2-RF",
+            unit="M2",
+            kind="return",
+            limit_bar=PACE_LIMIT,
+            bypass_bar=3.0,
+            clean_bar=PACE_CLEAN,
+            reading_interval_h=100_000,
+        ),
+    )
+    t = T0
+    entries = []
+    lives = (950.0, 1000.0, 1050.0, 980.0, 1020.0, 1000.0, current_life_h)
+    for i, life in enumerate(lives):
+        entries.append(ElementChange(filter="M2-RF", reason="limit", by="AB", at=t))
+        current = i == len(lives) - 1
+        last = 0.6 * life if current else life
+        entries += [
+            Reading(filter="M2-RF", dp_bar=_exp_dp(h, life), temp_c=50, by="AB",
+                    at=t + timedelta(hours=h))
+            for h in range(24, int(last), 24)
+        ]  # fmt: skip
+        t += timedelta(hours=life)
+    journal.log_many(book, entries)
+    now = entries[-1].at + timedelta(hours=1)
+    book.set_setting("clock", now.strftime("%Y-%m-%dT%H:%M:%SZ"))
+    return book
+
+
+def test_an_element_loading_much_faster_than_the_last_six_is_flagged(tmp_path):
+    # 650 h against earlier lives of 950-1050 h: about 1.5x their pace, far beyond their spread
+    # (standard deviation of log lives 0.035: the threshold is the 1.2 floor, common practice)
+    with _pace_book(tmp_path, 650.0) as book:
+        f = one(status.watch(book), "M2-RF")
+        assert "fast-loading" in f.flags, f.notes
+        note = next(n for n in f.notes if "pace" in n)
+        assert "the pace of the last 6 elements" in note
+        assert "fluid sample" in note and "breather" in note and "top-ups" in note
+        assert 1.3 <= f.pace <= 1.7  # 1000 / 650 = 1.54
+        data = status.to_json(status.watch(book))["filters"][0]
+        assert "fast-loading" in data["flags"] and data["pace_vs_earlier"] == round(f.pace, 2)
+        assert f"about {f.pace:.1f}×" in note
+
+
+def test_an_element_at_the_usual_pace_is_not_flagged(tmp_path):
+    with _pace_book(tmp_path, 1000.0) as book:
+        f = one(status.watch(book), "M2-RF")
+        assert "fast-loading" not in f.flags
+        assert f.pace is not None and 0.85 <= f.pace <= 1.15
+
+
+# ---- hour meter: a reading without it ------------------------------------------------------------
+
+
+def _meter_book(tmp_path):
+    """An hour-meter unit running 12 h a day (our own history), one element with meter
+    readings every second day."""
+    book = open_book(tmp_path / "meter.db")
+    register.add(book, Technician(tag="AB"))
+    register.add(book, Fluid(tag="HV46", iso_vg=46))
+    register.add(book, Unit(tag="M1", fluid="HV46", normal_temp_c=50, hour_meter=True))
+    register.add(
+        book,
+        FilterPosition(tag="M1-R", unit="M1", kind="return", bypass_bar=3.5, limit_bar=2.5,
+                       clean_bar=0.3, reading_interval_h=100_000),
+    )  # fmt: skip
+    journal.log(book, ElementChange(filter="M1-R", hours=1000, by="AB", at=T0))
+    journal.log_many(
+        book,
+        [
+            Reading(filter="M1-R", dp_bar=0.3 + 0.002 * 12 * day, temp_c=50,
+                    hours=1000 + 12 * day, by="AB", at=T0 + timedelta(days=day))
+            for day in range(2, 41, 2)
+        ],
+    )  # fmt: skip
+    book.set_setting("clock", (T0 + timedelta(days=41)).strftime("%Y-%m-%dT%H:%M:%SZ"))
+    return book
+
+
+def test_the_meter_is_estimated_between_and_after_logged_values(tmp_path):
+    from store.elements import meter_at
+    from store.sheets import meter_estimate_h
+
+    pairs = [(T0, 1000.0), (T0 + timedelta(days=2), 1024.0)]
+    # 12 h a day: half-way between the two values, and one day after the last
+    assert meter_at(pairs, T0 + timedelta(days=1)) == pytest.approx(1012.0)
+    assert meter_at(pairs, T0 + timedelta(days=3)) == pytest.approx(1036.0)
+    assert meter_at(pairs, T0 + timedelta(days=3), rate_h_per_day=20.0) == pytest.approx(1044.0)
+    assert meter_at(pairs[:1], T0 + timedelta(days=3)) is None  # no rate to go on
+    with _meter_book(tmp_path) as book:
+        # last value 1480 h on day 40; a day later at 12 h a day
+        assert meter_estimate_h(book, "M1", book.now()) == pytest.approx(1492.0)
+        f = one(status.watch(book), "M1-R")
+        assert f.element_age_h == pytest.approx(492.0)
+
+
+def test_a_reading_without_the_meter_does_not_move_the_due_date(tmp_path):
+    with _meter_book(tmp_path) as book:
+        at = T0 + timedelta(days=41)
+        before = one(status.watch(book), "M1-R")
+        journal.log(book, Reading(filter="M1-R", dp_bar=0.3 + 0.002 * 492, temp_c=50, by="AB",
+                                  at=at))  # fmt: skip
+        without = one(status.watch(book), "M1-R")
+    with _meter_book(tmp_path / "b" if (tmp_path / "b").mkdir() is None else tmp_path) as book:
+        journal.log(book, Reading(filter="M1-R", dp_bar=0.3 + 0.002 * 492, temp_c=50, by="AB",
+                                  at=at, hours=1492))  # fmt: skip
+        with_meter = one(status.watch(book), "M1-R")
+    # the same reading, on the line of the others: with the meter or with its estimate, the
+    # same due date (to the minute); read in calendar hours it would come about twice as late
+    assert abs(without.due.likely - with_meter.due.likely) < timedelta(minutes=1)
+    assert abs(without.due.likely - before.due.likely) < timedelta(days=2)
+    assert without.element_age_h == pytest.approx(with_meter.element_age_h)
+
+
+def test_a_new_element_without_meter_readings_ages_at_the_units_running_rate(tmp_path):
+    # the element in service has only its fitting's meter value; its readings without the meter
+    # are aged at the 12 h a day the earlier element's meter values show
+    with _meter_book(tmp_path) as book:
+        fitted = T0 + timedelta(days=41)
+        book.set_setting("clock", (fitted + timedelta(days=5)).strftime("%Y-%m-%dT%H:%M:%SZ"))
+        journal.log(book, ElementChange(filter="M1-R", hours=1492, by="AB", at=fitted))
+        journal.log_many(
+            book,
+            [
+                Reading(filter="M1-R", dp_bar=0.3 + 0.01 * day, temp_c=50, by="AB",
+                        at=fitted + timedelta(days=day))
+                for day in (1, 2, 3, 4)
+            ],
+        )  # fmt: skip
+        from store.statuscache import filter_view
+
+        f, _ = filter_view(book, "M1-R")
+        assert [p.age_h for p in f.history] == pytest.approx([12.0, 24.0, 36.0, 48.0])
+        assert f.element_age_h == pytest.approx(60.0)
+
+
+NOTE_OF_BASIS = {  # README "Basis": the words of the note for each basis
+    "earlier-curves": "matched to the loading curves of",
+    "trend": "fitted to",
+    "service-life": "earlier",
+}
+
+
+def test_basis_names_what_the_note_says(tmp_path):
+    # issue 11: the note said "matched to the loading curves of 23 earlier elements" while the
+    # basis said "trend"
+    from store.statuscache import filter_view
+
+    with _pace_book(tmp_path, 1000.0) as book:
+        f, _ = filter_view(book, "M2-RF")
+        assert f.basis == f.forecast.basis
+        assert NOTE_OF_BASIS[f.basis] in " ".join(f.notes)
+        data = status.to_json(status.watch(book))["filters"][0]
+        assert data["basis"] == f.basis
+        # a new element without readings: planned from the earlier lives
+        journal.log(book, ElementChange(filter="M2-RF", by="AB", at=book.now()))
+        g = one(status.watch(book), "M2-RF")
+        assert g.basis == "service-life" and NOTE_OF_BASIS["service-life"] in " ".join(g.notes)

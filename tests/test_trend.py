@@ -329,3 +329,112 @@ def test_any_readings_give_an_ordered_answer(pairs, with_history):
             assert iv.earliest_h <= iv.likely_h <= iv.latest_h
     if fc.to_limit is not None and fc.basis != "service-life":
         assert fc.to_limit.earliest_h >= max(t)
+
+
+# ---- recalibration of the earlier-curves interval (store/trend_calibration.py) ------------------
+
+
+def test_conformal_points_take_the_textbook_ranks():
+    from store.trend_calibration import conformal_high, conformal_low
+
+    # split conformal (Vovk et al.; Angelopoulos & Bates 2021, from memory): with n = 19
+    # scores the 95 % point is the ceil(0.95 x 20) = 19th smallest, the 5 % point the
+    # floor(0.05 x 20) = 1st; with n = 39, the 38th and the 2nd
+    v = list(range(19, 0, -1))
+    assert conformal_high(v, 0.95) == 19 and conformal_low(v, 0.05) == 1
+    v = list(range(1, 40))
+    assert conformal_high(v, 0.95) == 38 and conformal_low(v, 0.05) == 2
+
+
+def test_derived_factors_follow_the_held_out_ratios():
+    from store.trend_calibration import Sample, derive
+
+    # bin p < 0.6: last reading 20 h, likely 100 h (p = 0.2), earliest 60 h, latest 140 h:
+    # remaining 80 / 40 / 120 h; true remaining lives 30, 32, ... 106 h (39 samples)
+    samples = [Sample(20.0, 60.0, 100.0, 140.0, 20.0 + r) for r in range(30, 108, 2)]
+    cal = derive(samples)
+    assert cal.n == (39, 0, 0)
+    assert cal.earliest[0] == pytest.approx(32 / 40)  # 2nd smallest true remaining / 40
+    assert cal.likely[0] == pytest.approx(68 / 80)  # median true remaining / 80
+    assert cal.latest[0] == pytest.approx(104 / 120)  # 38th smallest / 120
+    assert cal.earliest[1:] == (1.0, 1.0)  # empty bins keep 1
+
+
+def test_recalibration_only_widens_and_keeps_the_order():
+    from store.trend_calibration import Calibration, apply
+
+    cal = Calibration((1.3, 0.5, 0.5), (0.9, 0.9, 0.9), (0.7, 1.2, 1.2))
+    # p = 20 / 100 = 0.2: earliest factor 1.3 would narrow (capped at 1), latest 0.7 likewise
+    assert apply(cal, 20.0, (60.0, 100.0, 140.0)) == pytest.approx((60.0, 92.0, 140.0))
+    # p = 90 / 100 = 0.9: earliest remaining halves, latest stretches by 1.2
+    assert apply(cal, 90.0, (95.0, 100.0, 110.0)) == pytest.approx((92.5, 99.0, 114.0))
+    # the bypass uses the change limit's progress
+    assert apply(cal, 90.0, (95.0, 300.0, 400.0), progress=0.9)[0] == pytest.approx(92.5)
+
+
+def test_the_shipped_recalibration_moves_the_earlier_curves_interval_only():
+    from store.trend_calibration import IDENTITY
+
+    t, y = readings(exp_curve, 600.0, n=12)
+    past = [
+        PastElement(tuple(tt), tuple(yy), life, True)
+        for life in (900.0, 1000.0, 1100.0)
+        for tt, yy in [readings(exp_curve, life * 0.999, n=30, life_h=life)]
+    ]
+    raw = forecast(ElementReadings(tuple(t), tuple(y)), None, LIMIT, None, 600.0, past, IDENTITY)
+    cal = forecast(ElementReadings(tuple(t), tuple(y)), None, LIMIT, None, 600.0, past)
+    assert raw.basis == cal.basis == "earlier-curves"
+    assert cal.to_limit.earliest_h <= raw.to_limit.earliest_h
+    assert cal.to_limit.latest_h >= raw.to_limit.latest_h
+    only_trend = run(t, y)  # no earlier elements: the trend, never recalibrated
+    assert only_trend.basis == "trend"
+
+
+# ---- is this element loading clearly faster? ----------------------------------------------------
+
+
+def test_pace_is_flagged_beyond_the_spread_of_the_earlier_lives():
+    from store.trend import loading_pace
+
+    lives = [900.0, 950.0, 1000.0, 1050.0, 1100.0, 1000.0]
+    # sd of the log lives 0.067: exp(2 x 0.067) = 1.14 is under the 1.2 floor
+    # (common practice, no source), so the threshold is 1.2
+    fast = loading_pace(800.0, lives)
+    assert fast.threshold == pytest.approx(1.2) and fast.n == 6
+    assert fast.ratio == pytest.approx(1000 / 800) and fast.fast
+    assert not loading_pace(850.0, lives).fast  # 1.18x: within the floor
+    wide = [500.0, 700.0, 1000.0, 1400.0, 2000.0, 1000.0]  # sd of log lives 0.49
+    w = loading_pace(450.0, wide)
+    assert w.threshold == pytest.approx(math.exp(2 * np.std(np.log(wide), ddof=1)))
+    assert w.ratio > 2.0 and not w.fast  # twice their median pace is inside so wide a spread
+    assert loading_pace(800.0, lives[:2]) is None  # two lives show no spread
+    # only the last six count
+    assert loading_pace(800.0, [100.0] * 5 + lives).n == 6
+
+
+def knee_curve(t, life_h=1000.0, clean=0.3):
+    """A slow start, then a sharp late turn to LIMIT at life_h (our own model: the shape of
+    the rig runs in tests/benchmarks/clogging.py, which no free growth shape follows)."""
+    u = np.asarray(t, dtype=float) / life_h
+    return clean + 0.4 * np.sqrt(u) + (LIMIT - clean - 0.4) * u**8
+
+
+def test_an_element_faster_than_every_earlier_one_gets_an_earlier_date():
+    # issue 11: six earlier elements of 950-1050 h on one shape; the current one follows the
+    # same shape to a 650 h life. Read to 75 % of it, the earlier curves carry the forecast,
+    # and the date must come well before every earlier life, with the crossing inside.
+    past = [
+        PastElement(tuple(tt), tuple(yy), life, True)
+        for life in (950.0, 1000.0, 1050.0, 980.0, 1020.0, 1000.0)
+        for tt, yy in [readings(knee_curve, life * 0.999, n=40, life_h=life)]
+    ]
+    true_h = 650.0  # knee_curve reaches LIMIT at life_h by construction
+    t, y = readings(knee_curve, 0.75 * true_h, n=22, life_h=true_h)
+    fc = run(t, y, earlier=past)
+    assert fc.basis == "earlier-curves"
+    assert fc.to_limit.likely_h < 0.8 * 950.0
+    assert fc.to_limit.earliest_h <= true_h <= fc.to_limit.latest_h
+    # an element at the usual pace stays with the earlier lives
+    t, y = readings(knee_curve, 600.0, n=18, life_h=1000.0)
+    usual = run(t, y, earlier=past)
+    assert usual.to_limit.earliest_h <= 1000.0 <= usual.to_limit.latest_h

@@ -6,7 +6,7 @@ from typing import Any
 
 from store.entries import Entry, Reading
 from store.register import FilterPosition, find
-from store.sheets import last_temp_c, past_bypass
+from store.sheets import last_temp_c, meter_estimate_h, past_bypass
 from store.units import parse_pressure_bar, parse_temperature_c
 
 from ..widgets import fmt
@@ -33,7 +33,11 @@ class ReadingForm(EntryForm):
         book, prefs = self.sb.book, self.sb.prefs
         position = find(book, FilterPosition, self.target) if self.target else None
         temp_hint, temp_text = "", ""
+        hours_hint = ""
         if position is not None:
+            meter = meter_estimate_h(book, position.unit, book.now())
+            if meter is not None:
+                hours_hint = f"about {meter:.0f} (running rate)"
             last = last_temp_c(book, position.unit)
             if last is not None:
                 temp_text, temp_hint = fmt.input_temperature(last, prefs), "last logged"
@@ -70,7 +74,13 @@ class ReadingForm(EntryForm):
                 [NumberValidator(0.001, 100_000, "L/min")],
                 hint="blank: normal flow",
             ),
-            Spec("hours", "Hour meter h", "", [NumberValidator(0, 10_000_000, "h")]),
+            Spec(
+                "hours",
+                "Hour meter h",
+                self.preset.get("hours", ""),
+                [NumberValidator(0, 10_000_000, "h")],
+                hint=hours_hint,
+            ),
             *self.common_specs(),
         ]
 

@@ -18,6 +18,8 @@ FLAG_MEANING = {
     "dp-drop": "ΔP fell with no element change: torn, collapsed or missing element, or "
     "bypass stuck open (urgent)",
     "step-up": "ΔP jumped: dirt came in (after a repair or a top-up?)",
+    "fast-loading": "this element loads clearly faster than the earlier ones: take a fluid "
+    "sample, check the breather and recent top-ups",
     "at-bypass": "ΔP at or over the bypass setting: unfiltered oil is passing (urgent)",
     "over-limit": "ΔP at or over the change limit: change the element",
     "indicator-bypass": "the indicator shows bypass (urgent)",
@@ -43,8 +45,9 @@ Watch columns
   Limit  latest reference ΔP as a share of the change limit (bar of 5)
   ΔP ref latest ΔP corrected to the reference viscosity and flow
   Trend  reference ΔP of this element, scaled 0 … change limit
-  Basis  trend (fitted to this element), earlier-curves (matched to earlier
-         elements), service-life (how long earlier elements lasted), interval
+  Basis  earlier-curves (readings matched to earlier elements' curves),
+         trend (fitted to this element alone), service-life (how long earlier
+         elements lasted), interval (indicator only), none
 """
 
 
