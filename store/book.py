@@ -17,6 +17,9 @@ from platformdirs import user_data_dir
 from .errors import BookError, NotALogbook, TooNew
 from .schema import APPLICATION_ID, MIGRATIONS, SCHEMA_VERSION
 from .timeutil import parse_utc, utc_now, zone
+from .validate import plant_setting
+
+PLANT_SETTINGS = ("name", "timezone", "backup_keep")
 
 if TYPE_CHECKING:
     import sqlite_utils
@@ -90,6 +93,8 @@ class Book:
                     pass
             if isinstance(exc, sqlite3.Error) and _translatable(exc):
                 raise write_error(exc, self.path) from exc
+            if isinstance(exc, sqlite3.IntegrityError):  # a CHECK or trigger of the schema
+                raise BookError(f"the logbook refused a value ({exc}): nothing was saved") from exc
             if isinstance(exc, UnicodeEncodeError):  # e.g. undecodable bytes from a terminal
                 raise BookError(
                     "some text holds characters that are not valid text (a wrong encoding?): "
@@ -130,6 +135,8 @@ class Book:
         return row[0] if row else default
 
     def set_setting(self, key: str, value: str) -> None:
+        if key in PLANT_SETTINGS:
+            value = plant_setting(key, value)  # the same check for every door
         with self.atomic():
             self.conn.execute(
                 "INSERT INTO settings(key, value) VALUES (?, ?) "
