@@ -40,8 +40,8 @@ from .timeutil import format_utc, parse_utc, utc_now
 MAX_DP_BAR = validate_value.RANGES["dp_bar"].high  # a filter ΔP above this is a typo
 TEMP_RANGE_C = (validate_value.RANGES["temp_c"].low, validate_value.RANGES["temp_c"].high)
 MAX_NOTE_CHARS = validate_value.MAX_NOTE_CHARS
-CHANGE_REASONS = ("limit", "indicator", "interval", "bypass", "damage", "other")
-BREATHER_REASONS = ("interval", "spent", "damage", "other")
+CHANGE_REASONS = validate_value.CHANGE_REASONS
+BREATHER_REASONS = validate_value.BREATHER_REASONS
 
 
 def _refresh_status(book: Book, entry: Entry) -> None:

@@ -7,7 +7,6 @@ Register rows may change (limits get adjusted), but every change is recorded in
 from __future__ import annotations
 
 import difflib
-import re
 import sqlite3
 import uuid
 from dataclasses import asdict, dataclass, fields
@@ -334,11 +333,7 @@ def set_shifts(book: Book, shifts: list[tuple[str, str]], by: str = "") -> list[
     result = []
     seen = set()
     for i, (name, starts) in enumerate(shifts):
-        name = name.strip()
-        if not re.match(r"^\w[\w-]{0,11}$", name):
-            raise BookError(f"'{name}' is not a usable shift name (1-12 letters or digits)")
-        if not re.match(r"^([01]\d|2[0-3]):[0-5]\d$", starts.strip()):
-            raise BookError(f"shift start '{starts}' must be HH:MM (00:00-23:59)")
+        name, starts = validate.shift(name, starts)
         if name.lower() in seen or starts in {s.starts for s in result}:
             raise BookError(f"shift '{name}' repeats a name or a start time")
         seen.add(name.lower())

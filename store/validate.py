@@ -265,6 +265,18 @@ ENTRY_NUMBERS = (
 )
 ENTRY_TEXTS = {"reason": 20, "condition": 200, "batch": 60, "code": 20, "indicator": 10}
 ENTRY_TAGS = ("by", "unit", "filter", "breather", "fluid")
+CHANGE_REASONS = ("limit", "indicator", "interval", "bypass", "damage", "other")
+BREATHER_REASONS = ("interval", "spent", "damage", "other")
+# What each kind must have, and the reasons it may give.
+_KIND_NEEDS = {
+    "reading": ("filter",),
+    "change": ("filter",),
+    "breather": ("breather",),
+    "topup": ("unit", "volume_l"),
+    "sample": ("unit",),
+    "void": ("voids",),
+}
+_KIND_REASONS = {"change": CHANGE_REASONS, "breather": BREATHER_REASONS}
 
 
 def entry_id(value: Any) -> str:
@@ -298,20 +310,63 @@ def entry_row_problem(row: dict[str, Any]) -> str | None:
                 tag(value, column)
         if not row.get("by"):
             return "it names no technician"
-        text("note", row.get("note"), multiline=True)
+        if text("note", row.get("note"), multiline=True) != row.get("note"):
+            return "the note is not as sumpbook stores notes (spaces around it, or CR)"
         for column, limit in ENTRY_TEXTS.items():
-            if row.get(column) is not None:
-                text(column, row[column], limit)
+            if row.get(column) is not None and text(column, row[column], limit) != row[column]:
+                return f"{column} is not as sumpbook stores it (spaces around it)"
         if row.get("indicator") is not None and row["indicator"] not in INDICATOR_STATES:
             return f"indicator '{one_line(str(row['indicator']), 20)}' is unknown"
         if row.get("voids") is not None:
             entry_id(row["voids"])
+        kind = row["kind"]
+        for column in _KIND_NEEDS.get(kind, ()):
+            if row.get(column) is None:
+                return f"a {kind} without {column}"
+        if kind in _KIND_REASONS and row.get("reason") not in _KIND_REASONS[kind]:
+            return f"{kind} reason '{one_line(str(row.get('reason')), 20)}' is unknown"
+        if kind == "reading" and row.get("dp_bar") is None and row.get("indicator") is None:
+            return "a reading with neither ΔP nor indicator"
+        if kind == "void" and not (row.get("note") or "").strip():
+            return "a void that says no reason"
     except BookError as exc:
         return str(exc)
     return None
 
 
 REGISTER_TEXTS = {"name": 80, "area": 80, "element": 60, "target_code": 20}
+SHIFT_NAME_RE = re.compile(r"^\w[\w-]{0,11}$")
+SHIFT_START_RE = re.compile(r"^([01]\d|2[0-3]):[0-5]\d$")
+
+
+def shift(name: Any, starts: Any) -> tuple[str, str]:
+    """A shift of the pattern: a name of 1-12 letters or digits, a start 'HH:MM'."""
+    clean = name.strip() if isinstance(name, str) else ""
+    if not SHIFT_NAME_RE.match(clean):
+        raise BookError(
+            f"'{one_line(str(name), 20)}' is not a usable shift name (1-12 letters or digits)"
+        )
+    start = starts.strip() if isinstance(starts, str) else ""
+    if not SHIFT_START_RE.match(start):
+        raise BookError(f"shift start '{one_line(str(starts), 20)}' must be HH:MM (00:00-23:59)")
+    return clean, start
+
+
+def register_log_problem(row: dict[str, Any]) -> str | None:
+    """Why a raw register_log row (another book's) could not have been written here, or None."""
+    try:
+        entry_id(row.get("id"))
+        problem = stamp_problem(row.get("at_utc"))
+        if problem:
+            return problem
+        for column in ("by", "tbl", "tag", "field"):
+            text(column, row.get(column), 40)
+        for column in ("old", "new"):
+            if row.get(column) is not None:
+                text(column, row[column], 400)
+    except BookError as exc:
+        return str(exc)
+    return None
 
 
 def register_row_problem(table: str, row: dict[str, Any]) -> str | None:
