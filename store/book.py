@@ -6,7 +6,7 @@ import os
 import sqlite3
 from collections.abc import Iterator
 from contextlib import contextmanager
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from datetime import datetime, tzinfo
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -46,6 +46,8 @@ class Book:
     conn: sqlite3.Connection
     path: Path
     readonly: bool = False
+    # What opening found and a person should hear once (e.g. rows an upgrade could not carry).
+    notices: list[str] = field(default_factory=list)
 
     @property
     def db(self) -> sqlite_utils.Database:
@@ -287,19 +289,55 @@ def check_header(conn: sqlite3.Connection, path: Path, quick: bool = True) -> in
     return version
 
 
-def migrate(conn: sqlite3.Connection, from_version: int) -> None:
-    """Apply every pending step in one transaction, with the version bump inside it."""
+def migrate(conn: sqlite3.Connection, from_version: int) -> list[str]:
+    """Apply every pending step in one transaction, with the version bump inside it.
+
+    Foreign keys are off while the steps run (a step may rebuild a table, SQLite's recipe for
+    new constraints) and checked whole before the commit. Returns what the steps found: rows
+    they could not carry over, kept in the `quarantine` table."""
     pending = MIGRATIONS[from_version:]
     if not pending:
-        return
+        return []
+    before = _quarantined(conn)
     script = "\n".join(pending)
-    conn.executescript(
-        "BEGIN IMMEDIATE;\n"
-        f"{script}\n"
-        f"PRAGMA application_id = {APPLICATION_ID};\n"
-        f"PRAGMA user_version = {SCHEMA_VERSION};\n"
-        "COMMIT;"
-    )
+    conn.execute("PRAGMA foreign_keys = OFF")
+    try:
+        conn.executescript(
+            "BEGIN IMMEDIATE;\n"
+            f"{script}\n"
+            f"PRAGMA application_id = {APPLICATION_ID};\n"
+            f"PRAGMA user_version = {SCHEMA_VERSION};\n"
+        )
+        dangling = conn.execute("PRAGMA foreign_key_check").fetchall()
+        if dangling:
+            conn.execute("ROLLBACK")
+            table, rowid, parent, _ = dangling[0]
+            raise BookError(
+                f"the upgrade found {len(dangling)} rows pointing at nothing (first: {table} row "
+                f"{rowid} -> {parent}); the file was left as it was"
+            )
+        found = _quarantined(conn) - before
+        conn.execute("COMMIT")
+    except BaseException:
+        if conn.in_transaction:
+            conn.execute("ROLLBACK")
+        raise
+    finally:
+        conn.execute("PRAGMA foreign_keys = ON")
+    if not found:
+        return []
+    return [
+        f"the upgrade to schema {SCHEMA_VERSION} could not carry {found} "
+        f"{'row' if found == 1 else 'rows'} over (values the book now refuses); they are kept "
+        "whole in the table 'quarantine' of the logbook, and nothing else changed"
+    ]
+
+
+def _quarantined(conn: sqlite3.Connection) -> int:
+    try:
+        return conn.execute("SELECT count(*) FROM quarantine").fetchone()[0]
+    except sqlite3.OperationalError:  # before schema 4
+        return 0
 
 
 def open_book(
@@ -312,6 +350,7 @@ def open_book(
     file with `readonly` (a forked child process reads with it: it must never write).
     """
     path = Path(path) if path is not None else default_path()
+    notices: list[str] = []
     new = _is_empty_file(path)
     if new and (readonly or not create):
         raise BookError(f"no logbook at {path}: run 'sumpbook demo' or register a unit first")
@@ -343,7 +382,7 @@ def open_book(
 
                 backup_before_migration(conn, path, version)
             try:
-                migrate(conn, version)
+                notices = migrate(conn, version)
             except sqlite3.Error as exc:
                 if conn.in_transaction:
                     conn.execute("ROLLBACK")
@@ -356,7 +395,7 @@ def open_book(
         raise
     if new:
         _CHECKED.add(_key(path))  # made here and now: nothing to check
-    return Book(conn=conn, path=path, readonly=readonly)
+    return Book(conn=conn, path=path, readonly=readonly, notices=notices)
 
 
 def inspect(path: Path, readonly: bool = True) -> int:
