@@ -48,6 +48,8 @@ class Book:
     readonly: bool = False
     # What opening found and a person should hear once (e.g. rows an upgrade could not carry).
     notices: list[str] = field(default_factory=list)
+    # Entry rows that could not be read this session: id -> what (journal.note_unreadable).
+    unreadable: dict[str, str] = field(default_factory=dict)
 
     @property
     def db(self) -> sqlite_utils.Database:
@@ -450,9 +452,15 @@ def _checking_connection(path: Path, readonly: bool) -> sqlite3.Connection:
         ) from exc
 
 
+# quick_check also reports rows that break a CHECK or NOT NULL constraint (a hand-made edit):
+# those are bad values, not a damaged file; readers skip them and they can be voided.
+_ROW_FINDINGS = ("CHECK constraint failed", "NOT NULL constraint failed")
+
+
 def _quick_check(conn: sqlite3.Connection, path: Path) -> None:
     try:
-        ok = conn.execute("PRAGMA quick_check").fetchone()[0]
+        found = [row[0] for row in conn.execute("PRAGMA quick_check").fetchall()]
+        ok = "ok" if all(f == "ok" or f.startswith(_ROW_FINDINGS) for f in found) else found[0]
     except sqlite3.DatabaseError as exc:
         ok = str(exc)
     if ok != "ok":

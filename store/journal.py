@@ -351,6 +351,54 @@ def _entry(row: Sequence[Any]) -> Entry:
     return cls(**values, at=at, logged=logged, voided_by=row[-1])
 
 
+# What a row that cannot be read raises while it is built (a hand-edited or damaged value).
+ROW_ERRORS = (ValueError, TypeError, KeyError, IndexError, OverflowError, AttributeError)
+_ID = _COLUMNS.index("id")
+
+
+def note_unreadable(book: Book, entry_id: Any, what: str) -> None:
+    """Remember an entry row that could not be read; readers skip it and the CLI reports it
+    (`unreadable_report`). It can still be voided: a void reads only its id and kind."""
+    key = validate_value.one_line(str(entry_id), 36)
+    book.unreadable.setdefault(key, validate_value.one_line(what, 120))
+
+
+def unreadable_report(book: Book) -> str | None:
+    """One line naming the entries skipped because they could not be read, or None."""
+    if not book.unreadable:
+        return None
+    items = list(book.unreadable.items())
+    shown = "; ".join(f"{entry_id[:8]}: {what}" for entry_id, what in items[:5])
+    more = f"; and {len(items) - 5} more" if len(items) > 5 else ""
+    return (
+        f"{len(items)} {'entry' if len(items) == 1 else 'entries'} could not be read and "
+        f"{'was' if len(items) == 1 else 'were'} left out ({shown}{more}); void "
+        f"{'it' if len(items) == 1 else 'them'} with 'sumpbook log void ID --reason ...'"
+    )
+
+
+def _row_problem(exc: BaseException) -> str:
+    return f"{type(exc).__name__}: {exc}"
+
+
+def entries_from_rows(book: Book, rows: Iterable[Sequence[Any]]) -> list[Entry]:
+    """Rows of `_SELECT` as entries; one that cannot be read is noted and skipped, never fatal.
+    The fast path builds all at once; only a failure walks the rows one by one."""
+    rows = rows if isinstance(rows, list) else list(rows)
+    try:
+        return [_entry(row) for row in rows]
+    except ROW_ERRORS:
+        out = []
+        for row in rows:
+            try:
+                out.append(_entry(row))
+            except ROW_ERRORS as exc:
+                if len(row) > len(_COLUMNS) and row[len(_COLUMNS)] is not None:
+                    continue  # voided already: nothing left to say about it
+                note_unreadable(book, row[_ID] if len(row) > _ID else "?", _row_problem(exc))
+        return out
+
+
 @contextmanager
 def _no_gc_pauses() -> Iterator[None]:
     """Hold the cyclic garbage collector while a long read builds its entries: they hold no
@@ -376,7 +424,13 @@ def find_entry(book: Book, entry_id: str) -> Entry:
         raise BookError(f"no entry with id {entry_id}")
     if len(rows) > 1:
         raise BookError(f"id {entry_id} is ambiguous: give more characters")
-    return _entry(rows[0])
+    try:
+        return _entry(rows[0])
+    except ROW_ERRORS as exc:
+        raise BookError(
+            f"entry {rows[0][_ID][:8]} cannot be read ({validate_value.one_line(_row_problem(exc), 80)})"
+            ": void it with 'sumpbook log void ID --reason ...'"
+        ) from exc
 
 
 _READING_VALUES = (
@@ -404,16 +458,29 @@ def element_items(book: Book, filter: str, change_id: str | None = None) -> list
         ).fetchone()
         if row is not None:
             after, params = _AFTER, [filter, row[0], row[0], row[1]]
-    keyed: list[tuple[str, int, Any]] = [
-        (at, rowid, (parse_stamp(at), hours, dp, temp, indicator, flow, entry_id))
-        for at, rowid, hours, dp, temp, indicator, flow, entry_id in book.conn.execute(
-            _READING_VALUES.format(after=after), params
-        )
-    ]
-    changes = [
-        (row[1], row[-1], _entry(row[:-1]))
-        for row in book.conn.execute(_LIVE_CHANGES.format(after=after), params)
-    ]
+    reading_rows = book.conn.execute(_READING_VALUES.format(after=after), params).fetchall()
+    try:
+        keyed: list[tuple[str, int, Any]] = [
+            (at, rowid, (parse_stamp(at), hours, dp, temp, indicator, flow, entry_id))
+            for at, rowid, hours, dp, temp, indicator, flow, entry_id in reading_rows
+        ]
+    except ROW_ERRORS:
+        keyed = []
+        for at, rowid, hours, dp, temp, indicator, flow, entry_id in reading_rows:
+            try:
+                item = (parse_stamp(at), hours, dp, temp, indicator, flow, entry_id)
+            except ROW_ERRORS as exc:
+                note_unreadable(book, entry_id, _row_problem(exc))
+                continue
+            keyed.append((at, rowid, item))
+    change_rows = book.conn.execute(_LIVE_CHANGES.format(after=after), params).fetchall()
+    built = entries_from_rows(book, [row[:-1] for row in change_rows])
+    if len(built) == len(change_rows):
+        changes = [(row[1], row[-1], e) for row, e in zip(change_rows, built, strict=True)]
+    else:
+        kept = {e.id for e in built}
+        by_id = {e.id: e for e in built}
+        changes = [(row[1], row[-1], by_id[row[_ID]]) for row in change_rows if row[_ID] in kept]
     if changes:
         keyed += changes
         keyed.sort(key=lambda item: (item[0], item[1]))
@@ -435,8 +502,7 @@ def breather_swaps(book: Book, until: datetime | None = None) -> dict[str, list[
         params.append(format_utc(until))
     sql += " ORDER BY e.breather, e.at_utc, e.rowid"
     out: dict[str, list[Entry]] = {}
-    for row in book.conn.execute(sql, params):
-        entry = _entry(row)
+    for entry in entries_from_rows(book, book.conn.execute(sql, params).fetchall()):
         out.setdefault(entry.breather.upper(), []).append(entry)  # type: ignore[attr-defined]
     return out
 
@@ -479,7 +545,7 @@ def read(
         since, until, unit, filter, breather, kinds, include_voided, newest_first, limit, as_of
     )
     with _no_gc_pauses():
-        return [_entry(row) for row in book.conn.execute(sql, params)]
+        return entries_from_rows(book, book.conn.execute(sql, params).fetchall())
 
 
 def _query(

@@ -143,25 +143,29 @@ def merge(book: Book, other_path: Path) -> MergeReport:
     if book.readonly:
         raise BookError(f"{book.path} is read-only: nothing can be merged into it")
     conn = open_checked(other_path)
+    notices: list[str] = []
     try:
         version = conn.execute("PRAGMA user_version").fetchone()[0]
         if version < SCHEMA_VERSION:
-            snapshot = _read_upgraded(conn)
+            snapshot = _read_upgraded(conn, notices)
         else:
             snapshot = _read(conn)
     finally:
         conn.close()
     report = MergeReport(other=other_path)
+    report.conflicts.extend(f"the other book: {notice}" for notice in notices)
     with book.atomic():
         _Merger(book, snapshot, report).run()
     return report
 
 
-def _read_upgraded(conn: sqlite3.Connection) -> _Snapshot:
-    """An older logbook: upgrade a temporary copy (the other file stays as it is)."""
+def _read_upgraded(conn: sqlite3.Connection, notices: list[str]) -> _Snapshot:
+    """An older logbook: upgrade a temporary copy (the other file stays as it is); what the
+    upgrade could not carry over goes to `notices` (those rows are not merged)."""
     with tempfile.TemporaryDirectory(prefix="sumpbook-merge-") as folder:
         copy = copy_to(conn, Path(folder) / "other.db")
         with open_book(copy, create=False) as upgraded:
+            notices.extend(upgraded.notices)
             return _read(upgraded.conn)
 
 

@@ -238,7 +238,9 @@ def build_parser() -> argparse.ArgumentParser:
 
 def run(args: argparse.Namespace) -> int:
     handler: Callable[[argparse.Namespace], int] = getattr(commands, f"cmd_{args.command}")
-    return handler(args)
+    code = handler(args)
+    commands.report_unreadable()
+    return code
 
 
 def main(argv: Sequence[str] | None = None) -> int:
@@ -255,6 +257,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         return run(args)
     except BookError as exc:
+        commands.report_unreadable()
         print(f"sumpbook: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except UnicodeError:

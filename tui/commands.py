@@ -42,8 +42,24 @@ def _render() -> Any:
     return render
 
 
+# Books opened by this command: after it, main() reports rows they could not read.
+OPENED: list[Book] = []
+
+
 def _book(args: argparse.Namespace, create: bool = False) -> Book:
-    return open_book(args.db or default_path(), create=create)
+    book = open_book(args.db or default_path(), create=create)
+    for notice in book.notices:  # e.g. rows an upgrade could not carry over
+        console(stderr=True).print(f"note: {notice}", markup=False)
+    OPENED.append(book)
+    return book
+
+
+def report_unreadable() -> None:
+    """One line on stderr per book for entry rows a read had to leave out."""
+    while OPENED:
+        line = journal.unreadable_report(OPENED.pop())
+        if line:
+            console(stderr=True).print(f"note: {line}", markup=False)
 
 
 def _pairs(items: list[str]) -> dict[str, str]:
