@@ -389,6 +389,9 @@ def open_book(
                 if conn.in_transaction:
                     conn.execute("ROLLBACK")
                 raise BookError(f"could not upgrade {path}: {exc}; it was left as it was") from exc
+            if version == 0:
+                # schema 4 rebuilds schema 1's tables: a new file gives back their pages
+                conn.execute("VACUUM")
         if not readonly:
             conn.execute("PRAGMA journal_mode = WAL")
         conn.execute("PRAGMA synchronous = FULL")
