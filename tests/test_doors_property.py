@@ -35,6 +35,7 @@ SETTINGS = settings(
     deadline=None,
     suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow],
     database=None,
+    derandomize=True,  # the same inputs on every run: the figures in README repeat
 )
 TRIED: Counter[str] = Counter()
 REFUSED: Counter[str] = Counter()
@@ -236,7 +237,7 @@ CELLS = st.one_of(
 )
 
 
-@SETTINGS
+@settings(SETTINGS, max_examples=max(1, EXAMPLES * 3 // 5))  # each builds and upgrades a file
 @given(
     column=st.sampled_from(
         ["dp_bar", "temp_c", "hours", "flow_lpm", "note", "at_utc", "unit", "indicator"]
