@@ -572,3 +572,14 @@ def test_notes_from_every_door_are_checked_the_same(book):
         journal.log(book, Note(unit="P1", note="x", by="CD"))
     with pytest.raises(BookError, match="volume"):
         journal.log(book, TopUp(unit="P1", volume_l=math.inf, by="AB"))
+
+
+def test_status_json_never_prints_nan_or_infinity():
+    from tui.commands import strict_json
+
+    data = {"a": [1.5, float("inf")], "b": {"c": float("nan")}, "d": "x"}
+    assert json.loads(strict_json(data), parse_constant=lambda c: pytest.fail(c)) == {
+        "a": [1.5, None],
+        "b": {"c": None},
+        "d": "x",
+    }

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import functools
 import json
+import math
 import sys
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -330,6 +331,25 @@ def _counts(text: str) -> tuple[float | None, float, float]:
 # ---- status, export, import ----------------------------------------------------------------------
 
 
+def _finite_only(value: Any) -> Any:
+    if isinstance(value, float):
+        return value if math.isfinite(value) else None
+    if isinstance(value, dict):
+        return {k: _finite_only(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_finite_only(v) for v in value]
+    return value
+
+
+def strict_json(data: Any) -> str:
+    """JSON that every parser takes: a number that is not finite (a fit gone wild) becomes
+    null instead of the non-standard NaN or Infinity."""
+    try:
+        return json.dumps(data, ensure_ascii=False, allow_nan=False)
+    except ValueError:
+        return json.dumps(_finite_only(data), ensure_ascii=False, allow_nan=False)
+
+
 def cmd_status(args: argparse.Namespace) -> int:
     from store import status
 
@@ -341,9 +361,7 @@ def cmd_status(args: argparse.Namespace) -> int:
         if args.json:
             # One line, no indent: json's C encoder does it (an indent means the pure-Python
             # one, ten times slower on a big plant); pipe it to a pretty-printer to read it.
-            sys.stdout.write(
-                json.dumps(status.to_json(watch, book.local_zone()), ensure_ascii=False)
-            )
+            sys.stdout.write(strict_json(status.to_json(watch, book.local_zone())))
             sys.stdout.write("\n")
         else:
             console().print(_render().watch_table(book, watch, prefs))
