@@ -280,6 +280,45 @@ def test_merge_of_crafted_books(plant, tmp_path, column, cell, unit_column, unit
     _door("merge", plant, write)
 
 
+@SETTINGS
+@given(
+    column=st.sampled_from(
+        ["dp_bar", "temp_c", "hours", "flow_lpm", "note", "at_utc", "logged_utc", "unit", "by",
+         "indicator", "kind", "id", "filter"]
+    ),
+    cell=st.one_of(CELLS, TIMES),
+)  # fmt: skip
+def test_merge_rows_of_a_current_book(plant, tmp_path, column, cell):
+    """The rows of another book as merge reads them, past the other file's own checks (a book
+    edited by hand, or written by a program that is not sumpbook): merge's checks alone."""
+    from store.merge import MergeReport, _Merger, _Snapshot
+
+    entry = {
+        "id": str(uuid.uuid4()),
+        "at_utc": "2026-11-20T08:00:00Z",
+        "logged_utc": "2026-11-20T08:00:00Z",
+        "kind": "reading",
+        "by": "AB",
+        "unit": "P1",
+        "filter": "P1-RF",
+        "dp_bar": 1.0,
+        "note": "",
+        column: cell,
+    }
+    snapshot = _Snapshot(register={}, register_log=[], shifts=[], settings={}, entries=[entry])
+
+    def write() -> tuple[int, str, str]:
+        with open_book(plant) as book:
+            report = MergeReport(other=tmp_path / "other.db")
+            for table in ("technicians", "fluids", "units", "filters", "breathers"):
+                snapshot.register[table] = []
+            with book.atomic():
+                _Merger(book, snapshot, report).run()
+        return (0 if report.entries_added else 2), report.summary(), "\n".join(report.conflicts)
+
+    _door("merge rows", plant, write)
+
+
 def test_zz_report_counts():
     """Prints the figures kept in README (run with -s)."""
     for door in sorted(TRIED):
