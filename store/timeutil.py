@@ -90,11 +90,17 @@ def zone(name: str | None) -> tzinfo:
     own copy otherwise (Windows without the tzdata package)."""
     if not name:
         return tz.tzlocal()
-    name = timezone_name(name)  # never a path: a stored '../../etc/passwd' is refused
+    name = _zone_name(name)  # never a path: a stored '../../etc/passwd' is refused
     found = _zoneinfo(name) or tz.gettz(name)
     if found is None:
         raise BookError(f"unknown time zone '{name}': use an IANA name such as Europe/Berlin")
     return found
+
+
+@functools.lru_cache(maxsize=32)
+def _zone_name(name: str) -> str:
+    """`validate.timezone_name`, once per name (the zone is asked for on every read)."""
+    return timezone_name(name)
 
 
 @functools.lru_cache(maxsize=32)

@@ -584,3 +584,15 @@ def test_status_json_never_prints_nan_or_infinity():
         "b": {"c": None},
         "d": "x",
     }
+
+
+def test_merge_holds_back_a_row_planted_past_the_other_books_checks(demo, tmp_path, capsys):
+    other = tmp_path / "other.db"
+    with open_book(demo) as book:  # a whole copy (the demo keeps its last writes in its WAL)
+        book.conn.execute("VACUUM INTO ?", [str(other)])
+    entry_id = _plant_bad_row(other)
+    code, out, err = run(capsys, demo, "merge", str(other))
+    assert code == 1, err  # a conflict for a person: the row is listed, not copied
+    assert entry_id[:8] in out and "no one could have typed" in out
+    with open_book(demo) as book:
+        assert not book.conn.execute("SELECT 1 FROM entries WHERE id = ?", [entry_id]).fetchone()
