@@ -6,7 +6,7 @@ import os
 import sqlite3
 from collections.abc import Iterator
 from contextlib import contextmanager
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from datetime import datetime, tzinfo
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -17,6 +17,9 @@ from platformdirs import user_data_dir
 from .errors import BookError, NotALogbook, TooNew
 from .schema import APPLICATION_ID, MIGRATIONS, SCHEMA_VERSION
 from .timeutil import parse_utc, utc_now, zone
+from .validate import plant_setting
+
+PLANT_SETTINGS = ("name", "timezone", "backup_keep")
 
 if TYPE_CHECKING:
     import sqlite_utils
@@ -43,6 +46,10 @@ class Book:
     conn: sqlite3.Connection
     path: Path
     readonly: bool = False
+    # What opening found and a person should hear once (e.g. rows an upgrade could not carry).
+    notices: list[str] = field(default_factory=list)
+    # Entry rows that could not be read this session: id -> what (journal.note_unreadable).
+    unreadable: dict[str, str] = field(default_factory=dict)
 
     @property
     def db(self) -> sqlite_utils.Database:
@@ -90,6 +97,8 @@ class Book:
                     pass
             if isinstance(exc, sqlite3.Error) and _translatable(exc):
                 raise write_error(exc, self.path) from exc
+            if isinstance(exc, sqlite3.IntegrityError):  # a CHECK or trigger of the schema
+                raise BookError(f"the logbook refused a value ({exc}): nothing was saved") from exc
             if isinstance(exc, UnicodeEncodeError):  # e.g. undecodable bytes from a terminal
                 raise BookError(
                     "some text holds characters that are not valid text (a wrong encoding?): "
@@ -130,6 +139,8 @@ class Book:
         return row[0] if row else default
 
     def set_setting(self, key: str, value: str) -> None:
+        if key in PLANT_SETTINGS:
+            value = plant_setting(key, value)  # the same check for every door
         with self.atomic():
             self.conn.execute(
                 "INSERT INTO settings(key, value) VALUES (?, ?) "
@@ -280,19 +291,55 @@ def check_header(conn: sqlite3.Connection, path: Path, quick: bool = True) -> in
     return version
 
 
-def migrate(conn: sqlite3.Connection, from_version: int) -> None:
-    """Apply every pending step in one transaction, with the version bump inside it."""
+def migrate(conn: sqlite3.Connection, from_version: int) -> list[str]:
+    """Apply every pending step in one transaction, with the version bump inside it.
+
+    Foreign keys are off while the steps run (a step may rebuild a table, SQLite's recipe for
+    new constraints) and checked whole before the commit. Returns what the steps found: rows
+    they could not carry over, kept in the `quarantine` table."""
     pending = MIGRATIONS[from_version:]
     if not pending:
-        return
+        return []
+    before = _quarantined(conn)
     script = "\n".join(pending)
-    conn.executescript(
-        "BEGIN IMMEDIATE;\n"
-        f"{script}\n"
-        f"PRAGMA application_id = {APPLICATION_ID};\n"
-        f"PRAGMA user_version = {SCHEMA_VERSION};\n"
-        "COMMIT;"
-    )
+    conn.execute("PRAGMA foreign_keys = OFF")
+    try:
+        conn.executescript(
+            "BEGIN IMMEDIATE;\n"
+            f"{script}\n"
+            f"PRAGMA application_id = {APPLICATION_ID};\n"
+            f"PRAGMA user_version = {SCHEMA_VERSION};\n"
+        )
+        dangling = conn.execute("PRAGMA foreign_key_check").fetchall()
+        if dangling:
+            conn.execute("ROLLBACK")
+            table, rowid, parent, _ = dangling[0]
+            raise BookError(
+                f"the upgrade found {len(dangling)} rows pointing at nothing (first: {table} row "
+                f"{rowid} -> {parent}); the file was left as it was"
+            )
+        found = _quarantined(conn) - before
+        conn.execute("COMMIT")
+    except BaseException:
+        if conn.in_transaction:
+            conn.execute("ROLLBACK")
+        raise
+    finally:
+        conn.execute("PRAGMA foreign_keys = ON")
+    if not found:
+        return []
+    return [
+        f"the upgrade to schema {SCHEMA_VERSION} could not carry {found} "
+        f"{'row' if found == 1 else 'rows'} over (values the book now refuses); they are kept "
+        "whole in the table 'quarantine' of the logbook, and nothing else changed"
+    ]
+
+
+def _quarantined(conn: sqlite3.Connection) -> int:
+    try:
+        return conn.execute("SELECT count(*) FROM quarantine").fetchone()[0]
+    except sqlite3.OperationalError:  # before schema 4
+        return 0
 
 
 def open_book(
@@ -305,6 +352,7 @@ def open_book(
     file with `readonly` (a forked child process reads with it: it must never write).
     """
     path = Path(path) if path is not None else default_path()
+    notices: list[str] = []
     new = _is_empty_file(path)
     if new and (readonly or not create):
         raise BookError(f"no logbook at {path}: run 'sumpbook demo' or register a unit first")
@@ -336,11 +384,14 @@ def open_book(
 
                 backup_before_migration(conn, path, version)
             try:
-                migrate(conn, version)
+                notices = migrate(conn, version)
             except sqlite3.Error as exc:
                 if conn.in_transaction:
                     conn.execute("ROLLBACK")
                 raise BookError(f"could not upgrade {path}: {exc}; it was left as it was") from exc
+            if version == 0:
+                # schema 4 rebuilds schema 1's tables: a new file gives back their pages
+                conn.execute("VACUUM")
         if not readonly:
             conn.execute("PRAGMA journal_mode = WAL")
         conn.execute("PRAGMA synchronous = FULL")
@@ -349,7 +400,7 @@ def open_book(
         raise
     if new:
         _CHECKED.add(_key(path))  # made here and now: nothing to check
-    return Book(conn=conn, path=path, readonly=readonly)
+    return Book(conn=conn, path=path, readonly=readonly, notices=notices)
 
 
 def inspect(path: Path, readonly: bool = True) -> int:
@@ -404,9 +455,15 @@ def _checking_connection(path: Path, readonly: bool) -> sqlite3.Connection:
         ) from exc
 
 
+# quick_check also reports rows that break a CHECK or NOT NULL constraint (a hand-made edit):
+# those are bad values, not a damaged file; readers skip them and they can be voided.
+_ROW_FINDINGS = ("CHECK constraint failed", "NOT NULL constraint failed")
+
+
 def _quick_check(conn: sqlite3.Connection, path: Path) -> None:
     try:
-        ok = conn.execute("PRAGMA quick_check").fetchone()[0]
+        found = [row[0] for row in conn.execute("PRAGMA quick_check").fetchall()]
+        ok = "ok" if all(f == "ok" or f.startswith(_ROW_FINDINGS) for f in found) else found[0]
     except sqlite3.DatabaseError as exc:
         ok = str(exc)
     if ok != "ok":

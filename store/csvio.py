@@ -315,6 +315,8 @@ def entry_from_row(row: dict[str, str], local: tzinfo) -> Entry:
     for name, get_value in numbers.items():
         if name in names:
             values[name] = get_value()
+    if "filtered_um" in names and row.get("filtered_um", "").strip().lower() == "unfiltered":
+        row = {**row, "filtered_um": ""}  # the word the export may write for no cart
     for name in (
         "flow_lpm",
         "hours",
@@ -377,7 +379,7 @@ def parse_csv(text: str, local: tzinfo) -> tuple[list[tuple[int, Entry]], list[t
     """Rows -> entries with their line numbers, and every problem found (line, message)."""
     old_limit = csv.field_size_limit(MAX_FIELD_CHARS)
     try:
-        return _parse(csv.reader(io.StringIO(text, newline="")), local)
+        return _parse(csv.reader(io.StringIO(text, newline=""), strict=True), local)
     finally:
         csv.field_size_limit(old_limit)
 
@@ -420,8 +422,14 @@ def _parse(reader: Any, local: tzinfo) -> tuple[list[tuple[int, Entry]], list[tu
                 seen[entry.id] = reader.line_num
             entries.append((reader.line_num, entry))
     except csv.Error as exc:
-        too_long = "field larger than field limit" in str(exc)
-        problem(f"a cell is longer than {MAX_FIELD_CHARS} characters" if too_long else str(exc))
+        message = str(exc)
+        if "field larger than field limit" in message:
+            message = f"a cell is longer than {MAX_FIELD_CHARS} characters"
+        elif "unexpected end of data" in message:
+            message = "the file ends inside a quoted cell (a closing '\"' is missing)"
+        elif "expected after" in message:
+            message = f"a quoted cell goes on after its closing quote ({message})"
+        problem(message)
     return entries, problems
 
 

@@ -12,6 +12,7 @@ from dataclasses import fields, replace
 from datetime import datetime
 from typing import Any
 
+from . import validate as validate_value
 from .book import Book
 from .entries import (
     KINDS,
@@ -34,13 +35,13 @@ from .register import (
     get,
 )
 from .schema import ENTRY_KINDS, INDICATOR_STATES
-from .timeutil import MAX_AHEAD, format_utc, parse_utc, utc_now
+from .timeutil import format_utc, parse_utc, utc_now
 
-MAX_DP_BAR = 100.0  # a filter ΔP above this is a typo, not a reading
-TEMP_RANGE_C = (-40.0, 150.0)
-MAX_NOTE_CHARS = 2000
-CHANGE_REASONS = ("limit", "indicator", "interval", "bypass", "damage", "other")
-BREATHER_REASONS = ("interval", "spent", "damage", "other")
+MAX_DP_BAR = validate_value.RANGES["dp_bar"].high  # a filter ΔP above this is a typo
+TEMP_RANGE_C = (validate_value.RANGES["temp_c"].low, validate_value.RANGES["temp_c"].high)
+MAX_NOTE_CHARS = validate_value.MAX_NOTE_CHARS
+CHANGE_REASONS = validate_value.CHANGE_REASONS
+BREATHER_REASONS = validate_value.BREATHER_REASONS
 
 
 def _refresh_status(book: Book, entry: Entry) -> None:
@@ -61,24 +62,12 @@ def load_hooks() -> None:
 AFTER_WRITE: list[Callable[[Book, Entry], None]] = [_refresh_status]
 
 
-def _finite(name: str, value: float | None, low: float, high: float, unit: str) -> None:
-    if value is None:
-        return
-    if not isinstance(value, int | float) or not math.isfinite(value):
-        raise BookError(f"{name} must be a number")
-    if not low <= value <= high:
-        raise BookError(f"{name} {value:g} {unit} is outside {low:g}…{high:g} {unit}")
+def _finite(name: str, value: float | None) -> None:
+    validate_value.number(name, value)
 
 
-def _text(name: str, value: str, limit: int = MAX_NOTE_CHARS) -> str:
-    value = (value or "").strip()
-    if len(value) > limit:
-        raise BookError(f"{name} is longer than {limit} characters")
-    if any(ord(ch) < 32 and ch not in "\n\t" for ch in value):
-        raise BookError(f"{name} holds control characters")
-    if any("\ud800" <= ch <= "\udfff" for ch in value):
-        raise BookError(f"{name} holds characters that are not text (a wrong encoding?)")
-    return value
+def _text(name: str, value: str, limit: int | None = None) -> str:
+    return validate_value.text(name, value, limit, multiline=name == "note")
 
 
 def validate(book: Book, entry: Entry, now: datetime | None = None) -> Entry:
@@ -87,10 +76,17 @@ def validate(book: Book, entry: Entry, now: datetime | None = None) -> Entry:
     changes: dict[str, Any] = {}
     if not entry.by:
         raise BookError("who made this entry? give the technician's initials")
-    changes["by"] = get(book, Technician, entry.by).tag
+    tech = get(book, Technician, entry.by)
+    if not tech.active:
+        raise BookError(
+            f"technician {tech.tag} is marked inactive: sign in as someone else, or make "
+            f"them active again (sumpbook register change tech {tech.tag} active=yes)"
+        )
+    changes["by"] = tech.tag
     at = entry.at or now
-    if at > now + MAX_AHEAD:
-        raise BookError("the time is more than a day ahead of this computer's clock")
+    if not isinstance(at, datetime) or at.tzinfo is None:
+        raise BookError("the time must be a UTC time")
+    validate_value.moment(at, now)
     changes["at"] = at.replace(microsecond=0)
     changes["note"] = _text("note", entry.note)
 
@@ -107,18 +103,9 @@ def validate(book: Book, entry: Entry, now: datetime | None = None) -> Entry:
         elif not isinstance(entry, KINDS["note"]):
             raise BookError(f"a {entry.kind} entry needs a unit tag")
 
-    for name in ("dp_bar", "temp_c", "flow_lpm", "hours"):
+    for name in validate_value.ENTRY_NUMBERS:
         if hasattr(entry, name):
-            _finite(
-                name.split("_")[0] if name != "flow_lpm" else "flow",
-                getattr(entry, name),
-                *{
-                    "dp_bar": (0.0, MAX_DP_BAR, "bar"),
-                    "temp_c": (*TEMP_RANGE_C, "°C"),
-                    "flow_lpm": (0.001, 100_000.0, "L/min"),
-                    "hours": (0.0, 10_000_000.0, "h"),
-                }[name],
-            )
+            _finite(name, getattr(entry, name))
     if isinstance(entry, Reading):
         if entry.dp_bar is None and entry.indicator is None:
             raise BookError("a reading needs a ΔP value or an indicator state")
@@ -127,15 +114,15 @@ def validate(book: Book, entry: Entry, now: datetime | None = None) -> Entry:
     elif isinstance(entry, ElementChange):
         if entry.reason not in CHANGE_REASONS:
             raise BookError(f"change reason must be one of {', '.join(CHANGE_REASONS)}")
-        changes["condition"] = _text("condition", entry.condition, 200)
-        changes["batch"] = _text("batch", entry.batch, 60)
+        changes["condition"] = _text("condition", entry.condition)
+        changes["batch"] = _text("batch", entry.batch)
     elif isinstance(entry, BreatherSwap):
         if entry.reason not in BREATHER_REASONS:
             raise BookError(f"swap reason must be one of {', '.join(BREATHER_REASONS)}")
-        changes["condition"] = _text("condition", entry.condition, 200)
+        changes["condition"] = _text("condition", entry.condition)
     elif isinstance(entry, TopUp):
-        _finite("volume", entry.volume_l, 0.01, 100_000.0, "L")
-        _finite("filtered rating", entry.filtered_um, 0.1, 1000.0, "µm")
+        if entry.volume_l is None:
+            raise BookError("a top-up needs a volume")
         fluid = entry.fluid or get(book, Unit, changes["unit"]).fluid
         changes["fluid"] = get(book, Fluid, fluid).tag if fluid else None
     elif isinstance(entry, Sample):
@@ -147,12 +134,65 @@ def validate(book: Book, entry: Entry, now: datetime | None = None) -> Entry:
     return replace(entry, **changes)
 
 
+def topup_filtration(unfiltered: bool, filtered_um: float | None) -> float | None:
+    """A top-up's filtration as stored (None = unfiltered). A cart rating given with
+    'unfiltered' cannot both be true: refused, never silently dropped."""
+    if unfiltered:
+        if filtered_um is not None:
+            raise BookError(
+                "an unfiltered top-up has no cart rating: clear the rating, or say it went "
+                "through a filter cart"
+            )
+        return None
+    if filtered_um is None:
+        raise BookError("give the cart's rating in µm, or say the oil went in unfiltered")
+    return validate_value.number("filtered_um", filtered_um)
+
+
+BYPASS_CAUTION = (
+    "unfiltered oil is passing the element (the bypass is open): change it now or stop the "
+    "unit as your site procedures say; the element may collapse, and fluid under pressure is "
+    "hot: relieve the pressure before opening the housing"
+)
+
+
+def reading_over_bypass(
+    book: Book,
+    filter_tag: str,
+    dp_bar: float | None,
+    temp_c: float | None = None,
+    flow_lpm: float | None = None,
+    indicator: str | None = None,
+) -> str | None:
+    """The caution to show when a reading says the bypass is open (ΔP at or over the
+    filter's bypass setting, or the indicator at 'bypass'), else None. Such a reading can
+    be true, so it is saved; it is urgent, so the CLI prints this and the app asks first.
+    `temp_c` and `flow_lpm` are taken for the call's shape: the valve opens on the ΔP it
+    sees, so the gauge value is compared as read."""
+    position = get(book, FilterPosition, filter_tag)
+    over = (
+        dp_bar is not None
+        and position.bypass_bar is not None
+        and math.isfinite(dp_bar)
+        and dp_bar >= position.bypass_bar
+    )
+    if over:
+        return (
+            f"{position.tag} read {dp_bar:g} bar, at or over its bypass setting "
+            f"{position.bypass_bar:g} bar: {BYPASS_CAUTION}"
+        )
+    if indicator == "bypass":
+        return f"{position.tag}'s indicator shows bypass: {BYPASS_CAUTION}"
+    return None
+
+
 def _sample_fields(entry: Sample) -> dict[str, Any]:
     from .cleanliness import code_from_counts, parse_code
 
-    for name in ("c4_per_ml", "c6_per_ml", "c14_per_ml"):
-        _finite(name.replace("_per_ml", " count"), getattr(entry, name), 0.0, 1e9, "/mL")
-    _finite("water", entry.water_ppm, 0.0, 1_000_000.0, "ppm")
+    for name in ("c4_per_ml", "c6_per_ml", "c14_per_ml", "water_ppm"):
+        _finite(name, getattr(entry, name))
+    if entry.code is not None:
+        _text("code", entry.code)
     counts = (entry.c4_per_ml, entry.c6_per_ml, entry.c14_per_ml)
     code = str(parse_code(entry.code)) if entry.code else None
     if entry.c6_per_ml is not None and entry.c14_per_ml is not None:
@@ -168,12 +208,26 @@ def _sample_fields(entry: Sample) -> dict[str, Any]:
 
 
 def _voidable(book: Book, entry_id: str) -> str:
-    target = find_entry(book, entry_id)
-    if target.kind == "void":
+    """The full id of the entry a void names. Read from the row's id, kind and voids only,
+    so an entry whose other values cannot be read (a damaged row) can still be voided."""
+    key = (entry_id or "").strip().lower()
+    if len(key) < 6:
+        raise BookError("give at least the first 6 characters of the entry id")
+    rows = book.conn.execute(
+        "SELECT e.id, e.kind, v.id FROM entries e LEFT JOIN entries v ON v.voids = e.id "
+        "WHERE e.id >= ? AND e.id < ? LIMIT 2",
+        [key, key + "\uffff"],
+    ).fetchall()
+    if not rows:
+        raise BookError(f"no entry with id {validate_value.one_line(entry_id, 40)}")
+    if len(rows) > 1:
+        raise BookError(f"id {entry_id} is ambiguous: give more characters")
+    target_id, kind, voided_by = rows[0]
+    if kind == "void":
         raise BookError("a void cannot be voided: log the entry again instead")
-    if target.voided:
-        raise BookError(f"entry {target.id[:8]} is voided already")
-    return target.id
+    if voided_by is not None:
+        raise BookError(f"entry {target_id[:8]} is voided already")
+    return target_id
 
 
 def _row(entry: Entry) -> dict[str, Any]:
@@ -297,6 +351,54 @@ def _entry(row: Sequence[Any]) -> Entry:
     return cls(**values, at=at, logged=logged, voided_by=row[-1])
 
 
+# What a row that cannot be read raises while it is built (a hand-edited or damaged value).
+ROW_ERRORS = (ValueError, TypeError, KeyError, IndexError, OverflowError, AttributeError)
+_ID = _COLUMNS.index("id")
+
+
+def note_unreadable(book: Book, entry_id: Any, what: str) -> None:
+    """Remember an entry row that could not be read; readers skip it and the CLI reports it
+    (`unreadable_report`). It can still be voided: a void reads only its id and kind."""
+    key = validate_value.one_line(str(entry_id), 36)
+    book.unreadable.setdefault(key, validate_value.one_line(what, 120))
+
+
+def unreadable_report(book: Book) -> str | None:
+    """One line naming the entries skipped because they could not be read, or None."""
+    if not book.unreadable:
+        return None
+    items = list(book.unreadable.items())
+    shown = "; ".join(f"{entry_id[:8]}: {what}" for entry_id, what in items[:5])
+    more = f"; and {len(items) - 5} more" if len(items) > 5 else ""
+    return (
+        f"{len(items)} {'entry' if len(items) == 1 else 'entries'} could not be read and "
+        f"{'was' if len(items) == 1 else 'were'} left out ({shown}{more}); void "
+        f"{'it' if len(items) == 1 else 'them'} with 'sumpbook log void ID --reason ...'"
+    )
+
+
+def _row_problem(exc: BaseException) -> str:
+    return f"{type(exc).__name__}: {exc}"
+
+
+def entries_from_rows(book: Book, rows: Iterable[Sequence[Any]]) -> list[Entry]:
+    """Rows of `_SELECT` as entries; one that cannot be read is noted and skipped, never fatal.
+    The fast path builds all at once; only a failure walks the rows one by one."""
+    rows = rows if isinstance(rows, list) else list(rows)
+    try:
+        return [_entry(row) for row in rows]
+    except ROW_ERRORS:
+        out = []
+        for row in rows:
+            try:
+                out.append(_entry(row))
+            except ROW_ERRORS as exc:
+                if len(row) > len(_COLUMNS) and row[len(_COLUMNS)] is not None:
+                    continue  # voided already: nothing left to say about it
+                note_unreadable(book, row[_ID] if len(row) > _ID else "?", _row_problem(exc))
+        return out
+
+
 @contextmanager
 def _no_gc_pauses() -> Iterator[None]:
     """Hold the cyclic garbage collector while a long read builds its entries: they hold no
@@ -322,7 +424,13 @@ def find_entry(book: Book, entry_id: str) -> Entry:
         raise BookError(f"no entry with id {entry_id}")
     if len(rows) > 1:
         raise BookError(f"id {entry_id} is ambiguous: give more characters")
-    return _entry(rows[0])
+    try:
+        return _entry(rows[0])
+    except ROW_ERRORS as exc:
+        raise BookError(
+            f"entry {rows[0][_ID][:8]} cannot be read ({validate_value.one_line(_row_problem(exc), 80)})"
+            ": void it with 'sumpbook log void ID --reason ...'"
+        ) from exc
 
 
 _READING_VALUES = (
@@ -350,16 +458,29 @@ def element_items(book: Book, filter: str, change_id: str | None = None) -> list
         ).fetchone()
         if row is not None:
             after, params = _AFTER, [filter, row[0], row[0], row[1]]
-    keyed: list[tuple[str, int, Any]] = [
-        (at, rowid, (parse_stamp(at), hours, dp, temp, indicator, flow, entry_id))
-        for at, rowid, hours, dp, temp, indicator, flow, entry_id in book.conn.execute(
-            _READING_VALUES.format(after=after), params
-        )
-    ]
-    changes = [
-        (row[1], row[-1], _entry(row[:-1]))
-        for row in book.conn.execute(_LIVE_CHANGES.format(after=after), params)
-    ]
+    reading_rows = book.conn.execute(_READING_VALUES.format(after=after), params).fetchall()
+    try:
+        keyed: list[tuple[str, int, Any]] = [
+            (at, rowid, (parse_stamp(at), hours, dp, temp, indicator, flow, entry_id))
+            for at, rowid, hours, dp, temp, indicator, flow, entry_id in reading_rows
+        ]
+    except ROW_ERRORS:
+        keyed = []
+        for at, rowid, hours, dp, temp, indicator, flow, entry_id in reading_rows:
+            try:
+                item = (parse_stamp(at), hours, dp, temp, indicator, flow, entry_id)
+            except ROW_ERRORS as exc:
+                note_unreadable(book, entry_id, _row_problem(exc))
+                continue
+            keyed.append((at, rowid, item))
+    change_rows = book.conn.execute(_LIVE_CHANGES.format(after=after), params).fetchall()
+    built = entries_from_rows(book, [row[:-1] for row in change_rows])
+    if len(built) == len(change_rows):
+        changes = [(row[1], row[-1], e) for row, e in zip(change_rows, built, strict=True)]
+    else:
+        kept = {e.id for e in built}
+        by_id = {e.id: e for e in built}
+        changes = [(row[1], row[-1], by_id[row[_ID]]) for row in change_rows if row[_ID] in kept]
     if changes:
         keyed += changes
         keyed.sort(key=lambda item: (item[0], item[1]))
@@ -381,8 +502,7 @@ def breather_swaps(book: Book, until: datetime | None = None) -> dict[str, list[
         params.append(format_utc(until))
     sql += " ORDER BY e.breather, e.at_utc, e.rowid"
     out: dict[str, list[Entry]] = {}
-    for row in book.conn.execute(sql, params):
-        entry = _entry(row)
+    for entry in entries_from_rows(book, book.conn.execute(sql, params).fetchall()):
         out.setdefault(entry.breather.upper(), []).append(entry)  # type: ignore[attr-defined]
     return out
 
@@ -425,7 +545,7 @@ def read(
         since, until, unit, filter, breather, kinds, include_voided, newest_first, limit, as_of
     )
     with _no_gc_pauses():
-        return [_entry(row) for row in book.conn.execute(sql, params)]
+        return entries_from_rows(book, book.conn.execute(sql, params).fetchall())
 
 
 def _query(

@@ -21,11 +21,12 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from . import validate
 from .backup import copy_to, open_checked
 from .book import Book, open_book
 from .entries import from_row
 from .errors import BookError
-from .register import WHAT
+from .register import BOOL_FIELDS, TABLES, WHAT, _check
 from .schema import SCHEMA_VERSION
 from .timeutil import MAX_AHEAD, format_utc
 
@@ -142,25 +143,29 @@ def merge(book: Book, other_path: Path) -> MergeReport:
     if book.readonly:
         raise BookError(f"{book.path} is read-only: nothing can be merged into it")
     conn = open_checked(other_path)
+    notices: list[str] = []
     try:
         version = conn.execute("PRAGMA user_version").fetchone()[0]
         if version < SCHEMA_VERSION:
-            snapshot = _read_upgraded(conn)
+            snapshot = _read_upgraded(conn, notices)
         else:
             snapshot = _read(conn)
     finally:
         conn.close()
     report = MergeReport(other=other_path)
+    report.conflicts.extend(f"the other book: {notice}" for notice in notices)
     with book.atomic():
         _Merger(book, snapshot, report).run()
     return report
 
 
-def _read_upgraded(conn: sqlite3.Connection) -> _Snapshot:
-    """An older logbook: upgrade a temporary copy (the other file stays as it is)."""
+def _read_upgraded(conn: sqlite3.Connection, notices: list[str]) -> _Snapshot:
+    """An older logbook: upgrade a temporary copy (the other file stays as it is); what the
+    upgrade could not carry over goes to `notices` (those rows are not merged)."""
     with tempfile.TemporaryDirectory(prefix="sumpbook-merge-") as folder:
         copy = copy_to(conn, Path(folder) / "other.db")
         with open_book(copy, create=False) as upgraded:
+            notices.extend(upgraded.notices)
             return _read(upgraded.conn)
 
 
@@ -172,6 +177,7 @@ class _Merger:
         self.report = report
         self.conflicting: set[tuple[str, str]] = set()  # (table, TAG) decided by a person
         self.left_out: dict[str, list[str]] = defaultdict(list)  # reason -> entry ids
+        self.log_held = 0  # register changes whose text or time could not have been written
 
     def run(self) -> None:
         for table in REGISTER_TABLES:
@@ -180,6 +186,11 @@ class _Merger:
         self._settings()
         self._register_log()
         self._entries()
+        if self.log_held:
+            self.report.conflicts.append(
+                f"{self.log_held} register changes not brought in: their time or text could "
+                "not have been written by sumpbook"
+            )
         for reason, ids in self.left_out.items():
             shown = ", ".join(i[:8] for i in ids[:MAX_LINES_PER_REASON])
             extra = len(ids) - MAX_LINES_PER_REASON
@@ -202,8 +213,18 @@ class _Merger:
     def _register_table(self, table: str) -> None:
         columns = self._columns(table)
         what = WHAT[table]
+        cls = {t: c for c, t in TABLES.items()}[table]
         for theirs in self.other.register[table]:
-            tag = str(theirs["tag"])
+            tag = validate.one_line(str(theirs["tag"]), 20)
+            problem = validate.register_row_problem(table, theirs)
+            if problem is None:
+                problem = self._record_problem(cls, theirs)
+            if problem:
+                self.conflicting.add((table, tag.upper()))
+                self.report.conflicts.append(
+                    f"{what} {tag} not brought in: {validate.one_line(problem)}"
+                )
+                continue
             ours = self._here(table, tag)
             if ours is None:
                 clash = self._clash(table, tag)
@@ -234,6 +255,16 @@ class _Merger:
                     " kept (change them with 'sumpbook register change' if the other is right)"
                 )
 
+    def _record_problem(self, cls: type, row: dict[str, Any]) -> str | None:
+        """The register's own rules (ranges, limit below bypass, ...) on another book's row."""
+        names = set(cls.__dataclass_fields__)
+        values = {k: (bool(v) if k in BOOL_FIELDS else v) for k, v in row.items() if k in names}
+        try:
+            _check(self.book, cls(**values))
+        except (BookError, TypeError, ValueError) as exc:
+            return str(exc)
+        return None
+
     def _clash(self, table: str, tag: str) -> str | None:
         """Filters and breathers share one tag space."""
         other = {"filters": "breathers", "breathers": "filters"}.get(table)
@@ -250,6 +281,12 @@ class _Merger:
             ).fetchall()
         ]
         if not theirs or _pattern(ours) == _pattern(theirs):
+            return
+        try:
+            for name, starts, _ in theirs:
+                validate.shift(name, starts)
+        except BookError as exc:
+            self.report.conflicts.append(f"the other book's shift pattern not taken: {exc}")
             return
         if ours:
             self.conflicting.add(("shifts", "PATTERN"))
@@ -270,6 +307,11 @@ class _Merger:
             theirs = self.other.settings.get(key)
             if theirs is None:
                 continue
+            try:
+                theirs = validate.plant_setting(key, theirs)
+            except BookError as exc:
+                self.report.conflicts.append(f"the other book's plant {key} not taken: {exc}")
+                continue
             row = self.conn.execute("SELECT value FROM settings WHERE key = ?", [key]).fetchone()
             if row is None:
                 self.conn.execute("INSERT INTO settings(key, value) VALUES (?, ?)", [key, theirs])
@@ -284,6 +326,9 @@ class _Merger:
         for row in self.other.register_log:
             if (str(row["tbl"]), str(row["tag"]).upper()) in self.conflicting:
                 continue  # the change was not made here; the person deciding will log theirs
+            if validate.register_log_problem(row):
+                self.log_held += 1
+                continue
             exists = self.conn.execute(
                 "SELECT 1 FROM register_log WHERE id = ?", [row["id"]]
             ).fetchone()
@@ -306,6 +351,12 @@ class _Merger:
         )
         touched: dict[tuple[Any, ...], dict[str, Any]] = {}
         for theirs in self.other.entries:
+            problem = validate.entry_row_problem(theirs)
+            if problem:
+                self.left_out[f"values no one could have typed here ({problem})"].append(
+                    validate.one_line(str(theirs.get("id")), 36)
+                )
+                continue
             ours = _rows(self.conn, "SELECT * FROM entries WHERE id = ?", [theirs["id"]])
             if ours:
                 if all(_same_value(ours[0].get(c), theirs.get(c)) for c in columns):
@@ -376,7 +427,9 @@ def _same_value(a: Any, b: Any) -> bool:
 
 
 def _show(value: Any) -> str:
-    return "(none)" if value is None else f"{value:g}" if isinstance(value, float) else str(value)
+    if value is None:
+        return "(none)"
+    return f"{value:g}" if isinstance(value, float) else validate.one_line(str(value), 60)
 
 
 def _pattern(rows: list[tuple[str, str, int]]) -> list[tuple[str, str]]:

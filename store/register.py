@@ -7,19 +7,19 @@ Register rows may change (limits get adjusted), but every change is recorded in
 from __future__ import annotations
 
 import difflib
-import re
 import sqlite3
 import uuid
 from dataclasses import asdict, dataclass, fields
 from datetime import datetime
 from typing import Any, TypeVar
 
+from . import validate
 from .book import Book
 from .errors import BookError
 from .schema import FILTER_KINDS
 from .timeutil import format_utc, parse_utc, utc_now
 
-TAG_RE = re.compile(r"^[A-Z0-9][A-Z0-9._/-]{0,15}$")
+TAG_RE = validate.TAG_RE
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -108,13 +108,7 @@ BOOL_FIELDS = {"active", "hour_meter", "gauge"}
 
 
 def normalise_tag(tag: str, what: str = "tag") -> str:
-    clean = (tag or "").strip().upper()
-    if not TAG_RE.match(clean):
-        raise BookError(
-            f"'{tag}' is not a usable {what}: 1-16 letters, digits, '.', '-', '_' or '/', "
-            "starting with a letter or digit"
-        )
-    return clean
+    return validate.tag(tag, what)
 
 
 def _from_row(cls: type[R], row: dict[str, Any]) -> R:
@@ -167,9 +161,32 @@ def list_all(book: Book, cls: type[R], unit: str | None = None) -> list[R]:
     return [_from_row(cls, r) for r in rows]
 
 
+_TEXT_FIELDS = ("name", "area", "element")
+
+
+def _values(record: Any) -> dict[str, Any]:
+    """The record's own values checked one by one: numbers finite and in range, text without
+    control characters and within its length, yes/no fields as booleans."""
+    changes: dict[str, Any] = {}
+    for f in fields(record):
+        value = getattr(record, f.name)
+        if f.name in validate.RANGES:
+            if value is None and "None" not in str(f.type):
+                raise BookError(f"{validate.RANGES[f.name].label} must be given")
+            changes[f.name] = validate.number(f.name, value)
+        elif f.name in _TEXT_FIELDS:
+            changes[f.name] = validate.text(f.name, value)
+        elif f.name in BOOL_FIELDS:
+            if not isinstance(value, bool | int) or value not in (0, 1):
+                raise BookError(f"{f.name} must be yes or no")
+            changes[f.name] = bool(value)
+    return changes
+
+
 def _check(book: Book, record: Any) -> Any:
     """Normalise tags and refuse settings that cannot be right."""
     changes: dict[str, Any] = {"tag": normalise_tag(record.tag, WHAT[TABLES[type(record)]])}
+    changes.update(_values(record))
     for ref, cls in (("unit", Unit), ("fluid", Fluid)):
         value = getattr(record, ref, None)
         if value:
@@ -177,22 +194,38 @@ def _check(book: Book, record: Any) -> Any:
     if isinstance(record, FilterPosition):
         if record.kind not in FILTER_KINDS:
             raise BookError(f"unknown filter kind '{record.kind}': use {', '.join(FILTER_KINDS)}")
+        if record.rating_basis not in ("absolute", "nominal"):
+            raise BookError("the rating basis is absolute or nominal")
         if record.limit_bar and record.bypass_bar and record.limit_bar >= record.bypass_bar:
-            raise BookError("the change limit must be below the bypass setting")
+            raise BookError(
+                f"the change limit ({record.limit_bar:g} bar) must be below the bypass setting "
+                f"({record.bypass_bar:g} bar): the element must be changed before the bypass opens"
+            )
         if (
             record.clean_bar is not None
             and record.limit_bar
             and record.clean_bar >= record.limit_bar
         ):
-            raise BookError("the clean-element ΔP must be below the change limit")
-        for name in ("bypass_bar", "limit_bar"):
-            value = getattr(record, name)
-            if value is not None and not 0 < value <= 100:
-                raise BookError(f"{name.removesuffix('_bar')} must be between 0 and 100 bar")
+            raise BookError(
+                f"the clean-element ΔP ({record.clean_bar:g} bar) must be below the change "
+                f"limit ({record.limit_bar:g} bar)"
+            )
+        if (
+            record.clean_bar is not None
+            and record.bypass_bar
+            and record.clean_bar >= record.bypass_bar
+        ):
+            raise BookError(
+                f"the clean-element ΔP ({record.clean_bar:g} bar) must be below the bypass "
+                f"setting ({record.bypass_bar:g} bar)"
+            )
+    if isinstance(record, Breather) and record.kind not in ("desiccant", "plain"):
+        raise BookError("a breather is desiccant or plain")
     if isinstance(record, Unit):
         if record.target_code:
             from .cleanliness import parse_code
 
+            validate.text("target code", record.target_code, 20)
             changes["target_code"] = str(parse_code(record.target_code))
         if not -40 <= record.coldest_start_c <= record.normal_temp_c <= record.max_temp_c <= 150:
             raise BookError(
@@ -275,13 +308,20 @@ def update(book: Book, cls: type[R], tag: str, changes: dict[str, Any], by: str 
         raise BookError(f"cannot change {', '.join(sorted(bad))}")
     updated = _check(book, type(current)(**{**asdict(current), **changes}))  # type: ignore[call-overload]
     table = TABLES[cls]
+    moved = [n for n in changes if getattr(current, n) != getattr(updated, n)]
     with book.atomic():
-        for name in changes:
-            old, new = getattr(current, name), getattr(updated, name)
-            if old == new:
-                continue
-            book.conn.execute(f"UPDATE {table} SET {name} = ? WHERE tag = ?", [new, current.tag])
-            _log_change(book, table, current.tag, name, old, new, by)
+        if moved:  # one statement: the schema checks the fields together (limit < bypass)
+            try:
+                book.conn.execute(
+                    f"UPDATE {table} SET {', '.join(f'{n} = ?' for n in moved)} WHERE tag = ?",
+                    [getattr(updated, n) for n in moved] + [current.tag],
+                )
+            except sqlite3.IntegrityError as exc:  # the schema's last line held
+                raise BookError(f"cannot change {current.tag}: {exc}") from exc
+        for name in moved:
+            _log_change(
+                book, table, current.tag, name, getattr(current, name), getattr(updated, name), by
+            )
     return updated
 
 
@@ -346,11 +386,7 @@ def set_shifts(book: Book, shifts: list[tuple[str, str]], by: str = "") -> list[
     result = []
     seen = set()
     for i, (name, starts) in enumerate(shifts):
-        name = name.strip()
-        if not re.match(r"^\w[\w-]{0,11}$", name):
-            raise BookError(f"'{name}' is not a usable shift name (1-12 letters or digits)")
-        if not re.match(r"^([01]\d|2[0-3]):[0-5]\d$", starts.strip()):
-            raise BookError(f"shift start '{starts}' must be HH:MM (00:00-23:59)")
+        name, starts = validate.shift(name, starts)
         if name.lower() in seen or starts in {s.starts for s in result}:
             raise BookError(f"shift '{name}' repeats a name or a start time")
         seen.add(name.lower())
@@ -391,10 +427,15 @@ def parse_field(cls: type, name: str, text: str) -> Any:
             if text.strip().lower() not in ("yes", "no", "true", "false", "1", "0"):
                 raise ValueError
             return text.strip().lower() in ("yes", "true", "1")
+        if name in validate.RANGES:
+            return validate.parse_number(name, text)
         if kind.startswith("float"):
             return float(text)
         if kind.startswith("int"):
             return int(text)
     except ValueError as exc:
-        raise BookError(f"{name} '{text}' is not a {kind.split(' ')[0]}") from exc
+        if isinstance(exc, BookError):
+            raise
+        shown = validate.one_line(text, 30)
+        raise BookError(f"{name} '{shown}' is not a {kind.split(' ')[0]}") from exc
     return text

@@ -19,6 +19,7 @@ from datetime import UTC, date, datetime, time, timedelta, tzinfo
 from dateutil import tz
 
 from .errors import BookError
+from .validate import EARLIEST, one_line, timezone_name
 
 UTC_FORMAT = "%Y-%m-%dT%H:%M:%SZ"
 ENV_NOW = "SUMPBOOK_NOW"  # fixes the clock for demos and tests (any ISO 8601 time)
@@ -40,14 +41,35 @@ def _isoparse(text: str) -> datetime:
     return date_parser.isoparse(text)
 
 
-def to_utc(moment: datetime, local: tzinfo) -> datetime:
+def to_utc(moment: datetime, local: tzinfo, notes: list[str] | None = None) -> datetime:
+    """A time as UTC; a naive one is plant-local. A local time the clocks skipped is refused;
+    one they passed twice (the hour after clocks go back) is taken at its first passing, and
+    `notes` (when given) gets a line saying which offset that was."""
+    if moment.year < 1970 or moment.year > 9998:
+        raise BookError(f"the year {moment.year:04d} is outside 1970 … 9998: check the year")
     if moment.tzinfo is None:
         moment = moment.replace(tzinfo=local)
         if not tz.datetime_exists(moment):
             raise BookError(
                 f"{moment:%Y-%m-%d %H:%M} does not exist in local time (clocks went forward)"
             )
+        if tz.datetime_ambiguous(moment):
+            moment = moment.replace(fold=0)
+            if notes is not None:
+                first = moment.utcoffset()
+                second = moment.replace(fold=1).utcoffset()
+                notes.append(
+                    f"{moment:%Y-%m-%d %H:%M} happens twice here (clocks went back): took the "
+                    f"first, UTC{_offset(first)}; for the second give {moment:%H:%M}"
+                    f"{_offset(second)}"
+                )
     return moment.astimezone(UTC).replace(microsecond=0)
+
+
+def _offset(delta: timedelta | None) -> str:
+    minutes = int((delta or timedelta()).total_seconds() // 60)
+    sign = "+" if minutes >= 0 else "-"
+    return f"{sign}{abs(minutes) // 60:02d}:{abs(minutes) % 60:02d}"
 
 
 def format_utc(moment: datetime) -> str:
@@ -55,6 +77,9 @@ def format_utc(moment: datetime) -> str:
 
 
 def parse_utc(text: str) -> datetime:
+    """A stored stamp, 'YYYY-MM-DDTHH:MM:SSZ' (or with six decimals of a second)."""
+    if len(text) == 27 and text[19] == ".":
+        return datetime.strptime(text, "%Y-%m-%dT%H:%M:%S.%fZ").replace(tzinfo=UTC)
     return datetime.strptime(text, UTC_FORMAT).replace(tzinfo=UTC)
 
 
@@ -66,10 +91,17 @@ def zone(name: str | None) -> tzinfo:
     own copy otherwise (Windows without the tzdata package)."""
     if not name:
         return tz.tzlocal()
+    name = _zone_name(name)  # never a path: a stored '../../etc/passwd' is refused
     found = _zoneinfo(name) or tz.gettz(name)
     if found is None:
         raise BookError(f"unknown time zone '{name}': use an IANA name such as Europe/Berlin")
     return found
+
+
+@functools.lru_cache(maxsize=32)
+def _zone_name(name: str) -> str:
+    """`validate.timezone_name`, once per name (the zone is asked for on every read)."""
+    return timezone_name(name)
 
 
 @functools.lru_cache(maxsize=32)
@@ -81,19 +113,33 @@ def _zoneinfo(name: str) -> tzinfo | None:
 
 
 def parse_time(
-    text: str, local: tzinfo, now: datetime | None = None, allow_future: bool = False
+    text: str,
+    local: tzinfo,
+    now: datetime | None = None,
+    allow_future: bool = False,
+    notes: list[str] | None = None,
 ) -> datetime:
-    """Any ISO 8601 time (naive means plant-local) -> UTC; refuses a time far ahead."""
+    """Any ISO 8601 time (naive means plant-local) -> UTC, from 1970 to a day ahead of `now`
+    (`allow_future` lifts the second bound). `notes` gets a line when a local time that
+    happens twice was taken at its first passing."""
+    shown = one_line(text, 40)
     try:
         moment = _isoparse(text.strip())
     except (ValueError, OverflowError) as exc:
-        raise BookError(f"'{text}' is not an ISO 8601 time (e.g. 2026-05-13T07:30)") from exc
-    result = to_utc(moment, local)
+        raise BookError(f"'{shown}' is not an ISO 8601 time (e.g. 2026-05-13T07:30)") from exc
+    try:
+        result = to_utc(moment, local, notes)
+    except (OverflowError, ValueError) as exc:
+        if isinstance(exc, BookError):
+            raise BookError(f"{shown}: {exc}") from exc
+        raise BookError(f"{shown} is outside the times this logbook can hold") from exc
+    if result < EARLIEST:
+        raise BookError(f"{shown} is before 1970: check the year")
     now = now or utc_now()
     if not allow_future and result > now + MAX_AHEAD:
         raise BookError(
-            f"{text} is more than a day ahead of this computer's clock ({now:%Y-%m-%d %H:%M} UTC):"
-            " check the time or the clock"
+            f"{shown} is more than a day ahead of this computer's clock"
+            f" ({now:%Y-%m-%d %H:%M} UTC): check the time or the clock"
         )
     return result
 
@@ -199,6 +245,8 @@ def shift_named(label: str, pattern: Sequence[tuple[str, str]], local: tzinfo) -
         day = date.fromisoformat(day_text)
     except ValueError as exc:
         raise BookError(f"'{label}' is not a shift: use YYYY-MM-DD/NAME") from exc
+    if not 1970 <= day.year <= 9998:
+        raise BookError(f"'{label}': the day must be from 1970 on (and before 9999)")
     for span in _spans_on(day, pattern or [("day", "00:00")], local):
         if span.name.lower() == name.strip().lower():
             return span

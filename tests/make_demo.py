@@ -86,7 +86,7 @@ TECHNICIANS = [
     Technician(tag="CT"),
     Technician(tag="DR"),
     Technician(tag="EW"),
-    Technician(tag="FH", active=False),  # left at the end of June; DR took over
+    Technician(tag="FH"),  # left at the end of June (made inactive after the story); DR took over
 ]
 FLUIDS = [
     Fluid(
@@ -895,6 +895,8 @@ def populate(book: Book) -> None:
     fluid_care(story)
     ordered = sorted(story.entries, key=lambda e: (e.at, e.kind == "void"))
     journal.log_many(book, ordered)
+    # An inactive technician cannot log: FH is made inactive once the story is written.
+    register.update(book, Technician, "FH", {"active": False}, by="EW")
 
 
 TABLE_ORDER = {

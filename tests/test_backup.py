@@ -57,9 +57,19 @@ def test_rolling_backups_keep_the_newest_n(book):
 
 def test_keep_count_default_and_bad_settings(book):
     assert keep_count(book.conn) == DEFAULT_KEEP
-    book.set_setting(KEEP_SETTING, "many")
+    with pytest.raises(BookError, match="whole number"):  # the setting refuses them now
+        book.set_setting(KEEP_SETTING, "many")
+
+    def plant(value: str) -> None:  # as a hand-made edit of the file would
+        book.conn.execute(
+            "INSERT INTO settings(key, value) VALUES (?, ?) "
+            "ON CONFLICT(key) DO UPDATE SET value = excluded.value",
+            [KEEP_SETTING, value],
+        )
+
+    plant("many")
     assert keep_count(book.conn) == DEFAULT_KEEP
-    book.set_setting(KEEP_SETTING, "0")
+    plant("0")
     assert keep_count(book.conn) == 1  # never keep none
     assert rolling_backup(book.conn, book.path, "on-close", keep=2).exists()
 

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import re
 import sqlite3
 import sys
 from collections.abc import Callable, Sequence
@@ -16,6 +17,45 @@ from store.errors import BookError
 from . import commands
 
 EXIT_BAD_INPUT = 2
+MAX_LIST_LIMIT = 1_000_000
+# Options that never take a value: a negative-looking word after them is not theirs.
+FLAGS = {"--force", "--nominal", "--hour-meter", "--indicator-only", "--unfiltered", "--json"}
+_NEGATIVE_VALUE = re.compile(r"^-(\d|\.\d)")
+
+
+def _limit(text: str) -> int:
+    """--limit: a whole number from 1 (argparse shows the message as one line)."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"'{text[:30]}' is not a whole number") from None
+    if not 1 <= value <= MAX_LIST_LIMIT:
+        raise argparse.ArgumentTypeError(f"give 1 to {MAX_LIST_LIMIT:,} entries".replace(",", " "))
+    return value
+
+
+def join_negative_values(argv: Sequence[str]) -> list[str]:
+    """`--temp -4F` as `--temp=-4F`: argparse takes a word starting with '-' that is not a plain
+    number for an option, so a negative value with a unit would be refused."""
+    out: list[str] = []
+    words = list(argv)
+    i = 0
+    while i < len(words):
+        word = words[i]
+        if (
+            word.startswith("--")
+            and "=" not in word
+            and word not in FLAGS
+            and word != "--"
+            and i + 1 < len(words)
+            and _NEGATIVE_VALUE.match(words[i + 1])
+        ):
+            out.append(f"{word}={words[i + 1]}")
+            i += 2
+            continue
+        out.append(word)
+        i += 1
+    return out
 
 
 def _add_time_and_by(p: argparse.ArgumentParser) -> None:
@@ -110,7 +150,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     p.add_argument("--unit", help="only this unit")
     p.add_argument("--since", help="entries from this time on (ISO 8601)")
-    p.add_argument("--limit", type=int, default=200, help="at most this many entries (200)")
+    p.add_argument("--limit", type=_limit, default=200, help="at most this many entries (200)")
 
     log = sub.add_parser("log", help="record what you did or saw")
     lsub = log.add_subparsers(dest="kind", metavar="KIND", required=True)
@@ -203,12 +243,14 @@ def build_parser() -> argparse.ArgumentParser:
 
 def run(args: argparse.Namespace) -> int:
     handler: Callable[[argparse.Namespace], int] = getattr(commands, f"cmd_{args.command}")
-    return handler(args)
+    code = handler(args)
+    commands.report_unreadable()
+    return code
 
 
 def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
-    args = parser.parse_args(argv)
+    args = parser.parse_args(join_negative_values(sys.argv[1:] if argv is None else argv))
     if args.command in (None, "app"):
         from .app import run_app
 
@@ -220,6 +262,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         return run(args)
     except BookError as exc:
+        commands.report_unreadable()
         print(f"sumpbook: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except UnicodeError:
@@ -227,6 +270,18 @@ def main(argv: Sequence[str] | None = None) -> int:
             "sumpbook: the input holds characters that are not text (a wrong encoding?); "
             "nothing was written",
             file=sys.stderr,
+        )
+        return EXIT_BAD_INPUT
+    except OverflowError:
+        print(
+            "sumpbook: a value is too large for the logbook (a time or a number out of range); "
+            "nothing was written",
+            file=sys.stderr,
+        )
+        return EXIT_BAD_INPUT
+    except sqlite3.IntegrityError as exc:  # the schema's last line refused a value
+        print(
+            f"sumpbook: the logbook refused a value ({exc}); nothing was written", file=sys.stderr
         )
         return EXIT_BAD_INPUT
     except sqlite3.DatabaseError as exc:  # a read met a damaged page (writes are checked first)

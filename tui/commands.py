@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import functools
 import json
+import math
 import sys
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -19,6 +20,7 @@ from store.errors import BookError
 from store.register import Breather, FilterPosition, Fluid, Technician, Unit
 from store.timeutil import parse_time, previous_shift, shift_at, shift_named
 from store.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
+from store.validate import plant_setting
 
 if TYPE_CHECKING:
     from rich.console import Console
@@ -41,8 +43,24 @@ def _render() -> Any:
     return render
 
 
+# Books opened by this command: after it, main() reports rows they could not read.
+OPENED: list[Book] = []
+
+
 def _book(args: argparse.Namespace, create: bool = False) -> Book:
-    return open_book(args.db or default_path(), create=create)
+    book = open_book(args.db or default_path(), create=create)
+    for notice in book.notices:  # e.g. rows an upgrade could not carry over
+        console(stderr=True).print(f"note: {notice}", markup=False)
+    OPENED.append(book)
+    return book
+
+
+def report_unreadable() -> None:
+    """One line on stderr per book for entry rows a read had to leave out."""
+    while OPENED:
+        line = journal.unreadable_report(OPENED.pop())
+        if line:
+            console(stderr=True).print(f"note: {line}", markup=False)
 
 
 def _pairs(items: list[str]) -> dict[str, str]:
@@ -62,9 +80,21 @@ def _by(args: argparse.Namespace) -> str:
     return who
 
 
+def _time(book: Book, text: str, allow_future: bool = False):  # noqa: ANN202 - datetime
+    """A typed time; a local time that happens twice is taken at its first passing, and the
+    offset chosen is said on stderr."""
+    notes: list[str] = []
+    moment = parse_time(
+        text, book.local_zone(), now=book.now(), allow_future=allow_future, notes=notes
+    )
+    for note in notes:
+        console(stderr=True).print(f"note: {note}", markup=False)
+    return moment
+
+
 def _at(book: Book, args: argparse.Namespace):  # noqa: ANN202 - datetime | None
     text = getattr(args, "at", None)
-    return parse_time(text, book.local_zone(), now=book.now()) if text else None
+    return _time(book, text) if text else None
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
@@ -224,9 +254,7 @@ def cmd_list(args: argparse.Namespace) -> int:
         if args.unit:
             args.unit = register.get(book, Unit, args.unit).tag
         if args.what == "entries":
-            since = (
-                parse_time(args.since, book.local_zone(), now=book.now()) if args.since else None
-            )
+            since = _time(book, args.since) if args.since else None
             entries = journal.read(
                 book, since=since, unit=args.unit, newest_first=True, limit=args.limit
             )
@@ -271,7 +299,7 @@ def cmd_log(args: argparse.Namespace) -> int:
                 unit=args.tag,
                 volume_l=parse_volume_l(args.volume, prefs.volume),
                 fluid=args.fluid,
-                filtered_um=None if args.unfiltered else args.filtered,
+                filtered_um=journal.topup_filtration(args.unfiltered, args.filtered),
                 hours=args.hours,
                 **common,
             )
@@ -298,6 +326,12 @@ def cmd_log(args: argparse.Namespace) -> int:
             entry = Void(voids=args.id, **{**common, "note": args.reason})
         saved = journal.log(book, entry)
         console().print(_render().saved_line(book, saved, prefs))
+        if isinstance(saved, Reading):
+            caution = journal.reading_over_bypass(
+                book, saved.filter, saved.dp_bar, saved.temp_c, saved.flow_lpm, saved.indicator
+            )
+            if caution:
+                console().print(f"CAUTION: {caution}", markup=False)
         if kind in ("change", "breather"):
             console().print(_render().CAUTION_SHORT)
     return 0
@@ -317,20 +351,37 @@ def _counts(text: str) -> tuple[float | None, float, float]:
 # ---- status, export, import ----------------------------------------------------------------------
 
 
+def _finite_only(value: Any) -> Any:
+    if isinstance(value, float):
+        return value if math.isfinite(value) else None
+    if isinstance(value, dict):
+        return {k: _finite_only(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_finite_only(v) for v in value]
+    return value
+
+
+def strict_json(data: Any) -> str:
+    """JSON that every parser takes: a number that is not finite (a fit gone wild) becomes
+    null instead of the non-standard NaN or Infinity."""
+    try:
+        return json.dumps(data, ensure_ascii=False, allow_nan=False)
+    except ValueError:
+        return json.dumps(_finite_only(data), ensure_ascii=False, allow_nan=False)
+
+
 def cmd_status(args: argparse.Namespace) -> int:
     from store import status
 
     prefs = laptop.load()
     with _book(args) as book:
-        as_of = parse_time(args.as_of, book.local_zone(), now=book.now()) if args.as_of else None
+        as_of = _time(book, args.as_of) if args.as_of else None
         unit = register.get(book, Unit, args.unit).tag if args.unit else None
         watch = status.watch(book, as_of=as_of, unit=unit)
         if args.json:
             # One line, no indent: json's C encoder does it (an indent means the pure-Python
             # one, ten times slower on a big plant); pipe it to a pretty-printer to read it.
-            sys.stdout.write(
-                json.dumps(status.to_json(watch, book.local_zone()), ensure_ascii=False)
-            )
+            sys.stdout.write(strict_json(status.to_json(watch, book.local_zone())))
             sys.stdout.write("\n")
         else:
             console().print(_render().watch_table(book, watch, prefs))
@@ -345,8 +396,8 @@ def cmd_export(args: argparse.Namespace) -> int:
         local, pattern = book.local_zone(), book.shift_pattern()
         now = book.now()
         if args.from_:
-            start = parse_time(args.from_, local, now=now)
-            end = parse_time(args.to, local, now=now) if args.to else None
+            start = _time(book, args.from_)
+            end = _time(book, args.to) if args.to else None
             if end is not None and end <= start:
                 raise BookError("--to must be after --from")
         else:
@@ -420,17 +471,9 @@ def cmd_prefs(args: argparse.Namespace) -> int:
 def cmd_plant(args: argparse.Namespace) -> int:
     with _book(args, create=True) as book:
         if args.settings:
-            for key, value in _pairs(args.settings).items():
-                if key not in ("name", "timezone", "backup_keep"):
-                    raise BookError(
-                        f"unknown plant setting '{key}': use name, timezone or backup_keep"
-                    )
-                if key == "backup_keep" and not (value.isdigit() and int(value) >= 1):
-                    raise BookError("backup_keep must be a whole number of 1 or more")
-                if key == "timezone":
-                    from store.timeutil import zone
-
-                    zone(value)
+            # every value checked before the first is written
+            checked = {k: plant_setting(k, v) for k, v in _pairs(args.settings).items()}
+            for key, value in checked.items():
                 book.set_setting(key, value)
         for key in ("name", "timezone", "backup_keep"):
             console().print(f"{key} = {book.setting(key, '') or '(this computer' + chr(39) + 's)'}")
