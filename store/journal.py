@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import gc
-import math
 import sqlite3
 import uuid
 from collections.abc import Callable, Iterable, Iterator, Sequence
@@ -156,6 +155,14 @@ BYPASS_CAUTION = (
 )
 
 
+def past_bypass(position: FilterPosition, dp_bar: float | None, indicator: str | None) -> bool:
+    """A reading that says oil is going round the element: the indicator shows bypass, or
+    the gauge ΔP has reached the bypass valve's setting (it cracks open there)."""
+    if indicator == "bypass":
+        return True
+    return dp_bar is not None and position.bypass_bar is not None and dp_bar >= position.bypass_bar
+
+
 def reading_over_bypass(
     book: Book,
     filter_tag: str,
@@ -170,20 +177,14 @@ def reading_over_bypass(
     `temp_c` and `flow_lpm` are taken for the call's shape: the valve opens on the ΔP it
     sees, so the gauge value is compared as read."""
     position = get(book, FilterPosition, filter_tag)
-    over = (
-        dp_bar is not None
-        and position.bypass_bar is not None
-        and math.isfinite(dp_bar)
-        and dp_bar >= position.bypass_bar
-    )
-    if over:
+    if not past_bypass(position, dp_bar, indicator):
+        return None
+    if dp_bar is not None and position.bypass_bar is not None and dp_bar >= position.bypass_bar:
         return (
             f"{position.tag} read {dp_bar:g} bar, at or over its bypass setting "
             f"{position.bypass_bar:g} bar: {BYPASS_CAUTION}"
         )
-    if indicator == "bypass":
-        return f"{position.tag}'s indicator shows bypass: {BYPASS_CAUTION}"
-    return None
+    return f"{position.tag}'s indicator shows bypass: {BYPASS_CAUTION}"
 
 
 def _sample_fields(entry: Sample) -> dict[str, Any]:

@@ -248,14 +248,6 @@ def last_temp_c(book: Book, unit: str) -> float | None:
     return None
 
 
-def past_bypass(position: FilterPosition, dp_bar: float | None, indicator: str | None) -> bool:
-    """A reading that says oil is going round the element: the indicator shows bypass, or
-    the gauge ΔP has reached the bypass valve's setting (it cracks open there)."""
-    if indicator == "bypass":
-        return True
-    return dp_bar is not None and position.bypass_bar is not None and dp_bar >= position.bypass_bar
-
-
 METER_LOOKBACK = 200  # the unit's latest entries that carry the hour meter, for the rate
 
 

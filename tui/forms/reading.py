@@ -5,8 +5,9 @@ from __future__ import annotations
 from typing import Any
 
 from store.entries import Entry, Reading
+from store.journal import past_bypass
 from store.register import FilterPosition, find
-from store.sheets import last_temp_c, meter_estimate_h, past_bypass
+from store.sheets import last_temp_c, meter_estimate_h
 from store.units import parse_pressure_bar, parse_temperature_c
 
 from ..widgets import fmt
