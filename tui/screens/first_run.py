@@ -8,6 +8,8 @@ from textual.containers import Vertical
 from textual.screen import ModalScreen
 from textual.widgets import Static
 
+from ..widgets.wrapped import Wrapped
+
 GUIDE = """\
 This logbook is empty.
 
@@ -33,7 +35,7 @@ class FirstRunScreen(ModalScreen[str | None]):
     def compose(self) -> ComposeResult:
         with Vertical(id="first-box", classes="prompt-box"):
             yield Static("Welcome to sumpbook", classes="form-title", markup=False)
-            yield Static(GUIDE, markup=False)
+            yield Wrapped(GUIDE, hanging=True)
 
     def action_choose(self, what: str) -> None:
         self.dismiss(what or None)

@@ -7,7 +7,6 @@ from typing import Any
 
 from rich.text import Text
 from textual.app import ComposeResult
-from textual.binding import Binding
 from textual.containers import Vertical
 from textual.widgets import DataTable, Header, Select, Static, TabbedContent, TabPane
 
@@ -18,6 +17,7 @@ from store.register import Breather, FilterPosition, Fluid, Technician, Unit
 from store.units import PRESSURE_UNITS, TEMPERATURE_UNITS, VOLUME_UNITS
 
 from ..forms.register_record import RegisterForm
+from ..keys import bind
 from ..widgets import fmt
 from ..widgets.banner import DemoBanner
 from ..widgets.keystrip import KeyStrip
@@ -96,10 +96,10 @@ class RegisterScreen(BookScreen):
     HELP_NAME = "the register"
     AUTO_FOCUS = "#table-units"
     BINDINGS = [
-        Binding("a", "add", "Add", tooltip="Add to the register", id="reg-add"),
-        Binding("e", "edit", "Edit", tooltip="Edit the selected row", id="reg-edit"),
-        Binding("left_square_bracket", "tab(-1)", "Prev", tooltip="Previous tab", id="reg-prev"),
-        Binding("right_square_bracket", "tab(1)", "Next", tooltip="Next tab", id="reg-next"),
+        bind("a", "add", "reg-add"),
+        bind("e", "edit", "reg-edit"),
+        bind("left_square_bracket", "tab(-1)", "reg-prev"),
+        bind("right_square_bracket", "tab(1)", "reg-next"),
     ]
 
     def __init__(self) -> None:

@@ -7,7 +7,6 @@ from pathlib import Path
 
 from rich.text import Text
 from textual.app import ComposeResult
-from textual.binding import Binding
 from textual.containers import VerticalScroll
 from textual.widgets import DataTable, Header, Static
 
@@ -18,6 +17,7 @@ from store.errors import BookError
 from store.sheets import ShiftLog, kind_counts, shift_log
 from store.timeutil import ShiftSpan, next_shift, previous_shift, shift_at, shift_named
 
+from ..keys import bind
 from ..render import describe
 from ..widgets import fmt
 from ..widgets.banner import DemoBanner
@@ -59,19 +59,13 @@ class ShiftLogScreen(BookScreen):
     HELP_NAME = "the shift log"
     AUTO_FOCUS = "#shift-entries"
     BINDINGS = [
-        Binding(
-            "left_square_bracket",
-            "step(-1)",
-            "Earlier",
-            tooltip="Previous shift",
-            id="shift-earlier",
-        ),
-        Binding("right_square_bracket", "step(1)", "Later", tooltip="Next shift", id="shift-later"),
-        Binding("full_stop", "current", "Now", tooltip="The current shift", id="shift-current"),
-        Binding("g", "go_to", "Go to", tooltip="Go to a shift by date and name", id="shift-go"),
-        Binding("x", "export", "Export", tooltip="Export this shift as CSV", id="shift-export"),
-        Binding("v", "void", "Void", tooltip="Void the selected entry", id="shift-void"),
-        Binding("n", "entry('note')", "Note", tooltip="Write a note", id="log-note"),
+        bind("left_square_bracket", "step(-1)", "shift-earlier"),
+        bind("right_square_bracket", "step(1)", "shift-later"),
+        bind("full_stop", "current", "shift-current"),
+        bind("g", "go_to", "shift-go"),
+        bind("x", "export", "shift-export"),
+        bind("v", "void", "shift-void"),
+        bind("n", "entry('note')", "log-note"),
     ]
 
     def __init__(self) -> None:
