@@ -421,7 +421,7 @@ class SumpbookApp(App[None]):
     def say_saved(self, result: Saved, after: WatchRow | None) -> None:
         entry, before = result.entry, result.before
         local = self.book.local_zone()
-        text = f"Saved {entry.kind} {entry.id[:8]} on {entry.target or entry.unit or 'the plant'}."
+        text = saved_text(entry)
         if after is not None:
             self.statuses[after.tag.upper()] = after
             text += " " + due_change(after, before, local)
@@ -534,6 +534,15 @@ class SumpbookApp(App[None]):
             self.backup_tried = True
             backup_on_close(self.book)
         self.exit()
+
+
+def saved_text(entry: Any) -> str:
+    """'Saved reading 1a2b3c4d on P1-RF.', 'Voided entry 1a2b3c4d (void 5e6f7a8b).'"""
+    voids = getattr(entry, "voids", None)
+    if voids:
+        return f"Voided entry {voids[:8]} (the void is {entry.id[:8]})."
+    where = entry.target or entry.unit
+    return f"Saved {entry.kind} {entry.id[:8]}" + (f" on {where}." if where else ".")
 
 
 def due_change(after: WatchRow, before: Any, local: Any) -> str:

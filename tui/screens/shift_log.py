@@ -22,19 +22,10 @@ from ..render import describe
 from ..widgets import fmt
 from ..widgets.banner import DemoBanner
 from ..widgets.keystrip import KeyStrip
+from ..widgets.rowtable import ENTRY_COLUMNS, RowTable
 from .ask import AskScreen
 from .common import BookScreen, Target, guarded
 from .file_prompt import FilePrompt
-
-KIND_WORDS = {
-    "reading": "reading",
-    "change": "element change",
-    "topup": "top-up",
-    "breather": "breather swap",
-    "sample": "sample",
-    "note": "note",
-    "void": "void",
-}
 
 
 def export_file(path: str, dest: Path, span: ShiftSpan, prefs: CsvPrefs) -> int:
@@ -78,13 +69,12 @@ class ShiftLogScreen(BookScreen):
         yield Header(icon="≋")
         yield DemoBanner()
         yield Static("SHIFT", id="sheet-title", classes="sheet-title", markup=False)
-        yield DataTable(id="shift-entries", cursor_type="row", zebra_stripes=True)
+        yield RowTable(id="shift-entries", zebra_stripes=True, flexible="what")
         with VerticalScroll(id="handover-box"):
             yield Static("", id="handover", markup=False)
         yield KeyStrip()
 
     def on_mount(self) -> None:
-        self.query_one(DataTable).add_columns("Time", "Kind", "Target", "By", "What", "Id")
         self.query_one(DataTable).focus()
 
     def current_span(self) -> ShiftSpan:
@@ -146,20 +136,20 @@ class ShiftLogScreen(BookScreen):
             + f" · {len(log.entries)} entries"
             + (f", {voided} voided" if voided else "")
         )
-        table = self.query_one(DataTable)
-        table.clear()
+        rows = []
         for e in log.entries:
             style = "strike dim" if e.voided else ""
-            kind = KIND_WORDS.get(e.kind, e.kind) + (" VOIDED" if e.voided else "")
-            table.add_row(
+            kind = e.kind + (" VOIDED" if e.voided else "")  # the CSV's kind names
+            cells = (
                 Text(fmt.stamp(e.at, local)[11:], style=style),
                 Text(kind, style=style),
                 Text(e.target or e.unit or "", style=style),
                 Text(e.by, style=style),
-                Text(describe(e, prefs) + (f" · {e.note}" if e.note else ""), style=style),
                 Text(e.id[:8], style=style),
-                key=e.id,
+                Text(describe(e, prefs) + (f" · {e.note}" if e.note else ""), style=style),
             )
+            rows.append((e.id, cells))
+        self.query_one(RowTable).show(ENTRY_COLUMNS, rows)
         self.query_one("#handover", Static).update(self.handover_text(log))
         self.loaded = True
 
@@ -169,7 +159,7 @@ class ShiftLogScreen(BookScreen):
         text.append("HANDOVER\n", style="bold")
         counts = kind_counts(log.done)
         if counts:
-            done = ", ".join(f"{n} × {KIND_WORDS.get(k, k)}" for k, n in counts.items())
+            done = ", ".join(f"{n} × {k}" for k, n in counts.items())
             text.append(f"Done: {done}\n")
             for e in log.done:
                 if e.kind in ("change", "topup", "breather", "sample"):

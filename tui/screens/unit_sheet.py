@@ -15,7 +15,7 @@ from ..render import describe
 from ..widgets import fmt
 from ..widgets.banner import DemoBanner
 from ..widgets.keystrip import KeyStrip
-from ..widgets.rowtable import RowTable
+from ..widgets.rowtable import ENTRY_COLUMNS, RowTable
 from ..widgets.wrapped import Wrapped
 from .common import ENTRY_BINDINGS, BookScreen, Target
 
@@ -210,24 +210,14 @@ class UnitSheetScreen(BookScreen):
             what = describe(e, prefs)
             cells = (
                 Text(fmt.short_stamp(e.at, local), style=style),
-                Text(e.kind + (" VOID" if e.voided else ""), style=style),
+                Text(e.kind + (" VOIDED" if e.voided else ""), style=style),
                 Text(e.target or e.unit or "", style=style),
                 Text(e.by, style=style),
-                Text(what, style=style),
                 Text(e.id[:8], style=style),
+                Text(what, style=style),
             )
             rows.append((e.id, cells))
-        self.query_one("#unit-entries", RowTable).show(
-            [
-                ("Time", "time"),
-                ("Kind", "kind"),
-                ("Target", "target"),
-                ("By", "by"),
-                ("What", "what"),
-                ("Id", "id"),
-            ],
-            rows,
-        )
+        self.query_one("#unit-entries", RowTable).show(ENTRY_COLUMNS, rows)
         self.loaded = True
 
     # ---- the cursor's target ----

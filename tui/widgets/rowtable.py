@@ -16,6 +16,16 @@ from textual.widgets import DataTable
 
 Row = tuple[str, Sequence[Text]]  # (row key, one cell per column)
 
+# Entries as the shift log and the unit sheet list them; What takes the rest of the line.
+ENTRY_COLUMNS = [
+    ("Time", "time"),
+    ("Kind", "kind"),
+    ("Target", "target"),
+    ("By", "by"),
+    ("Id", "id"),
+    ("What", "what"),
+]
+
 
 def choose_columns(
     headers: Sequence[str], rows: Sequence[Row], width: int, pad: int, flexible: int | None
@@ -24,8 +34,7 @@ def choose_columns(
     are taken in order until one does not fit; the flexible one, if it does not fit whole,
     is the last one taken and gets the room that is left."""
     natural = [
-        max([cell_len(h), *(cell_len(r[1][i].plain) for r in rows)])
-        for i, h in enumerate(headers)
+        max([cell_len(h), *(cell_len(r[1][i].plain) for r in rows)]) for i, h in enumerate(headers)
     ]
     chosen: list[int] = []
     used = 0
