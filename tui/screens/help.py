@@ -122,7 +122,7 @@ def help_body(
             return
         shown.update((r[0], r[2]) for r in rows)
         parts.append(head(title))
-        parts.append(grid(rows, (0, 9, 10)))
+        parts.append(grid(rows, (1, 9, 10)))
 
     section(f"Keys on {screen_name}", key_rows(here, ENTER.get(screen_name, "")))
     section("Keys anywhere", key_rows(anywhere))
@@ -138,22 +138,22 @@ def help_body(
                 ("Enter  ctrl+s", "save (nothing is written until every field is valid)"),
                 ("esc", "cancel"),
             ],
-            (0, 15),
+            (1, 15),
         )
     )
     parts.append(Text("  Units: as set in the register's Prefs tab."))
     parts.append(Text(""))
     parts.append(head("Watch columns"))
-    parts.append(grid(COLUMNS, (0, 6)))
+    parts.append(grid(COLUMNS, (1, 6)))
     parts.append(Text(""))
-    parts.append(head("Flags (shown as words; urgent ones also in reverse)"))
+    parts.append(head("Flags (urgent ones also in reverse)"))
     rows = []
     for flag, word in FLAG_WORDS.items():
         meaning = FLAG_MEANING.get(flag, "")
         if flag in URGENT_FLAGS:
             meaning += " (urgent)"
         rows.append((word, meaning))
-    parts.append(grid(rows, (0, 11)))
+    parts.append(grid(rows, (1, 11)))
     return parts
 
 

@@ -116,7 +116,7 @@ class WatchScreen(BookScreen):
         yield Wrapped("reading the book…", id="summary")
         table = RowTable(id="watch-table", zebra_stripes=True, flexible="flags")
         yield table
-        yield Wrapped(id="detail")
+        yield Wrapped(id="detail", max_lines=3)  # the sheet (Enter) has every note
         yield KeyStrip()
 
     def on_mount(self) -> None:

@@ -15,9 +15,12 @@ Block = Sequence[str | Text] | str | Text  # one paragraph: its phrases, or one 
 
 
 class Wrapped(Static):
-    def __init__(self, text: str = "", *, hanging: bool = False, **options: object) -> None:
+    def __init__(
+        self, text: str = "", *, hanging: bool = False, max_lines: int = 0, **options: object
+    ) -> None:
         super().__init__("", markup=False, **options)  # type: ignore[arg-type]
         self.hanging = hanging
+        self.max_lines = max_lines  # more are left out, the last line shown ends in '…'
         self.blocks: list[Block] = [text] if text else []
         self.wrapped_at = 0
 
@@ -38,6 +41,11 @@ class Wrapped(Static):
                 lines += phrase_lines(self.app.console, width, [block])
             else:
                 lines += phrase_lines(self.app.console, width, block)
+        if self.max_lines and len(lines) > self.max_lines:
+            lines = lines[: self.max_lines]
+            last = lines[-1]
+            last.truncate(width - 1)
+            lines[-1] = last + Text("…")
         self.update(Text("\n").join(lines))
 
     def on_resize(self, event: events.Resize) -> None:
