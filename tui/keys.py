@@ -33,7 +33,7 @@ KEYS: dict[str, Key] = {
     "log-sample": Key("s", "sample", "Log a sample result", "log", 5),
     "log-note": Key("n", "note", "Write a note", "log", 5),
     "quick-tag": Key("t", "tag", "Type or scan a tag, then log on it", "log", 1, "f2"),
-    "shift-void": Key("v", "void", "Void the selected entry (it stays, marked void)", "log", 3),
+    "shift-void": Key("v", "void", "Void the selected entry (it stays, marked void)", "log", 2),
     # look: move around and see
     "open": Key("Enter", "open", "Open the row under the cursor", "look", 3),
     "back": Key("esc", "back", "Back to where you came from", "look", 1),

@@ -121,6 +121,8 @@ def help_body(
         if not rows:
             return
         shown.update((r[0], r[2]) for r in rows)
+        if parts:
+            parts.append(Text(""))
         parts.append(head(title))
         parts.append(grid(rows, (1, 9, 10)))
 

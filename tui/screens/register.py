@@ -21,6 +21,7 @@ from ..keys import bind
 from ..widgets import fmt
 from ..widgets.banner import DemoBanner
 from ..widgets.keystrip import KeyStrip
+from ..widgets.rowtable import RowTable
 from .ask import AskScreen
 from .common import BookScreen, guarded
 
@@ -125,7 +126,8 @@ class RegisterScreen(BookScreen):
                         yield Static("", id="shift-help", markup=False)
                         yield DataTable(id="table-shifts", cursor_type="row")
                     else:
-                        yield DataTable(id=f"table-{name}", cursor_type="row")
+                        # a long name or note gives room to the columns after it
+                        yield RowTable(id=f"table-{name}", flexible="Name", flex_min=20)
         yield KeyStrip()
 
     def compose_prefs(self) -> ComposeResult:
@@ -158,15 +160,14 @@ class RegisterScreen(BookScreen):
         """The register is small and read on the main thread (no maths)."""
         prefs = self.sb.prefs
         for name, cls in TABS.items():
-            table = self.query_one(f"#table-{name}", DataTable)
-            keep = table.cursor_row
-            table.clear(columns=True)
             cols = columns(cls, prefs)
-            table.add_columns(*(h for h, _ in cols))
-            for record in register.list_all(self.sb.book, cls):
-                table.add_row(*(Text(str(get(record))) for _, get in cols), key=record.tag)
-            if keep and keep < table.row_count:
-                table.move_cursor(row=keep)
+            self.query_one(f"#table-{name}", RowTable).show(
+                [(h, h) for h, _ in cols],
+                [
+                    (record.tag, [Text(str(get(record))) for _, get in cols])
+                    for record in register.list_all(self.sb.book, cls)
+                ],
+            )
         shifts = self.query_one("#table-shifts", DataTable)
         shifts.clear(columns=True)
         shifts.add_columns("Shift", "Starts")

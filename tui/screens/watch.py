@@ -256,11 +256,9 @@ class WatchScreen(BookScreen):
         if row.basis:
             head.append(f"basis {row.basis}")
         prefs = self.sb.prefs
-        notes = (
-            "; ".join(fmt.in_units(n, prefs) for n in row.notes)
-            if row.notes
-            else fmt.STATE_WORDS.get(row.state, row.state)
-        )
+        notes = [fmt.in_units(n, prefs) for n in row.notes] or [
+            fmt.STATE_WORDS.get(row.state, row.state)
+        ]
         detail.show(head, notes)
 
     def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:

@@ -28,25 +28,39 @@ ENTRY_COLUMNS = [
 
 
 def choose_columns(
-    headers: Sequence[str], rows: Sequence[Row], width: int, pad: int, flexible: int | None
+    headers: Sequence[str],
+    rows: Sequence[Row],
+    width: int,
+    pad: int,
+    flexible: int | None,
+    flex_min: int = 10_000,
 ) -> tuple[list[int], list[int]]:
     """Which columns fit `width` whole (indexes, in order) and the width of each. Columns
-    are taken in order until one does not fit; the flexible one, if it does not fit whole,
-    is the last one taken and gets the room that is left."""
+    are taken in order until one does not fit. The flexible one counts as `flex_min` wide
+    (or its own width, if less) and gets what room is left at the end; if even that does
+    not fit, it is the last one taken and gets the rest of the line."""
     natural = [
         max([cell_len(h), *(cell_len(r[1][i].plain) for r in rows)]) for i, h in enumerate(headers)
     ]
     chosen: list[int] = []
+    widths: list[int] = []
     used = 0
     for i, w in enumerate(natural):
+        if i == flexible:
+            w = min(w, max(flex_min, cell_len(headers[i])))
         if used + w + 2 * pad > width and i > 0:
             if i == flexible and used + cell_len(headers[i]) + 2 * pad <= width:
                 chosen.append(i)  # what is left of the line; its longer cells end in '…'
-                return chosen, [*(natural[j] for j in chosen[:-1]), width - used - 2 * pad]
+                widths.append(width - used - 2 * pad)
+                used = width
             break  # the rest give way: a later column never shows when an earlier does not
         chosen.append(i)
+        widths.append(w)
         used += w + 2 * pad
-    return chosen, [natural[i] for i in chosen]
+    if flexible in chosen:
+        at = chosen.index(flexible)
+        widths[at] = min(natural[flexible], widths[at] + max(width - used, 0))
+    return chosen, widths
 
 
 class RowTable(DataTable):
@@ -55,10 +69,12 @@ class RowTable(DataTable):
         Binding("end", "last_row", "Last row", show=False),
     ]
 
-    def __init__(self, *, flexible: str | None = None, **options: object) -> None:
+    def __init__(
+        self, *, flexible: str | None = None, flex_min: int = 10_000, **options: object
+    ) -> None:
         options.setdefault("cursor_type", "row")
         super().__init__(**options)  # type: ignore[arg-type]
-        self.flexible = flexible
+        self.flexible, self.flex_min = flexible, flex_min
         self.headers: list[tuple[str, str]] = []
         self.rows_shown: list[Row] = []
 
@@ -74,7 +90,9 @@ class RowTable(DataTable):
         flex = next((i for i, h in enumerate(self.headers) if h[1] == self.flexible), None)
         width = self.size.width or self.app.size.width
         width = max(width - self.scrollbar_room(), 10)
-        chosen, widths = choose_columns(labels, self.rows_shown, width, self.cell_padding, flex)
+        chosen, widths = choose_columns(
+            labels, self.rows_shown, width, self.cell_padding, flex, self.flex_min
+        )
         for i, w in zip(chosen, widths, strict=True):
             self.add_column(self.headers[i][0], key=self.headers[i][1], width=w)
         for row_key, cells in self.rows_shown:
