@@ -115,7 +115,7 @@ class KeyStrip(Widget):
             if not b.show or not b.description:
                 continue
             ident = b.id or b.action
-            if ident in seen:
+            if ident in seen or self.here_already(screen, b.action):
                 continue
             seen.add(ident)
             press = b.key.split(",")[0].strip()
@@ -126,6 +126,11 @@ class KeyStrip(Widget):
         if new != self.items:
             self.items = new
             self.refresh()
+
+    def here_already(self, screen: Screen, action: str) -> bool:
+        """'1 watch' on the watch list itself: the key would go where the user is."""
+        app = self.app
+        return action == f"go({app.current_mode!r})" and screen is app.screen_stack[0]
 
     def render(self) -> Text:
         kept, hidden = fit(list(self.items), self.size.width)
