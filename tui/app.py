@@ -161,6 +161,7 @@ class SumpbookApp(App[None]):
         self.statuses: dict[str, WatchRow] = {}
         self.last_message = ""
         self.backup_tried = False
+        self.quitting = False  # set on the way out: no key opens anything after it
         self.book_checked = False  # the background whole-file check has finished
         self.changes = 0  # counted by book_changed
         self.check_seconds = 0.0  # how long the last whole-file check (and preload) took
@@ -227,6 +228,8 @@ class SumpbookApp(App[None]):
     # ---- routing ----
 
     def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
+        if self.quitting:
+            return False  # keys typed after q (a fast typist, a scanner) open nothing
         if action in NAV and isinstance(self.screen, ModalScreen):
             return False
         if action == "help" and isinstance(self.screen, HelpScreen):
@@ -243,6 +246,8 @@ class SumpbookApp(App[None]):
 
     @guarded
     def open_sheet(self, what: str, tag: str, unit: str) -> None:
+        if self.quitting:
+            return
         if what != "filter":
             self.push_screen(_lazy("screens.unit_sheet", "UnitSheetScreen")(unit or tag))
         elif self.kept_sheet_free() and self.kept_filter_sheet.is_mounted:
@@ -306,7 +311,7 @@ class SumpbookApp(App[None]):
 
     @guarded
     def open_form(self, kind: str, tag: str = "", **preset: str) -> None:
-        if isinstance(self.screen, ModalScreen):
+        if self.quitting or isinstance(self.screen, ModalScreen):
             return
         before = self.statuses.get(tag.upper()) if tag else None
         form = _lazy(f"forms.{FORMS[kind][0]}", FORMS[kind][1])
@@ -527,12 +532,14 @@ class SumpbookApp(App[None]):
                     timeout=15,
                 )
                 return
+        self.quitting = True
         self.exit()
 
     def action_quit_now(self) -> None:
         if not self.backup_tried:
             self.backup_tried = True
             backup_on_close(self.book)
+        self.quitting = True
         self.exit()
 
 
