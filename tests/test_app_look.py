@@ -455,3 +455,19 @@ async def test_the_key_strip_is_one_line_in_groups_and_fits(demo):
         await pilot.click(KeyStrip, offset=(x, 0))
         await pilot.pause()
         assert type(app.screen).__name__ == "ReadingForm"
+
+
+async def test_keys_after_quit_open_nothing(demo):
+    # typed fast ('question_mark' into a terminal): q quits, the u after it must not push
+    # a sheet into the closing app (it showed a traceback)
+    app = demo()
+    async with app.run_test(size=SIZE) as pilot:
+        await settle(pilot, WatchScreen)
+        watch = app.screen
+        app.backup_tried = True  # no backup file for this test
+        app.exit = lambda *a, **k: None  # stay open to look: only the quitting state counts
+        app.action_quit()
+        app.open_sheet("unit", "IMM-1", "IMM-1")
+        app.open_form("reading", "M1-R")
+        await pilot.pause()
+        assert app.screen is watch
