@@ -35,7 +35,6 @@ KEYS: dict[str, Key] = {
     "quick-tag": Key("t", "tag", "Type or scan a tag, then log on it", "log", 1, "f2"),
     "shift-void": Key("v", "void", "Void the selected entry (it stays, marked void)", "log", 2),
     # look: move around and see
-    "open": Key("Enter", "open", "Open the row under the cursor", "look", 3),
     "back": Key("esc", "back", "Back to where you came from", "look", 1),
     "go-watch": Key("1", "watch", "The watch list", "look", 2),
     "go-shift": Key("2", "shift log", "The shift log", "look", 3),
@@ -63,11 +62,13 @@ KEYS: dict[str, Key] = {
     ),
 }
 
-# Keys that are no binding of their own: what Enter does on each screen that has it.
+# Enter is no binding of its own: what it does on each screen that has it.
 ENTER = {
-    "the watch list": "Open the sheet of the row under the cursor",
-    "the unit sheet": "Open the filter sheet of the filter under the cursor",
-    "the register": "Edit the selected row",
+    "the watch list": Key("Enter", "open", "Open the sheet of the row under the cursor", "look", 3),
+    "the unit sheet": Key(
+        "Enter", "open", "Open the filter sheet of the filter under the cursor", "look", 3
+    ),
+    "the register": Key("Enter", "edit", "Edit the selected row", "book", 3),
 }
 
 

@@ -74,7 +74,7 @@ def keys_written(binding: Binding | None, key: Key) -> str:
     return f"{key.shown}  {key.also}" if key.also else key.shown
 
 
-def key_rows(bindings: Iterable[Binding], enter: str = "") -> list[tuple[str, str, str]]:
+def key_rows(bindings: Iterable[Binding], enter: Key | None = None) -> list[tuple[str, str, str]]:
     """(keys, word, meaning) once per key, in the table's order."""
     order = {ident: n for n, ident in enumerate(KEYS)}
     rows: dict[str, tuple[int, tuple[str, str, str]]] = {}
@@ -86,8 +86,8 @@ def key_rows(bindings: Iterable[Binding], enter: str = "") -> list[tuple[str, st
         rows.setdefault(
             ident, (order.get(ident, 99), (keys_written(b, key), key.word, key.meaning))
         )
-    if enter:
-        rows["open"] = (order["open"], (KEYS["open"].shown, KEYS["open"].word, enter))
+    if enter is not None:
+        rows["enter"] = (order["go-watch"] - 1, (enter.shown, enter.word, enter.meaning))
     return [row for _, row in sorted(rows.values(), key=lambda r: r[0])]
 
 
@@ -126,11 +126,11 @@ def help_body(
         parts.append(head(title))
         parts.append(grid(rows, (1, 9, 10)))
 
-    section(f"Keys on {screen_name}", key_rows(here, ENTER.get(screen_name, "")))
+    section(f"Keys on {screen_name}", key_rows(here, ENTER.get(screen_name)))
     section("Keys anywhere", key_rows(anywhere))
     for name, bindings in elsewhere.items():
         if name != screen_name:
-            section(f"Keys on {name}", key_rows(bindings, ENTER.get(name, "")))
+            section(f"Keys on {name}", key_rows(bindings, ENTER.get(name)))
     parts.append(Text(""))
     parts.append(head("In forms"))
     parts.append(

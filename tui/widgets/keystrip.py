@@ -120,8 +120,9 @@ class KeyStrip(Widget):
             seen.add(ident)
             press = b.key.split(",")[0].strip()
             items.append(Item(press, key_of(b), active.enabled, ORDER.get(ident, 99)))
-        if getattr(screen, "HELP_NAME", "") in ENTER:
-            items.append(Item("enter", KEYS["open"], True, ORDER["open"]))
+        enter = ENTER.get(getattr(screen, "HELP_NAME", ""))
+        if enter is not None:
+            items.append(Item("enter", enter, True, ORDER["go-watch"] - 1))
         new = tuple(sorted(items, key=lambda i: i.order))
         if new != self.items:
             self.items = new
