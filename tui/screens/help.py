@@ -69,7 +69,7 @@ OTHER_SCREENS = (
 )
 
 
-def keys_written(binding: Binding | None, key: Key) -> str:
+def keys_written(key: Key) -> str:
     """'t  f2': the key as the strip writes it, and any other key for the same."""
     return f"{key.shown}  {key.also}" if key.also else key.shown
 
@@ -83,9 +83,7 @@ def key_rows(bindings: Iterable[Binding], enter: Key | None = None) -> list[tupl
             continue
         key = key_of(b)
         ident = b.id or b.action
-        rows.setdefault(
-            ident, (order.get(ident, 99), (keys_written(b, key), key.word, key.meaning))
-        )
+        rows.setdefault(ident, (order.get(ident, 99), (keys_written(key), key.word, key.meaning)))
     if enter is not None:
         rows["enter"] = (order["go-watch"] - 1, (enter.shown, enter.word, enter.meaning))
     return [row for _, row in sorted(rows.values(), key=lambda r: r[0])]

@@ -46,7 +46,7 @@ def item_text(item: Item, hidden: int) -> str:
 
 
 def line_width(items: list[Item], hidden: int) -> int:
-    return len(compose_line(items, hidden)[0])
+    return compose_line(items, hidden)[0].cell_len
 
 
 PLAIN: dict[str, Style | str] = {}

@@ -77,6 +77,7 @@ class RowTable(DataTable):
         self.flexible, self.flex_min = flexible, flex_min
         self.headers: list[tuple[str, str]] = []
         self.rows_shown: list[Row] = []
+        self.fitted_width = 0  # the width the columns were last chosen for
 
     def show(self, headers: Sequence[tuple[str, str]], rows: Sequence[Row]) -> None:
         """Fill the table: `headers` are (label, key) in order of importance."""
@@ -114,8 +115,8 @@ class RowTable(DataTable):
         return [str(c.key.value) for c in self.columns.values()]
 
     def on_resize(self, event: events.Resize) -> None:
-        if self.headers and event.size.width != getattr(self, "_fitted_width", None):
-            self._fitted_width = event.size.width
+        if self.headers and event.size.width != self.fitted_width:
+            self.fitted_width = event.size.width
             self.show(self.headers, self.rows_shown)
 
     def action_first_row(self) -> None:
