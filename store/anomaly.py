@@ -169,7 +169,7 @@ def step_up(readings: Sequence[tuple[float, float]], noise: float | None = None)
         urgent=False,
         reason=(
             f"ΔP jumped to {dp[-1]:.3g} bar where the element's trend expected about "
-            f"{expected:.3g} bar: a dirt load, after a repair or a top-up?"
+            f"{expected:.3g} bar (dirt coming in, as after a repair or a top-up)"
         ),
         advice="take a fluid sample and check recent work, top-ups and the breather",
     )

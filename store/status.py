@@ -412,11 +412,11 @@ def status_from(
     drop = anomaly.drop_without_change(series)
     if drop is not None:
         flags.append("dp-drop")
-        notes.append(f"{drop.reason}: {drop.advice}")
+        notes.append(f"{drop.reason}; {drop.advice}")
     step = anomaly.step_up(series)
     if step is not None:
         flags.append("step-up")
-        notes.append(f"{step.reason}: {step.advice}")
+        notes.append(f"{step.reason}; {step.advice}")
     cold = None
     if dp_ref is not None and pos.bypass_bar and ctx.curve and ctx.reference:
         try:

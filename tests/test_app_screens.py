@@ -201,11 +201,13 @@ async def test_preferences_change_units_and_theme(plant, tmp_path):
         await pilot.press("1")
         await settle(pilot, WatchScreen)
         table = app.screen.query_one(DataTable)
-        row = table.get_row_at(table.get_row_index("P2-RF"))
         with open_book(plant, create=False) as book:
             p2 = next(f for f in status.watch(book).filters if f.filter == "P2-RF")
         # NIST SP 811 App. B.8: 1 psi = 6894.757293168361 Pa exactly
-        assert str(row[4]) == f"{p2.dp_ref_bar * 1e5 / 6894.757293168361:.1f} psi"
+        assert (
+            str(table.get_cell("P2-RF", "dp")) == f"{p2.dp_ref_bar * 1e5 / 6894.757293168361:.1f}"
+        )
+        assert str(table.columns["dp"].label) == "ΔP ref psi"  # the header says the unit
     saved = json.loads((tmp_path / "prefs.json").read_text(encoding="utf-8"))
     assert saved["pressure"] == "psi" and saved["theme"] == "contrast"
 

@@ -35,8 +35,9 @@ from store.sheets import (
     filter_status_of,
     tag_index,
 )
-from store.timeutil import shift_at
+from store.timeutil import utc_now
 
+from .keys import bind
 from .screens.common import guarded, long_name, read_early
 from .screens.first_run import FirstRunScreen
 from .screens.help import HelpScreen
@@ -120,6 +121,13 @@ THEMES = {
     ),
 }
 SHEET_WAIT_S = 0.15  # a filter sheet read by then is shown filled, see open_kept_sheet
+HELP_SCREENS = (  # every full screen, for the help's "keys on other screens"
+    ("screens.watch", "WatchScreen"),
+    ("screens.unit_sheet", "UnitSheetScreen"),
+    ("screens.filter_sheet", "FilterSheetScreen"),
+    ("screens.shift_log", "ShiftLogScreen"),
+    ("screens.register", "RegisterScreen"),
+)
 NAV = ("go", "quick_tag", "sign_in", "quit", "entry")
 
 
@@ -130,15 +138,15 @@ class SumpbookApp(App[None]):
     MODES = {"watch": WatchScreen, "shift": shift_log_screen, "register": register_screen}
     DEFAULT_MODE = "watch"
     BINDINGS = [
-        Binding("t,f2", "quick_tag", "Tag", tooltip="Type or scan a tag", id="quick-tag"),
-        Binding("1", "go('watch')", "Watch", tooltip="The watch list", id="go-watch"),
-        Binding("2", "go('shift')", "Shifts", tooltip="The shift log", id="go-shift"),
-        Binding("3", "go('register')", "Plant", tooltip="The register", id="go-register"),
-        Binding("i", "sign_in", "Who", tooltip="Who is on shift (sign in)", id="sign-in"),
-        Binding("question_mark,f1", "help", "Help", tooltip="Help: keys and words", id="help"),
-        Binding("ctrl+p", "command_palette", "Cmds", tooltip="Every action by name", id="palette"),
-        Binding("q", "quit", "Quit", tooltip="Quit (makes a backup)", id="quit"),
-        Binding("ctrl+q", "quit_now", "Quit", show=False, priority=True, id="quit-now"),
+        bind("t,f2", "quick_tag", "quick-tag"),
+        bind("1", "go('watch')", "go-watch"),
+        bind("2", "go('shift')", "go-shift"),
+        bind("3", "go('register')", "go-register"),
+        bind("i", "sign_in", "sign-in"),
+        bind("question_mark,f1", "help", "help"),
+        bind("ctrl+p", "command_palette", "palette"),
+        bind("q", "quit", "quit"),
+        bind("ctrl+q", "quit_now", "quit-now", show=False, priority=True),
     ]
 
     demo: reactive[bool] = reactive(False)
@@ -153,12 +161,14 @@ class SumpbookApp(App[None]):
         super().__init__()
         self.book = book
         self.new_path = new_path  # a logbook asked for that does not exist yet: offer it
+        fmt.clock = plant_clock(book)  # a date in another year than today shows its year
         self.set_reactive(SumpbookApp.demo, demo)
         self.cursor_blink = cursor_blink
         self.prefs = laptop.load()
         self.statuses: dict[str, WatchRow] = {}
         self.last_message = ""
         self.backup_tried = False
+        self.quitting = False  # set on the way out: no key opens anything after it
         self.book_checked = False  # the background whole-file check has finished
         self.changes = 0  # counted by book_changed
         self.check_seconds = 0.0  # how long the last whole-file check (and preload) took
@@ -200,12 +210,7 @@ class SumpbookApp(App[None]):
             parts.append("demo plant")
         elif self.book.setting("name"):
             parts.append(str(self.book.setting("name")))
-        parts.append(f"by {self.tech or 'nobody (press i)'}")
-        try:
-            span = shift_at(self.book.now(), self.book.shift_pattern(), self.book.local_zone())
-            parts.append(f"{span.name} shift")
-        except BookError:
-            pass
+        parts.append(f"by {self.tech or 'nobody (press i)'}")  # the shift: on the watch list
         self.sub_title = " · ".join(parts)
 
     def remember_rows(self, rows: list[WatchRow]) -> None:
@@ -234,6 +239,8 @@ class SumpbookApp(App[None]):
     # ---- routing ----
 
     def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
+        if self.quitting:
+            return False  # keys typed after q (a fast typist, a scanner) open nothing
         if action in NAV and isinstance(self.screen, ModalScreen):
             return False
         if action == "help" and isinstance(self.screen, HelpScreen):
@@ -250,6 +257,8 @@ class SumpbookApp(App[None]):
 
     @guarded
     def open_sheet(self, what: str, tag: str, unit: str) -> None:
+        if self.quitting:
+            return
         if what != "filter":
             self.push_screen(_lazy("screens.unit_sheet", "UnitSheetScreen")(unit or tag))
         elif self.kept_sheet_free() and self.kept_filter_sheet.is_mounted:
@@ -313,7 +322,7 @@ class SumpbookApp(App[None]):
 
     @guarded
     def open_form(self, kind: str, tag: str = "", **preset: str) -> None:
-        if isinstance(self.screen, ModalScreen):
+        if self.quitting or isinstance(self.screen, ModalScreen):
             return
         before = self.statuses.get(tag.upper()) if tag else None
         form = _lazy(f"forms.{FORMS[kind][0]}", FORMS[kind][1])
@@ -361,8 +370,12 @@ class SumpbookApp(App[None]):
         screen = self.screen
         here = [b for b in getattr(type(screen), "BINDINGS", []) if isinstance(b, Binding)]
         name = getattr(screen, "HELP_NAME", "this screen")
-        anywhere = [b for b in self.BINDINGS if isinstance(b, Binding) and b.show]
-        self.push_screen(HelpScreen(name, here, anywhere))
+        anywhere = [b for b in self.BINDINGS if isinstance(b, Binding)]
+        elsewhere = {}
+        for module, cls in HELP_SCREENS:
+            other = _lazy(module, cls)
+            elsewhere[other.HELP_NAME] = [b for b in other.BINDINGS if isinstance(b, Binding)]
+        self.push_screen(HelpScreen(name, here, anywhere, elsewhere))
 
     def get_system_commands(self, screen: Screen) -> Any:
         """Every action of the app and of the screen, by name, in the command palette."""
@@ -424,7 +437,7 @@ class SumpbookApp(App[None]):
     def say_saved(self, result: Saved, after: WatchRow | None) -> None:
         entry, before = result.entry, result.before
         local = self.book.local_zone()
-        text = f"Saved {entry.kind} {entry.id[:8]} on {entry.target or entry.unit or 'the plant'}."
+        text = saved_text(entry)
         if after is not None:
             self.statuses[after.tag.upper()] = after
             text += " " + due_change(after, before, local)
@@ -523,6 +536,7 @@ class SumpbookApp(App[None]):
             self.notify(str(exc), severity="error")
             return
         old, self.book = self.book, book
+        fmt.clock = plant_clock(book)
         old.close()
         if is_throwaway(old.path) and old.path != path:
             discard(old.path)  # a throw-away demo or empty book left behind is gone
@@ -560,13 +574,24 @@ class SumpbookApp(App[None]):
                     timeout=15,
                 )
                 return
+        self.quitting = True
         self.exit()
 
     def action_quit_now(self) -> None:
         if not self.backup_tried:
             self.backup_tried = True
             backup_on_close(self.book)
+        self.quitting = True
         self.exit()
+
+
+def saved_text(entry: Any) -> str:
+    """'Saved reading 1a2b3c4d on P1-RF.', 'Voided entry 1a2b3c4d (void 5e6f7a8b).'"""
+    voids = getattr(entry, "voids", None)
+    if voids:
+        return f"Voided entry {voids[:8]} (the void is {entry.id[:8]})."
+    where = entry.target or entry.unit
+    return f"Saved {entry.kind} {entry.id[:8]}" + (f" on {where}." if where else ".")
 
 
 def due_change(after: WatchRow, before: Any, local: Any) -> str:
@@ -592,6 +617,13 @@ def due_change(after: WatchRow, before: Any, local: Any) -> str:
     if gained:
         text += ". New flag: " + fmt.flag_text(gained).plain
     return text
+
+
+def plant_clock(book: Book) -> Any:
+    """The book's today without asking the book again (fmt is used from worker threads,
+    and the book's connection belongs to this one): a frozen book stays frozen."""
+    frozen = book.now() if book.setting("clock") else None
+    return (lambda: frozen) if frozen is not None else utc_now
 
 
 def backup_on_close(book: Book) -> str | None:

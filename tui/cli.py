@@ -119,7 +119,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--nominal", action="store_true", help="the rating is nominal, not absolute")
     p.add_argument("--beta", type=float, help="beta ratio at the rating (ISO 16889)")
     p.add_argument("--bypass", help="bypass cracking ΔP, e.g. 3.5 or 50psi")
-    p.add_argument("--limit", help="change-limit ΔP (indicator trip point)")
+    p.add_argument("--limit", help="ΔP at which the element is changed")
     p.add_argument("--clean", help="clean-element ΔP at reference conditions")
     p.add_argument("--rated-flow", type=float, help="rated flow, L/min")
     p.add_argument("--flow", type=float, help="normal flow through it, L/min")

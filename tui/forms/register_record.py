@@ -88,12 +88,12 @@ LABELS = {
     "swap_interval_d": "Swap every d",
 }
 HINTS = {
-    "limit_bar": "indicator trip point",
+    "limit_bar": "change the element at this ΔP",
     "bypass_bar": "bypass cracking ΔP",
     "clean_bar": "new element at reference",
     "coldest_start_c": "coldest expected start",
     "target_code": "ISO 4406, e.g. 17/15/12",
-    "normal_flow_lpm": "blank: readings not flow-corrected",
+    "normal_flow_lpm": "blank: no flow correction",
     "iso_vg": "ISO 3448 grade",
 }
 NUMBER_RANGES = {

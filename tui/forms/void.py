@@ -45,10 +45,10 @@ class VoidForm(EntryForm):
             Spec(
                 "entry",
                 "Entry id",
-                self.target,
+                self.short_id(self.target),
                 [EntryIdValidator(self)],
                 required=True,
-                hint="first 6+ characters",
+                hint="its first 6 or more characters",
             ),
             Spec("reason", "Why void", "", required=True, hint="e.g. wrong filter tag"),
             *self.common_specs(),
@@ -58,7 +58,19 @@ class VoidForm(EntryForm):
     def on_mount(self) -> None:
         super().on_mount()
         self.query_one("#form-fields").mount(Static("", id="void-what", markup=False), before=0)
-        self.describe_target(self.target)
+        self.call_after_refresh(self.describe_target, self.target)
+
+    def short_id(self, entry_id: str) -> str:
+        """The id as the shift log shows it (8 characters) when that names the entry alone:
+        the whole id does not fit its field and would run into the hint beside it."""
+        if len(entry_id) <= 8:
+            return entry_id
+        try:
+            return (
+                entry_id[:8] if find_entry(self.sb.book, entry_id[:8]).id == entry_id else entry_id
+            )
+        except BookError:
+            return entry_id
 
     def on_input_changed(self, event: Input.Changed) -> None:
         if event.input.id == "f-entry":
@@ -79,4 +91,5 @@ class VoidForm(EntryForm):
             self.query_one("#void-what", Static).update(line)
 
     def build(self, v: dict[str, Any]) -> Entry:
-        return Void(voids=v["entry"], note=v["reason"], at=self.when(v["time"]), by=v["by"])
+        voids = find_entry(self.sb.book, v["entry"]).id  # the whole id, not what was typed
+        return Void(voids=voids, note=v["reason"], at=self.when(v["time"]), by=v["by"])

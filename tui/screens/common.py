@@ -22,6 +22,8 @@ from textual.worker import get_current_worker
 from store.book import Book, damaged_read, open_book
 from store.errors import BookError
 
+from ..keys import bind
+
 if TYPE_CHECKING:
     from ..app import SumpbookApp
 
@@ -130,12 +132,12 @@ class Target:
 
 
 ENTRY_BINDINGS = [
-    Binding("r", "entry('reading')", "Read", tooltip="Log a ΔP reading", id="log-reading"),
-    Binding("c", "entry('change')", "Change", tooltip="Log an element change", id="log-change"),
-    Binding("b", "entry('breather')", "Swap", tooltip="Log a breather swap", id="log-breather"),
-    Binding("o", "entry('topup')", "Top-up", tooltip="Log an oil top-up", id="log-topup"),
-    Binding("s", "entry('sample')", "Sample", tooltip="Log a sample result", id="log-sample"),
-    Binding("n", "entry('note')", "Note", tooltip="Write a note", id="log-note"),
+    bind("r", "entry('reading')", "log-reading"),
+    bind("c", "entry('change')", "log-change"),
+    bind("b", "entry('breather')", "log-breather"),
+    bind("o", "entry('topup')", "log-topup"),
+    bind("s", "entry('sample')", "log-sample"),
+    bind("n", "entry('note')", "log-note"),
 ]
 
 

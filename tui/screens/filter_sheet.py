@@ -8,16 +8,18 @@ import time
 
 from rich.text import Text
 from textual.app import ComposeResult
-from textual.binding import Binding
 from textual.containers import VerticalScroll
-from textual.widgets import DataTable, Header, Static
+from textual.widgets import Header, Static
 
 from store.sheets import FilterSheet, filter_sheet
 
+from ..keys import bind
 from ..widgets import fmt
 from ..widgets.banner import DemoBanner
 from ..widgets.keystrip import KeyStrip
 from ..widgets.plot import LEGEND, FilterPlot
+from ..widgets.rowtable import RowTable
+from ..widgets.wrapped import Wrapped
 from .common import ENTRY_BINDINGS, BookScreen, Target
 
 BASIS_WORDS = {
@@ -33,9 +35,9 @@ class FilterSheetScreen(BookScreen):
     HELP_NAME = "the filter sheet"
     AUTO_FOCUS = "#filter-body"
     BINDINGS = [
-        Binding("escape", "back", "Back", tooltip="Back to the list", id="back"),
+        bind("escape", "back", "back"),
         *ENTRY_BINDINGS,
-        Binding("u", "unit_sheet", "Unit", tooltip="Open the unit sheet", id="unit-sheet"),
+        bind("u", "unit_sheet", "unit-sheet"),
     ]
 
     def __init__(self, tag: str) -> None:
@@ -46,32 +48,20 @@ class FilterSheetScreen(BookScreen):
     def compose(self) -> ComposeResult:
         yield Header(icon="≋")
         yield DemoBanner()
-        yield Static(f"FILTER {self.tag}", id="sheet-title", classes="sheet-title", markup=False)
-        yield Static("", id="reference", markup=False)
+        yield Wrapped(f"FILTER {self.tag}", id="sheet-title", classes="sheet-title")
+        yield Wrapped(id="reference")
         with VerticalScroll(id="filter-body"):
             yield FilterPlot(id="plot")
             yield Static(LEGEND, id="legend", markup=False)
-            yield Static("", id="forecast", markup=False)
-            yield Static("", id="cold", markup=False)
-            yield Static("", id="life", markup=False)
-            yield Static("", id="notes", markup=False)
+            yield Wrapped(id="forecast")
+            yield Wrapped(id="cold")
+            yield Wrapped(id="life")
+            yield Wrapped(id="notes")
             yield Static("Element history (newest first)", classes="section", markup=False)
-            yield DataTable(id="elements", cursor_type="row")
+            yield RowTable(id="elements")
         yield KeyStrip()
 
     def on_mount(self) -> None:
-        p = fmt.p_unit(self.sb.prefs)
-        self.query_one("#elements", DataTable).add_columns(
-            "Fitted",
-            "Out",
-            "Life",
-            "Why out",
-            "Reached limit",
-            "Readings",
-            f"Peak ref {p}",
-            "Found",
-            "Next batch",
-        )
         self.query_one("#filter-body").focus()
 
     def show_tag(self, tag: str) -> None:
@@ -80,11 +70,11 @@ class FilterSheetScreen(BookScreen):
         self.tag, self.sheet, self.loaded, self.shown_stamp = tag, None, False, None
         if not self.is_mounted:
             return
-        self.query_one("#sheet-title", Static).update(f"FILTER {tag}")
+        self.query_one("#sheet-title", Wrapped).show(f"FILTER {tag}")
         for part in ("#reference", "#cold", "#life", "#notes"):
-            self.query_one(part, Static).update("")
-        self.query_one("#forecast", Static).update("reading the book…")
-        self.query_one("#elements", DataTable).clear()
+            self.query_one(part, Wrapped).show()
+        self.query_one("#forecast", Wrapped).show("reading the book…")
+        self.query_one("#elements", RowTable).clear()
         self.query_one(FilterPlot).show(None, self.sb.prefs)
         self.query_one("#filter-body", VerticalScroll).scroll_home(animate=False)
 
@@ -123,35 +113,53 @@ class FilterSheetScreen(BookScreen):
             rating = f" · {pos.rating_um:g} µm {pos.rating_basis}"
             if pos.beta_ratio:
                 rating += f", β {pos.beta_ratio:g}"
-        self.query_one("#sheet-title", Static).update(
-            f"FILTER {pos.tag} · {pos.kind} on {pos.unit}"
-            + (f" · element {pos.element}" if pos.element else "")
-            + rating
-            + ("" if pos.gauge else " · indicator only")
-        )
-        self.query_one("#reference", Static).update(
-            f"Ref {st.reference} · limit/bypass/clean "
-            + "/".join(
-                fmt.pressure(v, prefs, unit=False)
-                for v in (st.limit_bar, st.bypass_bar, st.clean_bar)
+        self.query_one("#sheet-title", Wrapped).show(
+            (
+                f"FILTER {pos.tag}",
+                f"{pos.kind} on {pos.unit}",
+                f"element {pos.element}" if pos.element else "",
+                rating.removeprefix(" · "),
+                "" if pos.gauge else "indicator only",
             )
-            + f" {fmt.p_unit(prefs)}"
+        )
+        self.query_one("#reference", Wrapped).show(
+            (
+                f"Ref {fmt.in_units(st.reference, prefs)}",
+                "limit/bypass/clean "
+                + "/".join(
+                    fmt.pressure(v, prefs, unit=False)
+                    for v in (st.limit_bar, st.bypass_bar, st.clean_bar)
+                )
+                + f" {fmt.p_unit(prefs)}",
+            )
         )
         self.query_one(FilterPlot).show(sheet, prefs)
 
-        lines = []
-        now = (
-            f"Now: {fmt.pressure(st.dp_ref_bar, prefs)} ref"
-            + (
+        lines: list[tuple[str, ...] | str] = []
+        if st.dp_ref_bar is None and st.dp_bar is None:
+            ref = "Now: no ΔP read on this element yet"
+        else:
+            ref = f"Now: {fmt.pressure(st.dp_ref_bar, prefs)} at reference" + (
                 f" ({st.percent_of_limit:.0f} % of limit)"
                 if st.percent_of_limit is not None
                 else ""
             )
-            + f" · gauge {fmt.pressure(st.dp_bar, prefs)} at {fmt.temperature(st.temp_c, prefs)}"
-            + (f" · indicator {st.indicator}" if st.indicator else "")
-            + f" · element age {fmt.age_text(st.element_age_h)}, {st.readings_since_change} readings"
+        gauge = ""
+        if st.dp_bar is not None:
+            gauge = f"gauge {fmt.pressure(st.dp_bar, prefs)}"
+            if st.temp_c is not None:
+                gauge += f" at {fmt.temperature(st.temp_c, prefs)}"
+        readings = f"{st.readings_since_change} reading" + (
+            "" if st.readings_since_change == 1 else "s"
         )
-        lines.append(now)
+        lines.append(
+            (
+                ref,
+                gauge,
+                f"indicator {st.indicator}" if st.indicator else "",
+                f"element age {fmt.age_text(st.element_age_h)}, {readings}",
+            )
+        )
         if st.due is not None:
             lines.append(f"Change due {fmt.due_text(st.due, local)}")
         else:
@@ -160,8 +168,10 @@ class FilterSheetScreen(BookScreen):
             lines.append(f"Bypass would open {fmt.due_text(st.bypass_due, local)}")
         basis = BASIS_WORDS.get(st.basis, st.basis)
         model = st.forecast.model if st.forecast and st.forecast.model else ""
-        lines.append(f"Basis: {basis}" + (f" (model: {model})" if model else ""))
-        self.query_one("#forecast", Static).update("\n".join(lines))
+        if model and model.lower() not in basis.lower():
+            basis += f" (model: {model})"
+        lines.append(f"Basis: {basis}")
+        self.query_one("#forecast", Wrapped).show(*lines)
 
         cold = st.cold
         if cold is None:
@@ -185,7 +195,7 @@ class FilterSheetScreen(BookScreen):
                     cold_text += (
                         f" (it would open below {fmt.temperature(cold.bypass_below_c, prefs)})"
                     )
-        self.query_one("#cold", Static).update(cold_text)
+        self.query_one("#cold", Wrapped).show(cold_text)
 
         life = st.life
         if life is None:
@@ -197,29 +207,40 @@ class FilterSheetScreen(BookScreen):
                 f"early{pooled}): 10 % reach the limit by {fmt.age_text(life.b10_h)}, half by "
                 f"{fmt.age_text(life.b50_h)}"
             )
-        self.query_one("#life", Static).update(life_text)
+        self.query_one("#life", Wrapped).show(life_text)
 
-        notes = Text()
+        notes: list[Text | str] = []
         if st.flags:
-            notes.append("Flags: ")
-            notes.append_text(fmt.flag_text(st.flags))
-            notes.append("\n")
-        notes.append("\n".join(st.notes))
-        self.query_one("#notes", Static).update(notes)
+            notes.append(Text("Flags: ") + fmt.flag_text(st.flags))
+        notes += [fmt.in_units(n, prefs) for n in st.notes]
+        self.query_one("#notes", Wrapped).show(*notes)
 
-        table = self.query_one("#elements", DataTable)
-        table.clear()
+        rows = []
         for i, el in enumerate(sheet.elements):
-            table.add_row(
+            cells = (
                 Text(fmt.day(el.fitted_at, local) if el.fitted_at else "before book"),
                 Text(fmt.day(el.removed_at, local) if el.removed_at else "in service"),
                 Text(fmt.age_text(el.life_h)),
                 Text(el.reason),
                 Text("yes" if el.reached_limit else ("–" if el.removed_at is None else "no")),
-                Text(str(el.readings)),
                 Text(fmt.pressure(el.peak_dp_ref_bar, prefs, unit=False)),
+                Text(str(el.readings)),
                 Text(el.condition),
                 Text(el.batch),
-                key=str(i),
             )
+            rows.append((str(i), cells))
+        self.query_one("#elements", RowTable).show(
+            [
+                ("Fitted", "fitted"),
+                ("Out", "out"),
+                ("Life", "life"),
+                ("Why out", "why"),
+                ("At limit", "limit"),
+                (f"Peak ref {fmt.p_unit(prefs)}", "peak"),
+                ("Readings", "readings"),
+                ("Found", "found"),
+                ("Next batch", "batch"),
+            ],
+            rows,
+        )
         self.loaded = True

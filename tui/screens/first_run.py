@@ -11,6 +11,8 @@ from textual.containers import Vertical
 from textual.screen import ModalScreen
 from textual.widgets import Static
 
+from ..widgets.wrapped import Wrapped
+
 DEMO_CHOICE = """\
   d   Open the demo plant: a small invented plant with a few
       months of readings, to see what the app does. A fresh copy
@@ -67,7 +69,7 @@ class FirstRunScreen(ModalScreen[str | None]):
             text = NEW_GUIDE.format(path=self.new_path, order=ORDER, demo=DEMO_CHOICE)
         with Vertical(id="first-box", classes="prompt-box"):
             yield Static(title, classes="form-title", markup=False)
-            yield Static(text, id="first-guide", markup=False)
+            yield Wrapped(text, hanging=True, id="first-guide")
 
     def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
         # A new logbook: nothing to stay in (Esc), but quitting creates nothing (q).

@@ -7,7 +7,6 @@ from typing import Any
 
 from rich.text import Text
 from textual.app import ComposeResult
-from textual.binding import Binding
 from textual.containers import Vertical
 from textual.widgets import DataTable, Header, Select, Static, TabbedContent, TabPane
 
@@ -20,9 +19,11 @@ from store.units import PRESSURE_UNITS, TEMPERATURE_UNITS, VOLUME_UNITS
 
 from ..forms.register_record import RegisterForm
 from ..render import change_text
+from ..keys import bind
 from ..widgets import fmt
 from ..widgets.banner import DemoBanner
 from ..widgets.keystrip import KeyStrip
+from ..widgets.rowtable import RowTable
 from .ask import AskScreen
 from .common import BookScreen, guarded
 
@@ -99,10 +100,10 @@ class RegisterScreen(BookScreen):
     HELP_NAME = "the register"
     AUTO_FOCUS = "#table-units"
     BINDINGS = [
-        Binding("a", "add", "Add", tooltip="Add to the register", id="reg-add"),
-        Binding("e", "edit", "Edit", tooltip="Edit the selected row", id="reg-edit"),
-        Binding("left_square_bracket", "tab(-1)", "Prev", tooltip="Previous tab", id="reg-prev"),
-        Binding("right_square_bracket", "tab(1)", "Next", tooltip="Next tab", id="reg-next"),
+        bind("a", "add", "reg-add"),
+        bind("e", "edit", "reg-edit"),
+        bind("left_square_bracket", "tab(-1)", "reg-prev"),
+        bind("right_square_bracket", "tab(1)", "reg-next"),
     ]
 
     def __init__(self) -> None:
@@ -128,7 +129,8 @@ class RegisterScreen(BookScreen):
                         yield Static("", id="shift-help", markup=False)
                         yield DataTable(id="table-shifts", cursor_type="row")
                     else:
-                        yield DataTable(id=f"table-{name}", cursor_type="row")
+                        # a long name or note gives room to the columns after it
+                        yield RowTable(id=f"table-{name}", flexible="Name", flex_min=20)
         yield Static("", id="reg-history", markup=False)
         yield KeyStrip()
 
@@ -162,15 +164,14 @@ class RegisterScreen(BookScreen):
         """The register is small and read on the main thread (no maths)."""
         prefs = self.sb.prefs
         for name, cls in TABS.items():
-            table = self.query_one(f"#table-{name}", DataTable)
-            keep = table.cursor_row
-            table.clear(columns=True)
             cols = columns(cls, prefs)
-            table.add_columns(*(h for h, _ in cols))
-            for record in register.list_all(self.sb.book, cls):
-                table.add_row(*(Text(str(get(record))) for _, get in cols), key=record.tag)
-            if keep and keep < table.row_count:
-                table.move_cursor(row=keep)
+            self.query_one(f"#table-{name}", RowTable).show(
+                [(h, h) for h, _ in cols],
+                [
+                    (record.tag, [Text(str(get(record))) for _, get in cols])
+                    for record in register.list_all(self.sb.book, cls)
+                ],
+            )
         shifts = self.query_one("#table-shifts", DataTable)
         shifts.clear(columns=True)
         shifts.add_columns("Shift", "Starts")

@@ -7,7 +7,6 @@ from pathlib import Path
 
 from rich.text import Text
 from textual.app import ComposeResult
-from textual.binding import Binding
 from textual.containers import VerticalScroll
 from textual.widgets import DataTable, Header, Static
 
@@ -18,23 +17,15 @@ from store.errors import BookError
 from store.sheets import ShiftLog, kind_counts, shift_log
 from store.timeutil import ShiftSpan, next_shift, previous_shift, shift_at, shift_named
 
+from ..keys import bind
 from ..render import describe
 from ..widgets import fmt
 from ..widgets.banner import DemoBanner
 from ..widgets.keystrip import KeyStrip
+from ..widgets.rowtable import ENTRY_COLUMNS, RowTable
 from .ask import AskScreen
 from .common import BookScreen, Target, guarded
 from .file_prompt import FilePrompt
-
-KIND_WORDS = {
-    "reading": "reading",
-    "change": "element change",
-    "topup": "top-up",
-    "breather": "breather swap",
-    "sample": "sample",
-    "note": "note",
-    "void": "void",
-}
 
 
 def export_file(path: str, dest: Path, span: ShiftSpan, prefs: CsvPrefs) -> int:
@@ -59,19 +50,13 @@ class ShiftLogScreen(BookScreen):
     HELP_NAME = "the shift log"
     AUTO_FOCUS = "#shift-entries"
     BINDINGS = [
-        Binding(
-            "left_square_bracket",
-            "step(-1)",
-            "Earlier",
-            tooltip="Previous shift",
-            id="shift-earlier",
-        ),
-        Binding("right_square_bracket", "step(1)", "Later", tooltip="Next shift", id="shift-later"),
-        Binding("full_stop", "current", "Now", tooltip="The current shift", id="shift-current"),
-        Binding("g", "go_to", "Go to", tooltip="Go to a shift by date and name", id="shift-go"),
-        Binding("x", "export", "Export", tooltip="Export this shift as CSV", id="shift-export"),
-        Binding("v", "void", "Void", tooltip="Void the selected entry", id="shift-void"),
-        Binding("n", "entry('note')", "Note", tooltip="Write a note", id="log-note"),
+        bind("left_square_bracket", "step(-1)", "shift-earlier"),
+        bind("right_square_bracket", "step(1)", "shift-later"),
+        bind("full_stop", "current", "shift-current"),
+        bind("g", "go_to", "shift-go"),
+        bind("x", "export", "shift-export"),
+        bind("v", "void", "shift-void"),
+        bind("n", "entry('note')", "log-note"),
     ]
 
     def __init__(self) -> None:
@@ -84,13 +69,12 @@ class ShiftLogScreen(BookScreen):
         yield Header(icon="≋")
         yield DemoBanner()
         yield Static("SHIFT", id="sheet-title", classes="sheet-title", markup=False)
-        yield DataTable(id="shift-entries", cursor_type="row", zebra_stripes=True)
+        yield RowTable(id="shift-entries", zebra_stripes=True, flexible="what")
         with VerticalScroll(id="handover-box"):
             yield Static("", id="handover", markup=False)
         yield KeyStrip()
 
     def on_mount(self) -> None:
-        self.query_one(DataTable).add_columns("Time", "Kind", "Target", "By", "What", "Id")
         self.query_one(DataTable).focus()
 
     def current_span(self) -> ShiftSpan:
@@ -152,20 +136,20 @@ class ShiftLogScreen(BookScreen):
             + f" · {len(log.entries)} entries"
             + (f", {voided} voided" if voided else "")
         )
-        table = self.query_one(DataTable)
-        table.clear()
+        rows = []
         for e in log.entries:
             style = "strike dim" if e.voided else ""
-            kind = KIND_WORDS.get(e.kind, e.kind) + (" VOIDED" if e.voided else "")
-            table.add_row(
+            kind = e.kind + (" VOIDED" if e.voided else "")  # the CSV's kind names
+            cells = (
                 Text(fmt.stamp(e.at, local)[11:], style=style),
                 Text(kind, style=style),
                 Text(e.target or e.unit or "", style=style),
                 Text(e.by, style=style),
-                Text(describe(e, prefs) + (f" · {e.note}" if e.note else ""), style=style),
                 Text(e.id[:8], style=style),
-                key=e.id,
+                Text(describe(e, prefs) + (f" · {e.note}" if e.note else ""), style=style),
             )
+            rows.append((e.id, cells))
+        self.query_one(RowTable).show(ENTRY_COLUMNS, rows)
         self.query_one("#handover", Static).update(self.handover_text(log))
         self.loaded = True
 
@@ -175,7 +159,7 @@ class ShiftLogScreen(BookScreen):
         text.append("HANDOVER\n", style="bold")
         counts = kind_counts(log.done)
         if counts:
-            done = ", ".join(f"{n} × {KIND_WORDS.get(k, k)}" for k, n in counts.items())
+            done = ", ".join(f"{n} × {k}" for k, n in counts.items())
             text.append(f"Done: {done}\n")
             for e in log.done:
                 if e.kind in ("change", "topup", "breather", "sample"):

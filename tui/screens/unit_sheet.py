@@ -5,7 +5,6 @@ from __future__ import annotations
 
 from rich.text import Text
 from textual.app import ComposeResult
-from textual.binding import Binding
 from textual.containers import VerticalScroll
 from textual.widgets import DataTable, Header, Sparkline, Static
 
@@ -13,10 +12,13 @@ from store.entries import Entry, Note
 from store.prefs import Prefs
 from store.sheets import UnitSheet, unit_sheet
 
+from ..keys import bind
 from ..render import describe
 from ..widgets import fmt
 from ..widgets.banner import DemoBanner
 from ..widgets.keystrip import KeyStrip
+from ..widgets.rowtable import ENTRY_COLUMNS, RowTable
+from ..widgets.wrapped import Wrapped
 from .common import ENTRY_BINDINGS, BookScreen, Target
 
 NOTE_CELLS = 30  # a note's text in the recent entries, shortened to fit 80 columns
@@ -35,11 +37,27 @@ def what_cell(entry: Entry, prefs: Prefs) -> str:
     return describe(entry, prefs)
 
 
+def sample_line(sheet: UnitSheet, day: str) -> str:
+    """'Sample 19 Nov: 16/14/11 · meets target 17/15/12 · water 115 ppm'."""
+    sample, target = sheet.sample, sheet.unit.target_code
+    assert sample is not None
+    line = f"Sample {day}: {sample.code or 'no particle code'}"
+    if sheet.sample_meets is True:
+        line += f" · meets target {target}"
+    elif sheet.sample_meets is False:
+        line += f" · DIRTIER than target: {sheet.sample_text.split(';')[0]}"
+    elif target:
+        line += f" · target {target}"
+    if sample.water_ppm is not None:
+        line += f" · water {sample.water_ppm:g} ppm"
+    return line
+
+
 class UnitSheetScreen(BookScreen):
     HELP_NAME = "the unit sheet"
     AUTO_FOCUS = "#unit-filters"
     BINDINGS = [
-        Binding("escape", "back", "Back", tooltip="Back to the list", id="back"),
+        bind("escape", "back", "back"),
         *ENTRY_BINDINGS,
     ]
 
@@ -51,35 +69,25 @@ class UnitSheetScreen(BookScreen):
     def compose(self) -> ComposeResult:
         yield Header(icon="≋")
         yield DemoBanner()
-        yield Static(f"UNIT {self.tag}", id="sheet-title", classes="sheet-title", markup=False)
+        yield Wrapped(f"UNIT {self.tag}", id="sheet-title", classes="sheet-title")
         with VerticalScroll(id="unit-body"):
-            yield Static("", id="unit-fluid", markup=False)
-            yield Static("", id="unit-sample", markup=False)
+            yield Wrapped(id="unit-fluid")
+            yield Wrapped(id="unit-sample")
             yield Static("Filters (Enter: filter sheet)", classes="section", markup=False)
-            yield DataTable(id="unit-filters", cursor_type="row")
+            yield RowTable(id="unit-filters")
             yield Static("Breathers", classes="section", markup=False)
-            yield DataTable(id="unit-breathers", cursor_type="row")
+            yield RowTable(id="unit-breathers")
             yield Static("Top-ups", classes="section", markup=False)
-            yield Static("", id="unit-topups", markup=False)
+            yield Wrapped(id="unit-topups")
             yield Sparkline([], id="topup-spark")
             yield Static("Temperatures", classes="section", markup=False)
-            yield Static("", id="unit-temps", markup=False)
+            yield Wrapped(id="unit-temps")
             yield Sparkline([], id="temp-spark")
             yield Static("Recent entries", classes="section", markup=False)
-            yield DataTable(id="unit-entries", cursor_type="row")
+            yield RowTable(id="unit-entries", flexible="what")
         yield KeyStrip()
 
     def on_mount(self) -> None:
-        p = fmt.p_unit(self.sb.prefs)
-        self.query_one("#unit-filters", DataTable).add_columns(
-            "Tag", "Kind", f"ΔP ref {p}", "Limit", "Due", "Flags"
-        )
-        self.query_one("#unit-breathers", DataTable).add_columns(
-            "Tag", "Kind", "Last swap", "Due", "Basis", "Flags"
-        )
-        self.query_one("#unit-entries", DataTable).add_columns(
-            "Time", "Kind", "Target", "By", "What", "Id"
-        )
         self.query_one("#unit-filters").focus()
 
     def reload(self) -> None:
@@ -103,65 +111,78 @@ class UnitSheetScreen(BookScreen):
         )
         if sheet.status and sheet.status.flags:
             title += " · " + fmt.flag_text(sheet.status.flags).plain
-        self.query_one("#sheet-title", Static).update(title)
+        self.query_one("#sheet-title", Wrapped).show_text(title)
 
         f = sheet.fluid
         fluid = "no fluid registered"
         if f is not None:
             fluid = f"{f.tag} {f.name}".strip()
-            if f.iso_vg:
+            if f.iso_vg and f"ISO VG {f.iso_vg}" not in fluid:
                 fluid += f", ISO VG {f.iso_vg}"
             if f.nu40_cst:
                 fluid += f", ν40 {f.nu40_cst:g} mm²/s"
             if f.nu100_cst:
                 fluid += f", ν100 {f.nu100_cst:g} mm²/s"
-        self.query_one("#unit-fluid", Static).update(
+        self.query_one("#unit-fluid", Wrapped).show_text(
             f"Fluid {fluid}\nReservoir {fmt.volume(u.reservoir_l, prefs)} · normal "
             f"{fmt.temperature(u.normal_temp_c, prefs)} · limit "
             f"{fmt.temperature(u.max_temp_c, prefs)} · coldest start "
             f"{fmt.temperature(u.coldest_start_c, prefs)}"
             + (" · hour meter" if u.hour_meter else "")
         )
-        sample = "Sample: none logged yet"
+        sample = "Sample: none logged yet" + (f" · target {u.target_code}" if u.target_code else "")
         if sheet.sample is not None:
-            verdict = {True: "MEETS target", False: "DIRTIER than target", None: ""}[
-                sheet.sample_meets
-            ]
-            sample = f"Sample {fmt.day(sheet.sample.at, local)}: {sheet.sample_text}" + (
-                f" · {verdict}" if verdict else ""
-            )
-        if u.target_code:
-            sample += f" · target {u.target_code}"
-        self.query_one("#unit-sample", Static).update(sample)
+            sample = sample_line(sheet, fmt.day(sheet.sample.at, local))
+        self.query_one("#unit-sample", Wrapped).show_text(sample)
 
-        filters = self.query_one("#unit-filters", DataTable)
-        filters.clear()
+        rows = []
         for st in sheet.filters:
             overdue = st.state in ("check-now", "past-limit", "past-bypass") or bool(
                 st.due and st.due.likely <= sheet.as_of
             )
-            filters.add_row(
+            cells = (
                 Text(st.filter),
-                Text(fmt.KIND_SHORT.get(st.kind, st.kind)),
-                Text(fmt.pressure(st.dp_ref_bar, prefs)),
-                fmt.limit_bar(st.percent_of_limit),
                 Text(fmt.due_cell(st.due, st.state, overdue, local)),
                 fmt.flag_text(st.flags),
-                key=st.filter,
+                fmt.limit_bar(st.percent_of_limit),
+                Text(fmt.pressure(st.dp_ref_bar, prefs, unit=False)),
+                Text(st.kind),
             )
-        breathers = self.query_one("#unit-breathers", DataTable)
-        breathers.clear()
+            rows.append((st.filter, cells))
+        self.query_one("#unit-filters", RowTable).show(
+            [
+                ("Tag", "tag"),
+                ("Due", "due"),
+                ("Flags", "flags"),
+                ("Limit", "limit"),
+                (f"ΔP ref {fmt.p_unit(prefs)}", "dp"),
+                ("Kind", "kind"),
+            ],
+            rows,
+        )
+        rows = []
         for b in sheet.breathers:
             fc = b.forecast
-            breathers.add_row(
+            cells = (
                 Text(b.breather),
-                Text(b.kind),
-                Text(fmt.day(fc.last_swap, local)),
                 Text(("OVERDUE " if fc.overdue else "") + fmt.day(fc.due, local)),
-                Text(f"{fc.basis}, {fc.interval_d:.0f} d"),
                 fmt.flag_text(b.flags),
-                key=b.breather,
+                Text(fmt.day(fc.last_swap, local)),
+                Text(f"{fc.basis}, {fc.interval_d:.0f} d"),
+                Text(b.kind),
             )
+            rows.append((b.breather, cells))
+        self.query_one("#unit-breathers", RowTable).show(
+            [
+                ("Tag", "tag"),
+                ("Due", "due"),
+                ("Flags", "flags"),
+                ("Last swap", "last"),
+                ("Basis", "basis"),
+                ("Kind", "kind"),
+            ],
+            rows,
+        )
 
         c = sheet.consumption
         weeks = sheet.topup_weeks_l
@@ -181,7 +202,7 @@ class UnitSheetScreen(BookScreen):
                 f"{last.fluid or ''} {how}"
             )
         topups += "\nWeekly, oldest to newest:"
-        self.query_one("#unit-topups", Static).update(topups)
+        self.query_one("#unit-topups", Wrapped).show_text(topups)
         self.query_one("#topup-spark", Sparkline).data = list(weeks)
 
         temps = sheet.temperatures
@@ -197,22 +218,23 @@ class UnitSheetScreen(BookScreen):
                 line += " · OVER LIMIT"
         else:
             line = "No temperatures logged yet"
-        self.query_one("#unit-temps", Static).update(line)
+        self.query_one("#unit-temps", Wrapped).show_text(line)
         self.query_one("#temp-spark", Sparkline).data = [r.temp_c for r in temps]
 
-        entries = self.query_one("#unit-entries", DataTable)
-        entries.clear()
+        rows = []
         for e in sheet.recent:
             style = "strike" if e.voided else ""
-            entries.add_row(
+            what = what_cell(e, prefs)
+            cells = (
                 Text(fmt.short_stamp(e.at, local), style=style),
-                Text(e.kind + (" VOID" if e.voided else ""), style=style),
+                Text(e.kind + (" VOIDED" if e.voided else ""), style=style),
                 Text(e.target or e.unit or "", style=style),
                 Text(e.by, style=style),
-                Text(what_cell(e, prefs), style=style),
                 Text(e.id[:8], style=style),
-                key=e.id,
+                Text(what, style=style),
             )
+            rows.append((e.id, cells))
+        self.query_one("#unit-entries", RowTable).show(ENTRY_COLUMNS, rows)
         self.loaded = True
 
     # ---- the cursor's target ----

@@ -6,19 +6,22 @@ from dataclasses import dataclass
 
 from rich.text import Text
 from textual.app import ComposeResult
-from textual.binding import Binding
 from textual.containers import Horizontal
-from textual.widgets import DataTable, Header, Input, Select, Static
+from textual.widgets import DataTable, Header, Input, Select
 
 from store import status, statuscache
 from store.book import Book
+from store.prefs import Prefs
 from store.register import Unit, list_all
 from store.sheets import Summary, WatchRow, row_matches, summarise, watch_rows
 from store.timeutil import shift_at
 
+from ..keys import bind
 from ..widgets import fmt
 from ..widgets.banner import DemoBanner
 from ..widgets.keystrip import KeyStrip
+from ..widgets.rowtable import RowTable
+from ..widgets.wrapped import Wrapped
 from .common import ENTRY_BINDINGS, BookScreen, Target
 
 ALL = "*"
@@ -51,7 +54,7 @@ def read_watch(book: Book, fresh: bool = False) -> WatchData:
     return WatchData(
         rows=rows,
         summary=summarise(rows, w.as_of, span.end),
-        as_of_text=fmt.short_stamp(w.as_of, local),
+        as_of_text=f"{w.as_of.astimezone(local):%H:%M}",  # the list is read anew each day
         shift_text=f"{span.name} to {span.end.astimezone(local):%H:%M}",
         areas=options,
         stale=0 if fresh else len(statuscache.stale_filters(book)),
@@ -65,15 +68,31 @@ def catch_up(book: Book) -> WatchData:
     return read_watch(book, fresh=True)
 
 
+def watch_columns(prefs: Prefs) -> list[tuple[str, str]]:
+    """The list's columns, most important first: those that do not fit the width give way
+    (the line under the list repeats the flags, unit, kind and basis)."""
+    return [
+        ("Tag", "tag"),
+        ("Due", "due"),
+        ("Limit", "limit"),
+        (f"ΔP ref {fmt.p_unit(prefs)}", "dp"),
+        ("Flags", "flags"),
+        ("Trend", "trend"),
+        ("Unit", "unit"),
+        ("Kind", "kind"),
+        ("Basis", "basis"),
+    ]
+
+
 class WatchScreen(BookScreen):
     HELP_NAME = "the watch list"
     AUTO_FOCUS = "#watch-table"
     BINDINGS = [
         *ENTRY_BINDINGS,
-        Binding("u", "unit_sheet", "Unit", tooltip="Open the unit sheet", id="unit-sheet"),
-        Binding("slash", "find", "Find", tooltip="Find by text", id="find"),
-        Binding("a", "area", "Area", tooltip="Show one area or unit", id="area"),
-        Binding("f5", "reload", "Calc", tooltip="Recompute the watch list", id="recompute"),
+        bind("u", "unit_sheet", "unit-sheet"),
+        bind("slash", "find", "find"),
+        bind("a", "area", "area"),
+        bind("f5", "reload", "recompute"),
     ]
 
     def __init__(self) -> None:
@@ -94,27 +113,14 @@ class WatchScreen(BookScreen):
                 id="area",
             )
             yield Input(placeholder="/ find: tag, unit, flag…", compact=True, id="find")
-        yield Static("reading the book…", id="summary", markup=False)
-        table: DataTable = DataTable(id="watch-table", cursor_type="row", zebra_stripes=True)
+        yield Wrapped("reading the book…", id="summary")
+        table = RowTable(id="watch-table", zebra_stripes=True, flexible="flags")
         yield table
-        yield Static("", id="detail", markup=False)
+        yield Wrapped(id="detail", max_lines=3)  # the sheet (Enter) has every note
         yield KeyStrip()
 
     def on_mount(self) -> None:
         table = self.query_one(DataTable)
-        p = fmt.p_unit(self.sb.prefs)
-        for label, key in (
-            ("Tag", "tag"),
-            ("Due", "due"),
-            ("Limit", "limit"),
-            ("Flags", "flags"),
-            (f"ΔP ref {p}", "dp"),
-            ("Trend", "trend"),
-            ("Unit", "unit"),
-            ("Kind", "kind"),
-            ("Basis", "basis"),
-        ):
-            table.add_column(label, key=key)
         table.loading = True
         self.query_one("#find", Input).cursor_blink = self.sb.cursor_blink
         table.focus()
@@ -122,7 +128,7 @@ class WatchScreen(BookScreen):
     # ---- loading ----
 
     def reload(self) -> None:
-        self.query_one("#summary", Static).update("recomputing…")
+        self.query_one("#summary", Wrapped).show("recomputing…")
         early, self.sb.early_watch = self.sb.early_watch, None
         self.read_in_thread(read_watch, self.show_data, "watch", early=early)
 
@@ -174,28 +180,29 @@ class WatchScreen(BookScreen):
         return rows
 
     def fill(self) -> None:
-        table = self.query_one(DataTable)
+        table = self.query_one(RowTable)
         keep = self.current_tag()
-        table.clear()
         prefs, local = self.sb.prefs, self.sb.book.local_zone()
         self.shown = self.visible()
+        rows = []
         for r in self.shown:
             urgent = "bold" if r.tier <= 1 else ""
             due = fmt.due_cell(r.due, r.state, r.overdue, local)
             if r.what == "filter" and not r.gauge and r.due is None and not r.overdue:
                 due = "by indicator"
-            table.add_row(
+            cells = (
                 Text(r.tag, style=urgent),
                 Text(due, style=urgent),
                 fmt.limit_bar(r.percent_of_limit),
+                Text(fmt.pressure(r.dp_ref_bar, prefs, unit=False) if r.what == "filter" else ""),
                 fmt.flag_text(r.flags),
-                Text(fmt.pressure(r.dp_ref_bar, prefs) if r.what == "filter" else ""),
                 Text(fmt.sparkline(r.trend_bar, r.limit_bar)),
                 Text(r.unit),
-                Text(fmt.KIND_SHORT.get(r.kind, r.kind) if r.what != "breather" else "breather"),
+                Text(r.kind if r.what != "breather" else "breather"),
                 Text(r.basis),
-                key=r.tag,
             )
+            rows.append((r.tag, cells))
+        table.show(watch_columns(prefs), rows)
         if keep and any(r.tag == keep for r in self.shown):
             table.move_cursor(row=table.get_row_index(keep))
         self.show_summary()
@@ -206,21 +213,22 @@ class WatchScreen(BookScreen):
         if data is None:
             return
         s = data.summary
-        text = Text()
+        phrases: list[str | Text] = []
         for count, word, loud in (
             (s.overdue, "overdue", True),
             (s.due_this_shift, "due this shift", True),
             (s.due_this_week, "in 7 days", False),
             (s.urgent, "urgent", True),
         ):
-            text.append(f"{count} {word}", style="bold reverse" if count and loud else "bold")
-            text.append(" · ")
+            phrases.append(
+                Text(f"{count} {word}", style="bold reverse" if count and loud else "bold")
+            )
         if len(self.shown) != len(data.rows):
-            text.append(f"{len(self.shown)} of {len(data.rows)} shown · ")
-        text.append(f"as of {data.as_of_text}, {data.shift_text}")
+            phrases.append(f"{len(self.shown)} of {len(data.rows)} shown")
+        phrases.append(f"{data.as_of_text}, {data.shift_text}")
         if data.stale:
-            text.append(f" · updating {data.stale} rows older than a day…", style="italic")
-        self.query_one("#summary", Static).update(text)
+            phrases.append(Text(f"updating {data.stale} rows older than a day…", style="italic"))
+        self.query_one("#summary", Wrapped).show(phrases)
 
     def current(self) -> WatchRow | None:
         table = self.query_one(DataTable)
@@ -234,20 +242,24 @@ class WatchScreen(BookScreen):
 
     def show_detail(self) -> None:
         row = self.current()
-        detail = self.query_one("#detail", Static)
+        detail = self.query_one("#detail", Wrapped)
         if row is None:
-            detail.update("Nothing to show. t: type or scan a tag · 3: register · ?: help")
+            detail.show(("Nothing to show", "t: type or scan a tag", "3: register", "?: help"))
             return
         local = self.sb.book.local_zone()
-        head = f"{row.tag} · " + (fmt.flag_text(row.flags).plain + " · " if row.flags else "")
-        head += f"{row.what} on {row.unit}"
+        kind = row.kind if row.what == "filter" else ""
+        head: list[str] = [row.tag, fmt.flag_text(row.flags).plain if row.flags else ""]
+        head.append(f"{kind} {row.what} on {row.unit}".strip())
         if row.due is not None:
             word = "change" if row.what == "filter" else "swap"
-            head += f" · {word} due {fmt.due_text(row.due, local)}"
+            head.append(f"{word} due {fmt.due_text(row.due, local)}")
         if row.basis:
-            head += f" · basis {row.basis}"
-        notes = "; ".join(row.notes) if row.notes else fmt.STATE_WORDS.get(row.state, row.state)
-        detail.update(f"{head}\n{notes}")
+            head.append(f"basis {row.basis}")
+        prefs = self.sb.prefs
+        notes = [fmt.in_units(n, prefs) for n in row.notes] or [
+            fmt.STATE_WORDS.get(row.state, row.state)
+        ]
+        detail.show(head, notes)
 
     def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
         self.show_detail()

@@ -6,8 +6,11 @@ Meaning is always in the words and numbers; styles only add emphasis.
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
-from datetime import datetime, tzinfo
+import re
+from collections.abc import Callable, Sequence
+from datetime import UTC, datetime, tzinfo
+from functools import partial
+from typing import Any
 
 from rich.text import Text
 
@@ -25,16 +28,6 @@ from tui.quantities import (  # noqa: F401 - the app's widgets take them from he
 )
 
 BLOCKS = "▁▂▃▄▅▆▇█"
-KIND_SHORT = {
-    "suction-strainer": "strainer",
-    "suction": "suction",
-    "pressure": "pressure",
-    "return": "return",
-    "offline": "off-line",
-    "desiccant": "breather",
-    "plain": "breather",
-    "unit": "unit",
-}
 STATE_WORDS = {
     "ok": "on trend",
     "check-now": "CHECK NOW",
@@ -70,25 +63,40 @@ def input_volume(value_l: float | None, prefs: Prefs) -> str:
     return f"{from_l(value_l, prefs.volume):.4g}"
 
 
-def day(moment: datetime | None, local: tzinfo) -> str:
-    return moment.astimezone(local).strftime("%d %b") if moment else "–"
+# The plant's "now" for deciding whether a date needs its year; the app sets it to its
+# book's clock (a demo or a test book may be frozen in time).
+clock: Callable[[], datetime] = partial(datetime.now, UTC)
+
+
+def _date(moment: datetime, local: tzinfo, now: datetime | None) -> str:
+    """'13 May', or '16 May 2028' when the day is in another year than today."""
+    here = moment.astimezone(local)
+    today = (now or clock()).astimezone(local)
+    return f"{here:%d %b}" if here.year == today.year else f"{here:%d %b %Y}"
+
+
+def day(moment: datetime | None, local: tzinfo, now: datetime | None = None) -> str:
+    return _date(moment, local, now) if moment else "–"
 
 
 def stamp(moment: datetime | None, local: tzinfo) -> str:
     return moment.astimezone(local).strftime("%Y-%m-%d %H:%M") if moment else "–"
 
 
-def short_stamp(moment: datetime | None, local: tzinfo) -> str:
-    return moment.astimezone(local).strftime("%d %b %H:%M") if moment else "–"
+def short_stamp(moment: datetime | None, local: tzinfo, now: datetime | None = None) -> str:
+    if not moment:
+        return "–"
+    return f"{_date(moment, local, now)} {moment.astimezone(local):%H:%M}"
 
 
-def due_cell(due: Due | None, state: str, overdue: bool, local: tzinfo) -> str:
+def due_cell(
+    due: Due | None, state: str, overdue: bool, local: tzinfo, now: datetime | None = None
+) -> str:
     """'13 May −1/+2d': the likely day, then how many days earlier or later it may come
-    (or the state in words when there is no date)."""
+    (or the state in words when there is no date); a day in another year shows its year."""
     if due is None:
         return "OVERDUE" if overdue else STATE_WORDS.get(state, state)
-    likely = due.likely.astimezone(local)
-    head = f"{likely:%d %b}"
+    head = _date(due.likely, local, now)
     if overdue:
         return f"OVERDUE {head}"
     before = math.ceil((due.likely - due.earliest).total_seconds() / 86400 - 0.01)
@@ -102,18 +110,26 @@ def due_cell(due: Due | None, state: str, overdue: bool, local: tzinfo) -> str:
     return f"{head} −{max(before, 0)}/+{max(after, 0)}d"
 
 
-def due_text(due: Due | None, local: tzinfo) -> str:
-    """'12–15 May (likely 13 May)' for lines with room; an open end says so."""
+def due_text(due: Due | None, local: tzinfo, now: datetime | None = None) -> str:
+    """'12–15 May (likely 13 May)' for lines with room; an open end says so; days in
+    another year show their year."""
     if due is None:
         return "–"
     first, likely = due.earliest.astimezone(local), due.likely.astimezone(local)
+    sure = _date(likely, local, now)
     if due.latest is None:
-        return f"from {first:%d %b} (likely {likely:%d %b}, no upper bound yet)"
+        return f"from {_date(first, local, now)} (likely {sure}, no upper bound yet)"
     last = due.latest.astimezone(local)
     if first.date() == last.date():
-        return f"{likely:%d %b}"
-    left = f"{first:%d %b}" if first.month != last.month else f"{first:%d}"
-    return f"{left}–{last:%d %b} (likely {likely:%d %b})"
+        return sure
+    end = _date(last, local, now)
+    if first.year != last.year:
+        left = _date(first, local, now)
+    elif first.month != last.month:
+        left = f"{first:%d %b}"
+    else:
+        left = f"{first:%d}"
+    return f"{left}–{end} (likely {sure})"
 
 
 def flag_text(flags: Sequence[str]) -> Text:
@@ -160,3 +176,67 @@ def age_text(hours: float | None) -> str:
 def plain(value: object) -> Text:
     """A table cell that is never read as markup."""
     return Text("" if value is None else str(value))
+
+
+def phrase_lines(
+    console: Any, width: int, phrases: Sequence[str | Text], indent: int = 2
+) -> list[Text]:
+    """Phrases joined by ' · ', wrapped between phrases, not inside one (a phrase longer
+    than the line wraps at its spaces); the lines after the first are indented."""
+    width = max(width, 10)
+    out: list[Text] = []
+    line = Text()
+    for phrase in (p if isinstance(p, Text) else Text(p) for p in phrases if p):
+        if line.plain and len(line.plain) + 3 + len(phrase.plain) <= width:
+            line.append(" · ")
+            line.append_text(phrase)
+            continue
+        if line.plain:
+            out.append(line)
+            line = Text(" " * indent)
+        line.append_text(phrase)
+        if len(line.plain) > width:
+            lead = len(line.plain) - len(line.plain.lstrip())
+            parts = line[lead:].wrap(console, width - indent)
+            for i, part in enumerate(parts[:-1]):
+                out.append(Text(" " * (lead if i == 0 else indent)) + part)
+            line = Text(" " * indent) + parts[-1]
+    if line.plain.strip():
+        out.append(line)
+    return out
+
+
+def hanging_lines(console: Any, width: int, text: str) -> list[Text]:
+    """Lines laid out by hand ('  d   Open the demo…') that wrap under their own text when
+    the width is short, never back to the left edge."""
+    width = max(width, 20)
+    out: list[Text] = []
+    for line in text.splitlines():
+        if len(line) <= width:
+            out.append(Text(line))
+            continue
+        hang = _HANG.match(line).group(1)  # type: ignore[union-attr]
+        if len(hang) > width // 2:
+            hang = hang[: len(hang) - len(hang.lstrip())]
+        for i, part in enumerate(Text(line[len(hang) :]).wrap(console, width - len(hang))):
+            out.append(Text(hang if i == 0 else " " * len(hang)) + part)
+    return out
+
+
+_HANG = re.compile(r"^(\s*(?:\S{1,6}\s{2,})?)")
+
+
+_QUANTITY = re.compile(r"(?<![\w.])(-?\d+(?:\.\d+)?) ?(bar|°C)(?![\w/²])")
+
+
+def in_units(text: str, prefs: Prefs) -> str:
+    """A line the book wrote in bar and °C (notes, reasons, the reference label), with each
+    pressure and temperature in the user's units."""
+
+    def convert(match: re.Match[str]) -> str:
+        value = float(match.group(1))
+        if match.group(2) == "bar":
+            return pressure(value, prefs)
+        return temperature(value, prefs)
+
+    return _QUANTITY.sub(convert, text)
