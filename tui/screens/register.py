@@ -18,8 +18,8 @@ from store.timeutil import local_text
 from store.units import PRESSURE_UNITS, TEMPERATURE_UNITS, VOLUME_UNITS
 
 from ..forms.register_record import RegisterForm
-from ..render import change_text
 from ..keys import bind
+from ..render import change_text
 from ..widgets import fmt
 from ..widgets.banner import DemoBanner
 from ..widgets.keystrip import KeyStrip
