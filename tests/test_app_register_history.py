@@ -66,6 +66,8 @@ async def test_the_unit_sheet_shows_a_notes_text_shortened(plant):
         app.open_sheet("unit", "P1", "P1")
         await settle(pilot, UnitSheetScreen)
         entries = app.screen.query_one("#unit-entries", DataTable)
+        labels = [str(c.label) for c in entries.columns.values()]
         row = [str(cell) for cell in entries.get_row_at(0)]  # newest first
-        assert row[1] == "note" and row[4].startswith("hose at the clamp")
-        assert row[4].endswith("…") and len(row[4]) <= 30  # no wider than other kinds' lines
+        kind, what = row[labels.index("Kind")], row[labels.index("What")]
+        assert kind == "note" and what.startswith("hose at the clamp")
+        assert what.endswith("…") and len(what) <= 30  # no wider than other kinds' lines

@@ -373,7 +373,7 @@ def _pace_book(tmp_path, current_life_h: float):
             limit_bar=PACE_LIMIT,
             bypass_bar=3.0,
             clean_bar=PACE_CLEAN,
-            reading_interval_h=100_000,
+            reading_interval_h=17_520,
         ),
     )
     t = T0
@@ -430,7 +430,7 @@ def _meter_book(tmp_path):
     register.add(
         book,
         FilterPosition(tag="M1-R", unit="M1", kind="return", bypass_bar=3.5, limit_bar=2.5,
-                       clean_bar=0.3, reading_interval_h=100_000),
+                       clean_bar=0.3, reading_interval_h=17_520),
     )  # fmt: skip
     journal.log(book, ElementChange(filter="M1-R", hours=1000, by="AB", at=T0))
     journal.log_many(

@@ -457,7 +457,7 @@ def book_for(folder: Path, run: Run, history: Sequence[Run], logs: dict) -> tupl
     _cli(db, "register", "fluid", "RIG", "--vg", "32")
     _cli(db, "register", "unit", "RIG", "--fluid", "RIG")
     _cli(db, "register", "filter", "RIG-F", "--unit", "RIG", "--kind", "return",
-         "--limit", f"{LIMIT_PSI:g}psi", "--every", "100000")  # fmt: skip
+         "--limit", f"{LIMIT_PSI:g}psi", "--every", "17520")  # fmt: skip
     rows = []
     t = BOOK_T0
     for r in (*history, run):
