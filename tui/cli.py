@@ -168,6 +168,13 @@ def build_parser() -> argparse.ArgumentParser:
     when.add_argument("--from", dest="from_", metavar="TIME", help="from this time (ISO 8601)")
     p.add_argument("--to", metavar="TIME", help="up to this time (with --from; default now)")
     p.add_argument("-o", "--output", type=Path, help="CSV file to write (default: stdout)")
+    p.add_argument(
+        "--bom",
+        action=argparse.BooleanOptionalAction,
+        default=None,
+        help="start with UTF-8's byte-order mark, so that a spreadsheet reads ν, °C, µm "
+        "right (default: yes with -o, no on stdout)",
+    )
 
     p = sub.add_parser("import", help="read entries from a CSV file (all or nothing)")
     p.add_argument("file", type=Path)

@@ -12,7 +12,7 @@ from typing import TYPE_CHECKING, Any
 from store import journal, register
 from store import prefs as laptop
 from store.book import Book, default_path, open_book
-from store.csvio import Prefs as CsvPrefs
+from store.csvcolumns import Prefs as CsvPrefs
 from store.csvio import import_csv
 from store.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp, Void
 from store.errors import BookError
@@ -318,7 +318,7 @@ def cmd_status(args: argparse.Namespace) -> int:
 
 
 def cmd_export(args: argparse.Namespace) -> int:
-    from store.csvexport import write_span
+    from store.csvexport import BOM, export_file, write_span
 
     prefs = laptop.load()
     with _book(args) as book:
@@ -342,22 +342,15 @@ def cmd_export(args: argparse.Namespace) -> int:
             start, end = span.start, span.end
         csv_prefs = CsvPrefs(prefs.pressure, prefs.temperature, prefs.volume)
         if args.output:
-            out_path: Path = args.output
-            tmp = out_path.with_name(out_path.name + ".part")
-            try:
-                with tmp.open("w", encoding="utf-8", newline="") as out:
-                    count = write_span(out, book, start, end, csv_prefs, local, pattern)
-                tmp.replace(out_path)
-            except OSError as exc:
-                tmp.unlink(missing_ok=True)
-                raise BookError(f"cannot write {out_path}: {exc.strerror}") from exc
-            except BaseException:
-                tmp.unlink(missing_ok=True)  # a read that failed half-way leaves no file
-                raise
+            count = export_file(
+                book, args.output, start, end, csv_prefs, local, pattern, bom=args.bom is not False
+            )
             console(stderr=True).print(
-                f"{count} {'entry' if count == 1 else 'entries'} written to {out_path}"
+                f"{count} {'entry' if count == 1 else 'entries'} written to {args.output}"
             )
         else:
+            if args.bom:
+                sys.stdout.write(BOM)
             write_span(sys.stdout, book, start, end, csv_prefs, local, pattern)
     return 0
 
