@@ -35,6 +35,7 @@ from store.sheets import (
     filter_status_of,
     tag_index,
 )
+from store.text import inert_line
 from store.timeutil import shift_at
 
 from .screens.common import guarded, long_name, read_early
@@ -188,7 +189,7 @@ class SumpbookApp(App[None]):
         if self.demo:
             parts.append("demo plant")
         elif self.book.setting("name"):
-            parts.append(str(self.book.setting("name")))
+            parts.append(inert_line(str(self.book.setting("name"))))
         parts.append(f"by {self.tech or 'nobody (press i)'}")
         try:
             span = shift_at(self.book.now(), self.book.shift_pattern(), self.book.local_zone())

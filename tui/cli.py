@@ -12,6 +12,7 @@ from pathlib import Path
 from store import journal
 from store.book import ENV_DB, damaged_read, default_path
 from store.errors import BookError
+from store.text import inert
 
 from . import commands
 
@@ -217,12 +218,12 @@ def main(argv: Sequence[str] | None = None) -> int:
         try:
             return run_app(args.db)
         except BookError as exc:
-            print(f"sumpbook: {exc}", file=sys.stderr)
+            print(f"sumpbook: {inert(str(exc))}", file=sys.stderr)
             return EXIT_BAD_INPUT
     try:
         return run(args)
     except BookError as exc:
-        print(f"sumpbook: {exc}", file=sys.stderr)
+        print(f"sumpbook: {inert(str(exc))}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except UnicodeError:
         print(
@@ -232,7 +233,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         )
         return EXIT_BAD_INPUT
     except sqlite3.DatabaseError as exc:  # a read met a damaged page (writes are checked first)
-        print(f"sumpbook: {damaged_read(exc, args.db or default_path())}", file=sys.stderr)
+        print(
+            f"sumpbook: {inert(str(damaged_read(exc, args.db or default_path())))}", file=sys.stderr
+        )
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         return 130
@@ -243,7 +246,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         if os.environ.get("SUMPBOOK_DEBUG"):
             raise
         print(
-            f"sumpbook: unexpected error ({type(exc).__name__}: {exc}); nothing more was "
+            f"sumpbook: unexpected error ({type(exc).__name__}: {inert(str(exc))}); nothing more was "
             "written. Run again with SUMPBOOK_DEBUG=1 for the details.",
             file=sys.stderr,
         )

@@ -17,6 +17,7 @@ from store.csvio import import_csv
 from store.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp, Void
 from store.errors import BookError
 from store.register import Breather, FilterPosition, Fluid, Technician, Unit
+from store.text import inert, json_inert
 from store.timeutil import parse_time, previous_shift, shift_at, shift_named
 from store.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
 
@@ -33,6 +34,14 @@ def console(stderr: bool = False) -> Console:
     if stderr:
         return Console(stderr=True)
     return Console(highlight=False, width=None if sys.stdout.isatty() else 200)
+
+
+def say(text: str, stderr: bool = False) -> None:
+    """Print one line as written: no markup read, control and escape characters of stored
+    text made visible (`store.text.inert`)."""
+    from rich.text import Text
+
+    console(stderr).print(Text(inert(text)))
 
 
 def _render() -> Any:
@@ -74,7 +83,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
     with create_demo(path, force=args.force) as book:
         units = len(register.list_all(book, Unit))
         entries = journal.count(book)
-    console().print(f"demo plant written to {path}: {units} units, {entries} entries")
+    say(f"demo plant written to {path}: {units} units, {entries} entries")
     return 0
 
 
@@ -95,7 +104,7 @@ def cmd_register(args: argparse.Namespace) -> int:
             if any(len(p) != 2 for p in pattern):
                 raise BookError("give shifts as NAME=HH:MM, e.g. early=06:00")
             shifts = register.set_shifts(book, pattern, by)  # type: ignore[arg-type]
-            console().print("shifts: " + ", ".join(f"{s.name} from {s.starts}" for s in shifts))
+            say("shifts: " + ", ".join(f"{s.name} from {s.starts}" for s in shifts))
             return 0
         if what == "change":
             return _register_change(book, args, by)
@@ -153,7 +162,7 @@ def cmd_register(args: argparse.Namespace) -> int:
                 swap_interval_d=args.every,
             )
         added = register.add(book, record, by)
-        console().print(f"registered {what} {added.tag}")
+        say(f"registered {what} {added.tag}")
     return 0
 
 
@@ -181,7 +190,7 @@ def _register_change(book: Book, args: argparse.Namespace, by: str) -> int:
             changes[name] = register.parse_field(cls, name, text)
     updated = register.update(book, cls, args.tag, changes, by)
     for key in changes:
-        console().print(f"{updated.tag} {key}: {getattr(current, key)} -> {getattr(updated, key)}")
+        say(f"{updated.tag} {key}: {getattr(current, key)} -> {getattr(updated, key)}")
     return 0
 
 
@@ -277,9 +286,9 @@ def cmd_log(args: argparse.Namespace) -> int:
         else:
             entry = Void(voids=args.id, **{**common, "note": args.reason})
         saved = journal.log(book, entry)
-        console().print(_render().saved_line(book, saved, prefs))
+        say(_render().saved_line(book, saved, prefs))
         if kind in ("change", "breather"):
-            console().print(_render().CAUTION_SHORT)
+            say(_render().CAUTION_SHORT)
     return 0
 
 
@@ -309,7 +318,7 @@ def cmd_status(args: argparse.Namespace) -> int:
             # One line, no indent: json's C encoder does it (an indent means the pure-Python
             # one, ten times slower on a big plant); pipe it to a pretty-printer to read it.
             sys.stdout.write(
-                json.dumps(status.to_json(watch, book.local_zone()), ensure_ascii=False)
+                json_inert(json.dumps(status.to_json(watch, book.local_zone()), ensure_ascii=False))
             )
             sys.stdout.write("\n")
         else:
@@ -345,8 +354,9 @@ def cmd_export(args: argparse.Namespace) -> int:
             count = export_file(
                 book, args.output, start, end, csv_prefs, local, pattern, bom=args.bom is not False
             )
-            console(stderr=True).print(
-                f"{count} {'entry' if count == 1 else 'entries'} written to {args.output}"
+            say(
+                stderr=True,
+                text=f"{count} {'entry' if count == 1 else 'entries'} written to {args.output}",
             )
         else:
             if args.bom:
@@ -362,7 +372,7 @@ def cmd_import(args: argparse.Namespace) -> int:
         raise BookError(f"cannot read {args.file}: {exc.strerror}") from exc
     with _book(args) as book:
         result = import_csv(book, data, book.local_zone())
-    console().print(
+    say(
         f"imported {result.added} entries"
         + (f"; {result.skipped} were in the book already" if result.skipped else "")
     )
@@ -386,7 +396,7 @@ def cmd_prefs(args: argparse.Namespace) -> int:
                 changes["tech"] = register.get(book, Technician, changes["tech"]).tag
         current = laptop.save(current, **changes)
     for key, value in current.__dict__.items():
-        console().print(f"{key} = {value}")
+        say(f"{key} = {value}")
     return 0
 
 
@@ -406,7 +416,7 @@ def cmd_plant(args: argparse.Namespace) -> int:
                     zone(value)
                 book.set_setting(key, value)
         for key in ("name", "timezone", "backup_keep"):
-            console().print(f"{key} = {book.setting(key, '') or '(this computer' + chr(39) + 's)'}")
+            say(f"{key} = {book.setting(key, '') or '(this computer' + chr(39) + 's)'}")
     return 0
 
 
@@ -418,7 +428,7 @@ def cmd_backup(args: argparse.Namespace) -> int:
 
     with _book(args) as book:
         dest = copy_to(book.conn, args.dest)
-    console().print(f"backup written to {dest}")
+    say(f"backup written to {dest}")
     return 0
 
 
@@ -427,7 +437,7 @@ def cmd_restore(args: argparse.Namespace) -> int:
 
     path = args.db or default_path()
     kept = restore(Path(args.file), path)
-    console().print(
+    say(
         f"restored {args.file} into {path}"
         + (f"; the previous logbook is kept as {kept}" if kept else "")
     )
@@ -439,9 +449,9 @@ def cmd_merge(args: argparse.Namespace) -> int:
 
     with _book(args) as book:
         report = merge(book, Path(args.other))
-    console().print(report.summary())
+    say(report.summary())
     for conflict in report.conflicts:
-        console().print(f"  conflict: {conflict}")
+        say(f"  conflict: {conflict}")
     return 0 if not report.conflicts else 1
 
 
@@ -450,5 +460,5 @@ def cmd_rebuild(args: argparse.Namespace) -> int:
 
     with _book(args) as book:
         count = rebuild(book)
-    console().print(f"status rebuilt for {count} filters")
+    say(f"status rebuilt for {count} filters")
     return 0

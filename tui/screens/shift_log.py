@@ -145,16 +145,16 @@ class ShiftLogScreen(BookScreen):
         for e in log.entries:
             style = "strike dim" if e.voided else ""
             kind = KIND_WORDS.get(e.kind, e.kind) + (" VOIDED" if e.voided else "")
-            table.add_row(
+            cells = (
                 Text(fmt.stamp(e.at, local)[11:], style=style),
                 Text(kind, style=style),
                 Text(e.target or e.unit or "", style=style),
                 Text(e.by, style=style),
                 Text(describe(e, prefs) + (f" · {e.note}" if e.note else ""), style=style),
                 Text(e.id[:8], style=style),
-                key=e.id,
             )
-        self.query_one("#handover", Static).update(self.handover_text(log))
+            table.add_row(*(fmt.shown(c) for c in cells), key=e.id)
+        self.query_one("#handover", Static).update(fmt.shown(self.handover_text(log)))
         self.loaded = True
 
     def handover_text(self, log: ShiftLog) -> Text:

@@ -184,7 +184,7 @@ class WatchScreen(BookScreen):
             due = fmt.due_cell(r.due, r.state, r.overdue, local)
             if r.what == "filter" and not r.gauge and r.due is None and not r.overdue:
                 due = "by indicator"
-            table.add_row(
+            cells = (
                 Text(r.tag, style=urgent),
                 Text(due, style=urgent),
                 fmt.limit_bar(r.percent_of_limit),
@@ -194,8 +194,8 @@ class WatchScreen(BookScreen):
                 Text(r.unit),
                 Text(fmt.KIND_SHORT.get(r.kind, r.kind) if r.what != "breather" else "breather"),
                 Text(r.basis),
-                key=r.tag,
             )
+            table.add_row(*(fmt.shown(c) for c in cells), key=r.tag)
         if keep and any(r.tag == keep for r in self.shown):
             table.move_cursor(row=table.get_row_index(keep))
         self.show_summary()
@@ -247,7 +247,7 @@ class WatchScreen(BookScreen):
         if row.basis:
             head += f" · basis {row.basis}"
         notes = "; ".join(row.notes) if row.notes else fmt.STATE_WORDS.get(row.state, row.state)
-        detail.update(f"{head}\n{notes}")
+        detail.update(fmt.shown(f"{head}\n{notes}"))
 
     def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
         self.show_detail()
