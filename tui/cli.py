@@ -200,6 +200,11 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("file", type=Path)
     p = sub.add_parser("merge", help="bring in the entries and register of another laptop's book")
     p.add_argument("other", type=Path)
+    p = sub.add_parser(
+        "check",
+        help="check the whole logbook file for damage (a damaged book refuses writes until "
+        "restored)",
+    )
     p = sub.add_parser("rebuild", help="rebuild derived tables (status cache) from the entries")
     return parser
 

@@ -424,10 +424,10 @@ def cmd_plant(args: argparse.Namespace) -> int:
 
 
 def cmd_backup(args: argparse.Namespace) -> int:
-    from store.backup import copy_to
+    from store.backup import copy_holding_lock
 
     with _book(args) as book:
-        dest = copy_to(book.conn, args.dest)
+        dest = copy_holding_lock(book.conn, book.path, args.dest)
     say(f"backup written to {dest}")
     return 0
 
@@ -453,6 +453,15 @@ def cmd_merge(args: argparse.Namespace) -> int:
     for conflict in report.conflicts:
         say(f"  conflict: {conflict}")
     return 0 if not report.conflicts else 1
+
+
+def cmd_check(args: argparse.Namespace) -> int:
+    from store.book import full_check
+
+    path = Path(args.db or default_path())
+    full_check(path)  # damage: one line naming the latest backup, and writes refuse the book
+    say(f"ok: {path} passed the full integrity check")
+    return 0
 
 
 def cmd_rebuild(args: argparse.Namespace) -> int:
