@@ -142,3 +142,42 @@ async def test_the_watch_list_and_the_shift_log_show_stored_text_inert(plant):
             assert_inert(cell)
         assert_inert(str(app.screen.query_one("#handover", Static).render()))
         assert_inert(app.export_screenshot())
+
+
+async def test_a_technician_named_like_markup_does_not_stop_the_sign_in(plant):
+    # A name such as '[/]' read as markup stops Textual with a MarkupError.
+    from textual.widgets import OptionList
+
+    from tui.screens.sign_in import SignInScreen
+    from tui.screens.watch import WatchScreen
+
+    conn = sqlite3.connect(plant)
+    with conn:
+        conn.execute("UPDATE technicians SET name = ? WHERE tag = 'CD'", ["[/] \x1b[2J"])
+    conn.close()
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        app.action_sign_in()
+        await pilot.pause()
+        assert isinstance(app.screen, SignInScreen)
+        options = app.screen.query_one(OptionList)
+        prompts = [str(options.get_option_at_index(i).prompt) for i in range(options.option_count)]
+        assert any("[/] \u241b[2J" in p for p in prompts)
+        assert_inert(app.export_screenshot())
+
+
+def test_the_apps_line_filter_takes_out_what_got_past_the_screens():
+    from rich.segment import Segment
+    from rich.style import Style
+    from textual.color import Color
+
+    from tui.widgets.inert import INERT_LINES
+
+    bold = Style(bold=True)
+    line = [Segment("ok "), Segment("\x1b]0;x\x07\x9b2J\u202e", bold), Segment("end")]
+    out = INERT_LINES.apply(line, Color(0, 0, 0))
+    assert "".join(s.text for s in out) == "ok ]0;x2Jend"
+    assert out[1].style == bold
+    plain = [Segment("nothing odd")]
+    assert INERT_LINES.apply(plain, Color(0, 0, 0)) is plain

@@ -5,6 +5,7 @@ from __future__ import annotations
 import gc
 import sqlite3
 import time
+from collections.abc import Sequence
 from concurrent.futures import Future
 from dataclasses import replace
 from importlib import import_module
@@ -14,6 +15,7 @@ from typing import TYPE_CHECKING, Any
 from textual import work
 from textual.app import App, SystemCommand
 from textual.binding import Binding
+from textual.filter import LineFilter
 from textual.reactive import reactive
 from textual.screen import ModalScreen, Screen
 from textual.theme import Theme
@@ -44,6 +46,7 @@ from .screens.help import HelpScreen
 from .screens.sign_in import SignInScreen
 from .screens.watch import WatchData, WatchScreen, read_watch
 from .widgets import fmt
+from .widgets.inert import INERT_LINES
 from .widgets.palette import BookCommands
 
 if TYPE_CHECKING:
@@ -183,6 +186,11 @@ class SumpbookApp(App[None]):
             self.push_screen(FirstRunScreen(), self.first_run_choice)
         elif not self.tech:
             self.action_sign_in()
+
+    def get_line_filters(self) -> Sequence[LineFilter]:
+        """Textual's filters, then ours: no control character of any text reaches the
+        terminal (tui/widgets/inert.py)."""
+        return [*super().get_line_filters(), INERT_LINES]
 
     def update_subtitle(self) -> None:
         parts = []

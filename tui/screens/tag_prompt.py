@@ -11,6 +11,8 @@ from textual.widgets.option_list import Option
 
 from store.sheets import TagHit, match_tags
 
+from ..widgets import fmt
+
 
 class TagPrompt(ModalScreen[TagHit | None]):
     """Enter takes the exact tag, or the only match, or the highlighted one."""
@@ -45,7 +47,10 @@ class TagPrompt(ModalScreen[TagHit | None]):
         options = self.query_one(OptionList)
         options.clear_options()
         options.add_options(
-            [Option(f"{h.tag:<16} {h.label}", id=str(i)) for i, h in enumerate(self.matches)]
+            [
+                Option(fmt.shown(f"{h.tag:<16} {h.label}"), id=str(i))
+                for i, h in enumerate(self.matches)
+            ]
         )
         if self.matches:
             options.highlighted = 0
