@@ -226,16 +226,19 @@ DAMAGE_SUFFIX = ".damaged"
 
 
 def damage_marker(path: Path) -> Path:
-    """The file beside the logbook that says a check found it damaged (what it found, one
-    line). Every write of every process refuses the book while it is there; a restore, or a
-    full check that passes (`sumpbook check`), removes it."""
+    """The file beside the logbook that says a check found it damaged: which file (device and
+    inode, so a new file put in its place is not taken for it) and what was found, one line.
+    Every write of every process refuses the book while it is there; a restore, or a full
+    check that passes (`sumpbook check`), removes it."""
     return Path(f"{path}{DAMAGE_SUFFIX}")
 
 
 def record_damage(path: Path, problem: str) -> None:
     """Note that a check found `path` damaged (best effort: a read-only folder keeps none)."""
+    device, inode = _file_id(path) or (0, 0)
+    line = f"{device}:{inode} " + problem.replace("\n", " ")[:500]
     try:
-        damage_marker(path).write_text(problem.replace("\n", " ")[:500] + "\n", encoding="utf-8")
+        damage_marker(path).write_text(line + "\n", encoding="utf-8")
     except OSError:
         pass
 
@@ -248,14 +251,18 @@ def clear_damage(path: Path) -> None:
 
 
 def refuse_known_damage(path: Path) -> None:
-    """Raise NotALogbook when a check has found the book damaged."""
+    """Raise NotALogbook when a check has found this very file damaged."""
     marker = damage_marker(path)
     try:
-        found = marker.read_text(encoding="utf-8").strip()
+        text = marker.read_text(encoding="utf-8").strip()
     except FileNotFoundError:
         return
     except (OSError, UnicodeDecodeError):
-        found = "see " + str(marker)
+        text = "? see " + str(marker)
+    which, _, found = text.partition(" ")
+    here = "{}:{}".format(*(_file_id(path) or (0, 0)))
+    if which != here and which != "?":
+        return  # another file stands there now (a new book, a copy put back)
     raise NotALogbook(
         f"{path} is damaged (a check found: {found}); nothing was saved; {backup_hint(Path(path))}"
     )
@@ -424,6 +431,7 @@ def open_book(
         raise BookError(f"no logbook at {path}: run 'sumpbook demo' or register a unit first")
     if new:
         path.parent.mkdir(parents=True, exist_ok=True)
+        clear_damage(path)  # a record of a file that stood here before (inodes are reused)
     readonly = readonly or (not new and not writable(path))
     with _no_new_side_files(path):
         version = 0 if new else inspect(path, readonly)

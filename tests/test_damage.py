@@ -120,10 +120,19 @@ def test_check_finds_it_and_every_later_write_refuses_until_restored(damaged, ca
 def test_check_of_a_sound_book_says_ok_and_clears_an_old_record(tmp_path, capsys):
     path = tmp_path / "book.db"
     _logbook(path)
-    damage_marker(path).write_text("quick check: stale record\n")
+    device, inode = path.stat().st_dev, path.stat().st_ino
+    damage_marker(path).write_text(f"{device}:{inode} quick check: stale record\n")
     code, out, _ = run(capsys, "--db", str(path), "check")
     assert code == 0 and out.strip() == f"ok: {path} passed the full integrity check"
     assert not damage_marker(path).exists()
+
+
+def test_a_record_of_another_file_is_not_held_against_a_new_book(damaged, capsys):
+    assert run(capsys, "--db", str(damaged), "check")[0] == 2
+    damaged.unlink()  # a new book in its place (a demo, a fresh start)
+    assert run(capsys, "--db", str(damaged), "register", "tech", "EF")[0] == 0
+    code, _, err = run(capsys, "--db", str(damaged), "log", "note", "first", "--by", "EF")
+    assert code == 0, err
 
 
 def test_a_process_that_opened_the_book_before_the_check_refuses_too(damaged, capsys):
