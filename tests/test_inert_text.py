@@ -181,3 +181,21 @@ def test_the_apps_line_filter_takes_out_what_got_past_the_screens():
     assert out[1].style == bold
     plain = [Segment("nothing odd")]
     assert INERT_LINES.apply(plain, Color(0, 0, 0)) is plain
+
+
+def test_an_export_to_the_terminal_is_inert_and_to_a_pipe_exact(plant, monkeypatch):
+    import io
+
+    plant_hostile_text(plant)
+
+    class Terminal(io.StringIO):
+        def isatty(self) -> bool:
+            return True
+
+    for out, exact in ((Terminal(), False), (io.StringIO(), True)):
+        monkeypatch.setattr("sys.stdout", out)
+        assert main(["--db", str(plant), "export", "--from", "2000-01-01"]) == 0
+        text = out.getvalue()
+        assert ("[bold]loud[/bold]" in text) and (HOSTILE in text) == exact
+        if not exact:
+            assert_inert(text)

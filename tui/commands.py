@@ -359,10 +359,23 @@ def cmd_export(args: argparse.Namespace) -> int:
                 text=f"{count} {'entry' if count == 1 else 'entries'} written to {args.output}",
             )
         else:
+            out: Any = _OnScreen(sys.stdout) if sys.stdout.isatty() else sys.stdout
             if args.bom:
-                sys.stdout.write(BOM)
-            write_span(sys.stdout, book, start, end, csv_prefs, local, pattern)
+                out.write(BOM)
+            write_span(out, book, start, end, csv_prefs, local, pattern)
     return 0
+
+
+class _OnScreen:
+    """CSV text written to a terminal: a person reads it, so stored text is shown inert
+    (`store.text.inert`; line ends as plain line breaks). A file or a pipe gets the exact
+    bytes, so that import gives back what was exported."""
+
+    def __init__(self, out: Any) -> None:
+        self.out = out
+
+    def write(self, text: str) -> int:
+        return self.out.write(inert(text.replace("\r\n", "\n")))
 
 
 def cmd_import(args: argparse.Namespace) -> int:
