@@ -142,11 +142,26 @@ def test_a_process_that_opened_the_book_before_the_check_refuses_too(damaged, ca
             journal.log(book, Note(unit="P1", note="after the check", by="AB"))
 
 
-async def test_the_apps_background_check_stops_saves(damaged, monkeypatch, tmp_path):
+async def _note_refused(app, pilot) -> str:
+    """Save a note through the form; returns the form's message (the form must stay)."""
     from textual.widgets import Input, Static
 
-    from tests.test_app_plant import make_app, settle, write_prefs
     from tui.forms.note import NoteForm
+
+    app.open_form("note", "P1")
+    await pilot.pause()
+    form = app.screen
+    assert isinstance(form, NoteForm)
+    form.query_one("#f-note", Input).value = "filter housing weeps"
+    await pilot.press("ctrl+s")
+    await pilot.pause()
+    assert isinstance(app.screen, NoteForm)  # the form stays, with what was typed
+    assert form.query_one("#f-note", Input).value == "filter housing weeps"
+    return str(form.query_one("#form-msg", Static).render())
+
+
+async def test_a_check_run_while_the_app_is_open_stops_its_saves(damaged, monkeypatch, tmp_path):
+    from tests.test_app_plant import make_app, settle, write_prefs
     from tui.screens.watch import WatchScreen
 
     monkeypatch.setenv("SUMPBOOK_CONFIG", str(write_prefs(tmp_path)))
@@ -154,20 +169,32 @@ async def test_the_apps_background_check_stops_saves(damaged, monkeypatch, tmp_p
     app = make_app(damaged)
     async with app.run_test(size=(80, 24)) as pilot:
         await settle(pilot, WatchScreen)
+        assert app.book_checked  # the app's own (quick) check passed: this damage is deeper
+        assert main(["--db", str(damaged), "check"]) == 2  # in a terminal beside the app
+        assert "damaged" in await _note_refused(app, pilot)
+    app.book.close()
+    assert _check_count(damaged) == count
+
+
+async def test_the_apps_background_check_records_what_it_finds(tmp_path, monkeypatch, capsys):
+    from tests.test_app_plant import make_app, settle, write_prefs
+    from tests.test_corrupt import _noise, _overwrite, _root_page
+    from tui.screens.watch import WatchScreen
+
+    monkeypatch.setenv("SUMPBOOK_CONFIG", str(write_prefs(tmp_path)))
+    path = tmp_path / "book.db"
+    _logbook(path)
+    offset, _ = _root_page(path, "entries")
+    _overwrite(path, offset + 12, _noise(40))
+    app = make_app(path)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
         assert app.book_checked
         messages = [n.message for n in app._notifications]
         assert any("damaged" in m and "sumpbook restore" in m for m in messages)
-        app.open_form("note", "P1")
-        await pilot.pause()
-        form = app.screen
-        assert isinstance(form, NoteForm)
-        form.query_one("#f-note", Input).value = "filter housing weeps"
-        await pilot.press("ctrl+s")
-        await pilot.pause()
-        assert isinstance(app.screen, NoteForm)  # the form stays, with what was typed
-        assert "damaged" in str(form.query_one("#form-msg", Static).render())
+        assert "damaged" in await _note_refused(app, pilot)
     app.book.close()
-    assert _check_count(damaged) == count
+    assert damage_marker(path).exists()  # another process refuses without checking again
 
 
 def _check_count(path: Path) -> int:

@@ -22,7 +22,7 @@ from textual.theme import Theme
 
 from store import prefs as laptop
 from store import register
-from store.book import Book, default_path, full_check, open_book
+from store.book import Book, deep_check, default_path, open_book
 from store.demo import create_demo, demo_path
 from store.entries import BreatherSwap, ElementChange, Reading
 from store.errors import BookError
@@ -445,7 +445,7 @@ class SumpbookApp(App[None]):
     def check_book(self, path: Path) -> None:
         started = time.perf_counter()
         try:
-            full_check(path)  # damage found here is recorded: every save refuses the book
+            deep_check(path)  # damage found here is recorded: every save refuses the book
         except BookError as exc:
             self.call_from_thread(
                 self.notify,
