@@ -117,3 +117,20 @@ def test_the_backup_command_holds_the_book_while_it_copies(tmp_path, book, monke
     other.close()
     with pytest.raises(BookError, match="exists already"):
         original(book.conn, dest)
+
+
+def test_a_book_open_on_a_file_that_was_replaced_refuses_to_write(tmp_path, book):
+    # What a restore of a damaged book does: a new file takes the old one's name. A program
+    # that still has the old file open would write into a file no one sees again.
+    _fill(book, 5)
+    copy = rolling_backup(book.conn, book.path, "on-close")
+    new = tmp_path / "new.db"
+    new.write_bytes(copy.read_bytes())
+    os.replace(new, book.path)
+    with pytest.raises(BookError, match="was replaced") as refused:
+        journal.log(book, Note(unit="P1", note="into the old file", by="AB"))
+    assert "nothing was saved" in str(refused.value)
+    book.close()
+    with open_book(book.path) as again:  # opened again, it writes
+        journal.log(again, Note(unit="P1", note="into the new file", by="AB"))
+        assert journal.count(again) == 6
