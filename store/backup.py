@@ -78,6 +78,28 @@ def copy_to(conn: sqlite3.Connection, dest: Path) -> Path:
     return dest
 
 
+def copy_holding_lock(conn: sqlite3.Connection, book_path: Path, dest: Path) -> Path:
+    """`copy_to` while another connection holds the book's write lock: a save under way is
+    waited for (busy timeout), saves meanwhile wait for the copy, and the copy holds every
+    save reported before it. A book this process cannot write is copied as it stands."""
+    from .book import _connect, writable, write_error
+
+    if not writable(Path(book_path)):
+        return copy_to(conn, dest)
+    lock = _connect(Path(book_path))
+    try:
+        try:
+            lock.execute("BEGIN IMMEDIATE")
+        except sqlite3.Error as exc:
+            raise write_error(exc, Path(book_path)) from exc
+        try:
+            return copy_to(conn, dest)
+        finally:
+            lock.execute("ROLLBACK")
+    finally:
+        lock.close()
+
+
 def rolling_backups(book_path: Path) -> list[Path]:
     """The rolling copies of the logbook at `book_path`, oldest first."""
     folder = backup_dir(book_path)
@@ -173,8 +195,15 @@ def restore(file: Path, book_path: Path) -> Path | None:
 
     The current logbook (if any) is first kept as `<name>-backups/<name>-before-restore-…db`,
     which rolling backups never delete; returns that path (None when there was no logbook).
-    A healthy logbook is overwritten through the backup API, so a sumpbook open on it at the
-    same time sees the change whole; a damaged one is kept byte for byte and replaced.
+
+    A healthy logbook is overwritten through the backup API, which holds the book's write
+    lock from its first step to its commit; the kept copy is read under that lock, after the
+    first step. So a save by another program either committed before (it is in the kept
+    copy), or waits for the lock (busy timeout) and lands in the restored book, or gives up
+    after the timeout and says nothing was saved: nothing reported saved is lost. A sumpbook
+    open on it at the same time sees the change whole. A damaged one is kept byte for byte
+    and replaced (a program that still has the old file open refuses to write to it, see
+    `Book.atomic`).
     """
     file, book_path = Path(file), Path(book_path)
     if _same_file(file, book_path):
@@ -184,16 +213,8 @@ def restore(file: Path, book_path: Path) -> Path | None:
         kept = None
         if book_path.exists() and book_path.stat().st_size > 0:
             kept = backup_dir(book_path) / (f"{book_path.stem}-{KEPT_BEFORE_RESTORE}-{_stamp()}.db")
-            healthy = _healthy(book_path)
-            if healthy:
-                from .book import _connect
-
-                current = _connect(book_path, readonly=True)
-                try:
-                    copy_to(current, kept)
-                finally:
-                    current.close()
-                _overwrite(source, book_path)
+            if _healthy(book_path):
+                _overwrite(source, book_path, kept)
             else:
                 _keep_raw(book_path, kept)
                 _replace(source, book_path)
@@ -201,24 +222,57 @@ def restore(file: Path, book_path: Path) -> Path | None:
             _replace(source, book_path)
     finally:
         source.close()
-    from .book import forget_check
+    from .book import clear_damage, forget_check
 
     forget_check(book_path)  # another file now: the next write checks it again
+    clear_damage(book_path)
     return kept
 
 
-def _overwrite(source: sqlite3.Connection, book_path: Path) -> None:
-    """Copy `source` into the live logbook file as one write transaction."""
-    from .book import BUSY_TIMEOUT_MS, write_error
+RESTORE_STEP_PAGES = 1  # the first step must not finish the copy: the kept copy comes after it
+
+
+def _overwrite(source: sqlite3.Connection, book_path: Path, kept: Path) -> None:
+    """Keep the live logbook as `kept`, then copy `source` into it, as one write transaction
+    that holds the book's write lock from before the kept copy is read to the end."""
+    from .book import BUSY_TIMEOUT_MS, _connect, write_error
 
     target = sqlite3.connect(book_path, timeout=BUSY_TIMEOUT_MS / 1000)
+    problems: list[BaseException] = []
+
+    def keep_current(status: int, remaining: int, total: int) -> None:
+        # Called after each step; after the first, this connection holds the write lock (the
+        # copy so far is not committed: readers see the book as it stands, writers wait).
+        if problems or kept.exists():
+            return
+        if remaining == 0:  # the copy is already whole: too late to keep what was there
+            problems.append(BookError("the restore could not keep the current logbook first"))
+            raise problems[-1]
+        try:
+            current = _connect(book_path, readonly=True)
+            try:
+                copy_to(current, kept)
+            finally:
+                current.close()
+        except BaseException as exc:
+            problems.append(exc)
+            raise
+
     try:
-        source.backup(target)
+        source.backup(target, pages=RESTORE_STEP_PAGES, progress=keep_current)
         ok = target.execute("PRAGMA quick_check").fetchone()[0]
     except sqlite3.Error as exc:
+        if problems:  # the kept copy failed: the backup was ended, nothing was committed
+            raise problems[0] from exc
         raise write_error(exc, book_path) from exc
+    except BaseException:
+        if problems:
+            raise problems[0] from None
+        raise
     finally:
         target.close()
+    if problems:
+        raise problems[0]
     if ok != "ok":
         raise BookError(f"{book_path} did not check out after the restore ({ok})")
 

@@ -1,30 +1,29 @@
-"""The shift log of a span of time as CSV, fast enough for a year of a plant-sized book.
+"""The one shift-log exporter: the CSV of a span of time, fast enough for a year of a
+plant-sized book.
 
-`write_span` writes byte for byte what `csvio.write_csv` writes for the entries
-`journal.read(book, since=start, until=end)` returns (tests/test_csvexport.py holds it to
-that), without an entry object, a dict or a `csv` call per row: one query of plain tuples
-in time order (the columns a reading needs; see below for the rest); each cell made ready for
-the file once per distinct value (neutralised as `csvio.neutralise` does, quoted as
-`csv.writer` does); the shift and the UTC offset kept while they hold; each filter's reference
-condition worked out once. Anything unusual (a stamp not in the book's own form, an hour
-holding a change of offset, a reading the normalising maths would refuse) is done the slow,
-plain way for that row.
+The columns, how each value becomes a cell and how import reads it back are the table of
+`store/csvcolumns.py`; this module writes that table's cells without an entry object, a dict
+or a `csv` call per row: one query of plain tuples in time order (the columns a reading
+needs; see below for the rest); each cell made ready for the file once per distinct value
+(quoted as `csv.writer` does); the shift and the UTC offset kept while they hold; each
+filter's reference condition worked out once. Anything unusual (a stamp not in the book's own
+form, an hour holding a change of offset, a reading the normalising maths would refuse) is
+done the slow, plain way for that row. tests/test_csvexport.py holds it byte for byte to the
+plain entry-by-entry writer kept in tests/csv_oracle.py.
+
+One process: a span once shared with a forked second process measured 0.8x (slower) on a busy
+2-core machine, so the fork went.
 """
 
 from __future__ import annotations
 
 import csv
 import io
-import multiprocessing
 import os
 import re
-import shutil
 import sqlite3
-import sys
-import tempfile
-import threading
+import stat
 from collections.abc import Callable, Iterable, Iterator, Sequence
-from concurrent.futures import ProcessPoolExecutor
 from contextlib import contextmanager
 from dataclasses import dataclass, fields
 from datetime import UTC, datetime, timedelta, tzinfo
@@ -34,12 +33,13 @@ from typing import IO, Any
 
 from .book import Book
 from .conditions import FilterContext, contexts, normalise
-from .csvio import FORMULA_START, NUMBER_COLUMNS, Prefs, _num
-from .entries import KINDS, TARGET_COLUMN, Reading
+from .csvcolumns import COLUMNS, FORMULA_START, VALUE_COLUMNS, Prefs, reference_cell
+from .csvcolumns import number_text as _num
+from .entries import KINDS, TARGET_COLUMN, Reading, entry_columns
 from .errors import BookError
 from .journal import parse_stamp
 from .timeutil import format_utc, iso_local, shift_at
-from .units import from_bar, from_c, from_l, pressure_key, temperature_key, to_bar, volume_key
+from .units import from_bar, pressure_key, temperature_key, to_bar
 
 # Reading a column costs even when it is NULL, and the later in the table row the more, so
 # the span query reads only what a reading needs (readings are nearly every entry); the columns
@@ -60,20 +60,12 @@ _READING_COLUMNS = (
     "flow_lpm",
     "hours",
 )
-_OTHER_COLUMNS = (
-    "breather",
-    "reason",
-    "condition",
-    "batch",
-    "volume_l",
-    "fluid",
-    "filtered_um",
-    "c4_per_ml",
-    "c6_per_ml",
-    "c14_per_ml",
-    "code",
-    "water_ppm",
-    "voids",
+# every other column of `entries` an entry kind has (from the kinds' dataclasses)
+_OTHER_COLUMNS = tuple(
+    sorted(
+        {name for cls in KINDS.values() for name in entry_columns(cls)}
+        - {*_READING_COLUMNS, "logged"}
+    )
 )
 # column -> its place in a row: the span query's row, then the other columns
 _COL = {name: i for i, name in enumerate((*_READING_COLUMNS, *_OTHER_COLUMNS))}
@@ -86,30 +78,24 @@ _ID, _AT, _KIND, _FILTER, _DP, _TEMP, _FLOW = (
     _COL[c] for c in ("id", "at_utc", "kind", "filter", "dp_bar", "temp_c", "flow_lpm")
 )
 _is_stamp = re.compile(r"[0-9]{4}-[0-9]{2}-[0-9]{2}T[0-9]{2}:[0-9]{2}:[0-9]{2}Z").fullmatch
-_TEXT_FIELDS = ("indicator", "reason", "condition", "batch", "code", "voids", "fluid")
 _UNSEEN = object()
 _MEMO_SIZE = 50_000  # distinct values remembered per column
 _INF = float("inf")
 _BATCH = 4096  # lines written to the file at a time
 
 
-def _span_sql(
-    start: str | None, end: str | None, upto: int | None = None, select: str = _SELECT
-) -> tuple[str, list[Any]]:
+def _span_sql(start: str | None, end: str | None) -> tuple[str, list[Any]]:
     """The SQL and parameters for every entry in [start, end) (stored stamps; None leaves
     that end open), ordered as `journal.read` orders them (time, then the order they were
-    written); `upto`: entries written up to that rowid only (what the other process of the
-    same export saw when it began)."""
+    written)."""
     where: list[str] = []
     params: list[Any] = []
-    for bound, test in ((start, "e.at_utc >= ?"), (end, "e.at_utc < ?"), (upto, "+e.rowid <= ?")):
+    for bound, test in ((start, "e.at_utc >= ?"), (end, "e.at_utc < ?")):
         if bound is not None:
             where.append(test)
             params.append(bound)
-    sql = select + (" WHERE " + " AND ".join(where) if where else "")
-    if select is _SELECT:
-        sql += " ORDER BY e.at_utc, e.rowid"
-    return sql, params
+    sql = _SELECT + (" WHERE " + " AND ".join(where) if where else "")
+    return sql + " ORDER BY e.at_utc, e.rowid", params
 
 
 def canonical_stamp(text: str) -> str:
@@ -125,19 +111,19 @@ def csv_line(cells: Sequence[str]) -> str:
     return buffer.getvalue()
 
 
-def csv_field(text: str) -> str:
-    """A text cell ready for the line: `csvio.neutralise`, then quoted when it holds a comma,
-    a quote or a line break (what `csv.writer` quotes; it then does the quoting itself)."""
-    if text.startswith(FORMULA_START):
-        text = "'" + text
+def quote(text: str) -> str:
+    """A cell as `csv.writer` puts it in the line: quoted when it holds a comma, a quote or a
+    line break."""
     if '"' in text or "," in text or "\n" in text or "\r" in text:
         return csv_line([text, ""])[:-3]  # a second, empty cell: a lone "" is written quoted
     return text
 
 
-def text_cell(value: Any) -> str:
-    """An optional text column's cell (csvio writes str() of the value)."""
-    return csv_field(value if type(value) is str else str(value))
+def csv_field(text: str) -> str:
+    """A text cell ready for the line: neutralised (`csvcolumns.neutralise`), then quoted."""
+    if text.startswith(FORMULA_START):
+        text = "'" + text
+    return quote(text)
 
 
 def remember(memo: dict[Any, Any], key: Any, value: Any) -> Any:
@@ -208,7 +194,7 @@ class FilterReference:
     ν_ref/ν, over Q/Q_ref when both flows are known), with the position's constants taken
     once and ν_ref/ν remembered per temperature."""
 
-    def __init__(self, tag: str, ctx: FilterContext, pressure: str) -> None:
+    def __init__(self, tag: str, ctx: FilterContext, pressure: str, temperature: str = "C") -> None:
         self.tag, self.ctx, self.pressure = tag, ctx, pressure
         self.bar_per_unit = to_bar(1.0, pressure)  # the number from_bar divides by
         self.ratios: dict[float, float | str | None] = {}
@@ -221,7 +207,7 @@ class FilterReference:
         self.nu_ref_cst = ctx.reference.nu_ref_cst
         self.flow_ref_lpm = ctx.reference.flow_ref_lpm
         self.labels = {
-            (temp, flow): csv_field(reference_text(ctx, temp, flow))
+            (temp, flow): csv_field(reference_text(ctx, temp, flow, temperature))
             for temp in (False, True)
             for flow in (False, True)
         }
@@ -283,12 +269,14 @@ class FilterReference:
         return cell, self.labels[n.temp_assumed, n.flow_assumed]
 
 
-def reference_text(ctx: FilterContext, temp_assumed: bool, flow_assumed: bool) -> str:
-    """The reference cell as `csvio.export_rows` words it."""
+def reference_text(
+    ctx: FilterContext, temp_assumed: bool, flow_assumed: bool, temperature: str = "C"
+) -> str:
+    """The reference cell: the condition (its temperature in the user's unit) and what was
+    assumed."""
     assumed = [w for w, a in (("temp", temp_assumed), ("flow", flow_assumed)) if a]
-    return ctx.reference.label + (  # type: ignore[union-attr]
-        f"; {' and '.join(assumed)} assumed normal" if assumed else ""
-    )
+    label = reference_cell(ctx.reference.label, ctx.unit.normal_temp_c, temperature)  # type: ignore[union-attr]
+    return label + (f"; {' and '.join(assumed)} assumed normal" if assumed else "")
 
 
 @dataclass(frozen=True)
@@ -316,38 +304,32 @@ class KindPlan:
 
 
 def kind_plans(prefs: Prefs) -> dict[str, KindPlan]:
-    """A plan per entry kind, from its dataclass fields: the cells `csvio.export_rows` fills.
-    Columns with few distinct values (tags, words, gauge steps) remember their cells; a
-    column has one memo however many kinds use it."""
-    p, t, v = (
-        pressure_key(prefs.pressure),
-        temperature_key(prefs.temperature),
-        volume_key(prefs.volume),
-    )
-    values: dict[str, tuple[str, Callable[[Any], str]]] = {  # field -> (cell, its text)
-        "dp_bar": (f"dp_{p}", lambda x: _num(from_bar(x, p))),
-        "temp_c": (f"temp_{t}", lambda x: _num(from_c(x, t), 2)),
-        "volume_l": (f"volume_{v}", lambda x: _num(from_l(x, v), 3)),
-    }
-    values |= {name: (name, _num) for name in NUMBER_COLUMNS}
-    values |= {name: (name, text_cell) for name in _TEXT_FIELDS}
+    """A plan per entry kind: the cells of the column table (`csvcolumns.COLUMNS`) its
+    dataclass has fields for. Columns with few distinct values (tags, words, gauge steps)
+    remember their cells; a column has one memo however many kinds use it."""
+    keys = prefs.keys()
     memos: dict[str, dict[Any, str]] = {name: {} for name in _COL}
     index = {name: i for i, name in enumerate(prefs.columns())}
+    headers = {c.name: c.header(keys) for c in COLUMNS}
     plans = {}
     for kind, cls in KINDS.items():
-        # csvio neutralises these as they are, not through str(): a value that is not text
-        # fails here as it fails there
-        cells = [(name, name, csv_field) for name in ("by", "unit", "note")]
-        target = TARGET_COLUMN.get(cls.target_table or "")
-        if target is not None:
-            cells.append(("target", target, csv_field))
         names = {f.name for f in fields(cls)}
-        cells += [(cell, name, make) for name, (cell, make) in values.items() if name in names]
         blank = [""] * len(index)
         blank[index["kind"]] = csv_field(kind)
-        plan = tuple((index[cell], _COL[name], memos[name], make) for cell, name, make in cells)
-        other = any(column >= len(_READING_COLUMNS) for _, column, _, _ in plan)
-        plans[kind] = KindPlan(blank, index["id"], plan, issubclass(cls, Reading), other)
+        cells = []
+        target = TARGET_COLUMN.get(cls.target_table or "")
+        if target is not None:
+            cells.append((index["target"], _COL[target], memos[target], csv_field))
+        for column in VALUE_COLUMNS:
+            if column.field in names:
+                cell = index[headers[column.name]]
+                blank[cell] = quote(column.empty(kind))
+                write = column.writer(keys)
+                cells.append(
+                    (cell, _COL[column.field], memos[column.field], lambda x, w=write: quote(w(x)))
+                )
+        other = any(column >= len(_READING_COLUMNS) for _, column, _, _ in cells)
+        plans[kind] = KindPlan(blank, index["id"], tuple(cells), issubclass(cls, Reading), other)
     return plans
 
 
@@ -355,22 +337,17 @@ class SpanLines:
     """Rows of the span query -> CSV lines."""
 
     def __init__(
-        self,
-        book: Book,
-        prefs: Prefs,
-        local: tzinfo,
-        pattern: list[tuple[str, str]],
-        upto: int | None = None,
+        self, book: Book, prefs: Prefs, local: tzinfo, pattern: list[tuple[str, str]]
     ) -> None:
         columns = prefs.columns()
         self.header = csv_line(columns)
         self.plans = kind_plans(prefs)
         self.clock, self.shifts = LocalClock(local), ShiftNames(pattern, local)
         self.pressure = pressure_key(prefs.pressure)
+        self.temperature = temperature_key(prefs.temperature)
         self.contexts = contexts(book)
         self.conn = book.conn
-        voids = _SELECT_VOIDS if upto is None else f"{_SELECT_VOIDS} AND rowid <= {int(upto)}"
-        self.voided_by = dict(book.conn.execute(voids).fetchall())
+        self.voided_by = dict(book.conn.execute(_SELECT_VOIDS).fetchall())
         self.references: dict[str, FilterReference | None] = {}
         self.time, self.shift = columns.index("time"), columns.index("shift")
         self.void = columns.index("voided_by")
@@ -414,15 +391,10 @@ class SpanLines:
     def _reference(self, tag: str) -> FilterReference | None:
         """The filter's reference; None when the register has no such filter (as csvio)."""
         ctx = self.contexts.get(tag)
-        self.references[tag] = None if ctx is None else FilterReference(tag, ctx, self.pressure)
+        self.references[tag] = (
+            None if ctx is None else FilterReference(tag, ctx, self.pressure, self.temperature)
+        )
         return self.references[tag]
-
-
-# A span of at least this many entries is written by two processes (on a machine with two
-# cores or more): the first half here, the second half in a child process, joined in order.
-# Below it, starting the child (a new interpreter) costs more than it saves.
-SECOND_PROCESS_FROM = 150_000
-SECOND_SHARE = 0.46  # of the entries: the child opens the book and reads the register first
 
 
 def write_span(
@@ -433,50 +405,94 @@ def write_span(
     prefs: Prefs,
     local: tzinfo,
     pattern: list[tuple[str, str]],
-    processes: int | None = None,
 ) -> int:
-    """Write the entries logged in [start, end) as the shift-log CSV; returns how many.
-
-    The same text as `csvio.write_csv(out, book, journal.read(book, since=start,
-    until=end), prefs, local, pattern)`; None leaves that end of the span open.
-    `processes`: at most this many (default: 2 where the machine has two cores).
-    """
+    """Write the entries logged in [start, end) as the shift-log CSV (header first); returns
+    how many. None leaves that end of the span open."""
     start_text = None if start is None else format_utc(start)
     end_text = None if end is None else format_utc(end)
-    if processes is None:
-        processes = min(2, os.cpu_count() or 1)
-    if not _can_fork():
-        processes = 1
     with read_snapshot(book.conn):
         span_lines = SpanLines(book, prefs, local, pattern)
         out.write(span_lines.header)
-        cut = _halfway(book, start_text, end_text) if processes > 1 else None
-        if cut is None:
-            sql, params = _span_sql(start_text, end_text)
-            return _write_lines(out, span_lines.lines(book.conn.execute(sql, params)))
-        upto = book.conn.execute("SELECT max(rowid) FROM entries").fetchone()[0]
-        context = multiprocessing.get_context("fork")  # the child needs no imports again
-        with tempfile.TemporaryDirectory(prefix="sumpbook-export-") as folder:
-            part = Path(folder) / "second-half.csv"
-            with ProcessPoolExecutor(1, mp_context=context) as pool:
-                later = pool.submit(
-                    _write_part, str(book.path), cut, end_text, upto, prefs, local, pattern,
-                    str(part),
-                )  # fmt: skip
-                sql, params = _span_sql(start_text, cut)
-                count = _write_lines(out, span_lines.lines(book.conn.execute(sql, params)))
-                count += later.result()
-            with part.open(encoding="utf-8", newline="") as second:
-                shutil.copyfileobj(second, out, 1 << 20)
+        sql, params = _span_sql(start_text, end_text)
+        return _write_lines(out, span_lines.lines(book.conn.execute(sql, params)))
+
+
+BOM = "\ufeff"  # UTF-8's byte-order mark: an office spreadsheet then reads ν, °C, µm as written
+
+
+def export_file(
+    book: Book,
+    dest: Path,
+    start: datetime | None,
+    end: datetime | None,
+    prefs: Prefs,
+    local: tzinfo,
+    pattern: list[tuple[str, str]],
+    bom: bool = True,
+) -> int:
+    """`write_span` into the regular file `dest` (made or replaced); returns the count.
+
+    The lines go to `<dest>.part` beside it, which then replaces `dest` in one rename: a
+    reader of `dest` sees the old file or the whole new one. A symlink, pipe, device or
+    folder at `dest` is refused with one line and left as it is. Any failure seen here
+    removes the `.part`; a `.part` left by an export that was killed is replaced by the next
+    export to the same file.
+    """
+    dest = Path(dest)
+    refuse_odd_destination(dest)
+    part = dest.with_name(dest.name + ".part")
+    try:
+        refuse_odd_destination(part)
+        part.unlink(missing_ok=True)  # a stale one of a killed export
+        flags = os.O_WRONLY | os.O_CREAT | os.O_EXCL | getattr(os, "O_NOFOLLOW", 0)
+        with open(os.open(part, flags, 0o666), "w", encoding="utf-8", newline="") as out:
+            if bom:
+                out.write(BOM)
+            count = write_span(out, book, start, end, prefs, local, pattern)
+            out.flush()
+            os.fsync(out.fileno())
+        refuse_odd_destination(dest)  # nothing was put there meanwhile
+        os.replace(part, dest)
+    except OSError as exc:
+        _remove(part)
+        raise BookError(f"cannot write {dest}: {exc.strerror or exc}") from exc
+    except BaseException:
+        _remove(part)  # a read that failed half-way leaves no file
+        raise
     return count
 
 
-def _can_fork() -> bool:
-    """A second process by fork: only on Linux (macOS has fork, but its system libraries are
-    not safe across one; Windows has none), and only from a process with no other thread (a
-    fork copies one thread and whatever locks the others held: the app's exports, which run
-    in a worker thread, stay in one process)."""
-    return sys.platform.startswith("linux") and threading.active_count() == 1
+def refuse_odd_destination(path: Path) -> None:
+    """Only a regular file (or nothing yet) may be written over."""
+    try:
+        mode = os.lstat(path).st_mode
+    except FileNotFoundError:
+        return
+    except OSError as exc:
+        raise BookError(f"cannot write {path}: {exc.strerror or exc}") from exc
+    if stat.S_ISREG(mode):
+        return
+    what = (
+        "a symbolic link"
+        if stat.S_ISLNK(mode)
+        else "a folder"
+        if stat.S_ISDIR(mode)
+        else "a pipe"
+        if stat.S_ISFIFO(mode)
+        else "a device or socket"
+    )
+    raise BookError(
+        f"{path} is {what}, not a regular file: nothing was written; export writes only to a "
+        "regular file (give a new file name or the file's own path)"
+    )
+
+
+def _remove(path: Path) -> None:
+    try:
+        if stat.S_ISREG(os.lstat(path).st_mode):
+            os.unlink(path)
+    except OSError:
+        pass
 
 
 def _write_lines(out: IO[str], lines: Iterator[str]) -> int:
@@ -485,42 +501,6 @@ def _write_lines(out: IO[str], lines: Iterator[str]) -> int:
         out.write("\r\n".join(batch) + "\r\n")
         count += len(batch)
     return count
-
-
-def _halfway(book: Book, start: str | None, end: str | None) -> str | None:
-    """The stored stamp that splits the span in two, SECOND_SHARE of its entries in the
-    second part (which begins with it), or None when the span is too small to share out."""
-    sql, params = _span_sql(start, end, select="SELECT count(*) FROM entries e")
-    count = book.conn.execute(sql, params).fetchone()[0]
-    if count < SECOND_PROCESS_FROM:
-        return None
-    sql, params = _span_sql(start, end)
-    sql = sql.replace(_SELECT, "SELECT e.at_utc FROM entries e", 1) + " LIMIT 1 OFFSET ?"
-    cut = book.conn.execute(sql, [*params, round(count * (1 - SECOND_SHARE))]).fetchone()[0]
-    return None if start is not None and cut <= start else cut
-
-
-def _write_part(
-    path: str,
-    start: str,
-    end: str | None,
-    upto: int,
-    prefs: Prefs,
-    local: tzinfo,
-    pattern: list[tuple[str, str]],
-    dest: str,
-) -> int:
-    """In the child process: the lines of [start, end) as they stood at rowid `upto`, without
-    the header, into the file `dest`."""
-    from .book import open_book
-
-    # Read-only: a forked child must never write. This process keeps its read transaction
-    # open until the child is done, so the file cannot be checkpointed past what both read.
-    with open_book(path, create=False, readonly=True) as book, read_snapshot(book.conn):
-        span_lines = SpanLines(book, prefs, local, pattern, upto)
-        sql, params = _span_sql(start, end, upto)
-        with open(dest, "w", encoding="utf-8", newline="") as out:
-            return _write_lines(out, span_lines.lines(book.conn.execute(sql, params)))
 
 
 @contextmanager

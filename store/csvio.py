@@ -1,9 +1,7 @@
-"""The shift log as CSV: export, and import back (all or nothing).
+"""The shift log as CSV, read back: import (all or nothing).
 
-Columns (in this order; units in the header names, times ISO 8601 with offset):
-see Prefs.columns and README "CSV shift log". Every cell that is not a number we wrote
-ourselves and that a spreadsheet would run as a formula (leading =, +, -, @, tab, CR) is
-written with a leading apostrophe; import takes it off again.
+The columns, how each cell is written and how it is read back, are one table in
+`store/csvcolumns.py` (README "CSV shift log"); `store/csvexport.py` writes them.
 
 Import is all or nothing: the whole file is read and checked first, every problem is
 reported with its line number, and one transaction writes it. Nothing is built into SQL:
@@ -16,192 +14,21 @@ import codecs
 import csv
 import io
 import uuid
-from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, fields, replace
 from datetime import tzinfo
-from typing import IO, Any
+from typing import Any
 
 from .book import Book
-from .conditions import FilterContext, contexts, normalise
-from .entries import KINDS, Entry, Reading
+from .csvcolumns import VALUE_COLUMNS, Prefs, known_headers, neutralise, restore
+from .entries import KINDS, Entry
 from .errors import BookError
 from .journal import after_write, insert, load_hooks, validate
-from .timeutil import iso_local, parse_time, shift_at
-from .units import (
-    from_bar,
-    from_c,
-    from_l,
-    pressure_key,
-    temperature_key,
-    to_bar,
-    to_c,
-    to_l,
-    volume_key,
-)
+from .timeutil import parse_time
 
-FORMULA_START = ("=", "+", "-", "@", "\t", "\r", "'")
+__all__ = ["Prefs", "import_csv", "neutralise", "parse_csv", "restore"]
+
 MAX_FIELD_CHARS = 10_000
 MAX_PROBLEMS_SHOWN = 20
-
-
-@dataclass(frozen=True)
-class Prefs:
-    """Units of measure for one export (the book stores bar, °C, L)."""
-
-    pressure: str = "bar"
-    temperature: str = "C"
-    volume: str = "L"
-
-    def number_columns(self) -> set[str]:
-        """Columns holding numbers we format ourselves (never neutralised)."""
-        p, t, v = (
-            pressure_key(self.pressure),
-            temperature_key(self.temperature),
-            volume_key(self.volume),
-        )
-        return {f"dp_{p}", f"temp_{t}", f"dp_ref_{p}", f"volume_{v}", *NUMBER_COLUMNS}
-
-    def columns(self) -> list[str]:
-        p, t, v = (
-            pressure_key(self.pressure),
-            temperature_key(self.temperature),
-            volume_key(self.volume),
-        )
-        return [
-            "id",
-            "time",
-            "shift",
-            "kind",
-            "target",
-            "unit",
-            "by",
-            f"dp_{p}",
-            "indicator",
-            f"temp_{t}",
-            f"dp_ref_{p}",
-            "reference",
-            "flow_lpm",
-            "hours",
-            f"volume_{v}",
-            "fluid",
-            "filtered_um",
-            "reason",
-            "condition",
-            "batch",
-            "c4_per_ml",
-            "c6_per_ml",
-            "c14_per_ml",
-            "code",
-            "water_ppm",
-            "voids",
-            "voided_by",
-            "note",
-        ]
-
-
-NUMBER_COLUMNS = (
-    "flow_lpm",
-    "hours",
-    "filtered_um",
-    "c4_per_ml",
-    "c6_per_ml",
-    "c14_per_ml",
-    "water_ppm",
-)
-
-
-def neutralise(text: str) -> str:
-    """A cell a spreadsheet would run as a formula gets a leading apostrophe (so does a cell
-    that starts with one, so that `restore` gives back exactly what was written)."""
-    return "'" + text if text.startswith(FORMULA_START) else text
-
-
-def restore(text: str) -> str:
-    """Undo `neutralise`."""
-    return text[1:] if text.startswith("'") and text[1:2] and text[1] in FORMULA_START else text
-
-
-def _num(value: float | None, digits: int = 4) -> str:
-    """A number as plain decimal text, at most `digits` decimals (never 1.2e+06: a count or an
-    hour meter keeps every digit)."""
-    if value is None:
-        return ""
-    text = f"{round(value, digits):.{digits}f}".rstrip("0").rstrip(".")
-    return "0" if text in ("", "-0") else text
-
-
-def export_rows(
-    book: Book,
-    entries: Iterable[Entry],
-    prefs: Prefs,
-    local: tzinfo,
-    pattern: list[tuple[str, str]],
-) -> Iterator[dict[str, str]]:
-    ctx: dict[str, FilterContext] = contexts(book)
-    p, t, v = (
-        pressure_key(prefs.pressure),
-        temperature_key(prefs.temperature),
-        volume_key(prefs.volume),
-    )
-    columns = prefs.columns()
-    span = None
-    for e in entries:
-        if span is None or not span.holds(e.at):  # entries come in time order: reuse the shift
-            span = shift_at(e.at, pattern, local)  # type: ignore[arg-type]
-        row = dict.fromkeys(columns, "")
-        row.update(
-            id=e.id,
-            time=iso_local(e.at, local),
-            shift=span.name,
-            kind=e.kind,
-            target=e.target or "",
-            unit=e.unit or "",
-            by=e.by,
-            note=e.note,
-            voided_by=e.voided_by or "",
-        )
-        values = {f.name: getattr(e, f.name) for f in fields(e)}
-        for name in ("indicator", "reason", "condition", "batch", "code", "voids", "fluid"):
-            if values.get(name) is not None:
-                row[name] = str(values[name])
-        for name in NUMBER_COLUMNS:
-            row[name] = _num(values.get(name))
-        if values.get("dp_bar") is not None:
-            row[f"dp_{p}"] = _num(from_bar(values["dp_bar"], p))
-        if values.get("temp_c") is not None:
-            row[f"temp_{t}"] = _num(from_c(values["temp_c"], t), 2)
-        if values.get("volume_l") is not None:
-            row[f"volume_{v}"] = _num(from_l(values["volume_l"], v), 3)
-        if isinstance(e, Reading) and e.dp_bar is not None and e.filter in ctx:
-            n = normalise(ctx[e.filter], e)
-            if n.dp_ref_bar is not None:
-                row[f"dp_ref_{p}"] = _num(from_bar(n.dp_ref_bar, p))
-                reference = ctx[e.filter].reference
-                assumed = [w for w, a in (("temp", n.temp_assumed), ("flow", n.flow_assumed)) if a]
-                row["reference"] = reference.label + (  # type: ignore[union-attr]
-                    f"; {' and '.join(assumed)} assumed normal" if assumed else ""
-                )
-            else:
-                row["reference"] = f"not normalised: {n.problem}"
-        numbers = prefs.number_columns()
-        yield {k: (cell if k in numbers else neutralise(cell)) for k, cell in row.items()}
-
-
-def write_csv(
-    out: IO[str],
-    book: Book,
-    entries: Iterable[Entry],
-    prefs: Prefs,
-    local: tzinfo,
-    pattern: list[tuple[str, str]],
-) -> int:
-    writer = csv.DictWriter(out, fieldnames=prefs.columns(), lineterminator="\r\n")
-    writer.writeheader()
-    count = 0
-    for row in export_rows(book, entries, prefs, local, pattern):
-        writer.writerow(row)
-        count += 1
-    return count
 
 
 # ---- import -------------------------------------------------------------------------------------
@@ -242,37 +69,6 @@ def decode(data: bytes) -> str:
     return text
 
 
-def _quantity(
-    row: dict[str, str], base: str, unit_keys: dict[str, Any], convert: Any, key_of: Any
-) -> float | None:
-    """Find e.g. dp + dp_unit, or dp_psi / dp_bar / dp_kpa; return canonical or None."""
-    if row.get(base, "").strip():
-        unit = row.get(f"{base}_unit", "").strip() or unit_keys["default"]
-        return convert(_float(row[base], base), key_of(unit))
-    for suffix in unit_keys["all"]:
-        text = row.get(f"{base}_{suffix}", "").strip()
-        if text:
-            return convert(_float(text, f"{base}_{suffix}"), suffix)
-    return None
-
-
-def _float(text: str, name: str) -> float:
-    try:
-        return float(text.strip().replace(",", "."))
-    except ValueError as exc:
-        raise BookError(f"{name} '{text[:30]}' is not a number") from exc
-
-
-def _opt_float(row: dict[str, str], name: str) -> float | None:
-    text = row.get(name, "").strip()
-    return _float(text, name) if text else None
-
-
-PRESSURE_COLS = {"default": "bar", "all": ("bar", "psi", "kpa")}
-TEMP_COLS = {"default": "C", "all": ("c", "f")}
-VOLUME_COLS = {"default": "L", "all": ("l", "gal")}
-
-
 def _entry_id(text: str) -> str:
     """An entry id as the book writes them: a UUID in its 36-character form."""
     clean = text.strip().lower()
@@ -307,30 +103,11 @@ def entry_from_row(row: dict[str, str], local: tzinfo) -> Entry:
             raise BookError(f"a {kind} needs a target ({column} tag)")
         values[column] = target or row.get("unit", "").strip() or None
     names = {f.name for f in fields(cls)}
-    numbers = {
-        "dp_bar": lambda: _quantity(row, "dp", PRESSURE_COLS, to_bar, pressure_key),
-        "temp_c": lambda: _quantity(row, "temp", TEMP_COLS, to_c, temperature_key),
-        "volume_l": lambda: _quantity(row, "volume", VOLUME_COLS, to_l, volume_key),
-    }
-    for name, get_value in numbers.items():
-        if name in names:
-            values[name] = get_value()
-    if "filtered_um" in names and row.get("filtered_um", "").strip().lower() == "unfiltered":
-        row = {**row, "filtered_um": ""}  # the word the export may write for no cart
-    for name in (
-        "flow_lpm",
-        "hours",
-        "filtered_um",
-        "c4_per_ml",
-        "c6_per_ml",
-        "c14_per_ml",
-        "water_ppm",
-    ):
-        if name in names:
-            values[name] = _opt_float(row, name)
-    for name in ("indicator", "reason", "condition", "batch", "code", "voids", "fluid"):
-        if name in names and row.get(name, "").strip():
-            values[name] = row[name].strip()
+    for column in VALUE_COLUMNS:  # store/csvcolumns.py: how each cell is read back
+        if column.field in names and column.field not in ("unit", "by", "note"):
+            value = column.read(row)
+            if value is not None:
+                values[column.field] = value
     if "volume_l" in names and values.get("volume_l") is None:
         raise BookError("a top-up needs a volume")
     if kind == "void" and not values.get("voids"):
@@ -348,13 +125,8 @@ def one_line(text: str, limit: int = 200) -> str:
 
 
 def known_columns() -> set[str]:
-    """Every column import understands: what export writes in any units, plus value+unit pairs."""
-    names = set(Prefs().columns())
-    for p in PRESSURE_COLS["all"]:
-        names |= {f"dp_{p}", f"dp_ref_{p}"}
-    names |= {f"temp_{t}" for t in TEMP_COLS["all"]}
-    names |= {f"volume_{v}" for v in VOLUME_COLS["all"]}
-    return names | {"dp", "dp_unit", "temp", "temp_unit", "volume", "volume_unit"}
+    """Every column import understands (store/csvcolumns.py)."""
+    return known_headers()
 
 
 def _header(cells: list[str]) -> list[str]:

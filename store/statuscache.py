@@ -13,11 +13,9 @@ from the entries).
 from __future__ import annotations
 
 import json
-import os
 from collections.abc import Sequence
 from dataclasses import asdict, dataclass, fields, replace
 from datetime import datetime, timedelta
-from pathlib import Path
 from typing import Any
 
 from .book import Book
@@ -352,7 +350,6 @@ def _touches_unit(book: Book, entry: Entry) -> str | None:
 
 # ---- rebuilding -----------------------------------------------------------------------------------
 
-PARALLEL_FROM = 64  # positions: below this a rebuild is quick on one core
 WRITE_CHUNK = 100  # positions per write transaction: other writers wait a moment at most
 
 
@@ -408,46 +405,6 @@ def _compute_in_snapshot(book: Book, tags: Sequence[str], now: datetime) -> list
             conn.execute("COMMIT")
 
 
-def _compute_part(path: str, tags: list[str], now_text: str) -> list[_Rebuilt]:
-    """In a worker process: its own read-only connection to the book."""
-    import sqlite3
-
-    conn = sqlite3.connect(f"file:{path}?mode=ro", uri=True, isolation_level=None)
-    try:
-        book = Book(conn=conn, path=Path(path), readonly=True)
-        return _compute_in_snapshot(book, tags, _utc(now_text))
-    finally:
-        conn.close()
-
-
-def _in_workers(book: Book, tags: list[str], now: datetime, workers: int) -> list[_Rebuilt]:
-    import multiprocessing
-    from concurrent.futures import ProcessPoolExecutor
-
-    parts = [tags[i::workers] for i in range(workers)]
-    # fork: the workers need not import everything again, and `python -m tui` has no
-    # __main__ guard for spawn. They open their own connections and never touch ours.
-    with ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("fork")) as pool:
-        done = pool.map(_compute_part, [str(book.path)] * workers, parts,
-                        [format_utc(now)] * workers)  # fmt: skip
-        return [row for part in done for row in part]
-
-
-def _parallel_ok(book: Book, count: int, workers: int) -> bool:
-    import multiprocessing
-    import threading
-
-    return (
-        workers > 1
-        and count >= PARALLEL_FROM
-        and book.path is not None
-        and Path(book.path).exists()
-        and "fork" in multiprocessing.get_all_start_methods()
-        and threading.current_thread() is threading.main_thread()
-        and threading.active_count() == 1
-    )
-
-
 def _store_rebuilt(book: Book, rows: Sequence[_Rebuilt], now: datetime) -> None:
     conn = book.conn
     for r in rows:
@@ -468,22 +425,15 @@ def _store_rebuilt(book: Book, rows: Sequence[_Rebuilt], now: datetime) -> None:
         )
 
 
-def rebuild(book: Book, workers: int | None = None) -> int:
-    """Drop and recompute the derived tables (element summaries and statuses) from the entries.
-
-    On a large book the positions are shared among `workers` processes (default: the
-    machine's cores, at most 4), each reading the book on its own connection."""
+def rebuild(book: Book) -> int:
+    """Drop and recompute the derived tables (element summaries and statuses) from the entries
+    (in this process: no worker processes, see DEVELOPERS.md "Keeping it quick")."""
     now = book.now()
     tags = [ctx.position.tag for ctx in contexts(book).values()]
-    if workers is None:
-        workers = min(os.cpu_count() or 1, 4)
     with book.atomic():
         for table in ("element_state", "element_cache", "status_cache", "unit_cache"):
             book.conn.execute(f"DELETE FROM {table}")
-    if _parallel_ok(book, len(tags), workers):
-        rows = _in_workers(book, tags, now, workers)
-    else:
-        rows = _compute_in_snapshot(book, tags, now)
+    rows = _compute_in_snapshot(book, tags, now)
     for i in range(0, len(rows), WRITE_CHUNK):
         with book.atomic():
             _store_rebuilt(book, rows[i : i + WRITE_CHUNK], now)

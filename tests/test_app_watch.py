@@ -275,20 +275,15 @@ async def test_the_key_strip_is_rebuilt_only_when_its_keys_change(plant):
         assert watch.query_one(KeyStrip).items is before  # the very same keys: no repaint
 
 
-def test_the_first_list_read_in_a_forked_process_is_the_list(plant, monkeypatch):
-    # The app reads its first list in a child process while Textual starts (where it can
-    # fork); what comes back through the pipe is what reading it here gives.
-    import sys
-
+def test_the_first_list_read_early_is_the_list(plant):
+    # The app reads its first list in a thread while Textual starts; what comes back is what
+    # reading it here gives, and a failure comes back as the book's own error.
     import pytest
 
     from store.errors import BookError
     from tui.screens import common
     from tui.screens.watch import read_watch
 
-    if not sys.platform.startswith("linux"):
-        pytest.skip("the app forks only on Linux")
-    monkeypatch.setattr(common, "fork_ok", lambda: True)  # pytest may run threads of its own
     early = common.read_early(plant, read_watch).result(timeout=60)
     with open_book(plant, create=False) as book:
         here = read_watch(book)

@@ -23,15 +23,9 @@ from hypothesis import strategies as st
 
 from store import journal, register
 from store.book import open_book
-from store.csvio import (
-    FORMULA_START,
-    MAX_FIELD_CHARS,
-    Prefs,
-    import_csv,
-    neutralise,
-    restore,
-    write_csv,
-)
+from store.csvcolumns import COLUMNS, FORMULA_START, Prefs, neutralise, restore
+from store.csvexport import write_span
+from store.csvio import MAX_FIELD_CHARS, import_csv
 from store.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp, Void
 from store.errors import BookError
 from store.register import Breather, FilterPosition, Fluid, Technician, Unit
@@ -253,10 +247,13 @@ def test_export_neutralises_formulas_and_import_gives_them_back(template, cells)
             journal.log(book, Reading(filter="P1-RF", dp_bar=0.5, temp_c=-12.5, note=note, by="AB"))
         entries = journal.read(book)
         out = io.StringIO()
-        write_csv(out, book, entries, Prefs(), UTC_ZONE, book.shift_pattern())
+        write_span(out, book, None, None, Prefs(), UTC_ZONE, book.shift_pattern())
         rows = list(csv.reader(io.StringIO(out.getvalue(), newline="")))
         header, body = rows[0], rows[1:]
-        numbers = Prefs().number_columns()
+        keys = Prefs().keys()
+        numbers = {
+            c.header(keys) for c in COLUMNS if c.quantity or c.cell in ("number", "filtered")
+        }
         for row in body:
             for name, cell in zip(header, row, strict=True):
                 if name in numbers:

@@ -1,8 +1,8 @@
-"""The fast span export (store/csvexport.py) writes exactly what the entry-based export writes.
+"""The one exporter (store/csvexport.py) writes exactly what the entry-based oracle writes.
 
-The reference for every check here is the existing path: `csvio.write_csv` over
-`journal.read(book, since=, until=)` (and, for single pieces, `csvio.neutralise` with the
-`csv` module, `timeutil.iso_local`, `csvio.export_rows`). No number in this file is an
+The reference for every check here is the plain path kept in tests/csv_oracle.py:
+`write_csv` over `journal.read(book, since=, until=)` (and, for single pieces, `neutralise`
+with the `csv` module, `timeutil.iso_local`, `export_rows`). No number in this file is an
 expected result: the tests compare the two paths byte for byte, on the demo plant and on a
 small plant that holds every entry kind and every awkward cell.
 
@@ -30,13 +30,14 @@ from hypothesis import strategies as st
 from store import journal, register
 from store.book import Book, open_book
 from store.conditions import contexts
+from store.csvcolumns import Prefs
 from store.csvexport import FilterReference, LocalClock, csv_field, write_span
-from store.csvio import Prefs, export_rows, neutralise, write_csv
 from store.demo import create_demo
 from store.entries import BreatherSwap, ElementChange, Entry, Note, Reading, Sample, TopUp, Void
 from store.register import FilterPosition, Fluid, Unit
 from store.timeutil import format_utc, iso_local, shift_at, zone
 from tests.conftest import fill_register
+from tests.csv_oracle import export_rows, neutralise, write_csv
 
 ZONES = (
     "Europe/Berlin",
@@ -256,7 +257,7 @@ def test_the_command_line_writes_the_same_file(plant, tmp_path, monkeypatch):
     args = ["--db", str(plant.path), "export", "--from", f"{YEAR}-01-01T00:00", "-o", str(out)]
     assert main(args) == 0
     old, _ = exports(plant, local_moment(plant, f"{YEAR}-01-01T00:00"), None, Prefs())
-    assert out.read_bytes() == old.encode("utf-8")
+    assert out.read_bytes() == b"\xef\xbb\xbf" + old.encode("utf-8")  # UTF-8's BOM first
     assert not (tmp_path / "year.csv.part").exists()
 
 
@@ -270,7 +271,7 @@ def test_the_shift_log_screen_writes_the_same_file(plant, tmp_path):
     count = export_file(str(plant.path), out, span, Prefs("psi", "F", "gal"))
     old, _ = exports(plant, span.start, span.end, Prefs("psi", "F", "gal"))
     assert count == old.count("\r\n") - 1 > 0
-    assert out.read_bytes() == old.encode("utf-8")
+    assert out.read_bytes() == b"\xef\xbb\xbf" + old.encode("utf-8")
 
 
 def test_stamps_not_in_the_books_own_form_export_the_same(book, monkeypatch):
@@ -369,61 +370,3 @@ def test_an_export_inside_a_transaction_leaves_it_open(plant):
         assert plant.conn.in_transaction
     assert not plant.conn.in_transaction
     assert out.getvalue() == old
-
-
-# ---- two processes ------------------------------------------------------------------------------
-
-
-def test_two_processes_write_what_one_writes(demo, monkeypatch):
-    # A year of a big plant is shared with a child process; here the threshold is lowered so
-    # that the demo plant is shared too, and the reference is still the entry-based export.
-    from store import csvexport
-
-    cuts = []
-    halfway = csvexport._halfway
-
-    def spy(*args):
-        cuts.append(halfway(*args))
-        return cuts[-1]
-
-    monkeypatch.setattr(csvexport, "SECOND_PROCESS_FROM", 50)
-    monkeypatch.setattr(csvexport, "_can_fork", lambda: True)  # pytest may run a thread
-    monkeypatch.setattr(csvexport, "_halfway", spy)
-    for start, end in ((None, None), (local_moment(demo, "2026-10-01T00:00"), None)):
-        assert_same(demo, start, end, Prefs("psi", "F", "gal"))
-    assert len(cuts) == 2 and all(cuts)  # both were written by two processes
-
-
-def test_the_second_process_sees_the_book_as_the_first_did(book):
-    # Entries written after the export began (rowid beyond `upto`) are not in the child's
-    # part, and neither is a void written then.
-    from store import csvexport
-
-    notes = journal.log_many(book, [Note(unit="P1", note=f"n{i}", by="AB") for i in range(4)])
-    upto = book.conn.execute("SELECT max(rowid) FROM entries").fetchone()[0]
-    later = journal.log(book, Note(unit="P1", note="written during the export", by="AB"))
-    journal.log(book, Void(voids=notes[0].id, note="typed twice", by="AB"))
-    part = book.path.with_name("part.csv")
-    local, pattern = book.local_zone(), book.shift_pattern()
-    count = csvexport._write_part(
-        str(book.path), "2000-01-01T00:00:00Z", None, upto, Prefs(), local, pattern, str(part)
-    )
-    text = part.read_bytes().decode("utf-8")  # as written: CR LF kept
-    assert count == 4 and text.count("\r\n") == 4
-    assert later.id not in text and "typed twice" not in text
-    assert all(n.id in text for n in notes)
-
-
-def test_an_export_from_a_threaded_process_stays_in_one_process():
-    import threading
-
-    from store import csvexport
-
-    stop = threading.Event()
-    other = threading.Thread(target=stop.wait)
-    other.start()
-    try:
-        assert not csvexport._can_fork()  # a fork would copy this thread's locks, not it
-    finally:
-        stop.set()
-        other.join()

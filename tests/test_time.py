@@ -18,7 +18,9 @@ from zoneinfo import ZoneInfo
 import pytest
 
 from store import journal
-from store.csvio import Prefs, import_csv, write_csv
+from store.csvcolumns import Prefs
+from store.csvexport import write_span
+from store.csvio import import_csv
 from store.entries import Note, Reading
 from store.errors import BookError
 from store.timeutil import parse_time, shift_at, shift_named, zone
@@ -129,7 +131,7 @@ def test_export_names_the_shift_and_the_offset_across_the_change(book, monkeypat
     for at in instants:
         journal.log(book, Note(unit="P1", note="round", at=at, by="AB"))
     out = io.StringIO()
-    write_csv(out, book, journal.read(book), Prefs(), book.local_zone(), book.shift_pattern())
+    write_span(out, book, None, None, Prefs(), book.local_zone(), book.shift_pattern())
     rows = list(csv.DictReader(io.StringIO(out.getvalue())))
     assert [(r["shift"], r["time"]) for r in rows] == list(instants.values())
 

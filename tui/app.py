@@ -5,6 +5,7 @@ from __future__ import annotations
 import gc
 import sqlite3
 import time
+from collections.abc import Sequence
 from concurrent.futures import Future
 from dataclasses import replace
 from importlib import import_module
@@ -14,6 +15,7 @@ from typing import TYPE_CHECKING, Any
 from textual import work
 from textual.app import App, SystemCommand
 from textual.binding import Binding
+from textual.filter import LineFilter
 from textual.reactive import reactive
 from textual.screen import ModalScreen, Screen
 from textual.theme import Theme
@@ -35,6 +37,7 @@ from store.sheets import (
     filter_status_of,
     tag_index,
 )
+from store.text import inert_line
 from store.timeutil import utc_now
 
 from .keys import bind
@@ -44,6 +47,7 @@ from .screens.help import HelpScreen
 from .screens.sign_in import SignInScreen
 from .screens.watch import WatchData, WatchScreen, read_watch
 from .widgets import fmt
+from .widgets.inert import INERT_LINES
 from .widgets.palette import BookCommands
 
 if TYPE_CHECKING:
@@ -204,12 +208,17 @@ class SumpbookApp(App[None]):
         elif not self.tech:
             self.action_sign_in()
 
+    def get_line_filters(self) -> Sequence[LineFilter]:
+        """Textual's filters, then ours: no control character of any text reaches the
+        terminal (tui/widgets/inert.py)."""
+        return [*super().get_line_filters(), INERT_LINES]
+
     def update_subtitle(self) -> None:
         parts = []
         if self.demo:
             parts.append("demo plant")
         elif self.book.setting("name"):
-            parts.append(str(self.book.setting("name")))
+            parts.append(inert_line(str(self.book.setting("name"))))
         parts.append(f"by {self.tech or 'nobody (press i)'}")  # the shift: on the watch list
         self.sub_title = " · ".join(parts)
 
@@ -460,7 +469,7 @@ class SumpbookApp(App[None]):
     def check_book(self, path: Path) -> None:
         started = time.perf_counter()
         try:
-            deep_check(path)
+            deep_check(path)  # damage found here is recorded: every save refuses the book
         except BookError as exc:
             self.call_from_thread(
                 self.notify,

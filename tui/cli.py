@@ -13,6 +13,7 @@ from pathlib import Path
 from store import journal
 from store.book import ENV_DB, damaged_read, default_path
 from store.errors import BookError
+from store.text import inert
 
 from . import commands
 
@@ -213,6 +214,13 @@ def build_parser() -> argparse.ArgumentParser:
     when.add_argument("--from", dest="from_", metavar="TIME", help="from this time (ISO 8601)")
     p.add_argument("--to", metavar="TIME", help="up to this time (with --from; default now)")
     p.add_argument("-o", "--output", type=Path, help="CSV file to write (default: stdout)")
+    p.add_argument(
+        "--bom",
+        action=argparse.BooleanOptionalAction,
+        default=None,
+        help="start with UTF-8's byte-order mark, so that a spreadsheet reads ν, °C, µm "
+        "right (default: yes with -o, no on stdout)",
+    )
 
     p = sub.add_parser("import", help="read entries from a CSV file (all or nothing)")
     p.add_argument("file", type=Path)
@@ -237,6 +245,11 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("file", type=Path)
     p = sub.add_parser("merge", help="bring in the entries and register of another laptop's book")
     p.add_argument("other", type=Path)
+    p = sub.add_parser(
+        "check",
+        help="check the whole logbook file for damage (a damaged book refuses writes until "
+        "restored)",
+    )
     p = sub.add_parser("rebuild", help="rebuild derived tables (status cache) from the entries")
     return parser
 
@@ -257,13 +270,13 @@ def main(argv: Sequence[str] | None = None) -> int:
         try:
             return run_app(args.db, dict(os.environ))
         except BookError as exc:
-            print(f"sumpbook: {exc}", file=sys.stderr)
+            print(f"sumpbook: {inert(str(exc))}", file=sys.stderr)
             return EXIT_BAD_INPUT
     try:
         return run(args)
     except BookError as exc:
         commands.report_unreadable()
-        print(f"sumpbook: {exc}", file=sys.stderr)
+        print(f"sumpbook: {inert(str(exc))}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except UnicodeError:
         print(
@@ -285,7 +298,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         )
         return EXIT_BAD_INPUT
     except sqlite3.DatabaseError as exc:  # a read met a damaged page (writes are checked first)
-        print(f"sumpbook: {damaged_read(exc, args.db or default_path())}", file=sys.stderr)
+        print(
+            f"sumpbook: {inert(str(damaged_read(exc, args.db or default_path())))}", file=sys.stderr
+        )
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
         return 130
@@ -296,7 +311,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         if os.environ.get("SUMPBOOK_DEBUG"):
             raise
         print(
-            f"sumpbook: unexpected error ({type(exc).__name__}: {exc}); nothing more was "
+            f"sumpbook: unexpected error ({type(exc).__name__}: {inert(str(exc))}); nothing more was "
             "written. Run again with SUMPBOOK_DEBUG=1 for the details.",
             file=sys.stderr,
         )

@@ -13,11 +13,12 @@ from typing import TYPE_CHECKING, Any
 from store import journal, register
 from store import prefs as laptop
 from store.book import Book, default_path, open_book
-from store.csvio import Prefs as CsvPrefs
+from store.csvcolumns import Prefs as CsvPrefs
 from store.csvio import import_csv
 from store.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp, Void
 from store.errors import BookError
 from store.register import Breather, FilterPosition, Fluid, Technician, Unit
+from store.text import inert, json_inert
 from store.timeutil import parse_time, previous_shift, shift_at, shift_named
 from store.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
 from store.validate import plant_setting
@@ -35,6 +36,14 @@ def console(stderr: bool = False) -> Console:
     if stderr:
         return Console(stderr=True)
     return Console(highlight=False, width=None if sys.stdout.isatty() else 200)
+
+
+def say(text: str, stderr: bool = False) -> None:
+    """Print one line as written: no markup read, control and escape characters of stored
+    text made visible (`store.text.inert`)."""
+    from rich.text import Text
+
+    console(stderr).print(Text(inert(text)))
 
 
 def _render() -> Any:
@@ -104,7 +113,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
     with create_demo(path, force=args.force) as book:
         units = len(register.list_all(book, Unit))
         entries = journal.count(book)
-    console().print(f"demo plant written to {path}: {units} units, {entries} entries")
+    say(f"demo plant written to {path}: {units} units, {entries} entries")
     return 0
 
 
@@ -127,7 +136,7 @@ def cmd_register(args: argparse.Namespace) -> int:
             if any(len(p) != 2 for p in pattern):
                 raise BookError("give shifts as NAME=HH:MM, e.g. early=06:00")
             shifts = register.set_shifts(book, pattern, by)  # type: ignore[arg-type]
-            console().print("shifts: " + ", ".join(f"{s.name} from {s.starts}" for s in shifts))
+            say("shifts: " + ", ".join(f"{s.name} from {s.starts}" for s in shifts))
             return 0
         if what == "change":
             return _register_change(book, args, by)
@@ -185,7 +194,7 @@ def cmd_register(args: argparse.Namespace) -> int:
                 swap_interval_d=args.every,
             )
         added = register.add(book, record, by)
-        console().print(f"registered {what} {added.tag}")
+        say(f"registered {what} {added.tag}")
     return 0
 
 
@@ -213,7 +222,7 @@ def _register_change(book: Book, args: argparse.Namespace, by: str) -> int:
             changes[name] = register.parse_field(cls, name, text)
     updated = register.update(book, cls, args.tag, changes, by)
     for key in changes:
-        console().print(f"{updated.tag} {key}: {getattr(current, key)} -> {getattr(updated, key)}")
+        say(f"{updated.tag} {key}: {getattr(current, key)} -> {getattr(updated, key)}")
     return 0
 
 
@@ -325,15 +334,15 @@ def cmd_log(args: argparse.Namespace) -> int:
         else:
             entry = Void(voids=args.id, **{**common, "note": args.reason})
         saved = journal.log(book, entry)
-        console().print(_render().saved_line(book, saved, prefs))
+        say(_render().saved_line(book, saved, prefs))
         if isinstance(saved, Reading):
             caution = journal.reading_over_bypass(
                 book, saved.filter, saved.dp_bar, saved.temp_c, saved.flow_lpm, saved.indicator
             )
             if caution:
-                console().print(f"CAUTION: {caution}", markup=False)
+                say(f"CAUTION: {caution}")
         if kind in ("change", "breather"):
-            console().print(_render().CAUTION_SHORT)
+            say(_render().CAUTION_SHORT)
     return 0
 
 
@@ -381,7 +390,7 @@ def cmd_status(args: argparse.Namespace) -> int:
         if args.json:
             # One line, no indent: json's C encoder does it (an indent means the pure-Python
             # one, ten times slower on a big plant); pipe it to a pretty-printer to read it.
-            sys.stdout.write(strict_json(status.to_json(watch, book.local_zone())))
+            sys.stdout.write(json_inert(strict_json(status.to_json(watch, book.local_zone()))))
             sys.stdout.write("\n")
         else:
             console().print(_render().watch_table(book, watch, prefs))
@@ -389,7 +398,7 @@ def cmd_status(args: argparse.Namespace) -> int:
 
 
 def cmd_export(args: argparse.Namespace) -> int:
-    from store.csvexport import write_span
+    from store.csvexport import BOM, export_file, write_span
 
     prefs = laptop.load()
     with _book(args) as book:
@@ -413,24 +422,31 @@ def cmd_export(args: argparse.Namespace) -> int:
             start, end = span.start, span.end
         csv_prefs = CsvPrefs(prefs.pressure, prefs.temperature, prefs.volume)
         if args.output:
-            out_path: Path = args.output
-            tmp = out_path.with_name(out_path.name + ".part")
-            try:
-                with tmp.open("w", encoding="utf-8", newline="") as out:
-                    count = write_span(out, book, start, end, csv_prefs, local, pattern)
-                tmp.replace(out_path)
-            except OSError as exc:
-                tmp.unlink(missing_ok=True)
-                raise BookError(f"cannot write {out_path}: {exc.strerror}") from exc
-            except BaseException:
-                tmp.unlink(missing_ok=True)  # a read that failed half-way leaves no file
-                raise
-            console(stderr=True).print(
-                f"{count} {'entry' if count == 1 else 'entries'} written to {out_path}"
+            count = export_file(
+                book, args.output, start, end, csv_prefs, local, pattern, bom=args.bom is not False
+            )
+            say(
+                stderr=True,
+                text=f"{count} {'entry' if count == 1 else 'entries'} written to {args.output}",
             )
         else:
-            write_span(sys.stdout, book, start, end, csv_prefs, local, pattern)
+            out: Any = _OnScreen(sys.stdout) if sys.stdout.isatty() else sys.stdout
+            if args.bom:
+                out.write(BOM)
+            write_span(out, book, start, end, csv_prefs, local, pattern)
     return 0
+
+
+class _OnScreen:
+    """CSV text written to a terminal: a person reads it, so stored text is shown inert
+    (`store.text.inert`; line ends as plain line breaks). A file or a pipe gets the exact
+    bytes, so that import gives back what was exported."""
+
+    def __init__(self, out: Any) -> None:
+        self.out = out
+
+    def write(self, text: str) -> int:
+        return self.out.write(inert(text.replace("\r\n", "\n")))
 
 
 def cmd_import(args: argparse.Namespace) -> int:
@@ -440,7 +456,7 @@ def cmd_import(args: argparse.Namespace) -> int:
         raise BookError(f"cannot read {args.file}: {exc.strerror}") from exc
     with _book(args) as book:
         result = import_csv(book, data, book.local_zone())
-    console().print(
+    say(
         f"imported {result.added} entries"
         + (f"; {result.skipped} were in the book already" if result.skipped else "")
     )
@@ -464,7 +480,7 @@ def cmd_prefs(args: argparse.Namespace) -> int:
                 changes["tech"] = register.get(book, Technician, changes["tech"]).tag
         current = laptop.save(current, **changes)
     for key, value in current.__dict__.items():
-        console().print(f"{key} = {value}")
+        say(f"{key} = {value}")
     return 0
 
 
@@ -476,7 +492,7 @@ def cmd_plant(args: argparse.Namespace) -> int:
             for key, value in checked.items():
                 book.set_setting(key, value)
         for key in ("name", "timezone", "backup_keep"):
-            console().print(f"{key} = {book.setting(key, '') or '(this computer' + chr(39) + 's)'}")
+            say(f"{key} = {book.setting(key, '') or '(this computer' + chr(39) + 's)'}")
     return 0
 
 
@@ -484,11 +500,11 @@ def cmd_plant(args: argparse.Namespace) -> int:
 
 
 def cmd_backup(args: argparse.Namespace) -> int:
-    from store.backup import copy_to
+    from store.backup import copy_holding_lock
 
     with _book(args) as book:
-        dest = copy_to(book.conn, args.dest)
-    console().print(f"backup written to {dest}")
+        dest = copy_holding_lock(book.conn, book.path, args.dest)
+    say(f"backup written to {dest}")
     return 0
 
 
@@ -497,7 +513,7 @@ def cmd_restore(args: argparse.Namespace) -> int:
 
     path = args.db or default_path()
     kept = restore(Path(args.file), path)
-    console().print(
+    say(
         f"restored {args.file} into {path}"
         + (f"; the previous logbook is kept as {kept}" if kept else "")
     )
@@ -509,10 +525,19 @@ def cmd_merge(args: argparse.Namespace) -> int:
 
     with _book(args) as book:
         report = merge(book, Path(args.other))
-    console().print(report.summary())
+    say(report.summary())
     for conflict in report.conflicts:
-        console().print(f"  conflict: {conflict}")
+        say(f"  conflict: {conflict}")
     return 0 if not report.conflicts else 1
+
+
+def cmd_check(args: argparse.Namespace) -> int:
+    from store.book import full_check
+
+    path = Path(args.db or default_path())
+    full_check(path)  # damage: one line naming the latest backup, and writes refuse the book
+    say(f"ok: {path} passed the full integrity check")
+    return 0
 
 
 def cmd_rebuild(args: argparse.Namespace) -> int:
@@ -520,5 +545,5 @@ def cmd_rebuild(args: argparse.Namespace) -> int:
 
     with _book(args) as book:
         count = rebuild(book)
-    console().print(f"status rebuilt for {count} filters")
+    say(f"status rebuilt for {count} filters")
     return 0

@@ -13,6 +13,7 @@ from store.book import Book
 from store.entries import BreatherSwap, ElementChange, Entry, Note, Reading, Sample, TopUp, Void
 from store.prefs import Prefs
 from store.register import Breather, FilterPosition, Fluid, Technician, Unit
+from store.text import inert
 from store.timeutil import local_text
 from store.units import pressure_label
 
@@ -26,6 +27,28 @@ CAUTION_SHORT = (
     "eye and skin protection, never feel for leaks by hand. The maker's manual and site "
     "procedures rule."
 )
+
+
+def _add_row(table: Table, *cells: object, style: str = "") -> None:
+    """A row whose text is shown as written: no markup is read in it, and control and escape
+    characters of stored text are made visible (`store.text.inert`)."""
+    shown = [
+        Text(inert(c)) if isinstance(c, str) else _inert_text(c) if isinstance(c, Text) else c
+        for c in cells
+    ]
+    table.add_row(*shown, style=style)  # type: ignore[arg-type]
+
+
+def _inert_text(text: Text) -> Text:
+    plain = inert(text.plain)
+    if plain == text.plain:
+        return text
+    return Text(plain, style=text.style)
+
+
+def line(text: str) -> Text:
+    """One printed line of the command line, inert (`store.text.inert`), no markup read."""
+    return Text(inert(text))
 
 
 def when(book: Book, moment: datetime | None) -> str:
@@ -134,7 +157,7 @@ def entries_table(book: Book, entries: list[Entry], prefs: Prefs) -> Table:
             reference,
             e.note,
         ]
-        table.add_row(*row, style=style)
+        _add_row(table, *row, style=style)
     return table
 
 
@@ -144,7 +167,7 @@ def register_table(book: Book, what: str, unit: str | None, prefs: Prefs) -> Tab
         table.add_column("shift")
         table.add_column("starts")
         for shift in register.list_shifts(book):
-            table.add_row(shift.name, shift.starts)
+            _add_row(table, shift.name, shift.starts)
         return table
     cls = {
         "units": Unit,
@@ -171,7 +194,8 @@ def register_table(book: Book, what: str, unit: str | None, prefs: Prefs) -> Tab
         for c in cols:
             table.add_column(c)
         for f in rows:
-            table.add_row(
+            _add_row(
+                table,
                 f.tag,
                 f.unit,
                 f.kind,
@@ -199,7 +223,8 @@ def register_table(book: Book, what: str, unit: str | None, prefs: Prefs) -> Tab
         ):
             table.add_column(c)
         for u in rows:
-            table.add_row(
+            _add_row(
+                table,
                 u.tag,
                 u.name,
                 u.area,
@@ -216,7 +241,8 @@ def register_table(book: Book, what: str, unit: str | None, prefs: Prefs) -> Tab
         for c in ("tag", "unit", "kind", "rating", "swap every"):
             table.add_column(c)
         for b in rows:
-            table.add_row(
+            _add_row(
+                table,
                 b.tag,
                 b.unit,
                 b.kind,
@@ -228,7 +254,8 @@ def register_table(book: Book, what: str, unit: str | None, prefs: Prefs) -> Tab
         for c in ("tag", "name", "ISO VG", "ν40 (mm²/s)", "ν100 (mm²/s)", "VI", "density"):
             table.add_column(c)
         for f in rows:
-            table.add_row(
+            _add_row(
+                table,
                 f.tag,
                 f.name,
                 str(f.iso_vg or "–"),
@@ -241,7 +268,7 @@ def register_table(book: Book, what: str, unit: str | None, prefs: Prefs) -> Tab
     for c in ("initials", "name", "active"):
         table.add_column(c)
     for t in rows:
-        table.add_row(t.tag, t.name, "yes" if t.active else "no")
+        _add_row(table, t.tag, t.name, "yes" if t.active else "no")
     return table
 
 
@@ -287,7 +314,8 @@ def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
         if any(x in URGENT_FLAGS for x in f.flags):
             flags.stylize("bold reverse")
         due = due_text(book, f.due) if f.due else f.state
-        table.add_row(
+        _add_row(
+            table,
             f.filter,
             f.unit,
             f.kind,
@@ -298,7 +326,8 @@ def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
             flags,
         )
     for b in watch.breathers:
-        table.add_row(
+        _add_row(
+            table,
             b.breather,
             b.unit,
             f"breather ({b.kind})",
@@ -310,7 +339,8 @@ def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
         )
     for u in watch.units:
         if u.flags:
-            table.add_row(
+            _add_row(
+                table,
                 u.unit,
                 u.unit,
                 "unit",

@@ -11,9 +11,8 @@ from textual.containers import VerticalScroll
 from textual.widgets import DataTable, Header, Static
 
 from store.book import open_book
-from store.csvexport import write_span
-from store.csvio import Prefs as CsvPrefs
-from store.errors import BookError
+from store.csvcolumns import Prefs as CsvPrefs
+from store.csvexport import export_file as write_file
 from store.sheets import ShiftLog, kind_counts, shift_log
 from store.timeutil import ShiftSpan, next_shift, previous_shift, shift_at, shift_named
 
@@ -30,20 +29,9 @@ from .file_prompt import FilePrompt
 
 def export_file(path: str, dest: Path, span: ShiftSpan, prefs: CsvPrefs) -> int:
     """Write one shift's entries as CSV (runs in a worker thread on its own connection)."""
-    tmp = dest.with_name(dest.name + ".part")
     with open_book(path, create=False) as book:
         local, pattern = book.local_zone(), book.shift_pattern()
-        try:
-            with tmp.open("w", encoding="utf-8", newline="") as out:
-                count = write_span(out, book, span.start, span.end, prefs, local, pattern)
-            tmp.replace(dest)
-        except OSError as exc:
-            tmp.unlink(missing_ok=True)
-            raise BookError(f"cannot write {dest}: {exc.strerror or exc}") from exc
-        except BaseException:
-            tmp.unlink(missing_ok=True)  # a read that failed half-way leaves no file
-            raise
-    return count
+        return write_file(book, dest, span.start, span.end, prefs, local, pattern)
 
 
 class ShiftLogScreen(BookScreen):
@@ -148,9 +136,9 @@ class ShiftLogScreen(BookScreen):
                 Text(e.id[:8], style=style),
                 Text(describe(e, prefs) + (f" · {e.note}" if e.note else ""), style=style),
             )
-            rows.append((e.id, cells))
+            rows.append((e.id, tuple(fmt.shown(c) for c in cells)))
         self.query_one(RowTable).show(ENTRY_COLUMNS, rows)
-        self.query_one("#handover", Static).update(self.handover_text(log))
+        self.query_one("#handover", Static).update(fmt.shown(self.handover_text(log)))
         self.loaded = True
 
     def handover_text(self, log: ShiftLog) -> Text:

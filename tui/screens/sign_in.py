@@ -16,6 +16,8 @@ from store import register
 from store.errors import BookError
 from store.register import Technician
 
+from ..widgets import fmt
+
 
 class SignInScreen(ModalScreen[str | None]):
     BINDINGS = [Binding("escape", "cancel", "Later", id="sign-in-cancel")]
@@ -41,7 +43,7 @@ class SignInScreen(ModalScreen[str | None]):
     def on_mount(self) -> None:
         techs = [t for t in register.list_all(self.app.book, Technician) if t.active]  # type: ignore[attr-defined]
         options = self.query_one(OptionList)
-        options.add_options([Option(f"{t.tag:<6} {t.name}", id=t.tag) for t in techs])
+        options.add_options([Option(fmt.shown(f"{t.tag:<6} {t.name}"), id=t.tag) for t in techs])
         self.query_one(Input).cursor_blink = self.blink
         if techs:
             tags = [t.tag for t in techs]

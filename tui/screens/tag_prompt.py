@@ -12,6 +12,8 @@ from textual.widgets.option_list import Option
 
 from store.sheets import TagHit, match_tags
 
+from ..widgets import fmt
+
 PICK_HINT = "↓ ↑ to pick one, then Enter"
 
 
@@ -51,7 +53,10 @@ class TagPrompt(ModalScreen[TagHit | None]):
         options = self.query_one(OptionList)
         options.clear_options()
         options.add_options(
-            [Option(f"{h.tag:<16} {h.label}", id=str(i)) for i, h in enumerate(self.matches)]
+            [
+                Option(fmt.shown(f"{h.tag:<16} {h.label}"), id=str(i))
+                for i, h in enumerate(self.matches)
+            ]
         )
         options.highlighted = None  # nothing is chosen until Enter finds it exact or ↓ picks
         self.say("" if self.matches or not text.strip() else f"no tag like '{text.strip()}'")

@@ -14,6 +14,7 @@ from store.book import Book
 from store.prefs import Prefs
 from store.register import Unit, list_all
 from store.sheets import Summary, WatchRow, row_matches, summarise, watch_rows
+from store.text import inert
 from store.timeutil import shift_at
 
 from ..keys import bind
@@ -201,7 +202,7 @@ class WatchScreen(BookScreen):
                 Text(r.kind if r.what != "breather" else "breather"),
                 Text(r.basis),
             )
-            rows.append((r.tag, cells))
+            rows.append((r.tag, tuple(fmt.shown(c) for c in cells)))
         table.show(watch_columns(prefs), rows)
         if keep and any(r.tag == keep for r in self.shown):
             table.move_cursor(row=table.get_row_index(keep))
@@ -259,7 +260,7 @@ class WatchScreen(BookScreen):
         notes = [fmt.in_units(n, prefs) for n in row.notes] or [
             fmt.STATE_WORDS.get(row.state, row.state)
         ]
-        detail.show(head, notes)
+        detail.show([inert(h) for h in head], [inert(n) for n in notes])
 
     def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
         self.show_detail()

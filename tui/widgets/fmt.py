@@ -16,6 +16,7 @@ from rich.text import Text
 
 from store.prefs import Prefs
 from store.status import FLAG_WORDS, URGENT_FLAGS, Due
+from store.text import inert
 from store.units import from_bar, from_c, from_l
 from tui.quantities import (  # noqa: F401 - the app's widgets take them from here
     p_digits,
@@ -42,6 +43,18 @@ STATE_WORDS = {
     "no-swaps": "no swap yet",
     "flagged": "",
 }
+
+
+def shown(value: str | Text) -> Text:
+    """Stored text as a cell or line of the app: never read as markup (a `Text`), control and
+    escape characters made visible (`store.text.inert`, one character for one, so a styled
+    `Text` keeps its styles in place)."""
+    if isinstance(value, Text):
+        if not value.plain.isprintable():
+            value = value.copy()
+            value.plain = inert(value.plain)
+        return value
+    return Text(inert(value))
 
 
 def input_pressure(value_bar: float | None, prefs: Prefs) -> str:
