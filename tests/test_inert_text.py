@@ -137,7 +137,8 @@ async def test_the_watch_list_and_the_shift_log_show_stored_text_inert(plant):
         await settle(pilot, ShiftLogScreen)
         rows = app.screen.query_one(DataTable)
         cells = [str(c) for i in range(rows.row_count) for c in rows.get_row_at(i)]
-        assert any("[bold]loud[/bold]" in c for c in cells)  # the note, as written
+        # the note as written (not read as markup); at 80 columns its cell ends in '…'
+        assert any("[bold]loud[/bold" in c for c in cells), cells
         for cell in cells:
             assert_inert(cell)
         assert_inert(str(app.screen.query_one("#handover", Static).render()))
@@ -152,6 +153,7 @@ async def test_a_technician_named_like_markup_does_not_stop_the_sign_in(plant):
     from tui.screens.watch import WatchScreen
 
     conn = sqlite3.connect(plant)
+    conn.execute("PRAGMA ignore_check_constraints = ON")  # a crafted book has no such checks
     with conn:
         conn.execute("UPDATE technicians SET name = ? WHERE tag = 'CD'", ["[/] \x1b[2J"])
     conn.close()
