@@ -141,8 +141,7 @@ class Clock:
     state: str  # the state before the clock's say (check-now, indicator-only)
     check_after_h: float | None  # an "ok" element is "check-now" once older than this
     note_at: int  # index of the forecast's note in the notes (-1: none) ...
-    note_ok: str  # ... as it reads while the state is "ok" ...
-    note_check: str  # ... and once it is "check-now"
+    check_words: str  # ... and what it says after its "ok" words once it is "check-now"
     notes: int  # notes that do not move with the clock (the hot note follows them)
     life: tuple[float, float] | None  # Weibull (shape, scale_h): service-life due, given age
     hot: tuple[tuple[datetime, float], ...]  # (time, °C) of hot readings that can still count
@@ -170,8 +169,27 @@ def at_time(status: FilterStatus, clock: Clock, now: datetime) -> FilterStatus:
     """The status at `now` (not before `clock.valid_from`): the element's age, check-now,
     a service-life due given the age so far, reading-overdue and hot, from the status
     computed at any other time."""
+    parts = clock_parts(
+        status.flags, status.notes, status.due, status.bypass_due, status.gauge,
+        status.overdue_at, clock, now,
+    )  # fmt: skip
+    return replace(status, **parts, clock=clock)
+
+
+def clock_parts(
+    flags_then: Sequence[str],
+    notes_then: Sequence[str],
+    due: Due | None,
+    bypass_due: Due | None,
+    gauge: bool,
+    overdue_at: datetime | None,
+    clock: Clock,
+    now: datetime,
+) -> dict[str, Any]:
+    """The fields of a status that `at_time` sets, from the ones it reads (a kept row is
+    decoded straight into them)."""
     age_now = clock.age_h(now)
-    state, due, bypass_due = clock.state, status.due, status.bypass_due
+    state = clock.state
     time_at = partial(clock.time_at, now=now)
     if clock.due_ages is not None:
         due, bypass_due = (_due(ages, time_at) for ages in clock.due_ages)
@@ -184,13 +202,14 @@ def at_time(status: FilterStatus, clock: Clock, now: datetime) -> FilterStatus:
             _Ages(*(age_now + weibull_remaining_h(shape, scale_h, age_now, p) for p in _LIFE_P)),
             time_at,
         )
-    if not status.gauge and due is None and state in ("no-readings", "too-few-readings"):
+    if not gauge and due is None and state in ("no-readings", "too-few-readings"):
         state = "indicator-only"
-    flags = [f for f in status.flags if f not in CLOCK_FLAGS]
-    notes = list(status.notes[: clock.notes])
+    flags = [f for f in flags_then if f not in CLOCK_FLAGS]
+    notes = list(notes_then[: clock.notes])
     if clock.note_at >= 0:
-        notes[clock.note_at] = clock.note_check if state == "check-now" else clock.note_ok
-    if status.overdue_at and now > status.overdue_at:
+        note = notes[clock.note_at].removesuffix(clock.check_words)
+        notes[clock.note_at] = note + clock.check_words if state == "check-now" else note
+    if overdue_at and now > overdue_at:
         flags.append("reading-overdue")
     recent_hot = [temp_c for at, temp_c in clock.hot if now - at <= HOT_LOOKBACK]
     if recent_hot:
@@ -198,16 +217,14 @@ def at_time(status: FilterStatus, clock: Clock, now: datetime) -> FilterStatus:
         notes.append(
             f"fluid at {max(recent_hot):.0f} °C, over the unit's {clock.max_temp_c:g} °C limit"
         )
-    return replace(
-        status,
-        state=state,
-        due=due,
-        bypass_due=bypass_due,
-        flags=tuple(dict.fromkeys(flags)),
-        notes=tuple(notes),
-        element_age_h=age_now,
-        clock=clock,
-    )
+    return {
+        "state": state,
+        "due": due,
+        "bypass_due": bypass_due,
+        "flags": tuple(dict.fromkeys(flags)),
+        "notes": tuple(notes),
+        "element_age_h": age_now,
+    }
 
 
 @dataclass(frozen=True)
@@ -390,8 +407,7 @@ def status_from(
         state="",
         check_after_h=None,
         note_at=-1,
-        note_ok="",
-        note_check="",
+        check_words="",
         notes=0,
         life=None,
         hot=tuple(
@@ -449,13 +465,12 @@ def status_from(
             if state in ("ok", "check-now") and forecast.to_limit is not None:
                 # check-now moves with the clock: keep the "ok" state and both notes.
                 words = trend._state_text("check-now", clock.last_age_h)
-                state, note_ok = "ok", forecast.note.removesuffix(words)
+                state = "ok"
                 clock = replace(
                     clock,
                     check_after_h=forecast.to_limit.likely_h,
                     note_at=len(notes),
-                    note_ok=note_ok,
-                    note_check=note_ok + words,
+                    check_words=words,
                 )
             if forecast.note:
                 notes.append(forecast.note)
@@ -647,7 +662,8 @@ class UnitClock:
 
     valid_from: datetime
     first_at: datetime | None  # the unit's first entry: its top-up history starts there
-    early_l: tuple[float, ...]  # live top-ups before every window from valid_from on: volumes
+    early_l: float  # live top-ups before every window from valid_from on: volume, added up
+    early_n: int  # ... in time order, and how many
     topups: tuple[TopUp, ...]  # the later live top-ups, oldest first
     sample: tuple[str | None, str, bool | None] | None  # latest sample: code, words, meets
     hot: tuple[datetime, ...]  # readings over the unit's limit that can still count
@@ -663,6 +679,9 @@ def unit_clock(book: Book, unit: Unit, now: datetime) -> UnitClock:
     ]
     first = read(book, unit=unit.tag, until=until, limit=1)
     early = [t for t in topups if t.at < now - TOPUP_WINDOW]  # type: ignore[operator]
+    early_l = 0  # as topup_consumption adds them up
+    for t in early:
+        early_l += t.volume_l  # type: ignore[attr-defined]
     samples = [
         e
         for e in read(
@@ -695,7 +714,8 @@ def unit_clock(book: Book, unit: Unit, now: datetime) -> UnitClock:
     return UnitClock(
         valid_from=now,
         first_at=first[0].at if first else None,
-        early_l=tuple(t.volume_l for t in early),  # type: ignore[attr-defined]
+        early_l=early_l,
+        early_n=len(early),
         topups=tuple(topups[len(early) :]),  # type: ignore[arg-type]
         sample=sample,
         hot=tuple(r.at for r in hot_readings(unit, recent)),  # type: ignore[arg-type, misc]
@@ -709,7 +729,9 @@ def unit_at(
     top-up filtration and hot readings laid over its kept entries."""
     flags: list[str] = []
     notes: list[str] = []
-    consumption = topup_consumption(unit, clock.topups, now, clock.first_at, clock.early_l)
+    consumption = topup_consumption(
+        unit, clock.topups, now, clock.first_at, clock.early_l, clock.early_n
+    )
     if consumption and consumption.rising:
         flags.append("leak-suspect")
         notes.append(f"fluid use is rising: {consumption.note}; look for a leak (never by hand)")

@@ -52,7 +52,8 @@ from .status import (
     LifeSummary,
     UnitClock,
     UnitStatus,
-    at_time,
+    _Ages,
+    clock_parts,
     own_failures,
     status_from,
     unit_at,
@@ -100,33 +101,42 @@ def _ages(ages: Any) -> list[float] | None:
     return None if ages is None else [ages.earliest_h, ages.likely_h, ages.latest_h]
 
 
-def _encode_clock(clock: Clock) -> dict[str, Any]:
-    data = asdict(clock)  # floats as they are: JSON keeps a float64 exactly (inf too)
-    for name in ("valid_from", "origin"):
-        data[name] = format_utc(data[name]) if data[name] else None
-    if clock.meter:
-        data["meter"] = [format_utc(clock.meter[0]), *clock.meter[1:]]
-    if clock.due_ages:
-        data["due_ages"] = [_ages(a) for a in clock.due_ages]
-    data["hot"] = [[format_utc(at), temp_c] for at, temp_c in clock.hot]
-    return data
+def _encode_clock(clock: Clock) -> list[Any]:
+    """In field order, as a list (a row is decoded on every read). Floats as they are: JSON
+    keeps a float64 exactly (inf too)."""
+    return [
+        format_utc(clock.valid_from) if clock.valid_from else None,
+        format_utc(clock.origin) if clock.origin else None,
+        [format_utc(clock.meter[0]), *clock.meter[1:]] if clock.meter else None,
+        [_ages(a) for a in clock.due_ages] if clock.due_ages else None,
+        clock.last_age_h,
+        clock.state,
+        clock.check_after_h,
+        clock.note_at,
+        clock.check_words,
+        clock.notes,
+        clock.life,
+        [[format_utc(at), temp_c] for at, temp_c in clock.hot],
+        clock.max_temp_c,
+    ]
 
 
-def _decode_clock(data: dict[str, Any]) -> Clock:
-    from .status import _Ages
+def _decode_clock(data: list[Any]) -> Clock:
+    valid_from, origin, meter, due_ages, *middle, life, hot, max_temp_c = data
+    return Clock(
+        _utc(valid_from) if valid_from else None,
+        _utc(origin) if origin else None,
+        (_utc(meter[0]), *meter[1:]) if meter else None,  # type: ignore[arg-type]
+        tuple(None if a is None else _Ages(*a) for a in due_ages) if due_ages else None,
+        *middle,
+        tuple(life) if life else None,  # type: ignore[arg-type]
+        tuple((_utc(at), temp_c) for at, temp_c in hot),
+        max_temp_c,
+    )
 
-    for name in ("valid_from", "origin"):
-        data[name] = _utc(data[name]) if data[name] else None
-    if data["meter"]:
-        data["meter"] = (_utc(data["meter"][0]), *data["meter"][1:])
-    if data["due_ages"]:
-        data["due_ages"] = tuple(None if a is None else _Ages(*a) for a in data["due_ages"])
-    data["life"] = tuple(data["life"]) if data["life"] else None
-    data["hot"] = tuple((_utc(at), temp_c) for at, temp_c in data["hot"])
-    return Clock(**data)
 
-
-def _decode(text: str) -> FilterStatus:
+def _decode(text: str, now: datetime | None = None) -> FilterStatus:
+    """A kept row; with `now`, brought to that time (`status.at_time`, in one go)."""
     data = json.loads(text)
     for name in _TIMES:
         data[name] = _utc(data[name]) if data.get(name) else None
@@ -137,7 +147,20 @@ def _decode(text: str) -> FilterStatus:
     data["life"] = LifeSummary(**data["life"]) if data.get("life") else None
     for name in ("flags", "notes", "spark"):
         data[name] = tuple(data.get(name) or ())
-    data["clock"] = _decode_clock(data["clock"]) if data.get("clock") else None
+    clock = data["clock"] = _decode_clock(data["clock"]) if data.get("clock") else None
+    if now is not None and clock is not None:
+        data.update(
+            clock_parts(
+                data["flags"],
+                data["notes"],
+                data["due"],
+                data["bypass_due"],
+                data["gauge"],
+                data["overdue_at"],
+                clock,
+                now,
+            )  # fmt: skip
+        )
     return FilterStatus(**data, history=())
 
 
@@ -241,11 +264,10 @@ def _timed(row: _Row | None, now: datetime, stale_ok: bool) -> FilterStatus | No
     set back past its newest reading)."""
     if row is None or row[1] != FORMAT or (row[3] and not stale_ok):
         return None
-    status = _decode(row[2])
-    clock = status.clock
-    if clock is None or (clock.valid_from is not None and now < clock.valid_from):
+    if now < _utc(row[0]):  # the clock set back: the row may hold later readings
         return None
-    return at_time(status, clock, now)
+    status = _decode(row[2], now)
+    return status if status.clock is not None else None
 
 
 def stale_filters(book: Book) -> list[str]:
@@ -303,7 +325,7 @@ def refresh_stale(book: Book, limit: int | None = None) -> list[str]:
 
 # ---- units ---------------------------------------------------------------------------------------
 
-UNIT_FORMAT = 2
+UNIT_FORMAT = 3
 
 
 def _unit_key(unit: Unit, filters: Sequence[FilterPosition]) -> str:
@@ -319,7 +341,8 @@ def _encode_unit(clock: UnitClock) -> str:
         {
             "valid_from": format_utc(clock.valid_from),
             "first_at": format_utc(clock.first_at) if clock.first_at else None,
-            "early_l": list(clock.early_l),
+            "early_l": clock.early_l,
+            "early_n": clock.early_n,
             "topups": [
                 [t.id, format_utc(t.at), t.volume_l, t.filtered_um, t.hours]  # type: ignore[arg-type]
                 for t in clock.topups
@@ -336,7 +359,8 @@ def _decode_unit(text: str, tag: str) -> UnitClock:
     return UnitClock(
         valid_from=_utc(data["valid_from"]),
         first_at=_utc(data["first_at"]) if data["first_at"] else None,
-        early_l=tuple(data["early_l"]),
+        early_l=data["early_l"],
+        early_n=data["early_n"],
         topups=tuple(
             TopUp(id=i, at=_utc(at), unit=tag, volume_l=v, filtered_um=um, hours=h)
             for i, at, v, um, h in data["topups"]
