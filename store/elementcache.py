@@ -179,22 +179,6 @@ def _write_elements(
     )
 
 
-def try_write(book: Book, write: Any) -> None:
-    """Write derived rows. Inside the caller's transaction (a save) a failure fails the save,
-    as any write would; on its own a read-only or busy book still answers, its cache just
-    stays as it was."""
-    if book.conn.in_transaction:
-        write()
-        return
-    if book.readonly:
-        return
-    try:
-        with book.atomic():
-            write()
-    except Exception:  # noqa: BLE001 - derived data only: the answer is right either way
-        pass
-
-
 @dataclass(frozen=True)
 class Elements:
     """A position's elements as the live entries stand."""
@@ -204,10 +188,17 @@ class Elements:
     changed: bool  # the removed elements differ from what the cache held before
 
 
-def elements_now(book: Book, ctx: FilterContext) -> Elements:
+def elements_now(book: Book, ctx: FilterContext, keep: bool = False) -> Elements:
     """The summaries of every removed element and the element in service, as the live entries
     stand: from the element cache and the entries since the last cached change, the cache
-    checked, extended or rebuilt as needed (and kept when the book can be written)."""
+    checked, extended or rebuilt as needed. `keep` writes what was brought up to date (the
+    write path and an explicit refresh, in their transaction); a read writes nothing."""
+
+    def write(past: list[ElementSummary], start: int) -> None:
+        if keep:
+            with book.atomic():
+                _write_elements(book, tag, key, seen, past, start)
+
     tag = ctx.position.tag
     key = context_key(ctx)
     seen = max_rowid(book)
@@ -220,7 +211,7 @@ def elements_now(book: Book, ctx: FilterContext) -> Elements:
                 "SELECT removal_id FROM element_cache WHERE filter = ? ORDER BY seq", [tag]
             )
         ]
-        try_write(book, lambda: _write_elements(book, tag, key, seen, past, 0))
+        write(past, 0)
         return Elements(past, current, before != [el.removal_id for el in past])
     past = [
         _decode_element(text, curve)
@@ -234,5 +225,5 @@ def elements_now(book: Book, ctx: FilterContext) -> Elements:
     if new or seen != state.seen_rowid:
         start = len(past)
         past += new
-        try_write(book, lambda: _write_elements(book, tag, key, seen, past, start))
+        write(past, start)
     return Elements(past, current, bool(new))

@@ -30,11 +30,18 @@ class Consumption:
 
 
 def topup_consumption(
-    unit: Unit, topups: Sequence[TopUp], now: datetime, first_entry: datetime | None
+    unit: Unit,
+    topups: Sequence[TopUp],
+    now: datetime,
+    first_entry: datetime | None,
+    earlier_l: float = 0,
+    earlier_n: int = 0,
 ) -> Consumption | None:
-    """Compare the last four weeks' top-ups with the unit's own earlier rate."""
+    """Compare the last four weeks' top-ups with the unit's own earlier rate. `earlier_l`,
+    `earlier_n`: the volume (added up in time order) and count of live top-ups before
+    `topups` and before the last four weeks (a kept status holds those as one sum)."""
     live = [t for t in topups if not t.voided and t.at <= now]  # type: ignore[operator]
-    if not live or first_entry is None:
+    if not (live or earlier_n) or first_entry is None:
         return None
     recent_start = now - timedelta(days=RECENT_DAYS)
     recent = sum(t.volume_l for t in live if t.at > recent_start)  # type: ignore[operator]
@@ -42,7 +49,10 @@ def topup_consumption(
     history_days = (recent_start - first_entry).total_seconds() / 86400
     history_rate = None
     if history_days >= MIN_HISTORY_DAYS:
-        earlier = sum(t.volume_l for t in live if t.at <= recent_start)  # type: ignore[operator]
+        earlier = earlier_l  # added up in order, so that a kept sum carries on exactly
+        for t in live:
+            if t.at <= recent_start:  # type: ignore[operator]
+                earlier += t.volume_l
         history_rate = earlier / (history_days / 7)
     per_100h = None
     with_hours = [t for t in live if t.hours is not None and t.at > recent_start]  # type: ignore[operator]

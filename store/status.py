@@ -12,10 +12,12 @@ Flag codes (also listed in the README):
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from datetime import datetime, timedelta
-from typing import TYPE_CHECKING, Any
+from functools import partial
+from typing import TYPE_CHECKING, Any, NamedTuple
 
 from .book import Book
 from .conditions import FilterContext, contexts_from
@@ -28,7 +30,7 @@ from .elements import (
     summarise,
     with_running_rate,
 )
-from .entries import Entry
+from .entries import Entry, TopUp
 from .errors import BookError
 from .fluidcare import (
     BreatherForecast,
@@ -50,9 +52,6 @@ if TYPE_CHECKING:  # the fitting maths (numpy, scipy) load on first use: a watch
     from . import trend  # from the status cache needs none of it
     from .life import WeibullFit
 
-# A cached status is recomputed when older than this: its time-dependent parts (element age,
-# hot readings of the last 7 days, the windows of the fluid-care figures) move on.
-CACHE_MAX_AGE = timedelta(hours=24)
 # Dirty oil is reaching the system now (or the element is gone): these sort first.
 URGENT_FLAGS = ("dp-drop", "at-bypass", "indicator-bypass")
 HOT_LOOKBACK = timedelta(days=7)
@@ -85,9 +84,16 @@ class Due:
 
 
 MAX_AGE_H = 20 * 8766.0  # twenty years of element age: later "dates" are no dates
+_LIFE_P = (0.05, 0.10, 0.50)  # service-life due: 5 %, 10 % (the planned change), 50 % points
 
 
-def _due(interval: trend.AgeInterval | None, age_to_time: Any) -> Due | None:
+class _Ages(NamedTuple):  # an age interval, as trend.AgeInterval (without numpy)
+    earliest_h: float
+    likely_h: float
+    latest_h: float
+
+
+def _due(interval: trend.AgeInterval | _Ages | None, age_to_time: Any) -> Due | None:
     if interval is None:
         return None
 
@@ -107,6 +113,116 @@ class LifeSummary:
     n_failed: int
     n_censored: int
     pooled: bool  # includes like positions (same element)
+
+
+def weibull_remaining_h(shape: float, scale_h: float, age_h: float, p: float) -> float:
+    """`life.WeibullFit.remaining_quantile_h` without numpy (the same sums): hours beyond
+    age_h by which a share p of elements that survived to age_h reach the limit."""
+    z = (max(age_h, 0.0) / scale_h) ** shape
+    return scale_h * (z - math.log1p(-p)) ** (1.0 / shape) - max(age_h, 0.0)
+
+
+@dataclass(frozen=True)
+class Clock:
+    """What of a filter's status moves with the clock alone, and what it moves from (the
+    entries only). The status cache keeps it beside the row, so that `at_time` gives the
+    status at any later time without the fitting maths (`status_from` ends with it too).
+
+    Good for any time from `valid_from` on (the newest reading of the element in service, or
+    the time it was computed at, whichever is earlier): older hot readings no longer count."""
+
+    valid_from: datetime | None
+    origin: datetime | None  # calendar ages count from here (None: not known, age 0 now) ...
+    meter: tuple[datetime, float, float] | None  # ... or (last meter time, age then, h/day)
+    due_ages: tuple[Any, Any] | None  # without an origin: the due ages, dated from now
+    last_age_h: float  # the newest reading's age: the forecast's "now" is never earlier
+    state: str  # the state before the clock's say (check-now, indicator-only)
+    check_after_h: float | None  # an "ok" element is "check-now" once older than this
+    note_at: int  # index of the forecast's note in the notes (-1: none) ...
+    check_words: str  # ... and what it says after its "ok" words once it is "check-now"
+    notes: int  # notes that do not move with the clock (the hot note follows them)
+    life: tuple[float, float] | None  # Weibull (shape, scale_h): service-life due, given age
+    hot: tuple[tuple[datetime, float], ...]  # (time, °C) of hot readings that can still count
+    max_temp_c: float
+
+    def age_h(self, now: datetime) -> float:
+        """The element's age at `now`: operating hours at the recent rate, or calendar hours."""
+        if self.meter is not None:
+            last_t, age_then, rate = self.meter
+            return age_then + rate * (now - last_t).total_seconds() / 86400
+        return max((now - (self.origin or now)).total_seconds() / 3600, 0.0)
+
+    def time_at(self, age_h: float, now: datetime) -> datetime:
+        """When the element reaches an age."""
+        if self.meter is not None:
+            last_t, age_then, rate = self.meter
+            return last_t + timedelta(days=(age_h - age_then) / rate)
+        return (self.origin or now) + timedelta(hours=age_h)
+
+
+CLOCK_FLAGS = ("reading-overdue", "hot")  # the flags `at_time` sets (always the last ones)
+
+
+def at_time(status: FilterStatus, clock: Clock, now: datetime) -> FilterStatus:
+    """The status at `now` (not before `clock.valid_from`): the element's age, check-now,
+    a service-life due given the age so far, reading-overdue and hot, from the status
+    computed at any other time."""
+    parts = clock_parts(
+        status.flags, status.notes, status.due, status.bypass_due, status.gauge,
+        status.overdue_at, clock, now,
+    )  # fmt: skip
+    return replace(status, **parts, clock=clock)
+
+
+def clock_parts(
+    flags_then: Sequence[str],
+    notes_then: Sequence[str],
+    due: Due | None,
+    bypass_due: Due | None,
+    gauge: bool,
+    overdue_at: datetime | None,
+    clock: Clock,
+    now: datetime,
+) -> dict[str, Any]:
+    """The fields of a status that `at_time` sets, from the ones it reads (a kept row is
+    decoded straight into them)."""
+    age_now = clock.age_h(now)
+    state = clock.state
+    time_at = partial(clock.time_at, now=now)
+    if clock.due_ages is not None:
+        due, bypass_due = (_due(ages, time_at) for ages in clock.due_ages)
+    if clock.check_after_h is not None and state == "ok":
+        if clock.check_after_h <= max(age_now, clock.last_age_h):
+            state = "check-now"
+    if clock.life is not None:
+        shape, scale_h = clock.life
+        due = _due(
+            _Ages(*(age_now + weibull_remaining_h(shape, scale_h, age_now, p) for p in _LIFE_P)),
+            time_at,
+        )
+    if not gauge and due is None and state in ("no-readings", "too-few-readings"):
+        state = "indicator-only"
+    flags = [f for f in flags_then if f not in CLOCK_FLAGS]
+    notes = list(notes_then[: clock.notes])
+    if clock.note_at >= 0:
+        note = notes[clock.note_at].removesuffix(clock.check_words)
+        notes[clock.note_at] = note + clock.check_words if state == "check-now" else note
+    if overdue_at and now > overdue_at:
+        flags.append("reading-overdue")
+    recent_hot = [temp_c for at, temp_c in clock.hot if now - at <= HOT_LOOKBACK]
+    if recent_hot:
+        flags.append("hot")
+        notes.append(
+            f"fluid at {max(recent_hot):.0f} °C, over the unit's {clock.max_temp_c:g} °C limit"
+        )
+    return {
+        "state": state,
+        "due": due,
+        "bypass_due": bypass_due,
+        "flags": tuple(dict.fromkeys(flags)),
+        "notes": tuple(notes),
+        "element_age_h": age_now,
+    }
 
 
 @dataclass(frozen=True)
@@ -142,6 +258,7 @@ class FilterStatus:
     pace: float | None = None  # earlier lives / this element's likely life (> 1: faster)
     forecast: trend.Forecast | None = field(default=None, compare=False)
     age_to_time: Any = field(default=None, compare=False)  # element age (h) -> datetime
+    clock: Clock | None = field(default=None, compare=False)  # what moves with the clock
 
     @property
     def urgency(self) -> tuple:
@@ -298,19 +415,36 @@ def status_from(
     points = current.points
     numeric = [p for p in points if p.dp_ref_bar is not None]
     last = points[-1] if points else None
-    origin = current.fitted_at or (points[0].at if points else now)
+    origin = current.fitted_at or (points[0].at if points else None)
+    meter = None
     if rate and current.fitted_hours is not None:
         last_h = max([p.hours for p in points if p.hours is not None] or [current.fitted_hours])
-        last_t = max([p.at for p in points if p.hours is not None] or [origin])
-        age_now = last_h - current.fitted_hours + rate * (now - last_t).total_seconds() / 86400
-
-        def age_to_time(age_h: float, _h=last_h - current.fitted_hours, _t=last_t) -> datetime:
-            return _t + timedelta(days=(age_h - _h) / rate)
-    else:
-        age_now = max((now - origin).total_seconds() / 3600, 0.0)
-
-        def age_to_time(age_h: float, _o=origin) -> datetime:
-            return _o + timedelta(hours=age_h)
+        last_t = max([p.at for p in points if p.hours is not None] or [origin or now])
+        meter = (last_t, last_h - current.fitted_hours, rate)
+    newest = max((p.at for p in points), default=None)
+    hot_since = min(now, newest) if newest else now
+    clock = Clock(  # what moves with the clock; the forecast's parts are filled in below
+        valid_from=hot_since if newest else None,
+        origin=origin,
+        meter=meter,
+        due_ages=None,
+        last_age_h=max((p.age_h for p in numeric), default=0.0),
+        state="",
+        check_after_h=None,
+        note_at=-1,
+        check_words="",
+        notes=0,
+        life=None,
+        hot=tuple(
+            (p.at, p.temp_c)
+            for p in points
+            if p.temp_c is not None
+            and p.temp_c > unit.max_temp_c
+            and p.at >= hot_since - HOT_LOOKBACK
+        ),
+        max_temp_c=unit.max_temp_c,
+    )
+    age_now, age_to_time = clock.age_h(now), partial(clock.time_at, now=now)
 
     flags: list[str] = []
     notes: list[str] = []
@@ -353,10 +487,22 @@ def status_from(
             notes.append(f"no forecast: {exc}")
         if forecast is not None:
             basis, state = forecast.basis, forecast.state
+            if state in ("ok", "check-now") and forecast.to_limit is not None:
+                # check-now moves with the clock: keep the "ok" state and both notes.
+                words = trend._state_text("check-now", clock.last_age_h)
+                state = "ok"
+                clock = replace(
+                    clock,
+                    check_after_h=forecast.to_limit.likely_h,
+                    note_at=len(notes),
+                    check_words=words,
+                )
             if forecast.note:
                 notes.append(forecast.note)
             due = _due(forecast.to_limit, age_to_time)
             bypass_due = _due(forecast.to_bypass, age_to_time)
+            if clock.origin is None:  # dated from now: at_time dates them again
+                clock = replace(clock, due_ages=(forecast.to_limit, forecast.to_bypass))
     pace = _pace(ctx, past, forecast)
     if pace is not None and pace.fast:
         flags.append("fast-loading")
@@ -373,20 +519,14 @@ def status_from(
     ):
         basis = "service-life"
         b10 = fit.age_at_fraction_h(0.10)
-        # Given it has lasted this long: the 5 %, 10 % (the planned change) and 50 % points.
-        due = _due(
-            trend.AgeInterval(
-                *(age_now + fit.remaining_quantile_h(age_now, p) for p in (0.05, 0.10, 0.50))
-            ),
-            age_to_time,
-        )
+        # Given it has lasted this long: the 5 %, 10 % (the planned change) and 50 % points
+        # (at_time works them out for the age now).
+        clock = replace(clock, life=(fit.shape, fit.scale_h))
         notes.append(
             f"planned from earlier element lives: 10 % reach the limit by {b10:.0f} h of service"
         )
     if due is None and basis == "none" and not pos.gauge:
         basis = "interval"
-    if not pos.gauge and due is None and state in ("no-readings", "too-few-readings"):
-        state = "indicator-only"
 
     dp_ref = numeric[-1].dp_ref_bar if numeric else None
     percent = 100 * dp_ref / pos.limit_bar if dp_ref is not None and pos.limit_bar else None
@@ -436,20 +576,8 @@ def status_from(
         [p.at for p in points] + ([current.fitted_at] if current.fitted_at else []), default=None
     )
     overdue_at = last_seen + timedelta(hours=pos.reading_interval_h * 1.5) if last_seen else None
-    if overdue_at and now > overdue_at:
-        flags.append("reading-overdue")
-    recent_hot = [
-        p
-        for p in points
-        if p.temp_c is not None and p.temp_c > unit.max_temp_c and now - p.at <= HOT_LOOKBACK
-    ]
-    if recent_hot:
-        flags.append("hot")
-        notes.append(
-            f"fluid at {max(p.temp_c for p in recent_hot):.0f} °C, over the unit's "  # type: ignore[type-var]
-            f"{unit.max_temp_c:g} °C limit"
-        )
-    return FilterStatus(
+    clock = replace(clock, state=state, notes=len(notes))
+    status = FilterStatus(
         filter=pos.tag,
         unit=pos.unit,
         kind=pos.kind,
@@ -482,6 +610,7 @@ def status_from(
         forecast=forecast,
         age_to_time=age_to_time,
     )
+    return at_time(status, clock, now)
 
 
 def status_of(book: Book, ctx: FilterContext, as_of: datetime | None = None) -> FilterStatus:
@@ -509,12 +638,13 @@ def watch(
     book: Book,
     as_of: datetime | None = None,
     unit: str | None = None,
-    max_age: timedelta | None = CACHE_MAX_AGE,
+    stale_ok: bool = False,
 ) -> Watch:
-    """The watch list. Now: from the status caches (kept fresh on every write; rows older
-    than max_age are recomputed first, max_age None takes them as they are, for a screen
-    that shows the list at once and has `statuscache.refresh_stale` catch up behind it);
-    as of a past time: computed from the entries as they stood then."""
+    """The watch list. Now: from the status caches (kept on every write; what moves with
+    the clock is worked out at read time). Rows marked stale (a like position's lives
+    changed) are recomputed in memory first, unless `stale_ok`: a screen that shows the list
+    at once and has `statuscache.refresh_stale` catch up behind it. As of a past time:
+    computed from the entries as they stood then. Never writes."""
     now = as_of or book.now()
     all_units, positions = list_all(book, Unit), list_all(book, FilterPosition)
     ctxs = [
@@ -529,8 +659,8 @@ def watch(
     if as_of is None:
         from .statuscache import cached_filters, cached_units
 
-        filters = cached_filters(book, ctxs, now, max_age)
-        units = cached_units(book, unit_records, by_unit, now, max_age)
+        filters = cached_filters(book, ctxs, now, stale_ok)
+        units = cached_units(book, unit_records, by_unit, now)
     else:
         filters = [status_of(book, c, now) for c in ctxs]
         units = [unit_status(book, u, by_unit.get(u.tag.upper(), []), now) for u in unit_records]
@@ -556,29 +686,36 @@ def _breather_status(breather: Breather, swaps: Sequence[Entry], now: datetime) 
     return BreatherStatus(breather.tag, breather.unit, breather.kind, forecast, tuple(flags))
 
 
-def unit_status(
-    book: Book, unit: Unit, filters: Sequence[FilterPosition], now: datetime
-) -> UnitStatus:
-    """A unit's fluid care: top-up use, top-up filtration, latest sample, hot readings."""
+TOPUP_WINDOW = timedelta(days=30)  # a top-up's filtration is flagged this long
+
+
+@dataclass(frozen=True)
+class UnitClock:
+    """What a unit's status is worked out from at any time from `valid_from` on (when it was
+    computed): the entries only, so the status cache keeps it instead of the status."""
+
+    valid_from: datetime
+    first_at: datetime | None  # the unit's first entry: its top-up history starts there
+    early_l: float  # live top-ups before every window from valid_from on: volume, added up
+    early_n: int  # ... in time order, and how many
+    topups: tuple[TopUp, ...]  # the later live top-ups, oldest first
+    sample: tuple[str | None, str, bool | None] | None  # latest sample: code, words, meets
+    hot: tuple[datetime, ...]  # readings over the unit's limit that can still count
+
+
+def unit_clock(book: Book, unit: Unit, now: datetime) -> UnitClock:
+    """A unit's fluid-care entries as they stand at `now`."""
     until = now + timedelta(seconds=1)
-    flags: list[str] = []
-    notes: list[str] = []
     topups = [
         e
         for e in read(book, unit=unit.tag, kinds=["topup"], until=until, as_of=until)
         if not e.voided
     ]
     first = read(book, unit=unit.tag, until=until, limit=1)
-    consumption = topup_consumption(unit, topups, now, first[0].at if first else None)  # type: ignore[arg-type]
-    if consumption and consumption.rising:
-        flags.append("leak-suspect")
-        notes.append(f"fluid use is rising: {consumption.note}; look for a leak (never by hand)")
-    for t in topups:
-        if t.at and now - t.at <= timedelta(days=30):
-            problem = topup_filtration_problem(t, filters)  # type: ignore[arg-type]
-            if problem:
-                flags.append("unfiltered-topup" if t.filtered_um is None else "coarse-topup")  # type: ignore[attr-defined]
-                notes.append(problem)
+    early = [t for t in topups if t.at < now - TOPUP_WINDOW]  # type: ignore[operator]
+    early_l = 0  # as topup_consumption adds them up
+    for t in early:
+        early_l += t.volume_l  # type: ignore[attr-defined]
     samples = [
         e
         for e in read(
@@ -592,13 +729,10 @@ def unit_status(
         )
         if not e.voided and e.code
     ]  # type: ignore[attr-defined]
-    code = sample_text = None
+    sample = None
     if samples:
         verdict = sample_verdict(unit, samples[0])  # type: ignore[arg-type]
-        code, sample_text = verdict.code, verdict.text
-        if verdict.meets is False:
-            flags.append("over-target")
-            notes.append(f"latest sample {verdict.text}")
+        sample = (verdict.code, verdict.text, verdict.meets)
     recent = [
         e
         for e in read(
@@ -611,7 +745,43 @@ def unit_status(
         )
         if not e.voided
     ]
-    if hot_readings(unit, recent):  # type: ignore[arg-type]
+    return UnitClock(
+        valid_from=now,
+        first_at=first[0].at if first else None,
+        early_l=early_l,
+        early_n=len(early),
+        topups=tuple(topups[len(early) :]),  # type: ignore[arg-type]
+        sample=sample,
+        hot=tuple(r.at for r in hot_readings(unit, recent)),  # type: ignore[arg-type, misc]
+    )
+
+
+def unit_at(
+    unit: Unit, filters: Sequence[FilterPosition], clock: UnitClock, now: datetime
+) -> UnitStatus:
+    """A unit's status at `now` (not before `clock.valid_from`): the windows of top-up use,
+    top-up filtration and hot readings laid over its kept entries."""
+    flags: list[str] = []
+    notes: list[str] = []
+    consumption = topup_consumption(
+        unit, clock.topups, now, clock.first_at, clock.early_l, clock.early_n
+    )
+    if consumption and consumption.rising:
+        flags.append("leak-suspect")
+        notes.append(f"fluid use is rising: {consumption.note}; look for a leak (never by hand)")
+    for t in clock.topups:
+        if t.at and now - t.at <= TOPUP_WINDOW:
+            problem = topup_filtration_problem(t, filters)
+            if problem:
+                flags.append("unfiltered-topup" if t.filtered_um is None else "coarse-topup")
+                notes.append(problem)
+    code = sample_text = None
+    if clock.sample:
+        code, sample_text, meets = clock.sample
+        if meets is False:
+            flags.append("over-target")
+            notes.append(f"latest sample {sample_text}")
+    if any(now - at <= HOT_LOOKBACK for at in clock.hot):
         flags.append("hot")
     return UnitStatus(
         unit.tag,
@@ -624,6 +794,13 @@ def unit_status(
         tuple(dict.fromkeys(flags)),
         tuple(notes),
     )
+
+
+def unit_status(
+    book: Book, unit: Unit, filters: Sequence[FilterPosition], now: datetime
+) -> UnitStatus:
+    """A unit's fluid care: top-up use, top-up filtration, latest sample, hot readings."""
+    return unit_at(unit, filters, unit_clock(book, unit, now), now)
 
 
 # ---- JSON ----------------------------------------------------------------------------------------

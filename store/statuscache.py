@@ -5,17 +5,27 @@
   last element change;
 - `unit_cache`: each unit's fluid-care status (top-ups, samples, hot readings).
 
-Derived tables: `rebuild()` (`sumpbook rebuild`) recomputes them and the element cache from the
-entries at any time, and nothing reads them for an audit (`watch(as_of=...)` always computes
-from the entries).
+Time-proof: a row holds what changes only with the entries (the fitted forecast as element
+ages and calendar dates, summaries, flags of the readings) and, for a filter, its
+`status.Clock`; the parts that move with the clock (element age, check-now, a service-life
+due given the age so far, reading-overdue, hot) are worked out from those at read time
+(`status.at_time`), and a unit's windows from its kept top-ups and hot readings
+(`status.unit_at`). A row is never too old to use.
+
+Reads never write. Rows are written by the write path (`after_entry`, in the save's
+transaction) and by an explicit refresh: `refresh_stale` (the app's catch-up behind a list
+with rows marked stale or of an old format) and `rebuild()` (`sumpbook rebuild`), which
+recomputes them and the element cache from the entries at any time. A read that finds a row
+missing, stale or of an old format computes it in memory and leaves the book as it was.
+Nothing reads them for an audit (`watch(as_of=...)` always computes from the entries).
 """
 
 from __future__ import annotations
 
 import json
 from collections.abc import Sequence
-from dataclasses import asdict, dataclass, fields, replace
-from datetime import datetime, timedelta
+from dataclasses import asdict, dataclass, fields
+from datetime import datetime
 from typing import Any
 
 from .book import Book
@@ -26,30 +36,31 @@ from .elementcache import (
     elements_now,
     encode_element,
     max_rowid,
-    try_write,
 )
 from .elements import split_summaries
-from .entries import Entry, Reading, Void
-from .fluidcare import Consumption
+from .entries import Entry, Reading, TopUp, Void
 from .journal import element_items, parse_stamp
 from .lives import like_lives, like_lives_from, like_positions, live_changes
 from .normalise import ColdStart
 from .register import FilterPosition, Unit, find, list_all
 from .status import (
-    CACHE_MAX_AGE,
+    Clock,
     Due,
     FilterStatus,
     LifeSummary,
+    UnitClock,
     UnitStatus,
+    _Ages,
+    clock_parts,
     own_failures,
     status_from,
-    unit_status,
+    unit_at,
+    unit_clock,
 )
 from .timeutil import format_utc
 
-FORMAT = 2  # bump when the stored status shape changes: old rows are then recomputed
-MAX_AGE = CACHE_MAX_AGE  # time-dependent parts (age, hot flag) are refreshed daily
-_SKIP = ("history", "forecast", "age_to_time")
+FORMAT = 3  # bump when the stored status shape changes: old rows are then recomputed
+_SKIP = ("history", "forecast", "age_to_time", "clock")
 _TIMES = ("reading_at", "changed_at", "overdue_at")
 _utc = parse_stamp
 
@@ -80,10 +91,50 @@ def _encode(status: FilterStatus) -> str:
         elif f.name in ("cold", "life"):
             value = None if value is None else asdict(value)
         data[f.name] = value
+    data["clock"] = _encode_clock(status.clock) if status.clock else None
     return json.dumps(data, ensure_ascii=False)
 
 
-def _decode(text: str) -> FilterStatus:
+def _ages(ages: Any) -> list[float] | None:
+    return None if ages is None else [ages.earliest_h, ages.likely_h, ages.latest_h]
+
+
+def _encode_clock(clock: Clock) -> list[Any]:
+    """In field order, as a list (a row is decoded on every read). Floats as they are: JSON
+    keeps a float64 exactly (inf too)."""
+    return [
+        format_utc(clock.valid_from) if clock.valid_from else None,
+        format_utc(clock.origin) if clock.origin else None,
+        [format_utc(clock.meter[0]), *clock.meter[1:]] if clock.meter else None,
+        [_ages(a) for a in clock.due_ages] if clock.due_ages else None,
+        clock.last_age_h,
+        clock.state,
+        clock.check_after_h,
+        clock.note_at,
+        clock.check_words,
+        clock.notes,
+        clock.life,
+        [[format_utc(at), temp_c] for at, temp_c in clock.hot],
+        clock.max_temp_c,
+    ]
+
+
+def _decode_clock(data: list[Any]) -> Clock:
+    valid_from, origin, meter, due_ages, *middle, life, hot, max_temp_c = data
+    return Clock(
+        _utc(valid_from) if valid_from else None,
+        _utc(origin) if origin else None,
+        (_utc(meter[0]), *meter[1:]) if meter else None,  # type: ignore[arg-type]
+        tuple(None if a is None else _Ages(*a) for a in due_ages) if due_ages else None,
+        *middle,
+        tuple(life) if life else None,  # type: ignore[arg-type]
+        tuple((_utc(at), temp_c) for at, temp_c in hot),
+        max_temp_c,
+    )
+
+
+def _decode(text: str, now: datetime | None = None) -> FilterStatus:
+    """A kept row; with `now`, brought to that time (`status.at_time`, in one go)."""
     data = json.loads(text)
     for name in _TIMES:
         data[name] = _utc(data[name]) if data.get(name) else None
@@ -94,6 +145,20 @@ def _decode(text: str) -> FilterStatus:
     data["life"] = LifeSummary(**data["life"]) if data.get("life") else None
     for name in ("flags", "notes", "spark"):
         data[name] = tuple(data.get(name) or ())
+    clock = data["clock"] = _decode_clock(data["clock"]) if data.get("clock") else None
+    if now is not None and clock is not None:
+        data.update(
+            clock_parts(
+                data["flags"],
+                data["notes"],
+                data["due"],
+                data["bypass_due"],
+                data["gauge"],
+                data["overdue_at"],
+                clock,
+                now,
+            )  # fmt: skip
+        )
     return FilterStatus(**data, history=())
 
 
@@ -112,7 +177,7 @@ def store_status(book: Book, status: FilterStatus, now: datetime, pools: bool = 
 def filter_view(book: Book, tag: str) -> tuple[FilterStatus, Elements]:
     """What the filter sheet shows, now: the full status (curve, history, forecast) and every
     element's summary, from the element cache and the entries since the last change (no
-    rereading of the position's history)."""
+    rereading of the position's history; nothing written)."""
     ctx = context(book, tag)
     els = elements_now(book, ctx)
     status = status_from(ctx, els.past, els.current, book.now(), like_lives(book, ctx, None))
@@ -127,11 +192,14 @@ def live_status(
     ctx: FilterContext,
     now: datetime | None = None,
     like: Sequence[tuple[float, bool]] | None = None,
+    keep: bool = False,
 ) -> tuple[FilterStatus, bool, bool]:
     """One filter's status now (the same as `filter_status` computes from every live entry);
-    whether it leans on like positions' lives; whether its removed elements changed."""
+    whether it leans on like positions' lives; whether its removed elements changed.
+    `keep`: bring the element cache up to date (the write path and a refresh only, inside
+    their transaction); otherwise nothing is written."""
     now = now or book.now()
-    els = elements_now(book, ctx)
+    els = elements_now(book, ctx, keep=keep)
     if like is None:
         like = like_lives(book, ctx, None)
     status = status_from(ctx, els.past, els.current, now, like)
@@ -152,7 +220,7 @@ def after_entry(book: Book, entry: Entry) -> None:
     if not tag:
         return
     ctx = context(book, tag)
-    status, pools, changed = live_status(book, ctx)
+    status, pools, changed = live_status(book, ctx, keep=True)
     store_status(book, status, book.now(), pools)
     if changed:
         like = [p.tag for p in like_positions(list_all(book, FilterPosition), ctx)]
@@ -166,21 +234,14 @@ def after_entry(book: Book, entry: Entry) -> None:
 
 
 def refresh(book: Book, ctx: FilterContext) -> FilterStatus:
-    """Recompute one filter's status now and keep it."""
+    """An explicit refresh: recompute one filter's status now and keep it (with its element
+    summaries) in one transaction, or in the caller's."""
     now = book.now()
-    status, pools, _ = live_status(book, ctx, now)
-    try_write(book, lambda: store_status(book, status, now, pools))
+    status, pools, _ = live_status(book, ctx, now)  # the fitting, before the write lock
+    with book.atomic():
+        elements_now(book, ctx, keep=True)
+        store_status(book, status, now, pools)
     return status
-
-
-def _with_time(status: FilterStatus, now: datetime) -> FilterStatus:
-    """Adjust the overdue flag for the time that has passed since the row was computed."""
-    flags = [f for f in status.flags if f != "reading-overdue"]
-    if status.overdue_at and now > status.overdue_at:
-        flags.append("reading-overdue")
-    if tuple(flags) == status.flags:
-        return status
-    return replace(status, flags=tuple(flags))
 
 
 _Row = tuple[str, int, str, int]  # computed_utc, format, data, stale
@@ -195,65 +256,74 @@ def _rows(book: Book) -> dict[str, _Row]:
     }
 
 
-def _usable(row: _Row | None, now: datetime, max_age: timedelta | None) -> bool:
-    """A row to show as it is: of this format, and (unless max_age is None, which takes any
-    such row) not marked stale and computed no longer than max_age ago."""
-    if row is None or row[1] != FORMAT:
-        return False
-    if max_age is None:
-        return True
-    computed = _utc(row[0])
-    return not row[3] and computed <= now and now - computed <= max_age
+def _timed(row: _Row | None, now: datetime, stale_ok: bool) -> FilterStatus | None:
+    """The kept status at `now`, or None where it must be recomputed: missing, of another
+    format, marked stale (unless stale_ok), or read at a time before it holds for (the clock
+    set back past its newest reading)."""
+    if row is None or row[1] != FORMAT or (row[3] and not stale_ok):
+        return None
+    if now < _utc(row[0]):  # the clock set back: the row may hold later readings
+        return None
+    status = _decode(row[2], now)
+    return status if status.clock is not None else None
 
 
-def stale_filters(book: Book, max_age: timedelta = MAX_AGE) -> list[str]:
-    """Tags whose cached status is missing, of an old format, marked stale or older than
-    max_age: what a background refresh should recompute (no contexts built: a screen that
-    shows the kept rows at once counts them too)."""
-    now, rows = book.now(), _rows(book)
+def stale_filters(book: Book) -> list[str]:
+    """Tags whose kept status is missing, of an old format or marked stale: what a refresh
+    should recompute (no contexts built: a screen that shows the kept rows at once counts
+    them too). Age alone never makes a row stale."""
+    rows = _rows(book)
     tags = book.conn.execute("SELECT tag FROM filters ORDER BY tag")
-    return [tag for (tag,) in tags if not _usable(rows.get(tag.upper()), now, max_age)]
+    return [
+        tag
+        for (tag,) in tags
+        if (row := rows.get(tag.upper())) is None or row[1] != FORMAT or row[3]
+    ]
 
 
 def cached_filters(
     book: Book,
     ctxs: Sequence[FilterContext],
     now: datetime,
-    max_age: timedelta | None = MAX_AGE,
+    stale_ok: bool = False,
 ) -> list[FilterStatus]:
-    """Every filter's status from the cache, recomputing rows that are missing or stale.
+    """Every filter's status at `now` from the cache, however long ago it was kept; rows
+    that are missing, of an old format or marked stale are computed in memory (nothing is
+    written: `refresh_stale` keeps them).
 
-    max_age None takes any cached row however old or marked stale (its overdue flag still
-    follows the clock): a screen can show that at once and let `refresh_stale` catch up in
-    the background. Only missing rows are then computed."""
+    stale_ok takes rows marked stale as they are: a screen can show that at once and let
+    `refresh_stale` catch up in the background."""
     rows = _rows(book)
     result: list[FilterStatus] = []
-    fresh: list[tuple[FilterStatus, bool]] = []
     for ctx in ctxs:
-        row = rows.get(ctx.position.tag.upper())
-        if _usable(row, now, max_age):
-            result.append(_with_time(_decode(row[2]), now))  # type: ignore[index]
-            continue
-        status, pools, _ = live_status(book, ctx, now)
-        fresh.append((status, pools))
+        status = _timed(rows.get(ctx.position.tag.upper()), now, stale_ok)
+        if status is None:
+            status = live_status(book, ctx, now)[0]
         result.append(status)
-    if fresh:
-        try_write(book, lambda: [store_status(book, s, now, p) for s, p in fresh])
     return result
 
 
-def refresh_stale(book: Book, max_age: timedelta = MAX_AGE, limit: int | None = None) -> list[str]:
-    """Recompute (at most `limit`) stale rows and keep them; returns the tags done."""
+def refresh_stale(book: Book, limit: int | None = None) -> list[str]:
+    """The explicit refresh behind a watch list: recompute (at most `limit`) rows that are
+    missing, of an old format or marked stale, and keep them, each in its own transaction.
+    A read-only book is left as it is. Returns the tags done."""
+    if book.readonly:
+        return []
     ctxs = contexts(book)
-    tags = stale_filters(book, max_age)[:limit]
+    tags = stale_filters(book)[:limit]
     for tag in tags:
         refresh(book, ctxs[tag.upper()])
+    units = _stale_units(book)
+    if units:
+        with book.atomic():
+            for tag in units:
+                refresh_unit(book, tag)
     return tags
 
 
 # ---- units ---------------------------------------------------------------------------------------
 
-UNIT_FORMAT = 1
+UNIT_FORMAT = 3
 
 
 def _unit_key(unit: Unit, filters: Sequence[FilterPosition]) -> str:
@@ -264,22 +334,58 @@ def _unit_key(unit: Unit, filters: Sequence[FilterPosition]) -> str:
     )
 
 
-def _encode_unit(status: UnitStatus) -> str:
-    return json.dumps(asdict(status), ensure_ascii=False)
+def _encode_unit(clock: UnitClock) -> str:
+    return json.dumps(
+        {
+            "valid_from": format_utc(clock.valid_from),
+            "first_at": format_utc(clock.first_at) if clock.first_at else None,
+            "early_l": clock.early_l,
+            "early_n": clock.early_n,
+            "topups": [
+                [t.id, format_utc(t.at), t.volume_l, t.filtered_um, t.hours]  # type: ignore[arg-type]
+                for t in clock.topups
+            ],
+            "sample": clock.sample,
+            "hot": [format_utc(at) for at in clock.hot],
+        },
+        ensure_ascii=False,
+    )
 
 
-def _decode_unit(text: str) -> UnitStatus:
+def _decode_unit(text: str, tag: str) -> UnitClock:
     data = json.loads(text)
-    data["consumption"] = Consumption(**data["consumption"]) if data["consumption"] else None
-    data["flags"], data["notes"] = tuple(data["flags"]), tuple(data["notes"])
-    return UnitStatus(**data)
+    return UnitClock(
+        valid_from=_utc(data["valid_from"]),
+        first_at=_utc(data["first_at"]) if data["first_at"] else None,
+        early_l=data["early_l"],
+        early_n=data["early_n"],
+        topups=tuple(
+            TopUp(id=i, at=_utc(at), unit=tag, volume_l=v, filtered_um=um, hours=h)
+            for i, at, v, um, h in data["topups"]
+        ),
+        sample=tuple(data["sample"]) if data["sample"] else None,  # type: ignore[arg-type]
+        hot=tuple(_utc(at) for at in data["hot"]),
+    )
 
 
-def _store_unit(book: Book, status: UnitStatus, key: str, now: datetime) -> None:
+def _store_unit(book: Book, tag: str, clock: UnitClock, key: str) -> None:
     book.conn.execute(
         "INSERT OR REPLACE INTO unit_cache(unit, computed_utc, register, data) VALUES (?, ?, ?, ?)",
-        [status.unit, format_utc(now), key, _encode_unit(status)],
+        [tag, format_utc(clock.valid_from), key, _encode_unit(clock)],
     )
+
+
+def _stale_units(book: Book) -> list[str]:
+    """Units whose kept row is missing or made from other register rows or another format."""
+    rows = dict(book.conn.execute("SELECT upper(unit), register FROM unit_cache").fetchall())
+    by_unit: dict[str, list[FilterPosition]] = {}
+    for position in list_all(book, FilterPosition):
+        by_unit.setdefault(position.unit.upper(), []).append(position)
+    return [
+        u.tag
+        for u in list_all(book, Unit)
+        if rows.get(u.tag.upper()) != _unit_key(u, by_unit.get(u.tag.upper(), []))
+    ]
 
 
 def cached_units(
@@ -287,43 +393,37 @@ def cached_units(
     units: Sequence[Unit],
     filters_by_unit: dict[str, list[FilterPosition]],
     now: datetime,
-    max_age: timedelta | None = MAX_AGE,
 ) -> list[UnitStatus]:
-    """Every unit's status from the cache, recomputing rows that are missing, stale (older
-    than max_age: their windows of 7 to 30 days move on) or made from other register rows."""
+    """Every unit's status at `now` from its kept entries, however long ago they were kept;
+    rows missing, made from other register rows or read before they hold for are computed
+    in memory (nothing is written)."""
     rows = {
         r[0].upper(): (r[1], r[2], r[3])
         for r in book.conn.execute("SELECT unit, computed_utc, register, data FROM unit_cache")
     }
-    limit = max_age if max_age is not None else timedelta.max
-    result, fresh = [], []
+    result = []
     for unit in units:
         filters = filters_by_unit.get(unit.tag.upper(), [])
-        key = _unit_key(unit, filters)
         row = rows.get(unit.tag.upper())
-        if row is not None and row[1] == key:
-            computed = _utc(row[0])
-            if computed <= now and now - computed <= limit:
-                result.append(_decode_unit(row[2]))
-                continue
-        status = unit_status(book, unit, filters, now)
-        fresh.append((status, key))
-        result.append(status)
-    if fresh:
-        try_write(book, lambda: [_store_unit(book, s, k, now) for s, k in fresh])
+        if row is not None and row[1] == _unit_key(unit, filters) and _utc(row[0]) <= now:
+            clock = _decode_unit(row[2], unit.tag)
+        else:
+            clock = unit_clock(book, unit, now)
+        result.append(unit_at(unit, filters, clock, now))
     return result
 
 
 def refresh_unit(book: Book, tag: str, now: datetime | None = None) -> UnitStatus | None:
-    """Recompute one unit's status and keep it (inside a save: in its transaction)."""
+    """Recompute one unit's kept entries and keep them (in a save: in its transaction)."""
     unit = find(book, Unit, tag)
     if unit is None:
         return None
     now = now or book.now()
     filters = list_all(book, FilterPosition, unit.tag)
-    status = unit_status(book, unit, filters, now)
-    try_write(book, lambda: _store_unit(book, status, _unit_key(unit, filters), now))
-    return status
+    clock = unit_clock(book, unit, now)
+    with book.atomic():
+        _store_unit(book, unit.tag, clock, _unit_key(unit, filters))
+    return unit_at(unit, filters, clock, now)
 
 
 def _touches_unit(book: Book, entry: Entry) -> str | None:
@@ -452,12 +552,9 @@ def rebuild(book: Book) -> int:
         with book.atomic():
             for tag in touched:
                 if tag in ctxs:
-                    status, pools, _ = live_status(book, ctxs[tag], now)
+                    status, pools, _ = live_status(book, ctxs[tag], now, keep=True)
                     store_status(book, status, now, pools)
-    units = list_all(book, Unit)
-    by_unit: dict[str, list[FilterPosition]] = {}
-    for position in list_all(book, FilterPosition):
-        by_unit.setdefault(position.unit.upper(), []).append(position)
     with book.atomic():
-        cached_units(book, units, by_unit, now)
+        for unit in list_all(book, Unit):
+            refresh_unit(book, unit.tag, now)
     return len(rows)

@@ -35,14 +35,14 @@ class WatchData:
     as_of_text: str
     shift_text: str
     areas: list[tuple[str, str]]  # Select options
-    stale: int  # rows shown as kept that are older than a day or marked stale
+    stale: int  # rows shown as kept that are marked stale (or missing, or of an old format)
 
 
 def read_watch(book: Book, fresh: bool = False) -> WatchData:
-    """The list as kept in the caches, at once: rows older than a day (after a weekend,
-    most of them) are shown as they are and counted, for `catch_up` to recompute behind.
-    `fresh`: recompute such rows first."""
-    w = status.watch(book) if fresh else status.watch(book, max_age=None)
+    """The list as kept in the caches (what moves with the clock worked out now), at once:
+    rows marked stale are shown as they are and counted, for `catch_up` to recompute behind.
+    `fresh`: recompute such rows first (in memory)."""
+    w = status.watch(book) if fresh else status.watch(book, stale_ok=True)
     rows = watch_rows(w)
     local = book.local_zone()
     span = shift_at(w.as_of, book.shift_pattern(), local)
@@ -63,8 +63,8 @@ def read_watch(book: Book, fresh: bool = False) -> WatchData:
 
 
 def catch_up(book: Book) -> WatchData:
-    """Recompute the stale rows (each kept as it is done, where the book can be written),
-    then the list with nothing stale."""
+    """The app's explicit refresh: recompute the stale rows (each kept as it is done, where
+    the book can be written), then the list with nothing stale."""
     statuscache.refresh_stale(book)
     return read_watch(book, fresh=True)
 
@@ -228,7 +228,7 @@ class WatchScreen(BookScreen):
             phrases.append(f"{len(self.shown)} of {len(data.rows)} shown")
         phrases.append(f"{data.as_of_text}, {data.shift_text}")
         if data.stale:
-            phrases.append(Text(f"updating {data.stale} rows older than a day…", style="italic"))
+            phrases.append(Text(f"updating {data.stale} rows…", style="italic"))
         self.query_one("#summary", Wrapped).show(phrases)
 
     def current(self) -> WatchRow | None:
