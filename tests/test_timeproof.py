@@ -36,7 +36,7 @@ def kept(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Path]:
     """The demo with its caches filled at the end of its story (as `sumpbook rebuild`)."""
     path = tmp_path_factory.mktemp("timeproof") / "demo.db"
     with create_demo(path) as book:
-        statuscache.rebuild(book, workers=1)
+        statuscache.rebuild(book)
         book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
     yield path
 
