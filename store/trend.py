@@ -31,7 +31,7 @@ import numpy as np
 from store.errors import BookError
 from store.life import WeibullFit, fit_weibull
 from store.trend_calibration import SHIPPED, Calibration, apply
-from store.trend_history import Template, fit_history, make_template
+from store.trend_history import Template, beyond_history, fit_history, make_template
 from store.trend_models import LINE, TrendFit, aicc, fit_trend, huber_rho
 
 EARLIEST_P, LIKELY_P, LATEST_P = 0.05, 0.50, 0.95
@@ -251,6 +251,7 @@ def forecast(
     floor = SIGMA_FLOOR_SHARE * (limit if limit is not None else bypass)  # type: ignore[operator]
     trend = fit_trend(t, y, w, clean_bar, floor)
     basis, model, dp_at, cloud = "trend", trend.describe(), trend.dp_at, None
+    outside = (1.0, 1.0)  # widening of the earlier-curves interval beyond the earlier lives
     templates = _templates(earlier, limit if limit is not None else bypass)  # type: ignore[arg-type]
     if len(templates) >= 2:
         hist = fit_history(t, y, w, templates, trend.sigma_bar, floor)
@@ -260,6 +261,7 @@ def forecast(
         if aicc_hist <= aicc_trend + HISTORY_AICC_MARGIN:
             basis, model, dp_at = "earlier-curves", f"{len(templates)} earlier curves", hist.dp_at
             cloud = hist.crossings(tuple(levels))
+            outside = beyond_history(hist.matched_life_h(), [tp.life_h for tp in templates])
     if cloud is None:
         if state == "ok" and _line_slope_z(trend) < FLAT_SLOPE_Z:
             return _flat(n, weib, t_last, now_age_h, trend)
@@ -271,6 +273,8 @@ def forecast(
     intervals = [_interval(a, weights) for a in ages]
     to_limit = intervals[0] if state == "ok" else None
     to_bypass = intervals[-1] if bypass is not None else None
+    if basis == "earlier-curves":
+        to_limit, to_bypass = (_widen(iv, t_last, outside) for iv in (to_limit, to_bypass))
     if basis == "earlier-curves" and to_limit is not None:
         progress = t_last / to_limit.likely_h if to_limit.likely_h > 0 else 0.0
         to_limit = AgeInterval(*apply(calibration, t_last, _ages(to_limit)))
@@ -307,6 +311,19 @@ def forecast(
 
 
 _Z90 = 1.6448536269514722  # standard normal 95 % point: the 5-95 % interval is ±_Z90 sd
+
+
+def _widen(
+    iv: AgeInterval | None, t_last: float, factors: tuple[float, float]
+) -> AgeInterval | None:
+    """The interval with its earliest and latest remaining lives (after the last reading)
+    scaled by factors (store/trend_history.beyond_history); the likely age stays."""
+    if iv is None or factors == (1.0, 1.0):
+        return iv
+    fe, fu = factors
+    e = t_last + fe * max(iv.earliest_h - t_last, 0.0)
+    u = t_last + fu * (iv.latest_h - t_last) if math.isfinite(iv.latest_h) else iv.latest_h
+    return AgeInterval(min(e, iv.likely_h), iv.likely_h, max(u, iv.likely_h))
 
 
 def _ages(iv: AgeInterval) -> tuple[float, float, float]:

@@ -1,8 +1,9 @@
 """How far to trust the earlier-curves interval: a recalibration measured on held-out conditions.
 
-The matcher in store/trend_history.py turns the readings into a cloud of crossing ages. Its
-spread comes from the readings' scatter and from how well each earlier curve fits; it does not
-know how different the next element's conditions may be from every earlier one. So the
+The matcher in store/trend_history.py turns the readings into a cloud of crossing ages (its
+interval widened where the matched life lies outside the earlier lives: beyond_history there).
+Its spread comes from the readings' scatter and from how well each earlier curve fits; it does
+not know how different the next element's conditions may be from every earlier one. So the
 interval is recalibrated on residuals of elements whose condition was held out of the history
 (grouped split-conformal, Mondrian by progress):
 
@@ -24,8 +25,8 @@ The shipped factors (SHIPPED) were derived by `python tests/benchmarks/clogging.
 from the 24 open PHME 2020 clogging runs (shared/data/phme20, SOURCE.md there): for each of the
 six (particle size, solid ratio) conditions, its four runs forecast with the other 20 runs as
 history, at 30, 35, ... 95 % of life, technician log seed 1, before any recalibration
-(IDENTITY). tests/test_clogging.py derives them again from the data and compares. The benchmark
-never scores these numbers on the same data: it derives them again for each held-out condition
+(IDENTITY; the widening beyond the earlier lives included). tests/test_clogging.py derives them
+again from the data and compares. The benchmark never scores these numbers on the same data: it derives them again for each held-out condition
 from the other five only. They come from one laboratory rig; on a plant they move the dates by
 a few per cent at most.
 """
@@ -58,9 +59,9 @@ IDENTITY = Calibration((1.0,) * 3, (1.0,) * 3, (1.0,) * 3)
 
 # Derived by `python tests/benchmarks/clogging.py --calibrate` (see the module docstring).
 SHIPPED = Calibration(
-    earliest=(1.11, 0.999, 0.981),
+    earliest=(1.112, 1.013, 0.981),
     likely=(0.997, 0.979, 0.977),
-    latest=(0.912, 0.948, 1.031),
+    latest=(0.912, 0.948, 1.0),
     n=(163, 101, 72),
 )
 

@@ -438,3 +438,47 @@ def test_an_element_faster_than_every_earlier_one_gets_an_earlier_date():
     t, y = readings(knee_curve, 600.0, n=18, life_h=1000.0)
     usual = run(t, y, earlier=past)
     assert usual.to_limit.earliest_h <= 1000.0 <= usual.to_limit.latest_h
+
+
+def test_beyond_history_widens_by_the_excess_over_the_earlier_lives():
+    from store.trend_history import beyond_history
+
+    lives = [200.0, 230.0, 250.0]
+    # 180 h is 0.9x the shortest earlier life: the earliest remaining life shrinks by 0.9
+    assert beyond_history(180.0, lives) == pytest.approx((0.9, 1.0))
+    # 300 h is 1.2x the longest: the latest remaining life grows by 1.2
+    assert beyond_history(300.0, lives) == pytest.approx((1.0, 1.2))
+    assert beyond_history(220.0, lives) == (1.0, 1.0)  # bracketed: nothing changes
+
+
+def test_an_element_beyond_the_earlier_lives_gets_a_wider_earliest_side(monkeypatch):
+    # issue 11: the fastest condition's "earliest" came after the crossing at 85 % of life.
+    # The same forecast with the widening switched off is the reference: the earliest remaining
+    # life must shrink by the matched life over the shortest earlier life (about 650 / 950; the
+    # matched life is the stretch at which the curves reach the limit, so near the likely age),
+    # the likely age stay; an element inside the earlier lives must not move.
+    import store.trend as trend_mod
+    from store.trend_calibration import IDENTITY
+
+    past = [
+        PastElement(tuple(tt), tuple(yy), life, True)
+        for life in (950.0, 1000.0, 1050.0, 980.0, 1020.0, 1000.0)
+        for tt, yy in [readings(knee_curve, life * 0.999, n=40, life_h=life)]
+    ]
+
+    def both(t, y):
+        args = (ElementReadings(tuple(t), tuple(y)), None, LIMIT, None, float(t[-1]), past)
+        with monkeypatch.context() as m:
+            m.setattr(trend_mod, "beyond_history", lambda life, lives: (1.0, 1.0))
+            off = forecast(*args, IDENTITY)
+        return forecast(*args, IDENTITY), off, float(t[-1])
+
+    on, off, last = both(*readings(knee_curve, 0.85 * 650.0, n=26, life_h=650.0))
+    assert on.basis == off.basis == "earlier-curves"
+    assert on.to_limit.likely_h == off.to_limit.likely_h
+    assert on.to_limit.latest_h == off.to_limit.latest_h
+    shrink = (on.to_limit.earliest_h - last) / (off.to_limit.earliest_h - last)
+    assert shrink == pytest.approx(off.to_limit.likely_h / 950.0, rel=0.03)
+    assert shrink < 0.8
+    on, off, _ = both(*readings(knee_curve, 850.0, n=26, life_h=1000.0))
+    assert on.to_limit == off.to_limit
