@@ -72,6 +72,30 @@ class FilterPosition:
     reading_interval_h: float = 168.0
 
 
+# The sizing rule of a filter maker's handbook (The Handbook of Hydraulic Filtration, "Filter
+# housing selection", p. 29): a clean element's ΔP should be at most 1/2 of the bypass setting,
+# better 1/3. Without a bypass the change limit stands in for it.
+CLEAN_SHARE_MAX = 0.5
+
+
+def sizing_doubt(position: FilterPosition) -> str | None:
+    """Why the settings may be mistyped though they can be true (a clean ΔP close to the
+    bypass or limit: an element that starts near its end), or None. Not a refusal."""
+    top, what = (
+        (position.bypass_bar, "bypass setting")
+        if position.bypass_bar
+        else (position.limit_bar, "change limit")
+    )
+    if position.clean_bar is None or not top or position.clean_bar <= CLEAN_SHARE_MAX * top:
+        return None
+    return (
+        f"{position.tag}: the clean-element ΔP ({position.clean_bar:g} bar) is more than half the "
+        f"{what} ({top:g} bar), so a new element would start close to its end. Check the "
+        "values against the filter maker's data: a clean element usually reads at most half, "
+        "better a third, of the bypass setting."
+    )
+
+
 @dataclass(frozen=True, kw_only=True)
 class Breather:
     tag: str

@@ -186,6 +186,53 @@ async def test_register_add_edit_and_refuse(plant):
         assert [(r["old"], r["new"], r["by"]) for r in log] == [("2.5", "2.4", "AB")]
 
 
+async def test_a_clean_dp_near_the_bypass_is_asked_about_before_it_is_saved(plant):
+    # issue 12: a clean ΔP close to the limit was saved silently. Sizing rule: a clean element
+    # at most 1/2 of the bypass setting (The Handbook of Hydraulic Filtration, p. 29)
+    from tui.forms.confirm import ConfirmScreen
+
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        await pilot.press("3")
+        await settle(pilot, RegisterScreen)
+        screen = app.screen
+        screen.show_tab("filters")
+        table = screen.query_one("#table-filters", DataTable)
+        table.move_cursor(row=table.get_row_index("P1-RF"))
+        await pilot.press("e")
+        await pilot.pause()
+        form = app.screen
+        with open_book(plant, create=False) as book:
+            before = register.get(book, FilterPosition, "P1-RF")
+        assert before.bypass_bar and 0.5 * before.bypass_bar < 2.0 < before.limit_bar
+        form.query_one("#f-clean_bar", Input).value = "2.0"
+        await pilot.press("ctrl+s")
+        await pilot.pause()
+        assert isinstance(app.screen, ConfirmScreen)
+        assert "more than half the bypass setting" in str(app.screen.caution)
+        await pilot.press("n")  # back to the form: nothing written
+        await pilot.pause()
+        assert app.screen is form
+        with open_book(plant, create=False) as book:
+            assert register.get(book, FilterPosition, "P1-RF").clean_bar == before.clean_bar
+        await pilot.press("ctrl+s")
+        await pilot.pause()
+        await pilot.press("y")
+        await settle(pilot, RegisterScreen)
+    with open_book(plant, create=False) as book:
+        assert register.get(book, FilterPosition, "P1-RF").clean_bar == pytest.approx(2.0)
+
+
+def test_the_command_line_says_when_a_clean_dp_looks_mistyped(plant, capsys):
+    # the same sizing rule (handbook, p. 29): saved, as it can be true, but not silently
+    code = cli_main(["--db", str(plant), "register", "change", "filter", "P1-RF", "clean=2.0"])
+    out = capsys.readouterr().out
+    assert code == 0 and "CHECK:" in out and "more than half the bypass setting" in out
+    code = cli_main(["--db", str(plant), "register", "change", "filter", "P1-RF", "clean=0.4"])
+    assert code == 0 and "CHECK:" not in capsys.readouterr().out
+
+
 async def test_preferences_change_units_and_theme(plant, tmp_path):
     app = make_app(plant)
     async with app.run_test(size=(80, 24)) as pilot:

@@ -195,7 +195,14 @@ def cmd_register(args: argparse.Namespace) -> int:
             )
         added = register.add(book, record, by)
         say(f"registered {what} {added.tag}")
+        _say_sizing_doubt(added)
     return 0
+
+
+def _say_sizing_doubt(record: Any) -> None:
+    """Settings that can be true but look mistyped are saved, and said (not silently)."""
+    if isinstance(record, FilterPosition) and (doubt := register.sizing_doubt(record)):
+        say(f"CHECK: {doubt}")
 
 
 _CHANGE_TABLES = {
@@ -223,6 +230,7 @@ def _register_change(book: Book, args: argparse.Namespace, by: str) -> int:
     updated = register.update(book, cls, args.tag, changes, by)
     for key in changes:
         say(f"{updated.tag} {key}: {getattr(current, key)} -> {getattr(updated, key)}")
+    _say_sizing_doubt(updated)
     return 0
 
 

@@ -7,7 +7,7 @@ Quantities are typed in the user's units and stored canonical. Every change goes
 from __future__ import annotations
 
 import sqlite3
-from dataclasses import MISSING, fields
+from dataclasses import MISSING, fields, replace
 from typing import Any
 
 from textual.app import ComposeResult
@@ -25,6 +25,7 @@ from store.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
 from ..widgets import fmt
 from ..widgets.field import FieldRow, Spec
 from .base import fault_field, write_problem
+from .confirm import ConfirmScreen
 from .validators import (
     CodeValidator,
     DpValidator,
@@ -273,26 +274,56 @@ class RegisterForm(ModalScreen[Any]):
             bad[0][0].control.focus()
             self.say("Not saved: check " + ", ".join(r.spec.label for r, _ in bad) + ".")
             return
-        by = self.sb.tech
         try:
             values = self.parsed()
-            if self.record is None:
-                saved = register.add(self.sb.book, self.cls(**values), by=by)
-            else:
+            if self.record is not None:
                 changes = {
                     k: v for k, v in values.items() if k != "tag" and getattr(self.record, k) != v
                 }
                 if not changes:
                     self.dismiss(None)
                     return
-                saved = register.update(self.sb.book, self.cls, self.record.tag, changes, by=by)
+                values = changes
+            doubt = self.doubt(values)
         except (BookError, sqlite3.Error, OSError) as exc:
-            problem = write_problem(exc)
-            self.say("Not saved: " + problem)
-            rows = {row.spec.name: row for row in self.query(FieldRow) if not row.spec.disabled}
-            name = fault_field(problem, CLUES) if isinstance(exc, BookError) else None
-            if name in rows:  # the cursor goes to the field at fault
-                rows[name].control.focus()
-                rows[name].show("see below")
+            self.refused(exc)
+            return
+        if doubt is None:
+            self.write(values)
+            return
+
+        def answered(yes: bool | None) -> None:
+            if yes:
+                self.write(values)
+            else:
+                self.say("Not saved yet: change what is wrong, or save again to confirm.")
+
+        self.app.push_screen(ConfirmScreen(f"Save {self.cls.__name__} as it is?", doubt), answered)
+
+    def doubt(self, values: dict[str, Any]) -> str | None:
+        """Settings that can be true but look mistyped: asked about before saving."""
+        if self.cls is not FilterPosition:
+            return None
+        record = self.cls(**values) if self.record is None else replace(self.record, **values)
+        return register.sizing_doubt(record)
+
+    def write(self, values: dict[str, Any]) -> None:
+        by = self.sb.tech
+        try:
+            if self.record is None:
+                saved = register.add(self.sb.book, self.cls(**values), by=by)
+            else:
+                saved = register.update(self.sb.book, self.cls, self.record.tag, values, by=by)
+        except (BookError, sqlite3.Error, OSError) as exc:
+            self.refused(exc)
             return
         self.dismiss(saved)
+
+    def refused(self, exc: Exception) -> None:
+        problem = write_problem(exc)
+        self.say("Not saved: " + problem)
+        rows = {row.spec.name: row for row in self.query(FieldRow) if not row.spec.disabled}
+        name = fault_field(problem, CLUES) if isinstance(exc, BookError) else None
+        if name in rows:  # the cursor goes to the field at fault
+            rows[name].control.focus()
+            rows[name].show("see below")
