@@ -65,6 +65,33 @@ async def test_a_scanner_burst_opens_the_exact_tag_every_time(plant):
             await settle(pilot, WatchScreen)
 
 
+def burst(app, keys: str) -> None:
+    """Keys as a terminal delivers a fast burst (a scanner, a quick typist): all of them queued
+    on the app at once, none handled before the next is routed. Pilot's press waits after
+    each key, which hides the order in which keys are routed."""
+    from textual import events
+    from textual.keys import _character_to_key
+
+    for char in keys:
+        app.post_message(events.Key(_character_to_key(char), char))
+
+
+async def test_a_tab_typed_fast_moves_on_before_the_next_digits(plant):
+    # Quick entry: "3.1", Tab, "45" in one burst put 3.145 in ΔP and left the temperature as
+    # it was: the Tab was handled after the digits behind it had been routed to ΔP.
+    app = make_app(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        await pilot.press("t", *"P1-RF", "enter")
+        await pilot.pause()
+        form = app.screen
+        assert isinstance(form, ReadingForm)
+        burst(app, "3.1\t45")
+        await pilot.pause()
+        assert form.query_one("#f-dp", Input).value == "3.1"
+        assert form.query_one("#f-temp", Input).value == "45"
+
+
 async def test_a_reading_over_the_bypass_asks_first_with_the_caution(plant):
     app = make_app(plant)
     before = count_entries(plant, "reading")

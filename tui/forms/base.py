@@ -70,12 +70,21 @@ def write_problem(exc: BaseException) -> str:
     return f"the logbook refused: {exc}"
 
 
+FIELD_KEYS = (
+    Binding("tab", "app.focus_next", show=False, priority=True),
+    Binding("shift+tab", "app.focus_previous", show=False, priority=True),
+)
+
+
 class EntryForm(ModalScreen[Saved | None]):
     """Subclasses give `heading`, `specs()`, `build(values)`; `first` names the field to start in."""
 
     BINDINGS = [
         Binding("ctrl+s", "save", "Save", id="form-save"),
         Binding("escape", "cancel", "Cancel", id="form-cancel"),
+        # Tab moves on at the moment it is typed, before the keys after it are routed: typed
+        # fast ("4.1", Tab, "52"), or sent by a scanner, the next keys land in the next field.
+        *FIELD_KEYS,
     ]
     heading = "Entry"
     caution = False

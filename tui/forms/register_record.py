@@ -24,7 +24,7 @@ from store.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
 
 from ..widgets import fmt
 from ..widgets.field import FieldRow, Spec
-from .base import fault_field, write_problem
+from .base import FIELD_KEYS, fault_field, write_problem
 from .confirm import ConfirmScreen
 from .validators import (
     CodeValidator,
@@ -118,6 +118,9 @@ class RegisterForm(ModalScreen[Any]):
     BINDINGS = [
         Binding("ctrl+s", "save", "Save", id="form-save"),
         Binding("escape", "cancel", "Cancel", id="form-cancel"),
+        # Tab moves on at the moment it is typed, before the keys after it are routed: typed
+        # fast ("4.1", Tab, "52"), or sent by a scanner, the next keys land in the next field.
+        *FIELD_KEYS,
     ]
 
     def __init__(self, cls: type, record: Any = None) -> None:
