@@ -37,7 +37,7 @@ from .csvcolumns import COLUMNS, FORMULA_START, VALUE_COLUMNS, Prefs, reference_
 from .csvcolumns import number_text as _num
 from .entries import KINDS, TARGET_COLUMN, Reading, entry_columns
 from .errors import BookError
-from .journal import parse_stamp
+from .journal import ROW_ERRORS, note_unreadable, parse_stamp
 from .timeutil import format_utc, iso_local, shift_at
 from .units import from_bar, pressure_key, temperature_key, to_bar
 
@@ -346,7 +346,7 @@ class SpanLines:
         self.pressure = pressure_key(prefs.pressure)
         self.temperature = temperature_key(prefs.temperature)
         self.contexts = contexts(book)
-        self.conn = book.conn
+        self.book, self.conn = book, book.conn
         self.voided_by = dict(book.conn.execute(_SELECT_VOIDS).fetchall())
         self.references: dict[str, FilterReference | None] = {}
         self.time, self.shift = columns.index("time"), columns.index("shift")
@@ -362,30 +362,34 @@ class SpanLines:
         time_cell, shift_cell, void_cell = self.time, self.shift, self.void
         dp_ref_cell, reference_cell = self.dp_ref, self.reference
         for row in rows:
-            stamp = row[_AT]
-            if not _is_stamp(stamp):
-                stamp = canonical_stamp(stamp)
-            plan = plans[row[_KIND]]
-            if plan.other:
-                row = (*row, *conn.execute(_SELECT_OTHER, [row[_ID]]).fetchone())
-            cells = plan.fill(row)
-            if row[_ID] in voided_by:
-                cells[void_cell] = csv_field(voided_by[row[_ID]])
-            if stamp[:13] == clock.hour and clock.prefix is not None:  # clock.text, inlined
-                cells[time_cell] = clock.prefix + stamp[13:19] + clock.suffix
-            else:
-                cells[time_cell] = clock.text(stamp)
-            cells[shift_cell] = (
-                shifts.cell if shifts.start <= stamp < shifts.end else shifts.name(stamp)
-            )
-            if plan.reading and row[_DP] is not None:
-                reference = references.get(row[_FILTER], _UNSEEN)
-                if reference is _UNSEEN:
-                    reference = self._reference(row[_FILTER])
-                if reference is not None:
-                    cells[dp_ref_cell], cells[reference_cell] = reference.cells(
-                        row[_DP], row[_TEMP], row[_FLOW]
-                    )
+            try:
+                stamp = row[_AT]
+                if not _is_stamp(stamp):
+                    stamp = canonical_stamp(stamp)
+                plan = plans[row[_KIND]]
+                if plan.other:
+                    row = (*row, *conn.execute(_SELECT_OTHER, [row[_ID]]).fetchone())
+                cells = plan.fill(row)
+                if row[_ID] in voided_by:
+                    cells[void_cell] = csv_field(voided_by[row[_ID]])
+                if stamp[:13] == clock.hour and clock.prefix is not None:  # clock.text, inlined
+                    cells[time_cell] = clock.prefix + stamp[13:19] + clock.suffix
+                else:
+                    cells[time_cell] = clock.text(stamp)
+                cells[shift_cell] = (
+                    shifts.cell if shifts.start <= stamp < shifts.end else shifts.name(stamp)
+                )
+                if plan.reading and row[_DP] is not None:
+                    reference = references.get(row[_FILTER], _UNSEEN)
+                    if reference is _UNSEEN:
+                        reference = self._reference(row[_FILTER])
+                    if reference is not None:
+                        cells[dp_ref_cell], cells[reference_cell] = reference.cells(
+                            row[_DP], row[_TEMP], row[_FLOW]
+                        )
+            except ROW_ERRORS as exc:  # a row planted past the checks: skipped, reported
+                note_unreadable(self.book, row[_ID], f"{type(exc).__name__}: {exc}")
+                continue
             yield ",".join(cells)
 
     def _reference(self, tag: str) -> FilterReference | None:

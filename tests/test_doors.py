@@ -564,6 +564,16 @@ def test_a_bad_row_is_skipped_reported_and_can_be_voided(demo, capsys):
     assert code == 0 and "could not be read" not in err
 
 
+def test_an_export_skips_a_bad_row_and_says_which(demo, capsys, tmp_path):
+    entry_id = _plant_bad_row(demo)
+    out_csv = tmp_path / "all.csv"
+    code, out, err = run(capsys, demo, "export", "--from", "2020-01-01T00:00", "-o", str(out_csv))
+    assert code == 0, err
+    assert "could not be read" in err and entry_id[:8] in err
+    text = out_csv.read_text(encoding="utf-8-sig")
+    assert entry_id not in text and text.count("\n") > 100  # the rest of the book is there
+
+
 def test_notes_from_every_door_are_checked_the_same(book):
     for bad in ("\x1b[2J", "\x9b", "\x7f"):
         with pytest.raises(BookError, match="control character"):
