@@ -172,7 +172,7 @@ async def settle(pilot, screen_type=None, timeout: float = 10.0) -> None:
         await pilot.pause()
         screen = pilot.app.screen
         ok = screen_type is None or isinstance(screen, screen_type)
-        if ok and getattr(screen, "loaded", True) and not pilot.app.workers._workers:
+        if ok and getattr(screen, "loaded", True) and not pilot.app.workers:  # none left
             return
         await pilot.pause(0.02)
         waited += 0.02

@@ -75,7 +75,7 @@ async def _settle(pilot, done, timeout: float = 120.0) -> None:
     end = time.monotonic() + timeout
     while time.monotonic() < end:
         await pilot.pause()
-        busy = [w for w in pilot.app.workers._workers if w.group not in BEHIND]
+        busy = [w for w in pilot.app.workers if w.group not in BEHIND]
         if done() and not busy:
             await pilot.pause()
             return
@@ -89,7 +89,7 @@ async def _painted(app, done, timeout: float = 120.0) -> None:
     process's CPU time stops advancing, which a background thread (the whole-file check)
     holds off for up to a second at a time."""
     end = time.monotonic() + timeout
-    while not (done() and not [w for w in app.workers._workers if w.group not in BEHIND]):
+    while not (done() and not [w for w in app.workers if w.group not in BEHIND]):
         if time.monotonic() > end:
             raise RuntimeError("the screen did not settle")
         await asyncio.sleep(0.002)
