@@ -310,13 +310,13 @@ class RegisterForm(ModalScreen[Any]):
         record = self.cls(**values) if self.record is None else replace(self.record, **values)
         return register.sizing_doubt(record)
 
-    def write(self, values: dict[str, Any]) -> None:
+    def write(self, wanted: dict[str, Any]) -> None:
         by = self.sb.tech
         try:
             if self.record is None:
-                saved = register.add(self.sb.book, self.cls(**values), by=by)
+                saved = register.add(self.sb.book, self.cls(**wanted), by=by)
             else:
-                saved = register.update(self.sb.book, self.cls, self.record.tag, values, by=by)
+                saved = register.update(self.sb.book, self.cls, self.record.tag, wanted, by=by)
         except (BookError, sqlite3.Error, OSError) as exc:
             self.refused(exc)
             return
