@@ -148,10 +148,11 @@ def topup_filtration(unfiltered: bool, filtered_um: float | None) -> float | Non
     return validate_value.number("filtered_um", filtered_um)
 
 
-BYPASS_CAUTION = (
-    "unfiltered oil is passing the element (the bypass is open): change it now or stop the "
-    "unit as your site procedures say; the element may collapse, and fluid under pressure is "
-    "hot: relieve the pressure before opening the housing"
+BYPASS_OPEN = "the bypass valve is open and unfiltered oil is passing to the system"
+BYPASS_STEPS = (
+    "Change the element as soon as it can be done safely; do not run on for long.",
+    "Before opening the housing: isolate and lock out, relieve pressure, let hot oil cool.",
+    "Follow site procedures and the equipment maker's manual; they come first.",
 )
 
 
@@ -163,28 +164,34 @@ def past_bypass(position: FilterPosition, dp_bar: float | None, indicator: str |
     return dp_bar is not None and position.bypass_bar is not None and dp_bar >= position.bypass_bar
 
 
-def reading_over_bypass(
-    book: Book,
-    filter_tag: str,
+def bypass_head(
+    position: FilterPosition,
     dp_bar: float | None,
-    temp_c: float | None = None,
-    flow_lpm: float | None = None,
-    indicator: str | None = None,
+    indicator: str | None,
+    pressure: Callable[[float], str] = lambda bar: f"{bar:g} bar",
 ) -> str | None:
-    """The caution to show when a reading says the bypass is open (ΔP at or over the
-    filter's bypass setting, or the indicator at 'bypass'), else None. Such a reading can
-    be true, so it is saved; it is urgent, so the CLI prints this and the app asks first.
-    `temp_c` and `flow_lpm` are taken for the call's shape: the valve opens on the ΔP it
-    sees, so the gauge value is compared as read."""
-    position = get(book, FilterPosition, filter_tag)
+    """What says the bypass is open ('ΔP 4 bar is at or over the bypass setting (3.5 bar)',
+    or the indicator), pressures written by `pressure`; None when nothing does. Such a reading
+    can be true, so it is saved; it is urgent, so the CLI says so and the app asks first."""
     if not past_bypass(position, dp_bar, indicator):
         return None
     if dp_bar is not None and position.bypass_bar is not None and dp_bar >= position.bypass_bar:
         return (
-            f"{position.tag} read {dp_bar:g} bar, at or over its bypass setting "
-            f"{position.bypass_bar:g} bar: {BYPASS_CAUTION}"
+            f"ΔP {pressure(dp_bar)} is at or over the bypass setting "
+            f"({pressure(position.bypass_bar)})"
         )
-    return f"{position.tag}'s indicator shows bypass: {BYPASS_CAUTION}"
+    return "The indicator shows bypass"
+
+
+def reading_over_bypass(
+    book: Book, filter_tag: str, dp_bar: float | None, indicator: str | None = None
+) -> str | None:
+    """The caution, as one paragraph, for a reading that says the bypass is open, else None."""
+    position = get(book, FilterPosition, filter_tag)
+    head = bypass_head(position, dp_bar, indicator)
+    if head is None:
+        return None
+    return f"{position.tag}: {head}: {BYPASS_OPEN}. " + " ".join(BYPASS_STEPS)
 
 
 def _sample_fields(entry: Sample) -> dict[str, Any]:

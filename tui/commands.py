@@ -344,9 +344,7 @@ def cmd_log(args: argparse.Namespace) -> int:
         saved = journal.log(book, entry)
         say(_render().saved_line(book, saved, prefs))
         if isinstance(saved, Reading):
-            caution = journal.reading_over_bypass(
-                book, saved.filter, saved.dp_bar, saved.temp_c, saved.flow_lpm, saved.indicator
-            )
+            caution = journal.reading_over_bypass(book, saved.filter, saved.dp_bar, saved.indicator)
             if caution:
                 say(f"CAUTION: {caution}")
         if kind in ("change", "breather"):

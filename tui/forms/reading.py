@@ -5,7 +5,7 @@ from __future__ import annotations
 from typing import Any
 
 from store.entries import Entry, Reading
-from store.journal import past_bypass
+from store.journal import BYPASS_OPEN, BYPASS_STEPS, bypass_head
 from store.register import FilterPosition, find
 from store.sheets import last_temp_c, meter_estimate_h
 from store.units import parse_pressure_bar, parse_temperature_c
@@ -16,14 +16,6 @@ from .base import EntryForm, FieldError
 from .validators import DpValidator, NumberValidator, TemperatureValidator
 
 INDICATOR_CHOICES = [("clean", "clean"), ("dirty", "dirty"), ("in bypass", "bypass")]
-
-
-BYPASS_CAUTION = (
-    "{what}: the bypass valve is open and UNFILTERED OIL IS PASSING to the system.\n"
-    "• Change the element as soon as it can be done safely; do not run on for long.\n"
-    "• Before opening the housing: isolate and lock out, relieve pressure, let hot oil cool.\n"
-    "• Follow site procedures and the equipment maker's manual; they come first."
-)
 
 
 class ReadingForm(EntryForm):
@@ -105,18 +97,13 @@ class ReadingForm(EntryForm):
         if not isinstance(entry, Reading):
             return None
         position = find(self.sb.book, FilterPosition, entry.filter)
-        if position is None or not past_bypass(position, entry.dp_bar, entry.indicator):
+        if position is None:
             return None
         prefs = self.sb.prefs
-        if entry.indicator == "bypass" and (
-            entry.dp_bar is None
-            or position.bypass_bar is None
-            or entry.dp_bar < position.bypass_bar
-        ):
-            what = "The indicator shows bypass"
-        else:
-            what = (
-                f"ΔP {fmt.pressure(entry.dp_bar, prefs)} is at or over the bypass setting "
-                f"({fmt.pressure(position.bypass_bar, prefs)})"
-            )
-        return f"Save this reading on {position.tag}?", BYPASS_CAUTION.format(what=what)
+        what = bypass_head(
+            position, entry.dp_bar, entry.indicator, lambda bar: fmt.pressure(bar, prefs)
+        )
+        if what is None:
+            return None
+        caution = f"{what}: {BYPASS_OPEN.upper()}.\n" + "\n".join(f"• {s}" for s in BYPASS_STEPS)
+        return f"Save this reading on {position.tag}?", caution
