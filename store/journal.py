@@ -184,11 +184,15 @@ def bypass_head(
 
 
 def reading_over_bypass(
-    book: Book, filter_tag: str, dp_bar: float | None, indicator: str | None = None
+    book: Book,
+    filter_tag: str,
+    dp_bar: float | None,
+    indicator: str | None = None,
+    pressure: Callable[[float], str] = lambda bar: f"{bar:g} bar",
 ) -> str | None:
     """The caution, as one paragraph, for a reading that says the bypass is open, else None."""
     position = get(book, FilterPosition, filter_tag)
-    head = bypass_head(position, dp_bar, indicator)
+    head = bypass_head(position, dp_bar, indicator, pressure)
     if head is None:
         return None
     return f"{position.tag}: {head}: {BYPASS_OPEN}. " + " ".join(BYPASS_STEPS)

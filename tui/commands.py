@@ -23,6 +23,8 @@ from store.timeutil import parse_time, previous_shift, shift_at, shift_named
 from store.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
 from store.validate import plant_setting
 
+from .quantities import pressure
+
 if TYPE_CHECKING:
     from rich.console import Console
 
@@ -344,7 +346,9 @@ def cmd_log(args: argparse.Namespace) -> int:
         saved = journal.log(book, entry)
         say(_render().saved_line(book, saved, prefs))
         if isinstance(saved, Reading):
-            caution = journal.reading_over_bypass(book, saved.filter, saved.dp_bar, saved.indicator)
+            caution = journal.reading_over_bypass(
+                book, saved.filter, saved.dp_bar, saved.indicator, lambda b: pressure(b, prefs)
+            )
             if caution:
                 say(f"CAUTION: {caution}")
         if kind in ("change", "breather"):
