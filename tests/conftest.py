@@ -2,10 +2,15 @@
 
 from __future__ import annotations
 
+import json
+import shutil
+from pathlib import Path
+
 import pytest
 
 from store import register
 from store.book import Book, open_book
+from store.demo import create_demo
 from store.register import Breather, FilterPosition, Fluid, Technician, Unit
 
 
@@ -75,3 +80,39 @@ def book(tmp_path):
     with open_book(tmp_path / "book.db") as b:
         fill_register(b)
         yield b
+
+
+def write_prefs(tmp_path: Path, **prefs: str) -> Path:
+    """This laptop's preferences as a file: technician AB, bar, °C, L, dark, unless given."""
+    path = tmp_path / "prefs.json"
+    data = {"tech": "AB", "pressure": "bar", "temperature": "C", "volume": "L", "theme": "dark"}
+    data.update(prefs)
+    path.write_text(json.dumps(data), encoding="utf-8")
+    return path
+
+
+@pytest.fixture(scope="session")
+def demo_file(tmp_path_factory):
+    """The demo plant written once per test process; tests copy it."""
+    path = tmp_path_factory.mktemp("demo") / "demo.db"
+    create_demo(path).close()
+    return path
+
+
+@pytest.fixture
+def demo_app(demo_file, tmp_path, monkeypatch):
+    """A maker of apps on a fresh copy of the demo plant (frozen in time), prefs as given;
+    `demo_app.path` is the copy."""
+    from tui.app import SumpbookApp  # the app only for the app tests
+
+    path = tmp_path / "demo.db"
+    shutil.copy(demo_file, path)
+    with open_book(path, create=False) as book:
+        monkeypatch.setenv("SUMPBOOK_NOW", book.now().isoformat())
+
+    def make(**prefs: str) -> SumpbookApp:
+        monkeypatch.setenv("SUMPBOOK_CONFIG", str(write_prefs(tmp_path, tech="AK", **prefs)))
+        return SumpbookApp(open_book(path), cursor_blink=False)
+
+    make.path = path  # type: ignore[attr-defined]
+    return make

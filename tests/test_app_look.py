@@ -4,15 +4,12 @@ The demo plant is frozen in time (27 Nov 2026), so every date below is fixed."""
 
 from __future__ import annotations
 
-import shutil
-
 import pytest
 from rich.cells import cell_len
 from textual.widgets import DataTable, Input, Label, Static
 
 from store import journal
 from store.book import open_book
-from store.demo import create_demo
 from store.entries import KINDS, TopUp, Void
 from store.register import FilterPosition, list_all
 from store.status import FLAG_WORDS, URGENT_FLAGS
@@ -29,27 +26,10 @@ from tui.widgets.rowtable import RowTable
 SIZE = (80, 24)
 
 
-@pytest.fixture(scope="module")
-def demo_file(tmp_path_factory):
-    path = tmp_path_factory.mktemp("demo") / "demo.db"
-    create_demo(path).close()
-    return path
-
-
 @pytest.fixture
-def demo(demo_file, tmp_path, monkeypatch):
-    """A fresh copy of the demo plant and a maker of apps on it, prefs as given."""
-    path = tmp_path / "demo.db"
-    shutil.copy(demo_file, path)
-    with open_book(path, create=False) as book:
-        monkeypatch.setenv("SUMPBOOK_NOW", book.now().isoformat())
-
-    def make(**prefs: str) -> SumpbookApp:
-        monkeypatch.setenv("SUMPBOOK_CONFIG", str(write_prefs(tmp_path, tech="AK", **prefs)))
-        return SumpbookApp(open_book(path), cursor_blink=False)
-
-    make.path = path  # type: ignore[attr-defined]
-    return make
+def demo(demo_app):
+    """The demo plant's app maker (tests/conftest.py), by a shorter name."""
+    return demo_app
 
 
 def screen_lines(app) -> list[str]:

@@ -3,7 +3,6 @@ clock, fixed prefs and no cursor blink. Imported by the test_app_* modules (no t
 
 from __future__ import annotations
 
-import json
 from datetime import UTC, datetime, timedelta
 from pathlib import Path
 
@@ -13,7 +12,7 @@ from store import journal, register
 from store.book import Book, open_book
 from store.entries import BreatherSwap, ElementChange, Reading, Sample, TopUp
 from store.register import FilterPosition, Unit
-from tests.conftest import fill_register
+from tests.conftest import fill_register, write_prefs
 
 CLOCK = datetime(2026, 5, 13, 10, 0, tzinfo=UTC)  # the plant's frozen "now" (an early shift)
 START = CLOCK - timedelta(days=140)
@@ -138,14 +137,6 @@ def build_plant(book: Book) -> None:
     journal.log_many(book, entries)
     book.set_setting("clock", CLOCK.strftime("%Y-%m-%dT%H:%M:%SZ"))
     book.set_setting("timezone", "UTC")
-
-
-def write_prefs(tmp_path: Path, **prefs: str) -> Path:
-    path = tmp_path / "prefs.json"
-    data = {"tech": "AB", "pressure": "bar", "temperature": "C", "volume": "L", "theme": "dark"}
-    data.update(prefs)
-    path.write_text(json.dumps(data), encoding="utf-8")
-    return path
 
 
 @pytest.fixture

@@ -4,12 +4,7 @@ watch list and the filter sheet."""
 
 from __future__ import annotations
 
-import shutil
-
-import pytest
-
 from store.book import open_book
-from store.demo import create_demo
 from tests.test_app_plant import settle, write_prefs
 from tui.app import SumpbookApp
 from tui.screens.filter_sheet import FilterSheetScreen
@@ -18,28 +13,6 @@ from tui.screens.unit_sheet import UnitSheetScreen
 from tui.screens.watch import WatchScreen
 
 SIZE = (80, 24)
-
-
-@pytest.fixture(scope="module")
-def demo_file(tmp_path_factory):
-    path = tmp_path_factory.mktemp("demo") / "demo.db"
-    create_demo(path).close()
-    return path
-
-
-@pytest.fixture
-def demo_app(demo_file, tmp_path, monkeypatch):
-    """A fresh app on a fresh copy of the demo plant; the demo book is frozen in time."""
-    path = tmp_path / "demo.db"
-    shutil.copy(demo_file, path)
-    with open_book(path, create=False) as book:
-        monkeypatch.setenv("SUMPBOOK_NOW", book.now().isoformat())
-
-    def make(**prefs: str) -> SumpbookApp:
-        monkeypatch.setenv("SUMPBOOK_CONFIG", str(write_prefs(tmp_path, tech="AK", **prefs)))
-        return SumpbookApp(open_book(path), cursor_blink=False)
-
-    return make
 
 
 async def _loaded(pilot) -> None:
