@@ -170,6 +170,23 @@ async def settle(pilot, screen_type=None, timeout: float = 10.0) -> None:
     raise AssertionError(f"{pilot.app.screen} did not settle")
 
 
+async def register_row(pilot, tab: str, tag: str):
+    """From the watch list to the register's `tab`, the cursor on `tag`; returns the screen."""
+    from textual.widgets import DataTable
+
+    from tui.screens.register import RegisterScreen
+
+    await pilot.press("3")
+    await settle(pilot, RegisterScreen)
+    screen = pilot.app.screen
+    screen.show_tab(tab)
+    await pilot.pause()
+    table = screen.query_one(f"#table-{tab}", DataTable)
+    table.move_cursor(row=table.get_row_index(tag))
+    await pilot.pause()
+    return screen
+
+
 def count_entries(path: Path, kind: str | None = None) -> int:
     with open_book(path, create=False) as book:
         return len(journal.read(book, kinds=[kind] if kind else None))

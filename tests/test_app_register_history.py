@@ -25,14 +25,7 @@ async def test_the_register_shows_each_records_history(plant):
     app = make_app(plant)
     async with app.run_test(size=(80, 24)) as pilot:
         await settle(pilot, WatchScreen)
-        await pilot.press("3")
-        await settle(pilot, RegisterScreen)
-        screen = app.screen
-        screen.show_tab("filters")
-        await pilot.pause()
-        table = screen.query_one("#table-filters", DataTable)
-        table.move_cursor(row=table.get_row_index("P1-RF"))
-        await pilot.pause()
+        screen = await kit.register_row(pilot, "filters", "P1-RF")
         assert "P1-RF history" in history_text(screen)
         assert "(new record)  added" in history_text(screen)
         await pilot.press("e")
@@ -42,6 +35,7 @@ async def test_the_register_shows_each_records_history(plant):
         await settle(pilot, RegisterScreen)
         shown = history_text(screen)
         assert "AB   limit_bar  2.5 → 2.4" in shown and "2026-05-13 10:00" in shown
+        table = screen.query_one("#table-filters", DataTable)
         table.move_cursor(row=table.get_row_index("P2-RF"))  # the pane follows the cursor
         await pilot.pause()
         shown = history_text(screen)

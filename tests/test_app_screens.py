@@ -194,12 +194,7 @@ async def test_a_clean_dp_near_the_bypass_is_asked_about_before_it_is_saved(plan
     app = make_app(plant)
     async with app.run_test(size=(80, 24)) as pilot:
         await settle(pilot, WatchScreen)
-        await pilot.press("3")
-        await settle(pilot, RegisterScreen)
-        screen = app.screen
-        screen.show_tab("filters")
-        table = screen.query_one("#table-filters", DataTable)
-        table.move_cursor(row=table.get_row_index("P1-RF"))
+        await kit.register_row(pilot, "filters", "P1-RF")
         await pilot.press("e")
         await pilot.pause()
         form = app.screen
