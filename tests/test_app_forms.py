@@ -249,3 +249,21 @@ async def test_indicator_only_filter_starts_on_the_indicator(plant):
     saved = newest(plant, "reading")
     assert isinstance(saved, Reading) and saved.indicator == "bypass" and saved.dp_bar is None
     assert isinstance(saved, Reading) and not isinstance(saved, Sample)
+
+
+def test_form_fields_take_the_books_ranges():
+    # A form field took its own range (the register form let 100 000 h through as a reading
+    # interval, then the book refused it at save): both now read store/validate.py RANGES.
+    from store.validate import RANGES
+    from tui.forms.validators import RangeValidator, VolumeValidator
+
+    for field, spec in RANGES.items():
+        check = RangeValidator(field)
+        assert check.validate(f"{spec.high:g}").is_valid, field
+        assert not check.validate(f"{spec.high * 1.01 + 1:g}").is_valid, field
+        assert not check.validate("inf").is_valid and not check.validate("nan").is_valid
+    assert not RangeValidator("reading_interval_h").validate("20000").is_valid
+    assert VolumeValidator("L", "reservoir_l").validate("500000").is_valid  # a big press tank
+    assert not VolumeValidator("L").validate("500000").is_valid  # no top-up is that big
+    # 100 US gal = 378.5 L (NIST SP 811: 1 gal = 3.785 411 784 L), within a top-up's range
+    assert VolumeValidator("gal").validate("100").is_valid

@@ -10,7 +10,7 @@ from store.register import FilterPosition, find
 
 from ..widgets.field import Spec
 from .base import EntryForm
-from .validators import NumberValidator
+from .validators import RangeValidator
 
 REASON_WORDS = {
     "limit": "ΔP at change limit",
@@ -46,7 +46,7 @@ class ChangeForm(EntryForm):
             ),
             Spec("condition", "Old element", "", hint="as found: caked, torn, metal…"),
             Spec("batch", "New batch", "", hint="batch or lot of the new one"),
-            Spec("hours", "Hour meter h", "", [NumberValidator(0, 10_000_000, "h")]),
+            Spec("hours", "Hour meter h", "", [RangeValidator("hours")]),
             *self.common_specs(),
         ]
 

@@ -13,7 +13,7 @@ from store.units import parse_pressure_bar, parse_temperature_c
 from ..widgets import fmt
 from ..widgets.field import Spec
 from .base import EntryForm, FieldError
-from .validators import DpValidator, NumberValidator, TemperatureValidator
+from .validators import DpValidator, RangeValidator, TemperatureValidator
 
 INDICATOR_CHOICES = [("clean", "clean"), ("dirty", "dirty"), ("in bypass", "bypass")]
 
@@ -64,14 +64,14 @@ class ReadingForm(EntryForm):
                 "flow",
                 "Flow L/min",
                 "",
-                [NumberValidator(0.001, 100_000, "L/min")],
+                [RangeValidator("flow_lpm")],
                 hint="blank: normal flow",
             ),
             Spec(
                 "hours",
                 "Hour meter h",
                 self.preset.get("hours", ""),
-                [NumberValidator(0, 10_000_000, "h")],
+                [RangeValidator("hours")],
                 hint=hours_hint,
             ),
             *self.common_specs(),

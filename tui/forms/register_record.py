@@ -17,6 +17,7 @@ from textual.screen import ModalScreen
 from textual.widgets import Button, Input, Static
 
 from store import register
+from store import validate as validate_value
 from store.errors import BookError
 from store.register import Breather, FilterPosition, Fluid, Technician, Unit
 from store.schema import FILTER_KINDS
@@ -30,7 +31,7 @@ from .validators import (
     CodeValidator,
     DpValidator,
     NewTagValidator,
-    NumberValidator,
+    RangeValidator,
     TemperatureValidator,
     VolumeValidator,
 )
@@ -96,19 +97,6 @@ HINTS = {
     "target_code": "ISO 4406, e.g. 17/15/12",
     "normal_flow_lpm": "blank: no flow correction",
     "iso_vg": "ISO 3448 grade",
-}
-NUMBER_RANGES = {
-    "iso_vg": (2, 3200, "", True),
-    "nu40_cst": (1, 100_000, "mm²/s", False),
-    "nu100_cst": (1, 10_000, "mm²/s", False),
-    "vi": (-100, 500, "", False),
-    "density_kg_l": (0.5, 2.0, "kg/L", False),
-    "rating_um": (0.1, 5000, "µm", False),
-    "beta_ratio": (1, 1e6, "", False),
-    "rated_flow_lpm": (0.001, 100_000, "L/min", False),
-    "normal_flow_lpm": (0.001, 100_000, "L/min", False),
-    "reading_interval_h": (1, 100_000, "h", False),
-    "swap_interval_d": (1, 10_000, "d", False),
 }
 
 
@@ -186,7 +174,7 @@ class RegisterForm(ModalScreen[Any]):
             elif name == "reservoir_l":
                 spec.label = f"Reservoir {fmt.v_unit(prefs)}"
                 spec.value = fmt.input_volume(current, prefs)
-                spec.validators = [VolumeValidator(prefs.volume, 0.1)]
+                spec.validators = [VolumeValidator(prefs.volume, "reservoir_l")]
             elif name == "target_code":
                 spec.validators = [CodeValidator()]
             elif name in ("unit",):
@@ -207,9 +195,8 @@ class RegisterForm(ModalScreen[Any]):
             elif name == "rating_basis":
                 spec.options = [("absolute", "absolute"), ("nominal", "nominal")]
                 spec.required = True
-            elif name in NUMBER_RANGES:
-                low, high, unit, integer = NUMBER_RANGES[name]
-                spec.validators = [NumberValidator(low, high, unit, integer)]
+            elif name in validate_value.RANGES:
+                spec.validators = [RangeValidator(name)]
                 if name in ("reading_interval_h", "swap_interval_d"):
                     spec.required = True
             out.append(spec)

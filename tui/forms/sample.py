@@ -9,7 +9,7 @@ from store.register import Unit, find
 
 from ..widgets.field import Spec
 from .base import EntryForm
-from .validators import CodeValidator, NumberValidator
+from .validators import CodeValidator, RangeValidator
 
 
 def _num(text: str) -> float | None:
@@ -26,14 +26,14 @@ class SampleForm(EntryForm):
             target = f", target {unit.target_code}" if unit.target_code else ""
             self.heading = f"Sample result for {unit.tag}{target}"
         self.first = "code" if unit else "unit"
-        count = NumberValidator(0, 1e9, "/mL")
+        count = RangeValidator("c4_per_ml")
         return [
             self.tag_spec("unit", Unit, "unit", unit.tag if unit else self.target),
             Spec("code", "ISO 4406 code", "", [CodeValidator()], hint="e.g. 18/16/13"),
             Spec("c4", "≥4 µm(c) /mL", "", [count], hint="or give the counts"),
             Spec("c6", "≥6 µm(c) /mL", "", [count]),
             Spec("c14", "≥14 µm(c) /mL", "", [count]),
-            Spec("water", "Water ppm", "", [NumberValidator(0, 1_000_000, "ppm")]),
+            Spec("water", "Water ppm", "", [RangeValidator("water_ppm")]),
             *self.common_specs(),
         ]
 

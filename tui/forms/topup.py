@@ -11,7 +11,7 @@ from store.units import parse_volume_l
 from ..widgets import fmt
 from ..widgets.field import Spec
 from .base import EntryForm, FieldError
-from .validators import NumberValidator, VolumeValidator
+from .validators import RangeValidator, VolumeValidator
 
 HOW = [("through a filter cart", "filtered"), ("unfiltered (from the drum)", "unfiltered")]
 
@@ -47,10 +47,10 @@ class TopUpForm(EntryForm):
                 "filtered",
                 "Cart rating µm",
                 "",
-                [NumberValidator(0.1, 1000, "µm")],
+                [RangeValidator("filtered_um")],
                 hint="finest stage of the cart",
             ),
-            Spec("hours", "Hour meter h", "", [NumberValidator(0, 10_000_000, "h")]),
+            Spec("hours", "Hour meter h", "", [RangeValidator("hours")]),
             *self.common_specs(),
         ]
 

@@ -13,6 +13,7 @@ from datetime import datetime, tzinfo
 from textual.validation import ValidationResult, Validator
 
 from store import journal
+from store import validate as validate_value
 from store.cleanliness import parse_code
 from store.errors import BookError
 from store.register import normalise_tag
@@ -20,12 +21,14 @@ from store.timeutil import parse_typed_time
 from store.units import (
     from_bar,
     from_c,
+    from_l,
     parse_pressure_bar,
     parse_temperature_c,
     parse_volume_l,
     pressure_label,
     split_quantity,
     temperature_label,
+    volume_label,
 )
 
 
@@ -105,37 +108,47 @@ class NewTagValidator(Validator):
         return self.success()
 
 
-class NumberValidator(Validator):
-    """A plain number within a range (flow, hours, µm, counts, ppm, …)."""
+class RangeValidator(Validator):
+    """A plain number within the store's range for its field (store/validate.py RANGES): the
+    form says what the book would say, from the same table."""
 
-    def __init__(self, low: float, high: float, unit: str = "", integer: bool = False) -> None:
+    def __init__(self, field: str) -> None:
         super().__init__()
-        self.low, self.high, self.unit, self.integer = low, high, unit, integer
+        self.field, self.spec = field, validate_value.RANGES[field]
 
     def validate(self, value: str) -> ValidationResult:
         text = value.strip().replace(",", ".")
         try:
-            number = int(text) if self.integer else float(text)
+            number = float(text)
         except ValueError:
-            return self.failure("a whole number" if self.integer else "a number")
-        if not self.low <= number <= self.high:
-            unit = f" {self.unit}" if self.unit else ""
-            return self.failure(f"{self.low:g} to {self.high:g}{unit}")
+            return self.failure("a whole number" if self.spec.whole else "a number")
+        try:
+            validate_value.number(self.field, number)
+        except BookError as exc:
+            whole = "whole" in str(exc)  # in range but not whole (an ISO VG grade)
+            return self.failure("a whole number" if whole else self.spec.text())
         return self.success()
 
 
 class VolumeValidator(Validator):
-    def __init__(self, unit: str, low_l: float = 0.01) -> None:
+    """A volume in the user's unit (or '5 gal'), within the store's range for its field."""
+
+    def __init__(self, unit: str, field: str = "volume_l") -> None:
         super().__init__()
-        self.unit, self.low_l = unit, low_l
+        self.unit, self.field = unit, field
 
     def validate(self, value: str) -> ValidationResult:
         try:
             litres = parse_volume_l(value, self.unit)
         except BookError:
             return self.failure("a number, e.g. 20 or 5 gal")
-        if not self.low_l <= litres <= 100_000:
-            return self.failure("more than 0, at most 100 000 L")
+        try:
+            validate_value.number(self.field, litres)
+        except BookError:
+            spec = validate_value.RANGES[self.field]
+            low, high = from_l(spec.low, self.unit), from_l(spec.high, self.unit)
+            word = "above" if spec.open_low else "from"
+            return self.failure(f"{word} {low:.3g} to {high:.7g} {volume_label(self.unit)}")
         return self.success()
 
 
