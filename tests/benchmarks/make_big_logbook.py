@@ -259,6 +259,9 @@ def simulate(register: dict[str, list], starts: np.ndarray, end: datetime,
                 c, k = rng.uniform(0.2, 0.5), rng.uniform(3.0, 6.0)
                 clean_e = clean * rng.uniform(0.9, 1.1)
                 ages = base[i:] - origin
+                if i == 0 and ages[0] >= life:  # it would be spent before the book opens
+                    origin = base[0]
+                    ages = base[i:] - origin
                 curve = clean_e + (limit - clean_e) * loading(np.maximum(ages, 0) / life, c, k)
                 stop = int(np.searchsorted(curve >= limit, True))  # first reading at the limit
                 reason = "indicator" if not gauge else "limit"
