@@ -105,8 +105,11 @@ def drop_without_change(
         return None
     before = y[:-1]
     k = 3
-    level = max(float(np.median(before[i : i + k])) for i in range(before.size - k + 1))
-    i_level = max(range(before.size - k + 1), key=lambda i: float(np.median(before[i : i + k])))
+    # The median of each run of three (the middle value: what np.median gives for three
+    # finite values), all at once; the first of the highest, as max() over them would pick.
+    medians = np.sort(np.lib.stride_tricks.sliding_window_view(before, k), axis=1)[:, k // 2]
+    i_level = int(np.argmax(medians))
+    level = float(medians[i_level])
     sigma = noise if noise is not None else noise_bar(y)
     fall = level - float(y[-1])
     if fall <= DROP_NOISE_TIMES * sigma or fall <= DROP_MIN_SHARE * abs(level):

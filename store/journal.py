@@ -499,6 +499,66 @@ def element_items(book: Book, filter: str, change_id: str | None = None) -> list
     return [item for _, _, item in keyed]
 
 
+_READINGS_UNTIL = (
+    "SELECT e.filter, e.at_utc, e.rowid, e.logged_utc, e.hours, e.dp_bar, e.temp_c, e.indicator, "
+    "e.flow_lpm, e.id FROM entries e WHERE e.kind = 'reading' AND e.filter IS NOT NULL{tags} "
+    "AND e.at_utc < ? AND NOT EXISTS (SELECT 1 FROM entries v WHERE v.voids = e.id "
+    "AND v.at_utc < ?) ORDER BY e.at_utc, e.rowid"
+)
+_CHANGES_UNTIL = (
+    _SELECT.replace(" AS voided_by ", " AS voided_by, e.rowid ")
+    + " AND v.at_utc < ? WHERE e.kind = 'change' AND e.filter IS NOT NULL{tags} "
+    "AND e.at_utc < ? AND v.id IS NULL ORDER BY e.at_utc, e.rowid"
+)
+
+
+def element_items_until(
+    book: Book, until: datetime, tags: Sequence[str] | None = None
+) -> dict[str, list[Any]]:
+    """`element_items` of many positions (all when `tags` is None) as the book stood before
+    `until`: entries dated before it, voided only by voids dated before it, as
+    `read(filter=tag, until=until, as_of=until)` takes them. Keyed by upper-case tag; one
+    read of the readings and one of the changes for the lot instead of queries per position.
+    A row `read` could not build an entry from is noted and left out, as `read` does."""
+    stamp = format_utc(until)
+    groups: list[Sequence[str] | None] = [None]
+    if tags is not None:
+        groups = [tags[i : i + 500] for i in range(0, len(tags), 500)]
+    keyed: dict[str, list[tuple[str, int, Any]]] = {}
+    for part in groups:
+        clause = "" if part is None else f" AND e.filter IN ({', '.join('?' for _ in part)})"
+        params = [*(part or ()), stamp, stamp]
+        rows = book.conn.execute(_READINGS_UNTIL.format(tags=clause), params).fetchall()
+        with _no_gc_pauses():
+            for tag, at, rowid, logged, hours, dp, temp, indicator, flow, entry_id in rows:
+                try:
+                    item = (parse_stamp(at), hours, dp, temp, indicator, flow, entry_id)
+                    parse_stamp(logged)  # a row `read` cannot build is left out, as there
+                except ROW_ERRORS as exc:
+                    note_unreadable(book, entry_id, _row_problem(exc))
+                    continue
+                key = tag.upper()
+                found = keyed.get(key)
+                if found is None:
+                    found = keyed[key] = []
+                found.append((at, rowid, item))
+        params = [stamp, *(part or ()), stamp]
+        change_rows = book.conn.execute(_CHANGES_UNTIL.format(tags=clause), params).fetchall()
+        built = entries_from_rows(book, [row[:-1] for row in change_rows])
+        by_id = {e.id: e for e in built}
+        changed: set[str] = set()
+        for row in change_rows:
+            entry = by_id.get(row[_ID])
+            if entry is None:
+                continue
+            key = entry.filter.upper()  # type: ignore[attr-defined]
+            keyed.setdefault(key, []).append((row[1], row[-1], entry))
+            changed.add(key)
+        for key in changed:
+            keyed[key].sort(key=lambda item: (item[0], item[1]))
+    return {key: [item for _, _, item in items] for key, items in keyed.items()}
+
+
 def breather_swaps(book: Book, until: datetime | None = None) -> dict[str, list[Entry]]:
     """Every breather's swaps in time order, keyed by upper-case tag; with `until`, as the
     book stood then (swaps before it, voided only by voids dated before it). One pass over the

@@ -27,6 +27,7 @@ from .elements import (
     Point,
     hours_per_day,
     split_elements,
+    split_summaries,
     summarise,
     with_running_rate,
 )
@@ -42,8 +43,8 @@ from .fluidcare import (
     topup_consumption,
     topup_filtration_problem,
 )
-from .journal import breather_swaps, read
-from .lives import like_lives
+from .journal import breather_swaps, element_items_until, read
+from .lives import like_lives, like_lives_from, live_changes
 from .normalise import ColdStart, cold_start
 from .register import Breather, FilterPosition, Fluid, Unit, list_all
 from .timeutil import iso_local
@@ -631,6 +632,28 @@ def status_of(book: Book, ctx: FilterContext, as_of: datetime | None = None) -> 
     return filter_status(ctx, entries, now, like_lives(book, ctx, until))
 
 
+def _filters_as_of(
+    book: Book,
+    ctxs: Sequence[FilterContext],
+    positions: Sequence[FilterPosition],
+    now: datetime,
+) -> list[FilterStatus]:
+    """`status_of(book, ctx, now)` of each of `ctxs` (every position in `positions` being the
+    register's): the same sums, from one read of the readings and changes as the book stood at
+    `now` and one of the element changes for the like positions' lives, instead of three
+    queries and an entry per reading for each position."""
+    until = now + timedelta(seconds=1)
+    tags = None if len(ctxs) == len(positions) else [c.position.tag for c in ctxs]
+    items = element_items_until(book, until, tags)
+    changes = live_changes(book, until)
+    out = []
+    for ctx in ctxs:
+        past, current = split_summaries(ctx, items.get(ctx.position.tag.upper(), []))
+        like = like_lives_from(changes, positions, ctx)
+        out.append(status_from(ctx, past, current, now, like))
+    return out
+
+
 # ---- the whole book ------------------------------------------------------------------------------
 
 
@@ -662,7 +685,7 @@ def watch(
         filters = cached_filters(book, ctxs, now, stale_ok)
         units = cached_units(book, unit_records, by_unit, now)
     else:
-        filters = [status_of(book, c, now) for c in ctxs]
+        filters = _filters_as_of(book, ctxs, positions, now)
         units = [unit_status(book, u, by_unit.get(u.tag.upper(), []), now) for u in unit_records]
     filters.sort(key=lambda s: s.urgency)
     until = now + timedelta(seconds=1)
