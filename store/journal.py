@@ -501,34 +501,63 @@ def element_items(book: Book, filter: str, change_id: str | None = None) -> list
 
 _READINGS_UNTIL = (
     "SELECT e.filter, e.at_utc, e.rowid, e.logged_utc, e.hours, e.dp_bar, e.temp_c, e.indicator, "
-    "e.flow_lpm, e.id FROM entries e WHERE e.kind = 'reading' AND e.filter IS NOT NULL{tags} "
-    "AND e.at_utc < ? AND NOT EXISTS (SELECT 1 FROM entries v WHERE v.voids = e.id "
-    "AND v.at_utc < ?) ORDER BY e.at_utc, e.rowid"
+    "e.flow_lpm, e.id FROM {source} WHERE e.kind = 'reading'{where} AND e.at_utc < ? "
+    "AND NOT EXISTS (SELECT 1 FROM entries v WHERE v.voids = e.id AND v.at_utc < ?) "
+    "ORDER BY e.at_utc, e.rowid"
 )
+# Each position from its own start: the change (time, rowid) its history is read from.
+_FROM_START = (
+    "(SELECT column1 AS tag, column2 AS at, column3 AS rid FROM (VALUES {values})) AS start "
+    "CROSS JOIN entries e ON e.filter = start.tag"
+)
+_AFTER_START = " AND e.at_utc >= start.at AND (e.at_utc > start.at OR e.rowid >= start.rid)"
 _CHANGES_UNTIL = (
     _SELECT.replace(" AS voided_by ", " AS voided_by, e.rowid ")
-    + " AND v.at_utc < ? WHERE e.kind = 'change' AND e.filter IS NOT NULL{tags} "
-    "AND e.at_utc < ? AND v.id IS NULL ORDER BY e.at_utc, e.rowid"
+    + " AND v.at_utc < ? WHERE e.kind = 'change' AND e.filter IS NOT NULL AND e.at_utc < ? "
+    "AND v.id IS NULL ORDER BY e.at_utc, e.rowid"
 )
+
+
+def live_changes_until(book: Book, until: datetime) -> list[tuple[str, int, Entry]]:
+    """(at_utc, rowid, change) of every position's element changes as the book stood before
+    `until` (dated before it, voided only by voids dated before it), in time order."""
+    stamp = format_utc(until)
+    rows = book.conn.execute(_CHANGES_UNTIL, [stamp, stamp]).fetchall()
+    built = entries_from_rows(book, [row[:-1] for row in rows])
+    by_id = {e.id: e for e in built}
+    return [(row[1], row[-1], by_id[row[_ID]]) for row in rows if row[_ID] in by_id]
 
 
 def element_items_until(
-    book: Book, until: datetime, tags: Sequence[str] | None = None
+    book: Book,
+    until: datetime,
+    starts: dict[str, tuple[str, int]] | None = None,
+    changes: Sequence[tuple[str, int, Entry]] | None = None,
 ) -> dict[str, list[Any]]:
-    """`element_items` of many positions (all when `tags` is None) as the book stood before
-    `until`: entries dated before it, voided only by voids dated before it, as
-    `read(filter=tag, until=until, as_of=until)` takes them. Keyed by upper-case tag; one
-    read of the readings and one of the changes for the lot instead of queries per position.
-    A row `read` could not build an entry from is noted and left out, as `read` does."""
+    """`element_items` of every position as the book stood before `until`: entries dated
+    before it, voided only by voids dated before it, as `read(filter=tag, until=until,
+    as_of=until)` takes them. Keyed by upper-case tag. With `starts` (upper-case tag -> the
+    (at_utc, rowid) of one of its live changes): only those positions, each from that change
+    on (included), or from its beginning where the start is ("", 0); as `element_items(book,
+    tag, change_id)`. One read of the readings (a few for many starts) instead of queries per
+    position; `changes` are `live_changes_until`'s, if already read. A row `read` could not
+    build an entry from is noted and left out, as `read` does."""
     stamp = format_utc(until)
-    groups: list[Sequence[str] | None] = [None]
-    if tags is not None:
-        groups = [tags[i : i + 500] for i in range(0, len(tags), 500)]
+    queries: list[tuple[str, list[Any]]] = []
+    if starts is None:
+        where = " AND e.filter IS NOT NULL"
+        queries.append((_READINGS_UNTIL.format(source="entries e", where=where), [stamp, stamp]))
+    else:
+        items = list(starts.items())
+        for i in range(0, len(items), 500):
+            part = items[i : i + 500]
+            source = _FROM_START.format(values=", ".join("(?, ?, ?)" for _ in part))
+            sql = _READINGS_UNTIL.format(source=source, where=_AFTER_START)
+            params = [value for tag, (at, rowid) in part for value in (tag, at, rowid)]
+            queries.append((sql, [*params, stamp, stamp]))
     keyed: dict[str, list[tuple[str, int, Any]]] = {}
-    for part in groups:
-        clause = "" if part is None else f" AND e.filter IN ({', '.join('?' for _ in part)})"
-        params = [*(part or ()), stamp, stamp]
-        rows = book.conn.execute(_READINGS_UNTIL.format(tags=clause), params).fetchall()
+    for sql, params in queries:
+        rows = book.conn.execute(sql, params).fetchall()
         with _no_gc_pauses():
             for tag, at, rowid, logged, hours, dp, temp, indicator, flow, entry_id in rows:
                 try:
@@ -542,20 +571,19 @@ def element_items_until(
                 if found is None:
                     found = keyed[key] = []
                 found.append((at, rowid, item))
-        params = [stamp, *(part or ()), stamp]
-        change_rows = book.conn.execute(_CHANGES_UNTIL.format(tags=clause), params).fetchall()
-        built = entries_from_rows(book, [row[:-1] for row in change_rows])
-        by_id = {e.id: e for e in built}
-        changed: set[str] = set()
-        for row in change_rows:
-            entry = by_id.get(row[_ID])
-            if entry is None:
+    if changes is None:
+        changes = live_changes_until(book, until)
+    changed: set[str] = set()
+    for at, rowid, entry in changes:
+        key = entry.filter.upper()  # type: ignore[attr-defined]
+        if starts is not None:
+            start = starts.get(key)
+            if start is None or (at, rowid) < start:
                 continue
-            key = entry.filter.upper()  # type: ignore[attr-defined]
-            keyed.setdefault(key, []).append((row[1], row[-1], entry))
-            changed.add(key)
-        for key in changed:
-            keyed[key].sort(key=lambda item: (item[0], item[1]))
+        keyed.setdefault(key, []).append((at, rowid, entry))
+        changed.add(key)
+    for key in changed:
+        keyed[key].sort(key=lambda item: (item[0], item[1]))
     return {key: [item for _, _, item in items] for key, items in keyed.items()}
 
 

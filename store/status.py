@@ -43,11 +43,11 @@ from .fluidcare import (
     topup_consumption,
     topup_filtration_problem,
 )
-from .journal import breather_swaps, element_items_until, read
+from .journal import breather_swaps, element_items_until, live_changes_until, read
 from .lives import like_lives, like_lives_from, live_changes
 from .normalise import ColdStart, cold_start
 from .register import Breather, FilterPosition, Fluid, Unit, list_all
-from .timeutil import iso_local
+from .timeutil import format_utc, iso_local
 
 if TYPE_CHECKING:  # the fitting maths (numpy, scipy) load on first use: a watch list read
     from . import trend  # from the status cache needs none of it
@@ -638,20 +638,90 @@ def _filters_as_of(
     positions: Sequence[FilterPosition],
     now: datetime,
 ) -> list[FilterStatus]:
-    """`status_of(book, ctx, now)` of each of `ctxs` (every position in `positions` being the
-    register's): the same sums, from one read of the readings and changes as the book stood at
-    `now` and one of the element changes for the like positions' lives, instead of three
-    queries and an entry per reading for each position."""
+    """`status_of(book, ctx, now)` of each of `ctxs` (`positions` being every position in the
+    register): the same sums, from a few reads for the whole plant instead of three queries
+    and an entry per reading for each position. The summaries of elements taken out before
+    `now` come from the element cache where they are provably what the entries give as they
+    stood then (`_kept_before`); the rest is read and split from the entries."""
     until = now + timedelta(seconds=1)
-    tags = None if len(ctxs) == len(positions) else [c.position.tag for c in ctxs]
-    items = element_items_until(book, until, tags)
-    changes = live_changes(book, until)
+    changes = live_changes_until(book, until)
+    kept, starts = _kept_before(book, ctxs, changes, until)
+    items = element_items_until(book, until, starts, changes)
+    lives = live_changes(book, until)
     out = []
     for ctx in ctxs:
-        past, current = split_summaries(ctx, items.get(ctx.position.tag.upper(), []))
-        like = like_lives_from(changes, positions, ctx)
+        key = ctx.position.tag.upper()
+        past, current = split_summaries(ctx, items.get(key, []))
+        if key in kept:
+            past = kept[key] + past[1:]  # the first ended with the change read from
+        like = like_lives_from(lives, positions, ctx)
         out.append(status_from(ctx, past, current, now, like))
     return out
+
+
+def _kept_before(
+    book: Book,
+    ctxs: Sequence[FilterContext],
+    changes: Sequence[tuple[str, int, Entry]],
+    until: datetime,
+) -> tuple[dict[str, list[ElementSummary]], dict[str, tuple[str, int]]]:
+    """Per position (upper-case tag): the element cache's summaries of its elements taken out
+    before `until`, and where its entries must be read from, the (at_utc, rowid) of the
+    change that ended the last of them, or ("", 0): from the beginning.
+
+    A summary depends only on the entries between the element's two changes, all dated before
+    `until`. The cache is used where it holds for the live entries now (the check the status
+    itself relies on: same context, no entry or void written since that reaches back into it)
+    and no void dated at or after `until` touches the position: then the entries it was made
+    from are the ones that counted at `until`."""
+    from .elementcache import _decode_element, _State, _still_valid, context_key
+
+    stamp = format_utc(until)
+    starts: dict[str, tuple[str, int]] = {c.position.tag.upper(): ("", 0) for c in ctxs}
+    kept: dict[str, list[ElementSummary]] = {}
+    late = {
+        tag.upper()
+        for (tag,) in book.conn.execute(
+            "SELECT e.filter FROM entries v INDEXED BY one_void_per_entry CROSS JOIN entries e "
+            "ON e.id = v.voids WHERE v.voids IS NOT NULL AND v.at_utc >= ? "
+            "AND e.filter IS NOT NULL",
+            [stamp],
+        )
+    }
+    states = {
+        row[0].upper(): _State(*row[1:])
+        for row in book.conn.execute(
+            "SELECT filter, context, seen_rowid, last_change, last_change_utc, elements "
+            "FROM element_state WHERE last_change IS NOT NULL"
+        )
+    }
+    cached: dict[str, list[tuple[str, bytes]]] = {}
+    for tag, text, curve in book.conn.execute(
+        "SELECT filter, data, curve FROM element_cache ORDER BY filter, seq"
+    ):
+        cached.setdefault(tag.upper(), []).append((text, curve))
+    where = {entry.id: (at, rowid) for at, rowid, entry in changes}
+    for ctx in ctxs:
+        key = ctx.position.tag.upper()
+        state = states.get(key)
+        if (
+            key in late
+            or state is None
+            or state.context != context_key(ctx)
+            or len(cached.get(key, ())) != state.count
+            or not _still_valid(book, ctx.position.tag, state)
+        ):
+            continue
+        past = []
+        for text, curve in cached[key]:
+            summary = _decode_element(text, curve)
+            if format_utc(summary.removed_at) >= stamp:
+                break
+            past.append(summary)
+        if past and past[-1].removal_id in where:
+            kept[key] = past
+            starts[key] = where[past[-1].removal_id]
+    return kept, starts
 
 
 # ---- the whole book ------------------------------------------------------------------------------

@@ -42,8 +42,12 @@ def assert_same(book, now, unit=None) -> None:
 
 @pytest.fixture
 def demo(demo_file: Path, tmp_path: Path) -> Path:
+    """A copy of the demo with its caches made (as `sumpbook rebuild`); the writes the tests
+    make keep them."""
     path = tmp_path / "demo.db"
     path.write_bytes(demo_file.read_bytes())
+    with open_book(path, create=False) as book:
+        statuscache.rebuild(book)
     return path
 
 
@@ -113,6 +117,43 @@ def test_as_of_the_last_entry_equals_the_kept_status(demo: Path) -> None:
     # The whole-plant audit against the status cache kept by the write path (another route
     # through the same sums: element cache, entries since the last change).
     with open_book(demo, create=False) as book:
-        statuscache.rebuild(book)
         kept, audit = status.watch(book), status.watch(book, as_of=book.now())
     assert status.to_json(kept) == status.to_json(audit)
+
+
+def kept_before(book, now):
+    until = now + timedelta(seconds=1)
+    ctxs = list(contexts(book).values())
+    return status._kept_before(book, ctxs, journal.live_changes_until(book, until), until)[0]
+
+
+def test_kept_summaries_are_used_only_where_they_hold(demo: Path) -> None:
+    with open_book(demo, create=False) as book:
+        now = book.now()
+        kept = kept_before(book, now)
+        assert len(kept) >= 5  # the element cache kept by the writes is used
+        # A reading slipped into an earlier element behind the write hooks (as a bulk load
+        # would): the cache no longer holds for that position, which is read in full.
+        tag = sorted(kept)[0]
+        old = book.conn.execute(
+            "SELECT id FROM entries WHERE kind = 'reading' AND upper(filter) = ? "
+            "AND dp_bar IS NOT NULL AND at_utc < ? ORDER BY at_utc DESC LIMIT 1",
+            [tag, format_utc(kept[tag][-1].removed_at)],
+        ).fetchone()[0]
+        with book.atomic():
+            book.conn.execute(
+                "INSERT INTO entries (id, at_utc, logged_utc, kind, by, unit, filter, dp_bar, "
+                "temp_c, note) SELECT 'aaaaaaaa-0000-4000-8000-000000000001', at_utc, "
+                "logged_utc, kind, by, unit, filter, dp_bar * 3, temp_c, note FROM entries "
+                "WHERE id = ?",
+                [old],
+            )
+        assert tag not in kept_before(book, now)
+        assert_same(book, now)
+        assert_same(book, now - timedelta(days=20))
+        # A book whose element cache was never made: everything from the entries.
+        with book.atomic():
+            for table in ("element_cache", "element_state"):
+                book.conn.execute(f"DELETE FROM {table}")
+        assert kept_before(book, now) == {}
+        assert_same(book, now)
