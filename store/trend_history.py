@@ -120,14 +120,32 @@ def _isotonic(y: np.ndarray) -> np.ndarray:
     """Least-squares non-decreasing fit (pool adjacent violators)."""
     vals: list[float] = []
     wts: list[float] = []
-    for yi in y:
-        vals.append(float(yi))
+    for yi in y.tolist():  # Python floats: the same values, without a numpy scalar each
+        vals.append(yi)
         wts.append(1.0)
         while len(vals) > 1 and vals[-2] > vals[-1]:
             v, wt = vals.pop(), wts.pop()
             vals[-1] = (vals[-1] * wts[-1] + v * wt) / (wts[-1] + wt)
             wts[-1] += wt
     return np.repeat(vals, np.array(wts, dtype=int))
+
+
+def _run_means(f: np.ndarray, starts: np.ndarray, ends: np.ndarray) -> list[float]:
+    """`f[s:e].mean()` for each run, the same numbers with less work: numpy adds fewer than 8
+    values one by one, in order (its pairwise sum works in blocks of 8 from there on), so
+    short runs are added up here; longer ones are left to numpy."""
+    values = f.tolist()
+    out = []
+    for s, e in zip(starts.tolist(), ends.tolist(), strict=True):
+        n = e - s
+        if n < 8:
+            total = values[s]
+            for x in values[s + 1 : e]:
+                total += x
+            out.append(total / n)
+        else:
+            out.append(float(f[s:e].mean()))
+    return out
 
 
 def make_template(
@@ -157,7 +175,7 @@ def make_template(
     # Middle of each run of equal values, plus the two ends.
     starts = np.r_[0, np.flatnonzero(np.diff(g) > 0) + 1]
     ends = np.r_[starts[1:], g.size]
-    fm = np.array([f[s:e].mean() for s, e in zip(starts, ends, strict=True)])
+    fm = np.array(_run_means(f, starts, ends))
     gm = g[starts]
     fm[0] = 0.0
     fm[-1] = f[-1]
@@ -255,41 +273,42 @@ def fit_history(
     # How much clean ΔP differs between elements: spread of the earlier curves' starts.
     starts = np.array([tp.g[0] for tp in templates])
     sigma_b = max(float(np.std(starts, ddof=1)) if starts.size > 1 else 0.0, sigma_floor_bar)
-    fit = _match(t, y, w, templates, grid, taus, sigma_bar, sigma_b)
+    # Each stretched curve's residuals and prior do not depend on the scatter: made once.
+    f = t[None, :] / grid[:, None]  # (G, n)
+    curves = [(y[None, :] - tpl.at(f), _log_prior(grid, tpl.life_h, taus)) for tpl in templates]
+    fit = _match(w, templates, curves, grid, sigma_bar, sigma_b)
     # The curves of earlier elements are not the current element's: when the best match leaves
     # more scatter than the readings' own noise, score with that larger scatter.
     resid = y - fit.dp_at(t)
     sigma_match = robust_scale(resid, 2, sigma_floor_bar)
     if sigma_match > 1.1 * sigma_bar:
-        fit = _match(t, y, w, templates, grid, taus, sigma_match, sigma_b)
+        fit = _match(w, templates, curves, grid, sigma_match, sigma_b)
     return fit
 
 
 def _match(
-    t: np.ndarray,
-    y: np.ndarray,
     w: np.ndarray,
     templates: Sequence[Template],
+    curves: Sequence[tuple[np.ndarray, np.ndarray]],
     grid: np.ndarray,
-    taus: tuple[float, float],
     sigma_bar: float,
     sigma_b: float,
 ) -> HistoryFit:
+    """Score every (curve, life) pair; `curves`: per template the residuals of the readings
+    from it stretched to each life of the grid (G, n), and the log prior of those lives."""
     ridge = (sigma_bar / sigma_b) ** 2
-    f = t[None, :] / grid[:, None]  # (G, n)
     log_post = np.empty((len(templates), grid.size))
     offsets = np.empty_like(log_post)
-    for j, tpl in enumerate(templates):
-        r = y[None, :] - tpl.at(f)
+    for j, (r, prior) in enumerate(curves):
         # Offset b: Huber-weighted mean of the residuals, shrunk towards 0.
         rw = np.ones_like(r)
-        for _ in range(2):
+        for i in range(2):
             ww = w * rw
             b = (ww * r).sum(1) / (ww.sum(1) + ridge)
-            z = np.abs(r - b[:, None]) / (HUBER_K * sigma_bar)
-            rw = np.where(z <= 1.0, 1.0, 1.0 / np.maximum(z, 1e-300))
+            if i == 0:  # the weights after the last pass would not be used
+                z = np.abs(r - b[:, None]) / (HUBER_K * sigma_bar)
+                rw = np.where(z <= 1.0, 1.0, 1.0 / np.maximum(z, 1e-300))
         loss = (w * huber_rho((r - b[:, None]) / sigma_bar)).sum(1) + 0.5 * b * b / sigma_b**2
-        prior = _log_prior(grid, tpl.life_h, taus)
         log_post[j] = prior - loss
         offsets[j] = b
     return HistoryFit(tuple(templates), grid, log_post, offsets, sigma_bar)
