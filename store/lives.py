@@ -69,6 +69,24 @@ def like_lives_from(
     return _lives(changes, [p.tag for p in like_positions(positions, ctx)])
 
 
+def like_lives_all(
+    changes: dict[str, list[tuple[datetime, str]]], positions: Sequence[FilterPosition]
+) -> dict[str, list[tuple[float, bool]]]:
+    """`like_lives_from(changes, positions, ctx)` of every position in `positions`, keyed by
+    tag: each position's own lives worked out once, not once for every like position."""
+    own = {p.tag: _lives(changes, [p.tag]) for p in positions}
+    groups: dict[str, list[str]] = {}
+    for p in positions:
+        if p.element:
+            groups.setdefault(p.element.lower(), []).append(p.tag)
+    return {
+        p.tag: [life for tag in groups[p.element.lower()] if tag != p.tag for life in own[tag]]
+        if p.element
+        else []
+        for p in positions
+    }
+
+
 def _lives(
     changes: dict[str, list[tuple[datetime, str]]], tags: Sequence[str]
 ) -> list[tuple[float, bool]]:

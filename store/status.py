@@ -44,7 +44,7 @@ from .fluidcare import (
     topup_filtration_problem,
 )
 from .journal import breather_swaps, element_items_until, live_changes_until, read
-from .lives import like_lives, like_lives_from, live_changes
+from .lives import like_lives, like_lives_all, live_changes
 from .normalise import ColdStart, cold_start
 from .register import Breather, FilterPosition, Fluid, Unit, list_all
 from .timeutil import format_utc, iso_local
@@ -647,15 +647,14 @@ def _filters_as_of(
     changes = live_changes_until(book, until)
     kept, starts = _kept_before(book, ctxs, changes, until)
     items = element_items_until(book, until, starts, changes)
-    lives = live_changes(book, until)
+    like = like_lives_all(live_changes(book, until), positions)
     out = []
     for ctx in ctxs:
         key = ctx.position.tag.upper()
         past, current = split_summaries(ctx, items.get(key, []))
         if key in kept:
             past = kept[key] + past[1:]  # the first ended with the change read from
-        like = like_lives_from(lives, positions, ctx)
-        out.append(status_from(ctx, past, current, now, like))
+        out.append(status_from(ctx, past, current, now, like[ctx.position.tag]))
     return out
 
 
@@ -674,7 +673,7 @@ def _kept_before(
     itself relies on: same context, no entry or void written since that reaches back into it)
     and no void dated at or after `until` touches the position: then the entries it was made
     from are the ones that counted at `until`."""
-    from .elementcache import _decode_element, _State, _still_valid, context_key
+    from .elementcache import _decode_element, _State, context_key
 
     stamp = format_utc(until)
     starts: dict[str, tuple[str, int]] = {c.position.tag.upper(): ("", 0) for c in ctxs}
@@ -701,6 +700,7 @@ def _kept_before(
     ):
         cached.setdefault(tag.upper(), []).append((text, curve))
     where = {entry.id: (at, rowid) for at, rowid, entry in changes}
+    late |= _reached_back(book, states)
     for ctx in ctxs:
         key = ctx.position.tag.upper()
         state = states.get(key)
@@ -709,7 +709,6 @@ def _kept_before(
             or state is None
             or state.context != context_key(ctx)
             or len(cached.get(key, ())) != state.count
-            or not _still_valid(book, ctx.position.tag, state)
         ):
             continue
         past = []
@@ -722,6 +721,33 @@ def _kept_before(
             kept[key] = past
             starts[key] = where[past[-1].removal_id]
     return kept, starts
+
+
+def _reached_back(book: Book, states: dict[str, Any]) -> set[str]:
+    """Upper-case tags whose element cache does not hold for the live entries:
+    `elementcache._still_valid` for every position with a cached element at once (an entry
+    or a void of one written after the cache was checked that reaches back to or before its
+    last cached change), from one walk over what was written since the oldest check."""
+    if not states:
+        return set()
+    since = min(state.seen_rowid for state in states.values())
+    written = book.conn.execute(
+        "SELECT filter, at_utc, rowid FROM entries WHERE rowid > ? AND filter IS NOT NULL",
+        [since],
+    ).fetchall()
+    written += book.conn.execute(
+        "SELECT e.filter, e.at_utc, v.rowid FROM entries v INDEXED BY one_void_per_entry "
+        "CROSS JOIN entries e ON e.id = v.voids WHERE v.voids IS NOT NULL AND v.rowid > ? "
+        "AND e.filter IS NOT NULL",
+        [since],
+    ).fetchall()
+    out = set()
+    for tag, at, rowid in written:
+        key = tag.upper()
+        state = states.get(key)
+        if state is not None and rowid > state.seen_rowid and at <= state.last_change_utc:
+            out.add(key)
+    return out
 
 
 # ---- the whole book ------------------------------------------------------------------------------

@@ -149,7 +149,29 @@ def test_kept_summaries_are_used_only_where_they_hold(demo: Path) -> None:
                 [old],
             )
         assert tag not in kept_before(book, now)
+        # And a void of a reading in an earlier element on another position, written behind
+        # the hooks, dated before the time.
+        other = sorted(kept)[1]
+        target = book.conn.execute(
+            "SELECT id FROM entries WHERE kind = 'reading' AND upper(filter) = ? "
+            "AND dp_bar IS NOT NULL AND at_utc < ? ORDER BY at_utc DESC LIMIT 1",
+            [other, format_utc(kept[other][-1].removed_at)],
+        ).fetchone()[0]
+        by = book.conn.execute("SELECT tag FROM technicians ORDER BY tag").fetchone()[0]
+        with book.atomic():
+            book.conn.execute(
+                "INSERT INTO entries (id, at_utc, logged_utc, kind, by, voids, note) VALUES "
+                "('aaaaaaaa-0000-4000-8000-000000000002', ?, ?, 'void', ?, ?, 'wrong gauge')",
+                [
+                    format_utc(now - timedelta(days=1)),
+                    format_utc(now - timedelta(days=1)),
+                    by,
+                    target,
+                ],
+            )
+        assert other not in kept_before(book, now)
         assert_same(book, now)
+        assert_same(book, now - timedelta(days=2))
         assert_same(book, now - timedelta(days=20))
         # A book whose element cache was never made: everything from the entries.
         with book.atomic():
