@@ -104,12 +104,26 @@ def robust_sd(x: np.ndarray) -> float:
     keeps a value when more than half the deviations are exactly 0, as with readings written
     to a gauge step.
     """
-    d = np.abs(np.asarray(x, dtype=float) - np.median(x))
-    if d.size == 0:
+    x = np.asarray(x, dtype=float)
+    if x.size == 0:
         return 0.0
-    mad = 1.4826 * float(np.median(d))
-    kept = np.sort(d)[: max(1, math.ceil(0.8 * d.size))]
+    if not np.isfinite(x).all():
+        d = np.abs(x - np.median(x))
+        mad = 1.4826 * float(np.median(d))
+        d = np.sort(d)
+    else:  # the same medians, read off the sorted values (np.median costs more than a sort)
+        d = np.sort(np.abs(x - _median_sorted(np.sort(x))))
+        mad = 1.4826 * float(_median_sorted(d))
+    kept = d[: max(1, math.ceil(0.8 * d.size))]
     return max(mad, float(np.sqrt(np.mean(kept**2))) / 0.66)
+
+
+def _median_sorted(values: np.ndarray) -> np.floating:
+    """np.median of finite values already sorted: the middle one, or the mean of the two."""
+    half = values.size // 2
+    if values.size % 2:
+        return values[half]
+    return (values[half - 1] + values[half]) / 2
 
 
 def robust_scale(resid: np.ndarray, n_params: int, floor: float) -> float:
