@@ -646,7 +646,8 @@ def _filters_as_of(
     until = now + timedelta(seconds=1)
     changes = live_changes_until(book, until)
     kept, starts = _kept_before(book, ctxs, changes, until)
-    items = element_items_until(book, until, starts, changes)
+    whole = not kept and len(ctxs) == len(positions)  # every history from its beginning
+    items = element_items_until(book, until, None if whole else starts, changes)
     like = like_lives_all(live_changes(book, until), positions)
     out = []
     for ctx in ctxs:
@@ -763,7 +764,9 @@ def watch(
     the clock is worked out at read time). Rows marked stale (a like position's lives
     changed) are recomputed in memory first, unless `stale_ok`: a screen that shows the list
     at once and has `statuscache.refresh_stale` catch up behind it. As of a past time:
-    computed from the entries as they stood then. Never writes."""
+    computed from the entries as they stood then (`status_of` for each filter, for the whole
+    plant at once; never from the status caches, only the element summaries the element
+    cache provably holds for that time). Never writes."""
     now = as_of or book.now()
     all_units, positions = list_all(book, Unit), list_all(book, FilterPosition)
     ctxs = [
