@@ -8,10 +8,10 @@ from pathlib import Path
 
 import pytest
 
-from store import register
-from store.book import Book, open_book
-from store.demo import create_demo
-from store.register import Breather, FilterPosition, Fluid, Technician, Unit
+from store.db.book import Book, open_book
+from store.exchange.demo import create_demo
+from store.ledger import register
+from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
 
 
 @pytest.fixture(autouse=True)

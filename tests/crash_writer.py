@@ -17,9 +17,9 @@ import traceback
 import uuid
 from pathlib import Path
 
-from store import journal
-from store.book import open_book
-from store.entries import Note, Reading
+from store.db.book import open_book
+from store.ledger import journal
+from store.ledger.entries import Note, Reading
 
 
 def _say(fd: int, line: str) -> None:

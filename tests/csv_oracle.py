@@ -1,8 +1,8 @@
 """The shift-log CSV written the slow, plain way: one `Entry` at a time through `csv.DictWriter`.
 
 This was sumpbook's first exporter. It is kept here, and only here, as the oracle the one
-exporter (`store/csvexport.py`) is held to byte for byte (tests/test_csvexport.py). It does
-not use the column table of `store/csvcolumns.py`: the header and every cell rule are written
+exporter (`store/exchange/csvexport.py`) is held to byte for byte (tests/test_csvexport.py). It does
+not use the column table of `store/exchange/csvcolumns.py`: the header and every cell rule are written
 out again below, so that a mistake in the table shows up as a difference.
 """
 
@@ -15,12 +15,12 @@ from dataclasses import fields
 from datetime import tzinfo
 from typing import IO
 
-from store.book import Book
-from store.conditions import FilterContext, contexts, normalise
-from store.csvcolumns import Prefs
-from store.entries import Entry, Reading, TopUp
-from store.timeutil import iso_local, shift_at
-from store.units import from_bar, from_c, from_l, pressure_key, temperature_key, volume_key
+from store.base.timeutil import iso_local, shift_at
+from store.base.units import from_bar, from_c, from_l, pressure_key, temperature_key, volume_key
+from store.db.book import Book
+from store.exchange.csvcolumns import Prefs
+from store.health.conditions import FilterContext, contexts, normalise
+from store.ledger.entries import Entry, Reading, TopUp
 
 FORMULA_START = ("=", "+", "-", "@", "\t", "\r", "'")
 NUMBER_COLUMNS = (

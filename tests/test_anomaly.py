@@ -1,4 +1,4 @@
-"""Flags from one element's reading sequence (store/anomaly.py).
+"""Flags from one element's reading sequence (store/forecast/anomaly.py).
 
 The sequences are synthetic: a loading curve rising to the change limit along a 3rd-order curve
 (REFERENCES.md §7a: ΔP against element life is roughly a 3rd-order curve), read at irregular
@@ -8,7 +8,7 @@ intervals with seeded noise, then broken on purpose.
 import numpy as np
 import pytest
 
-from store.anomaly import (
+from store.forecast.anomaly import (
     ReadingsOrderError,
     drop_without_change,
     gauge_step_bar,

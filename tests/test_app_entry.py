@@ -5,8 +5,8 @@ from __future__ import annotations
 
 from textual.widgets import Input, OptionList, Static
 
-from store import journal
-from store.book import open_book
+from store.db.book import open_book
+from store.ledger import journal
 from tests import test_app_plant as kit
 from tests.test_app_plant import count_entries, make_app, settle
 from tui.forms.confirm import ConfirmScreen

@@ -6,9 +6,9 @@ from __future__ import annotations
 import pytest
 from textual.widgets import Input, Static
 
-from store import journal
-from store.book import open_book
-from store.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp
+from store.db.book import open_book
+from store.ledger import journal
+from store.ledger.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp
 from tests import test_app_plant as kit
 from tests.test_app_plant import count_entries, make_app, settle, write_prefs
 from tui.forms.base import EntryForm
@@ -253,8 +253,8 @@ async def test_indicator_only_filter_starts_on_the_indicator(plant):
 
 def test_form_fields_take_the_books_ranges():
     # A form field took its own range (the register form let 100 000 h through as a reading
-    # interval, then the book refused it at save): both now read store/validate.py RANGES.
-    from store.validate import RANGES
+    # interval, then the book refused it at save): both now read store/base/validate.py RANGES.
+    from store.base.validate import RANGES
     from tui.forms.validators import RangeValidator, VolumeValidator
 
     for field, spec in RANGES.items():

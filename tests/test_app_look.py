@@ -8,11 +8,11 @@ import pytest
 from rich.cells import cell_len
 from textual.widgets import DataTable, Input, Label, Static
 
-from store import journal
-from store.book import open_book
-from store.entries import KINDS, TopUp, Void
-from store.register import FilterPosition, list_all
-from store.status import FLAG_WORDS, URGENT_FLAGS
+from store.db.book import open_book
+from store.health.status import FLAG_WORDS, URGENT_FLAGS
+from store.ledger import journal
+from store.ledger.entries import KINDS, TopUp, Void
+from store.ledger.register import FilterPosition, list_all
 from tests.test_app_plant import settle, write_prefs
 from tui.app import SumpbookApp, saved_text
 from tui.keys import KEYS
@@ -256,7 +256,7 @@ def test_saved_words_for_a_void_and_a_note():
 
 
 def test_no_question_before_a_colon_in_the_step_up_advice():
-    from store import anomaly
+    from store.forecast import anomaly
 
     # a steady rise, then one reading far above it (invented series, common practice)
     series = [(float(h), 0.5 + 0.002 * h) for h in range(0, 400, 24)] + [(408.0, 2.0)]

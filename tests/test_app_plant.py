@@ -8,10 +8,10 @@ from pathlib import Path
 
 import pytest
 
-from store import journal, register
-from store.book import Book, open_book
-from store.entries import BreatherSwap, ElementChange, Reading, Sample, TopUp
-from store.register import FilterPosition, Unit
+from store.db.book import Book, open_book
+from store.ledger import journal, register
+from store.ledger.entries import BreatherSwap, ElementChange, Reading, Sample, TopUp
+from store.ledger.register import FilterPosition, Unit
 from tests.conftest import fill_register, write_prefs
 
 CLOCK = datetime(2026, 5, 13, 10, 0, tzinfo=UTC)  # the plant's frozen "now" (an early shift)

@@ -4,9 +4,9 @@ from __future__ import annotations
 
 from textual.widgets import DataTable, Input, Static
 
-from store import register
-from store.book import open_book
-from store.register import FilterPosition
+from store.db.book import open_book
+from store.ledger import register
+from store.ledger.register import FilterPosition
 from tests import test_app_plant as kit
 from tests.test_app_plant import make_app, settle
 from tui.screens.register import RegisterScreen
@@ -47,8 +47,8 @@ async def test_the_register_shows_each_records_history(plant):
 
 
 async def test_the_unit_sheet_shows_a_notes_text_shortened(plant):
-    from store import journal
-    from store.entries import Note
+    from store.ledger import journal
+    from store.ledger.entries import Note
     from tui.screens.unit_sheet import UnitSheetScreen
 
     text = "hose at the clamp cylinder weeps at the lower fitting, tighten next stop"

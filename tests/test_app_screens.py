@@ -7,10 +7,11 @@ import json
 import pytest
 from textual.widgets import DataTable, Input, Sparkline, Static
 
-from store import register, status
-from store.book import open_book
-from store.demo import discard, is_throwaway
-from store.register import FilterPosition, Technician
+from store.db.book import open_book
+from store.exchange.demo import discard, is_throwaway
+from store.health import status
+from store.ledger import register
+from store.ledger.register import FilterPosition, Technician
 from tests import test_app_plant as kit
 from tests.test_app_plant import count_entries, make_app, settle, write_prefs
 from tui.app import SumpbookApp
@@ -307,7 +308,7 @@ async def test_quit_makes_a_backup_and_a_failure_only_warns(plant, monkeypatch):
     def broken(*args, **kwargs):
         raise OSError("disk full")
 
-    monkeypatch.setattr("store.backup.rolling_backup", broken)
+    monkeypatch.setattr("store.db.backup.rolling_backup", broken)
     app = make_app(plant)
     async with app.run_test(size=(80, 24)) as pilot:
         await settle(pilot, WatchScreen)

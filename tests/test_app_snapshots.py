@@ -4,7 +4,7 @@ watch list and the filter sheet."""
 
 from __future__ import annotations
 
-from store.book import open_book
+from store.db.book import open_book
 from tests.test_app_plant import settle, write_prefs
 from tui.app import SumpbookApp
 from tui.screens.filter_sheet import FilterSheetScreen

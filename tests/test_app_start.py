@@ -9,11 +9,11 @@ from pathlib import Path
 import pytest
 from textual.widgets import Static
 
-from store import journal, register
-from store.book import open_book
-from store.demo import is_throwaway
-from store.entries import Note
-from store.register import Technician
+from store.db.book import open_book
+from store.exchange.demo import is_throwaway
+from store.ledger import journal, register
+from store.ledger.entries import Note
+from store.ledger.register import Technician
 from tests.test_app_plant import settle
 from tui import cli
 from tui.app import SumpbookApp, open_for_app
@@ -38,7 +38,7 @@ def notes(path: Path) -> list[str]:
 
 
 def test_no_logbook_opens_a_fresh_demo_each_time_and_keeps_nothing(no_logbook):
-    from store.demo import discard
+    from store.exchange.demo import discard
 
     book, demo, new_path = open_for_app(None)
     first = book.path

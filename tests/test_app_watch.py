@@ -5,9 +5,9 @@ from __future__ import annotations
 
 from textual.widgets import DataTable, Input
 
-from store import status
-from store.book import open_book
-from store.sheets import watch_rows
+from store.db.book import open_book
+from store.health import status
+from store.views import watch_rows
 from tests import test_app_plant as kit
 from tests.test_app_plant import make_app, settle
 from tui.screens.filter_sheet import FilterSheetScreen
@@ -149,8 +149,8 @@ async def test_scales_up_to_a_big_terminal(plant):
 async def test_a_damaged_file_is_named_behind_the_first_paint(plant):
     # Damage behind an intact header (tests/test_corrupt.py does the same to a bare book):
     # the whole-file check runs after the list is painted and says so, and nothing is written.
-    from store.backup import rolling_backup
-    from store.book import forget_check
+    from store.db.backup import rolling_backup
+    from store.db.book import forget_check
     from tests.test_corrupt import _noise, _overwrite, _root_page
 
     with open_book(plant, create=False) as book:
@@ -171,8 +171,8 @@ async def test_a_damaged_file_is_named_behind_the_first_paint(plant):
 
 
 async def test_the_list_is_read_again_only_when_the_book_may_show_something_else(plant):
-    from store import journal
-    from store.entries import Note
+    from store.ledger import journal
+    from store.ledger.entries import Note
 
     app = make_app(plant)
     async with app.run_test(size=(80, 24)) as pilot:
@@ -199,7 +199,7 @@ async def test_the_list_is_read_again_only_when_the_book_may_show_something_else
 
 
 async def test_a_sheet_opened_again_shows_only_the_new_filter(plant):
-    from store import sheets
+    from store import views
 
     app = make_app(plant)
     async with app.run_test(size=(80, 24)) as pilot:
@@ -215,7 +215,7 @@ async def test_a_sheet_opened_again_shows_only_the_new_filter(plant):
             assert sheet.tag == tag and sheet.sheet.position.tag == tag
             assert str(sheet.query_one("#sheet-title").render()).startswith(f"FILTER {tag}")
             with open_book(plant, create=False) as book:
-                rows = sheets.filter_sheet(book, tag).elements
+                rows = views.filter_sheet(book, tag).elements
             assert sheet.query_one("#elements", DataTable).row_count == len(rows)
             await pilot.press("escape")
             await settle(pilot, WatchScreen)
@@ -234,8 +234,8 @@ async def test_after_a_weekend_the_kept_rows_show_as_they_are_now(plant, monkeyp
     # catch-up behind it and nothing written.
     from datetime import timedelta
 
-    from store import statuscache
-    from store.timeutil import format_utc
+    from store.base.timeutil import format_utc
+    from store.derived import statuscache
     from tui.screens import watch as watch_module
 
     with open_book(plant, create=False) as book:  # the plant's clock, three days on
@@ -282,7 +282,7 @@ def test_the_first_list_read_early_is_the_list(plant):
     # reading it here gives, and a failure comes back as the book's own error.
     import pytest
 
-    from store.errors import BookError
+    from store.base.errors import BookError
     from tui.screens import common
     from tui.screens.watch import read_watch
 
@@ -329,7 +329,7 @@ async def test_a_kept_sheet_is_read_before_it_shows_or_shows_at_once_when_slow(p
             time.sleep(4 * app_module.SHEET_WAIT_S)
             return sheets_module.filter_sheet(book, tag)
 
-        from store import sheets as sheets_module
+        from store import views as sheets_module
 
         monkeypatch.setattr(app_module, "filter_sheet", slow)
         table.move_cursor(row=tags.index("P1-RF"))

@@ -10,8 +10,9 @@ from pathlib import Path
 
 import pytest
 
-from store import journal, schema
-from store.backup import (
+from store.base.errors import BookError, NotALogbook, TooNew
+from store.db import schema
+from store.db.backup import (
     DEFAULT_KEEP,
     KEEP_SETTING,
     backup_dir,
@@ -22,9 +23,9 @@ from store.backup import (
     rolling_backup,
     rolling_backups,
 )
-from store.book import open_book
-from store.entries import Note
-from store.errors import BookError, NotALogbook, TooNew
+from store.db.book import open_book
+from store.ledger import journal
+from store.ledger.entries import Note
 from tests.crash_writer import parse_report, read_all, run_child, wait_for_commits, warm_up
 from tui.cli import main
 
@@ -110,8 +111,8 @@ def test_a_backup_is_made_before_each_migration(tmp_path, book, monkeypatch):
     path = book.path
     book.close()
     steps = schema.MIGRATIONS + ["ALTER TABLE units ADD COLUMN colour TEXT;"]
-    monkeypatch.setattr("store.book.MIGRATIONS", steps)
-    monkeypatch.setattr("store.book.SCHEMA_VERSION", len(steps))
+    monkeypatch.setattr("store.db.book.MIGRATIONS", steps)
+    monkeypatch.setattr("store.db.book.SCHEMA_VERSION", len(steps))
     with open_book(path) as upgraded:
         assert upgraded.conn.execute("PRAGMA user_version").fetchone()[0] == len(steps)
     copy = latest_backup(path)
@@ -126,8 +127,8 @@ def test_a_failed_migration_still_leaves_its_backup(tmp_path, book, monkeypatch)
     path = book.path
     book.close()
     broken = schema.MIGRATIONS + ["CREATE TABLE extra (x); SELECT no_such_function();"]
-    monkeypatch.setattr("store.book.MIGRATIONS", broken)
-    monkeypatch.setattr("store.book.SCHEMA_VERSION", len(broken))
+    monkeypatch.setattr("store.db.book.MIGRATIONS", broken)
+    monkeypatch.setattr("store.db.book.SCHEMA_VERSION", len(broken))
     with pytest.raises(BookError, match="left as it was"):
         open_book(path)
     assert latest_backup(path) is not None

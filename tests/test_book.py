@@ -6,9 +6,9 @@ import sys
 
 import pytest
 
-from store import schema
-from store.book import open_book
-from store.errors import BookError, NotALogbook, TooNew
+from store.base.errors import BookError, NotALogbook, TooNew
+from store.db import schema
+from store.db.book import open_book
 
 
 def test_new_book_has_the_documented_tables_and_settings(tmp_path):
@@ -63,9 +63,9 @@ def test_a_failed_migration_changes_nothing(tmp_path, monkeypatch):
     open_book(path).close()
     original = schema.SCHEMA_VERSION
     broken = schema.MIGRATIONS + ["CREATE TABLE extra (x); SELECT no_such_function();"]
-    monkeypatch.setattr("store.book.MIGRATIONS", broken)
-    monkeypatch.setattr("store.book.SCHEMA_VERSION", len(broken))
-    monkeypatch.setattr("store.schema.SCHEMA_VERSION", len(broken))
+    monkeypatch.setattr("store.db.book.MIGRATIONS", broken)
+    monkeypatch.setattr("store.db.book.SCHEMA_VERSION", len(broken))
+    monkeypatch.setattr("store.db.schema.SCHEMA_VERSION", len(broken))
     with pytest.raises(BookError, match="left as it was"):
         open_book(path)
     conn = sqlite3.connect(path)
@@ -74,22 +74,22 @@ def test_a_failed_migration_changes_nothing(tmp_path, monkeypatch):
 
 
 def test_migration_to_a_new_step_keeps_entries(tmp_path, monkeypatch, book):
-    from store import journal
-    from store.entries import Note
+    from store.ledger import journal
+    from store.ledger.entries import Note
 
     journal.log(book, Note(unit="P1", note="before upgrade", by="AB"))
     book.close()
     steps = schema.MIGRATIONS + ["ALTER TABLE units ADD COLUMN colour TEXT;"]
-    monkeypatch.setattr("store.book.MIGRATIONS", steps)
-    monkeypatch.setattr("store.book.SCHEMA_VERSION", len(steps))
+    monkeypatch.setattr("store.db.book.MIGRATIONS", steps)
+    monkeypatch.setattr("store.db.book.SCHEMA_VERSION", len(steps))
     with open_book(tmp_path / "book.db") as again:
         assert again.conn.execute("PRAGMA user_version").fetchone()[0] == len(steps)
         assert [r[0] for r in again.conn.execute("SELECT note FROM entries")] == ["before upgrade"]
 
 
 def test_entries_cannot_be_edited_or_deleted_even_with_plain_sql(book):
-    from store import journal
-    from store.entries import Note
+    from store.ledger import journal
+    from store.ledger.entries import Note
 
     journal.log(book, Note(unit="P1", note="x", by="AB"))
     with pytest.raises(sqlite3.IntegrityError, match="append-only"):
@@ -113,8 +113,8 @@ def test_store_never_imports_the_ui():
 def test_a_book_opened_read_only_reads_and_refuses_every_write(book):
     # What a forked child process opens: it must never write (SQLite's locks do not carry
     # across a fork), so a save fails with one line and the file is left as it was.
-    from store import journal
-    from store.entries import Note
+    from store.ledger import journal
+    from store.ledger.entries import Note
 
     path = book.path
     before = book.conn.execute("SELECT count(*) FROM entries").fetchone()[0]

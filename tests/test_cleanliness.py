@@ -4,7 +4,8 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
-from store.cleanliness import (
+from store.base.errors import BookError
+from store.physics.cleanliness import (
     OVER_28,
     CleanlinessCode,
     code_from_counts,
@@ -12,7 +13,6 @@ from store.cleanliness import (
     parse_code,
     scale_number,
 )
-from store.errors import BookError
 
 # ISO 4406 Table 1 as reproduced in REFERENCES.md §1b: (scale, more than, up to and including)
 ISO_4406_ROWS = [

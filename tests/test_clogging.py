@@ -8,7 +8,7 @@ import math
 
 import pytest
 
-from store.trend_calibration import SHIPPED
+from store.forecast.trend_calibration import SHIPPED
 from tests.benchmarks.clogging import (
     Fold,
     book_agreement,
@@ -77,7 +77,7 @@ def test_the_book_path_gives_the_functions_date():
 
 
 def test_the_shipped_calibration_is_what_the_runs_give():
-    """SHIPPED in store/trend_calibration.py, derived again from the 24 runs (its provenance)."""
+    """SHIPPED in store/forecast/trend_calibration.py, derived again from the 24 runs (its provenance)."""
     folder = _data_or_skip()
     cal = derive_calibration(load_runs(folder), conditions(folder))
     assert cal.n == SHIPPED.n

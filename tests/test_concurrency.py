@@ -11,11 +11,11 @@ from pathlib import Path
 
 import pytest
 
-from store import journal, register
-from store.book import open_book
-from store.entries import Note
-from store.errors import BookError
-from store.register import Technician
+from store.base.errors import BookError
+from store.db.book import open_book
+from store.ledger import journal, register
+from store.ledger.entries import Note
+from store.ledger.register import Technician
 from tests.crash_writer import parse_report, read_all, run_child, wait_for_commits, warm_up
 
 PER_WRITER = 40

@@ -11,11 +11,12 @@ from pathlib import Path
 
 import pytest
 
-from store import journal, schema
-from store.backup import latest_backup, restore, rolling_backup
-from store.book import forget_check, open_book
-from store.entries import Note
-from store.errors import NotALogbook
+from store.base.errors import NotALogbook
+from store.db import schema
+from store.db.backup import latest_backup, restore, rolling_backup
+from store.db.book import forget_check, open_book
+from store.ledger import journal
+from store.ledger.entries import Note
 from tests.conftest import fill_register
 
 

@@ -16,7 +16,7 @@ import time
 
 import pytest
 
-from store.book import open_book
+from store.db.book import open_book
 from tests.conftest import fill_register
 from tests.crash_writer import parse_report, read_all, run_child, wait_for_commits, warm_up
 

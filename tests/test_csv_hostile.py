@@ -21,15 +21,15 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from store import journal, register
-from store.book import open_book
-from store.csvcolumns import COLUMNS, FORMULA_START, Prefs, neutralise, restore
-from store.csvexport import write_span
-from store.csvio import MAX_FIELD_CHARS, import_csv
-from store.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp, Void
-from store.errors import BookError
-from store.register import Breather, FilterPosition, Fluid, Technician, Unit
-from store.timeutil import zone
+from store.base.errors import BookError
+from store.base.timeutil import zone
+from store.db.book import open_book
+from store.exchange.csvcolumns import COLUMNS, FORMULA_START, Prefs, neutralise, restore
+from store.exchange.csvexport import write_span
+from store.exchange.csvio import MAX_FIELD_CHARS, import_csv
+from store.ledger import journal, register
+from store.ledger.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp, Void
+from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
 from tests.conftest import fill_register
 
 UTC_ZONE = zone("UTC")
@@ -372,8 +372,8 @@ def test_sql_injection_through_every_text_field_is_stored_as_text(book, tmp_path
 
 
 def test_sql_injection_through_csv_cells_and_file_names(book, tmp_path):
-    from store.backup import copy_to, restore
-    from store.merge import merge
+    from store.db.backup import copy_to, restore
+    from store.exchange.merge import merge
 
     before = _fingerprint(book)
     for payload in PAYLOADS:

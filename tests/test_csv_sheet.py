@@ -22,14 +22,14 @@ from pathlib import Path
 
 import pytest
 
-from store import journal
-from store.book import open_book
-from store.csvcolumns import Prefs
-from store.csvexport import export_file, write_span
-from store.csvio import import_csv
-from store.entries import Reading, Sample, TopUp
-from store.errors import BookError
-from store.timeutil import zone
+from store.base.errors import BookError
+from store.base.timeutil import zone
+from store.db.book import open_book
+from store.exchange.csvcolumns import Prefs
+from store.exchange.csvexport import export_file, write_span
+from store.exchange.csvio import import_csv
+from store.ledger import journal
+from store.ledger.entries import Reading, Sample, TopUp
 from tests.conftest import fill_register
 
 UTC_ZONE = zone("UTC")
@@ -193,7 +193,7 @@ def test_a_failed_export_leaves_no_part_and_the_old_file(logged, tmp_path, monke
     def full_disk(*args, **kwargs):
         raise OSError(28, "No space left on device")
 
-    monkeypatch.setattr("store.csvexport.write_span", full_disk)
+    monkeypatch.setattr("store.exchange.csvexport.write_span", full_disk)
     with pytest.raises(BookError, match="No space left"):
         export(logged, dest=dest)
     assert dest.read_text() == "yesterday's file"

@@ -1,4 +1,4 @@
-"""The one exporter (store/csvexport.py) writes exactly what the entry-based oracle writes.
+"""The one exporter (store/exchange/csvexport.py) writes exactly what the entry-based oracle writes.
 
 The reference for every check here is the plain path kept in tests/csv_oracle.py:
 `write_csv` over `journal.read(book, since=, until=)` (and, for single pieces, `neutralise`
@@ -27,15 +27,24 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from store import journal, register
-from store.book import Book, open_book
-from store.conditions import contexts
-from store.csvcolumns import Prefs
-from store.csvexport import FilterReference, LocalClock, csv_field, write_span
-from store.demo import create_demo
-from store.entries import BreatherSwap, ElementChange, Entry, Note, Reading, Sample, TopUp, Void
-from store.register import FilterPosition, Fluid, Unit
-from store.timeutil import format_utc, iso_local, shift_at, zone
+from store.base.timeutil import format_utc, iso_local, shift_at, zone
+from store.db.book import Book, open_book
+from store.exchange.csvcolumns import Prefs
+from store.exchange.csvexport import FilterReference, LocalClock, csv_field, write_span
+from store.exchange.demo import create_demo
+from store.health.conditions import contexts
+from store.ledger import journal, register
+from store.ledger.entries import (
+    BreatherSwap,
+    ElementChange,
+    Entry,
+    Note,
+    Reading,
+    Sample,
+    TopUp,
+    Void,
+)
+from store.ledger.register import FilterPosition, Fluid, Unit
 from tests.conftest import fill_register
 from tests.csv_oracle import export_rows, neutralise, write_csv
 
@@ -120,7 +129,7 @@ def add_plant(book: Book) -> None:
     fill_register(book)
     register.add(book, Fluid(tag="NOVIS", name="oil of unknown grade"))
     # ν40 10 and ν100 2.6 mm²/s: an invented thin fluid whose Walther curve falls below
-    # 2 mm²/s (the ASTM D341 limit store/fluid.py keeps) before 150 °C
+    # 2 mm²/s (the ASTM D341 limit store/physics/fluid.py keeps) before 150 °C
     register.add(book, Fluid(tag="THIN", name="thin fluid", nu40_cst=10.0, nu100_cst=2.6))
     register.add(book, Unit(tag="P2", fluid="NOVIS"))
     register.add(book, Unit(tag="P3"))
@@ -308,7 +317,7 @@ def test_a_write_that_fails_half_way_ends_the_read(plant):
 
 def test_memos_that_fill_up_start_again_and_change_nothing(plant, monkeypatch):
     plant.set_setting("timezone", "America/St_Johns")
-    monkeypatch.setattr("store.csvexport._MEMO_SIZE", 2)
+    monkeypatch.setattr("store.exchange.csvexport._MEMO_SIZE", 2)
     assert_same(plant, None, None, Prefs("psi", "F", "gal"))
 
 

@@ -16,11 +16,11 @@ from pathlib import Path
 
 import pytest
 
-from store import journal
-from store.backup import latest_backup, rolling_backup
-from store.book import damage_marker, forget_check, open_book
-from store.entries import Note
-from store.errors import NotALogbook
+from store.base.errors import NotALogbook
+from store.db.backup import latest_backup, rolling_backup
+from store.db.book import damage_marker, forget_check, open_book
+from store.ledger import journal
+from store.ledger.entries import Note
 from tests.conftest import fill_register
 from tui.cli import main
 

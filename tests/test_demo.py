@@ -12,16 +12,17 @@ from datetime import timedelta
 import pytest
 from scipy.stats import spearmanr
 
-from store import journal, register, status
-from store.book import Book
-from store.conditions import contexts
-from store.demo import SQL_PATH, create_demo
-from store.elements import split_elements
-from store.entries import ElementChange, Reading, Sample, TopUp
-from store.fluid import iso_vg_limits
-from store.register import Breather, FilterPosition, Fluid, Technician, Unit
-from store.schema import FILTER_KINDS, SCHEMA_VERSION
-from store.timeutil import parse_utc
+from store.base.timeutil import parse_utc
+from store.db.book import Book
+from store.db.schema import FILTER_KINDS, SCHEMA_VERSION
+from store.exchange.demo import SQL_PATH, create_demo
+from store.health import status
+from store.health.conditions import contexts
+from store.health.elements import split_elements
+from store.ledger import journal, register
+from store.ledger.entries import ElementChange, Reading, Sample, TopUp
+from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
+from store.physics.fluid import iso_vg_limits
 from tests import make_demo
 
 NEAR, TORN, INDICATOR, COLD, LEAKING, UNFILTERED, OVERDUE = (

@@ -13,16 +13,17 @@ from pathlib import Path
 
 import pytest
 
-from store import journal, register, validate
-from store.book import open_book
-from store.csvio import import_csv
-from store.demo import create_demo
-from store.entries import Note, Reading, TopUp
-from store.errors import BookError
-from store.merge import MergeReport, _Merger, _read, merge
-from store.register import FilterPosition, Technician
-from store.schema import MIGRATIONS
-from store.timeutil import parse_time, zone
+from store.base import validate
+from store.base.errors import BookError
+from store.base.timeutil import parse_time, zone
+from store.db.book import open_book
+from store.db.schema import MIGRATIONS
+from store.exchange.csvio import import_csv
+from store.exchange.demo import create_demo
+from store.exchange.merge import MergeReport, _Merger, _read, merge
+from store.ledger import journal, register
+from store.ledger.entries import Note, Reading, TopUp
+from store.ledger.register import FilterPosition, Technician
 from tui.cli import join_negative_values, main
 
 
@@ -399,7 +400,7 @@ def test_merge_holds_back_and_lists_every_row_no_one_could_type(demo, tmp_path):
     assert "\x1b" not in text
     # and the book still reads whole
     with open_book(demo) as book:
-        from store import status
+        from store.health import status
 
         assert journal.read(book)
         json.loads(

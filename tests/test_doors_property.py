@@ -24,8 +24,8 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from store.book import open_book
-from store.schema import MIGRATIONS
+from store.db.book import open_book
+from store.db.schema import MIGRATIONS
 from tests.conftest import fill_register
 from tui.cli import main
 
@@ -291,7 +291,7 @@ def test_merge_of_crafted_books(plant, tmp_path, column, cell, unit_column, unit
 def test_merge_rows_of_a_current_book(plant, tmp_path, column, cell):
     """The rows of another book as merge reads them, past the other file's own checks (a book
     edited by hand, or written by a program that is not sumpbook): merge's checks alone."""
-    from store.merge import MergeReport, _Merger, _Snapshot
+    from store.exchange.merge import MergeReport, _Merger, _Snapshot
 
     entry = {
         "id": str(uuid.uuid4()),

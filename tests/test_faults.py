@@ -14,12 +14,12 @@ from pathlib import Path
 
 import pytest
 
-from store import journal, register
-from store.book import open_book
-from store.csvio import import_csv
-from store.entries import Note, Reading
-from store.errors import BookError
-from store.register import Technician
+from store.base.errors import BookError
+from store.db.book import open_book
+from store.exchange.csvio import import_csv
+from store.ledger import journal, register
+from store.ledger.entries import Note, Reading
+from store.ledger.register import Technician
 from tests.conftest import fill_register
 from tests.crash_writer import warm_up
 

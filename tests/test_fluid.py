@@ -4,8 +4,8 @@ import pytest
 from hypothesis import assume, given
 from hypothesis import strategies as st
 
-from store.errors import BookError
-from store.fluid import (
+from store.base.errors import BookError
+from store.physics.fluid import (
     FluidRangeError,
     FluidSpec,
     ViscosityCurve,

@@ -18,8 +18,8 @@ from datetime import timedelta
 from hypothesis import given
 from hypothesis import strategies as st
 
-from store.text import inert, inert_line, json_inert
-from store.timeutil import format_utc
+from store.base.text import inert, inert_line, json_inert
+from store.base.timeutil import format_utc
 from tests import test_app_plant as kit
 from tests.test_app_plant import CLOCK, make_app, settle
 from tui.cli import main

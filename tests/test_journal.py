@@ -4,9 +4,9 @@ from datetime import UTC, datetime, timedelta
 
 import pytest
 
-from store import journal
-from store.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp, Void
-from store.errors import BookError
+from store.base.errors import BookError
+from store.ledger import journal
+from store.ledger.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp, Void
 
 
 def count(book):

@@ -1,4 +1,4 @@
-"""Weibull service life with right-censoring (store/life.py)."""
+"""Weibull service life with right-censoring (store/forecast/life.py)."""
 
 import math
 
@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from store.errors import BookError
-from store.life import WeibullFit, fit_weibull
+from store.base.errors import BookError
+from store.forecast.life import WeibullFit, fit_weibull
 
 # REFERENCES.md §8a: the `reliability` docs' MLE example (3 failures, 2 suspensions).
 SMALL_FAILED = [17, 5, 12]

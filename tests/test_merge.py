@@ -11,13 +11,14 @@ from pathlib import Path
 
 import pytest
 
-from store import journal, register, schema
-from store.book import open_book
-from store.entries import Note, Reading, Sample, TopUp, Void
-from store.errors import BookError, NotALogbook
-from store.merge import merge
-from store.register import Breather, FilterPosition, Unit
-from store.timeutil import utc_now
+from store.base.errors import BookError, NotALogbook
+from store.base.timeutil import utc_now
+from store.db import schema
+from store.db.book import open_book
+from store.exchange.merge import merge
+from store.ledger import journal, register
+from store.ledger.entries import Note, Reading, Sample, TopUp, Void
+from store.ledger.register import Breather, FilterPosition, Unit
 from tests.conftest import fill_register
 
 TABLES = ("technicians", "fluids", "units", "filters", "breathers", "shifts", "register_log")
@@ -312,8 +313,8 @@ def test_the_same_id_with_different_content_is_reported(tmp_path):
 
 def test_an_older_logbook_is_merged_from_an_upgraded_copy(tmp_path, monkeypatch):
     old = tmp_path / "old.db"
-    monkeypatch.setattr("store.book.MIGRATIONS", schema.MIGRATIONS[:1])
-    monkeypatch.setattr("store.book.SCHEMA_VERSION", 1)
+    monkeypatch.setattr("store.db.book.MIGRATIONS", schema.MIGRATIONS[:1])
+    monkeypatch.setattr("store.db.book.SCHEMA_VERSION", 1)
     open_book(old).close()  # a version-1 logbook, as the first sumpbook wrote them
     monkeypatch.undo()
     conn = sqlite3.connect(old)

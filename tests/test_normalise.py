@@ -2,9 +2,9 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
-from store.errors import BookError
-from store.fluid import TEMP_MAX_C, ViscosityCurve
-from store.normalise import (
+from store.base.errors import BookError
+from store.physics.fluid import TEMP_MAX_C, ViscosityCurve
+from store.physics.normalise import (
     ReferenceCondition,
     cold_start,
     dp_at_temp_bar,

@@ -11,11 +11,11 @@ from pathlib import Path
 
 import pytest
 
-from store import journal
-from store.backup import restore, rolling_backup
-from store.book import open_book
-from store.entries import Note
-from store.errors import BookError
+from store.base.errors import BookError
+from store.db.backup import restore, rolling_backup
+from store.db.book import open_book
+from store.ledger import journal
+from store.ledger.entries import Note
 from tests.crash_writer import parse_report, read_all, run_child, wait_for_commits, warm_up
 
 pytestmark = pytest.mark.skipif(not hasattr(os, "fork"), reason="needs fork and SIGKILL")
@@ -67,7 +67,7 @@ def test_a_writer_waits_while_the_restore_holds_the_book(tmp_path, book, monkeyp
     seen: list[str] = []
     other = sqlite3.connect(book.path, timeout=0, isolation_level=None)
     reader = sqlite3.connect(book.path, timeout=0, isolation_level=None)
-    from store import backup as backup_module
+    from store.db import backup as backup_module
 
     original = backup_module.copy_to
 
@@ -90,7 +90,7 @@ def test_a_writer_waits_while_the_restore_holds_the_book(tmp_path, book, monkeyp
 
 
 def test_the_backup_command_holds_the_book_while_it_copies(tmp_path, book, monkeypatch):
-    from store import backup as backup_module
+    from store.db import backup as backup_module
     from tui.cli import main
 
     _fill(book, 50)

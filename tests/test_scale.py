@@ -18,12 +18,15 @@ from pathlib import Path
 
 import pytest
 
-from store import elementcache, journal, lives, register, sheets, status, statuscache
-from store.book import Book, open_book
-from store.conditions import contexts
-from store.entries import ElementChange, Note, Reading, Sample, TopUp, Void, from_row
-from store.register import FilterPosition, Fluid, Technician, Unit, list_all
-from store.timeutil import format_utc
+from store import views
+from store.base.timeutil import format_utc
+from store.db.book import Book, open_book
+from store.derived import elementcache, statuscache
+from store.health import lives, status
+from store.health.conditions import contexts
+from store.ledger import journal, register
+from store.ledger.entries import ElementChange, Note, Reading, Sample, TopUp, Void, from_row
+from store.ledger.register import FilterPosition, Fluid, Technician, Unit, list_all
 from tests.benchmarks import make_big_logbook
 
 CLOCK = datetime(2026, 6, 1, 12, 0, tzinfo=UTC)
@@ -89,7 +92,7 @@ def assert_cache_is_fresh(book: Book) -> None:
     assert cached.units == audit.units
     # The filter sheet from the element cache shows what it shows computed from the entries.
     for tag in ctxs:
-        quick, full = sheets.filter_sheet(book, tag), sheets.filter_sheet(book, tag, as_of=now)
+        quick, full = views.filter_sheet(book, tag), views.filter_sheet(book, tag, as_of=now)
         assert quick.elements == full.elements, tag
         assert quick.uses_hours == full.uses_hours, tag
         assert statuscache._encode(quick.status) == statuscache._encode(full.status), tag

@@ -5,12 +5,13 @@ from datetime import UTC, datetime, timedelta
 
 import pytest
 
-from store import journal, register, status
-from store.book import open_book
-from store.entries import BreatherSwap, ElementChange, Reading, Sample, TopUp, Void
-from store.register import FilterPosition, Fluid, Technician, Unit
-from store.statuscache import rebuild
-from store.units import to_bar
+from store.base.units import to_bar
+from store.db.book import open_book
+from store.derived.statuscache import rebuild
+from store.health import status
+from store.ledger import journal, register
+from store.ledger.entries import BreatherSwap, ElementChange, Reading, Sample, TopUp, Void
+from store.ledger.register import FilterPosition, Fluid, Technician, Unit
 from tests.benchmarks.clogging import data_dir, load_runs, technician_log
 
 T0 = datetime(2026, 3, 2, 6, 0, tzinfo=UTC)
@@ -446,8 +447,8 @@ def _meter_book(tmp_path):
 
 
 def test_the_meter_is_estimated_between_and_after_logged_values(tmp_path):
-    from store.elements import meter_at
-    from store.sheets import meter_estimate_h
+    from store.health.elements import meter_at
+    from store.views import meter_estimate_h
 
     pairs = [(T0, 1000.0), (T0 + timedelta(days=2), 1024.0)]
     # 12 h a day: half-way between the two values, and one day after the last
@@ -495,7 +496,7 @@ def test_a_new_element_without_meter_readings_ages_at_the_units_running_rate(tmp
                 for day in (1, 2, 3, 4)
             ],
         )  # fmt: skip
-        from store.statuscache import filter_view
+        from store.derived.statuscache import filter_view
 
         f, _ = filter_view(book, "M1-R")
         assert [p.age_h for p in f.history] == pytest.approx([12.0, 24.0, 36.0, 48.0])
@@ -512,7 +513,7 @@ NOTE_OF_BASIS = {  # README "Basis": the words of the note for each basis
 def test_basis_names_what_the_note_says(tmp_path):
     # issue 11: the note said "matched to the loading curves of 23 earlier elements" while the
     # basis said "trend"
-    from store.statuscache import filter_view
+    from store.derived.statuscache import filter_view
 
     with _pace_book(tmp_path, 1000.0) as book:
         f, _ = filter_view(book, "M2-RF")

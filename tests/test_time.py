@@ -17,13 +17,13 @@ from zoneinfo import ZoneInfo
 
 import pytest
 
-from store import journal
-from store.csvcolumns import Prefs
-from store.csvexport import write_span
-from store.csvio import import_csv
-from store.entries import Note, Reading
-from store.errors import BookError
-from store.timeutil import parse_time, shift_at, shift_named, zone
+from store.base.errors import BookError
+from store.base.timeutil import parse_time, shift_at, shift_named, zone
+from store.exchange.csvcolumns import Prefs
+from store.exchange.csvexport import write_span
+from store.exchange.csvio import import_csv
+from store.ledger import journal
+from store.ledger.entries import Note, Reading
 
 BERLIN = "Europe/Berlin"
 CHICAGO = "America/Chicago"
@@ -162,7 +162,7 @@ def test_a_csv_row_from_the_future_rejects_the_import_with_its_line(book, monkey
 
 
 def test_a_bare_clock_is_today_or_yesterday_when_still_ahead():
-    from store.timeutil import parse_typed_time
+    from store.base.timeutil import parse_typed_time
 
     local = zone(BERLIN)
     now = datetime(2026, 5, 13, 10, 0, tzinfo=UTC)  # 12:00 in Berlin (CEST, UTC+2)

@@ -17,11 +17,12 @@ from pathlib import Path
 
 import pytest
 
-from store import status, statuscache
-from store.book import open_book
-from store.demo import create_demo
-from store.life import WeibullFit
-from store.timeutil import format_utc, parse_utc
+from store.base.timeutil import format_utc, parse_utc
+from store.db.book import open_book
+from store.derived import statuscache
+from store.exchange.demo import create_demo
+from store.forecast.life import WeibullFit
+from store.health import status
 
 DEMO_CLOCK = "2026-11-27T12:30:00Z"  # where the demo's story ends (demo.db.sql)
 LATER = [timedelta(0), timedelta(days=1, hours=3), timedelta(weeks=1), timedelta(days=365)]
@@ -118,7 +119,7 @@ def test_a_write_protected_book_reads_a_week_later_and_stays_byte_identical(
 def test_reads_on_a_writable_book_write_nothing(kept: Path, tmp_path: Path) -> None:
     # Writable, caches missing: the watch list and a filter sheet are computed in memory and
     # the derived tables stay empty until a write or an explicit refresh keeps them.
-    from store import sheets
+    from store import views
 
     path = moved(kept, tmp_path, timedelta(weeks=1))
     with open_book(path, create=False) as book:
@@ -127,7 +128,7 @@ def test_reads_on_a_writable_book_write_nothing(kept: Path, tmp_path: Path) -> N
                 book.conn.execute(f"DELETE FROM {table}")
         status.watch(book)
         tag = book.conn.execute("SELECT tag FROM filters ORDER BY tag LIMIT 1").fetchone()[0]
-        sheets.filter_sheet(book, tag)
+        views.filter_sheet(book, tag)
         counts = [
             book.conn.execute(f"SELECT count(*) FROM {t}").fetchone()[0]
             for t in ("status_cache", "unit_cache", "element_cache", "element_state")

@@ -1,4 +1,4 @@
-"""Forecast of the change limit and bypass (store/trend.py and its helpers).
+"""Forecast of the change limit and bypass (store/forecast/trend.py and its helpers).
 
 The loading curves here are our own synthetic data, each from a stated generating model with
 seeded noise; the true crossing age follows from that model (checked with scipy's brentq).
@@ -12,9 +12,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.optimize import brentq
 
-from store.errors import BookError
-from store.life import fit_weibull
-from store.trend import (
+from store.base.errors import BookError
+from store.forecast.life import fit_weibull
+from store.forecast.trend import (
     EARLIEST_P,
     LATEST_P,
     ElementReadings,
@@ -22,7 +22,7 @@ from store.trend import (
     forecast,
     prepare_readings,
 )
-from store.trend_history import make_template
+from store.forecast.trend_history import make_template
 
 LIMIT = 2.0  # bar; a return-filter change limit (REFERENCES.md §7a: bypass 1.7-3.5 bar, memory)
 BYPASS = 2.5
@@ -331,11 +331,11 @@ def test_any_readings_give_an_ordered_answer(pairs, with_history):
         assert fc.to_limit.earliest_h >= max(t)
 
 
-# ---- recalibration of the earlier-curves interval (store/trend_calibration.py) ------------------
+# ---- recalibration of the earlier-curves interval (store/forecast/trend_calibration.py) ------------------
 
 
 def test_conformal_points_take_the_textbook_ranks():
-    from store.trend_calibration import conformal_high, conformal_low
+    from store.forecast.trend_calibration import conformal_high, conformal_low
 
     # split conformal (Vovk et al.; Angelopoulos & Bates 2021, from memory): with n = 19
     # scores the 95 % point is the ceil(0.95 x 20) = 19th smallest, the 5 % point the
@@ -347,7 +347,7 @@ def test_conformal_points_take_the_textbook_ranks():
 
 
 def test_derived_factors_follow_the_held_out_ratios():
-    from store.trend_calibration import Sample, derive
+    from store.forecast.trend_calibration import Sample, derive
 
     # bin p < 0.6: last reading 20 h, likely 100 h (p = 0.2), earliest 60 h, latest 140 h:
     # remaining 80 / 40 / 120 h; true remaining lives 30, 32, ... 106 h (39 samples)
@@ -361,7 +361,7 @@ def test_derived_factors_follow_the_held_out_ratios():
 
 
 def test_recalibration_only_widens_and_keeps_the_order():
-    from store.trend_calibration import Calibration, apply
+    from store.forecast.trend_calibration import Calibration, apply
 
     cal = Calibration((1.3, 0.5, 0.5), (0.9, 0.9, 0.9), (0.7, 1.2, 1.2))
     # p = 20 / 100 = 0.2: earliest factor 1.3 would narrow (capped at 1), latest 0.7 likewise
@@ -373,7 +373,7 @@ def test_recalibration_only_widens_and_keeps_the_order():
 
 
 def test_the_shipped_recalibration_moves_the_earlier_curves_interval_only():
-    from store.trend_calibration import IDENTITY
+    from store.forecast.trend_calibration import IDENTITY
 
     t, y = readings(exp_curve, 600.0, n=12)
     past = [
@@ -394,7 +394,7 @@ def test_the_shipped_recalibration_moves_the_earlier_curves_interval_only():
 
 
 def test_pace_is_flagged_beyond_the_spread_of_the_earlier_lives():
-    from store.trend import loading_pace
+    from store.forecast.trend import loading_pace
 
     lives = [900.0, 950.0, 1000.0, 1050.0, 1100.0, 1000.0]
     # sd of the log lives 0.067: exp(2 x 0.067) = 1.14 is under the 1.2 floor
@@ -441,7 +441,7 @@ def test_an_element_faster_than_every_earlier_one_gets_an_earlier_date():
 
 
 def test_beyond_history_widens_by_the_excess_over_the_earlier_lives():
-    from store.trend_history import beyond_history
+    from store.forecast.trend_history import beyond_history
 
     lives = [200.0, 230.0, 250.0]
     # 180 h is 0.9x the shortest earlier life: the earliest remaining life shrinks by 0.9
@@ -457,8 +457,8 @@ def test_an_element_beyond_the_earlier_lives_gets_a_wider_earliest_side(monkeypa
     # life must shrink by the matched life over the shortest earlier life (about 650 / 950; the
     # matched life is the stretch at which the curves reach the limit, so near the likely age),
     # the likely age stay; an element inside the earlier lives must not move.
-    import store.trend as trend_mod
-    from store.trend_calibration import IDENTITY
+    import store.forecast.trend as trend_mod
+    from store.forecast.trend_calibration import IDENTITY
 
     past = [
         PastElement(tuple(tt), tuple(yy), life, True)

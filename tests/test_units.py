@@ -5,8 +5,8 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
-from store import units
-from store.errors import BookError
+from store.base import units
+from store.base.errors import BookError
 
 ureg = pint.UnitRegistry()
 

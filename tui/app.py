@@ -20,14 +20,16 @@ from textual.reactive import reactive
 from textual.screen import ModalScreen, Screen
 from textual.theme import Theme
 
-from store import prefs as laptop
-from store import register
-from store.book import ENV_DB, Book, deep_check, default_path, open_book
-from store.demo import discard, is_throwaway, throwaway_demo, throwaway_empty
-from store.entries import BreatherSwap, ElementChange, Reading
-from store.errors import BookError
-from store.register import Technician, Unit
-from store.sheets import (
+from store.base import prefs as laptop
+from store.base.errors import BookError
+from store.base.text import inert_line
+from store.base.timeutil import utc_now
+from store.db.book import ENV_DB, Book, deep_check, default_path, open_book
+from store.exchange.demo import discard, is_throwaway, throwaway_demo, throwaway_empty
+from store.ledger import register
+from store.ledger.entries import BreatherSwap, ElementChange, Reading
+from store.ledger.register import Technician, Unit
+from store.views import (
     TagHit,
     WatchRow,
     breather_row,
@@ -37,8 +39,6 @@ from store.sheets import (
     filter_status_of,
     tag_index,
 )
-from store.text import inert_line
-from store.timeutil import utc_now
 
 from .keys import bind
 from .screens.common import guarded, long_name, read_early
@@ -483,7 +483,7 @@ class SumpbookApp(App[None]):
             self.call_from_thread(
                 self.notify, f"The logbook could not be checked: {exc}", severity="warning"
             )
-        from store.statuscache import preload
+        from store.derived.statuscache import preload
 
         preload()
         self.check_seconds = time.perf_counter() - started  # the speed benchmark reports it
@@ -638,7 +638,7 @@ def plant_clock(book: Book) -> Any:
 def backup_on_close(book: Book) -> str | None:
     """A rolling copy beside the logbook; returns the problem instead of raising."""
     try:
-        from store.backup import rolling_backup
+        from store.db.backup import rolling_backup
 
         rolling_backup(book.conn, book.path, "on-close")
     except Exception as exc:  # noqa: BLE001 - a failed backup only warns

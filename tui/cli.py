@@ -10,10 +10,10 @@ import sys
 from collections.abc import Callable, Sequence
 from pathlib import Path
 
-from store import journal
-from store.book import ENV_DB, damaged_read, default_path
-from store.errors import BookError
-from store.text import inert
+from store.base.errors import BookError
+from store.base.text import inert
+from store.db.book import ENV_DB, damaged_read, default_path
+from store.ledger import journal
 
 from . import commands
 

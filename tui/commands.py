@@ -10,18 +10,18 @@ import sys
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from store import journal, register
-from store import prefs as laptop
-from store.book import Book, default_path, open_book
-from store.csvcolumns import Prefs as CsvPrefs
-from store.csvio import import_csv
-from store.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp, Void
-from store.errors import BookError
-from store.register import Breather, FilterPosition, Fluid, Technician, Unit
-from store.text import inert, json_inert
-from store.timeutil import parse_time, previous_shift, shift_at, shift_named
-from store.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
-from store.validate import plant_setting
+from store.base import prefs as laptop
+from store.base.errors import BookError
+from store.base.text import inert, json_inert
+from store.base.timeutil import parse_time, previous_shift, shift_at, shift_named
+from store.base.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
+from store.base.validate import plant_setting
+from store.db.book import Book, default_path, open_book
+from store.exchange.csvcolumns import Prefs as CsvPrefs
+from store.exchange.csvio import import_csv
+from store.ledger import journal, register
+from store.ledger.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp, Void
+from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
 
 from .quantities import pressure
 
@@ -42,7 +42,7 @@ def console(stderr: bool = False) -> Console:
 
 def say(text: str, stderr: bool = False) -> None:
     """Print one line as written: no markup read, control and escape characters of stored
-    text made visible (`store.text.inert`)."""
+    text made visible (`store.base.text.inert`)."""
     from rich.text import Text
 
     console(stderr).print(Text(inert(text)))
@@ -109,7 +109,7 @@ def _at(book: Book, args: argparse.Namespace):  # noqa: ANN202 - datetime | None
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
-    from store.demo import create_demo
+    from store.exchange.demo import create_demo
 
     path = args.db or default_path()
     with create_demo(path, force=args.force) as book:
@@ -390,7 +390,7 @@ def strict_json(data: Any) -> str:
 
 
 def cmd_status(args: argparse.Namespace) -> int:
-    from store import status
+    from store.health import status
 
     prefs = laptop.load()
     with _book(args) as book:
@@ -408,7 +408,7 @@ def cmd_status(args: argparse.Namespace) -> int:
 
 
 def cmd_export(args: argparse.Namespace) -> int:
-    from store.csvexport import BOM, export_file, write_span
+    from store.exchange.csvexport import BOM, export_file, write_span
 
     prefs = laptop.load()
     with _book(args) as book:
@@ -449,7 +449,7 @@ def cmd_export(args: argparse.Namespace) -> int:
 
 class _OnScreen:
     """CSV text written to a terminal: a person reads it, so stored text is shown inert
-    (`store.text.inert`; line ends as plain line breaks). A file or a pipe gets the exact
+    (`store.base.text.inert`; line ends as plain line breaks). A file or a pipe gets the exact
     bytes, so that import gives back what was exported."""
 
     def __init__(self, out: Any) -> None:
@@ -510,7 +510,7 @@ def cmd_plant(args: argparse.Namespace) -> int:
 
 
 def cmd_backup(args: argparse.Namespace) -> int:
-    from store.backup import copy_holding_lock
+    from store.db.backup import copy_holding_lock
 
     with _book(args) as book:
         dest = copy_holding_lock(book.conn, book.path, args.dest)
@@ -519,7 +519,7 @@ def cmd_backup(args: argparse.Namespace) -> int:
 
 
 def cmd_restore(args: argparse.Namespace) -> int:
-    from store.backup import restore
+    from store.db.backup import restore
 
     path = args.db or default_path()
     kept = restore(Path(args.file), path)
@@ -531,7 +531,7 @@ def cmd_restore(args: argparse.Namespace) -> int:
 
 
 def cmd_merge(args: argparse.Namespace) -> int:
-    from store.merge import merge
+    from store.exchange.merge import merge
 
     with _book(args) as book:
         report = merge(book, Path(args.other))
@@ -542,7 +542,7 @@ def cmd_merge(args: argparse.Namespace) -> int:
 
 
 def cmd_check(args: argparse.Namespace) -> int:
-    from store.book import full_check
+    from store.db.book import full_check
 
     path = Path(args.db or default_path())
     full_check(path)  # damage: one line naming the latest backup, and writes refuse the book
@@ -551,7 +551,7 @@ def cmd_check(args: argparse.Namespace) -> int:
 
 
 def cmd_rebuild(args: argparse.Namespace) -> int:
-    from store.statuscache import rebuild
+    from store.derived.statuscache import rebuild
 
     with _book(args) as book:
         count = rebuild(book)

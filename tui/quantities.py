@@ -5,8 +5,15 @@ Kept free of the fitting maths so that the command line starts quickly.
 
 from __future__ import annotations
 
-from store.prefs import Prefs
-from store.units import from_bar, from_c, from_l, pressure_label, temperature_label, volume_label
+from store.base.prefs import Prefs
+from store.base.units import (
+    from_bar,
+    from_c,
+    from_l,
+    pressure_label,
+    temperature_label,
+    volume_label,
+)
 
 
 def p_unit(prefs: Prefs) -> str:

@@ -8,19 +8,28 @@ from typing import TYPE_CHECKING
 from rich.table import Table
 from rich.text import Text
 
-from store import register
-from store.book import Book
-from store.entries import BreatherSwap, ElementChange, Entry, Note, Reading, Sample, TopUp, Void
-from store.prefs import Prefs
-from store.register import Breather, FilterPosition, Fluid, Technician, Unit
-from store.text import inert
-from store.timeutil import local_text
-from store.units import pressure_label
+from store.base.prefs import Prefs
+from store.base.text import inert
+from store.base.timeutil import local_text
+from store.base.units import pressure_label
+from store.db.book import Book
+from store.ledger import register
+from store.ledger.entries import (
+    BreatherSwap,
+    ElementChange,
+    Entry,
+    Note,
+    Reading,
+    Sample,
+    TopUp,
+    Void,
+)
+from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
 
 from .quantities import pressure, temperature, volume
 
 if TYPE_CHECKING:
-    from store.status import Watch
+    from store.health.status import Watch
 
 CAUTION_SHORT = (
     "Safety: isolate and lock out, relieve pressure and accumulators, let hot oil cool, wear "
@@ -31,7 +40,7 @@ CAUTION_SHORT = (
 
 def _add_row(table: Table, *cells: object, style: str = "") -> None:
     """A row whose text is shown as written: no markup is read in it, and control and escape
-    characters of stored text are made visible (`store.text.inert`)."""
+    characters of stored text are made visible (`store.base.text.inert`)."""
     shown = [
         Text(inert(c)) if isinstance(c, str) else _inert_text(c) if isinstance(c, Text) else c
         for c in cells
@@ -47,7 +56,7 @@ def _inert_text(text: Text) -> Text:
 
 
 def line(text: str) -> Text:
-    """One printed line of the command line, inert (`store.text.inert`), no markup read."""
+    """One printed line of the command line, inert (`store.base.text.inert`), no markup read."""
     return Text(inert(text))
 
 
@@ -90,7 +99,7 @@ def describe(entry: Entry, prefs: Prefs, target_code: str | None = None) -> str:
     if isinstance(entry, Sample):
         parts = [f"code {entry.code}"] if entry.code else []
         if entry.code and target_code:
-            from store.cleanliness import compare_to_target, parse_code
+            from store.physics.cleanliness import compare_to_target, parse_code
 
             parts.append(
                 compare_to_target(parse_code(entry.code), parse_code(target_code)).describe()
@@ -121,7 +130,7 @@ def saved_line(book: Book, entry: Entry, prefs: Prefs) -> str:
 
 
 def entries_table(book: Book, entries: list[Entry], prefs: Prefs) -> Table:
-    from store.conditions import contexts, normalise
+    from store.health.conditions import contexts, normalise
 
     ctxs = contexts(book)
     table = Table(title=f"Entries ({len(entries)})", title_justify="left")
@@ -295,7 +304,7 @@ def due_day(book: Book, moment: datetime | None) -> str:
 
 
 def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
-    from store.status import FLAG_WORDS, URGENT_FLAGS
+    from store.health.status import FLAG_WORDS, URGENT_FLAGS
 
     table = Table(title=f"Watch list as of {when(book, watch.as_of)}", title_justify="left")
     for c in (

@@ -1,5 +1,5 @@
 """The shape every entry form shares: fields with inline checks, an optional safety
-acknowledgement, save through `store.journal.log`, and nothing written until all is valid.
+acknowledgement, save through `store.ledger.journal.log`, and nothing written until all is valid.
 """
 
 from __future__ import annotations
@@ -15,11 +15,11 @@ from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Button, Checkbox, Input, Static
 
-from store import journal
-from store.entries import Entry
-from store.errors import BookError
-from store.register import Technician, list_all
-from store.timeutil import local_text, parse_typed_time
+from store.base.errors import BookError
+from store.base.timeutil import local_text, parse_typed_time
+from store.ledger import journal
+from store.ledger.entries import Entry
+from store.ledger.register import Technician, list_all
 
 from ..widgets.caution import Caution
 from ..widgets.field import FieldRow, Spec, TickBox

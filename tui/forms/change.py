@@ -4,9 +4,9 @@ from __future__ import annotations
 
 from typing import Any
 
-from store.entries import ElementChange, Entry
-from store.journal import CHANGE_REASONS
-from store.register import FilterPosition, find
+from store.ledger.entries import ElementChange, Entry
+from store.ledger.journal import CHANGE_REASONS
+from store.ledger.register import FilterPosition, find
 
 from ..widgets.field import Spec
 from .base import EntryForm

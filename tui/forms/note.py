@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from typing import Any
 
-from store.entries import Entry, Note
-from store.register import Unit, find
+from store.ledger.entries import Entry, Note
+from store.ledger.register import Unit, find
 
 from ..widgets.field import Spec
 from .base import EntryForm

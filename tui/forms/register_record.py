@@ -1,7 +1,7 @@
 """Add or edit one register row: technician, fluid, unit, filter position or breather.
 
 Quantities are typed in the user's units and stored canonical. Every change goes through
-`store.register.add/update`, which records who changed what, old -> new.
+`store.ledger.register.add/update`, which records who changed what, old -> new.
 """
 
 from __future__ import annotations
@@ -16,12 +16,12 @@ from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Button, Input, Static
 
-from store import register
-from store import validate as validate_value
-from store.errors import BookError
-from store.register import Breather, FilterPosition, Fluid, Technician, Unit
-from store.schema import FILTER_KINDS
-from store.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
+from store.base import validate as validate_value
+from store.base.errors import BookError
+from store.base.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
+from store.db.schema import FILTER_KINDS
+from store.ledger import register
+from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
 
 from ..widgets import fmt
 from ..widgets.field import FieldRow, Spec

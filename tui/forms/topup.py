@@ -4,9 +4,9 @@ from __future__ import annotations
 
 from typing import Any
 
-from store.entries import Entry, TopUp
-from store.register import Fluid, Unit, find, list_all
-from store.units import parse_volume_l
+from store.base.units import parse_volume_l
+from store.ledger.entries import Entry, TopUp
+from store.ledger.register import Fluid, Unit, find, list_all
 
 from ..widgets import fmt
 from ..widgets.field import Spec

@@ -7,9 +7,9 @@ from typing import Any
 from textual.validation import ValidationResult, Validator
 from textual.widgets import Input, Static
 
-from store.entries import Entry, Void
-from store.errors import BookError
-from store.journal import find_entry
+from store.base.errors import BookError
+from store.ledger.entries import Entry, Void
+from store.ledger.journal import find_entry
 
 from ..render import describe
 from ..widgets import fmt

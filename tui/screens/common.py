@@ -16,8 +16,8 @@ from textual.binding import Binding
 from textual.screen import Screen
 from textual.worker import get_current_worker
 
-from store.book import Book, damaged_read, open_book
-from store.errors import BookError
+from store.base.errors import BookError
+from store.db.book import Book, damaged_read, open_book
 
 from ..keys import bind
 

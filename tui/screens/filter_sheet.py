@@ -11,7 +11,7 @@ from textual.app import ComposeResult
 from textual.containers import VerticalScroll
 from textual.widgets import Header, Static
 
-from store.sheets import FilterSheet, filter_sheet
+from store.views import FilterSheet, filter_sheet
 
 from ..keys import bind
 from ..widgets import fmt

@@ -10,12 +10,12 @@ from textual.app import ComposeResult
 from textual.containers import Vertical
 from textual.widgets import DataTable, Header, Select, Static, TabbedContent, TabPane
 
-from store import register
-from store.errors import BookError
-from store.prefs import THEMES
-from store.register import TABLES, WHAT, Breather, FilterPosition, Fluid, Technician, Unit
-from store.timeutil import local_text
-from store.units import PRESSURE_UNITS, TEMPERATURE_UNITS, VOLUME_UNITS
+from store.base.errors import BookError
+from store.base.prefs import THEMES
+from store.base.timeutil import local_text
+from store.base.units import PRESSURE_UNITS, TEMPERATURE_UNITS, VOLUME_UNITS
+from store.ledger import register
+from store.ledger.register import TABLES, WHAT, Breather, FilterPosition, Fluid, Technician, Unit
 
 from ..forms.register_record import RegisterForm
 from ..keys import bind

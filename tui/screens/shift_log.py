@@ -10,11 +10,11 @@ from textual.app import ComposeResult
 from textual.containers import VerticalScroll
 from textual.widgets import DataTable, Header, Static
 
-from store.book import open_book
-from store.csvcolumns import Prefs as CsvPrefs
-from store.csvexport import export_file as write_file
-from store.sheets import ShiftLog, kind_counts, shift_log
-from store.timeutil import ShiftSpan, next_shift, previous_shift, shift_at, shift_named
+from store.base.timeutil import ShiftSpan, next_shift, previous_shift, shift_at, shift_named
+from store.db.book import open_book
+from store.exchange.csvcolumns import Prefs as CsvPrefs
+from store.exchange.csvexport import export_file as write_file
+from store.views import ShiftLog, kind_counts, shift_log
 
 from ..keys import bind
 from ..render import describe

@@ -10,7 +10,7 @@ from textual.screen import ModalScreen
 from textual.widgets import Input, OptionList, Static
 from textual.widgets.option_list import Option
 
-from store.sheets import TagHit, match_tags
+from store.views import TagHit, match_tags
 
 from ..widgets import fmt
 

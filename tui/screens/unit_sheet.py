@@ -8,9 +8,9 @@ from textual.app import ComposeResult
 from textual.containers import VerticalScroll
 from textual.widgets import DataTable, Header, Sparkline, Static
 
-from store.entries import Entry, Note
-from store.prefs import Prefs
-from store.sheets import UnitSheet, unit_sheet
+from store.base.prefs import Prefs
+from store.ledger.entries import Entry, Note
+from store.views import UnitSheet, unit_sheet
 
 from ..keys import bind
 from ..render import describe

@@ -9,13 +9,14 @@ from textual.app import ComposeResult
 from textual.containers import Horizontal
 from textual.widgets import DataTable, Header, Input, Select
 
-from store import status, statuscache
-from store.book import Book
-from store.prefs import Prefs
-from store.register import Unit, list_all
-from store.sheets import Summary, WatchRow, row_matches, summarise, watch_rows
-from store.text import inert
-from store.timeutil import shift_at
+from store.base.prefs import Prefs
+from store.base.text import inert
+from store.base.timeutil import shift_at
+from store.db.book import Book
+from store.derived import statuscache
+from store.health import status
+from store.ledger.register import Unit, list_all
+from store.views import Summary, WatchRow, row_matches, summarise, watch_rows
 
 from ..keys import bind
 from ..widgets import fmt

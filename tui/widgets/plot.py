@@ -8,9 +8,9 @@ import math
 
 from textual_plotext import PlotextPlot
 
-from store.prefs import Prefs
-from store.sheets import FilterSheet
-from store.units import from_bar
+from store.base.prefs import Prefs
+from store.base.units import from_bar
+from store.views import FilterSheet
 
 from .fmt import p_unit
 
