@@ -150,7 +150,7 @@ async def test_a_damaged_file_is_named_behind_the_first_paint(plant):
     # Damage behind an intact header (tests/test_corrupt.py does the same to a bare book):
     # the whole-file check runs after the list is painted and says so, and nothing is written.
     from store.db.backup import rolling_backup
-    from store.db.book import forget_check
+    from store.db.connection import forget_check
     from tests.test_corrupt import _noise, _overwrite, _root_page
 
     with open_book(plant, create=False) as book:

@@ -113,6 +113,7 @@ def test_a_backup_is_made_before_each_migration(tmp_path, book, monkeypatch):
     steps = schema.MIGRATIONS + ["ALTER TABLE units ADD COLUMN colour TEXT;"]
     monkeypatch.setattr("store.db.book.MIGRATIONS", steps)
     monkeypatch.setattr("store.db.book.SCHEMA_VERSION", len(steps))
+    monkeypatch.setattr("store.db.connection.SCHEMA_VERSION", len(steps))
     with open_book(path) as upgraded:
         assert upgraded.conn.execute("PRAGMA user_version").fetchone()[0] == len(steps)
     copy = latest_backup(path)
@@ -129,6 +130,7 @@ def test_a_failed_migration_still_leaves_its_backup(tmp_path, book, monkeypatch)
     broken = schema.MIGRATIONS + ["CREATE TABLE extra (x); SELECT no_such_function();"]
     monkeypatch.setattr("store.db.book.MIGRATIONS", broken)
     monkeypatch.setattr("store.db.book.SCHEMA_VERSION", len(broken))
+    monkeypatch.setattr("store.db.connection.SCHEMA_VERSION", len(broken))
     with pytest.raises(BookError, match="left as it was"):
         open_book(path)
     assert latest_backup(path) is not None

@@ -65,6 +65,7 @@ def test_a_failed_migration_changes_nothing(tmp_path, monkeypatch):
     broken = schema.MIGRATIONS + ["CREATE TABLE extra (x); SELECT no_such_function();"]
     monkeypatch.setattr("store.db.book.MIGRATIONS", broken)
     monkeypatch.setattr("store.db.book.SCHEMA_VERSION", len(broken))
+    monkeypatch.setattr("store.db.connection.SCHEMA_VERSION", len(broken))
     monkeypatch.setattr("store.db.schema.SCHEMA_VERSION", len(broken))
     with pytest.raises(BookError, match="left as it was"):
         open_book(path)
@@ -82,6 +83,7 @@ def test_migration_to_a_new_step_keeps_entries(tmp_path, monkeypatch, book):
     steps = schema.MIGRATIONS + ["ALTER TABLE units ADD COLUMN colour TEXT;"]
     monkeypatch.setattr("store.db.book.MIGRATIONS", steps)
     monkeypatch.setattr("store.db.book.SCHEMA_VERSION", len(steps))
+    monkeypatch.setattr("store.db.connection.SCHEMA_VERSION", len(steps))
     with open_book(tmp_path / "book.db") as again:
         assert again.conn.execute("PRAGMA user_version").fetchone()[0] == len(steps)
         assert [r[0] for r in again.conn.execute("SELECT note FROM entries")] == ["before upgrade"]

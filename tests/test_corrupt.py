@@ -14,7 +14,8 @@ import pytest
 from store.base.errors import NotALogbook
 from store.db import schema
 from store.db.backup import latest_backup, restore, rolling_backup
-from store.db.book import forget_check, open_book
+from store.db.book import open_book
+from store.db.connection import forget_check
 from store.ledger import journal
 from store.ledger.entries import Note
 from tests.conftest import fill_register

@@ -18,7 +18,9 @@ import pytest
 
 from store.base.errors import NotALogbook
 from store.db.backup import latest_backup, rolling_backup
-from store.db.book import damage_marker, forget_check, open_book
+from store.db.book import open_book
+from store.db.connection import forget_check
+from store.db.places import damage_marker
 from store.ledger import journal
 from store.ledger.entries import Note
 from tests.conftest import fill_register

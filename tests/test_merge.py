@@ -315,6 +315,7 @@ def test_an_older_logbook_is_merged_from_an_upgraded_copy(tmp_path, monkeypatch)
     old = tmp_path / "old.db"
     monkeypatch.setattr("store.db.book.MIGRATIONS", schema.MIGRATIONS[:1])
     monkeypatch.setattr("store.db.book.SCHEMA_VERSION", 1)
+    monkeypatch.setattr("store.db.connection.SCHEMA_VERSION", 1)
     open_book(old).close()  # a version-1 logbook, as the first sumpbook wrote them
     monkeypatch.undo()
     conn = sqlite3.connect(old)

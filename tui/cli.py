@@ -12,7 +12,8 @@ from pathlib import Path
 
 from store.base.errors import BookError
 from store.base.text import inert
-from store.db.book import ENV_DB, damaged_read, default_path
+from store.db.book import ENV_DB, default_path
+from store.db.connection import damaged_read
 from store.ledger import journal
 
 from . import commands

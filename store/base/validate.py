@@ -18,6 +18,11 @@ from typing import Any
 
 from store.base.errors import BookError
 
+# The kinds a book knows; the schema's CHECK constraints are written from these.
+FILTER_KINDS = ("suction-strainer", "suction", "pressure", "return", "offline")
+INDICATOR_STATES = ("clean", "dirty", "bypass")
+ENTRY_KINDS = ("reading", "change", "topup", "breather", "sample", "note", "void")
+
 # ---- numbers --------------------------------------------------------------------------------
 
 
@@ -292,8 +297,6 @@ def entry_id(value: Any) -> str:
 
 def entry_row_problem(row: dict[str, Any]) -> str | None:
     """Why a raw `entries` row (another book's) could not have been typed here, or None."""
-    from store.db.schema import ENTRY_KINDS, INDICATOR_STATES
-
     try:
         entry_id(row.get("id"))
         if row.get("kind") not in ENTRY_KINDS:

@@ -17,22 +17,24 @@ from datetime import UTC, datetime
 from pathlib import Path
 
 from store.base.errors import BookError, NotALogbook
+from store.db.connection import (
+    BUSY_TIMEOUT_MS,
+    check_header,
+    clear_damage,
+    connect,
+    forget_check,
+    writable,
+    write_error,
+)
+from store.db.places import backup_dir, latest_backup, rolling_backups
 
 DEFAULT_KEEP = 10
 KEEP_SETTING = "backup_keep"
 KEPT_BEFORE_RESTORE = "before-restore"
 
 
-def backup_dir(book_path: Path) -> Path:
-    return book_path.parent / f"{book_path.stem}-backups"
-
-
 def _stamp() -> str:
     return datetime.now(UTC).strftime("%Y%m%dT%H%M%S%fZ")
-
-
-def _rolling_name(book_path: Path) -> re.Pattern[str]:
-    return re.compile(rf"^{re.escape(book_path.stem)}-\d{{8}}T\d{{12}}Z-[\w.-]+\.db$")
 
 
 def keep_count(conn: sqlite3.Connection) -> int:
@@ -82,11 +84,9 @@ def copy_holding_lock(conn: sqlite3.Connection, book_path: Path, dest: Path) -> 
     """`copy_to` while another connection holds the book's write lock: a save under way is
     waited for (busy timeout), saves meanwhile wait for the copy, and the copy holds every
     save reported before it. A book this process cannot write is copied as it stands."""
-    from store.db.book import _connect, writable, write_error
-
     if not writable(Path(book_path)):
         return copy_to(conn, dest)
-    lock = _connect(Path(book_path))
+    lock = connect(Path(book_path))
     try:
         try:
             lock.execute("BEGIN IMMEDIATE")
@@ -98,15 +98,6 @@ def copy_holding_lock(conn: sqlite3.Connection, book_path: Path, dest: Path) -> 
             lock.execute("ROLLBACK")
     finally:
         lock.close()
-
-
-def rolling_backups(book_path: Path) -> list[Path]:
-    """The rolling copies of the logbook at `book_path`, oldest first."""
-    folder = backup_dir(book_path)
-    if not folder.is_dir():
-        return []
-    pattern = _rolling_name(book_path)
-    return sorted(p for p in folder.iterdir() if pattern.match(p.name))
 
 
 def rolling_backup(
@@ -136,12 +127,6 @@ def _same_bytes(a: Path, b: Path) -> bool:
         return False
 
 
-def latest_backup(book_path: Path) -> Path | None:
-    """The newest rolling copy (not the copies kept by a restore)."""
-    copies = rolling_backups(Path(book_path))
-    return copies[-1] if copies else None
-
-
 def backup_before_migration(conn: sqlite3.Connection, book_path: Path, version: int) -> Path:
     return rolling_backup(conn, book_path, f"before-v{version}-upgrade")
 
@@ -159,13 +144,11 @@ def _same_file(a: Path, b: Path) -> bool:
 def open_checked(path: Path) -> sqlite3.Connection:
     """A read-only connection to a file that passed every check a restore or merge needs:
     a sumpbook logbook (application id), not damaged (integrity check), not too new."""
-    from store.db.book import _connect, check_header
-
     path = Path(path)
     if not path.is_file() or path.stat().st_size == 0:
         raise BookError(f"{path} is not a file holding a logbook")
     try:
-        conn = _connect(path, readonly=True)
+        conn = connect(path, readonly=True)
     except sqlite3.Error as exc:
         raise NotALogbook(f"{path} cannot be read as a logbook ({exc})") from exc
     try:
@@ -222,8 +205,6 @@ def restore(file: Path, book_path: Path) -> Path | None:
             _replace(source, book_path)
     finally:
         source.close()
-    from store.db.book import clear_damage, forget_check
-
     forget_check(book_path)  # another file now: the next write checks it again
     clear_damage(book_path)
     return kept
@@ -235,8 +216,6 @@ RESTORE_STEP_PAGES = 1  # the first step must not finish the copy: the kept copy
 def _overwrite(source: sqlite3.Connection, book_path: Path, kept: Path) -> None:
     """Keep the live logbook as `kept`, then copy `source` into it, as one write transaction
     that holds the book's write lock from before the kept copy is read to the end."""
-    from store.db.book import BUSY_TIMEOUT_MS, _connect, write_error
-
     target = sqlite3.connect(book_path, timeout=BUSY_TIMEOUT_MS / 1000)
     problems: list[BaseException] = []
 
@@ -249,7 +228,7 @@ def _overwrite(source: sqlite3.Connection, book_path: Path, kept: Path) -> None:
             problems.append(BookError("the restore could not keep the current logbook first"))
             raise problems[-1]
         try:
-            current = _connect(book_path, readonly=True)
+            current = connect(book_path, readonly=True)
             try:
                 copy_to(current, kept)
             finally:

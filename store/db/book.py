@@ -10,13 +10,29 @@ from dataclasses import dataclass, field
 from datetime import datetime, tzinfo
 from pathlib import Path
 from typing import TYPE_CHECKING
-from urllib.parse import quote
 
 from platformdirs import user_data_dir
 
-from store.base.errors import BookError, NotALogbook, TooNew
+from store.base.errors import BookError, NotALogbook
 from store.base.timeutil import parse_utc, utc_now, zone
 from store.base.validate import plant_setting
+from store.db.backup import backup_before_migration
+from store.db.connection import (
+    CHECKED,
+    check_header,
+    check_key,
+    clear_damage,
+    connect,
+    file_id,
+    is_empty_file,
+    no_new_side_files,
+    record_damage,
+    refuse_known_damage,
+    refused_write,
+    writable,
+    write_error,
+)
+from store.db.places import backup_hint
 from store.db.schema import APPLICATION_ID, MIGRATIONS, SCHEMA_VERSION
 
 PLANT_SETTINGS = ("name", "timezone", "backup_keep")
@@ -24,7 +40,6 @@ PLANT_SETTINGS = ("name", "timezone", "backup_keep")
 if TYPE_CHECKING:
     import sqlite_utils
 
-BUSY_TIMEOUT_MS = 10_000
 ENV_DB = "SUMPBOOK_DB"
 
 
@@ -97,7 +112,7 @@ class Book:
                     conn.execute("ROLLBACK")
                 except sqlite3.Error:
                     pass
-            if isinstance(exc, sqlite3.Error) and _translatable(exc):
+            if isinstance(exc, sqlite3.Error) and refused_write(exc):
                 raise write_error(exc, self.path) from exc
             if isinstance(exc, sqlite3.IntegrityError):  # a CHECK or trigger of the schema
                 raise BookError(f"the logbook refused a value ({exc}): nothing was saved") from exc
@@ -125,14 +140,14 @@ class Book:
         if self.readonly:
             return
         refuse_known_damage(self.path)
-        if _key(self.path) not in _CHECKED:
+        if check_key(self.path) not in CHECKED:
             _quick_check(self.conn, self.path)
 
     def _refuse_replaced(self) -> None:
         """Under the write lock: the file at `path` is still the one this connection opened (a
         restore of a damaged book puts a new file in its place; a write to the old one would
         be lost)."""
-        if self.inode is not None and _file_id(self.path) != self.inode:
+        if self.inode is not None and file_id(self.path) != self.inode:
             raise BookError(
                 f"{self.path} was replaced (restored) since it was opened: nothing was saved; "
                 "open it again and save once more"
@@ -165,118 +180,7 @@ class Book:
             )
 
 
-# SQLite's primary result codes that mean "the file refused the write", not a bug in our SQL.
-_WRITE_REFUSALS = {
-    sqlite3.SQLITE_FULL,
-    sqlite3.SQLITE_READONLY,
-    sqlite3.SQLITE_BUSY,
-    sqlite3.SQLITE_LOCKED,
-    sqlite3.SQLITE_IOERR,
-    sqlite3.SQLITE_CORRUPT,
-    sqlite3.SQLITE_NOTADB,
-    sqlite3.SQLITE_CANTOPEN,
-    sqlite3.SQLITE_PERM,
-}
-
-
-def _primary_code(exc: sqlite3.Error) -> int | None:
-    code = getattr(exc, "sqlite_errorcode", None)
-    return None if code is None else code & 0xFF
-
-
-def _translatable(exc: sqlite3.Error) -> bool:
-    return _primary_code(exc) in _WRITE_REFUSALS
-
-
-def write_error(exc: sqlite3.Error, path: Path) -> BookError:
-    """One plain line for a write the logbook file refused; other errors keep their text."""
-    code = _primary_code(exc)
-    nothing = "nothing was saved"
-    if code == sqlite3.SQLITE_FULL:
-        return BookError(
-            f"the disk holding {path} is full: {nothing}; free some space and save again"
-        )
-    if code in (sqlite3.SQLITE_READONLY, sqlite3.SQLITE_PERM):
-        return BookError(
-            f"{path} is read-only (write-protected file or medium): {nothing}; "
-            "copy the logbook to a writable folder to keep logging"
-        )
-    if code in (sqlite3.SQLITE_BUSY, sqlite3.SQLITE_LOCKED):
-        return BookError(
-            f"{path} is busy: another sumpbook window or program kept it locked for "
-            f"{BUSY_TIMEOUT_MS // 1000} s; {nothing}; save again in a moment"
-        )
-    if code in (sqlite3.SQLITE_CORRUPT, sqlite3.SQLITE_NOTADB):
-        return BookError(f"{path} is damaged: {nothing}; {backup_hint(path)}")
-    if code in (sqlite3.SQLITE_IOERR, sqlite3.SQLITE_CANTOPEN):
-        return BookError(f"the disk failed writing {path} ({exc}): {nothing}; check the medium")
-    return BookError(f"could not write {path}: {exc}; {nothing}")
-
-
-def damaged_read(exc: sqlite3.DatabaseError, path: Path) -> BookError:
-    """A read that SQLite refused (a damaged page, most often), as one line of advice."""
-    return NotALogbook(
-        f"{path} could not be read ({exc}): it may be damaged; nothing was written to it; "
-        f"{backup_hint(Path(path))}"
-    )
-
-
-def backup_hint(path: Path) -> str:
-    """Where the newest automatic backup of `path` is, as advice to restore it."""
-    from store.db.backup import latest_backup
-
-    latest = latest_backup(path)
-    if latest is None:
-        return f"no automatic backup was found beside it (in {path.parent})"
-    return f"the latest backup is {latest}: sumpbook restore '{latest}'"
-
-
 # ---- damage found by a check ---------------------------------------------------------------------
-
-DAMAGE_SUFFIX = ".damaged"
-
-
-def damage_marker(path: Path) -> Path:
-    """The file beside the logbook that says a check found it damaged: which file (device and
-    inode, so a new file put in its place is not taken for it) and what was found, one line.
-    Every write of every process refuses the book while it is there; a restore, or a full
-    check that passes (`sumpbook check`), removes it."""
-    return Path(f"{path}{DAMAGE_SUFFIX}")
-
-
-def record_damage(path: Path, problem: str) -> None:
-    """Note that a check found `path` damaged (best effort: a read-only folder keeps none)."""
-    device, inode = _file_id(path) or (0, 0)
-    line = f"{device}:{inode} " + problem.replace("\n", " ")[:500]
-    try:
-        damage_marker(path).write_text(line + "\n", encoding="utf-8")
-    except OSError:
-        pass
-
-
-def clear_damage(path: Path) -> None:
-    try:
-        damage_marker(path).unlink(missing_ok=True)
-    except OSError:
-        pass
-
-
-def refuse_known_damage(path: Path) -> None:
-    """Raise NotALogbook when a check has found this very file damaged."""
-    marker = damage_marker(path)
-    try:
-        text = marker.read_text(encoding="utf-8").strip()
-    except FileNotFoundError:
-        return
-    except (OSError, UnicodeDecodeError):
-        text = "? see " + str(marker)
-    which, _, found = text.partition(" ")
-    here = "{}:{}".format(*(_file_id(path) or (0, 0)))
-    if which != here and which != "?":
-        return  # another file stands there now (a new book, a copy put back)
-    raise NotALogbook(
-        f"{path} is damaged (a check found: {found}); nothing was saved; {backup_hint(Path(path))}"
-    )
 
 
 def full_check(path: Path) -> None:
@@ -287,7 +191,7 @@ def full_check(path: Path) -> None:
     path = Path(path)
     if not path.is_file():
         raise BookError(f"no logbook at {path}")
-    with _no_new_side_files(path):
+    with no_new_side_files(path):
         inspect(path)
         conn = _checking_connection(path, readonly=True)
         try:
@@ -305,111 +209,7 @@ def full_check(path: Path) -> None:
                 f"{backup_hint(path)}"
             )
     clear_damage(path)
-    _CHECKED.add(_key(path))
-
-
-def _file_id(path: Path) -> tuple[int, int] | None:
-    try:
-        st = os.stat(path)
-    except OSError:
-        return None
-    return st.st_dev, st.st_ino
-
-
-@contextmanager
-def _no_new_side_files(path: Path) -> Iterator[None]:
-    """A file refused while being looked at gets no -wal/-shm left beside it by us: those
-    that did not exist before and that hold nothing (an empty -wal, a -shm) are removed."""
-    sides = [Path(f"{path}-wal"), Path(f"{path}-shm")]
-    before = {side for side in sides if side.exists()}
-    try:
-        yield
-    except BookError:
-        for side in sides:
-            if side in before:
-                continue
-            try:
-                if side.name.endswith("-shm") or side.stat().st_size == 0:
-                    side.unlink()
-            except OSError:
-                pass
-        raise
-
-
-def _uri(path: Path, mode: str) -> str:
-    if os.name == "nt":  # drive letters; urllib.request costs ~15 ms of imports elsewhere
-        from urllib.request import pathname2url
-
-        return f"file:{pathname2url(str(path))}?mode={mode}"
-    return f"file:{quote(str(path))}?mode={mode}"  # what pathname2url does on POSIX
-
-
-def _connect(path: Path, readonly: bool = False) -> sqlite3.Connection:
-    """A connection with our settings. `readonly` falls back to an immutable open when the
-    folder is write-protected too (SQLite cannot make its WAL index there)."""
-    uris = (
-        [_uri(path, "ro"), _uri(path, "ro") + "&immutable=1"] if readonly else [_uri(path, "rwc")]
-    )
-    for i, uri in enumerate(uris):
-        conn = sqlite3.connect(
-            uri,
-            uri=True,
-            isolation_level=None,
-            check_same_thread=True,
-            timeout=BUSY_TIMEOUT_MS / 1000,
-        )
-        try:
-            conn.execute(f"PRAGMA busy_timeout = {BUSY_TIMEOUT_MS}")
-            conn.execute("PRAGMA foreign_keys = ON")
-            if readonly:
-                conn.execute("PRAGMA schema_version").fetchone()  # forces the file open
-        except sqlite3.OperationalError as exc:
-            conn.close()
-            if i + 1 < len(uris) and _primary_code(exc) in (
-                sqlite3.SQLITE_READONLY,
-                sqlite3.SQLITE_CANTOPEN,
-            ):
-                continue
-            raise
-        return conn
-    raise AssertionError("unreachable")
-
-
-def writable(path: Path) -> bool:
-    """Can this process write the logbook and make its side files (-wal, -shm) beside it?"""
-    folder = path.parent if str(path.parent) else Path(".")
-    return os.access(path, os.W_OK) and os.access(folder, os.W_OK)
-
-
-def _is_empty_file(path: Path) -> bool:
-    return not path.exists() or path.stat().st_size == 0
-
-
-def check_header(conn: sqlite3.Connection, path: Path, quick: bool = True) -> int:
-    """Return the schema version; refuse files that are not ours or are damaged.
-
-    A database with no tables and a blank header is an empty start (a first creation that was
-    interrupted): it is version 0, to be created again.
-    """
-    try:
-        app_id = conn.execute("PRAGMA application_id").fetchone()[0]
-        version = conn.execute("PRAGMA user_version").fetchone()[0]
-        blank = conn.execute("SELECT count(*) FROM sqlite_master").fetchone()[0] == 0
-        ok = conn.execute("PRAGMA quick_check").fetchone()[0] if quick else "ok"
-    except sqlite3.DatabaseError as exc:
-        raise NotALogbook(f"{path} is not a sumpbook logbook or is damaged ({exc})") from exc
-    if app_id == 0 and version == 0 and blank and ok == "ok":
-        return 0
-    if app_id != APPLICATION_ID:
-        raise NotALogbook(f"{path} is not a sumpbook logbook (it is some other SQLite file)")
-    if ok != "ok":
-        raise NotALogbook(f"{path} is damaged (quick check: {ok})")
-    if version > SCHEMA_VERSION:
-        raise TooNew(
-            f"{path} was written by a newer sumpbook (schema {version}, this one knows "
-            f"{SCHEMA_VERSION}); it was left untouched: update sumpbook to open it"
-        )
-    return version
+    CHECKED.add(check_key(path))
 
 
 def migrate(conn: sqlite3.Connection, from_version: int) -> list[str]:
@@ -474,19 +274,19 @@ def open_book(
     """
     path = Path(path) if path is not None else default_path()
     notices: list[str] = []
-    new = _is_empty_file(path)
+    new = is_empty_file(path)
     if new and (readonly or not create):
         raise BookError(f"no logbook at {path}: run 'sumpbook demo' or register a unit first")
     if new:
         path.parent.mkdir(parents=True, exist_ok=True)
         clear_damage(path)  # a record of a file that stood here before (inodes are reused)
     readonly = readonly or (not new and not writable(path))
-    with _no_new_side_files(path):
+    with no_new_side_files(path):
         version = 0 if new else inspect(path, readonly)
     if 0 < version < SCHEMA_VERSION:
         deep_check(path)  # before an upgrade writes to it
     try:
-        conn = _connect(path, readonly=readonly)
+        conn = connect(path, readonly=readonly)
     except sqlite3.Error as exc:
         raise BookError(f"cannot open {path}: {exc}") from exc
     try:
@@ -503,8 +303,6 @@ def open_book(
             conn.execute("PRAGMA journal_mode = WAL")
         if version < SCHEMA_VERSION:
             if version > 0:
-                from store.db.backup import backup_before_migration
-
                 backup_before_migration(conn, path, version)
             try:
                 notices = migrate(conn, version)
@@ -522,8 +320,8 @@ def open_book(
         conn.close()
         raise
     if new:
-        _CHECKED.add(_key(path))  # made here and now: nothing to check
-    return Book(conn=conn, path=path, readonly=readonly, notices=notices, inode=_file_id(path))
+        CHECKED.add(check_key(path))  # made here and now: nothing to check
+    return Book(conn=conn, path=path, readonly=readonly, notices=notices, inode=file_id(path))
 
 
 def inspect(path: Path, readonly: bool = True) -> int:
@@ -559,7 +357,7 @@ def deep_check(path: Path) -> None:
     Not the full integrity check (`full_check`, `sumpbook check`): that one also compares
     every index with its table and took 10x as long on the 1.4 GB benchmark book (114 s
     against 11 s on a busy 2-core machine), too long to run behind every start."""
-    if _key(path) in _CHECKED:
+    if check_key(path) in CHECKED:
         return
     conn = _checking_connection(path, readonly=True)
     try:
@@ -568,14 +366,9 @@ def deep_check(path: Path) -> None:
         conn.close()
 
 
-def forget_check(path: Path) -> None:
-    """The file at `path` was replaced (a restore): check it again before the next write."""
-    _CHECKED.discard(_key(path))
-
-
 def _checking_connection(path: Path, readonly: bool) -> sqlite3.Connection:
     try:
-        return _connect(path, readonly=readonly)
+        return connect(path, readonly=readonly)
     except sqlite3.Error as exc:
         raise NotALogbook(
             f"{path} is not a sumpbook logbook or is damaged ({exc}); it was left untouched; "
@@ -599,13 +392,4 @@ def _quick_check(conn: sqlite3.Connection, path: Path) -> None:
         raise NotALogbook(
             f"{path} is damaged (quick check: {ok}); nothing was written to it; {backup_hint(path)}"
         )
-    _CHECKED.add(_key(path))
-
-
-def _key(path: Path) -> str:
-    return str(Path(path).resolve())
-
-
-# Files that passed the whole-file quick check in this process (the app's worker threads
-# open the same book again and again).
-_CHECKED: set[str] = set()
+    CHECKED.add(check_key(path))

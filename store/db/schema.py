@@ -11,14 +11,20 @@ version must be readable by any SQLite tool without a bookkeeping table.
 
 from __future__ import annotations
 
+from store.base.validate import (
+    BREATHER_REASONS,
+    CHANGE_REASONS,
+    ENTRY_KINDS,
+    FILTER_KINDS,
+    INDICATOR_STATES,
+    RANGES,
+    TEXT_LIMITS,
+)
+
 # "SUMP" in ASCII: marks the file as a sumpbook logbook in its header.
 APPLICATION_ID = 0x53554D50
 
 TAG_CHECK = "length(tag) BETWEEN 1 AND 16"
-
-FILTER_KINDS = ("suction-strainer", "suction", "pressure", "return", "offline")
-INDICATOR_STATES = ("clean", "dirty", "bypass")
-ENTRY_KINDS = ("reading", "change", "topup", "breather", "sample", "note", "void")
 
 
 def _in(values: tuple[str, ...]) -> str:
@@ -237,10 +243,6 @@ def _num(c: str, low: float, high: float, open_low: bool = False, integer: bool 
 
 
 def _range(c: str, integer: bool = False) -> str:
-    from store.base.validate import (
-        RANGES,  # the one list of ranges (validate imports nothing of ours)
-    )
-
     r = RANGES[c]
     return _num(c, r.low, r.high, r.open_low, integer)
 
@@ -258,8 +260,6 @@ def _bool(c: str) -> str:
 
 
 def _v4() -> str:
-    from store.base.validate import BREATHER_REASONS, CHANGE_REASONS, TEXT_LIMITS
-
     tables = {
         "technicians": (
             ["tag", "name", "active"],

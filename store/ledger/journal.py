@@ -14,8 +14,8 @@ from typing import Any
 from store.base import validate as validate_value
 from store.base.errors import BookError
 from store.base.timeutil import format_utc, parse_utc, utc_now
+from store.base.validate import ENTRY_KINDS, INDICATOR_STATES
 from store.db.book import Book
-from store.db.schema import ENTRY_KINDS, INDICATOR_STATES
 from store.ledger.entries import (
     KINDS,
     BreatherSwap,

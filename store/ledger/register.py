@@ -16,8 +16,8 @@ from typing import Any, TypeVar
 from store.base import validate
 from store.base.errors import BookError
 from store.base.timeutil import format_utc, parse_utc, utc_now
+from store.base.validate import FILTER_KINDS
 from store.db.book import Book
-from store.db.schema import FILTER_KINDS
 
 TAG_RE = validate.TAG_RE
 

@@ -19,7 +19,7 @@ from textual.widgets import Button, Input, Static
 from store.base import validate as validate_value
 from store.base.errors import BookError
 from store.base.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
-from store.db.schema import FILTER_KINDS
+from store.base.validate import FILTER_KINDS
 from store.ledger import register
 from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
 

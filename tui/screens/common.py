@@ -17,7 +17,8 @@ from textual.screen import Screen
 from textual.worker import get_current_worker
 
 from store.base.errors import BookError
-from store.db.book import Book, damaged_read, open_book
+from store.db.book import Book, open_book
+from store.db.connection import damaged_read
 
 from ..keys import bind
 
