@@ -17,8 +17,8 @@ import traceback
 import uuid
 from pathlib import Path
 
+from store import record
 from store.db.book import open_book
-from store.ledger import journal
 from store.ledger.entries import Note, Reading
 
 
@@ -43,16 +43,16 @@ def write_entries(path: Path, fd: int, seed: int, limit: int | None = None, tag:
                 ]
                 ids = " ".join(e.id for e in batch)
                 _say(fd, f"B {ids}")
-                journal.log_many(book, batch)
+                record.log_many(book, batch)
                 _say(fd, f"C {ids}")
             elif choice < 0.6:
-                entry = journal.log(
+                entry = record.log(
                     book,
                     Reading(filter="P1-RF", dp_bar=round(rng.uniform(0.3, 2.4), 3), by="AB"),
                 )
                 _say(fd, f"C {entry.id}")
             else:
-                entry = journal.log(
+                entry = record.log(
                     book,
                     Note(unit="P1", by="AB", note=f"{tag} note {done} " + "x" * rng.randrange(400)),
                 )
@@ -71,8 +71,8 @@ def warm_up(folder: Path) -> None:
 
     with open_book(folder / "warm-up.db") as book:
         fill_register(book)
-        journal.log(book, Reading(filter="P1-RF", dp_bar=1.0, by="AB"))
-        journal.log_many(book, [Note(unit="P1", by="AB", note="warm-up")])
+        record.log(book, Reading(filter="P1-RF", dp_bar=1.0, by="AB"))
+        record.log_many(book, [Note(unit="P1", by="AB", note="warm-up")])
 
 
 def run_child(path: Path, seed: int, limit: int | None = None, tag: str = "") -> tuple[int, int]:

@@ -38,11 +38,13 @@ ROOT = Path(__file__).resolve().parent.parent
 if str(ROOT) not in sys.path:  # run as a script from anywhere
     sys.path.insert(0, str(ROOT))
 
+
+from store import record  # noqa: E402
 from store.base.timeutil import ENV_NOW, format_utc  # noqa: E402
 from store.db.book import Book, open_book  # noqa: E402
 from store.db.schema import SCHEMA_VERSION  # noqa: E402
 from store.health.conditions import FilterContext, contexts  # noqa: E402
-from store.ledger import journal, register  # noqa: E402
+from store.ledger import register  # noqa: E402
 from store.ledger.entries import (  # noqa: E402
     BreatherSwap,
     ElementChange,
@@ -882,8 +884,8 @@ def populate(book: Book) -> None:
     book.set_setting("timezone", TIMEZONE)
     book.set_setting("clock", format_utc(CLOCK))
     for group in (TECHNICIANS, FLUIDS, UNITS, FILTERS, BREATHERS):
-        for record in group:
-            register.add(book, record, by="EW")
+        for item in group:
+            register.add(book, item, by="EW")
     register.set_shifts(book, list(SHIFTS), by="EW")
     plant = Plant(random.Random(f"{SEED}:plant"))
     story = Story(plant)
@@ -894,7 +896,7 @@ def populate(book: Book) -> None:
             story.add(cls, t, **fields)
     fluid_care(story)
     ordered = sorted(story.entries, key=lambda e: (e.at, e.kind == "void"))
-    journal.log_many(book, ordered)
+    record.log_many(book, ordered)
     # An inactive technician cannot log: FH is made inactive once the story is written.
     register.update(book, Technician, "FH", {"active": False}, by="EW")
 
@@ -957,12 +959,12 @@ def dump(book: Book) -> str:
 def no_write_hooks() -> Iterator[None]:
     """Skip the status-cache refresh after each entry: the cache is derived, not demo data,
     and refreshing it ~2000 times against the story's final clock would only cost time."""
-    hooks = list(journal.AFTER_WRITE)
-    journal.AFTER_WRITE.clear()
+    kept = record.after_write
+    record.after_write = lambda book, entries: None
     try:
         yield
     finally:
-        journal.AFTER_WRITE.extend(hooks)
+        record.after_write = kept
 
 
 @contextmanager

@@ -8,6 +8,7 @@ import pytest
 from rich.cells import cell_len
 from textual.widgets import DataTable, Input, Label, Static
 
+from store import record
 from store.db.book import open_book
 from store.health.status import FLAG_WORDS, URGENT_FLAGS
 from store.ledger import journal
@@ -87,7 +88,7 @@ async def test_the_flags_column_shrinks_after_a_void(demo):
                 if isinstance(e, TopUp) and e.filtered_um is None and not e.voided
             ]
             for e in unfiltered:
-                journal.log(book, Void(voids=e.id, note="wrong cart", at=book.now(), by="AK"))
+                record.log(book, Void(voids=e.id, note="wrong cart", at=book.now(), by="AK"))
         app.book_changed()
         await pilot.press("f5")
         await settle(pilot, WatchScreen)

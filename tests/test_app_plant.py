@@ -8,6 +8,7 @@ from pathlib import Path
 
 import pytest
 
+from store import record
 from store.db.book import Book, open_book
 from store.ledger import journal, register
 from store.ledger.entries import BreatherSwap, ElementChange, Reading, Sample, TopUp
@@ -134,7 +135,7 @@ def build_plant(book: Book) -> None:
         Sample(unit="P1", code="18/16/13", water_ppm=120, at=CLOCK - timedelta(days=9), by="AB")
     )
     entries.sort(key=lambda e: e.at)
-    journal.log_many(book, entries)
+    record.log_many(book, entries)
     book.set_setting("clock", CLOCK.strftime("%Y-%m-%dT%H:%M:%SZ"))
     book.set_setting("timezone", "UTC")
 

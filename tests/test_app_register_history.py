@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from textual.widgets import DataTable, Input, Static
 
+from store import record
 from store.db.book import open_book
 from store.ledger import register
 from store.ledger.register import FilterPosition
@@ -47,13 +48,12 @@ async def test_the_register_shows_each_records_history(plant):
 
 
 async def test_the_unit_sheet_shows_a_notes_text_shortened(plant):
-    from store.ledger import journal
     from store.ledger.entries import Note
     from tui.screens.unit_sheet import UnitSheetScreen
 
     text = "hose at the clamp cylinder weeps at the lower fitting, tighten next stop"
     with open_book(plant, create=False) as book:
-        journal.log(book, Note(unit="P1", note=text, by="CD"))
+        record.log(book, Note(unit="P1", note=text, by="CD"))
     app = make_app(plant)
     async with app.run_test(size=(80, 24)) as pilot:
         await settle(pilot, WatchScreen)

@@ -9,6 +9,7 @@ from pathlib import Path
 import pytest
 from textual.widgets import Static
 
+from store import record
 from store.db.book import open_book
 from store.exchange.demo import is_throwaway
 from store.ledger import journal, register
@@ -44,7 +45,7 @@ def test_no_logbook_opens_a_fresh_demo_each_time_and_keeps_nothing(no_logbook):
     first = book.path
     assert demo and new_path is None and is_throwaway(first)
     assert Path(tempfile.gettempdir()).resolve() in first.resolve().parents
-    journal.log(book, Note(unit=None, note="logged on the demo", by="AK"))
+    record.log(book, Note(unit=None, note="logged on the demo", by="AK"))
     book.close()
     discard(first)
     assert not first.exists()

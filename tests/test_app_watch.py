@@ -5,6 +5,7 @@ from __future__ import annotations
 
 from textual.widgets import DataTable, Input
 
+from store import record
 from store.db.book import open_book
 from store.health import status
 from store.views import watch_rows
@@ -171,7 +172,6 @@ async def test_a_damaged_file_is_named_behind_the_first_paint(plant):
 
 
 async def test_the_list_is_read_again_only_when_the_book_may_show_something_else(plant):
-    from store.ledger import journal
     from store.ledger.entries import Note
 
     app = make_app(plant)
@@ -190,7 +190,7 @@ async def test_the_list_is_read_again_only_when_the_book_may_show_something_else
         await to_sheet_and_back()
         assert reads == []  # nothing changed: the list stays as it was shown
         with open_book(plant, create=False) as book:  # another program writes (the CLI)
-            journal.log(book, Note(unit="P1", note="hose checked", by="AB"))
+            record.log(book, Note(unit="P1", note="hose checked", by="AB"))
         await to_sheet_and_back()
         assert reads == [1]
         app.book_changed()  # a change made in the app (a save, a register edit)

@@ -10,6 +10,7 @@ from pathlib import Path
 
 import pytest
 
+from store import record
 from store.base.errors import BookError, NotALogbook, TooNew
 from store.db import schema
 from store.db.backup import (
@@ -41,7 +42,7 @@ def _count(path: Path) -> int:
 
 
 def _note(book, text: str = "checked") -> None:
-    journal.log(book, Note(unit="P1", note=text, by="AB"))
+    record.log(book, Note(unit="P1", note=text, by="AB"))
 
 
 def test_rolling_backups_keep_the_newest_n(book):

@@ -6,6 +6,7 @@ import sys
 
 import pytest
 
+from store import record
 from store.base.errors import BookError, NotALogbook, TooNew
 from store.db import schema
 from store.db.book import open_book
@@ -75,10 +76,9 @@ def test_a_failed_migration_changes_nothing(tmp_path, monkeypatch):
 
 
 def test_migration_to_a_new_step_keeps_entries(tmp_path, monkeypatch, book):
-    from store.ledger import journal
     from store.ledger.entries import Note
 
-    journal.log(book, Note(unit="P1", note="before upgrade", by="AB"))
+    record.log(book, Note(unit="P1", note="before upgrade", by="AB"))
     book.close()
     steps = schema.MIGRATIONS + ["ALTER TABLE units ADD COLUMN colour TEXT;"]
     monkeypatch.setattr("store.db.book.MIGRATIONS", steps)
@@ -90,10 +90,9 @@ def test_migration_to_a_new_step_keeps_entries(tmp_path, monkeypatch, book):
 
 
 def test_entries_cannot_be_edited_or_deleted_even_with_plain_sql(book):
-    from store.ledger import journal
     from store.ledger.entries import Note
 
-    journal.log(book, Note(unit="P1", note="x", by="AB"))
+    record.log(book, Note(unit="P1", note="x", by="AB"))
     with pytest.raises(sqlite3.IntegrityError, match="append-only"):
         book.conn.execute("UPDATE entries SET note = 'y'")
     with pytest.raises(sqlite3.IntegrityError, match="append-only"):
@@ -115,7 +114,6 @@ def test_store_never_imports_the_ui():
 def test_a_book_opened_read_only_reads_and_refuses_every_write(book):
     # What a forked child process opens: it must never write (SQLite's locks do not carry
     # across a fork), so a save fails with one line and the file is left as it was.
-    from store.ledger import journal
     from store.ledger.entries import Note
 
     path = book.path
@@ -124,7 +122,7 @@ def test_a_book_opened_read_only_reads_and_refuses_every_write(book):
         assert reader.readonly
         assert reader.conn.execute("SELECT count(*) FROM entries").fetchone()[0] == before
         with pytest.raises(BookError):
-            journal.log(reader, Note(unit="P1", note="from a child", by="AB"))
+            record.log(reader, Note(unit="P1", note="from a child", by="AB"))
     assert book.conn.execute("SELECT count(*) FROM entries").fetchone()[0] == before
     with pytest.raises(BookError, match="no logbook"):
         open_book(path.with_name("none.db"), readonly=True)  # nothing is created either

@@ -11,6 +11,7 @@ from pathlib import Path
 
 import pytest
 
+from store import record
 from store.base.errors import BookError
 from store.db.book import open_book
 from store.ledger import journal, register
@@ -108,14 +109,14 @@ def test_a_write_that_cannot_get_the_lock_says_so_and_keeps_the_entry(book):
         book.conn.execute("PRAGMA busy_timeout = 100")  # instead of waiting 10 s in a test
         entry = Note(unit="P1", note="pump noisy at start", by="AB")
         with pytest.raises(BookError, match="busy") as refused:
-            journal.log(book, entry)
+            record.log(book, entry)
         assert "nothing was saved" in str(refused.value) and "\n" not in str(refused.value)
         with pytest.raises(BookError, match="busy"):
             register.add(book, Technician(tag="EF"), by="AB")
         other.conn.execute("ROLLBACK")
     finally:
         other.close()
-    saved = journal.log(book, entry)  # the same entry, kept by the caller, saves now
+    saved = record.log(book, entry)  # the same entry, kept by the caller, saves now
     assert [e.note for e in journal.read(book)] == [saved.note] == ["pump noisy at start"]
 
 

@@ -11,12 +11,12 @@ from pathlib import Path
 
 import pytest
 
+from store import record
 from store.base.errors import NotALogbook
 from store.db import schema
 from store.db.backup import latest_backup, restore, rolling_backup
 from store.db.book import open_book
 from store.db.connection import forget_check
-from store.ledger import journal
 from store.ledger.entries import Note
 from tests.conftest import fill_register
 
@@ -25,7 +25,7 @@ def _logbook(path: Path, notes: int = 300) -> None:
     with open_book(path) as book:
         book.conn.execute("PRAGMA synchronous = OFF")  # test speed only
         fill_register(book)
-        journal.log_many(
+        record.log_many(
             book, [Note(unit="P1", note=f"round {i} " + "x" * 200, by="AB") for i in range(notes)]
         )
         rolling_backup(book.conn, book.path, "on-close")
@@ -34,7 +34,7 @@ def _logbook(path: Path, notes: int = 300) -> None:
 
 def _write_note(path: Path) -> None:
     with open_book(path) as book:
-        journal.log(book, Note(unit="P1", note="one more", by="AB"))
+        record.log(book, Note(unit="P1", note="one more", by="AB"))
 
 
 def _root_page(path: Path, table: str) -> tuple[int, int]:
@@ -147,7 +147,7 @@ def test_the_first_write_checks_the_whole_file(tmp_path):
         # reads what is not damaged
         assert book.conn.execute("SELECT count(*) FROM technicians").fetchone()[0] > 0
         with pytest.raises(NotALogbook, match="damaged.*nothing was written"):
-            journal.log(book, Note(unit="P1", note="one more", by="AB"))
+            record.log(book, Note(unit="P1", note="one more", by="AB"))
     assert path.read_bytes() == before
 
 

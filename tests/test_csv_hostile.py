@@ -21,6 +21,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from store import record
 from store.base.errors import BookError
 from store.base.timeutil import zone
 from store.db.book import open_book
@@ -240,11 +241,11 @@ def test_export_neutralises_formulas_and_import_gives_them_back(template, cells)
     with Fresh(template) as book, Fresh(template) as twin:
         for note, condition, batch in cells:
             # (the book trims outer whitespace of text fields: compare what it stored)
-            journal.log(
+            record.log(
                 book,
                 ElementChange(filter="P1-RF", note=note, condition=condition, batch=batch, by="AB"),
             )
-            journal.log(book, Reading(filter="P1-RF", dp_bar=0.5, temp_c=-12.5, note=note, by="AB"))
+            record.log(book, Reading(filter="P1-RF", dp_bar=0.5, temp_c=-12.5, note=note, by="AB"))
         entries = journal.read(book)
         out = io.StringIO()
         write_span(out, book, None, None, Prefs(), UTC_ZONE, book.shift_pattern())
@@ -315,7 +316,7 @@ def test_sql_injection_through_every_text_field_is_stored_as_text(book, tmp_path
         register.add(book, Breather(tag=f"U{i}-B", unit=f"U{i}"))
         register.update(book, Unit, f"U{i}", {"name": payload + " (changed)"}, by=f"T{i}")
         # entry text fields: stored exactly
-        saved = journal.log_many(
+        saved = record.log_many(
             book,
             [
                 Reading(filter=f"U{i}-F", dp_bar=0.7, note=payload, by=f"T{i}"),
@@ -328,7 +329,7 @@ def test_sql_injection_through_every_text_field_is_stored_as_text(book, tmp_path
                 Note(unit=f"U{i}", note=payload, by=f"T{i}"),
             ],
         )
-        journal.log(book, Void(voids=saved[0].id, note=payload, by=f"T{i}"))
+        record.log(book, Void(voids=saved[0].id, note=payload, by=f"T{i}"))
         back = {e.id: e for e in journal.read(book, unit=f"U{i}")}
         for e in saved:
             assert back[e.id].note == payload.strip()
@@ -353,7 +354,7 @@ def test_sql_injection_through_every_text_field_is_stored_as_text(book, tmp_path
             Sample(unit="P1", code=payload, by="AB"),
         ):
             with pytest.raises(BookError):
-                journal.log(book, bad)
+                record.log(book, bad)
         with pytest.raises(BookError):
             register.add(book, Technician(tag=payload))
         try:  # shift names are words: most payloads are refused, "_" is a fine name
@@ -396,7 +397,7 @@ def test_sql_injection_through_csv_cells_and_file_names(book, tmp_path):
     copy_to(book.conn, odd)
     with open_book(odd) as other:
         assert _count(other) == len(PAYLOADS)
-        journal.log(other, Note(unit="P1", note="from the odd file", by="AB"))
+        record.log(other, Note(unit="P1", note="from the odd file", by="AB"))
     report = merge(book, odd)
     assert report.entries_added == 1
     assert restore(odd, tmp_path / "x'; --.db") is None
@@ -409,7 +410,7 @@ def test_text_that_is_not_text_is_refused_clearly(book):
     # A terminal hands undecodable bytes over as lone surrogates (Python's surrogateescape).
     bad = "pump \udcff noisy"
     for attempt in (
-        lambda: journal.log(book, Note(unit="P1", note=bad, by="AB")),
+        lambda: record.log(book, Note(unit="P1", note=bad, by="AB")),
         lambda: register.add(book, Unit(tag="P9", name=bad)),
         lambda: book.set_setting("name", bad),
     ):

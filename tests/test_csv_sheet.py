@@ -22,6 +22,7 @@ from pathlib import Path
 
 import pytest
 
+from store import record
 from store.base.errors import BookError
 from store.base.timeutil import zone
 from store.db.book import open_book
@@ -41,11 +42,11 @@ NOW = "2026-06-01T12:00:00Z"
 @pytest.fixture
 def logged(book, monkeypatch):
     monkeypatch.setenv("SUMPBOOK_NOW", NOW)
-    journal.log(book, Reading(filter="P1-RF", dp_bar=1.2, temp_c=40, by="AB", note="ν high"))
-    journal.log(book, TopUp(unit="P1", volume_l=20, by="AB"))  # unfiltered
-    journal.log(book, TopUp(unit="P1", volume_l=5, filtered_um=3, by="AB"))
-    journal.log(book, Sample(unit="P1", code="14/12/9", by="AB"))
-    journal.log(book, Sample(unit="P1", code="-/16/13", by="AB"))
+    record.log(book, Reading(filter="P1-RF", dp_bar=1.2, temp_c=40, by="AB", note="ν high"))
+    record.log(book, TopUp(unit="P1", volume_l=20, by="AB"))  # unfiltered
+    record.log(book, TopUp(unit="P1", volume_l=5, filtered_um=3, by="AB"))
+    record.log(book, Sample(unit="P1", code="14/12/9", by="AB"))
+    record.log(book, Sample(unit="P1", code="-/16/13", by="AB"))
     return book
 
 

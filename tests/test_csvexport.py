@@ -27,6 +27,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from store import record
 from store.base.timeutil import format_utc, iso_local, shift_at, zone
 from store.db.book import Book, open_book
 from store.exchange.csvcolumns import Prefs
@@ -140,10 +141,10 @@ def add_plant(book: Book) -> None:
 
 
 def log_plant_entries(book: Book) -> None:
-    saved = journal.log_many(book, [entry_for(i, at) for i, at in enumerate(instants())])
+    saved = record.log_many(book, [entry_for(i, at) for i, at in enumerate(instants())])
     # void a reading, a change and a note, each a little after it was logged
     for entry in (saved[0], saved[9], saved[15]):
-        journal.log(
+        record.log(
             book,
             Void(voids=entry.id, note="-logged on the wrong filter", by="AB", at=entry.at),
         )
@@ -287,7 +288,7 @@ def test_stamps_not_in_the_books_own_form_export_the_same(book, monkeypatch):
     # journal reads these too (ISO 8601 forms written by hand or by another program)
     monkeypatch.setenv("SUMPBOOK_NOW", NOW)
     book.set_setting("timezone", "Europe/Berlin")
-    journal.log_many(book, [entry_for(i, at) for i, at in enumerate(instants()[:4])])  # P1 only
+    record.log_many(book, [entry_for(i, at) for i, at in enumerate(instants()[:4])])  # P1 only
     odd = ("2026-07-01T070000.5Z", "2026-W27-3T07:00:01Z", "2026-7-1T7:00:02Z")
     # schema 4 refuses such stamps: plant them as a hand-made edit past the checks would
     book.conn.execute("PRAGMA ignore_check_constraints = ON")

@@ -16,12 +16,12 @@ from pathlib import Path
 
 import pytest
 
+from store import record
 from store.base.errors import NotALogbook
 from store.db.backup import latest_backup, rolling_backup
 from store.db.book import open_book
 from store.db.connection import forget_check
 from store.db.places import damage_marker
-from store.ledger import journal
 from store.ledger.entries import Note
 from tests.conftest import fill_register
 from tui.cli import main
@@ -31,7 +31,7 @@ def _logbook(path: Path) -> None:
     with open_book(path) as book:
         fill_register(book)
         start = datetime(2026, 3, 1, 6, tzinfo=UTC)
-        journal.log_many(
+        record.log_many(
             book,
             [
                 Note(unit="P1", note=f"round {i}", by="AB", at=start + timedelta(minutes=7 * i))
@@ -141,7 +141,7 @@ def test_a_process_that_opened_the_book_before_the_check_refuses_too(damaged, ca
     with open_book(damaged) as book:  # open already, e.g. the app
         assert run(capsys, "--db", str(damaged), "check")[0] == 2
         with pytest.raises(NotALogbook, match="damaged"):
-            journal.log(book, Note(unit="P1", note="after the check", by="AB"))
+            record.log(book, Note(unit="P1", note="after the check", by="AB"))
 
 
 async def _note_refused(app, pilot) -> str:

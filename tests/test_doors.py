@@ -13,6 +13,7 @@ from pathlib import Path
 
 import pytest
 
+from store import record
 from store.base import validate
 from store.base.errors import BookError
 from store.base.timeutil import parse_time, zone
@@ -431,7 +432,7 @@ def test_merge_of_an_older_book_with_bad_rows_says_what_stayed_behind(demo, tmp_
 
 
 def _reading(book) -> str:
-    entry = journal.log(book, Reading(filter="P1-RF", dp_bar=2.4, by="AB"))
+    entry = record.log(book, Reading(filter="P1-RF", dp_bar=2.4, by="AB"))
     return entry.id
 
 
@@ -531,7 +532,7 @@ def test_an_older_book_is_carried_over_and_bad_rows_kept_aside(tmp_path):
         assert json.loads(kept[0][2])["note"]
         assert book.conn.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
         assert book.conn.execute("PRAGMA foreign_key_check").fetchall() == []
-        journal.log(book, Reading(filter="P1-RF", dp_bar=1.6, by="AB"))  # writes go on
+        record.log(book, Reading(filter="P1-RF", dp_bar=1.6, by="AB"))  # writes go on
     with open_book(path) as book:
         assert book.notices == []  # said once
 
@@ -578,12 +579,12 @@ def test_an_export_skips_a_bad_row_and_says_which(demo, capsys, tmp_path):
 def test_notes_from_every_door_are_checked_the_same(book):
     for bad in ("\x1b[2J", "\x9b", "\x7f"):
         with pytest.raises(BookError, match="control character"):
-            journal.log(book, Note(unit="P1", note=f"x{bad}y", by="AB"))
+            record.log(book, Note(unit="P1", note=f"x{bad}y", by="AB"))
     with pytest.raises(BookError, match="inactive"):
         register.update(book, Technician, "CD", {"active": False})
-        journal.log(book, Note(unit="P1", note="x", by="CD"))
+        record.log(book, Note(unit="P1", note="x", by="CD"))
     with pytest.raises(BookError, match="volume"):
-        journal.log(book, TopUp(unit="P1", volume_l=math.inf, by="AB"))
+        record.log(book, TopUp(unit="P1", volume_l=math.inf, by="AB"))
 
 
 def test_status_json_never_prints_nan_or_infinity():

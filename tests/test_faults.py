@@ -14,6 +14,7 @@ from pathlib import Path
 
 import pytest
 
+from store import record
 from store.base.errors import BookError
 from store.db.book import open_book
 from store.exchange.csvio import import_csv
@@ -44,7 +45,7 @@ def test_a_full_disk_refuses_the_write_clearly_and_keeps_the_entry(book):
     with pytest.raises(BookError) as refused:
         for i in range(200):
             entry = Note(unit="P1", note=f"round {i} " + "x" * 1500, by="AB")
-            saved.append(journal.log(book, entry).id)
+            saved.append(record.log(book, entry).id)
     message = str(refused.value)
     assert "full" in message and "nothing was saved" in message and "\n" not in message
     assert book.conn.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
@@ -52,16 +53,16 @@ def test_a_full_disk_refuses_the_write_clearly_and_keeps_the_entry(book):
     assert ids == set(saved)  # all that was reported saved, and nothing half-written
     # The form's data is still there: the same entry saves once space is free again.
     book.conn.execute("PRAGMA max_page_count = 1000000")
-    again = journal.log(book, entry)
+    again = record.log(book, entry)
     assert journal.find_entry(book, again.id).note == entry.note
 
 
 def test_a_full_disk_rejects_a_whole_batch(book):
-    journal.log(book, Note(unit="P1", note="before", by="AB"))
+    record.log(book, Note(unit="P1", note="before", by="AB"))
     _fill_disk(book)
     batch = [Note(unit="P1", note="y" * 1500, by="AB") for _ in range(20)]
     with pytest.raises(BookError, match="full"):
-        journal.log_many(book, batch)
+        record.log_many(book, batch)
     assert _count(book) == 1
     with pytest.raises(BookError, match="full"):
         import_csv(
@@ -132,7 +133,7 @@ def test_a_read_only_logbook_opens_for_reading_and_refuses_writes_clearly(shelf,
     path = shelf / "logbook.db"
     with open_book(path) as book:
         fill_register(book)
-        journal.log(book, Reading(filter="P1-RF", dp_bar=0.9, by="AB"))
+        record.log(book, Reading(filter="P1-RF", dp_bar=0.9, by="AB"))
     path.chmod(stat.S_IRUSR | stat.S_IRGRP | stat.S_IROTH)
     if medium == "read-only folder":
         shelf.chmod(0o555)
@@ -143,7 +144,7 @@ def test_a_read_only_logbook_opens_for_reading_and_refuses_writes_clearly(shelf,
         book = open_book(path)
         report = {"readonly": book.readonly, "count": _count(book)}
         for name, attempt in [
-            ("log", lambda: journal.log(book, entry)),
+            ("log", lambda: record.log(book, entry)),
             ("register", lambda: register.add(book, Technician(tag="EF"))),
             ("setting", lambda: book.set_setting("name", "Plant 2")),
         ]:
@@ -167,5 +168,5 @@ def test_a_read_only_logbook_opens_for_reading_and_refuses_writes_clearly(shelf,
     path.chmod(0o644)
     with open_book(path) as book:
         assert not book.readonly
-        journal.log(book, entry)
+        record.log(book, entry)
         assert _count(book) == 2

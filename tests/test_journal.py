@@ -4,6 +4,7 @@ from datetime import UTC, datetime, timedelta
 
 import pytest
 
+from store import record
 from store.base.errors import BookError
 from store.ledger import journal
 from store.ledger.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp, Void
@@ -30,7 +31,7 @@ def test_every_kind_is_written_and_read_back(book):
         ),
         Note(unit="P1", note="hose weeping at the cylinder", by="AB", at=at),
     ]
-    saved = journal.log_many(book, made)
+    saved = record.log_many(book, made)
     back = journal.read(book)
     assert [e.id for e in back] == [e.id for e in saved]
     assert [e.kind for e in back] == [
@@ -56,8 +57,8 @@ def test_every_kind_is_written_and_read_back(book):
 
 
 def test_void_marks_the_entry_and_keeps_it(book):
-    first = journal.log(book, Reading(filter="P1-RF", dp_bar=9.0, by="AB"))
-    void = journal.log(book, Void(voids=first.id[:8], note="typed 9 for 0.9", by="CD"))
+    first = record.log(book, Reading(filter="P1-RF", dp_bar=9.0, by="AB"))
+    void = record.log(book, Void(voids=first.id[:8], note="typed 9 for 0.9", by="CD"))
     back = {e.id: e for e in journal.read(book)}
     assert back[first.id].voided_by == void.id
     assert back[void.id].voids == first.id
@@ -94,19 +95,19 @@ def test_void_marks_the_entry_and_keeps_it(book):
 )
 def test_bad_input_is_refused_and_nothing_is_written(book, entry, message):
     with pytest.raises(BookError, match=message):
-        journal.log(book, entry)
+        record.log(book, entry)
     assert count(book) == 0
 
 
 def test_void_twice_or_void_a_void_is_refused(book):
-    first = journal.log(book, Reading(filter="P1-RF", dp_bar=1.0, by="AB"))
-    void = journal.log(book, Void(voids=first.id, note="wrong", by="AB"))
+    first = record.log(book, Reading(filter="P1-RF", dp_bar=1.0, by="AB"))
+    void = record.log(book, Void(voids=first.id, note="wrong", by="AB"))
     with pytest.raises(BookError, match="voided already"):
-        journal.log(book, Void(voids=first.id, note="again", by="AB"))
+        record.log(book, Void(voids=first.id, note="again", by="AB"))
     with pytest.raises(BookError, match="cannot be voided"):
-        journal.log(book, Void(voids=void.id, note="undo", by="AB"))
+        record.log(book, Void(voids=void.id, note="undo", by="AB"))
     with pytest.raises(BookError, match="say why"):
-        journal.log(book, Void(voids=first.id, note=" ", by="AB"))
+        record.log(book, Void(voids=first.id, note=" ", by="AB"))
     assert count(book) == 2
 
 
@@ -114,13 +115,13 @@ def test_log_many_is_all_or_nothing(book):
     good = Reading(filter="P1-RF", dp_bar=1.0, by="AB")
     bad = Reading(filter="P1-RF", dp_bar=-1.0, by="AB")
     with pytest.raises(BookError):
-        journal.log_many(book, [good, good, bad])
+        record.log_many(book, [good, good, bad])
     assert count(book) == 0
 
 
 def test_read_filters_by_time_unit_and_kind(book):
     t0 = book.now() - timedelta(days=3)
-    journal.log_many(
+    record.log_many(
         book,
         [
             Reading(filter="P1-RF", dp_bar=1.0, by="AB", at=t0),

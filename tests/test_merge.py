@@ -11,6 +11,7 @@ from pathlib import Path
 
 import pytest
 
+from store import record
 from store.base.errors import BookError, NotALogbook
 from store.base.timeutil import utc_now
 from store.db import schema
@@ -54,7 +55,7 @@ def _base(tmp_path: Path) -> Path:
     path = tmp_path / "base.db"
     with _open(path) as book:
         fill_register(book)
-        journal.log_many(
+        record.log_many(
             book,
             [
                 Reading(filter="P1-RF", dp_bar=0.6, temp_c=45, by="AB"),
@@ -85,11 +86,11 @@ def _diverge(a: Path, b: Path) -> None:
     """Each laptop logs its own entries and registers its own things."""
     with _open(a) as book:
         first = journal.read(book)[0]
-        journal.log(book, Reading(filter="P1-RF", dp_bar=1.1, temp_c=50, by="AB"))
-        journal.log(book, TopUp(unit="P1", volume_l=12, filtered_um=10, by="AB"))
-        journal.log(book, Void(voids=first.id, note="wrong filter", by="AB"))
+        record.log(book, Reading(filter="P1-RF", dp_bar=1.1, temp_c=50, by="AB"))
+        record.log(book, TopUp(unit="P1", volume_l=12, filtered_um=10, by="AB"))
+        record.log(book, Void(voids=first.id, note="wrong filter", by="AB"))
         register.add(book, Breather(tag="P1-BR2", unit="P1"), by="AB")
-        journal.log(book, Note(unit="P1", note="second breather fitted", by="AB"))
+        record.log(book, Note(unit="P1", note="second breather fitted", by="AB"))
     with _open(b) as book:
         register.add(book, Unit(tag="P2", name="Press 2", fluid="HV46"), by="CD")
         register.add(
@@ -97,9 +98,9 @@ def _diverge(a: Path, b: Path) -> None:
             FilterPosition(tag="P2-RF", unit="P2", kind="return", limit_bar=2.5, bypass_bar=3.5),
             by="CD",
         )
-        journal.log(book, Reading(filter="P2-RF", dp_bar=0.4, temp_c=40, by="CD"))
-        journal.log(book, Reading(filter="P1-RF", dp_bar=1.0, temp_c=49, by="CD"))
-        journal.log(book, Sample(unit="P2", code="18/16/13", by="CD"))
+        record.log(book, Reading(filter="P2-RF", dp_bar=0.4, temp_c=40, by="CD"))
+        record.log(book, Reading(filter="P1-RF", dp_bar=1.0, temp_c=49, by="CD"))
+        record.log(book, Sample(unit="P2", code="18/16/13", by="CD"))
 
 
 def test_merge_brings_in_everything_and_is_order_independent(tmp_path):
@@ -153,18 +154,18 @@ def test_random_histories_merge_the_same_either_way(tmp_path, seed):
             book = books[path]
             roll = rng.random()
             if roll < 0.6:
-                journal.log(
+                record.log(
                     book,
                     Reading(
                         filter=rng.choice(["P1-RF", "P1-PF"]), dp_bar=rng.uniform(0.2, 2), by="AB"
                     ),
                 )
             elif roll < 0.8:
-                journal.log(book, Note(unit="P1", note=f"step {step}", by=rng.choice(["AB", "CD"])))
+                record.log(book, Note(unit="P1", note=f"step {step}", by=rng.choice(["AB", "CD"])))
             else:
                 live = [e for e in journal.read(book) if not e.voided and e.kind != "void"]
                 if live:
-                    journal.log(book, Void(voids=rng.choice(live).id, note="mistake", by="CD"))
+                    record.log(book, Void(voids=rng.choice(live).id, note="mistake", by="CD"))
     finally:
         for book in books.values():
             book.close()
@@ -190,7 +191,7 @@ def test_register_conflicts_are_reported_and_left_alone(tmp_path):
         register.update(
             book, FilterPosition, "P1-RF", {"limit_bar": 2.4, "element": "RX-20"}, by="CD"
         )
-        journal.log(book, Reading(filter="P1-RF", dp_bar=1.5, by="CD"))
+        record.log(book, Reading(filter="P1-RF", dp_bar=1.5, by="CD"))
     ab, report = _merged(tmp_path, a, b, "ab.db")
     ba, report_back = _merged(tmp_path, b, a, "ba.db")
     assert len(report.conflicts) == 1
@@ -215,8 +216,8 @@ def test_an_entry_without_its_tag_is_reported_not_dropped(tmp_path):
     with _open(b) as book:
         register.add(book, FilterPosition(tag="P1-X", unit="P1", kind="offline"))
         for dp in (0.3, 0.4, 0.5):
-            journal.log(book, Reading(filter="P1-X", dp_bar=dp, by="CD"))
-        journal.log(book, Note(unit="P1", note="offline loop fitted", by="CD"))
+            record.log(book, Reading(filter="P1-X", dp_bar=dp, by="CD"))
+        record.log(book, Note(unit="P1", note="offline loop fitted", by="CD"))
     with _open(a) as book:
         report = merge(book, b)
         assert report.entries_added == 1  # the note
@@ -237,7 +238,7 @@ def test_merge_is_all_or_nothing(tmp_path, monkeypatch):
         calls.append(entry.id)
         raise RuntimeError("power cut in the middle of the merge")
 
-    monkeypatch.setattr(journal, "AFTER_WRITE", [failing_hook])
+    monkeypatch.setattr("store.derived.statuscache.after_entry", failing_hook)
     with _open(a) as book:
         with pytest.raises(RuntimeError):
             merge(book, b)
@@ -248,7 +249,7 @@ def test_merge_is_all_or_nothing(tmp_path, monkeypatch):
 def test_a_full_disk_during_merge_changes_nothing(tmp_path):
     a, b = _laptops(tmp_path)
     with _open(b) as book:
-        journal.log_many(book, [Note(unit="P1", note="x" * 1500, by="CD") for _ in range(40)])
+        record.log_many(book, [Note(unit="P1", note="x" * 1500, by="CD") for _ in range(40)])
     before = _dump(a, "entries")
     with _open(a) as book:
         pages = book.conn.execute("PRAGMA page_count").fetchone()[0]
@@ -289,7 +290,7 @@ def test_an_entry_from_a_laptop_with_a_wrong_clock_is_held_back(tmp_path, monkey
     ahead = (utc_now() + timedelta(days=30)).strftime("%Y-%m-%dT%H:%M:%SZ")
     monkeypatch.setenv("SUMPBOOK_NOW", ahead)  # laptop B's clock is a month fast
     with _open(b) as book:
-        journal.log(book, Reading(filter="P1-RF", dp_bar=1.3, by="CD"))
+        record.log(book, Reading(filter="P1-RF", dp_bar=1.3, by="CD"))
     monkeypatch.delenv("SUMPBOOK_NOW")
     with _open(a) as book:
         report = merge(book, b)

@@ -11,6 +11,7 @@ from pathlib import Path
 
 import pytest
 
+from store import record
 from store.base.errors import BookError
 from store.db.backup import restore, rolling_backup
 from store.db.book import open_book
@@ -30,7 +31,7 @@ def _ids(path: Path) -> set[str]:
 
 
 def _fill(book, count: int) -> None:
-    journal.log_many(
+    record.log_many(
         book, [Note(unit="P1", note=f"old round {i} " + "x" * 300, by="AB") for i in range(count)]
     )
 
@@ -128,9 +129,9 @@ def test_a_book_open_on_a_file_that_was_replaced_refuses_to_write(tmp_path, book
     new.write_bytes(copy.read_bytes())
     os.replace(new, book.path)
     with pytest.raises(BookError, match="was replaced") as refused:
-        journal.log(book, Note(unit="P1", note="into the old file", by="AB"))
+        record.log(book, Note(unit="P1", note="into the old file", by="AB"))
     assert "nothing was saved" in str(refused.value)
     book.close()
     with open_book(book.path) as again:  # opened again, it writes
-        journal.log(again, Note(unit="P1", note="into the new file", by="AB"))
+        record.log(again, Note(unit="P1", note="into the new file", by="AB"))
         assert journal.count(again) == 6

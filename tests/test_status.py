@@ -5,11 +5,12 @@ from datetime import UTC, datetime, timedelta
 
 import pytest
 
+from store import record
 from store.base.units import to_bar
 from store.db.book import open_book
 from store.derived.statuscache import rebuild
 from store.health import status
-from store.ledger import journal, register
+from store.ledger import register
 from store.ledger.entries import BreatherSwap, ElementChange, Reading, Sample, TopUp, Void
 from store.ledger.register import FilterPosition, Fluid, Technician, Unit
 from tests.benchmarks.clogging import data_dir, load_runs, technician_log
@@ -42,8 +43,8 @@ def d341_book(tmp_path):
 
 def test_normalised_dp_uses_the_d341_viscosity_ratio(d341_book):
     book = d341_book
-    journal.log(book, ElementChange(filter="U1-RF", by="AB", at=T0))
-    journal.log(
+    record.log(book, ElementChange(filter="U1-RF", by="AB", at=T0))
+    record.log(
         book, Reading(filter="U1-RF", dp_bar=1.0, temp_c=60, by="AB", at=T0 + timedelta(days=1))
     )
     f = one(status.watch(book), "U1-RF")
@@ -56,8 +57,8 @@ def test_normalised_dp_uses_the_d341_viscosity_ratio(d341_book):
 
 def test_cold_start_bypass_is_flagged_with_its_temperature(d341_book):
     book = d341_book
-    journal.log(book, ElementChange(filter="U1-RF", by="AB", at=T0))
-    journal.log(
+    record.log(book, ElementChange(filter="U1-RF", by="AB", at=T0))
+    record.log(
         book, Reading(filter="U1-RF", dp_bar=0.8, temp_c=80, by="AB", at=T0 + timedelta(days=1))
     )
     f = one(status.watch(book), "U1-RF")
@@ -73,9 +74,9 @@ def test_drop_without_change_is_urgent(book):
     # common practice, no source: ΔP that falls with no element change means a torn or
     # missing element or an open bypass; this sequence rises steadily then falls by half
     t = book.now() - timedelta(days=20)
-    journal.log(book, ElementChange(filter="P1-RF", by="AB", at=t))
+    record.log(book, ElementChange(filter="P1-RF", by="AB", at=t))
     for i, dp in enumerate([0.60, 0.65, 0.70, 0.75, 0.80, 0.85, 0.90, 0.95, 0.45, 0.40]):
-        journal.log(
+        record.log(
             book,
             Reading(
                 filter="P1-RF", dp_bar=dp, temp_c=50, by="AB", at=t + timedelta(days=1 + 2 * i)
@@ -89,9 +90,9 @@ def test_drop_without_change_is_urgent(book):
 
 def test_voided_reading_is_ignored_and_as_of_sees_the_past(book):
     t = book.now() - timedelta(days=10)
-    journal.log(book, ElementChange(filter="P1-RF", by="AB", at=t))
+    record.log(book, ElementChange(filter="P1-RF", by="AB", at=t))
     good = [
-        journal.log(
+        record.log(
             book,
             Reading(
                 filter="P1-RF",
@@ -103,12 +104,12 @@ def test_voided_reading_is_ignored_and_as_of_sees_the_past(book):
         )
         for i in range(4)
     ]
-    wrong = journal.log(
+    wrong = record.log(
         book, Reading(filter="P1-RF", dp_bar=3.4, temp_c=50, by="AB", at=t + timedelta(days=6))
     )
     before_void = book.now()
     assert one(status.watch(book), "P1-RF").dp_ref_bar == pytest.approx(3.4)
-    journal.log(
+    record.log(
         book,
         Void(
             voids=wrong.id,
@@ -133,9 +134,9 @@ def test_voided_reading_is_ignored_and_as_of_sees_the_past(book):
 def test_cache_agrees_with_a_fresh_computation(book):
     book.set_setting("clock", "2026-06-01T12:00:00Z")
     t = book.now() - timedelta(days=30)
-    journal.log(book, ElementChange(filter="P1-RF", by="AB", at=t))
+    record.log(book, ElementChange(filter="P1-RF", by="AB", at=t))
     for i in range(12):
-        journal.log(
+        record.log(
             book,
             Reading(
                 filter="P1-RF",
@@ -163,9 +164,9 @@ def test_cache_agrees_with_a_fresh_computation(book):
 
 def test_fluid_care_flags(book):
     now = book.now()
-    journal.log(book, TopUp(unit="P1", volume_l=10, by="AB", at=now - timedelta(days=2)))
+    record.log(book, TopUp(unit="P1", volume_l=10, by="AB", at=now - timedelta(days=2)))
     # ISO 4406 table (REFERENCES.md §1c): 30000/5000/60 per mL is 22/19/13, over 17/15/12
-    journal.log(
+    record.log(
         book,
         Sample(
             unit="P1",
@@ -176,7 +177,7 @@ def test_fluid_care_flags(book):
             at=now - timedelta(days=1),
         ),
     )
-    journal.log(
+    record.log(
         book,
         BreatherSwap(breather="P1-BR", condition="spent", by="AB", at=now - timedelta(days=200)),
     )
@@ -192,12 +193,12 @@ def test_rising_top_ups_point_to_a_leak(book):
     # a steady 2 L a week for five months, then 12 L a week for four weeks
     # (invented consumption; the rule is the unit against its own history, DOMAIN.md §5)
     for week in range(24, 4, -1):
-        journal.log(
+        record.log(
             book,
             TopUp(unit="P1", volume_l=2, filtered_um=3, by="AB", at=now - timedelta(weeks=week)),
         )
     for day in (26, 19, 12, 5):
-        journal.log(
+        record.log(
             book,
             TopUp(unit="P1", volume_l=12, filtered_um=3, by="AB", at=now - timedelta(days=day)),
         )
@@ -208,7 +209,7 @@ def test_rising_top_ups_point_to_a_leak(book):
 
 def test_a_filter_without_limits_says_so(book):
     register.add(book, FilterPosition(tag="P1-SS", unit="P1", kind="suction-strainer"))
-    journal.log(book, Reading(filter="P1-SS", dp_bar=0.05, by="AB"))
+    record.log(book, Reading(filter="P1-SS", dp_bar=0.05, by="AB"))
     f = one(status.watch(book), "P1-SS")
     assert f.state == "no-limits" and f.due is None and "no-limits" in f.flags
 
@@ -216,13 +217,13 @@ def test_a_filter_without_limits_says_so(book):
 def test_indicator_only_filter_plans_from_earlier_lives(book):
     # element lives of 30, 34, 38, 42 days to "dirty" (invented history for the bookkeeping)
     t = book.now() - timedelta(days=170)
-    journal.log(book, ElementChange(filter="P1-PF", reason="indicator", by="AB", at=t))
+    record.log(book, ElementChange(filter="P1-PF", reason="indicator", by="AB", at=t))
     for days in (30, 34, 38, 42):
         t += timedelta(days=days)
-        journal.log(
+        record.log(
             book, Reading(filter="P1-PF", indicator="dirty", by="AB", at=t - timedelta(hours=2))
         )
-        journal.log(book, ElementChange(filter="P1-PF", reason="indicator", by="AB", at=t))
+        record.log(book, ElementChange(filter="P1-PF", reason="indicator", by="AB", at=t))
     f = one(status.watch(book), "P1-PF")
     assert f.basis == "service-life"
     assert f.life is not None and f.life.n_failed == 4
@@ -256,9 +257,9 @@ def test_due_interval_holds_the_true_crossing_of_a_real_run(tmp_path, current):
         )
         t = T0
         for name in history:  # 1 s of rig time = 1 h of service
-            journal.log(book, ElementChange(filter="RIG-F", by="AB", at=t))
+            record.log(book, ElementChange(filter="RIG-F", by="AB", at=t))
             ages, dps = technician_log(runs[name], seed=1)
-            journal.log_many(
+            record.log_many(
                 book,
                 [
                     Reading(
@@ -268,11 +269,11 @@ def test_due_interval_holds_the_true_crossing_of_a_real_run(tmp_path, current):
                 ],
             )
             t += timedelta(hours=runs[name].life_h)
-        journal.log(book, ElementChange(filter="RIG-F", by="AB", at=t))
+        record.log(book, ElementChange(filter="RIG-F", by="AB", at=t))
         run = runs[current]
         ages, dps = technician_log(run, seed=1)
         now_h = 0.7 * run.life_h
-        journal.log_many(
+        record.log_many(
             book,
             [
                 Reading(filter="RIG-F", dp_bar=float(d), by="AB", at=t + timedelta(hours=float(a)))
@@ -302,9 +303,9 @@ def test_an_hour_meter_read_out_of_turn_does_not_stop_a_save(tmp_path):
             ),
         )
         book.set_setting("clock", "2026-03-20T12:00:00Z")
-        journal.log(book, ElementChange(filter="M1-R", hours=1000, by="AB", at=T0))
+        record.log(book, ElementChange(filter="M1-R", hours=1000, by="AB", at=T0))
         for day, hours, dp in ((1, 1020, 0.5), (2, 1040, 0.6), (4, 1080, 0.7), (5, 1100, 0.8)):
-            journal.log(
+            record.log(
                 book,
                 Reading(
                     filter="M1-R",
@@ -315,7 +316,7 @@ def test_an_hour_meter_read_out_of_turn_does_not_stop_a_save(tmp_path):
                     at=T0 + timedelta(days=day),
                 ),
             )
-        late = journal.log(
+        late = record.log(
             book,
             Reading(
                 filter="M1-R",
@@ -332,8 +333,8 @@ def test_an_hour_meter_read_out_of_turn_does_not_stop_a_save(tmp_path):
 
 def test_a_register_change_reaches_the_cached_watch_list(book):
     t = book.now() - timedelta(days=10)
-    journal.log(book, ElementChange(filter="P1-RF", by="AB", at=t))
-    journal.log(
+    record.log(book, ElementChange(filter="P1-RF", by="AB", at=t))
+    record.log(
         book, Reading(filter="P1-RF", dp_bar=2.0, temp_c=50, by="AB", at=t + timedelta(days=1))
     )
     # 2.0 bar against the 2.5 bar limit; the unit's fluid at its normal temperature
@@ -390,7 +391,7 @@ def _pace_book(tmp_path, current_life_h: float):
             for h in range(24, int(last), 24)
         ]  # fmt: skip
         t += timedelta(hours=life)
-    journal.log_many(book, entries)
+    record.log_many(book, entries)
     now = entries[-1].at + timedelta(hours=1)
     book.set_setting("clock", now.strftime("%Y-%m-%dT%H:%M:%SZ"))
     return book
@@ -433,8 +434,8 @@ def _meter_book(tmp_path):
         FilterPosition(tag="M1-R", unit="M1", kind="return", bypass_bar=3.5, limit_bar=2.5,
                        clean_bar=0.3, reading_interval_h=17_520),
     )  # fmt: skip
-    journal.log(book, ElementChange(filter="M1-R", hours=1000, by="AB", at=T0))
-    journal.log_many(
+    record.log(book, ElementChange(filter="M1-R", hours=1000, by="AB", at=T0))
+    record.log_many(
         book,
         [
             Reading(filter="M1-R", dp_bar=0.3 + 0.002 * 12 * day, temp_c=50,
@@ -467,11 +468,11 @@ def test_a_reading_without_the_meter_does_not_move_the_due_date(tmp_path):
     with _meter_book(tmp_path) as book:
         at = T0 + timedelta(days=41)
         before = one(status.watch(book), "M1-R")
-        journal.log(book, Reading(filter="M1-R", dp_bar=0.3 + 0.002 * 492, temp_c=50, by="AB",
+        record.log(book, Reading(filter="M1-R", dp_bar=0.3 + 0.002 * 492, temp_c=50, by="AB",
                                   at=at))  # fmt: skip
         without = one(status.watch(book), "M1-R")
     with _meter_book(tmp_path / "b" if (tmp_path / "b").mkdir() is None else tmp_path) as book:
-        journal.log(book, Reading(filter="M1-R", dp_bar=0.3 + 0.002 * 492, temp_c=50, by="AB",
+        record.log(book, Reading(filter="M1-R", dp_bar=0.3 + 0.002 * 492, temp_c=50, by="AB",
                                   at=at, hours=1492))  # fmt: skip
         with_meter = one(status.watch(book), "M1-R")
     # the same reading, on the line of the others: with the meter or with its estimate, the
@@ -487,8 +488,8 @@ def test_a_new_element_without_meter_readings_ages_at_the_units_running_rate(tmp
     with _meter_book(tmp_path) as book:
         fitted = T0 + timedelta(days=41)
         book.set_setting("clock", (fitted + timedelta(days=5)).strftime("%Y-%m-%dT%H:%M:%SZ"))
-        journal.log(book, ElementChange(filter="M1-R", hours=1492, by="AB", at=fitted))
-        journal.log_many(
+        record.log(book, ElementChange(filter="M1-R", hours=1492, by="AB", at=fitted))
+        record.log_many(
             book,
             [
                 Reading(filter="M1-R", dp_bar=0.3 + 0.01 * day, temp_c=50, by="AB",
@@ -522,6 +523,6 @@ def test_basis_names_what_the_note_says(tmp_path):
         data = status.to_json(status.watch(book))["filters"][0]
         assert data["basis"] == f.basis
         # a new element without readings: planned from the earlier lives
-        journal.log(book, ElementChange(filter="M2-RF", by="AB", at=book.now()))
+        record.log(book, ElementChange(filter="M2-RF", by="AB", at=book.now()))
         g = one(status.watch(book), "M2-RF")
         assert g.basis == "service-life" and NOTE_OF_BASIS["service-life"] in " ".join(g.notes)

@@ -17,6 +17,7 @@ from zoneinfo import ZoneInfo
 
 import pytest
 
+from store import record
 from store.base.errors import BookError
 from store.base.timeutil import parse_time, shift_at, shift_named, zone
 from store.exchange.csvcolumns import Prefs
@@ -112,7 +113,7 @@ def test_logged_entries_land_in_their_shift(book, monkeypatch, local_text, label
     book.set_setting("timezone", BERLIN)
     monkeypatch.setenv("SUMPBOOK_NOW", NOW.isoformat())
     at = parse_time(local_text, book.local_zone(), now=book.now())
-    saved = journal.log(book, Reading(filter="P1-RF", dp_bar=1.0, at=at, by="AB"))
+    saved = record.log(book, Reading(filter="P1-RF", dp_bar=1.0, at=at, by="AB"))
     stored = journal.find_entry(book, saved.id)
     assert stored.at == wall(
         BERLIN, *map(int, local_text.replace("T", "-").replace(":", "-").split("-"))
@@ -129,7 +130,7 @@ def test_export_names_the_shift_and_the_offset_across_the_change(book, monkeypat
         wall(BERLIN, 2026, 3, 29, 6, 30): ("early", "2026-03-29T06:30:00+02:00"),
     }
     for at in instants:
-        journal.log(book, Note(unit="P1", note="round", at=at, by="AB"))
+        record.log(book, Note(unit="P1", note="round", at=at, by="AB"))
     out = io.StringIO()
     write_span(out, book, None, None, Prefs(), book.local_zone(), book.shift_pattern())
     rows = list(csv.DictReader(io.StringIO(out.getvalue())))
@@ -140,10 +141,10 @@ def test_an_entry_far_in_the_future_is_refused(book, monkeypatch):
     monkeypatch.setenv("SUMPBOOK_NOW", NOW.isoformat())
     before = book.conn.execute("SELECT count(*) FROM entries").fetchone()[0]
     # MAX_AHEAD is one day: a clock slip of hours passes, days do not. # common practice, no source
-    journal.log(book, Note(unit="P1", note="ok", at=NOW + timedelta(hours=23), by="AB"))
+    record.log(book, Note(unit="P1", note="ok", at=NOW + timedelta(hours=23), by="AB"))
     for ahead in (timedelta(days=2), timedelta(days=400)):
         with pytest.raises(BookError, match="ahead"):
-            journal.log(book, Note(unit="P1", note="clock?", at=NOW + ahead, by="AB"))
+            record.log(book, Note(unit="P1", note="clock?", at=NOW + ahead, by="AB"))
         with pytest.raises(BookError, match="ahead"):
             parse_time((NOW + ahead).isoformat(), zone(BERLIN), now=NOW)
     assert book.conn.execute("SELECT count(*) FROM entries").fetchone()[0] == before + 1

@@ -10,6 +10,7 @@ import sys
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from store import record
 from store.base import prefs as laptop
 from store.base.errors import BookError
 from store.base.text import inert, json_inert
@@ -343,7 +344,7 @@ def cmd_log(args: argparse.Namespace) -> int:
                 raise BookError("the note is empty")
         else:
             entry = Void(voids=args.id, **{**common, "note": args.reason})
-        saved = journal.log(book, entry)
+        saved = record.log(book, entry)
         say(_render().saved_line(book, saved, prefs))
         if isinstance(saved, Reading):
             caution = journal.reading_over_bypass(

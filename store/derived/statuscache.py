@@ -1,6 +1,6 @@
 """The status caches: each filter's and unit's computed status, kept fresh on every write.
 
-- `status_cache`: each filter's status, refreshed inside every write (journal.AFTER_WRITE ->
+- `status_cache`: each filter's status, refreshed inside every write (store.record ->
   `after_entry`) from the element cache (store/derived/elementcache.py) and the entries since the
   last element change;
 - `unit_cache`: each unit's fluid-care status (top-ups, samples, hot readings).

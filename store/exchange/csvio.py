@@ -5,7 +5,7 @@ The columns, how each cell is written and how it is read back, are one table in
 
 Import is all or nothing: the whole file is read and checked first, every problem is
 reported with its line number, and one transaction writes it. Nothing is built into SQL:
-the cells travel as parameters (journal.insert).
+the cells travel as parameters (store.ledger.journal.insert).
 """
 
 from __future__ import annotations
@@ -18,12 +18,13 @@ from dataclasses import dataclass, fields, replace
 from datetime import tzinfo
 from typing import Any
 
+from store import record
 from store.base.errors import BookError
 from store.base.timeutil import parse_time
 from store.db.book import Book
 from store.exchange.csvcolumns import VALUE_COLUMNS, Prefs, known_headers, neutralise, restore
 from store.ledger.entries import KINDS, Entry
-from store.ledger.journal import after_write, insert, load_hooks, validate
+from store.ledger.journal import insert, validate
 
 __all__ = ["Prefs", "import_csv", "neutralise", "parse_csv", "restore"]
 
@@ -212,7 +213,7 @@ def import_csv(book: Book, data: bytes, local: tzinfo) -> ImportResult:
     added = skipped = 0
     now = book.now()
     written: list[Entry] = []
-    load_hooks()
+    record.preload()
     try:
         with book.atomic():
             for line, entry in entries:
@@ -222,14 +223,14 @@ def import_csv(book: Book, data: bytes, local: tzinfo) -> ImportResult:
                 try:
                     entry = validate(book, entry, now)
                     entry = replace(entry, id=entry.id or str(uuid.uuid4()), logged=now)
-                    insert(book, entry, hooks=False)
+                    insert(book, entry)
                     written.append(entry)
                     added += 1
                 except (ValueError, OverflowError) as exc:  # BookError is a ValueError
                     problems.append((line, f"line {line}: {one_line(str(exc))}"))
             if problems:
                 raise _Rejected
-            after_write(book, written)  # derived status, once per filter touched
+            record.after_write(book, written)  # derived rows, once per filter touched
     except _Rejected:
         pass
     if problems:

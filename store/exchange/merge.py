@@ -21,6 +21,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from store import record
 from store.base import validate
 from store.base.errors import BookError
 from store.base.timeutil import MAX_AHEAD, format_utc
@@ -383,14 +384,10 @@ class _Merger:
         return tuple(str(entry.get(c) or "").upper() for c in ("filter", "breather", "unit"))
 
     def _after_write(self, entries: Iterable[dict[str, Any]]) -> None:
-        """Run the after-write hooks (the status cache) once per target touched, with its
-        newest merged entry: a hook recomputes its target from all the entries it has, so
-        once per target is enough and a merge of thousands of entries stays quick."""
-        from store.ledger.journal import AFTER_WRITE
-
-        for row in entries:
-            for hook in AFTER_WRITE:
-                hook(self.book, from_row(row))
+        """Bring the derived rows up to date once per target touched, with its newest merged
+        entry: a refresh reads all the entries of its target, so a merge of thousands of
+        entries stays quick."""
+        record.after_write(self.book, [from_row(row) for row in entries])
 
     def _why_not(self, entry: dict[str, Any], latest: str) -> str | None:
         """Why an entry of the other book cannot land here (None: it can)."""

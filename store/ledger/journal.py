@@ -1,10 +1,10 @@
-"""Writing and reading entries: validation, append-only writes, voids."""
+"""Entries in the book: validating one, appending its row, voids, reading them back. Writes
+here touch the entries table only; a save goes through store.record."""
 
 from __future__ import annotations
 
 import gc
 import sqlite3
-import uuid
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import fields, replace
@@ -41,26 +41,6 @@ TEMP_RANGE_C = (validate_value.RANGES["temp_c"].low, validate_value.RANGES["temp
 MAX_NOTE_CHARS = validate_value.MAX_NOTE_CHARS
 CHANGE_REASONS = validate_value.CHANGE_REASONS
 BREATHER_REASONS = validate_value.BREATHER_REASONS
-
-
-def _refresh_status(book: Book, entry: Entry) -> None:
-    from store.derived.statuscache import (
-        after_entry,  # imported late: it pulls in the fitting maths
-    )
-
-    after_entry(book, entry)
-
-
-def load_hooks() -> None:
-    """Import what the hooks need before taking the write lock (numpy and scipy are slow
-    to import, and other writers wait while the lock is held)."""
-    from store.derived import statuscache
-
-    statuscache.preload()
-
-
-# Called inside the write transaction after each entry lands: keeps the status cache fresh.
-AFTER_WRITE: list[Callable[[Book, Entry], None]] = [_refresh_status]
 
 
 def _finite(name: str, value: float | None) -> None:
@@ -252,11 +232,9 @@ def _row(entry: Entry) -> dict[str, Any]:
     return row
 
 
-def insert(book: Book, entry: Entry, hooks: bool = True) -> None:
-    """Write one validated entry inside the caller's transaction.
-
-    With hooks=False the caller runs `after_write` once for the whole batch.
-    """
+def insert(book: Book, entry: Entry) -> None:
+    """Write one validated entry inside the caller's transaction (its own row only: the
+    derived rows are kept by store.record, which every save goes through)."""
     row = _row(entry)
     columns = ", ".join(row)
     marks = ", ".join("?" for _ in row)
@@ -264,43 +242,10 @@ def insert(book: Book, entry: Entry, hooks: bool = True) -> None:
         book.conn.execute(f"INSERT INTO entries ({columns}) VALUES ({marks})", list(row.values()))
     except sqlite3.IntegrityError as exc:
         raise BookError(f"the book refused the entry: {exc}") from exc
-    if hooks:
-        after_write(book, [entry])
-
-
-def after_write(book: Book, entries: Sequence[Entry]) -> None:
-    """Run the AFTER_WRITE hooks once per filter, breather or unit a batch touched."""
-    last: dict[str, Entry] = {}
-    for entry in entries:
-        key = getattr(entry, "voids", None) or entry.target or entry.unit or ""
-        last[key] = entry
-    for entry in last.values():
-        for hook in AFTER_WRITE:
-            hook(book, entry)
 
 
 def count(book: Book) -> int:
     return book.conn.execute("SELECT count(*) FROM entries").fetchone()[0]
-
-
-def log(book: Book, entry: Entry) -> Entry:
-    """Validate and append one entry; returns it with id and times filled in."""
-    return log_many(book, [entry])[0]
-
-
-def log_many(book: Book, entries: Iterable[Entry]) -> list[Entry]:
-    """All or nothing: every entry is validated and written in one transaction."""
-    now = book.now()
-    done = []
-    load_hooks()
-    with book.atomic():
-        for entry in entries:
-            entry = validate(book, entry, now)
-            entry = replace(entry, id=entry.id or str(uuid.uuid4()), logged=entry.logged or now)
-            insert(book, entry, hooks=False)
-            done.append(entry)
-        after_write(book, done)
-    return done
 
 
 # ---- reading --------------------------------------------------------------------------------------

@@ -313,10 +313,10 @@ def warm(path: Path) -> None:
 
 
 def saves(path: Path, count: int) -> list[float]:
-    """ms per journal.log of a reading (validation, insert, status and unit refresh, commit)
+    """ms per record.log of a reading (validation, insert, status and unit refresh, commit)
     on a copy of the book, on filters picked at random, at the book's clock."""
+    from store import record
     from store.db.book import open_book
-    from store.ledger import journal
     from store.ledger.entries import Reading
     from store.ledger.register import FilterPosition, Technician, list_all
 
@@ -328,7 +328,7 @@ def saves(path: Path, count: int) -> list[float]:
         times = []
         with open_book(copy, create=False) as book:
             book.ensure_checked()  # the whole-file check before the first write, not timed:
-            journal.load_hooks()  # the app runs it behind the painted list
+            record.preload()  # the app runs it behind the painted list
             tech = list_all(book, Technician)[0].tag
             filters = [f for f in list_all(book, FilterPosition) if f.gauge]
             rng = random.Random(4)
@@ -338,7 +338,7 @@ def saves(path: Path, count: int) -> list[float]:
                 reading = Reading(filter=pos.tag, dp_bar=round(rng.uniform(0.3, 0.9) * pos.limit_bar, 2),
                                   temp_c=50.0, by=tech, at=now - timedelta(minutes=count - i))  # fmt: skip
                 t = time.perf_counter()
-                journal.log(book, reading)
+                record.log(book, reading)
                 times.append(1000 * (time.perf_counter() - t))
         return times
 

@@ -15,9 +15,9 @@ from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Button, Checkbox, Input, Static
 
+from store import record
 from store.base.errors import BookError
 from store.base.timeutil import local_text, parse_typed_time
-from store.ledger import journal
 from store.ledger.entries import Entry
 from store.ledger.register import Technician, list_all
 
@@ -278,7 +278,7 @@ class EntryForm(ModalScreen[Saved | None]):
 
     def write(self, entry: Entry) -> None:
         try:
-            saved = journal.log(self.sb.book, entry)
+            saved = record.log(self.sb.book, entry)
         except (BookError, sqlite3.Error, OSError) as exc:
             self.refused(exc)
             return
