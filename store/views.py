@@ -16,14 +16,45 @@ from datetime import datetime, timedelta
 
 from store.base.timeutil import ShiftSpan, next_shift
 from store.db.book import Book
+from store.derived.statuscache import cached_filters, cached_units, filter_view, live_status
 from store.health import status
-from store.health.conditions import contexts
+from store.health.conditions import FilterContext, contexts
 from store.health.elements import Element, ElementSummary, meter_at, split_elements
 from store.health.fluidcare import Consumption, sample_verdict
 from store.health.status import URGENT_FLAGS, BreatherStatus, Due, FilterStatus, UnitStatus, Watch
 from store.ledger.entries import Entry, Reading, Sample, TopUp
 from store.ledger.journal import read
 from store.ledger.register import Breather, FilterPosition, Fluid, Unit, find, get, list_all
+
+
+def watch(
+    book: Book,
+    as_of: datetime | None = None,
+    unit: str | None = None,
+    stale_ok: bool = False,
+) -> Watch:
+    """The watch list. Now: from the status caches (kept on every save; what moves with the
+    clock is worked out at read time). Rows marked stale (a like position's lives changed)
+    are recomputed in memory first, unless `stale_ok`: a screen that shows the list at once
+    and has `statuscache.refresh_stale` catch up behind it. As of a past time: computed from
+    the entries as they stood then (`status.watch_as_of`). Never writes."""
+    if as_of is not None:
+        return status.watch_as_of(book, as_of, unit)
+    now = book.now()
+    p = status.plant(book, unit)
+    filters = cached_filters(book, list(p.contexts), now, stale_ok)
+    units = cached_units(book, list(p.units), p.positions_by_unit, now)
+    return status.watch_list(now, filters, status.breathers_at(book, now, unit), units)
+
+
+def status_of(book: Book, ctx: FilterContext, as_of: datetime | None = None) -> FilterStatus:
+    """One filter's status. Now: from the element cache and the entries since the last
+    element change (the same result, see store.derived.statuscache); as of a past time: from
+    every entry as it stood then."""
+    if as_of is None:
+        return live_status(book, ctx)[0]
+    return status.status_as_of(book, ctx, as_of)
+
 
 WEEK = timedelta(days=7)
 TREND_POINTS = 16  # readings kept for a one-line trend
@@ -320,7 +351,7 @@ def weekly_totals_l(
 
 def unit_sheet(book: Book, tag: str, as_of: datetime | None = None) -> UnitSheet:
     unit = get(book, Unit, tag)
-    w = status.watch(book, as_of=as_of, unit=unit.tag)
+    w = watch(book, as_of=as_of, unit=unit.tag)
     entries = read(book, unit=unit.tag, until=w.as_of + timedelta(seconds=1))
     live = [e for e in entries if not e.voided]
     topups = [e for e in live if isinstance(e, TopUp)]
@@ -435,8 +466,6 @@ def filter_sheet(book: Book, tag: str, as_of: datetime | None = None) -> FilterS
     as of a past time: from the entries as they stood then."""
     position = get(book, FilterPosition, tag)
     if as_of is None:
-        from store.derived.statuscache import filter_view
-
         full, els = filter_view(book, position.tag)
         ctx_unit = get(book, Unit, position.unit)
         return FilterSheet(
@@ -450,7 +479,7 @@ def filter_sheet(book: Book, tag: str, as_of: datetime | None = None) -> FilterS
         )
     ctx = contexts(book)[position.tag]
     now = as_of or book.now()
-    full = status.status_of(book, ctx, as_of)
+    full = status_of(book, ctx, as_of)
     until = now + timedelta(seconds=1) if as_of else None
     entries = [e for e in read(book, filter=position.tag, until=until) if not e.voided]
     elements = split_elements(ctx, entries)
@@ -469,14 +498,14 @@ def filter_status_of(book: Book, tag: str) -> FilterStatus | None:
     position = find(book, FilterPosition, tag)
     if position is None:
         return None
-    return status.status_of(book, contexts(book)[position.tag])
+    return status_of(book, contexts(book)[position.tag])
 
 
 def breather_status_of(book: Book, tag: str) -> BreatherStatus | None:
     breather = find(book, Breather, tag)
     if breather is None:
         return None
-    for b in status.watch(book, unit=breather.unit).breathers:
+    for b in watch(book, unit=breather.unit).breathers:
         if b.breather == breather.tag:
             return b
     return None
@@ -503,7 +532,7 @@ def shift_log(book: Book, span: ShiftSpan) -> ShiftLog:
     entries = read(book, since=span.start, until=span.end)
     done = [e for e in entries if not e.voided and e.kind != "void"]
     following = next_shift(span, pattern, local)
-    rows = watch_rows(status.watch(book, as_of=as_of)) if as_of >= span.start else []
+    rows = watch_rows(watch(book, as_of=as_of)) if as_of >= span.start else []
     due_next = [r for r in rows if r.due is not None and r.due.likely < following.end]
     flagged = [r for r in rows if r.flags]
     return ShiftLog(

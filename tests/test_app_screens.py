@@ -7,9 +7,9 @@ import json
 import pytest
 from textual.widgets import DataTable, Input, Sparkline, Static
 
+from store import views
 from store.db.book import open_book
 from store.exchange.demo import discard, is_throwaway
-from store.health import status
 from store.ledger import register
 from store.ledger.register import FilterPosition, Technician
 from tests import test_app_plant as kit
@@ -245,7 +245,7 @@ async def test_preferences_change_units_and_theme(plant, tmp_path):
         await settle(pilot, WatchScreen)
         table = app.screen.query_one(DataTable)
         with open_book(plant, create=False) as book:
-            p2 = next(f for f in status.watch(book).filters if f.filter == "P2-RF")
+            p2 = next(f for f in views.watch(book).filters if f.filter == "P2-RF")
         # NIST SP 811 App. B.8: 1 psi = 6894.757293168361 Pa exactly
         assert (
             str(table.get_cell("P2-RF", "dp")) == f"{p2.dp_ref_bar * 1e5 / 6894.757293168361:.1f}"

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from textual.widgets import DataTable, Input
 
-from store import record
+from store import record, views
 from store.db.book import open_book
 from store.health import status
 from store.views import watch_rows
@@ -42,7 +42,7 @@ async def test_opens_on_the_watch_list_most_urgent_first(plant):
         assert "AT BYPASS" in cell("flags") and cell("due").startswith("OVERDUE")
         # the cells show the store's numbers: reference ΔP in bar and its share of the limit
         with open_book(plant, create=False) as book:
-            p2 = next(f for f in status.watch(book).filters if f.filter == "P2-RF")
+            p2 = next(f for f in views.watch(book).filters if f.filter == "P2-RF")
         assert cell("limit").endswith(f"{100 * p2.dp_ref_bar / 2.5:3.0f}%")  # limit 2.5 bar
         assert cell("dp") == f"{p2.dp_ref_bar:.2f}"  # the unit is in the header
         assert str(table.columns["dp"].label) == "ΔP ref bar"
@@ -59,7 +59,7 @@ async def test_summary_line_counts_what_the_rows_say(plant):
         assert f"{overdue} overdue" in summary
         with open_book(plant, create=False) as book:
             urgent = sum(
-                any(f in status.URGENT_FLAGS for f in x.flags) for x in status.watch(book).filters
+                any(f in status.URGENT_FLAGS for f in x.flags) for x in views.watch(book).filters
             )
         assert f"{urgent} urgent" in summary
 
@@ -199,7 +199,6 @@ async def test_the_list_is_read_again_only_when_the_book_may_show_something_else
 
 
 async def test_a_sheet_opened_again_shows_only_the_new_filter(plant):
-    from store import views
 
     app = make_app(plant)
     async with app.run_test(size=(80, 24)) as pilot:
@@ -256,7 +255,7 @@ async def test_after_a_weekend_the_kept_rows_show_as_they_are_now(plant, monkeyp
     with open_book(plant, create=False) as book:
         assert statuscache.stale_filters(book) == []
         assert book.conn.execute("SELECT * FROM status_cache ORDER BY filter").fetchall() == kept
-        audit = watch_rows(status.watch(book, as_of=book.now()))
+        audit = watch_rows(views.watch(book, as_of=book.now()))
     assert len(shown) == 1 and shown[0].stale == 0 and shown[0].rows == audit
 
 

@@ -12,6 +12,7 @@ from datetime import timedelta
 import pytest
 from scipy.stats import spearmanr
 
+from store import views
 from store.base.timeutil import parse_utc
 from store.db.book import Book
 from store.db.schema import FILTER_KINDS, SCHEMA_VERSION
@@ -45,7 +46,7 @@ def book(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Book]:
 
 @pytest.fixture(scope="module")
 def watch(book: Book) -> status.Watch:
-    return status.watch(book)
+    return views.watch(book)
 
 
 def _filter(watch: status.Watch, tag: str) -> status.FilterStatus:

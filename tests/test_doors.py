@@ -13,7 +13,7 @@ from pathlib import Path
 
 import pytest
 
-from store import record
+from store import record, views
 from store.base import validate
 from store.base.errors import BookError
 from store.base.timeutil import parse_time, zone
@@ -405,7 +405,7 @@ def test_merge_holds_back_and_lists_every_row_no_one_could_type(demo, tmp_path):
 
         assert journal.read(book)
         json.loads(
-            json.dumps(status.to_json(status.watch(book), book.local_zone())),
+            json.dumps(status.to_json(views.watch(book), book.local_zone())),
             parse_constant=lambda c: pytest.fail(f"{c} in status JSON"),
         )
 

@@ -85,7 +85,7 @@ def assert_cache_is_fresh(book: Book) -> None:
         assert live == fresh[tag], tag
         assert live.history == fresh[tag].history
     # The watch list read from the caches is the one computed as of now from the entries.
-    cached, audit = status.watch(book), status.watch(book, as_of=now)
+    cached, audit = views.watch(book), views.watch(book, as_of=now)
     assert [statuscache._encode(f) for f in cached.filters] == [
         statuscache._encode(f) for f in audit.filters
     ]
@@ -310,10 +310,10 @@ def test_kept_rows_hold_later_on_and_reads_write_nothing(tmp_path: Path, later) 
     for _ in range(40):
         writer.step()
     kept = derived_rows(book)
-    before = status.watch(book)
+    before = views.watch(book)
     book.set_setting("clock", format_utc(CLOCK + later))
     assert statuscache.stale_filters(book) == []
-    cached, audit = status.watch(book), status.watch(book, as_of=book.now())
+    cached, audit = views.watch(book), views.watch(book, as_of=book.now())
     assert [statuscache._encode(f) for f in cached.filters] == [
         statuscache._encode(f) for f in audit.filters
     ]
@@ -338,7 +338,7 @@ def test_rows_marked_stale_are_shown_at_once_and_caught_up_behind(tmp_path: Path
     stale = statuscache.stale_filters(book)
     assert sorted(stale) == sorted(c.position.tag for c in ctxs)
     kept = derived_rows(book)
-    shown = status.watch(book, stale_ok=True)  # the rows as kept, no recomputation
+    shown = views.watch(book, stale_ok=True)  # the rows as kept, no recomputation
     assert {f.filter for f in shown.filters} == {c.position.tag for c in ctxs}
     assert_cache_is_fresh(book)  # recomputed in memory where marked stale
     assert derived_rows(book) == kept
@@ -357,10 +357,10 @@ def test_unit_rows_follow_top_ups_hot_readings_and_the_register(tmp_path: Path) 
     record.log(book, Reading(filter="U1-RF", dp_bar=1.0, temp_c=66.0, by="AB",
                               at=CLOCK - timedelta(days=1)))  # fmt: skip
     record.log(book, TopUp(unit="U1", volume_l=20, by="AB", at=CLOCK - timedelta(hours=5)))
-    unit = next(u for u in status.watch(book).units if u.unit == "U1")
+    unit = next(u for u in views.watch(book).units if u.unit == "U1")
     assert {"hot", "unfiltered-topup"} <= set(unit.flags)
     assert_cache_is_fresh(book)
     register.update(book, Unit, "U1", {"max_temp_c": 70.0})  # now the reading is not hot
-    unit = next(u for u in status.watch(book).units if u.unit == "U1")
+    unit = next(u for u in views.watch(book).units if u.unit == "U1")
     assert "hot" not in unit.flags
     assert_cache_is_fresh(book)

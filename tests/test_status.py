@@ -5,7 +5,7 @@ from datetime import UTC, datetime, timedelta
 
 import pytest
 
-from store import record
+from store import record, views
 from store.base.units import to_bar
 from store.db.book import open_book
 from store.derived.statuscache import rebuild
@@ -47,7 +47,7 @@ def test_normalised_dp_uses_the_d341_viscosity_ratio(d341_book):
     record.log(
         book, Reading(filter="U1-RF", dp_bar=1.0, temp_c=60, by="AB", at=T0 + timedelta(days=1))
     )
-    f = one(status.watch(book), "U1-RF")
+    f = one(views.watch(book), "U1-RF")
     # ASTM D341 worked example (REFERENCES.md §2, T = t + 273.15): ν(80 °C) = 8.5332,
     # ν(60 °C) = 15.186 mm²/s; the element ΔP scales with viscosity (REFERENCES.md §7b)
     assert f.dp_ref_bar == pytest.approx(1.0 * 8.5332 / 15.186, rel=1e-3)
@@ -61,7 +61,7 @@ def test_cold_start_bypass_is_flagged_with_its_temperature(d341_book):
     record.log(
         book, Reading(filter="U1-RF", dp_bar=0.8, temp_c=80, by="AB", at=T0 + timedelta(days=1))
     )
-    f = one(status.watch(book), "U1-RF")
+    f = one(views.watch(book), "U1-RF")
     # 0.8 bar at 8.53 cSt reaches the 3.5 bar bypass where ν = 8.5332 × 3.5 / 0.8 = 37.3 cSt,
     # which the D341 line of this oil puts near 37 °C; a 0 °C start is far colder
     assert "cold-start-bypass" in f.flags
@@ -82,7 +82,7 @@ def test_drop_without_change_is_urgent(book):
                 filter="P1-RF", dp_bar=dp, temp_c=50, by="AB", at=t + timedelta(days=1 + 2 * i)
             ),
         )
-    w = status.watch(book)
+    w = views.watch(book)
     f = one(w, "P1-RF")
     assert "dp-drop" in f.flags
     assert w.filters[0].filter == "P1-RF"  # urgent first
@@ -108,7 +108,7 @@ def test_voided_reading_is_ignored_and_as_of_sees_the_past(book):
         book, Reading(filter="P1-RF", dp_bar=3.4, temp_c=50, by="AB", at=t + timedelta(days=6))
     )
     before_void = book.now()
-    assert one(status.watch(book), "P1-RF").dp_ref_bar == pytest.approx(3.4)
+    assert one(views.watch(book), "P1-RF").dp_ref_bar == pytest.approx(3.4)
     record.log(
         book,
         Void(
@@ -119,15 +119,15 @@ def test_voided_reading_is_ignored_and_as_of_sees_the_past(book):
         ),
     )
     book.set_setting("clock", (before_void + timedelta(hours=1)).strftime("%Y-%m-%dT%H:%M:%SZ"))
-    now = one(status.watch(book), "P1-RF")
+    now = one(views.watch(book), "P1-RF")
     assert now.dp_ref_bar == pytest.approx(good[-1].dp_bar)
     assert now.readings_since_change == 4
     # audit: as the book stood before the void, the wrong reading still counted
-    then = one(status.watch(book, as_of=before_void), "P1-RF")
+    then = one(views.watch(book, as_of=before_void), "P1-RF")
     assert then.dp_ref_bar == pytest.approx(3.4)
     assert then.readings_since_change == 5
     # and before the third reading, only two readings existed
-    early = one(status.watch(book, as_of=good[1].at), "P1-RF")
+    early = one(views.watch(book, as_of=good[1].at), "P1-RF")
     assert early.readings_since_change == 2
 
 
@@ -146,8 +146,8 @@ def test_cache_agrees_with_a_fresh_computation(book):
                 at=t + timedelta(days=2 * i + 1),
             ),
         )
-    cached = one(status.watch(book), "P1-RF")
-    fresh = one(status.watch(book, as_of=book.now()), "P1-RF")
+    cached = one(views.watch(book), "P1-RF")
+    fresh = one(views.watch(book, as_of=book.now()), "P1-RF")
     for name in (
         "dp_ref_bar",
         "percent_of_limit",
@@ -181,7 +181,7 @@ def test_fluid_care_flags(book):
         book,
         BreatherSwap(breather="P1-BR", condition="spent", by="AB", at=now - timedelta(days=200)),
     )
-    w = status.watch(book)
+    w = views.watch(book)
     unit = w.units[0]
     assert "unfiltered-topup" in unit.flags
     assert unit.latest_code == "22/19/13" and "over-target" in unit.flags
@@ -202,7 +202,7 @@ def test_rising_top_ups_point_to_a_leak(book):
             book,
             TopUp(unit="P1", volume_l=12, filtered_um=3, by="AB", at=now - timedelta(days=day)),
         )
-    unit = status.watch(book).units[0]
+    unit = views.watch(book).units[0]
     assert "leak-suspect" in unit.flags
     assert unit.consumption.recent_l_per_week == pytest.approx(12.0)
 
@@ -210,7 +210,7 @@ def test_rising_top_ups_point_to_a_leak(book):
 def test_a_filter_without_limits_says_so(book):
     register.add(book, FilterPosition(tag="P1-SS", unit="P1", kind="suction-strainer"))
     record.log(book, Reading(filter="P1-SS", dp_bar=0.05, by="AB"))
-    f = one(status.watch(book), "P1-SS")
+    f = one(views.watch(book), "P1-SS")
     assert f.state == "no-limits" and f.due is None and "no-limits" in f.flags
 
 
@@ -224,7 +224,7 @@ def test_indicator_only_filter_plans_from_earlier_lives(book):
             book, Reading(filter="P1-PF", indicator="dirty", by="AB", at=t - timedelta(hours=2))
         )
         record.log(book, ElementChange(filter="P1-PF", reason="indicator", by="AB", at=t))
-    f = one(status.watch(book), "P1-PF")
+    f = one(views.watch(book), "P1-PF")
     assert f.basis == "service-life"
     assert f.life is not None and f.life.n_failed == 4
     assert f.due is not None and f.due.earliest <= f.due.likely
@@ -282,7 +282,7 @@ def test_due_interval_holds_the_true_crossing_of_a_real_run(tmp_path, current):
             ],
         )
         as_of = t + timedelta(hours=now_h)
-        f = one(status.watch(book, as_of=as_of), "RIG-F")
+        f = one(views.watch(book, as_of=as_of), "RIG-F")
         true_crossing = t + timedelta(hours=run.life_h)
         assert f.due is not None, f.notes
         assert f.due.earliest <= true_crossing, "the earliest date came after the crossing"
@@ -327,7 +327,7 @@ def test_an_hour_meter_read_out_of_turn_does_not_stop_a_save(tmp_path):
                 at=T0 + timedelta(days=6),
             ),
         )
-        f = one(status.watch(book), "M1-R")
+        f = one(views.watch(book), "M1-R")
         assert f.readings_since_change == 5 and late.id
 
 
@@ -338,13 +338,13 @@ def test_a_register_change_reaches_the_cached_watch_list(book):
         book, Reading(filter="P1-RF", dp_bar=2.0, temp_c=50, by="AB", at=t + timedelta(days=1))
     )
     # 2.0 bar against the 2.5 bar limit; the unit's fluid at its normal temperature
-    assert one(status.watch(book), "P1-RF").percent_of_limit == pytest.approx(80.0)
+    assert one(views.watch(book), "P1-RF").percent_of_limit == pytest.approx(80.0)
     register.update(book, FilterPosition, "P1-RF", {"limit_bar": 2.0}, by="AB")
-    assert "over-limit" in one(status.watch(book), "P1-RF").flags
+    assert "over-limit" in one(views.watch(book), "P1-RF").flags
     # a colder normal temperature (thicker reference oil) makes the reading larger at reference
-    before = one(status.watch(book), "P1-RF").dp_ref_bar
+    before = one(views.watch(book), "P1-RF").dp_ref_bar
     register.update(book, Unit, "P1", {"normal_temp_c": 40.0}, by="AB")
-    assert one(status.watch(book), "P1-RF").dp_ref_bar > before
+    assert one(views.watch(book), "P1-RF").dp_ref_bar > before
 
 
 # ---- an element loading faster than the earlier ones (fast-loading) -----------------------------
@@ -401,20 +401,20 @@ def test_an_element_loading_much_faster_than_the_last_six_is_flagged(tmp_path):
     # 650 h against earlier lives of 950-1050 h: about 1.5x their pace, far beyond their spread
     # (standard deviation of log lives 0.035: the threshold is the 1.2 floor, common practice)
     with _pace_book(tmp_path, 650.0) as book:
-        f = one(status.watch(book), "M2-RF")
+        f = one(views.watch(book), "M2-RF")
         assert "fast-loading" in f.flags, f.notes
         note = next(n for n in f.notes if "pace" in n)
         assert "the pace of the last 6 elements" in note
         assert "fluid sample" in note and "breather" in note and "top-ups" in note
         assert 1.3 <= f.pace <= 1.7  # 1000 / 650 = 1.54
-        data = status.to_json(status.watch(book))["filters"][0]
+        data = status.to_json(views.watch(book))["filters"][0]
         assert "fast-loading" in data["flags"] and data["pace_vs_earlier"] == round(f.pace, 2)
         assert f"about {f.pace:.1f}×" in note
 
 
 def test_an_element_at_the_usual_pace_is_not_flagged(tmp_path):
     with _pace_book(tmp_path, 1000.0) as book:
-        f = one(status.watch(book), "M2-RF")
+        f = one(views.watch(book), "M2-RF")
         assert "fast-loading" not in f.flags
         assert f.pace is not None and 0.85 <= f.pace <= 1.15
 
@@ -460,21 +460,21 @@ def test_the_meter_is_estimated_between_and_after_logged_values(tmp_path):
     with _meter_book(tmp_path) as book:
         # last value 1480 h on day 40; a day later at 12 h a day
         assert meter_estimate_h(book, "M1", book.now()) == pytest.approx(1492.0)
-        f = one(status.watch(book), "M1-R")
+        f = one(views.watch(book), "M1-R")
         assert f.element_age_h == pytest.approx(492.0)
 
 
 def test_a_reading_without_the_meter_does_not_move_the_due_date(tmp_path):
     with _meter_book(tmp_path) as book:
         at = T0 + timedelta(days=41)
-        before = one(status.watch(book), "M1-R")
+        before = one(views.watch(book), "M1-R")
         record.log(book, Reading(filter="M1-R", dp_bar=0.3 + 0.002 * 492, temp_c=50, by="AB",
                                   at=at))  # fmt: skip
-        without = one(status.watch(book), "M1-R")
+        without = one(views.watch(book), "M1-R")
     with _meter_book(tmp_path / "b" if (tmp_path / "b").mkdir() is None else tmp_path) as book:
         record.log(book, Reading(filter="M1-R", dp_bar=0.3 + 0.002 * 492, temp_c=50, by="AB",
                                   at=at, hours=1492))  # fmt: skip
-        with_meter = one(status.watch(book), "M1-R")
+        with_meter = one(views.watch(book), "M1-R")
     # the same reading, on the line of the others: with the meter or with its estimate, the
     # same due date (to the minute); read in calendar hours it would come about twice as late
     assert abs(without.due.likely - with_meter.due.likely) < timedelta(minutes=1)
@@ -520,9 +520,9 @@ def test_basis_names_what_the_note_says(tmp_path):
         f, _ = filter_view(book, "M2-RF")
         assert f.basis == f.forecast.basis
         assert NOTE_OF_BASIS[f.basis] in " ".join(f.notes)
-        data = status.to_json(status.watch(book))["filters"][0]
+        data = status.to_json(views.watch(book))["filters"][0]
         assert data["basis"] == f.basis
         # a new element without readings: planned from the earlier lives
         record.log(book, ElementChange(filter="M2-RF", by="AB", at=book.now()))
-        g = one(status.watch(book), "M2-RF")
+        g = one(views.watch(book), "M2-RF")
         assert g.basis == "service-life" and NOTE_OF_BASIS["service-life"] in " ".join(g.notes)

@@ -17,6 +17,7 @@ from pathlib import Path
 
 import pytest
 
+from store import views
 from store.base.timeutil import format_utc, parse_utc
 from store.db.book import open_book
 from store.derived import statuscache
@@ -58,7 +59,7 @@ def test_kept_rows_give_the_full_computation_later_on(kept: Path, tmp_path: Path
     with open_book(path, create=False) as book:
         assert statuscache.stale_filters(book) == []  # no row is too old to use
         now = book.now()
-        cached, audit = status.watch(book), status.watch(book, as_of=now)
+        cached, audit = views.watch(book), views.watch(book, as_of=now)
     assert [f.filter for f in cached.filters] == [f.filter for f in audit.filters]
     for quick, full in zip(cached.filters, audit.filters, strict=True):
         assert quick.flags == full.flags, quick.filter
@@ -76,9 +77,9 @@ def test_the_clock_parts_do_move_on_the_demo(kept: Path, tmp_path: Path) -> None
     # The comparison above is worth something only if the clock's parts change between the
     # end of the story and a week later: overdue readings, check-now, element ages, hot.
     with open_book(kept, create=False) as book:
-        then = status.watch(book)
+        then = views.watch(book)
     with open_book(moved(kept, tmp_path, timedelta(weeks=1)), create=False) as book:
-        week = status.watch(book)
+        week = views.watch(book)
     flags = {f.filter: f.flags for f in then.filters}
     assert any(f.flags != flags[f.filter] for f in week.filters)
     assert sum("reading-overdue" in f.flags for f in week.filters) > sum(
@@ -101,15 +102,15 @@ def test_a_write_protected_book_reads_a_week_later_and_stays_byte_identical(
                     book.conn.execute(f"DELETE FROM {table}")
             book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
     with open_book(path, create=False) as book:
-        expected = status.to_json(status.watch(book, as_of=book.now()))
+        expected = status.to_json(views.watch(book, as_of=book.now()))
         book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
     before = digest(path)
     os.chmod(path, stat.S_IRUSR | stat.S_IRGRP | stat.S_IROTH)  # 0444
     try:
         with open_book(path, create=False) as book:  # (root may write it all the same)
-            assert status.to_json(status.watch(book)) == expected
+            assert status.to_json(views.watch(book)) == expected
         with open_book(path, create=False, readonly=True) as book:
-            assert status.to_json(status.watch(book, stale_ok=True)) == expected
+            assert status.to_json(views.watch(book, stale_ok=True)) == expected
             assert statuscache.refresh_stale(book) == []  # nothing to keep it in
     finally:
         os.chmod(path, stat.S_IRUSR | stat.S_IWUSR)
@@ -119,14 +120,13 @@ def test_a_write_protected_book_reads_a_week_later_and_stays_byte_identical(
 def test_reads_on_a_writable_book_write_nothing(kept: Path, tmp_path: Path) -> None:
     # Writable, caches missing: the watch list and a filter sheet are computed in memory and
     # the derived tables stay empty until a write or an explicit refresh keeps them.
-    from store import views
 
     path = moved(kept, tmp_path, timedelta(weeks=1))
     with open_book(path, create=False) as book:
         with book.atomic():
             for table in ("status_cache", "unit_cache", "element_cache", "element_state"):
                 book.conn.execute(f"DELETE FROM {table}")
-        status.watch(book)
+        views.watch(book)
         tag = book.conn.execute("SELECT tag FROM filters ORDER BY tag LIMIT 1").fetchone()[0]
         views.filter_sheet(book, tag)
         counts = [

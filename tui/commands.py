@@ -10,7 +10,7 @@ import sys
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from store import record
+from store import record, views
 from store.base import prefs as laptop
 from store.base.errors import BookError
 from store.base.text import inert, json_inert
@@ -397,7 +397,7 @@ def cmd_status(args: argparse.Namespace) -> int:
     with _book(args) as book:
         as_of = _time(book, args.as_of) if args.as_of else None
         unit = register.get(book, Unit, args.unit).tag if args.unit else None
-        watch = status.watch(book, as_of=as_of, unit=unit)
+        watch = views.watch(book, as_of=as_of, unit=unit)
         if args.json:
             # One line, no indent: json's C encoder does it (an indent means the pure-Python
             # one, ten times slower on a big plant); pipe it to a pretty-printer to read it.

@@ -32,8 +32,6 @@ def latest_backup(book_path: Path) -> Path | None:
 
 def backup_hint(path: Path) -> str:
     """Where the newest automatic backup of `path` is, as advice to restore it."""
-    from store.db.backup import latest_backup
-
     latest = latest_backup(path)
     if latest is None:
         return f"no automatic backup was found beside it (in {path.parent})"

@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 from store.base.errors import BookError
 from store.db.book import Book
 from store.ledger.entries import Reading
-from store.ledger.register import FilterPosition, Fluid, Unit, find, list_all
+from store.ledger.register import FilterPosition, Fluid, Unit, find, get, list_all
 from store.physics.fluid import FluidSpec, ViscosityCurve, resolve_curve
 from store.physics.normalise import ReferenceCondition, normalise_dp_bar, reference_for
 
@@ -102,8 +102,6 @@ def contexts_from(
 def context(book: Book, filter_tag: str) -> FilterContext:
     position = find(book, FilterPosition, filter_tag)
     if position is None:
-        from store.ledger.register import get
-
         get(book, FilterPosition, filter_tag)  # raises with a suggestion
     unit = find(book, Unit, position.unit)  # type: ignore[union-attr]
     fluid = find(book, Fluid, unit.fluid) if unit and unit.fluid else None  # type: ignore[union-attr]

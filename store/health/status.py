@@ -315,7 +315,7 @@ def _life(
     ctx: FilterContext, past: Sequence[ElementSummary], like: Sequence[tuple[float, bool]]
 ) -> WeibullFit | None:
     """Weibull of this position's element lives; pooled with like positions if it has few."""
-    from store.forecast.life import fit_weibull
+    from store.forecast.life import fit_weibull  # deferred: numpy/scipy load on first fit
 
     failed, censored = [], []
     for el in past:
@@ -344,7 +344,7 @@ def own_failures(ctx: FilterContext, past: Sequence[ElementSummary]) -> int:
 
 
 def _past(ctx: FilterContext, past: Sequence[ElementSummary]) -> list[trend.PastElement]:
-    from store.forecast import trend
+    from store.forecast import trend  # deferred: numpy/scipy load on first fit
 
     out = []
     for el in past:
@@ -366,7 +366,7 @@ def _pace(
 ) -> trend.Pace | None:
     """This element's pace against the earlier elements on the position that ran to the limit,
     from a forecast fitted to its own readings (not from lives alone)."""
-    from store.forecast import trend
+    from store.forecast import trend  # deferred: numpy/scipy load on first fit
 
     if (
         forecast is None
@@ -406,7 +406,7 @@ def status_from(
 ) -> FilterStatus:
     """Status from the summaries of the removed elements and the element in service (the
     derived element cache keeps the former, so a new reading costs only the latter)."""
-    from store.forecast import anomaly, trend
+    from store.forecast import anomaly, trend  # deferred: numpy/scipy load on first fit
 
     pos, unit = ctx.position, ctx.unit
     rate = hours_per_day([*past[-2:], current], now) if unit.hour_meter else None
@@ -613,15 +613,9 @@ def status_from(
     return at_time(status, clock, now)
 
 
-def status_of(book: Book, ctx: FilterContext, as_of: datetime | None = None) -> FilterStatus:
-    """One filter's status from its own entries (and like positions' lives).
-
-    Now: from the element cache and the entries since the last element change (the same
-    result, see statuscache); as of a past time: from every entry as it stood then."""
-    if as_of is None:
-        from store.derived.statuscache import live_status
-
-        return live_status(book, ctx)[0]
+def status_as_of(book: Book, ctx: FilterContext, as_of: datetime) -> FilterStatus:
+    """One filter's status as of a time, from every entry as it stood then (and like
+    positions' lives). The status now, from the caches, is store.views.status_of."""
     now = as_of
     # An audit takes only what existed at that time, voided only by voids dated before it.
     until = now + timedelta(seconds=1)
@@ -634,37 +628,32 @@ def status_of(book: Book, ctx: FilterContext, as_of: datetime | None = None) -> 
 # ---- the whole book ------------------------------------------------------------------------------
 
 
-def watch(
-    book: Book,
-    as_of: datetime | None = None,
-    unit: str | None = None,
-    stale_ok: bool = False,
-) -> Watch:
-    """The watch list. Now: from the status caches (kept on every write; what moves with
-    the clock is worked out at read time). Rows marked stale (a like position's lives
-    changed) are recomputed in memory first, unless `stale_ok`: a screen that shows the list
-    at once and has `statuscache.refresh_stale` catch up behind it. As of a past time:
-    computed from the entries as they stood then. Never writes."""
-    now = as_of or book.now()
+@dataclass(frozen=True)
+class Plant:
+    """What a watch list covers: the filters (with their operating conditions), the units and
+    each unit's filter positions, all of the plant or of one unit."""
+
+    contexts: tuple[FilterContext, ...]
+    units: tuple[Unit, ...]
+    positions_by_unit: dict[str, list[FilterPosition]]
+
+
+def plant(book: Book, unit: str | None = None) -> Plant:
     all_units, positions = list_all(book, Unit), list_all(book, FilterPosition)
     ctxs = [
         c
         for c in contexts_from(all_units, list_all(book, Fluid), positions).values()
         if unit is None or c.position.unit == unit
     ]
-    unit_records = [u for u in all_units if unit is None or u.tag == unit]
     by_unit: dict[str, list[FilterPosition]] = {}
     for position in positions:
         by_unit.setdefault(position.unit.upper(), []).append(position)
-    if as_of is None:
-        from store.derived.statuscache import cached_filters, cached_units
+    units = tuple(u for u in all_units if unit is None or u.tag == unit)
+    return Plant(tuple(ctxs), units, by_unit)
 
-        filters = cached_filters(book, ctxs, now, stale_ok)
-        units = cached_units(book, unit_records, by_unit, now)
-    else:
-        filters = [status_of(book, c, now) for c in ctxs]
-        units = [unit_status(book, u, by_unit.get(u.tag.upper(), []), now) for u in unit_records]
-    filters.sort(key=lambda s: s.urgency)
+
+def breathers_at(book: Book, now: datetime, unit: str | None = None) -> list[BreatherStatus]:
+    """Every breather's status at `now` (of one unit), most urgent first."""
     until = now + timedelta(seconds=1)
     breathers = []
     all_swaps = breather_swaps(book, until)
@@ -672,7 +661,28 @@ def watch(
         swaps = [e for e in all_swaps.get(b.tag.upper(), []) if not e.voided]
         breathers.append(_breather_status(b, swaps, now))
     breathers.sort(key=lambda s: s.urgency)
+    return breathers
+
+
+def watch_list(
+    now: datetime,
+    filters: list[FilterStatus],
+    breathers: list[BreatherStatus],
+    units: list[UnitStatus],
+) -> Watch:
+    filters.sort(key=lambda s: s.urgency)
     return Watch(now, tuple(filters), tuple(breathers), tuple(units))
+
+
+def watch_as_of(book: Book, as_of: datetime, unit: str | None = None) -> Watch:
+    """The watch list as of a past time, computed from the entries as they stood then (an
+    audit: no cache is read). The list now is store.views.watch."""
+    p = plant(book, unit)
+    filters = [status_as_of(book, c, as_of) for c in p.contexts]
+    units = [
+        unit_status(book, u, p.positions_by_unit.get(u.tag.upper(), []), as_of) for u in p.units
+    ]
+    return watch_list(as_of, filters, breathers_at(book, as_of, unit), units)
 
 
 def _breather_status(breather: Breather, swaps: Sequence[Entry], now: datetime) -> BreatherStatus:

@@ -10,6 +10,8 @@ from dataclasses import dataclass, field, fields
 from datetime import datetime
 from typing import Any, ClassVar
 
+from store.base.timeutil import parse_utc
+
 
 @dataclass(frozen=True, kw_only=True)
 class Entry:
@@ -134,8 +136,6 @@ def entry_columns(cls: type[Entry]) -> list[str]:
 
 
 def from_row(row: dict[str, Any], voided_by: str | None = None) -> Entry:
-    from store.base.timeutil import parse_utc
-
     cls = KINDS[row["kind"]]
     values = {name: row.get(name) for name in entry_columns(cls)}
     values["note"] = values.get("note") or ""

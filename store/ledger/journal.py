@@ -35,6 +35,7 @@ from store.ledger.register import (
     Unit,
     get,
 )
+from store.physics.cleanliness import code_from_counts, parse_code
 
 MAX_DP_BAR = validate_value.RANGES["dp_bar"].high  # a filter ΔP above this is a typo
 TEMP_RANGE_C = (validate_value.RANGES["temp_c"].low, validate_value.RANGES["temp_c"].high)
@@ -181,8 +182,6 @@ def reading_over_bypass(
 
 
 def _sample_fields(entry: Sample) -> dict[str, Any]:
-    from store.physics.cleanliness import code_from_counts, parse_code
-
     for name in ("c4_per_ml", "c6_per_ml", "c14_per_ml", "water_ppm"):
         _finite(name, getattr(entry, name))
     if entry.code is not None:

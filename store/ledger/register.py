@@ -18,6 +18,8 @@ from store.base.errors import BookError
 from store.base.timeutil import format_utc, parse_utc, utc_now
 from store.base.validate import FILTER_KINDS
 from store.db.book import Book
+from store.physics.cleanliness import parse_code
+from store.physics.fluid import iso_vg_limits
 
 TAG_RE = validate.TAG_RE
 
@@ -247,8 +249,6 @@ def _check(book: Book, record: Any) -> Any:
         raise BookError("a breather is desiccant or plain")
     if isinstance(record, Unit):
         if record.target_code:
-            from store.physics.cleanliness import parse_code
-
             validate.text("target code", record.target_code, 20)
             changes["target_code"] = str(parse_code(record.target_code))
         if not -40 <= record.coldest_start_c <= record.normal_temp_c <= record.max_temp_c <= 150:
@@ -257,8 +257,6 @@ def _check(book: Book, record: Any) -> Any:
             )
     if isinstance(record, Fluid):
         if record.iso_vg is not None:
-            from store.physics.fluid import iso_vg_limits
-
             iso_vg_limits(record.iso_vg)
         if record.nu40_cst and record.nu100_cst and record.nu100_cst >= record.nu40_cst:
             raise BookError("ν100 must be below ν40")

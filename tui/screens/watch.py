@@ -9,12 +9,12 @@ from textual.app import ComposeResult
 from textual.containers import Horizontal
 from textual.widgets import DataTable, Header, Input, Select
 
+from store import views
 from store.base.prefs import Prefs
 from store.base.text import inert
 from store.base.timeutil import shift_at
 from store.db.book import Book
 from store.derived import statuscache
-from store.health import status
 from store.ledger.register import Unit, list_all
 from store.views import Summary, WatchRow, row_matches, summarise, watch_rows
 
@@ -43,7 +43,7 @@ def read_watch(book: Book, fresh: bool = False) -> WatchData:
     """The list as kept in the caches (what moves with the clock worked out now), at once:
     rows marked stale are shown as they are and counted, for `catch_up` to recompute behind.
     `fresh`: recompute such rows first (in memory)."""
-    w = status.watch(book) if fresh else status.watch(book, stale_ok=True)
+    w = views.watch(book) if fresh else views.watch(book, stale_ok=True)
     rows = watch_rows(w)
     local = book.local_zone()
     span = shift_at(w.as_of, book.shift_pattern(), local)
