@@ -52,3 +52,15 @@ def log_many(book: Book, entries: Iterable[Entry]) -> list[Entry]:
             done.append(entry)
         after_write(book, done)
     return done
+
+
+def refresh_stale(book: Book, limit: int | None = None) -> list[str]:
+    """The explicit refresh behind a watch list: recompute and keep the derived rows that are
+    missing, of an old format or marked stale (at most `limit` filters). Returns the tags."""
+    return statuscache.refresh_stale(book, limit)
+
+
+def rebuild(book: Book) -> int:
+    """Drop and recompute every derived row from the entries (`sumpbook rebuild`); returns
+    how many filters were done."""
+    return statuscache.rebuild(book)

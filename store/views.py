@@ -16,7 +16,13 @@ from datetime import datetime, timedelta
 
 from store.base.timeutil import ShiftSpan, next_shift
 from store.db.book import Book
-from store.derived.statuscache import cached_filters, cached_units, filter_view, live_status
+from store.derived.statuscache import (
+    cached_filters,
+    cached_units,
+    filter_view,
+    live_status,
+    stale_filters,
+)
 from store.health import status
 from store.health.conditions import FilterContext, contexts
 from store.health.elements import Element, ElementSummary, meter_at, split_elements
@@ -45,6 +51,11 @@ def watch(
     filters = cached_filters(book, list(p.contexts), now, stale_ok)
     units = cached_units(book, list(p.units), p.positions_by_unit, now)
     return status.watch_list(now, filters, status.breathers_at(book, now, unit), units)
+
+
+def stale_count(book: Book) -> int:
+    """How many filters' kept rows a refresh would recompute (missing, old format, stale)."""
+    return len(stale_filters(book))
 
 
 def status_of(book: Book, ctx: FilterContext, as_of: datetime | None = None) -> FilterStatus:

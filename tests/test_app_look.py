@@ -16,7 +16,7 @@ from store.ledger.entries import KINDS, TopUp, Void
 from store.ledger.register import FilterPosition, list_all
 from tests.test_app_plant import settle, write_prefs
 from tui.app import SumpbookApp, saved_text
-from tui.keys import KEYS
+from tui.base.keys import KEYS
 from tui.screens.filter_sheet import FilterSheetScreen
 from tui.screens.help import HelpScreen
 from tui.screens.unit_sheet import UnitSheetScreen

@@ -308,7 +308,7 @@ async def test_quit_makes_a_backup_and_a_failure_only_warns(plant, monkeypatch):
     def broken(*args, **kwargs):
         raise OSError("disk full")
 
-    monkeypatch.setattr("store.db.backup.rolling_backup", broken)
+    monkeypatch.setattr("tui.app.rolling_backup", broken)
     app = make_app(plant)
     async with app.run_test(size=(80, 24)) as pilot:
         await settle(pilot, WatchScreen)

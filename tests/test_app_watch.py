@@ -282,7 +282,7 @@ def test_the_first_list_read_early_is_the_list(plant):
     import pytest
 
     from store.base.errors import BookError
-    from tui.screens import common
+    from tui.base import workers as common
     from tui.screens.watch import read_watch
 
     early = common.read_early(plant, read_watch).result(timeout=60)

@@ -588,7 +588,7 @@ def test_notes_from_every_door_are_checked_the_same(book):
 
 
 def test_status_json_never_prints_nan_or_infinity():
-    from tui.commands import strict_json
+    from tui.cli.commands import strict_json
 
     data = {"a": [1.5, float("inf")], "b": {"c": float("nan")}, "d": "x"}
     assert json.loads(strict_json(data), parse_constant=lambda c: pytest.fail(c)) == {

@@ -20,11 +20,11 @@ from textual.reactive import reactive
 from textual.screen import ModalScreen, Screen
 from textual.theme import Theme
 
+from store import ENV_DB, Book, deep_check, default_path, open_book, record, rolling_backup
 from store.base import prefs as laptop
 from store.base.errors import BookError
 from store.base.text import inert_line
 from store.base.timeutil import utc_now
-from store.db.book import ENV_DB, Book, deep_check, default_path, open_book
 from store.exchange.demo import discard, is_throwaway, throwaway_demo, throwaway_empty
 from store.ledger import register
 from store.ledger.entries import BreatherSwap, ElementChange, Reading
@@ -39,19 +39,19 @@ from store.views import (
     filter_status_of,
     tag_index,
 )
-
-from .keys import bind
-from .screens.common import guarded, long_name, read_early
-from .screens.first_run import FirstRunScreen
-from .screens.help import HelpScreen
-from .screens.sign_in import SignInScreen
-from .screens.watch import WatchData, WatchScreen, read_watch
-from .widgets import fmt
-from .widgets.inert import INERT_LINES
-from .widgets.palette import BookCommands
+from tui.base.keys import bind
+from tui.base.workers import guarded, read_early
+from tui.screens.common import long_name
+from tui.screens.first_run import FirstRunScreen
+from tui.screens.help import HelpScreen
+from tui.screens.sign_in import SignInScreen
+from tui.screens.watch import WatchData, WatchScreen, read_watch
+from tui.widgets import fmt
+from tui.widgets.inert import INERT_LINES
+from tui.widgets.palette import BookCommands
 
 if TYPE_CHECKING:
-    from .forms.base import Saved
+    from tui.forms.base import Saved
 
 # Screens and forms beyond the watch list are imported when first opened: the app's start
 # (to a painted watch list) loads only what that list needs.
@@ -483,9 +483,7 @@ class SumpbookApp(App[None]):
             self.call_from_thread(
                 self.notify, f"The logbook could not be checked: {exc}", severity="warning"
             )
-        from store.derived.statuscache import preload
-
-        preload()
+        record.preload()
         self.check_seconds = time.perf_counter() - started  # the speed benchmark reports it
         self.call_from_thread(setattr, self, "book_checked", True)
 
@@ -638,8 +636,6 @@ def plant_clock(book: Book) -> Any:
 def backup_on_close(book: Book) -> str | None:
     """A rolling copy beside the logbook; returns the problem instead of raising."""
     try:
-        from store.db.backup import rolling_backup
-
         rolling_backup(book.conn, book.path, "on-close")
     except Exception as exc:  # noqa: BLE001 - a failed backup only warns
         return str(exc) or type(exc).__name__

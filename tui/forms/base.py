@@ -7,7 +7,7 @@ from __future__ import annotations
 import sqlite3
 from dataclasses import dataclass
 from datetime import datetime
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 from textual.app import ComposeResult
 from textual.binding import Binding
@@ -20,14 +20,11 @@ from store.base.errors import BookError
 from store.base.timeutil import local_text, parse_typed_time
 from store.ledger.entries import Entry
 from store.ledger.register import Technician, list_all
-
-from ..widgets.caution import Caution
-from ..widgets.field import FieldRow, Spec, TickBox
-from .confirm import ConfirmScreen
-from .validators import TagValidator, TimeValidator
-
-if TYPE_CHECKING:
-    from ..app import SumpbookApp
+from tui.base.host import Host
+from tui.forms.confirm import ConfirmScreen
+from tui.forms.validators import TagValidator, TimeValidator
+from tui.widgets.caution import Caution
+from tui.widgets.field import FieldRow, Spec, TickBox
 
 
 @dataclass(frozen=True)
@@ -107,7 +104,7 @@ class EntryForm(ModalScreen[Saved | None]):
         self.load_problem = ""
 
     @property
-    def sb(self) -> SumpbookApp:
+    def sb(self) -> Host:
         return self.app  # type: ignore[return-value]
 
     # ---- what subclasses give ----

@@ -7,9 +7,8 @@ from typing import Any
 from store.ledger.entries import BreatherSwap, Entry
 from store.ledger.journal import BREATHER_REASONS
 from store.ledger.register import Breather, find
-
-from ..widgets.field import Spec
-from .base import EntryForm
+from tui.forms.base import EntryForm
+from tui.widgets.field import Spec
 
 REASON_WORDS = {
     "interval": "planned interval",

@@ -7,10 +7,9 @@ from typing import Any
 from store.ledger.entries import ElementChange, Entry
 from store.ledger.journal import CHANGE_REASONS
 from store.ledger.register import FilterPosition, find
-
-from ..widgets.field import Spec
-from .base import EntryForm
-from .validators import RangeValidator
+from tui.forms.base import EntryForm
+from tui.forms.validators import RangeValidator
+from tui.widgets.field import Spec
 
 REASON_WORDS = {
     "limit": "ΔP at change limit",

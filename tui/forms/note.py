@@ -6,9 +6,8 @@ from typing import Any
 
 from store.ledger.entries import Entry, Note
 from store.ledger.register import Unit, find
-
-from ..widgets.field import Spec
-from .base import EntryForm
+from tui.forms.base import EntryForm
+from tui.widgets.field import Spec
 
 
 class NoteForm(EntryForm):

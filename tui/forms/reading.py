@@ -9,11 +9,10 @@ from store.ledger.entries import Entry, Reading
 from store.ledger.journal import BYPASS_OPEN, BYPASS_STEPS, bypass_head
 from store.ledger.register import FilterPosition, find
 from store.views import last_temp_c, meter_estimate_h
-
-from ..widgets import fmt
-from ..widgets.field import Spec
-from .base import EntryForm, FieldError
-from .validators import DpValidator, RangeValidator, TemperatureValidator
+from tui.forms.base import EntryForm, FieldError
+from tui.forms.validators import DpValidator, RangeValidator, TemperatureValidator
+from tui.widgets import fmt
+from tui.widgets.field import Spec
 
 INDICATOR_CHOICES = [("clean", "clean"), ("dirty", "dirty"), ("in bypass", "bypass")]
 

@@ -22,12 +22,9 @@ from store.base.units import parse_pressure_bar, parse_temperature_c, parse_volu
 from store.base.validate import FILTER_KINDS
 from store.ledger import register
 from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
-
-from ..widgets import fmt
-from ..widgets.field import FieldRow, Spec
-from .base import FIELD_KEYS, fault_field, write_problem
-from .confirm import ConfirmScreen
-from .validators import (
+from tui.forms.base import FIELD_KEYS, fault_field, write_problem
+from tui.forms.confirm import ConfirmScreen
+from tui.forms.validators import (
     CodeValidator,
     DpValidator,
     NewTagValidator,
@@ -35,6 +32,8 @@ from .validators import (
     TemperatureValidator,
     VolumeValidator,
 )
+from tui.widgets import fmt
+from tui.widgets.field import FieldRow, Spec
 
 WHAT = {
     Technician: "technician",

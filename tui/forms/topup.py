@@ -7,11 +7,10 @@ from typing import Any
 from store.base.units import parse_volume_l
 from store.ledger.entries import Entry, TopUp
 from store.ledger.register import Fluid, Unit, find, list_all
-
-from ..widgets import fmt
-from ..widgets.field import Spec
-from .base import EntryForm, FieldError
-from .validators import RangeValidator, VolumeValidator
+from tui.forms.base import EntryForm, FieldError
+from tui.forms.validators import RangeValidator, VolumeValidator
+from tui.widgets import fmt
+from tui.widgets.field import Spec
 
 HOW = [("through a filter cart", "filtered"), ("unfiltered (from the drum)", "unfiltered")]
 

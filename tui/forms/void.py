@@ -10,11 +10,10 @@ from textual.widgets import Input, Static
 from store.base.errors import BookError
 from store.ledger.entries import Entry, Void
 from store.ledger.journal import find_entry
-
-from ..render import describe
-from ..widgets import fmt
-from ..widgets.field import Spec
-from .base import EntryForm
+from tui.base.render import describe
+from tui.forms.base import EntryForm
+from tui.widgets import fmt
+from tui.widgets.field import Spec
 
 
 class EntryIdValidator(Validator):

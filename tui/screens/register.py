@@ -16,16 +16,16 @@ from store.base.timeutil import local_text
 from store.base.units import PRESSURE_UNITS, TEMPERATURE_UNITS, VOLUME_UNITS
 from store.ledger import register
 from store.ledger.register import TABLES, WHAT, Breather, FilterPosition, Fluid, Technician, Unit
-
-from ..forms.register_record import RegisterForm
-from ..keys import bind
-from ..render import change_text
-from ..widgets import fmt
-from ..widgets.banner import DemoBanner
-from ..widgets.keystrip import KeyStrip
-from ..widgets.rowtable import RowTable
-from .ask import AskScreen
-from .common import BookScreen, guarded
+from tui.base.keys import bind
+from tui.base.render import change_text
+from tui.base.workers import guarded
+from tui.forms.register_record import RegisterForm
+from tui.screens.ask import AskScreen
+from tui.screens.common import BookScreen
+from tui.widgets import fmt
+from tui.widgets.banner import DemoBanner
+from tui.widgets.keystrip import KeyStrip
+from tui.widgets.rowtable import RowTable
 
 TABS = {
     "units": Unit,

@@ -10,21 +10,21 @@ from textual.app import ComposeResult
 from textual.containers import VerticalScroll
 from textual.widgets import DataTable, Header, Static
 
+from store import open_book
 from store.base.timeutil import ShiftSpan, next_shift, previous_shift, shift_at, shift_named
-from store.db.book import open_book
 from store.exchange.csvcolumns import Prefs as CsvPrefs
 from store.exchange.csvexport import export_file as write_file
 from store.views import ShiftLog, kind_counts, shift_log
-
-from ..keys import bind
-from ..render import describe
-from ..widgets import fmt
-from ..widgets.banner import DemoBanner
-from ..widgets.keystrip import KeyStrip
-from ..widgets.rowtable import ENTRY_COLUMNS, RowTable
-from .ask import AskScreen
-from .common import BookScreen, Target, guarded
-from .file_prompt import FilePrompt
+from tui.base.keys import bind
+from tui.base.render import describe
+from tui.base.workers import guarded
+from tui.screens.ask import AskScreen
+from tui.screens.common import BookScreen, Target
+from tui.screens.file_prompt import FilePrompt
+from tui.widgets import fmt
+from tui.widgets.banner import DemoBanner
+from tui.widgets.keystrip import KeyStrip
+from tui.widgets.rowtable import ENTRY_COLUMNS, RowTable
 
 
 def export_file(path: str, dest: Path, span: ShiftSpan, prefs: CsvPrefs) -> int:

@@ -15,8 +15,7 @@ from textual.widgets.option_list import Option
 from store.base.errors import BookError
 from store.ledger import register
 from store.ledger.register import Technician
-
-from ..widgets import fmt
+from tui.widgets import fmt
 
 
 class SignInScreen(ModalScreen[str | None]):

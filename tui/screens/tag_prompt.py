@@ -11,8 +11,7 @@ from textual.widgets import Input, OptionList, Static
 from textual.widgets.option_list import Option
 
 from store.views import TagHit, match_tags
-
-from ..widgets import fmt
+from tui.widgets import fmt
 
 PICK_HINT = "↓ ↑ to pick one, then Enter"
 

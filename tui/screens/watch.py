@@ -9,22 +9,19 @@ from textual.app import ComposeResult
 from textual.containers import Horizontal
 from textual.widgets import DataTable, Header, Input, Select
 
-from store import views
+from store import Book, record, views
 from store.base.prefs import Prefs
 from store.base.text import inert
 from store.base.timeutil import shift_at
-from store.db.book import Book
-from store.derived import statuscache
 from store.ledger.register import Unit, list_all
 from store.views import Summary, WatchRow, row_matches, summarise, watch_rows
-
-from ..keys import bind
-from ..widgets import fmt
-from ..widgets.banner import DemoBanner
-from ..widgets.keystrip import KeyStrip
-from ..widgets.rowtable import RowTable
-from ..widgets.wrapped import Wrapped
-from .common import ENTRY_BINDINGS, BookScreen, Target
+from tui.base.keys import bind
+from tui.screens.common import ENTRY_BINDINGS, BookScreen, Target
+from tui.widgets import fmt
+from tui.widgets.banner import DemoBanner
+from tui.widgets.keystrip import KeyStrip
+from tui.widgets.rowtable import RowTable
+from tui.widgets.wrapped import Wrapped
 
 ALL = "*"
 
@@ -59,14 +56,14 @@ def read_watch(book: Book, fresh: bool = False) -> WatchData:
         as_of_text=f"{w.as_of.astimezone(local):%H:%M}",  # the list is read anew each day
         shift_text=f"{span.name} to {span.end.astimezone(local):%H:%M}",
         areas=options,
-        stale=0 if fresh else len(statuscache.stale_filters(book)),
+        stale=0 if fresh else views.stale_count(book),
     )
 
 
 def catch_up(book: Book) -> WatchData:
     """The app's explicit refresh: recompute the stale rows (each kept as it is done, where
     the book can be written), then the list with nothing stale."""
-    statuscache.refresh_stale(book)
+    record.refresh_stale(book)
     return read_watch(book, fresh=True)
 
 

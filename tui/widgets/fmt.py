@@ -18,7 +18,7 @@ from store.base.prefs import Prefs
 from store.base.text import inert
 from store.base.units import from_bar, from_c, from_l
 from store.health.status import FLAG_WORDS, URGENT_FLAGS, Due
-from tui.quantities import (  # noqa: F401 - the app's widgets take them from here
+from tui.base.quantities import (  # noqa: F401 - the app's widgets take them from here
     p_digits,
     p_unit,
     pressure,

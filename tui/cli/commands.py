@@ -10,21 +10,28 @@ import sys
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from store import record, views
+from store import (
+    Book,
+    copy_holding_lock,
+    default_path,
+    full_check,
+    open_book,
+    record,
+    restore,
+    views,
+)
 from store.base import prefs as laptop
 from store.base.errors import BookError
 from store.base.text import inert, json_inert
 from store.base.timeutil import parse_time, previous_shift, shift_at, shift_named
 from store.base.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
 from store.base.validate import plant_setting
-from store.db.book import Book, default_path, open_book
 from store.exchange.csvcolumns import Prefs as CsvPrefs
 from store.exchange.csvio import import_csv
 from store.ledger import journal, register
 from store.ledger.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp, Void
 from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
-
-from .quantities import pressure
+from tui.base.quantities import pressure
 
 if TYPE_CHECKING:
     from rich.console import Console
@@ -50,7 +57,7 @@ def say(text: str, stderr: bool = False) -> None:
 
 
 def _render() -> Any:
-    from . import render
+    from tui.base import render
 
     return render
 
@@ -238,7 +245,7 @@ def _register_change(book: Book, args: argparse.Namespace, by: str) -> int:
 
 
 def _register_history(args: argparse.Namespace) -> int:
-    from .render import history_table
+    from tui.base.render import history_table
 
     if args.limit is not None and args.limit < 1:
         raise BookError("--limit must be 1 or more")
@@ -511,8 +518,6 @@ def cmd_plant(args: argparse.Namespace) -> int:
 
 
 def cmd_backup(args: argparse.Namespace) -> int:
-    from store.db.backup import copy_holding_lock
-
     with _book(args) as book:
         dest = copy_holding_lock(book.conn, book.path, args.dest)
     say(f"backup written to {dest}")
@@ -520,8 +525,6 @@ def cmd_backup(args: argparse.Namespace) -> int:
 
 
 def cmd_restore(args: argparse.Namespace) -> int:
-    from store.db.backup import restore
-
     path = args.db or default_path()
     kept = restore(Path(args.file), path)
     say(
@@ -543,8 +546,6 @@ def cmd_merge(args: argparse.Namespace) -> int:
 
 
 def cmd_check(args: argparse.Namespace) -> int:
-    from store.db.book import full_check
-
     path = Path(args.db or default_path())
     full_check(path)  # damage: one line naming the latest backup, and writes refuse the book
     say(f"ok: {path} passed the full integrity check")
@@ -552,9 +553,7 @@ def cmd_check(args: argparse.Namespace) -> int:
 
 
 def cmd_rebuild(args: argparse.Namespace) -> int:
-    from store.derived.statuscache import rebuild
-
     with _book(args) as book:
-        count = rebuild(book)
+        count = record.rebuild(book)
     say(f"status rebuilt for {count} filters")
     return 0

@@ -8,11 +8,11 @@ from typing import TYPE_CHECKING
 from rich.table import Table
 from rich.text import Text
 
+from store import Book
 from store.base.prefs import Prefs
 from store.base.text import inert
 from store.base.timeutil import local_text
 from store.base.units import pressure_label
-from store.db.book import Book
 from store.ledger import register
 from store.ledger.entries import (
     BreatherSwap,
@@ -25,8 +25,7 @@ from store.ledger.entries import (
     Void,
 )
 from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
-
-from .quantities import pressure, temperature, volume
+from tui.base.quantities import pressure, temperature, volume
 
 if TYPE_CHECKING:
     from store.health.status import Watch

@@ -10,13 +10,11 @@ import sys
 from collections.abc import Callable, Sequence
 from pathlib import Path
 
+from store import ENV_DB, damaged_read, default_path
 from store.base.errors import BookError
 from store.base.text import inert
-from store.db.book import ENV_DB, default_path
-from store.db.connection import damaged_read
 from store.ledger import journal
-
-from . import commands
+from tui.cli import commands
 
 EXIT_BAD_INPUT = 2
 MAX_LIST_LIMIT = 1_000_000
@@ -266,7 +264,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(join_negative_values(sys.argv[1:] if argv is None else argv))
     if args.command in (None, "app"):
-        from .app import run_app
+        from tui.app import run_app
 
         try:
             return run_app(args.db, dict(os.environ))
