@@ -15,10 +15,10 @@ from dataclasses import fields
 from datetime import tzinfo
 from typing import IO
 
+from store.base.prefs import Prefs
 from store.base.timeutil import iso_local, shift_at
 from store.base.units import from_bar, from_c, from_l, pressure_key, temperature_key, volume_key
 from store.db.book import Book
-from store.exchange.csvcolumns import Prefs
 from store.health.conditions import FilterContext, contexts, normalise
 from store.ledger.entries import Entry, Reading, TopUp
 

@@ -23,9 +23,10 @@ from hypothesis import strategies as st
 
 from store import record
 from store.base.errors import BookError
+from store.base.prefs import Prefs
 from store.base.timeutil import zone
 from store.db.book import open_book
-from store.exchange.csvcolumns import COLUMNS, FORMULA_START, Prefs, neutralise, restore
+from store.exchange.csvcolumns import COLUMNS, FORMULA_START, neutralise, restore
 from store.exchange.csvexport import write_span
 from store.exchange.csvio import MAX_FIELD_CHARS, import_csv
 from store.ledger import journal, register
@@ -251,7 +252,7 @@ def test_export_neutralises_formulas_and_import_gives_them_back(template, cells)
         write_span(out, book, None, None, Prefs(), UTC_ZONE, book.shift_pattern())
         rows = list(csv.reader(io.StringIO(out.getvalue(), newline="")))
         header, body = rows[0], rows[1:]
-        keys = Prefs().keys()
+        keys = Prefs().unit_keys()
         numbers = {
             c.header(keys) for c in COLUMNS if c.quantity or c.cell in ("number", "filtered")
         }

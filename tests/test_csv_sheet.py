@@ -24,9 +24,9 @@ import pytest
 
 from store import record
 from store.base.errors import BookError
+from store.base.prefs import Prefs
 from store.base.timeutil import zone
 from store.db.book import open_book
-from store.exchange.csvcolumns import Prefs
 from store.exchange.csvexport import export_file, write_span
 from store.exchange.csvio import import_csv
 from store.ledger import journal
@@ -142,7 +142,7 @@ def test_a_code_formula_that_is_not_a_code_is_not_taken_apart(book, tmp_path):
 
 def test_the_reference_follows_the_temperature_unit(logged):
     # P1 runs at 50 °C normally: 50 °C = 122 °F (°F = 1.8 °C + 32, NIST SP 811 B.9)
-    rows = rows_of(export(logged, Prefs("bar", "F", "L")))
+    rows = rows_of(export(logged, Prefs(pressure="bar", temperature="F", volume="L")))
     reading = next(r for r in rows if r["kind"] == "reading")
     assert reading["temp_f"] == "104"  # 40 °C (NIST SP 811 B.9)
     assert "(122 °F)" in reading["reference"] and "°C" not in reading["reference"]

@@ -28,9 +28,10 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from store import record
+from store.base.prefs import Prefs
 from store.base.timeutil import format_utc, iso_local, shift_at, zone
 from store.db.book import Book, open_book
-from store.exchange.csvcolumns import Prefs
+from store.exchange.csvcolumns import header
 from store.exchange.csvexport import FilterReference, LocalClock, csv_field, write_span
 from store.exchange.demo import create_demo
 from store.health.conditions import contexts
@@ -56,7 +57,11 @@ ZONES = (
     "America/St_Johns",
     "Asia/Kolkata",
 )
-UNIT_CHOICES = (Prefs(), Prefs("psi", "F", "gal"), Prefs("kPa", "C", "L"))
+UNIT_CHOICES = (
+    Prefs(),
+    Prefs(pressure="psi", temperature="F", volume="gal"),
+    Prefs(pressure="kPa", temperature="C", volume="L"),
+)
 YEAR = 2026
 NOW = "2027-01-01T00:00:00Z"  # the built plant's clock: every entry of 2026 lies before it
 NOTES = ("=SUM(A1:A9)", '-3 bar, "odd" smell\nsecond line', "+1", "@all", "plain words")
@@ -248,14 +253,19 @@ def test_spans_across_a_clock_change_and_open_ended_spans_export_the_same(plant,
     for change in transitions(zone_name, YEAR):
         day = timedelta(days=1)
         assert_same(plant, change - day, change + day, Prefs())
-        assert_same(plant, change - timedelta(hours=1), None, Prefs("psi", "F", "gal"))
+        assert_same(
+            plant,
+            change - timedelta(hours=1),
+            None,
+            Prefs(pressure="psi", temperature="F", volume="gal"),
+        )
         assert_same(plant, change - timedelta(seconds=1), change + timedelta(seconds=2), Prefs())
 
 
 def test_a_span_with_nothing_in_it_is_the_header_alone(plant):
     start = datetime(YEAR - 5, 1, 1, tzinfo=UTC)
     text = assert_same(plant, start, start + timedelta(days=1), Prefs())
-    assert text == ",".join(Prefs().columns()) + "\r\n"
+    assert text == ",".join(header(Prefs())) + "\r\n"
 
 
 def test_the_command_line_writes_the_same_file(plant, tmp_path, monkeypatch):
@@ -278,8 +288,12 @@ def test_the_shift_log_screen_writes_the_same_file(plant, tmp_path):
     change = transitions("Europe/Berlin", YEAR)[1]  # the night the clocks go back
     span = shift_at(change, plant.shift_pattern(), plant.local_zone())
     out = tmp_path / "night.csv"
-    count = export_file(str(plant.path), out, span, Prefs("psi", "F", "gal"))
-    old, _ = exports(plant, span.start, span.end, Prefs("psi", "F", "gal"))
+    count = export_file(
+        str(plant.path), out, span, Prefs(pressure="psi", temperature="F", volume="gal")
+    )
+    old, _ = exports(
+        plant, span.start, span.end, Prefs(pressure="psi", temperature="F", volume="gal")
+    )
     assert count == old.count("\r\n") - 1 > 0
     assert out.read_bytes() == b"\xef\xbb\xbf" + old.encode("utf-8")
 
@@ -319,7 +333,7 @@ def test_a_write_that_fails_half_way_ends_the_read(plant):
 def test_memos_that_fill_up_start_again_and_change_nothing(plant, monkeypatch):
     plant.set_setting("timezone", "America/St_Johns")
     monkeypatch.setattr("store.exchange.csvexport._MEMO_SIZE", 2)
-    assert_same(plant, None, None, Prefs("psi", "F", "gal"))
+    assert_same(plant, None, None, Prefs(pressure="psi", temperature="F", volume="gal"))
 
 
 # ---- the pieces, against the functions the entry-based export uses --------------------------------
@@ -354,7 +368,7 @@ def test_local_times_are_what_iso_local_writes(zone_name):
     flow_lpm=st.none() | st.floats(0, 1e5) | st.sampled_from([0.0, -5.0, 1e-300, 1e300]),
 )
 def test_reference_cells_are_what_export_rows_writes(plant, position, dp_bar, temp_c, flow_lpm):
-    prefs = Prefs("psi", "C", "L")
+    prefs = Prefs(pressure="psi", temperature="C", volume="L")
     at = datetime(YEAR, 3, 1, tzinfo=UTC)
     reading = Reading(filter=position, dp_bar=dp_bar, temp_c=temp_c, flow_lpm=flow_lpm, at=at)
     try:

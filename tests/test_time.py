@@ -19,8 +19,8 @@ import pytest
 
 from store import record
 from store.base.errors import BookError
+from store.base.prefs import Prefs
 from store.base.timeutil import parse_time, shift_at, shift_named, zone
-from store.exchange.csvcolumns import Prefs
 from store.exchange.csvexport import write_span
 from store.exchange.csvio import import_csv
 from store.ledger import journal

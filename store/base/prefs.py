@@ -28,6 +28,14 @@ class Prefs:
     volume: str = "L"
     theme: str = "dark"
 
+    def unit_keys(self) -> dict[str, str]:
+        """quantity -> the unit's key in CSV header names ('bar', 'c', 'l' ...)."""
+        return {
+            "pressure": pressure_key(self.pressure),
+            "temperature": temperature_key(self.temperature),
+            "volume": volume_key(self.volume),
+        }
+
 
 def config_path() -> Path:
     if os.environ.get(ENV_CONFIG):

@@ -18,6 +18,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from store.base.errors import BookError
+from store.base.prefs import Prefs
 from store.base.units import (
     from_bar,
     from_c,
@@ -38,26 +39,10 @@ _CODE_TEXT = re.compile(r"[0-9<>-]{1,3}(/[0-9<>-]{1,3}){1,2}")
 _CODE_FORMULA = re.compile(r'="([0-9<>-]{1,3}(?:/[0-9<>-]{1,3}){1,2})"')
 
 
-@dataclass(frozen=True)
-class Prefs:
-    """Units of measure for one export (the book stores bar, °C, L)."""
-
-    pressure: str = "bar"
-    temperature: str = "C"
-    volume: str = "L"
-
-    def keys(self) -> dict[str, str]:
-        """quantity -> the unit's key in header names ('bar', 'c', 'l' ...)."""
-        return {
-            "pressure": pressure_key(self.pressure),
-            "temperature": temperature_key(self.temperature),
-            "volume": volume_key(self.volume),
-        }
-
-    def columns(self) -> list[str]:
-        """The header, in order."""
-        keys = self.keys()
-        return [c.header(keys) for c in COLUMNS]
+def header(prefs: Prefs) -> list[str]:
+    """The header of a CSV shift log in the user's units, in order."""
+    keys = prefs.unit_keys()
+    return [c.header(keys) for c in COLUMNS]
 
 
 def neutralise(text: str) -> str:

@@ -32,10 +32,17 @@ from pathlib import Path
 from typing import IO, Any
 
 from store.base.errors import BookError
+from store.base.prefs import Prefs
 from store.base.timeutil import format_utc, iso_local, shift_at
 from store.base.units import from_bar, pressure_key, temperature_key, to_bar
 from store.db.book import Book
-from store.exchange.csvcolumns import COLUMNS, FORMULA_START, VALUE_COLUMNS, Prefs, reference_cell
+from store.exchange.csvcolumns import (
+    COLUMNS,
+    FORMULA_START,
+    VALUE_COLUMNS,
+    header,
+    reference_cell,
+)
 from store.exchange.csvcolumns import number_text as _num
 from store.health.conditions import FilterContext, contexts, normalise
 from store.ledger.entries import KINDS, TARGET_COLUMN, Reading, entry_columns
@@ -307,9 +314,9 @@ def kind_plans(prefs: Prefs) -> dict[str, KindPlan]:
     """A plan per entry kind: the cells of the column table (`csvcolumns.COLUMNS`) its
     dataclass has fields for. Columns with few distinct values (tags, words, gauge steps)
     remember their cells; a column has one memo however many kinds use it."""
-    keys = prefs.keys()
+    keys = prefs.unit_keys()
     memos: dict[str, dict[Any, str]] = {name: {} for name in _COL}
-    index = {name: i for i, name in enumerate(prefs.columns())}
+    index = {name: i for i, name in enumerate(header(prefs))}
     headers = {c.name: c.header(keys) for c in COLUMNS}
     plans = {}
     for kind, cls in KINDS.items():
@@ -339,7 +346,7 @@ class SpanLines:
     def __init__(
         self, book: Book, prefs: Prefs, local: tzinfo, pattern: list[tuple[str, str]]
     ) -> None:
-        columns = prefs.columns()
+        columns = header(prefs)
         self.header = csv_line(columns)
         self.plans = kind_plans(prefs)
         self.clock, self.shifts = LocalClock(local), ShiftNames(pattern, local)

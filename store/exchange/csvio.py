@@ -20,9 +20,10 @@ from typing import Any
 
 from store import record
 from store.base.errors import BookError
+from store.base.prefs import Prefs
 from store.base.timeutil import parse_time
 from store.db.book import Book
-from store.exchange.csvcolumns import VALUE_COLUMNS, Prefs, known_headers, neutralise, restore
+from store.exchange.csvcolumns import VALUE_COLUMNS, known_headers, neutralise, restore
 from store.ledger.entries import KINDS, Entry
 from store.ledger.journal import insert, validate
 

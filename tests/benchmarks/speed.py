@@ -387,9 +387,9 @@ def store_calls(path: Path, repeat: int = 5) -> dict[str, float]:
 
 
 def export_year(path: Path, env: dict[str, str], runs: int, limit_s: float) -> dict:
+    from store.base.prefs import Prefs
     from store.base.timeutil import format_utc, parse_time
     from store.db.book import open_book
-    from store.exchange.csvcolumns import Prefs
     from store.exchange.csvexport import write_span
 
     out: dict = {}

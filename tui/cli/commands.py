@@ -26,7 +26,6 @@ from store.base.text import inert, json_inert
 from store.base.timeutil import parse_time, previous_shift, shift_at, shift_named
 from store.base.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
 from store.base.validate import plant_setting
-from store.exchange.csvcolumns import Prefs as CsvPrefs
 from store.exchange.csvio import import_csv
 from store.ledger import journal, register
 from store.ledger.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp, Void
@@ -438,7 +437,7 @@ def cmd_export(args: argparse.Namespace) -> int:
             else:
                 span = shift_named(args.shift, pattern, local)
             start, end = span.start, span.end
-        csv_prefs = CsvPrefs(prefs.pressure, prefs.temperature, prefs.volume)
+        csv_prefs = prefs
         if args.output:
             count = export_file(
                 book, args.output, start, end, csv_prefs, local, pattern, bom=args.bom is not False

@@ -11,8 +11,8 @@ from textual.containers import VerticalScroll
 from textual.widgets import DataTable, Header, Static
 
 from store import open_book
+from store.base.prefs import Prefs
 from store.base.timeutil import ShiftSpan, next_shift, previous_shift, shift_at, shift_named
-from store.exchange.csvcolumns import Prefs as CsvPrefs
 from store.exchange.csvexport import export_file as write_file
 from store.views import ShiftLog, kind_counts, shift_log
 from tui.base.keys import bind
@@ -27,7 +27,7 @@ from tui.widgets.keystrip import KeyStrip
 from tui.widgets.rowtable import ENTRY_COLUMNS, RowTable
 
 
-def export_file(path: str, dest: Path, span: ShiftSpan, prefs: CsvPrefs) -> int:
+def export_file(path: str, dest: Path, span: ShiftSpan, prefs: Prefs) -> int:
     """Write one shift's entries as CSV (runs in a worker thread on its own connection)."""
     with open_book(path, create=False) as book:
         local, pattern = book.local_zone(), book.shift_pattern()
@@ -218,7 +218,7 @@ class ShiftLogScreen(BookScreen):
             return
         span = self.span or self.current_span()
         p = self.sb.prefs
-        prefs = CsvPrefs(p.pressure, p.temperature, p.volume)
+        prefs = p
         path = str(self.sb.book.path)
         self.exporting = True
         self.query_one(DataTable).loading = True
