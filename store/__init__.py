@@ -14,16 +14,14 @@ only through the names below; everything else they take from the upper layers di
 """
 
 from store.db.backup import copy_holding_lock, restore, rolling_backup
-from store.db.book import ENV_DB, Book, deep_check, default_path, full_check, open_book
+from store.db.book import Book, deep_check, full_check, open_book
 from store.db.connection import damaged_read
 
 __all__ = [
-    "ENV_DB",
     "Book",
     "copy_holding_lock",
     "damaged_read",
     "deep_check",
-    "default_path",
     "full_check",
     "open_book",
     "restore",

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import os
 import shutil
 from pathlib import Path
 
@@ -99,6 +100,17 @@ def demo_file(tmp_path_factory):
     return path
 
 
+def app_for(path: Path, **options):
+    """The app on the logbook at `path`, with the session the command line would read from
+    the environment the test set up (clock, prefs file)."""
+    from store.base.session import from_environ
+    from tui.app import SumpbookApp
+
+    session = from_environ(os.environ)
+    book = open_book(path, clock=session.clock)
+    return SumpbookApp(book, cursor_blink=False, session=session, **options)
+
+
 @pytest.fixture
 def demo_app(demo_file, tmp_path, monkeypatch):
     """A maker of apps on a fresh copy of the demo plant (frozen in time), prefs as given;
@@ -112,7 +124,7 @@ def demo_app(demo_file, tmp_path, monkeypatch):
 
     def make(**prefs: str) -> SumpbookApp:
         monkeypatch.setenv("SUMPBOOK_CONFIG", str(write_prefs(tmp_path, tech="AK", **prefs)))
-        return SumpbookApp(open_book(path), cursor_blink=False)
+        return app_for(path)
 
     make.path = path  # type: ignore[attr-defined]
     return make

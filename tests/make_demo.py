@@ -22,7 +22,6 @@ How the numbers are made:
 from __future__ import annotations
 
 import math
-import os
 import random
 import sys
 import tempfile
@@ -40,7 +39,8 @@ if str(ROOT) not in sys.path:  # run as a script from anywhere
 
 
 from store import record  # noqa: E402
-from store.base.timeutil import ENV_NOW, format_utc  # noqa: E402
+from store.base.session import fixed_clock  # noqa: E402
+from store.base.timeutil import format_utc  # noqa: E402
 from store.db.book import Book, open_book  # noqa: E402
 from store.db.schema import SCHEMA_VERSION  # noqa: E402
 from store.health.conditions import FilterContext, contexts  # noqa: E402
@@ -967,24 +967,11 @@ def no_write_hooks() -> Iterator[None]:
         record.after_write = kept
 
 
-@contextmanager
-def fixed_clock(moment: str) -> Iterator[None]:
-    """The store stamps register changes with utc_now(); fix it so the output repeats."""
-    before = os.environ.get(ENV_NOW)
-    os.environ[ENV_NOW] = moment
-    try:
-        yield
-    finally:
-        if before is None:
-            os.environ.pop(ENV_NOW, None)
-        else:
-            os.environ[ENV_NOW] = before
-
-
 def build_sql() -> str:
     """The demo plant as SQL text (builds it in a temporary logbook)."""
-    with tempfile.TemporaryDirectory() as folder, fixed_clock(REGISTERED), no_write_hooks():
-        book = open_book(Path(folder) / "demo-build.db")
+    with tempfile.TemporaryDirectory() as folder, no_write_hooks():
+        # The store stamps register changes with the book's clock: fixed, the output repeats.
+        book = open_book(Path(folder) / "demo-build.db", clock=fixed_clock(REGISTERED))
         try:
             book.conn.execute("PRAGMA synchronous = OFF")  # a scratch file: speed over safety
             populate(book)

@@ -14,8 +14,9 @@ from store.health.status import FLAG_WORDS, URGENT_FLAGS
 from store.ledger import journal
 from store.ledger.entries import KINDS, TopUp, Void
 from store.ledger.register import FilterPosition, list_all
+from tests.conftest import app_for
 from tests.test_app_plant import settle, write_prefs
-from tui.app import SumpbookApp, saved_text
+from tui.app import saved_text
 from tui.base.keys import KEYS
 from tui.screens.filter_sheet import FilterSheetScreen
 from tui.screens.help import HelpScreen
@@ -407,7 +408,7 @@ async def test_the_first_run_guide_keeps_its_lines(tmp_path, monkeypatch):
     from tui.screens.first_run import GUIDE, FirstRunScreen
 
     monkeypatch.setenv("SUMPBOOK_CONFIG", str(write_prefs(tmp_path, tech="")))
-    app = SumpbookApp(open_book(tmp_path / "empty.db"), cursor_blink=False)
+    app = app_for(tmp_path / "empty.db")
     async with app.run_test(size=SIZE) as pilot:
         await pilot.pause()
         assert isinstance(app.screen, FirstRunScreen)

@@ -13,7 +13,7 @@ from store.db.book import Book, open_book
 from store.ledger import journal, register
 from store.ledger.entries import BreatherSwap, ElementChange, Reading, Sample, TopUp
 from store.ledger.register import FilterPosition, Unit
-from tests.conftest import fill_register, write_prefs
+from tests.conftest import app_for, fill_register, write_prefs
 
 CLOCK = datetime(2026, 5, 13, 10, 0, tzinfo=UTC)  # the plant's frozen "now" (an early shift)
 START = CLOCK - timedelta(days=140)
@@ -152,9 +152,8 @@ def plant(tmp_path, monkeypatch):
 
 
 def make_app(path: Path):
-    from tui.app import SumpbookApp
 
-    return SumpbookApp(open_book(path), cursor_blink=False)
+    return app_for(path)
 
 
 async def settle(pilot, screen_type=None, timeout: float = 10.0) -> None:

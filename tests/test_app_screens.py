@@ -13,8 +13,8 @@ from store.exchange.demo import discard, is_throwaway
 from store.ledger import register
 from store.ledger.register import FilterPosition, Technician
 from tests import test_app_plant as kit
+from tests.conftest import app_for
 from tests.test_app_plant import count_entries, make_app, settle, write_prefs
-from tui.app import SumpbookApp
 from tui.cli import main as cli_main
 from tui.forms.register_record import RegisterForm
 from tui.screens.filter_sheet import FilterSheetScreen
@@ -282,7 +282,7 @@ async def test_sign_in_by_typing_the_initials(plant, tmp_path, monkeypatch):
 async def test_first_run_on_an_empty_logbook(tmp_path):
     with open_book(tmp_path / "empty.db"):
         pass
-    app = SumpbookApp(open_book(tmp_path / "empty.db"), cursor_blink=False)
+    app = app_for(tmp_path / "empty.db")
     async with app.run_test(size=(80, 24)) as pilot:
         await pilot.pause()
         assert isinstance(app.screen, FirstRunScreen)
@@ -336,7 +336,7 @@ async def test_demo_is_said_plainly(plant):
 async def test_first_run_can_open_the_demo_plant(tmp_path):
     with open_book(tmp_path / "empty.db"):
         pass
-    app = SumpbookApp(open_book(tmp_path / "empty.db"), cursor_blink=False)
+    app = app_for(tmp_path / "empty.db")
     async with app.run_test(size=(80, 24)) as pilot:
         await pilot.pause()
         assert isinstance(app.screen, FirstRunScreen)

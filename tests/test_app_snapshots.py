@@ -4,9 +4,8 @@ watch list and the filter sheet."""
 
 from __future__ import annotations
 
-from store.db.book import open_book
+from tests.conftest import app_for
 from tests.test_app_plant import settle, write_prefs
-from tui.app import SumpbookApp
 from tui.screens.filter_sheet import FilterSheetScreen
 from tui.screens.help import HelpScreen
 from tui.screens.unit_sheet import UnitSheetScreen
@@ -88,7 +87,7 @@ def test_help(snap_compare, demo_app):
 def test_first_run_guide(snap_compare, tmp_path, monkeypatch):
     monkeypatch.setenv("SUMPBOOK_CONFIG", str(write_prefs(tmp_path, tech="")))
     monkeypatch.setenv("SUMPBOOK_NOW", "2026-11-27T12:30:00Z")
-    app = SumpbookApp(open_book(tmp_path / "new.db"), cursor_blink=False)
+    app = app_for(tmp_path / "new.db")
 
     async def shown(pilot) -> None:
         await pilot.pause()

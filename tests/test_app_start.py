@@ -3,6 +3,7 @@ nothing; with `--db NEW.db`, the offer to create that logbook with the first-run
 
 from __future__ import annotations
 
+import os
 import tempfile
 from pathlib import Path
 
@@ -10,6 +11,7 @@ import pytest
 from textual.widgets import Static
 
 from store import record
+from store.base.session import from_environ
 from store.db.book import open_book
 from store.exchange.demo import is_throwaway
 from store.ledger import journal, register
@@ -41,7 +43,7 @@ def notes(path: Path) -> list[str]:
 def test_no_logbook_opens_a_fresh_demo_each_time_and_keeps_nothing(no_logbook):
     from store.exchange.demo import discard
 
-    book, demo, new_path = open_for_app(None)
+    book, demo, new_path = open_for_app(None, from_environ(os.environ))
     first = book.path
     assert demo and new_path is None and is_throwaway(first)
     assert Path(tempfile.gettempdir()).resolve() in first.resolve().parents
@@ -49,7 +51,7 @@ def test_no_logbook_opens_a_fresh_demo_each_time_and_keeps_nothing(no_logbook):
     book.close()
     discard(first)
     assert not first.exists()
-    book, demo, _ = open_for_app(None)  # the next start: the story as frozen, no note
+    book, demo, _ = open_for_app(None, from_environ(os.environ))  # the next start: the story as frozen, no note
     try:
         assert demo and book.path != first
         assert "logged on the demo" not in notes(book.path)
@@ -60,8 +62,8 @@ def test_no_logbook_opens_a_fresh_demo_each_time_and_keeps_nothing(no_logbook):
 
 
 async def test_the_demo_says_it_keeps_nothing(no_logbook):
-    book, demo, _ = open_for_app(None)
-    app = SumpbookApp(book, demo=demo, cursor_blink=False)
+    book, demo, _ = open_for_app(None, from_environ(os.environ))
+    app = SumpbookApp(book, demo=demo, cursor_blink=False, session=from_environ(os.environ))
     try:
         async with app.run_test(size=(80, 24)) as pilot:
             await pilot.pause()
@@ -79,10 +81,12 @@ async def test_the_demo_says_it_keeps_nothing(no_logbook):
 async def test_a_new_db_path_offers_to_create_the_logbook_there(tmp_path):
     new = tmp_path / "site" / "new.db"
     new.parent.mkdir()
-    book, demo, new_path = open_for_app(new, named=True)
+    book, demo, new_path = open_for_app(new, from_environ(os.environ))
     scratch = book.path
     assert not demo and new_path == new and not new.exists()
-    app = SumpbookApp(book, demo=demo, cursor_blink=False, new_path=new_path)
+    app = SumpbookApp(
+        book, demo=demo, cursor_blink=False, new_path=new_path, session=from_environ(os.environ)
+    )
     async with app.run_test(size=(80, 24)) as pilot:
         await pilot.pause()
         guide = app.screen
@@ -106,8 +110,10 @@ async def test_a_new_db_path_offers_to_create_the_logbook_there(tmp_path):
 
 async def test_a_new_db_path_left_with_q_creates_nothing(tmp_path):
     new = tmp_path / "new.db"
-    book, demo, new_path = open_for_app(new, named=True)
-    app = SumpbookApp(book, demo=demo, cursor_blink=False, new_path=new_path)
+    book, demo, new_path = open_for_app(new, from_environ(os.environ))
+    app = SumpbookApp(
+        book, demo=demo, cursor_blink=False, new_path=new_path, session=from_environ(os.environ)
+    )
     async with app.run_test(size=(80, 24)) as pilot:
         await pilot.pause()
         assert isinstance(app.screen, FirstRunScreen)

@@ -282,11 +282,14 @@ def test_the_first_list_read_early_is_the_list(plant):
     import pytest
 
     from store.base.errors import BookError
+    from store.base.session import fixed_clock
+    from store.base.timeutil import utc_now
     from tui.base import workers as common
     from tui.screens.watch import read_watch
 
-    early = common.read_early(plant, read_watch).result(timeout=60)
-    with open_book(plant, create=False) as book:
+    clock = fixed_clock(utc_now())  # both reads at the same moment
+    early = common.read_early(plant, read_watch, clock).result(timeout=60)
+    with open_book(plant, create=False, clock=clock) as book:
         here = read_watch(book)
     assert early == here and len(early.rows) == 5
 
@@ -294,7 +297,7 @@ def test_the_first_list_read_early_is_the_list(plant):
         raise BookError("the register is empty")
 
     with pytest.raises(BookError, match="the register is empty"):
-        common.read_early(plant, refuse).result(timeout=60)
+        common.read_early(plant, refuse, clock).result(timeout=60)
 
 
 async def test_a_kept_sheet_is_read_before_it_shows_or_shows_at_once_when_slow(plant, monkeypatch):

@@ -25,6 +25,7 @@ import pytest
 from store import record
 from store.base.errors import BookError
 from store.base.prefs import Prefs
+from store.base.session import fixed_clock
 from store.base.timeutil import zone
 from store.db.book import open_book
 from store.exchange.csvexport import export_file, write_span
@@ -41,7 +42,7 @@ NOW = "2026-06-01T12:00:00Z"
 
 @pytest.fixture
 def logged(book, monkeypatch):
-    monkeypatch.setenv("SUMPBOOK_NOW", NOW)
+    book.clock = fixed_clock(NOW)
     record.log(book, Reading(filter="P1-RF", dp_bar=1.2, temp_c=40, by="AB", note="ν high"))
     record.log(book, TopUp(unit="P1", volume_l=20, by="AB"))  # unfiltered
     record.log(book, TopUp(unit="P1", volume_l=5, filtered_um=3, by="AB"))

@@ -29,6 +29,7 @@ from hypothesis import strategies as st
 
 from store import record
 from store.base.prefs import Prefs
+from store.base.session import fixed_clock
 from store.base.timeutil import format_utc, iso_local, shift_at, zone
 from store.db.book import Book, open_book
 from store.exchange.csvcolumns import header
@@ -157,12 +158,11 @@ def log_plant_entries(book: Book) -> None:
 
 @pytest.fixture(scope="module")
 def plant(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Book]:
-    with pytest.MonkeyPatch.context() as mp:
-        mp.setenv("SUMPBOOK_NOW", NOW)
-        with open_book(tmp_path_factory.mktemp("plant") / "plant.db") as book:
-            add_plant(book)
-            log_plant_entries(book)
-            yield book
+    path = tmp_path_factory.mktemp("plant") / "plant.db"
+    with open_book(path, clock=fixed_clock(NOW)) as book:
+        add_plant(book)
+        log_plant_entries(book)
+        yield book
 
 
 @pytest.fixture(scope="module")
@@ -288,9 +288,8 @@ def test_the_shift_log_screen_writes_the_same_file(plant, tmp_path):
     change = transitions("Europe/Berlin", YEAR)[1]  # the night the clocks go back
     span = shift_at(change, plant.shift_pattern(), plant.local_zone())
     out = tmp_path / "night.csv"
-    count = export_file(
-        str(plant.path), out, span, Prefs(pressure="psi", temperature="F", volume="gal")
-    )
+    units = Prefs(pressure="psi", temperature="F", volume="gal")
+    count = export_file(str(plant.path), out, span, units, plant.clock)
     old, _ = exports(
         plant, span.start, span.end, Prefs(pressure="psi", temperature="F", volume="gal")
     )
@@ -300,7 +299,7 @@ def test_the_shift_log_screen_writes_the_same_file(plant, tmp_path):
 
 def test_stamps_not_in_the_books_own_form_export_the_same(book, monkeypatch):
     # journal reads these too (ISO 8601 forms written by hand or by another program)
-    monkeypatch.setenv("SUMPBOOK_NOW", NOW)
+    book.clock = fixed_clock(NOW)
     book.set_setting("timezone", "Europe/Berlin")
     record.log_many(book, [entry_for(i, at) for i, at in enumerate(instants()[:4])])  # P1 only
     odd = ("2026-07-01T070000.5Z", "2026-W27-3T07:00:01Z", "2026-7-1T7:00:02Z")

@@ -13,6 +13,7 @@ import pytest
 
 from store import record
 from store.base.errors import BookError, NotALogbook
+from store.base.session import fixed_clock
 from store.base.timeutil import utc_now
 from store.db import schema
 from store.db.book import open_book
@@ -288,10 +289,9 @@ def test_refuses_itself_and_files_that_are_not_logbooks(tmp_path):
 def test_an_entry_from_a_laptop_with_a_wrong_clock_is_held_back(tmp_path, monkeypatch):
     a, b = _laptops(tmp_path)
     ahead = (utc_now() + timedelta(days=30)).strftime("%Y-%m-%dT%H:%M:%SZ")
-    monkeypatch.setenv("SUMPBOOK_NOW", ahead)  # laptop B's clock is a month fast
     with _open(b) as book:
+        book.clock = fixed_clock(ahead)  # laptop B's clock is a month fast
         record.log(book, Reading(filter="P1-RF", dp_bar=1.3, by="CD"))
-    monkeypatch.delenv("SUMPBOOK_NOW")
     with _open(a) as book:
         report = merge(book, b)
     assert report.entries_added == 0 and report.entries_left_out == 1

@@ -20,6 +20,7 @@ import pytest
 from store import record
 from store.base.errors import BookError
 from store.base.prefs import Prefs
+from store.base.session import fixed_clock
 from store.base.timeutil import parse_time, shift_at, shift_named, zone
 from store.exchange.csvexport import write_span
 from store.exchange.csvio import import_csv
@@ -111,7 +112,7 @@ def test_a_shift_starting_inside_the_gap_begins_when_the_clock_resumes():
 )
 def test_logged_entries_land_in_their_shift(book, monkeypatch, local_text, label):
     book.set_setting("timezone", BERLIN)
-    monkeypatch.setenv("SUMPBOOK_NOW", NOW.isoformat())
+    book.clock = fixed_clock(NOW)
     at = parse_time(local_text, book.local_zone(), now=book.now())
     saved = record.log(book, Reading(filter="P1-RF", dp_bar=1.0, at=at, by="AB"))
     stored = journal.find_entry(book, saved.id)
@@ -123,7 +124,7 @@ def test_logged_entries_land_in_their_shift(book, monkeypatch, local_text, label
 
 def test_export_names_the_shift_and_the_offset_across_the_change(book, monkeypatch):
     book.set_setting("timezone", BERLIN)
-    monkeypatch.setenv("SUMPBOOK_NOW", NOW.isoformat())
+    book.clock = fixed_clock(NOW)
     instants = {
         wall(BERLIN, 2026, 3, 28, 23, 0): ("night", "2026-03-28T23:00:00+01:00"),
         wall(BERLIN, 2026, 3, 29, 3, 30): ("night", "2026-03-29T03:30:00+02:00"),
@@ -138,7 +139,7 @@ def test_export_names_the_shift_and_the_offset_across_the_change(book, monkeypat
 
 
 def test_an_entry_far_in_the_future_is_refused(book, monkeypatch):
-    monkeypatch.setenv("SUMPBOOK_NOW", NOW.isoformat())
+    book.clock = fixed_clock(NOW)
     before = book.conn.execute("SELECT count(*) FROM entries").fetchone()[0]
     # MAX_AHEAD is one day: a clock slip of hours passes, days do not. # common practice, no source
     record.log(book, Note(unit="P1", note="ok", at=NOW + timedelta(hours=23), by="AB"))
@@ -151,7 +152,7 @@ def test_an_entry_far_in_the_future_is_refused(book, monkeypatch):
 
 
 def test_a_csv_row_from_the_future_rejects_the_import_with_its_line(book, monkeypatch):
-    monkeypatch.setenv("SUMPBOOK_NOW", NOW.isoformat())
+    book.clock = fixed_clock(NOW)
     data = (
         b"time,kind,target,by,note\n"
         b"2026-11-20T08:00+01:00,note,P1,AB,fine\n"

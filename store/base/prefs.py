@@ -7,16 +7,12 @@ they belong to the person and the laptop, not to the plant's history.
 from __future__ import annotations
 
 import json
-import os
 from dataclasses import asdict, dataclass, replace
 from pathlib import Path
-
-from platformdirs import user_config_dir
 
 from store.base.errors import BookError
 from store.base.units import pressure_key, temperature_key, volume_key
 
-ENV_CONFIG = "SUMPBOOK_CONFIG"
 THEMES = ("dark", "light", "contrast")
 
 
@@ -37,15 +33,11 @@ class Prefs:
         }
 
 
-def config_path() -> Path:
-    if os.environ.get(ENV_CONFIG):
-        return Path(os.environ[ENV_CONFIG]).expanduser()
-    return Path(user_config_dir("sumpbook", appauthor=False)) / "prefs.json"
-
-
-def load() -> Prefs:
+def load(path: Path) -> Prefs:
+    """The preferences kept at `path` (a Session's config_path); defaults when there are none
+    or they cannot be read."""
     try:
-        data = json.loads(config_path().read_text(encoding="utf-8"))
+        data = json.loads(Path(path).read_text(encoding="utf-8"))
         known = {k: str(v) for k, v in data.items() if k in Prefs.__dataclass_fields__}
         return checked(Prefs(**known))
     except (OSError, ValueError, TypeError):
@@ -61,9 +53,9 @@ def checked(prefs: Prefs) -> Prefs:
     return prefs
 
 
-def save(prefs: Prefs, **changes: str) -> Prefs:
+def save(prefs: Prefs, path: Path, **changes: str) -> Prefs:
     prefs = checked(replace(prefs, **changes))
-    path = config_path()
+    path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     tmp = path.with_suffix(".tmp")
     tmp.write_text(json.dumps(asdict(prefs), indent=1), encoding="utf-8")

@@ -9,7 +9,6 @@ rules, see `zone`).
 from __future__ import annotations
 
 import functools
-import os
 import re
 import zoneinfo
 from collections.abc import Sequence
@@ -22,15 +21,18 @@ from store.base.errors import BookError
 from store.base.validate import EARLIEST, one_line, timezone_name
 
 UTC_FORMAT = "%Y-%m-%dT%H:%M:%SZ"
-ENV_NOW = "SUMPBOOK_NOW"  # fixes the clock for demos and tests (any ISO 8601 time)
 MAX_AHEAD = timedelta(days=1)
 
 
 def utc_now() -> datetime:
-    fixed = os.environ.get(ENV_NOW)
-    if fixed:
-        return to_utc(_isoparse(fixed), tz.UTC)
+    """This computer's clock, UTC, whole seconds (a fixed clock for demos and tests is a
+    store.base.session.Session's, handed to the book)."""
     return datetime.now(UTC).replace(microsecond=0)
+
+
+def parse_iso(text: str) -> datetime:
+    """An ISO 8601 time as dateutil reads it (naive stays naive)."""
+    return _isoparse(text)
 
 
 def _isoparse(text: str) -> datetime:

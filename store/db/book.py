@@ -2,16 +2,13 @@
 
 from __future__ import annotations
 
-import os
 import sqlite3
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from datetime import datetime, tzinfo
 from pathlib import Path
 from typing import TYPE_CHECKING
-
-from platformdirs import user_data_dir
 
 from store.base.errors import BookError, NotALogbook
 from store.base.timeutil import parse_utc, utc_now, zone
@@ -40,16 +37,6 @@ PLANT_SETTINGS = ("name", "timezone", "backup_keep")
 if TYPE_CHECKING:
     import sqlite_utils
 
-ENV_DB = "SUMPBOOK_DB"
-
-
-def default_path() -> Path:
-    """Where the logbook lives unless --db or SUMPBOOK_DB say otherwise."""
-    if os.environ.get(ENV_DB):
-        return Path(os.environ[ENV_DB]).expanduser()
-    return Path(user_data_dir("sumpbook", appauthor=False)) / "logbook.db"
-
-
 @dataclass
 class Book:
     """An open logbook: `conn` the SQLite connection, `path` the file.
@@ -66,6 +53,7 @@ class Book:
     # Entry rows that could not be read this session: id -> what (journal.note_unreadable).
     unreadable: dict[str, str] = field(default_factory=dict)
     inode: tuple[int, int] | None = None  # (device, inode) of the file when it was opened
+    clock: Callable[[], datetime] = utc_now  # this run's clock (store.base.session)
 
     @property
     def db(self) -> sqlite_utils.Database:
@@ -156,7 +144,7 @@ class Book:
     def now(self) -> datetime:
         """UTC now; a demo book is frozen at the moment its story ends (setting 'clock')."""
         frozen = self.setting("clock")
-        return parse_utc(frozen) if frozen else utc_now()
+        return parse_utc(frozen) if frozen else self.clock()
 
     def local_zone(self) -> tzinfo:
         return zone(self.setting("timezone"))
@@ -264,15 +252,20 @@ def _quarantined(conn: sqlite3.Connection) -> int:
 
 
 def open_book(
-    path: Path | str | None = None, *, create: bool = True, readonly: bool = False
+    path: Path | str,
+    *,
+    create: bool = True,
+    readonly: bool = False,
+    clock: Callable[[], datetime] | None = None,
 ) -> Book:
     """Open (and if needed create or migrate) the logbook at `path`.
 
     An existing file is checked before anything is written to it (`inspect`); a file that is
     write-protected or on read-only media opens read-only (`Book.readonly`), and so does any
-    file with `readonly` (a forked child process reads with it: it must never write).
+    file with `readonly`. `clock` is this run's (store.base.session.Session.clock); the
+    computer's when not given.
     """
-    path = Path(path) if path is not None else default_path()
+    path = Path(path)
     notices: list[str] = []
     new = is_empty_file(path)
     if new and (readonly or not create):
@@ -321,7 +314,14 @@ def open_book(
         raise
     if new:
         CHECKED.add(check_key(path))  # made here and now: nothing to check
-    return Book(conn=conn, path=path, readonly=readonly, notices=notices, inode=file_id(path))
+    return Book(
+        conn=conn,
+        path=path,
+        readonly=readonly,
+        notices=notices,
+        inode=file_id(path),
+        clock=clock or utc_now,
+    )
 
 
 def inspect(path: Path, readonly: bool = True) -> int:

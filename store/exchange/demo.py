@@ -9,6 +9,7 @@ import tempfile
 from pathlib import Path
 
 from store.base.errors import BookError
+from store.base.session import Clock
 from store.db.book import Book, open_book
 
 # At the top of a checkout (editable install), or inside the package (wheel install).
@@ -35,7 +36,7 @@ def load_sql(book: Book, sql: str) -> None:
         raise BookError(f"the demo SQL did not load: {exc}") from exc
 
 
-def create_demo(path: Path, force: bool = False) -> Book:
+def create_demo(path: Path, force: bool = False, clock: Clock | None = None) -> Book:
     """Write the demo plant to `path`; an existing logbook is kept unless `force`."""
     path = Path(path)
     if path.exists() and path.stat().st_size > 0:
@@ -54,7 +55,7 @@ def create_demo(path: Path, force: bool = False) -> Book:
     finally:
         book.close()
     os.replace(tmp, path)
-    return open_book(path)
+    return open_book(path, clock=clock)
 
 
 THROWAWAY_PREFIX = "sumpbook-throwaway-"  # the temporary folders of throw-away books
@@ -64,17 +65,17 @@ def _throwaway_folder() -> Path:
     return Path(tempfile.mkdtemp(prefix=THROWAWAY_PREFIX))
 
 
-def throwaway_demo() -> Book:
+def throwaway_demo(clock: Clock | None = None) -> Book:
     """A fresh copy of the demo plant in a new temporary folder, for the app to open when
     no logbook exists yet: its story starts where it was frozen every time, and nothing
     logged in it is kept (`discard` removes it when the app closes or moves on)."""
-    return create_demo(_throwaway_folder() / "demo.db")
+    return create_demo(_throwaway_folder() / "demo.db", clock=clock)
 
 
-def throwaway_empty() -> Book:
+def throwaway_empty(clock: Clock | None = None) -> Book:
     """An empty book in a new temporary folder: what the app stands on while it asks
     whether to create a logbook that does not exist yet."""
-    return open_book(_throwaway_folder() / "empty.db")
+    return open_book(_throwaway_folder() / "empty.db", clock=clock)
 
 
 def is_throwaway(path: Path) -> bool:

@@ -15,7 +15,7 @@ from typing import Any, TypeVar
 
 from store.base import validate
 from store.base.errors import BookError
-from store.base.timeutil import format_utc, parse_utc, utc_now
+from store.base.timeutil import format_utc, parse_utc
 from store.base.validate import FILTER_KINDS
 from store.db.book import Book
 from store.physics.cleanliness import parse_code
@@ -286,7 +286,7 @@ def _log_change(book: Book, table: str, tag: str, field: str, old: Any, new: Any
         "VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
         [
             str(uuid.uuid4()),
-            format_utc(utc_now()),
+            format_utc(book.clock()),
             by,
             table,
             tag,

@@ -13,6 +13,7 @@ from typing import Any, TypeVar
 
 from store import Book, open_book
 from store.base.errors import BookError
+from store.base.session import Clock
 
 F = TypeVar("F", bound=Callable[..., Any])
 PROBLEMS = (BookError, sqlite3.Error, OSError)
@@ -32,7 +33,7 @@ def guarded(method: F) -> F:
     return wrapper  # type: ignore[return-value]
 
 
-def read_early(path: Path, read: Callable[[Book], Any]) -> Future[Any]:
+def read_early(path: Path, read: Callable[[Book], Any], clock: Clock) -> Future[Any]:
     """Start `read` on a connection of its own in a thread now (the app calls it while
     Textual is still starting, so the first list is read meanwhile); the screen's worker
     then waits for the result with `read_in_thread(..., early=...)`.
@@ -44,7 +45,7 @@ def read_early(path: Path, read: Callable[[Book], Any]) -> Future[Any]:
 
     def in_thread() -> None:
         try:
-            with open_book(path, create=False) as book:
+            with open_book(path, create=False, clock=clock) as book:
                 future.set_result(read(book))
         except BaseException as exc:  # noqa: BLE001 - handed to the screen's worker
             future.set_exception(exc)

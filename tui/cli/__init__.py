@@ -10,8 +10,9 @@ import sys
 from collections.abc import Callable, Sequence
 from pathlib import Path
 
-from store import ENV_DB, damaged_read, default_path
+from store import damaged_read
 from store.base.errors import BookError
+from store.base.session import ENV_DB, from_environ, user_book_path
 from store.base.text import inert
 from store.ledger import journal
 from tui.cli import commands
@@ -74,7 +75,7 @@ def build_parser() -> argparse.ArgumentParser:
         "Without a command it opens the terminal app.",
     )
     parser.add_argument(
-        "--db", type=Path, help=f"logbook file (default: ${ENV_DB} or {default_path()})"
+        "--db", type=Path, help=f"logbook file (default: ${ENV_DB} or {user_book_path()})"
     )
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
 
@@ -263,11 +264,12 @@ def run(args: argparse.Namespace) -> int:
 def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(join_negative_values(sys.argv[1:] if argv is None else argv))
+    args.session = session = from_environ(os.environ)  # the one reading of the environment
     if args.command in (None, "app"):
-        from tui.app import run_app
+        from tui.app import run_app  # textual loads only when the app runs
 
         try:
-            return run_app(args.db, dict(os.environ))
+            return run_app(args.db, session)
         except BookError as exc:
             print(f"sumpbook: {inert(str(exc))}", file=sys.stderr)
             return EXIT_BAD_INPUT
@@ -298,7 +300,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_BAD_INPUT
     except sqlite3.DatabaseError as exc:  # a read met a damaged page (writes are checked first)
         print(
-            f"sumpbook: {inert(str(damaged_read(exc, args.db or default_path())))}", file=sys.stderr
+            f"sumpbook: {inert(str(damaged_read(exc, args.db or session.db_path)))}", file=sys.stderr
         )
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
@@ -307,7 +309,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return 0
     except Exception as exc:  # a bug: one line for the user, the trace on request
-        if os.environ.get("SUMPBOOK_DEBUG"):
+        if session.debug:
             raise
         print(
             f"sumpbook: unexpected error ({type(exc).__name__}: {inert(str(exc))}); nothing more was "

@@ -13,7 +13,6 @@ from typing import TYPE_CHECKING, Any
 from store import (
     Book,
     copy_holding_lock,
-    default_path,
     full_check,
     open_book,
     record,
@@ -66,7 +65,7 @@ OPENED: list[Book] = []
 
 
 def _book(args: argparse.Namespace, create: bool = False) -> Book:
-    book = open_book(args.db or default_path(), create=create)
+    book = open_book(args.db or args.session.db_path, create=create, clock=args.session.clock)
     for notice in book.notices:  # e.g. rows an upgrade could not carry over
         console(stderr=True).print(f"note: {notice}", markup=False)
     OPENED.append(book)
@@ -92,7 +91,7 @@ def _pairs(items: list[str]) -> dict[str, str]:
 
 
 def _by(args: argparse.Namespace) -> str:
-    who = getattr(args, "by", None) or laptop.load().tech
+    who = getattr(args, "by", None) or laptop.load(args.session.config_path).tech
     if not who:
         raise BookError("who is logging? add --by INITIALS or sign in: sumpbook prefs tech=JK")
     return who
@@ -118,8 +117,8 @@ def _at(book: Book, args: argparse.Namespace):  # noqa: ANN202 - datetime | None
 def cmd_demo(args: argparse.Namespace) -> int:
     from store.exchange.demo import create_demo
 
-    path = args.db or default_path()
-    with create_demo(path, force=args.force) as book:
+    path = args.db or args.session.db_path
+    with create_demo(path, force=args.force, clock=args.session.clock) as book:
         units = len(register.list_all(book, Unit))
         entries = journal.count(book)
     say(f"demo plant written to {path}: {units} units, {entries} entries")
@@ -136,7 +135,7 @@ def _opt_bar(text: str | None, unit: str) -> float | None:
 def cmd_register(args: argparse.Namespace) -> int:
     if args.what == "history":
         return _register_history(args)
-    prefs = laptop.load()
+    prefs = laptop.load(args.session.config_path)
     with _book(args, create=True) as book:
         by = getattr(args, "by", None) or prefs.tech
         what = args.what
@@ -227,7 +226,7 @@ def _register_change(book: Book, args: argparse.Namespace, by: str) -> int:
     cls = _CHANGE_TABLES[args.table]
     current = register.get(book, cls, args.tag)
     changes: dict[str, Any] = {}
-    prefs = laptop.load()
+    prefs = laptop.load(args.session.config_path)
     for key, text in _pairs(args.fields).items():
         name = _field_name(current, key)
         if name.endswith("_bar") and text.strip().lower() not in ("", "none", "-"):
@@ -275,7 +274,7 @@ def _field_name(record: Any, key: str) -> str:
 
 
 def cmd_list(args: argparse.Namespace) -> int:
-    prefs = laptop.load()
+    prefs = laptop.load(args.session.config_path)
     with _book(args) as book:
         if args.unit:
             args.unit = register.get(book, Unit, args.unit).tag
@@ -294,7 +293,7 @@ def cmd_list(args: argparse.Namespace) -> int:
 
 
 def cmd_log(args: argparse.Namespace) -> int:
-    prefs = laptop.load()
+    prefs = laptop.load(args.session.config_path)
     with _book(args) as book:
         common = {"at": _at(book, args), "by": _by(args), "note": getattr(args, "note", "") or ""}
         kind = args.kind
@@ -399,7 +398,7 @@ def strict_json(data: Any) -> str:
 def cmd_status(args: argparse.Namespace) -> int:
     from store.health import status
 
-    prefs = laptop.load()
+    prefs = laptop.load(args.session.config_path)
     with _book(args) as book:
         as_of = _time(book, args.as_of) if args.as_of else None
         unit = register.get(book, Unit, args.unit).tag if args.unit else None
@@ -417,7 +416,7 @@ def cmd_status(args: argparse.Namespace) -> int:
 def cmd_export(args: argparse.Namespace) -> int:
     from store.exchange.csvexport import BOM, export_file, write_span
 
-    prefs = laptop.load()
+    prefs = laptop.load(args.session.config_path)
     with _book(args) as book:
         local, pattern = book.local_zone(), book.shift_pattern()
         now = book.now()
@@ -484,7 +483,7 @@ def cmd_import(args: argparse.Namespace) -> int:
 
 
 def cmd_prefs(args: argparse.Namespace) -> int:
-    current = laptop.load()
+    current = laptop.load(args.session.config_path)
     if args.settings:
         changes = _pairs(args.settings)
         aliases = {"temp": "temperature", "initials": "tech"}
@@ -495,7 +494,7 @@ def cmd_prefs(args: argparse.Namespace) -> int:
         if "tech" in changes:
             with _book(args) as book:
                 changes["tech"] = register.get(book, Technician, changes["tech"]).tag
-        current = laptop.save(current, **changes)
+        current = laptop.save(current, args.session.config_path, **changes)
     for key, value in current.__dict__.items():
         say(f"{key} = {value}")
     return 0
@@ -524,7 +523,7 @@ def cmd_backup(args: argparse.Namespace) -> int:
 
 
 def cmd_restore(args: argparse.Namespace) -> int:
-    path = args.db or default_path()
+    path = args.db or args.session.db_path
     kept = restore(Path(args.file), path)
     say(
         f"restored {args.file} into {path}"
@@ -545,7 +544,7 @@ def cmd_merge(args: argparse.Namespace) -> int:
 
 
 def cmd_check(args: argparse.Namespace) -> int:
-    path = Path(args.db or default_path())
+    path = Path(args.db or args.session.db_path)
     full_check(path)  # damage: one line naming the latest backup, and writes refuse the book
     say(f"ok: {path} passed the full integrity check")
     return 0

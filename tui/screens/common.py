@@ -80,7 +80,7 @@ class BookScreen(Screen):
 
         A failure is shown as a notification, never as a traceback.
         """
-        path = self.sb.book.path
+        path, clock = self.sb.book.path, self.sb.book.clock
 
         def job() -> None:
             worker = get_current_worker()
@@ -88,7 +88,7 @@ class BookScreen(Screen):
                 if early is not None:
                     result = early.result()
                 else:
-                    with open_book(path, create=False) as book:
+                    with open_book(path, create=False, clock=clock) as book:
                         result = read(book)
             except Exception as exc:  # noqa: BLE001 - shown to the user, not raised
                 if not worker.is_cancelled:

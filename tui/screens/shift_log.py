@@ -12,6 +12,7 @@ from textual.widgets import DataTable, Header, Static
 
 from store import open_book
 from store.base.prefs import Prefs
+from store.base.session import Clock
 from store.base.timeutil import ShiftSpan, next_shift, previous_shift, shift_at, shift_named
 from store.exchange.csvexport import export_file as write_file
 from store.views import ShiftLog, kind_counts, shift_log
@@ -27,9 +28,9 @@ from tui.widgets.keystrip import KeyStrip
 from tui.widgets.rowtable import ENTRY_COLUMNS, RowTable
 
 
-def export_file(path: str, dest: Path, span: ShiftSpan, prefs: Prefs) -> int:
+def export_file(path: str, dest: Path, span: ShiftSpan, prefs: Prefs, clock: Clock) -> int:
     """Write one shift's entries as CSV (runs in a worker thread on its own connection)."""
-    with open_book(path, create=False) as book:
+    with open_book(path, create=False, clock=clock) as book:
         local, pattern = book.local_zone(), book.shift_pattern()
         return write_file(book, dest, span.start, span.end, prefs, local, pattern)
 
@@ -217,15 +218,14 @@ class ShiftLogScreen(BookScreen):
         if dest is None:
             return
         span = self.span or self.current_span()
-        p = self.sb.prefs
-        prefs = p
-        path = str(self.sb.book.path)
+        prefs = self.sb.prefs
+        path, clock = str(self.sb.book.path), self.sb.book.clock
         self.exporting = True
         self.query_one(DataTable).loading = True
 
         def job() -> None:
             try:
-                count = export_file(path, dest, span, prefs)
+                count = export_file(path, dest, span, prefs, clock)
             except Exception as exc:  # noqa: BLE001 - shown to the user
                 self.app.call_from_thread(self.export_done, dest, None, exc)
                 return
