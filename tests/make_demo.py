@@ -4,7 +4,7 @@ Run from the repository top:  python tests/make_demo.py
 
 The plant, its machines, its people (initials only) and every number are made up. The story
 is simulated with a seeded random generator, so the output is the same byte for byte on every
-run: tests/test_demo.py checks that demo.db.sql still equals what this script writes.
+run: tests/store/test_demo.py checks that demo.db.sql still equals what this script writes.
 
 How the numbers are made:
 - Each unit runs to its own timetable; the oil temperature follows the hall temperature

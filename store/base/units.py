@@ -2,7 +2,7 @@
 
 Factors: NIST SP 811 (2008) Appendix B.8, with the exact definitions behind it
 (1 lb = 0.45359237 kg, g_n = 9.80665 m/s², 1 in = 0.0254 m, 1 US gal = 231 in³,
-1 bar = 1e5 Pa). Cross-checked against pint in tests/test_units.py.
+1 bar = 1e5 Pa). Cross-checked against pint in tests/store/test_units.py.
 """
 
 from __future__ import annotations

@@ -8,8 +8,8 @@ needs; see below for the rest); each cell made ready for the file once per disti
 (quoted as `csv.writer` does); the shift and the UTC offset kept while they hold; each
 filter's reference condition worked out once. Anything unusual (a stamp not in the book's own
 form, an hour holding a change of offset, a reading the normalising maths would refuse) is
-done the slow, plain way for that row. tests/test_csvexport.py holds it byte for byte to the
-plain entry-by-entry writer kept in tests/csv_oracle.py.
+done the slow, plain way for that row. tests/store/test_csvexport.py holds it byte for byte to the
+plain entry-by-entry writer kept in tests/kit/csv_oracle.py.
 
 One process: a span once shared with a forked second process measured 0.8x (slower) on a busy
 2-core machine, so the fork went.

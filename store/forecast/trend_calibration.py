@@ -25,7 +25,7 @@ The shipped factors (SHIPPED) were derived by `python tests/benchmarks/clogging.
 from the 24 open PHME 2020 clogging runs (shared/data/phme20, SOURCE.md there): for each of the
 six (particle size, solid ratio) conditions, its four runs forecast with the other 20 runs as
 history, at 30, 35, ... 95 % of life, technician log seed 1, before any recalibration
-(IDENTITY; the widening beyond the earlier lives included). tests/test_clogging.py derives them
+(IDENTITY; the widening beyond the earlier lives included). tests/store/test_clogging.py derives them
 again from the data and compares. The benchmark never scores these numbers on the same data: it derives them again for each held-out condition
 from the other five only. They come from one laboratory rig; on a plant they move the dates by
 a few per cent at most.

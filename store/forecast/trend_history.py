@@ -29,7 +29,7 @@ on the 24 PHME 2020 runs with each (particle size, solid ratio) condition held o
   at 70 % rose from 11 % to 21 % when every element has replicates in its history;
 - a flatter likelihood (loss / 2, 4, 8): wider intervals, median error 18-21 % at 70 %;
 - the mixture: figures in the README ("How good is the due date?"); the ln 1.2 floor was added
-  for a steady history (tests/test_trend.py, an element at 0.65 of every earlier life) and
+  for a steady history (tests/store/test_trend.py, an element at 0.65 of every earlier life) and
   moves the headline by a few tenths of a per cent.
 
 Beyond the history. The prior and the readings settle on a matched life (the posterior median
