@@ -12,9 +12,12 @@ from __future__ import annotations
 import math
 import re
 import uuid
+import zoneinfo
 from dataclasses import dataclass
 from datetime import UTC, datetime, timedelta
 from typing import Any
+
+from dateutil import tz
 
 from store.base.errors import BookError
 
@@ -221,16 +224,12 @@ _ZONE_RE = re.compile(r"^[A-Za-z][A-Za-z0-9_+\-]*(/[A-Za-z0-9_+\-]+){0,2}$")
 
 def timezone_name(name: Any) -> str:
     """An IANA time-zone name the system (or python-dateutil) knows; never a path."""
-    import zoneinfo
-
     clean = name.strip() if isinstance(name, str) else ""
     if len(clean) <= 64 and _ZONE_RE.match(clean):
         try:
             zoneinfo.ZoneInfo(clean)
             return clean
         except (zoneinfo.ZoneInfoNotFoundError, ValueError, OSError):
-            from dateutil import tz
-
             if tz.gettz(clean) is not None:
                 return clean
     raise BookError(

@@ -19,6 +19,8 @@ from datetime import datetime, timedelta
 from functools import partial
 from typing import TYPE_CHECKING, Any, NamedTuple
 
+from dateutil import tz
+
 from store.base.errors import BookError
 from store.base.timeutil import iso_local
 from store.db.book import Book
@@ -830,8 +832,6 @@ def _r(value: float | None, digits: int = 3) -> float | None:
 
 
 def to_json(w: Watch, local: Any = None) -> dict[str, Any]:
-    from dateutil import tz
-
     local = local or tz.UTC
     return {
         "as_of": iso_local(w.as_of, local),

@@ -103,8 +103,9 @@ def test_store_never_imports_the_ui():
     # house rule: store/ is importable without Textual or Rich
     code = (
         "import importlib, pkgutil, sys, store\n"
-        "for m in pkgutil.iter_modules(store.__path__):\n"
-        "    importlib.import_module('store.' + m.name)\n"
+        "for m in pkgutil.walk_packages(store.__path__, 'store.'):\n"
+        "    importlib.import_module(m.name)\n"
+        "assert 'store.exchange.merge' in sys.modules, 'the walk missed the sub-packages'\n"
         "bad = [n for n in ('textual', 'rich') if n in sys.modules]\n"
         "sys.exit(1 if bad else 0)\n"
     )

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 from datetime import datetime
-from typing import TYPE_CHECKING
 
 from rich.table import Table
 from rich.text import Text
@@ -13,6 +12,8 @@ from store.base.prefs import Prefs
 from store.base.text import inert
 from store.base.timeutil import local_text
 from store.base.units import pressure_label
+from store.health.conditions import contexts, normalise
+from store.health.status import FLAG_WORDS, URGENT_FLAGS, Watch
 from store.ledger import register
 from store.ledger.entries import (
     BreatherSwap,
@@ -25,10 +26,8 @@ from store.ledger.entries import (
     Void,
 )
 from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
+from store.physics.cleanliness import compare_to_target, parse_code
 from tui.base.quantities import pressure, temperature, volume
-
-if TYPE_CHECKING:
-    from store.health.status import Watch
 
 CAUTION_SHORT = (
     "Safety: isolate and lock out, relieve pressure and accumulators, let hot oil cool, wear "
@@ -98,8 +97,6 @@ def describe(entry: Entry, prefs: Prefs, target_code: str | None = None) -> str:
     if isinstance(entry, Sample):
         parts = [f"code {entry.code}"] if entry.code else []
         if entry.code and target_code:
-            from store.physics.cleanliness import compare_to_target, parse_code
-
             parts.append(
                 compare_to_target(parse_code(entry.code), parse_code(target_code)).describe()
             )
@@ -129,8 +126,6 @@ def saved_line(book: Book, entry: Entry, prefs: Prefs) -> str:
 
 
 def entries_table(book: Book, entries: list[Entry], prefs: Prefs) -> Table:
-    from store.health.conditions import contexts, normalise
-
     ctxs = contexts(book)
     table = Table(title=f"Entries ({len(entries)})", title_justify="left")
     for name in (
@@ -303,8 +298,6 @@ def due_day(book: Book, moment: datetime | None) -> str:
 
 
 def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
-    from store.health.status import FLAG_WORDS, URGENT_FLAGS
-
     table = Table(title=f"Watch list as of {when(book, watch.as_of)}", title_justify="left")
     for c in (
         "filter",

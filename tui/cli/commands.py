@@ -25,7 +25,11 @@ from store.base.text import inert, json_inert
 from store.base.timeutil import parse_time, previous_shift, shift_at, shift_named
 from store.base.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
 from store.base.validate import plant_setting
+from store.exchange.csvexport import BOM, export_file, write_span
 from store.exchange.csvio import import_csv
+from store.exchange.demo import create_demo
+from store.exchange.merge import merge
+from store.health import status
 from store.ledger import journal, register
 from store.ledger.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp, Void
 from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
@@ -115,8 +119,6 @@ def _at(book: Book, args: argparse.Namespace):  # noqa: ANN202 - datetime | None
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
-    from store.exchange.demo import create_demo
-
     path = args.db or args.session.db_path
     with create_demo(path, force=args.force, clock=args.session.clock) as book:
         units = len(register.list_all(book, Unit))
@@ -396,8 +398,6 @@ def strict_json(data: Any) -> str:
 
 
 def cmd_status(args: argparse.Namespace) -> int:
-    from store.health import status
-
     prefs = laptop.load(args.session.config_path)
     with _book(args) as book:
         as_of = _time(book, args.as_of) if args.as_of else None
@@ -414,8 +414,6 @@ def cmd_status(args: argparse.Namespace) -> int:
 
 
 def cmd_export(args: argparse.Namespace) -> int:
-    from store.exchange.csvexport import BOM, export_file, write_span
-
     prefs = laptop.load(args.session.config_path)
     with _book(args) as book:
         local, pattern = book.local_zone(), book.shift_pattern()
@@ -533,8 +531,6 @@ def cmd_restore(args: argparse.Namespace) -> int:
 
 
 def cmd_merge(args: argparse.Namespace) -> int:
-    from store.exchange.merge import merge
-
     with _book(args) as book:
         report = merge(book, Path(args.other))
     say(report.summary())
