@@ -43,6 +43,9 @@ ENTRY_REFERENCES = {
     "fluid": "fluids",
 }
 MAX_LINES_PER_REASON = 5
+# Rows per INSERT of sqlite-utils' insert_all (it lowers this to stay under SQLite's limit
+# of bound values per statement).
+BATCH_ROWS = 100
 MAX_NAMED_ADDITIONS = 8
 
 
@@ -174,6 +177,7 @@ class _Merger:
     def __init__(self, book: Book, other: _Snapshot, report: MergeReport) -> None:
         self.book = book
         self.conn = book.conn
+        self.db = book.db  # the same connection: its writes land in the merge's transaction
         self.other = other
         self.report = report
         self.conflicting: set[tuple[str, str]] = set()  # (table, TAG) decided by a person
@@ -205,7 +209,8 @@ class _Merger:
     # ---- register -------------------------------------------------------------------------------
 
     def _columns(self, table: str) -> list[str]:
-        return [r[1] for r in self.conn.execute(f"PRAGMA table_info({table})").fetchall()]
+        """This book's columns of `table`: another book's rows are written with these only."""
+        return list(self.db[table].columns_dict)
 
     def _here(self, table: str, tag: str) -> dict[str, Any] | None:
         rows = _rows(self.conn, f"SELECT * FROM {table} WHERE tag = ?", [tag])
@@ -236,12 +241,7 @@ class _Merger:
                         f"{WHAT[clash]} {tag}; not brought in"
                     )
                     continue
-                values = [theirs.get(c) for c in columns]
-                self.conn.execute(
-                    f"INSERT INTO {table} ({', '.join(columns)}) "
-                    f"VALUES ({', '.join('?' for _ in columns)})",
-                    values,
-                )
+                self.db[table].insert({c: theirs.get(c) for c in columns})
                 self.report.register_added.append(f"{what} {tag}")
                 continue
             differences = [
@@ -324,6 +324,7 @@ class _Merger:
 
     def _register_log(self) -> None:
         columns = self._columns("register_log")
+        new: list[dict[str, Any]] = []
         for row in self.other.register_log:
             if (str(row["tbl"]), str(row["tag"]).upper()) in self.conflicting:
                 continue  # the change was not made here; the person deciding will log theirs
@@ -335,23 +336,26 @@ class _Merger:
             ).fetchone()
             if exists:
                 continue
-            self.conn.execute(
-                f"INSERT INTO register_log ({', '.join(columns)}) "
-                f"VALUES ({', '.join('?' for _ in columns)})",
-                [row.get(c) for c in columns],
-            )
-            self.report.log_added += 1
+            new.append({c: row.get(c) for c in columns})
+        self.db["register_log"].insert_all(new, batch_size=BATCH_ROWS)
+        self.report.log_added += len(new)
 
     # ---- entries --------------------------------------------------------------------------------
 
     def _entries(self) -> None:
+        """Entries other than voids are checked against the register and this book's own
+        entries only, so they are written in batches. A void is checked against the entries
+        before it (the one it voids may have come in with this merge, even as a void): the
+        batch is written first and the void on its own."""
         columns = self._columns("entries")
         latest = format_utc(self.book.now() + MAX_AHEAD)
-        insert = (
-            f"INSERT INTO entries ({', '.join(columns)}) VALUES ({', '.join('?' for _ in columns)})"
-        )
+        pending: list[dict[str, Any]] = []
+        table = self.db["entries"]
         touched: dict[tuple[Any, ...], dict[str, Any]] = {}
         for theirs in self.other.entries:
+            if theirs.get("voids") is not None and pending:
+                table.insert_all(pending, batch_size=BATCH_ROWS)
+                pending = []
             problem = validate.entry_row_problem(theirs)
             if problem:
                 self.left_out[f"values no one could have typed here ({problem})"].append(
@@ -371,9 +375,10 @@ class _Merger:
             if reason:
                 self.left_out[reason].append(theirs["id"])
                 continue
-            self.conn.execute(insert, [theirs.get(c) for c in columns])
+            pending.append({c: theirs.get(c) for c in columns})
             self.report.entries_added += 1
             touched[self._target(theirs)] = theirs
+        table.insert_all(pending, batch_size=BATCH_ROWS)
         self._after_write(touched.values())
 
     def _target(self, entry: dict[str, Any]) -> tuple[Any, ...]:
