@@ -25,12 +25,23 @@ def after_write(book: Book, entries: Sequence[Entry]) -> None:
     """Inside the caller's write transaction: bring the derived rows up to date for the
     entries it wrote, once per filter, breather or unit touched (each refresh reads all the
     entries of its target, so its newest entry is enough)."""
-    last: dict[str, Entry] = {}
-    for entry in entries:
-        key = getattr(entry, "voids", None) or entry.target or entry.unit or ""
-        last[key] = entry
+    last: dict[tuple[str, str], Entry] = {}
+    for entry in entries:  # per kind too: what a refresh looks at beside its target differs
+        last[(_target(book, entry), entry.kind)] = entry
     for entry in last.values():
         statuscache.after_entry(book, entry)
+
+
+def _target(book: Book, entry: Entry) -> str:
+    """What an entry's refresh recomputes: its filter, breather or unit; a void's is the
+    voided entry's (a hundred voids on one filter refresh it once)."""
+    voids = getattr(entry, "voids", None)
+    if voids:
+        row = book.conn.execute(
+            "SELECT coalesce(filter, breather, unit) FROM entries WHERE id = ?", [voids]
+        ).fetchone()
+        return (row[0] or "").upper() if row else voids
+    return (entry.target or entry.unit or "").upper()
 
 
 def log(book: Book, entry: Entry) -> Entry:

@@ -54,15 +54,19 @@ class Book:
     unreadable: dict[str, str] = field(default_factory=dict)
     inode: tuple[int, int] | None = None  # (device, inode) of the file when it was opened
     clock: Callable[[], datetime] = utc_now  # this run's clock (store.base.session)
+    _db: sqlite_utils.Database | None = field(default=None, repr=False, compare=False)
 
     @property
     def db(self) -> sqlite_utils.Database:
-        """The same connection as a sqlite-utils database, for table-level work. Made on
-        first use: importing sqlite-utils pulls in numpy and click (about 0.1 s), which the
-        app's start and the quick commands do without."""
-        import sqlite_utils
+        """The same connection as a sqlite-utils database, for table-level work. Made once,
+        on first use: importing sqlite-utils pulls in numpy and click (about 0.1 s), which the
+        app's start and the quick commands do without. Recursive triggers stay off (the
+        library turns them on by default; the book's triggers are written without them)."""
+        if self._db is None:
+            import sqlite_utils  # deferred: see above
 
-        return sqlite_utils.Database(self.conn)
+            self._db = sqlite_utils.Database(self.conn, recursive_triggers=False)
+        return self._db
 
     def close(self) -> None:
         self.conn.close()

@@ -136,3 +136,18 @@ def test_read_filters_by_time_unit_and_kind(book):
         1.1,
         1.0,
     ]
+
+
+def test_voids_of_one_filter_refresh_it_once(book, monkeypatch):
+    # A batch with many voids on one filter (a CSV import, a merge) recomputes that filter
+    # once, not once per void.
+    readings = record.log_many(
+        book, [Reading(filter="P1-RF", dp_bar=1.0 + i / 10, by="AB") for i in range(6)]
+    )
+    calls = []
+    monkeypatch.setattr(
+        "store.derived.statuscache.after_entry", lambda b, e: calls.append(type(e).__name__)
+    )
+    record.log_many(book, [Void(voids=r.id, note="typed twice", by="AB") for r in readings[:5]])
+    assert calls == ["Void"]
+    assert sum(e.voided for e in journal.read(book, filter="P1-RF")) == 5

@@ -17,7 +17,7 @@ from store.db.book import open_book
 from store.exchange import merge as merging
 from store.ledger import journal
 from store.ledger.entries import Note, Reading, Void
-from tests.conftest import fill_register
+from tests.kit.plant import fill_register
 
 TABLES = ("technicians", "fluids", "units", "filters", "breathers", "register_log", "entries")
 
