@@ -1,0 +1,29 @@
+"""Everything of sumpbook that is not screen, in layers (DEVELOPERS.md draws them):
+
+    views, exchange        read-only answers for screens and CLI; CSV, merge, demo
+    record                 every save: entries and the derived rows kept with them
+    derived                the kept rows (element summaries, status cache)
+    health                 the state of each filter, breather and unit, from the ledger
+    ledger, forecast       entries and the register; the due-date maths
+    db, physics            the SQLite file; viscosity, ΔP normalisation, ISO 4406
+    base                   errors, time, units, value checks, preferences
+
+A module imports only from its own layer's lower neighbours (checked by import-linter, see
+pyproject.toml). The screens and the command line reach the book file and the kept rows
+only through the names below; everything else they take from the upper layers directly.
+"""
+
+from store.db.backup import copy_holding_lock, restore, rolling_backup
+from store.db.book import Book, deep_check, full_check, open_book
+from store.db.connection import damaged_read
+
+__all__ = [
+    "Book",
+    "copy_holding_lock",
+    "damaged_read",
+    "deep_check",
+    "full_check",
+    "open_book",
+    "restore",
+    "rolling_backup",
+]

@@ -2,16 +2,13 @@
 
 from __future__ import annotations
 
-import json
 import shutil
-from pathlib import Path
 
 import pytest
 
-from store import register
-from store.book import Book, open_book
-from store.demo import create_demo
-from store.register import Breather, FilterPosition, Fluid, Technician, Unit
+from store.db.book import open_book
+from store.exchange.demo import create_demo
+from tests.kit.plant import app_for, fill_register, write_prefs
 
 
 @pytest.fixture(autouse=True)
@@ -23,72 +20,11 @@ def _isolated(tmp_path, monkeypatch):
     monkeypatch.setenv("TZ", "UTC")
 
 
-def fill_register(book: Book) -> None:
-    """A tiny invented plant: one unit, two filters, one breather, two technicians."""
-    register.add(book, Technician(tag="AB", name="A.B."))
-    register.add(book, Technician(tag="CD"))
-    # ISO VG 46 oil; ν40 and ν100 typical of a VI ~100 mineral oil (invented test fluid)
-    register.add(
-        book, Fluid(tag="HV46", name="test oil 46", iso_vg=46, nu40_cst=46.0, nu100_cst=6.8)
-    )
-    register.add(
-        book,
-        Unit(
-            tag="P1",
-            name="Press 1",
-            area="Hall A",
-            reservoir_l=400,
-            fluid="HV46",
-            normal_temp_c=50,
-            coldest_start_c=10,
-            target_code="17/15/12",
-        ),
-    )
-    register.add(
-        book,
-        FilterPosition(
-            tag="P1-RF",
-            unit="P1",
-            kind="return",
-            element="RX-10",
-            rating_um=10,
-            bypass_bar=3.5,
-            limit_bar=2.5,
-            clean_bar=0.4,
-            normal_flow_lpm=120,
-        ),
-    )
-    register.add(
-        book,
-        FilterPosition(
-            tag="P1-PF",
-            unit="P1",
-            kind="pressure",
-            rating_um=3,
-            bypass_bar=7.0,
-            limit_bar=5.0,
-            clean_bar=0.8,
-            gauge=False,
-        ),
-    )
-    register.add(book, Breather(tag="P1-BR", unit="P1", kind="desiccant", swap_interval_d=90))
-    register.set_shifts(book, [("early", "06:00"), ("late", "14:00"), ("night", "22:00")])
-
-
 @pytest.fixture
 def book(tmp_path):
     with open_book(tmp_path / "book.db") as b:
         fill_register(b)
         yield b
-
-
-def write_prefs(tmp_path: Path, **prefs: str) -> Path:
-    """This laptop's preferences as a file: technician AB, bar, °C, L, dark, unless given."""
-    path = tmp_path / "prefs.json"
-    data = {"tech": "AB", "pressure": "bar", "temperature": "C", "volume": "L", "theme": "dark"}
-    data.update(prefs)
-    path.write_text(json.dumps(data), encoding="utf-8")
-    return path
 
 
 @pytest.fixture(scope="session")
@@ -112,7 +48,7 @@ def demo_app(demo_file, tmp_path, monkeypatch):
 
     def make(**prefs: str) -> SumpbookApp:
         monkeypatch.setenv("SUMPBOOK_CONFIG", str(write_prefs(tmp_path, tech="AK", **prefs)))
-        return SumpbookApp(open_book(path), cursor_blink=False)
+        return app_for(path)
 
     make.path = path  # type: ignore[attr-defined]
     return make

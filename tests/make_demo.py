@@ -4,7 +4,7 @@ Run from the repository top:  python tests/make_demo.py
 
 The plant, its machines, its people (initials only) and every number are made up. The story
 is simulated with a seeded random generator, so the output is the same byte for byte on every
-run: tests/test_demo.py checks that demo.db.sql still equals what this script writes.
+run: tests/store/test_demo.py checks that demo.db.sql still equals what this script writes.
 
 How the numbers are made:
 - Each unit runs to its own timetable; the oil temperature follows the hall temperature
@@ -13,7 +13,7 @@ How the numbers are made:
 - Each filter element loads along clean + (limit - clean) * g(age / life), with
   g(u) = c * u + (1 - c) * (exp(k u) - 1) / (exp(k) - 1): slow at first, then faster.
   Age is operating time. The gauge shows that reference ΔP turned back into the ΔP at the
-  reading's temperature (and flow, where logged) with store.normalise, plus a little noise,
+  reading's temperature (and flow, where logged) with store.physics.normalise, plus a little noise,
   rounded to the gauge's resolution.
 - An element is changed when a reading reaches its change limit (earlier on filters read only
   weekly), or at the summer shutdown (planned, right-censored lives).
@@ -22,7 +22,6 @@ How the numbers are made:
 from __future__ import annotations
 
 import math
-import os
 import random
 import sys
 import tempfile
@@ -38,11 +37,15 @@ ROOT = Path(__file__).resolve().parent.parent
 if str(ROOT) not in sys.path:  # run as a script from anywhere
     sys.path.insert(0, str(ROOT))
 
-from store import journal, register  # noqa: E402
-from store.book import Book, open_book  # noqa: E402
-from store.cleanliness import code_from_counts, parse_code, scale_number  # noqa: E402
-from store.conditions import FilterContext, contexts  # noqa: E402
-from store.entries import (  # noqa: E402
+
+from store import record  # noqa: E402
+from store.base.session import fixed_clock  # noqa: E402
+from store.base.timeutil import format_utc  # noqa: E402
+from store.db.book import Book, open_book  # noqa: E402
+from store.db.schema import SCHEMA_VERSION  # noqa: E402
+from store.health.conditions import FilterContext, contexts  # noqa: E402
+from store.ledger import register  # noqa: E402
+from store.ledger.entries import (  # noqa: E402
     BreatherSwap,
     ElementChange,
     Entry,
@@ -52,10 +55,9 @@ from store.entries import (  # noqa: E402
     TopUp,
     Void,
 )
-from store.normalise import dp_at_temp_bar  # noqa: E402
-from store.register import Breather, FilterPosition, Fluid, Technician, Unit  # noqa: E402
-from store.schema import SCHEMA_VERSION  # noqa: E402
-from store.timeutil import ENV_NOW, format_utc  # noqa: E402
+from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit  # noqa: E402
+from store.physics.cleanliness import code_from_counts, parse_code, scale_number  # noqa: E402
+from store.physics.normalise import dp_at_temp_bar  # noqa: E402
 
 OUT_PATH = ROOT / "demo.db.sql"
 SEED = 4406
@@ -761,7 +763,7 @@ SAMPLES = [
 
 
 def _scale_floor(number: int) -> float:
-    """Smallest count per mL that store.cleanliness puts at this scale number (bisection)."""
+    """Smallest count per mL that store.physics.cleanliness puts at this scale number (bisection)."""
     lo, hi = 1e-4, 3e6
     for _ in range(100):
         mid = math.sqrt(lo * hi)
@@ -770,7 +772,7 @@ def _scale_floor(number: int) -> float:
 
 
 def counts_for(code: str, rng: random.Random) -> tuple[float, float, float]:
-    """Counts per mL at ≥4/≥6/≥14 µm(c) that give `code` (checked against store.cleanliness)."""
+    """Counts per mL at ≥4/≥6/≥14 µm(c) that give `code` (checked against store.physics.cleanliness)."""
     parsed = parse_code(code)
     result = []
     for number in (parsed.c4, parsed.c6, parsed.c14):
@@ -882,8 +884,8 @@ def populate(book: Book) -> None:
     book.set_setting("timezone", TIMEZONE)
     book.set_setting("clock", format_utc(CLOCK))
     for group in (TECHNICIANS, FLUIDS, UNITS, FILTERS, BREATHERS):
-        for record in group:
-            register.add(book, record, by="EW")
+        for item in group:
+            register.add(book, item, by="EW")
     register.set_shifts(book, list(SHIFTS), by="EW")
     plant = Plant(random.Random(f"{SEED}:plant"))
     story = Story(plant)
@@ -894,7 +896,7 @@ def populate(book: Book) -> None:
             story.add(cls, t, **fields)
     fluid_care(story)
     ordered = sorted(story.entries, key=lambda e: (e.at, e.kind == "void"))
-    journal.log_many(book, ordered)
+    record.log_many(book, ordered)
     # An inactive technician cannot log: FH is made inactive once the story is written.
     register.update(book, Technician, "FH", {"active": False}, by="EW")
 
@@ -934,7 +936,7 @@ def dump(book: Book) -> str:
         "-- Everything in it is made up: the plant, its machines, the people (initials only) and",
         "-- every reading. It tells eight months (April to November 2026) as they might have gone.",
         f"-- Data only (INSERT statements) for logbook schema version {SCHEMA_VERSION}",
-        "-- (store.schema.SCHEMA_VERSION); `sumpbook demo` loads it into a freshly migrated book.",
+        "-- (store.db.schema.SCHEMA_VERSION); `sumpbook demo` loads it into a freshly migrated book.",
         "-- Generated by tests/make_demo.py: do not edit; run `python tests/make_demo.py` instead.",
         f"-- The book is frozen at {format_utc(CLOCK)} (setting 'clock'), where the story ends.",
         "",
@@ -957,32 +959,19 @@ def dump(book: Book) -> str:
 def no_write_hooks() -> Iterator[None]:
     """Skip the status-cache refresh after each entry: the cache is derived, not demo data,
     and refreshing it ~2000 times against the story's final clock would only cost time."""
-    hooks = list(journal.AFTER_WRITE)
-    journal.AFTER_WRITE.clear()
+    kept = record.after_write
+    record.after_write = lambda book, entries: None
     try:
         yield
     finally:
-        journal.AFTER_WRITE.extend(hooks)
-
-
-@contextmanager
-def fixed_clock(moment: str) -> Iterator[None]:
-    """The store stamps register changes with utc_now(); fix it so the output repeats."""
-    before = os.environ.get(ENV_NOW)
-    os.environ[ENV_NOW] = moment
-    try:
-        yield
-    finally:
-        if before is None:
-            os.environ.pop(ENV_NOW, None)
-        else:
-            os.environ[ENV_NOW] = before
+        record.after_write = kept
 
 
 def build_sql() -> str:
     """The demo plant as SQL text (builds it in a temporary logbook)."""
-    with tempfile.TemporaryDirectory() as folder, fixed_clock(REGISTERED), no_write_hooks():
-        book = open_book(Path(folder) / "demo-build.db")
+    with tempfile.TemporaryDirectory() as folder, no_write_hooks():
+        # The store stamps register changes with the book's clock: fixed, the output repeats.
+        book = open_book(Path(folder) / "demo-build.db", clock=fixed_clock(REGISTERED))
         try:
             book.conn.execute("PRAGMA synchronous = OFF")  # a scratch file: speed over safety
             populate(book)

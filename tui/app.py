@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import gc
+import os
 import sqlite3
 import time
 from collections.abc import Sequence
@@ -20,14 +21,16 @@ from textual.reactive import reactive
 from textual.screen import ModalScreen, Screen
 from textual.theme import Theme
 
-from store import prefs as laptop
-from store import register
-from store.book import ENV_DB, Book, deep_check, default_path, open_book
-from store.demo import discard, is_throwaway, throwaway_demo, throwaway_empty
-from store.entries import BreatherSwap, ElementChange, Reading
-from store.errors import BookError
-from store.register import Technician, Unit
-from store.sheets import (
+from store import Book, deep_check, open_book, record, rolling_backup
+from store.base import prefs as laptop
+from store.base.errors import BookError
+from store.base.session import Session, from_environ
+from store.base.text import inert_line
+from store.exchange.demo import discard, is_throwaway, throwaway_demo, throwaway_empty
+from store.ledger import register
+from store.ledger.entries import BreatherSwap, ElementChange, Reading
+from store.ledger.register import Technician, Unit
+from store.views import (
     TagHit,
     WatchRow,
     breather_row,
@@ -37,21 +40,19 @@ from store.sheets import (
     filter_status_of,
     tag_index,
 )
-from store.text import inert_line
-from store.timeutil import utc_now
-
-from .keys import bind
-from .screens.common import guarded, long_name, read_early
-from .screens.first_run import FirstRunScreen
-from .screens.help import HelpScreen
-from .screens.sign_in import SignInScreen
-from .screens.watch import WatchData, WatchScreen, read_watch
-from .widgets import fmt
-from .widgets.inert import INERT_LINES
-from .widgets.palette import BookCommands
+from tui.base.keys import bind
+from tui.base.workers import guarded, read_early
+from tui.screens.common import long_name
+from tui.screens.first_run import FirstRunScreen
+from tui.screens.help import HelpScreen
+from tui.screens.sign_in import SignInScreen
+from tui.screens.watch import WatchData, WatchScreen, read_watch
+from tui.widgets import fmt
+from tui.widgets.inert import INERT_LINES
+from tui.widgets.palette import BookCommands
 
 if TYPE_CHECKING:
-    from .forms.base import Saved
+    from tui.forms.base import Saved
 
 # Screens and forms beyond the watch list are imported when first opened: the app's start
 # (to a painted watch list) loads only what that list needs.
@@ -161,14 +162,17 @@ class SumpbookApp(App[None]):
         demo: bool = False,
         cursor_blink: bool = True,
         new_path: Path | None = None,
+        session: Session | None = None,
     ) -> None:
         super().__init__()
         self.book = book
+        # Handed down by the command line; read here when the app is started without it.
+        self.session = session or from_environ(os.environ)
         self.new_path = new_path  # a logbook asked for that does not exist yet: offer it
         fmt.clock = plant_clock(book)  # a date in another year than today shows its year
         self.set_reactive(SumpbookApp.demo, demo)
         self.cursor_blink = cursor_blink
-        self.prefs = laptop.load()
+        self.prefs = laptop.load(self.session.config_path)
         self.statuses: dict[str, WatchRow] = {}
         self.last_message = ""
         self.backup_tried = False
@@ -195,7 +199,7 @@ class SumpbookApp(App[None]):
 
     def on_load(self) -> None:
         # Before the terminal and the screens are set up: read the first watch list meanwhile.
-        self.early_watch = read_early(self.book.path, read_watch)
+        self.early_watch = read_early(self.book.path, read_watch, self.session.clock)
 
     def on_mount(self) -> None:
         self.update_subtitle()
@@ -227,7 +231,7 @@ class SumpbookApp(App[None]):
 
     @guarded
     def change_prefs(self, **changes: str) -> None:
-        self.prefs = laptop.save(self.prefs, **changes)
+        self.prefs = laptop.save(self.prefs, self.session.config_path, **changes)
         if "theme" in changes:
             self.theme = THEMES[self.prefs.theme].name
         self.book_changed()
@@ -299,7 +303,7 @@ class SumpbookApp(App[None]):
 
         def read() -> None:
             try:
-                with open_book(path, create=False) as book:
+                with open_book(path, create=False, clock=self.session.clock) as book:
                     sheet = filter_sheet(book, tag)
             except Exception:  # noqa: BLE001 - the sheet reads again and says what is wrong
                 self.call_from_thread(at_once)
@@ -368,7 +372,7 @@ class SumpbookApp(App[None]):
     def signed_in(self, tag: str | None) -> None:
         if tag:
             try:
-                self.prefs = laptop.save(self.prefs, tech=tag)
+                self.prefs = laptop.save(self.prefs, self.session.config_path, tech=tag)
             except (BookError, OSError) as exc:
                 self.notify(f"Signed in for now, but not remembered: {exc}", severity="warning")
                 self.prefs = replace(self.prefs, tech=tag)
@@ -427,7 +431,7 @@ class SumpbookApp(App[None]):
         entry = result.entry
         after: WatchRow | None = None
         try:
-            with open_book(self.book.path, create=False) as book:
+            with open_book(self.book.path, create=False, clock=self.session.clock) as book:
                 if isinstance(entry, (Reading, ElementChange)):
                     st = filter_status_of(book, entry.filter)
                     after = filter_row(st, "", book.now()) if st else None
@@ -483,9 +487,7 @@ class SumpbookApp(App[None]):
             self.call_from_thread(
                 self.notify, f"The logbook could not be checked: {exc}", severity="warning"
             )
-        from store.statuscache import preload
-
-        preload()
+        record.preload()
         self.check_seconds = time.perf_counter() - started  # the speed benchmark reports it
         self.call_from_thread(setattr, self, "book_checked", True)
 
@@ -516,7 +518,7 @@ class SumpbookApp(App[None]):
         path = self.new_path
         assert path is not None
         try:
-            open_book(path).close()
+            open_book(path, clock=self.session.clock).close()
         except (BookError, OSError, sqlite3.Error) as exc:
             self.notify(f"No logbook at {path}: {exc}", severity="error", timeout=15)
             self.push_screen(FirstRunScreen(path), self.first_run_choice)
@@ -530,7 +532,7 @@ class SumpbookApp(App[None]):
     def open_demo(self) -> None:
         self.call_from_thread(self.notify, "Opening the demo plant…")
         try:
-            book = throwaway_demo()
+            book = throwaway_demo(self.session.clock)
         except Exception as exc:  # noqa: BLE001 - shown to the user
             self.call_from_thread(self.notify, f"No demo: {exc}", severity="error")
             return
@@ -540,7 +542,7 @@ class SumpbookApp(App[None]):
 
     def switch_book(self, path: Path, demo: bool, sign_in: bool = True) -> None:
         try:
-            book = open_book(path, create=False)
+            book = open_book(path, create=False, clock=self.session.clock)
         except BookError as exc:
             self.notify(str(exc), severity="error")
             return
@@ -632,36 +634,33 @@ def plant_clock(book: Book) -> Any:
     """The book's today without asking the book again (fmt is used from worker threads,
     and the book's connection belongs to this one): a frozen book stays frozen."""
     frozen = book.now() if book.setting("clock") else None
-    return (lambda: frozen) if frozen is not None else utc_now
+    return (lambda: frozen) if frozen is not None else book.clock
 
 
 def backup_on_close(book: Book) -> str | None:
     """A rolling copy beside the logbook; returns the problem instead of raising."""
     try:
-        from store.backup import rolling_backup
-
         rolling_backup(book.conn, book.path, "on-close")
     except Exception as exc:  # noqa: BLE001 - a failed backup only warns
         return str(exc) or type(exc).__name__
     return None
 
 
-def open_for_app(db: Path | None, named: bool = False) -> tuple[Book, bool, Path | None]:
+def open_for_app(db: Path | None, session: Session) -> tuple[Book, bool, Path | None]:
     """(book, demo, new path). The logbook when it exists. One named (--db or SUMPBOOK_DB)
     that does not exist yet: an empty throw-away book to stand on while the app offers to
     create it. Neither: a fresh throw-away copy of the demo plant, nothing of it kept."""
-    path = db or default_path()
+    path = db or session.db_path
     if path.exists() and path.stat().st_size > 0:
-        return open_book(path), False, None
-    if named or db is not None:
-        return throwaway_empty(), False, path
-    return throwaway_demo(), True, None
+        return open_book(path, clock=session.clock), False, None
+    if db is not None or session.db_named:
+        return throwaway_empty(session.clock), False, path
+    return throwaway_demo(session.clock), True, None
 
 
-def run_app(db: Path | None, env: dict[str, str] | None = None) -> int:
-    named = db is not None or bool((env or {}).get(ENV_DB))
-    book, demo, new_path = open_for_app(db, named=named)
-    app = SumpbookApp(book, demo=demo, new_path=new_path)
+def run_app(db: Path | None, session: Session) -> int:
+    book, demo, new_path = open_for_app(db, session)
+    app = SumpbookApp(book, demo=demo, new_path=new_path, session=session)
     try:
         app.run()
     finally:

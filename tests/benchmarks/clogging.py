@@ -10,7 +10,7 @@ other 20 runs as the position's history, oldest first by run number. No held-out
 in its history, as a plant's next element has none when its duty changes; the fastest and the
 slowest condition held out are extrapolations beyond every earlier life. The condition columns
 of runs.csv are read only to form these folds, never handed to the forecast: a technician does
-not know them. The interval's recalibration (store/trend_calibration.py) is derived again for
+not know them. The interval's recalibration (store/forecast/trend_calibration.py) is derived again for
 each held-out condition from the other five alone (nested), so no figure is tuned on the data
 it reports. Second table: plain leave-one-out (the other 23 runs as history, shipped
 calibration), in which every run keeps three replicate runs of its condition in its history.
@@ -55,15 +55,15 @@ import numpy as np
 if __package__ in (None, ""):
     sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from store.trend import ElementReadings, PastElement, forecast  # noqa: E402
-from store.trend_calibration import (  # noqa: E402
+from store.base.units import to_bar  # noqa: E402
+from store.forecast.trend import ElementReadings, PastElement, forecast  # noqa: E402
+from store.forecast.trend_calibration import (  # noqa: E402
     IDENTITY,
     SHIPPED,
     Calibration,
     Sample,
     derive,
 )
-from store.units import to_bar  # noqa: E402
 
 # 1 psi = 0.45359237 kg x 9.80665 m/s² / (0.0254 m)² = 0.06894757293168361 bar (REFERENCES.md §5)
 PSI_TO_BAR = to_bar(1.0, "psi")

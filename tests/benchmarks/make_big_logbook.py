@@ -22,7 +22,7 @@ How the numbers are made (seeded, so the same arguments give the same book):
 
 Speed: rows are made with numpy per filter, sorted by time, and written in one transaction with
 the secondary indexes dropped and made again afterwards. The status cache is then rebuilt
-through the store (store.statuscache.rebuild), as `sumpbook rebuild` would. The book is frozen
+through the store (store.derived.statuscache.rebuild), as `sumpbook rebuild` would. The book is frozen
 at the end of its last shift (setting 'clock'), so every run of the benchmark sees the same
 "now"; delete that setting to let the book age.
 """
@@ -47,11 +47,11 @@ ROOT = Path(__file__).resolve().parents[2]
 if str(ROOT) not in sys.path:  # run as a script from anywhere
     sys.path.insert(0, str(ROOT))
 
-from store.book import open_book  # noqa: E402
-from store.cleanliness import code_from_counts  # noqa: E402
-from store.fluid import KELVIN_OFFSET, walther_coefficients  # noqa: E402
-from store.register import Breather, FilterPosition, Fluid, Technician, Unit  # noqa: E402
-from store.timeutil import format_utc  # noqa: E402
+from store.base.timeutil import format_utc  # noqa: E402
+from store.db.book import open_book  # noqa: E402
+from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit  # noqa: E402
+from store.physics.cleanliness import code_from_counts  # noqa: E402
+from store.physics.fluid import KELVIN_OFFSET, walther_coefficients  # noqa: E402
 
 TIMEZONE = "Europe/Berlin"
 TZ = ZoneInfo(TIMEZONE)
@@ -499,7 +499,7 @@ def build(
     times["filters"] = len(register["filters"])
     times["rebuild_s"] = 0.0
     if cache:
-        from store.statuscache import rebuild
+        from store.derived.statuscache import rebuild
 
         mark = time.perf_counter()
         with open_book(path) as book:

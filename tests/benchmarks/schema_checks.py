@@ -20,7 +20,7 @@ ROOT = Path(__file__).resolve().parents[2]
 if str(ROOT) not in sys.path:
     sys.path.insert(0, str(ROOT))
 
-from store.schema import MIGRATIONS  # noqa: E402
+from store.db.schema import MIGRATIONS  # noqa: E402
 
 
 def insert_seconds(steps: int, rows: int) -> float:

@@ -107,7 +107,7 @@ async def _timed(pilot, key: str, done) -> tuple[float, float]:
 
 
 async def _drive_app(path: Path, started: float, sheets_too: bool) -> dict:
-    from store.book import open_book
+    from store.db.book import open_book
     from tui.app import SumpbookApp
     from tui.screens.filter_sheet import FilterSheetScreen
     from tui.screens.watch import WatchScreen
@@ -313,12 +313,12 @@ def warm(path: Path) -> None:
 
 
 def saves(path: Path, count: int) -> list[float]:
-    """ms per journal.log of a reading (validation, insert, status and unit refresh, commit)
+    """ms per record.log of a reading (validation, insert, status and unit refresh, commit)
     on a copy of the book, on filters picked at random, at the book's clock."""
-    from store import journal
-    from store.book import open_book
-    from store.entries import Reading
-    from store.register import FilterPosition, Technician, list_all
+    from store import record
+    from store.db.book import open_book
+    from store.ledger.entries import Reading
+    from store.ledger.register import FilterPosition, Technician, list_all
 
     with tempfile.TemporaryDirectory(dir=path.parent) as folder:
         copy = Path(folder) / "saves.db"
@@ -328,7 +328,7 @@ def saves(path: Path, count: int) -> list[float]:
         times = []
         with open_book(copy, create=False) as book:
             book.ensure_checked()  # the whole-file check before the first write, not timed:
-            journal.load_hooks()  # the app runs it behind the painted list
+            record.preload()  # the app runs it behind the painted list
             tech = list_all(book, Technician)[0].tag
             filters = [f for f in list_all(book, FilterPosition) if f.gauge]
             rng = random.Random(4)
@@ -338,7 +338,7 @@ def saves(path: Path, count: int) -> list[float]:
                 reading = Reading(filter=pos.tag, dp_bar=round(rng.uniform(0.3, 0.9) * pos.limit_bar, 2),
                                   temp_c=50.0, by=tech, at=now - timedelta(minutes=count - i))  # fmt: skip
                 t = time.perf_counter()
-                journal.log(book, reading)
+                record.log(book, reading)
                 times.append(1000 * (time.perf_counter() - t))
         return times
 
@@ -346,9 +346,10 @@ def saves(path: Path, count: int) -> list[float]:
 def store_calls(path: Path, repeat: int = 5) -> dict[str, float]:
     """ms of the store calls behind the screens, each on a fresh read-only connection (as the
     app's worker threads have), median of `repeat`."""
-    from store import sheets, status, statuscache
-    from store.book import Book
-    from store.conditions import contexts
+    from store import views
+    from store.db.book import Book
+    from store.derived import statuscache
+    from store.health.conditions import contexts
 
     statuscache.preload()
     conn0 = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
@@ -379,17 +380,17 @@ def store_calls(path: Path, repeat: int = 5) -> dict[str, float]:
 
     out = {
         "recompute": timed(recompute, 3 * repeat),
-        "watch": timed(lambda b: status.watch(b)),
-        "filter_sheet": timed(lambda b: sheets.filter_sheet(b, rng.choice(tags)), 4 * repeat),
+        "watch": timed(lambda b: views.watch(b)),
+        "filter_sheet": timed(lambda b: views.filter_sheet(b, rng.choice(tags)), 4 * repeat),
     }
     return out
 
 
 def export_year(path: Path, env: dict[str, str], runs: int, limit_s: float) -> dict:
-    from store.book import open_book
-    from store.csvcolumns import Prefs
-    from store.csvexport import write_span
-    from store.timeutil import format_utc, parse_time
+    from store.base.prefs import Prefs
+    from store.base.timeutil import format_utc, parse_time
+    from store.db.book import open_book
+    from store.exchange.csvexport import write_span
 
     out: dict = {}
     with open_book(path, create=False) as book:
@@ -442,7 +443,7 @@ def later_on(path: Path, env: dict[str, str], runs: int, roots: dict[str, Path])
     conn = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
     clock = conn.execute("SELECT value FROM settings WHERE key = 'clock'").fetchone()[0]
     conn.close()
-    from store.timeutil import format_utc, parse_utc
+    from store.base.timeutil import format_utc, parse_utc
 
     frozen = parse_utc(clock)
     work = Path(tempfile.mkdtemp(prefix="speed-later-"))
@@ -534,8 +535,8 @@ def notes(f: dict) -> list[str]:
         f"({f['status']:.2f}×). Of the bare query's {1000 * f['query_s']:.0f} ms, "
         f"{1000 * f['python_s']:.0f} ms is starting the interpreter (`python -c pass`). The "
         f"command's {1000 * f['status_s']:.0f} ms: the interpreter and the modules it loads "
-        f"({1000 * f['imports_s']:.0f} ms for `python -c 'import tui.cli, store.status, "
-        f"store.statuscache'`), then the watch list from the caches "
+        f"({1000 * f['imports_s']:.0f} ms for `python -c 'import tui.cli, store.health.status, "
+        f"store.derived.statuscache'`), then the watch list from the caches "
         f"({f['calls']['watch']:.0f} ms in a process that has read nothing yet) and the JSON. "
         "Three times the bare query leaves a Python program of this size about "
         f"{1000 * (3 * f['query_s'] - f['python_s']):.0f} ms beyond the interpreter's start."
@@ -563,7 +564,7 @@ def notes(f: dict) -> list[str]:
         f"  The bare DataTable app takes median {_med(f['cpu']['bare']):.0f} ms, longest "
         f"{max(f['cpu']['bare']):.0f} ms for the same scroll keys: the longest are End and "
         "PgDn, which redraw the whole table in both. A filter sheet's data takes "
-        f"{f['calls']['filter_sheet']:.0f} ms (`sheets.filter_sheet`, median, mostly the "
+        f"{f['calls']['filter_sheet']:.0f} ms (`views.filter_sheet`, median, mostly the "
         "forecast, in a worker thread); the rest is Textual switching screens and drawing them: "
         f"the bare app takes median {_med(f['cpu']['bare_sheet']):.0f} ms to show a screen "
         f"with a sheet's widgets and made-up text, {_med(f['cpu']['bare_back']):.0f} ms to "
@@ -616,7 +617,7 @@ def main(argv: list[str] | None = None) -> int:
     if not path.exists():
         if not args.build:
             parser.error(f"{path} does not exist: give --build N_UNITS YEARS")
-        from store.timeutil import parse_utc
+        from store.base.timeutil import parse_utc
         from tests.benchmarks.make_big_logbook import DEFAULT_END, build
 
         made = build(int(args.build[0]), args.build[1], path, 4406, parse_utc(DEFAULT_END))
@@ -667,7 +668,7 @@ def main(argv: list[str] | None = None) -> int:
         query_times.append(_time_cmd(query_cmd, env, 1))
     status_s, query_s = _med(status_times), _med(query_times)
     python_s = _time_cmd([sys.executable, "-c", "pass"], env, args.runs)
-    imports = "import tui.cli, store.status, store.statuscache"  # what status --json loads
+    imports = "import tui.cli, store.health.status, store.derived.statuscache"  # what status --json loads
     imports_s = _time_cmd([sys.executable, "-c", imports], env, args.runs)
     print(f"status --json: {status_s:.3f} s, query: {query_s:.3f} s, python: {python_s:.3f} s",
           flush=True)  # fmt: skip
@@ -790,8 +791,8 @@ def main(argv: list[str] | None = None) -> int:
         "",
         "| call | ms |",
         "|---|---|",
-        f"| `status.watch(book)` (the watch list, from the caches) | {calls['watch']:.0f} |",
-        f"| `sheets.filter_sheet(book, tag)` (status, curve, forecast and element history "
+        f"| `views.watch(book)` (the watch list, from the caches) | {calls['watch']:.0f} |",
+        f"| `views.filter_sheet(book, tag)` (status, curve, forecast and element history "
         f"from the element cache) | {calls['filter_sheet']:.0f} |",
         f"| one filter's status recomputed (`statuscache.live_status`) "
         f"| {calls['recompute']:.0f} |",

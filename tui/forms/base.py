@@ -1,5 +1,5 @@
 """The shape every entry form shares: fields with inline checks, an optional safety
-acknowledgement, save through `store.journal.log`, and nothing written until all is valid.
+acknowledgement, save through `store.ledger.journal.log`, and nothing written until all is valid.
 """
 
 from __future__ import annotations
@@ -7,7 +7,7 @@ from __future__ import annotations
 import sqlite3
 from dataclasses import dataclass
 from datetime import datetime
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 from textual.app import ComposeResult
 from textual.binding import Binding
@@ -15,19 +15,16 @@ from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Button, Checkbox, Input, Static
 
-from store import journal
-from store.entries import Entry
-from store.errors import BookError
-from store.register import Technician, list_all
-from store.timeutil import local_text, parse_typed_time
-
-from ..widgets.caution import Caution
-from ..widgets.field import FieldRow, Spec, TickBox
-from .confirm import ConfirmScreen
-from .validators import TagValidator, TimeValidator
-
-if TYPE_CHECKING:
-    from ..app import SumpbookApp
+from store import record
+from store.base.errors import BookError
+from store.base.timeutil import local_text, parse_typed_time
+from store.ledger.entries import Entry
+from store.ledger.register import Technician, list_all
+from tui.base.host import Host
+from tui.forms.confirm import ConfirmScreen
+from tui.forms.validators import TagValidator, TimeValidator
+from tui.widgets.caution import Caution
+from tui.widgets.field import FieldRow, Spec, TickBox
 
 
 @dataclass(frozen=True)
@@ -107,7 +104,7 @@ class EntryForm(ModalScreen[Saved | None]):
         self.load_problem = ""
 
     @property
-    def sb(self) -> SumpbookApp:
+    def sb(self) -> Host:
         return self.app  # type: ignore[return-value]
 
     # ---- what subclasses give ----
@@ -278,7 +275,7 @@ class EntryForm(ModalScreen[Saved | None]):
 
     def write(self, entry: Entry) -> None:
         try:
-            saved = journal.log(self.sb.book, entry)
+            saved = record.log(self.sb.book, entry)
         except (BookError, sqlite3.Error, OSError) as exc:
             self.refused(exc)
             return

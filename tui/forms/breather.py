@@ -4,12 +4,11 @@ from __future__ import annotations
 
 from typing import Any
 
-from store.entries import BreatherSwap, Entry
-from store.journal import BREATHER_REASONS
-from store.register import Breather, find
-
-from ..widgets.field import Spec
-from .base import EntryForm
+from store.ledger.entries import BreatherSwap, Entry
+from store.ledger.journal import BREATHER_REASONS
+from store.ledger.register import Breather, find
+from tui.forms.base import EntryForm
+from tui.widgets.field import Spec
 
 REASON_WORDS = {
     "interval": "planned interval",

@@ -4,13 +4,12 @@ from __future__ import annotations
 
 from typing import Any
 
-from store.entries import ElementChange, Entry
-from store.journal import CHANGE_REASONS
-from store.register import FilterPosition, find
-
-from ..widgets.field import Spec
-from .base import EntryForm
-from .validators import RangeValidator
+from store.ledger.entries import ElementChange, Entry
+from store.ledger.journal import CHANGE_REASONS
+from store.ledger.register import FilterPosition, find
+from tui.forms.base import EntryForm
+from tui.forms.validators import RangeValidator
+from tui.widgets.field import Spec
 
 REASON_WORDS = {
     "limit": "ΔP at change limit",

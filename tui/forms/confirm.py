@@ -8,7 +8,7 @@ from textual.containers import Horizontal, Vertical
 from textual.screen import ModalScreen
 from textual.widgets import Button, Static
 
-from ..widgets.caution import Caution
+from tui.widgets.caution import Caution
 
 
 class ConfirmScreen(ModalScreen[bool]):

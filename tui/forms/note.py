@@ -4,11 +4,10 @@ from __future__ import annotations
 
 from typing import Any
 
-from store.entries import Entry, Note
-from store.register import Unit, find
-
-from ..widgets.field import Spec
-from .base import EntryForm
+from store.ledger.entries import Entry, Note
+from store.ledger.register import Unit, find
+from tui.forms.base import EntryForm
+from tui.widgets.field import Spec
 
 
 class NoteForm(EntryForm):

@@ -4,16 +4,15 @@ from __future__ import annotations
 
 from typing import Any
 
-from store.entries import Entry, Reading
-from store.journal import BYPASS_OPEN, BYPASS_STEPS, bypass_head
-from store.register import FilterPosition, find
-from store.sheets import last_temp_c, meter_estimate_h
-from store.units import parse_pressure_bar, parse_temperature_c
-
-from ..widgets import fmt
-from ..widgets.field import Spec
-from .base import EntryForm, FieldError
-from .validators import DpValidator, RangeValidator, TemperatureValidator
+from store.base.units import parse_pressure_bar, parse_temperature_c
+from store.ledger.entries import Entry, Reading
+from store.ledger.journal import BYPASS_OPEN, BYPASS_STEPS, bypass_head
+from store.ledger.register import FilterPosition, find
+from store.views import last_temp_c, meter_estimate_h
+from tui.forms.base import EntryForm, FieldError
+from tui.forms.validators import DpValidator, RangeValidator, TemperatureValidator
+from tui.widgets import fmt
+from tui.widgets.field import Spec
 
 INDICATOR_CHOICES = [("clean", "clean"), ("dirty", "dirty"), ("in bypass", "bypass")]
 

@@ -1,7 +1,7 @@
 """Add or edit one register row: technician, fluid, unit, filter position or breather.
 
 Quantities are typed in the user's units and stored canonical. Every change goes through
-`store.register.add/update`, which records who changed what, old -> new.
+`store.ledger.register.add/update`, which records who changed what, old -> new.
 """
 
 from __future__ import annotations
@@ -16,18 +16,15 @@ from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Button, Input, Static
 
-from store import register
-from store import validate as validate_value
-from store.errors import BookError
-from store.register import Breather, FilterPosition, Fluid, Technician, Unit
-from store.schema import FILTER_KINDS
-from store.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
-
-from ..widgets import fmt
-from ..widgets.field import FieldRow, Spec
-from .base import FIELD_KEYS, fault_field, write_problem
-from .confirm import ConfirmScreen
-from .validators import (
+from store.base import validate as validate_value
+from store.base.errors import BookError
+from store.base.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
+from store.base.validate import FILTER_KINDS
+from store.ledger import register
+from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
+from tui.forms.base import FIELD_KEYS, fault_field, write_problem
+from tui.forms.confirm import ConfirmScreen
+from tui.forms.validators import (
     CodeValidator,
     DpValidator,
     NewTagValidator,
@@ -35,6 +32,8 @@ from .validators import (
     TemperatureValidator,
     VolumeValidator,
 )
+from tui.widgets import fmt
+from tui.widgets.field import FieldRow, Spec
 
 WHAT = {
     Technician: "technician",

@@ -4,12 +4,11 @@ from __future__ import annotations
 
 from typing import Any
 
-from store.entries import Entry, Sample
-from store.register import Unit, find
-
-from ..widgets.field import Spec
-from .base import EntryForm
-from .validators import CodeValidator, RangeValidator
+from store.ledger.entries import Entry, Sample
+from store.ledger.register import Unit, find
+from tui.forms.base import EntryForm
+from tui.forms.validators import CodeValidator, RangeValidator
+from tui.widgets.field import Spec
 
 
 def _num(text: str) -> float | None:

@@ -4,14 +4,13 @@ from __future__ import annotations
 
 from typing import Any
 
-from store.entries import Entry, TopUp
-from store.register import Fluid, Unit, find, list_all
-from store.units import parse_volume_l
-
-from ..widgets import fmt
-from ..widgets.field import Spec
-from .base import EntryForm, FieldError
-from .validators import RangeValidator, VolumeValidator
+from store.base.units import parse_volume_l
+from store.ledger.entries import Entry, TopUp
+from store.ledger.register import Fluid, Unit, find, list_all
+from tui.forms.base import EntryForm, FieldError
+from tui.forms.validators import RangeValidator, VolumeValidator
+from tui.widgets import fmt
+from tui.widgets.field import Spec
 
 HOW = [("through a filter cart", "filtered"), ("unfiltered (from the drum)", "unfiltered")]
 

@@ -12,13 +12,10 @@ from datetime import datetime, tzinfo
 
 from textual.validation import ValidationResult, Validator
 
-from store import journal
-from store import validate as validate_value
-from store.cleanliness import parse_code
-from store.errors import BookError
-from store.register import normalise_tag
-from store.timeutil import parse_typed_time
-from store.units import (
+from store.base import validate as validate_value
+from store.base.errors import BookError
+from store.base.timeutil import parse_typed_time
+from store.base.units import (
     from_bar,
     from_c,
     from_l,
@@ -30,6 +27,9 @@ from store.units import (
     temperature_label,
     volume_label,
 )
+from store.ledger import journal
+from store.ledger.register import normalise_tag
+from store.physics.cleanliness import parse_code
 
 
 class DpValidator(Validator):
@@ -109,7 +109,7 @@ class NewTagValidator(Validator):
 
 
 class RangeValidator(Validator):
-    """A plain number within the store's range for its field (store/validate.py RANGES): the
+    """A plain number within the store's range for its field (store/base/validate.py RANGES): the
     form says what the book would say, from the same table."""
 
     def __init__(self, field: str) -> None:

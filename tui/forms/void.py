@@ -7,14 +7,13 @@ from typing import Any
 from textual.validation import ValidationResult, Validator
 from textual.widgets import Input, Static
 
-from store.entries import Entry, Void
-from store.errors import BookError
-from store.journal import find_entry
-
-from ..render import describe
-from ..widgets import fmt
-from ..widgets.field import Spec
-from .base import EntryForm
+from store.base.errors import BookError
+from store.ledger.entries import Entry, Void
+from store.ledger.journal import find_entry
+from tui.base.render import describe
+from tui.forms.base import EntryForm
+from tui.widgets import fmt
+from tui.widgets.field import Spec
 
 
 class EntryIdValidator(Validator):

@@ -10,7 +10,7 @@ from textual.containers import Vertical
 from textual.screen import ModalScreen
 from textual.widgets import Input, Static
 
-from store.errors import BookError
+from store.base.errors import BookError
 
 
 class AskScreen(ModalScreen[str | None]):

@@ -1,68 +1,24 @@
-"""What the app's full screens share: reading the book in a worker thread, and the entry keys."""
+"""What the app's full screens share: the book screen (reading in a worker thread) and the
+entry keys."""
 
 from __future__ import annotations
 
-import functools
 import sqlite3
-import threading
 import time
 from collections.abc import Callable
 from concurrent.futures import Future
 from dataclasses import dataclass
-from pathlib import Path
-from typing import TYPE_CHECKING, Any, TypeVar
+from typing import Any
 
 from textual.binding import Binding
 from textual.screen import Screen
 from textual.worker import get_current_worker
 
-from store.book import Book, damaged_read, open_book
-from store.errors import BookError
+from store import Book, damaged_read, open_book
+from tui.base.host import Host
+from tui.base.keys import bind
 
-from ..keys import bind
-
-if TYPE_CHECKING:
-    from ..app import SumpbookApp
-
-
-F = TypeVar("F", bound=Callable[..., Any])
-PROBLEMS = (BookError, sqlite3.Error, OSError)
 RESHOW_AFTER_S = 300.0  # a screen shown again after this long reads the book again anyway
-
-
-def guarded(method: F) -> F:
-    """Show a book or file problem as a notification instead of stopping the app."""
-
-    @functools.wraps(method)
-    def wrapper(self: Any, *args: Any, **kwargs: Any) -> Any:
-        try:
-            return method(self, *args, **kwargs)
-        except PROBLEMS as exc:
-            self.app.notify(str(exc) or type(exc).__name__, severity="error", timeout=8)
-            return None
-
-    return wrapper  # type: ignore[return-value]
-
-
-def read_early(path: Path, read: Callable[[Book], Any]) -> Future[Any]:
-    """Start `read` on a connection of its own in a thread now (the app calls it while
-    Textual is still starting, so the first list is read meanwhile); the screen's worker
-    then waits for the result with `read_in_thread(..., early=...)`.
-
-    A thread, not a forked process: the fork did not bring the app's start to its target on
-    2 cores either (1.8-2.2x the bare screens against 1.5x), and a plain thread leaves no
-    process behind and needs no read-only second opening of the book."""
-    future: Future[Any] = Future()
-
-    def in_thread() -> None:
-        try:
-            with open_book(path, create=False) as book:
-                future.set_result(read(book))
-        except BaseException as exc:  # noqa: BLE001 - handed to the screen's worker
-            future.set_exception(exc)
-
-    threading.Thread(target=in_thread, name="early-read", daemon=True).start()
-    return future
 
 
 @dataclass(frozen=True)
@@ -97,7 +53,7 @@ class BookScreen(Screen):
     shown_at = 0.0  # time.monotonic() then
 
     @property
-    def sb(self) -> SumpbookApp:
+    def sb(self) -> Host:
         return self.app  # type: ignore[return-value]
 
     def on_screen_resume(self) -> None:
@@ -124,7 +80,7 @@ class BookScreen(Screen):
 
         A failure is shown as a notification, never as a traceback.
         """
-        path = self.sb.book.path
+        path, clock = self.sb.book.path, self.sb.book.clock
 
         def job() -> None:
             worker = get_current_worker()
@@ -132,7 +88,7 @@ class BookScreen(Screen):
                 if early is not None:
                     result = early.result()
                 else:
-                    with open_book(path, create=False) as book:
+                    with open_book(path, create=False, clock=clock) as book:
                         result = read(book)
             except Exception as exc:  # noqa: BLE001 - shown to the user, not raised
                 if not worker.is_cancelled:

@@ -11,16 +11,15 @@ from textual.app import ComposeResult
 from textual.containers import VerticalScroll
 from textual.widgets import Header, Static
 
-from store.sheets import FilterSheet, filter_sheet
-
-from ..keys import bind
-from ..widgets import fmt
-from ..widgets.banner import DemoBanner
-from ..widgets.keystrip import KeyStrip
-from ..widgets.plot import LEGEND, FilterPlot
-from ..widgets.rowtable import RowTable
-from ..widgets.wrapped import Wrapped
-from .common import ENTRY_BINDINGS, BookScreen, Target
+from store.views import FilterSheet, filter_sheet
+from tui.base.keys import bind
+from tui.screens.common import ENTRY_BINDINGS, BookScreen, Target
+from tui.widgets import fmt
+from tui.widgets.banner import DemoBanner
+from tui.widgets.keystrip import KeyStrip
+from tui.widgets.plot import LEGEND, FilterPlot
+from tui.widgets.rowtable import RowTable
+from tui.widgets.wrapped import Wrapped
 
 BASIS_WORDS = {
     "trend": "the trend of this element's readings",

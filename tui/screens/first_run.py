@@ -11,7 +11,7 @@ from textual.containers import Vertical
 from textual.screen import ModalScreen
 from textual.widgets import Static
 
-from ..widgets.wrapped import Wrapped
+from tui.widgets.wrapped import Wrapped
 
 DEMO_CHOICE = """\
   d   Open the demo plant: a small invented plant with a few

@@ -1,6 +1,6 @@
 """Help: every key of the app once (this screen's first), and what the words on screen mean.
 
-The keys come from the one table in `tui/keys.py`, as the key strip and the palette do.
+The keys come from the one table in `tui/base/keys.py`, as the key strip and the palette do.
 Lines wrap under their own column, never back to the left edge.
 """
 
@@ -18,9 +18,8 @@ from textual.containers import Vertical, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Static
 
-from store.status import FLAG_WORDS, URGENT_FLAGS
-
-from ..keys import ENTER, KEYS, Key, key_of
+from store.health.status import FLAG_WORDS, URGENT_FLAGS
+from tui.base.keys import ENTER, KEYS, Key, key_of
 
 FLAG_MEANING = {
     "dp-drop": "ΔP fell with no element change: torn, collapsed or missing element, or "

@@ -10,22 +10,22 @@ from textual.app import ComposeResult
 from textual.containers import Vertical
 from textual.widgets import DataTable, Header, Select, Static, TabbedContent, TabPane
 
-from store import register
-from store.errors import BookError
-from store.prefs import THEMES
-from store.register import TABLES, WHAT, Breather, FilterPosition, Fluid, Technician, Unit
-from store.timeutil import local_text
-from store.units import PRESSURE_UNITS, TEMPERATURE_UNITS, VOLUME_UNITS
-
-from ..forms.register_record import RegisterForm
-from ..keys import bind
-from ..render import change_text
-from ..widgets import fmt
-from ..widgets.banner import DemoBanner
-from ..widgets.keystrip import KeyStrip
-from ..widgets.rowtable import RowTable
-from .ask import AskScreen
-from .common import BookScreen, guarded
+from store.base.errors import BookError
+from store.base.prefs import THEMES
+from store.base.timeutil import local_text
+from store.base.units import PRESSURE_UNITS, TEMPERATURE_UNITS, VOLUME_UNITS
+from store.ledger import register
+from store.ledger.register import TABLES, WHAT, Breather, FilterPosition, Fluid, Technician, Unit
+from tui.base.keys import bind
+from tui.base.render import change_text
+from tui.base.workers import guarded
+from tui.forms.register_record import RegisterForm
+from tui.screens.ask import AskScreen
+from tui.screens.common import BookScreen
+from tui.widgets import fmt
+from tui.widgets.banner import DemoBanner
+from tui.widgets.keystrip import KeyStrip
+from tui.widgets.rowtable import RowTable
 
 TABS = {
     "units": Unit,

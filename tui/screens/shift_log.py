@@ -10,26 +10,27 @@ from textual.app import ComposeResult
 from textual.containers import VerticalScroll
 from textual.widgets import DataTable, Header, Static
 
-from store.book import open_book
-from store.csvcolumns import Prefs as CsvPrefs
-from store.csvexport import export_file as write_file
-from store.sheets import ShiftLog, kind_counts, shift_log
-from store.timeutil import ShiftSpan, next_shift, previous_shift, shift_at, shift_named
+from store import open_book
+from store.base.prefs import Prefs
+from store.base.session import Clock
+from store.base.timeutil import ShiftSpan, next_shift, previous_shift, shift_at, shift_named
+from store.exchange.csvexport import export_file as write_file
+from store.views import ShiftLog, kind_counts, shift_log
+from tui.base.keys import bind
+from tui.base.render import describe
+from tui.base.workers import guarded
+from tui.screens.ask import AskScreen
+from tui.screens.common import BookScreen, Target
+from tui.screens.file_prompt import FilePrompt
+from tui.widgets import fmt
+from tui.widgets.banner import DemoBanner
+from tui.widgets.keystrip import KeyStrip
+from tui.widgets.rowtable import ENTRY_COLUMNS, RowTable
 
-from ..keys import bind
-from ..render import describe
-from ..widgets import fmt
-from ..widgets.banner import DemoBanner
-from ..widgets.keystrip import KeyStrip
-from ..widgets.rowtable import ENTRY_COLUMNS, RowTable
-from .ask import AskScreen
-from .common import BookScreen, Target, guarded
-from .file_prompt import FilePrompt
 
-
-def export_file(path: str, dest: Path, span: ShiftSpan, prefs: CsvPrefs) -> int:
+def export_file(path: str, dest: Path, span: ShiftSpan, prefs: Prefs, clock: Clock) -> int:
     """Write one shift's entries as CSV (runs in a worker thread on its own connection)."""
-    with open_book(path, create=False) as book:
+    with open_book(path, create=False, clock=clock) as book:
         local, pattern = book.local_zone(), book.shift_pattern()
         return write_file(book, dest, span.start, span.end, prefs, local, pattern)
 
@@ -217,15 +218,14 @@ class ShiftLogScreen(BookScreen):
         if dest is None:
             return
         span = self.span or self.current_span()
-        p = self.sb.prefs
-        prefs = CsvPrefs(p.pressure, p.temperature, p.volume)
-        path = str(self.sb.book.path)
+        prefs = self.sb.prefs
+        path, clock = str(self.sb.book.path), self.sb.book.clock
         self.exporting = True
         self.query_one(DataTable).loading = True
 
         def job() -> None:
             try:
-                count = export_file(path, dest, span, prefs)
+                count = export_file(path, dest, span, prefs, clock)
             except Exception as exc:  # noqa: BLE001 - shown to the user
                 self.app.call_from_thread(self.export_done, dest, None, exc)
                 return

@@ -12,11 +12,10 @@ from textual.screen import ModalScreen
 from textual.widgets import Input, OptionList, Static
 from textual.widgets.option_list import Option
 
-from store import register
-from store.errors import BookError
-from store.register import Technician
-
-from ..widgets import fmt
+from store.base.errors import BookError
+from store.ledger import register
+from store.ledger.register import Technician
+from tui.widgets import fmt
 
 
 class SignInScreen(ModalScreen[str | None]):

@@ -8,18 +8,17 @@ from textual.app import ComposeResult
 from textual.containers import VerticalScroll
 from textual.widgets import DataTable, Header, Sparkline, Static
 
-from store.entries import Entry, Note
-from store.prefs import Prefs
-from store.sheets import UnitSheet, unit_sheet
-
-from ..keys import bind
-from ..render import describe
-from ..widgets import fmt
-from ..widgets.banner import DemoBanner
-from ..widgets.keystrip import KeyStrip
-from ..widgets.rowtable import ENTRY_COLUMNS, RowTable
-from ..widgets.wrapped import Wrapped
-from .common import ENTRY_BINDINGS, BookScreen, Target
+from store.base.prefs import Prefs
+from store.ledger.entries import Entry, Note
+from store.views import UnitSheet, unit_sheet
+from tui.base.keys import bind
+from tui.base.render import describe
+from tui.screens.common import ENTRY_BINDINGS, BookScreen, Target
+from tui.widgets import fmt
+from tui.widgets.banner import DemoBanner
+from tui.widgets.keystrip import KeyStrip
+from tui.widgets.rowtable import ENTRY_COLUMNS, RowTable
+from tui.widgets.wrapped import Wrapped
 
 NOTE_CELLS = 30  # a note's text in the recent entries, shortened to fit 80 columns
 

@@ -9,21 +9,19 @@ from textual.app import ComposeResult
 from textual.containers import Horizontal
 from textual.widgets import DataTable, Header, Input, Select
 
-from store import status, statuscache
-from store.book import Book
-from store.prefs import Prefs
-from store.register import Unit, list_all
-from store.sheets import Summary, WatchRow, row_matches, summarise, watch_rows
-from store.text import inert
-from store.timeutil import shift_at
-
-from ..keys import bind
-from ..widgets import fmt
-from ..widgets.banner import DemoBanner
-from ..widgets.keystrip import KeyStrip
-from ..widgets.rowtable import RowTable
-from ..widgets.wrapped import Wrapped
-from .common import ENTRY_BINDINGS, BookScreen, Target
+from store import Book, record, views
+from store.base.prefs import Prefs
+from store.base.text import inert
+from store.base.timeutil import shift_at
+from store.ledger.register import Unit, list_all
+from store.views import Summary, WatchRow, row_matches, summarise, watch_rows
+from tui.base.keys import bind
+from tui.screens.common import ENTRY_BINDINGS, BookScreen, Target
+from tui.widgets import fmt
+from tui.widgets.banner import DemoBanner
+from tui.widgets.keystrip import KeyStrip
+from tui.widgets.rowtable import RowTable
+from tui.widgets.wrapped import Wrapped
 
 ALL = "*"
 
@@ -42,7 +40,7 @@ def read_watch(book: Book, fresh: bool = False) -> WatchData:
     """The list as kept in the caches (what moves with the clock worked out now), at once:
     rows marked stale are shown as they are and counted, for `catch_up` to recompute behind.
     `fresh`: recompute such rows first (in memory)."""
-    w = status.watch(book) if fresh else status.watch(book, stale_ok=True)
+    w = views.watch(book) if fresh else views.watch(book, stale_ok=True)
     rows = watch_rows(w)
     local = book.local_zone()
     span = shift_at(w.as_of, book.shift_pattern(), local)
@@ -58,14 +56,14 @@ def read_watch(book: Book, fresh: bool = False) -> WatchData:
         as_of_text=f"{w.as_of.astimezone(local):%H:%M}",  # the list is read anew each day
         shift_text=f"{span.name} to {span.end.astimezone(local):%H:%M}",
         areas=options,
-        stale=0 if fresh else len(statuscache.stale_filters(book)),
+        stale=0 if fresh else views.stale_count(book),
     )
 
 
 def catch_up(book: Book) -> WatchData:
     """The app's explicit refresh: recompute the stale rows (each kept as it is done, where
     the book can be written), then the list with nothing stale."""
-    statuscache.refresh_stale(book)
+    record.refresh_stale(book)
     return read_watch(book, fresh=True)
 
 

@@ -14,11 +14,11 @@ from typing import Any
 
 from rich.text import Text
 
-from store.prefs import Prefs
-from store.status import FLAG_WORDS, URGENT_FLAGS, Due
-from store.text import inert
-from store.units import from_bar, from_c, from_l
-from tui.quantities import (  # noqa: F401 - the app's widgets take them from here
+from store.base.prefs import Prefs
+from store.base.text import inert
+from store.base.units import from_bar, from_c, from_l
+from store.health.status import FLAG_WORDS, URGENT_FLAGS, Due
+from tui.base.quantities import (  # noqa: F401 - the app's widgets take them from here
     p_digits,
     p_unit,
     pressure,
@@ -47,7 +47,7 @@ STATE_WORDS = {
 
 def shown(value: str | Text) -> Text:
     """Stored text as a cell or line of the app: never read as markup (a `Text`), control and
-    escape characters made visible (`store.text.inert`, one character for one, so a styled
+    escape characters made visible (`store.base.text.inert`, one character for one, so a styled
     `Text` keeps its styles in place)."""
     if isinstance(value, Text):
         if not value.plain.isprintable():

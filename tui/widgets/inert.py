@@ -1,7 +1,7 @@
 """The app's last line against escape characters: a Textual line filter that takes every
 control character out of what is about to be written to the terminal.
 
-Stored text is made visible where the screens show it (`fmt.shown`, `store.text.inert`);
+Stored text is made visible where the screens show it (`fmt.shown`, `store.base.text.inert`);
 this filter catches whatever reaches a line some other way (a toast, a title, a widget that
 gets text straight from the book). Textual counts a control character as zero cells wide,
 so removing it leaves the line's layout as it was. Textual's own escape sequences are not in

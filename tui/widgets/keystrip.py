@@ -14,7 +14,7 @@ from textual import events
 from textual.screen import Screen
 from textual.widget import Widget
 
-from ..keys import ENTER, GROUPS, KEYS, Key, key_of
+from tui.base.keys import ENTER, GROUPS, KEYS, Key, key_of
 
 
 @dataclass(frozen=True)

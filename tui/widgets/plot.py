@@ -8,11 +8,10 @@ import math
 
 from textual_plotext import PlotextPlot
 
-from store.prefs import Prefs
-from store.sheets import FilterSheet
-from store.units import from_bar
-
-from .fmt import p_unit
+from store.base.prefs import Prefs
+from store.base.units import from_bar
+from store.views import FilterSheet
+from tui.widgets.fmt import p_unit
 
 MARK_GAUGE = "•"
 MARK_REF = "◆"

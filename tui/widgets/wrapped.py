@@ -9,7 +9,7 @@ from rich.text import Text
 from textual import events
 from textual.widgets import Static
 
-from .fmt import hanging_lines, phrase_lines
+from tui.widgets.fmt import hanging_lines, phrase_lines
 
 Block = Sequence[str | Text] | str | Text  # one paragraph: its phrases, or one phrase
 

@@ -1,0 +1,63 @@
+"""Per-laptop preferences: who is signed in, units of measure, theme.
+
+Kept in a small JSON file in the user's config folder (not in the logbook), because
+they belong to the person and the laptop, not to the plant's history.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import asdict, dataclass, replace
+from pathlib import Path
+
+from store.base.errors import BookError
+from store.base.units import pressure_key, temperature_key, volume_key
+
+THEMES = ("dark", "light", "contrast")
+
+
+@dataclass(frozen=True)
+class Prefs:
+    tech: str = ""
+    pressure: str = "bar"
+    temperature: str = "C"
+    volume: str = "L"
+    theme: str = "dark"
+
+    def unit_keys(self) -> dict[str, str]:
+        """quantity -> the unit's key in CSV header names ('bar', 'c', 'l' ...)."""
+        return {
+            "pressure": pressure_key(self.pressure),
+            "temperature": temperature_key(self.temperature),
+            "volume": volume_key(self.volume),
+        }
+
+
+def load(path: Path) -> Prefs:
+    """The preferences kept at `path` (a Session's config_path); defaults when there are none
+    or they cannot be read."""
+    try:
+        data = json.loads(Path(path).read_text(encoding="utf-8"))
+        known = {k: str(v) for k, v in data.items() if k in Prefs.__dataclass_fields__}
+        return checked(Prefs(**known))
+    except (OSError, ValueError, TypeError):
+        return Prefs()
+
+
+def checked(prefs: Prefs) -> Prefs:
+    pressure_key(prefs.pressure)
+    temperature_key(prefs.temperature)
+    volume_key(prefs.volume)
+    if prefs.theme not in THEMES:
+        raise BookError(f"theme must be one of {', '.join(THEMES)}")
+    return prefs
+
+
+def save(prefs: Prefs, path: Path, **changes: str) -> Prefs:
+    prefs = checked(replace(prefs, **changes))
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    tmp = path.with_suffix(".tmp")
+    tmp.write_text(json.dumps(asdict(prefs), indent=1), encoding="utf-8")
+    tmp.replace(path)
+    return prefs

@@ -1,0 +1,282 @@
+"""Backups through SQLite's online backup API: rolling copies beside the logbook, one-off
+copies (`sumpbook backup DEST`) and restoring a copy (`sumpbook restore FILE`).
+
+Rolling copies live in `<name>-backups/` beside the logbook, named
+`<name>-<UTC stamp>-<why>.db`; the newest `keep` are kept (setting `backup_keep`, else
+DEFAULT_KEEP). A copy identical to the newest one is not kept twice, so closing the app
+without having logged anything does not push older copies out.
+"""
+
+from __future__ import annotations
+
+import filecmp
+import re
+import shutil
+import sqlite3
+from datetime import UTC, datetime
+from pathlib import Path
+
+from store.base.errors import BookError, NotALogbook
+from store.db.connection import (
+    BUSY_TIMEOUT_MS,
+    check_header,
+    clear_damage,
+    connect,
+    forget_check,
+    writable,
+    write_error,
+)
+from store.db.places import backup_dir, latest_backup, rolling_backups
+
+DEFAULT_KEEP = 10
+KEEP_SETTING = "backup_keep"
+KEPT_BEFORE_RESTORE = "before-restore"
+
+
+def _stamp() -> str:
+    return datetime.now(UTC).strftime("%Y%m%dT%H%M%S%fZ")
+
+
+def keep_count(conn: sqlite3.Connection) -> int:
+    """How many rolling copies to keep: the book's setting `backup_keep`, else DEFAULT_KEEP."""
+    try:
+        row = conn.execute("SELECT value FROM settings WHERE key = ?", [KEEP_SETTING]).fetchone()
+    except sqlite3.Error:
+        return DEFAULT_KEEP
+    try:
+        return max(1, int(row[0])) if row else DEFAULT_KEEP
+    except (TypeError, ValueError):
+        return DEFAULT_KEEP
+
+
+def copy_to(conn: sqlite3.Connection, dest: Path) -> Path:
+    """Write a consistent copy of the open logbook to `dest` (a new file, or a new dated file
+    inside `dest` when it is a folder); never over an existing file."""
+    dest = Path(dest)
+    if dest.is_dir():
+        dest = dest / f"logbook-{_stamp()}.db"
+    if dest.exists():
+        raise BookError(f"{dest} exists already: choose a new file name")
+    tmp = dest.with_name(dest.name + ".part")
+    try:
+        dest.parent.mkdir(parents=True, exist_ok=True)
+        tmp.unlink(missing_ok=True)
+        target = sqlite3.connect(tmp)
+        try:
+            conn.backup(target)
+            target.execute("PRAGMA journal_mode = DELETE")
+            ok = target.execute("PRAGMA quick_check").fetchone()[0]
+        finally:
+            target.close()
+        if ok != "ok":
+            raise BookError(f"the copy for {dest} did not check out ({ok}); nothing was kept")
+        tmp.replace(dest)
+    except (OSError, sqlite3.Error) as exc:
+        tmp.unlink(missing_ok=True)
+        raise BookError(f"could not write the backup {dest}: {exc}") from exc
+    except BaseException:
+        tmp.unlink(missing_ok=True)
+        raise
+    return dest
+
+
+def copy_holding_lock(conn: sqlite3.Connection, book_path: Path, dest: Path) -> Path:
+    """`copy_to` while another connection holds the book's write lock: a save under way is
+    waited for (busy timeout), saves meanwhile wait for the copy, and the copy holds every
+    save reported before it. A book this process cannot write is copied as it stands."""
+    if not writable(Path(book_path)):
+        return copy_to(conn, dest)
+    lock = connect(Path(book_path))
+    try:
+        try:
+            lock.execute("BEGIN IMMEDIATE")
+        except sqlite3.Error as exc:
+            raise write_error(exc, Path(book_path)) from exc
+        try:
+            return copy_to(conn, dest)
+        finally:
+            lock.execute("ROLLBACK")
+    finally:
+        lock.close()
+
+
+def rolling_backup(
+    conn: sqlite3.Connection, book_path: Path, why: str, keep: int | None = None
+) -> Path:
+    """Add a dated copy beside the logbook and drop the oldest beyond `keep` (None: the
+    book's setting `backup_keep`, else DEFAULT_KEEP). Returns the newest copy."""
+    if not re.fullmatch(r"[\w.-]{1,40}", why):
+        raise ValueError(f"backup reason '{why}' must be a short word")
+    keep = keep_count(conn) if keep is None else max(1, keep)
+    book_path = Path(book_path)
+    previous = latest_backup(book_path)
+    dest = copy_to(conn, backup_dir(book_path) / f"{book_path.stem}-{_stamp()}-{why}.db")
+    if previous is not None and _same_bytes(previous, dest):
+        dest.unlink(missing_ok=True)
+        dest = previous
+    copies = rolling_backups(book_path)
+    for old in copies[: max(0, len(copies) - keep)]:
+        old.unlink(missing_ok=True)
+    return dest
+
+
+def _same_bytes(a: Path, b: Path) -> bool:
+    try:
+        return filecmp.cmp(a, b, shallow=False)
+    except OSError:
+        return False
+
+
+def backup_before_migration(conn: sqlite3.Connection, book_path: Path, version: int) -> Path:
+    return rolling_backup(conn, book_path, f"before-v{version}-upgrade")
+
+
+# ---- restore -------------------------------------------------------------------------------------
+
+
+def _same_file(a: Path, b: Path) -> bool:
+    try:
+        return a.exists() and b.exists() and a.samefile(b)
+    except OSError:
+        return False
+
+
+def open_checked(path: Path) -> sqlite3.Connection:
+    """A read-only connection to a file that passed every check a restore or merge needs:
+    a sumpbook logbook (application id), not damaged (integrity check), not too new."""
+    path = Path(path)
+    if not path.is_file() or path.stat().st_size == 0:
+        raise BookError(f"{path} is not a file holding a logbook")
+    try:
+        conn = connect(path, readonly=True)
+    except sqlite3.Error as exc:
+        raise NotALogbook(f"{path} cannot be read as a logbook ({exc})") from exc
+    try:
+        check_header(conn, path)
+        ok = conn.execute("PRAGMA integrity_check(1)").fetchone()[0]
+        if ok != "ok":
+            raise NotALogbook(f"{path} is damaged (integrity check: {ok})")
+    except sqlite3.DatabaseError as exc:
+        conn.close()
+        raise NotALogbook(f"{path} is damaged ({exc})") from exc
+    except BaseException:
+        conn.close()
+        raise
+    return conn
+
+
+def _healthy(book_path: Path) -> bool:
+    try:
+        open_checked(book_path).close()
+    except BookError:
+        return False
+    return True
+
+
+def restore(file: Path, book_path: Path) -> Path | None:
+    """Replace the logbook at `book_path` by the checked copy `file`.
+
+    The current logbook (if any) is first kept as `<name>-backups/<name>-before-restore-…db`,
+    which rolling backups never delete; returns that path (None when there was no logbook).
+
+    A healthy logbook is overwritten through the backup API, which holds the book's write
+    lock from its first step to its commit; the kept copy is read under that lock, after the
+    first step. So a save by another program either committed before (it is in the kept
+    copy), or waits for the lock (busy timeout) and lands in the restored book, or gives up
+    after the timeout and says nothing was saved: nothing reported saved is lost. A sumpbook
+    open on it at the same time sees the change whole. A damaged one is kept byte for byte
+    and replaced (a program that still has the old file open refuses to write to it, see
+    `Book.atomic`).
+    """
+    file, book_path = Path(file), Path(book_path)
+    if _same_file(file, book_path):
+        raise BookError(f"{file} is the logbook itself: choose a backup copy to restore")
+    source = open_checked(file)
+    try:
+        kept = None
+        if book_path.exists() and book_path.stat().st_size > 0:
+            kept = backup_dir(book_path) / (f"{book_path.stem}-{KEPT_BEFORE_RESTORE}-{_stamp()}.db")
+            if _healthy(book_path):
+                _overwrite(source, book_path, kept)
+            else:
+                _keep_raw(book_path, kept)
+                _replace(source, book_path)
+        else:
+            _replace(source, book_path)
+    finally:
+        source.close()
+    forget_check(book_path)  # another file now: the next write checks it again
+    clear_damage(book_path)
+    return kept
+
+
+RESTORE_STEP_PAGES = 1  # the first step must not finish the copy: the kept copy comes after it
+
+
+def _overwrite(source: sqlite3.Connection, book_path: Path, kept: Path) -> None:
+    """Keep the live logbook as `kept`, then copy `source` into it, as one write transaction
+    that holds the book's write lock from before the kept copy is read to the end."""
+    target = sqlite3.connect(book_path, timeout=BUSY_TIMEOUT_MS / 1000)
+    problems: list[BaseException] = []
+
+    def keep_current(status: int, remaining: int, total: int) -> None:
+        # Called after each step; after the first, this connection holds the write lock (the
+        # copy so far is not committed: readers see the book as it stands, writers wait).
+        if problems or kept.exists():
+            return
+        if remaining == 0:  # the copy is already whole: too late to keep what was there
+            problems.append(BookError("the restore could not keep the current logbook first"))
+            raise problems[-1]
+        try:
+            current = connect(book_path, readonly=True)
+            try:
+                copy_to(current, kept)
+            finally:
+                current.close()
+        except BaseException as exc:
+            problems.append(exc)
+            raise
+
+    try:
+        source.backup(target, pages=RESTORE_STEP_PAGES, progress=keep_current)
+        ok = target.execute("PRAGMA quick_check").fetchone()[0]
+    except sqlite3.Error as exc:
+        if problems:  # the kept copy failed: the backup was ended, nothing was committed
+            raise problems[0] from exc
+        raise write_error(exc, book_path) from exc
+    except BaseException:
+        if problems:
+            raise problems[0] from None
+        raise
+    finally:
+        target.close()
+    if problems:
+        raise problems[0]
+    if ok != "ok":
+        raise BookError(f"{book_path} did not check out after the restore ({ok})")
+
+
+def _keep_raw(book_path: Path, kept: Path) -> None:
+    """Keep a damaged logbook as it is, with its write-ahead log if it has one."""
+    try:
+        kept.parent.mkdir(parents=True, exist_ok=True)
+        shutil.copy2(book_path, kept)
+        wal = Path(f"{book_path}-wal")
+        if wal.exists():
+            shutil.copy2(wal, Path(f"{kept}-wal"))
+    except OSError as exc:
+        raise BookError(f"could not keep the current logbook as {kept}: {exc}") from exc
+
+
+def _replace(source: sqlite3.Connection, book_path: Path) -> None:
+    """Write a fresh file from `source` and move it over `book_path` (no one may have it open)."""
+    tmp = book_path.with_name(book_path.name + ".restoring")
+    tmp.unlink(missing_ok=True)
+    copy_to(source, tmp)
+    try:
+        for side in ("-wal", "-shm"):
+            Path(f"{book_path}{side}").unlink(missing_ok=True)
+        tmp.replace(book_path)
+    except OSError as exc:
+        tmp.unlink(missing_ok=True)
+        raise BookError(f"could not write {book_path}: {exc}") from exc

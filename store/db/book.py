@@ -1,0 +1,400 @@
+"""Opening a logbook file: connection settings, header checks and migrations."""
+
+from __future__ import annotations
+
+import sqlite3
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from datetime import datetime, tzinfo
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+from store.base.errors import BookError, NotALogbook
+from store.base.timeutil import parse_utc, utc_now, zone
+from store.base.validate import plant_setting
+from store.db.backup import backup_before_migration
+from store.db.connection import (
+    CHECKED,
+    check_header,
+    check_key,
+    clear_damage,
+    connect,
+    file_id,
+    is_empty_file,
+    no_new_side_files,
+    record_damage,
+    refuse_known_damage,
+    refused_write,
+    writable,
+    write_error,
+)
+from store.db.places import backup_hint
+from store.db.schema import APPLICATION_ID, MIGRATIONS, SCHEMA_VERSION
+
+PLANT_SETTINGS = ("name", "timezone", "backup_keep")
+
+if TYPE_CHECKING:
+    import sqlite_utils
+
+
+@dataclass
+class Book:
+    """An open logbook: `conn` the SQLite connection, `path` the file.
+
+    `readonly` is True when the file or its folder cannot be written (write-protected file,
+    read-only medium): the book can be read, and every write fails with a BookError.
+    """
+
+    conn: sqlite3.Connection
+    path: Path
+    readonly: bool = False
+    # What opening found and a person should hear once (e.g. rows an upgrade could not carry).
+    notices: list[str] = field(default_factory=list)
+    # Entry rows that could not be read this session: id -> what (journal.note_unreadable).
+    unreadable: dict[str, str] = field(default_factory=dict)
+    inode: tuple[int, int] | None = None  # (device, inode) of the file when it was opened
+    clock: Callable[[], datetime] = utc_now  # this run's clock (store.base.session)
+    _db: sqlite_utils.Database | None = field(default=None, repr=False, compare=False)
+
+    @property
+    def db(self) -> sqlite_utils.Database:
+        """The same connection as a sqlite-utils database, for table-level work. Made once,
+        on first use: importing sqlite-utils pulls in numpy and click (about 0.1 s), which the
+        app's start and the quick commands do without. Recursive triggers stay off (the
+        library turns them on by default; the book's triggers are written without them)."""
+        if self._db is None:
+            import sqlite_utils  # deferred: see above
+
+            self._db = sqlite_utils.Database(self.conn, recursive_triggers=False)
+        return self._db
+
+    def close(self) -> None:
+        self.conn.close()
+
+    def __enter__(self) -> Book:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    @contextmanager
+    def atomic(self) -> Iterator[None]:
+        """All writes inside land together or not at all (BEGIN IMMEDIATE takes the write lock).
+
+        A write the file refuses (disk full, read-only, locked by another program too long,
+        damaged) rolls everything back and raises a BookError saying so: nothing half-written,
+        and the caller still holds what it tried to save.
+        """
+        conn = self.conn
+        if conn.in_transaction:
+            yield
+            return
+        self.ensure_checked()
+        try:
+            conn.execute("BEGIN IMMEDIATE")
+        except sqlite3.Error as exc:
+            raise write_error(exc, self.path) from exc
+        try:
+            self._refuse_replaced()
+            yield
+            conn.execute("COMMIT")
+        except BaseException as exc:
+            if conn.in_transaction:  # SQLite may have rolled back already (e.g. disk full)
+                try:
+                    conn.execute("ROLLBACK")
+                except sqlite3.Error:
+                    pass
+            if isinstance(exc, sqlite3.Error) and refused_write(exc):
+                raise write_error(exc, self.path) from exc
+            if isinstance(exc, sqlite3.IntegrityError):  # a CHECK or trigger of the schema
+                raise BookError(f"the logbook refused a value ({exc}): nothing was saved") from exc
+            if isinstance(exc, UnicodeEncodeError):  # e.g. undecodable bytes from a terminal
+                raise BookError(
+                    "some text holds characters that are not valid text (a wrong encoding?): "
+                    "nothing was saved"
+                ) from exc
+            raise
+
+    def content_stamp(self) -> tuple[object, ...]:
+        """Differs from an earlier stamp once anything a screen shows may have changed: a new
+        entry (voids and merges are entries too), a register edit, a setting or the shift
+        pattern, by any program. Derived caches brought up to date leave it as it was."""
+        return self.conn.execute(
+            "SELECT (SELECT max(rowid) FROM entries), (SELECT max(rowid) FROM register_log), "
+            "(SELECT group_concat(key || '=' || value, ';') FROM settings), "
+            "(SELECT group_concat(name || '@' || starts, ';') FROM shifts)"
+        ).fetchone()
+
+    def ensure_checked(self) -> None:
+        """Before a write: refuse a book known to be damaged (a check of any process found
+        damage: `damage_marker`), and run the whole-file quick check once per process before
+        the first write (see `deep_check`); damage raises NotALogbook, nothing is written."""
+        if self.readonly:
+            return
+        refuse_known_damage(self.path)
+        if check_key(self.path) not in CHECKED:
+            _quick_check(self.conn, self.path)
+
+    def _refuse_replaced(self) -> None:
+        """Under the write lock: the file at `path` is still the one this connection opened (a
+        restore of a damaged book puts a new file in its place; a write to the old one would
+        be lost)."""
+        if self.inode is not None and file_id(self.path) != self.inode:
+            raise BookError(
+                f"{self.path} was replaced (restored) since it was opened: nothing was saved; "
+                "open it again and save once more"
+            )
+
+    def now(self) -> datetime:
+        """UTC now; a demo book is frozen at the moment its story ends (setting 'clock')."""
+        frozen = self.setting("clock")
+        return parse_utc(frozen) if frozen else self.clock()
+
+    def local_zone(self) -> tzinfo:
+        return zone(self.setting("timezone"))
+
+    def shift_pattern(self) -> list[tuple[str, str]]:
+        rows = self.conn.execute("SELECT name, starts FROM shifts ORDER BY starts").fetchall()
+        return [(name, starts) for name, starts in rows]
+
+    def setting(self, key: str, default: str | None = None) -> str | None:
+        row = self.conn.execute("SELECT value FROM settings WHERE key = ?", [key]).fetchone()
+        return row[0] if row else default
+
+    def set_setting(self, key: str, value: str) -> None:
+        if key in PLANT_SETTINGS:
+            value = plant_setting(key, value)  # the same check for every door
+        with self.atomic():
+            self.conn.execute(
+                "INSERT INTO settings(key, value) VALUES (?, ?) "
+                "ON CONFLICT(key) DO UPDATE SET value = excluded.value",
+                [key, value],
+            )
+
+
+# ---- damage found by a check ---------------------------------------------------------------------
+
+
+def full_check(path: Path) -> None:
+    """SQLite's integrity check of the whole file (every page, and every index against its
+    table: what the quick check leaves out), on a read-only connection of its own. Damage is
+    recorded beside the book (`damage_marker`: writes then refuse it) and raises
+    NotALogbook naming the latest backup; a pass removes an earlier record."""
+    path = Path(path)
+    if not path.is_file():
+        raise BookError(f"no logbook at {path}")
+    with no_new_side_files(path):
+        inspect(path)
+        conn = _checking_connection(path, readonly=True)
+        try:
+            try:
+                rows = conn.execute("PRAGMA integrity_check(5)").fetchall()
+                found = "; ".join(str(r[0]) for r in rows)
+            except sqlite3.DatabaseError as exc:
+                found = str(exc)
+        finally:
+            conn.close()
+        if found != "ok":
+            record_damage(path, f"integrity check: {found}")
+            raise NotALogbook(
+                f"{path} is damaged (integrity check: {found}); nothing was written to it; "
+                f"{backup_hint(path)}"
+            )
+    clear_damage(path)
+    CHECKED.add(check_key(path))
+
+
+def migrate(conn: sqlite3.Connection, from_version: int) -> list[str]:
+    """Apply every pending step in one transaction, with the version bump inside it.
+
+    Foreign keys are off while the steps run (a step may rebuild a table, SQLite's recipe for
+    new constraints) and checked whole before the commit. Returns what the steps found: rows
+    they could not carry over, kept in the `quarantine` table."""
+    pending = MIGRATIONS[from_version:]
+    if not pending:
+        return []
+    before = _quarantined(conn)
+    script = "\n".join(pending)
+    conn.execute("PRAGMA foreign_keys = OFF")
+    try:
+        conn.executescript(
+            "BEGIN IMMEDIATE;\n"
+            f"{script}\n"
+            f"PRAGMA application_id = {APPLICATION_ID};\n"
+            f"PRAGMA user_version = {SCHEMA_VERSION};\n"
+        )
+        dangling = conn.execute("PRAGMA foreign_key_check").fetchall()
+        if dangling:
+            conn.execute("ROLLBACK")
+            table, rowid, parent, _ = dangling[0]
+            raise BookError(
+                f"the upgrade found {len(dangling)} rows pointing at nothing (first: {table} row "
+                f"{rowid} -> {parent}); the file was left as it was"
+            )
+        found = _quarantined(conn) - before
+        conn.execute("COMMIT")
+    except BaseException:
+        if conn.in_transaction:
+            conn.execute("ROLLBACK")
+        raise
+    finally:
+        conn.execute("PRAGMA foreign_keys = ON")
+    if not found:
+        return []
+    return [
+        f"the upgrade to schema {SCHEMA_VERSION} could not carry {found} "
+        f"{'row' if found == 1 else 'rows'} over (values the book now refuses); they are kept "
+        "whole in the table 'quarantine' of the logbook, and nothing else changed"
+    ]
+
+
+def _quarantined(conn: sqlite3.Connection) -> int:
+    try:
+        return conn.execute("SELECT count(*) FROM quarantine").fetchone()[0]
+    except sqlite3.OperationalError:  # before schema 4
+        return 0
+
+
+def open_book(
+    path: Path | str,
+    *,
+    create: bool = True,
+    readonly: bool = False,
+    clock: Callable[[], datetime] | None = None,
+) -> Book:
+    """Open (and if needed create or migrate) the logbook at `path`.
+
+    An existing file is checked before anything is written to it (`inspect`); a file that is
+    write-protected or on read-only media opens read-only (`Book.readonly`), and so does any
+    file with `readonly`. `clock` is this run's (store.base.session.Session.clock); the
+    computer's when not given.
+    """
+    path = Path(path)
+    notices: list[str] = []
+    new = is_empty_file(path)
+    if new and (readonly or not create):
+        raise BookError(f"no logbook at {path}: run 'sumpbook demo' or register a unit first")
+    if new:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        clear_damage(path)  # a record of a file that stood here before (inodes are reused)
+    readonly = readonly or (not new and not writable(path))
+    with no_new_side_files(path):
+        version = 0 if new else inspect(path, readonly)
+    if 0 < version < SCHEMA_VERSION:
+        deep_check(path)  # before an upgrade writes to it
+    try:
+        conn = connect(path, readonly=readonly)
+    except sqlite3.Error as exc:
+        raise BookError(f"cannot open {path}: {exc}") from exc
+    try:
+        if not new:
+            version = check_header(conn, path, quick=False)
+        if version < SCHEMA_VERSION and readonly:
+            raise BookError(
+                f"{path} is read-only and was written by an older sumpbook: copy it to a "
+                "writable folder so it can be upgraded"
+            )
+        if version == 0:
+            # WAL before the first write: a creation cut short leaves a blank file, not a
+            # half-made one behind a rollback journal.
+            conn.execute("PRAGMA journal_mode = WAL")
+        if version < SCHEMA_VERSION:
+            if version > 0:
+                backup_before_migration(conn, path, version)
+            try:
+                notices = migrate(conn, version)
+            except sqlite3.Error as exc:
+                if conn.in_transaction:
+                    conn.execute("ROLLBACK")
+                raise BookError(f"could not upgrade {path}: {exc}; it was left as it was") from exc
+            if version == 0:
+                # schema 4 rebuilds schema 1's tables: a new file gives back their pages
+                conn.execute("VACUUM")
+        if not readonly:
+            conn.execute("PRAGMA journal_mode = WAL")
+        conn.execute("PRAGMA synchronous = FULL")
+    except BaseException:
+        conn.close()
+        raise
+    if new:
+        CHECKED.add(check_key(path))  # made here and now: nothing to check
+    return Book(
+        conn=conn,
+        path=path,
+        readonly=readonly,
+        notices=notices,
+        inode=file_id(path),
+        clock=clock or utc_now,
+    )
+
+
+def inspect(path: Path, readonly: bool = True) -> int:
+    """Check an existing file before anything is written to it: application id in the
+    header, that SQLite can read its schema, schema version. Returns the version;
+    NotALogbook names the latest backup.
+
+    The whole-file check is not made here (it reads every page: seconds on a book of
+    millions of entries): reading needs none (SQLite refuses a damaged page it meets, and
+    the command says so), and the first write of a process runs it (`Book.ensure_checked`).
+
+    The check runs on a read-only connection, so a refused file is left as it was; only a
+    file with a hot rollback journal (a write cut short in rollback mode) gets a writing
+    connection, because SQLite must roll that write back before anyone can read the file.
+    """
+    hot = Path(f"{path}-journal")
+    writer = not readonly and hot.exists() and hot.stat().st_size > 0
+    conn = _checking_connection(path, readonly=not writer)
+    try:
+        return check_header(conn, path, quick=False)
+    except NotALogbook as exc:
+        raise NotALogbook(f"{exc}; it was left untouched; {backup_hint(path)}") from exc
+    finally:
+        conn.close()
+
+
+def deep_check(path: Path) -> None:
+    """SQLite's quick check of every page of the file, on a read-only connection of its own
+    (the app runs it in the background after the first paint). Once a file has passed, the
+    process does not check it again; damage is recorded beside the book (every process then
+    refuses to write to it) and raises NotALogbook naming the latest backup.
+
+    Not the full integrity check (`full_check`, `sumpbook check`): that one also compares
+    every index with its table and took 10x as long on the 1.4 GB benchmark book (114 s
+    against 11 s on a busy 2-core machine), too long to run behind every start."""
+    if check_key(path) in CHECKED:
+        return
+    conn = _checking_connection(path, readonly=True)
+    try:
+        _quick_check(conn, path)
+    finally:
+        conn.close()
+
+
+def _checking_connection(path: Path, readonly: bool) -> sqlite3.Connection:
+    try:
+        return connect(path, readonly=readonly)
+    except sqlite3.Error as exc:
+        raise NotALogbook(
+            f"{path} is not a sumpbook logbook or is damaged ({exc}); it was left untouched; "
+            f"{backup_hint(path)}"
+        ) from exc
+
+
+# quick_check also reports rows that break a CHECK or NOT NULL constraint (a hand-made edit):
+# those are bad values, not a damaged file; readers skip them and they can be voided.
+_ROW_FINDINGS = ("CHECK constraint failed", "NOT NULL constraint failed")
+
+
+def _quick_check(conn: sqlite3.Connection, path: Path) -> None:
+    try:
+        found = [row[0] for row in conn.execute("PRAGMA quick_check").fetchall()]
+        ok = "ok" if all(f == "ok" or f.startswith(_ROW_FINDINGS) for f in found) else found[0]
+    except sqlite3.DatabaseError as exc:
+        ok = str(exc)
+    if ok != "ok":
+        record_damage(path, f"quick check: {ok}")
+        raise NotALogbook(
+            f"{path} is damaged (quick check: {ok}); nothing was written to it; {backup_hint(path)}"
+        )
+    CHECKED.add(check_key(path))

@@ -1,0 +1,529 @@
+"""The one shift-log exporter: the CSV of a span of time, fast enough for a year of a
+plant-sized book.
+
+The columns, how each value becomes a cell and how import reads it back are the table of
+`store/exchange/csvcolumns.py`; this module writes that table's cells without an entry object, a dict
+or a `csv` call per row: one query of plain tuples in time order (the columns a reading
+needs; see below for the rest); each cell made ready for the file once per distinct value
+(quoted as `csv.writer` does); the shift and the UTC offset kept while they hold; each
+filter's reference condition worked out once. Anything unusual (a stamp not in the book's own
+form, an hour holding a change of offset, a reading the normalising maths would refuse) is
+done the slow, plain way for that row. tests/store/test_csvexport.py holds it byte for byte to the
+plain entry-by-entry writer kept in tests/kit/csv_oracle.py.
+
+One process: a span once shared with a forked second process measured 0.8x (slower) on a busy
+2-core machine, so the fork went.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import os
+import re
+import sqlite3
+import stat
+from collections.abc import Callable, Iterable, Iterator, Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass, fields
+from datetime import UTC, datetime, timedelta, tzinfo
+from itertools import islice
+from pathlib import Path
+from typing import IO, Any
+
+from store.base.errors import BookError
+from store.base.prefs import Prefs
+from store.base.timeutil import format_utc, iso_local, shift_at
+from store.base.units import from_bar, pressure_key, temperature_key, to_bar
+from store.db.book import Book
+from store.exchange.csvcolumns import (
+    COLUMNS,
+    FORMULA_START,
+    VALUE_COLUMNS,
+    header,
+    reference_cell,
+)
+from store.exchange.csvcolumns import number_text as _num
+from store.health.conditions import FilterContext, contexts, normalise
+from store.ledger.entries import KINDS, TARGET_COLUMN, Reading, entry_columns
+from store.ledger.journal import ROW_ERRORS, note_unreadable, parse_stamp
+
+# Reading a column costs even when it is NULL, and the later in the table row the more, so
+# the span query reads only what a reading needs (readings are nearly every entry); the columns
+# only other kinds use are read for those entries one by one, and which entries are voided is
+# read once (a handful in a book, against an index probe per entry for a join). All of it is
+# read in one read transaction: the book as it stood at one moment, as one query would see it.
+_READING_COLUMNS = (
+    "id",
+    "at_utc",
+    "kind",
+    "by",
+    "unit",
+    "note",
+    "filter",
+    "dp_bar",
+    "indicator",
+    "temp_c",
+    "flow_lpm",
+    "hours",
+)
+# every other column of `entries` an entry kind has (from the kinds' dataclasses)
+_OTHER_COLUMNS = tuple(
+    sorted(
+        {name for cls in KINDS.values() for name in entry_columns(cls)}
+        - {*_READING_COLUMNS, "logged"}
+    )
+)
+# column -> its place in a row: the span query's row, then the other columns
+_COL = {name: i for i, name in enumerate((*_READING_COLUMNS, *_OTHER_COLUMNS))}
+# Range and order both from the index entries_by_time (no sort).
+_SELECT = "SELECT " + ", ".join(f"e.{c}" for c in _READING_COLUMNS) + " FROM entries e"
+_SELECT_OTHER = "SELECT " + ", ".join(_OTHER_COLUMNS) + " FROM entries WHERE id = ?"
+# From the partial index one_void_per_entry.
+_SELECT_VOIDS = "SELECT voids, id FROM entries WHERE voids IS NOT NULL"
+_ID, _AT, _KIND, _FILTER, _DP, _TEMP, _FLOW = (
+    _COL[c] for c in ("id", "at_utc", "kind", "filter", "dp_bar", "temp_c", "flow_lpm")
+)
+_is_stamp = re.compile(r"[0-9]{4}-[0-9]{2}-[0-9]{2}T[0-9]{2}:[0-9]{2}:[0-9]{2}Z").fullmatch
+_UNSEEN = object()
+_MEMO_SIZE = 50_000  # distinct values remembered per column
+_INF = float("inf")
+_BATCH = 4096  # lines written to the file at a time
+
+
+def _span_sql(start: str | None, end: str | None) -> tuple[str, list[Any]]:
+    """The SQL and parameters for every entry in [start, end) (stored stamps; None leaves
+    that end open), ordered as `journal.read` orders them (time, then the order they were
+    written)."""
+    where: list[str] = []
+    params: list[Any] = []
+    for bound, test in ((start, "e.at_utc >= ?"), (end, "e.at_utc < ?")):
+        if bound is not None:
+            where.append(test)
+            params.append(bound)
+    sql = _SELECT + (" WHERE " + " AND ".join(where) if where else "")
+    return sql + " ORDER BY e.at_utc, e.rowid", params
+
+
+def canonical_stamp(text: str) -> str:
+    """A stored UTC stamp in the book's own 'YYYY-MM-DDTHH:MM:SSZ' form, in which text
+    compares as the times do (any other form `journal` reads is rewritten in it)."""
+    return text if _is_stamp(text) else format_utc(parse_stamp(text))
+
+
+def csv_line(cells: Sequence[str]) -> str:
+    """One row as `csv.writer` (excel dialect, CR LF) writes it."""
+    buffer = io.StringIO()
+    csv.writer(buffer, lineterminator="\r\n").writerow(cells)
+    return buffer.getvalue()
+
+
+def quote(text: str) -> str:
+    """A cell as `csv.writer` puts it in the line: quoted when it holds a comma, a quote or a
+    line break."""
+    if '"' in text or "," in text or "\n" in text or "\r" in text:
+        return csv_line([text, ""])[:-3]  # a second, empty cell: a lone "" is written quoted
+    return text
+
+
+def csv_field(text: str) -> str:
+    """A text cell ready for the line: neutralised (`csvcolumns.neutralise`), then quoted."""
+    if text.startswith(FORMULA_START):
+        text = "'" + text
+    return quote(text)
+
+
+def remember(memo: dict[Any, Any], key: Any, value: Any) -> Any:
+    """memo[key] = value, the memo emptied first when it is full; returns value."""
+    if len(memo) >= _MEMO_SIZE:
+        memo.clear()
+    memo[key] = value
+    return value
+
+
+class LocalClock:
+    """UTC stamps as `iso_local` writes them, with the offset worked out once per UTC hour.
+
+    An hour whose two ends have different offsets (a zone that changes its clocks at a half
+    hour of UTC) is written stamp by stamp through `iso_local`. The text needs no quoting or
+    neutralising: it starts with the year's digits and holds only digits, '-', ':', 'T', '+'.
+    """
+
+    def __init__(self, local: tzinfo) -> None:
+        self.local = local
+        self.hour = ""
+        self.prefix: str | None = None  # the local 'YYYY-MM-DDTHH' when the offset is whole hours
+        self.delta: timedelta | None = None  # local wall time minus UTC, when one holds all hour
+        self.suffix = ""  # the offset as isoformat writes it
+
+    def text(self, stamp: str) -> str:
+        if stamp[:13] != self.hour:
+            self._learn(stamp[:13])
+        if self.prefix is not None:
+            return self.prefix + stamp[13:19] + self.suffix
+        if self.delta is not None:
+            return (datetime.fromisoformat(stamp[:19]) + self.delta).isoformat() + self.suffix
+        return iso_local(parse_stamp(stamp), self.local)
+
+    def _learn(self, hour: str) -> None:
+        self.hour = hour
+        first = datetime.fromisoformat(hour + ":00:00").replace(tzinfo=UTC)
+        begins = first.astimezone(self.local)
+        ends = (first + timedelta(seconds=3599)).astimezone(self.local)
+        self.prefix = self.delta = None
+        if begins.utcoffset() != ends.utcoffset():
+            return
+        self.delta = begins.replace(tzinfo=None) - first.replace(tzinfo=None)
+        self.suffix = begins.isoformat(timespec="seconds")[19:]
+        if self.delta % timedelta(hours=1) == timedelta(0):
+            self.prefix = begins.isoformat()[:13]
+
+
+class ShiftNames:
+    """The shift cell for each stamp. Entries come in time order, so a shift is kept while it
+    holds: the rule of `csvio.export_rows`, on UTC text instead of datetimes."""
+
+    def __init__(self, pattern: Sequence[tuple[str, str]], local: tzinfo) -> None:
+        self.pattern, self.local = pattern, local
+        self.start = self.end = ""
+        self.cell = ""
+
+    def name(self, stamp: str) -> str:
+        if not self.start <= stamp < self.end:
+            span = shift_at(parse_stamp(stamp), self.pattern, self.local)
+            self.start, self.end = format_utc(span.start), format_utc(span.end)
+            self.cell = csv_field(span.name)
+        return self.cell
+
+
+class FilterReference:
+    """One filter position's reference ΔP cells: the sums of `conditions.normalise` (ΔP times
+    ν_ref/ν, over Q/Q_ref when both flows are known), with the position's constants taken
+    once and ν_ref/ν remembered per temperature."""
+
+    def __init__(self, tag: str, ctx: FilterContext, pressure: str, temperature: str = "C") -> None:
+        self.tag, self.ctx, self.pressure = tag, ctx, pressure
+        self.bar_per_unit = to_bar(1.0, pressure)  # the number from_bar divides by
+        self.ratios: dict[float, float | str | None] = {}
+        self.memo: dict[tuple[float, float | None, float | None], tuple[str, str]] = {}
+        self.problem = ""
+        if ctx.curve is None or ctx.reference is None:
+            self.problem = csv_field(f"not normalised: {ctx.problem}")
+            return
+        self.normal_temp_c = ctx.unit.normal_temp_c
+        self.nu_ref_cst = ctx.reference.nu_ref_cst
+        self.flow_ref_lpm = ctx.reference.flow_ref_lpm
+        self.labels = {
+            (temp, flow): csv_field(reference_text(ctx, temp, flow, temperature))
+            for temp in (False, True)
+            for flow in (False, True)
+        }
+
+    def cells(self, dp_bar: float, temp_c: float | None, flow_lpm: float | None) -> tuple[str, str]:
+        """(dp_ref cell, reference cell) for a reading with a ΔP value, remembered per values
+        (a position's readings repeat a few hundred ΔP and temperature pairs)."""
+        key = (dp_bar, temp_c, flow_lpm)
+        found = self.memo.get(key)
+        if found is None:
+            found = remember(self.memo, key, self._cells(dp_bar, temp_c, flow_lpm))
+        return found
+
+    def _cells(
+        self, dp_bar: float, temp_c: float | None, flow_lpm: float | None
+    ) -> tuple[str, str]:
+        if self.problem:
+            return "", self.problem
+        ratio = self._nu_ratio(self.normal_temp_c if temp_c is None else temp_c)
+        if isinstance(ratio, str):
+            return "", ratio
+        if ratio is None or not 0.0 <= dp_bar < _INF:
+            return self._slow(dp_bar, temp_c, flow_lpm)
+        flow_ratio = 1.0
+        if flow_lpm is not None:
+            if not 0.0 < flow_lpm < _INF:
+                return self._slow(dp_bar, temp_c, flow_lpm)
+            if self.flow_ref_lpm is not None:
+                flow_ratio = flow_lpm / self.flow_ref_lpm
+                if not 1e-100 < flow_ratio < 1e100:  # flow_ratio**2 in normalise_dp_bar
+                    return self._slow(dp_bar, temp_c, flow_lpm)
+        # normalise_dp_bar with no housing part (the element's ΔP is the whole ΔP), in its order
+        dp_ref_bar = dp_bar * ratio / flow_ratio
+        flow_assumed = flow_lpm is None or self.flow_ref_lpm is None
+        return _num(dp_ref_bar / self.bar_per_unit), self.labels[temp_c is None, flow_assumed]
+
+    def _nu_ratio(self, temp_c: float) -> float | str | None:
+        """ν_ref/ν at temp_c; the reference cell when the curve has no ν there; None when ν is
+        not a positive number (normalise_dp_bar words that)."""
+        if temp_c in self.ratios:
+            return self.ratios[temp_c]
+        found: float | str | None = None
+        try:
+            nu_cst = self.ctx.curve.nu_cst(temp_c)  # type: ignore[union-attr]
+        except BookError as exc:
+            found = csv_field(f"not normalised: {exc}")
+        else:
+            if 0.0 < nu_cst < _INF:
+                found = self.nu_ref_cst / nu_cst
+        return remember(self.ratios, temp_c, found)
+
+    def _slow(self, dp_bar: float, temp_c: float | None, flow_lpm: float | None) -> tuple[str, str]:
+        """Through `conditions.normalise` itself, for the values its checks refuse."""
+        reading = Reading(filter=self.tag, dp_bar=dp_bar, temp_c=temp_c, flow_lpm=flow_lpm)
+        n = normalise(self.ctx, reading)
+        if n.dp_ref_bar is None:
+            return "", csv_field(f"not normalised: {n.problem}")
+        cell = _num(from_bar(n.dp_ref_bar, self.pressure))
+        return cell, self.labels[n.temp_assumed, n.flow_assumed]
+
+
+def reference_text(
+    ctx: FilterContext, temp_assumed: bool, flow_assumed: bool, temperature: str = "C"
+) -> str:
+    """The reference cell: the condition (its temperature in the user's unit) and what was
+    assumed."""
+    assumed = [w for w, a in (("temp", temp_assumed), ("flow", flow_assumed)) if a]
+    label = reference_cell(ctx.reference.label, ctx.unit.normal_temp_c, temperature)  # type: ignore[union-attr]
+    return label + (f"; {' and '.join(assumed)} assumed normal" if assumed else "")
+
+
+@dataclass(frozen=True)
+class KindPlan:
+    """How a row of one entry kind fills the CSV cells."""
+
+    blank: list[str]  # the cells before the row's values: the kind filled in, the rest empty
+    id: int  # the id's cell
+    # (cell, column, memo, the cell's text from the column's value)
+    cells: tuple[tuple[int, int, dict[Any, str], Callable[[Any], str]], ...]
+    reading: bool  # a reading: its ΔP gets a reference value
+    other: bool  # needs columns the span query does not read
+
+    def fill(self, row: Sequence[Any]) -> list[str]:
+        """The row's cells, but for those worked out beyond its own columns (time, shift,
+        reference, voided_by)."""
+        cells = self.blank.copy()
+        cells[self.id] = csv_field(row[_ID])  # never repeats: not remembered
+        for cell, column, memo, make in self.cells:
+            value = row[column]
+            if value is not None:  # most are, in a reading: NULL stays the empty cell
+                text = memo.get(value)
+                cells[cell] = remember(memo, value, make(value)) if text is None else text
+        return cells
+
+
+def kind_plans(prefs: Prefs) -> dict[str, KindPlan]:
+    """A plan per entry kind: the cells of the column table (`csvcolumns.COLUMNS`) its
+    dataclass has fields for. Columns with few distinct values (tags, words, gauge steps)
+    remember their cells; a column has one memo however many kinds use it."""
+    keys = prefs.unit_keys()
+    memos: dict[str, dict[Any, str]] = {name: {} for name in _COL}
+    index = {name: i for i, name in enumerate(header(prefs))}
+    headers = {c.name: c.header(keys) for c in COLUMNS}
+    plans = {}
+    for kind, cls in KINDS.items():
+        names = {f.name for f in fields(cls)}
+        blank = [""] * len(index)
+        blank[index["kind"]] = csv_field(kind)
+        cells = []
+        target = TARGET_COLUMN.get(cls.target_table or "")
+        if target is not None:
+            cells.append((index["target"], _COL[target], memos[target], csv_field))
+        for column in VALUE_COLUMNS:
+            if column.field in names:
+                cell = index[headers[column.name]]
+                blank[cell] = quote(column.empty(kind))
+                write = column.writer(keys)
+                cells.append(
+                    (cell, _COL[column.field], memos[column.field], lambda x, w=write: quote(w(x)))
+                )
+        other = any(column >= len(_READING_COLUMNS) for _, column, _, _ in cells)
+        plans[kind] = KindPlan(blank, index["id"], tuple(cells), issubclass(cls, Reading), other)
+    return plans
+
+
+class SpanLines:
+    """Rows of the span query -> CSV lines."""
+
+    def __init__(
+        self, book: Book, prefs: Prefs, local: tzinfo, pattern: list[tuple[str, str]]
+    ) -> None:
+        columns = header(prefs)
+        self.header = csv_line(columns)
+        self.plans = kind_plans(prefs)
+        self.clock, self.shifts = LocalClock(local), ShiftNames(pattern, local)
+        self.pressure = pressure_key(prefs.pressure)
+        self.temperature = temperature_key(prefs.temperature)
+        self.contexts = contexts(book)
+        self.book, self.conn = book, book.conn
+        self.voided_by = dict(book.conn.execute(_SELECT_VOIDS).fetchall())
+        self.references: dict[str, FilterReference | None] = {}
+        self.time, self.shift = columns.index("time"), columns.index("shift")
+        self.void = columns.index("voided_by")
+        self.dp_ref = columns.index(f"dp_ref_{self.pressure}")
+        self.reference = columns.index("reference")
+
+    def lines(self, rows: Iterable[Sequence[Any]]) -> Iterator[str]:
+        """Each row's CSV line, without its CR LF. One loop with its lookups bound once: it
+        runs for every entry of the span."""
+        plans, voided_by, references = self.plans, self.voided_by, self.references
+        clock, shifts, conn = self.clock, self.shifts, self.conn
+        time_cell, shift_cell, void_cell = self.time, self.shift, self.void
+        dp_ref_cell, reference_cell = self.dp_ref, self.reference
+        for row in rows:
+            try:
+                stamp = row[_AT]
+                if not _is_stamp(stamp):
+                    stamp = canonical_stamp(stamp)
+                plan = plans[row[_KIND]]
+                if plan.other:
+                    row = (*row, *conn.execute(_SELECT_OTHER, [row[_ID]]).fetchone())
+                cells = plan.fill(row)
+                if row[_ID] in voided_by:
+                    cells[void_cell] = csv_field(voided_by[row[_ID]])
+                if stamp[:13] == clock.hour and clock.prefix is not None:  # clock.text, inlined
+                    cells[time_cell] = clock.prefix + stamp[13:19] + clock.suffix
+                else:
+                    cells[time_cell] = clock.text(stamp)
+                cells[shift_cell] = (
+                    shifts.cell if shifts.start <= stamp < shifts.end else shifts.name(stamp)
+                )
+                if plan.reading and row[_DP] is not None:
+                    reference = references.get(row[_FILTER], _UNSEEN)
+                    if reference is _UNSEEN:
+                        reference = self._reference(row[_FILTER])
+                    if reference is not None:
+                        cells[dp_ref_cell], cells[reference_cell] = reference.cells(
+                            row[_DP], row[_TEMP], row[_FLOW]
+                        )
+            except ROW_ERRORS as exc:  # a row planted past the checks: skipped, reported
+                note_unreadable(self.book, row[_ID], f"{type(exc).__name__}: {exc}")
+                continue
+            yield ",".join(cells)
+
+    def _reference(self, tag: str) -> FilterReference | None:
+        """The filter's reference; None when the register has no such filter (as csvio)."""
+        ctx = self.contexts.get(tag)
+        self.references[tag] = (
+            None if ctx is None else FilterReference(tag, ctx, self.pressure, self.temperature)
+        )
+        return self.references[tag]
+
+
+def write_span(
+    out: IO[str],
+    book: Book,
+    start: datetime | None,
+    end: datetime | None,
+    prefs: Prefs,
+    local: tzinfo,
+    pattern: list[tuple[str, str]],
+) -> int:
+    """Write the entries logged in [start, end) as the shift-log CSV (header first); returns
+    how many. None leaves that end of the span open."""
+    start_text = None if start is None else format_utc(start)
+    end_text = None if end is None else format_utc(end)
+    with read_snapshot(book.conn):
+        span_lines = SpanLines(book, prefs, local, pattern)
+        out.write(span_lines.header)
+        sql, params = _span_sql(start_text, end_text)
+        return _write_lines(out, span_lines.lines(book.conn.execute(sql, params)))
+
+
+BOM = "\ufeff"  # UTF-8's byte-order mark: an office spreadsheet then reads ν, °C, µm as written
+
+
+def export_file(
+    book: Book,
+    dest: Path,
+    start: datetime | None,
+    end: datetime | None,
+    prefs: Prefs,
+    local: tzinfo,
+    pattern: list[tuple[str, str]],
+    bom: bool = True,
+) -> int:
+    """`write_span` into the regular file `dest` (made or replaced); returns the count.
+
+    The lines go to `<dest>.part` beside it, which then replaces `dest` in one rename: a
+    reader of `dest` sees the old file or the whole new one. A symlink, pipe, device or
+    folder at `dest` is refused with one line and left as it is. Any failure seen here
+    removes the `.part`; a `.part` left by an export that was killed is replaced by the next
+    export to the same file.
+    """
+    dest = Path(dest)
+    refuse_odd_destination(dest)
+    part = dest.with_name(dest.name + ".part")
+    try:
+        refuse_odd_destination(part)
+        part.unlink(missing_ok=True)  # a stale one of a killed export
+        flags = os.O_WRONLY | os.O_CREAT | os.O_EXCL | getattr(os, "O_NOFOLLOW", 0)
+        with open(os.open(part, flags, 0o666), "w", encoding="utf-8", newline="") as out:
+            if bom:
+                out.write(BOM)
+            count = write_span(out, book, start, end, prefs, local, pattern)
+            out.flush()
+            os.fsync(out.fileno())
+        refuse_odd_destination(dest)  # nothing was put there meanwhile
+        os.replace(part, dest)
+    except OSError as exc:
+        _remove(part)
+        raise BookError(f"cannot write {dest}: {exc.strerror or exc}") from exc
+    except BaseException:
+        _remove(part)  # a read that failed half-way leaves no file
+        raise
+    return count
+
+
+def refuse_odd_destination(path: Path) -> None:
+    """Only a regular file (or nothing yet) may be written over."""
+    try:
+        mode = os.lstat(path).st_mode
+    except FileNotFoundError:
+        return
+    except OSError as exc:
+        raise BookError(f"cannot write {path}: {exc.strerror or exc}") from exc
+    if stat.S_ISREG(mode):
+        return
+    what = (
+        "a symbolic link"
+        if stat.S_ISLNK(mode)
+        else "a folder"
+        if stat.S_ISDIR(mode)
+        else "a pipe"
+        if stat.S_ISFIFO(mode)
+        else "a device or socket"
+    )
+    raise BookError(
+        f"{path} is {what}, not a regular file: nothing was written; export writes only to a "
+        "regular file (give a new file name or the file's own path)"
+    )
+
+
+def _remove(path: Path) -> None:
+    try:
+        if stat.S_ISREG(os.lstat(path).st_mode):
+            os.unlink(path)
+    except OSError:
+        pass
+
+
+def _write_lines(out: IO[str], lines: Iterator[str]) -> int:
+    count = 0
+    while batch := list(islice(lines, _BATCH)):
+        out.write("\r\n".join(batch) + "\r\n")
+        count += len(batch)
+    return count
+
+
+@contextmanager
+def read_snapshot(conn: sqlite3.Connection) -> Iterator[None]:
+    """Every read inside sees the book as it stood at the first one (a deferred transaction;
+    inside the caller's transaction when there is one)."""
+    if conn.in_transaction:
+        yield
+        return
+    conn.execute("BEGIN")
+    try:
+        yield
+    finally:
+        if conn.in_transaction:
+            conn.execute("ROLLBACK")  # nothing was written: ending it is all

@@ -1,0 +1,92 @@
+"""The demo plant: a plain-SQL logbook shipped as demo.db.sql at the top of the repo."""
+
+from __future__ import annotations
+
+import os
+import shutil
+import sqlite3
+import tempfile
+from pathlib import Path
+
+from store.base.errors import BookError
+from store.base.session import Clock
+from store.db.book import Book, open_book
+
+# At the top of a checkout (editable install), or inside the package (wheel install).
+SQL_PATH = Path(__file__).resolve().parents[2] / "demo.db.sql"
+SQL_PATHS = (SQL_PATH, Path(__file__).resolve().parent / "demo.db.sql")
+
+
+def demo_sql() -> str:
+    for path in SQL_PATHS:
+        if path.is_file():
+            return path.read_text(encoding="utf-8")
+    raise BookError(f"the demo plant file is missing (looked for {SQL_PATHS[0]})")
+
+
+def load_sql(book: Book, sql: str) -> None:
+    """Run a data-only SQL script (INSERTs) into a freshly migrated book, all or nothing."""
+    if book.conn.execute("SELECT count(*) FROM units").fetchone()[0]:
+        raise BookError("the demo goes only into an empty logbook")
+    try:
+        book.conn.executescript("BEGIN IMMEDIATE;\n" + sql + "\nCOMMIT;")
+    except sqlite3.Error as exc:
+        if book.conn.in_transaction:
+            book.conn.execute("ROLLBACK")
+        raise BookError(f"the demo SQL did not load: {exc}") from exc
+
+
+def create_demo(path: Path, force: bool = False, clock: Clock | None = None) -> Book:
+    """Write the demo plant to `path`; an existing logbook is kept unless `force`."""
+    path = Path(path)
+    if path.exists() and path.stat().st_size > 0:
+        if not force:
+            raise BookError(f"{path} exists already: add --force to replace it with the demo")
+        for suffix in ("", "-wal", "-shm"):
+            Path(str(path) + suffix).unlink(missing_ok=True)
+    sql = demo_sql()
+    tmp = path.with_name(path.name + ".loading")
+    for suffix in ("", "-wal", "-shm"):
+        Path(str(tmp) + suffix).unlink(missing_ok=True)
+    book = open_book(tmp)
+    try:
+        load_sql(book, sql)
+        book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+    finally:
+        book.close()
+    os.replace(tmp, path)
+    return open_book(path, clock=clock)
+
+
+THROWAWAY_PREFIX = "sumpbook-throwaway-"  # the temporary folders of throw-away books
+
+
+def _throwaway_folder() -> Path:
+    return Path(tempfile.mkdtemp(prefix=THROWAWAY_PREFIX))
+
+
+def throwaway_demo(clock: Clock | None = None) -> Book:
+    """A fresh copy of the demo plant in a new temporary folder, for the app to open when
+    no logbook exists yet: its story starts where it was frozen every time, and nothing
+    logged in it is kept (`discard` removes it when the app closes or moves on)."""
+    return create_demo(_throwaway_folder() / "demo.db", clock=clock)
+
+
+def throwaway_empty(clock: Clock | None = None) -> Book:
+    """An empty book in a new temporary folder: what the app stands on while it asks
+    whether to create a logbook that does not exist yet."""
+    return open_book(_throwaway_folder() / "empty.db", clock=clock)
+
+
+def is_throwaway(path: Path) -> bool:
+    folder = Path(path).resolve().parent
+    return (
+        folder.name.startswith(THROWAWAY_PREFIX)
+        and folder.parent == Path(tempfile.gettempdir()).resolve()
+    )
+
+
+def discard(path: Path) -> None:
+    """Remove a throw-away book's folder (its copies and backups with it); nothing else."""
+    if is_throwaway(path):
+        shutil.rmtree(Path(path).resolve().parent, ignore_errors=True)

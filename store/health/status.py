@@ -1,0 +1,958 @@
+"""The watch list: per filter, breather and unit, what is due and what looks wrong.
+
+Everything here is derived from the entries and the register; `watch(book, as_of=T)`
+answers as the book stood at T (entries after it are ignored).
+
+Flag codes (also listed in the README):
+  filters   dp-drop, step-up, fast-loading, at-bypass, over-limit, indicator-bypass,
+            indicator-dirty, cold-start-bypass, reading-overdue, hot, no-limits
+  breathers swap-overdue, desiccant-spent
+  units     leak-suspect, unfiltered-topup, coarse-topup, over-target, hot
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field, replace
+from datetime import datetime, timedelta
+from functools import partial
+from typing import TYPE_CHECKING, Any, NamedTuple
+
+from dateutil import tz
+
+from store.base.errors import BookError
+from store.base.timeutil import iso_local
+from store.db.book import Book
+from store.health.conditions import FilterContext, contexts_from
+from store.health.elements import (
+    Element,
+    ElementSummary,
+    Point,
+    hours_per_day,
+    split_elements,
+    split_summaries,
+    summarise,
+    with_running_rate,
+)
+from store.health.fluidcare import (
+    BreatherForecast,
+    Consumption,
+    breather_forecast,
+    hot_readings,
+    sample_verdict,
+    spent_fraction,
+    topup_consumption,
+    topup_filtration_problem,
+)
+from store.health.lives import like_lives, like_lives_all, live_changes
+from store.ledger.entries import Entry, TopUp
+from store.ledger.journal import breather_swaps, element_items_until, live_changes_until, read
+from store.ledger.register import Breather, FilterPosition, Fluid, Unit, list_all
+from store.physics.normalise import ColdStart, cold_start
+
+if TYPE_CHECKING:  # the fitting maths (numpy, scipy) load on first use: a watch list read
+    from store.forecast import trend  # from the status cache needs none of it
+    from store.forecast.life import WeibullFit
+
+# Dirty oil is reaching the system now (or the element is gone): these sort first.
+URGENT_FLAGS = ("dp-drop", "at-bypass", "indicator-bypass")
+HOT_LOOKBACK = timedelta(days=7)
+FLAG_WORDS = {
+    "dp-drop": "ΔP DROP",
+    "step-up": "STEP UP",
+    "fast-loading": "FAST LOAD",
+    "at-bypass": "AT BYPASS",
+    "over-limit": "OVER LIMIT",
+    "indicator-bypass": "IND BYPASS",
+    "indicator-dirty": "IND DIRTY",
+    "cold-start-bypass": "COLD START",
+    "reading-overdue": "READ DUE",
+    "hot": "HOT",
+    "no-limits": "NO LIMITS",
+    "swap-overdue": "SWAP DUE",
+    "desiccant-spent": "SPENT",
+    "leak-suspect": "LEAK?",
+    "unfiltered-topup": "UNFILTERED",
+    "coarse-topup": "COARSE FILL",
+    "over-target": "DIRTY OIL",
+}
+
+
+@dataclass(frozen=True)
+class Due:
+    earliest: datetime
+    likely: datetime
+    latest: datetime | None  # None: no upper bound the data can support
+
+
+MAX_AGE_H = 20 * 8766.0  # twenty years of element age: later "dates" are no dates
+_LIFE_P = (0.05, 0.10, 0.50)  # service-life due: 5 %, 10 % (the planned change), 50 % points
+
+
+class _Ages(NamedTuple):  # an age interval, as trend.AgeInterval (without numpy)
+    earliest_h: float
+    likely_h: float
+    latest_h: float
+
+
+def _due(interval: trend.AgeInterval | _Ages | None, age_to_time: Any) -> Due | None:
+    if interval is None:
+        return None
+
+    def at(age_h: float) -> datetime:
+        return age_to_time(age_h).replace(microsecond=0)
+
+    if not interval.likely_h < MAX_AGE_H:  # beyond any sensible plan: no date
+        return None
+    latest = at(interval.latest_h) if interval.latest_h < MAX_AGE_H else None
+    return Due(at(interval.earliest_h), at(interval.likely_h), latest)
+
+
+@dataclass(frozen=True)
+class LifeSummary:
+    b10_h: float
+    b50_h: float
+    n_failed: int
+    n_censored: int
+    pooled: bool  # includes like positions (same element)
+
+
+def weibull_remaining_h(shape: float, scale_h: float, age_h: float, p: float) -> float:
+    """`life.WeibullFit.remaining_quantile_h` without numpy (the same sums): hours beyond
+    age_h by which a share p of elements that survived to age_h reach the limit."""
+    z = (max(age_h, 0.0) / scale_h) ** shape
+    return scale_h * (z - math.log1p(-p)) ** (1.0 / shape) - max(age_h, 0.0)
+
+
+@dataclass(frozen=True)
+class Clock:
+    """What of a filter's status moves with the clock alone, and what it moves from (the
+    entries only). The status cache keeps it beside the row, so that `at_time` gives the
+    status at any later time without the fitting maths (`status_from` ends with it too).
+
+    Good for any time from `valid_from` on (the newest reading of the element in service, or
+    the time it was computed at, whichever is earlier): older hot readings no longer count."""
+
+    valid_from: datetime | None
+    origin: datetime | None  # calendar ages count from here (None: not known, age 0 now) ...
+    meter: tuple[datetime, float, float] | None  # ... or (last meter time, age then, h/day)
+    due_ages: tuple[Any, Any] | None  # without an origin: the due ages, dated from now
+    last_age_h: float  # the newest reading's age: the forecast's "now" is never earlier
+    state: str  # the state before the clock's say (check-now, indicator-only)
+    check_after_h: float | None  # an "ok" element is "check-now" once older than this
+    note_at: int  # index of the forecast's note in the notes (-1: none) ...
+    check_words: str  # ... and what it says after its "ok" words once it is "check-now"
+    notes: int  # notes that do not move with the clock (the hot note follows them)
+    life: tuple[float, float] | None  # Weibull (shape, scale_h): service-life due, given age
+    hot: tuple[tuple[datetime, float], ...]  # (time, °C) of hot readings that can still count
+    max_temp_c: float
+
+    def age_h(self, now: datetime) -> float:
+        """The element's age at `now`: operating hours at the recent rate, or calendar hours."""
+        if self.meter is not None:
+            last_t, age_then, rate = self.meter
+            return age_then + rate * (now - last_t).total_seconds() / 86400
+        return max((now - (self.origin or now)).total_seconds() / 3600, 0.0)
+
+    def time_at(self, age_h: float, now: datetime) -> datetime:
+        """When the element reaches an age."""
+        if self.meter is not None:
+            last_t, age_then, rate = self.meter
+            return last_t + timedelta(days=(age_h - age_then) / rate)
+        return (self.origin or now) + timedelta(hours=age_h)
+
+
+CLOCK_FLAGS = ("reading-overdue", "hot")  # the flags `at_time` sets (always the last ones)
+
+
+def at_time(status: FilterStatus, clock: Clock, now: datetime) -> FilterStatus:
+    """The status at `now` (not before `clock.valid_from`): the element's age, check-now,
+    a service-life due given the age so far, reading-overdue and hot, from the status
+    computed at any other time."""
+    parts = clock_parts(
+        status.flags, status.notes, status.due, status.bypass_due, status.gauge,
+        status.overdue_at, clock, now,
+    )  # fmt: skip
+    return replace(status, **parts, clock=clock)
+
+
+def clock_parts(
+    flags_then: Sequence[str],
+    notes_then: Sequence[str],
+    due: Due | None,
+    bypass_due: Due | None,
+    gauge: bool,
+    overdue_at: datetime | None,
+    clock: Clock,
+    now: datetime,
+) -> dict[str, Any]:
+    """The fields of a status that `at_time` sets, from the ones it reads (a kept row is
+    decoded straight into them)."""
+    age_now = clock.age_h(now)
+    state = clock.state
+    time_at = partial(clock.time_at, now=now)
+    if clock.due_ages is not None:
+        due, bypass_due = (_due(ages, time_at) for ages in clock.due_ages)
+    if clock.check_after_h is not None and state == "ok":
+        if clock.check_after_h <= max(age_now, clock.last_age_h):
+            state = "check-now"
+    if clock.life is not None:
+        shape, scale_h = clock.life
+        due = _due(
+            _Ages(*(age_now + weibull_remaining_h(shape, scale_h, age_now, p) for p in _LIFE_P)),
+            time_at,
+        )
+    if not gauge and due is None and state in ("no-readings", "too-few-readings"):
+        state = "indicator-only"
+    flags = [f for f in flags_then if f not in CLOCK_FLAGS]
+    notes = list(notes_then[: clock.notes])
+    if clock.note_at >= 0:
+        note = notes[clock.note_at].removesuffix(clock.check_words)
+        notes[clock.note_at] = note + clock.check_words if state == "check-now" else note
+    if overdue_at and now > overdue_at:
+        flags.append("reading-overdue")
+    recent_hot = [temp_c for at, temp_c in clock.hot if now - at <= HOT_LOOKBACK]
+    if recent_hot:
+        flags.append("hot")
+        notes.append(
+            f"fluid at {max(recent_hot):.0f} °C, over the unit's {clock.max_temp_c:g} °C limit"
+        )
+    return {
+        "state": state,
+        "due": due,
+        "bypass_due": bypass_due,
+        "flags": tuple(dict.fromkeys(flags)),
+        "notes": tuple(notes),
+        "element_age_h": age_now,
+    }
+
+
+@dataclass(frozen=True)
+class FilterStatus:
+    filter: str
+    unit: str
+    kind: str
+    gauge: bool
+    dp_bar: float | None
+    dp_ref_bar: float | None
+    temp_c: float | None
+    indicator: str | None
+    reading_at: datetime | None
+    limit_bar: float | None
+    bypass_bar: float | None
+    clean_bar: float | None
+    percent_of_limit: float | None
+    due: Due | None
+    bypass_due: Due | None
+    basis: str
+    state: str
+    flags: tuple[str, ...]
+    notes: tuple[str, ...]
+    readings_since_change: int
+    changed_at: datetime | None
+    element_age_h: float
+    reference: str
+    cold: ColdStart | None
+    life: LifeSummary | None
+    history: tuple[Point, ...]  # readings of the current element (empty when read from cache)
+    spark: tuple[float, ...] = ()  # normalised ΔP of the current element, for sparklines
+    overdue_at: datetime | None = None  # when the next reading becomes overdue
+    pace: float | None = None  # earlier lives / this element's likely life (> 1: faster)
+    forecast: trend.Forecast | None = field(default=None, compare=False)
+    age_to_time: Any = field(default=None, compare=False)  # element age (h) -> datetime
+    clock: Clock | None = field(default=None, compare=False)  # what moves with the clock
+
+    @property
+    def urgency(self) -> tuple:
+        urgent = any(f in URGENT_FLAGS for f in self.flags)
+        due_key = self.due.likely.timestamp() if self.due else float("inf")
+        return (
+            0 if urgent else 1,
+            0 if "over-limit" in self.flags else 1,
+            due_key,
+            -(self.percent_of_limit or 0),
+            self.filter,
+        )
+
+
+@dataclass(frozen=True)
+class BreatherStatus:
+    breather: str
+    unit: str
+    kind: str
+    forecast: BreatherForecast
+    flags: tuple[str, ...]
+
+    @property
+    def urgency(self) -> tuple:
+        due = self.forecast.due.timestamp() if self.forecast.due else float("inf")
+        return (0 if self.flags else 1, due, self.breather)
+
+
+@dataclass(frozen=True)
+class UnitStatus:
+    unit: str
+    name: str
+    area: str
+    consumption: Consumption | None
+    latest_code: str | None
+    target_code: str | None
+    sample_text: str
+    flags: tuple[str, ...]
+    notes: tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class Watch:
+    as_of: datetime
+    filters: tuple[FilterStatus, ...]
+    breathers: tuple[BreatherStatus, ...]
+    units: tuple[UnitStatus, ...]
+
+
+# ---- filters -------------------------------------------------------------------------------------
+
+
+def _life(
+    ctx: FilterContext, past: Sequence[ElementSummary], like: Sequence[tuple[float, bool]]
+) -> WeibullFit | None:
+    """Weibull of this position's element lives; pooled with like positions if it has few."""
+    from store.forecast.life import fit_weibull  # deferred: numpy/scipy load on first fit
+
+    failed, censored = [], []
+    for el in past:
+        life = el.life_h()
+        if life is None or life <= 0:
+            continue
+        (failed if el.reached_limit(ctx.position.limit_bar) else censored).append(life)
+    fit = fit_weibull(failed, censored) if len(failed) >= 3 else None
+    if fit is None and like:
+        fit = fit_weibull(
+            failed + [h for h, r in like if r], censored + [h for h, r in like if not r]
+        )
+    return fit
+
+
+def own_failures(ctx: FilterContext, past: Sequence[ElementSummary]) -> int:
+    """Removed elements that reached the limit: with fewer than 3 the status pools the lives
+    of like positions (so a change on one of those can change it)."""
+    return sum(
+        1
+        for el in past
+        if (life := el.life_h()) is not None
+        and life > 0
+        and el.reached_limit(ctx.position.limit_bar)
+    )
+
+
+def _past(ctx: FilterContext, past: Sequence[ElementSummary]) -> list[trend.PastElement]:
+    from store.forecast import trend  # deferred: numpy/scipy load on first fit
+
+    out = []
+    for el in past:
+        life = el.life_h()
+        if life and life > 0 and el.ages_h:
+            out.append(
+                trend.PastElement(
+                    ages_h=el.ages_h,
+                    dp_ref_bar=el.dp_ref_bar,
+                    life_h=life,
+                    reached_limit=el.reached_limit(ctx.position.limit_bar),
+                )
+            )
+    return out
+
+
+def _pace(
+    ctx: FilterContext, past: Sequence[ElementSummary], forecast: trend.Forecast | None
+) -> trend.Pace | None:
+    """This element's pace against the earlier elements on the position that ran to the limit,
+    from a forecast fitted to its own readings (not from lives alone)."""
+    from store.forecast import trend  # deferred: numpy/scipy load on first fit
+
+    if (
+        forecast is None
+        or forecast.to_limit is None
+        or forecast.basis not in ("earlier-curves", "trend")
+        or forecast.state not in ("ok", "check-now")
+    ):
+        return None
+    lives = [
+        life
+        for el in past
+        if (life := el.life_h()) is not None
+        and life > 0
+        and el.reached_limit(ctx.position.limit_bar)
+    ]
+    return trend.loading_pace(forecast.to_limit.likely_h, lives)
+
+
+def filter_status(
+    ctx: FilterContext,
+    entries: Sequence[Entry],
+    now: datetime,
+    like: Sequence[tuple[float, bool]] = (),
+) -> FilterStatus:
+    """Status of one filter position from its live entries (time order, up to `now`)."""
+    elements = split_elements(ctx, entries)
+    past = [summarise(el) for el in elements[:-1]]
+    return status_from(ctx, past, elements[-1], now, like)
+
+
+def status_from(
+    ctx: FilterContext,
+    past: Sequence[ElementSummary],
+    current: Element,
+    now: datetime,
+    like: Sequence[tuple[float, bool]] = (),
+) -> FilterStatus:
+    """Status from the summaries of the removed elements and the element in service (the
+    derived element cache keeps the former, so a new reading costs only the latter)."""
+    from store.forecast import anomaly, trend  # deferred: numpy/scipy load on first fit
+
+    pos, unit = ctx.position, ctx.unit
+    rate = hours_per_day([*past[-2:], current], now) if unit.hour_meter else None
+    # A reading without the meter is aged at the unit's running rate, not in calendar hours.
+    current = with_running_rate(current, unit.hour_meter, rate)
+    points = current.points
+    numeric = [p for p in points if p.dp_ref_bar is not None]
+    last = points[-1] if points else None
+    origin = current.fitted_at or (points[0].at if points else None)
+    meter = None
+    if rate and current.fitted_hours is not None:
+        last_h = max([p.hours for p in points if p.hours is not None] or [current.fitted_hours])
+        last_t = max([p.at for p in points if p.hours is not None] or [origin or now])
+        meter = (last_t, last_h - current.fitted_hours, rate)
+    newest = max((p.at for p in points), default=None)
+    hot_since = min(now, newest) if newest else now
+    clock = Clock(  # what moves with the clock; the forecast's parts are filled in below
+        valid_from=hot_since if newest else None,
+        origin=origin,
+        meter=meter,
+        due_ages=None,
+        last_age_h=max((p.age_h for p in numeric), default=0.0),
+        state="",
+        check_after_h=None,
+        note_at=-1,
+        check_words="",
+        notes=0,
+        life=None,
+        hot=tuple(
+            (p.at, p.temp_c)
+            for p in points
+            if p.temp_c is not None
+            and p.temp_c > unit.max_temp_c
+            and p.at >= hot_since - HOT_LOOKBACK
+        ),
+        max_temp_c=unit.max_temp_c,
+    )
+    age_now, age_to_time = clock.age_h(now), partial(clock.time_at, now=now)
+
+    flags: list[str] = []
+    notes: list[str] = []
+    fit = _life(ctx, past, like)
+    life = None
+    if fit is not None:
+        life = LifeSummary(
+            fit.age_at_fraction_h(0.10),
+            fit.age_at_fraction_h(0.50),
+            fit.n_failed,
+            fit.n_censored,
+            pooled=bool(like),
+        )
+
+    forecast = None
+    due = bypass_due = None
+    basis, state = "none", "no-readings"
+    if not pos.limit_bar or not pos.bypass_bar:
+        state = "no-limits"
+        flags.append("no-limits")
+        notes.append("set the change limit and bypass ΔP to get a due date")
+    if pos.limit_bar:
+        readings = trend.ElementReadings(
+            ages_h=tuple(p.age_h for p in numeric),
+            dp_ref_bar=tuple(p.dp_ref_bar for p in numeric),  # type: ignore[misc]
+        )
+        last_age = max(readings.ages_h) if numeric else 0.0
+        try:
+            forecast = trend.forecast(
+                readings,
+                pos.clean_bar,
+                pos.limit_bar,
+                pos.bypass_bar,
+                max(age_now, last_age),
+                earlier=_past(ctx, past),
+            )
+        except BookError as exc:  # settings the forecast cannot use: say so, keep the rest
+            forecast = None
+            state = "no-forecast"
+            notes.append(f"no forecast: {exc}")
+        if forecast is not None:
+            basis, state = forecast.basis, forecast.state
+            if state in ("ok", "check-now") and forecast.to_limit is not None:
+                # check-now moves with the clock: keep the "ok" state and both notes.
+                words = trend._state_text("check-now", clock.last_age_h)
+                state = "ok"
+                clock = replace(
+                    clock,
+                    check_after_h=forecast.to_limit.likely_h,
+                    note_at=len(notes),
+                    check_words=words,
+                )
+            if forecast.note:
+                notes.append(forecast.note)
+            due = _due(forecast.to_limit, age_to_time)
+            bypass_due = _due(forecast.to_bypass, age_to_time)
+            if clock.origin is None:  # dated from now: at_time dates them again
+                clock = replace(clock, due_ages=(forecast.to_limit, forecast.to_bypass))
+    pace = _pace(ctx, past, forecast)
+    if pace is not None and pace.fast:
+        flags.append("fast-loading")
+        notes.append(
+            f"loading about {pace.ratio:.1f}× the pace of the last {pace.n} elements: something "
+            "changed (dirt getting in, a wrong or faulty element, wear upstream): take a fluid "
+            "sample, check the breather and recent top-ups"
+        )
+    if (
+        due is None
+        and state in ("too-few-readings", "no-readings", "flat")
+        and fit
+        and pos.limit_bar
+    ):
+        basis = "service-life"
+        b10 = fit.age_at_fraction_h(0.10)
+        # Given it has lasted this long: the 5 %, 10 % (the planned change) and 50 % points
+        # (at_time works them out for the age now).
+        clock = replace(clock, life=(fit.shape, fit.scale_h))
+        notes.append(
+            f"planned from earlier element lives: 10 % reach the limit by {b10:.0f} h of service"
+        )
+    if due is None and basis == "none" and not pos.gauge:
+        basis = "interval"
+
+    dp_ref = numeric[-1].dp_ref_bar if numeric else None
+    percent = 100 * dp_ref / pos.limit_bar if dp_ref is not None and pos.limit_bar else None
+    if dp_ref is not None and pos.bypass_bar and dp_ref >= pos.bypass_bar:
+        flags.append("at-bypass")
+    elif dp_ref is not None and pos.limit_bar and dp_ref >= pos.limit_bar:
+        flags.append("over-limit")
+    if (
+        last
+        and last.dp_bar is not None
+        and pos.bypass_bar
+        and last.dp_bar >= pos.bypass_bar
+        and "at-bypass" not in flags
+    ):
+        flags.append("at-bypass")
+        notes.append("the gauge read at or over the bypass setting: unfiltered oil passed")
+    if last and last.indicator == "bypass":
+        flags.append("indicator-bypass")
+    elif last and last.indicator == "dirty":
+        flags.append("indicator-dirty")
+    # In age order: a late entry or an hour meter read out of turn must not stop a save.
+    series = sorted((p.age_h, p.dp_ref_bar) for p in numeric)
+    drop = anomaly.drop_without_change(series)
+    if drop is not None:
+        flags.append("dp-drop")
+        notes.append(f"{drop.reason}; {drop.advice}")
+    step = anomaly.step_up(series)
+    if step is not None:
+        flags.append("step-up")
+        notes.append(f"{step.reason}; {step.advice}")
+    cold = None
+    if dp_ref is not None and pos.bypass_bar and ctx.curve and ctx.reference:
+        try:
+            cold = cold_start(
+                dp_ref, pos.bypass_bar, unit.coldest_start_c, ctx.curve, ctx.reference
+            )
+        except BookError as exc:
+            notes.append(f"cold start not computed: {exc}")
+        if cold and cold.bypasses:
+            flags.append("cold-start-bypass")
+            notes.append(
+                f"a start at {unit.coldest_start_c:g} °C would give "
+                f"{cold.dp_at_start_bar:.2f} bar and open the bypass "
+                f"(below {cold.bypass_below_c:.0f} °C)"
+            )
+    last_seen = max(
+        [p.at for p in points] + ([current.fitted_at] if current.fitted_at else []), default=None
+    )
+    overdue_at = last_seen + timedelta(hours=pos.reading_interval_h * 1.5) if last_seen else None
+    clock = replace(clock, state=state, notes=len(notes))
+    status = FilterStatus(
+        filter=pos.tag,
+        unit=pos.unit,
+        kind=pos.kind,
+        gauge=pos.gauge,
+        dp_bar=last.dp_bar if last else None,
+        dp_ref_bar=dp_ref,
+        temp_c=last.temp_c if last else None,
+        indicator=last.indicator if last else None,
+        reading_at=last.at if last else None,
+        limit_bar=pos.limit_bar,
+        bypass_bar=pos.bypass_bar,
+        clean_bar=pos.clean_bar,
+        percent_of_limit=percent,
+        due=due,
+        bypass_due=bypass_due,
+        basis=basis,
+        state=state,
+        flags=tuple(dict.fromkeys(flags)),
+        notes=tuple(notes),
+        readings_since_change=len(points),
+        changed_at=current.fitted_at,
+        element_age_h=age_now,
+        reference=ctx.reference.label if ctx.reference else ctx.problem,
+        cold=cold,
+        life=life,
+        history=points,
+        spark=tuple(p.dp_ref_bar for p in numeric[-40:]),  # type: ignore[misc]
+        overdue_at=overdue_at,
+        pace=None if pace is None else round(pace.ratio, 3),
+        forecast=forecast,
+        age_to_time=age_to_time,
+    )
+    return at_time(status, clock, now)
+
+
+def status_as_of(book: Book, ctx: FilterContext, as_of: datetime) -> FilterStatus:
+    """One filter's status as of a time, from every entry as it stood then (and like
+    positions' lives). The status now, from the caches, is store.views.status_of."""
+    now = as_of
+    # An audit takes only what existed at that time, voided only by voids dated before it.
+    until = now + timedelta(seconds=1)
+    entries = [
+        e for e in read(book, filter=ctx.position.tag, until=until, as_of=until) if not e.voided
+    ]
+    return filter_status(ctx, entries, now, like_lives(book, ctx, until))
+
+
+def _filters_as_of(
+    book: Book,
+    ctxs: Sequence[FilterContext],
+    positions: Sequence[FilterPosition],
+    now: datetime,
+    kept_before: KeptBefore | None = None,
+) -> list[FilterStatus]:
+    """`status_as_of(book, ctx, now)` of each of `ctxs` (`positions` being every position in
+    the register): the same sums, from a few reads for the whole plant instead of three
+    queries and an entry per reading for each position. `kept_before` (from a layer that may
+    read the element cache: store.views.kept_before) gives the summaries of elements taken
+    out before `now` where they are provably what the entries give as they stood then, and
+    where each position's entries must be read from; without it every history is read."""
+    until = now + timedelta(seconds=1)
+    changes = live_changes_until(book, until)
+    kept: dict[str, list[ElementSummary]] = {}
+    starts = {c.position.tag.upper(): ("", 0) for c in ctxs}
+    if kept_before is not None:
+        kept, starts = kept_before(book, ctxs, changes, until)
+    whole = not kept and len(ctxs) == len(positions)  # every history from its beginning
+    items = element_items_until(book, until, None if whole else starts, changes)
+    like = like_lives_all(live_changes(book, until), positions)
+    out = []
+    for ctx in ctxs:
+        key = ctx.position.tag.upper()
+        past, current = split_summaries(ctx, items.get(key, []))
+        if key in kept:
+            past = kept[key] + past[1:]  # the first ended with the change read from
+        out.append(status_from(ctx, past, current, now, like[ctx.position.tag]))
+    return out
+
+
+# ---- the whole book ------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Plant:
+    """What a watch list covers: the filters (with their operating conditions), the units and
+    each unit's filter positions, all of the plant or of one unit."""
+
+    contexts: tuple[FilterContext, ...]
+    units: tuple[Unit, ...]
+    positions_by_unit: dict[str, list[FilterPosition]]
+
+
+def plant(book: Book, unit: str | None = None) -> Plant:
+    all_units, positions = list_all(book, Unit), list_all(book, FilterPosition)
+    ctxs = [
+        c
+        for c in contexts_from(all_units, list_all(book, Fluid), positions).values()
+        if unit is None or c.position.unit == unit
+    ]
+    by_unit: dict[str, list[FilterPosition]] = {}
+    for position in positions:
+        by_unit.setdefault(position.unit.upper(), []).append(position)
+    units = tuple(u for u in all_units if unit is None or u.tag == unit)
+    return Plant(tuple(ctxs), units, by_unit)
+
+
+def breathers_at(book: Book, now: datetime, unit: str | None = None) -> list[BreatherStatus]:
+    """Every breather's status at `now` (of one unit), most urgent first."""
+    until = now + timedelta(seconds=1)
+    breathers = []
+    all_swaps = breather_swaps(book, until)
+    for b in list_all(book, Breather, unit):
+        swaps = [e for e in all_swaps.get(b.tag.upper(), []) if not e.voided]
+        breathers.append(_breather_status(b, swaps, now))
+    breathers.sort(key=lambda s: s.urgency)
+    return breathers
+
+
+def watch_list(
+    now: datetime,
+    filters: list[FilterStatus],
+    breathers: list[BreatherStatus],
+    units: list[UnitStatus],
+) -> Watch:
+    filters.sort(key=lambda s: s.urgency)
+    return Watch(now, tuple(filters), tuple(breathers), tuple(units))
+
+
+# (book, contexts, live changes as of a time, that time + 1 s) -> (summaries kept, starts)
+KeptBefore = Callable[
+    [Book, Sequence[FilterContext], Sequence[tuple[str, int, Entry]], datetime],
+    tuple[dict[str, list[ElementSummary]], dict[str, tuple[str, int]]],
+]
+
+
+def watch_as_of(
+    book: Book, as_of: datetime, unit: str | None = None, kept_before: KeptBefore | None = None
+) -> Watch:
+    """The watch list as of a past time, computed from the entries as they stood then (an
+    audit: no status cache is read; with `kept_before`, only element summaries the element
+    cache provably holds for that time). The list now is store.views.watch."""
+    p = plant(book, unit)
+    # `status_as_of` of each filter, for the whole plant at once (the same sums).
+    positions = list_all(book, FilterPosition)
+    filters = _filters_as_of(book, p.contexts, positions, as_of, kept_before)
+    units = [
+        unit_status(book, u, p.positions_by_unit.get(u.tag.upper(), []), as_of) for u in p.units
+    ]
+    return watch_list(as_of, filters, breathers_at(book, as_of, unit), units)
+
+
+def _breather_status(breather: Breather, swaps: Sequence[Entry], now: datetime) -> BreatherStatus:
+    forecast = breather_forecast(breather, swaps, now)  # type: ignore[arg-type]
+    flags = []
+    if forecast.overdue:
+        flags.append("swap-overdue")
+    fraction = spent_fraction(forecast.last_condition) if forecast.last_condition else None
+    if fraction is not None and fraction >= 0.99:
+        flags.append("desiccant-spent")
+    return BreatherStatus(breather.tag, breather.unit, breather.kind, forecast, tuple(flags))
+
+
+TOPUP_WINDOW = timedelta(days=30)  # a top-up's filtration is flagged this long
+
+
+@dataclass(frozen=True)
+class UnitClock:
+    """What a unit's status is worked out from at any time from `valid_from` on (when it was
+    computed): the entries only, so the status cache keeps it instead of the status."""
+
+    valid_from: datetime
+    first_at: datetime | None  # the unit's first entry: its top-up history starts there
+    early_l: float  # live top-ups before every window from valid_from on: volume, added up
+    early_n: int  # ... in time order, and how many
+    topups: tuple[TopUp, ...]  # the later live top-ups, oldest first
+    sample: tuple[str | None, str, bool | None] | None  # latest sample: code, words, meets
+    hot: tuple[datetime, ...]  # readings over the unit's limit that can still count
+
+
+def unit_clock(book: Book, unit: Unit, now: datetime) -> UnitClock:
+    """A unit's fluid-care entries as they stand at `now`."""
+    until = now + timedelta(seconds=1)
+    topups = [
+        e
+        for e in read(book, unit=unit.tag, kinds=["topup"], until=until, as_of=until)
+        if not e.voided
+    ]
+    first = read(book, unit=unit.tag, until=until, limit=1)
+    early = [t for t in topups if t.at < now - TOPUP_WINDOW]  # type: ignore[operator]
+    early_l = 0  # as topup_consumption adds them up
+    for t in early:
+        early_l += t.volume_l  # type: ignore[attr-defined]
+    samples = [
+        e
+        for e in read(
+            book,
+            unit=unit.tag,
+            kinds=["sample"],
+            until=until,
+            as_of=until,
+            newest_first=True,
+            limit=5,
+        )
+        if not e.voided and e.code
+    ]  # type: ignore[attr-defined]
+    sample = None
+    if samples:
+        verdict = sample_verdict(unit, samples[0])  # type: ignore[arg-type]
+        sample = (verdict.code, verdict.text, verdict.meets)
+    recent = [
+        e
+        for e in read(
+            book,
+            unit=unit.tag,
+            kinds=["reading"],
+            since=now - HOT_LOOKBACK,
+            until=until,
+            as_of=until,
+        )
+        if not e.voided
+    ]
+    return UnitClock(
+        valid_from=now,
+        first_at=first[0].at if first else None,
+        early_l=early_l,
+        early_n=len(early),
+        topups=tuple(topups[len(early) :]),  # type: ignore[arg-type]
+        sample=sample,
+        hot=tuple(r.at for r in hot_readings(unit, recent)),  # type: ignore[arg-type, misc]
+    )
+
+
+def unit_at(
+    unit: Unit, filters: Sequence[FilterPosition], clock: UnitClock, now: datetime
+) -> UnitStatus:
+    """A unit's status at `now` (not before `clock.valid_from`): the windows of top-up use,
+    top-up filtration and hot readings laid over its kept entries."""
+    flags: list[str] = []
+    notes: list[str] = []
+    consumption = topup_consumption(
+        unit, clock.topups, now, clock.first_at, clock.early_l, clock.early_n
+    )
+    if consumption and consumption.rising:
+        flags.append("leak-suspect")
+        notes.append(f"fluid use is rising: {consumption.note}; look for a leak (never by hand)")
+    for t in clock.topups:
+        if t.at and now - t.at <= TOPUP_WINDOW:
+            problem = topup_filtration_problem(t, filters)
+            if problem:
+                flags.append("unfiltered-topup" if t.filtered_um is None else "coarse-topup")
+                notes.append(problem)
+    code = sample_text = None
+    if clock.sample:
+        code, sample_text, meets = clock.sample
+        if meets is False:
+            flags.append("over-target")
+            notes.append(f"latest sample {sample_text}")
+    if any(now - at <= HOT_LOOKBACK for at in clock.hot):
+        flags.append("hot")
+    return UnitStatus(
+        unit.tag,
+        unit.name,
+        unit.area,
+        consumption,
+        code,
+        unit.target_code,
+        sample_text or "",
+        tuple(dict.fromkeys(flags)),
+        tuple(notes),
+    )
+
+
+def unit_status(
+    book: Book, unit: Unit, filters: Sequence[FilterPosition], now: datetime
+) -> UnitStatus:
+    """A unit's fluid care: top-up use, top-up filtration, latest sample, hot readings."""
+    return unit_at(unit, filters, unit_clock(book, unit, now), now)
+
+
+# ---- JSON ----------------------------------------------------------------------------------------
+
+
+def _due_json(due: Due | None, local: Any) -> dict[str, str] | None:
+    if due is None:
+        return None
+    return {
+        k: iso_local(getattr(due, k), local) if getattr(due, k) else None
+        for k in ("earliest", "likely", "latest")
+    }
+
+
+def _r(value: float | None, digits: int = 3) -> float | None:
+    return None if value is None else round(value, digits)
+
+
+def to_json(w: Watch, local: Any = None) -> dict[str, Any]:
+    local = local or tz.UTC
+    return {
+        "as_of": iso_local(w.as_of, local),
+        "filters": [
+            {
+                "filter": f.filter,
+                "unit": f.unit,
+                "kind": f.kind,
+                "dp_bar": _r(f.dp_bar),
+                "dp_ref_bar": _r(f.dp_ref_bar),
+                "temp_c": _r(f.temp_c, 1),
+                "indicator": f.indicator,
+                "reading_at": iso_local(f.reading_at, local) if f.reading_at else None,
+                "reference": f.reference,
+                "limit_bar": f.limit_bar,
+                "bypass_bar": f.bypass_bar,
+                "percent_of_limit": _r(f.percent_of_limit, 1),
+                "due": _due_json(f.due, local),
+                "bypass_due": _due_json(f.bypass_due, local),
+                "basis": f.basis,
+                "state": f.state,
+                "flags": list(f.flags),
+                "notes": list(f.notes),
+                "readings_since_change": f.readings_since_change,
+                "element_age_h": _r(f.element_age_h, 1),
+                "pace_vs_earlier": _r(f.pace, 2),
+                "cold_start": None
+                if f.cold is None
+                else {
+                    "start_temp_c": f.cold.start_temp_c,
+                    "dp_at_start_bar": _r(f.cold.dp_at_start_bar),
+                    "bypasses": f.cold.bypasses,
+                    "bypass_below_c": _r(f.cold.bypass_below_c, 1),
+                },
+                "service_life": None
+                if f.life is None
+                else {
+                    "b10_h": _r(f.life.b10_h, 0),
+                    "b50_h": _r(f.life.b50_h, 0),
+                    "failed": f.life.n_failed,
+                    "censored": f.life.n_censored,
+                },
+            }
+            for f in w.filters
+        ],
+        "breathers": [
+            {
+                "breather": b.breather,
+                "unit": b.unit,
+                "kind": b.kind,
+                "last_swap": iso_local(b.forecast.last_swap, local)
+                if b.forecast.last_swap
+                else None,
+                "due": iso_local(b.forecast.due, local) if b.forecast.due else None,
+                "interval_d": _r(b.forecast.interval_d, 1),
+                "basis": b.forecast.basis,
+                "flags": list(b.flags),
+            }
+            for b in w.breathers
+        ],
+        "units": [
+            {
+                "unit": u.unit,
+                "name": u.name,
+                "area": u.area,
+                "topup_l_per_week": _r(u.consumption.recent_l_per_week, 2)
+                if u.consumption
+                else None,
+                "topup_history_l_per_week": _r(u.consumption.history_l_per_week, 2)
+                if u.consumption
+                else None,
+                "latest_code": u.latest_code,
+                "target_code": u.target_code,
+                "flags": list(u.flags),
+                "notes": list(u.notes),
+            }
+            for u in w.units
+        ],
+    }

@@ -1,0 +1,77 @@
+"""Every write of an entry: the entry itself (store.ledger.journal) and the derived rows kept
+beside it (store.derived: element summaries, status cache), in one transaction, so the two
+never disagree on disk. The screens, the command line, CSV import and merge write through
+here; nothing else writes derived rows except an explicit refresh or rebuild."""
+
+from __future__ import annotations
+
+import uuid
+from collections.abc import Iterable, Sequence
+from dataclasses import replace
+
+from store.db.book import Book
+from store.derived import statuscache
+from store.ledger import journal
+from store.ledger.entries import Entry
+
+
+def preload() -> None:
+    """Import the fitting maths now (numpy and scipy are slow to import, and other writers
+    would wait while this process holds the write lock)."""
+    statuscache.preload()
+
+
+def after_write(book: Book, entries: Sequence[Entry]) -> None:
+    """Inside the caller's write transaction: bring the derived rows up to date for the
+    entries it wrote, once per filter, breather or unit touched (each refresh reads all the
+    entries of its target, so its newest entry is enough)."""
+    last: dict[tuple[str, str], Entry] = {}
+    for entry in entries:  # per kind too: what a refresh looks at beside its target differs
+        last[(_target(book, entry), entry.kind)] = entry
+    for entry in last.values():
+        statuscache.after_entry(book, entry)
+
+
+def _target(book: Book, entry: Entry) -> str:
+    """What an entry's refresh recomputes: its filter, breather or unit; a void's is the
+    voided entry's (a hundred voids on one filter refresh it once)."""
+    voids = getattr(entry, "voids", None)
+    if voids:
+        row = book.conn.execute(
+            "SELECT coalesce(filter, breather, unit) FROM entries WHERE id = ?", [voids]
+        ).fetchone()
+        return (row[0] or "").upper() if row else voids
+    return (entry.target or entry.unit or "").upper()
+
+
+def log(book: Book, entry: Entry) -> Entry:
+    """Validate and append one entry; returns it with id and times filled in."""
+    return log_many(book, [entry])[0]
+
+
+def log_many(book: Book, entries: Iterable[Entry]) -> list[Entry]:
+    """All or nothing: every entry is validated and written, and the derived rows follow,
+    in one transaction."""
+    now = book.now()
+    done = []
+    preload()
+    with book.atomic():
+        for entry in entries:
+            entry = journal.validate(book, entry, now)
+            entry = replace(entry, id=entry.id or str(uuid.uuid4()), logged=entry.logged or now)
+            journal.insert(book, entry)
+            done.append(entry)
+        after_write(book, done)
+    return done
+
+
+def refresh_stale(book: Book, limit: int | None = None) -> list[str]:
+    """The explicit refresh behind a watch list: recompute and keep the derived rows that are
+    missing, of an old format or marked stale (at most `limit` filters). Returns the tags."""
+    return statuscache.refresh_stale(book, limit)
+
+
+def rebuild(book: Book) -> int:
+    """Drop and recompute every derived row from the entries (`sumpbook rebuild`); returns
+    how many filters were done."""
+    return statuscache.rebuild(book)

@@ -1,0 +1,1 @@
+"""The `sumpbook` command line and the other doors (CSV, merge), end to end."""

@@ -1,0 +1,1 @@
+"""The store: maths against outside references, the book file, the ledger, exports."""

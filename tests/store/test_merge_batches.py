@@ -1,0 +1,92 @@
+"""Merge writes the other book's entries in batches (sqlite-utils insert_all on the book's own
+connection): several batches, voids between them, and a row refused in a later batch still
+leave all or nothing."""
+
+from __future__ import annotations
+
+import shutil
+import sqlite3
+import uuid
+from pathlib import Path
+
+import pytest
+
+from store import record
+from store.base.errors import BookError
+from store.db.book import open_book
+from store.exchange import merge as merging
+from store.ledger import journal
+from store.ledger.entries import Note, Reading, Void
+from tests.kit.plant import fill_register
+
+TABLES = ("technicians", "fluids", "units", "filters", "breathers", "register_log", "entries")
+
+
+def _dump(path: Path) -> dict[str, list[tuple]]:
+    conn = sqlite3.connect(path)
+    try:
+        return {t: conn.execute(f"SELECT * FROM {t} ORDER BY rowid").fetchall() for t in TABLES}
+    finally:
+        conn.close()
+
+
+def _entry_rows(path: Path) -> set[tuple]:
+    conn = sqlite3.connect(path)
+    try:
+        return set(conn.execute("SELECT * FROM entries").fetchall())
+    finally:
+        conn.close()
+
+
+def _books(tmp_path: Path) -> tuple[Path, Path]:
+    """A: the register only. B: a copy that then logs 40 entries and voids every fifth,
+    and a void of one of those voids (written straight into the file: the journal refuses
+    it, an older or hand-edited book may hold it)."""
+    a, b = tmp_path / "a.db", tmp_path / "b.db"
+    with open_book(a) as book:
+        fill_register(book)
+    shutil.copy(a, b)
+    with open_book(b) as book:
+        done = record.log_many(
+            book,
+            [Reading(filter="P1-RF", dp_bar=0.5 + i / 100, temp_c=45, by="AB") for i in range(20)]
+            + [Note(unit="P1", note=f"round {i}", by="CD") for i in range(20)],
+        )
+        voids = record.log_many(
+            book, [Void(voids=e.id, note="typed twice", by="AB") for e in done[::5]]
+        )
+        row = journal._row(voids[0])
+        row.update(id=str(uuid.uuid4()), voids=voids[0].id, note="that void was wrong")
+        with book.atomic():
+            book.conn.execute(
+                f"INSERT INTO entries ({', '.join(row)}) VALUES ({', '.join('?' for _ in row)})",
+                list(row.values()),
+            )
+    return a, b
+
+
+def test_entries_land_in_batches_with_voids_between(tmp_path, monkeypatch):
+    monkeypatch.setattr(merging, "BATCH_ROWS", 7)  # 40 entries: several batches
+    a, b = _books(tmp_path)
+    with open_book(a) as book:
+        report = merging.merge(book, b)
+    assert report.conflicts == []
+    assert report.entries_added == 40 + 8 + 1
+    assert _entry_rows(a) == _entry_rows(b)  # every entry, every column
+
+
+def test_a_row_refused_in_a_later_batch_leaves_nothing(tmp_path, monkeypatch):
+    monkeypatch.setattr(merging, "BATCH_ROWS", 7)
+    a, b = _books(tmp_path)
+    before = _dump(a)
+    # The 20th entry the merge writes (the third batch) is refused by the file itself.
+    refused = sorted(_entry_rows(b), key=lambda r: (r[3] == "void", r[1], r[2], r[0]))[19][0]
+    with open_book(a) as book:
+        book.conn.execute(
+            "CREATE TEMP TRIGGER refuse_one BEFORE INSERT ON main.entries "
+            f"WHEN NEW.id = '{refused}' BEGIN SELECT RAISE(ABORT, 'refused here'); END"
+        )
+        with pytest.raises(BookError, match="refused"):
+            merging.merge(book, b)
+        assert not book.conn.in_transaction
+    assert _dump(a) == before  # the two batches written before it are gone as well

@@ -1,0 +1,184 @@
+"""The watch list as of a past time, for the whole plant at once.
+
+`views.watch(book, as_of=T)` reads the plant's readings and changes in one go; each filter's
+row must be exactly what `status.status_as_of(book, ctx, T)` gives, which reads that position's
+entries alone as the book stood at T (entries dated before T, voided only by voids dated
+before T). Checked on the demo plant at several times (at and just before element changes,
+the middle and the end of its story), with voids and entries dated after T, and for one unit.
+"""
+
+from __future__ import annotations
+
+from datetime import timedelta
+from pathlib import Path
+
+import pytest
+
+from store import record, views
+from store.base.timeutil import format_utc, parse_utc
+from store.db.book import open_book
+from store.derived import statuscache
+from store.health import status
+from store.health.conditions import contexts
+from store.ledger import journal
+from store.ledger.entries import ElementChange, Reading, Void
+
+
+def by_position(book, now, unit=None) -> list[status.FilterStatus]:
+    """Every filter's status at `now`, position by position (the per-filter computation)."""
+    ctxs = [c for c in contexts(book).values() if unit is None or c.position.unit == unit]
+    return sorted((status.status_as_of(book, c, now) for c in ctxs), key=lambda s: s.urgency)
+
+
+def assert_same(book, now, unit=None) -> None:
+    whole = views.watch(book, as_of=now, unit=unit)
+    one_by_one = by_position(book, now, unit)
+    assert [f.filter for f in whole.filters] == [f.filter for f in one_by_one]
+    for fast, slow in zip(whole.filters, one_by_one, strict=True):
+        # Every kept field (flags, notes, dates, the clock's parts), then what is not kept.
+        assert statuscache._encode(fast) == statuscache._encode(slow), fast.filter
+        assert fast.history == slow.history, fast.filter
+        assert fast.forecast == slow.forecast, fast.filter
+    expected = status.Watch(now, tuple(one_by_one), whole.breathers, whole.units)
+    assert status.to_json(whole) == status.to_json(expected)
+
+
+@pytest.fixture
+def demo(demo_file: Path, tmp_path: Path) -> Path:
+    """A copy of the demo with its caches made (as `sumpbook rebuild`); the writes the tests
+    make keep them."""
+    path = tmp_path / "demo.db"
+    path.write_bytes(demo_file.read_bytes())
+    with open_book(path, create=False) as book:
+        statuscache.rebuild(book)
+    return path
+
+
+def change_times(book) -> list:
+    rows = book.conn.execute(
+        "SELECT at_utc FROM entries WHERE kind = 'change' ORDER BY at_utc"
+    ).fetchall()
+    return [parse_utc(r[0]) for r in rows]
+
+
+def test_whole_plant_as_of_equals_each_position_on_its_own(demo: Path) -> None:
+    with open_book(demo, create=False) as book:
+        first, last = book.conn.execute("SELECT min(at_utc), max(at_utc) FROM entries").fetchone()
+        start, end = parse_utc(first), parse_utc(last)
+        changes = change_times(book)
+        assert len(changes) > 10  # the comparison needs removed elements and pooled lives
+        times = [start + (end - start) * share for share in (0.25, 0.5, 0.8)]
+        times += [changes[len(changes) // 2], changes[len(changes) // 2] - timedelta(seconds=1)]
+        times += [changes[-1], end, book.now()]
+        for now in times:
+            assert_same(book, now)
+
+
+def test_voids_and_entries_dated_after_the_time_are_not_seen(demo: Path) -> None:
+    with open_book(demo, create=False) as book:
+        end = book.now()
+        book.set_setting("clock", format_utc(end + timedelta(days=3)))
+        tech = book.conn.execute("SELECT tag FROM technicians ORDER BY tag").fetchone()[0]
+        middle = change_times(book)[len(change_times(book)) // 2]
+        change = book.conn.execute(
+            "SELECT id, filter FROM entries WHERE kind = 'change' AND at_utc = ?",
+            [format_utc(middle)],
+        ).fetchone()
+        reading = book.conn.execute(  # the newest reading: its element is still in service
+            "SELECT id, filter FROM entries WHERE kind = 'reading' AND dp_bar IS NOT NULL "
+            "ORDER BY at_utc DESC LIMIT 1"
+        ).fetchone()
+        later = end + timedelta(days=1)
+        for target in (change, reading):
+            record.log(book, Void(voids=target[0], note="wrong position", by=tech, at=later))
+        record.log(
+            book,
+            Reading(
+                filter=reading[1], dp_bar=0.9, temp_c=45, by=tech, at=later + timedelta(hours=1)
+            ),
+        )
+        record.log(book, ElementChange(filter=change[1], by=tech, at=later + timedelta(hours=2)))
+        # Before the voids both entries count; after them neither does.
+        for now in (middle, end, later + timedelta(hours=3)):
+            assert_same(book, now)
+        seen = {f.filter: f for f in views.watch(book, as_of=end).filters}
+        after = {f.filter: f for f in views.watch(book, as_of=later + timedelta(hours=3)).filters}
+        assert seen[change[1]].changed_at != after[change[1]].changed_at
+        assert seen[reading[1]].readings_since_change > 1
+        assert seen[reading[1]].reading_at != after[reading[1]].reading_at
+
+
+def test_one_unit_as_of(demo: Path) -> None:
+    with open_book(demo, create=False) as book:
+        units = [u for (u,) in book.conn.execute("SELECT tag FROM units ORDER BY tag")]
+        now = book.now() - timedelta(days=40)
+        for unit in units[:3]:
+            assert_same(book, now, unit)
+
+
+def test_as_of_the_last_entry_equals_the_kept_status(demo: Path) -> None:
+    # The whole-plant audit against the status cache kept by the write path (another route
+    # through the same sums: element cache, entries since the last change).
+    with open_book(demo, create=False) as book:
+        kept, audit = views.watch(book), views.watch(book, as_of=book.now())
+    assert status.to_json(kept) == status.to_json(audit)
+
+
+def kept_before(book, now):
+    until = now + timedelta(seconds=1)
+    ctxs = list(contexts(book).values())
+    return views.kept_before(book, ctxs, journal.live_changes_until(book, until), until)[0]
+
+
+def test_kept_summaries_are_used_only_where_they_hold(demo: Path) -> None:
+    with open_book(demo, create=False) as book:
+        now = book.now()
+        kept = kept_before(book, now)
+        assert len(kept) >= 5  # the element cache kept by the writes is used
+        # A reading slipped into an earlier element behind the write hooks (as a bulk load
+        # would): the cache no longer holds for that position, which is read in full.
+        tag = sorted(kept)[0]
+        old = book.conn.execute(
+            "SELECT id FROM entries WHERE kind = 'reading' AND upper(filter) = ? "
+            "AND dp_bar IS NOT NULL AND at_utc < ? ORDER BY at_utc DESC LIMIT 1",
+            [tag, format_utc(kept[tag][-1].removed_at)],
+        ).fetchone()[0]
+        with book.atomic():
+            book.conn.execute(
+                "INSERT INTO entries (id, at_utc, logged_utc, kind, by, unit, filter, dp_bar, "
+                "temp_c, note) SELECT 'aaaaaaaa-0000-4000-8000-000000000001', at_utc, "
+                "logged_utc, kind, by, unit, filter, dp_bar * 3, temp_c, note FROM entries "
+                "WHERE id = ?",
+                [old],
+            )
+        assert tag not in kept_before(book, now)
+        # And a void of a reading in an earlier element on another position, written behind
+        # the hooks, dated before the time.
+        other = sorted(kept)[1]
+        target = book.conn.execute(
+            "SELECT id FROM entries WHERE kind = 'reading' AND upper(filter) = ? "
+            "AND dp_bar IS NOT NULL AND at_utc < ? ORDER BY at_utc DESC LIMIT 1",
+            [other, format_utc(kept[other][-1].removed_at)],
+        ).fetchone()[0]
+        by = book.conn.execute("SELECT tag FROM technicians ORDER BY tag").fetchone()[0]
+        with book.atomic():
+            book.conn.execute(
+                "INSERT INTO entries (id, at_utc, logged_utc, kind, by, voids, note) VALUES "
+                "('aaaaaaaa-0000-4000-8000-000000000002', ?, ?, 'void', ?, ?, 'wrong gauge')",
+                [
+                    format_utc(now - timedelta(days=1)),
+                    format_utc(now - timedelta(days=1)),
+                    by,
+                    target,
+                ],
+            )
+        assert other not in kept_before(book, now)
+        assert_same(book, now)
+        assert_same(book, now - timedelta(days=2))
+        assert_same(book, now - timedelta(days=20))
+        # A book whose element cache was never made: everything from the entries.
+        with book.atomic():
+            for table in ("element_cache", "element_state"):
+                book.conn.execute(f"DELETE FROM {table}")
+        assert kept_before(book, now) == {}
+        assert_same(book, now)

@@ -1,0 +1,149 @@
+"""Time-proof status: the kept rows hold at any later time, and reads never write.
+
+The demo plant with its clock moved on a week and a year (a plant back from a shutdown week;
+a book opened after a long pause): the watch list read from the caches must be the one
+computed from every entry as of that time (`watch(as_of=...)`), flag by flag and date by
+date, and reading must leave the file as it was, whether the caches are filled or missing.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import stat
+from collections.abc import Iterator
+from datetime import timedelta
+from pathlib import Path
+
+import pytest
+
+from store import views
+from store.base.timeutil import format_utc, parse_utc
+from store.db.book import open_book
+from store.derived import statuscache
+from store.exchange.demo import create_demo
+from store.forecast.life import WeibullFit
+from store.health import status
+
+DEMO_CLOCK = "2026-11-27T12:30:00Z"  # where the demo's story ends (demo.db.sql)
+LATER = [timedelta(0), timedelta(days=1, hours=3), timedelta(weeks=1), timedelta(days=365)]
+
+
+def digest(path: Path) -> str:
+    return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+@pytest.fixture(scope="module")
+def kept(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Path]:
+    """The demo with its caches filled at the end of its story (as `sumpbook rebuild`)."""
+    path = tmp_path_factory.mktemp("timeproof") / "demo.db"
+    with create_demo(path) as book:
+        statuscache.rebuild(book)
+        book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+    yield path
+
+
+def moved(path: Path, tmp_path: Path, later: timedelta) -> Path:
+    """A copy of the book with its frozen clock moved on."""
+    copy = tmp_path / "later.db"
+    copy.write_bytes(path.read_bytes())
+    with open_book(copy, create=False) as book:
+        book.set_setting("clock", format_utc(parse_utc(DEMO_CLOCK) + later))
+        book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+    return copy
+
+
+@pytest.mark.parametrize("later", LATER, ids=["now", "next-day", "a-week", "a-year"])
+def test_kept_rows_give_the_full_computation_later_on(kept: Path, tmp_path: Path, later) -> None:
+    path = moved(kept, tmp_path, later)
+    with open_book(path, create=False) as book:
+        assert statuscache.stale_filters(book) == []  # no row is too old to use
+        now = book.now()
+        cached, audit = views.watch(book), views.watch(book, as_of=now)
+    assert [f.filter for f in cached.filters] == [f.filter for f in audit.filters]
+    for quick, full in zip(cached.filters, audit.filters, strict=True):
+        assert quick.flags == full.flags, quick.filter
+        assert quick.notes == full.notes, quick.filter
+        assert (quick.state, quick.basis) == (full.state, full.basis), quick.filter
+        assert (quick.due, quick.bypass_due) == (full.due, full.bypass_due), quick.filter
+        assert quick.element_age_h == full.element_age_h, quick.filter
+        assert statuscache._encode(quick) == statuscache._encode(full), quick.filter
+    assert cached.units == audit.units
+    assert cached.breathers == audit.breathers
+    assert status.to_json(cached) == status.to_json(audit)
+
+
+def test_the_clock_parts_do_move_on_the_demo(kept: Path, tmp_path: Path) -> None:
+    # The comparison above is worth something only if the clock's parts change between the
+    # end of the story and a week later: overdue readings, check-now, element ages, hot.
+    with open_book(kept, create=False) as book:
+        then = views.watch(book)
+    with open_book(moved(kept, tmp_path, timedelta(weeks=1)), create=False) as book:
+        week = views.watch(book)
+    flags = {f.filter: f.flags for f in then.filters}
+    assert any(f.flags != flags[f.filter] for f in week.filters)
+    assert sum("reading-overdue" in f.flags for f in week.filters) > sum(
+        "reading-overdue" in f.flags for f in then.filters
+    )
+    assert {f.filter: f.element_age_h for f in week.filters} != {
+        f.filter: f.element_age_h for f in then.filters
+    }
+
+
+@pytest.mark.parametrize("caches", ["kept", "missing"])
+def test_a_write_protected_book_reads_a_week_later_and_stays_byte_identical(
+    kept: Path, tmp_path: Path, caches: str
+) -> None:
+    path = moved(kept, tmp_path, timedelta(weeks=1))
+    if caches == "missing":  # a book whose caches were never made: computed in memory
+        with open_book(path, create=False) as book:
+            with book.atomic():
+                for table in ("status_cache", "unit_cache", "element_cache", "element_state"):
+                    book.conn.execute(f"DELETE FROM {table}")
+            book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+    with open_book(path, create=False) as book:
+        expected = status.to_json(views.watch(book, as_of=book.now()))
+        book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+    before = digest(path)
+    os.chmod(path, stat.S_IRUSR | stat.S_IRGRP | stat.S_IROTH)  # 0444
+    try:
+        with open_book(path, create=False) as book:  # (root may write it all the same)
+            assert status.to_json(views.watch(book)) == expected
+        with open_book(path, create=False, readonly=True) as book:
+            assert status.to_json(views.watch(book, stale_ok=True)) == expected
+            assert statuscache.refresh_stale(book) == []  # nothing to keep it in
+    finally:
+        os.chmod(path, stat.S_IRUSR | stat.S_IWUSR)
+    assert digest(path) == before
+
+
+def test_reads_on_a_writable_book_write_nothing(kept: Path, tmp_path: Path) -> None:
+    # Writable, caches missing: the watch list and a filter sheet are computed in memory and
+    # the derived tables stay empty until a write or an explicit refresh keeps them.
+
+    path = moved(kept, tmp_path, timedelta(weeks=1))
+    with open_book(path, create=False) as book:
+        with book.atomic():
+            for table in ("status_cache", "unit_cache", "element_cache", "element_state"):
+                book.conn.execute(f"DELETE FROM {table}")
+        views.watch(book)
+        tag = book.conn.execute("SELECT tag FROM filters ORDER BY tag LIMIT 1").fetchone()[0]
+        views.filter_sheet(book, tag)
+        counts = [
+            book.conn.execute(f"SELECT count(*) FROM {t}").fetchone()[0]
+            for t in ("status_cache", "unit_cache", "element_cache", "element_state")
+        ]
+        assert counts == [0, 0, 0, 0]
+        done = statuscache.refresh_stale(book)  # the explicit refresh keeps them
+        assert len(done) == book.conn.execute("SELECT count(*) FROM filters").fetchone()[0]
+        assert statuscache.stale_filters(book) == []
+        assert book.conn.execute("SELECT count(*) FROM unit_cache").fetchone()[0] > 0
+
+
+@pytest.mark.parametrize("age_h", [0.0, 150.0, 2400.0, 40000.0])
+@pytest.mark.parametrize("p", [0.05, 0.10, 0.50])
+def test_the_numpy_free_remaining_life_is_the_weibull_fit_s(age_h: float, p: float) -> None:
+    # The read path works out a service-life due given the age so far without numpy; it must
+    # give what life.WeibullFit gives, to the last bit (same sums). Shape/scale invented.
+    fit = WeibullFit(shape=1.7, scale_h=1900.0, n_failed=5, n_censored=2, log_likelihood=0.0)
+    assert status.weibull_remaining_h(1.7, 1900.0, age_h, p) == fit.remaining_quantile_h(age_h, p)

@@ -1,0 +1,1 @@
+"""The app, driven with Textual's Pilot, and its look (SVG snapshots)."""

@@ -1,0 +1,377 @@
+"""Rich tables and lines for the command line (the app has its own widgets)."""
+
+from __future__ import annotations
+
+from datetime import datetime
+
+from rich.table import Table
+from rich.text import Text
+
+from store import Book
+from store.base.prefs import Prefs
+from store.base.text import inert
+from store.base.timeutil import local_text
+from store.base.units import pressure_label
+from store.health.conditions import contexts, normalise
+from store.health.status import FLAG_WORDS, URGENT_FLAGS, Watch
+from store.ledger import register
+from store.ledger.entries import (
+    BreatherSwap,
+    ElementChange,
+    Entry,
+    Note,
+    Reading,
+    Sample,
+    TopUp,
+    Void,
+)
+from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
+from store.physics.cleanliness import compare_to_target, parse_code
+from tui.base.quantities import pressure, temperature, volume
+
+CAUTION_SHORT = (
+    "Safety: isolate and lock out, relieve pressure and accumulators, let hot oil cool, wear "
+    "eye and skin protection, never feel for leaks by hand. The maker's manual and site "
+    "procedures rule."
+)
+
+
+def _add_row(table: Table, *cells: object, style: str = "") -> None:
+    """A row whose text is shown as written: no markup is read in it, and control and escape
+    characters of stored text are made visible (`store.base.text.inert`)."""
+    shown = [
+        Text(inert(c)) if isinstance(c, str) else _inert_text(c) if isinstance(c, Text) else c
+        for c in cells
+    ]
+    table.add_row(*shown, style=style)  # type: ignore[arg-type]
+
+
+def _inert_text(text: Text) -> Text:
+    plain = inert(text.plain)
+    if plain == text.plain:
+        return text
+    return Text(plain, style=text.style)
+
+
+def line(text: str) -> Text:
+    """One printed line of the command line, inert (`store.base.text.inert`), no markup read."""
+    return Text(inert(text))
+
+
+def when(book: Book, moment: datetime | None) -> str:
+    return local_text(moment, book.local_zone()) if moment else "–"
+
+
+def describe(entry: Entry, prefs: Prefs, target_code: str | None = None) -> str:
+    """One line saying what the entry holds, in the user's units."""
+    if isinstance(entry, Reading):
+        parts = []
+        if entry.dp_bar is not None:
+            parts.append(f"ΔP {pressure(entry.dp_bar, prefs)}")
+        if entry.indicator:
+            parts.append(f"indicator {entry.indicator}")
+        if entry.temp_c is not None:
+            parts.append(f"at {temperature(entry.temp_c, prefs)}")
+        if entry.flow_lpm is not None:
+            parts.append(f"{entry.flow_lpm:g} L/min")
+        if entry.hours is not None:
+            parts.append(f"meter {entry.hours:.0f} h")
+        return ", ".join(parts)
+    if isinstance(entry, ElementChange):
+        return (
+            "element changed ("
+            + entry.reason
+            + ")"
+            + (f"; old: {entry.condition}" if entry.condition else "")
+            + (f"; new batch {entry.batch}" if entry.batch else "")
+        )
+    if isinstance(entry, TopUp):
+        how = "unfiltered" if entry.filtered_um is None else f"through {entry.filtered_um:g} µm"
+        return f"topped up {volume(entry.volume_l, prefs)} {entry.fluid or ''} {how}".replace(
+            "  ", " "
+        )
+    if isinstance(entry, BreatherSwap):
+        return f"breather swapped ({entry.reason})" + (
+            f"; desiccant {entry.condition}" if entry.condition else ""
+        )
+    if isinstance(entry, Sample):
+        parts = [f"code {entry.code}"] if entry.code else []
+        if entry.code and target_code:
+            parts.append(
+                compare_to_target(parse_code(entry.code), parse_code(target_code)).describe()
+            )
+        if entry.water_ppm is not None:
+            parts.append(f"water {entry.water_ppm:g} ppm")
+        return "sample: " + ", ".join(parts)
+    if isinstance(entry, Void):
+        return f"voids {entry.voids[:8]}"
+    if isinstance(entry, Note):
+        return "note"
+    return entry.kind
+
+
+def _target_code(book: Book, entry: Entry) -> str | None:
+    if not isinstance(entry, Sample) or not entry.unit:
+        return None
+    unit = register.find(book, Unit, entry.unit)
+    return unit.target_code if unit else None
+
+
+def saved_line(book: Book, entry: Entry, prefs: Prefs) -> str:
+    target = entry.target or entry.unit or ""
+    return (
+        f"saved {entry.kind} {entry.id[:8]} {target} {when(book, entry.at)} by {entry.by}: "
+        f"{describe(entry, prefs, _target_code(book, entry))}"
+    )
+
+
+def entries_table(book: Book, entries: list[Entry], prefs: Prefs) -> Table:
+    ctxs = contexts(book)
+    table = Table(title=f"Entries ({len(entries)})", title_justify="left")
+    for name in (
+        "id",
+        "time",
+        "kind",
+        "target",
+        "by",
+        "what",
+        f"ΔP ref ({pressure_label(prefs.pressure)})",
+        "reference",
+        "note",
+    ):
+        table.add_column(name, overflow="fold")
+    for e in entries:
+        ref = reference = ""
+        if isinstance(e, Reading) and e.dp_bar is not None and e.filter in ctxs:
+            n = normalise(ctxs[e.filter], e)
+            ref = pressure(n.dp_ref_bar, prefs, unit=False) if n.dp_ref_bar is not None else ""
+            reference = ctxs[e.filter].reference.label if n.dp_ref_bar is not None else n.problem  # type: ignore[union-attr]
+            if n.dp_ref_bar is not None and n.temp_assumed:
+                reference += "; temp assumed"
+        style = "strike dim" if e.voided else ""
+        row = [
+            e.id[:8],
+            when(book, e.at),
+            e.kind + (" (void)" if e.voided else ""),
+            e.target or e.unit or "",
+            e.by,
+            describe(e, prefs, _target_code(book, e)),
+            ref,
+            reference,
+            e.note,
+        ]
+        _add_row(table, *row, style=style)
+    return table
+
+
+def register_table(book: Book, what: str, unit: str | None, prefs: Prefs) -> Table:
+    if what == "shifts":
+        table = Table(title="Shift pattern", title_justify="left")
+        table.add_column("shift")
+        table.add_column("starts")
+        for shift in register.list_shifts(book):
+            _add_row(table, shift.name, shift.starts)
+        return table
+    cls = {
+        "units": Unit,
+        "filters": FilterPosition,
+        "breathers": Breather,
+        "fluids": Fluid,
+        "techs": Technician,
+    }[what]
+    rows = register.list_all(book, cls, unit)
+    table = Table(title=f"{what.capitalize()} ({len(rows)})", title_justify="left")
+    if cls is FilterPosition:
+        cols = [
+            "tag",
+            "unit",
+            "kind",
+            "element",
+            "rating",
+            "clean",
+            "limit",
+            "bypass",
+            "flow",
+            "gauge",
+        ]
+        for c in cols:
+            table.add_column(c)
+        for f in rows:
+            _add_row(
+                table,
+                f.tag,
+                f.unit,
+                f.kind,
+                f.element,
+                f"{f.rating_um:g} µm {f.rating_basis[:3]}" if f.rating_um else "–",
+                pressure(f.clean_bar, prefs),
+                pressure(f.limit_bar, prefs),
+                pressure(f.bypass_bar, prefs),
+                f"{f.normal_flow_lpm:g} L/min" if f.normal_flow_lpm else "–",
+                "gauge" if f.gauge else "indicator",
+            )
+        return table
+    if cls is Unit:
+        for c in (
+            "tag",
+            "name",
+            "area",
+            "reservoir",
+            "fluid",
+            "normal",
+            "limit",
+            "coldest start",
+            "hour meter",
+            "target code",
+        ):
+            table.add_column(c)
+        for u in rows:
+            _add_row(
+                table,
+                u.tag,
+                u.name,
+                u.area,
+                volume(u.reservoir_l, prefs),
+                u.fluid or "–",
+                temperature(u.normal_temp_c, prefs),
+                temperature(u.max_temp_c, prefs),
+                temperature(u.coldest_start_c, prefs),
+                "yes" if u.hour_meter else "no",
+                u.target_code or "–",
+            )
+        return table
+    if cls is Breather:
+        for c in ("tag", "unit", "kind", "rating", "swap every"):
+            table.add_column(c)
+        for b in rows:
+            _add_row(
+                table,
+                b.tag,
+                b.unit,
+                b.kind,
+                f"{b.rating_um:g} µm" if b.rating_um else "–",
+                f"{b.swap_interval_d:g} days",
+            )
+        return table
+    if cls is Fluid:
+        for c in ("tag", "name", "ISO VG", "ν40 (mm²/s)", "ν100 (mm²/s)", "VI", "density"):
+            table.add_column(c)
+        for f in rows:
+            _add_row(
+                table,
+                f.tag,
+                f.name,
+                str(f.iso_vg or "–"),
+                _num(f.nu40_cst),
+                _num(f.nu100_cst),
+                _num(f.vi),
+                _num(f.density_kg_l, " kg/L"),
+            )
+        return table
+    for c in ("initials", "name", "active"):
+        table.add_column(c)
+    for t in rows:
+        _add_row(table, t.tag, t.name, "yes" if t.active else "no")
+    return table
+
+
+def _num(value: float | None, suffix: str = "") -> str:
+    return "–" if value is None else f"{value:g}{suffix}"
+
+
+def due_text(book: Book, due) -> str:  # noqa: ANN001 - status.Due | None
+    if due is None:
+        return "–"
+    z = book.local_zone()
+    this_year = book.now().astimezone(z).year
+
+    def day(moment: datetime) -> str:
+        local = moment.astimezone(z)
+        return f"{local:%d %b}" if local.year == this_year else f"{local:%d %b %Y}"
+
+    last = day(due.latest) if due.latest else "open"
+    return f"{day(due.earliest)}–{last} (likely {day(due.likely)})"
+
+
+def due_day(book: Book, moment: datetime | None) -> str:
+    return f"{moment.astimezone(book.local_zone()):%d %b %Y}" if moment else "–"
+
+
+def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
+    table = Table(title=f"Watch list as of {when(book, watch.as_of)}", title_justify="left")
+    for c in (
+        "filter",
+        "unit",
+        "kind",
+        f"ΔP ref ({pressure_label(prefs.pressure)})",
+        "% limit",
+        "due (change)",
+        "basis",
+        "flags",
+    ):
+        table.add_column(c)
+    for f in watch.filters:
+        flags = Text(", ".join(FLAG_WORDS.get(x, x) for x in f.flags))
+        if any(x in URGENT_FLAGS for x in f.flags):
+            flags.stylize("bold reverse")
+        due = due_text(book, f.due) if f.due else f.state
+        _add_row(
+            table,
+            f.filter,
+            f.unit,
+            f.kind,
+            pressure(f.dp_ref_bar, prefs, unit=False),
+            f"{f.percent_of_limit:.0f} %" if f.percent_of_limit is not None else "–",
+            due,
+            f.basis,
+            flags,
+        )
+    for b in watch.breathers:
+        _add_row(
+            table,
+            b.breather,
+            b.unit,
+            f"breather ({b.kind})",
+            "",
+            "",
+            due_day(book, b.forecast.due),
+            b.forecast.basis,
+            ", ".join(FLAG_WORDS.get(x, x) for x in b.flags),
+        )
+    for u in watch.units:
+        if u.flags:
+            _add_row(
+                table,
+                u.unit,
+                u.unit,
+                "unit",
+                "",
+                "",
+                "",
+                "",
+                ", ".join(FLAG_WORDS.get(x, x) for x in u.flags),
+            )
+    return table
+
+
+def change_text(change: register.RegisterChange) -> str:
+    """'added', or 'old -> new' with '–' for an empty side."""
+    if change.field == "*":
+        return change.new or "added"
+    return f"{change.old if change.old is not None else '–'} → {change.new if change.new is not None else '–'}"
+
+
+def history_table(book: Book, changes: list[register.RegisterChange], tag: str | None) -> Table:
+    title = f"Register history of {tag.upper()}" if tag else "Register history"
+    table = Table(title=f"{title} ({len(changes)})", title_justify="left")
+    for name in ("time", "by", "record", "field", "change"):
+        table.add_column(name, overflow="fold")
+    for c in changes:
+        table.add_row(
+            when(book, c.at),
+            c.by or "–",
+            f"{c.what} {c.tag}",
+            "(new record)" if c.field == "*" else c.field,
+            change_text(c),
+        )
+    return table
