@@ -124,12 +124,37 @@ def _read(conn: sqlite3.Connection) -> _Snapshot:
             )
         }
         # Voids after everything else: a void points at an entry that must land first.
-        entries = _rows(
-            conn, "SELECT * FROM entries ORDER BY (kind = 'void'), at_utc, logged_utc, id"
+        entries = _voids_after_their_targets(
+            _rows(conn, "SELECT * FROM entries ORDER BY (kind = 'void'), at_utc, logged_utc, id")
         )
     finally:
         conn.execute("COMMIT")
     return _Snapshot(register, log, shifts, settings, entries)
+
+
+def _voids_after_their_targets(rows: list[dict[str, Any]]) -> list[dict[str, Any]]:
+    """The rows in their order, except that a void of a void comes after the void it voids
+    (stamped in the same second, their ids alone would order them at random)."""
+    placed: set[Any] = set()
+    waiting: dict[Any, list[dict[str, Any]]] = {}  # voided id -> voids waiting for it
+    out: list[dict[str, Any]] = []
+    ids = {row["id"] for row in rows}
+
+    def place(row: dict[str, Any]) -> None:
+        out.append(row)
+        placed.add(row["id"])
+        for later in waiting.pop(row["id"], []):
+            place(later)
+
+    for row in rows:
+        target = row.get("voids")
+        if target is not None and target in ids and target not in placed:
+            waiting.setdefault(target, []).append(row)
+        else:
+            place(row)
+    for stuck in waiting.values():  # a circle of voids: keep them, merge refuses them later
+        out.extend(stuck)
+    return out
 
 
 def _same_path(a: Path, b: Path) -> bool:
