@@ -22,6 +22,8 @@ from store.derived.statuscache import (
     cached_filters,
     cached_units,
     filter_view,
+    kept_filters,
+    kept_units,
     live_status,
     stale_filters,
 )
@@ -49,12 +51,61 @@ def watch(
     before it from the element cache where it provably holds then: `kept_before`). Never
     writes."""
     if as_of is not None:
-        return status.watch_as_of(book, as_of, unit, kept_before)
+        return _audit(book, as_of, unit)
     now = book.now()
     p = status.plant(book, unit)
     filters = cached_filters(book, list(p.contexts), now, stale_ok)
     units = cached_units(book, list(p.units), p.positions_by_unit, now)
     return status.watch_list(now, filters, status.breathers_at(book, now, unit), units)
+
+
+def _audit(book: Book, as_of: datetime, unit: str | None) -> Watch:
+    """The watch list as the book stood at `as_of`. A filter's kept status row stands for it
+    when nothing touching the filter (an entry, or a void of one) is dated at or after that
+    time, nor anything on a position taking the same element (whose lives its forecast
+    pools), and the row was kept by then: it was computed from exactly the entries the audit
+    reads, and the clock-dependent parts are worked out at `as_of` as for any read. A unit's
+    row likewise. Everything else is computed from the entries as they stood
+    (`status.watch_as_of`'s path). The answer is the same either way
+    (tests/store/test_status_as_of.py holds them together)."""
+    until = as_of + timedelta(seconds=1)
+    late = touched_since(book, until)
+    p = status.plant(book, unit)
+    positions = list_all(book, FilterPosition)
+    late_parts = {q.element.lower() for q in positions if q.element and q.tag.upper() in late}
+    quiet = [
+        c.position.tag.upper()
+        for c in p.contexts
+        if c.position.tag.upper() not in late
+        and (c.position.element or "").lower() not in late_parts
+    ]
+    kept = kept_filters(book, quiet, as_of)
+    rest = [c for c in p.contexts if c.position.tag.upper() not in kept]
+    computed = iter(status.filters_as_of(book, rest, positions, as_of, kept_before))
+    filters = [
+        kept[c.position.tag.upper()] if c.position.tag.upper() in kept else next(computed)
+        for c in p.contexts
+    ]
+    kept_u = kept_units(
+        book, [u for u in p.units if u.tag.upper() not in late], p.positions_by_unit, as_of
+    )
+    units = [
+        kept_u.get(u.tag.upper())
+        or status.unit_status(book, u, p.positions_by_unit.get(u.tag.upper(), []), as_of)
+        for u in p.units
+    ]
+    return status.watch_list(as_of, filters, status.breathers_at(book, as_of, unit), units)
+
+
+def touched_since(book: Book, since: datetime) -> set[str]:
+    """Upper-case tags of the filters and units with an entry, or a void of one, dated at or
+    after `since`."""
+    rows = book.conn.execute(
+        "SELECT DISTINCT coalesce(t.filter, e.filter), coalesce(t.unit, e.unit) "
+        "FROM entries e LEFT JOIN entries t ON t.id = e.voids WHERE e.at_utc >= ?",
+        [format_utc(since)],
+    )
+    return {tag.upper() for row in rows for tag in row if tag}
 
 
 def kept_before(

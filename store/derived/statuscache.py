@@ -303,6 +303,40 @@ def cached_filters(
     return result
 
 
+def kept_filters(book: Book, tags: Sequence[str], now: datetime) -> dict[str, FilterStatus]:
+    """The kept status at `now` of each of `tags` (upper case) whose row can be read then: one
+    of this format, not marked stale, kept at or before `now`. The rest are left out."""
+    rows = _rows(book)
+    out = {}
+    for tag in tags:
+        status = _timed(rows.get(tag), now, stale_ok=False)
+        if status is not None:
+            out[tag] = status
+    return out
+
+
+def kept_units(
+    book: Book,
+    units: Sequence[Unit],
+    filters_by_unit: dict[str, list[FilterPosition]],
+    now: datetime,
+) -> dict[str, UnitStatus]:
+    """`cached_units` for the units whose kept row can be read at `now` (made from the same
+    register rows, kept at or before `now`), by upper-case tag; the rest are left out."""
+    rows = {
+        r[0].upper(): (r[1], r[2], r[3])
+        for r in book.conn.execute("SELECT unit, computed_utc, register, data FROM unit_cache")
+    }
+    out = {}
+    for unit in units:
+        filters = filters_by_unit.get(unit.tag.upper(), [])
+        row = rows.get(unit.tag.upper())
+        if row is not None and row[1] == _unit_key(unit, filters) and _utc(row[0]) <= now:
+            clock = _decode_unit(row[2], unit.tag)
+            out[unit.tag.upper()] = unit_at(unit, filters, clock, now)
+    return out
+
+
 def refresh_stale(book: Book, limit: int | None = None) -> list[str]:
     """The explicit refresh behind a watch list: recompute (at most `limit`) rows that are
     missing, of an old format or marked stale, and keep them, each in its own transaction.
@@ -397,19 +431,14 @@ def cached_units(
     """Every unit's status at `now` from its kept entries, however long ago they were kept;
     rows missing, made from other register rows or read before they hold for are computed
     in memory (nothing is written)."""
-    rows = {
-        r[0].upper(): (r[1], r[2], r[3])
-        for r in book.conn.execute("SELECT unit, computed_utc, register, data FROM unit_cache")
-    }
+    kept = kept_units(book, units, filters_by_unit, now)
     result = []
     for unit in units:
-        filters = filters_by_unit.get(unit.tag.upper(), [])
-        row = rows.get(unit.tag.upper())
-        if row is not None and row[1] == _unit_key(unit, filters) and _utc(row[0]) <= now:
-            clock = _decode_unit(row[2], unit.tag)
-        else:
-            clock = unit_clock(book, unit, now)
-        result.append(unit_at(unit, filters, clock, now))
+        status = kept.get(unit.tag.upper())
+        if status is None:
+            filters = filters_by_unit.get(unit.tag.upper(), [])
+            status = unit_at(unit, filters, unit_clock(book, unit, now), now)
+        result.append(status)
     return result
 
 

@@ -628,7 +628,7 @@ def status_as_of(book: Book, ctx: FilterContext, as_of: datetime) -> FilterStatu
     return filter_status(ctx, entries, now, like_lives(book, ctx, until))
 
 
-def _filters_as_of(
+def filters_as_of(
     book: Book,
     ctxs: Sequence[FilterContext],
     positions: Sequence[FilterPosition],
@@ -725,7 +725,7 @@ def watch_as_of(
     p = plant(book, unit)
     # `status_as_of` of each filter, for the whole plant at once (the same sums).
     positions = list_all(book, FilterPosition)
-    filters = _filters_as_of(book, p.contexts, positions, as_of, kept_before)
+    filters = filters_as_of(book, p.contexts, positions, as_of, kept_before)
     units = [
         unit_status(book, u, p.positions_by_unit.get(u.tag.upper(), []), as_of) for u in p.units
     ]

@@ -31,16 +31,25 @@ def by_position(book, now, unit=None) -> list[status.FilterStatus]:
 
 
 def assert_same(book, now, unit=None) -> None:
-    whole = views.watch(book, as_of=now, unit=unit)
+    audit = status.watch_as_of(book, now, unit, views.kept_before)  # every row computed
     one_by_one = by_position(book, now, unit)
-    assert [f.filter for f in whole.filters] == [f.filter for f in one_by_one]
-    for fast, slow in zip(whole.filters, one_by_one, strict=True):
+    assert [f.filter for f in audit.filters] == [f.filter for f in one_by_one]
+    for fast, slow in zip(audit.filters, one_by_one, strict=True):
         # Every kept field (flags, notes, dates, the clock's parts), then what is not kept.
         assert statuscache._encode(fast) == statuscache._encode(slow), fast.filter
         assert fast.history == slow.history, fast.filter
         assert fast.forecast == slow.forecast, fast.filter
-    expected = status.Watch(now, tuple(one_by_one), whole.breathers, whole.units)
-    assert status.to_json(whole) == status.to_json(expected)
+    expected = status.Watch(now, tuple(one_by_one), audit.breathers, audit.units)
+    assert status.to_json(audit) == status.to_json(expected)
+    # The list as `views.watch` gives it, kept rows standing in where nothing after the time
+    # touches them: the same kept fields, units and JSON (a kept row has no reading history:
+    # no watch list shows one).
+    shown = views.watch(book, as_of=now, unit=unit)
+    assert [statuscache._encode(f) for f in shown.filters] == [
+        statuscache._encode(f) for f in one_by_one
+    ]
+    assert shown.units == audit.units
+    assert status.to_json(shown) == status.to_json(expected)
 
 
 @pytest.fixture
@@ -182,3 +191,25 @@ def test_kept_summaries_are_used_only_where_they_hold(demo: Path) -> None:
                 book.conn.execute(f"DELETE FROM {table}")
         assert kept_before(book, now) == {}
         assert_same(book, now)
+
+
+def test_where_nothing_came_after_the_time_the_kept_rows_stand_in(demo, monkeypatch):
+    # At the clock nothing is dated later: every filter's kept row stands for it (no fit);
+    # a week back, readings came after: those filters are computed from the entries.
+    computed: list[str] = []
+    real = status.filters_as_of
+
+    def spy(book, ctxs, *args):
+        computed.extend(c.position.tag for c in ctxs)
+        return real(book, ctxs, *args)
+
+    with open_book(demo, create=False) as book:
+        now = book.now()
+        monkeypatch.setattr(status, "filters_as_of", spy)
+        views.watch(book, as_of=now)
+        assert computed == []
+        views.watch(book, as_of=now - timedelta(days=7))
+        assert computed
+        monkeypatch.undo()
+        assert_same(book, now)
+        assert_same(book, now - timedelta(days=7))
