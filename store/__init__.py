@@ -1,6 +1,7 @@
 """Everything of sumpbook that is not screen, in layers (DEVELOPERS.md draws them):
 
-    views, exchange        read-only answers for screens and CLI; CSV, merge, demo
+    sheets, exchange       what the screens show beyond the list; CSV, merge, demo
+    views                  the watch list and each filter's status (now, or as of a time)
     record                 every save: entries and the derived rows kept with them
     derived                the kept rows (element summaries, status cache)
     health                 the state of each filter, breather and unit, from the ledger

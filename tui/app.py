@@ -30,7 +30,7 @@ from store.exchange.demo import discard, is_throwaway, throwaway_demo, throwaway
 from store.ledger import register
 from store.ledger.entries import BreatherSwap, ElementChange, Reading
 from store.ledger.register import Technician, Unit
-from store.views import (
+from store.sheets import (
     TagHit,
     WatchRow,
     breather_row,

@@ -22,6 +22,7 @@ from store.base.timeutil import format_utc
 from store.db.book import Book
 from store.health.conditions import FilterContext
 from store.health.elements import Element, ElementSummary, split_summaries
+from store.ledger.entries import Entry
 from store.ledger.journal import element_items, parse_stamp
 
 ELEMENT_FORMAT = 1  # bump when what an element summary holds changes
@@ -227,3 +228,93 @@ def elements_now(book: Book, ctx: FilterContext, keep: bool = False) -> Elements
         past += new
         write(past, start)
     return Elements(past, current, bool(new))
+
+
+def kept_before(
+    book: Book,
+    ctxs: Sequence[FilterContext],
+    changes: Sequence[tuple[str, int, Entry]],
+    until: datetime,
+) -> tuple[dict[str, list[ElementSummary]], dict[str, tuple[str, int]]]:
+    """Per position (upper-case tag): the element cache's summaries of its elements taken out
+    before `until`, and where its entries must be read from, the (at_utc, rowid) of the
+    change that ended the last of them, or ("", 0): from the beginning.
+
+    A summary depends only on the entries between the element's two changes, all dated before
+    `until`. The cache is used where it holds for the live entries now (the check the status
+    itself relies on: same context, no entry or void written since that reaches back into it)
+    and no void dated at or after `until` touches the position: then the entries it was made
+    from are the ones that counted at `until`."""
+    stamp = format_utc(until)
+    starts: dict[str, tuple[str, int]] = {c.position.tag.upper(): ("", 0) for c in ctxs}
+    kept: dict[str, list[ElementSummary]] = {}
+    late = {
+        tag.upper()
+        for (tag,) in book.conn.execute(
+            "SELECT e.filter FROM entries v INDEXED BY one_void_per_entry CROSS JOIN entries e "
+            "ON e.id = v.voids WHERE v.voids IS NOT NULL AND v.at_utc >= ? "
+            "AND e.filter IS NOT NULL",
+            [stamp],
+        )
+    }
+    states = {
+        row[0].upper(): _State(*row[1:])
+        for row in book.conn.execute(
+            "SELECT filter, context, seen_rowid, last_change, last_change_utc, elements "
+            "FROM element_state WHERE last_change IS NOT NULL"
+        )
+    }
+    cached: dict[str, list[tuple[str, bytes]]] = {}
+    for tag, text, curve in book.conn.execute(
+        "SELECT filter, data, curve FROM element_cache ORDER BY filter, seq"
+    ):
+        cached.setdefault(tag.upper(), []).append((text, curve))
+    where = {entry.id: (at, rowid) for at, rowid, entry in changes}
+    late |= _reached_back(book, states)
+    for ctx in ctxs:
+        key = ctx.position.tag.upper()
+        state = states.get(key)
+        if (
+            key in late
+            or state is None
+            or state.context != context_key(ctx)
+            or len(cached.get(key, ())) != state.count
+        ):
+            continue
+        past = []
+        for text, curve in cached[key]:
+            summary = _decode_element(text, curve)
+            if format_utc(summary.removed_at) >= stamp:
+                break
+            past.append(summary)
+        if past and past[-1].removal_id in where:
+            kept[key] = past
+            starts[key] = where[past[-1].removal_id]
+    return kept, starts
+
+
+def _reached_back(book: Book, states: dict[str, Any]) -> set[str]:
+    """Upper-case tags whose element cache does not hold for the live entries:
+    `_still_valid` for every position with a cached element at once (an entry
+    or a void of one written after the cache was checked that reaches back to or before its
+    last cached change), from one walk over what was written since the oldest check."""
+    if not states:
+        return set()
+    since = min(state.seen_rowid for state in states.values())
+    written = book.conn.execute(
+        "SELECT filter, at_utc, rowid FROM entries WHERE rowid > ? AND filter IS NOT NULL",
+        [since],
+    ).fetchall()
+    written += book.conn.execute(
+        "SELECT e.filter, e.at_utc, v.rowid FROM entries v INDEXED BY one_void_per_entry "
+        "CROSS JOIN entries e ON e.id = v.voids WHERE v.voids IS NOT NULL AND v.rowid > ? "
+        "AND e.filter IS NOT NULL",
+        [since],
+    ).fetchall()
+    out = set()
+    for tag, at, rowid in written:
+        key = tag.upper()
+        state = states.get(key)
+        if state is not None and rowid > state.seen_rowid and at <= state.last_change_utc:
+            out.add(key)
+    return out

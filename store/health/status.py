@@ -638,7 +638,7 @@ def filters_as_of(
     """`status_as_of(book, ctx, now)` of each of `ctxs` (`positions` being every position in
     the register): the same sums, from a few reads for the whole plant instead of three
     queries and an entry per reading for each position. `kept_before` (from a layer that may
-    read the element cache: store.views.kept_before) gives the summaries of elements taken
+    read the element cache: store.derived.elementcache.kept_before) gives the summaries of elements taken
     out before `now` where they are provably what the entries give as they stood then, and
     where each position's entries must be read from; without it every history is read."""
     until = now + timedelta(seconds=1)

@@ -107,6 +107,7 @@ async def _timed(pilot, key: str, done) -> tuple[float, float]:
 
 
 async def _drive_app(path: Path, started: float, sheets_too: bool) -> dict:
+    from store import sheets
     from store.db.book import open_book
     from tui.app import SumpbookApp
     from tui.screens.filter_sheet import FilterSheetScreen
@@ -346,7 +347,7 @@ def saves(path: Path, count: int) -> list[float]:
 def store_calls(path: Path, repeat: int = 5) -> dict[str, float]:
     """ms of the store calls behind the screens, each on a fresh read-only connection (as the
     app's worker threads have), median of `repeat`."""
-    from store import views
+    from store import sheets, views
     from store.db.book import Book
     from store.derived import statuscache
     from store.health.conditions import contexts
@@ -381,7 +382,7 @@ def store_calls(path: Path, repeat: int = 5) -> dict[str, float]:
     out = {
         "recompute": timed(recompute, 3 * repeat),
         "watch": timed(lambda b: views.watch(b)),
-        "filter_sheet": timed(lambda b: views.filter_sheet(b, rng.choice(tags)), 4 * repeat),
+        "filter_sheet": timed(lambda b: sheets.filter_sheet(b, rng.choice(tags)), 4 * repeat),
     }
     return out
 
@@ -564,7 +565,7 @@ def notes(f: dict) -> list[str]:
         f"  The bare DataTable app takes median {_med(f['cpu']['bare']):.0f} ms, longest "
         f"{max(f['cpu']['bare']):.0f} ms for the same scroll keys: the longest are End and "
         "PgDn, which redraw the whole table in both. A filter sheet's data takes "
-        f"{f['calls']['filter_sheet']:.0f} ms (`views.filter_sheet`, median, mostly the "
+        f"{f['calls']['filter_sheet']:.0f} ms (`sheets.filter_sheet`, median, mostly the "
         "forecast, in a worker thread); the rest is Textual switching screens and drawing them: "
         f"the bare app takes median {_med(f['cpu']['bare_sheet']):.0f} ms to show a screen "
         f"with a sheet's widgets and made-up text, {_med(f['cpu']['bare_back']):.0f} ms to "
@@ -792,7 +793,7 @@ def main(argv: list[str] | None = None) -> int:
         "| call | ms |",
         "|---|---|",
         f"| `views.watch(book)` (the watch list, from the caches) | {calls['watch']:.0f} |",
-        f"| `views.filter_sheet(book, tag)` (status, curve, forecast and element history "
+        f"| `sheets.filter_sheet(book, tag)` (status, curve, forecast and element history "
         f"from the element cache) | {calls['filter_sheet']:.0f} |",
         f"| one filter's status recomputed (`statuscache.live_status`) "
         f"| {calls['recompute']:.0f} |",

@@ -18,7 +18,7 @@ from pathlib import Path
 
 import pytest
 
-from store import record, views
+from store import record, sheets, views
 from store.base.timeutil import format_utc
 from store.db.book import Book, open_book
 from store.derived import elementcache, statuscache
@@ -92,7 +92,7 @@ def assert_cache_is_fresh(book: Book) -> None:
     assert cached.units == audit.units
     # The filter sheet from the element cache shows what it shows computed from the entries.
     for tag in ctxs:
-        quick, full = views.filter_sheet(book, tag), views.filter_sheet(book, tag, as_of=now)
+        quick, full = sheets.filter_sheet(book, tag), sheets.filter_sheet(book, tag, as_of=now)
         assert quick.elements == full.elements, tag
         assert quick.uses_hours == full.uses_hours, tag
         assert statuscache._encode(quick.status) == statuscache._encode(full.status), tag

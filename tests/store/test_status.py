@@ -377,7 +377,7 @@ def test_an_element_at_the_usual_pace_is_not_flagged(tmp_path):
 
 def test_the_meter_is_estimated_between_and_after_logged_values(tmp_path):
     from store.health.elements import meter_at
-    from store.views import meter_estimate_h
+    from store.sheets import meter_estimate_h
 
     pairs = [(T0, 1000.0), (T0 + timedelta(days=2), 1024.0)]
     # 12 h a day: half-way between the two values, and one day after the last

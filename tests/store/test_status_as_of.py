@@ -17,7 +17,7 @@ import pytest
 from store import record, views
 from store.base.timeutil import format_utc, parse_utc
 from store.db.book import open_book
-from store.derived import statuscache
+from store.derived import elementcache, statuscache
 from store.health import status
 from store.health.conditions import contexts
 from store.ledger import journal
@@ -31,7 +31,7 @@ def by_position(book, now, unit=None) -> list[status.FilterStatus]:
 
 
 def assert_same(book, now, unit=None) -> None:
-    audit = status.watch_as_of(book, now, unit, views.kept_before)  # every row computed
+    audit = status.watch_as_of(book, now, unit, elementcache.kept_before)  # every row computed
     one_by_one = by_position(book, now, unit)
     assert [f.filter for f in audit.filters] == [f.filter for f in one_by_one]
     for fast, slow in zip(audit.filters, one_by_one, strict=True):
@@ -136,7 +136,7 @@ def test_as_of_the_last_entry_equals_the_kept_status(demo: Path) -> None:
 def kept_before(book, now):
     until = now + timedelta(seconds=1)
     ctxs = list(contexts(book).values())
-    return views.kept_before(book, ctxs, journal.live_changes_until(book, until), until)[0]
+    return elementcache.kept_before(book, ctxs, journal.live_changes_until(book, until), until)[0]
 
 
 def test_kept_summaries_are_used_only_where_they_hold(demo: Path) -> None:

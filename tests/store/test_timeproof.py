@@ -17,7 +17,7 @@ from pathlib import Path
 
 import pytest
 
-from store import views
+from store import sheets, views
 from store.base.timeutil import format_utc, parse_utc
 from store.db.book import open_book
 from store.derived import statuscache
@@ -128,7 +128,7 @@ def test_reads_on_a_writable_book_write_nothing(kept: Path, tmp_path: Path) -> N
                 book.conn.execute(f"DELETE FROM {table}")
         views.watch(book)
         tag = book.conn.execute("SELECT tag FROM filters ORDER BY tag LIMIT 1").fetchone()[0]
-        views.filter_sheet(book, tag)
+        sheets.filter_sheet(book, tag)
         counts = [
             book.conn.execute(f"SELECT count(*) FROM {t}").fetchone()[0]
             for t in ("status_cache", "unit_cache", "element_cache", "element_state")

@@ -5,10 +5,10 @@ from __future__ import annotations
 
 from textual.widgets import DataTable, Input
 
-from store import record, views
+from store import record, sheets, views
 from store.db.book import open_book
 from store.health import status
-from store.views import watch_rows
+from store.sheets import watch_rows
 from tests.kit import plant as kit
 from tests.kit.plant import app_for, settle
 from tui.screens.filter_sheet import FilterSheetScreen
@@ -212,7 +212,7 @@ async def test_a_sheet_opened_again_shows_only_the_new_filter(plant):
             assert sheet.tag == tag and sheet.sheet.position.tag == tag
             assert str(sheet.query_one("#sheet-title").render()).startswith(f"FILTER {tag}")
             with open_book(plant, create=False) as book:
-                rows = views.filter_sheet(book, tag).elements
+                rows = sheets.filter_sheet(book, tag).elements
             assert sheet.query_one("#elements", DataTable).row_count == len(rows)
             await pilot.press("escape")
             await settle(pilot, WatchScreen)

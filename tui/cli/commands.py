@@ -25,10 +25,6 @@ from store.base.text import inert, json_inert
 from store.base.timeutil import parse_time, previous_shift, shift_at, shift_named
 from store.base.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
 from store.base.validate import plant_setting
-from store.exchange.csvexport import BOM, export_file, write_span
-from store.exchange.csvio import import_csv
-from store.exchange.demo import create_demo
-from store.exchange.merge import merge
 from store.health import status
 from store.ledger import journal, register
 from store.ledger.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp, Void
@@ -119,6 +115,10 @@ def _at(book: Book, args: argparse.Namespace):  # noqa: ANN202 - datetime | None
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
+    from store.exchange.demo import (
+        create_demo,  # deferred: off the start path of status and the app
+    )
+
     path = args.db or args.session.db_path
     with create_demo(path, force=args.force, clock=args.session.clock) as book:
         units = len(register.list_all(book, Unit))
@@ -414,6 +414,12 @@ def cmd_status(args: argparse.Namespace) -> int:
 
 
 def cmd_export(args: argparse.Namespace) -> int:
+    from store.exchange.csvexport import (  # deferred: off the start path of status and the app
+        BOM,
+        export_file,
+        write_span,
+    )
+
     prefs = laptop.load(args.session.config_path)
     with _book(args) as book:
         local, pattern = book.local_zone(), book.shift_pattern()
@@ -464,6 +470,10 @@ class _OnScreen:
 
 
 def cmd_import(args: argparse.Namespace) -> int:
+    from store.exchange.csvio import (
+        import_csv,  # deferred: off the start path of status and the app
+    )
+
     try:
         data = Path(args.file).read_bytes()
     except OSError as exc:
@@ -531,6 +541,8 @@ def cmd_restore(args: argparse.Namespace) -> int:
 
 
 def cmd_merge(args: argparse.Namespace) -> int:
+    from store.exchange.merge import merge  # deferred: off the start path of status and the app
+
     with _book(args) as book:
         report = merge(book, Path(args.other))
     say(report.summary())

@@ -8,7 +8,7 @@ from store.base.units import parse_pressure_bar, parse_temperature_c
 from store.ledger.entries import Entry, Reading
 from store.ledger.journal import BYPASS_OPEN, BYPASS_STEPS, bypass_head
 from store.ledger.register import FilterPosition, find
-from store.views import last_temp_c, meter_estimate_h
+from store.sheets import last_temp_c, meter_estimate_h
 from tui.forms.base import EntryForm, FieldError
 from tui.forms.validators import DpValidator, RangeValidator, TemperatureValidator
 from tui.widgets import fmt

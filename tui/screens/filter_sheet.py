@@ -11,7 +11,7 @@ from textual.app import ComposeResult
 from textual.containers import VerticalScroll
 from textual.widgets import Header, Static
 
-from store.views import FilterSheet, filter_sheet
+from store.sheets import FilterSheet, filter_sheet
 from tui.base.keys import bind
 from tui.screens.common import ENTRY_BINDINGS, BookScreen, Target
 from tui.widgets import fmt

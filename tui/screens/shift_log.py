@@ -15,7 +15,7 @@ from store.base.prefs import Prefs
 from store.base.session import Clock
 from store.base.timeutil import ShiftSpan, next_shift, previous_shift, shift_at, shift_named
 from store.exchange.csvexport import export_file as write_file
-from store.views import ShiftLog, kind_counts, shift_log
+from store.sheets import ShiftLog, kind_counts, shift_log
 from tui.base.keys import bind
 from tui.base.render import describe
 from tui.base.workers import guarded

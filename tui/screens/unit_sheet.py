@@ -10,7 +10,7 @@ from textual.widgets import DataTable, Header, Sparkline, Static
 
 from store.base.prefs import Prefs
 from store.ledger.entries import Entry, Note
-from store.views import UnitSheet, unit_sheet
+from store.sheets import UnitSheet, unit_sheet
 from tui.base.keys import bind
 from tui.base.render import describe
 from tui.screens.common import ENTRY_BINDINGS, BookScreen, Target

@@ -14,7 +14,7 @@ from store.base.prefs import Prefs
 from store.base.text import inert
 from store.base.timeutil import shift_at
 from store.ledger.register import Unit, list_all
-from store.views import Summary, WatchRow, row_matches, summarise, watch_rows
+from store.sheets import Summary, WatchRow, row_matches, summarise, watch_rows
 from tui.base.keys import bind
 from tui.screens.common import ENTRY_BINDINGS, BookScreen, Target
 from tui.widgets import fmt

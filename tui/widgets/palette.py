@@ -7,7 +7,7 @@ from functools import partial
 
 from textual.command import DiscoveryHit, Hit, Hits, Provider
 
-from store.views import TagHit, tag_index
+from store.sheets import TagHit, tag_index
 
 VERBS = {
     "filter": (

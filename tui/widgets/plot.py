@@ -10,7 +10,7 @@ from textual_plotext import PlotextPlot
 
 from store.base.prefs import Prefs
 from store.base.units import from_bar
-from store.views import FilterSheet
+from store.sheets import FilterSheet
 from tui.widgets.fmt import p_unit
 
 MARK_GAUGE = "•"
