@@ -17,7 +17,9 @@ from pathlib import Path
 
 from platformdirs import user_config_dir, user_data_dir
 
+from store.base.errors import BookError
 from store.base.timeutil import parse_iso, to_utc, utc_now
+from store.base.validate import one_line
 
 ENV_DB = "SUMPBOOK_DB"
 ENV_CONFIG = "SUMPBOOK_CONFIG"
@@ -52,7 +54,19 @@ class Session:
     debug: bool = False
 
 
+def _clock(text: str) -> Clock:
+    try:
+        return fixed_clock(text)
+    except (ValueError, OverflowError) as exc:  # BookError is a ValueError
+        raise BookError(
+            f"{ENV_NOW}='{one_line(text, 40)}' is not a time: give an ISO 8601 time such as "
+            "2026-06-01T06:00Z, or unset it"
+        ) from exc
+
+
 def from_environ(environ: Mapping[str, str]) -> Session:
+    """The session the environment describes; a SUMPBOOK_NOW that is not a time raises
+    BookError."""
     db = environ.get(ENV_DB)
     config = environ.get(ENV_CONFIG)
     now = environ.get(ENV_NOW)
@@ -60,6 +74,6 @@ def from_environ(environ: Mapping[str, str]) -> Session:
         db_path=Path(db).expanduser() if db else user_book_path(),
         db_named=bool(db),
         config_path=Path(config).expanduser() if config else user_config_path(),
-        clock=fixed_clock(now) if now else utc_now,
+        clock=_clock(now) if now else utc_now,
         debug=bool(environ.get(ENV_DEBUG)),
     )

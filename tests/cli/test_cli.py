@@ -346,3 +346,14 @@ def test_a_reading_without_the_hour_meter_keeps_the_demo_due_date(tmp_path, caps
     assert f1["basis"] == "earlier-curves" and "earlier elements" in " ".join(f1["notes"])
     # the element's age is the meter estimate at the running rate, not frozen at a reading
     assert f1["element_age_h"] == pytest.approx(f0["element_age_h"], abs=0.05)
+
+
+def test_a_fixed_clock_that_is_not_a_time_gets_one_line_and_nothing_is_read(monkeypatch, capsys):
+    from tui.cli import main
+
+    monkeypatch.setenv("SUMPBOOK_NOW", "garbage")
+    assert main(["status"]) == 2
+    err = capsys.readouterr().err
+    assert (
+        err.startswith("sumpbook: SUMPBOOK_NOW='garbage' is not a time") and "Traceback" not in err
+    )

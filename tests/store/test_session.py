@@ -7,6 +7,9 @@ import ast
 from datetime import UTC, datetime
 from pathlib import Path
 
+import pytest
+
+from store.base.errors import BookError
 from store.base.session import from_environ, user_book_path, user_config_path
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -50,3 +53,8 @@ def test_the_store_never_reads_the_environment():
             if os_attr or from_os:
                 readers.append(f"{path.relative_to(ROOT)}:{node.lineno}")
     assert readers == []
+
+
+def test_a_clock_that_is_not_a_time_is_refused_in_one_line():
+    with pytest.raises(BookError, match="SUMPBOOK_NOW='garbage' is not a time"):
+        from_environ({"SUMPBOOK_NOW": "garbage"})

@@ -264,7 +264,11 @@ def run(args: argparse.Namespace) -> int:
 def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(join_negative_values(sys.argv[1:] if argv is None else argv))
-    args.session = session = from_environ(os.environ)  # the one reading of the environment
+    try:
+        args.session = session = from_environ(os.environ)  # the one reading of the environment
+    except BookError as exc:
+        print(f"sumpbook: {inert(str(exc))}", file=sys.stderr)
+        return EXIT_BAD_INPUT
     if args.command in (None, "app"):
         from tui.app import run_app  # textual loads only when the app runs
 
