@@ -5,6 +5,7 @@ Nothing here writes. The sheets built on them are in store/sheets.py."""
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from datetime import datetime, timedelta
 
 from store.base.timeutil import format_utc
@@ -20,8 +21,8 @@ from store.derived.statuscache import (
 )
 from store.health import status
 from store.health.conditions import FilterContext
-from store.health.status import FilterStatus, Watch
-from store.ledger.register import FilterPosition, list_all
+from store.health.status import FilterStatus, UnitStatus, Watch
+from store.ledger.register import FilterPosition
 
 
 def watch(
@@ -33,12 +34,11 @@ def watch(
     """The watch list. Now: from the status caches (kept on every save; what moves with the
     clock is worked out at read time). Rows marked stale (a like position's lives changed)
     are recomputed in memory first, unless `stale_ok`: a screen that shows the list at once
-    and has `statuscache.refresh_stale` catch up behind it. As of a past time: computed from
-    the entries as they stood then (`status.watch_as_of`; the summaries of elements taken out
-    before it from the element cache where it provably holds then: `kept_before`). Never
-    writes."""
+    and has `record.refresh_stale` catch up behind it. As of a past time: as the entries
+    stood then (`status.watch_as_of`), kept rows standing in where they provably hold
+    (`standing`, `kept_before`). Never writes."""
     if as_of is not None:
-        return _audit(book, as_of, unit)
+        return status.watch_as_of(book, as_of, unit, kept_before, standing)
     now = book.now()
     p = status.plant(book, unit)
     filters = cached_filters(book, list(p.contexts), now, stale_ok)
@@ -46,19 +46,17 @@ def watch(
     return status.watch_list(now, filters, status.breathers_at(book, now, unit), units)
 
 
-def _audit(book: Book, as_of: datetime, unit: str | None) -> Watch:
-    """The watch list as the book stood at `as_of`. A filter's kept status row stands for it
-    when nothing touching the filter (an entry, or a void of one) is dated at or after that
-    time, nor anything on a position taking the same element (whose lives its forecast
-    pools), and the row was kept by then: it was computed from exactly the entries the audit
-    reads, and the clock-dependent parts are worked out at `as_of` as for any read. A unit's
-    row likewise. Everything else is computed from the entries as they stood
-    (`status.watch_as_of`'s path). The answer is the same either way
-    (tests/store/test_status_as_of.py holds them together)."""
-    until = as_of + timedelta(seconds=1)
-    late = touched_since(book, until)
-    p = status.plant(book, unit)
-    positions = list_all(book, FilterPosition)
+def standing(
+    book: Book, p: status.Plant, positions: Sequence[FilterPosition], as_of: datetime
+) -> tuple[dict[str, FilterStatus], dict[str, UnitStatus]]:
+    """The kept statuses that stand for filters and units at `as_of`, by upper-case tag. A
+    filter's kept row does when nothing touching the filter (an entry, or a void of one) is
+    dated at or after that time, nor anything on a position taking the same element (whose
+    lives its forecast pools), and the row was kept by then: it was computed from exactly
+    the entries an audit reads, and the clock-dependent parts are worked out at `as_of` as
+    for any read. A unit's row likewise. tests/store/test_status_as_of.py holds the list
+    made with them to the one computed from the entries alone."""
+    late = touched_since(book, as_of + timedelta(seconds=1))
     late_parts = {q.element.lower() for q in positions if q.element and q.tag.upper() in late}
     quiet = [
         c.position.tag.upper()
@@ -66,22 +64,8 @@ def _audit(book: Book, as_of: datetime, unit: str | None) -> Watch:
         if c.position.tag.upper() not in late
         and (c.position.element or "").lower() not in late_parts
     ]
-    kept = kept_filters(book, quiet, as_of)
-    rest = [c for c in p.contexts if c.position.tag.upper() not in kept]
-    computed = iter(status.filters_as_of(book, rest, positions, as_of, kept_before))
-    filters = [
-        kept[c.position.tag.upper()] if c.position.tag.upper() in kept else next(computed)
-        for c in p.contexts
-    ]
-    kept_u = kept_units(
-        book, [u for u in p.units if u.tag.upper() not in late], p.positions_by_unit, as_of
-    )
-    units = [
-        kept_u.get(u.tag.upper())
-        or status.unit_status(book, u, p.positions_by_unit.get(u.tag.upper(), []), as_of)
-        for u in p.units
-    ]
-    return status.watch_list(as_of, filters, status.breathers_at(book, as_of, unit), units)
+    units = [u for u in p.units if u.tag.upper() not in late]
+    return kept_filters(book, quiet, as_of), kept_units(book, units, p.positions_by_unit, as_of)
 
 
 def touched_since(book: Book, since: datetime) -> set[str]:

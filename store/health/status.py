@@ -716,18 +716,36 @@ KeptBefore = Callable[
 ]
 
 
+# (book, the plant, every position, the time) -> the statuses that stand for some filters and
+# some units then, by upper-case tag (a layer that may read the status cache decides which)
+Standing = Callable[
+    [Book, "Plant", Sequence[FilterPosition], datetime],
+    tuple[dict[str, FilterStatus], dict[str, UnitStatus]],
+]
+
+
 def watch_as_of(
-    book: Book, as_of: datetime, unit: str | None = None, kept_before: KeptBefore | None = None
+    book: Book,
+    as_of: datetime,
+    unit: str | None = None,
+    kept_before: KeptBefore | None = None,
+    standing: Standing | None = None,
 ) -> Watch:
-    """The watch list as of a past time, computed from the entries as they stood then (an
-    audit: no status cache is read; with `kept_before`, only element summaries the element
-    cache provably holds for that time). The list now is store.views.watch."""
+    """The watch list as of a past time, computed from the entries as they stood then. With
+    `kept_before`, element summaries the element cache provably holds for that time; with
+    `standing`, statuses that provably stand for some filters and units then (store.views
+    gives both); without them nothing kept is read. The list now is store.views.watch."""
     p = plant(book, unit)
-    # `status_as_of` of each filter, for the whole plant at once (the same sums).
     positions = list_all(book, FilterPosition)
-    filters = filters_as_of(book, p.contexts, positions, as_of, kept_before)
+    kept_f, kept_u = standing(book, p, positions, as_of) if standing else ({}, {})
+    rest = [c for c in p.contexts if c.position.tag.upper() not in kept_f]
+    # `status_as_of` of each other filter, for the whole plant at once (the same sums).
+    computed = iter(filters_as_of(book, rest, positions, as_of, kept_before))
+    filters = [kept_f.get(c.position.tag.upper()) or next(computed) for c in p.contexts]
     units = [
-        unit_status(book, u, p.positions_by_unit.get(u.tag.upper(), []), as_of) for u in p.units
+        kept_u.get(u.tag.upper())
+        or unit_status(book, u, p.positions_by_unit.get(u.tag.upper(), []), as_of)
+        for u in p.units
     ]
     return watch_list(as_of, filters, breathers_at(book, as_of, unit), units)
 
