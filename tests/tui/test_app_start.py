@@ -13,7 +13,7 @@ from textual.widgets import Static
 from store import record
 from store.base.session import from_environ
 from store.db.book import open_book
-from store.exchange.demo import is_throwaway
+from store.exchange.demo import discard, is_throwaway
 from store.ledger import journal, register
 from store.ledger.entries import Note
 from store.ledger.register import Technician
@@ -76,6 +76,7 @@ async def test_the_demo_says_it_keeps_nothing(no_logbook):
             assert any("not kept" in n.message for n in app._notifications)
     finally:
         app.book.close()
+        discard(app.book.path)  # as run_app does when the app closes
 
 
 async def test_a_new_db_path_offers_to_create_the_logbook_there(tmp_path):
@@ -121,6 +122,7 @@ async def test_a_new_db_path_left_with_q_creates_nothing(tmp_path):
         await pilot.pause()
     assert not app.is_running and not new.exists()
     app.book.close()
+    discard(app.book.path)  # the empty stand-in, as run_app does
 
 
 def test_cli_db_with_a_new_path_starts_the_guide_not_the_demo(tmp_path, monkeypatch):
