@@ -233,13 +233,33 @@ def after_entry(book: Book, entry: Entry) -> None:
             )
 
 
+def _inputs_seen(book: Book) -> tuple[int, int]:
+    """What a status is computed from, as two counters that only grow: the newest entry's
+    rowid (entries are never deleted) and the newest register change's."""
+    row = book.conn.execute(
+        "SELECT (SELECT coalesce(max(rowid), 0) FROM entries), "
+        "(SELECT coalesce(max(rowid), 0) FROM register_log)"
+    ).fetchone()
+    return row[0], row[1]
+
+
 def refresh(book: Book, ctx: FilterContext) -> FilterStatus:
     """An explicit refresh: recompute one filter's status now and keep it (with its element
-    summaries) in one transaction, or in the caller's."""
+    summaries) in one transaction, or in the caller's.
+
+    The fitting runs before the write lock so that a writer is not held up by it; under the
+    lock the inputs are compared with what the fitting saw, and if an entry or a register
+    change landed in between, the status is computed again there: a kept row never holds a
+    view of the entries older than the moment it is stored."""
     now = book.now()
+    seen = _inputs_seen(book)
     status, pools, _ = live_status(book, ctx, now)  # the fitting, before the write lock
     with book.atomic():
-        elements_now(book, ctx, keep=True)
+        if _inputs_seen(book) != seen:
+            ctx = context(book, ctx.position.tag)
+            status, pools, _ = live_status(book, ctx, now, keep=True)
+        else:
+            elements_now(book, ctx, keep=True)
         store_status(book, status, now, pools)
     return status
 
