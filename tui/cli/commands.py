@@ -38,12 +38,15 @@ if TYPE_CHECKING:
 @functools.cache
 def console(stderr: bool = False) -> Console:
     """Rich, imported on first use: `status --json` and the exports print no tables.
-    Piped output (grep, files, tests) gets wide lines instead of wrapped cells."""
+    Piped output (grep, files, tests) is never wrapped: a message stays one line however long
+    the path in it, and tables get wide lines instead of wrapped cells."""
     from rich.console import Console
 
+    stream = sys.stderr if stderr else sys.stdout
+    piped = not stream.isatty()
     if stderr:
-        return Console(stderr=True)
-    return Console(highlight=False, width=None if sys.stdout.isatty() else 200)
+        return Console(stderr=True, soft_wrap=piped)
+    return Console(highlight=False, width=200 if piped else None, soft_wrap=piped)
 
 
 def say(text: str, stderr: bool = False) -> None:
