@@ -40,6 +40,14 @@ SETTINGS = settings(
 TRIED: Counter[str] = Counter()
 REFUSED: Counter[str] = Counter()
 
+
+@pytest.fixture(autouse=True, scope="module")
+def _report_counts():
+    """After the module's doors have run, print the figures kept in README (run with -s)."""
+    yield
+    for door in sorted(TRIED):
+        print(f"door {door}: {TRIED[door]} tried, {REFUSED[door]} refused")
+
 # Values a hostile or careless hand might type: numbers at and past every edge, words, escapes.
 NUMBERS = st.one_of(
     st.floats(min_value=0.05, max_value=3.0).map(lambda x: f"{x:.2f}"),  # plausible values
@@ -317,9 +325,3 @@ def test_merge_rows_of_a_current_book(plant, tmp_path, column, cell):
         return (0 if report.entries_added else 2), report.summary(), "\n".join(report.conflicts)
 
     _door("merge rows", plant, write)
-
-
-def test_zz_report_counts():
-    """Prints the figures kept in README (run with -s)."""
-    for door in sorted(TRIED):
-        print(f"door {door}: {TRIED[door]} tried, {REFUSED[door]} refused")

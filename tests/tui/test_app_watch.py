@@ -325,11 +325,15 @@ async def test_a_kept_sheet_is_read_before_it_shows_or_shows_at_once_when_slow(p
         await pilot.press("escape")
         await settle(pilot, WatchScreen)
 
+        finished = []
+
         def slow(book, tag):  # a read slower than SHEET_WAIT_S
             time.sleep(4 * app_module.SHEET_WAIT_S)
-            return sheets_module.filter_sheet(book, tag)
+            sheet = sheets_module.filter_sheet(book, tag)
+            finished.append(sheet.position.tag)  # the stand-in did read the sheet
+            return sheet
 
-        from store import views as sheets_module
+        from store import sheets as sheets_module
 
         monkeypatch.setattr(app_module, "filter_sheet", slow)
         table.move_cursor(row=tags.index("P1-RF"))
@@ -340,4 +344,5 @@ async def test_a_kept_sheet_is_read_before_it_shows_or_shows_at_once_when_slow(p
         await asyncio.sleep(4 * app_module.SHEET_WAIT_S)  # the slow read ends: ignored
         await settle(pilot, FilterSheetScreen)
         assert kept.sheet.position.tag == "P1-RF" and reloads == ["P1-RF"]  # its own read
+        assert finished == ["P1-RF"]  # the slow read ran to its end and was then ignored
         assert len(app.screen_stack) == 2  # shown once
