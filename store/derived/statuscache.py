@@ -17,7 +17,10 @@ transaction) and by an explicit refresh: `refresh_stale` (the app's catch-up beh
 with rows marked stale or of an old format) and `rebuild()` (`sumpbook rebuild`), which
 recomputes them and the element cache from the entries at any time. A read that finds a row
 missing, stale or of an old format computes it in memory and leaves the book as it was.
-Nothing reads them for an audit (`watch(as_of=...)` always computes from the entries).
+An audit (`views.watch(as_of=...)`) uses a kept row only where nothing dated at or after its
+time touches the filter or a position that takes the same element (`views.standing`), and
+computes the rest from the entries; tests/store/test_timeproof.py holds the kept rows against
+a copy of the book with every derived row dropped.
 """
 
 from __future__ import annotations
