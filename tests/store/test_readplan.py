@@ -2,16 +2,18 @@
 
 import json
 import math
-from datetime import timedelta
+from datetime import UTC, datetime, timedelta
 
 import pytest
 from scipy import stats
 
 from store import record, views
+from store.db.book import open_book
 from store.forecast import readplan
 from store.health import status
 from store.ledger import register
 from store.ledger.entries import ElementChange, Reading
+from store.ledger.register import FilterPosition, Fluid, Technician, Unit
 from tests.kit.books import pace_book
 
 
@@ -103,4 +105,36 @@ def test_a_new_element_without_readings_is_planned_from_earlier_lives(tmp_path):
     assert f.next_rule == "service-life"
     gap_h = (f.next_reading - now).total_seconds() / 3600
     assert 0 < gap_h < 1000 and math.isfinite(gap_h)
+    book.close()
+
+
+def test_an_indicator_only_filter_is_planned_from_its_service_life(tmp_path):
+    t0 = datetime(2026, 1, 5, 6, 0, tzinfo=UTC)
+    book = open_book(tmp_path / "ind.db")
+    register.add(book, Technician(tag="AB"))
+    register.add(book, Fluid(tag="HV46", iso_vg=46))
+    register.add(book, Unit(tag="U1", fluid="HV46", normal_temp_c=50))
+    register.add(book, FilterPosition(tag="U1-PF", unit="U1", kind="pressure", limit_bar=2.0,
+                                      bypass_bar=3.0, gauge=False, reading_interval_h=2000))  # fmt: skip
+    # six earlier elements that tripped their indicator after 500-700 h (our own history)
+    t, entries = t0, []
+    for life_h in (520, 610, 700, 560, 650, 590):
+        entries.append(ElementChange(filter="U1-PF", reason="indicator", by="AB", at=t))
+        entries.append(Reading(filter="U1-PF", indicator="clean", by="AB",
+                               at=t + timedelta(hours=life_h / 2)))  # fmt: skip
+        entries.append(Reading(filter="U1-PF", indicator="dirty", by="AB",
+                               at=t + timedelta(hours=life_h - 1)))  # fmt: skip
+        t += timedelta(hours=life_h)
+    entries.append(ElementChange(filter="U1-PF", reason="indicator", by="AB", at=t))
+    entries.append(Reading(filter="U1-PF", indicator="clean", by="AB", at=t + timedelta(hours=300)))
+    record.log_many(book, entries)
+    book.set_setting("clock", (t + timedelta(hours=301)).strftime("%Y-%m-%dT%H:%M:%SZ"))
+    f = _filter(views.watch(book), "U1-PF")
+    assert f.next_rule == "service-life"
+    shape, scale_h = views.status_of(book, status.plant(book).contexts[0]).clock.life
+    gap_h = (f.next_reading - f.reading_at).total_seconds() / 3600
+    # scipy's Weibull: the chance of tripping before the check after next, from age 300 h
+    sf = stats.weibull_min(shape, scale=scale_h).sf
+    assert 1 - sf(300 + 2 * gap_h) / sf(300) == pytest.approx(0.05, abs=1e-4)
+    assert gap_h < 300  # well inside the 2000 h interval: the element is past half its life
     book.close()
