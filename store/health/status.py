@@ -624,8 +624,9 @@ def status_from(
     return at_time(status, clock, now)
 
 
-# A reading showed the element at or past its end, or torn: read (and act) every shift.
-_READ_EACH_SHIFT = ("over-limit", "at-bypass", "indicator-bypass", "indicator-dirty", "dp-drop")
+# A reading showed the element at or past its end: read it every shift until it is changed. (A
+# ΔP drop asks for the element to be looked at, not for more readings: its own flag says so.)
+_READ_EACH_SHIFT = ("over-limit", "at-bypass", "indicator-bypass", "indicator-dirty")
 
 
 def _next_reading(
