@@ -54,6 +54,7 @@ class WatchRow:
     notes: tuple[str, ...]
     overdue: bool
     gauge: bool = True  # False: the filter has only a visual indicator
+    next_reading: datetime | None = None  # a filter's next-reading time (readplan)
 
     @property
     def urgent(self) -> bool:
@@ -99,6 +100,7 @@ def filter_row(f: FilterStatus, area: str, now: datetime) -> WatchRow:
         notes=f.notes,
         overdue=overdue,
         gauge=f.gauge,
+        next_reading=f.next_reading,
     )
 
 

@@ -80,6 +80,10 @@ def register_screen() -> Screen:
     return _lazy("screens.register", "RegisterScreen")()
 
 
+def round_screen() -> Screen:
+    return _lazy("screens.round_sheet", "RoundScreen")()
+
+
 THEMES = {
     "dark": Theme(
         name="sumpbook-dark",
@@ -132,6 +136,7 @@ HELP_SCREENS = (  # every full screen, for the help's "keys on other screens"
     ("screens.filter_sheet", "FilterSheetScreen"),
     ("screens.shift_log", "ShiftLogScreen"),
     ("screens.register", "RegisterScreen"),
+    ("screens.round_sheet", "RoundScreen"),
 )
 NAV = ("go", "quick_tag", "sign_in", "quit", "entry")
 
@@ -140,13 +145,19 @@ class SumpbookApp(App[None]):
     TITLE = "sumpbook"
     CSS_PATH = "app.tcss"
     COMMANDS = App.COMMANDS | {BookCommands}
-    MODES = {"watch": WatchScreen, "shift": shift_log_screen, "register": register_screen}
+    MODES = {
+        "watch": WatchScreen,
+        "shift": shift_log_screen,
+        "register": register_screen,
+        "round": round_screen,
+    }
     DEFAULT_MODE = "watch"
     BINDINGS = [
         bind("t,f2", "quick_tag", "quick-tag"),
         bind("1", "go('watch')", "go-watch"),
         bind("2", "go('shift')", "go-shift"),
         bind("3", "go('register')", "go-register"),
+        bind("4", "go('round')", "go-round"),
         bind("i", "sign_in", "sign-in"),
         bind("question_mark,f1", "help", "help"),
         bind("ctrl+p", "command_palette", "palette"),

@@ -13,8 +13,9 @@ from dataclasses import dataclass, field
 
 from store.base.errors import BookError
 from store.db.book import Book
+from store.forecast.readplan import shortest_shift_h
 from store.ledger.entries import Reading
-from store.ledger.register import FilterPosition, Fluid, Unit, find, get, list_all
+from store.ledger.register import FilterPosition, Fluid, Unit, find, get, list_all, list_shifts
 from store.physics.fluid import FluidSpec, ViscosityCurve, resolve_curve
 from store.physics.normalise import ReferenceCondition, normalise_dp_bar, reference_for
 
@@ -26,6 +27,7 @@ class FilterContext:
     curve: ViscosityCurve | None
     reference: ReferenceCondition | None
     problem: str = ""  # why readings cannot be normalised, if they cannot
+    shortest_read_h: float = 24.0  # the plant's shortest shift: readings no closer than this
     # (ΔP, temperature, flow) -> reference ΔP already worked out for this position
     memo: dict[tuple, float | None] = field(
         default_factory=dict, compare=False, hash=False, repr=False
@@ -57,7 +59,9 @@ def curve_of(fluid: Fluid | None) -> ViscosityCurve:
     )
 
 
-def build_context(position: FilterPosition, unit: Unit, fluid: Fluid | None) -> FilterContext:
+def build_context(
+    position: FilterPosition, unit: Unit, fluid: Fluid | None, shortest_read_h: float = 24.0
+) -> FilterContext:
     key = (fluid, unit.normal_temp_c, position.normal_flow_lpm)
     found = _REFERENCES.get(key)
     if found is None:
@@ -70,8 +74,8 @@ def build_context(position: FilterPosition, unit: Unit, fluid: Fluid | None) -> 
             _REFERENCES.clear()
         _REFERENCES[key] = found
     if isinstance(found, str):
-        return FilterContext(position, unit, None, None, found)
-    return FilterContext(position, unit, *found)
+        return FilterContext(position, unit, None, None, found, shortest_read_h)
+    return FilterContext(position, unit, *found, shortest_read_h=shortest_read_h)
 
 
 # (fluid, reference temperature, reference flow) -> (curve, reference) or why there is none:
@@ -82,20 +86,33 @@ _REFERENCES: dict[tuple, tuple[ViscosityCurve, ReferenceCondition] | str] = {}
 def contexts(book: Book) -> dict[str, FilterContext]:
     """Every filter's context, keyed by upper-case tag (one pass over the register)."""
     return contexts_from(
-        list_all(book, Unit), list_all(book, Fluid), list_all(book, FilterPosition)
+        list_all(book, Unit),
+        list_all(book, Fluid),
+        list_all(book, FilterPosition),
+        shortest_read_h(book),
     )
 
 
+def shortest_read_h(book: Book) -> float:
+    """The plant's shortest sensible reading interval: its shortest shift (24 h without a
+    pattern). store/forecast/readplan.py never plans two readings closer than this."""
+    return shortest_shift_h([s.starts for s in list_shifts(book)])
+
+
 def contexts_from(
-    units: Sequence[Unit], fluids: Sequence[Fluid], positions: Sequence[FilterPosition]
+    units: Sequence[Unit],
+    fluids: Sequence[Fluid],
+    positions: Sequence[FilterPosition],
+    shortest_h: float = 24.0,
 ) -> dict[str, FilterContext]:
-    """`contexts` from register rows already read."""
+    """`contexts` from register rows already read (shortest_h: `shortest_read_h`)."""
     by_unit = {u.tag: u for u in units}
     by_fluid = {f.tag: f for f in fluids}
     result = {}
     for position in positions:
         unit = by_unit[position.unit]
-        result[position.tag] = build_context(position, unit, by_fluid.get(unit.fluid or ""))
+        fluid = by_fluid.get(unit.fluid or "")
+        result[position.tag] = build_context(position, unit, fluid, shortest_h)
     return result
 
 
@@ -105,7 +122,7 @@ def context(book: Book, filter_tag: str) -> FilterContext:
         get(book, FilterPosition, filter_tag)  # raises with a suggestion
     unit = find(book, Unit, position.unit)  # type: ignore[union-attr]
     fluid = find(book, Fluid, unit.fluid) if unit and unit.fluid else None  # type: ignore[union-attr]
-    return build_context(position, unit, fluid)  # type: ignore[arg-type]
+    return build_context(position, unit, fluid, shortest_read_h(book))  # type: ignore[arg-type]
 
 
 _NU_MEMO_SIZE = 4096  # distinct temperatures kept per fluid curve

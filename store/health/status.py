@@ -24,7 +24,7 @@ from dateutil import tz
 from store.base.errors import BookError
 from store.base.timeutil import iso_local
 from store.db.book import Book
-from store.health.conditions import FilterContext, contexts_from
+from store.health.conditions import FilterContext, contexts_from, shortest_read_h
 from store.health.elements import (
     Element,
     ElementSummary,
@@ -259,6 +259,8 @@ class FilterStatus:
     spark: tuple[float, ...] = ()  # normalised ΔP of the current element, for sparklines
     overdue_at: datetime | None = None  # when the next reading becomes overdue
     pace: float | None = None  # earlier lives / this element's likely life (> 1: faster)
+    next_reading: datetime | None = None  # read again by then (store/forecast/readplan.py)
+    next_rule: str = ""  # what set it: readplan.RULES
     forecast: trend.Forecast | None = field(default=None, compare=False)
     age_to_time: Any = field(default=None, compare=False)  # element age (h) -> datetime
     clock: Clock | None = field(default=None, compare=False)  # what moves with the clock
@@ -578,7 +580,11 @@ def status_from(
     last_seen = max(
         [p.at for p in points] + ([current.fitted_at] if current.fitted_at else []), default=None
     )
-    overdue_at = last_seen + timedelta(hours=pos.reading_interval_h * 1.5) if last_seen else None
+    next_reading, next_rule = _next_reading(ctx, last_seen, due, basis, state, flags, fit, clock)
+    # Overdue once the planned gap is passed by half again (a fixed interval: 1.5x it, as ever).
+    overdue_at = None
+    if last_seen and next_reading:
+        overdue_at = last_seen + 1.5 * (next_reading - last_seen)
     clock = replace(clock, state=state, notes=len(notes))
     status = FilterStatus(
         filter=pos.tag,
@@ -610,10 +616,54 @@ def status_from(
         spark=tuple(p.dp_ref_bar for p in numeric[-40:]),  # type: ignore[misc]
         overdue_at=overdue_at,
         pace=None if pace is None else round(pace.ratio, 3),
+        next_reading=next_reading,
+        next_rule=next_rule,
         forecast=forecast,
         age_to_time=age_to_time,
     )
     return at_time(status, clock, now)
+
+
+# A reading showed the element at or past its end: read it every shift until it is changed. (A
+# ΔP drop asks for the element to be looked at, not for more readings: its own flag says so.)
+_READ_EACH_SHIFT = ("over-limit", "at-bypass", "indicator-bypass", "indicator-dirty")
+
+
+def _next_reading(
+    ctx: FilterContext,
+    last_seen: datetime | None,
+    due: Due | None,
+    basis: str,
+    state: str,
+    flags: Sequence[str],
+    fit: WeibullFit | None,
+    clock: Clock,
+) -> tuple[datetime | None, str]:
+    """When to read the filter again and the rule that says so (store/forecast/readplan.py):
+    half the time from the last reading (or change) to the forecast's earliest date, or to the
+    service life's 5 % point given the age then; within the registered interval and the
+    plant's shortest shift. None before anything was logged."""
+    from store.forecast import readplan
+
+    if last_seen is None:
+        return None, ""
+    warning_h: float | None = None
+    rule = "forecast"
+    if state in ("past-limit", "past-bypass") or any(f in _READ_EACH_SHIFT for f in flags):
+        warning_h = 0.0
+    elif due is not None and basis in ("earlier-curves", "trend"):
+        warning_h = (due.earliest - last_seen).total_seconds() / 3600
+    elif basis == "service-life" and fit is not None:
+        age_h = clock.age_h(last_seen)
+        ahead_h = readplan.life_warning_h(fit.shape, fit.scale_h, age_h)
+        if age_h + ahead_h < MAX_AGE_H:
+            warning_h = (clock.time_at(age_h + ahead_h, last_seen) - last_seen).total_seconds()
+            warning_h /= 3600
+        rule = "service-life"
+    gap = readplan.bounded_gap(
+        warning_h, ctx.position.reading_interval_h, ctx.shortest_read_h, rule
+    )
+    return last_seen + timedelta(hours=gap.gap_h), gap.rule
 
 
 def status_as_of(book: Book, ctx: FilterContext, as_of: datetime) -> FilterStatus:
@@ -677,7 +727,9 @@ def plant(book: Book, unit: str | None = None) -> Plant:
     all_units, positions = list_all(book, Unit), list_all(book, FilterPosition)
     ctxs = [
         c
-        for c in contexts_from(all_units, list_all(book, Fluid), positions).values()
+        for c in contexts_from(
+            all_units, list_all(book, Fluid), positions, shortest_read_h(book)
+        ).values()
         if unit is None or c.position.unit == unit
     ]
     by_unit: dict[str, list[FilterPosition]] = {}
@@ -921,6 +973,9 @@ def to_json(w: Watch, local: Any = None) -> dict[str, Any]:
                 "readings_since_change": f.readings_since_change,
                 "element_age_h": _r(f.element_age_h, 1),
                 "pace_vs_earlier": _r(f.pace, 2),
+                "next_reading": None
+                if f.next_reading is None
+                else {"at": iso_local(f.next_reading, local), "rule": f.next_rule},
                 "cold_start": None
                 if f.cold is None
                 else {

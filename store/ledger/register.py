@@ -271,6 +271,8 @@ _STALE_SQL = {
     "(SELECT tag FROM filters WHERE unit = ?)",
     "fluids": "UPDATE status_cache SET stale = 1 WHERE filter IN (SELECT f.tag FROM filters f "
     "JOIN units u ON u.tag = f.unit WHERE u.fluid = ?)",
+    # the shortest shift bounds every filter's next-reading time (store/forecast/readplan.py)
+    "shifts": "UPDATE status_cache SET stale = 1 WHERE ? IS NOT NULL",
 }
 
 

@@ -328,7 +328,10 @@ async def test_a_walk_through_every_screen_cuts_no_label(demo):
         for _tab in range(6):  # every tab of the register, and its edit form
             problems += await walk(app, pilot, ("e",))
             problems += await walk(app, pilot, ("escape", "right_square_bracket"))
-        problems += await walk(app, pilot, ("1", "i"))
+        problems += await walk(app, pilot, ("escape", "4"))  # the round, this shift and next
+        problems += await walk(app, pilot, ("ctrl+n",))
+        problems += await walk(app, pilot, ("ctrl+o",))
+        problems += await walk(app, pilot, ("escape", "1", "i"))
     print("\n".join(problems))
     assert problems == []
 

@@ -93,3 +93,19 @@ def test_first_run_guide(snap_compare, tmp_path, monkeypatch):
         await settle(pilot)
 
     assert snap_compare(app, terminal_size=SIZE, run_before=shown)
+
+
+def test_round(snap_compare, demo_app):
+    # the next shift's round (the demo's clock stands near the end of one), a value typed in
+    async def open_round(pilot) -> None:
+        from tui.screens.round_sheet import RoundScreen
+
+        await settle(pilot, WatchScreen)
+        await pilot.press("4")
+        await settle(pilot, RoundScreen)
+        await pilot.press("ctrl+n")
+        await settle(pilot, RoundScreen)
+        await pilot.press(*"2.3")
+        await pilot.pause()
+
+    assert snap_compare(demo_app(), terminal_size=SIZE, run_before=open_round)

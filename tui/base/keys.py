@@ -39,6 +39,11 @@ KEYS: dict[str, Key] = {
     "go-watch": Key("1", "watch", "The watch list", "look", 2),
     "go-shift": Key("2", "shift log", "The shift log", "look", 3),
     "go-register": Key("3", "register", "The register", "look", 3),
+    "go-round": Key("4", "round", "The round: what to read this shift", "look", 3),
+    "round-skip": Key("ctrl+o", "skip", "Skip this filter and say why (kept as a note)", "log", 1),
+    "round-next": Key(
+        "ctrl+n", "next shift", "The next shift's round (again: this one's)", "look", 3
+    ),
     "unit-sheet": Key("u", "unit", "Open the unit sheet", "look", 3),
     "find": Key("/", "find", "Find by text", "look", 4),
     "area": Key("a", "area", "Show one area or unit", "look", 6),
@@ -69,6 +74,7 @@ ENTER = {
         "Enter", "open", "Open the filter sheet of the filter under the cursor", "look", 3
     ),
     "the register": Key("Enter", "edit", "Edit the selected row", "book", 3),
+    "the round": Key("Enter", "save", "Save the reading and move to the next filter", "log", 1),
 }
 
 

@@ -27,6 +27,7 @@ from store.ledger.entries import (
 )
 from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
 from store.physics.cleanliness import compare_to_target, parse_code
+from store.rounds import Round
 from tui.base.quantities import pressure, temperature, volume
 
 CAUTION_SHORT = (
@@ -306,6 +307,7 @@ def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
         f"ΔP ref ({pressure_label(prefs.pressure)})",
         "% limit",
         "due (change)",
+        "read by",
         "basis",
         "flags",
     ):
@@ -323,6 +325,7 @@ def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
             pressure(f.dp_ref_bar, prefs, unit=False),
             f"{f.percent_of_limit:.0f} %" if f.percent_of_limit is not None else "–",
             due,
+            when(book, f.next_reading),
             f.basis,
             flags,
         )
@@ -335,6 +338,7 @@ def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
             "",
             "",
             due_day(book, b.forecast.due),
+            "",
             b.forecast.basis,
             ", ".join(FLAG_WORDS.get(x, x) for x in b.flags),
         )
@@ -349,8 +353,35 @@ def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
                 "",
                 "",
                 "",
+                "",
                 ", ".join(FLAG_WORDS.get(x, x) for x in u.flags),
             )
+    return table
+
+
+def round_table(book: Book, plan: Round) -> Table:
+    """The round: one row per filter to read, in walking order."""
+    z = book.local_zone()
+    title = (
+        f"Round, shift {plan.span.name} {plan.span.start.astimezone(z):%d %b %H:%M}–"
+        f"{plan.span.end.astimezone(z):%H:%M}: {len(plan.stops)} to read"
+    )
+    table = Table(title=title, title_justify="left")
+    for c in ("#", "unit", "filter", "read", "why", "read by", "% limit"):
+        table.add_column(c)
+    for i, s in enumerate(plan.stops, 1):
+        _add_row(
+            table,
+            str(i),
+            s.unit,
+            s.filter,
+            " + ".join(s.reads),
+            s.why_text,
+            f"{s.read_by.astimezone(z):%d %b %H:%M}" if s.read_by else "–",
+            f"{s.percent_of_limit:.0f} %" if s.percent_of_limit is not None else "–",
+        )
+    if not plan.stops:
+        _add_row(table, "", "", "nothing to read this shift", "", "", "", "")
     return table
 
 

@@ -206,6 +206,16 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--as-of", help="answer as the book stood at this time (ISO 8601)")
     p.add_argument("--unit", help="only this unit")
 
+    p = sub.add_parser(
+        "round", help="what to read this shift, in walking order, and why (or --csv)"
+    )
+    p.add_argument("--unit", help="only this unit")
+    p.add_argument("--csv", action="store_true", help="CSV for a clipboard, on stdout")
+    p.add_argument("--next", action="store_true", help="the next shift's round, as things stand")
+    p.add_argument("--skip", metavar="TAG", help="record that this filter was not read ...")
+    p.add_argument("--why", help="... and why (with --skip)")
+    p.add_argument("--by")
+
     p = sub.add_parser("export", help="the shift log as CSV")
     when = p.add_mutually_exclusive_group()
     when.add_argument(

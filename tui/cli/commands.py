@@ -416,6 +416,36 @@ def cmd_status(args: argparse.Namespace) -> int:
     return 0
 
 
+def cmd_round(args: argparse.Namespace) -> int:
+    from store import rounds
+
+    with _book(args) as book:
+        unit = register.get(book, Unit, args.unit).tag if args.unit else None
+        if args.skip or args.why:
+            if not (args.skip and args.why):
+                raise BookError("--skip TAG needs --why TEXT (and --why needs --skip)")
+            plan = rounds.plan_round(book, unit)
+            tag = args.skip.strip().upper()
+            stop = next((s for s in plan.stops if s.filter.upper() == tag), None)
+            if stop is None:
+                raise BookError(f"{args.skip} is not on this shift's round")
+            entry = record.log(book, rounds.skip_note(stop, args.why, _by(args)))
+            say(f"saved: {entry.note}")
+            return 0
+        plan = rounds.plan_round(book, unit, following=args.next)
+        if args.csv:
+            sys.stdout.write(inert_csv(rounds.round_csv(plan, book.local_zone())))
+        else:
+            console().print(_render().round_table(book, plan))
+    return 0
+
+
+def inert_csv(text: str) -> str:
+    """CSV text for a terminal or a pipe: control characters of stored text made visible, the
+    line ends kept."""
+    return "\r\n".join(inert(line) for line in text.split("\r\n"))
+
+
 def cmd_export(args: argparse.Namespace) -> int:
     from store.exchange.csvexport import (  # deferred: off the start path of status and the app
         BOM,

@@ -163,6 +163,9 @@ class FilterSheetScreen(BookScreen):
             lines.append(f"Change due {fmt.due_text(st.due, local)}")
         else:
             lines.append(f"Change due: {fmt.STATE_WORDS.get(st.state, st.state)}")
+        if st.next_reading is not None:
+            text = fmt.read_again_text(st.next_reading, st.next_rule, local)
+            lines.append(text[0].upper() + text[1:])
         if st.bypass_due is not None:
             lines.append(f"Bypass would open {fmt.due_text(st.bypass_due, local)}")
         basis = BASIS_WORDS.get(st.basis, st.basis)

@@ -252,6 +252,8 @@ class WatchScreen(BookScreen):
         if row.due is not None:
             word = "change" if row.what == "filter" else "swap"
             head.append(f"{word} due {fmt.due_text(row.due, local)}")
+        if row.next_reading is not None:
+            head.append(fmt.read_again_text(row.next_reading, "", local))
         if row.basis:
             head.append(f"basis {row.basis}")
         prefs = self.sb.prefs

@@ -123,6 +123,23 @@ def due_cell(
     return f"{head} −{max(before, 0)}/+{max(after, 0)}d"
 
 
+# Why the next reading falls where it does (store/forecast/readplan.py RULES).
+READ_RULE_WORDS = {
+    "forecast": "half the time to the earliest change date",
+    "service-life": "from earlier element lives",
+    "interval": "the filter's reading interval",
+    "shift": "each shift: near its limit or flagged",
+}
+
+
+def read_again_text(moment: datetime | None, rule: str, local: tzinfo) -> str:
+    """'read again by Fri 27 Nov 15:24 (the filter's reading interval)', or '' without one."""
+    if moment is None:
+        return ""
+    why = READ_RULE_WORDS.get(rule, rule)
+    return f"read again by {moment.astimezone(local):%a %d %b %H:%M}" + (f" ({why})" if why else "")
+
+
 def due_text(due: Due | None, local: tzinfo, now: datetime | None = None) -> str:
     """'12–15 May (likely 13 May)' for lines with room; an open end says so; days in
     another year show their year."""

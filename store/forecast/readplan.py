@@ -1,0 +1,92 @@
+"""When to read a filter again: the next-reading time from the pessimistic side of the forecast.
+
+The rule (one rule for gauges and indicator-only filters):
+
+    read again after READ_SHARE (one half) of the time, counted from the last reading, until
+    the chance that the element has reached its change limit passes PESSIMISTIC_P (5 %),
+
+never later than the filter's registered reading interval and never sooner than the shortest
+interval the plant sets (its shortest shift: one reading a shift at most).
+
+Why this rule and these numbers, chosen before any measurement:
+
+- Reliability-centred maintenance: an on-condition check must come at intervals shorter than
+  the warning time it watches for (the P-F interval), commonly at half of it
+  (# common practice, no source). Here the warning time is how soon the element could reach its
+  limit: the forecast's "earliest" date, its 5 % point (store/forecast/trend.py EARLIEST_P).
+  Half of it leaves a second chance: if the reading at the half-way point is missed or reads
+  low, one more falls before the earliest date.
+- Seldom while the element is fresh, more often as it turns: each reading re-forecasts, and
+  the gap shrinks with the pessimistic remaining time. A flat, fresh element is read on the
+  registered interval; one near its turn each shift.
+- Indicator-only filters (no numbers, nothing to fit) and gauges with too few readings: the
+  service-life model of earlier elements (Weibull, given that the element had not tripped at
+  its last check). The next check comes when the chance of tripping before the check after
+  next passes PESSIMISTIC_P: two gaps span the time to the conditional 5 % point, so one gap
+  is half of it, the same rule as above.
+
+What it cannot promise: a forecast whose "earliest" date is late (a curve flat until a sharp
+late turn, dirtier than any in the history) gives a late plan; the halving and the shift floor
+limit, not remove, how far an element can run past its limit. tests/benchmarks/clogging.py
+measures it in closed loop (README, "When to read again").
+
+Pure functions over hours; calendar dates are the caller's job (store/health/status.py).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+READ_SHARE = 0.5  # half the warning time (RCM rule, see above)  # common practice, no source
+PESSIMISTIC_P = 0.05  # the forecast's "earliest": its 5 % point (trend.EARLIEST_P)
+
+# Why a filter's next reading falls where it does (the JSON's `next_reading.rule`).
+RULES = ("forecast", "service-life", "interval", "shift")
+
+
+@dataclass(frozen=True)
+class ReadGap:
+    """Hours from the last reading to the next, and the rule that set them."""
+
+    gap_h: float
+    rule: str  # one of RULES: the forecast or service life, or the bound that took over
+
+
+def bounded_gap(warning_h: float | None, every_h: float, shortest_h: float, rule: str) -> ReadGap:
+    """The gap after a reading, given the pessimistic warning time from that reading (hours
+    until the limit could be reached; None: nothing to say, read on the interval; zero or
+    less: it may be there already). every_h: the registered reading interval; shortest_h: the
+    plant's shortest interval. The registered interval wins over the shortest if they cross."""
+    if not (math.isfinite(every_h) and every_h > 0):
+        raise ValueError(f"a reading interval must be a positive number of hours, not {every_h}")
+    shortest_h = min(max(shortest_h, 0.0), every_h)
+    if warning_h is None or math.isnan(warning_h):
+        return ReadGap(every_h, "interval")
+    gap = READ_SHARE * warning_h
+    if gap >= every_h:
+        return ReadGap(every_h, "interval")
+    if gap <= shortest_h:
+        return ReadGap(shortest_h, "shift")
+    return ReadGap(gap, rule)
+
+
+def life_warning_h(shape: float, scale_h: float, age_h: float, p: float = PESSIMISTIC_P) -> float:
+    """Element hours after age_h by which a share p of the elements that lasted to age_h have
+    reached the limit (Weibull shape, scale in hours): S(age + w) / S(age) = 1 - p."""
+    if not (shape > 0 and scale_h > 0 and 0 < p < 1):
+        raise ValueError("a Weibull needs a positive shape and scale, and 0 < p < 1")
+    age_h = max(age_h, 0.0)
+    z = (age_h / scale_h) ** shape
+    return scale_h * (z - math.log1p(-p)) ** (1.0 / shape) - age_h
+
+
+def shortest_shift_h(starts: list[str]) -> float:
+    """The shortest shift of a pattern given as its 'HH:MM' starts (any order), in nominal
+    hours (a daylight-saving night is not counted); 24 for one shift or none."""
+    minutes = sorted({int(s[:2]) * 60 + int(s[3:5]) for s in starts})
+    if len(minutes) < 2:
+        return 24.0
+    steps = [b - a for a, b in zip(minutes, minutes[1:], strict=False)]
+    steps.append(minutes[0] + 1440 - minutes[-1])
+    return min(steps) / 60.0

@@ -1,0 +1,140 @@
+"""The next-reading time: the rule (store/forecast/readplan.py) and the status that carries it."""
+
+import json
+import math
+from datetime import UTC, datetime, timedelta
+
+import pytest
+from scipy import stats
+
+from store import record, views
+from store.db.book import open_book
+from store.forecast import readplan
+from store.health import status
+from store.ledger import register
+from store.ledger.entries import ElementChange, Reading
+from store.ledger.register import FilterPosition, Fluid, Technician, Unit
+from tests.kit.books import pace_book
+
+
+def test_half_the_warning_time_within_the_bounds():
+    # Reliability-centred maintenance: check at half the warning time (P-F interval)
+    # common practice, no source
+    assert readplan.bounded_gap(100.0, 168.0, 8.0, "forecast") == readplan.ReadGap(50.0, "forecast")
+    assert readplan.bounded_gap(1000.0, 168.0, 8.0, "forecast") == readplan.ReadGap(
+        168.0, "interval"
+    )
+    assert readplan.bounded_gap(10.0, 168.0, 8.0, "forecast") == readplan.ReadGap(8.0, "shift")
+    assert readplan.bounded_gap(-5.0, 168.0, 8.0, "forecast") == readplan.ReadGap(8.0, "shift")
+    assert readplan.bounded_gap(None, 168.0, 8.0, "forecast") == readplan.ReadGap(168.0, "interval")
+    # a registered interval shorter than a shift wins: never later than the interval
+    assert readplan.bounded_gap(3.0, 4.0, 8.0, "forecast") == readplan.ReadGap(4.0, "shift")
+    with pytest.raises(ValueError):
+        readplan.bounded_gap(10.0, 0.0, 8.0, "forecast")
+
+
+@pytest.mark.parametrize("shape, scale_h, age_h", [(2.5, 1000.0, 0.0), (2.5, 1000.0, 600.0),
+                                                   (1.0, 500.0, 300.0), (4.0, 2000.0, 1900.0)])  # fmt: skip
+def test_life_warning_is_the_conditional_five_percent_point(shape, scale_h, age_h):
+    w = readplan.life_warning_h(shape, scale_h, age_h)
+    # cross-check with scipy's Weibull: of the elements alive at age_h, 5 % trip by age_h + w
+    sf = stats.weibull_min(shape, scale=scale_h).sf
+    assert 1 - sf(age_h + w) / sf(age_h) == pytest.approx(0.05, rel=1e-9)
+    # the chance of tripping before the check after next (two gaps of w/2) is then 5 %
+    gap = readplan.bounded_gap(w, 1e9, 0.0, "service-life").gap_h
+    assert 1 - sf(age_h + 2 * gap) / sf(age_h) == pytest.approx(0.05, rel=1e-9)
+
+
+def test_shortest_shift_of_a_pattern():
+    # 3 x 8 h from 06:00, 2 x 12 h, an uneven pattern across midnight, one shift a day
+    assert readplan.shortest_shift_h(["06:00", "14:00", "22:00"]) == 8.0
+    assert readplan.shortest_shift_h(["19:00", "07:00"]) == 12.0
+    assert readplan.shortest_shift_h(["22:00", "06:00", "18:00"]) == 4.0
+    assert readplan.shortest_shift_h(["06:00"]) == 24.0
+    assert readplan.shortest_shift_h([]) == 24.0
+
+
+def _filter(watch, tag):
+    return next(f for f in watch.filters if f.filter == tag)
+
+
+def test_status_plans_the_next_reading_from_the_earliest_date(tmp_path):
+    book = pace_book(tmp_path, 1000.0)  # an element like its six forerunners, at 60 % of life
+    f = _filter(views.watch(book), "M2-RF")
+    assert f.due is not None and f.next_rule == "forecast"
+    gap_h = (f.next_reading - f.reading_at).total_seconds() / 3600
+    warning_h = (f.due.earliest - f.reading_at).total_seconds() / 3600
+    assert gap_h == pytest.approx(readplan.READ_SHARE * warning_h, abs=1 / 60)
+    assert 24.0 < gap_h < 17_520  # the floor (no shift pattern: a day) and the interval
+    # the reading-overdue flag: once the planned gap is passed by half again, not before
+    before = _filter(views.watch(book, as_of=f.reading_at + timedelta(hours=1.4 * gap_h)), "M2-RF")
+    after = _filter(views.watch(book, as_of=f.reading_at + timedelta(hours=1.6 * gap_h)), "M2-RF")
+    assert "reading-overdue" not in before.flags
+    assert "reading-overdue" in after.flags
+    # one documented key in the JSON
+    data = status.to_json(views.watch(book))
+    (row,) = data["filters"]
+    assert row["next_reading"]["rule"] == "forecast"
+    assert json.dumps(row["next_reading"])
+    book.close()
+
+
+def test_a_shift_pattern_sets_the_floor_and_refreshes_the_kept_rows(tmp_path):
+    book = pace_book(tmp_path, 1000.0)
+    last = _filter(views.watch(book), "M2-RF").reading_at
+    # an element loading faster than every earlier one: its earliest date is close
+    record_reading = Reading(filter="M2-RF", dp_bar=1.95, temp_c=50, by="AB",
+                             at=last + timedelta(hours=2))  # fmt: skip
+    record.log(book, record_reading)
+    f = _filter(views.watch(book), "M2-RF")
+    assert f.next_rule == "shift"  # 97.5 % of the limit: read next shift
+    assert f.next_reading - f.reading_at == timedelta(hours=24)
+    register.set_shifts(book, [("A", "06:00"), ("B", "14:00"), ("C", "22:00")], by="AB")
+    assert views.stale_count(book) == 1  # the kept row waits for a refresh
+    f = _filter(views.watch(book), "M2-RF")
+    assert f.next_reading - f.reading_at == timedelta(hours=8)
+    book.close()
+
+
+def test_a_new_element_without_readings_is_planned_from_earlier_lives(tmp_path):
+    book = pace_book(tmp_path, 1000.0)
+    now = book.now()
+    record.log(book, ElementChange(filter="M2-RF", reason="limit", by="AB", at=now))
+    f = _filter(views.watch(book), "M2-RF")
+    # no readings on the new element: the earlier lives plan it (service life), given age 0
+    assert f.next_rule == "service-life"
+    gap_h = (f.next_reading - now).total_seconds() / 3600
+    assert 0 < gap_h < 1000 and math.isfinite(gap_h)
+    book.close()
+
+
+def test_an_indicator_only_filter_is_planned_from_its_service_life(tmp_path):
+    t0 = datetime(2026, 1, 5, 6, 0, tzinfo=UTC)
+    book = open_book(tmp_path / "ind.db")
+    register.add(book, Technician(tag="AB"))
+    register.add(book, Fluid(tag="HV46", iso_vg=46))
+    register.add(book, Unit(tag="U1", fluid="HV46", normal_temp_c=50))
+    register.add(book, FilterPosition(tag="U1-PF", unit="U1", kind="pressure", limit_bar=2.0,
+                                      bypass_bar=3.0, gauge=False, reading_interval_h=2000))  # fmt: skip
+    # six earlier elements that tripped their indicator after 500-700 h (our own history)
+    t, entries = t0, []
+    for life_h in (520, 610, 700, 560, 650, 590):
+        entries.append(ElementChange(filter="U1-PF", reason="indicator", by="AB", at=t))
+        entries.append(Reading(filter="U1-PF", indicator="clean", by="AB",
+                               at=t + timedelta(hours=life_h / 2)))  # fmt: skip
+        entries.append(Reading(filter="U1-PF", indicator="dirty", by="AB",
+                               at=t + timedelta(hours=life_h - 1)))  # fmt: skip
+        t += timedelta(hours=life_h)
+    entries.append(ElementChange(filter="U1-PF", reason="indicator", by="AB", at=t))
+    entries.append(Reading(filter="U1-PF", indicator="clean", by="AB", at=t + timedelta(hours=300)))
+    record.log_many(book, entries)
+    book.set_setting("clock", (t + timedelta(hours=301)).strftime("%Y-%m-%dT%H:%M:%SZ"))
+    f = _filter(views.watch(book), "U1-PF")
+    assert f.next_rule == "service-life"
+    shape, scale_h = views.status_of(book, status.plant(book).contexts[0]).clock.life
+    gap_h = (f.next_reading - f.reading_at).total_seconds() / 3600
+    # scipy's Weibull: the chance of tripping before the check after next, from age 300 h
+    sf = stats.weibull_min(shape, scale=scale_h).sf
+    assert 1 - sf(300 + 2 * gap_h) / sf(300) == pytest.approx(0.05, abs=1e-4)
+    assert gap_h < 300  # well inside the 2000 h interval: the element is past half its life
+    book.close()

@@ -1,0 +1,306 @@
+"""The round: the filters to read this shift in walking order, read one after another.
+
+The cursor stands on the stop to read; the value goes in the line below the list and Enter
+saves it and moves on to the next stop not yet done. ctrl+o records a skip with its reason (a note
+on the unit, store/rounds.py `skip_note`). A reading that says the bypass is open asks first,
+with the caution, as the reading form does.
+"""
+
+from __future__ import annotations
+
+import sqlite3
+
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal
+from textual.widgets import DataTable, Header, Input, Static
+
+from store import record
+from store.base.errors import BookError
+from store.base.units import parse_pressure_bar, parse_temperature_c
+from store.ledger.entries import Reading
+from store.ledger.journal import BYPASS_OPEN, BYPASS_STEPS, bypass_head
+from store.ledger.register import FilterPosition, find
+from store.rounds import SKIP_REASONS, Round, Stop, plan_round, skip_note
+from tui.base.keys import bind
+from tui.base.workers import guarded
+from tui.forms.base import write_problem
+from tui.forms.confirm import ConfirmScreen
+from tui.screens.ask import AskScreen
+from tui.screens.common import BookScreen, Target
+from tui.widgets import fmt
+from tui.widgets.banner import DemoBanner
+from tui.widgets.keystrip import KeyStrip
+from tui.widgets.rowtable import RowTable
+
+COLUMNS = [
+    ("#", "n"),
+    ("Filter", "filter"),
+    ("Unit", "unit"),
+    ("Done", "done"),
+    ("Why", "why"),
+    ("Read", "read"),
+]
+INDICATOR_WORDS = {"clean": "clean", "dirty": "dirty", "bypass": "bypass", "in bypass": "bypass"}
+
+
+class RoundScreen(BookScreen):
+    HELP_NAME = "the round"
+    AUTO_FOCUS = "#round-value"
+    BINDINGS = [
+        bind("ctrl+o", "skip", "round-skip"),
+        bind("ctrl+n", "following", "round-next"),
+        bind("f5", "recompute", "recompute"),
+        Binding("up", "move(-1)", "up", show=False),
+        Binding("down", "move(1)", "down", show=False),
+    ]
+
+    def __init__(self) -> None:
+        super().__init__(id="round")
+        self.plan: Round | None = None
+        self.done: dict[str, str] = {}  # upper-case tag -> what was saved (or "skipped: ...")
+        self.following = False
+
+    def compose(self) -> ComposeResult:
+        yield Header(icon="≋")
+        yield DemoBanner()
+        yield Static("ROUND", id="sheet-title", classes="sheet-title", markup=False)
+        yield RowTable(id="round-stops", zebra_stripes=True, flexible="why")
+        yield Static("", id="round-what", markup=False)
+        with Horizontal(id="round-entry"):
+            yield Input(id="round-value", compact=True)
+            yield Input(id="round-temp", compact=True)
+            yield Input(id="round-hours", compact=True)
+        yield Static("", id="round-msg", classes="form-msg", markup=False)
+        yield KeyStrip()
+
+    def on_mount(self) -> None:
+        for inp in self.query(Input):
+            inp.cursor_blink = self.sb.cursor_blink
+
+    # ---- reading the round ----
+
+    @guarded
+    def reload(self) -> None:
+        if self.plan is not None:
+            return  # the round stays as it was planned; f5 plans it again
+        self.read_plan()
+
+    def read_plan(self) -> None:
+        following = self.following
+        self.read_in_thread(lambda b: plan_round(b, following=following), self.show_plan, "round")
+
+    def action_recompute(self) -> None:
+        self.plan = None
+        self.done = {}
+        self.read_plan()
+
+    def action_following(self) -> None:
+        self.following = not self.following
+        self.action_recompute()
+
+    def show_plan(self, plan: Round) -> None:
+        self.plan = plan
+        self.show_rows()
+        self.go_to(self.next_open(0))
+        self.loaded = True
+
+    def show_rows(self) -> None:
+        plan = self.plan
+        if plan is None:
+            return
+        local = self.sb.book.local_zone()
+        done = sum(1 for s in plan.stops if s.filter.upper() in self.done)
+        span = plan.span
+        self.query_one("#sheet-title", Static).update(
+            f"ROUND {span.name} {span.start.astimezone(local):%a %d %b %H:%M}–"
+            f"{span.end.astimezone(local):%H:%M}"
+            + (" (next shift)" if self.following else "")
+            + f" · {done} of {len(plan.stops)} done"
+        )
+        rows = []
+        for i, s in enumerate(plan.stops, 1):
+            cells = (str(i), s.filter, s.unit, self.done.get(s.filter.upper(), ""),
+                     s.why_text, " + ".join(s.reads))  # fmt: skip
+            rows.append((s.filter, tuple(fmt.shown(Text(c)) for c in cells)))
+        self.query_one(RowTable).show(COLUMNS, rows)
+        if not plan.stops:
+            self.query_one("#round-what", Static).update("Nothing to read this shift.")
+
+    # ---- where the cursor is ----
+
+    def stop(self) -> Stop | None:
+        table = self.query_one(RowTable)
+        if self.plan is None or not self.plan.stops or not table.row_count:
+            return None
+        return self.plan.stops[min(table.cursor_row, len(self.plan.stops) - 1)]
+
+    def target(self) -> Target | None:
+        s = self.stop()
+        return Target("filter", s.filter, s.unit) if s else None
+
+    def next_open(self, start: int) -> int | None:
+        stops = self.plan.stops if self.plan else ()
+        for i in [*range(start, len(stops)), *range(0, start)]:
+            if stops[i].filter.upper() not in self.done:
+                return i
+        return None
+
+    def go_to(self, index: int | None) -> None:
+        table = self.query_one(RowTable)
+        if index is not None and table.row_count:
+            table.move_cursor(row=index)
+        self.show_stop()
+
+    def action_move(self, step: int) -> None:
+        table = self.query_one(RowTable)
+        if table.row_count:
+            table.move_cursor(row=max(0, min(table.row_count - 1, table.cursor_row + step)))
+        self.show_stop()
+
+    def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
+        self.show_stop()
+
+    def show_stop(self) -> None:
+        s = self.stop()
+        what = self.query_one("#round-what", Static)
+        value, temp, hours = (self.query_one(f"#round-{n}", Input)
+                              for n in ("value", "temp", "hours"))  # fmt: skip
+        if s is None:
+            return
+        prefs = self.sb.prefs
+        local = self.sb.book.local_zone()
+        last = f" · last {s.last_reading.astimezone(local):%d %b %H:%M}" if s.last_reading else ""
+        what.update(f"{s.filter} on {s.unit} · read {' + '.join(s.reads)}{last}")
+        value.placeholder = (
+            f"ΔP {fmt.p_unit(prefs)}" if s.gauge else "indicator: clean/dirty/bypass"
+        )
+        temp.placeholder = f"temp {fmt.t_unit(prefs)}"
+        hours.placeholder = "hour meter h" if "hour meter" in s.reads else "(no hour meter)"
+        hours.disabled = "hour meter" not in s.reads
+        value.focus()
+
+    # ---- saving ----
+
+    def say(self, text: str, bad: bool = False) -> None:
+        msg = self.query_one("#round-msg", Static)
+        msg.update(text)
+        msg.set_class(bad, "-bad")
+
+    def on_input_submitted(self, event: Input.Submitted) -> None:
+        event.stop()
+        self.save_current()
+
+    def reading_of(self, s: Stop) -> Reading:
+        """The reading typed in for a stop; BookError with a plain line when it cannot be."""
+        prefs = self.sb.prefs
+        text = self.query_one("#round-value", Input).value.strip()
+        temp = self.query_one("#round-temp", Input).value.strip()
+        hours = self.query_one("#round-hours", Input).value.strip()
+        if not text:
+            raise BookError(
+                "type the ΔP" if s.gauge else "type the indicator: clean, dirty or bypass"
+            )
+        dp = indicator = None
+        if s.gauge:
+            dp = parse_pressure_bar(text, prefs.pressure)
+        elif text.lower() in INDICATOR_WORDS:
+            indicator = INDICATOR_WORDS[text.lower()]
+        else:
+            raise BookError("the indicator reads clean, dirty or bypass")
+        try:
+            hours_h = float(hours.replace(",", ".")) if hours else None
+        except ValueError:
+            raise BookError(f"'{hours[:20]}' is not an hour-meter reading") from None
+        return Reading(
+            filter=s.filter,
+            dp_bar=dp,
+            indicator=indicator,
+            temp_c=parse_temperature_c(temp, prefs.temperature) if temp else None,
+            hours=hours_h,
+            by=self.sb.tech,
+        )
+
+    def save_current(self) -> None:
+        s = self.stop()
+        if s is None:
+            return
+        try:
+            entry = self.reading_of(s)
+            position = find(self.sb.book, FilterPosition, s.filter)
+            head = bypass_head(
+                position, entry.dp_bar, entry.indicator, lambda bar: fmt.pressure(bar, self.sb.prefs)
+            ) if position else None  # fmt: skip
+        except (BookError, sqlite3.Error, OSError) as exc:
+            self.say("Not saved: " + write_problem(exc), bad=True)
+            return
+        if head is None:
+            self.write(s, entry)
+            return
+        caution = f"{head}: {BYPASS_OPEN.upper()}.\n" + "\n".join(f"• {x}" for x in BYPASS_STEPS)
+
+        def answered(yes: bool | None) -> None:
+            if yes:
+                self.write(s, entry)
+            else:
+                self.say("Not saved: put the value right, or Enter again to confirm.", bad=True)
+
+        self.app.push_screen(ConfirmScreen(f"Save this reading on {s.filter}?", caution), answered)
+
+    def write(self, s: Stop, entry: Reading) -> None:
+        try:
+            saved = record.log(self.sb.book, entry)
+        except (BookError, sqlite3.Error, OSError) as exc:
+            self.say("Not saved: " + write_problem(exc), bad=True)
+            return
+        self.sb.book_changed()
+        prefs = self.sb.prefs
+        shown = (
+            fmt.pressure(saved.dp_bar, prefs) if saved.dp_bar is not None else saved.indicator
+        ) or ""
+        self.done[s.filter.upper()] = f"✓ {shown}"
+        self.say(f"Saved {s.filter}: {shown}.")
+        self.advance()
+
+    def advance(self) -> None:
+        for n in ("value", "temp", "hours"):
+            self.query_one(f"#round-{n}", Input).value = ""
+        index = self.query_one(RowTable).cursor_row
+        self.show_rows()
+        nxt = self.next_open(index + 1 if self.plan and index + 1 < len(self.plan.stops) else 0)
+        if nxt is None:
+            self.say("Round done: every filter read or skipped.")
+        self.go_to(nxt if nxt is not None else index)
+
+    @guarded
+    def action_skip(self) -> None:
+        s = self.stop()
+        if s is None:
+            return
+
+        def accept(reason: str) -> str | None:
+            entry = skip_note(s, reason, self.sb.tech)
+            try:
+                record.log(self.sb.book, entry)
+            except (sqlite3.Error, OSError) as exc:
+                return write_problem(exc)
+            return None
+
+        def skipped(reason: str | None) -> None:
+            if reason is None:
+                return
+            self.sb.book_changed()
+            self.done[s.filter.upper()] = "skipped"
+            self.say(f"Skipped {s.filter}: {reason} (a note on {s.unit}).")
+            self.advance()
+
+        self.app.push_screen(
+            AskScreen(
+                f"Why is {s.filter} not read? (e.g. {', '.join(SKIP_REASONS[:3])})",
+                "",
+                accept,
+                blink=self.sb.cursor_blink,
+            ),
+            skipped,
+        )
