@@ -28,6 +28,7 @@ from store.db.connection import (
 )
 from store.db.places import backup_dir, latest_backup, rolling_backups
 from store.db.proof import header_findings, prove_file, read_only
+from store.db.targets import refuse_input_as_output
 
 DEFAULT_KEEP = 10
 KEEP_SETTING = "backup_keep"
@@ -84,7 +85,11 @@ def copy_to(conn: sqlite3.Connection, dest: Path) -> Path:
 def copy_holding_lock(conn: sqlite3.Connection, book_path: Path, dest: Path) -> Path:
     """`copy_to` while another connection holds the book's write lock: a save under way is
     waited for (busy timeout), saves meanwhile wait for the copy, and the copy holds every
-    save reported before it. A book this process cannot write is copied as it stands."""
+    save reported before it. A book this process cannot write is copied as it stands.
+    `dest` may not be the book, its companion files or backups, or any SQLite file
+    (`store.db.targets`)."""
+    if not Path(dest).is_dir():
+        refuse_input_as_output(Path(dest), Path(book_path), "the backup")
     if not writable(Path(book_path)):
         return copy_to(conn, dest)
     lock = connect(Path(book_path))

@@ -141,7 +141,7 @@ def checking(path: Path) -> sqlite3.Connection:
     it, but with `query_only` on (it writes nothing and fires no trigger). SQLite 3.40's
     integrity check leaves the CHECK constraints out on a connection opened read-only
     (measured: a row breaking a CHECK passes it there), so read-only is the fallback for a
-    write-protected file only, where `check_rows` tests the CHECKs row by row instead."""
+    write-protected file only, and there the CHECKs go untested."""
     try:
         conn = sqlite3.connect(_uri(path, "rw"), uri=True, isolation_level=None, timeout=10)
         conn.execute("PRAGMA trusted_schema = OFF")
