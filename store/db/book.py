@@ -192,6 +192,7 @@ def full_check(path: Path) -> list[str]:
         bad_rows,
         checking,
         header_findings,
+        history_findings,
         prove_connection,
         row_findings,
     )
@@ -216,7 +217,7 @@ def full_check(path: Path) -> list[str]:
                     tables = row_findings(found)
                     found = [f for f in found if not f.startswith(("CHECK ", "NOT NULL "))]
                     if not found:
-                        found = history_findings(conn, version)
+                        found = history_findings(conn)
                     if not found:
                         bad = {t: bad_rows(conn, t, version) for t in sorted(tables)}
                         voided = _voided(conn, bad.get("entries", []))
@@ -256,11 +257,6 @@ def _voided(conn: sqlite3.Connection, ids: list[str]) -> set[str]:
     marks = ", ".join("?" for _ in ids)
     rows = conn.execute(f"SELECT voids FROM entries WHERE voids IN ({marks})", ids).fetchall()
     return {r[0] for r in rows}
-
-
-def history_findings(conn: sqlite3.Connection, version: int) -> list[str]:
-    """The register history the file keeps (from schema 5): nothing to find before it."""
-    return []
 
 
 def migrate(conn: sqlite3.Connection, from_version: int) -> list[str]:

@@ -214,3 +214,39 @@ def bad_rows(conn: sqlite3.Connection, table: str, version: int, limit: int = 5)
         return found
     finally:
         probe.close()
+
+
+def _same_value(logged: str | None, current: object) -> bool:
+    if logged is None or current is None:
+        return logged is None and current is None
+    if str(current) == logged or (current in (0, 1) and logged == str(bool(current))):
+        return True
+    try:
+        a, b = float(logged), float(current)  # type: ignore[arg-type]
+    except (TypeError, ValueError):
+        return False
+    return abs(a - b) <= 1e-9 * max(1.0, abs(a), abs(b))
+
+
+def history_findings(conn: sqlite3.Connection, limit: int = 5) -> list[str]:
+    """Register rows whose value differs from the last value their history gives the
+    field: a change made past the history (before schema 5, or with its trigger off)."""
+    from store.db.schema import REGISTER_FIELDS  # the fields the history covers
+
+    found: list[str] = []
+    latest = conn.execute(
+        "SELECT tbl, tag, field, new FROM register_log WHERE rowid IN "
+        "(SELECT max(rowid) FROM register_log WHERE field <> '*' GROUP BY tbl, tag, field)"
+    ).fetchall()
+    for table, tag, field, new in latest:
+        if field not in REGISTER_FIELDS.get(table, ()):
+            continue
+        row = conn.execute(f'SELECT "{field}" FROM "{table}" WHERE tag = ?', [tag]).fetchone()
+        if row is not None and not _same_value(new, row[0]):
+            found.append(
+                f"{table} {tag}: {field} is {row[0]!r} but its history last gives {new!r} "
+                "(changed outside sumpbook)"
+            )
+            if len(found) >= limit:
+                break
+    return found
