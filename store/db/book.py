@@ -351,6 +351,16 @@ def open_book(
     try:
         if not new:
             version = check_header(conn, path, quick=False)
+            if not readonly and version > 0 and _rollback_mode(path):
+                # switching to WAL writes the header: not on a damaged file, nor on one whose
+                # tables are not ours (a copy from elsewhere, opened before it is checked)
+                deep_check(path)
+                wrong = schema_findings(conn, version, MIGRATIONS)
+                if wrong:
+                    raise NotALogbook(
+                        f"{path} does not hold what sumpbook made for schema {version} "
+                        f"({'; '.join(wrong[:3])}); it was left untouched; {backup_hint(path)}"
+                    )
         if version < SCHEMA_VERSION and readonly:
             raise BookError(
                 f"{path} is read-only and was written by an older sumpbook: copy it to a "
@@ -380,8 +390,6 @@ def open_book(
                 # schema 4 rebuilds schema 1's tables: a new file gives back their pages
                 conn.execute("VACUUM")
         if not readonly:
-            if not new and _rollback_mode(path):
-                deep_check(path)  # switching to WAL writes the header: not on a damaged file
             conn.execute("PRAGMA journal_mode = WAL")
         conn.execute("PRAGMA synchronous = FULL")
     except BaseException:

@@ -117,9 +117,50 @@ def prove_connection(conn: sqlite3.Connection) -> tuple[int, list[str]]:
     found = integrity_findings(conn)
     try:
         found += schema_findings(conn, version)
+        if not found:
+            found += text_findings(conn)
     except sqlite3.DatabaseError as exc:
         found.append(f"its schema cannot be read ({exc})")
     return version, found[:MAX_FINDINGS]
+
+
+def text_findings(conn: sqlite3.Connection, limit: int = 3) -> list[str]:
+    """Text values that are not UTF-8 (a flipped bit inside a text: the integrity check does
+    not look at what a text holds, and every reader would stop on it). Reads the text
+    columns of our tables as bytes; only the values that are not plain ASCII are decoded."""
+    tables = [
+        r[0]
+        for r in conn.execute(
+            "SELECT name FROM sqlite_master WHERE type = 'table' AND name NOT LIKE 'sqlite_%'"
+        )
+    ]
+    text_columns = {
+        table: [
+            r[1] for r in conn.execute(f'PRAGMA table_info("{table}")') if "TEXT" in r[2].upper()
+        ]
+        for table in tables
+    }
+    found: list[str] = []
+    before = conn.text_factory
+    conn.text_factory = bytes
+    try:
+        for table, columns in text_columns.items():
+            if not columns:
+                continue
+            names = ", ".join(f'"{c}"' for c in columns)
+            for row in conn.execute(f'SELECT {names} FROM "{table}"'):
+                for column, value in zip(columns, row, strict=True):
+                    if value.__class__ is bytes and not value.isascii():
+                        try:
+                            value.decode("utf-8")
+                        except UnicodeDecodeError:
+                            found.append(f"a text in {table}.{column} is not UTF-8 text")
+                            break
+                if len(found) >= limit:
+                    return found
+    finally:
+        conn.text_factory = before
+    return found
 
 
 def _uri(path: Path, mode: str) -> str:
