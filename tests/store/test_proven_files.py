@@ -209,3 +209,12 @@ def test_check_finds_a_trigger_made_outside_sumpbook(capsys, live):
     _edit(live, "CREATE TRIGGER zz AFTER INSERT ON entries BEGIN SELECT 1; END")
     code, _, err = run(capsys, "--db", str(live), "check")
     assert code == 2 and "'zz'" in err and "backup" in err
+
+
+def test_case5_advice_names_the_copy_a_restore_kept(capsys, live, tmp_path):
+    good = _backup(live, tmp_path, "good.db")
+    assert run(capsys, "--db", str(live), "restore", str(good))[0] == 0
+    kept = next(backup_dir(live).glob("*before-restore*"))
+    _edit(live, "CREATE TRIGGER zz AFTER INSERT ON entries BEGIN SELECT 1; END")
+    code, _, err = run(capsys, "--db", str(live), "check")
+    assert code == 2 and kept.name in err and "sumpbook restore" in err
