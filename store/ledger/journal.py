@@ -254,11 +254,17 @@ def count(book: Book) -> int:
 
 _FIELDS = tuple(dict.fromkeys(name for cls in KINDS.values() for name in entry_columns(cls)))
 _COLUMNS = ("kind", "at_utc", "logged_utc", *_FIELDS)
-# A row whose numbers are not numbers (stored past the schema's checks, by hand) reads back
+# A row whose numbers are not numbers or texts not texts (stored past the schema's checks, by
+# hand) reads back
 # with no time (`_SOUND_AT`): building it fails, so every reader notes it and skips it, at the
 # cost of a type test in SQLite rather than one per value in Python.
 _SOUND = " AND ".join(
-    f"typeof(e.{c}) IN ('real', 'integer', 'null')" for c in validate_value.ENTRY_NUMBERS
+    [f"typeof(e.{c}) IN ('real', 'integer', 'null')" for c in validate_value.ENTRY_NUMBERS]
+    + [
+        f"typeof(e.{c}) IN ('text', 'null')"
+        for c in _FIELDS
+        if c not in validate_value.ENTRY_NUMBERS and c != "id"
+    ]
 )
 _SOUND_AT = f"CASE WHEN {_SOUND} THEN e.at_utc END"
 _SELECT = (
@@ -299,7 +305,7 @@ def parse_stamp(text: str) -> datetime:
     if text.__class__ is str and len(text) == 20 and text[10] == "T" and text[19] == "Z":
         return _parse_iso(text)
     if text is None:  # `_SOUND_AT`: a number of the row is not a number
-        raise ValueError("a number in it is not a number (stored outside sumpbook)")
+        raise ValueError("a value in it is not of its kind (stored outside sumpbook)")
     return parse_utc(text)
 
 
