@@ -288,11 +288,14 @@ def migrate(conn: sqlite3.Connection, from_version: int) -> list[str]:
             )
         found = _quarantined(conn) - before
         wrong = schema_findings(conn, SCHEMA_VERSION, MIGRATIONS)
+        if not wrong and from_version > 0:  # the upgraded content, checked before it counts
+            wrong = [r[0] for r in conn.execute("PRAGMA quick_check(3)").fetchall()]
+            wrong = [] if wrong == ["ok"] else wrong
         if wrong:  # the steps did not make what this version makes: keep the file as it was
             conn.execute("ROLLBACK")
             raise BookError(
-                f"the upgrade did not give the schema this sumpbook makes ({'; '.join(wrong[:3])});"
-                " the file was left as it was"
+                f"the upgrade did not give a sound book of the schema this sumpbook makes "
+                f"({'; '.join(wrong[:3])}); the file was left as it was"
             )
         conn.execute("COMMIT")
     except BaseException:

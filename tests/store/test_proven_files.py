@@ -218,3 +218,33 @@ def test_case5_advice_names_the_copy_a_restore_kept(capsys, live, tmp_path):
     _edit(live, "CREATE TRIGGER zz AFTER INSERT ON entries BEGIN SELECT 1; END")
     code, _, err = run(capsys, "--db", str(live), "check")
     assert code == 2 and kept.name in err and "sumpbook restore" in err
+
+
+def test_an_upgrade_whose_result_does_not_check_out_leaves_the_file_as_it_was(
+    tmp_path, monkeypatch
+):
+    from store.base.errors import BookError
+    from store.db import schema
+    from store.db.book import open_book
+
+    path = tmp_path / "old.db"
+    conn = sqlite3.connect(path, isolation_level=None)
+    conn.executescript("\n".join(schema.MIGRATIONS))
+    conn.execute(f"PRAGMA application_id = {schema.APPLICATION_ID}")
+    conn.execute(f"PRAGMA user_version = {schema.SCHEMA_VERSION}")
+    conn.execute("INSERT INTO technicians (tag) VALUES ('AB')")
+    conn.close()
+    before = path.read_bytes()
+    # a next step that leaves a row breaking a CHECK (a lower-case tag) behind
+    steps = [
+        *schema.MIGRATIONS,
+        "PRAGMA ignore_check_constraints = ON;\n"
+        "INSERT INTO technicians (tag) VALUES ('zz');\n"
+        "PRAGMA ignore_check_constraints = OFF;",
+    ]
+    monkeypatch.setattr("store.db.book.MIGRATIONS", steps)
+    monkeypatch.setattr("store.db.book.SCHEMA_VERSION", len(steps))
+    monkeypatch.setattr("store.db.connection.SCHEMA_VERSION", len(steps))
+    with pytest.raises(BookError, match="did not give a sound book.*left as it was"):
+        open_book(path)
+    assert path.read_bytes() == before
