@@ -248,3 +248,11 @@ def test_an_upgrade_whose_result_does_not_check_out_leaves_the_file_as_it_was(
     with pytest.raises(BookError, match="did not give a sound book.*left as it was"):
         open_book(path)
     assert path.read_bytes() == before
+
+
+def test_a_restored_book_stays_in_wal_mode_after_its_last_connection_closes(capsys, live, tmp_path):
+    good = _backup(live, tmp_path, "good.db")  # backups are in rollback-journal mode
+    assert good.read_bytes()[18] == 1  # SQLite file format: byte 18 is 1 (rollback) or 2 (WAL)
+    assert run(capsys, "--db", str(live), "restore", str(good))[0] == 0
+    assert not Path(f"{live}-wal").exists()
+    assert live.read_bytes()[18] == 2
