@@ -171,10 +171,21 @@ def _uri(path: Path, mode: str) -> str:
 def read_only(path: Path) -> sqlite3.Connection:
     """A read-only connection that runs nothing of the file (no triggers can fire on a
     read-only connection; `trusted_schema` off keeps functions out of its views)."""
-    conn = sqlite3.connect(_uri(path, "ro"), uri=True, isolation_level=None, timeout=10)
-    conn.execute("PRAGMA trusted_schema = OFF")
-    conn.execute("PRAGMA query_only = ON")
-    return conn
+    for uri in (_uri(path, "ro"), _uri(path, "ro") + "&immutable=1"):
+        conn = sqlite3.connect(uri, uri=True, isolation_level=None, timeout=10)
+        try:
+            conn.execute("PRAGMA trusted_schema = OFF")
+            conn.execute("PRAGMA query_only = ON")
+            conn.execute("PRAGMA schema_version").fetchone()  # opens the file
+        except sqlite3.OperationalError:
+            # a WAL file in a write-protected folder (no -shm can be made there): read it
+            # as it stands
+            conn.close()
+            if "immutable" in uri:
+                raise
+            continue
+        return conn
+    raise AssertionError("unreachable")
 
 
 def checking(path: Path) -> sqlite3.Connection:
