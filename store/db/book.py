@@ -234,6 +234,12 @@ def full_check(path: Path) -> list[str]:
             )
     clear_damage(path)
     CHECKED.add(check_key(path))
+    if not writable(path):  # proof.checking fell back to a read-only connection
+        notes.append(
+            "the file is write-protected, so its CHECK constraints were not tested again "
+            "(SQLite skips them on a read-only connection); copy it somewhere writable to"
+            " test them"
+        )
     open_rows = []
     for table, keys in bad.items():
         for key in keys:
