@@ -33,7 +33,7 @@ class UnitError(BookError):
 
 def _key(unit: str, table: dict, kind: str, choices: tuple[str, ...]) -> str:
     key = unit.strip().lower().replace("°", "").replace(" ", "")
-    if key in ("kpa",) or key in table:
+    if key in table:  # each quantity only its own units: kPa is no temperature
         return key
     aliases = {
         "degc": "c",

@@ -99,7 +99,7 @@ def number(field: str, value: Any) -> float | int | None:
     too_low = value <= spec.low if spec.open_low else value < spec.low
     if too_low or value > spec.high:
         unit = f" {spec.unit}" if spec.unit else ""
-        raise BookError(f"{spec.label} {value:g}{unit} is outside its range, {spec.text()}")
+        raise BookError(f"{spec.label} {value:.12g}{unit} is outside its range, {spec.text()}")
     return int(value) if spec.whole else value
 
 

@@ -27,6 +27,8 @@ from store.db.connection import (
     write_error,
 )
 from store.db.places import backup_dir, latest_backup, rolling_backups
+from store.db.proof import header_findings, prove_file, read_only
+from store.db.targets import refuse_input_as_output
 
 DEFAULT_KEEP = 10
 KEEP_SETTING = "backup_keep"
@@ -83,7 +85,11 @@ def copy_to(conn: sqlite3.Connection, dest: Path) -> Path:
 def copy_holding_lock(conn: sqlite3.Connection, book_path: Path, dest: Path) -> Path:
     """`copy_to` while another connection holds the book's write lock: a save under way is
     waited for (busy timeout), saves meanwhile wait for the copy, and the copy holds every
-    save reported before it. A book this process cannot write is copied as it stands."""
+    save reported before it. A book this process cannot write is copied as it stands.
+    `dest` may not be the book, its companion files or backups, or any SQLite file
+    (`store.db.targets`)."""
+    if not Path(dest).is_dir():
+        refuse_input_as_output(Path(dest), Path(book_path), "the backup")
     if not writable(Path(book_path)):
         return copy_to(conn, dest)
     lock = connect(Path(book_path))
@@ -173,41 +179,156 @@ def _healthy(book_path: Path) -> bool:
     return True
 
 
+def side_copy(file: Path, book_path: Path, label: str | None = None) -> Path:
+    """Copy `file` to a side file beside the logbook through SQLite's backup API (pages
+    only: nothing of the file is run), in rollback-journal mode. The side file is what gets
+    proven and swapped in, so a file changed after its check cannot slip in."""
+    file, book_path = Path(file), Path(book_path)
+    label = label or str(file)
+    side = book_path.with_name(book_path.name + ".incoming")
+    remove_side_file(side)
+    found = header_findings(file)
+    if found:
+        raise NotALogbook(f"{label} is not a sound logbook: {found[0]}")
+    try:
+        source = read_only(file)
+        try:
+            target = sqlite3.connect(side, isolation_level=None)
+            try:
+                source.backup(target)
+                target.execute("PRAGMA journal_mode = DELETE")
+            finally:
+                target.close()
+        finally:
+            source.close()
+    except sqlite3.Error as exc:
+        remove_side_file(side)
+        raise NotALogbook(f"{label} cannot be read as a logbook ({exc})") from exc
+    except OSError as exc:
+        remove_side_file(side)
+        raise BookError(f"could not copy {label} beside {book_path}: {exc}") from exc
+    except BaseException:
+        remove_side_file(side)
+        raise
+    return side
+
+
+def remove_side_file(side: Path) -> None:
+    for suffix in ("", "-wal", "-shm", "-journal"):
+        try:
+            Path(f"{side}{suffix}").unlink(missing_ok=True)
+        except OSError:
+            pass
+
+
 def restore(file: Path, book_path: Path) -> Path | None:
-    """Replace the logbook at `book_path` by the checked copy `file`.
+    """Replace the logbook at `book_path` by the file `file`, proven good first.
 
-    The current logbook (if any) is first kept as `<name>-backups/<name>-before-restore-…db`,
-    which rolling backups never delete; returns that path (None when there was no logbook).
-
-    A healthy logbook is overwritten through the backup API, which holds the book's write
-    lock from its first step to its commit; the kept copy is read under that lock, after the
-    first step. So a save by another program either committed before (it is in the kept
-    copy), or waits for the lock (busy timeout) and lands in the restored book, or gives up
-    after the timeout and says nothing was saved: nothing reported saved is lost. A sumpbook
-    open on it at the same time sees the change whole. A damaged one is kept byte for byte
-    and replaced (a program that still has the old file open refuses to write to it, see
-    `Book.atomic`).
+    `file` is copied to a side file beside the book and that copy is proven
+    (`store.db.proof.prove_file`: header, application id, a known schema version, the whole
+    integrity check with every CHECK, the schema objects exactly as sumpbook makes them).
+    Only then is the current logbook (if any) kept as
+    `<name>-backups/<name>-before-restore-…db` (rolling backups never delete it; the restore
+    is refused when it cannot be kept) and the proven copy swapped in (`swap_in`). Any
+    refusal leaves the logbook as it was. Returns the kept copy (None when there was no
+    logbook).
     """
     file, book_path = Path(file), Path(book_path)
     if _same_file(file, book_path):
         raise BookError(f"{file} is the logbook itself: choose a backup copy to restore")
-    source = open_checked(file)
+    untouched = f"; {book_path} was left as it was"
     try:
-        kept = None
-        if book_path.exists() and book_path.stat().st_size > 0:
-            kept = backup_dir(book_path) / (f"{book_path.stem}-{KEPT_BEFORE_RESTORE}-{_stamp()}.db")
-            if _healthy(book_path):
-                _overwrite(source, book_path, kept)
-            else:
-                _keep_raw(book_path, kept)
-                _replace(source, book_path)
-        else:
-            _replace(source, book_path)
+        side = side_copy(file, book_path)
+    except BookError as exc:
+        raise type(exc)(f"{exc}{untouched}") from exc
+    try:
+        try:
+            prove_file(side, str(file))
+        except BookError as exc:
+            raise type(exc)(f"{exc}{untouched}") from exc
+        kept = swap_in(side, book_path, KEPT_BEFORE_RESTORE)
     finally:
-        source.close()
+        remove_side_file(side)
+    return kept
+
+
+def swap_in(side: Path, book_path: Path, why: str) -> Path | None:
+    """Put the proven file `side` in the place of the logbook at `book_path`.
+
+    The current logbook is first kept as `<name>-backups/<name>-<why>-<stamp>.db` (refused
+    with the book untouched when it cannot be). A healthy logbook in WAL mode (every book a
+    sumpbook has open) is overwritten through the backup API, one transaction that holds
+    the book's write lock from before the kept copy is read to its commit: a save by
+    another program either committed before (it is in the kept copy), or waits for the lock
+    (busy timeout) and lands in the restored book, or gives up and says nothing was saved.
+    A healthy book in rollback-journal mode (a copy no sumpbook has open) is kept while a
+    write lock is held, then overwritten. A damaged one is kept byte for byte and the side
+    file renamed over it (a program that still has the old file open refuses to write to
+    it, see `Book.atomic`). Returns the kept copy, or None when there was no logbook.
+    """
+    side, book_path = Path(side), Path(book_path)
+    kept = None
+    if book_path.exists() and book_path.stat().st_size > 0:
+        kept = backup_dir(book_path) / f"{book_path.stem}-{why}-{_stamp()}.db"
+        if _healthy(book_path):
+            source = read_only(side)  # proven: its pages are copied, nothing run
+            try:
+                if _wal_mode(book_path):
+                    _overwrite(source, book_path, kept)
+                else:
+                    _keep_locked(book_path, kept)
+                    _copy_into(source, book_path)
+            finally:
+                source.close()
+        else:
+            _keep_raw(book_path, kept)
+            _rename_over(side, book_path)
+    else:
+        _rename_over(side, book_path)
     forget_check(book_path)  # another file now: the next write checks it again
     clear_damage(book_path)
     return kept
+
+
+def _wal_mode(book_path: Path) -> bool:
+    """WAL mode: the header says so, or a -wal file stands beside it (SQLite then opens it
+    in WAL mode whatever the header says)."""
+    if Path(f"{book_path}-wal").exists():
+        return True
+    with open(book_path, "rb") as handle:
+        head = handle.read(20)
+    return len(head) == 20 and head[18] == 2
+
+
+def _keep_locked(book_path: Path, kept: Path) -> None:
+    """Keep a copy of the logbook while a write lock on it is held (rollback-journal mode:
+    readers may read beside a held RESERVED lock)."""
+    lock = connect(book_path)
+    try:
+        try:
+            lock.execute("BEGIN IMMEDIATE")
+        except sqlite3.Error as exc:
+            raise write_error(exc, book_path) from exc
+        try:
+            current = connect(book_path, readonly=True)
+            try:
+                copy_to(current, kept)
+            finally:
+                current.close()
+        finally:
+            lock.execute("ROLLBACK")
+    finally:
+        lock.close()
+
+
+def _copy_into(source: sqlite3.Connection, book_path: Path) -> None:
+    target = sqlite3.connect(book_path, timeout=BUSY_TIMEOUT_MS / 1000)
+    try:
+        source.backup(target)
+    except sqlite3.Error as exc:
+        raise write_error(exc, book_path) from exc
+    finally:
+        target.close()
 
 
 RESTORE_STEP_PAGES = 1  # the first step must not finish the copy: the kept copy comes after it
@@ -268,15 +389,12 @@ def _keep_raw(book_path: Path, kept: Path) -> None:
         raise BookError(f"could not keep the current logbook as {kept}: {exc}") from exc
 
 
-def _replace(source: sqlite3.Connection, book_path: Path) -> None:
-    """Write a fresh file from `source` and move it over `book_path` (no one may have it open)."""
-    tmp = book_path.with_name(book_path.name + ".restoring")
-    tmp.unlink(missing_ok=True)
-    copy_to(source, tmp)
+def _rename_over(side: Path, book_path: Path) -> None:
+    """Move the proven side file over `book_path` in one rename (no one may have it open)."""
     try:
-        for side in ("-wal", "-shm"):
-            Path(f"{book_path}{side}").unlink(missing_ok=True)
-        tmp.replace(book_path)
+        for suffix in ("-wal", "-shm", "-journal"):
+            Path(f"{book_path}{suffix}").unlink(missing_ok=True)
+        book_path.parent.mkdir(parents=True, exist_ok=True)
+        side.replace(book_path)
     except OSError as exc:
-        tmp.unlink(missing_ok=True)
         raise BookError(f"could not write {book_path}: {exc}") from exc

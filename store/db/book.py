@@ -30,6 +30,7 @@ from store.db.connection import (
     write_error,
 )
 from store.db.places import backup_hint
+from store.db.proof import schema_findings
 from store.db.schema import APPLICATION_ID, MIGRATIONS, SCHEMA_VERSION
 
 PLANT_SETTINGS = ("name", "timezone", "backup_keep")
@@ -176,33 +177,92 @@ class Book:
 # ---- damage found by a check ---------------------------------------------------------------------
 
 
-def full_check(path: Path) -> None:
-    """SQLite's integrity check of the whole file (every page, and every index against its
-    table: what the quick check leaves out), on a read-only connection of its own. Damage is
-    recorded beside the book (`damage_marker`: writes then refuse it) and raises
-    NotALogbook naming the latest backup; a pass removes an earlier record."""
+def full_check(path: Path) -> list[str]:
+    """Everything `store.db.proof` proves of a file coming in, on the live book: SQLite's
+    integrity check of the whole file (every page, every index against its table, every
+    CHECK), the schema objects exactly as this version makes them, and the register history
+    kept by the file (`history_findings`). Nothing is run of the file.
+
+    Damage (a page, an index, a schema object, the history) is recorded beside the book
+    (`damage_marker`: writes then refuse it) and raises NotALogbook saying what was found
+    and naming the latest backup to restore. Entry rows that break a CHECK are bad values,
+    not damage: readers skip them; those not voided yet raise BookError naming them (void
+    them), those voided already come back as notes. A pass removes an earlier record."""
+    from store.db.proof import (  # deferred: only `sumpbook check` and restores need it
+        bad_rows,
+        checking,
+        header_findings,
+        history_findings,
+        prove_connection,
+        row_findings,
+    )
+
     path = Path(path)
     if not path.is_file():
         raise BookError(f"no logbook at {path}")
+    notes: list[str] = []
     with no_new_side_files(path):
         inspect(path)
-        conn = _checking_connection(path, readonly=True)
-        try:
+        found = header_findings(path)
+        bad: dict[str, list[str]] = {}
+        voided: set[str] = set()
+        if not found:
             try:
-                rows = conn.execute("PRAGMA integrity_check(5)").fetchall()
-                found = "; ".join(str(r[0]) for r in rows)
-            except sqlite3.DatabaseError as exc:
-                found = str(exc)
-        finally:
-            conn.close()
-        if found != "ok":
-            record_damage(path, f"integrity check: {found}")
+                conn = checking(path)
+            except sqlite3.Error as exc:
+                found = [f"SQLite cannot open it ({exc})"]
+            else:
+                try:
+                    version, found = prove_connection(conn)
+                    tables = row_findings(found)
+                    found = [f for f in found if not f.startswith(("CHECK ", "NOT NULL "))]
+                    if not found:
+                        found = history_findings(conn)
+                    if not found:
+                        bad = {t: bad_rows(conn, t, version) for t in sorted(tables)}
+                        voided = _voided(conn, bad.get("entries", []))
+                except sqlite3.DatabaseError as exc:
+                    found = [f"SQLite cannot read it ({exc})"]
+                finally:
+                    conn.close()
+        if found:
+            what = "; ".join(found)
+            record_damage(path, f"full check: {what}")
             raise NotALogbook(
-                f"{path} is damaged (integrity check: {found}); nothing was written to it; "
-                f"{backup_hint(path)}"
+                f"{path} is damaged or was changed outside sumpbook ({what}); nothing was "
+                f"written to it; {backup_hint(path)}"
             )
     clear_damage(path)
     CHECKED.add(check_key(path))
+    if not writable(path):  # proof.checking fell back to a read-only connection
+        notes.append(
+            "the file is write-protected, so its CHECK constraints were not tested again "
+            "(SQLite skips them on a read-only connection); copy it somewhere writable to"
+            " test them"
+        )
+    open_rows = []
+    for table, keys in bad.items():
+        for key in keys:
+            if table == "entries" and key in voided:
+                notes.append(f"entry {key} breaks a check of the book; it is voided and left out")
+            else:
+                open_rows.append(f"{table} row {key}")
+    if open_rows:
+        raise BookError(
+            f"{path} holds rows that break the book's checks (made outside sumpbook): "
+            + ", ".join(open_rows)
+            + "; listings leave them out; void an entry with 'sumpbook log void ID --reason "
+            "...', or restore a backup (" + backup_hint(path) + ")"
+        )
+    return notes
+
+
+def _voided(conn: sqlite3.Connection, ids: list[str]) -> set[str]:
+    if not ids:
+        return set()
+    marks = ", ".join("?" for _ in ids)
+    rows = conn.execute(f"SELECT voids FROM entries WHERE voids IN ({marks})", ids).fetchall()
+    return {r[0] for r in rows}
 
 
 def migrate(conn: sqlite3.Connection, from_version: int) -> list[str]:
@@ -233,6 +293,16 @@ def migrate(conn: sqlite3.Connection, from_version: int) -> list[str]:
                 f"{rowid} -> {parent}); the file was left as it was"
             )
         found = _quarantined(conn) - before
+        wrong = schema_findings(conn, SCHEMA_VERSION, MIGRATIONS)
+        if not wrong and from_version > 0:  # the upgraded content, checked before it counts
+            wrong = [r[0] for r in conn.execute("PRAGMA quick_check(3)").fetchall()]
+            wrong = [] if wrong == ["ok"] else wrong
+        if wrong:  # the steps did not make what this version makes: keep the file as it was
+            conn.execute("ROLLBACK")
+            raise BookError(
+                f"the upgrade did not give a sound book of the schema this sumpbook makes "
+                f"({'; '.join(wrong[:3])}); the file was left as it was"
+            )
         conn.execute("COMMIT")
     except BaseException:
         if conn.in_transaction:
@@ -290,6 +360,16 @@ def open_book(
     try:
         if not new:
             version = check_header(conn, path, quick=False)
+            if not readonly and version > 0 and _rollback_mode(path):
+                # switching to WAL writes the header: not on a damaged file, nor on one whose
+                # tables are not ours (a copy from elsewhere, opened before it is checked)
+                deep_check(path)
+                wrong = schema_findings(conn, version, MIGRATIONS)
+                if wrong:
+                    raise NotALogbook(
+                        f"{path} does not hold what sumpbook made for schema {version} "
+                        f"({'; '.join(wrong[:3])}); it was left untouched; {backup_hint(path)}"
+                    )
         if version < SCHEMA_VERSION and readonly:
             raise BookError(
                 f"{path} is read-only and was written by an older sumpbook: copy it to a "
@@ -301,6 +381,13 @@ def open_book(
             conn.execute("PRAGMA journal_mode = WAL")
         if version < SCHEMA_VERSION:
             if version > 0:
+                wrong = schema_findings(conn, version, MIGRATIONS)
+                if wrong:
+                    raise NotALogbook(
+                        f"{path} says schema {version} but does not hold what sumpbook made for "
+                        f"it ({'; '.join(wrong[:3])}): it was not upgraded and was left as it "
+                        f"was; {backup_hint(path)}"
+                    )
                 backup_before_migration(conn, path, version)
             try:
                 notices = migrate(conn, version)
@@ -327,6 +414,19 @@ def open_book(
         inode=file_id(path),
         clock=clock or utc_now,
     )
+
+
+def _rollback_mode(path: Path) -> bool:
+    """In rollback-journal mode: no -wal beside it (SQLite opens a file with one in WAL mode
+    whatever its header says) and the header says so."""
+    if Path(f"{path}-wal").exists():
+        return False
+    try:
+        with open(path, "rb") as handle:
+            head = handle.read(20)
+    except OSError:
+        return False
+    return len(head) == 20 and head[18] == 1
 
 
 def inspect(path: Path, readonly: bool = True) -> int:

@@ -204,6 +204,11 @@ def check_header(conn: sqlite3.Connection, path: Path, quick: bool = True) -> in
         raise NotALogbook(f"{path} is not a sumpbook logbook (it is some other SQLite file)")
     if ok != "ok":
         raise NotALogbook(f"{path} is damaged (quick check: {ok})")
+    if version < 1 and not blank:  # tables but no version: nothing sumpbook writes
+        raise NotALogbook(
+            f"{path} holds tables but schema version {version}: it is not a logbook this "
+            "sumpbook made, or its header was damaged"
+        )
     if version > SCHEMA_VERSION:
         raise TooNew(
             f"{path} was written by a newer sumpbook (schema {version}, this one knows "

@@ -30,10 +30,23 @@ def latest_backup(book_path: Path) -> Path | None:
     return copies[-1] if copies else None
 
 
+def _kept_copies(book_path: Path) -> list[Path]:
+    """Copies kept by a restore or a demo over the book, oldest first (by their stamp)."""
+    folder = backup_dir(book_path)
+    if not folder.is_dir():
+        return []
+    pattern = re.compile(rf"^{re.escape(book_path.stem)}-before-[\w-]+-(\d{{8}}T\d{{12}}Z)\.db$")
+    found = [(m.group(1), p) for p in folder.iterdir() if (m := pattern.match(p.name))]
+    return [p for _, p in sorted(found)]
+
+
 def backup_hint(path: Path) -> str:
     """Where the newest automatic backup of `path` is, as advice to restore it."""
     latest = latest_backup(path)
     if latest is None:
+        kept = _kept_copies(Path(path))
+        if kept:  # a copy kept by a restore or a demo over the book
+            return f"the latest kept copy is {kept[-1]}: sumpbook restore '{kept[-1]}'"
         return f"no automatic backup was found beside it (in {path.parent})"
     return f"the latest backup is {latest}: sumpbook restore '{latest}'"
 

@@ -470,6 +470,101 @@ UPDATE status_cache SET stale = 1 WHERE (SELECT count(*) FROM quarantine) > 0;""
 
 V4 = _v4()
 
+# ---- version 5: the register history kept by the file ----------------------------------------
+# A change of a register row is written to `register_log` by the file itself (a trigger per
+# register table, one history row per field that moved), so a change made by any program
+# leaves its line; the history refuses UPDATE, DELETE and an insert over an existing id
+# (INSERT OR REPLACE deletes without firing a delete trigger). Who changed it and when come
+# from `register_editor`, the one row sumpbook writes inside the change's transaction (its
+# clock, its technician) and removes again; a change made outside sumpbook is logged at
+# SQLite's clock, by '(outside sumpbook)'. Adding a record and the shift pattern stay logged
+# by sumpbook (merge copies another book's history whole).
+REGISTER_FIELDS = {
+    "technicians": ("name", "active"),
+    "fluids": ("name", "iso_vg", "nu40_cst", "nu100_cst", "vi", "density_kg_l"),
+    "units": (
+        "name",
+        "area",
+        "reservoir_l",
+        "fluid",
+        "normal_temp_c",
+        "max_temp_c",
+        "coldest_start_c",
+        "hour_meter",
+        "target_code",
+    ),  # fmt: skip
+    "filters": (
+        "unit",
+        "kind",
+        "element",
+        "rating_um",
+        "rating_basis",
+        "beta_ratio",
+        "bypass_bar",
+        "limit_bar",
+        "clean_bar",
+        "rated_flow_lpm",
+        "normal_flow_lpm",
+        "gauge",
+        "reading_interval_h",
+    ),  # fmt: skip
+    "breathers": ("unit", "kind", "rating_um", "swap_interval_d"),
+}
+OUTSIDE = "(outside sumpbook)"
+_NEW_UUID = (
+    "lower(hex(randomblob(4)) || '-' || hex(randomblob(2)) || '-4' || "
+    "substr(hex(randomblob(2)), 2) || '-' || substr('89ab', 1 + abs(random() % 4), 1) || "
+    "substr(hex(randomblob(2)), 2) || '-' || hex(randomblob(6)))"
+)
+
+
+def _as_text(row: str, column: str) -> str:
+    """A value as sumpbook wrote it into the history before schema 5 (Python's str())."""
+    if column == "active":
+        return f"CASE {row}.{column} WHEN 1 THEN 'True' WHEN 0 THEN 'False' END"
+    return f"CAST({row}.{column} AS TEXT)"
+
+
+def _v5() -> str:
+    parts = [
+        """CREATE TABLE register_editor (
+    one INTEGER PRIMARY KEY CHECK (one = 1),
+    by TEXT NOT NULL,
+    at_utc TEXT NOT NULL
+);
+CREATE TRIGGER register_log_no_update BEFORE UPDATE ON register_log
+    BEGIN SELECT RAISE(ABORT, 'the register history is append-only'); END;
+CREATE TRIGGER register_log_no_delete BEFORE DELETE ON register_log
+    BEGIN SELECT RAISE(ABORT, 'the register history is append-only'); END;
+CREATE TRIGGER register_log_no_replace BEFORE INSERT ON register_log
+    WHEN EXISTS (SELECT 1 FROM register_log WHERE id = NEW.id)
+    BEGIN SELECT RAISE(ABORT, 'a history line with this id exists: the history is append-only'); END;"""
+    ]
+    for table, columns in REGISTER_FIELDS.items():
+        moved = "\n        UNION ALL ".join(
+            f"SELECT '{c}' AS field, {_as_text('OLD', c)} AS old, {_as_text('NEW', c)} AS new "
+            f"WHERE OLD.{c} IS NOT NEW.{c}"
+            for c in columns
+        )
+        parts.append(
+            f"""CREATE TRIGGER {table}_history AFTER UPDATE ON {table}
+BEGIN
+    INSERT INTO register_log (id, at_utc, by, tbl, tag, field, old, new)
+    SELECT {_NEW_UUID},
+        coalesce((SELECT at_utc FROM register_editor),
+                 strftime('%Y-%m-%dT%H:%M:%SZ', 'now')),
+        coalesce((SELECT by FROM register_editor), '{OUTSIDE}'),
+        '{table}', NEW.tag, moved.field, moved.old, moved.new
+    FROM (
+        {moved}
+    ) AS moved;
+END;"""
+        )
+    return "\n".join(parts)
+
+
+V5 = _v5()
+
 # One SQL script per schema version, in order. Never edit a released step: add one.
-MIGRATIONS: list[str] = [V1, V2, V3, V4]
+MIGRATIONS: list[str] = [V1, V2, V3, V4, V5]
 SCHEMA_VERSION = len(MIGRATIONS)

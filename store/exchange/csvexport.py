@@ -36,6 +36,7 @@ from store.base.prefs import Prefs
 from store.base.timeutil import format_utc, iso_local, shift_at
 from store.base.units import from_bar, pressure_key, temperature_key, to_bar
 from store.db.book import Book
+from store.db.targets import refuse_input_as_output
 from store.exchange.csvcolumns import (
     COLUMNS,
     FORMULA_START,
@@ -451,6 +452,7 @@ def export_file(
     """
     dest = Path(dest)
     refuse_odd_destination(dest)
+    refuse_input_as_output(dest, book.path, "the export")
     part = dest.with_name(dest.name + ".part")
     try:
         refuse_odd_destination(part)

@@ -15,7 +15,7 @@ import csv
 import io
 import uuid
 from dataclasses import dataclass, fields, replace
-from datetime import tzinfo
+from datetime import UTC, datetime, tzinfo
 from typing import Any
 
 from store import record
@@ -218,12 +218,14 @@ def import_csv(book: Book, data: bytes, local: tzinfo) -> ImportResult:
     try:
         with book.atomic():
             for line, entry in entries:
-                if entry.id and _exists(book, entry.id):
+                if not entry.id:
+                    entry = replace(entry, id=content_id(entry))
+                if _exists(book, entry.id):
                     skipped += 1
                     continue
                 try:
                     entry = validate(book, entry, now)
-                    entry = replace(entry, id=entry.id or str(uuid.uuid4()), logged=now)
+                    entry = replace(entry, logged=now)
                     insert(book, entry)
                     written.append(entry)
                     added += 1
@@ -240,6 +242,25 @@ def import_csv(book: Book, data: bytes, local: tzinfo) -> ImportResult:
         shown = lines[:MAX_PROBLEMS_SHOWN] + ([f"… and {extra} more"] if extra > 0 else [])
         raise BookError("nothing imported; " + "; ".join(shown))
     return ImportResult(added, skipped)
+
+
+# A row with no id gets one derived from what it says (README "Your data"): the same row
+# imported again finds its entry and adds nothing. Two rows alike in every cell are one entry.
+CONTENT_NAMESPACE = uuid.UUID("5d0e7a52-3c1b-4f0e-9a57-2f6b1c0d4e20")
+
+
+def content_id(entry: Entry) -> str:
+    """A UUID (version 5) of the entry's kind and values as read from the row: its time in
+    UTC, who, the target and every value in canonical units, the note."""
+    parts = [entry.kind]
+    for f in fields(entry):
+        if f.name in ("id", "logged", "voided_by"):
+            continue
+        value = getattr(entry, f.name)
+        if isinstance(value, datetime):
+            value = value.astimezone(UTC).isoformat()
+        parts.append(f"{f.name}={value!r}")
+    return str(uuid.uuid5(CONTENT_NAMESPACE, "\x1f".join(parts)))
 
 
 class _Rejected(Exception):

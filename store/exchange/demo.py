@@ -10,7 +10,9 @@ from pathlib import Path
 
 from store.base.errors import BookError
 from store.base.session import Clock
+from store.db.backup import remove_side_file, swap_in
 from store.db.book import Book, open_book
+from store.db.proof import prove_file
 
 # At the top of a checkout (editable install), or inside the package (wheel install).
 SQL_PATH = Path(__file__).resolve().parents[2] / "demo.db.sql"
@@ -37,25 +39,39 @@ def load_sql(book: Book, sql: str) -> None:
 
 
 def create_demo(path: Path, force: bool = False, clock: Clock | None = None) -> Book:
-    """Write the demo plant to `path`; an existing logbook is kept unless `force`."""
+    """Write the demo plant to `path`. An existing logbook is kept unless `force`; with it,
+    the demo is built beside the book, proven like a restore (`store.db.proof`), the book
+    kept as `<name>-backups/<name>-before-demo-…db` and the demo swapped in
+    (`store.db.backup.swap_in`); any failure leaves the book as it was."""
     path = Path(path)
-    if path.exists() and path.stat().st_size > 0:
-        if not force:
-            raise BookError(f"{path} exists already: add --force to replace it with the demo")
-        for suffix in ("", "-wal", "-shm"):
-            Path(str(path) + suffix).unlink(missing_ok=True)
+    existing = path.exists() and path.stat().st_size > 0
+    if existing and not force:
+        raise BookError(f"{path} exists already: add --force to replace it with the demo")
     sql = demo_sql()
     tmp = path.with_name(path.name + ".loading")
-    for suffix in ("", "-wal", "-shm"):
-        Path(str(tmp) + suffix).unlink(missing_ok=True)
-    book = open_book(tmp)
+    remove_side_file(tmp)
+    kept = None
     try:
-        load_sql(book, sql)
-        book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+        book = open_book(tmp)
+        try:
+            load_sql(book, sql)
+            book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+            book.conn.execute("PRAGMA journal_mode = DELETE")
+        finally:
+            book.close()
+        if existing:
+            prove_file(tmp, "the demo plant built beside it")
+            kept = swap_in(tmp, path, "before-demo")
+        else:
+            for suffix in ("-wal", "-shm", "-journal"):
+                Path(str(path) + suffix).unlink(missing_ok=True)
+            os.replace(tmp, path)
     finally:
-        book.close()
-    os.replace(tmp, path)
-    return open_book(path, clock=clock)
+        remove_side_file(tmp)
+    book = open_book(path, clock=clock)
+    if kept is not None:
+        book.notices.append(f"the logbook that was there is kept as {kept}")
+    return book
 
 
 THROWAWAY_PREFIX = "sumpbook-throwaway-"  # the temporary folders of throw-away books

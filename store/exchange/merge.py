@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import sqlite3
 import tempfile
+import time
 from collections import defaultdict
 from collections.abc import Iterable
 from dataclasses import dataclass, field
@@ -25,9 +26,11 @@ from store import record
 from store.base import validate
 from store.base.errors import BookError
 from store.base.timeutil import MAX_AHEAD, format_utc
-from store.db.backup import copy_to, open_checked
+from store.db.backup import copy_to, side_copy
 from store.db.book import Book, open_book
+from store.db.proof import prove_file, read_only
 from store.db.schema import SCHEMA_VERSION
+from store.ledger import journal
 from store.ledger.entries import from_row
 from store.ledger.register import BOOL_FIELDS, TABLES, WHAT, _check
 
@@ -171,21 +174,55 @@ def merge(book: Book, other_path: Path) -> MergeReport:
         raise BookError(f"{other_path} is this logbook itself: choose the other laptop's file")
     if book.readonly:
         raise BookError(f"{book.path} is read-only: nothing can be merged into it")
-    conn = open_checked(other_path)
     notices: list[str] = []
-    try:
-        version = conn.execute("PRAGMA user_version").fetchone()[0]
-        if version < SCHEMA_VERSION:
-            snapshot = _read_upgraded(conn, notices)
-        else:
-            snapshot = _read(conn)
-    finally:
-        conn.close()
+    snapshot = _read_source(other_path, book.path, notices)
     report = MergeReport(other=other_path)
     report.conflicts.extend(f"the other book: {notice}" for notice in notices)
     with book.atomic():
         _Merger(book, snapshot, report).run()
     return report
+
+
+READ_LIMIT_S = 60.0  # reading the other book (its copy, proven first) stops after this
+
+
+def _read_source(other_path: Path, book_path: Path, notices: list[str]) -> _Snapshot:
+    """The other book, read from a copy made through the backup API (pages only) into a
+    temporary folder and proven there (`store.db.proof`: header, application id, known
+    version, integrity, schema objects exactly as sumpbook makes them; rows breaking a
+    CHECK are let through, each row is checked below). Only its base tables are read, on a
+    read-only connection, within READ_LIMIT_S. A file that fails is named as the source:
+    nothing was merged, this book is as it was."""
+    untouched = f"; nothing was merged, {book_path} was left as it was"
+    with tempfile.TemporaryDirectory(prefix="sumpbook-merge-") as folder:
+        try:
+            side = side_copy(other_path, Path(folder) / "other.db", str(other_path))
+            version = prove_file(side, str(other_path), rows_ok=True)
+        except BookError as exc:
+            raise type(exc)(f"{exc}{untouched}") from exc
+        conn = read_only(side)
+        deadline = time.monotonic() + READ_LIMIT_S
+        conn.set_progress_handler(lambda: time.monotonic() > deadline, 100_000)
+        try:
+            if version < SCHEMA_VERSION:
+                return _read_upgraded(conn, notices)
+            return _read(conn)
+        except BookError as exc:  # an older book's upgrade of the copy refused it
+            raise type(exc)(
+                f"{other_path} could not be merged: {str(exc).replace(str(side), 'its copy')}"
+                f"{untouched}"
+            ) from exc
+        except (sqlite3.Error, UnicodeDecodeError, KeyError, TypeError) as exc:
+            why = (
+                f"reading it took over {READ_LIMIT_S:g} s"
+                if time.monotonic() > deadline
+                else f"{type(exc).__name__}: {validate.one_line(str(exc), 120)}"
+            )
+            raise BookError(
+                f"{other_path} could not be read as a logbook ({why}){untouched}"
+            ) from exc
+        finally:
+            conn.close()
 
 
 def _read_upgraded(conn: sqlite3.Connection, notices: list[str]) -> _Snapshot:
@@ -266,7 +303,14 @@ class _Merger:
                         f"{WHAT[clash]} {tag}; not brought in"
                     )
                     continue
-                self.db[table].insert({c: theirs.get(c) for c in columns})
+                refused = self._insert(table, [{c: theirs.get(c) for c in columns}])
+                if refused:
+                    self.conflicting.add((table, tag.upper()))
+                    self.report.conflicts.append(
+                        f"{what} {tag} not brought in: this book refuses it "
+                        f"({validate.one_line(refused[0][1], 120)})"
+                    )
+                    continue
                 self.report.register_added.append(f"{what} {tag}")
                 continue
             differences = [
@@ -362,8 +406,35 @@ class _Merger:
             if exists:
                 continue
             new.append({c: row.get(c) for c in columns})
-        self.db["register_log"].insert_all(new, batch_size=BATCH_ROWS)
-        self.report.log_added += len(new)
+        refused = self._insert("register_log", new)
+        self.log_held += len(refused)
+        self.report.log_added += len(new) - len(refused)
+
+    def _insert(self, table: str, rows: list[dict[str, Any]]) -> list[tuple[dict[str, Any], str]]:
+        """Insert `rows` into `table`; a row the file refuses (a CHECK, a trigger) is held
+        back, never the merge: the rows go in batches, and a batch the file refuses is
+        undone and tried row by row, each in a savepoint. Returns (row, why) of those held."""
+        if not rows:
+            return []
+        self.conn.execute("SAVEPOINT merge_rows")
+        try:
+            self.db[table].insert_all(rows, batch_size=BATCH_ROWS)
+        except sqlite3.IntegrityError:
+            self.conn.execute("ROLLBACK TO merge_rows")
+        else:
+            self.conn.execute("RELEASE merge_rows")
+            return []
+        refused: list[tuple[dict[str, Any], str]] = []
+        for row in rows:
+            self.conn.execute("SAVEPOINT merge_row")
+            try:
+                self.db[table].insert(row)
+            except sqlite3.IntegrityError as exc:
+                self.conn.execute("ROLLBACK TO merge_row")
+                refused.append((row, str(exc)))
+            self.conn.execute("RELEASE merge_row")
+        self.conn.execute("RELEASE merge_rows")
+        return refused
 
     # ---- entries --------------------------------------------------------------------------------
 
@@ -375,11 +446,10 @@ class _Merger:
         columns = self._columns("entries")
         latest = format_utc(self.book.now() + MAX_AHEAD)
         pending: list[dict[str, Any]] = []
-        table = self.db["entries"]
         touched: dict[tuple[Any, ...], dict[str, Any]] = {}
         for theirs in self.other.entries:
             if theirs.get("voids") is not None and pending:
-                table.insert_all(pending, batch_size=BATCH_ROWS)
+                self._insert_entries(pending)
                 pending = []
             problem = validate.entry_row_problem(theirs)
             if problem:
@@ -396,15 +466,48 @@ class _Merger:
                         f"entry {theirs['id'][:8]} differs between the books; this book's kept"
                     )
                 continue
-            reason = self._why_not(theirs, latest)
+            reason = self._why_not(theirs, latest) or self._refused_here(theirs)
             if reason:
                 self.left_out[reason].append(theirs["id"])
                 continue
             pending.append({c: theirs.get(c) for c in columns})
             self.report.entries_added += 1
             touched[self._target(theirs)] = theirs
-        table.insert_all(pending, batch_size=BATCH_ROWS)
+        self._insert_entries(pending)
         self._after_write(touched.values())
+
+    def _insert_entries(self, rows: list[dict[str, Any]]) -> None:
+        for row, why in self._insert("entries", rows):
+            self.left_out[f"this book refuses them ({validate.one_line(why, 120)})"].append(
+                validate.one_line(str(row.get("id")), 36)
+            )
+            self.report.entries_added -= 1
+
+    def _refused_here(self, row: dict[str, Any]) -> str | None:
+        """What the command line would refuse in this entry, given this book's register: the
+        same checks (`journal.validate`), the cross-field ones included (a code that does not
+        match its counts, counts rising with particle size, a filter filed under another
+        unit). A technician marked inactive since is no reason: the entry is history."""
+        if row.get("voids") is not None:
+            return None  # checked against the entries before it (`_why_not`)
+        try:
+            entry = from_row(row)
+        except (ValueError, TypeError, KeyError, OverflowError) as exc:
+            return f"it cannot be read as an entry ({validate.one_line(str(exc), 80)})"
+        try:
+            checked = journal.validate(self.book, entry, self.book.now() + MAX_AHEAD)
+        except BookError as exc:
+            if "inactive" in str(exc):
+                return None
+            return f"the command line refuses them here ({validate.one_line(str(exc), 120)})"
+        unit = row.get("unit")
+        if checked.unit and unit and str(unit).upper() != str(checked.unit).upper():
+            target = row.get("filter") or row.get("breather")
+            return (
+                f"filed under unit {validate.one_line(str(unit), 20)}, but {target} is on unit "
+                f"{checked.unit} here"
+            )
+        return None
 
     def _target(self, entry: dict[str, Any]) -> tuple[Any, ...]:
         """What an entry is about (a void: what the entry it voids is about)."""

@@ -1,7 +1,9 @@
 """The register: units, fluids, filter positions, breathers, technicians, shifts.
 
 Register rows may change (limits get adjusted), but every change is recorded in
-`register_log` (who, when, old -> new), because limits drive the predictions.
+`register_log` (who, when, old -> new), because limits drive the predictions: a change of a
+field by the file itself (schema 5 triggers, whoever made it), an added record and the shift
+pattern here. The history refuses to be edited or deleted.
 """
 
 from __future__ import annotations
@@ -335,6 +337,12 @@ def update(book: Book, cls: type[R], tag: str, changes: dict[str, Any], by: str 
     moved = [n for n in changes if getattr(current, n) != getattr(updated, n)]
     with book.atomic():
         if moved:  # one statement: the schema checks the fields together (limit < bypass)
+            # the file logs each moved field itself (schema 5, `{table}_history`), as by and
+            # at the time this row of `register_editor` says
+            book.conn.execute(
+                "INSERT OR REPLACE INTO register_editor (one, by, at_utc) VALUES (1, ?, ?)",
+                [by, format_utc(book.clock())],
+            )
             try:
                 book.conn.execute(
                     f"UPDATE {table} SET {', '.join(f'{n} = ?' for n in moved)} WHERE tag = ?",
@@ -342,10 +350,8 @@ def update(book: Book, cls: type[R], tag: str, changes: dict[str, Any], by: str 
                 )
             except sqlite3.IntegrityError as exc:  # the schema's last line held
                 raise BookError(f"cannot change {current.tag}: {exc}") from exc
-        for name in moved:
-            _log_change(
-                book, table, current.tag, name, getattr(current, name), getattr(updated, name), by
-            )
+            book.conn.execute("DELETE FROM register_editor")
+            _mark_stale(book, table, current.tag)
     return updated
 
 

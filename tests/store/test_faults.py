@@ -69,7 +69,8 @@ def test_a_full_disk_rejects_a_whole_batch(book):
             book,
             (
                 "time,kind,target,by,note\n"
-                + "2026-01-05T07:00Z,note,P1,AB,%s\n" % ("z" * 1900) * 20
+                # distinct rows: rows alike in every cell are one entry (content ids)
+                + "".join(f"2026-01-05T07:{i:02d}Z,note,P1,AB,{'z' * 1900}\n" for i in range(20))
             ).encode(),
             book.local_zone(),
         )

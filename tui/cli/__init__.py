@@ -21,7 +21,7 @@ EXIT_BAD_INPUT = 2
 MAX_LIST_LIMIT = 1_000_000
 # Options that never take a value: a negative-looking word after them is not theirs.
 FLAGS = {"--force", "--nominal", "--hour-meter", "--indicator-only", "--unfiltered", "--json"}
-_NEGATIVE_VALUE = re.compile(r"^-(\d|\.\d)")
+_NEGATIVE_VALUE = re.compile(r"^-(\d|\.\d|/)")  # "-/500/60": counts with no ≥4 µm figure
 
 
 def _limit(text: str) -> int:

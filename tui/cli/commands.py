@@ -126,7 +126,10 @@ def cmd_demo(args: argparse.Namespace) -> int:
     with create_demo(path, force=args.force, clock=args.session.clock) as book:
         units = len(register.list_all(book, Unit))
         entries = journal.count(book)
+        notices = list(book.notices)
     say(f"demo plant written to {path}: {units} units, {entries} entries")
+    for notice in notices:
+        say(notice)
     return 0
 
 
@@ -586,7 +589,9 @@ def cmd_merge(args: argparse.Namespace) -> int:
 
 def cmd_check(args: argparse.Namespace) -> int:
     path = Path(args.db or args.session.db_path)
-    full_check(path)  # damage: one line naming the latest backup, and writes refuse the book
+    # damage: one line naming the latest backup, and writes refuse the book
+    for note in full_check(path):
+        say(f"note: {note}")
     say(f"ok: {path} passed the full integrity check")
     return 0
 
