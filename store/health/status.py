@@ -550,8 +550,9 @@ def status_from(
         flags.append("indicator-bypass")
     elif last and last.indicator == "dirty":
         flags.append("indicator-dirty")
-    # In age order: a late entry or an hour meter read out of turn must not stop a save.
-    series = sorted((p.age_h, p.dp_ref_bar) for p in numeric)
+    # In age order: a late entry or an hour meter read out of turn must not stop a save; at
+    # one age, in logging order (the newest last, whatever its value).
+    series = anomaly.age_ordered([(p.age_h, p.dp_ref_bar) for p in numeric])
     drop = anomaly.drop_without_change(series)
     if drop is not None:
         flags.append("dp-drop")

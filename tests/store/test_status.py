@@ -454,3 +454,22 @@ def test_basis_names_what_the_note_says(tmp_path):
         record.log(book, ElementChange(filter="M2-RF", by="AB", at=book.now()))
         g = one(views.watch(book), "M2-RF")
         assert g.basis == "service-life" and NOTE_OF_BASIS["service-life"] in " ".join(g.notes)
+
+
+def test_a_halved_reading_on_the_demo_is_a_drop_even_after_one_in_the_same_minute(
+    demo_file, tmp_path
+):
+    # Issue 23: 2.50 then 1.25 bar on D2-R in one minute, no change between: the watch list
+    # showed no flag (same-age readings were ordered by value, so 2.50 looked the newest).
+    path = tmp_path / "demo.db"
+    path.write_bytes(demo_file.read_bytes())
+    with open_book(path, create=False) as book:
+        now = book.now()
+        for dp in (2.5, 1.25):
+            record.log(book, Reading(filter="D2-R", dp_bar=dp, temp_c=50, by="AK", at=now))
+        f = one(views.watch(book), "D2-R")
+        assert "dp-drop" in f.flags, f.notes
+        assert f.dp_ref_bar == pytest.approx(1.25)
+        # the kept row and a whole recomputation agree
+        rebuild(book)
+        assert "dp-drop" in one(views.watch(book), "D2-R").flags
