@@ -119,6 +119,12 @@ def test_void_through_the_cli(plant, capsys):
         (["log", "void", "abcdef12", "--reason", "x"], "no entry"),
         (["log", "topup", "P9", "--volume", "5", "--unfiltered"], "unknown unit"),
         (["log", "reading", "P1-RF", "--dp", "1", "--by", "QQ"], "unknown technician"),
+        # issue 23: a decimal comma with three digits reads two ways: asked, never guessed
+        (["log", "reading", "P1-RF", "--dp", "1,250"], "1.25 or 1250?"),
+        (["log", "reading", "P1-RF", "--dp", "1", "--flow", "1,250"], "1.25 or 1250?"),
+        (["log", "reading", "P1-RF", "--dp", "1", "--hours", "2,500"], "2.5 or 2500?"),
+        # issue 24: not "unknown pressure unit '.3'"
+        (["log", "reading", "P1-RF", "--dp", "1..3"], "'1..3' is not a number"),
     ],
 )
 def test_bad_input_is_one_line_nonzero_and_writes_nothing(plant, capsys, argv, message):
@@ -357,3 +363,14 @@ def test_a_fixed_clock_that_is_not_a_time_gets_one_line_and_nothing_is_read(monk
     assert (
         err.startswith("sumpbook: SUMPBOOK_NOW='garbage' is not a time") and "Traceback" not in err
     )
+
+
+def test_the_cli_reads_a_decimal_comma_in_every_number_as_the_forms_do(plant, capsys):
+    # issue 23: `--flow 12,5` was refused while `--dp 1,4` was accepted
+    code, out, err = run(
+        capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "1,4", "--flow", "12,5"
+    )
+    assert code == 0, err
+    assert "ΔP 1.40 bar" in out and "12.5 L/min" in out
+    code, out, err = run(capsys, "--db", plant, "log", "sample", "P1", "--water", "0,250")
+    assert code == 0, err  # a leading 0 reads one way only: 0.25

@@ -17,7 +17,6 @@ from tui.screens.watch import WatchScreen
 DIGITS = set("0123456789.,")
 
 
-
 def newest(path, kind: str):
     with open_book(path, create=False) as book:
         return journal.read(book, kinds=[kind], newest_first=True, limit=1)[0]

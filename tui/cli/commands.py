@@ -23,7 +23,13 @@ from store.base import prefs as laptop
 from store.base.errors import BookError
 from store.base.text import inert, json_inert
 from store.base.timeutil import parse_time, previous_shift, shift_at, shift_named
-from store.base.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
+from store.base.units import (
+    AmbiguousNumberError,
+    parse_pressure_bar,
+    parse_temperature_c,
+    parse_volume_l,
+    read_number,
+)
 from store.base.validate import plant_setting
 from store.health import status
 from store.ledger import journal, register
@@ -369,9 +375,11 @@ def _counts(text: str) -> tuple[float | None, float, float]:
     if len(parts) != 3:
         raise BookError("counts are ≥4/≥6/≥14 per mL, e.g. 2000/500/60 (or -/500/60)")
     try:
-        c4 = None if parts[0] in ("-", "") else float(parts[0])
-        return c4, float(parts[1]), float(parts[2])
-    except ValueError as exc:
+        c4 = None if parts[0] in ("-", "") else read_number(parts[0])
+        return c4, read_number(parts[1]), read_number(parts[2])
+    except AmbiguousNumberError:
+        raise
+    except BookError as exc:
         raise BookError(f"'{text}' holds something that is not a count") from exc
 
 

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
+from store.base.units import read_number
 from store.ledger.entries import ElementChange, Entry
 from store.ledger.journal import CHANGE_REASONS
 from store.ledger.register import FilterPosition, find
@@ -55,7 +56,7 @@ class ChangeForm(EntryForm):
             reason=v["reason"],
             condition=v["condition"],
             batch=v["batch"],
-            hours=float(v["hours"].replace(",", ".")) if v["hours"] else None,
+            hours=read_number(v["hours"]) if v["hours"] else None,
             at=self.when(v["time"]),
             by=v["by"],
             note=v["note"],

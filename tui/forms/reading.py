@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from store.base.units import parse_pressure_bar, parse_temperature_c
+from store.base.units import parse_pressure_bar, parse_temperature_c, read_number
 from store.ledger.entries import Entry, Reading
 from store.ledger.journal import BYPASS_OPEN, BYPASS_STEPS, bypass_head
 from store.ledger.register import FilterPosition, find
@@ -85,8 +85,8 @@ class ReadingForm(EntryForm):
             dp_bar=parse_pressure_bar(v["dp"], prefs.pressure) if v["dp"] else None,
             indicator=v["indicator"] or None,
             temp_c=parse_temperature_c(v["temp"], prefs.temperature) if v["temp"] else None,
-            flow_lpm=float(v["flow"].replace(",", ".")) if v["flow"] else None,
-            hours=float(v["hours"].replace(",", ".")) if v["hours"] else None,
+            flow_lpm=read_number(v["flow"]) if v["flow"] else None,
+            hours=read_number(v["hours"]) if v["hours"] else None,
             at=self.when(v["time"]),
             by=v["by"],
             note=v["note"],
