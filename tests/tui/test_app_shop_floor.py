@@ -2,12 +2,15 @@
 
 from __future__ import annotations
 
-from textual.widgets import Input, Static
+from textual.widgets import DataTable, Input, Static
 
 from store import views
 from store.db.book import open_book
 from tests.kit.plant import count_entries, settle
+from tui.forms.confirm import ConfirmScreen
 from tui.forms.reading import ReadingForm
+from tui.forms.void import VoidForm
+from tui.screens.shift_log import ShiftLogScreen
 from tui.screens.watch import WatchScreen
 
 
@@ -33,3 +36,63 @@ async def test_a_decimal_comma_with_three_digits_is_asked_about_not_guessed(demo
     with open_book(demo_app.path, create=False) as book:
         d2r = next(f for f in views.watch(book).filters if f.filter == "D2-R")
         assert d2r.dp_bar == 1.25 and "dp-drop" in d2r.flags
+
+
+async def test_v_in_the_shift_log_never_offers_a_colleagues_entry(demo_app):
+    app = demo_app()  # signed in as AK
+    before = count_entries(demo_app.path)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        await pilot.press("2")
+        await settle(pilot, ShiftLogScreen)
+        log = app.screen
+        table = log.query_one(DataTable)
+        entries = {e.id: e for e in log.shift.entries}
+        ours = [e for e in entries.values() if e.by == "AK"]
+        theirs = next(i for i, e in enumerate(log.shift.entries) if e.by != "AK")
+        table.move_cursor(row=theirs)  # a colleague's row highlighted, as the top row was
+        await pilot.pause()
+        await pilot.press("v")
+        await pilot.pause()
+        form = app.screen
+        assert isinstance(form, VoidForm)
+        offered = form.query_one("#f-entry", Input).value
+        assert offered == (max(ours, key=lambda e: e.at).id[:8] if ours else "")
+        # A colleague's entry typed on purpose: the form names it and whose it is, and asks.
+        other = log.shift.entries[theirs]
+        form.query_one("#f-entry", Input).value = other.id[:8]
+        form.query_one("#f-reason", Input).value = "wrong tag"
+        await pilot.press("ctrl+s")
+        await pilot.pause()
+        asked = app.screen
+        assert isinstance(asked, ConfirmScreen)
+        words = " ".join(str(w.render()) for w in asked.query(Static))
+        assert other.id[:8] in words and f"logged by {other.by}, not by you" in words
+        await pilot.press("n")
+        await pilot.pause()
+        assert app.screen is form
+    assert count_entries(demo_app.path) == before  # nothing voided
+
+
+async def test_v_offers_the_users_own_entry_and_asks_before_voiding_it(demo_app):
+    app = demo_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        app.open_form("reading", "D2-P")
+        await pilot.press(*"1.1", "ctrl+s")
+        await settle(pilot, WatchScreen)
+        await pilot.press("2")
+        await settle(pilot, ShiftLogScreen)
+        mine = max((e for e in app.screen.shift.entries if e.by == "AK"), key=lambda e: e.at)
+        await pilot.press("v")
+        await pilot.pause()
+        assert app.screen.query_one("#f-entry", Input).value == mine.id[:8]
+        await pilot.press(*"typo", "enter")
+        await pilot.pause()
+        assert isinstance(app.screen, ConfirmScreen)
+        await pilot.press("y")
+        await settle(pilot, ShiftLogScreen)
+    with open_book(demo_app.path, create=False) as book:
+        from store.ledger.journal import find_entry
+
+        assert find_entry(book, mine.id).voided
