@@ -7,6 +7,7 @@ from textual.widgets import DataTable, Input, Static
 from store import views
 from store.db.book import open_book
 from tests.kit.plant import count_entries, settle
+from tui.cli import main as cli_main
 from tui.forms.confirm import ConfirmScreen
 from tui.forms.reading import ReadingForm
 from tui.forms.void import VoidForm
@@ -96,3 +97,26 @@ async def test_v_offers_the_users_own_entry_and_asks_before_voiding_it(demo_app)
         from store.ledger.journal import find_entry
 
         assert find_entry(book, mine.id).voided
+
+
+async def test_a_temperature_nobody_typed_is_not_stored_as_measured(demo_app, capsys):
+    app = demo_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        await pilot.press("t", *"D2-R", "enter")
+        await pilot.pause()
+        form = app.screen
+        assert isinstance(form, ReadingForm)
+        assert form.query_one("#f-temp", Input).value == ""  # no guess in the field
+        assert "blank: not read (last 50 °C)" in shown(form, "#m-temp")
+        await pilot.press(*"2.45", "ctrl+s")
+        await settle(pilot, WatchScreen)
+    with open_book(demo_app.path, create=False) as book:
+        from store.ledger import journal
+
+        saved = journal.read(book, kinds=["reading"])[-1]
+        assert saved.filter == "D2-R" and saved.temp_c is None
+    # the export says the normal temperature was assumed for it
+    assert cli_main(["--db", str(demo_app.path), "export"]) == 0
+    row = next(line for line in capsys.readouterr().out.splitlines() if saved.id in line)
+    assert "temp and flow assumed normal" in row

@@ -24,15 +24,19 @@ class ReadingForm(EntryForm):
     def specs(self) -> list[Spec]:
         book, prefs = self.sb.book, self.sb.prefs
         position = find(book, FilterPosition, self.target) if self.target else None
-        temp_hint, temp_text = "", ""
+        temp_hint, temp_text = "blank: not read", ""
         hours_hint = ""
         if position is not None:
             meter = meter_estimate_h(book, position.unit, book.now())
             if meter is not None:
                 hours_hint = f"about {meter:.0f} (running rate)"
+            # Never pre-filled: a temperature nobody read must not be stored as measured. Left
+            # blank, the reading is stored without one and normalised at the unit's normal
+            # temperature, which the sheets and the export say was assumed.
             last = last_temp_c(book, position.unit)
             if last is not None:
-                temp_text, temp_hint = fmt.input_temperature(last, prefs), "last logged"
+                shown = f"{fmt.input_temperature(last, prefs)} {fmt.t_unit(prefs)}"
+                temp_hint = f"blank: not read (last {shown})"
             self.heading = f"Reading on {position.tag} ({position.kind}, unit {position.unit})"
         if not self.target:
             self.first = "filter"
@@ -56,7 +60,7 @@ class ReadingForm(EntryForm):
                 f"Temp {fmt.t_unit(prefs)}",
                 self.preset.get("temp", temp_text),
                 [TemperatureValidator(prefs.temperature)],
-                hint=temp_hint or "fluid temperature",
+                hint=temp_hint,
             ),
             Spec("indicator", "Indicator", "", options=INDICATOR_CHOICES),
             Spec(
