@@ -374,3 +374,13 @@ def test_the_cli_reads_a_decimal_comma_in_every_number_as_the_forms_do(plant, ca
     assert "ΔP 1.40 bar" in out and "12.5 L/min" in out
     code, out, err = run(capsys, "--db", plant, "log", "sample", "P1", "--water", "0,250")
     assert code == 0, err  # a leading 0 reads one way only: 0.25
+
+
+def test_register_on_a_path_with_no_logbook_says_it_made_a_new_one(tmp_path, capsys):
+    # issue 23: a mistyped --db silently became a second logbook
+    db = tmp_path / "typo.db"
+    code, out, err = run(capsys, "--db", str(db), "register", "tech", "AB")
+    assert code == 0 and db.exists()
+    assert "no logbook at" in err and "new, empty one was created" in err
+    code, out, err = run(capsys, "--db", str(db), "register", "tech", "CD")
+    assert code == 0 and "no logbook" not in err  # said once, when it happened

@@ -2,16 +2,18 @@
 
 from __future__ import annotations
 
-from textual.widgets import DataTable, Input, Static
+from textual.widgets import DataTable, Input, Select, Static
 
 from store import views
 from store.db.book import open_book
+from store.sheets import tag_index
 from tests.kit.plant import count_entries, settle
 from tui.cli import main as cli_main
 from tui.forms.confirm import ConfirmScreen
 from tui.forms.reading import ReadingForm
 from tui.forms.void import VoidForm
 from tui.screens.shift_log import ShiftLogScreen
+from tui.screens.tag_prompt import TagPrompt
 from tui.screens.watch import WatchScreen
 
 
@@ -120,3 +122,42 @@ async def test_a_temperature_nobody_typed_is_not_stored_as_measured(demo_app, ca
     assert cli_main(["--db", str(demo_app.path), "export"]) == 0
     row = next(line for line in capsys.readouterr().out.splitlines() if saved.id in line)
     assert "temp and flow assumed normal" in row
+
+
+async def test_the_change_form_starts_where_letters_go_and_guesses_no_reason_far_below_limit(
+    demo_app,
+):
+    app = demo_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        with open_book(demo_app.path, create=False) as book:
+            low = next(
+                f
+                for f in views.watch(book).filters
+                if f.gauge and f.percent_of_limit is not None and f.percent_of_limit < 50
+            )
+        app.open_form("change", low.filter)
+        await pilot.pause()
+        form = app.screen
+        assert form.focused is form.query_one("#f-condition", Input)
+        await pilot.press(*"torn")  # no letter lost to the reason menu
+        assert form.query_one("#f-condition", Input).value == "torn"
+        assert form.query_one("#f-reason", Select).value is Select.NULL  # not "at change limit"
+        await pilot.press("escape")
+        await settle(pilot, WatchScreen)
+        app.open_form("change", "D2-R")  # 89 % of its limit
+        await pilot.pause()
+        assert app.screen.query_one("#f-reason", Select).value == "limit"
+
+
+async def test_the_tag_prompts_example_is_a_tag_of_this_book(demo_app):
+    app = demo_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        await pilot.press("t")
+        await pilot.pause()
+        prompt = app.screen
+        assert isinstance(prompt, TagPrompt)
+        example = prompt.query_one(Input).placeholder.removeprefix("e.g. ")
+        with open_book(demo_app.path, create=False) as book:
+            assert example in {h.tag for h in tag_index(book)}  # "P1-RF" is not in the demo

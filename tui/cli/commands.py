@@ -71,7 +71,11 @@ OPENED: list[Book] = []
 
 
 def _book(args: argparse.Namespace, create: bool = False) -> Book:
-    book = open_book(args.db or args.session.db_path, create=create, clock=args.session.clock)
+    path = Path(args.db or args.session.db_path)
+    new = create and not (path.exists() and path.stat().st_size > 0)
+    book = open_book(path, create=create, clock=args.session.clock)
+    if new:  # a mistyped path must not become a second logbook without a word
+        say(f"note: there was no logbook at {path}: a new, empty one was created", stderr=True)
     for notice in book.notices:  # e.g. rows an upgrade could not carry over
         console(stderr=True).print(f"note: {notice}", markup=False)
     OPENED.append(book)

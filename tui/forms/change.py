@@ -8,6 +8,7 @@ from store.base.units import read_number
 from store.ledger.entries import ElementChange, Entry
 from store.ledger.journal import CHANGE_REASONS
 from store.ledger.register import FilterPosition, find
+from store.sheets import filter_status_of, likely_change_reason
 from tui.forms.base import EntryForm
 from tui.forms.validators import RangeValidator
 from tui.widgets.field import Spec
@@ -31,8 +32,9 @@ class ChangeForm(EntryForm):
         position = find(book, FilterPosition, self.target) if self.target else None
         if position is not None:
             self.heading = f"Element change on {position.tag} ({position.element or 'element'})"
-        self.first = "reason" if self.target else "filter"
-        reason = "limit" if position is None or position.gauge else "indicator"
+        # Start in a text field: a menu first swallowed the letters typed into it.
+        self.first = "condition" if position is not None else "filter"
+        reason = likely_change_reason(filter_status_of(book, position.tag)) if position else ""
         return [
             self.tag_spec(
                 "filter", FilterPosition, "filter", position.tag if position else self.target
