@@ -15,7 +15,7 @@ from store.db.book import Book
 from store.derived.statuscache import (
     filter_view,
 )
-from store.health import status
+from store.health import status, urgency
 from store.health.conditions import contexts
 from store.health.elements import Element, ElementSummary, meter_at, split_elements
 from store.health.fluidcare import Consumption, sample_verdict
@@ -61,21 +61,17 @@ class WatchRow:
 
     @property
     def tier(self) -> int:
-        """0 unfiltered oil passing or a damaged element now; 1 a cold start would bypass,
-        overdue or over the limit; 2 other flags; 3 nothing to say."""
-        if any(f in BYPASSING_NOW for f in self.flags):
-            return 0
-        if self.urgent or self.overdue or "over-limit" in self.flags:
-            return 1
-        return 2 if self.flags else 3
+        """Its group in the one order (store/health/urgency.py): 0 inspect now, 1 overdue or
+        over the limit, 2 another flag, 3 nothing pressing."""
+        return urgency.tier(self.flags, self.overdue)
 
     def sort_key(self) -> tuple:
-        due = self.due.likely.timestamp() if self.due else float("inf")
-        return (self.tier, due, -(self.percent_of_limit or 0.0), self.tag)
+        due = self.due.likely if self.due else None
+        return urgency.order_key(self.flags, self.overdue, due, self.percent_of_limit, self.tag)
 
 
-OVERDUE_STATES = ("check-now", "past-limit", "past-bypass")
-BYPASSING_NOW = ("dp-drop", "at-bypass", "indicator-bypass")
+OVERDUE_STATES = urgency.OVERDUE_STATES
+BYPASSING_NOW = urgency.URGENT_FLAGS
 
 
 def filter_row(f: FilterStatus, area: str, now: datetime) -> WatchRow:

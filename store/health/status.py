@@ -24,6 +24,7 @@ from dateutil import tz
 from store.base.errors import BookError
 from store.base.timeutil import iso_local
 from store.db.book import Book
+from store.health import urgency as ranking
 from store.health.conditions import FilterContext, contexts_from
 from store.health.elements import (
     Element,
@@ -55,8 +56,9 @@ if TYPE_CHECKING:  # the fitting maths (numpy, scipy) load on first use: a watch
     from store.forecast import trend  # from the status cache needs none of it
     from store.forecast.life import WeibullFit
 
-# Dirty oil is reaching the system now (or the element is gone): these sort first.
-URGENT_FLAGS = ("dp-drop", "at-bypass", "indicator-bypass")
+# Dirty oil is reaching the system now (or the element is gone): these sort first. The one
+# order of the watch list lives in store/health/urgency.py.
+URGENT_FLAGS = ranking.URGENT_FLAGS
 HOT_LOOKBACK = timedelta(days=7)
 FLAG_WORDS = {
     "dp-drop": "ΔP DROP",
@@ -265,15 +267,11 @@ class FilterStatus:
 
     @property
     def urgency(self) -> tuple:
-        urgent = any(f in URGENT_FLAGS for f in self.flags)
-        due_key = self.due.likely.timestamp() if self.due else float("inf")
-        return (
-            0 if urgent else 1,
-            0 if "over-limit" in self.flags else 1,
-            due_key,
-            -(self.percent_of_limit or 0),
-            self.filter,
-        )
+        """Its place in the one order (store/health/urgency.py); overdue as the clock the
+        status was worked out at saw it (at_time sets check-now)."""
+        overdue = self.state in ranking.OVERDUE_STATES
+        due = self.due.likely if self.due else None
+        return ranking.order_key(self.flags, overdue, due, self.percent_of_limit, self.filter)
 
 
 @dataclass(frozen=True)
@@ -286,8 +284,8 @@ class BreatherStatus:
 
     @property
     def urgency(self) -> tuple:
-        due = self.forecast.due.timestamp() if self.forecast.due else float("inf")
-        return (0 if self.flags else 1, due, self.breather)
+        fc = self.forecast
+        return ranking.order_key(self.flags, fc.overdue, fc.due, None, self.breather)
 
 
 @dataclass(frozen=True)

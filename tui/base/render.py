@@ -298,59 +298,45 @@ def due_day(book: Book, moment: datetime | None) -> str:
 
 
 def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
+    """Filters, breathers and flagged units in one list, in the app's order (the one order of
+    store/health/urgency.py, through store.sheets.watch_rows); OVERDUE said in the due cell."""
+    from store.sheets import watch_rows  # deferred: `status --json` prints no table
+
     table = Table(title=f"Watch list as of {when(book, watch.as_of)}", title_justify="left")
     for c in (
-        "filter",
+        "tag",
         "unit",
         "kind",
         f"ΔP ref ({pressure_label(prefs.pressure)})",
         "% limit",
-        "due (change)",
+        "due",
         "basis",
         "flags",
     ):
         table.add_column(c)
-    for f in watch.filters:
-        flags = Text(", ".join(FLAG_WORDS.get(x, x) for x in f.flags))
-        if any(x in URGENT_FLAGS for x in f.flags):
+    for r in watch_rows(watch):
+        flags = Text(", ".join(FLAG_WORDS.get(x, x) for x in r.flags))
+        if any(x in URGENT_FLAGS for x in r.flags):
             flags.stylize("bold reverse")
-        due = due_text(book, f.due) if f.due else f.state
+        if r.what == "breather":
+            due = due_day(book, r.due.likely if r.due else None)
+            kind = f"breather ({r.kind})"
+        else:
+            due = due_text(book, r.due) if r.due else ("" if r.what == "unit" else r.state)
+            kind = r.kind
+        if r.overdue:
+            due = Text.assemble(("OVERDUE", "bold"), f" {due}")
         _add_row(
             table,
-            f.filter,
-            f.unit,
-            f.kind,
-            pressure(f.dp_ref_bar, prefs, unit=False),
-            f"{f.percent_of_limit:.0f} %" if f.percent_of_limit is not None else "–",
+            r.tag,
+            r.unit,
+            kind,
+            pressure(r.dp_ref_bar, prefs, unit=False) if r.what == "filter" else "",
+            f"{r.percent_of_limit:.0f} %" if r.percent_of_limit is not None else "",
             due,
-            f.basis,
+            r.basis,
             flags,
         )
-    for b in watch.breathers:
-        _add_row(
-            table,
-            b.breather,
-            b.unit,
-            f"breather ({b.kind})",
-            "",
-            "",
-            due_day(book, b.forecast.due),
-            b.forecast.basis,
-            ", ".join(FLAG_WORDS.get(x, x) for x in b.flags),
-        )
-    for u in watch.units:
-        if u.flags:
-            _add_row(
-                table,
-                u.unit,
-                u.unit,
-                "unit",
-                "",
-                "",
-                "",
-                "",
-                ", ".join(FLAG_WORDS.get(x, x) for x in u.flags),
-            )
     return table
 
 
