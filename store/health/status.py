@@ -68,7 +68,7 @@ FLAG_WORDS = {
     "over-limit": "OVER LIMIT",
     "indicator-bypass": "IND BYPASS",
     "indicator-dirty": "IND DIRTY",
-    "cold-start-bypass": "COLD START",
+    "cold-start-bypass": "cold start",  # a caution, not an alarm (store/health/urgency.py)
     "reading-overdue": "READ DUE",
     "hot": "HOT",
     "no-limits": "NO LIMITS",

@@ -7,7 +7,7 @@ and the JSON's lists) sort by `order_key`, defined here and nowhere else.
    says check now or past the limit, OVER LIMIT.
 3. Anything else flagged that asks for a look (STEP UP, FAST LOAD, IND DIRTY, HOT, READ DUE,
    DIRTY OIL, LEAK?, SPENT, UNFILTERED, ...).
-4. Everything else, notices included (`NOTICE_FLAGS`): COLD START says a start colder than the
+4. Everything else, notices included (`NOTICE_FLAGS`, shown in lower case): "cold start" says a start colder than the
    unit's coldest expected start would open the bypass, a caution for cold mornings and no
    task before the element's own date; NO LIMITS asks for settings, not for a visit.
 
@@ -25,6 +25,21 @@ from datetime import datetime
 URGENT_FLAGS = ("dp-drop", "at-bypass", "indicator-bypass")
 NOTICE_FLAGS = ("cold-start-bypass", "no-limits")
 OVERDUE_STATES = ("check-now", "past-limit", "past-bypass")
+
+
+# What a line in group 1 asks for, in place of its due date (the first urgent flag decides);
+# the notes say what to check.
+ACT_NOW = {
+    "dp-drop": "INSPECT NOW",  # torn, collapsed or missing element, or bypass stuck open
+    "at-bypass": "CHANGE NOW",  # unfiltered oil is passing
+    "indicator-bypass": "CHANGE NOW",
+}
+
+
+def act_now(flags: Iterable[str]) -> str:
+    """What an urgent line asks for now ("" when nothing is urgent): its headline says this,
+    not "change due 11–17 Dec"."""
+    return next((ACT_NOW[f] for f in flags if f in ACT_NOW), "")
 
 
 def tier(flags: Iterable[str], overdue: bool) -> int:

@@ -14,6 +14,7 @@ from store.base.timeutil import local_text
 from store.base.units import pressure_label
 from store.health.conditions import contexts, normalise
 from store.health.status import FLAG_WORDS, URGENT_FLAGS, Watch
+from store.health.urgency import act_now
 from store.ledger import register
 from store.ledger.entries import (
     BreatherSwap,
@@ -324,7 +325,9 @@ def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
         else:
             due = due_text(book, r.due) if r.due else ("" if r.what == "unit" else r.state)
             kind = r.kind
-        if r.overdue:
+        if now := act_now(r.flags):
+            due = Text(now, style="bold")  # INSPECT NOW / CHANGE NOW
+        elif r.overdue:
             due = Text.assemble(("OVERDUE", "bold"), f" {due}")
         _add_row(
             table,

@@ -18,6 +18,7 @@ from store.base.prefs import Prefs
 from store.base.text import inert
 from store.base.units import from_bar, from_c, from_l
 from store.health.status import FLAG_WORDS, URGENT_FLAGS, Due
+from store.health.urgency import NOTICE_FLAGS
 from tui.base.quantities import (  # noqa: F401 - the app's widgets take them from here
     p_digits,
     p_unit,
@@ -146,13 +147,15 @@ def due_text(due: Due | None, local: tzinfo, now: datetime | None = None) -> str
 
 
 def flag_text(flags: Sequence[str]) -> Text:
-    """Flags as words; the urgent ones also bold and reversed."""
+    """Flags as words; the urgent ones bold and reversed, notices (cold start, no limits)
+    plain, the others bold."""
     text = Text()
     for i, flag in enumerate(flags):
         if i:
             text.append(", ")
         word = FLAG_WORDS.get(flag, flag)
-        text.append(word, style="bold reverse" if flag in URGENT_FLAGS else "bold")
+        style = "bold reverse" if flag in URGENT_FLAGS else "" if flag in NOTICE_FLAGS else "bold"
+        text.append(word, style=style)
     return text
 
 
