@@ -263,8 +263,11 @@ def test_register_change_is_logged(plant, capsys):
 
 
 def test_status_json_has_the_documented_fields(plant, capsys):
-    for dp in ("0.6", "0.7", "0.8"):
-        run(capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", dp, "--temp", "50")
+    for hour, dp in ((7, "0.6"), (8, "0.7"), (9, "0.8")):  # three minutes apart at least
+        at = f"2026-01-05T0{hour}:00"
+        run(
+            capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", dp, "--temp", "50", "--at", at
+        )
     code, out, err = run(capsys, "--db", plant, "status", "--json")
     assert code == 0, err
     data = json.loads(out)
@@ -384,3 +387,21 @@ def test_register_on_a_path_with_no_logbook_says_it_made_a_new_one(tmp_path, cap
     assert "no logbook at" in err and "new, empty one was created" in err
     code, out, err = run(capsys, "--db", str(db), "register", "tech", "CD")
     assert code == 0 and "no logbook" not in err  # said once, when it happened
+
+
+def test_a_reading_nobody_made_is_refused_with_the_reason_unless_as_read(plant, capsys):
+    # issue 24: 24 bar on a 3.5 bar bypass is a slipped decimal point far likelier than a reading
+    code, _, err = run(capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "24")
+    assert code == 2 and "7 times the bypass setting" in err and "(2.4 bar)?" in err
+    assert entries(plant) == 0
+    # two readings on one filter in one minute: the second is asked about
+    at = ("--at", "2026-01-05T07:00")
+    assert run(capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "1.1", *at)[0] == 0
+    code, _, err = run(capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "1.2", *at)
+    assert code == 2 and "a reading in this minute already" in err and "--as-read" in err
+    assert entries(plant) == 1
+    code, _, err = run(
+        capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "1.2", *at, "--as-read"
+    )
+    assert code == 0, err
+    assert entries(plant) == 2

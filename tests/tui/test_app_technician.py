@@ -3,9 +3,10 @@ made, words, forms after a refusal, keys."""
 
 from __future__ import annotations
 
-from textual.widgets import DataTable
+from textual.widgets import DataTable, Input, Static
 
-from tests.kit.plant import settle
+from tests.kit.plant import count_entries, settle
+from tui.forms.confirm import ConfirmScreen
 from tui.screens.watch import WatchScreen
 
 
@@ -34,3 +35,34 @@ async def test_a_dp_drop_says_inspect_now_and_cold_start_is_a_quiet_caution(demo
         await pilot.pause()
         detail = " ".join(str(w.render()) for w in screen.query("#detail"))
         assert "INSPECT NOW" in detail and "change due" not in detail
+
+
+async def test_the_form_asks_about_a_reading_nobody_made(demo_app):
+    app = demo_app()
+    before = count_entries(demo_app.path, "reading")
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        # D2-R's bypass is set to 3.5 bar (demo): 24 bar is a slipped decimal point
+        await pilot.press("t", *"D2-R", "enter", *"24", "ctrl+s")
+        await pilot.pause()
+        asked = app.screen
+        assert isinstance(asked, ConfirmScreen)
+        words = " ".join(str(w.render()) for w in asked.query(Static))
+        assert "7 times the bypass setting" in words and "(2.40 bar)?" in words
+        await pilot.press("n")
+        await pilot.pause()
+        form = app.screen
+        form.query_one("#f-dp", Input).value = "2.4"
+        await pilot.press("ctrl+s")
+        await settle(pilot, WatchScreen)
+        assert count_entries(demo_app.path, "reading") == before + 1
+        # the same filter again in the same minute: asked, not saved without a word
+        await pilot.press("t", *"D2-R", "enter", *"2.45", "ctrl+s")
+        await pilot.pause()
+        asked = app.screen
+        assert isinstance(asked, ConfirmScreen)
+        words = " ".join(str(w.render()) for w in asked.query(Static))
+        assert "a reading in this minute already (ΔP 2.40 bar by AK)" in words
+        await pilot.press("n", "escape")
+        await settle(pilot, WatchScreen)
+    assert count_entries(demo_app.path, "reading") == before + 1

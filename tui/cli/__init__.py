@@ -21,7 +21,15 @@ from tui.cli import commands
 EXIT_BAD_INPUT = 2
 MAX_LIST_LIMIT = 1_000_000
 # Options that never take a value: a negative-looking word after them is not theirs.
-FLAGS = {"--force", "--nominal", "--hour-meter", "--indicator-only", "--unfiltered", "--json"}
+FLAGS = {
+    "--force",
+    "--nominal",
+    "--hour-meter",
+    "--indicator-only",
+    "--unfiltered",
+    "--json",
+    "--as-read",
+}
 _NEGATIVE_VALUE = re.compile(r"^-(\d|\.\d)")
 
 
@@ -184,6 +192,12 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--temp", help="fluid temperature, e.g. 45 or 113F")
     p.add_argument("--flow", type=_number, help="flow, L/min, if known")
     p.add_argument("--hours", type=_number, help="hour-meter reading")
+    p.add_argument(
+        "--as-read",
+        action="store_true",
+        help="save it even though it looks like one nobody made (far over the bypass, or a "
+        "second reading in the same minute)",
+    )
     _add_time_and_by(p)
     p = lsub.add_parser("change", help="an element change")
     p.add_argument("tag", help="filter tag")

@@ -361,6 +361,15 @@ def cmd_log(args: argparse.Namespace) -> int:
                 raise BookError("the note is empty")
         else:
             entry = Void(voids=args.id, **{**common, "note": args.reason})
+        if isinstance(entry, Reading) and not args.as_read:
+            from store.sheets import reading_doubts  # deferred: off the start path of status
+
+            doubts = reading_doubts(book, entry)
+            if doubts:
+                raise BookError(
+                    " ".join(doubts) + " Nothing was saved: check it, or add --as-read to save "
+                    "it as typed"
+                )
         saved = record.log(book, entry)
         say(_render().saved_line(book, saved, prefs))
         if isinstance(saved, Reading):

@@ -8,7 +8,7 @@ from store.base.units import parse_pressure_bar, parse_temperature_c, read_numbe
 from store.ledger.entries import Entry, Reading
 from store.ledger.journal import BYPASS_OPEN, BYPASS_STEPS, bypass_head
 from store.ledger.register import FilterPosition, find
-from store.sheets import last_temp_c, meter_estimate_h
+from store.sheets import last_temp_c, meter_estimate_h, reading_doubts
 from tui.forms.base import EntryForm, FieldError
 from tui.forms.validators import DpValidator, RangeValidator, TemperatureValidator
 from tui.widgets import fmt
@@ -103,10 +103,15 @@ class ReadingForm(EntryForm):
         if position is None:
             return None
         prefs = self.sb.prefs
+        doubts = [f"• {fmt.in_units(d, prefs)}" for d in reading_doubts(self.sb.book, entry)]
         what = bypass_head(
             position, entry.dp_bar, entry.indicator, lambda bar: fmt.pressure(bar, prefs)
         )
-        if what is None:
+        if what is None and not doubts:
             return None
-        caution = f"{what}: {BYPASS_OPEN.upper()}.\n" + "\n".join(f"• {s}" for s in BYPASS_STEPS)
-        return f"Save this reading on {position.tag}?", caution
+        parts = ["\n".join(doubts)] if doubts else []
+        if what is not None:
+            parts.append(
+                f"{what}: {BYPASS_OPEN.upper()}.\n" + "\n".join(f"• {s}" for s in BYPASS_STEPS)
+            )
+        return f"Save this reading on {position.tag}?", "\n".join(parts)
