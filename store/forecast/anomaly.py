@@ -200,15 +200,23 @@ def step_up(readings: Sequence[tuple[float, float]], noise: float | None = None)
     )
     if jump <= need:
         return None
+    # A ΔP does not fall below the reading before on a loading element: where the fitted trend
+    # ran below it (a falling fit extrapolated, even below zero), say what the reading before
+    # was instead of a level no gauge could show.
+    before = float(dp[-2])
+    if expected >= before:
+        level, words = float(expected), f"where the element's trend expected about {expected:.3g}"
+    else:
+        level, words = before, f"from {before:.3g}"
     return Flag(
         kind="step-up",
         age_h=float(ages[-1]),
         dp_bar=float(dp[-1]),
-        expected_bar=float(expected),
+        expected_bar=level,
         urgent=False,
         reason=(
-            f"ΔP jumped to {dp[-1]:.3g} bar where the element's trend expected about "
-            f"{expected:.3g} bar (dirt coming in, as after a repair or a top-up)"
+            f"ΔP jumped to {dp[-1]:.3g} bar {words} bar (dirt coming in, as after a repair or "
+            "a top-up)"
         ),
         advice="take a fluid sample and check recent work, top-ups and the breather",
     )

@@ -141,3 +141,15 @@ def test_a_drop_logged_at_the_same_age_as_the_reading_before_is_still_the_newest
     assert age_ordered(seq)[-1] == (float(t[i]), 1.25)
     flag = drop_without_change(age_ordered(seq))
     assert flag is not None and flag.dp_bar == pytest.approx(1.25)
+
+
+def test_a_step_up_never_names_a_level_below_the_reading_before():
+    # Issue 24: the note said the trend expected "about -0.05 bar". Readings falling slowly
+    # (new element bedding in; invented values), then a long gap and a jump: the fitted line
+    # runs below zero by then.
+    seq = [(10.0 * i, 0.3 - 0.03 * i + 0.002 * (i % 2)) for i in range(1, 7)] + [(360.0, 0.9)]
+    flag = step_up(seq)
+    assert flag is not None and flag.kind == "step-up"
+    assert flag.expected_bar >= seq[-2][1] - 1e-12
+    assert "about -" not in flag.reason and "bar -" not in flag.reason
+    assert f"from {seq[-2][1]:.3g} bar" in flag.reason

@@ -7,6 +7,7 @@ from textual.widgets import DataTable, Input, Static
 
 from tests.kit.plant import count_entries, settle
 from tui.forms.confirm import ConfirmScreen
+from tui.screens.filter_sheet import FilterSheetScreen
 from tui.screens.watch import WatchScreen
 
 
@@ -66,3 +67,18 @@ async def test_the_form_asks_about_a_reading_nobody_made(demo_app):
         await pilot.press("n", "escape")
         await settle(pilot, WatchScreen)
     assert count_entries(demo_app.path, "reading") == before + 1
+
+
+async def test_an_hour_meter_elements_age_is_hours_run_with_the_calendar_days_beside(demo_app):
+    app = demo_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        app.open_sheet("filter", "M1-P", "IMM-1")  # IMM-1 has an hour meter (demo)
+        await settle(pilot, FilterSheetScreen)
+        sheet = app.screen.sheet
+        assert sheet.uses_hours
+        text = " ".join(str(w.render()) for w in app.screen.query("#forecast"))
+        run_h = sheet.status.element_age_h
+        days = (sheet.as_of - sheet.status.changed_at).total_seconds() / 86400
+        assert f"element age {run_h:.0f} h run (fitted {days:.0f} d ago)" in text
+        assert f"{run_h / 24:.0f} d ({run_h:.0f} h)" not in text  # hours run ÷ 24 is no age

@@ -181,9 +181,13 @@ def sparkline(values: Sequence[float], top: float | None, width: int = 8) -> str
     return "".join(out)
 
 
-def age_text(hours: float | None) -> str:
+def age_text(hours: float | None, operating: bool = False) -> str:
+    """An element age or life: calendar hours as days (and hours), or, where the ages are
+    operating hours off the hour meter, as hours run: 747 operating hours are not 31 days."""
     if hours is None or not math.isfinite(hours):
         return "–"
+    if operating:
+        return f"{hours:.0f} h run"
     if hours < 72:
         return f"{hours:.0f} h"
     return f"{hours / 24:.0f} d ({hours:.0f} h)"
