@@ -82,3 +82,34 @@ async def test_an_hour_meter_elements_age_is_hours_run_with_the_calendar_days_be
         days = (sheet.as_of - sheet.status.changed_at).total_seconds() / 86400
         assert f"element age {run_h:.0f} h run (fitted {days:.0f} d ago)" in text
         assert f"{run_h / 24:.0f} d ({run_h:.0f} h)" not in text  # hours run ÷ 24 is no age
+
+
+async def test_a_form_after_a_refusal_keeps_what_was_typed_and_clears_the_message_when_fixed(
+    demo_app,
+):
+    app = demo_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        app.open_form("change", "D2-R")
+        await pilot.pause()
+        form = app.screen
+        await pilot.press(*"caked", "tab", *"B42")
+        form.query_one("#f-time", Input).value = "2099-01-01 07:00"  # too far ahead
+        form.query_one("#ack").value = True
+        await pilot.press("ctrl+s")
+        await pilot.pause()
+        assert app.screen is form
+        msg = form.query_one("#form-msg", Static)
+        assert "Not saved" in str(msg.render())
+        time = form.query_one("#f-time", Input)
+        assert app.focused is time
+        await pilot.press("Q")  # a key typed now lands after the text, not over it
+        assert time.value == "2099-01-01 07:00Q"
+        await pilot.press("backspace", "backspace", "5")
+        assert time.value == "2099-01-01 07:05"
+        values = {i.id: i.value for i in form.query(Input)}
+        assert values["f-filter"] == "D2-R" and values["f-condition"] == "caked"
+        assert values["f-batch"] == "B42"
+        time.value = "2026-11-27 13:00"
+        await pilot.pause()
+        assert str(msg.render()) == ""  # fixed: the refusal is gone

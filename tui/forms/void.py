@@ -72,6 +72,7 @@ class VoidForm(EntryForm):
             return entry_id
 
     def on_input_changed(self, event: Input.Changed) -> None:
+        super().on_input_changed(event)
         if event.input.id == "f-entry":
             self.describe_target(event.value)
 
