@@ -62,3 +62,25 @@ def test_a_notice_does_not_outrank_a_nearer_date():
     drop = urgency.order_key(("dp-drop",), False, None, 10.0, "D")
     overdue = urgency.order_key((), True, soon, 90.0, "E")
     assert drop < overdue < step
+
+
+def test_status_at_80_columns_keeps_each_line_on_one_line(demo_file, tmp_path, monkeypatch):
+    # issue 24: at 80 columns due dates wrapped over up to 7 lines and flags were cut
+    from rich.console import Console
+
+    from store.base.prefs import Prefs
+    from tui.base.render import watch_table
+
+    path = demo_copy(demo_file, tmp_path, monkeypatch)
+    console = Console(width=80, record=True, file=open(tmp_path / "out.txt", "w"))  # noqa: SIM115
+    with open_book(path, create=False) as book:
+        w = watch(book)
+        tags = [r.tag for r in watch_rows(w)]
+        console.print(watch_table(book, w, Prefs(), width=80))
+    lines = console.export_text().splitlines()
+    assert max(len(line) for line in lines) <= 80
+    assert "…" not in "\n".join(lines)  # nothing cut
+    starts = [line.split()[0] for line in lines[3:] if line.strip() and not line.startswith("   ")]
+    assert [s for s in starts if s in tags] == tags  # every line starts with its tag, in order
+    d2r = next(line for line in lines if line.split()[:1] == ["D2-R"])
+    assert "29 Nov (29 Nov–" in d2r  # the due date on the tag's own line

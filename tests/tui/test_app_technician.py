@@ -8,6 +8,8 @@ from textual.widgets import DataTable, Input, Static
 from tests.kit.plant import count_entries, settle
 from tui.forms.confirm import ConfirmScreen
 from tui.screens.filter_sheet import FilterSheetScreen
+from tui.screens.shift_log import ShiftLogScreen
+from tui.screens.unit_sheet import UnitSheetScreen
 from tui.screens.watch import WatchScreen
 
 
@@ -113,3 +115,29 @@ async def test_a_form_after_a_refusal_keeps_what_was_typed_and_clears_the_messag
         time.value = "2026-11-27 13:00"
         await pilot.pause()
         assert str(msg.render()) == ""  # fixed: the refusal is gone
+
+
+async def test_1_from_the_shift_log_goes_to_the_watch_list_not_a_sheet_left_open(demo_app):
+    app = demo_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        app.open_sheet("unit", "DCC-2", "DCC-2")
+        await settle(pilot, UnitSheetScreen)
+        await pilot.press("2")
+        await settle(pilot, ShiftLogScreen)
+        await pilot.press("1")
+        await settle(pilot)
+        assert isinstance(app.screen, WatchScreen)
+
+
+async def test_the_palette_names_keys_as_the_help_does_and_holds_only_our_commands(demo_app):
+    app = demo_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        commands = {c.title: c.help for c in app.get_system_commands(app.screen)}
+    assert commands["Find by text"] == "key /"
+    assert commands["Help: every key and what the words on screen mean"] == "key ?"
+    assert not [h for h in commands.values() if "slash" in h or "question_mark" in h]
+    for leftover in ("Keys", "Maximize", "Screenshot", "Theme"):  # the framework's own
+        assert leftover not in commands
+    assert "Quit (makes a backup)" in commands

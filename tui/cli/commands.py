@@ -430,7 +430,8 @@ def cmd_status(args: argparse.Namespace) -> int:
             sys.stdout.write(json_inert(strict_json(status.to_json(watch, book.local_zone()))))
             sys.stdout.write("\n")
         else:
-            console().print(_render().watch_table(book, watch, prefs))
+            out = console()
+            out.print(_render().watch_table(book, watch, prefs, out.width))
     return 0
 
 
