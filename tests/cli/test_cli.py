@@ -123,6 +123,8 @@ def test_void_through_the_cli(plant, capsys):
         (["log", "reading", "P1-RF", "--dp", "1,250"], "1.25 or 1250?"),
         (["log", "reading", "P1-RF", "--dp", "1", "--flow", "1,250"], "1.25 or 1250?"),
         (["log", "reading", "P1-RF", "--dp", "1", "--hours", "2,500"], "2.5 or 2500?"),
+        # issue 24: the mistyped tag is named with its suggestion, not only the technician
+        (["log", "reading", "P1RF", "--dp", "1", "--by", "QQ"], "did you mean P1-RF"),
         # issue 24: not "unknown pressure unit '.3'"
         (["log", "reading", "P1-RF", "--dp", "1..3"], "'1..3' is not a number"),
     ],
@@ -405,3 +407,17 @@ def test_a_reading_nobody_made_is_refused_with_the_reason_unless_as_read(plant, 
     )
     assert code == 0, err
     assert entries(plant) == 2
+
+
+def test_export_to_an_existing_file_asks_first(plant, tmp_path, capsys):
+    # issue 24: `export -o` overwrote an existing file without a word
+    target = tmp_path / "handover.csv"
+    target.write_text("yesterday's notes\n")
+    code, _, err = run(capsys, "--db", plant, "export", "--from", "2000-01-01", "-o", str(target))
+    assert code == 2 and "exists: add --force" in err
+    assert target.read_text() == "yesterday's notes\n"  # untouched
+    code, _, err = run(
+        capsys, "--db", plant, "export", "--from", "2000-01-01", "-o", str(target), "--force"
+    )
+    assert code == 0, err
+    assert target.read_text(encoding="utf-8-sig").startswith("id,")

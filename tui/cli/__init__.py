@@ -251,6 +251,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--to", metavar="TIME", help="up to this time (with --from; default now)")
     p.add_argument("-o", "--output", type=Path, help="CSV file to write (default: stdout)")
     p.add_argument(
+        "--force", action="store_true", help="overwrite the -o file if it exists, without asking"
+    )
+    p.add_argument(
         "--bom",
         action=argparse.BooleanOptionalAction,
         default=None,

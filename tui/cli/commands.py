@@ -464,6 +464,7 @@ def cmd_export(args: argparse.Namespace) -> int:
             start, end = span.start, span.end
         csv_prefs = prefs
         if args.output:
+            _may_overwrite(args.output, args.force)
             count = export_file(
                 book, args.output, start, end, csv_prefs, local, pattern, bom=args.bom is not False
             )
@@ -477,6 +478,27 @@ def cmd_export(args: argparse.Namespace) -> int:
                 out.write(BOM)
             write_span(out, book, start, end, csv_prefs, local, pattern)
     return 0
+
+
+SQLITE_HEADER = b"SQLite format 3\x00"
+
+
+def _may_overwrite(path: Path, force: bool) -> None:
+    """An existing file is overwritten by `export -o` only when the user says so: asked on a
+    terminal, `--force` otherwise. (A SQLite file, a logbook perhaps, is the exporter's to
+    refuse whatever is said here.)"""
+    if force or not path.is_file():
+        return
+    with open(path, "rb") as fh:
+        if fh.read(len(SQLITE_HEADER)) == SQLITE_HEADER:
+            return
+    if sys.stdin.isatty() and sys.stderr.isatty():
+        sys.stderr.write(f"{inert(str(path))} exists: overwrite it? [y/N] ")
+        sys.stderr.flush()
+        if sys.stdin.readline().strip().lower() in ("y", "yes"):
+            return
+        raise BookError("nothing was written")
+    raise BookError(f"{path} exists: add --force to overwrite it, or give another name")
 
 
 class _OnScreen:
