@@ -357,7 +357,7 @@ def refresh_stale(book: Book, limit: int | None = None) -> list[str]:
 
 # ---- units ---------------------------------------------------------------------------------------
 
-UNIT_FORMAT = 3
+UNIT_FORMAT = 4  # 4: the newest sample's water content kept (a key on old rows recomputes them)
 
 
 def _unit_key(unit: Unit, filters: Sequence[FilterPosition]) -> str:
@@ -381,6 +381,7 @@ def _encode_unit(clock: UnitClock) -> str:
             ],
             "sample": clock.sample,
             "hot": [format_utc(at) for at in clock.hot],
+            "water": clock.water_ppm,
         },
         ensure_ascii=False,
     )
@@ -399,6 +400,7 @@ def _decode_unit(text: str, tag: str) -> UnitClock:
         ),
         sample=tuple(data["sample"]) if data["sample"] else None,  # type: ignore[arg-type]
         hot=tuple(_utc(at) for at in data["hot"]),
+        water_ppm=data.get("water"),
     )
 
 

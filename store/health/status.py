@@ -7,7 +7,7 @@ Flag codes (also listed in the README):
   filters   dp-drop, step-up, fast-loading, at-bypass, over-limit, indicator-bypass,
             indicator-dirty, cold-start-bypass, reading-overdue, hot, no-limits
   breathers swap-overdue, desiccant-spent
-  units     leak-suspect, unfiltered-topup, coarse-topup, over-target, hot
+  units     leak-suspect, unfiltered-topup, coarse-topup, over-target, water-high, hot
 """
 
 from __future__ import annotations
@@ -78,6 +78,7 @@ FLAG_WORDS = {
     "unfiltered-topup": "UNFILTERED",
     "coarse-topup": "COARSE FILL",
     "over-target": "DIRTY OIL",
+    "water-high": "WATER",
 }
 
 
@@ -775,6 +776,7 @@ class UnitClock:
     topups: tuple[TopUp, ...]  # the later live top-ups, oldest first
     sample: tuple[str | None, str, bool | None] | None  # latest sample: code, words, meets
     hot: tuple[datetime, ...]  # readings over the unit's limit that can still count
+    water_ppm: float | None = None  # water in the newest sample that says
 
 
 def unit_clock(book: Book, unit: Unit, now: datetime) -> UnitClock:
@@ -790,7 +792,7 @@ def unit_clock(book: Book, unit: Unit, now: datetime) -> UnitClock:
     early_l = 0  # as topup_consumption adds them up
     for t in early:
         early_l += t.volume_l  # type: ignore[attr-defined]
-    samples = [
+    newest = [
         e
         for e in read(
             book,
@@ -801,8 +803,10 @@ def unit_clock(book: Book, unit: Unit, now: datetime) -> UnitClock:
             newest_first=True,
             limit=5,
         )
-        if not e.voided and e.code
-    ]  # type: ignore[attr-defined]
+        if not e.voided
+    ]
+    samples = [e for e in newest if e.code]  # type: ignore[attr-defined]
+    water = next((e.water_ppm for e in newest if e.water_ppm is not None), None)  # type: ignore[attr-defined]
     sample = None
     if samples:
         verdict = sample_verdict(unit, samples[0])  # type: ignore[arg-type]
@@ -827,6 +831,23 @@ def unit_clock(book: Book, unit: Unit, now: datetime) -> UnitClock:
         topups=tuple(topups[len(early) :]),  # type: ignore[arg-type]
         sample=sample,
         hot=tuple(r.at for r in hot_readings(unit, recent)),  # type: ignore[arg-type, misc]
+        water_ppm=water,
+    )
+
+
+# Water in mineral hydraulic oil above about 300 ppm is past what the oil holds dissolved near
+# its working temperature: free water, rust, additive loss. # from memory (a usual alarm level;
+# the fluid maker's figure rules)
+WATER_LIMIT_PPM = 300.0
+
+
+def water_flag(water_ppm: float | None) -> str | None:
+    """The note of the water flag for the newest sample's water content, None under the limit."""
+    if water_ppm is None or water_ppm <= WATER_LIMIT_PPM:
+        return None
+    return (
+        f"latest sample holds {water_ppm:g} ppm water (over {WATER_LIMIT_PPM:g} ppm): find "
+        "where it gets in (breather, seals, cooler, washdown) and dry or change the oil"
     )
 
 
@@ -855,6 +876,9 @@ def unit_at(
         if meets is False:
             flags.append("over-target")
             notes.append(f"latest sample {sample_text}")
+    if (water := water_flag(clock.water_ppm)) is not None:
+        flags.append("water-high")
+        notes.append(water)
     if any(now - at <= HOT_LOOKBACK for at in clock.hot):
         flags.append("hot")
     return UnitStatus(

@@ -473,3 +473,19 @@ def test_a_halved_reading_on_the_demo_is_a_drop_even_after_one_in_the_same_minut
         # the kept row and a whole recomputation agree
         rebuild(book)
         assert "dp-drop" in one(views.watch(book), "D2-R").flags
+
+
+def test_water_over_the_limit_is_flagged_on_the_demo(demo_file, tmp_path):
+    # Issue 24: PR-3's latest sample says 420 ppm and no flag said so. 300 ppm: about what
+    # mineral hydraulic oil keeps dissolved warm # from memory
+    path = tmp_path / "demo.db"
+    path.write_bytes(demo_file.read_bytes())
+    with open_book(path, create=False) as book:
+        pr3 = next(u for u in views.watch(book).units if u.unit == "PR-3")
+        assert "water-high" in pr3.flags and any("420 ppm water" in n for n in pr3.notes)
+        record.log(
+            book, Sample(unit="PR-3", code="18/16/13", water_ppm=150, by="AK", at=book.now())
+        )
+        pr3 = next(u for u in views.watch(book).units if u.unit == "PR-3")
+        assert "water-high" not in pr3.flags  # the newest sample rules
+        assert status.water_flag(300.0) is None and status.water_flag(301.0) is not None
