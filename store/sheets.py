@@ -22,7 +22,17 @@ from store.health.fluidcare import Consumption, sample_verdict
 from store.health.status import URGENT_FLAGS, BreatherStatus, Due, FilterStatus, UnitStatus, Watch
 from store.ledger.entries import Entry, Reading, Sample, TopUp
 from store.ledger.journal import MAX_DP_BAR, read
-from store.ledger.register import Breather, FilterPosition, Fluid, Unit, find, get, list_all
+from store.ledger.register import (
+    Breather,
+    FilterPosition,
+    Fluid,
+    Technician,
+    Unit,
+    find,
+    get,
+    list_all,
+    list_shifts,
+)
 from store.views import status_of, watch
 
 WEEK = timedelta(days=7)
@@ -464,6 +474,23 @@ def filter_status_of(book: Book, tag: str) -> FilterStatus | None:
     if position is None:
         return None
     return status_of(book, contexts(book)[position.tag])
+
+
+SETUP_ORDER = ("techs", "fluids", "units", "filters", "shifts")  # the first-run guide's order
+
+
+def next_setup_step(book: Book) -> str:
+    """The first register step of the first-run guide's order that the book still lacks
+    (yourself, the fluids, the units, their filters, the shift pattern), "" when none: the
+    register screen opens there, so the guide and the screen agree."""
+    have = {
+        "techs": bool(list_all(book, Technician)),
+        "fluids": bool(list_all(book, Fluid)),
+        "units": bool(list_all(book, Unit)),
+        "filters": bool(list_all(book, FilterPosition)),
+        "shifts": bool(list_shifts(book)),
+    }
+    return next((step for step in SETUP_ORDER if not have[step]), "")
 
 
 # A ΔP this many times the bypass setting cannot have passed a working bypass valve, which

@@ -141,3 +141,25 @@ async def test_the_palette_names_keys_as_the_help_does_and_holds_only_our_comman
     for leftover in ("Keys", "Maximize", "Screenshot", "Theme"):  # the framework's own
         assert leftover not in commands
     assert "Quit (makes a backup)" in commands
+
+
+async def test_the_register_follows_the_first_run_guides_order(tmp_path, monkeypatch):
+    # issue 24: the guide says yourself, the fluids, the units; the register opened on units
+    from store.db.book import open_book
+    from tests.kit.plant import app_for, write_prefs
+    from tui.screens.first_run import ORDER
+    from tui.screens.register import RegisterScreen
+
+    assert ORDER.index("yourself") < ORDER.index("fluids") < ORDER.index("units")
+    monkeypatch.setenv("SUMPBOOK_CONFIG", str(write_prefs(tmp_path, tech="")))
+    with open_book(tmp_path / "empty.db"):
+        pass
+    app = app_for(tmp_path / "empty.db")
+    async with app.run_test(size=(80, 24)) as pilot:
+        await pilot.pause()
+        await pilot.press("g")
+        await pilot.pause()
+        await pilot.press(*"JK", "enter")  # yourself, on the sign-in screen
+        await settle(pilot, RegisterScreen)
+        await pilot.pause()
+        assert app.screen.active() == "fluids"  # the next step, not the units tab
