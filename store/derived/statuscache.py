@@ -59,7 +59,8 @@ from store.ledger.journal import element_items, parse_stamp
 from store.ledger.register import FilterPosition, Unit, find, list_all
 from store.physics.normalise import ColdStart
 
-FORMAT = 3  # bump when the stored status shape changes: old rows are then recomputed
+FORMAT = 4  # bump when the stored status shape or its rules change: old rows are recomputed
+# (4: the ΔP drop on same-minute readings and steep rises, STEP UP words, NEW HIGH)
 _SKIP = ("history", "forecast", "age_to_time", "clock")
 _TIMES = ("reading_at", "changed_at", "overdue_at")
 _utc = parse_stamp

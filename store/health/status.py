@@ -79,6 +79,7 @@ FLAG_WORDS = {
     "coarse-topup": "COARSE FILL",
     "over-target": "DIRTY OIL",
     "water-high": "WATER",
+    "new-element-high": "NEW HIGH",
 }
 
 
@@ -575,6 +576,9 @@ def status_from(
                 f"{cold.dp_at_start_bar:.2f} bar and open the bypass "
                 f"(below {cold.bypass_below_c:.0f} °C)"
             )
+    if numeric and (young := new_element_high(percent, numeric[-1].age_h)) is not None:
+        flags.append("new-element-high")
+        notes.append(young)
     last_seen = max(
         [p.at for p in points] + ([current.fitted_at] if current.fitted_at else []), default=None
     )
@@ -832,6 +836,27 @@ def unit_clock(book: Book, unit: Unit, now: datetime) -> UnitClock:
         sample=sample,
         hot=tuple(r.at for r in hot_readings(unit, recent)),  # type: ignore[arg-type, misc]
         water_ppm=water,
+    )
+
+
+# A new element is clean: half its change limit within its first three days (of service
+# hours on an hour meter) says something is wrong with it or with the system, long before a
+# due date would. # common practice, no source
+YOUNG_ELEMENT_H = 72.0
+YOUNG_ELEMENT_SHARE = 0.5
+
+
+def new_element_high(percent_of_limit: float | None, age_h: float) -> str | None:
+    """The note of the new-element flag for the latest reading's share of the change limit at
+    element age `age_h`, None when the element is older or still low."""
+    if percent_of_limit is None or age_h > YOUNG_ELEMENT_H:
+        return None
+    if percent_of_limit < 100 * YOUNG_ELEMENT_SHARE:
+        return None
+    return (
+        f"a new element already at {percent_of_limit:.0f} % of its change limit after "
+        f"{age_h:.0f} h: check it is the right element, seated and undamaged, that the clean "
+        "ΔP setting is right, and where the dirt comes from (take a fluid sample)"
     )
 
 

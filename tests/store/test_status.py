@@ -489,3 +489,19 @@ def test_water_over_the_limit_is_flagged_on_the_demo(demo_file, tmp_path):
         pr3 = next(u for u in views.watch(book).units if u.unit == "PR-3")
         assert "water-high" not in pr3.flags  # the newest sample rules
         assert status.water_flag(300.0) is None and status.water_flag(301.0) is not None
+
+
+def test_a_new_element_already_high_is_flagged(book):
+    # Issue 24: a new element at 77 % of its limit after 23 h got no word. P1-RF's change
+    # limit is 2.5 bar (tests/kit/plant.py); readings at its 50 °C reference condition.
+    t = book.now() - timedelta(hours=30)
+    record.log(book, ElementChange(filter="P1-RF", by="AB", at=t))
+    record.log(
+        book,
+        Reading(filter="P1-RF", dp_bar=0.77 * 2.5, temp_c=50, by="AB", at=t + timedelta(hours=23)),
+    )
+    f = one(views.watch(book), "P1-RF")
+    assert "new-element-high" in f.flags
+    assert any("77 % of its change limit after 23 h" in n for n in f.notes)
+    assert status.new_element_high(77.0, 100.0) is None  # an older element: its due date says
+    assert status.new_element_high(40.0, 10.0) is None  # a new one still low

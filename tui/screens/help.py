@@ -43,6 +43,7 @@ FLAG_MEANING = {
     "coarse-topup": "oil went in through a cart coarser than the unit's finest filter",
     "over-target": "the latest sample is dirtier than the unit's target code",
     "water-high": "the latest sample holds more water than the oil keeps dissolved (300 ppm)",
+    "new-element-high": "a new element is at half its change limit or more within 72 h",
 }
 
 COLUMNS = (
