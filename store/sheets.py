@@ -10,7 +10,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import datetime, timedelta
 
-from store.base.timeutil import ShiftSpan, next_shift
+from store.base.timeutil import ShiftSpan, format_utc, next_shift
 from store.db.book import Book
 from store.derived.statuscache import (
     filter_view,
@@ -21,7 +21,7 @@ from store.health.elements import Element, ElementSummary, meter_at, split_eleme
 from store.health.fluidcare import Consumption, sample_verdict
 from store.health.status import URGENT_FLAGS, BreatherStatus, Due, FilterStatus, UnitStatus, Watch
 from store.ledger.entries import Entry, Reading, Sample, TopUp
-from store.ledger.journal import MAX_DP_BAR, read
+from store.ledger.journal import MAX_DP_BAR, find_entry, read
 from store.ledger.register import (
     Breather,
     FilterPosition,
@@ -576,6 +576,29 @@ class ShiftLog:
     done: tuple[Entry, ...]  # the live entries (not voided, not voids)
     due_next: tuple[WatchRow, ...]  # due before the next shift ends, overdue ones first
     open_flags: tuple[WatchRow, ...]
+    # logged in this shift but dated before it (a change written up late): live ones
+    logged_late: tuple[Entry, ...] = ()
+
+
+LATE_LOOKBACK = timedelta(days=31)  # how far back a late write-up is looked for
+
+
+def logged_late(book: Book, span: ShiftSpan) -> list[Entry]:
+    """Live entries written during `span` but dated before it (up to LATE_LOOKBACK before):
+    an element change logged today for yesterday belongs in today's handover too, or the
+    next shift never hears of it. The time index bounds the scan."""
+    rows = book.conn.execute(
+        "SELECT id FROM entries WHERE at_utc >= ? AND at_utc < ? AND logged_utc >= ? "
+        "AND logged_utc < ? AND kind != 'void' ORDER BY at_utc, rowid",
+        [
+            format_utc(span.start - LATE_LOOKBACK),
+            format_utc(span.start),
+            format_utc(span.start),
+            format_utc(span.end),
+        ],
+    ).fetchall()
+    late = [find_entry(book, entry_id) for (entry_id,) in rows]
+    return [e for e in late if not e.voided]
 
 
 def shift_log(book: Book, span: ShiftSpan) -> ShiftLog:
@@ -596,6 +619,7 @@ def shift_log(book: Book, span: ShiftSpan) -> ShiftLog:
         done=tuple(done),
         due_next=tuple(due_next),
         open_flags=tuple(flagged),
+        logged_late=tuple(logged_late(book, span)),
     )
 
 

@@ -163,3 +163,27 @@ async def test_the_register_follows_the_first_run_guides_order(tmp_path, monkeyp
         await settle(pilot, RegisterScreen)
         await pilot.pause()
         assert app.screen.active() == "fluids"  # the next step, not the units tab
+
+
+async def test_a_back_dated_change_logged_this_shift_is_in_its_handover(demo_app):
+    from datetime import timedelta
+
+    from store import record
+    from store.db.book import open_book
+    from store.ledger.entries import ElementChange
+
+    with open_book(demo_app.path, create=False) as book:
+        yesterday = book.now() - timedelta(days=1)
+        record.log(
+            book,
+            ElementChange(filter="D2-K", reason="damage", condition="torn", by="AK", at=yesterday),
+        )
+    app = demo_app()
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        await pilot.press("2")
+        await settle(pilot, ShiftLogScreen)
+        handover = str(app.screen.query_one("#handover", Static).render())
+    assert "Logged this shift, dated earlier:" in handover
+    line = next(li for li in handover.splitlines() if li.strip().startswith("D2-K:"))
+    assert "element changed" in line and "by AK" in line

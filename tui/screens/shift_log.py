@@ -155,6 +155,14 @@ class ShiftLogScreen(BookScreen):
                     text.append(f"  {e.target or e.unit}: {describe(e, self.sb.prefs)}\n")
         else:
             text.append("Done: nothing logged\n")
+        if log.logged_late:
+            text.append("Logged this shift, dated earlier:\n", style="bold")
+            for e in log.logged_late:
+                when = fmt.stamp(e.at, local)
+                text.append(
+                    f"  {e.target or e.unit or ''}: {describe(e, self.sb.prefs)} "
+                    f"(dated {when}, by {e.by})\n"
+                )
         nxt = log.next_span
         text.append(
             f"Due by the end of the next shift ({nxt.name}, to "
