@@ -17,8 +17,10 @@ only through the names below; everything else they take from the upper layers di
 from store.db.backup import copy_holding_lock, restore, rolling_backup
 from store.db.book import Book, deep_check, full_check, open_book
 from store.db.connection import damaged_read
+from store.db.targets import refuse_input_as_output
 
 __all__ = [
+    "refuse_input_as_output",
     "Book",
     "copy_holding_lock",
     "damaged_read",

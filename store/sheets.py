@@ -10,19 +10,29 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import datetime, timedelta
 
-from store.base.timeutil import ShiftSpan, next_shift
+from store.base.timeutil import ShiftSpan, format_utc, next_shift
 from store.db.book import Book
 from store.derived.statuscache import (
     filter_view,
 )
-from store.health import status
+from store.health import status, urgency
 from store.health.conditions import contexts
 from store.health.elements import Element, ElementSummary, meter_at, split_elements
 from store.health.fluidcare import Consumption, sample_verdict
 from store.health.status import URGENT_FLAGS, BreatherStatus, Due, FilterStatus, UnitStatus, Watch
 from store.ledger.entries import Entry, Reading, Sample, TopUp
-from store.ledger.journal import read
-from store.ledger.register import Breather, FilterPosition, Fluid, Unit, find, get, list_all
+from store.ledger.journal import MAX_DP_BAR, find_entry, read
+from store.ledger.register import (
+    Breather,
+    FilterPosition,
+    Fluid,
+    Technician,
+    Unit,
+    find,
+    get,
+    list_all,
+    list_shifts,
+)
 from store.views import status_of, watch
 
 WEEK = timedelta(days=7)
@@ -62,21 +72,17 @@ class WatchRow:
 
     @property
     def tier(self) -> int:
-        """0 unfiltered oil passing or a damaged element now; 1 a cold start would bypass,
-        overdue or over the limit; 2 other flags; 3 nothing to say."""
-        if any(f in BYPASSING_NOW for f in self.flags):
-            return 0
-        if self.urgent or self.overdue or "over-limit" in self.flags:
-            return 1
-        return 2 if self.flags else 3
+        """Its group in the one order (store/health/urgency.py): 0 inspect now, 1 overdue or
+        over the limit, 2 another flag, 3 nothing pressing."""
+        return urgency.tier(self.flags, self.overdue)
 
     def sort_key(self) -> tuple:
-        due = self.due.likely.timestamp() if self.due else float("inf")
-        return (self.tier, due, -(self.percent_of_limit or 0.0), self.tag)
+        due = self.due.likely if self.due else None
+        return urgency.order_key(self.flags, self.overdue, due, self.percent_of_limit, self.tag)
 
 
-OVERDUE_STATES = ("check-now", "past-limit", "past-bypass")
-BYPASSING_NOW = ("dp-drop", "at-bypass", "indicator-bypass")
+OVERDUE_STATES = urgency.OVERDUE_STATES
+BYPASSING_NOW = urgency.URGENT_FLAGS
 
 
 def filter_row(f: FilterStatus, area: str, now: datetime) -> WatchRow:
@@ -472,6 +478,84 @@ def filter_status_of(book: Book, tag: str) -> FilterStatus | None:
     return status_of(book, contexts(book)[position.tag])
 
 
+SETUP_ORDER = ("techs", "fluids", "units", "filters", "shifts")  # the first-run guide's order
+
+
+def next_setup_step(book: Book) -> str:
+    """The first register step of the first-run guide's order that the book still lacks
+    (yourself, the fluids, the units, their filters, the shift pattern), "" when none: the
+    register screen opens there, so the guide and the screen agree."""
+    have = {
+        "techs": bool(list_all(book, Technician)),
+        "fluids": bool(list_all(book, Fluid)),
+        "units": bool(list_all(book, Unit)),
+        "filters": bool(list_all(book, FilterPosition)),
+        "shifts": bool(list_shifts(book)),
+    }
+    return next((step for step in SETUP_ORDER if not have[step]), "")
+
+
+# A ΔP this many times the bypass setting cannot have passed a working bypass valve, which
+# opens at its setting: far likelier a slipped decimal point (24 for 2.4). # common practice,
+# no source
+SLIP_TIMES = 5.0
+
+
+def reading_doubts(book: Book, reading: Reading) -> tuple[str, ...]:
+    """Why a reading about to be saved may be one nobody made, each a sentence (ΔP in bar);
+    empty when nothing looks wrong. The forms ask before saving; the CLI refuses without
+    --as-read. Two readings on one filter in the same minute moved a due date by two days."""
+    position = find(book, FilterPosition, reading.filter)
+    if position is None:
+        return ()
+    doubts = []
+    dp, bypass = reading.dp_bar, position.bypass_bar
+    if dp is not None and bypass and SLIP_TIMES * bypass <= dp <= MAX_DP_BAR:
+        doubts.append(
+            f"ΔP {dp:g} bar is {dp / bypass:.0f} times the bypass setting ({bypass:g} bar): "
+            f"a slipped decimal point ({dp / 10:g} bar)?"
+        )
+    minute = (reading.at or book.now()).replace(second=0, microsecond=0)
+    same = read(
+        book,
+        filter=position.tag,
+        since=minute,
+        until=minute + timedelta(minutes=1),
+        kinds=["reading"],
+        include_voided=False,
+    )
+    if same:
+        e = same[-1]
+        what = f"ΔP {e.dp_bar:g} bar" if e.dp_bar is not None else f"indicator {e.indicator}"
+        doubts.append(
+            f"{position.tag} has a reading in this minute already ({what} by {e.by}): "
+            "the same reading twice?"
+        )
+    return tuple(doubts)
+
+
+# Near the limit a change counts as "at the change limit"; further below, the form does not
+# guess why the element came out. 80 % of the limit # common practice, no source
+LIMIT_REASON_SHARE = 0.8
+
+
+def likely_change_reason(f: FilterStatus | None) -> str:
+    """The reason an element change form offers for a filter in state `f`: "bypass" when it
+    was bypassing, "limit" from LIMIT_REASON_SHARE of the change limit on, "indicator" when
+    the indicator showed dirty; "" (the technician chooses) otherwise: at 46 % of the limit
+    the element came out for some other reason."""
+    if f is None:
+        return ""
+    if f.indicator == "bypass" or "at-bypass" in f.flags:
+        return "bypass"
+    percent = f.percent_of_limit
+    if percent is not None and percent >= 100 * LIMIT_REASON_SHARE:
+        return "limit"
+    if f.indicator == "dirty":
+        return "indicator"
+    return ""
+
+
 def breather_status_of(book: Book, tag: str) -> BreatherStatus | None:
     breather = find(book, Breather, tag)
     if breather is None:
@@ -494,6 +578,29 @@ class ShiftLog:
     done: tuple[Entry, ...]  # the live entries (not voided, not voids)
     due_next: tuple[WatchRow, ...]  # due before the next shift ends, overdue ones first
     open_flags: tuple[WatchRow, ...]
+    # logged in this shift but dated before it (a change written up late): live ones
+    logged_late: tuple[Entry, ...] = ()
+
+
+LATE_LOOKBACK = timedelta(days=31)  # how far back a late write-up is looked for
+
+
+def logged_late(book: Book, span: ShiftSpan) -> list[Entry]:
+    """Live entries written during `span` but dated before it (up to LATE_LOOKBACK before):
+    an element change logged today for yesterday belongs in today's handover too, or the
+    next shift never hears of it. The time index bounds the scan."""
+    rows = book.conn.execute(
+        "SELECT id FROM entries WHERE at_utc >= ? AND at_utc < ? AND logged_utc >= ? "
+        "AND logged_utc < ? AND kind != 'void' ORDER BY at_utc, rowid",
+        [
+            format_utc(span.start - LATE_LOOKBACK),
+            format_utc(span.start),
+            format_utc(span.start),
+            format_utc(span.end),
+        ],
+    ).fetchall()
+    late = [find_entry(book, entry_id) for (entry_id,) in rows]
+    return [e for e in late if not e.voided]
 
 
 def shift_log(book: Book, span: ShiftSpan) -> ShiftLog:
@@ -514,6 +621,7 @@ def shift_log(book: Book, span: ShiftSpan) -> ShiftLog:
         done=tuple(done),
         due_next=tuple(due_next),
         open_flags=tuple(flagged),
+        logged_late=tuple(logged_late(book, span)),
     )
 
 

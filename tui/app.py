@@ -40,7 +40,7 @@ from store.sheets import (
     filter_status_of,
     tag_index,
 )
-from tui.base.keys import bind
+from tui.base.keys import KEYS, bind
 from tui.base.workers import guarded, read_early
 from tui.screens.common import long_name
 from tui.screens.first_run import FirstRunScreen
@@ -273,11 +273,19 @@ class SumpbookApp(App[None]):
 
     @guarded
     def action_go(self, mode: str) -> None:
+        """1, 2, 3: that list itself, never a sheet left open on top of it in its mode (`1`
+        from the shift log landed on a unit sheet opened earlier from the watch list)."""
         if self.current_mode != mode:
             self.switch_mode(mode)
+            self.call_after_refresh(self.to_base_of, mode)
         else:
-            while len(self.screen_stack) > 1:
-                self.pop_screen()
+            self.to_base_of(mode)
+
+    def to_base_of(self, mode: str) -> None:
+        if self.current_mode != mode:
+            return
+        while len(self.screen_stack) > 1 and not isinstance(self.screen, ModalScreen):
+            self.pop_screen()
 
     @guarded
     def open_sheet(self, what: str, tag: str, unit: str) -> None:
@@ -402,20 +410,21 @@ class SumpbookApp(App[None]):
         self.push_screen(HelpScreen(name, here, anywhere, elsewhere))
 
     def get_system_commands(self, screen: Screen) -> Any:
-        """Every action of the app and of the screen, by name, in the command palette."""
-        yield from super().get_system_commands(screen)
+        """Every action of the app and of the screen, by name, in the command palette: ours
+        only (the framework's own theme picker, key panel, maximise and screenshot are not
+        this app's), each with its key as the help screen writes it ("/", "?")."""
         seen = set()
         for node, bindings in ((self, self.BINDINGS), (screen, type(screen).BINDINGS)):
             for b in bindings:
                 if not isinstance(b, Binding) or not b.description or b.action in seen:
                     continue
-                if b.action in ("quit", "quit_now", "command_palette"):
+                if b.action in ("quit_now", "command_palette"):
                     continue
                 seen.add(b.action)
-                keys = b.key.split(",")[0]
+                shown = KEYS[b.id].shown if b.id in KEYS else b.key.split(",")[0]
                 yield SystemCommand(
                     long_name(b),
-                    f"key {keys}",
+                    f"key {shown}",
                     lambda n=node, a=b.action: self.run_action(a, n),
                 )
         for name in THEMES:

@@ -89,17 +89,43 @@ def from_l(value_l: float, unit: str) -> float:
     return value_l / _L_PER[volume_key(unit)]
 
 
-_NUMBER_WITH_UNIT = re.compile(
-    r"^\s*([-+]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][-+]?\d+)?)\s*([^\d\s].*)?$"
-)
+_NUMBER = r"[-+]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][-+]?\d+)?"
+# A unit starts with a letter or a degree sign: '1..3' is no number with the unit '.3'.
+_NUMBER_WITH_UNIT = re.compile(rf"^\s*({_NUMBER})\s*((?:[^\W\d_]|°).*)?$")
+# '1,250' is 1.25 where the comma is the decimal sign and 1250 where it groups thousands.
+_AMBIGUOUS_COMMA = re.compile(r"^([-+]?[1-9]\d{0,2}),(\d{3})$")
+
+
+class AmbiguousNumberError(UnitError):
+    """A typed number that reads two ways ('1,250': 1.25 or 1250)."""
+
+
+def read_number(text: str) -> float:
+    """The one reading of a typed number, for every door a person types at (forms, CLI).
+
+    A comma may stand for the decimal point ('12,5' is 12.5); a comma with exactly three
+    digits after it and no other sign ('1,250') could be a thousands separator, so it is
+    refused with a question rather than read either way. Words, 'inf' and 'nan' are refused.
+    """
+    t = (text or "").strip()
+    both = _AMBIGUOUS_COMMA.match(t)
+    if both:
+        point, whole = f"{both.group(1)}.{both.group(2)}", both.group(1) + both.group(2)
+        raise AmbiguousNumberError(
+            f"'{t}' reads two ways: {float(point):g} or {int(whole)}? Type the one you mean"
+        )
+    if not re.fullmatch(_NUMBER, t):
+        raise UnitError(f"'{text}' is not a number")
+    return float(t.replace(",", "."))
 
 
 def split_quantity(text: str, default_unit: str) -> tuple[float, str]:
-    """'18 psi' -> (18.0, 'psi'); '1,2' -> (1.2, default). A comma may stand for the point."""
+    """'18 psi' -> (18.0, 'psi'); '1,2' -> (1.2, default). A comma may stand for the point
+    (read_number: '1,250' is refused as ambiguous)."""
     match = _NUMBER_WITH_UNIT.match(text or "")
     if not match:
-        raise UnitError(f"'{text}' is not a number")
-    number = float(match.group(1).replace(",", "."))
+        raise UnitError(f"'{(text or '').strip()}' is not a number")
+    number = read_number(match.group(1))
     return number, (match.group(2) or default_unit).strip()
 
 

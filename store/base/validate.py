@@ -20,6 +20,7 @@ from typing import Any
 from dateutil import tz
 
 from store.base.errors import BookError
+from store.base.units import AmbiguousNumberError, read_number
 
 # The kinds a book knows; the schema's CHECK constraints are written from these.
 FILTER_KINDS = ("suction-strainer", "suction", "pressure", "return", "offline")
@@ -104,12 +105,14 @@ def number(field: str, value: Any) -> float | int | None:
 
 
 def parse_number(field: str, text: str) -> float:
-    """Typed text -> a number in range ('1,5' is 1.5); 'inf', 'nan' and words are refused."""
+    """Typed text -> a number in range (units.read_number: '1,5' is 1.5, '1,250' is asked
+    about); 'inf', 'nan' and words are refused."""
     spec = RANGES[field]
-    clean = (text or "").strip().replace(",", ".")
     try:
-        value = float(clean)
-    except ValueError:
+        value = read_number(text)
+    except AmbiguousNumberError as exc:
+        raise BookError(f"{spec.label} {exc}") from None
+    except BookError:
         raise BookError(f"{spec.label} '{one_line(text, 30)}' is not a number") from None
     return number(field, value)  # type: ignore[return-value]
 

@@ -62,7 +62,9 @@ from store.ledger.journal import element_items, parse_stamp
 from store.ledger.register import FilterPosition, Unit, find, list_all
 from store.physics.normalise import ColdStart
 
-FORMAT = 4  # bump when the stored status shape changes: old rows are then recomputed
+FORMAT = 5  # bump when the stored status shape or its rules change: old rows are recomputed
+# (4: next-reading time; 5: the ΔP drop on same-minute readings and steep rises, STEP UP
+# words, NEW HIGH)
 _SKIP = ("history", "forecast", "age_to_time", "clock")
 _TIMES = ("reading_at", "changed_at", "overdue_at", "next_reading")
 _utc = parse_stamp
@@ -380,7 +382,7 @@ def refresh_stale(book: Book, limit: int | None = None) -> list[str]:
 
 # ---- units ---------------------------------------------------------------------------------------
 
-UNIT_FORMAT = 3
+UNIT_FORMAT = 4  # 4: the newest sample's water content kept (a key on old rows recomputes them)
 
 
 def _unit_key(unit: Unit, filters: Sequence[FilterPosition]) -> str:
@@ -404,6 +406,7 @@ def _encode_unit(clock: UnitClock) -> str:
             ],
             "sample": clock.sample,
             "hot": [format_utc(at) for at in clock.hot],
+            "water": clock.water_ppm,
         },
         ensure_ascii=False,
     )
@@ -422,6 +425,7 @@ def _decode_unit(text: str, tag: str) -> UnitClock:
         ),
         sample=tuple(data["sample"]) if data["sample"] else None,  # type: ignore[arg-type]
         hot=tuple(_utc(at) for at in data["hot"]),
+        water_ppm=data.get("water"),
     )
 
 

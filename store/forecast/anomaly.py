@@ -8,7 +8,9 @@ An element only loads: its ΔP at reference conditions rises, slowly and then fa
   after a repair, a top-up through no filter, a failing component upstream.
 
 Both look only at the newest reading against the ones before it, so they can run after every
-saved reading. Readings are (age_h, dp_bar) pairs, sorted by age, of one element since its change.
+saved reading. Readings are (age_h, dp_bar) pairs, sorted by age, of one element since its change;
+`age_ordered` sorts them so that readings of one age (the same minute) stay in the order they were
+logged: the newest is the last logged, whatever its value.
 """
 
 from __future__ import annotations
@@ -31,6 +33,7 @@ STEP_MIN_SHARE = 0.25  # ...and a quarter of the rise the trend expected since c
 STEP_RATE_TIMES = 4.0  # and ΔP must rise 4 times faster than over any of the 3 intervals before
 STEP_MIN_READINGS = 4  # readings before the newest one needed to know the trend
 DROP_MIN_READINGS = 3  # readings before the newest one needed to know the level
+DROP_TREND_QUANTILE = 0.1  # the trend's level a fall is measured from: its low end
 
 
 class ReadingsOrderError(BookError):
@@ -58,6 +61,16 @@ def _arrays(readings: Sequence[tuple[float, float]]) -> tuple[np.ndarray, np.nda
     if np.any(np.diff(t) < 0):
         raise ReadingsOrderError("readings must be sorted by element age")
     return t, y
+
+
+def age_ordered(readings: Sequence[tuple[float, float]]) -> list[tuple[float, float]]:
+    """(age_h, dp_bar) pairs, given in the order they were logged, sorted by age only.
+
+    A stable sort: two readings at one age keep their logging order. Sorting the pairs whole
+    put a lower reading before a higher one of the same minute, so a halved reading logged
+    right after another hid behind it and raised no ΔP drop.
+    """
+    return sorted(readings, key=lambda pair: pair[0])
 
 
 def gauge_step_bar(dp_bar: np.ndarray) -> float:
@@ -98,7 +111,10 @@ def drop_without_change(
     """Flag the newest reading if ΔP fell clearly below the element's earlier level.
 
     The earlier level is the highest median of three successive earlier readings, so one high
-    reading does not make the rest look like a fall. `noise` (bar) overrides the scatter estimate.
+    reading does not make the rest look like a fall; when the newest reading is clearly below
+    the one before, also the low end of the element's trend at that reading (on a steep rise
+    the median of three lags behind what the element had reached). `noise` (bar) overrides the
+    scatter estimate.
     """
     t, y = _arrays(readings)
     if y.size < DROP_MIN_READINGS + 1:
@@ -110,11 +126,17 @@ def drop_without_change(
     medians = np.sort(np.lib.stride_tricks.sliding_window_view(before, k), axis=1)[:, k // 2]
     i_level = int(np.argmax(medians))
     level = float(medians[i_level])
+    since = float(t[i_level + k - 1])
     sigma = noise if noise is not None else noise_bar(y)
+    if float(y[-2]) - float(y[-1]) > DROP_NOISE_TIMES * sigma:
+        # On a steep rise the median of three lags the recent readings: the element's own
+        # trend at the reading before says what level the newest fell from.
+        trend_level = _trend_level_bar(t[:-1], before, sigma)
+        if trend_level > level:
+            level, since = trend_level, float(t[-2])
     fall = level - float(y[-1])
     if fall <= DROP_NOISE_TIMES * sigma or fall <= DROP_MIN_SHARE * abs(level):
         return None
-    since = float(t[i_level + k - 1])
     return Flag(
         kind="drop",
         age_h=float(t[-1]),
@@ -127,6 +149,20 @@ def drop_without_change(
         ),
         advice="check for a torn, collapsed or missing element or a bypass valve stuck open",
     )
+
+
+def _trend_level_bar(t: np.ndarray, y: np.ndarray, sigma: float) -> float:
+    """The low end (DROP_TREND_QUANTILE) of the growth curves fitted to readings `t`, `y`,
+    at the age of the last of them: what a loading element had reached by then, one stray
+    reading damped by the robust fit. -inf when there are too few readings to fit."""
+    ages, dp, counts = prepare_readings(t, y)
+    if ages.size < STEP_MIN_READINGS or ages[-1] <= 0:
+        return -math.inf
+    floor = max(sigma, 1e-3 * float(np.max(np.abs(dp))), 1e-12)
+    values, weights = fit_trend(ages, dp, counts, None, floor).values_at(float(ages[-1]))
+    if values.size == 0:
+        return -math.inf
+    return float(weighted_quantiles(values, weights, (DROP_TREND_QUANTILE,))[0])
 
 
 def step_up(readings: Sequence[tuple[float, float]], noise: float | None = None) -> Flag | None:
@@ -164,15 +200,23 @@ def step_up(readings: Sequence[tuple[float, float]], noise: float | None = None)
     )
     if jump <= need:
         return None
+    # A ΔP does not fall below the reading before on a loading element: where the fitted trend
+    # ran below it (a falling fit extrapolated, even below zero), say what the reading before
+    # was instead of a level no gauge could show.
+    before = float(dp[-2])
+    if expected >= before:
+        level, words = float(expected), f"where the element's trend expected about {expected:.3g}"
+    else:
+        level, words = before, f"from {before:.3g}"
     return Flag(
         kind="step-up",
         age_h=float(ages[-1]),
         dp_bar=float(dp[-1]),
-        expected_bar=float(expected),
+        expected_bar=level,
         urgent=False,
         reason=(
-            f"ΔP jumped to {dp[-1]:.3g} bar where the element's trend expected about "
-            f"{expected:.3g} bar (dirt coming in, as after a repair or a top-up)"
+            f"ΔP jumped to {dp[-1]:.3g} bar {words} bar (dirt coming in, as after a repair or "
+            "a top-up)"
         ),
         advice="take a fluid sample and check recent work, top-ups and the breather",
     )

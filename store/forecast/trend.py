@@ -271,6 +271,10 @@ def forecast(
     # The element had not reached the lowest level still ahead when it was last read.
     weights = np.where(ages[0] > t_last, weights, 0.0)
     intervals = [_interval(a, weights) for a in ages]
+    if basis == "trend":
+        intervals = _sooner_earliest(
+            intervals, trend.crossings(tuple(levels), trend.open_weights), t_last
+        )
     to_limit = intervals[0] if state == "ok" else None
     to_bypass = intervals[-1] if bypass is not None else None
     if basis == "earlier-curves":
@@ -308,6 +312,32 @@ def forecast(
     ends = [now_age_h, t_last] + [iv.likely_h for iv in (to_limit, to_bypass) if iv is not None]
     curve = _sample_curve(dp_at, 1.1 * max(ends))
     return Forecast(state, basis, model, to_limit, to_bypass, note, curve, n)
+
+
+def _sooner_earliest(
+    intervals: list[AgeInterval | None],
+    open_cloud: tuple[np.ndarray, np.ndarray],
+    t_last: float,
+) -> list[AgeInterval | None]:
+    """Each interval with its earliest age the sooner of its own and that of the same curves
+    weighed by plain AIC (TrendFit.open_weights).
+
+    With few readings AICc charges a curved shape's extra parameter so much that a straight
+    line carries the cloud even where the readings clearly bend up, and its earliest date
+    could come after the crossing (issue 23: 8 accelerating readings on a new book). A loading
+    curve bends up (DOMAIN.md §4), so the line is the hopeful shape: the pessimistic end must
+    not rest on the small-sample charge. The likely and latest ages stay as they were.
+    """
+    ages, weights = open_cloud
+    weights = np.where(ages[0] > t_last, weights, 0.0)
+    out: list[AgeInterval | None] = []
+    for iv, row in zip(intervals, ages, strict=True):
+        if iv is None or not np.any(weights > 0):
+            out.append(iv)
+            continue
+        (soon,) = weighted_quantiles(row, weights, (EARLIEST_P,))
+        out.append(AgeInterval(min(iv.earliest_h, soon), iv.likely_h, iv.latest_h))
+    return out
 
 
 _Z90 = 1.6448536269514722  # standard normal 95 % point: the 5-95 % interval is ±_Z90 sd

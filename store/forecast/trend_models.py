@@ -224,6 +224,9 @@ class TrendFit:
     fits: tuple[_Fit, ...]
     aicc: tuple[float, ...]
     model_weights: tuple[float, ...]
+    # The shapes weighed by plain AIC, without AICc's small-sample charge: with 8 readings that
+    # charge made a straight line win over readings that clearly bend up (see open_weights).
+    open_weights: tuple[float, ...] = ()
 
     @property
     def best(self) -> _Fit:
@@ -246,13 +249,15 @@ class TrendFit:
         phi = _phi(fit.family, fit.theta[i : i + 1], u)[0]
         return fit.c[i] + fit.a[i] * phi
 
-    def _draws(self):
-        """Per shape: (fit, theta, c draws, A draws, weights), coefficient draws per theta row."""
+    def _draws(self, model_weights: tuple[float, ...] | None = None):
+        """Per shape: (fit, theta, c draws, A draws, weights), coefficient draws per theta row;
+        the shapes weighed by `model_weights` (default: the AICc weights)."""
         dof = max(self.n_points - 2.0, 1.0)
         # The chi-square quantiles, as scipy.stats.chi2.ppf works them out (2 x the inverse
         # regularised lower gamma at dof / 2): scipy.special loads in a third of the time.
         sig_draw = self.sigma_bar * np.sqrt(dof / (2 * special.gammaincinv(dof / 2, _U)))
-        for fit, mw in zip(self.fits, self.model_weights, strict=True):
+        shape_weights = self.model_weights if model_weights is None else model_weights
+        for fit, mw in zip(self.fits, shape_weights, strict=True):
             if mw < 1e-4:
                 continue
             tw = np.exp(-(fit.loss - np.min(fit.loss)))
@@ -268,13 +273,17 @@ class TrendFit:
             ad = a[:, None] + sd * (l10[:, None] * _Z[None, :, 0] + l11[:, None] * _Z[None, :, 1])
             yield fit, th, cd, ad, np.repeat(mw * tw[keep] / _N_DRAWS, _N_DRAWS)
 
-    def crossings(self, levels_bar: tuple[float, ...]) -> tuple[np.ndarray, np.ndarray]:
-        """Crossing ages (one row per level) and weights of a cloud of plausible curves.
+    def crossings(
+        self, levels_bar: tuple[float, ...], model_weights: tuple[float, ...] | None = None
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """Crossing ages (one row per level) and weights of a cloud of plausible curves, the
+        shapes weighed by `model_weights` (default: the AICc weights; `open_weights` for the
+        pessimistic side, see store.forecast.trend.forecast).
 
         Ages are np.inf where a drawn curve never reaches the level.
         """
         ages, weights = [], []
-        for fit, th, cd, ad, wt in self._draws():
+        for fit, th, cd, ad, wt in self._draws(model_weights):
             rows = []
             for level in levels_bar:
                 with np.errstate(divide="ignore", invalid="ignore"):
@@ -333,6 +342,8 @@ def fit_trend(
     a = np.array([aicc(float(np.min(f.loss)), f.family.n_params, n) for f in fits])
     mw = np.exp(-0.5 * (a - a.min()))
     mw = mw / mw.sum()
+    plain = np.array([2 * f.family.n_params + 2 * float(np.min(f.loss)) for f in fits])
+    ow = np.exp(-0.5 * (plain - plain.min()))
     return TrendFit(
         t_scale_h=scale,
         sigma_bar=sigma,
@@ -340,4 +351,5 @@ def fit_trend(
         fits=fits,
         aicc=tuple(float(x) for x in a),
         model_weights=tuple(float(x) for x in mw),
+        open_weights=tuple(float(x) for x in ow / ow.sum()),
     )

@@ -7,7 +7,7 @@ Flag codes (also listed in the README):
   filters   dp-drop, step-up, fast-loading, at-bypass, over-limit, indicator-bypass,
             indicator-dirty, cold-start-bypass, reading-overdue, hot, no-limits
   breathers swap-overdue, desiccant-spent
-  units     leak-suspect, unfiltered-topup, coarse-topup, over-target, hot
+  units     leak-suspect, unfiltered-topup, coarse-topup, over-target, water-high, hot
 """
 
 from __future__ import annotations
@@ -24,6 +24,7 @@ from dateutil import tz
 from store.base.errors import BookError
 from store.base.timeutil import iso_local
 from store.db.book import Book
+from store.health import urgency as ranking
 from store.health.conditions import FilterContext, contexts_from, shortest_read_h
 from store.health.elements import (
     Element,
@@ -55,8 +56,9 @@ if TYPE_CHECKING:  # the fitting maths (numpy, scipy) load on first use: a watch
     from store.forecast import trend  # from the status cache needs none of it
     from store.forecast.life import WeibullFit
 
-# Dirty oil is reaching the system now (or the element is gone): these sort first.
-URGENT_FLAGS = ("dp-drop", "at-bypass", "indicator-bypass")
+# Dirty oil is reaching the system now (or the element is gone): these sort first. The one
+# order of the watch list lives in store/health/urgency.py.
+URGENT_FLAGS = ranking.URGENT_FLAGS
 HOT_LOOKBACK = timedelta(days=7)
 FLAG_WORDS = {
     "dp-drop": "ΔP DROP",
@@ -66,7 +68,7 @@ FLAG_WORDS = {
     "over-limit": "OVER LIMIT",
     "indicator-bypass": "IND BYPASS",
     "indicator-dirty": "IND DIRTY",
-    "cold-start-bypass": "COLD START",
+    "cold-start-bypass": "cold start",  # a caution, not an alarm (store/health/urgency.py)
     "reading-overdue": "READ DUE",
     "hot": "HOT",
     "no-limits": "NO LIMITS",
@@ -76,6 +78,8 @@ FLAG_WORDS = {
     "unfiltered-topup": "UNFILTERED",
     "coarse-topup": "COARSE FILL",
     "over-target": "DIRTY OIL",
+    "water-high": "WATER",
+    "new-element-high": "NEW HIGH",
 }
 
 
@@ -267,15 +271,11 @@ class FilterStatus:
 
     @property
     def urgency(self) -> tuple:
-        urgent = any(f in URGENT_FLAGS for f in self.flags)
-        due_key = self.due.likely.timestamp() if self.due else float("inf")
-        return (
-            0 if urgent else 1,
-            0 if "over-limit" in self.flags else 1,
-            due_key,
-            -(self.percent_of_limit or 0),
-            self.filter,
-        )
+        """Its place in the one order (store/health/urgency.py); overdue as the clock the
+        status was worked out at saw it (at_time sets check-now)."""
+        overdue = self.state in ranking.OVERDUE_STATES
+        due = self.due.likely if self.due else None
+        return ranking.order_key(self.flags, overdue, due, self.percent_of_limit, self.filter)
 
 
 @dataclass(frozen=True)
@@ -288,8 +288,8 @@ class BreatherStatus:
 
     @property
     def urgency(self) -> tuple:
-        due = self.forecast.due.timestamp() if self.forecast.due else float("inf")
-        return (0 if self.flags else 1, due, self.breather)
+        fc = self.forecast
+        return ranking.order_key(self.flags, fc.overdue, fc.due, None, self.breather)
 
 
 @dataclass(frozen=True)
@@ -552,8 +552,9 @@ def status_from(
         flags.append("indicator-bypass")
     elif last and last.indicator == "dirty":
         flags.append("indicator-dirty")
-    # In age order: a late entry or an hour meter read out of turn must not stop a save.
-    series = sorted((p.age_h, p.dp_ref_bar) for p in numeric)
+    # In age order: a late entry or an hour meter read out of turn must not stop a save; at
+    # one age, in logging order (the newest last, whatever its value).
+    series = anomaly.age_ordered([(p.age_h, p.dp_ref_bar) for p in numeric])
     drop = anomaly.drop_without_change(series)
     if drop is not None:
         flags.append("dp-drop")
@@ -577,6 +578,9 @@ def status_from(
                 f"{cold.dp_at_start_bar:.2f} bar and open the bypass "
                 f"(below {cold.bypass_below_c:.0f} °C)"
             )
+    if numeric and (young := new_element_high(percent, numeric[-1].age_h)) is not None:
+        flags.append("new-element-high")
+        notes.append(young)
     last_seen = max(
         [p.at for p in points] + ([current.fitted_at] if current.fitted_at else []), default=None
     )
@@ -828,6 +832,7 @@ class UnitClock:
     topups: tuple[TopUp, ...]  # the later live top-ups, oldest first
     sample: tuple[str | None, str, bool | None] | None  # latest sample: code, words, meets
     hot: tuple[datetime, ...]  # readings over the unit's limit that can still count
+    water_ppm: float | None = None  # water in the newest sample that says
 
 
 def unit_clock(book: Book, unit: Unit, now: datetime) -> UnitClock:
@@ -843,7 +848,7 @@ def unit_clock(book: Book, unit: Unit, now: datetime) -> UnitClock:
     early_l = 0  # as topup_consumption adds them up
     for t in early:
         early_l += t.volume_l  # type: ignore[attr-defined]
-    samples = [
+    newest = [
         e
         for e in read(
             book,
@@ -854,8 +859,10 @@ def unit_clock(book: Book, unit: Unit, now: datetime) -> UnitClock:
             newest_first=True,
             limit=5,
         )
-        if not e.voided and e.code
-    ]  # type: ignore[attr-defined]
+        if not e.voided
+    ]
+    samples = [e for e in newest if e.code]  # type: ignore[attr-defined]
+    water = next((e.water_ppm for e in newest if e.water_ppm is not None), None)  # type: ignore[attr-defined]
     sample = None
     if samples:
         verdict = sample_verdict(unit, samples[0])  # type: ignore[arg-type]
@@ -880,6 +887,44 @@ def unit_clock(book: Book, unit: Unit, now: datetime) -> UnitClock:
         topups=tuple(topups[len(early) :]),  # type: ignore[arg-type]
         sample=sample,
         hot=tuple(r.at for r in hot_readings(unit, recent)),  # type: ignore[arg-type, misc]
+        water_ppm=water,
+    )
+
+
+# A new element is clean: half its change limit within its first three days (of service
+# hours on an hour meter) says something is wrong with it or with the system, long before a
+# due date would. # common practice, no source
+YOUNG_ELEMENT_H = 72.0
+YOUNG_ELEMENT_SHARE = 0.5
+
+
+def new_element_high(percent_of_limit: float | None, age_h: float) -> str | None:
+    """The note of the new-element flag for the latest reading's share of the change limit at
+    element age `age_h`, None when the element is older or still low."""
+    if percent_of_limit is None or age_h > YOUNG_ELEMENT_H:
+        return None
+    if percent_of_limit < 100 * YOUNG_ELEMENT_SHARE:
+        return None
+    return (
+        f"a new element already at {percent_of_limit:.0f} % of its change limit after "
+        f"{age_h:.0f} h: check it is the right element, seated and undamaged, that the clean "
+        "ΔP setting is right, and where the dirt comes from (take a fluid sample)"
+    )
+
+
+# Water in mineral hydraulic oil above about 300 ppm is past what the oil holds dissolved near
+# its working temperature: free water, rust, additive loss. # from memory (a usual alarm level;
+# the fluid maker's figure rules)
+WATER_LIMIT_PPM = 300.0
+
+
+def water_flag(water_ppm: float | None) -> str | None:
+    """The note of the water flag for the newest sample's water content, None under the limit."""
+    if water_ppm is None or water_ppm <= WATER_LIMIT_PPM:
+        return None
+    return (
+        f"latest sample holds {water_ppm:g} ppm water (over {WATER_LIMIT_PPM:g} ppm): find "
+        "where it gets in (breather, seals, cooler, washdown) and dry or change the oil"
     )
 
 
@@ -908,6 +953,9 @@ def unit_at(
         if meets is False:
             flags.append("over-target")
             notes.append(f"latest sample {sample_text}")
+    if (water := water_flag(clock.water_ppm)) is not None:
+        flags.append("water-high")
+        notes.append(water)
     if any(now - at <= HOT_LOOKBACK for at in clock.hot):
         flags.append("hot")
     return UnitStatus(

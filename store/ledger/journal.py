@@ -52,13 +52,34 @@ def _text(name: str, value: str, limit: int | None = None) -> str:
     return validate_value.text(name, value, limit, multiline=name == "note")
 
 
+def _target_problem(book: Book, entry: Entry) -> str:
+    """Why the entry's filter, breather or unit tag is not in the register ("" when it is)."""
+    cls = {"filters": FilterPosition, "breathers": Breather}.get(entry.target_table)
+    tag = entry.target if cls is not None else entry.unit
+    if cls is None and entry.target_table == "units" and entry.unit:
+        cls = Unit
+    if cls is None or not tag:
+        return ""
+    try:
+        get(book, cls, tag)
+    except BookError as exc:
+        return str(exc)
+    return ""
+
+
 def validate(book: Book, entry: Entry, now: datetime | None = None) -> Entry:
     """Return the entry completed (tags normalised, unit filled) or raise BookError."""
     now = now or book.now()
     changes: dict[str, Any] = {}
     if not entry.by:
         raise BookError("who made this entry? give the technician's initials")
-    tech = get(book, Technician, entry.by)
+    try:
+        tech = get(book, Technician, entry.by)
+    except BookError as exc:
+        # The tag typed or scanned is said first (with its suggestion): a mistyped 'M1R'
+        # was answered only with "unknown technician".
+        target = _target_problem(book, entry)
+        raise BookError(f"{target}; also {exc}" if target else str(exc)) from None
     if not tech.active:
         raise BookError(
             f"technician {tech.tag} is marked inactive: sign in as someone else, or make "

@@ -669,7 +669,9 @@ def main(argv: list[str] | None = None) -> int:
         query_times.append(_time_cmd(query_cmd, env, 1))
     status_s, query_s = _med(status_times), _med(query_times)
     python_s = _time_cmd([sys.executable, "-c", "pass"], env, args.runs)
-    imports = "import tui.cli, store.health.status, store.derived.statuscache"  # what status --json loads
+    imports = (
+        "import tui.cli, store.health.status, store.derived.statuscache"  # what status --json loads
+    )
     imports_s = _time_cmd([sys.executable, "-c", imports], env, args.runs)
     print(f"status --json: {status_s:.3f} s, query: {query_s:.3f} s, python: {python_s:.3f} s",
           flush=True)  # fmt: skip

@@ -119,6 +119,14 @@ def test_void_through_the_cli(plant, capsys):
         (["log", "void", "abcdef12", "--reason", "x"], "no entry"),
         (["log", "topup", "P9", "--volume", "5", "--unfiltered"], "unknown unit"),
         (["log", "reading", "P1-RF", "--dp", "1", "--by", "QQ"], "unknown technician"),
+        # issue 23: a decimal comma with three digits reads two ways: asked, never guessed
+        (["log", "reading", "P1-RF", "--dp", "1,250"], "1.25 or 1250?"),
+        (["log", "reading", "P1-RF", "--dp", "1", "--flow", "1,250"], "1.25 or 1250?"),
+        (["log", "reading", "P1-RF", "--dp", "1", "--hours", "2,500"], "2.5 or 2500?"),
+        # issue 24: the mistyped tag is named with its suggestion, not only the technician
+        (["log", "reading", "P1RF", "--dp", "1", "--by", "QQ"], "did you mean P1-RF"),
+        # issue 24: not "unknown pressure unit '.3'"
+        (["log", "reading", "P1-RF", "--dp", "1..3"], "'1..3' is not a number"),
     ],
 )
 def test_bad_input_is_one_line_nonzero_and_writes_nothing(plant, capsys, argv, message):
@@ -257,8 +265,11 @@ def test_register_change_is_logged(plant, capsys):
 
 
 def test_status_json_has_the_documented_fields(plant, capsys):
-    for dp in ("0.6", "0.7", "0.8"):
-        run(capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", dp, "--temp", "50")
+    for hour, dp in ((7, "0.6"), (8, "0.7"), (9, "0.8")):  # three minutes apart at least
+        at = f"2026-01-05T0{hour}:00"
+        run(
+            capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", dp, "--temp", "50", "--at", at
+        )
     code, out, err = run(capsys, "--db", plant, "status", "--json")
     assert code == 0, err
     data = json.loads(out)
@@ -357,3 +368,56 @@ def test_a_fixed_clock_that_is_not_a_time_gets_one_line_and_nothing_is_read(monk
     assert (
         err.startswith("sumpbook: SUMPBOOK_NOW='garbage' is not a time") and "Traceback" not in err
     )
+
+
+def test_the_cli_reads_a_decimal_comma_in_every_number_as_the_forms_do(plant, capsys):
+    # issue 23: `--flow 12,5` was refused while `--dp 1,4` was accepted
+    code, out, err = run(
+        capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "1,4", "--flow", "12,5"
+    )
+    assert code == 0, err
+    assert "ΔP 1.40 bar" in out and "12.5 L/min" in out
+    code, out, err = run(capsys, "--db", plant, "log", "sample", "P1", "--water", "0,250")
+    assert code == 0, err  # a leading 0 reads one way only: 0.25
+
+
+def test_register_on_a_path_with_no_logbook_says_it_made_a_new_one(tmp_path, capsys):
+    # issue 23: a mistyped --db silently became a second logbook
+    db = tmp_path / "typo.db"
+    code, out, err = run(capsys, "--db", str(db), "register", "tech", "AB")
+    assert code == 0 and db.exists()
+    assert "no logbook at" in err and "new, empty one was created" in err
+    code, out, err = run(capsys, "--db", str(db), "register", "tech", "CD")
+    assert code == 0 and "no logbook" not in err  # said once, when it happened
+
+
+def test_a_reading_nobody_made_is_refused_with_the_reason_unless_as_read(plant, capsys):
+    # issue 24: 24 bar on a 3.5 bar bypass is a slipped decimal point far likelier than a reading
+    code, _, err = run(capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "24")
+    assert code == 2 and "7 times the bypass setting" in err and "(2.4 bar)?" in err
+    assert entries(plant) == 0
+    # two readings on one filter in one minute: the second is asked about
+    at = ("--at", "2026-01-05T07:00")
+    assert run(capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "1.1", *at)[0] == 0
+    code, _, err = run(capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "1.2", *at)
+    assert code == 2 and "a reading in this minute already" in err and "--as-read" in err
+    assert entries(plant) == 1
+    code, _, err = run(
+        capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "1.2", *at, "--as-read"
+    )
+    assert code == 0, err
+    assert entries(plant) == 2
+
+
+def test_export_to_an_existing_file_asks_first(plant, tmp_path, capsys):
+    # issue 24: `export -o` overwrote an existing file without a word
+    target = tmp_path / "handover.csv"
+    target.write_text("yesterday's notes\n")
+    code, _, err = run(capsys, "--db", plant, "export", "--from", "2000-01-01", "-o", str(target))
+    assert code == 2 and "add --force" in err
+    assert target.read_text() == "yesterday's notes\n"  # untouched
+    code, _, err = run(
+        capsys, "--db", plant, "export", "--from", "2000-01-01", "-o", str(target), "--force"
+    )
+    assert code == 0, err
+    assert target.read_text(encoding="utf-8-sig").startswith("id,")

@@ -85,7 +85,7 @@ def test_the_command_line_writes_the_bom_to_files_and_on_request_to_stdout(
     base = ["--db", str(logged.path), "export", "--from", "2000-01-01"]
     assert main([*base, "-o", str(out)]) == 0
     assert out.read_bytes().startswith(BOM)
-    assert main([*base, "-o", str(out), "--no-bom"]) == 0
+    assert main([*base, "-o", str(out), "--no-bom", "--force"]) == 0  # over the first
     assert out.read_bytes().startswith(b"id,time,")
     capsysbinary.readouterr()
     assert main(base) == 0  # stdout feeds programs: no BOM unless asked for

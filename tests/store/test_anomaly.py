@@ -10,6 +10,7 @@ import pytest
 
 from store.forecast.anomaly import (
     ReadingsOrderError,
+    age_ordered,
     drop_without_change,
     gauge_step_bar,
     noise_bar,
@@ -106,3 +107,49 @@ def test_unsorted_readings_are_refused():
         drop_without_change([(5.0, 0.3), (1.0, 0.3), (7.0, 0.3), (9.0, 0.3)])
     with pytest.raises(ValueError):
         step_up([(1.0, 0.3), (2.0, float("nan"))])
+
+
+def real_logs(names=("01", "07", "33", "40")):
+    """Technician logs of real run-to-failure clogging runs (PHME 2020 data challenge,
+    ../shared/data/phme20, SOURCE.md): read there, never copied into the project."""
+    from tests.benchmarks.clogging import data_dir, load_runs, technician_log
+
+    folder = data_dir()
+    if not (folder / "runs.csv").is_file():
+        pytest.skip(f"clogging data not found at {folder}")
+    return [technician_log(run, seed=1) for run in load_runs(folder, names=names)]
+
+
+def test_real_loading_curves_raise_no_drop_and_a_halved_reading_does():
+    for ages, dps in real_logs():
+        for k in range(2, ages.size + 1):  # every prefix, as after each saved reading
+            assert drop_without_change(pairs(ages[:k], dps[:k])) is None, k
+        # Once ΔP is well clear of the gauge's resolution (past a quarter of the 20 psi
+        # clogging rule, SOURCE.md) the element tears: the next reading is half the last.
+        i = int(np.argmax(dps > 0.25 * 20 * 0.0689476))  # psi to bar, NIST SP 811
+        seq = pairs(ages[: i + 1], dps[: i + 1]) + [(float(ages[i + 1]), float(dps[i]) / 2)]
+        flag = drop_without_change(seq)
+        assert flag is not None and flag.urgent, (ages[i], dps[i])
+
+
+def test_a_drop_logged_at_the_same_age_as_the_reading_before_is_still_the_newest():
+    # Two readings in the same minute (one element age): the one logged last is the newest,
+    # whatever its value. Sorted by value as well as age, 1.25 came before 2.5 and hid.
+    t, y = log(0)
+    i = int(np.argmax(t > 0.7 * LIFE))
+    seq = pairs(t[:i], y[:i]) + [(float(t[i]), 2.5), (float(t[i]), 1.25)]
+    assert age_ordered(seq)[-1] == (float(t[i]), 1.25)
+    flag = drop_without_change(age_ordered(seq))
+    assert flag is not None and flag.dp_bar == pytest.approx(1.25)
+
+
+def test_a_step_up_never_names_a_level_below_the_reading_before():
+    # Issue 24: the note said the trend expected "about -0.05 bar". Readings falling slowly
+    # (new element bedding in; invented values), then a long gap and a jump: the fitted line
+    # runs below zero by then.
+    seq = [(10.0 * i, 0.3 - 0.03 * i + 0.002 * (i % 2)) for i in range(1, 7)] + [(360.0, 0.9)]
+    flag = step_up(seq)
+    assert flag is not None and flag.kind == "step-up"
+    assert flag.expected_bar >= seq[-2][1] - 1e-12
+    assert "about -" not in flag.reason and "bar -" not in flag.reason
+    assert f"from {seq[-2][1]:.3g} bar" in flag.reason

@@ -454,3 +454,54 @@ def test_basis_names_what_the_note_says(tmp_path):
         record.log(book, ElementChange(filter="M2-RF", by="AB", at=book.now()))
         g = one(views.watch(book), "M2-RF")
         assert g.basis == "service-life" and NOTE_OF_BASIS["service-life"] in " ".join(g.notes)
+
+
+def test_a_halved_reading_on_the_demo_is_a_drop_even_after_one_in_the_same_minute(
+    demo_file, tmp_path
+):
+    # Issue 23: 2.50 then 1.25 bar on D2-R in one minute, no change between: the watch list
+    # showed no flag (same-age readings were ordered by value, so 2.50 looked the newest).
+    path = tmp_path / "demo.db"
+    path.write_bytes(demo_file.read_bytes())
+    with open_book(path, create=False) as book:
+        now = book.now()
+        for dp in (2.5, 1.25):
+            record.log(book, Reading(filter="D2-R", dp_bar=dp, temp_c=50, by="AK", at=now))
+        f = one(views.watch(book), "D2-R")
+        assert "dp-drop" in f.flags, f.notes
+        assert f.dp_ref_bar == pytest.approx(1.25)
+        # the kept row and a whole recomputation agree
+        rebuild(book)
+        assert "dp-drop" in one(views.watch(book), "D2-R").flags
+
+
+def test_water_over_the_limit_is_flagged_on_the_demo(demo_file, tmp_path):
+    # Issue 24: PR-3's latest sample says 420 ppm and no flag said so. 300 ppm: about what
+    # mineral hydraulic oil keeps dissolved warm # from memory
+    path = tmp_path / "demo.db"
+    path.write_bytes(demo_file.read_bytes())
+    with open_book(path, create=False) as book:
+        pr3 = next(u for u in views.watch(book).units if u.unit == "PR-3")
+        assert "water-high" in pr3.flags and any("420 ppm water" in n for n in pr3.notes)
+        record.log(
+            book, Sample(unit="PR-3", code="18/16/13", water_ppm=150, by="AK", at=book.now())
+        )
+        pr3 = next(u for u in views.watch(book).units if u.unit == "PR-3")
+        assert "water-high" not in pr3.flags  # the newest sample rules
+        assert status.water_flag(300.0) is None and status.water_flag(301.0) is not None
+
+
+def test_a_new_element_already_high_is_flagged(book):
+    # Issue 24: a new element at 77 % of its limit after 23 h got no word. P1-RF's change
+    # limit is 2.5 bar (tests/kit/plant.py); readings at its 50 °C reference condition.
+    t = book.now() - timedelta(hours=30)
+    record.log(book, ElementChange(filter="P1-RF", by="AB", at=t))
+    record.log(
+        book,
+        Reading(filter="P1-RF", dp_bar=0.77 * 2.5, temp_c=50, by="AB", at=t + timedelta(hours=23)),
+    )
+    f = one(views.watch(book), "P1-RF")
+    assert "new-element-high" in f.flags
+    assert any("77 % of its change limit after 23 h" in n for n in f.notes)
+    assert status.new_element_high(77.0, 100.0) is None  # an older element: its due date says
+    assert status.new_element_high(40.0, 10.0) is None  # a new one still low

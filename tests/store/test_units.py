@@ -55,3 +55,19 @@ def test_quantity_text():
 def test_bad_quantities_say_so(text):
     with pytest.raises(BookError):
         units.parse_pressure_bar(text)
+
+
+def test_one_reading_of_a_typed_number_for_every_door():
+    # issue 23: a decimal comma is read as the point, except where it could group thousands
+    from store.base.units import AmbiguousNumberError, read_number
+
+    for text, value in [("12,5", 12.5), ("1.250", 1.25), ("0,250", 0.25), (",5", 0.5), ("7", 7)]:
+        assert read_number(text) == value, text
+    for text in ("1,250", "12,500", "-3,000"):
+        with pytest.raises(AmbiguousNumberError, match="reads two ways"):
+            read_number(text)
+    for text in ("1..3", "1,2,3", "inf", "nan", "", "1 250"):
+        with pytest.raises(units.UnitError):
+            read_number(text)
+    with pytest.raises(units.UnitError, match="'1..3' is not a number"):
+        units.parse_pressure_bar("1..3")  # not "unknown pressure unit '.3'" (issue 24)

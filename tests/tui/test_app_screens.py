@@ -15,6 +15,7 @@ from store.ledger.register import FilterPosition, Technician
 from tests.kit import plant as kit
 from tests.kit.plant import app_for, count_entries, settle, write_prefs
 from tui.cli import main as cli_main
+from tui.forms.confirm import ConfirmScreen
 from tui.forms.register_record import RegisterForm
 from tui.screens.filter_sheet import FilterSheetScreen
 from tui.screens.first_run import FirstRunScreen
@@ -108,6 +109,9 @@ async def test_shift_log_void_and_export_match_the_command_line(plant, tmp_path)
         await pilot.press("v")
         await pilot.pause()
         await pilot.press(*"typo", "enter")
+        await pilot.pause()
+        assert isinstance(app.screen, ConfirmScreen)  # what will be voided, asked first
+        await pilot.press("y")
         await settle(pilot, ShiftLogScreen)
         kinds = [str(table.get_row_at(i)[1]) for i in range(table.row_count)]
         assert "reading VOIDED" in kinds and "void" in kinds

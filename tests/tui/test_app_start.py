@@ -51,7 +51,9 @@ def test_no_logbook_opens_a_fresh_demo_each_time_and_keeps_nothing(no_logbook):
     book.close()
     discard(first)
     assert not first.exists()
-    book, demo, _ = open_for_app(None, from_environ(os.environ))  # the next start: the story as frozen, no note
+    book, demo, _ = open_for_app(
+        None, from_environ(os.environ)
+    )  # the next start: the story as frozen, no note
     try:
         assert demo and book.path != first
         assert "logged on the demo" not in notes(book.path)

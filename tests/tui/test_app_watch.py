@@ -37,7 +37,8 @@ async def test_opens_on_the_watch_list_most_urgent_first(plant):
         def cell(column: str) -> str:
             return str(table.get_cell("P2-RF", column))
 
-        assert "AT BYPASS" in cell("flags") and cell("due").startswith("OVERDUE")
+        # past its date and bypassing: the due cell says what to do now (issue 24)
+        assert "AT BYPASS" in cell("flags") and cell("due") == "CHANGE NOW"
         # the cells show the store's numbers: reference ΔP in bar and its share of the limit
         with open_book(plant, create=False) as book:
             p2 = next(f for f in views.watch(book).filters if f.filter == "P2-RF")
@@ -53,7 +54,12 @@ async def test_summary_line_counts_what_the_rows_say(plant):
         screen = app.screen
         summary = str(screen.query_one("#summary").render())
         table = screen.query_one(DataTable)
-        overdue = sum("OVERDUE" in str(table.get_row_at(i)[1]) for i in range(table.row_count))
+        due_cells = [str(table.get_row_at(i)[1]) for i in range(table.row_count)]
+        # an urgent line says INSPECT/CHANGE NOW in place of OVERDUE (issue 24)
+        overdue = sum(
+            "OVERDUE" in due or (due.endswith(" NOW") and row.overdue)
+            for due, row in zip(due_cells, screen.shown, strict=True)
+        )
         assert f"{overdue} overdue" in summary
         with open_book(plant, create=False) as book:
             urgent = sum(

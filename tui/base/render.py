@@ -14,6 +14,7 @@ from store.base.timeutil import local_text
 from store.base.units import pressure_label
 from store.health.conditions import contexts, normalise
 from store.health.status import FLAG_WORDS, URGENT_FLAGS, Watch
+from store.health.urgency import act_now
 from store.ledger import register
 from store.ledger.entries import (
     BreatherSwap,
@@ -298,64 +299,57 @@ def due_day(book: Book, moment: datetime | None) -> str:
     return f"{moment.astimezone(book.local_zone()):%d %b %Y}" if moment else "–"
 
 
-def watch_table(book: Book, watch: Watch, prefs: Prefs) -> Table:
-    table = Table(title=f"Watch list as of {when(book, watch.as_of)}", title_justify="left")
-    for c in (
-        "filter",
-        "unit",
-        "kind",
-        f"ΔP ref ({pressure_label(prefs.pressure)})",
-        "% limit",
-        "due (change)",
-        "read by",
-        "basis",
-        "flags",
-    ):
-        table.add_column(c)
-    for f in watch.filters:
-        flags = Text(", ".join(FLAG_WORDS.get(x, x) for x in f.flags))
-        if any(x in URGENT_FLAGS for x in f.flags):
+NARROW_COLUMNS = 120  # below this many columns `status` leaves out unit, kind and basis
+
+
+def watch_table(book: Book, watch: Watch, prefs: Prefs, width: int | None = None) -> Table:
+    """Filters, breathers and flagged units in one list, in the app's order (the one order of
+    store/health/urgency.py, through store.sheets.watch_rows); OVERDUE said in the due cell.
+    Narrower than NARROW_COLUMNS (a terminal of 80): no unit, kind or basis column, no vertical
+    rules, the due cell as "16 Dec (10 Dec–11 Jan)", so that a line stays a line."""
+    from rich import box
+
+    from store.sheets import watch_rows  # deferred: `status --json` prints no table
+
+    narrow = width is not None and width < NARROW_COLUMNS
+    table = Table(
+        title=f"Watch list as of {when(book, watch.as_of)}",
+        title_justify="left",
+        box=box.SIMPLE_HEAD if narrow else box.HEAVY_HEAD,
+    )
+    dp_head = f"ΔP ref ({pressure_label(prefs.pressure)})"
+    if narrow:
+        for c in ("tag", f"ΔP {pressure_label(prefs.pressure)}", "%", "due"):
+            table.add_column(c, no_wrap=True)
+        table.add_column("flags", min_width=12)
+    else:
+        for c in ("tag", "unit", "kind", dp_head, "% limit", "due", "read by", "basis", "flags"):
+            table.add_column(c)
+    for r in watch_rows(watch):
+        flags = Text(", ".join(FLAG_WORDS.get(x, x) for x in r.flags))
+        if any(x in URGENT_FLAGS for x in r.flags):
             flags.stylize("bold reverse")
-        due = due_text(book, f.due) if f.due else f.state
-        _add_row(
-            table,
-            f.filter,
-            f.unit,
-            f.kind,
-            pressure(f.dp_ref_bar, prefs, unit=False),
-            f"{f.percent_of_limit:.0f} %" if f.percent_of_limit is not None else "–",
-            due,
-            when(book, f.next_reading),
-            f.basis,
-            flags,
-        )
-    for b in watch.breathers:
-        _add_row(
-            table,
-            b.breather,
-            b.unit,
-            f"breather ({b.kind})",
-            "",
-            "",
-            due_day(book, b.forecast.due),
-            "",
-            b.forecast.basis,
-            ", ".join(FLAG_WORDS.get(x, x) for x in b.flags),
-        )
-    for u in watch.units:
-        if u.flags:
-            _add_row(
-                table,
-                u.unit,
-                u.unit,
-                "unit",
-                "",
-                "",
-                "",
-                "",
-                "",
-                ", ".join(FLAG_WORDS.get(x, x) for x in u.flags),
+        if r.what == "breather":
+            due = due_day(book, r.due.likely if r.due else None)
+            kind = f"breather ({r.kind})"
+        else:
+            due = (
+                (short_due(book, r.due) if narrow else due_text(book, r.due))
+                if r.due
+                else ("" if r.what == "unit" else r.state)
             )
+            kind = r.kind
+        if now := act_now(r.flags):
+            due = Text(now, style="bold")  # INSPECT NOW / CHANGE NOW
+        elif r.overdue:
+            due = Text.assemble(("OVERDUE", "bold"), f" {due}")
+        dp = pressure(r.dp_ref_bar, prefs, unit=False) if r.what == "filter" else ""
+        percent = f"{r.percent_of_limit:.0f} %" if r.percent_of_limit is not None else ""
+        if narrow:
+            _add_row(table, r.tag, dp, percent, due, flags)
+        else:
+            read_by = when(book, r.next_reading) if r.next_reading else ""
+            _add_row(table, r.tag, r.unit, kind, dp, percent, due, read_by, r.basis, flags)
     return table
 
 
@@ -383,6 +377,22 @@ def round_table(book: Book, plan: Round) -> Table:
     if not plan.stops:
         _add_row(table, "", "", "nothing to read this shift", "", "", "", "")
     return table
+
+
+def short_due(book: Book, due) -> str:  # noqa: ANN001 - status.Due
+    """'16 Dec (10 Dec–11 Jan)': the likely day first, the years only where not this one."""
+    z = book.local_zone()
+    this_year = book.now().astimezone(z).year
+
+    def day(moment: datetime) -> str:
+        local = moment.astimezone(z)
+        return f"{local:%d %b}" if local.year == this_year else f"{local:%d %b %y}"
+
+    last = day(due.latest) if due.latest else "open"
+    first = day(due.earliest)
+    if due.latest and first.endswith(last[-3:]) and len(first) > 6:
+        first = first[:6]  # one year for both ends: '06 Feb–01 May 27'
+    return f"{day(due.likely)} ({first}–{last})"
 
 
 def change_text(change: register.RegisterChange) -> str:

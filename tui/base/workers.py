@@ -52,5 +52,3 @@ def read_early(path: Path, read: Callable[[Book], Any], clock: Clock) -> Future[
 
     threading.Thread(target=in_thread, name="early-read", daemon=True).start()
     return future
-
-

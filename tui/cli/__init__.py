@@ -14,13 +14,22 @@ from store import damaged_read
 from store.base.errors import BookError
 from store.base.session import ENV_DB, from_environ, user_book_path
 from store.base.text import inert
+from store.base.units import read_number
 from store.ledger import journal
 from tui.cli import commands
 
 EXIT_BAD_INPUT = 2
 MAX_LIST_LIMIT = 1_000_000
 # Options that never take a value: a negative-looking word after them is not theirs.
-FLAGS = {"--force", "--nominal", "--hour-meter", "--indicator-only", "--unfiltered", "--json"}
+FLAGS = {
+    "--force",
+    "--nominal",
+    "--hour-meter",
+    "--indicator-only",
+    "--unfiltered",
+    "--json",
+    "--as-read",
+}
 _NEGATIVE_VALUE = re.compile(r"^-(\d|\.\d|/)")  # "-/500/60": counts with no ≥4 µm figure
 
 
@@ -33,6 +42,27 @@ def _limit(text: str) -> int:
     if not 1 <= value <= MAX_LIST_LIMIT:
         raise argparse.ArgumentTypeError(f"give 1 to {MAX_LIST_LIMIT:,} entries".replace(",", " "))
     return value
+
+
+class BadNumber(str):
+    """A number option that did not read: kept as its message until `main` says it in one
+    line (argparse would print its usage block around it)."""
+
+
+def _number(text: str) -> float | BadNumber:
+    """A typed number option, read as the forms read it (store.base.units.read_number: a
+    comma may stand for the point; '1,250' is asked about, not guessed)."""
+    try:
+        return read_number(text)
+    except BookError as exc:
+        return BadNumber(str(exc))
+
+
+def _bad_number(args: argparse.Namespace) -> str | None:
+    for name, value in vars(args).items():
+        if isinstance(value, BadNumber):
+            return f"--{name.replace('_', '-')}: {value}"
+    return None
 
 
 def join_negative_values(argv: Sequence[str]) -> list[str]:
@@ -92,10 +122,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("tag")
     p.add_argument("--name", default="")
     p.add_argument("--vg", type=int, help="ISO VG grade (ISO 3448)")
-    p.add_argument("--nu40", type=float, help="kinematic viscosity at 40 °C, mm²/s")
-    p.add_argument("--nu100", type=float, help="kinematic viscosity at 100 °C, mm²/s")
-    p.add_argument("--vi", type=float, help="viscosity index (ASTM D2270)")
-    p.add_argument("--density", type=float, help="density, kg/L")
+    p.add_argument("--nu40", type=_number, help="kinematic viscosity at 40 °C, mm²/s")
+    p.add_argument("--nu100", type=_number, help="kinematic viscosity at 100 °C, mm²/s")
+    p.add_argument("--vi", type=_number, help="viscosity index (ASTM D2270)")
+    p.add_argument("--density", type=_number, help="density, kg/L")
     p = rsub.add_parser("unit", help="a hydraulic system (power unit)")
     p.add_argument("tag")
     p.add_argument("--name", default="")
@@ -116,22 +146,22 @@ def build_parser() -> argparse.ArgumentParser:
         choices=["suction-strainer", "suction", "pressure", "return", "offline"],
     )
     p.add_argument("--element", default="", help="element part number (free text)")
-    p.add_argument("--rating", type=float, help="rating in µm")
+    p.add_argument("--rating", type=_number, help="rating in µm")
     p.add_argument("--nominal", action="store_true", help="the rating is nominal, not absolute")
-    p.add_argument("--beta", type=float, help="beta ratio at the rating (ISO 16889)")
+    p.add_argument("--beta", type=_number, help="beta ratio at the rating (ISO 16889)")
     p.add_argument("--bypass", help="bypass cracking ΔP, e.g. 3.5 or 50psi")
     p.add_argument("--limit", help="ΔP at which the element is changed")
     p.add_argument("--clean", help="clean-element ΔP at reference conditions")
-    p.add_argument("--rated-flow", type=float, help="rated flow, L/min")
-    p.add_argument("--flow", type=float, help="normal flow through it, L/min")
+    p.add_argument("--rated-flow", type=_number, help="rated flow, L/min")
+    p.add_argument("--flow", type=_number, help="normal flow through it, L/min")
     p.add_argument("--indicator-only", action="store_true", help="no gauge: indicator states only")
-    p.add_argument("--every", type=float, default=168, help="reading interval, hours (168)")
+    p.add_argument("--every", type=_number, default=168, help="reading interval, hours (168)")
     p = rsub.add_parser("breather", help="a reservoir breather")
     p.add_argument("tag")
     p.add_argument("--unit", required=True)
     p.add_argument("--kind", default="desiccant", choices=["desiccant", "plain"])
-    p.add_argument("--rating", type=float, help="rating in µm")
-    p.add_argument("--every", type=float, default=90, help="swap interval, days (90)")
+    p.add_argument("--rating", type=_number, help="rating in µm")
+    p.add_argument("--every", type=_number, default=90, help="swap interval, days (90)")
     p = rsub.add_parser("shifts", help="the shift pattern, e.g. early=06:00 late=14:00 night=22:00")
     p.add_argument("shifts", nargs="+", metavar="NAME=HH:MM")
     p = rsub.add_parser("change", help="change register fields, e.g. change filter P1-RF limit=2.4")
@@ -160,24 +190,30 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--dp", help="ΔP, e.g. 1.2, 18psi, 120kPa (your unit unless given)")
     p.add_argument("--indicator", choices=["clean", "dirty", "bypass"])
     p.add_argument("--temp", help="fluid temperature, e.g. 45 or 113F")
-    p.add_argument("--flow", type=float, help="flow, L/min, if known")
-    p.add_argument("--hours", type=float, help="hour-meter reading")
+    p.add_argument("--flow", type=_number, help="flow, L/min, if known")
+    p.add_argument("--hours", type=_number, help="hour-meter reading")
+    p.add_argument(
+        "--as-read",
+        action="store_true",
+        help="save it even though it looks like one nobody made (far over the bypass, or a "
+        "second reading in the same minute)",
+    )
     _add_time_and_by(p)
     p = lsub.add_parser("change", help="an element change")
     p.add_argument("tag", help="filter tag")
     p.add_argument("--reason", default="limit", choices=journal.CHANGE_REASONS)
     p.add_argument("--condition", default="", help="the old element as found")
     p.add_argument("--batch", default="", help="the new element's batch or lot")
-    p.add_argument("--hours", type=float, help="hour-meter reading")
+    p.add_argument("--hours", type=_number, help="hour-meter reading")
     _add_time_and_by(p)
     p = lsub.add_parser("topup", help="fluid added to a reservoir")
     p.add_argument("tag", help="unit tag")
     p.add_argument("--volume", required=True, help="volume added, e.g. 20 or 5gal")
     p.add_argument("--fluid", help="fluid tag (default: the unit's fluid)")
     how = p.add_mutually_exclusive_group(required=True)
-    how.add_argument("--filtered", type=float, metavar="UM", help="filtered on the way in, µm")
+    how.add_argument("--filtered", type=_number, metavar="UM", help="filtered on the way in, µm")
     how.add_argument("--unfiltered", action="store_true", help="went in unfiltered")
-    p.add_argument("--hours", type=float, help="hour-meter reading")
+    p.add_argument("--hours", type=_number, help="hour-meter reading")
     _add_time_and_by(p)
     p = lsub.add_parser("breather", help="a breather swap")
     p.add_argument("tag", help="breather tag")
@@ -188,7 +224,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("tag", help="unit tag")
     p.add_argument("--counts", help="per mL at ≥4/≥6/≥14 µm(c), e.g. 2000/500/60 (or -/500/60)")
     p.add_argument("--code", help="ISO 4406 code, e.g. 18/16/13")
-    p.add_argument("--water", type=float, help="water content, ppm")
+    p.add_argument("--water", type=_number, help="water content, ppm")
     _add_time_and_by(p)
     p = lsub.add_parser("note", help="a free note (on a unit, or on nothing)")
     p.add_argument("text")
@@ -224,6 +260,9 @@ def build_parser() -> argparse.ArgumentParser:
     when.add_argument("--from", dest="from_", metavar="TIME", help="from this time (ISO 8601)")
     p.add_argument("--to", metavar="TIME", help="up to this time (with --from; default now)")
     p.add_argument("-o", "--output", type=Path, help="CSV file to write (default: stdout)")
+    p.add_argument(
+        "--force", action="store_true", help="overwrite the -o file if it exists, without asking"
+    )
     p.add_argument(
         "--bom",
         action=argparse.BooleanOptionalAction,
@@ -274,6 +313,9 @@ def run(args: argparse.Namespace) -> int:
 def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
     args = parser.parse_args(join_negative_values(sys.argv[1:] if argv is None else argv))
+    if (bad := _bad_number(args)) is not None:
+        print(f"sumpbook: {inert(bad)}; nothing was written", file=sys.stderr)
+        return EXIT_BAD_INPUT
     try:
         args.session = session = from_environ(os.environ)  # the one reading of the environment
     except BookError as exc:
@@ -314,7 +356,8 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_BAD_INPUT
     except sqlite3.DatabaseError as exc:  # a read met a damaged page (writes are checked first)
         print(
-            f"sumpbook: {inert(str(damaged_read(exc, args.db or session.db_path)))}", file=sys.stderr
+            f"sumpbook: {inert(str(damaged_read(exc, args.db or session.db_path)))}",
+            file=sys.stderr,
         )
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:

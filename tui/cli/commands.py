@@ -16,6 +16,7 @@ from store import (
     full_check,
     open_book,
     record,
+    refuse_input_as_output,
     restore,
     views,
 )
@@ -23,7 +24,13 @@ from store.base import prefs as laptop
 from store.base.errors import BookError
 from store.base.text import inert, json_inert
 from store.base.timeutil import parse_time, previous_shift, shift_at, shift_named
-from store.base.units import parse_pressure_bar, parse_temperature_c, parse_volume_l
+from store.base.units import (
+    AmbiguousNumberError,
+    parse_pressure_bar,
+    parse_temperature_c,
+    parse_volume_l,
+    read_number,
+)
 from store.base.validate import plant_setting
 from store.health import status
 from store.ledger import journal, register
@@ -68,7 +75,11 @@ OPENED: list[Book] = []
 
 
 def _book(args: argparse.Namespace, create: bool = False) -> Book:
-    book = open_book(args.db or args.session.db_path, create=create, clock=args.session.clock)
+    path = Path(args.db or args.session.db_path)
+    new = create and not (path.exists() and path.stat().st_size > 0)
+    book = open_book(path, create=create, clock=args.session.clock)
+    if new:  # a mistyped path must not become a second logbook without a word
+        say(f"note: there was no logbook at {path}: a new, empty one was created", stderr=True)
     for notice in book.notices:  # e.g. rows an upgrade could not carry over
         console(stderr=True).print(f"note: {notice}", markup=False)
     OPENED.append(book)
@@ -357,6 +368,15 @@ def cmd_log(args: argparse.Namespace) -> int:
                 raise BookError("the note is empty")
         else:
             entry = Void(voids=args.id, **{**common, "note": args.reason})
+        if isinstance(entry, Reading) and not args.as_read:
+            from store.sheets import reading_doubts  # deferred: off the start path of status
+
+            doubts = reading_doubts(book, entry)
+            if doubts:
+                raise BookError(
+                    " ".join(doubts) + " Nothing was saved: check it, or add --as-read to save "
+                    "it as typed"
+                )
         saved = record.log(book, entry)
         say(_render().saved_line(book, saved, prefs))
         if isinstance(saved, Reading):
@@ -375,9 +395,11 @@ def _counts(text: str) -> tuple[float | None, float, float]:
     if len(parts) != 3:
         raise BookError("counts are ≥4/≥6/≥14 per mL, e.g. 2000/500/60 (or -/500/60)")
     try:
-        c4 = None if parts[0] in ("-", "") else float(parts[0])
-        return c4, float(parts[1]), float(parts[2])
-    except ValueError as exc:
+        c4 = None if parts[0] in ("-", "") else read_number(parts[0])
+        return c4, read_number(parts[1]), read_number(parts[2])
+    except AmbiguousNumberError:
+        raise
+    except BookError as exc:
         raise BookError(f"'{text}' holds something that is not a count") from exc
 
 
@@ -415,7 +437,8 @@ def cmd_status(args: argparse.Namespace) -> int:
             sys.stdout.write(json_inert(strict_json(status.to_json(watch, book.local_zone()))))
             sys.stdout.write("\n")
         else:
-            console().print(_render().watch_table(book, watch, prefs))
+            out = console()
+            out.print(_render().watch_table(book, watch, prefs, out.width))
     return 0
 
 
@@ -478,6 +501,7 @@ def cmd_export(args: argparse.Namespace) -> int:
             start, end = span.start, span.end
         csv_prefs = prefs
         if args.output:
+            _may_overwrite(args.output, book.path, args.force)
             count = export_file(
                 book, args.output, start, end, csv_prefs, local, pattern, bom=args.bom is not False
             )
@@ -491,6 +515,30 @@ def cmd_export(args: argparse.Namespace) -> int:
                 out.write(BOM)
             write_span(out, book, start, end, csv_prefs, local, pattern)
     return 0
+
+
+SQLITE_HEADER = b"SQLite format 3\x00"
+
+
+def _may_overwrite(path: Path, book_path: Path, force: bool) -> None:
+    """An existing file is overwritten by `export -o` only when the user says so: asked on a
+    terminal, `--force` otherwise. (A SQLite file, a logbook perhaps, is the exporter's to
+    refuse whatever is said here.)"""
+    if force or not path.is_file():
+        return
+    refuse_input_as_output(path, book_path, "the export")  # the logbook's own files first
+    with open(path, "rb") as fh:
+        if fh.read(len(SQLITE_HEADER)) == SQLITE_HEADER:
+            return
+    if sys.stdin.isatty() and sys.stderr.isatty():
+        sys.stderr.write(f"{inert(str(path))} exists: overwrite it? [y/N] ")
+        sys.stderr.flush()
+        if sys.stdin.readline().strip().lower() in ("y", "yes"):
+            return
+        raise BookError("nothing was written")
+    raise BookError(
+        f"{path} exists: nothing was written; add --force to overwrite it, or give another name"
+    )
 
 
 class _OnScreen:

@@ -13,7 +13,8 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.screen import ModalScreen
-from textual.widgets import Button, Checkbox, Input, Static
+from textual.widget import Widget
+from textual.widgets import Button, Checkbox, Input, Select, Static
 
 from store import record
 from store.base.errors import BookError
@@ -102,6 +103,7 @@ class EntryForm(ModalScreen[Saved | None]):
         self.preset = preset
         self.saved: Entry | None = None
         self.load_problem = ""
+        self.refusal = ""  # what the "Not saved" line is about: a field name, "*" (checks), ""
 
     @property
     def sb(self) -> Host:
@@ -216,6 +218,37 @@ class EntryForm(ModalScreen[Saved | None]):
     def on_input_changed(self, event: Input.Changed) -> None:
         if event.input.id == "f-time":
             self.say_day_taken(event.value)
+        self.refusal_fixed(event.input.id or "")
+
+    def on_select_changed(self, event: Select.Changed) -> None:
+        self.refusal_fixed(event.select.id or "")
+
+    def on_checkbox_changed(self, event: Checkbox.Changed) -> None:
+        if self.refusal == "ack" and event.checkbox.id == "ack" and event.value:
+            self.refusal = ""
+            self.say("")
+
+    def refusal_fixed(self, control_id: str) -> None:
+        """The "Not saved" line goes once what it was about is fixed: every field checks out
+        (a field's own refusal), or the field the book refused was changed."""
+        if not self.refusal:
+            return
+        if self.refusal == "*":
+            if any(row.check_value() for row in self.rows()):
+                return
+        elif control_id != f"f-{self.refusal}":
+            return
+        self.refusal = ""
+        self.say("")
+
+    def focus_fix(self, control: Widget) -> None:
+        """Focus the field to fix with the cursor after what was typed: focusing an input
+        selects its text, and the next key typed replaced it (a tag lost to a `Q`)."""
+        if isinstance(control, Input):
+            control.select_on_focus = False
+        control.focus()
+        if isinstance(control, Input):
+            control.cursor_position = len(control.value)
 
     def say_day_taken(self, text: str) -> None:
         """Under a time typed without its date, the date it was taken for."""
@@ -247,13 +280,15 @@ class EntryForm(ModalScreen[Saved | None]):
     def action_save(self) -> None:
         bad = [(row, p) for row in self.rows() if (p := row.check_value(force=True))]
         if bad:
-            bad[0][0].control.focus()
+            self.focus_fix(bad[0][0].control)
             names = ", ".join(row.spec.label for row, _ in bad)
             self.say(f"Not saved: check {names}.")
+            self.refusal = "*"
             return
         if self.caution and not self.query_one("#ack", Checkbox).value:
             self.query_one("#ack", Checkbox).focus()
             self.say("Not saved: tick the safety acknowledgement first.")
+            self.refusal = "ack"
             return
         try:
             entry = self.build(self.values())
@@ -291,5 +326,6 @@ class EntryForm(ModalScreen[Saved | None]):
             name = fault_field(problem, self.clues)
         rows = {row.spec.name: row for row in self.rows()}
         if name in rows and not rows[name].spec.disabled:
-            rows[name].control.focus()
+            self.focus_fix(rows[name].control)
             rows[name].show("see below")
+            self.refusal = name

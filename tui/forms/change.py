@@ -4,9 +4,11 @@ from __future__ import annotations
 
 from typing import Any
 
+from store.base.units import read_number
 from store.ledger.entries import ElementChange, Entry
 from store.ledger.journal import CHANGE_REASONS
 from store.ledger.register import FilterPosition, find
+from store.sheets import filter_status_of, likely_change_reason
 from tui.forms.base import EntryForm
 from tui.forms.validators import RangeValidator
 from tui.widgets.field import Spec
@@ -30,8 +32,9 @@ class ChangeForm(EntryForm):
         position = find(book, FilterPosition, self.target) if self.target else None
         if position is not None:
             self.heading = f"Element change on {position.tag} ({position.element or 'element'})"
-        self.first = "reason" if self.target else "filter"
-        reason = "limit" if position is None or position.gauge else "indicator"
+        # Start in a text field: a menu first swallowed the letters typed into it.
+        self.first = "condition" if position is not None else "filter"
+        reason = likely_change_reason(filter_status_of(book, position.tag)) if position else ""
         return [
             self.tag_spec(
                 "filter", FilterPosition, "filter", position.tag if position else self.target
@@ -55,7 +58,7 @@ class ChangeForm(EntryForm):
             reason=v["reason"],
             condition=v["condition"],
             batch=v["batch"],
-            hours=float(v["hours"].replace(",", ".")) if v["hours"] else None,
+            hours=read_number(v["hours"]) if v["hours"] else None,
             at=self.when(v["time"]),
             by=v["by"],
             note=v["note"],

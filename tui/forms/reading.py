@@ -4,11 +4,11 @@ from __future__ import annotations
 
 from typing import Any
 
-from store.base.units import parse_pressure_bar, parse_temperature_c
+from store.base.units import parse_pressure_bar, parse_temperature_c, read_number
 from store.ledger.entries import Entry, Reading
 from store.ledger.journal import BYPASS_OPEN, BYPASS_STEPS, bypass_head
 from store.ledger.register import FilterPosition, find
-from store.sheets import last_temp_c, meter_estimate_h
+from store.sheets import last_temp_c, meter_estimate_h, reading_doubts
 from tui.forms.base import EntryForm, FieldError
 from tui.forms.validators import DpValidator, RangeValidator, TemperatureValidator
 from tui.widgets import fmt
@@ -24,15 +24,19 @@ class ReadingForm(EntryForm):
     def specs(self) -> list[Spec]:
         book, prefs = self.sb.book, self.sb.prefs
         position = find(book, FilterPosition, self.target) if self.target else None
-        temp_hint, temp_text = "", ""
+        temp_hint, temp_text = "blank: not read", ""
         hours_hint = ""
         if position is not None:
             meter = meter_estimate_h(book, position.unit, book.now())
             if meter is not None:
                 hours_hint = f"about {meter:.0f} (running rate)"
+            # Never pre-filled: a temperature nobody read must not be stored as measured. Left
+            # blank, the reading is stored without one and normalised at the unit's normal
+            # temperature, which the sheets and the export say was assumed.
             last = last_temp_c(book, position.unit)
             if last is not None:
-                temp_text, temp_hint = fmt.input_temperature(last, prefs), "last logged"
+                shown = f"{fmt.input_temperature(last, prefs)} {fmt.t_unit(prefs)}"
+                temp_hint = f"blank: not read (last {shown})"
             self.heading = f"Reading on {position.tag} ({position.kind}, unit {position.unit})"
         if not self.target:
             self.first = "filter"
@@ -56,7 +60,7 @@ class ReadingForm(EntryForm):
                 f"Temp {fmt.t_unit(prefs)}",
                 self.preset.get("temp", temp_text),
                 [TemperatureValidator(prefs.temperature)],
-                hint=temp_hint or "fluid temperature",
+                hint=temp_hint,
             ),
             Spec("indicator", "Indicator", "", options=INDICATOR_CHOICES),
             Spec(
@@ -85,8 +89,8 @@ class ReadingForm(EntryForm):
             dp_bar=parse_pressure_bar(v["dp"], prefs.pressure) if v["dp"] else None,
             indicator=v["indicator"] or None,
             temp_c=parse_temperature_c(v["temp"], prefs.temperature) if v["temp"] else None,
-            flow_lpm=float(v["flow"].replace(",", ".")) if v["flow"] else None,
-            hours=float(v["hours"].replace(",", ".")) if v["hours"] else None,
+            flow_lpm=read_number(v["flow"]) if v["flow"] else None,
+            hours=read_number(v["hours"]) if v["hours"] else None,
             at=self.when(v["time"]),
             by=v["by"],
             note=v["note"],
@@ -99,10 +103,15 @@ class ReadingForm(EntryForm):
         if position is None:
             return None
         prefs = self.sb.prefs
+        doubts = [f"• {fmt.in_units(d, prefs)}" for d in reading_doubts(self.sb.book, entry)]
         what = bypass_head(
             position, entry.dp_bar, entry.indicator, lambda bar: fmt.pressure(bar, prefs)
         )
-        if what is None:
+        if what is None and not doubts:
             return None
-        caution = f"{what}: {BYPASS_OPEN.upper()}.\n" + "\n".join(f"• {s}" for s in BYPASS_STEPS)
-        return f"Save this reading on {position.tag}?", caution
+        parts = ["\n".join(doubts)] if doubts else []
+        if what is not None:
+            parts.append(
+                f"{what}: {BYPASS_OPEN.upper()}.\n" + "\n".join(f"• {s}" for s in BYPASS_STEPS)
+            )
+        return f"Save this reading on {position.tag}?", "\n".join(parts)

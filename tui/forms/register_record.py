@@ -254,7 +254,7 @@ class RegisterForm(ModalScreen[Any]):
             elif name == "reservoir_l":
                 out[name] = parse_volume_l(value, prefs.volume)
             else:
-                out[name] = register.parse_field(self.cls, name, value.replace(",", "."))
+                out[name] = register.parse_field(self.cls, name, value)
         return out
 
     def action_save(self) -> None:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
+from store.base.units import read_number
 from store.ledger.entries import Entry, Sample
 from store.ledger.register import Unit, find
 from tui.forms.base import EntryForm
@@ -12,7 +13,7 @@ from tui.widgets.field import Spec
 
 
 def _num(text: str) -> float | None:
-    return float(text.replace(",", ".")) if text else None
+    return read_number(text) if text else None
 
 
 class SampleForm(EntryForm):

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from store.base.units import parse_volume_l
+from store.base.units import parse_volume_l, read_number
 from store.ledger.entries import Entry, TopUp
 from store.ledger.register import Fluid, Unit, find, list_all
 from tui.forms.base import EntryForm, FieldError
@@ -58,7 +58,7 @@ class TopUpForm(EntryForm):
         if v["how"] == "filtered":
             if not v["filtered"]:
                 raise FieldError("give the cart's rating in µm, or choose 'unfiltered'", "filtered")
-            filtered = float(v["filtered"].replace(",", "."))
+            filtered = read_number(v["filtered"])
         elif v["filtered"]:  # a rating and 'unfiltered' cannot both be true: never drop one
             raise FieldError(
                 "a cart rating with 'unfiltered': clear the rating, or choose 'through a "
@@ -70,7 +70,7 @@ class TopUpForm(EntryForm):
             volume_l=parse_volume_l(v["volume"], self.sb.prefs.volume),
             fluid=v["fluid"] or None,
             filtered_um=filtered,
-            hours=float(v["hours"].replace(",", ".")) if v["hours"] else None,
+            hours=read_number(v["hours"]) if v["hours"] else None,
             at=self.when(v["time"]),
             by=v["by"],
             note=v["note"],

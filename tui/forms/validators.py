@@ -16,6 +16,7 @@ from store.base import validate as validate_value
 from store.base.errors import BookError
 from store.base.timeutil import parse_typed_time
 from store.base.units import (
+    AmbiguousNumberError,
     from_bar,
     from_c,
     from_l,
@@ -23,6 +24,7 @@ from store.base.units import (
     parse_temperature_c,
     parse_volume_l,
     pressure_label,
+    read_number,
     split_quantity,
     temperature_label,
     volume_label,
@@ -42,6 +44,8 @@ class DpValidator(Validator):
     def validate(self, value: str) -> ValidationResult:
         try:
             bar = parse_pressure_bar(value, self.unit)
+        except AmbiguousNumberError as exc:
+            return self.failure(str(exc))
         except BookError:
             return self.failure(f"a number, e.g. 1.2 or 18 psi ({pressure_label(self.unit)})")
         if not 0 <= bar <= journal.MAX_DP_BAR:
@@ -60,6 +64,8 @@ class TemperatureValidator(Validator):
     def validate(self, value: str) -> ValidationResult:
         try:
             temp_c = parse_temperature_c(value, self.unit)
+        except AmbiguousNumberError as exc:
+            return self.failure(str(exc))
         except BookError:
             return self.failure(f"a number in {temperature_label(self.unit)}, e.g. 45")
         low, high = journal.TEMP_RANGE_C
@@ -117,10 +123,11 @@ class RangeValidator(Validator):
         self.field, self.spec = field, validate_value.RANGES[field]
 
     def validate(self, value: str) -> ValidationResult:
-        text = value.strip().replace(",", ".")
         try:
-            number = float(text)
-        except ValueError:
+            number = read_number(value)
+        except AmbiguousNumberError as exc:
+            return self.failure(str(exc))
+        except BookError:
             return self.failure("a whole number" if self.spec.whole else "a number")
         try:
             validate_value.number(self.field, number)
@@ -140,6 +147,8 @@ class VolumeValidator(Validator):
     def validate(self, value: str) -> ValidationResult:
         try:
             litres = parse_volume_l(value, self.unit)
+        except AmbiguousNumberError as exc:
+            return self.failure(str(exc))
         except BookError:
             return self.failure("a number, e.g. 20 or 5 gal")
         try:
@@ -162,6 +171,8 @@ class QuantityValidator(Validator):
     def validate(self, value: str) -> ValidationResult:
         try:
             self.parse(value)
+        except AmbiguousNumberError as exc:
+            return self.failure(str(exc))
         except BookError:
             return self.failure(self.hint)
         return self.success()
@@ -206,5 +217,5 @@ class ClockValidator(Validator):
 
 
 def number_of(text: str, default_unit: str = "") -> float:
-    """The number in a field (a comma may stand for the point)."""
+    """The number in a field (a comma may stand for the point; store.base.units.read_number)."""
     return split_quantity(text, default_unit or "x")[0]

@@ -72,6 +72,7 @@ class VoidForm(EntryForm):
             return entry_id
 
     def on_input_changed(self, event: Input.Changed) -> None:
+        super().on_input_changed(event)
         if event.input.id == "f-entry":
             self.describe_target(event.value)
 
@@ -81,13 +82,32 @@ class VoidForm(EntryForm):
         except BookError:
             line = "which entry? (the shift log shows the ids)"
         else:
-            local = self.sb.book.local_zone()
-            line = (
-                f"{entry.id[:8]} {entry.kind} {entry.target or entry.unit or ''} "
-                f"{fmt.stamp(entry.at, local)} by {entry.by}: {describe(entry, self.sb.prefs)}"
-            )
+            line = self.entry_line(entry)
         if self.is_mounted and self.query("#void-what"):
             self.query_one("#void-what", Static).update(line)
+
+    def question(self, entry: Entry) -> tuple[str, str] | None:
+        """Always asked: what will be voided, and whose it is, before it is saved."""
+        if not isinstance(entry, Void):
+            return None
+        target = find_entry(self.sb.book, entry.voids)
+        whose = (
+            f"logged by {target.by}, not by you"
+            if target.by.upper() != entry.by.upper()
+            else "your own entry"
+        )
+        return (
+            f"Void entry {target.id[:8]} ({whose})?",
+            f"{self.entry_line(target)}\nIt stays in the book, struck through, with the reason: "
+            f"{entry.note}",
+        )
+
+    def entry_line(self, entry: Entry) -> str:
+        local = self.sb.book.local_zone()
+        return (
+            f"{entry.id[:8]} {entry.kind} {entry.target or entry.unit or ''} "
+            f"{fmt.stamp(entry.at, local)} by {entry.by}: {describe(entry, self.sb.prefs)}"
+        )
 
     def build(self, v: dict[str, Any]) -> Entry:
         voids = find_entry(self.sb.book, v["entry"]).id  # the whole id, not what was typed

@@ -103,6 +103,19 @@ class FilterSheetScreen(BookScreen):
         unit = self.sheet.unit.tag if self.sheet else ""
         return Target("filter", self.tag, unit)
 
+    @staticmethod
+    def element_age(sheet: FilterSheet) -> str:
+        """On an hour-meter unit the age is hours run, and the calendar days since the element
+        went in are said beside it (issue 24: "31 d (747 h)" was hours run ÷ 24)."""
+        st = sheet.status
+        if not sheet.uses_hours:
+            return fmt.age_text(st.element_age_h)
+        text = fmt.age_text(st.element_age_h, operating=True)
+        if st.changed_at is not None:
+            days = (sheet.as_of - st.changed_at).total_seconds() / 86400
+            text += f" (fitted {days:.0f} d ago)"
+        return text
+
     def show_sheet(self, sheet: FilterSheet) -> None:
         self.sheet = sheet
         prefs, local = self.sb.prefs, self.sb.book.local_zone()
@@ -156,7 +169,7 @@ class FilterSheetScreen(BookScreen):
                 ref,
                 gauge,
                 f"indicator {st.indicator}" if st.indicator else "",
-                f"element age {fmt.age_text(st.element_age_h)}, {readings}",
+                f"element age {self.element_age(sheet)}, {readings}",
             )
         )
         if st.due is not None:
@@ -206,8 +219,8 @@ class FilterSheetScreen(BookScreen):
             pooled = " with like positions" if life.pooled else ""
             life_text = (
                 f"Service life ({life.n_failed} reached the limit, {life.n_censored} taken out "
-                f"early{pooled}): 10 % reach the limit by {fmt.age_text(life.b10_h)}, half by "
-                f"{fmt.age_text(life.b50_h)}"
+                f"early{pooled}): 10 % reach the limit by {fmt.age_text(life.b10_h, sheet.uses_hours)}, half by "
+                f"{fmt.age_text(life.b50_h, sheet.uses_hours)}"
             )
         self.query_one("#life", Wrapped).show(life_text)
 
@@ -222,7 +235,7 @@ class FilterSheetScreen(BookScreen):
             cells = (
                 Text(fmt.day(el.fitted_at, local) if el.fitted_at else "before book"),
                 Text(fmt.day(el.removed_at, local) if el.removed_at else "in service"),
-                Text(fmt.age_text(el.life_h)),
+                Text(fmt.age_text(el.life_h, sheet.uses_hours)),
                 Text(el.reason),
                 Text("yes" if el.reached_limit else ("–" if el.removed_at is None else "no")),
                 Text(fmt.pressure(el.peak_dp_ref_bar, prefs, unit=False)),

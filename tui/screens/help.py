@@ -42,6 +42,8 @@ FLAG_MEANING = {
     "unfiltered-topup": "oil went in unfiltered in the last 30 days",
     "coarse-topup": "oil went in through a cart coarser than the unit's finest filter",
     "over-target": "the latest sample is dirtier than the unit's target code",
+    "water-high": "the latest sample holds more water than the oil keeps dissolved (300 ppm)",
+    "new-element-high": "a new element is at half its change limit or more within 72 h",
 }
 
 COLUMNS = (

@@ -16,6 +16,7 @@ from store.base.timeutil import local_text
 from store.base.units import PRESSURE_UNITS, TEMPERATURE_UNITS, VOLUME_UNITS
 from store.ledger import register
 from store.ledger.register import TABLES, WHAT, Breather, FilterPosition, Fluid, Technician, Unit
+from store.sheets import SETUP_ORDER, next_setup_step
 from tui.base.keys import bind
 from tui.base.render import change_text
 from tui.base.workers import guarded
@@ -157,7 +158,24 @@ class RegisterScreen(BookScreen):
             yield Static("", id="pref-who", markup=False)
 
     def on_mount(self) -> None:
-        self.query_one("#table-units", DataTable).focus()
+        # A register still being set up opens at the first-run guide's next step (yourself,
+        # the fluids, the units, ...), not at the units tab whatever is missing; reload moves
+        # on to the next step once the one on show is done.
+        self.guiding = bool(next_setup_step(self.sb.book))
+        if self.guiding:
+            self.call_after_refresh(self.follow_guide)
+        else:
+            self.query_one("#table-units", DataTable).focus()
+
+    def follow_guide(self) -> None:
+        step = next_setup_step(self.sb.book)
+        if not step:
+            self.guiding = False
+            return
+        active = self.active()
+        done = active in SETUP_ORDER and SETUP_ORDER.index(active) < SETUP_ORDER.index(step)
+        if active != step and (done or active not in SETUP_ORDER or not self.loaded):
+            self.show_tab(step)
 
     @guarded
     def reload(self) -> None:
@@ -185,6 +203,8 @@ class RegisterScreen(BookScreen):
             f"Signed in on this laptop: {who}  (i: change)\nLogbook: {self.sb.book.path}"
         )
         self.show_history()
+        if getattr(self, "guiding", False):
+            self.follow_guide()
         self.loaded = True
 
     # ---- the highlighted record's history ----

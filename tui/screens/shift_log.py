@@ -155,6 +155,14 @@ class ShiftLogScreen(BookScreen):
                     text.append(f"  {e.target or e.unit}: {describe(e, self.sb.prefs)}\n")
         else:
             text.append("Done: nothing logged\n")
+        if log.logged_late:
+            text.append("Logged this shift, dated earlier:\n", style="bold")
+            for e in log.logged_late:
+                when = fmt.stamp(e.at, local)
+                text.append(
+                    f"  {e.target or e.unit or ''}: {describe(e, self.sb.prefs)} "
+                    f"(dated {when}, by {e.by})\n"
+                )
         nxt = log.next_span
         text.append(
             f"Due by the end of the next shift ({nxt.name}, to "
@@ -196,7 +204,23 @@ class ShiftLogScreen(BookScreen):
         return None
 
     def action_void(self) -> None:
-        self.sb.open_form("void", self.selected_id() or "")
+        self.sb.open_form("void", self.void_candidate())
+
+    def void_candidate(self) -> str:
+        """The entry `v` offers to void: the highlighted one if the signed-in technician logged
+        it, else their own newest in this shift, else none. A colleague's entry is never
+        offered: two keys must not void what someone else logged (issue 23); its id can
+        still be typed, and the form asks before saving either way."""
+        me = self.sb.prefs.tech.upper()
+        if self.shift is None or not me:
+            return ""
+        mine = [e for e in self.shift.entries if e.by.upper() == me and not e.voided]
+        mine = [e for e in mine if e.kind != "void"]
+        chosen = self.selected_id()
+        for e in mine:
+            if e.id == chosen:
+                return e.id
+        return max(mine, key=lambda e: e.at).id if mine else ""
 
     # ---- export ----
 

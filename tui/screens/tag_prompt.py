@@ -36,9 +36,16 @@ class TagPrompt(ModalScreen[TagHit | None]):
     def compose(self) -> ComposeResult:
         with Vertical(id="tag-box", classes="prompt-box"):
             yield Static("Tag: type or scan, then Enter", classes="form-title", markup=False)
-            yield Input(placeholder="e.g. P1-RF", compact=True, id="tag-input")
+            yield Input(placeholder=self.example(), compact=True, id="tag-input")
             yield OptionList(id="tag-list")
             yield Static("", id="tag-msg", classes="form-msg", markup=False)
+
+    def example(self) -> str:
+        """The placeholder names a filter this book has (a made-up tag only sends a new
+        technician looking for it); none at all in an empty book."""
+        first = next((h.tag for h in self.hits if h.what == "filter"), "")
+        first = first or next((h.tag for h in self.hits), "")
+        return f"e.g. {first}" if first else "a filter, breather or unit tag"
 
     def on_mount(self) -> None:
         inp = self.query_one(Input)

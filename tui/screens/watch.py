@@ -13,6 +13,7 @@ from store import Book, record, views
 from store.base.prefs import Prefs
 from store.base.text import inert
 from store.base.timeutil import shift_at
+from store.health.urgency import act_now
 from store.ledger.register import Unit, list_all
 from store.sheets import Summary, WatchRow, row_matches, summarise, watch_rows
 from tui.base.keys import bind
@@ -189,6 +190,8 @@ class WatchScreen(BookScreen):
             due = fmt.due_cell(r.due, r.state, r.overdue, local)
             if r.what == "filter" and not r.gauge and r.due is None and not r.overdue:
                 due = "by indicator"
+            if now := act_now(r.flags):
+                due = now  # INSPECT NOW / CHANGE NOW
             cells = (
                 Text(r.tag, style=urgent),
                 Text(due, style=urgent),
@@ -249,7 +252,9 @@ class WatchScreen(BookScreen):
         kind = row.kind if row.what == "filter" else ""
         head: list[str] = [row.tag, fmt.flag_text(row.flags).plain if row.flags else ""]
         head.append(f"{kind} {row.what} on {row.unit}".strip())
-        if row.due is not None:
+        if now := act_now(row.flags):
+            head.append(now)  # not "change due …": the element may be gone
+        elif row.due is not None:
             word = "change" if row.what == "filter" else "swap"
             head.append(f"{word} due {fmt.due_text(row.due, local)}")
         if row.next_reading is not None:

@@ -18,6 +18,7 @@ from store.base.prefs import Prefs
 from store.base.text import inert
 from store.base.units import from_bar, from_c, from_l
 from store.health.status import FLAG_WORDS, URGENT_FLAGS, Due
+from store.health.urgency import NOTICE_FLAGS
 from tui.base.quantities import (  # noqa: F401 - the app's widgets take them from here
     p_digits,
     p_unit,
@@ -163,13 +164,15 @@ def due_text(due: Due | None, local: tzinfo, now: datetime | None = None) -> str
 
 
 def flag_text(flags: Sequence[str]) -> Text:
-    """Flags as words; the urgent ones also bold and reversed."""
+    """Flags as words; the urgent ones bold and reversed, notices (cold start, no limits)
+    plain, the others bold."""
     text = Text()
     for i, flag in enumerate(flags):
         if i:
             text.append(", ")
         word = FLAG_WORDS.get(flag, flag)
-        text.append(word, style="bold reverse" if flag in URGENT_FLAGS else "bold")
+        style = "bold reverse" if flag in URGENT_FLAGS else "" if flag in NOTICE_FLAGS else "bold"
+        text.append(word, style=style)
     return text
 
 
@@ -195,9 +198,13 @@ def sparkline(values: Sequence[float], top: float | None, width: int = 8) -> str
     return "".join(out)
 
 
-def age_text(hours: float | None) -> str:
+def age_text(hours: float | None, operating: bool = False) -> str:
+    """An element age or life: calendar hours as days (and hours), or, where the ages are
+    operating hours off the hour meter, as hours run: 747 operating hours are not 31 days."""
     if hours is None or not math.isfinite(hours):
         return "–"
+    if operating:
+        return f"{hours:.0f} h run"
     if hours < 72:
         return f"{hours:.0f} h"
     return f"{hours / 24:.0f} d ({hours:.0f} h)"
