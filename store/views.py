@@ -48,7 +48,9 @@ def watch(
         by_unit.setdefault(position.unit.upper(), []).append(position)
     mine = [q for q in positions if unit is None or q.unit == unit]
     filters = watch_filters(book, mine, now, stale_ok)
-    units = cached_units(book, [u for u in all_units if unit is None or u.tag == unit], by_unit, now)
+    units = cached_units(
+        book, [u for u in all_units if unit is None or u.tag == unit], by_unit, now
+    )
     return status.watch_list(now, filters, status.breathers_at(book, now, unit), units)
 
 
