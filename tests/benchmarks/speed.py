@@ -691,6 +691,14 @@ def notes(f: dict) -> list[str]:
     return out
 
 
+def _years(facts: dict) -> str:
+    """The book's span in whole years, as make_big_logbook.py was given it."""
+    from datetime import date
+
+    days = (date.fromisoformat(facts["last"][:10]) - date.fromisoformat(facts["first"][:10])).days
+    return f"{days / 365.25:.0f}"
+
+
 def _med(values: list[float]) -> float:
     return statistics.median(values) if values else float("nan")
 
@@ -836,7 +844,7 @@ def main(argv: list[str] | None = None) -> int:
         f"{facts['breathers']} breathers, {facts['entries']:,} entries ({facts['readings']:,} "
         f"readings, one per filter per shift) from {facts['first'][:10]} to "
         f"{facts['last'][:10]}; {facts['size_mb']:.0f} MB "
-        "(tests/benchmarks/make_big_logbook.py 200 5).",
+        f"(tests/benchmarks/make_big_logbook.py {facts['units']} {_years(facts)}).",
         f"Machine: {host['cpu']}, {host['memory']} RAM, {host['os']}; Python {host['python']}, "
         f"SQLite {host['sqlite']}, Textual {host['textual']} (a shared virtual machine: the "
         "absolute times move by a third between runs, the ratios less). Book file in the OS "
