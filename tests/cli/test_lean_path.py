@@ -110,3 +110,14 @@ def test_a_missing_kept_row_is_computed_and_then_the_forecast_loads(kept_demo, t
     conn.close()
     loaded = heavy(imported(gone, ["status", "--json"]))
     assert "store.forecast.trend" in loaded and "numpy" in loaded
+
+
+def test_version_is_the_installed_packages(capsys):
+    from importlib.metadata import version
+
+    from tui.cli import main
+
+    with pytest.raises(SystemExit) as stop:
+        main(["--version"])
+    assert stop.value.code == 0
+    assert capsys.readouterr().out == f"sumpbook {version('sumpbook')}\n"

@@ -82,7 +82,8 @@ class _Version(argparse.Action):
             number = version("sumpbook")
         except PackageNotFoundError:
             number = "(version unknown: not installed)"
-        parser.exit(message=f"sumpbook {number}\n")
+        sys.stdout.write(f"sumpbook {number}\n")  # on stdout, as --help
+        parser.exit()
 
 
 def build_parser() -> argparse.ArgumentParser:
