@@ -12,17 +12,17 @@ from store.base.timeutil import format_utc
 from store.db.book import Book
 from store.derived.elementcache import kept_before
 from store.derived.statuscache import (
-    cached_filters,
     cached_units,
     kept_filters,
     kept_units,
     live_status,
     stale_filters,
+    watch_filters,
 )
 from store.health import status
 from store.health.conditions import FilterContext
 from store.health.status import FilterStatus, UnitStatus, Watch
-from store.ledger.register import FilterPosition
+from store.ledger.register import FilterPosition, Unit, list_all
 
 
 def watch(
@@ -40,9 +40,17 @@ def watch(
     if as_of is not None:
         return status.watch_as_of(book, as_of, unit, kept_before, standing)
     now = book.now()
-    p = status.plant(book, unit)
-    filters = cached_filters(book, list(p.contexts), now, stale_ok)
-    units = cached_units(book, list(p.units), p.positions_by_unit, now)
+    # The plant as status.plant covers it, without the contexts (built only for a row that
+    # must be computed: see statuscache.watch_filters).
+    all_units, positions = list_all(book, Unit), list_all(book, FilterPosition)
+    by_unit: dict[str, list[FilterPosition]] = {}
+    for position in positions:
+        by_unit.setdefault(position.unit.upper(), []).append(position)
+    mine = [q for q in positions if unit is None or q.unit == unit]
+    filters = watch_filters(book, mine, now, stale_ok)
+    units = cached_units(
+        book, [u for u in all_units if unit is None or u.tag == unit], by_unit, now
+    )
     return status.watch_list(now, filters, status.breathers_at(book, now, unit), units)
 
 

@@ -328,6 +328,30 @@ def cached_filters(
     return result
 
 
+def watch_filters(
+    book: Book,
+    positions: Sequence[FilterPosition],
+    now: datetime,
+    stale_ok: bool = False,
+) -> list[FilterStatus]:
+    """`cached_filters` for register positions, without their contexts: a kept row is read
+    as it is, and only when one must be computed (missing, old format, marked stale unless
+    `stale_ok`, the clock set back) are the plant's contexts built (they resolve each fluid's
+    curve, which may load scipy). So the list read from fresh rows loads none of the fitting
+    maths (tests/cli/test_lean_path.py)."""
+    rows = _rows(book)
+    result: list[FilterStatus] = []
+    ctxs: dict[str, FilterContext] | None = None
+    for position in positions:
+        status = _timed(rows.get(position.tag.upper()), now, stale_ok)
+        if status is None:
+            if ctxs is None:
+                ctxs = {tag.upper(): c for tag, c in contexts(book).items()}
+            status = live_status(book, ctxs[position.tag.upper()], now)[0]
+        result.append(status)
+    return result
+
+
 def kept_filters(book: Book, tags: Sequence[str], now: datetime) -> dict[str, FilterStatus]:
     """The kept status at `now` of each of `tags` (upper case) whose row can be read then: one
     of this format, not marked stale, kept at or before `now`. The rest are left out."""

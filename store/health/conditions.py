@@ -13,7 +13,6 @@ from dataclasses import dataclass, field
 
 from store.base.errors import BookError
 from store.db.book import Book
-from store.forecast.readplan import shortest_shift_h
 from store.ledger.entries import Reading
 from store.ledger.register import FilterPosition, Fluid, Unit, find, get, list_all, list_shifts
 from store.physics.fluid import FluidSpec, ViscosityCurve, resolve_curve
@@ -96,6 +95,10 @@ def contexts(book: Book) -> dict[str, FilterContext]:
 def shortest_read_h(book: Book) -> float:
     """The plant's shortest sensible reading interval: its shortest shift (24 h without a
     pattern). store/forecast/readplan.py never plans two readings closer than this."""
+    # Deferred: a watch list read from fresh kept rows builds no contexts and loads nothing
+    # of store.forecast (tests/cli/test_lean_path.py).
+    from store.forecast.readplan import shortest_shift_h
+
     return shortest_shift_h([s.starts for s in list_shifts(book)])
 
 

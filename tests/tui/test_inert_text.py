@@ -61,6 +61,15 @@ def test_json_inert_is_the_same_json_value():
     assert json.loads(text) == data
 
 
+def test_json_inert_rewrites_each_odd_character_alone():
+    """Its quick search finds every character it rewrites, one at a time, in plain JSON."""
+    for code in (0x7F, 0x80, 0x9B, 0x9F, 0x202A, 0x202E, 0x2066, 0x2069):
+        text = json.dumps({"note": f"ok {chr(code)} ν 46 °C"}, ensure_ascii=False)
+        assert json_inert(text) == text.replace(chr(code), f"\\u{code:04x}")
+    plain = json.dumps({"note": "ν 46 °C, µm, ‒ \u2065 \u202f"}, ensure_ascii=False)
+    assert json_inert(plain) == plain
+
+
 # ---- the command line --------------------------------------------------------------------------
 
 

@@ -16,7 +16,6 @@ from store.base.session import ENV_DB, from_environ, user_book_path
 from store.base.text import inert
 from store.base.units import read_number
 from store.ledger import journal
-from tui.cli import commands
 
 EXIT_BAD_INPUT = 2
 MAX_LIST_LIMIT = 1_000_000
@@ -98,6 +97,25 @@ def _add_time_and_by(p: argparse.ArgumentParser) -> None:
     p.add_argument("--note", default="", help="free text")
 
 
+class _Version(argparse.Action):
+    """--version: the installed package's version, looked up only when asked for."""
+
+    def __init__(self, option_strings: Sequence[str], dest: str, **kwargs: object) -> None:
+        super().__init__(
+            option_strings, dest, nargs=0, default=argparse.SUPPRESS, help=kwargs.get("help")
+        )
+
+    def __call__(self, parser, namespace, values, option_string=None) -> None:  # noqa: ANN001
+        from importlib.metadata import PackageNotFoundError, version
+
+        try:
+            number = version("sumpbook")
+        except PackageNotFoundError:
+            number = "(version unknown: not installed)"
+        sys.stdout.write(f"sumpbook {number}\n")  # on stdout, as --help
+        parser.exit()
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="sumpbook",
@@ -107,6 +125,7 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument(
         "--db", type=Path, help=f"logbook file (default: ${ENV_DB} or {user_book_path()})"
     )
+    parser.add_argument("--version", action=_Version, help="print the version and stop")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
 
     p = sub.add_parser("app", help="open the terminal app (the default)")
@@ -304,6 +323,8 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def run(args: argparse.Namespace) -> int:
+    from tui.cli import commands  # deferred: --help, --version and the app need none of it
+
     handler: Callable[[argparse.Namespace], int] = getattr(commands, f"cmd_{args.command}")
     code = handler(args)
     commands.report_unreadable()
@@ -332,6 +353,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         return run(args)
     except BookError as exc:
+        from tui.cli import commands
+
         commands.report_unreadable()
         print(f"sumpbook: {inert(str(exc))}", file=sys.stderr)
         return EXIT_BAD_INPUT

@@ -1,0 +1,123 @@
+"""The command line's quick answers load only what they need.
+
+`status`, `status --json`, `list` (of the register), `--help` and `--version` are run as a
+user runs them, in a fresh interpreter with `-X importtime`, on a copy of the demo plant whose
+kept rows are fresh (`record.rebuild`): none of them may load numpy, scipy, Textual or the
+forecast package (store.forecast). A kept row that is missing has to be computed, and then
+the forecast loads: the last test shows the check sees that.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import sqlite3
+import subprocess
+import sys
+from datetime import timedelta
+from pathlib import Path
+
+import pytest
+
+from store import record
+from store.base.session import fixed_clock
+from store.base.timeutil import format_utc, parse_utc
+from store.db.book import open_book
+
+ROOT = Path(__file__).resolve().parents[2]
+HEAVY_PACKAGES = ("numpy", "scipy", "textual")
+LEAN_COMMANDS = [
+    ["status"],
+    ["status", "--json"],
+    ["status", "--json", "--unit", "PR-3"],
+    ["list", "filters"],
+    ["list", "units"],
+    ["list", "breathers"],
+    ["--help"],
+    ["--version"],
+]
+
+
+def heavy(names: set[str]) -> list[str]:
+    """The modules among `names` that the lean path must not load."""
+    return sorted(
+        n
+        for n in names
+        if n.split(".")[0] in HEAVY_PACKAGES
+        or n == "store.forecast"
+        or n.startswith("store.forecast.")
+    )
+
+
+def imported(book: Path, args: list[str], now: str | None = None) -> set[str]:
+    """Every module a `sumpbook` run loaded (from `python -X importtime`'s report)."""
+    env = {**os.environ, "SUMPBOOK_DB": str(book)}
+    env.pop("SUMPBOOK_NOW", None)
+    if now:
+        env["SUMPBOOK_NOW"] = now
+    done = subprocess.run(
+        [sys.executable, "-X", "importtime", "-m", "tui", *args],
+        capture_output=True, text=True, env=env, cwd=ROOT, check=False, timeout=120,
+    )  # fmt: skip
+    assert done.returncode == 0, done.stderr[-3000:]
+    return {
+        line.split("|")[2].strip()
+        for line in done.stderr.splitlines()
+        if line.startswith("import time:") and "|" in line and "imported package" not in line
+    }
+
+
+@pytest.fixture(scope="module")
+def kept_demo(tmp_path_factory) -> tuple[Path, str]:
+    """A copy of the demo plant with every kept row fresh, and its frozen clock."""
+    from store.exchange.demo import create_demo
+
+    path = tmp_path_factory.mktemp("lean") / "demo.db"
+    create_demo(path).close()
+    with open_book(path, create=False) as book:
+        now = book.now()
+    with open_book(path, create=False, clock=fixed_clock(now)) as book:
+        record.rebuild(book)
+    return path, format_utc(now)
+
+
+@pytest.mark.parametrize("args", LEAN_COMMANDS, ids=" ".join)
+def test_quick_answers_load_no_fitting_maths_nor_textual(kept_demo, args):
+    book, _ = kept_demo
+    assert heavy(imported(book, args)) == []
+
+
+def test_status_a_week_on_loads_no_fitting_maths(kept_demo, tmp_path):
+    """The kept rows are time-proof: a week later they are still read, not recomputed."""
+    book, now = kept_demo
+    later = tmp_path / "later.db"
+    shutil.copy(book, later)
+    with sqlite3.connect(later) as conn:  # the demo's frozen clock off: SUMPBOOK_NOW counts
+        conn.execute("DELETE FROM settings WHERE key = 'clock'")
+    conn.close()
+    week = format_utc(parse_utc(now) + timedelta(days=7))
+    assert heavy(imported(later, ["status", "--json"], now=week)) == []
+
+
+def test_a_missing_kept_row_is_computed_and_then_the_forecast_loads(kept_demo, tmp_path):
+    """The check above is not blind: with one kept row gone the status is computed from the
+    entries, which takes the fitting maths."""
+    book, _ = kept_demo
+    gone = tmp_path / "gone.db"
+    shutil.copy(book, gone)
+    with sqlite3.connect(gone) as conn:
+        conn.execute("DELETE FROM status_cache WHERE rowid = (SELECT min(rowid) FROM status_cache)")
+    conn.close()
+    loaded = heavy(imported(gone, ["status", "--json"]))
+    assert "store.forecast.trend" in loaded and "numpy" in loaded
+
+
+def test_version_is_the_installed_packages(capsys):
+    from importlib.metadata import version
+
+    from tui.cli import main
+
+    with pytest.raises(SystemExit) as stop:
+        main(["--version"])
+    assert stop.value.code == 0
+    assert capsys.readouterr().out == f"sumpbook {version('sumpbook')}\n"
