@@ -62,7 +62,7 @@ from store.ledger.journal import element_items, parse_stamp
 from store.ledger.register import FilterPosition, Unit, find, list_all
 from store.physics.normalise import ColdStart
 
-FORMAT = 4  # bump when the stored status shape changes: old rows are then recomputed
+FORMAT = 5  # bump when the stored status shape changes: old rows are then recomputed
 _SKIP = ("history", "forecast", "age_to_time", "clock")
 _TIMES = ("reading_at", "changed_at", "overdue_at", "next_reading")
 _utc = parse_stamp
