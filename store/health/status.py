@@ -644,11 +644,12 @@ def _next_reading(
     before: Callable[[], datetime | None] = lambda: None,
 ) -> tuple[datetime | None, str]:
     """When to read the filter again and the rule that says so (store/forecast/readplan.py):
-    READ_SHARE (two thirds) of the time from the last reading (or change) to the pessimistic date (the forecast's
-    earliest date, or the service life's 5 % point given the age then), or to `before` (the
-    same date as the previous reading had it, worked out only when needed) where that is sooner: a date moves later only
-    once a second reading agrees; within the registered interval and the plant's shortest
-    shift. None before anything was logged."""
+    READ_SHARE (two thirds) of the time from the last reading (or change) to the pessimistic
+    date (the forecast's earliest date, or the service life's 5 % point given the age then),
+    or to `before` (the same date as the previous reading had it, worked out only when
+    needed) where that is sooner: a date moves later only once a second reading agrees;
+    within the registered interval and the plant's shortest shift, the change visit where
+    the share is under a shift. None before anything was logged."""
     from store.forecast import readplan
 
     if last_seen is None:
