@@ -85,7 +85,9 @@ def why_on_round(f: FilterStatus, until: datetime) -> tuple[str, ...]:
         why.append("overdue")
     if f.reading_at is None and f.changed_at is None:
         why.append("never-read")
-    turning = f.state == "check-now" or (f.next_rule == "shift" and "flagged" not in why)
+    turning = f.state == "check-now" or (
+        f.next_rule in ("shift", "change") and "flagged" not in why
+    )
     if f.due is not None and f.due.earliest < until:
         turning = True
     if turning and f.state not in ("past-limit", "past-bypass"):

@@ -584,7 +584,10 @@ def status_from(
     last_seen = max(
         [p.at for p in points] + ([current.fitted_at] if current.fitted_at else []), default=None
     )
-    next_reading, next_rule = _next_reading(ctx, last_seen, due, basis, state, flags, fit, clock)
+    before = partial(_earliest_before, ctx, numeric, past, fit, clock)
+    next_reading, next_rule = _next_reading(
+        ctx, last_seen, due, basis, state, flags, fit, clock, before
+    )
     # Overdue once the planned gap is passed by half again (a fixed interval: 1.5x it, as ever).
     overdue_at = None
     if last_seen and next_reading:
@@ -642,11 +645,15 @@ def _next_reading(
     flags: Sequence[str],
     fit: WeibullFit | None,
     clock: Clock,
+    before: Callable[[], datetime | None] = lambda: None,
 ) -> tuple[datetime | None, str]:
     """When to read the filter again and the rule that says so (store/forecast/readplan.py):
-    half the time from the last reading (or change) to the forecast's earliest date, or to the
-    service life's 5 % point given the age then; within the registered interval and the
-    plant's shortest shift. None before anything was logged."""
+    READ_SHARE (two thirds) of the time from the last reading (or change) to the pessimistic
+    date (the forecast's earliest date, or the service life's 5 % point given the age then),
+    or to `before` (the same date as the previous reading had it, worked out only when
+    needed) where that is sooner: a date moves later only once a second reading agrees;
+    within the registered interval and the plant's shortest shift, the change visit where
+    the share is under a shift. None before anything was logged."""
     from store.forecast import readplan
 
     if last_seen is None:
@@ -655,19 +662,72 @@ def _next_reading(
     rule = "forecast"
     if state in ("past-limit", "past-bypass") or any(f in _READ_EACH_SHIFT for f in flags):
         warning_h = 0.0
-    elif due is not None and basis in ("earlier-curves", "trend"):
-        warning_h = (due.earliest - last_seen).total_seconds() / 3600
-    elif basis == "service-life" and fit is not None:
-        age_h = clock.age_h(last_seen)
-        ahead_h = readplan.life_warning_h(fit.shape, fit.scale_h, age_h)
-        if age_h + ahead_h < MAX_AGE_H:
-            warning_h = (clock.time_at(age_h + ahead_h, last_seen) - last_seen).total_seconds()
-            warning_h /= 3600
-        rule = "service-life"
+    else:
+        if due is not None and basis in ("earlier-curves", "trend"):
+            until: datetime | None = due.earliest
+        else:
+            until = _life_earliest(fit, clock, last_seen) if basis == "service-life" else None
+            rule = "service-life" if basis == "service-life" else rule
+        if until is not None:
+            until = readplan.pessimistic_date(until, before())
+            warning_h = (until - last_seen).total_seconds() / 3600
     gap = readplan.bounded_gap(
         warning_h, ctx.position.reading_interval_h, ctx.shortest_read_h, rule
     )
     return last_seen + timedelta(hours=gap.gap_h), gap.rule
+
+
+def _life_earliest(fit: WeibullFit | None, clock: Clock, at: datetime) -> datetime | None:
+    """The service life's pessimistic date given the element's age at `at`: when a share
+    readplan.PESSIMISTIC_P of the elements that lasted that long reach the limit."""
+    from store.forecast import readplan
+
+    if fit is None:
+        return None
+    age_h = clock.age_h(at)
+    ahead_h = readplan.life_warning_h(fit.shape, fit.scale_h, age_h)
+    if age_h + ahead_h >= MAX_AGE_H:
+        return None
+    return clock.time_at(age_h + ahead_h, at)
+
+
+def _earliest_before(
+    ctx: FilterContext,
+    numeric: Sequence[Point],
+    past: Sequence[ElementSummary],
+    fit: WeibullFit | None,
+    clock: Clock,
+) -> datetime | None:
+    """The pessimistic date as it stood at the element's previous gauge reading: the forecast
+    from the readings up to it, at its age (or the service life given that age, where the
+    forecast had too few readings). From the entries alone, so the kept row and an as-of audit
+    agree. None with fewer than two readings or where no date could be given then."""
+    from store.forecast import trend  # deferred: numpy/scipy load on first fit
+
+    pos = ctx.position
+    if len(numeric) < 2 or not pos.limit_bar:
+        return None
+    ordered = sorted(numeric, key=lambda p: (p.age_h, p.at))
+    earlier = ordered[:-1]
+    then = earlier[-1]
+    readings = trend.ElementReadings(
+        ages_h=tuple(p.age_h for p in earlier),
+        dp_ref_bar=tuple(p.dp_ref_bar for p in earlier),  # type: ignore[misc]
+    )
+    try:
+        fc = trend.forecast(
+            readings, pos.clean_bar, pos.limit_bar, pos.bypass_bar, then.age_h,
+            earlier=_past(ctx, past),
+        )  # fmt: skip
+    except BookError:
+        return None
+    if fc.to_limit is not None and fc.basis in ("earlier-curves", "trend"):
+        if fc.state not in ("ok", "check-now") or not fc.to_limit.earliest_h < MAX_AGE_H:
+            return None
+        return clock.time_at(fc.to_limit.earliest_h, then.at)
+    if fc.state in ("too-few-readings", "no-readings", "flat"):
+        return _life_earliest(fit, clock, then.at)
+    return None
 
 
 def status_as_of(book: Book, ctx: FilterContext, as_of: datetime) -> FilterStatus:

@@ -130,6 +130,7 @@ READ_RULE_WORDS = {
     "service-life": "from earlier element lives",
     "interval": "the filter's reading interval",
     "shift": "each shift: near its limit or flagged",
+    "change": "change by the earliest date, or read then",
 }
 
 
