@@ -14,6 +14,7 @@ import os
 import re
 import shutil
 import sqlite3
+from collections.abc import Callable
 from datetime import UTC, datetime
 from pathlib import Path
 from urllib.parse import quote
@@ -135,10 +136,6 @@ def _same_bytes(a: Path, b: Path) -> bool:
         return False
 
 
-def backup_before_migration(conn: sqlite3.Connection, book_path: Path, version: int) -> Path:
-    return rolling_backup(conn, book_path, f"before-v{version}-upgrade")
-
-
 # ---- restore -------------------------------------------------------------------------------------
 
 
@@ -254,7 +251,14 @@ def restore(file: Path, book_path: Path) -> Path | None:
     return kept
 
 
-def swap_in(side: Path, book_path: Path, why: str) -> Path | None:
+class BookChanged(BookError):
+    """The book changed since the side file was made from it (`swap_in`'s `unchanged`):
+    nothing was swapped in."""
+
+
+def swap_in(
+    side: Path, book_path: Path, why: str, unchanged: Callable[[Path], bool] | None = None
+) -> Path | None:
     """Put the proven file `side` in the place of the logbook at `book_path`.
 
     The current logbook is first kept as `<name>-backups/<name>-<why>-<stamp>.db` (refused
@@ -268,6 +272,10 @@ def swap_in(side: Path, book_path: Path, why: str) -> Path | None:
     damaged one is kept byte for byte and the side file renamed over it (a program that
     still has the old file open refuses to write to it, see `Book.atomic`). Returns the
     kept copy, or None when there was no logbook.
+
+    `unchanged(kept)`, when given, is asked under the lock once the kept copy is made: False
+    (the book is not what the side file was made from) ends the swap with nothing written
+    (BookChanged). A damaged book is then refused too.
     """
     side, book_path = Path(side), Path(book_path)
     kept = None
@@ -276,9 +284,11 @@ def swap_in(side: Path, book_path: Path, why: str) -> Path | None:
         if _healthy(book_path):
             source = read_only(side)  # proven: its pages are copied, nothing run
             try:
-                _overwrite(source, book_path, kept)
+                _overwrite(source, book_path, kept, unchanged)
             finally:
                 source.close()
+        elif unchanged is not None:
+            raise BookError(f"{book_path} did not check out: nothing was swapped in")
         else:
             _keep_raw(book_path, kept)
             _rename_over(side, book_path)
@@ -292,7 +302,12 @@ def swap_in(side: Path, book_path: Path, why: str) -> Path | None:
 RESTORE_STEP_PAGES = 1  # the first step must not finish the copy: the kept copy comes after it
 
 
-def _overwrite(source: sqlite3.Connection, book_path: Path, kept: Path) -> None:
+def _overwrite(
+    source: sqlite3.Connection,
+    book_path: Path,
+    kept: Path,
+    unchanged: Callable[[Path], bool] | None = None,
+) -> None:
     """Keep the live logbook as `kept`, then copy `source` into it, as one write transaction
     that holds the book's write lock from before the kept copy is read to the end.
 
@@ -313,8 +328,17 @@ def _overwrite(source: sqlite3.Connection, book_path: Path, kept: Path) -> None:
         # copy so far is not committed: readers see the book as it stands, writers wait).
         if problems or kept.exists():
             return
+        if status in (sqlite3.SQLITE_BUSY, sqlite3.SQLITE_LOCKED):  # no lock after the timeout
+            problems.append(
+                BookError(
+                    f"{book_path} is busy: another sumpbook window or program kept it locked "
+                    f"for {BUSY_TIMEOUT_MS // 1000} s; nothing was swapped in; try again in a "
+                    "moment"
+                )
+            )
+            raise problems[-1]
         if remaining == 0:  # the copy is already whole: too late to keep what was there
-            problems.append(BookError("the restore could not keep the current logbook first"))
+            problems.append(BookError("could not keep the current logbook first"))
             raise problems[-1]
         try:
             if _held_exclusively(book_path):
@@ -326,6 +350,9 @@ def _overwrite(source: sqlite3.Connection, book_path: Path, kept: Path) -> None:
                     copy_to(current, kept)
                 finally:
                     current.close()
+            if unchanged is not None and not unchanged(kept):
+                kept.unlink(missing_ok=True)  # a copy of nothing that is being replaced
+                raise BookChanged(f"{book_path} changed meanwhile: nothing was swapped in")
         except BaseException as exc:
             problems.append(exc)
             raise
