@@ -52,14 +52,16 @@ def _text(name: str, value: str, limit: int | None = None) -> str:
     return validate_value.text(name, value, limit, multiline=name == "note")
 
 
-def validate(book: Book, entry: Entry, now: datetime | None = None) -> Entry:
-    """Return the entry completed (tags normalised, unit filled) or raise BookError."""
+def validate(book: Book, entry: Entry, now: datetime | None = None, history: bool = False) -> Entry:
+    """Return the entry completed (tags normalised, unit filled) or raise BookError.
+    `history`: an entry made earlier elsewhere (a merge): its technician may have been
+    marked inactive since; every other check still applies."""
     now = now or book.now()
     changes: dict[str, Any] = {}
     if not entry.by:
         raise BookError("who made this entry? give the technician's initials")
     tech = get(book, Technician, entry.by)
-    if not tech.active:
+    if not tech.active and not history:
         raise BookError(
             f"technician {tech.tag} is marked inactive: sign in as someone else, or make "
             f"them active again (sumpbook register change tech {tech.tag} active=yes)"
