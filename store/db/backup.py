@@ -10,11 +10,14 @@ without having logged anything does not push older copies out.
 from __future__ import annotations
 
 import filecmp
+import os
 import re
 import shutil
 import sqlite3
+from collections.abc import Callable
 from datetime import UTC, datetime
 from pathlib import Path
+from urllib.parse import quote
 
 from store.base.errors import BookError, NotALogbook
 from store.db.connection import (
@@ -133,10 +136,6 @@ def _same_bytes(a: Path, b: Path) -> bool:
         return False
 
 
-def backup_before_migration(conn: sqlite3.Connection, book_path: Path, version: int) -> Path:
-    return rolling_backup(conn, book_path, f"before-v{version}-upgrade")
-
-
 # ---- restore -------------------------------------------------------------------------------------
 
 
@@ -252,19 +251,31 @@ def restore(file: Path, book_path: Path) -> Path | None:
     return kept
 
 
-def swap_in(side: Path, book_path: Path, why: str) -> Path | None:
+class BookChanged(BookError):
+    """The book changed since the side file was made from it (`swap_in`'s `unchanged`):
+    nothing was swapped in."""
+
+
+def swap_in(
+    side: Path, book_path: Path, why: str, unchanged: Callable[[Path], bool] | None = None
+) -> Path | None:
     """Put the proven file `side` in the place of the logbook at `book_path`.
 
     The current logbook is first kept as `<name>-backups/<name>-<why>-<stamp>.db` (refused
-    with the book untouched when it cannot be). A healthy logbook in WAL mode (every book a
-    sumpbook has open) is overwritten through the backup API, one transaction that holds
-    the book's write lock from before the kept copy is read to its commit: a save by
-    another program either committed before (it is in the kept copy), or waits for the lock
-    (busy timeout) and lands in the restored book, or gives up and says nothing was saved.
-    A healthy book in rollback-journal mode (a copy no sumpbook has open) is kept while a
-    write lock is held, then overwritten. A damaged one is kept byte for byte and the side
-    file renamed over it (a program that still has the old file open refuses to write to
-    it, see `Book.atomic`). Returns the kept copy, or None when there was no logbook.
+    with the book untouched when it cannot be). A healthy logbook, in WAL or
+    rollback-journal mode alike, is overwritten through the backup API, one transaction
+    that holds the book's write lock from before the kept copy is read to its commit: a
+    save by another program either committed before (it is in the kept copy), or waits for
+    the lock (busy timeout) and lands in the restored book, or gives up and says nothing
+    was saved. (Keeping under one lock and overwriting under a second one, as a guess at
+    the journal mode once chose, lets a save in between: it is then in neither file.) A
+    damaged one is kept byte for byte and the side file renamed over it (a program that
+    still has the old file open refuses to write to it, see `Book.atomic`). Returns the
+    kept copy, or None when there was no logbook.
+
+    `unchanged(kept)`, when given, is asked under the lock once the kept copy is made: False
+    (the book is not what the side file was made from) ends the swap with nothing written
+    (BookChanged). A damaged book is then refused too.
     """
     side, book_path = Path(side), Path(book_path)
     kept = None
@@ -273,13 +284,11 @@ def swap_in(side: Path, book_path: Path, why: str) -> Path | None:
         if _healthy(book_path):
             source = read_only(side)  # proven: its pages are copied, nothing run
             try:
-                if _wal_mode(book_path):
-                    _overwrite(source, book_path, kept)
-                else:
-                    _keep_locked(book_path, kept)
-                    _copy_into(source, book_path)
+                _overwrite(source, book_path, kept, unchanged)
             finally:
                 source.close()
+        elif unchanged is not None:
+            raise BookError(f"{book_path} did not check out: nothing was swapped in")
         else:
             _keep_raw(book_path, kept)
             _rename_over(side, book_path)
@@ -290,70 +299,60 @@ def swap_in(side: Path, book_path: Path, why: str) -> Path | None:
     return kept
 
 
-def _wal_mode(book_path: Path) -> bool:
-    """WAL mode: the header says so, or a -wal file stands beside it (SQLite then opens it
-    in WAL mode whatever the header says)."""
-    if Path(f"{book_path}-wal").exists():
-        return True
-    with open(book_path, "rb") as handle:
-        head = handle.read(20)
-    return len(head) == 20 and head[18] == 2
-
-
-def _keep_locked(book_path: Path, kept: Path) -> None:
-    """Keep a copy of the logbook while a write lock on it is held (rollback-journal mode:
-    readers may read beside a held RESERVED lock)."""
-    lock = connect(book_path)
-    try:
-        try:
-            lock.execute("BEGIN IMMEDIATE")
-        except sqlite3.Error as exc:
-            raise write_error(exc, book_path) from exc
-        try:
-            current = connect(book_path, readonly=True)
-            try:
-                copy_to(current, kept)
-            finally:
-                current.close()
-        finally:
-            lock.execute("ROLLBACK")
-    finally:
-        lock.close()
-
-
-def _copy_into(source: sqlite3.Connection, book_path: Path) -> None:
-    target = sqlite3.connect(book_path, timeout=BUSY_TIMEOUT_MS / 1000)
-    try:
-        source.backup(target)
-    except sqlite3.Error as exc:
-        raise write_error(exc, book_path) from exc
-    finally:
-        target.close()
-
-
 RESTORE_STEP_PAGES = 1  # the first step must not finish the copy: the kept copy comes after it
 
 
-def _overwrite(source: sqlite3.Connection, book_path: Path, kept: Path) -> None:
+def _overwrite(
+    source: sqlite3.Connection,
+    book_path: Path,
+    kept: Path,
+    unchanged: Callable[[Path], bool] | None = None,
+) -> None:
     """Keep the live logbook as `kept`, then copy `source` into it, as one write transaction
-    that holds the book's write lock from before the kept copy is read to the end."""
+    that holds the book's write lock from before the kept copy is read to the end.
+
+    After the first step the target connection holds the lock. In WAL mode readers go on
+    beside it, and the kept copy is read through SQLite. In rollback-journal mode that lock
+    is EXCLUSIVE (the backup API asks for it): no reader gets in, but no one can change the
+    file either, and its bytes on disk are the committed book (the one page copied so far
+    sits in the target's cache, its original in the journal), so the kept copy is those
+    bytes, read through a plain descriptor (closing a descriptor of the file drops every
+    POSIX lock this process holds on it, so it is closed only after the target; no other
+    connection of this process has the book open during a restore or a demo)."""
     target = sqlite3.connect(book_path, timeout=BUSY_TIMEOUT_MS / 1000)
     problems: list[BaseException] = []
+    raw: list[int] = []  # descriptors of the book opened here, closed after the target
 
     def keep_current(status: int, remaining: int, total: int) -> None:
         # Called after each step; after the first, this connection holds the write lock (the
         # copy so far is not committed: readers see the book as it stands, writers wait).
         if problems or kept.exists():
             return
+        if status in (sqlite3.SQLITE_BUSY, sqlite3.SQLITE_LOCKED):  # no lock after the timeout
+            problems.append(
+                BookError(
+                    f"{book_path} is busy: another sumpbook window or program kept it locked "
+                    f"for {BUSY_TIMEOUT_MS // 1000} s; nothing was swapped in; try again in a "
+                    "moment"
+                )
+            )
+            raise problems[-1]
         if remaining == 0:  # the copy is already whole: too late to keep what was there
-            problems.append(BookError("the restore could not keep the current logbook first"))
+            problems.append(BookError("could not keep the current logbook first"))
             raise problems[-1]
         try:
-            current = connect(book_path, readonly=True)
-            try:
-                copy_to(current, kept)
-            finally:
-                current.close()
+            if _held_exclusively(book_path):
+                raw.append(os.open(book_path, os.O_RDONLY | getattr(os, "O_BINARY", 0)))
+                _keep_bytes(raw[0], kept)
+            else:
+                current = connect(book_path, readonly=True)
+                try:
+                    copy_to(current, kept)
+                finally:
+                    current.close()
+            if unchanged is not None and not unchanged(kept):
+                kept.unlink(missing_ok=True)  # a copy of nothing that is being replaced
+                raise BookChanged(f"{book_path} changed meanwhile: nothing was swapped in")
         except BaseException as exc:
             problems.append(exc)
             raise
@@ -371,10 +370,55 @@ def _overwrite(source: sqlite3.Connection, book_path: Path, kept: Path) -> None:
         raise
     finally:
         target.close()
+        for fd in raw:
+            os.close(fd)
     if problems:
         raise problems[0]
     if ok != "ok":
         raise BookError(f"{book_path} did not check out after the restore ({ok})")
+
+
+def _held_exclusively(book_path: Path) -> bool:
+    """Rollback-journal mode with our target holding the EXCLUSIVE lock: its journal stands
+    beside the book and a reader is refused at once. (In WAL mode a reader always gets in.)"""
+    if not Path(f"{book_path}-journal").exists():
+        return False
+    probe = sqlite3.connect(f"file:{quote(str(book_path))}?mode=ro", uri=True, timeout=0)
+    try:
+        probe.execute("SELECT count(*) FROM sqlite_master").fetchone()
+    except sqlite3.OperationalError as exc:
+        return "locked" in str(exc)
+    finally:
+        probe.close()
+    return False
+
+
+def _keep_bytes(raw: int, kept: Path) -> None:
+    """Copy the book's bytes from the open descriptor `raw` to `kept` (a new file), checked."""
+    tmp = kept.with_name(kept.name + ".part")
+    try:
+        kept.parent.mkdir(parents=True, exist_ok=True)
+        with open(tmp, "wb") as out:
+            offset = 0
+            while chunk := os.pread(raw, 1 << 20, offset):
+                out.write(chunk)
+                offset += len(chunk)
+            out.flush()
+            os.fsync(out.fileno())
+        check = sqlite3.connect(tmp)
+        try:
+            ok = check.execute("PRAGMA quick_check").fetchone()[0]
+        finally:
+            check.close()
+        if ok != "ok":
+            raise BookError(f"the copy {kept} did not check out ({ok}); nothing was kept")
+        tmp.replace(kept)
+    except (OSError, sqlite3.Error) as exc:
+        tmp.unlink(missing_ok=True)
+        raise BookError(f"could not keep the current logbook as {kept}: {exc}") from exc
+    except BaseException:
+        tmp.unlink(missing_ok=True)
+        raise
 
 
 def _keep_raw(book_path: Path, kept: Path) -> None:

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import os
+import shutil
 import sqlite3
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
@@ -13,7 +15,7 @@ from typing import TYPE_CHECKING
 from store.base.errors import BookError, NotALogbook
 from store.base.timeutil import parse_utc, utc_now, zone
 from store.base.validate import plant_setting
-from store.db.backup import backup_before_migration
+from store.db.backup import BookChanged, copy_to, remove_side_file, swap_in
 from store.db.connection import (
     CHECKED,
     check_header,
@@ -326,12 +328,93 @@ def _quarantined(conn: sqlite3.Connection) -> int:
         return 0
 
 
+# Header fields a copy writes its own way (SQLite file format, "The Database Header"): the
+# journal-mode bytes 18-19, the change counter 24-27, the page count 28-31, the schema cookie
+# 40-43, and version-valid-for and the library's version number 92-99.
+_COPY_OWN_HEADER = [(18, 20), (24, 32), (40, 44), (92, 100)]
+
+
+def same_pages(a: Path, b: Path) -> bool:
+    """Two copies of a book hold the same pages (byte for byte, but for the header fields
+    each copy writes its own way): nothing was written to the book between them."""
+    try:
+        with open(a, "rb") as fa, open(b, "rb") as fb:
+            head_a, head_b = bytearray(fa.read(100)), bytearray(fb.read(100))
+            for start, end in _COPY_OWN_HEADER:
+                head_a[start:end] = head_b[start:end] = bytes(end - start)
+            if head_a != head_b:
+                return False
+            while True:
+                chunk_a, chunk_b = fa.read(1 << 20), fb.read(1 << 20)
+                if chunk_a != chunk_b:
+                    return False
+                if not chunk_a:
+                    return True
+    except OSError:
+        return False
+
+
+def upgrade_beside(path: Path, version: int) -> list[str]:
+    """Upgrade the book at `path` from `version` through a side file, as a restore replaces
+    it: a copy of the book (backup API, a consistent snapshot) is migrated, proven
+    (`store.db.proof.prove_file`, against this sumpbook's MIGRATIONS), and swapped in by
+    `backup.swap_in`, which keeps the current book as `<name>-backups/<name>-before-vN-
+    upgrade-<stamp>.db` first (refused if it cannot) and holds the book's write lock from
+    before that kept copy is read to the swap's commit. A book that changed since the copy
+    (the kept copy differs from it: another program saved or upgraded meanwhile) is not
+    swapped (BookChanged). Any failure leaves the live file byte for byte as it was.
+    Returns what the migration found (rows it could not carry, kept in `quarantine`)."""
+    from store.db.proof import prove_file  # deferred: only an upgrade and restores need it
+
+    untouched = f"; {path} was left as it was"
+    tag = f"{os.getpid()}"
+    original = path.with_name(f"{path.name}.upgrade-from-{tag}")
+    side = path.with_name(f"{path.name}.upgrading-{tag}")
+    for stale in (original, side):
+        remove_side_file(stale)
+    try:
+        try:
+            current = connect(path)  # only reads; closing it last tidies the -wal away
+            try:
+                copy_to(current, original)
+            finally:
+                current.close()
+            shutil.copyfile(original, side)
+        except (OSError, sqlite3.Error) as exc:
+            raise BookError(f"could not copy {path} for its upgrade: {exc}") from exc
+        conn = sqlite3.connect(side, isolation_level=None)
+        try:
+            notices = migrate(conn, version)
+        except sqlite3.Error as exc:
+            if conn.in_transaction:
+                conn.execute("ROLLBACK")
+            raise BookError(f"could not upgrade {path}: {exc}") from exc
+        finally:
+            conn.close()
+        prove_file(side, f"{path} as upgraded to schema {SCHEMA_VERSION}", migrations=MIGRATIONS)
+
+        def unchanged(kept: Path) -> bool:
+            return same_pages(kept, original)
+
+        swap_in(side, path, f"before-v{version}-upgrade", unchanged=unchanged)
+    except BookChanged:
+        raise
+    except BookError as exc:
+        text = str(exc)
+        raise type(exc)(text if text.endswith(untouched) else text + untouched) from exc
+    finally:
+        for done in (original, side):
+            remove_side_file(done)
+    return notices
+
+
 def open_book(
     path: Path | str,
     *,
     create: bool = True,
     readonly: bool = False,
     clock: Callable[[], datetime] | None = None,
+    _again: bool = False,
 ) -> Book:
     """Open (and if needed create or migrate) the logbook at `path`.
 
@@ -388,13 +471,20 @@ def open_book(
                         f"it ({'; '.join(wrong[:3])}): it was not upgraded and was left as it "
                         f"was; {backup_hint(path)}"
                     )
-                backup_before_migration(conn, path, version)
-            try:
+                conn.close()
+                try:
+                    notices = upgrade_beside(path, version)
+                except BookChanged:
+                    if _again:
+                        raise
+                    # another program saved to it or upgraded it meanwhile: start again
+                    return open_book(
+                        path, create=create, readonly=readonly, clock=clock, _again=True
+                    )
+                conn = connect(path)
+                version = check_header(conn, path, quick=False)
+            else:
                 notices = migrate(conn, version)
-            except sqlite3.Error as exc:
-                if conn.in_transaction:
-                    conn.execute("ROLLBACK")
-                raise BookError(f"could not upgrade {path}: {exc}; it was left as it was") from exc
             if version == 0:
                 # schema 4 rebuilds schema 1's tables: a new file gives back their pages
                 conn.execute("VACUUM")

@@ -101,8 +101,12 @@ def integrity_findings(conn: sqlite3.Connection) -> list[str]:
     return [] if found == ["ok"] else found
 
 
-def prove_connection(conn: sqlite3.Connection) -> tuple[int, list[str]]:
-    """(schema version, findings) of an open file; no findings means proven good."""
+def prove_connection(
+    conn: sqlite3.Connection, migrations: list[str] | None = None
+) -> tuple[int, list[str]]:
+    """(schema version, findings) of an open file; no findings means proven good.
+    `migrations`: the steps to prove against (this sumpbook's MIGRATIONS when None)."""
+    known = len(MIGRATIONS if migrations is None else migrations)
     try:
         app_id = conn.execute("PRAGMA application_id").fetchone()[0]
         version = conn.execute("PRAGMA user_version").fetchone()[0]
@@ -110,13 +114,13 @@ def prove_connection(conn: sqlite3.Connection) -> tuple[int, list[str]]:
         return 0, [f"SQLite cannot read it ({exc})"]
     if app_id != APPLICATION_ID:
         return version, ["it is not a sumpbook logbook (no sumpbook application id)"]
-    if not 1 <= version <= SCHEMA_VERSION:
+    if not 1 <= version <= known:
         return version, [
-            f"its schema version {version} is not one this sumpbook knows (1 to {SCHEMA_VERSION})"
+            f"its schema version {version} is not one this sumpbook knows (1 to {known})"
         ]
     found = integrity_findings(conn)
     try:
-        found += schema_findings(conn, version)
+        found += schema_findings(conn, version, migrations)
         if not found:
             found += text_findings(conn)
     except sqlite3.DatabaseError as exc:
@@ -204,7 +208,9 @@ def checking(path: Path) -> sqlite3.Connection:
         return read_only(path)
 
 
-def prove_file(path: Path, label: str, rows_ok: bool = False) -> int:
+def prove_file(
+    path: Path, label: str, rows_ok: bool = False, migrations: list[str] | None = None
+) -> int:
     """The schema version of the file at `path`, proven good; NotALogbook naming `label`
     (how the person knows the file) and everything found otherwise. `rows_ok`: rows that
     break a CHECK or NOT NULL are let through, and indexes, views and triggers other than
@@ -219,7 +225,7 @@ def prove_file(path: Path, label: str, rows_ok: bool = False) -> int:
             found = [f"SQLite cannot open it ({exc})"]
         else:
             try:
-                version, found = prove_connection(conn)
+                version, found = prove_connection(conn, migrations)
             finally:
                 conn.close()
             if rows_ok:  # what a merge reads: the base tables, each row checked by itself

@@ -495,10 +495,8 @@ class _Merger:
         except (ValueError, TypeError, KeyError, OverflowError) as exc:
             return f"it cannot be read as an entry ({validate.one_line(str(exc), 80)})"
         try:
-            checked = journal.validate(self.book, entry, self.book.now() + MAX_AHEAD)
+            checked = journal.validate(self.book, entry, self.book.now() + MAX_AHEAD, history=True)
         except BookError as exc:
-            if "inactive" in str(exc):
-                return None
             return f"the command line refuses them here ({validate.one_line(str(exc), 120)})"
         unit = row.get("unit")
         if checked.unit and unit and str(unit).upper() != str(checked.unit).upper():

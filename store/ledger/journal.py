@@ -67,8 +67,10 @@ def _target_problem(book: Book, entry: Entry) -> str:
     return ""
 
 
-def validate(book: Book, entry: Entry, now: datetime | None = None) -> Entry:
-    """Return the entry completed (tags normalised, unit filled) or raise BookError."""
+def validate(book: Book, entry: Entry, now: datetime | None = None, history: bool = False) -> Entry:
+    """Return the entry completed (tags normalised, unit filled) or raise BookError.
+    `history`: an entry made earlier elsewhere (a merge): its technician may have been
+    marked inactive since; every other check still applies."""
     now = now or book.now()
     changes: dict[str, Any] = {}
     if not entry.by:
@@ -80,7 +82,7 @@ def validate(book: Book, entry: Entry, now: datetime | None = None) -> Entry:
         # was answered only with "unknown technician".
         target = _target_problem(book, entry)
         raise BookError(f"{target}; also {exc}" if target else str(exc)) from None
-    if not tech.active:
+    if not tech.active and not history:
         raise BookError(
             f"technician {tech.tag} is marked inactive: sign in as someone else, or make "
             f"them active again (sumpbook register change tech {tech.tag} active=yes)"

@@ -117,24 +117,28 @@ def test_a_backup_is_made_before_each_migration(tmp_path, book, monkeypatch):
     monkeypatch.setattr("store.db.connection.SCHEMA_VERSION", len(steps))
     with open_book(path) as upgraded:
         assert upgraded.conn.execute("PRAGMA user_version").fetchone()[0] == len(steps)
-    copy = latest_backup(path)
-    assert copy is not None and f"before-v{schema.SCHEMA_VERSION}-upgrade" in copy.name
+    # kept as a restore keeps the book it replaces (never dropped by the rolling copies)
+    copy = next(backup_dir(path).glob(f"book-before-v{schema.SCHEMA_VERSION}-upgrade-*.db"))
     conn = sqlite3.connect(copy)
     assert conn.execute("PRAGMA user_version").fetchone()[0] == schema.SCHEMA_VERSION
     assert conn.execute("SELECT note FROM entries").fetchone()[0] == "before the upgrade"
     conn.close()
 
 
-def test_a_failed_migration_still_leaves_its_backup(tmp_path, book, monkeypatch):
+def test_a_failed_migration_leaves_the_book_byte_for_byte_and_no_side_file(
+    tmp_path, book, monkeypatch
+):
     path = book.path
     book.close()
+    before = path.read_bytes()
     broken = schema.MIGRATIONS + ["CREATE TABLE extra (x); SELECT no_such_function();"]
     monkeypatch.setattr("store.db.book.MIGRATIONS", broken)
     monkeypatch.setattr("store.db.book.SCHEMA_VERSION", len(broken))
     monkeypatch.setattr("store.db.connection.SCHEMA_VERSION", len(broken))
     with pytest.raises(BookError, match="left as it was"):
         open_book(path)
-    assert latest_backup(path) is not None
+    assert path.read_bytes() == before  # the migration ran on a side copy only
+    assert sorted(p.name for p in tmp_path.iterdir() if p.name.startswith("book.db")) == ["book.db"]
 
 
 def test_backup_command_writes_a_checked_copy_and_never_overwrites(book, tmp_path, capsys):

@@ -126,3 +126,26 @@ def test_case8_a_recursive_view_in_place_of_entries_is_refused_at_once(pair):
         merge(book, b)
     # a refusal, not a minute of work: the view is never run (timing only as a sanity bound)
     assert time.monotonic() - started < 30
+
+
+def test_an_entry_by_a_technician_inactive_here_is_history_but_still_checked(pair):
+    """A technician marked inactive here since is no reason to hold an entry back; every other
+    check still applies to it (a code that does not match its counts is held back)."""
+    a, b = pair
+    conn = sqlite3.connect(b)
+    by = conn.execute("SELECT by FROM entries WHERE kind = 'sample' LIMIT 1").fetchone()[0]
+    conn.close()
+    fine = _crafted(b, "note", by=by, note="written before they left")
+    # ISO 4406 (1999) table 1: 2000/mL is code 18, 500/mL 16, 60/mL 13; 11/10/9 does not match
+    # (common practice, no source for the pairing of the rows)
+    wrong = _crafted(
+        b, "sample", by=by, c4_per_ml=2000.0, c6_per_ml=500.0, c14_per_ml=60.0, code="11/10/9"
+    )
+    conn = sqlite3.connect(a, isolation_level=None)
+    conn.execute("UPDATE technicians SET active = 0 WHERE tag = ?", [by])
+    conn.close()
+    with open_book(a) as book:
+        report = merge(book, b)
+    landed = _ids(a)
+    assert fine in landed
+    assert wrong not in landed and any(wrong[:8] in c for c in report.conflicts)

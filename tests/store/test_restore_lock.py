@@ -135,3 +135,88 @@ def test_a_book_open_on_a_file_that_was_replaced_refuses_to_write(tmp_path, book
     with open_book(book.path) as again:  # opened again, it writes
         record.log(again, Note(unit="P1", note="into the new file", by="AB"))
         assert journal.count(again) == 6
+
+
+def test_a_save_meeting_a_restore_of_a_rollback_mode_book_is_kept_or_restored(
+    tmp_path, monkeypatch
+):
+    """A book in rollback-journal mode (a copy no sumpbook has open, as `backup` writes) is
+    kept and overwritten under one write lock: a save by another process that gets in once
+    the kept copy is made lands in the restored book after it, never between the two (where
+    it would be in neither file: what a keep under one lock and an overwrite under a second
+    one allowed)."""
+    import subprocess
+    import sys
+    import time
+    import types
+
+    from store.db import backup as backup_module
+    from store.db.backup import copy_to
+    from tests.kit.plant import fill_register
+
+    with open_book(tmp_path / "w.db") as first:
+        fill_register(first)
+        _fill(first, 300)
+        live = copy_to(first.conn, tmp_path / "live.db")  # rollback-journal mode
+        source = copy_to(first.conn, tmp_path / "source.db")
+    assert live.read_bytes()[18] == 1  # SQLite file format: 1 rollback journal, 2 WAL
+    writer: list[int] = []
+
+    # another process (started fresh: SQLite's locks do not survive a fork) that spins until
+    # the book's write lock is free, then saves and says so
+    writer_code = (
+        "import sqlite3, sys, time, pathlib\n"
+        "conn = sqlite3.connect(sys.argv[1], timeout=0, isolation_level=None)\n"
+        "deadline = time.monotonic() + 20\n"
+        "while time.monotonic() < deadline:\n"
+        "    try:\n"
+        "        conn.execute('BEGIN IMMEDIATE')\n"
+        "        conn.execute(\"INSERT INTO settings (key, value) VALUES ('probe', 'x')\")\n"
+        "        conn.execute('COMMIT')\n"
+        "    except sqlite3.OperationalError:\n"
+        "        if conn.in_transaction:\n"
+        "            conn.execute('ROLLBACK')\n"
+        "        continue\n"
+        "    pathlib.Path(sys.argv[2]).touch()\n"
+        "    sys.exit(0)\n"
+        "sys.exit(1)\n"
+    )
+    saved = tmp_path / "saved"
+    writer: list[subprocess.Popen] = []
+
+    def then_race(keep):  # once the kept copy is made, a writer process starts waiting
+        def keep_then_race(*args):
+            result = keep(*args)
+            if "before-restore" in str(args[-1]) and not writer:
+                writer.append(
+                    subprocess.Popen([sys.executable, "-c", writer_code, str(live), str(saved)])
+                )
+            return result
+
+        return keep_then_race
+
+    def connect_after_the_writer(*args, **kwargs):
+        # a connection to the book opened once the kept copy is made gives the waiting
+        # writer its chance first: it saves now if the book's lock is free
+        if writer and Path(str(args[0])) == live:
+            deadline = time.monotonic() + 5
+            while time.monotonic() < deadline and not saved.exists():
+                time.sleep(0.01)
+        return sqlite3.connect(*args, **kwargs)
+
+    shim = types.SimpleNamespace(**{**vars(sqlite3), "connect": connect_after_the_writer})
+    monkeypatch.setattr(backup_module, "copy_to", then_race(backup_module.copy_to))
+    if hasattr(backup_module, "_keep_bytes"):  # how a rollback-journal book is kept
+        monkeypatch.setattr(backup_module, "_keep_bytes", then_race(backup_module._keep_bytes))
+    monkeypatch.setattr(backup_module, "sqlite3", shim)
+    kept = restore(source, live)
+    assert writer[0].wait(timeout=30) == 0  # the save was made and reported
+
+    def has_probe(path: Path) -> bool:
+        conn = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
+        try:
+            return conn.execute("SELECT count(*) FROM settings WHERE key = 'probe'").fetchone()[0]
+        finally:
+            conn.close()
+
+    assert has_probe(live) or has_probe(kept)  # type: ignore[arg-type]

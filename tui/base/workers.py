@@ -14,6 +14,7 @@ from typing import Any, TypeVar
 from store import Book, open_book
 from store.base.errors import BookError
 from store.base.session import Clock
+from store.ledger.journal import unreadable_report
 
 F = TypeVar("F", bound=Callable[..., Any])
 PROBLEMS = (BookError, sqlite3.Error, OSError)
@@ -46,7 +47,9 @@ def read_early(path: Path, read: Callable[[Book], Any], clock: Clock) -> Future[
     def in_thread() -> None:
         try:
             with open_book(path, create=False, clock=clock) as book:
-                future.set_result(read(book))
+                result = read(book)
+                future.left_out = unreadable_report(book)  # type: ignore[attr-defined]
+                future.set_result(result)
         except BaseException as exc:  # noqa: BLE001 - handed to the screen's worker
             future.set_exception(exc)
 

@@ -15,6 +15,7 @@ from textual.screen import Screen
 from textual.worker import get_current_worker
 
 from store import Book, damaged_read, open_book
+from store.ledger.journal import unreadable_report
 from tui.base.host import Host
 from tui.base.keys import bind
 
@@ -87,17 +88,29 @@ class BookScreen(Screen):
             try:
                 if early is not None:
                     result = early.result()
+                    left_out = getattr(early, "left_out", None)
                 else:
                     with open_book(path, create=False, clock=clock) as book:
                         result = read(book)
+                        left_out = unreadable_report(book)
             except Exception as exc:  # noqa: BLE001 - shown to the user, not raised
                 if not worker.is_cancelled:
                     self.app.call_from_thread(self.failed, exc)
                 return
             if not worker.is_cancelled:
                 self.app.call_from_thread(show, result)
+                if left_out:
+                    self.app.call_from_thread(self.name_left_out, left_out)
 
         self.run_worker(job, thread=True, exclusive=True, group=group, exit_on_error=False)
+
+    def name_left_out(self, report: str) -> None:
+        """Say once per app which entry rows a read left out (they could not be read: made
+        outside sumpbook); the same line again stays unsaid."""
+        told: set[str] = self.app.__dict__.setdefault("_told_left_out", set())
+        if report not in told:
+            told.add(report)
+            self.notify(report, severity="warning", timeout=12)
 
     def failed(self, exc: BaseException) -> None:
         self.loaded = True
