@@ -21,7 +21,6 @@ if TYPE_CHECKING:
 CONNECT_TIMEOUT_S = 8
 _URL = re.compile(r"postgres(?:ql)?://\S*", re.IGNORECASE)
 _PASSWORD_KV = re.compile(r"(password\s*=\s*)('(?:[^'\\]|\\.)*'|\S+)", re.IGNORECASE)
-_URL_PASSWORD = re.compile(r"(://[^/@?#:]*:)([^/@?#]*)(@)")
 
 
 def _psycopg() -> Any:
@@ -35,23 +34,42 @@ def _psycopg() -> Any:
 
 
 def shown(conninfo: str) -> str:
-    """The address as it may be printed: no password, whatever form it came in."""
+    """The address as it may be printed: no password, whatever form it came in (a URL's
+    user:password@, password=... as a setting or a URL parameter), even a mistyped one."""
     if not conninfo:
         return "the server of the PG* environment / service file"
-    text = _URL_PASSWORD.sub(r"\1***\3", conninfo)
-    text = _PASSWORD_KV.sub(r"\1***", text)
+    text = _PASSWORD_KV.sub(r"\1***", conninfo)
     text = re.sub(r"([?&]password=)[^&]*", r"\1***", text, flags=re.IGNORECASE)
+    at = text.rfind("@")
+    if at >= 0:  # user:password@host, however the scheme before it is spelled
+        head, tail = text[:at], text[at:]
+        scheme = re.match(r"^[A-Za-z][A-Za-z0-9+.-]*:/*", head)
+        start = scheme.end() if scheme else 0
+        colon = head.find(":", start)
+        if colon >= 0:
+            head = head[: colon + 1] + "***"
+        text = head + tail
     return one_line(text, 120)
+
+
+def _secrets(conninfo: str) -> list[str]:
+    found = [m.group(2).strip("'") for m in _PASSWORD_KV.finditer(conninfo)]
+    found += re.findall(r"[?&]password=([^&]*)", conninfo, flags=re.IGNORECASE)
+    at = conninfo.rfind("@")
+    if at >= 0:
+        head = conninfo[:at]
+        scheme = re.match(r"^[A-Za-z][A-Za-z0-9+.-]*:/*", head)
+        start = scheme.end() if scheme else 0
+        colon = head.find(":", start)
+        if colon >= 0:
+            found.append(head[colon + 1 :])
+    return [s for s in found if s]
 
 
 def scrub(message: str, conninfo: str) -> str:
     """A library's message with the address's password (in any spelling) taken out."""
-    secrets = [m.group(2) for m in _URL_PASSWORD.finditer(conninfo)]
-    secrets += [m.group(2).strip("'") for m in _PASSWORD_KV.finditer(conninfo)]
-    secrets += re.findall(r"[?&]password=([^&]*)", conninfo, flags=re.IGNORECASE)
-    for secret in secrets:
-        if secret:
-            message = message.replace(secret, "***")
+    for secret in _secrets(conninfo):
+        message = message.replace(secret, "***")
     message = _URL.sub(lambda m: shown(m.group(0)), message)
     message = _PASSWORD_KV.sub(r"\1***", message)
     return one_line(" ".join(message.split()), 240)

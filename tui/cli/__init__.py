@@ -20,7 +20,15 @@ from tui.cli import commands
 EXIT_BAD_INPUT = 2
 MAX_LIST_LIMIT = 1_000_000
 # Options that never take a value: a negative-looking word after them is not theirs.
-FLAGS = {"--force", "--nominal", "--hour-meter", "--indicator-only", "--unfiltered", "--json"}
+FLAGS = {
+    "--force",
+    "--nominal",
+    "--hour-meter",
+    "--indicator-only",
+    "--unfiltered",
+    "--json",
+    "--full",
+}
 _NEGATIVE_VALUE = re.compile(r"^-(\d|\.\d)")
 
 
@@ -251,7 +259,45 @@ def build_parser() -> argparse.ArgumentParser:
         "restored)",
     )
     p = sub.add_parser("rebuild", help="rebuild derived tables (status cache) from the entries")
+    _add_server_commands(sub)
     return parser
+
+
+def _add_server_option(p: argparse.ArgumentParser) -> None:
+    p.add_argument(
+        "--server",
+        metavar="URL",
+        help="the central server (default: this laptop's 'server' pref, else libpq's PG* "
+        "variables and service file); a password here is used, never kept or shown",
+    )
+
+
+def _add_server_commands(sub: argparse._SubParsersAction) -> None:
+    """The central PostgreSQL store (the optional 'server' extra)."""
+    srv = sub.add_parser("server", help="the central PostgreSQL store: set it up, point at it")
+    ssub = srv.add_subparsers(dest="action", metavar="ACTION", required=True)
+    p = ssub.add_parser("init", help="create or upgrade the sumpbook schema (as its owner)")
+    p.add_argument("url", metavar="URL")
+    p = ssub.add_parser("use", help="point this laptop at a server and name the book's plant")
+    p.add_argument("url", metavar="URL", help="postgresql://user@host/db (no password)")
+    p.add_argument("--plant", required=True, help="the plant's code, the same on every laptop")
+    p = sub.add_parser("sync", help="send this book's new rows to the server, bring the plant's in")
+    _add_server_option(p)
+    p.add_argument("--plant", help="the plant's code (once; then kept in the book)")
+    p.add_argument(
+        "--full", action="store_true", help="read every row of the plant again (after conflicts)"
+    )
+    fleet = sub.add_parser("fleet", help="every plant on the server: what is due, element lives")
+    fsub = fleet.add_subparsers(dest="view", metavar="VIEW", required=True)
+    p = fsub.add_parser("due", help="flagged, overdue and due this week, per plant")
+    _add_server_option(p)
+    p.add_argument("--plant", help="one plant only")
+    p.add_argument("--json", action="store_true", help="machine-readable output")
+    p = fsub.add_parser("lives", help="element lives per part number and plant (Weibull)")
+    _add_server_option(p)
+    p.add_argument("--plant", help="one plant only")
+    p.add_argument("--element", help="one element part number only")
+    p.add_argument("--json", action="store_true", help="machine-readable output")
 
 
 def run(args: argparse.Namespace) -> int:
@@ -304,7 +350,8 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_BAD_INPUT
     except sqlite3.DatabaseError as exc:  # a read met a damaged page (writes are checked first)
         print(
-            f"sumpbook: {inert(str(damaged_read(exc, args.db or session.db_path)))}", file=sys.stderr
+            f"sumpbook: {inert(str(damaged_read(exc, args.db or session.db_path)))}",
+            file=sys.stderr,
         )
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
