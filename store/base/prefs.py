@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import json
 import re
-from dataclasses import dataclass
+from dataclasses import asdict, dataclass, replace
 from pathlib import Path
 
 from store.base.errors import BookError
@@ -76,3 +76,13 @@ def has_password(conninfo: str) -> bool:
     head = conninfo[:at]
     scheme = _SCHEME.match(head)
     return ":" in head[scheme.end() if scheme else 0 :]
+
+
+def save(prefs: Prefs, path: Path, **changes: str) -> Prefs:
+    prefs = checked(replace(prefs, **changes))
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    tmp = path.with_suffix(".tmp")
+    tmp.write_text(json.dumps(asdict(prefs), indent=1), encoding="utf-8")
+    tmp.replace(path)
+    return prefs
