@@ -125,30 +125,67 @@ def test_second_sync_moves_nothing_and_register_changes_travel(tmp_path, server)
         assert syncing.last_synced(book) is not None
 
 
-def test_a_killed_sync_loses_nothing_and_the_next_completes(tmp_path, server, monkeypatch):
+@pytest.mark.parametrize("where", ["pull", "push register changes", "push entries"])
+def test_a_killed_sync_loses_nothing_and_the_next_completes(tmp_path, server, monkeypatch, where):
+    """The sync dies (power, a killed process) in the middle of a pull, between the register
+    changes and the entries of a push, or after the first batch of entries; batches of two
+    rows, so each phase has several."""
     books = _three(tmp_path)
+    merged = tmp_path / "ab.db"
+    shutil.copy(books["A"], merged)
+    with _open(merged) as book:
+        merge(book, books["B"])
     _sync(books["A"], server.url, "A")
-    calls = {"n": 0}
-    real = syncing._push_rows
+    calls = {"merge": 0, "entries": 0}
+    real_merge, real_push = syncing.merge, syncing._push_rows
 
-    def dies_after_register_log(*args, **kwargs):  # the power goes in the middle of the push
-        calls["n"] += 1
-        if args[3] == "entries":
+    def merge_dies(book, path):
+        calls["merge"] += 1
+        if where == "pull" and calls["merge"] == 2:
             raise KeyboardInterrupt
-        return real(*args, **kwargs)
+        return real_merge(book, path)
 
-    monkeypatch.setattr(syncing, "_push_rows", dies_after_register_log)
+    def push_dies(book, conn, code, table, *rest):
+        if where == "push register changes" and table == "entries":
+            raise KeyboardInterrupt
+        if where == "push entries" and table == "entries":
+            real_push(book, conn, code, table, *rest[:-2], 1, rest[-1])  # one batch of one row
+            raise KeyboardInterrupt
+        return real_push(book, conn, code, table, *rest)
+
+    monkeypatch.setattr(syncing, "merge", merge_dies)
+    monkeypatch.setattr(syncing, "_push_rows", push_dies)
     with pytest.raises(KeyboardInterrupt):
         _sync(books["B"], server.url, "B", batch_rows=2)
     monkeypatch.undo()
-    # the pull landed whole (A's entries are in B), nothing of B's entries is on the server
     with _open(books["B"]) as book:
         assert book.conn.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
-    assert len(_entries(books["B"])) == 4 + 4
-    done = _sync(books["B"], server.url, "B", batch_rows=2)
-    assert done.pushed_entries == 2 and done.pulled_entries == 0  # B's own two
+        assert book.conn.execute("PRAGMA foreign_key_check").fetchall() == []
+    assert set(_entries(books["B"])) <= set(_entries(merged))
+    _sync(books["B"], server.url, "B", batch_rows=2)
     _sync(books["A"], server.url, "A")
-    assert _entries(books["A"]) == _entries(books["B"])
+    assert _entries(books["A"]) == _entries(books["B"]) == _entries(merged)
+
+
+def test_every_other_command_works_with_an_unreachable_server(tmp_path, capsys):
+    """Offline first: a laptop pointed at a server it cannot reach logs, lists and exports
+    as before; only sync says why, in one line, and changes nothing."""
+    from tui.cli import main
+
+    path = tmp_path / "a.db"
+    with _open(path) as book:
+        fill_register(book)
+    url = "postgresql://laptop@127.0.0.1:1/fleet?connect_timeout=2"
+    assert main(["--db", str(path), "server", "use", url, "--plant", "NORTH"]) == 0
+    assert main(["--db", str(path), "log", "reading", "P1-RF", "--dp", "0.8", "--by", "AB"]) == 0
+    assert main(["--db", str(path), "status"]) == 0
+    assert main(["--db", str(path), "export", "--from", "2000-01-01"]) == 0
+    capsys.readouterr()
+    before = path.read_bytes()
+    assert main(["--db", str(path), "sync"]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "no server reached" in err and "nothing was changed" in err
+    assert path.read_bytes() == before
 
 
 def test_no_server_one_line_and_nothing_changed(tmp_path, pg):
