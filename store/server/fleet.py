@@ -160,18 +160,24 @@ def _run(conninfo: str, sql: str, params: dict[str, Any]) -> list[tuple[Any, ...
         conn.close()
 
 
+def watch_params(now: datetime, plant: str | None) -> dict[str, Any]:
+    return {"plant": plant, "now": now, "now_text": format_utc(now), "soon": now + DUE_SOON}
+
+
+def lives_params(plant: str | None, part: str | None) -> dict[str, Any]:
+    return {"plant": plant, "part": part, "reached": list(REACHED_REASONS)}
+
+
 def watch(conninfo: str, now: datetime, plant: str | None = None) -> list[WatchRow]:
     """What is flagged, overdue or due within a week, per plant (all plants unless one)."""
-    params = {"plant": plant, "now": now, "now_text": format_utc(now), "soon": now + DUE_SOON}
-    return [WatchRow(*row) for row in _run(conninfo, WATCH_SQL, params)]
+    return [WatchRow(*row) for row in _run(conninfo, WATCH_SQL, watch_params(now, plant))]
 
 
 def element_lives(
     conninfo: str, plant: str | None = None, part: str | None = None
 ) -> list[ElementLives]:
     """Every element part number's lives per plant and across plants, with their Weibull."""
-    params = {"plant": plant, "part": part, "reached": list(REACHED_REASONS)}
-    rows = _run(conninfo, LIVES_SQL, params)
+    rows = _run(conninfo, LIVES_SQL, lives_params(plant, part))
     out: list[ElementLives] = []
     by_part: dict[str, list[tuple[float, bool]]] = {}
     for part_no, plant_code, lives_h, reached in rows:

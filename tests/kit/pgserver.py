@@ -76,7 +76,15 @@ class PgServer:
         shutil.rmtree(self.folder, ignore_errors=True)
 
 
-def start() -> PgServer:
+TEST_SETTINGS = (
+    "-c fsync=off -c synchronous_commit=off -c full_page_writes=off -c shared_buffers=32MB "
+    "-c max_connections=40"
+)
+
+
+def start(settings: str = TEST_SETTINGS) -> PgServer:
+    """A new server; `settings` are postgres -c options (the tests trade durability for
+    speed; the benchmark keeps PostgreSQL's durable defaults)."""
     initdb, pg_ctl = find_binary("initdb"), find_binary("pg_ctl")
     if not initdb or not pg_ctl:
         raise RuntimeError("PostgreSQL's initdb/pg_ctl are not installed (see .ci/run)")
@@ -103,11 +111,7 @@ def start() -> PgServer:
     subprocess.run([*as_user, "sh", "-c", f"printf '%s' '{rules}' > {hba}"], check=True)
     for _ in range(5):
         port = _free_port()
-        options = (
-            f"-p {port} -k {folder} -c listen_addresses=127.0.0.1 -c fsync=off "
-            "-c synchronous_commit=off -c full_page_writes=off -c shared_buffers=32MB "
-            "-c max_connections=40"
-        )
+        options = f"-p {port} -k {folder} -c listen_addresses=127.0.0.1 {settings}"
         done = subprocess.run(
             [*as_user, pg_ctl, "start", "-w", "-t", "30", "-D", str(data), "-o", options,
              "-l", str(folder / "log")],
