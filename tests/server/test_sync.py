@@ -118,6 +118,7 @@ def test_second_sync_moves_nothing_and_register_changes_travel(tmp_path, server)
     again = _sync(books["A"], server.url, "A")
     assert (again.pushed_entries, again.pushed_known, again.pulled_entries) == (0, 0, 0)
     b = _sync(books["B"], server.url, "B")
+    assert not first.conflicts and not again.conflicts and not b.conflicts
     assert b.pulled_entries == 4 and b.register_taken == 1  # A's four entries and breather P1-BR2
     with _open(books["B"]) as book:
         logged = {r[0] for r in book.conn.execute("SELECT tag FROM register_log")}
@@ -197,3 +198,25 @@ def test_no_server_one_line_and_nothing_changed(tmp_path, pg):
     message = str(caught.value)
     assert "\n" not in message and "topsecret99" not in message and "no server" in message
     assert books["A"].read_bytes() == before
+
+
+def test_register_conflicts_settle_as_merge_settles_them(tmp_path, server):
+    """The same tag registered on two laptops with different settings: each book keeps its
+    own, the server the first laptop's, and the difference is listed every sync until a
+    person settles it; the entries on the tag travel both ways."""
+    books = _three(tmp_path)
+    for who, limit in (("A", 2.0), ("B", 2.2)):
+        with _open(books[who]) as book:
+            register.add(book, FilterPosition(tag="P1-OF", unit="P1", kind="offline",
+                                              limit_bar=limit, bypass_bar=3.0), by="AB")  # fmt: skip
+            record.log(book, Reading(filter="P1-OF", dp_bar=1.0 + limit / 10, temp_c=45, by="AB"))
+    _sync(books["A"], server.url, "A")
+    report = _sync(books["B"], server.url, "B")
+    assert any("P1-OF differs" in line and "limit_bar" in line for line in report.conflicts)
+    _sync(books["A"], server.url, "A")
+    with _open(books["B"]) as book:
+        assert register.get(book, FilterPosition, "P1-OF").limit_bar == 2.2
+    with _open(books["A"]) as book:
+        assert register.get(book, FilterPosition, "P1-OF").limit_bar == 2.0
+        readings = [e for e in journal.read(book) if e.kind == "reading" and e.filter == "P1-OF"]
+        assert len(readings) == 2
