@@ -96,3 +96,24 @@ def test_a_voided_change_is_no_life(tmp_path, fleet_server):
         sync(book, server.url)
     north = fleet.element_lives(server.url, plant="NORTH", part="RX-10")
     assert [e.lives for e in north] == [4]
+
+
+def test_fleet_on_the_command_line(fleet_server, capsys, monkeypatch):
+    import json
+
+    from tui.cli import main
+
+    server, _, _ = fleet_server
+    monkeypatch.setenv("SUMPBOOK_NOW", NOW.isoformat())
+    assert main(["fleet", "due", "--server", server.url, "--json"]) == 0
+    rows = json.loads(capsys.readouterr().out)
+    assert {(r["plant"], r["tag"], r["flag"]) for r in rows} >= {
+        ("NORTH", "P1-RF", "at limit"),
+        ("SOUTH", "P1-RF", "reading overdue"),
+    }
+    assert main(["fleet", "lives", "--server", server.url, "--element", "rx-10"]) == 0
+    out = capsys.readouterr().out
+    assert "all plants" in out and "9 lives, 7 at the limit" in out
+    assert main(["fleet", "due", "--server", server.url, "--plant", "SOUTH"]) == 0
+    out = capsys.readouterr().out
+    assert "SOUTH" in out and "NORTH" not in out
