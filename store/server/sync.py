@@ -144,7 +144,9 @@ def sync(
                 for key, value in ((PLANT_KEY, code), (SERVER_KEY, server_id)):
                     book.set_setting(key, value)
                 for key in CURSORS:
-                    book.set_setting(key, str(cursors[key]))
+                    table = PUSHED_TABLES.get(key)
+                    mark = _row_mark(book, table, cursors[key]) if table else str(cursors[key])
+                    book.set_setting(key, mark)
             _pull(book, conn, code, cursors, report, batch_rows)
             _push(book, conn, code, cursors, report, batch_rows)
             newest = conn.execute(
@@ -197,15 +199,33 @@ def _check_server(conn: psycopg.Connection) -> str:
 
 def _cursors(book: Book, code: str, server_id: str, full: bool) -> dict[str, int]:
     """The book's cursors; all from the start on another server, another plant, or --full
-    (the pushed rows are sent again: the server keeps what it has)."""
+    (the pushed rows are sent again: the server keeps what it has). A push cursor is a rowid
+    and the id of the row it named: if that row has another rowid now (a table rebuilt by an
+    upgrade, a VACUUM), everything is sent again rather than a row skipped."""
     same = book.setting(SERVER_KEY) == server_id and book.setting(PLANT_KEY) == code
     out: dict[str, int] = {}
     for key in CURSORS:
+        text = book.setting(key, "0") or "0"
         try:
-            out[key] = int(book.setting(key, "0") or 0) if same and not full else 0
+            value = int(text.split(" ")[0]) if same and not full else 0
         except ValueError:
-            out[key] = 0
+            value = 0
+        table = PUSHED_TABLES.get(key)
+        if table and value and _row_mark(book, table, value) != text:
+            value = 0
+        out[key] = value
     return out
+
+
+PUSHED_TABLES = {PUSHED_KEY: "entries", PUSHED_LOG_KEY: "register_log"}
+
+
+def _row_mark(book: Book, table: str, rowid: int) -> str:
+    """A push cursor as kept: the rowid and the id of the row it names."""
+    if not rowid:
+        return "0"
+    row = book.conn.execute(f"SELECT id FROM {table} WHERE rowid = ?", [rowid]).fetchone()
+    return f"{rowid} {row[0] if row else '-'}"
 
 
 @contextmanager
@@ -274,7 +294,7 @@ def _pull(
                 merged = merge(book, path)
                 if cursors[PUSHED_KEY] >= before:  # pulled rows need not go back up
                     cursors[PUSHED_KEY] = _max_rowid(book)
-                    book.set_setting(PUSHED_KEY, str(cursors[PUSHED_KEY]))
+                    book.set_setting(PUSHED_KEY, _row_mark(book, "entries", cursors[PUSHED_KEY]))
                 if log:
                     cursors[PULLED_LOG_KEY] = log[-1]["seq"]
                     book.set_setting(PULLED_LOG_KEY, str(cursors[PULLED_LOG_KEY]))
@@ -410,7 +430,7 @@ def _push_rows(
         else:
             report.pushed_log += added
         cursors[key] = rows[-1][0]
-        book.set_setting(key, str(cursors[key]))
+        book.set_setting(key, f"{rows[-1][0]} {rows[-1][1]}")  # rowid and id (see _cursors)
 
 
 # ---- small helpers -------------------------------------------------------------------------------

@@ -220,3 +220,15 @@ def test_register_conflicts_settle_as_merge_settles_them(tmp_path, server):
         assert register.get(book, FilterPosition, "P1-OF").limit_bar == 2.0
         readings = [e for e in journal.read(book) if e.kind == "reading" and e.filter == "P1-OF"]
         assert len(readings) == 2
+
+
+def test_a_push_cursor_naming_another_row_sends_everything_again(tmp_path, server):
+    """Rowids renumbered under the cursor (a rebuilt table): nothing is skipped."""
+    books = _three(tmp_path)
+    _sync(books["A"], server.url, "A")
+    with _open(books["A"]) as book:
+        record.log(book, Note(unit="P1", note="after the rebuild", by="AB"))
+        rowid = book.conn.execute("SELECT max(rowid) FROM entries").fetchone()[0]
+        book.set_setting(syncing.PUSHED_KEY, f"{rowid} 00000000-0000-4000-8000-000000000000")
+    report = _sync(books["A"], server.url, "A")
+    assert report.pushed_entries == 1 and report.pushed_known == len(_entries(books["A"])) - 1
