@@ -3,7 +3,10 @@
 Every plant's rows live in the same tables keyed by (plant, tag) and (plant, id), so two
 plants' tags never meet. The server refuses what the book file refuses: the same value ranges
 (store/base/validate.py's RANGES) as CHECKs, the same tags, stamps and kinds, append-only
-entries and register changes (triggers, and grants: the laptop role may only read and insert).
+entries and register changes (triggers, and grants: the laptop role may only read and insert
+them). A register record (a filter's settings, ...) may be replaced, as in a book, but only by
+a newer change of it (`changed_utc`, its book's newest register change, then `changes`, how
+many it has had: a trigger refuses anything else, and every delete).
 The version is kept in `sumpbook_meta`; each script moves it from N-1 to N and a released
 script is never edited.
 """
@@ -189,7 +192,14 @@ def _v1() -> str:
 );"""
     ]
     for table, columns in REGISTER_COLUMNS.items():
-        body = ",\n    ".join([PLANT] + [f"{_quoted(c)} {t}" for c, t in columns])
+        body = ",\n    ".join(
+            [PLANT]
+            + [f"{_quoted(c)} {t}" for c, t in columns]
+            + [
+                f"changed_utc text NOT NULL DEFAULT '1970-01-01T00:00:00Z' {_stamp('changed_utc')}",
+                "changes integer NOT NULL DEFAULT 0 CHECK (changes >= 0)",
+            ]
+        )
         extra = "".join(f",\n    {x}" for x in REGISTER_EXTRA.get(table, []))
         parts.append(
             f"CREATE TABLE {table} (\n    {body},\n    PRIMARY KEY (plant, tag){extra}\n);"
@@ -246,8 +256,26 @@ CREATE TRIGGER entries_no_truncate BEFORE TRUNCATE ON entries
 CREATE TRIGGER register_log_append_only BEFORE UPDATE OR DELETE ON register_log
     FOR EACH ROW EXECUTE FUNCTION sumpbook_append_only();
 CREATE TRIGGER register_log_no_truncate BEFORE TRUNCATE ON register_log
-    FOR EACH STATEMENT EXECUTE FUNCTION sumpbook_append_only();"""
+    FOR EACH STATEMENT EXECUTE FUNCTION sumpbook_append_only();
+-- A register record is replaced only by a newer change of the same plant's same tag (its
+-- book's newest register change); never deleted.
+CREATE FUNCTION sumpbook_register_newer() RETURNS trigger LANGUAGE plpgsql AS $$
+BEGIN
+    IF TG_OP = 'DELETE' OR NEW.plant <> OLD.plant OR NEW.tag <> OLD.tag
+       OR (NEW.changed_utc, NEW.changes) <= (OLD.changed_utc, OLD.changes) THEN
+        RAISE EXCEPTION 'a % record is replaced only by a newer change of it', TG_TABLE_NAME
+            USING ERRCODE = 'insufficient_privilege';
+    END IF;
+    RETURN NEW;
+END $$;"""
     )
+    for table in REGISTER_TABLES:
+        parts.append(
+            f"""CREATE TRIGGER {table}_newer_only BEFORE UPDATE OR DELETE ON {table}
+    FOR EACH ROW EXECUTE FUNCTION sumpbook_register_newer();
+CREATE TRIGGER {table}_no_truncate BEFORE TRUNCATE ON {table}
+    FOR EACH STATEMENT EXECUTE FUNCTION sumpbook_append_only();"""
+        )
     tables = ["plants", *REGISTER_TABLES, "entries", "register_log"]
     parts.append(
         f"""DO $$ BEGIN
@@ -257,6 +285,7 @@ CREATE TRIGGER register_log_no_truncate BEFORE TRUNCATE ON register_log
 END $$;
 REVOKE ALL ON {", ".join(tables)} FROM PUBLIC;
 GRANT SELECT, INSERT ON {", ".join(tables)} TO {LAPTOP_ROLE};
+GRANT UPDATE ON {", ".join(REGISTER_TABLES)} TO {LAPTOP_ROLE};
 GRANT SELECT ON sumpbook_meta TO {LAPTOP_ROLE};"""
     )
     return "\n".join(parts)

@@ -147,8 +147,12 @@ def sync(
                     table = PUSHED_TABLES.get(key)
                     mark = _row_mark(book, table, cursors[key]) if table else str(cursors[key])
                     book.set_setting(key, mark)
+            _push_register(book, conn, code, report)  # first: this book's newer changes stand
             _pull(book, conn, code, cursors, report, batch_rows)
-            _push(book, conn, code, cursors, report, batch_rows)
+            _push_rows(book, conn, code, "register_log", LOG_NAMES, PUSHED_LOG_KEY, cursors,
+                       batch_rows, report)  # fmt: skip
+            _push_rows(book, conn, code, "entries", ENTRY_NAMES, PUSHED_KEY, cursors, batch_rows,
+                       report)  # fmt: skip
             newest = conn.execute(
                 "SELECT (SELECT coalesce(max(seq), 0) FROM entries WHERE plant = %s), "
                 "(SELECT coalesce(max(seq), 0) FROM register_log WHERE plant = %s)",
@@ -364,30 +368,36 @@ def _max_rowid(book: Book) -> int:
 # ---- push ----------------------------------------------------------------------------------------
 
 
-def _push(
-    book: Book,
-    conn: psycopg.Connection,
-    code: str,
-    cursors: dict[str, int],
-    report: SyncReport,
-    batch_rows: int,
-) -> None:
+def _push_register(book: Book, conn: psycopg.Connection, code: str, report: SyncReport) -> None:
+    """Every register record of the book, stamped with its newest register change and how
+    many it has had: a tag new to the plant is added, a tag whose change here is newer than
+    the server's replaces it, any other stays as the server has it (the pull then lists the
+    difference, as merge does)."""
     with conn.transaction():
         for table in REGISTER_TABLES:
             names = [c for c, _ in REGISTER_COLUMNS[table]]
-            rows = book.conn.execute(f"SELECT {_names(names)} FROM {table}").fetchall()
+            rows = book.conn.execute(
+                f"SELECT {', '.join(f't.{chr(34)}{n}{chr(34)}' for n in names)}, "
+                "coalesce((SELECT max(l.at_utc) FROM register_log l WHERE l.tbl = ? "
+                "AND l.tag = t.tag), '1970-01-01T00:00:00Z'), "
+                "(SELECT count(*) FROM register_log l WHERE l.tbl = ? AND l.tag = t.tag) "
+                f"FROM {table} t",
+                [table, table],
+            ).fetchall()
             if not rows:
                 continue
+            stamped = [*names, "changed_utc", "changes"]
+            columns = _names(stamped)
+            updates = ", ".join(f'"{n}" = EXCLUDED."{n}"' for n in stamped)
             with conn.cursor() as cur:
                 cur.executemany(
-                    f"INSERT INTO {table} (plant, {_names(names)}) VALUES "
-                    f"(%s, {', '.join('%s' for _ in names)}) ON CONFLICT DO NOTHING",
+                    f"INSERT INTO {table} AS s (plant, {columns}) VALUES "
+                    f"(%s, {', '.join('%s' for _ in stamped)}) "
+                    f"ON CONFLICT (plant, tag) DO UPDATE SET {updates} "
+                    "WHERE (s.changed_utc, s.changes) < (EXCLUDED.changed_utc, EXCLUDED.changes)",
                     [[code, *row] for row in rows],
                 )
                 report.register_pushed += max(cur.rowcount, 0)
-    _push_rows(book, conn, code, "register_log", LOG_NAMES, PUSHED_LOG_KEY, cursors, batch_rows,
-               report)  # fmt: skip
-    _push_rows(book, conn, code, "entries", ENTRY_NAMES, PUSHED_KEY, cursors, batch_rows, report)
 
 
 def _push_rows(

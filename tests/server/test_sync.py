@@ -7,12 +7,14 @@ from __future__ import annotations
 import itertools
 import shutil
 import sqlite3
+from datetime import UTC, datetime, timedelta
 from pathlib import Path
 
 import pytest
 
 from store import record
 from store.base.errors import BookError
+from store.base.session import fixed_clock
 from store.db.book import open_book
 from store.exchange.merge import merge
 from store.ledger import journal, register
@@ -202,24 +204,43 @@ def test_no_server_one_line_and_nothing_changed(tmp_path, pg):
 
 def test_register_conflicts_settle_as_merge_settles_them(tmp_path, server):
     """The same tag registered on two laptops with different settings: each book keeps its
-    own, the server the first laptop's, and the difference is listed every sync until a
-    person settles it; the entries on the tag travel both ways."""
+    own (as in a merge), the server the most recently changed, the difference is listed on
+    the other laptop at every sync until a person settles it; entries on the tag travel."""
     books = _three(tmp_path)
-    for who, limit in (("A", 2.0), ("B", 2.2)):
-        with _open(books[who]) as book:
+    for who, limit, minute in (("A", 2.0, 1), ("B", 2.2, 2)):  # B registers a minute later
+        clock = fixed_clock(datetime.now(UTC).replace(microsecond=0) + timedelta(minutes=minute))
+        with open_book(books[who], clock=clock) as book:
             register.add(book, FilterPosition(tag="P1-OF", unit="P1", kind="offline",
                                               limit_bar=limit, bypass_bar=3.0), by="AB")  # fmt: skip
             record.log(book, Reading(filter="P1-OF", dp_bar=1.0 + limit / 10, temp_c=45, by="AB"))
-    _sync(books["A"], server.url, "A")
-    report = _sync(books["B"], server.url, "B")
+    assert not _sync(books["A"], server.url, "A").conflicts
+    assert not _sync(books["B"], server.url, "B").conflicts  # B's is newer: the server takes it
+    report = _sync(books["A"], server.url, "A")
     assert any("P1-OF differs" in line and "limit_bar" in line for line in report.conflicts)
-    _sync(books["A"], server.url, "A")
     with _open(books["B"]) as book:
         assert register.get(book, FilterPosition, "P1-OF").limit_bar == 2.2
     with _open(books["A"]) as book:
         assert register.get(book, FilterPosition, "P1-OF").limit_bar == 2.0
         readings = [e for e in journal.read(book) if e.kind == "reading" and e.filter == "P1-OF"]
         assert len(readings) == 2
+        register.update(book, FilterPosition, "P1-OF", {"limit_bar": 2.2}, by="AB")  # settled
+    assert not _sync(books["A"], server.url, "A").conflicts
+
+
+def test_a_register_change_reaches_the_server_and_is_listed_elsewhere(tmp_path, server):
+    books = _three(tmp_path)
+    _sync(books["A"], server.url, "A")
+    _sync(books["B"], server.url, "B")
+    with _open(books["A"]) as book:
+        register.update(book, FilterPosition, "P1-RF", {"limit_bar": 2.3}, by="AB")
+    assert not _sync(books["A"], server.url, "A").conflicts
+    report = _sync(books["B"], server.url, "B")
+    assert [line for line in report.conflicts if "P1-RF differs" in line]
+    assert report.pulled_log == 0  # as in a merge: a conflicting tag's changes wait for a person
+    with _open(books["B"]) as book:
+        register.update(book, FilterPosition, "P1-RF", {"limit_bar": 2.3}, by="CD")
+    assert not _sync(books["B"], server.url, "B").conflicts
+    assert not _sync(books["A"], server.url, "A").conflicts
 
 
 def test_a_push_cursor_naming_another_row_sends_everything_again(tmp_path, server):
