@@ -292,7 +292,7 @@ def _pull(
         first = False  # the register comes in even when no entry is new
         with tempfile.TemporaryDirectory(prefix="sumpbook-pull-") as folder:
             path = Path(folder) / "server.db"
-            _write_pull_book(path, register, log, entries)
+            refused = _write_pull_book(path, register, log, entries)
             with book.atomic():  # the batch and its cursors together
                 before = _max_rowid(book)
                 merged = merge(book, path)
@@ -306,6 +306,12 @@ def _pull(
                     cursors[PULLED_KEY] = entries[-1]["seq"]
                     book.set_setting(PULLED_KEY, str(cursors[PULLED_KEY]))
         _count(report, merged)
+        if refused:
+            report.left_out += refused
+            report.conflicts.append(
+                f"{refused} rows from the server left out: the logbook file's own checks refuse "
+                "them (written into the server by another program?)"
+            )
         if not (log or entries):
             return
 
@@ -329,11 +335,12 @@ def _write_pull_book(
     register: dict[str, list[dict[str, Any]]],
     log: list[dict[str, Any]],
     entries: list[dict[str, Any]],
-) -> None:
+) -> int:
     """A throw-away logbook holding the server's rows as they came, for merge to read as it
     reads any other laptop's file. A row the file's own checks refuse is left out of it
     (OR IGNORE) and so never reaches the book; foreign keys are off, so an entry naming a
-    tag the server has no row for still reaches merge, which says why it stays out."""
+    tag the server has no row for still reaches merge, which says why it stays out.
+    Returns how many log rows and entries the file refused."""
     with open_book(path, create=True) as made:
         made.conn.execute("DELETE FROM settings")  # nothing of a plant's settings comes in
         conn = made.conn
@@ -342,16 +349,20 @@ def _write_pull_book(
         for table in REGISTER_TABLES:
             names = [c for c, _ in REGISTER_COLUMNS[table]]
             _insert(conn, table, names, register[table])
-        _insert(conn, "register_log", LOG_NAMES, log)
-        _insert(conn, "entries", ENTRY_NAMES, entries)
+        refused = _insert(conn, "register_log", LOG_NAMES, log)
+        refused += _insert(conn, "entries", ENTRY_NAMES, entries)
         conn.execute("COMMIT")
+    return refused
 
 
-def _insert(conn: Any, table: str, names: list[str], rows: list[dict[str, Any]]) -> None:
+def _insert(conn: Any, table: str, names: list[str], rows: list[dict[str, Any]]) -> int:
+    """The rows the file takes; returns how many it refused."""
     sql = (
         f"INSERT OR IGNORE INTO {table} ({_names(names)}) VALUES ({', '.join('?' for _ in names)})"
     )
+    before = conn.total_changes
     conn.executemany(sql, ([_plain(row[n]) for n in names] for row in rows))
+    return len(rows) - (conn.total_changes - before)
 
 
 def _plain(value: Any) -> Any:

@@ -88,11 +88,13 @@ def test_rows_from_the_server_pass_merges_door(tmp_path, server):
         padded = _row(owner, note="  spaces around  ")  # merge: not as sumpbook stores notes
         ahead = _row(owner, at_utc="2099-01-01T00:00:00Z")  # more than a day ahead
         good = _row(owner, dp_bar=1.2)
+        no_day = _row(owner, at_utc="2026-02-30T08:00:00Z")  # the book's CHECK: a real date
     with _book(path) as book:
         report = syncing.sync(book, server.url)
         ids = {e.id for e in journal.read(book)}
-    assert good in ids and padded not in ids and ahead not in ids
-    assert report.pulled_entries == 1 and report.left_out == 2
+    assert good in ids and padded not in ids and ahead not in ids and no_day not in ids
+    assert any("file's own checks" in line for line in report.conflicts), report.conflicts
+    assert report.pulled_entries == 1 and report.left_out == 3
     assert any("notes" in line for line in report.conflicts)
     assert any("ahead" in line for line in report.conflicts)
 
