@@ -350,8 +350,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_BAD_INPUT
     except sqlite3.DatabaseError as exc:  # a read met a damaged page (writes are checked first)
         print(
-            f"sumpbook: {inert(str(damaged_read(exc, args.db or session.db_path)))}",
-            file=sys.stderr,
+            f"sumpbook: {inert(str(damaged_read(exc, args.db or session.db_path)))}", file=sys.stderr
         )
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
