@@ -142,3 +142,30 @@ def test_sslmode_is_honoured(tmp_path, server):
         syncing.sync(book, server.url.replace("sslmode=disable", "sslmode=require"))
     assert pgserver.LAPTOP_PASSWORD not in str(caught.value)
     assert path.read_bytes() == before
+
+
+def test_the_servers_ranges_are_the_books(tmp_path, server):
+    """Every entry number at and just beyond each end of its range (store/base/validate.py
+    RANGES): the server takes exactly what validate.number takes."""
+    from store.base import validate
+    from store.base.errors import BookError
+
+    _synced_plant(tmp_path, server)
+    with psycopg.connect(server.url) as laptop:
+        for field in validate.ENTRY_NUMBERS:
+            spec = validate.RANGES[field]
+            step = max(abs(spec.high), 1.0) * 1e-9
+            for value in (spec.low, spec.low - step, spec.low + step, spec.high, spec.high + step):
+                try:
+                    validate.number(field, value)
+                    book_takes = True
+                except BookError:
+                    book_takes = False
+                try:
+                    with laptop.transaction():
+                        values = {"kind": "note", "filter": None, "dp_bar": None, "unit": "P1"}
+                        _row(laptop, **{**values, field: value})
+                    server_takes = True
+                except psycopg.errors.CheckViolation:
+                    server_takes = False
+                assert server_takes == book_takes, (field, value)
