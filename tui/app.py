@@ -26,6 +26,7 @@ from store.base import prefs as laptop
 from store.base.errors import BookError
 from store.base.session import Session, from_environ
 from store.base.text import inert_line
+from store.base.timeutil import parse_utc
 from store.exchange.demo import discard, is_throwaway, throwaway_demo, throwaway_empty
 from store.ledger import register
 from store.ledger.entries import BreatherSwap, ElementChange, Reading
@@ -235,7 +236,17 @@ class SumpbookApp(App[None]):
         elif self.book.setting("name"):
             parts.append(inert_line(str(self.book.setting("name"))))
         parts.append(f"by {self.tech or 'nobody (press i)'}")  # the shift: on the watch list
+        if self.prefs.server and not self.demo:  # only where a server is configured
+            parts.append(self.synced_text())
         self.sub_title = " · ".join(parts)
+
+    def synced_text(self) -> str:
+        """When this book last synced with the server, in plant-local time."""
+        stamp = self.book.setting("server_synced_utc")
+        if not stamp:
+            return "not synced yet"
+        when = parse_utc(stamp).astimezone(self.book.local_zone())
+        return f"synced {when:%Y-%m-%d %H:%M}"
 
     def remember_rows(self, rows: list[WatchRow]) -> None:
         self.statuses = {r.tag.upper(): r for r in rows}
@@ -427,6 +438,12 @@ class SumpbookApp(App[None]):
                     f"key {shown}",
                     lambda n=node, a=b.action: self.run_action(a, n),
                 )
+        if self.prefs.server and not self.demo:
+            yield SystemCommand(
+                "Sync with the server",
+                f"send this book's new rows, bring the plant's in ({self.synced_text()})",
+                self.sync_now,
+            )
         for name in THEMES:
             yield SystemCommand(
                 f"Theme: {name}", "switch and remember", lambda n=name: self.change_prefs(theme=n)
@@ -476,6 +493,22 @@ class SumpbookApp(App[None]):
             text += " " + due_change(after, before, local)
         self.last_message = text
         self.notify(text, timeout=8)
+
+    @work(thread=True, exit_on_error=False, group="sync", exclusive=True)
+    def sync_now(self) -> None:
+        """`sumpbook sync` behind the screen, on its own connection to the book."""
+        from store.server.sync import sync  # deferred: psycopg only when asked for
+
+        self.call_from_thread(self.notify, "Syncing with the server…")
+        try:
+            with open_book(self.book.path, create=False, clock=self.session.clock) as book:
+                report = sync(book, self.prefs.server)
+        except BookError as exc:  # no server, no plant code: one line, nothing changed
+            self.call_from_thread(self.notify, str(exc), severity="warning", timeout=12)
+            return
+        text = report.summary()
+        self.call_from_thread(self.notify, text, timeout=12)
+        self.call_from_thread(self.book_changed)
 
     # ---- behind the first paint ----
 

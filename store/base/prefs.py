@@ -7,6 +7,7 @@ they belong to the person and the laptop, not to the plant's history.
 from __future__ import annotations
 
 import json
+import re
 from dataclasses import asdict, dataclass, replace
 from pathlib import Path
 
@@ -23,6 +24,7 @@ class Prefs:
     temperature: str = "C"
     volume: str = "L"
     theme: str = "dark"
+    server: str = ""  # the central server's URL or conninfo, never with its password
 
     def unit_keys(self) -> dict[str, str]:
         """quantity -> the unit's key in CSV header names ('bar', 'c', 'l' ...)."""
@@ -50,7 +52,30 @@ def checked(prefs: Prefs) -> Prefs:
     volume_key(prefs.volume)
     if prefs.theme not in THEMES:
         raise BookError(f"theme must be one of {', '.join(THEMES)}")
+    if has_password(prefs.server):
+        raise BookError(
+            "the server address holds a password: it is not kept here; give the address "
+            "without it and put the password in ~/.pgpass (or PGPASSWORD)"
+        )
     return prefs
+
+
+# password=secret in a key=value conninfo or as a URL parameter
+_KEY_PASSWORD = re.compile(r"(^|[\s&?])password\s*=", re.IGNORECASE)
+_SCHEME = re.compile(r"^[A-Za-z][A-Za-z0-9+.-]*:/*")
+
+
+def has_password(conninfo: str) -> bool:
+    """Whether a server address (URL or key=value conninfo) carries a password: as a
+    setting, a URL parameter, or user:password@ (however mistyped the scheme before it)."""
+    if _KEY_PASSWORD.search(conninfo):
+        return True
+    at = conninfo.rfind("@")
+    if at < 0 or "=" in conninfo[:at].split("?")[0].split(" ")[0] and " " in conninfo:
+        return False
+    head = conninfo[:at]
+    scheme = _SCHEME.match(head)
+    return ":" in head[scheme.end() if scheme else 0 :]
 
 
 def save(prefs: Prefs, path: Path, **changes: str) -> Prefs:

@@ -28,6 +28,7 @@ FLAGS = {
     "--unfiltered",
     "--json",
     "--as-read",
+    "--full",
 }
 _NEGATIVE_VALUE = re.compile(r"^-(\d|\.\d|/)")  # "-/500/60": counts with no ≥4 µm figure
 
@@ -319,7 +320,45 @@ def build_parser() -> argparse.ArgumentParser:
         "restored)",
     )
     p = sub.add_parser("rebuild", help="rebuild derived tables (status cache) from the entries")
+    _add_server_commands(sub)
     return parser
+
+
+def _add_server_option(p: argparse.ArgumentParser) -> None:
+    p.add_argument(
+        "--server",
+        metavar="URL",
+        help="the central server (default: this laptop's 'server' pref, else libpq's PG* "
+        "variables and service file); a password here is used, never kept or shown",
+    )
+
+
+def _add_server_commands(sub: argparse._SubParsersAction) -> None:
+    """The central PostgreSQL store (the optional 'server' extra)."""
+    srv = sub.add_parser("server", help="the central PostgreSQL store: set it up, point at it")
+    ssub = srv.add_subparsers(dest="action", metavar="ACTION", required=True)
+    p = ssub.add_parser("init", help="create or upgrade the sumpbook schema (as its owner)")
+    p.add_argument("url", metavar="URL")
+    p = ssub.add_parser("use", help="point this laptop at a server and name the book's plant")
+    p.add_argument("url", metavar="URL", help="postgresql://user@host/db (no password)")
+    p.add_argument("--plant", required=True, help="the plant's code, the same on every laptop")
+    p = sub.add_parser("sync", help="send this book's new rows to the server, bring the plant's in")
+    _add_server_option(p)
+    p.add_argument("--plant", help="the plant's code (once; then kept in the book)")
+    p.add_argument(
+        "--full", action="store_true", help="read every row of the plant again (after conflicts)"
+    )
+    fleet = sub.add_parser("fleet", help="every plant on the server: what is due, element lives")
+    fsub = fleet.add_subparsers(dest="view", metavar="VIEW", required=True)
+    p = fsub.add_parser("due", help="flagged, overdue and due this week, per plant")
+    _add_server_option(p)
+    p.add_argument("--plant", help="one plant only")
+    p.add_argument("--json", action="store_true", help="machine-readable output")
+    p = fsub.add_parser("lives", help="element lives per part number and plant (Weibull)")
+    _add_server_option(p)
+    p.add_argument("--plant", help="one plant only")
+    p.add_argument("--element", help="one element part number only")
+    p.add_argument("--json", action="store_true", help="machine-readable output")
 
 
 def run(args: argparse.Namespace) -> int:

@@ -649,3 +649,93 @@ def cmd_rebuild(args: argparse.Namespace) -> int:
         count = record.rebuild(book)
     say(f"status rebuilt for {count} filters")
     return 0
+
+
+# ---- the central server ---------------------------------------------------------------------------
+
+
+def _server(args: argparse.Namespace) -> str:
+    """The server's address: --server, else this laptop's pref, else libpq's own (PG*
+    variables, service and password files). Never printed as given: see store.server.address."""
+    return args.server or laptop.load(args.session.config_path).server
+
+
+def cmd_server(args: argparse.Namespace) -> int:
+    if args.action == "init":
+        from store.server.address import shown
+        from store.server.setup import initialise, laptop_role_hint
+
+        before, now = initialise(args.url)
+        if before == now:
+            say(f"the server schema on {shown(args.url)} is at version {now} already")
+        else:
+            say(f"the server schema on {shown(args.url)} is now version {now} (was {before})")
+        say(laptop_role_hint())
+        return 0
+    from store.server.address import shown
+    from store.server.sync import PLANT_KEY
+
+    url = args.url
+    if laptop.has_password(url):
+        raise BookError(
+            "give the address without its password (postgresql://user@host/db): a password is "
+            "never kept here; put it in ~/.pgpass or PGPASSWORD"
+        )
+    with _book(args) as book:
+        code = plant_tag(args.plant)
+        laptop.save(laptop.load(args.session.config_path), args.session.config_path, server=url)
+        book.set_setting(PLANT_KEY, code)
+    say(f"this laptop syncs with {shown(url)}; this book is plant {code}: 'sumpbook sync'")
+    return 0
+
+
+def plant_tag(text: str) -> str:
+    from store.base.validate import tag
+
+    return tag(text, "plant code")
+
+
+def cmd_sync(args: argparse.Namespace) -> int:
+    from store.server.sync import sync  # deferred: psycopg only for the server commands
+
+    with _book(args) as book:
+        report = sync(book, _server(args), plant=args.plant, full=args.full)
+    say(report.summary())
+    for conflict in report.conflicts:
+        say(f"  conflict: {conflict}")
+    return 0 if not report.conflicts else 1
+
+
+def cmd_fleet(args: argparse.Namespace) -> int:
+    from store.server import fleet
+
+    plant = plant_tag(args.plant) if args.plant else None
+    if args.view == "due":
+        rows = fleet.watch(_server(args), args.session.clock(), plant)
+        if args.json:
+            print(strict_json([{**r.__dict__, "due": r.due.isoformat() if r.due else None}
+                               for r in rows]))  # fmt: skip
+            return 0
+        if not rows:
+            say("nothing flagged or due this week on the server")
+        for r in rows:
+            reading = f" ΔP {r.dp_bar:g} bar" if r.dp_bar is not None else ""
+            state = f" {r.indicator}" if r.indicator else ""
+            due = f"due {r.due:%Y-%m-%d %H:%M} UTC" if r.due else ""
+            say(f"{r.plant:<10} {r.what:<8} {r.tag:<16} {r.flag:<15} {due}{reading}{state}")
+        return 0
+    lives = fleet.element_lives(_server(args), plant, args.element)
+    if args.json:
+        print(strict_json([e.__dict__ for e in lives]))
+        return 0
+    if not lives:
+        say("no element lives on the server yet (two changes of a position make one)")
+    for e in lives:
+        fit = (
+            f"B10 {e.b10_h:.0f} h, median {e.median_h:.0f} h, shape {e.shape:.2f}"
+            if e.shape is not None
+            else "too few lives at the limit for a fit"
+        )
+        plant_name = "all plants" if e.plant == "*" else e.plant
+        say(f"{e.part:<20} {plant_name:<10} {e.lives} lives, {e.reached} at the limit: {fit}")
+    return 0
