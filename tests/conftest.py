@@ -36,6 +36,14 @@ def demo_file(tmp_path_factory):
 
 
 @pytest.fixture
+def live(demo_file, tmp_path):
+    """A fresh copy of the demo plant as the live logbook of a test (`b.db`)."""
+    path = tmp_path / "b.db"
+    shutil.copy(demo_file, path)
+    return path
+
+
+@pytest.fixture
 def demo_app(demo_file, tmp_path, monkeypatch):
     """A maker of apps on a fresh copy of the demo plant (frozen in time), prefs as given;
     `demo_app.path` is the copy."""

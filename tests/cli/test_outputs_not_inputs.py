@@ -7,22 +7,8 @@ import shutil
 import sqlite3
 from pathlib import Path
 
-import pytest
-
+from tests.kit.plant import run_cli as run
 from tui.cli import main
-
-
-def run(capsys, *args: str) -> tuple[int, str, str]:
-    code = main(list(args))
-    out, err = capsys.readouterr()
-    return code, out, err
-
-
-@pytest.fixture
-def live(demo_file, tmp_path) -> Path:
-    path = tmp_path / "b.db"
-    shutil.copy(demo_file, path)
-    return path
 
 
 def _targets(live: Path, tmp_path: Path) -> list[Path]:

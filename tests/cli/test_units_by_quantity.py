@@ -4,36 +4,12 @@ limit is shown as it was typed."""
 
 from __future__ import annotations
 
-import shutil
-import sqlite3
-from pathlib import Path
-
 import pytest
 
 from store.base import units
 from store.base.errors import BookError
-from tui.cli import main
-
-
-def run(capsys, *args: str) -> tuple[int, str, str]:
-    code = main(list(args))
-    out, err = capsys.readouterr()
-    return code, out, err
-
-
-@pytest.fixture
-def live(demo_file, tmp_path) -> Path:
-    path = tmp_path / "b.db"
-    shutil.copy(demo_file, path)
-    return path
-
-
-def _count(path: Path) -> int:
-    conn = sqlite3.connect(path)
-    try:
-        return conn.execute("SELECT count(*) FROM entries").fetchone()[0]
-    finally:
-        conn.close()
+from tests.kit.plant import raw_entry_count as _count
+from tests.kit.plant import run_cli as run
 
 
 @pytest.mark.parametrize(

@@ -172,6 +172,27 @@ async def register_row(pilot, tab: str, tag: str):
     return screen
 
 
+def run_cli(capsys, *args: str) -> tuple[int, str, str]:
+    """The command line run in this process: exit code, stdout, stderr."""
+    from tui.cli import main  # the command line only for the tests that drive it
+
+    code = main(list(args))
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def raw_entry_count(path: Path) -> int:
+    """Rows in `entries`, read with plain sqlite3 (no checks, no migration: a damaged or
+    refused file is counted as it is)."""
+    import sqlite3
+
+    conn = sqlite3.connect(path)
+    try:
+        return conn.execute("SELECT count(*) FROM entries").fetchone()[0]
+    finally:
+        conn.close()
+
+
 def count_entries(path: Path, kind: str | None = None) -> int:
     with open_book(path, create=False) as book:
         return len(journal.read(book, kinds=[kind] if kind else None))

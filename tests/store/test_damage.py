@@ -24,6 +24,7 @@ from store.db.connection import forget_check
 from store.db.places import damage_marker
 from store.ledger.entries import Note
 from tests.kit.plant import fill_register
+from tests.kit.plant import run_cli as run
 from tui.cli import main
 
 
@@ -76,12 +77,6 @@ def damaged(tmp_path) -> Path:
     _logbook(path)
     damage_an_index_entry(path)
     return path
-
-
-def run(capsys, *args: str) -> tuple[int, str, str]:
-    code = main(list(args))
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 def test_the_damage_is_one_the_quick_check_misses(damaged):

@@ -11,28 +11,8 @@ import pytest
 
 from store.db.backup import copy_to
 from store.db.places import backup_dir
-from tui.cli import main
-
-
-def run(capsys, *args: str) -> tuple[int, str, str]:
-    code = main(list(args))
-    out, err = capsys.readouterr()
-    return code, out, err
-
-
-@pytest.fixture
-def live(demo_file, tmp_path) -> Path:
-    path = tmp_path / "b.db"
-    shutil.copy(demo_file, path)
-    return path
-
-
-def _entries(path: Path) -> int:
-    conn = sqlite3.connect(path)
-    try:
-        return conn.execute("SELECT count(*) FROM entries").fetchone()[0]
-    finally:
-        conn.close()
+from tests.kit.plant import raw_entry_count as _entries
+from tests.kit.plant import run_cli as run
 
 
 def _backup(live: Path, tmp_path: Path, name: str = "c.db") -> Path:
