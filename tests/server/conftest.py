@@ -5,11 +5,10 @@ from __future__ import annotations
 
 import itertools
 
+import psycopg  # in the test extra: a missing driver fails the tests, never skips them
 import pytest
 
 from tests.kit import pgserver
-
-psycopg = pytest.importorskip("psycopg")
 
 _numbers = itertools.count()
 

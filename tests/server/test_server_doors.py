@@ -8,6 +8,7 @@ from __future__ import annotations
 import json
 import uuid
 
+import psycopg  # in the test extra: a missing driver fails the tests, never skips them
 import pytest
 
 from store import record
@@ -18,8 +19,6 @@ from store.server import sync as syncing
 from tests.kit import pgserver
 from tests.kit.plant import fill_register
 from tui.cli import main
-
-psycopg = pytest.importorskip("psycopg")
 
 
 def _book(path):
