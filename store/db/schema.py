@@ -259,8 +259,9 @@ def _bool(c: str) -> str:
     return f"({c} IN (0, 1))"
 
 
-def _v4() -> str:
-    tables = {
+def _v4_register_tables() -> dict[str, tuple[list[str], str, str]]:
+    """The register tables as version 4 makes them: columns, column SQL, the rows carried."""
+    return {
         "technicians": (
             ["tag", "name", "active"],
             f"""tag TEXT PRIMARY KEY COLLATE NOCASE CHECK {_tag("tag", False)},
@@ -353,6 +354,10 @@ def _v4() -> str:
             "unit IN (SELECT tag FROM units_v4)",
         ),
     }
+
+
+def _v4() -> str:
+    tables = _v4_register_tables()
     entry_columns = [
         "id", "at_utc", "logged_utc", "kind", "by", "unit", "filter", "breather", "dp_bar",
         "indicator", "temp_c", "flow_lpm", "hours", "reason", "condition", "batch", "volume_l",
@@ -479,36 +484,8 @@ V4 = _v4()
 # clock, its technician) and removes again; a change made outside sumpbook is logged at
 # SQLite's clock, by '(outside sumpbook)'. Adding a record and the shift pattern stay logged
 # by sumpbook (merge copies another book's history whole).
-REGISTER_FIELDS = {
-    "technicians": ("name", "active"),
-    "fluids": ("name", "iso_vg", "nu40_cst", "nu100_cst", "vi", "density_kg_l"),
-    "units": (
-        "name",
-        "area",
-        "reservoir_l",
-        "fluid",
-        "normal_temp_c",
-        "max_temp_c",
-        "coldest_start_c",
-        "hour_meter",
-        "target_code",
-    ),  # fmt: skip
-    "filters": (
-        "unit",
-        "kind",
-        "element",
-        "rating_um",
-        "rating_basis",
-        "beta_ratio",
-        "bypass_bar",
-        "limit_bar",
-        "clean_bar",
-        "rated_flow_lpm",
-        "normal_flow_lpm",
-        "gauge",
-        "reading_interval_h",
-    ),  # fmt: skip
-    "breathers": ("unit", "kind", "rating_um", "swap_interval_d"),
+REGISTER_FIELDS = {  # every column of a register table but its tag, as version 4 made them
+    table: tuple(columns[1:]) for table, (columns, _, _) in _v4_register_tables().items()
 }
 OUTSIDE = "(outside sumpbook)"
 _NEW_UUID = (
