@@ -62,7 +62,7 @@ from store.ledger.journal import element_items, parse_stamp
 from store.ledger.register import FilterPosition, Unit, find, list_all
 from store.physics.normalise import ColdStart
 
-FORMAT = 6  # bump when the stored status shape or its rules change: old rows are recomputed
+FORMAT = 7  # bump when the stored status shape or its rules change: old rows are recomputed
 # (4: next-reading time; 5: the ΔP drop on same-minute readings and steep rises, STEP UP
 # words, NEW HIGH; 6: the next reading's two-reading earliest date and the change visit)
 _SKIP = ("history", "forecast", "age_to_time", "clock")

@@ -585,8 +585,9 @@ def status_from(
         [p.at for p in points] + ([current.fitted_at] if current.fitted_at else []), default=None
     )
     before = partial(_earliest_before, ctx, numeric, past, fit, clock)
+    last_step = partial(_at_last_step, ctx, numeric, past)
     next_reading, next_rule = _next_reading(
-        ctx, last_seen, due, basis, state, flags, fit, clock, before
+        ctx, last_seen, due, basis, state, flags, fit, clock, before, last_step
     )
     # Overdue once the planned gap is passed by half again (a fixed interval: 1.5x it, as ever).
     overdue_at = None
@@ -646,6 +647,7 @@ def _next_reading(
     fit: WeibullFit | None,
     clock: Clock,
     before: Callable[[], datetime | None] = lambda: None,
+    last_step: Callable[[], bool] = lambda: False,
 ) -> tuple[datetime | None, str]:
     """When to read the filter again and the rule that says so (store/forecast/readplan.py):
     READ_SHARE (two thirds) of the time from the last reading (or change) to the pessimistic
@@ -653,28 +655,52 @@ def _next_reading(
     or to `before` (the same date as the previous reading had it, worked out only when
     needed) where that is sooner: a date moves later only once a second reading agrees;
     within the registered interval and the plant's shortest shift, the change visit where
-    the share is under a shift. None before anything was logged."""
+    the share is under a shift. A gauge reading one step under the limit (`last_step`): the
+    change at the forecast's earliest date as that reading gives it. None before anything was
+    logged."""
     from store.forecast import readplan
 
     if last_seen is None:
         return None, ""
     warning_h: float | None = None
     rule = "forecast"
+    at_step = False
     if state in ("past-limit", "past-bypass") or any(f in _READ_EACH_SHIFT for f in flags):
         warning_h = 0.0
     else:
         if due is not None and basis in ("earlier-curves", "trend"):
             until: datetime | None = due.earliest
+            at_step = last_step()
         else:
             until = _life_earliest(fit, clock, last_seen) if basis == "service-life" else None
             rule = "service-life" if basis == "service-life" else rule
         if until is not None:
-            until = readplan.pessimistic_date(until, before())
+            if not at_step:
+                until = readplan.pessimistic_date(until, before())
             warning_h = (until - last_seen).total_seconds() / 3600
     gap = readplan.bounded_gap(
-        warning_h, ctx.position.reading_interval_h, ctx.shortest_read_h, rule
+        warning_h, ctx.position.reading_interval_h, ctx.shortest_read_h, rule, at_step
     )
     return last_seen + timedelta(hours=gap.gap_h), gap.rule
+
+
+def _at_last_step(
+    ctx: FilterContext, numeric: Sequence[Point], past: Sequence[ElementSummary]
+) -> bool:
+    """Whether the element's newest gauge reading is one gauge step under its change limit
+    (readplan.at_last_step), the step being the one this position's readings (this element's
+    and the earlier ones') are written to; none found (readings not on one step, normalised
+    ones): False."""
+    from store.forecast import anomaly, readplan  # deferred: numpy
+
+    limit = ctx.position.limit_bar
+    values = [p.dp_ref_bar for p in numeric if p.dp_ref_bar is not None]
+    if not (limit and values):
+        return False
+    newest = max(numeric, key=lambda p: (p.age_h, p.at)).dp_ref_bar
+    values += [v for el in past for v in el.dp_ref_bar]
+    step = anomaly.gauge_step_bar(values)  # type: ignore[arg-type]
+    return newest is not None and readplan.at_last_step(newest, limit, step)
 
 
 def _life_earliest(fit: WeibullFit | None, clock: Clock, at: datetime) -> datetime | None:

@@ -562,6 +562,10 @@ class Outcome:
     readings: int
     change_h: float  # element age at the change
     life_h: float  # true age at the 20 psi crossing
+    # Each reading taken: the rule that planned it (next_reading.rule), the element's age then
+    # as a share of its life and the gauge's psi (a diagnostic of where the readings go; the
+    # fixed rounds: ()).
+    reads: tuple[tuple[str, float, float], ...] = ()
 
     @property
     def overrun(self) -> float:
@@ -628,8 +632,9 @@ def closed_book(
     return db, t
 
 
-def book_plan(db: Path, now: datetime) -> tuple[datetime | None, datetime | None]:
-    """`status --json` at `now`: the next-reading time and the earliest date (or None)."""
+def book_plan(db: Path, now: datetime) -> tuple[datetime | None, datetime | None, str]:
+    """`status --json` at `now`: the next-reading time, the earliest date (or None) and the
+    rule that set the next reading."""
     os.environ["SUMPBOOK_NOW"] = _iso(now)
     f = json.loads(_cli(db, "status", "--json"))["filters"][0]
     nxt = f["next_reading"]["at"] if f["next_reading"] else None
@@ -637,6 +642,7 @@ def book_plan(db: Path, now: datetime) -> tuple[datetime | None, datetime | None
     return (
         datetime.fromisoformat(nxt) if nxt else None,
         datetime.fromisoformat(earliest) if earliest else None,
+        f["next_reading"]["rule"] if f["next_reading"] else "",
     )
 
 
@@ -658,23 +664,25 @@ def planned(folder: Path, run: Run, group: str, history: Sequence[Run], logs: di
 def _planned(folder: Path, run: Run, group: str, history: Sequence[Run], logs: dict) -> Outcome:
     db, t0 = closed_book(folder, run, history, logs)
     life = run.life_h * CLOSED_SCALE_H
-    now, readings = t0, 0
+    now, reads = t0, []
     for _ in range(MAX_STEPS):
-        read_at, earliest = book_plan(db, now)
+        read_at, earliest, rule = book_plan(db, now)
         if read_at is None:
             break
         read_at = max(read_at, now)
         if earliest is not None and earliest <= read_at:
             change = max(earliest, now)
-            return Outcome(run.name, group, "sumpbook", readings, _h(change - t0), life)
+            return Outcome(run.name, group, "sumpbook", len(reads), _h(change - t0), life,
+                           tuple(reads))  # fmt: skip
         now = read_at
         psi = gauge_psi(run, _h(now - t0))
-        readings += 1
+        reads.append((rule, _h(now - t0) / life, psi))
         os.environ["SUMPBOOK_NOW"] = _iso(now)
         _cli(db, "log", "reading", "RIG-F", "--dp", f"{psi:g}psi", "--by", "AB")
         if psi >= LIMIT_PSI:
-            return Outcome(run.name, group, "sumpbook", readings, _h(now - t0), life)
-    return Outcome(run.name, group, "sumpbook", readings, math.inf, life)
+            return Outcome(run.name, group, "sumpbook", len(reads), _h(now - t0), life,
+                           tuple(reads))  # fmt: skip
+    return Outcome(run.name, group, "sumpbook", len(reads), math.inf, life, tuple(reads))
 
 
 def _h(d: timedelta) -> float:
@@ -832,6 +840,37 @@ def closed_table(outcomes: Sequence[Outcome]) -> str:
     return "\n".join(lines)
 
 
+# Where the readings go (a diagnostic, not a score): by the element's age at the reading as a
+# share of its life, and by the rule that planned it.
+READ_PHASES = ((0.0, 0.5, "first half"), (0.5, 0.9, "50-90 %"), (0.9, math.inf, "last tenth"))
+
+
+def reading_breakdown(outcomes: Sequence[Outcome]) -> str:
+    """The book's readings per element, mean over the held-out elements, by phase of life and
+    by the rule that planned each; and the first three readings' rules."""
+    ours = [o for o in outcomes if o.plan == "sumpbook"]
+    rules = sorted({r for o in ours for r, _, _ in o.reads})
+    lines = [f"{'readings per element (mean)':<28}" + "".join(f"{r:>13}" for r in rules)
+             + f"{'all':>8}"]  # fmt: skip
+    for lo, hi, name in READ_PHASES:
+        row = [sum(1 for o in ours for r, a, _ in o.reads if r == rule and lo <= a < hi) / len(ours)
+               for rule in rules]  # fmt: skip
+        lines.append(f"{name:<28}" + "".join(f"{x:>13.2f}" for x in row) + f"{sum(row):>8.2f}")
+    row = [sum(1 for o in ours for r, _, _ in o.reads if r == rule) / len(ours) for rule in rules]
+    lines.append(f"{'whole life':<28}" + "".join(f"{x:>13.2f}" for x in row) + f"{sum(row):>8.2f}")
+    same = [sum(1 for (_, _, a), (_, _, b) in zip(o.reads, o.reads[1:], strict=False) if a == b)
+            for o in ours]  # fmt: skip
+    lines.append(f"readings that showed the gauge where the one before had it: mean "
+                 f"{np.mean(same):.2f}, median {np.median(same):.1f} per element")  # fmt: skip
+    first = [r for o in ours for r, _, _ in o.reads[:3]]
+    lines.append("first three readings' rules: "
+                 + ", ".join(f"{r} {first.count(r)}" for r in rules if first.count(r)))  # fmt: skip
+    ages = [a for o in ours for _, a, _ in o.reads[:3]]
+    if ages:
+        lines.append(f"first three readings' ages: median {_pct(float(np.median(ages)))} of life")
+    return "\n".join(lines)
+
+
 def closed_targets(outcomes: Sequence[Outcome]) -> list[tuple[str, bool]]:
     ours = [o for o in outcomes if o.plan == "sumpbook"]
     dense = [o for o in outcomes if o.plan == f"every {BASELINE_SHARES[0]:.0%}"]
@@ -870,6 +909,8 @@ def print_closed(
         print(f"The shipped share ({readplan.READ_SHARE:.2f}) for every condition.")
         outcomes = closed_loop(grouped_folds(runs, group_of), seed)
     print(closed_table(outcomes))
+    print()
+    print(reading_breakdown(outcomes))
     print()
     for text, held in closed_targets(outcomes):
         print(f"  {'HELD  ' if held else 'MISSED'} {text}")

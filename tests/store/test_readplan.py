@@ -188,3 +188,84 @@ def test_one_low_reading_does_not_relax_the_plan(tmp_path):
     audit = _filter(views.watch(book, as_of=at + timedelta(hours=1)), "M2-RF")
     assert audit.next_reading == f.next_reading
     book.close()
+
+
+# 1 psi = 0.068 947 572 93 bar (REFERENCES.md §5, from the exact definitions)
+PSI = 0.06894757293168361
+
+
+def test_one_gauge_step_under_the_limit_the_next_visit_is_the_change():
+    step = 0.5 * PSI  # a gauge read to 0.5 psi, a 20 psi limit (the clogging data's rule)
+    limit = 20 * PSI
+    assert readplan.at_last_step(19.5 * PSI, limit, step)
+    assert not readplan.at_last_step(19.0 * PSI, limit, step)  # the gauge can show 19.5 first
+    assert not readplan.at_last_step(20.0 * PSI, limit, step)  # at the limit: not under it
+    assert not readplan.at_last_step(19.5 * PSI, limit, 0.0)  # no step known
+    # the step between the gauge's values reaches the limit: a 0.1 bar gauge at 1.6 of 1.7 bar
+    assert readplan.at_last_step(1.6, 1.7, 0.1)
+    # the visit is the date itself (the change), with no share and no shift floor ...
+    assert readplan.bounded_gap(30.0, 720.0, 8.0, "forecast", True) == readplan.ReadGap(
+        30.0, "change"
+    )
+    assert readplan.bounded_gap(5.0, 720.0, 8.0, "forecast", True) == readplan.ReadGap(
+        5.0, "change"
+    )
+    # ... never later than the registered interval; a date that has come: a shift on
+    assert readplan.bounded_gap(900.0, 720.0, 8.0, "forecast", True) == readplan.ReadGap(
+        720.0, "interval"
+    )
+    assert readplan.bounded_gap(0.0, 720.0, 8.0, "forecast", True) == readplan.ReadGap(8.0, "shift")
+    assert readplan.bounded_gap(None, 720.0, 8.0, "forecast", True) == readplan.ReadGap(
+        720.0, "interval"
+    )
+
+
+def _gauge_book(tmp_path, last_psi: float):
+    """Six earlier elements of 950-1050 h and the current one (1000 h), all read daily on a
+    0.5 psi gauge (20 psi limit) at the unit's normal temperature, the current one until the
+    gauge shows last_psi (our own model: an exponential rise)."""
+    book = open_book(tmp_path / "gauge.db")
+    register.add(book, Technician(tag="AB"))
+    register.add(book, Fluid(tag="HV46", iso_vg=46))
+    register.add(book, Unit(tag="G1", fluid="HV46", normal_temp_c=50))
+    register.add(book, FilterPosition(tag="G1-RF", unit="G1", kind="return", limit_bar=20 * PSI,
+                                      bypass_bar=40 * PSI, clean_bar=3 * PSI,
+                                      reading_interval_h=720))  # fmt: skip
+
+    def gauge(h: float, life_h: float) -> float:
+        k = math.log1p(17 / 0.5) / life_h
+        return round((3 + 0.5 * math.expm1(k * h)) / 0.5) * 0.5
+
+    t0 = datetime(2026, 1, 5, 6, 0, tzinfo=UTC)
+    t, entries = t0, []
+    for life in (950.0, 1000.0, 1050.0, 980.0, 1020.0, 1000.0):
+        entries.append(ElementChange(filter="G1-RF", reason="limit", by="AB", at=t))
+        entries += [Reading(filter="G1-RF", dp_bar=gauge(h, life) * PSI, temp_c=50, by="AB",
+                            at=t + timedelta(hours=h)) for h in range(24, int(life), 24)]  # fmt: skip
+        t += timedelta(hours=life)
+    entries.append(ElementChange(filter="G1-RF", reason="limit", by="AB", at=t))
+    hours = [h for h in range(24, 1000, 24) if gauge(h, 1000.0) < last_psi]
+    hours.append(next(h for h in range(hours[-1], 1000) if gauge(h, 1000.0) == last_psi))
+    entries += [Reading(filter="G1-RF", dp_bar=gauge(h, 1000.0) * PSI, temp_c=50, by="AB",
+                        at=t + timedelta(hours=h)) for h in hours]  # fmt: skip
+    record.log_many(book, entries)
+    book.set_setting("clock", (entries[-1].at + timedelta(hours=1)).strftime("%Y-%m-%dT%H:%M:%SZ"))
+    return book, entries[-1].at
+
+
+@pytest.mark.parametrize("last_psi", [19.0, 19.5])
+def test_a_gauge_at_its_last_step_is_changed_at_the_earliest_date(tmp_path, last_psi):
+    book, at = _gauge_book(tmp_path, last_psi)
+    f = _filter(views.watch(book), "G1-RF")
+    assert f.reading_at == at and f.dp_bar == pytest.approx(last_psi * PSI)
+    assert f.due is not None and f.state == "ok"
+    if last_psi == 19.5:
+        # one step under the limit: the change, at the earliest date as this reading gives it
+        assert f.next_rule == "change"
+        assert f.next_reading == f.due.earliest
+    else:
+        # the gauge can still show 19.5 first: a reading as before (here the earliest date has
+        # passed, so a shift on: a day without a shift pattern), not the change
+        assert f.next_rule in ("forecast", "shift")
+        assert f.next_reading != f.due.earliest
+    book.close()
