@@ -9,6 +9,7 @@ from dataclasses import dataclass
 from datetime import datetime
 from typing import Any
 
+from textual.actions import SkipAction
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical, VerticalScroll
@@ -25,7 +26,8 @@ from tui.base.host import Host
 from tui.forms.confirm import ConfirmScreen
 from tui.forms.validators import TagValidator, TimeValidator
 from tui.widgets.caution import Caution
-from tui.widgets.field import FieldRow, Spec, TickBox
+from tui.widgets.field import FieldRow, Spec, TickBox, value_of
+from tui.widgets.inorder import read_at_key
 
 
 @dataclass(frozen=True)
@@ -72,13 +74,59 @@ FIELD_KEYS = (
     Binding("tab", "app.focus_next", show=False, priority=True),
     Binding("shift+tab", "app.focus_previous", show=False, priority=True),
 )
+# The save keys are seen at the moment they arrive, before the keys after them are routed
+# (priority): the form is read as it stood at the key (tui/widgets/inorder.py).
+SAVE_KEYS = (
+    Binding("ctrl+s", "save", "Save", id="form-save", priority=True),
+    Binding("enter", "enter", show=False, priority=True),
+)
 
 
-class EntryForm(ModalScreen[Saved | None]):
+class SavesAtKey:
+    """What the entry and register forms share: the save keys, the fields read as they
+    stood at the key, and one save at a time (`saving`: a save key meanwhile is refused)."""
+
+    saving = False
+
+    def save_now(self, values: dict[str, Any]) -> None:
+        raise NotImplementedError
+
+    def say(self, text: str) -> None:
+        raise NotImplementedError
+
+    def action_enter(self) -> None:
+        """Enter saves from a text field and presses a focused button; anywhere else (a
+        choice, its list, a tick box) it does what it does there."""
+        screen: Any = self
+        focused = screen.focused
+        if isinstance(focused, Button):
+            screen.action_save() if focused.id == "save" else screen.action_cancel()
+        elif isinstance(focused, Input):
+            screen.action_save()
+        else:
+            raise SkipAction()
+
+    def action_save(self) -> None:
+        if self.saving:
+            self.say("Saving… (the save key again is not a second save)")
+            return
+        self.saving = True
+        screen: Any = self
+        named = {row.control: row.spec.name for row in screen.query(FieldRow)}
+        named.update({box: "ack" for box in screen.query("#ack")})
+
+        def read(values: dict[Widget, Any]) -> None:
+            if screen.is_attached:
+                self.save_now({named[c]: v for c, v in values.items()})
+
+        read_at_key(named, value_of, read)
+
+
+class EntryForm(SavesAtKey, ModalScreen[Saved | None]):
     """Subclasses give `heading`, `specs()`, `build(values)`; `first` names the field to start in."""
 
     BINDINGS = [
-        Binding("ctrl+s", "save", "Save", id="form-save"),
+        *SAVE_KEYS,
         Binding("escape", "cancel", "Cancel", id="form-cancel"),
         # Tab moves on at the moment it is typed, before the keys after it are routed: typed
         # fast ("4.1", Tab, "52"), or sent by a scanner, the next keys land in the next field.
@@ -104,6 +152,7 @@ class EntryForm(ModalScreen[Saved | None]):
         self.saved: Entry | None = None
         self.load_problem = ""
         self.refusal = ""  # what the "Not saved" line is about: a field name, "*" (checks), ""
+        self.values_saved: dict[str, Any] = {}  # the fields as read at the last save key
 
     @property
     def sb(self) -> Host:
@@ -238,6 +287,8 @@ class EntryForm(ModalScreen[Saved | None]):
                 return
         elif control_id != f"f-{self.refusal}":
             return
+        elif value_of(self.query_one(f"#{control_id}")) == self.values_saved.get(self.refusal):
+            return  # a change on its way from before the save key, not a fix
         self.refusal = ""
         self.say("")
 
@@ -263,10 +314,6 @@ class EntryForm(ModalScreen[Saved | None]):
 
     # ---- saving ----
 
-    def on_input_submitted(self, event: Input.Submitted) -> None:
-        event.stop()
-        self.action_save()
-
     def on_button_pressed(self, event: Button.Pressed) -> None:
         event.stop()
         if event.button.id == "save":
@@ -277,21 +324,29 @@ class EntryForm(ModalScreen[Saved | None]):
     def action_cancel(self) -> None:
         self.dismiss(None)
 
-    def action_save(self) -> None:
-        bad = [(row, p) for row in self.rows() if (p := row.check_value(force=True))]
+    def save_now(self, values: dict[str, Any]) -> None:
+        """Check and save `values`, the fields as they stood at the save key."""
+        self.saving = False
+        self.values_saved = values
+        rows = self.rows()
+        bad = [
+            (row, p)
+            for row in rows
+            if (p := row.check_value(force=True, value=values[row.spec.name]))
+        ]
         if bad:
             self.focus_fix(bad[0][0].control)
             names = ", ".join(row.spec.label for row, _ in bad)
             self.say(f"Not saved: check {names}.")
             self.refusal = "*"
             return
-        if self.caution and not self.query_one("#ack", Checkbox).value:
+        if self.caution and not values.get("ack"):
             self.query_one("#ack", Checkbox).focus()
             self.say("Not saved: tick the safety acknowledgement first.")
             self.refusal = "ack"
             return
         try:
-            entry = self.build(self.values())
+            entry = self.build({row.spec.name: values[row.spec.name] for row in rows})
             ask = self.question(entry)
         except (BookError, sqlite3.Error, OSError) as exc:
             self.refused(exc)
