@@ -20,7 +20,9 @@ from textual.widgets import Button, Checkbox, Input, Select, Static
 from store import record
 from store.base.errors import BookError
 from store.base.timeutil import local_text, parse_typed_time
+from store.ledger import entry_input
 from store.ledger.entries import Entry
+from store.ledger.entry_input import FieldError
 from store.ledger.register import Technician, list_all
 from tui.base.host import Host
 from tui.forms.confirm import ConfirmScreen
@@ -36,14 +38,6 @@ class Saved:
 
     entry: Entry
     before: Any = None  # FilterStatus / BreatherStatus before the entry, when known
-
-
-class FieldError(BookError):
-    """A form's own refusal of a combination, naming the field to put right."""
-
-    def __init__(self, message: str, field: str) -> None:
-        super().__init__(message)
-        self.field = field
 
 
 def fault_field(message: str, clues: dict[str, str]) -> str | None:
@@ -133,6 +127,7 @@ class EntryForm(SavesAtKey, ModalScreen[Saved | None]):
         *FIELD_KEYS,
     ]
     heading = "Entry"
+    kind = ""  # the entry kind (Entry.kind) this form builds
     caution = False
     first = ""
     # words in a refusal -> the field it is about (see fault_field); forms add their own
@@ -164,7 +159,16 @@ class EntryForm(SavesAtKey, ModalScreen[Saved | None]):
         raise NotImplementedError
 
     def build(self, values: dict[str, Any]) -> Entry:
-        raise NotImplementedError
+        """The entry from the fields, by the one entry builder (store/ledger/entry_input.py)
+        that `sumpbook log` uses too."""
+        return entry_input.build(
+            self.kind,
+            values,
+            self.sb.prefs,
+            at=self.when(values["time"]),
+            by=values["by"],
+            note=values.get("note") or "",
+        )
 
     def question(self, entry: Entry) -> tuple[str, str] | None:
         """(title, caution) when the entry may be true but is urgent: asked before saving."""

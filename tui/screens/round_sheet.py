@@ -19,7 +19,7 @@ from textual.widgets import DataTable, Header, Input, Static
 
 from store import record
 from store.base.errors import BookError
-from store.base.units import parse_pressure_bar, parse_temperature_c
+from store.ledger import entry_input
 from store.ledger.entries import Reading
 from store.ledger.journal import BYPASS_OPEN, BYPASS_STEPS, bypass_head
 from store.ledger.register import FilterPosition, find
@@ -45,7 +45,6 @@ COLUMNS = [
     ("Why", "why"),
     ("Read", "read"),
 ]
-INDICATOR_WORDS = {"clean": "clean", "dirty": "dirty", "bypass": "bypass", "in bypass": "bypass"}
 
 
 class RoundScreen(BookScreen):
@@ -239,32 +238,22 @@ class RoundScreen(BookScreen):
         self.say("Not saved: " + problem, bad=True)
 
     def reading_of(self, s: Stop, typed: dict[str, str]) -> Reading:
-        """The reading typed in for a stop; BookError with a plain line when it cannot be."""
-        prefs = self.sb.prefs
-        text, temp, hours = typed["value"], typed["temp"], typed["hours"]
+        """The reading typed in for a stop, by the one entry builder
+        (store/ledger/entry_input.py); BookError with a plain line when it cannot be."""
+        text = typed["value"]
         if not text:
             raise BookError(
                 "type the ΔP" if s.gauge else "type the indicator: clean, dirty or bypass"
             )
-        dp = indicator = None
-        if s.gauge:
-            dp = parse_pressure_bar(text, prefs.pressure)
-        elif text.lower() in INDICATOR_WORDS:
-            indicator = INDICATOR_WORDS[text.lower()]
-        else:
-            raise BookError("the indicator reads clean, dirty or bypass")
-        try:
-            hours_h = float(hours.replace(",", ".")) if hours else None
-        except ValueError:
-            raise BookError(f"'{hours[:20]}' is not an hour-meter reading") from None
-        return Reading(
-            filter=s.filter,
-            dp_bar=dp,
-            indicator=indicator,
-            temp_c=parse_temperature_c(temp, prefs.temperature) if temp else None,
-            hours=hours_h,
-            by=self.sb.tech,
-        )
+        fields = {
+            "filter": s.filter,
+            "dp" if s.gauge else "indicator": text,
+            "temp": typed["temp"],
+            "hours": typed["hours"],
+        }
+        entry = entry_input.build("reading", fields, self.sb.prefs, by=self.sb.tech)
+        assert isinstance(entry, Reading)
+        return entry
 
     def save_typed(self, s: Stop, typed: dict[str, str]) -> None:
         try:
