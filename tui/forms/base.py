@@ -13,18 +13,21 @@ from textual.actions import SkipAction
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.message import Message
 from textual.screen import ModalScreen
 from textual.widget import Widget
 from textual.widgets import Button, Checkbox, Input, Select, Static
 
-from store import record
+from store import Book, record
 from store.base.errors import BookError
 from store.base.timeutil import local_text, parse_typed_time
 from store.ledger import entry_input
 from store.ledger.entries import Entry
 from store.ledger.entry_input import FieldError
 from store.ledger.register import Technician, list_all
+from store.sheets import WatchRow, saved_row
 from tui.base.host import Host
+from tui.base.workers import write_behind
 from tui.forms.confirm import ConfirmScreen
 from tui.forms.validators import TagValidator, TimeValidator
 from tui.widgets.caution import Caution
@@ -38,6 +41,16 @@ class Saved:
 
     entry: Entry
     before: Any = None  # FilterStatus / BreatherStatus before the entry, when known
+
+
+class EntrySaved(Message):
+    """An entry was saved (posted to the app): the entry as the book holds it, the watch-list
+    row the save changed as the store returned it (`sheets.saved_row`: the status the save
+    kept, not computed again), and the row before, when known."""
+
+    def __init__(self, entry: Entry, after: WatchRow | None, before: Any = None) -> None:
+        super().__init__()
+        self.entry, self.after, self.before = entry, after, before
 
 
 def fault_field(message: str, clues: dict[str, str]) -> str | None:
@@ -368,16 +381,29 @@ class EntryForm(SavesAtKey, ModalScreen[Saved | None]):
         self.app.push_screen(ConfirmScreen(*ask), answered)
 
     def write(self, entry: Entry) -> None:
-        try:
-            saved = record.log(self.sb.book, entry)
-        except (BookError, sqlite3.Error, OSError) as exc:
-            self.refused(exc)
-            return
+        """Save in a thread (tui/base/workers.py write_behind): the form says it is saving
+        and refuses a second save until this one is done."""
+        self.saving = True
+        self.say("Saving…", bad=False)
+
+        def job(book: Book) -> tuple[Entry, WatchRow | None]:
+            logged = record.save(book, entry)
+            return logged.entry, saved_row(book, logged)
+
+        write_behind(
+            self, self.sb.book.path, self.sb.session.clock, job, self.written, self.refused
+        )
+
+    def written(self, result: tuple[Entry, WatchRow | None]) -> None:
+        saved, after = result
+        self.saving = False
         self.saved = saved
+        self.app.post_message(EntrySaved(saved, after, self.before))
         self.dismiss(Saved(saved, self.before))
 
     def refused(self, exc: BaseException) -> None:
         """Say why; put the cursor on the field at fault and mark it."""
+        self.saving = False
         problem = write_problem(exc)
         self.say("Not saved: " + problem)
         name = exc.field if isinstance(exc, FieldError) else None

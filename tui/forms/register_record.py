@@ -22,6 +22,7 @@ from store.base.units import parse_pressure_bar, parse_temperature_c, parse_volu
 from store.base.validate import FILTER_KINDS
 from store.ledger import register
 from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
+from tui.base.workers import write_behind
 from tui.forms.base import FIELD_KEYS, SAVE_KEYS, SavesAtKey, fault_field, write_problem
 from tui.forms.confirm import ConfirmScreen
 from tui.forms.validators import (
@@ -221,10 +222,10 @@ class RegisterForm(SavesAtKey, ModalScreen[Any]):
         if rows:
             rows[0].control.focus()
 
-    def say(self, text: str) -> None:
+    def say(self, text: str, bad: bool = True) -> None:
         msg = self.query_one("#form-msg", Static)
         msg.update(text)
-        msg.add_class("-bad")
+        msg.set_class(bad, "-bad")
 
     def on_button_pressed(self, event: Button.Pressed) -> None:
         event.stop()
@@ -296,18 +297,27 @@ class RegisterForm(SavesAtKey, ModalScreen[Any]):
         return register.sizing_doubt(record)
 
     def write(self, wanted: dict[str, Any]) -> None:
-        by = self.sb.tech
-        try:
-            if self.record is None:
-                saved = register.add(self.sb.book, self.cls(**wanted), by=by)
-            else:
-                saved = register.update(self.sb.book, self.cls, self.record.tag, wanted, by=by)
-        except (BookError, sqlite3.Error, OSError) as exc:
-            self.refused(exc)
-            return
+        """Save in a thread (tui/base/workers.py write_behind); a second save meanwhile is
+        refused."""
+        by, cls, record = self.sb.tech, self.cls, self.record
+
+        def job(book: Any) -> Any:
+            if record is None:
+                return register.add(book, cls(**wanted), by=by)
+            return register.update(book, cls, record.tag, wanted, by=by)
+
+        self.saving = True
+        self.say("Saving…", bad=False)
+        write_behind(
+            self, self.sb.book.path, self.sb.session.clock, job, self.written, self.refused
+        )
+
+    def written(self, saved: Any) -> None:
+        self.saving = False
         self.dismiss(saved)
 
-    def refused(self, exc: Exception) -> None:
+    def refused(self, exc: BaseException) -> None:
+        self.saving = False
         problem = write_problem(exc)
         self.say("Not saved: " + problem)
         rows = {row.spec.name: row for row in self.query(FieldRow) if not row.spec.disabled}

@@ -25,7 +25,7 @@ from store.ledger.journal import BYPASS_OPEN, BYPASS_STEPS, bypass_head
 from store.ledger.register import FilterPosition, find
 from store.rounds import SKIP_REASONS, Round, Stop, plan_round, skip_note
 from tui.base.keys import bind
-from tui.base.workers import guarded
+from tui.base.workers import guarded, write_behind
 from tui.forms.base import FIELD_KEYS, write_problem
 from tui.forms.confirm import ConfirmScreen
 from tui.screens.ask import AskScreen
@@ -279,11 +279,19 @@ class RoundScreen(BookScreen):
         self.app.push_screen(ConfirmScreen(f"Save this reading on {s.filter}?", caution), answered)
 
     def write(self, s: Stop, entry: Reading, typed: dict[str, str]) -> None:
-        try:
-            saved = record.log(self.sb.book, entry)
-        except (BookError, sqlite3.Error, OSError) as exc:
-            self.refuse(typed, write_problem(exc))
-            return
+        """Save in a thread (tui/base/workers.py write_behind); Enter meanwhile is refused."""
+        self.saving = True
+        self.say(f"Saving {s.filter}…")
+        write_behind(
+            self,
+            self.sb.book.path,
+            self.sb.session.clock,
+            lambda book: record.log(book, entry),
+            lambda saved: self.written(s, saved),
+            lambda exc: self.refuse(typed, write_problem(exc)),
+        )
+
+    def written(self, s: Stop, saved: Reading) -> None:
         self.saving = False
         self.sb.book_changed()
         prefs = self.sb.prefs
