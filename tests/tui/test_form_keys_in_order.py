@@ -126,3 +126,27 @@ async def test_a_register_record_saves_what_its_field_shows(plant):
         from store.ledger.register import FilterPosition, get
 
         assert get(book, FilterPosition, "P1-RF").limit_bar == pytest.approx(2.6)
+
+
+async def test_enter_in_a_choice_picks_and_a_save_with_its_list_open_is_refused(plant):
+    """Enter saves from a text field only: in a choice it opens the list and picks from it.
+    A save key that comes while the list is open saves nothing: the pick is on its way."""
+    from textual.widgets import Select
+
+    app = app_for(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        form = await open_reading(pilot)
+        choice = form.query_one("#f-indicator", Select)
+        choice.focus()
+        await pilot.pause()
+        await burst(pilot, "enter", "ctrl+s")
+        assert app.screen is form
+        assert "close the list" in str(form.query_one("#m-indicator").render())
+        choice.focus()
+        await pilot.pause()
+        await pilot.press("enter", "down", "down", "enter")  # – , clean, dirty
+        assert choice.value == "dirty"
+        await pilot.press("ctrl+s")
+        await settle(pilot, WatchScreen)
+    saved = newest_reading(plant)
+    assert saved.indicator == "dirty" and saved.dp_bar is None

@@ -23,6 +23,11 @@ class FieldInput(InOrderKeys, Input):
     they were typed, with the letters around them (tui/widgets/inorder.py)."""
 
 
+class FieldSelect(InOrderKeys, Select):
+    """A choice whose keys (Enter, space, the arrows that open its list) are taken in the
+    order typed: a save key after them sees the list open."""
+
+
 class TickBox(InOrderKeys, Checkbox):
     """A tick box whose mark is a character, not only a colour: ✓ ticked, blank not.
     With `words`, the label says it too ("yes" / "no")."""
@@ -78,7 +83,7 @@ class FieldRow(Horizontal):
         yield Label(s.label + (" *" if s.required else ""), id=f"label-{s.name}")
         control: Widget
         if s.options is not None:
-            control = Select(
+            control = FieldSelect(
                 [(label, value) for label, value in s.options],
                 value=s.value if s.value in [v for _, v in s.options] else Select.NULL,
                 allow_blank=not s.required or s.value not in [v for _, v in s.options],

@@ -27,11 +27,16 @@ from textual.widget import Widget
 
 
 class InOrderKeys:
-    """Mixin for a field without children (Input, Checkbox): its own bindings run when it
-    takes the key, not when the key comes back to the App."""
+    """Mixin for a field (Input, Checkbox, Select): its own bindings run when it takes the
+    key, not when the key comes back to the App. A field with parts of its own (a choice's
+    list) does so only while it has the focus itself: a key on its way up from its list is
+    the list's, and Textual runs the list's bindings for it as before."""
 
     async def _on_key(self, event: events.Key) -> None:
         widget: Any = self
+        if widget.children and widget.screen.focused is not widget:
+            await super()._on_key(event)  # type: ignore[misc]
+            return
         # `_bindings` is what Textual's own binding lookup reads for this widget (its BINDINGS
         # merged with the app's keymap); priority bindings ran at the App already.
         for binding in widget._bindings.key_to_bindings.get(event.key, ()):
