@@ -339,6 +339,9 @@ class EntryForm(SavesAtKey, ModalScreen[Saved | None]):
             self.action_cancel()
 
     def action_cancel(self) -> None:
+        if self.saving:  # a save under way cannot be called back: it lands, then the form goes
+            self.say("Saving… (it cannot be called back; the form closes once it is saved)")
+            return
         self.dismiss(None)
 
     def save_now(self, values: dict[str, Any]) -> None:

@@ -232,6 +232,9 @@ class RegisterForm(SavesAtKey, ModalScreen[Any]):
         self.action_save() if event.button.id == "save" else self.action_cancel()
 
     def action_cancel(self) -> None:
+        if self.saving:  # a save under way cannot be called back: it lands, then the form goes
+            self.say("Saving… (it cannot be called back; the form closes once it is saved)")
+            return
         self.dismiss(None)
 
     def parsed(self, typed: dict[str, Any]) -> dict[str, Any]:
