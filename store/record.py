@@ -7,10 +7,12 @@ from __future__ import annotations
 
 import uuid
 from collections.abc import Iterable, Sequence
-from dataclasses import replace
+from dataclasses import dataclass, replace
+from datetime import datetime
 
 from store.db.book import Book
 from store.derived import statuscache
+from store.health.status import FilterStatus
 from store.ledger import journal
 from store.ledger.entries import Entry
 
@@ -44,25 +46,48 @@ def _target(book: Book, entry: Entry) -> str:
     return (entry.target or entry.unit or "").upper()
 
 
+@dataclass(frozen=True)
+class Logged:
+    """One saved entry as the book holds it (id and times filled in), and the status its save
+    kept for the entry's filter in the same transaction (None for an entry on no filter):
+    what a screen shows after the save without computing it again."""
+
+    entry: Entry
+    status: FilterStatus | None = None
+
+
 def log(book: Book, entry: Entry) -> Entry:
     """Validate and append one entry; returns it with id and times filled in."""
-    return log_many(book, [entry])[0]
+    return save(book, entry).entry
+
+
+def save(book: Book, entry: Entry) -> Logged:
+    """Validate and append one entry and bring its derived rows up to date, in one
+    transaction; returns the entry and the filter status kept for it."""
+    now = book.now()
+    preload()
+    with book.atomic():
+        entry = _append(book, entry, now)
+        status = statuscache.after_entry(book, entry)
+    return Logged(entry, status)
 
 
 def log_many(book: Book, entries: Iterable[Entry]) -> list[Entry]:
     """All or nothing: every entry is validated and written, and the derived rows follow,
     in one transaction."""
     now = book.now()
-    done = []
     preload()
     with book.atomic():
-        for entry in entries:
-            entry = journal.validate(book, entry, now)
-            entry = replace(entry, id=entry.id or str(uuid.uuid4()), logged=entry.logged or now)
-            journal.insert(book, entry)
-            done.append(entry)
+        done = [_append(book, entry, now) for entry in entries]
         after_write(book, done)
     return done
+
+
+def _append(book: Book, entry: Entry, now: datetime) -> Entry:
+    entry = journal.validate(book, entry, now)
+    entry = replace(entry, id=entry.id or str(uuid.uuid4()), logged=entry.logged or now)
+    journal.insert(book, entry)
+    return entry
 
 
 def refresh_stale(book: Book, limit: int | None = None) -> list[str]:

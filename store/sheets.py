@@ -20,7 +20,7 @@ from store.health.conditions import contexts
 from store.health.elements import Element, ElementSummary, meter_at, split_elements
 from store.health.fluidcare import Consumption, sample_verdict
 from store.health.status import URGENT_FLAGS, BreatherStatus, Due, FilterStatus, UnitStatus, Watch
-from store.ledger.entries import Entry, Reading, Sample, TopUp
+from store.ledger.entries import BreatherSwap, Entry, Reading, Sample, TopUp
 from store.ledger.journal import MAX_DP_BAR, find_entry, read
 from store.ledger.register import (
     Breather,
@@ -33,6 +33,7 @@ from store.ledger.register import (
     list_all,
     list_shifts,
 )
+from store.record import Logged
 from store.views import status_of, watch
 
 WEEK = timedelta(days=7)
@@ -554,6 +555,19 @@ def likely_change_reason(f: FilterStatus | None) -> str:
     if f.indicator == "dirty":
         return "indicator"
     return ""
+
+
+def saved_row(book: Book, logged: Logged) -> WatchRow | None:
+    """The watch-list row a save changed, from what the save returned: its filter's status
+    as the save kept it (not computed again), or a breather's status after a swap (breather
+    statuses are not kept: read from the swaps); None for an entry on neither."""
+    if logged.status is not None:
+        return filter_row(logged.status, "", book.now())
+    entry = logged.entry
+    if isinstance(entry, BreatherSwap):
+        found = breather_status_of(book, entry.breather)
+        return breather_row(found, "") if found is not None else None
+    return None
 
 
 def breather_status_of(book: Book, tag: str) -> BreatherStatus | None:

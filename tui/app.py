@@ -29,16 +29,11 @@ from store.base.text import inert_line
 from store.base.timeutil import parse_utc
 from store.exchange.demo import discard, is_throwaway, throwaway_demo, throwaway_empty
 from store.ledger import register
-from store.ledger.entries import BreatherSwap, ElementChange, Reading
 from store.ledger.register import Technician, Unit
 from store.sheets import (
     TagHit,
     WatchRow,
-    breather_row,
-    breather_status_of,
-    filter_row,
     filter_sheet,
-    filter_status_of,
     tag_index,
 )
 from tui.base.keys import KEYS, bind
@@ -53,7 +48,7 @@ from tui.widgets.inert import INERT_LINES
 from tui.widgets.palette import BookCommands
 
 if TYPE_CHECKING:
-    from tui.forms.base import Saved
+    from tui.forms.base import EntrySaved
 
 # Screens and forms beyond the watch list are imported when first opened: the app's start
 # (to a painted watch list) loads only what that list needs.
@@ -369,7 +364,7 @@ class SumpbookApp(App[None]):
             return
         before = self.statuses.get(tag.upper()) if tag else None
         form = _lazy(f"forms.{FORMS[kind][0]}", FORMS[kind][1])
-        self.push_screen(form(tag, before=before, **preset), self.saved)
+        self.push_screen(form(tag, before=before, **preset))  # a save comes as EntrySaved
 
     @guarded
     def route_tag(self, action: str, hit: TagHit) -> None:
@@ -457,40 +452,14 @@ class SumpbookApp(App[None]):
 
     # ---- after a save ----
 
-    def saved(self, result: Saved | None) -> None:
-        if result is None:
-            return
+    def on_entry_saved(self, message: EntrySaved) -> None:
+        """Say what the save did, from the row the store returned with it (no second read)."""
         self.book_changed()
-        self.after_save(result)
-
-    @work(thread=True, exit_on_error=False, group="after-save")
-    def after_save(self, result: Saved) -> None:
-        entry = result.entry
-        after: WatchRow | None = None
-        try:
-            with open_book(self.book.path, create=False, clock=self.session.clock) as book:
-                if isinstance(entry, (Reading, ElementChange)):
-                    st = filter_status_of(book, entry.filter)
-                    after = filter_row(st, "", book.now()) if st else None
-                elif isinstance(entry, BreatherSwap):
-                    bs = breather_status_of(book, entry.breather)
-                    after = breather_row(bs, "") if bs else None
-        except Exception as exc:  # noqa: BLE001 - the entry is saved; say the forecast is not
-            self.call_from_thread(
-                self.notify,
-                f"Saved. The forecast could not be recomputed: {exc}",
-                severity="warning",
-            )
-            return
-        self.call_from_thread(self.say_saved, result, after)
-
-    def say_saved(self, result: Saved, after: WatchRow | None) -> None:
-        entry, before = result.entry, result.before
-        local = self.book.local_zone()
+        entry, before, after = message.entry, message.before, message.after
         text = saved_text(entry)
         if after is not None:
             self.statuses[after.tag.upper()] = after
-            text += " " + due_change(after, before, local)
+            text += " " + due_change(after, before, self.book.local_zone())
         self.last_message = text
         self.notify(text, timeout=8)
 

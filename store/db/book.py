@@ -5,6 +5,7 @@ from __future__ import annotations
 import os
 import shutil
 import sqlite3
+import threading
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field
@@ -576,7 +577,21 @@ def _checking_connection(path: Path, readonly: bool) -> sqlite3.Connection:
 _ROW_FINDINGS = ("CHECK constraint failed", "NOT NULL constraint failed")
 
 
+_CHECKING: dict[str, threading.Lock] = {}  # one whole-file check of a file at a time
+
+
 def _quick_check(conn: sqlite3.Connection, path: Path) -> None:
+    """The whole-file quick check, once per file and process. A second caller while one runs
+    (the app's first save in its thread during the check behind the first paint) waits for
+    that one instead of reading the whole file a second time beside it."""
+    key = check_key(path)
+    with _CHECKING.setdefault(key, threading.Lock()):
+        if key in CHECKED:
+            return
+        _quick_check_now(conn, path)
+
+
+def _quick_check_now(conn: sqlite3.Connection, path: Path) -> None:
     try:
         found = [row[0] for row in conn.execute("PRAGMA quick_check").fetchall()]
         ok = "ok" if all(f == "ok" or f.startswith(_ROW_FINDINGS) for f in found) else found[0]

@@ -211,10 +211,11 @@ def live_status(
     return status, own_failures(ctx, els.past) < 3 or not like, els.changed
 
 
-def after_entry(book: Book, entry: Entry) -> None:
+def after_entry(book: Book, entry: Entry) -> FilterStatus | None:
     """Called inside the write transaction: refresh the filter the entry touches (when its
     removed elements changed, mark stale the like positions whose status leans on its
-    lives) and the unit whose fluid-care status it can change."""
+    lives) and the unit whose fluid-care status it can change. Returns the filter's status
+    as kept (None when the entry is on no filter)."""
     unit = _touches_unit(book, entry)
     if unit:
         refresh_unit(book, unit)
@@ -223,7 +224,7 @@ def after_entry(book: Book, entry: Entry) -> None:
         row = book.conn.execute("SELECT filter FROM entries WHERE id = ?", [entry.voids]).fetchone()
         tag = row[0] if row else None
     if not tag:
-        return
+        return None
     ctx = context(book, tag)
     status, pools, changed = live_status(book, ctx, keep=True)
     store_status(book, status, book.now(), pools)
@@ -236,6 +237,7 @@ def after_entry(book: Book, entry: Entry) -> None:
                 f"({', '.join('?' for _ in part)})",
                 part,
             )
+    return status
 
 
 def _inputs_seen(book: Book) -> tuple[int, int]:

@@ -267,3 +267,18 @@ def app_for(path: Path, **options):
     session = from_environ(os.environ)
     book = open_book(path, clock=session.clock)
     return SumpbookApp(book, cursor_blink=False, session=session, **options)
+
+
+async def burst(pilot, *keys: str) -> None:
+    """The keys sent in one go, as a fast typist, a scanner or a terminal's paste of keys
+    sends them: all queued before the app takes the first (Pilot.press waits for the app to
+    go idle after each key, which hides what happens to keys that arrive together)."""
+    from textual import events
+
+    app = pilot.app
+    for key in keys:
+        char = key if len(key) == 1 else None
+        app.post_message(events.Key(key, char))
+    await pilot.pause()
+    await app.workers.wait_for_complete()
+    await pilot.pause()

@@ -7,6 +7,7 @@ import pytest
 from textual.widgets import Input, Static
 
 from store.db.book import open_book
+from store.db.connection import clear_damage, record_damage
 from store.ledger import journal
 from store.ledger.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp
 from tests.kit.plant import app_for, count_entries, settle, write_prefs
@@ -216,16 +217,18 @@ async def test_a_write_failure_is_shown_in_the_form_and_keeps_the_input(plant):
     app = app_for(plant)
     async with app.run_test(size=(80, 24)) as pilot:
         await settle(pilot, WatchScreen)
-        app.book.conn.execute("PRAGMA query_only = ON")  # the file turned read-only
+        # a check found the file damaged (a damage record beside it): every save refuses it
+        record_damage(plant, "page 7 is out of order (made up for this test)")
         app.open_form("reading", "P1-RF")
         await pilot.pause()
         await pilot.press(*"1.9", "enter")
+        await app.workers.wait_for_complete()
         await pilot.pause()
         form = app.screen
         assert isinstance(form, ReadingForm)
-        assert "read-only" in str(form.query_one("#form-msg").render())
+        assert "damaged" in str(form.query_one("#form-msg").render())
         assert form.query_one("#f-dp", Input).value == "1.9"
-        app.book.conn.execute("PRAGMA query_only = OFF")
+        clear_damage(plant)
         await pilot.press("ctrl+s")
         await settle(pilot, WatchScreen)
     assert newest(plant, "reading").dp_bar == pytest.approx(1.9)

@@ -342,10 +342,10 @@ async def test_first_run_can_open_the_demo_plant(tmp_path):
         await pilot.pause()
         assert isinstance(app.screen, FirstRunScreen)
         await pilot.press("d")
-        for _ in range(200):  # the demo is written in a worker thread
-            await pilot.pause(0.02)
-            if app.demo and isinstance(app.screen, (SignInScreen, WatchScreen)):
-                break
+        await pilot.pause()
+        await app.workers.wait_for_complete()  # the demo is written in a worker thread
+        await pilot.pause()
+        assert isinstance(app.screen, (SignInScreen, WatchScreen))
         assert app.demo and is_throwaway(app.book.path)  # a fresh copy, nothing kept
         await pilot.press("escape")  # not signing in yet
         await settle(pilot, WatchScreen)

@@ -8,11 +8,13 @@ from typing import Any, Protocol
 
 from store import Book
 from store.base.prefs import Prefs
+from store.base.session import Session
 
 
 class Host(Protocol):
     book: Book
     prefs: Prefs
+    session: Session
     cursor_blink: bool
     early_watch: Future[Any] | None
 

@@ -55,3 +55,29 @@ def read_early(path: Path, read: Callable[[Book], Any], clock: Clock) -> Future[
 
     threading.Thread(target=in_thread, name="early-read", daemon=True).start()
     return future
+
+
+def write_behind(
+    widget: Any,
+    path: Path,
+    clock: Clock,
+    job: Callable[[Book], Any],
+    done: Callable[[Any], None],
+    failed: Callable[[BaseException], None],
+) -> Any:
+    """Run `job(book)` in a thread on a connection of its own and hand its result to `done`
+    (or what it raised to `failed`) on the UI loop. A save does its writing here: the first
+    write of a process runs the whole-file quick check (seconds on a big book), and the
+    screen keeps taking keys meanwhile. Returns the worker; never exclusive: a save is
+    never dropped for a later one (the form refuses a second save while one runs)."""
+
+    def run() -> None:
+        try:
+            with open_book(path, create=False, clock=clock) as book:
+                result = job(book)
+        except Exception as exc:  # noqa: BLE001 - the screen says it, its input kept
+            widget.app.call_from_thread(failed, exc)
+            return
+        widget.app.call_from_thread(done, result)
+
+    return widget.run_worker(run, thread=True, group="save", exit_on_error=False)

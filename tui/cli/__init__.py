@@ -203,6 +203,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--since", help="entries from this time on (ISO 8601)")
     p.add_argument("--limit", type=_limit, default=200, help="at most this many entries (200)")
 
+    # The entry options are kept as typed: store/ledger/entry_input.py reads them as the
+    # forms' fields are read.
     log = sub.add_parser("log", help="record what you did or saw")
     lsub = log.add_subparsers(dest="kind", metavar="KIND", required=True)
     p = lsub.add_parser("reading", help="a ΔP reading or indicator state")
@@ -210,8 +212,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--dp", help="ΔP, e.g. 1.2, 18psi, 120kPa (your unit unless given)")
     p.add_argument("--indicator", choices=["clean", "dirty", "bypass"])
     p.add_argument("--temp", help="fluid temperature, e.g. 45 or 113F")
-    p.add_argument("--flow", type=_number, help="flow, L/min, if known")
-    p.add_argument("--hours", type=_number, help="hour-meter reading")
+    p.add_argument("--flow", help="flow, L/min, if known")
+    p.add_argument("--hours", help="hour-meter reading")
     p.add_argument(
         "--as-read",
         action="store_true",
@@ -224,16 +226,16 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--reason", default="limit", choices=journal.CHANGE_REASONS)
     p.add_argument("--condition", default="", help="the old element as found")
     p.add_argument("--batch", default="", help="the new element's batch or lot")
-    p.add_argument("--hours", type=_number, help="hour-meter reading")
+    p.add_argument("--hours", help="hour-meter reading")
     _add_time_and_by(p)
     p = lsub.add_parser("topup", help="fluid added to a reservoir")
     p.add_argument("tag", help="unit tag")
     p.add_argument("--volume", required=True, help="volume added, e.g. 20 or 5gal")
     p.add_argument("--fluid", help="fluid tag (default: the unit's fluid)")
     how = p.add_mutually_exclusive_group(required=True)
-    how.add_argument("--filtered", type=_number, metavar="UM", help="filtered on the way in, µm")
+    how.add_argument("--filtered", metavar="UM", help="filtered on the way in, µm")
     how.add_argument("--unfiltered", action="store_true", help="went in unfiltered")
-    p.add_argument("--hours", type=_number, help="hour-meter reading")
+    p.add_argument("--hours", help="hour-meter reading")
     _add_time_and_by(p)
     p = lsub.add_parser("breather", help="a breather swap")
     p.add_argument("tag", help="breather tag")
@@ -244,7 +246,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("tag", help="unit tag")
     p.add_argument("--counts", help="per mL at ≥4/≥6/≥14 µm(c), e.g. 2000/500/60 (or -/500/60)")
     p.add_argument("--code", help="ISO 4406 code, e.g. 18/16/13")
-    p.add_argument("--water", type=_number, help="water content, ppm")
+    p.add_argument("--water", help="water content, ppm")
     _add_time_and_by(p)
     p = lsub.add_parser("note", help="a free note (on a unit, or on nothing)")
     p.add_argument("text")

@@ -25,16 +25,14 @@ from store.base.errors import BookError
 from store.base.text import inert, json_inert
 from store.base.timeutil import parse_time, previous_shift, shift_at, shift_named
 from store.base.units import (
-    AmbiguousNumberError,
     parse_pressure_bar,
     parse_temperature_c,
     parse_volume_l,
-    read_number,
 )
 from store.base.validate import plant_setting
 from store.health import status
-from store.ledger import journal, register
-from store.ledger.entries import BreatherSwap, ElementChange, Note, Reading, Sample, TopUp, Void
+from store.ledger import entry_input, journal, register
+from store.ledger.entries import Reading
 from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
 from tui.base.quantities import pressure
 
@@ -314,60 +312,23 @@ def cmd_list(args: argparse.Namespace) -> int:
 def cmd_log(args: argparse.Namespace) -> int:
     prefs = laptop.load(args.session.config_path)
     with _book(args) as book:
-        common = {"at": _at(book, args), "by": _by(args), "note": getattr(args, "note", "") or ""}
         kind = args.kind
-        entry: Any
-        if kind == "reading":
-            if args.dp is None and args.indicator is None:
-                raise BookError("give --dp VALUE or --indicator STATE")
-            entry = Reading(
-                filter=args.tag,
-                dp_bar=parse_pressure_bar(args.dp, prefs.pressure) if args.dp else None,
-                indicator=args.indicator,
-                temp_c=parse_temperature_c(args.temp, prefs.temperature) if args.temp else None,
-                flow_lpm=args.flow,
-                hours=args.hours,
-                **common,
+        # the options as typed, by the field names of the one entry builder (the forms' too)
+        typed = {name: getattr(args, name, None) for name in entry_input.FIELDS[kind]}
+        if kind in _TARGET:
+            typed[_TARGET[kind]] = args.tag
+        if kind == "topup":
+            typed["how"] = "unfiltered" if args.unfiltered else None
+        elif kind == "void":
+            typed["entry"] = args.id
+        text = args.text if kind == "note" else getattr(args, "note", "") or ""
+        try:
+            entry: Any = entry_input.build(
+                kind, typed, prefs, at=_at(book, args), by=_by(args), note=text
             )
-        elif kind == "change":
-            entry = ElementChange(
-                filter=args.tag,
-                reason=args.reason,
-                condition=args.condition,
-                batch=args.batch,
-                hours=args.hours,
-                **common,
-            )
-        elif kind == "topup":
-            entry = TopUp(
-                unit=args.tag,
-                volume_l=parse_volume_l(args.volume, prefs.volume),
-                fluid=args.fluid,
-                filtered_um=journal.topup_filtration(args.unfiltered, args.filtered),
-                hours=args.hours,
-                **common,
-            )
-        elif kind == "breather":
-            entry = BreatherSwap(
-                breather=args.tag, reason=args.reason, condition=args.condition, **common
-            )
-        elif kind == "sample":
-            counts = _counts(args.counts) if args.counts else (None, None, None)
-            entry = Sample(
-                unit=args.tag,
-                c4_per_ml=counts[0],
-                c6_per_ml=counts[1],
-                c14_per_ml=counts[2],
-                code=args.code,
-                water_ppm=args.water,
-                **common,
-            )
-        elif kind == "note":
-            entry = Note(unit=args.unit, **{**common, "note": args.text})
-            if not args.text.strip():
-                raise BookError("the note is empty")
-        else:
-            entry = Void(voids=args.id, **{**common, "note": args.reason})
+        except entry_input.FieldError as exc:
+            option = _OPTIONS.get(exc.field, f"--{exc.field}")
+            raise BookError(f"{option}: {exc}" if option else str(exc)) from exc
         if isinstance(entry, Reading) and not args.as_read:
             from store.sheets import reading_doubts  # deferred: off the start path of status
 
@@ -390,17 +351,15 @@ def cmd_log(args: argparse.Namespace) -> int:
     return 0
 
 
-def _counts(text: str) -> tuple[float | None, float, float]:
-    parts = [p.strip() for p in text.split("/")]
-    if len(parts) != 3:
-        raise BookError("counts are ≥4/≥6/≥14 per mL, e.g. 2000/500/60 (or -/500/60)")
-    try:
-        c4 = None if parts[0] in ("-", "") else read_number(parts[0])
-        return c4, read_number(parts[1]), read_number(parts[2])
-    except AmbiguousNumberError:
-        raise
-    except BookError as exc:
-        raise BookError(f"'{text}' holds something that is not a count") from exc
+_TARGET = {  # the field a kind's TAG argument fills
+    "reading": "filter",
+    "change": "filter",
+    "breather": "breather",
+    "topup": "unit",
+    "sample": "unit",
+}
+# a builder's field as `log` names it in a message ("": the message says it all)
+_OPTIONS = {"dp": "--dp (or --indicator)", "how": "--unfiltered", "entry": "ID", "note": ""}
 
 
 # ---- status, export, import ----------------------------------------------------------------------

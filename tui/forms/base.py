@@ -9,23 +9,30 @@ from dataclasses import dataclass
 from datetime import datetime
 from typing import Any
 
+from textual.actions import SkipAction
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.message import Message
 from textual.screen import ModalScreen
 from textual.widget import Widget
 from textual.widgets import Button, Checkbox, Input, Select, Static
 
-from store import record
+from store import Book, record
 from store.base.errors import BookError
 from store.base.timeutil import local_text, parse_typed_time
+from store.ledger import entry_input
 from store.ledger.entries import Entry
+from store.ledger.entry_input import FieldError
 from store.ledger.register import Technician, list_all
+from store.sheets import WatchRow, saved_row
 from tui.base.host import Host
+from tui.base.workers import write_behind
 from tui.forms.confirm import ConfirmScreen
 from tui.forms.validators import TagValidator, TimeValidator
 from tui.widgets.caution import Caution
-from tui.widgets.field import FieldRow, Spec, TickBox
+from tui.widgets.field import FieldRow, Spec, TickBox, value_of
+from tui.widgets.inorder import read_at_key
 
 
 @dataclass(frozen=True)
@@ -36,12 +43,14 @@ class Saved:
     before: Any = None  # FilterStatus / BreatherStatus before the entry, when known
 
 
-class FieldError(BookError):
-    """A form's own refusal of a combination, naming the field to put right."""
+class EntrySaved(Message):
+    """An entry was saved (posted to the app): the entry as the book holds it, the watch-list
+    row the save changed as the store returned it (`sheets.saved_row`: the status the save
+    kept, not computed again), and the row before, when known."""
 
-    def __init__(self, message: str, field: str) -> None:
-        super().__init__(message)
-        self.field = field
+    def __init__(self, entry: Entry, after: WatchRow | None, before: Any = None) -> None:
+        super().__init__()
+        self.entry, self.after, self.before = entry, after, before
 
 
 def fault_field(message: str, clues: dict[str, str]) -> str | None:
@@ -72,19 +81,66 @@ FIELD_KEYS = (
     Binding("tab", "app.focus_next", show=False, priority=True),
     Binding("shift+tab", "app.focus_previous", show=False, priority=True),
 )
+# The save keys are seen at the moment they arrive, before the keys after them are routed
+# (priority): the form is read as it stood at the key (tui/widgets/inorder.py).
+SAVE_KEYS = (
+    Binding("ctrl+s", "save", "Save", id="form-save", priority=True),
+    Binding("enter", "enter", show=False, priority=True),
+)
 
 
-class EntryForm(ModalScreen[Saved | None]):
+class SavesAtKey:
+    """What the entry and register forms share: the save keys, the fields read as they
+    stood at the key, and one save at a time (`saving`: a save key meanwhile is refused)."""
+
+    saving = False
+
+    def save_now(self, values: dict[str, Any]) -> None:
+        raise NotImplementedError
+
+    def say(self, text: str) -> None:
+        raise NotImplementedError
+
+    def action_enter(self) -> None:
+        """Enter saves from a text field and presses a focused button; anywhere else (a
+        choice, its list, a tick box) it does what it does there."""
+        screen: Any = self
+        focused = screen.focused
+        if isinstance(focused, Button):
+            screen.action_save() if focused.id == "save" else screen.action_cancel()
+        elif isinstance(focused, Input):
+            screen.action_save()
+        else:
+            raise SkipAction()
+
+    def action_save(self) -> None:
+        if self.saving:
+            self.say("Saving… (the save key again is not a second save)")
+            return
+        self.saving = True
+        screen: Any = self
+        named = {row.control: row.spec.name for row in screen.query(FieldRow)}
+        named.update({box: "ack" for box in screen.query("#ack")})
+
+        def read(values: dict[Widget, Any]) -> None:
+            if screen.is_attached:
+                self.save_now({named[c]: v for c, v in values.items()})
+
+        read_at_key(named, value_of, read)
+
+
+class EntryForm(SavesAtKey, ModalScreen[Saved | None]):
     """Subclasses give `heading`, `specs()`, `build(values)`; `first` names the field to start in."""
 
     BINDINGS = [
-        Binding("ctrl+s", "save", "Save", id="form-save"),
+        *SAVE_KEYS,
         Binding("escape", "cancel", "Cancel", id="form-cancel"),
         # Tab moves on at the moment it is typed, before the keys after it are routed: typed
         # fast ("4.1", Tab, "52"), or sent by a scanner, the next keys land in the next field.
         *FIELD_KEYS,
     ]
     heading = "Entry"
+    kind = ""  # the entry kind (Entry.kind) this form builds
     caution = False
     first = ""
     # words in a refusal -> the field it is about (see fault_field); forms add their own
@@ -104,6 +160,7 @@ class EntryForm(ModalScreen[Saved | None]):
         self.saved: Entry | None = None
         self.load_problem = ""
         self.refusal = ""  # what the "Not saved" line is about: a field name, "*" (checks), ""
+        self.values_saved: dict[str, Any] = {}  # the fields as read at the last save key
 
     @property
     def sb(self) -> Host:
@@ -115,7 +172,16 @@ class EntryForm(ModalScreen[Saved | None]):
         raise NotImplementedError
 
     def build(self, values: dict[str, Any]) -> Entry:
-        raise NotImplementedError
+        """The entry from the fields, by the one entry builder (store/ledger/entry_input.py)
+        that `sumpbook log` uses too."""
+        return entry_input.build(
+            self.kind,
+            values,
+            self.sb.prefs,
+            at=self.when(values["time"]),
+            by=values["by"],
+            note=values.get("note") or "",
+        )
 
     def question(self, entry: Entry) -> tuple[str, str] | None:
         """(title, caution) when the entry may be true but is urgent: asked before saving."""
@@ -238,6 +304,8 @@ class EntryForm(ModalScreen[Saved | None]):
                 return
         elif control_id != f"f-{self.refusal}":
             return
+        elif value_of(self.query_one(f"#{control_id}")) == self.values_saved.get(self.refusal):
+            return  # a change on its way from before the save key, not a fix
         self.refusal = ""
         self.say("")
 
@@ -263,10 +331,6 @@ class EntryForm(ModalScreen[Saved | None]):
 
     # ---- saving ----
 
-    def on_input_submitted(self, event: Input.Submitted) -> None:
-        event.stop()
-        self.action_save()
-
     def on_button_pressed(self, event: Button.Pressed) -> None:
         event.stop()
         if event.button.id == "save":
@@ -275,23 +339,34 @@ class EntryForm(ModalScreen[Saved | None]):
             self.action_cancel()
 
     def action_cancel(self) -> None:
+        if self.saving:  # a save under way cannot be called back: it lands, then the form goes
+            self.say("Saving… (it cannot be called back; the form closes once it is saved)")
+            return
         self.dismiss(None)
 
-    def action_save(self) -> None:
-        bad = [(row, p) for row in self.rows() if (p := row.check_value(force=True))]
+    def save_now(self, values: dict[str, Any]) -> None:
+        """Check and save `values`, the fields as they stood at the save key."""
+        self.saving = False
+        self.values_saved = values
+        rows = self.rows()
+        bad = [
+            (row, p)
+            for row in rows
+            if (p := row.check_value(force=True, value=values[row.spec.name]))
+        ]
         if bad:
             self.focus_fix(bad[0][0].control)
             names = ", ".join(row.spec.label for row, _ in bad)
             self.say(f"Not saved: check {names}.")
             self.refusal = "*"
             return
-        if self.caution and not self.query_one("#ack", Checkbox).value:
+        if self.caution and not values.get("ack"):
             self.query_one("#ack", Checkbox).focus()
             self.say("Not saved: tick the safety acknowledgement first.")
             self.refusal = "ack"
             return
         try:
-            entry = self.build(self.values())
+            entry = self.build({row.spec.name: values[row.spec.name] for row in rows})
             ask = self.question(entry)
         except (BookError, sqlite3.Error, OSError) as exc:
             self.refused(exc)
@@ -309,16 +384,29 @@ class EntryForm(ModalScreen[Saved | None]):
         self.app.push_screen(ConfirmScreen(*ask), answered)
 
     def write(self, entry: Entry) -> None:
-        try:
-            saved = record.log(self.sb.book, entry)
-        except (BookError, sqlite3.Error, OSError) as exc:
-            self.refused(exc)
-            return
+        """Save in a thread (tui/base/workers.py write_behind): the form says it is saving
+        and refuses a second save until this one is done."""
+        self.saving = True
+        self.say("Saving…", bad=False)
+
+        def job(book: Book) -> tuple[Entry, WatchRow | None]:
+            logged = record.save(book, entry)
+            return logged.entry, saved_row(book, logged)
+
+        write_behind(
+            self, self.sb.book.path, self.sb.session.clock, job, self.written, self.refused
+        )
+
+    def written(self, result: tuple[Entry, WatchRow | None]) -> None:
+        saved, after = result
+        self.saving = False
         self.saved = saved
+        self.app.post_message(EntrySaved(saved, after, self.before))
         self.dismiss(Saved(saved, self.before))
 
     def refused(self, exc: BaseException) -> None:
         """Say why; put the cursor on the field at fault and mark it."""
+        self.saving = False
         problem = write_problem(exc)
         self.say("Not saved: " + problem)
         name = exc.field if isinstance(exc, FieldError) else None

@@ -2,9 +2,6 @@
 
 from __future__ import annotations
 
-from typing import Any
-
-from store.ledger.entries import BreatherSwap, Entry
 from store.ledger.journal import BREATHER_REASONS
 from store.ledger.register import Breather, find
 from tui.forms.base import EntryForm
@@ -19,6 +16,7 @@ REASON_WORDS = {
 
 
 class BreatherForm(EntryForm):
+    kind = "breather"
     heading = "Breather swap"
     caution = True
 
@@ -44,13 +42,3 @@ class BreatherForm(EntryForm):
             Spec("condition", "Old cartridge", "", hint="e.g. 2/3 spent, 80 %, fresh"),
             *self.common_specs(),
         ]
-
-    def build(self, v: dict[str, Any]) -> Entry:
-        return BreatherSwap(
-            breather=v["breather"],
-            reason=v["reason"],
-            condition=v["condition"],
-            at=self.when(v["time"]),
-            by=v["by"],
-            note=v["note"],
-        )

@@ -2,10 +2,6 @@
 
 from __future__ import annotations
 
-from typing import Any
-
-from store.base.units import read_number
-from store.ledger.entries import ElementChange, Entry
 from store.ledger.journal import CHANGE_REASONS
 from store.ledger.register import FilterPosition, find
 from store.sheets import filter_status_of, likely_change_reason
@@ -24,6 +20,7 @@ REASON_WORDS = {
 
 
 class ChangeForm(EntryForm):
+    kind = "change"
     heading = "Element change"
     caution = True
 
@@ -51,15 +48,3 @@ class ChangeForm(EntryForm):
             Spec("hours", "Hour meter h", "", [RangeValidator("hours")]),
             *self.common_specs(),
         ]
-
-    def build(self, v: dict[str, Any]) -> Entry:
-        return ElementChange(
-            filter=v["filter"],
-            reason=v["reason"],
-            condition=v["condition"],
-            batch=v["batch"],
-            hours=read_number(v["hours"]) if v["hours"] else None,
-            at=self.when(v["time"]),
-            by=v["by"],
-            note=v["note"],
-        )

@@ -2,15 +2,13 @@
 
 from __future__ import annotations
 
-from typing import Any
-
-from store.ledger.entries import Entry, Note
 from store.ledger.register import Unit, find
 from tui.forms.base import EntryForm
 from tui.widgets.field import Spec
 
 
 class NoteForm(EntryForm):
+    kind = "note"
     heading = "Note"
 
     def specs(self) -> list[Spec]:
@@ -33,6 +31,3 @@ class NoteForm(EntryForm):
         specs[-1].required = True  # the note itself
         specs[-1].hint = "what you saw or did"
         return specs
-
-    def build(self, v: dict[str, Any]) -> Entry:
-        return Note(unit=v["unit"] or None, at=self.when(v["time"]), by=v["by"], note=v["note"])

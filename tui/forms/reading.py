@@ -2,14 +2,11 @@
 
 from __future__ import annotations
 
-from typing import Any
-
-from store.base.units import parse_pressure_bar, parse_temperature_c, read_number
 from store.ledger.entries import Entry, Reading
 from store.ledger.journal import BYPASS_OPEN, BYPASS_STEPS, bypass_head
 from store.ledger.register import FilterPosition, find
 from store.sheets import last_temp_c, meter_estimate_h, reading_doubts
-from tui.forms.base import EntryForm, FieldError
+from tui.forms.base import EntryForm
 from tui.forms.validators import DpValidator, RangeValidator, TemperatureValidator
 from tui.widgets import fmt
 from tui.widgets.field import Spec
@@ -18,6 +15,7 @@ INDICATOR_CHOICES = [("clean", "clean"), ("dirty", "dirty"), ("in bypass", "bypa
 
 
 class ReadingForm(EntryForm):
+    kind = "reading"
     heading = "Reading: ΔP and temperature"
     clues = {**EntryForm.clues, "filter": "filter", "δp": "dp", "indicator": "indicator"}
 
@@ -79,22 +77,6 @@ class ReadingForm(EntryForm):
             ),
             *self.common_specs(),
         ]
-
-    def build(self, v: dict[str, Any]) -> Entry:
-        prefs = self.sb.prefs
-        if not v["dp"] and not v["indicator"]:
-            raise FieldError("give the ΔP, or the indicator's state", "dp")
-        return Reading(
-            filter=v["filter"],
-            dp_bar=parse_pressure_bar(v["dp"], prefs.pressure) if v["dp"] else None,
-            indicator=v["indicator"] or None,
-            temp_c=parse_temperature_c(v["temp"], prefs.temperature) if v["temp"] else None,
-            flow_lpm=read_number(v["flow"]) if v["flow"] else None,
-            hours=read_number(v["hours"]) if v["hours"] else None,
-            at=self.when(v["time"]),
-            by=v["by"],
-            note=v["note"],
-        )
 
     def question(self, entry: Entry) -> tuple[str, str] | None:
         if not isinstance(entry, Reading):

@@ -22,7 +22,8 @@ from store.base.units import parse_pressure_bar, parse_temperature_c, parse_volu
 from store.base.validate import FILTER_KINDS
 from store.ledger import register
 from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
-from tui.forms.base import FIELD_KEYS, fault_field, write_problem
+from tui.base.workers import write_behind
+from tui.forms.base import FIELD_KEYS, SAVE_KEYS, SavesAtKey, fault_field, write_problem
 from tui.forms.confirm import ConfirmScreen
 from tui.forms.validators import (
     CodeValidator,
@@ -99,11 +100,11 @@ HINTS = {
 }
 
 
-class RegisterForm(ModalScreen[Any]):
+class RegisterForm(SavesAtKey, ModalScreen[Any]):
     """Dismisses with the saved record (or None on Esc)."""
 
     BINDINGS = [
-        Binding("ctrl+s", "save", "Save", id="form-save"),
+        *SAVE_KEYS,
         Binding("escape", "cancel", "Cancel", id="form-cancel"),
         # Tab moves on at the moment it is typed, before the keys after it are routed: typed
         # fast ("4.1", Tab, "52"), or sent by a scanner, the next keys land in the next field.
@@ -221,28 +222,27 @@ class RegisterForm(ModalScreen[Any]):
         if rows:
             rows[0].control.focus()
 
-    def say(self, text: str) -> None:
+    def say(self, text: str, bad: bool = True) -> None:
         msg = self.query_one("#form-msg", Static)
         msg.update(text)
-        msg.add_class("-bad")
-
-    def on_input_submitted(self, event: Input.Submitted) -> None:
-        event.stop()
-        self.action_save()
+        msg.set_class(bad, "-bad")
 
     def on_button_pressed(self, event: Button.Pressed) -> None:
         event.stop()
         self.action_save() if event.button.id == "save" else self.action_cancel()
 
     def action_cancel(self) -> None:
+        if self.saving:  # a save under way cannot be called back: it lands, then the form goes
+            self.say("Saving… (it cannot be called back; the form closes once it is saved)")
+            return
         self.dismiss(None)
 
-    def parsed(self) -> dict[str, Any]:
+    def parsed(self, typed: dict[str, Any]) -> dict[str, Any]:
         """Field texts -> stored values (canonical units)."""
         prefs = self.sb.prefs
         out: dict[str, Any] = {}
         for row in self.query(FieldRow):
-            name, value = row.spec.name, row.value()
+            name, value = row.spec.name, typed[row.spec.name]
             if isinstance(value, bool):
                 out[name] = value
             elif value in (None, ""):
@@ -257,14 +257,17 @@ class RegisterForm(ModalScreen[Any]):
                 out[name] = register.parse_field(self.cls, name, value)
         return out
 
-    def action_save(self) -> None:
-        bad = [(row, p) for row in self.query(FieldRow) if (p := row.check_value(force=True))]
+    def save_now(self, typed: dict[str, Any]) -> None:
+        """Check and save the fields as they stood at the save key."""
+        self.saving = False
+        rows = list(self.query(FieldRow))
+        bad = [(r, p) for r in rows if (p := r.check_value(force=True, value=typed[r.spec.name]))]
         if bad:
             bad[0][0].control.focus()
             self.say("Not saved: check " + ", ".join(r.spec.label for r, _ in bad) + ".")
             return
         try:
-            values = self.parsed()
+            values = self.parsed(typed)
             if self.record is not None:
                 changes = {
                     k: v for k, v in values.items() if k != "tag" and getattr(self.record, k) != v
@@ -297,18 +300,27 @@ class RegisterForm(ModalScreen[Any]):
         return register.sizing_doubt(record)
 
     def write(self, wanted: dict[str, Any]) -> None:
-        by = self.sb.tech
-        try:
-            if self.record is None:
-                saved = register.add(self.sb.book, self.cls(**wanted), by=by)
-            else:
-                saved = register.update(self.sb.book, self.cls, self.record.tag, wanted, by=by)
-        except (BookError, sqlite3.Error, OSError) as exc:
-            self.refused(exc)
-            return
+        """Save in a thread (tui/base/workers.py write_behind); a second save meanwhile is
+        refused."""
+        by, cls, record = self.sb.tech, self.cls, self.record
+
+        def job(book: Any) -> Any:
+            if record is None:
+                return register.add(book, cls(**wanted), by=by)
+            return register.update(book, cls, record.tag, wanted, by=by)
+
+        self.saving = True
+        self.say("Saving…", bad=False)
+        write_behind(
+            self, self.sb.book.path, self.sb.session.clock, job, self.written, self.refused
+        )
+
+    def written(self, saved: Any) -> None:
+        self.saving = False
         self.dismiss(saved)
 
-    def refused(self, exc: Exception) -> None:
+    def refused(self, exc: BaseException) -> None:
+        self.saving = False
         problem = write_problem(exc)
         self.say("Not saved: " + problem)
         rows = {row.spec.name: row for row in self.query(FieldRow) if not row.spec.disabled}

@@ -2,10 +2,7 @@
 
 from __future__ import annotations
 
-from typing import Any
-
 from store.base.units import read_number
-from store.ledger.entries import Entry, Sample
 from store.ledger.register import Unit, find
 from tui.forms.base import EntryForm
 from tui.forms.validators import CodeValidator, RangeValidator
@@ -17,6 +14,7 @@ def _num(text: str) -> float | None:
 
 
 class SampleForm(EntryForm):
+    kind = "sample"
     heading = "Fluid sample result"
 
     def specs(self) -> list[Spec]:
@@ -36,16 +34,3 @@ class SampleForm(EntryForm):
             Spec("water", "Water ppm", "", [RangeValidator("water_ppm")]),
             *self.common_specs(),
         ]
-
-    def build(self, v: dict[str, Any]) -> Entry:
-        return Sample(
-            unit=v["unit"],
-            code=v["code"] or None,
-            c4_per_ml=_num(v["c4"]),
-            c6_per_ml=_num(v["c6"]),
-            c14_per_ml=_num(v["c14"]),
-            water_ppm=_num(v["water"]),
-            at=self.when(v["time"]),
-            by=v["by"],
-            note=v["note"],
-        )

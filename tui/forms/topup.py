@@ -2,12 +2,8 @@
 
 from __future__ import annotations
 
-from typing import Any
-
-from store.base.units import parse_volume_l, read_number
-from store.ledger.entries import Entry, TopUp
 from store.ledger.register import Fluid, Unit, find, list_all
-from tui.forms.base import EntryForm, FieldError
+from tui.forms.base import EntryForm
 from tui.forms.validators import RangeValidator, VolumeValidator
 from tui.widgets import fmt
 from tui.widgets.field import Spec
@@ -16,6 +12,7 @@ HOW = [("through a filter cart", "filtered"), ("unfiltered (from the drum)", "un
 
 
 class TopUpForm(EntryForm):
+    kind = "topup"
     heading = "Top-up"
 
     def specs(self) -> list[Spec]:
@@ -52,26 +49,3 @@ class TopUpForm(EntryForm):
             Spec("hours", "Hour meter h", "", [RangeValidator("hours")]),
             *self.common_specs(),
         ]
-
-    def build(self, v: dict[str, Any]) -> Entry:
-        filtered = None
-        if v["how"] == "filtered":
-            if not v["filtered"]:
-                raise FieldError("give the cart's rating in µm, or choose 'unfiltered'", "filtered")
-            filtered = read_number(v["filtered"])
-        elif v["filtered"]:  # a rating and 'unfiltered' cannot both be true: never drop one
-            raise FieldError(
-                "a cart rating with 'unfiltered': clear the rating, or choose 'through a "
-                "filter cart'",
-                "how",
-            )
-        return TopUp(
-            unit=v["unit"],
-            volume_l=parse_volume_l(v["volume"], self.sb.prefs.volume),
-            fluid=v["fluid"] or None,
-            filtered_um=filtered,
-            hours=read_number(v["hours"]) if v["hours"] else None,
-            at=self.when(v["time"]),
-            by=v["by"],
-            note=v["note"],
-        )

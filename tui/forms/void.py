@@ -36,6 +36,7 @@ class EntryIdValidator(Validator):
 
 
 class VoidForm(EntryForm):
+    kind = "void"
     heading = "Void an entry (it stays in the book, marked void)"
 
     def specs(self) -> list[Spec]:
@@ -111,4 +112,4 @@ class VoidForm(EntryForm):
 
     def build(self, v: dict[str, Any]) -> Entry:
         voids = find_entry(self.sb.book, v["entry"]).id  # the whole id, not what was typed
-        return Void(voids=voids, note=v["reason"], at=self.when(v["time"]), by=v["by"])
+        return super().build({**v, "entry": voids})

@@ -11,6 +11,7 @@ from textual.screen import ModalScreen
 from textual.widgets import Input, Static
 
 from store.base.errors import BookError
+from tui.widgets.field import FieldInput
 
 
 class AskScreen(ModalScreen[str | None]):
@@ -34,7 +35,7 @@ class AskScreen(ModalScreen[str | None]):
     def compose(self) -> ComposeResult:
         with Vertical(id="ask-box", classes="prompt-box"):
             yield Static(self.question, classes="form-title", markup=False)
-            yield Input(self.default, compact=True, id="ask-input")
+            yield FieldInput(self.default, compact=True, id="ask-input")
             yield Static(self.help_text, id="ask-msg", classes="form-msg", markup=False)
 
     def on_mount(self) -> None:

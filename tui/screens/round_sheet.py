@@ -11,6 +11,7 @@ from __future__ import annotations
 import sqlite3
 
 from rich.text import Text
+from textual.actions import SkipAction
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal
@@ -18,19 +19,21 @@ from textual.widgets import DataTable, Header, Input, Static
 
 from store import record
 from store.base.errors import BookError
-from store.base.units import parse_pressure_bar, parse_temperature_c
+from store.ledger import entry_input
 from store.ledger.entries import Reading
 from store.ledger.journal import BYPASS_OPEN, BYPASS_STEPS, bypass_head
 from store.ledger.register import FilterPosition, find
 from store.rounds import SKIP_REASONS, Round, Stop, plan_round, skip_note
 from tui.base.keys import bind
-from tui.base.workers import guarded
-from tui.forms.base import write_problem
+from tui.base.workers import guarded, write_behind
+from tui.forms.base import FIELD_KEYS, write_problem
 from tui.forms.confirm import ConfirmScreen
 from tui.screens.ask import AskScreen
 from tui.screens.common import BookScreen, Target
 from tui.widgets import fmt
 from tui.widgets.banner import DemoBanner
+from tui.widgets.field import FieldInput
+from tui.widgets.inorder import read_at_key
 from tui.widgets.keystrip import KeyStrip
 from tui.widgets.rowtable import RowTable
 
@@ -42,7 +45,6 @@ COLUMNS = [
     ("Why", "why"),
     ("Read", "read"),
 ]
-INDICATOR_WORDS = {"clean": "clean", "dirty": "dirty", "bypass": "bypass", "in bypass": "bypass"}
 
 
 class RoundScreen(BookScreen):
@@ -52,15 +54,22 @@ class RoundScreen(BookScreen):
         bind("ctrl+o", "skip", "round-skip"),
         bind("ctrl+n", "following", "round-next"),
         bind("f5", "recompute", "recompute"),
-        Binding("up", "move(-1)", "up", show=False),
-        Binding("down", "move(1)", "down", show=False),
+        # Seen the moment they arrive, in the order typed (tui/widgets/inorder.py): the stop
+        # and the values a save takes are the ones shown at its key.
+        Binding("up", "move(-1)", "up", show=False, priority=True),
+        Binding("down", "move(1)", "down", show=False, priority=True),
+        Binding("enter", "save", show=False, priority=True),
+        *FIELD_KEYS,
     ]
+    FIELDS = ("value", "temp", "hours")
 
     def __init__(self) -> None:
         super().__init__(id="round")
         self.plan: Round | None = None
         self.done: dict[str, str] = {}  # upper-case tag -> what was saved (or "skipped: ...")
         self.following = False
+        self.saving = False  # a save is on its way: Enter meanwhile is not a second one
+        self.enter_refused = False  # ... and one was typed: said once the save is done
 
     def compose(self) -> ComposeResult:
         yield Header(icon="≋")
@@ -69,9 +78,9 @@ class RoundScreen(BookScreen):
         yield RowTable(id="round-stops", zebra_stripes=True, flexible="why")
         yield Static("", id="round-what", markup=False)
         with Horizontal(id="round-entry"):
-            yield Input(id="round-value", compact=True)
-            yield Input(id="round-temp", compact=True)
-            yield Input(id="round-hours", compact=True)
+            yield FieldInput(id="round-value", compact=True)
+            yield FieldInput(id="round-temp", compact=True)
+            yield FieldInput(id="round-hours", compact=True)
         yield Static("", id="round-msg", classes="form-msg", markup=False)
         yield KeyStrip()
 
@@ -188,84 +197,118 @@ class RoundScreen(BookScreen):
         msg.update(text)
         msg.set_class(bad, "-bad")
 
-    def on_input_submitted(self, event: Input.Submitted) -> None:
-        event.stop()
-        self.save_current()
+    def action_save(self) -> None:
+        """Enter in a value field: the stop and the values as they stood at the key. Each
+        field is emptied as it is read, so what is typed after the Enter is the next stop's;
+        a refused value is put back."""
+        focused = self.focused
+        if not isinstance(focused, Input) or focused.id not in {f"round-{n}" for n in self.FIELDS}:
+            raise SkipAction()
+        s = self.stop()
+        if s is None:
+            return
+        if self.saving:
+            self.enter_refused = True
+            self.say("Saving… this Enter was not taken: press Enter again once saved.", bad=True)
+            return
+        self.saving = True
+        fields = {self.query_one(f"#round-{n}", Input): n for n in self.FIELDS}
 
-    def reading_of(self, s: Stop) -> Reading:
-        """The reading typed in for a stop; BookError with a plain line when it cannot be."""
-        prefs = self.sb.prefs
-        text = self.query_one("#round-value", Input).value.strip()
-        temp = self.query_one("#round-temp", Input).value.strip()
-        hours = self.query_one("#round-hours", Input).value.strip()
+        def take(field: Input) -> str:
+            text = field.value.strip()
+            field.value = ""
+            return text
+
+        def read(values: dict) -> None:
+            if self.is_attached:
+                self.save_typed(s, {fields[f]: v for f, v in values.items()})
+
+        read_at_key(fields, take, read)
+
+    def put_back(self, typed: dict[str, str]) -> None:
+        """A refused reading's text, back where it was typed (unless typed over since)."""
+        for name, text in typed.items():
+            field = self.query_one(f"#round-{name}", Input)
+            if not field.value:
+                field.value = text
+
+    def refuse(self, typed: dict[str, str], problem: str) -> None:
+        self.saving = False
+        self.put_back(typed)
+        self.say("Not saved: " + problem, bad=True)
+
+    def reading_of(self, s: Stop, typed: dict[str, str]) -> Reading:
+        """The reading typed in for a stop, by the one entry builder
+        (store/ledger/entry_input.py); BookError with a plain line when it cannot be."""
+        text = typed["value"]
         if not text:
             raise BookError(
                 "type the ΔP" if s.gauge else "type the indicator: clean, dirty or bypass"
             )
-        dp = indicator = None
-        if s.gauge:
-            dp = parse_pressure_bar(text, prefs.pressure)
-        elif text.lower() in INDICATOR_WORDS:
-            indicator = INDICATOR_WORDS[text.lower()]
-        else:
-            raise BookError("the indicator reads clean, dirty or bypass")
-        try:
-            hours_h = float(hours.replace(",", ".")) if hours else None
-        except ValueError:
-            raise BookError(f"'{hours[:20]}' is not an hour-meter reading") from None
-        return Reading(
-            filter=s.filter,
-            dp_bar=dp,
-            indicator=indicator,
-            temp_c=parse_temperature_c(temp, prefs.temperature) if temp else None,
-            hours=hours_h,
-            by=self.sb.tech,
-        )
+        fields = {
+            "filter": s.filter,
+            "dp" if s.gauge else "indicator": text,
+            "temp": typed["temp"],
+            "hours": typed["hours"],
+        }
+        entry = entry_input.build("reading", fields, self.sb.prefs, by=self.sb.tech)
+        assert isinstance(entry, Reading)
+        return entry
 
-    def save_current(self) -> None:
-        s = self.stop()
-        if s is None:
-            return
+    def save_typed(self, s: Stop, typed: dict[str, str]) -> None:
         try:
-            entry = self.reading_of(s)
+            entry = self.reading_of(s, typed)
             position = find(self.sb.book, FilterPosition, s.filter)
             head = bypass_head(
                 position, entry.dp_bar, entry.indicator, lambda bar: fmt.pressure(bar, self.sb.prefs)
             ) if position else None  # fmt: skip
         except (BookError, sqlite3.Error, OSError) as exc:
-            self.say("Not saved: " + write_problem(exc), bad=True)
+            self.refuse(typed, write_problem(exc))
             return
         if head is None:
-            self.write(s, entry)
+            self.write(s, entry, typed)
             return
         caution = f"{head}: {BYPASS_OPEN.upper()}.\n" + "\n".join(f"• {x}" for x in BYPASS_STEPS)
 
         def answered(yes: bool | None) -> None:
             if yes:
-                self.write(s, entry)
+                self.write(s, entry, typed)
             else:
-                self.say("Not saved: put the value right, or Enter again to confirm.", bad=True)
+                self.refuse(typed, "put the value right, or Enter again to confirm.")
 
         self.app.push_screen(ConfirmScreen(f"Save this reading on {s.filter}?", caution), answered)
 
-    def write(self, s: Stop, entry: Reading) -> None:
-        try:
-            saved = record.log(self.sb.book, entry)
-        except (BookError, sqlite3.Error, OSError) as exc:
-            self.say("Not saved: " + write_problem(exc), bad=True)
-            return
+    def write(self, s: Stop, entry: Reading, typed: dict[str, str]) -> None:
+        """Save in a thread (tui/base/workers.py write_behind); Enter meanwhile is refused."""
+        self.saving = True
+        self.say(f"Saving {s.filter}…")
+        write_behind(
+            self,
+            self.sb.book.path,
+            self.sb.session.clock,
+            lambda book: record.log(book, entry),
+            lambda saved: self.written(s, saved),
+            lambda exc: self.refuse(typed, write_problem(exc)),
+        )
+
+    def written(self, s: Stop, saved: Reading) -> None:
+        self.saving = False
         self.sb.book_changed()
         prefs = self.sb.prefs
         shown = (
             fmt.pressure(saved.dp_bar, prefs) if saved.dp_bar is not None else saved.indicator
         ) or ""
         self.done[s.filter.upper()] = f"✓ {shown}"
-        self.say(f"Saved {s.filter}: {shown}.")
-        self.advance()
+        self.say(f"Saved {s.filter}: {shown}." + (
+            " An Enter typed while saving was not taken: check the value, press Enter again."
+            if self.enter_refused else ""), bad=self.enter_refused)  # fmt: skip
+        self.enter_refused = False
+        self.advance(clear=False)
 
-    def advance(self) -> None:
-        for n in ("value", "temp", "hours"):
-            self.query_one(f"#round-{n}", Input).value = ""
+    def advance(self, clear: bool = True) -> None:
+        if clear:  # a save empties the fields at its key, a skip here
+            for n in self.FIELDS:
+                self.query_one(f"#round-{n}", Input).value = ""
         index = self.query_one(RowTable).cursor_row
         self.show_rows()
         nxt = self.next_open(index + 1 if self.plan and index + 1 < len(self.plan.stops) else 0)

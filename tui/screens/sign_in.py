@@ -16,6 +16,7 @@ from store.base.errors import BookError
 from store.ledger import register
 from store.ledger.register import Technician
 from tui.widgets import fmt
+from tui.widgets.field import FieldInput
 
 
 class SignInScreen(ModalScreen[str | None]):
@@ -36,7 +37,7 @@ class SignInScreen(ModalScreen[str | None]):
             )
             yield OptionList(id="techs")
             yield Static("New here? Type initials and name, e.g. JK J. K., Enter:", markup=False)
-            yield Input(placeholder="initials name", compact=True, id="new-tech")
+            yield FieldInput(placeholder="initials name", compact=True, id="new-tech")
             yield Static("", id="sign-msg", classes="form-msg", markup=False)
 
     def on_mount(self) -> None:

@@ -12,6 +12,7 @@ from textual.widgets.option_list import Option
 
 from store.sheets import TagHit, match_tags
 from tui.widgets import fmt
+from tui.widgets.field import FieldInput
 
 PICK_HINT = "↓ ↑ to pick one, then Enter"
 
@@ -36,7 +37,7 @@ class TagPrompt(ModalScreen[TagHit | None]):
     def compose(self) -> ComposeResult:
         with Vertical(id="tag-box", classes="prompt-box"):
             yield Static("Tag: type or scan, then Enter", classes="form-title", markup=False)
-            yield Input(placeholder=self.example(), compact=True, id="tag-input")
+            yield FieldInput(placeholder=self.example(), compact=True, id="tag-input")
             yield OptionList(id="tag-list")
             yield Static("", id="tag-msg", classes="form-msg", markup=False)
 

@@ -11,8 +11,24 @@ from textual.validation import Validator
 from textual.widget import Widget
 from textual.widgets import Checkbox, Input, Label, Select, Static
 
+from tui.widgets.inorder import InOrderKeys
 
-class TickBox(Checkbox):
+LIST_OPEN = "close the list first (Enter picks, Esc closes)"
+NOW = object()  # check_value: the field as it is now
+OPEN_LIST = object()  # a choice read while its list was open: not a value yet
+
+
+class FieldInput(InOrderKeys, Input):
+    """A text field whose editing keys (Backspace, Delete, arrows) are applied in the order
+    they were typed, with the letters around them (tui/widgets/inorder.py)."""
+
+
+class FieldSelect(InOrderKeys, Select):
+    """A choice whose keys (Enter, space, the arrows that open its list) are taken in the
+    order typed: a save key after them sees the list open."""
+
+
+class TickBox(InOrderKeys, Checkbox):
     """A tick box whose mark is a character, not only a colour: ✓ ticked, blank not.
     With `words`, the label says it too ("yes" / "no")."""
 
@@ -67,7 +83,7 @@ class FieldRow(Horizontal):
         yield Label(s.label + (" *" if s.required else ""), id=f"label-{s.name}")
         control: Widget
         if s.options is not None:
-            control = Select(
+            control = FieldSelect(
                 [(label, value) for label, value in s.options],
                 value=s.value if s.value in [v for _, v in s.options] else Select.NULL,
                 allow_blank=not s.required or s.value not in [v for _, v in s.options],
@@ -79,7 +95,7 @@ class FieldRow(Horizontal):
         elif s.check is not None:
             control = TickBox(value=s.check, words=("yes", "no"), compact=True, id=f"f-{s.name}")
         else:
-            control = Input(
+            control = FieldInput(
                 s.value,
                 placeholder=s.placeholder,
                 validators=s.validators,
@@ -97,28 +113,26 @@ class FieldRow(Horizontal):
         return self.query_one(f"#f-{self.spec.name}")
 
     def value(self) -> str | bool | None:
-        c = self.control
-        if isinstance(c, Input):
-            return c.value.strip()
-        if isinstance(c, Checkbox):
-            return c.value
-        if isinstance(c, Select):
-            return None if c.value is Select.NULL else str(c.value)
-        return None
+        return value_of(self.control)
 
-    def check_value(self, force: bool = False) -> str | None:
-        """Validate; show the message; return it (None when the field is fine)."""
+    def check_value(self, force: bool = False, value: object = NOW) -> str | None:
+        """Validate the field as it is now, or `value` as read at a save key (see
+        `value_of`); show the message; return it (None when the field is fine)."""
         c = self.control
+        if value is NOW:
+            value = value_of(c)
         problem: str | None = None
-        if isinstance(c, Input):
-            text = c.value.strip()
+        if value is OPEN_LIST:
+            problem = LIST_OPEN
+        elif isinstance(c, Input):
+            text = str(value or "")
             if not text:
                 problem = "required" if self.spec.required else None
             else:
-                result = c.validate(c.value)
+                result = c.validate(text)
                 if result is not None and not result.is_valid:
                     problem = "; ".join(result.failure_descriptions) or "not valid"
-        elif isinstance(c, Select) and self.spec.required and c.value is Select.NULL:
+        elif isinstance(c, Select) and self.spec.required and value is None:
             problem = "choose one"
         if force or self.shown or problem is None:
             self.show(problem)
@@ -143,3 +157,17 @@ class FieldRow(Horizontal):
     def on_select_changed(self, event: Select.Changed) -> None:
         if self.shown:  # a '✗ choose one' (or a refusal) goes once a choice is made
             self.check_value()
+
+
+def value_of(control: Widget) -> str | bool | object | None:
+    """What a field holds: an Input's text (stripped), a tick box's state, a choice's value
+    (None when none; OPEN_LIST while its list is open, a pick on its way)."""
+    if isinstance(control, Input):
+        return control.value.strip()
+    if isinstance(control, Checkbox):
+        return control.value
+    if isinstance(control, Select):
+        if control.expanded:
+            return OPEN_LIST
+        return None if control.value is Select.NULL else str(control.value)
+    return None
