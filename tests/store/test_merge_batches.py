@@ -9,6 +9,8 @@ import sqlite3
 import uuid
 from pathlib import Path
 
+import pytest
+
 from store import record
 from store.db.book import open_book
 from store.exchange import merge as merging
@@ -72,12 +74,33 @@ def test_entries_land_in_batches_with_voids_between(tmp_path, monkeypatch):
     assert _entry_rows(a) == _entry_rows(b)  # every entry, every column
 
 
-def test_a_row_refused_in_a_later_batch_is_held_back_and_the_rest_land(tmp_path, monkeypatch):
+def _twentieth_written(rows: set[tuple]) -> str:
+    """The 20th entry the merge writes (in its third batch of 7)."""
+    return sorted(rows, key=lambda r: (r[3] == "void", r[1], r[2], r[0]))[19][0]
+
+
+def _voided_by_a_voided_void(b: Path) -> str:
+    """The entry whose void is itself voided: holding it back must hold back both voids."""
+    conn = sqlite3.connect(b)
+    try:
+        (entry,) = conn.execute(
+            "SELECT v1.voids FROM entries v2 JOIN entries v1 ON v2.voids = v1.id"
+            " WHERE v1.kind = 'void'"
+        ).fetchone()
+        return entry
+    finally:
+        conn.close()
+
+
+@pytest.mark.parametrize("pick", ["twentieth", "voided by a voided void"])
+def test_a_row_refused_in_a_later_batch_is_held_back_and_the_rest_land(tmp_path, monkeypatch, pick):
     # issue 20 item 6: a row the file refuses is held back with its reason, never the merge
     monkeypatch.setattr(merging, "BATCH_ROWS", 7)
     a, b = _books(tmp_path)
-    # The 20th entry the merge writes (the third batch) is refused by the file itself.
-    refused = sorted(_entry_rows(b), key=lambda r: (r[3] == "void", r[1], r[2], r[0]))[19][0]
+    if pick == "twentieth":
+        refused = _twentieth_written(_entry_rows(b))
+    else:
+        refused = _voided_by_a_voided_void(b)
     with open_book(a) as book:
         book.conn.execute(
             "CREATE TEMP TRIGGER refuse_one BEFORE INSERT ON main.entries "
@@ -85,8 +108,14 @@ def test_a_row_refused_in_a_later_batch_is_held_back_and_the_rest_land(tmp_path,
         )
         report = merging.merge(book, b)
         assert not book.conn.in_transaction
-    # a void of the refused entry cannot land either (what it voids did not come in)
-    its_voids = {r[0] for r in _entry_rows(b) if refused in r} - {refused}
+    # a void of the refused entry cannot land either (what it voids did not come in), nor a
+    # void of such a void: the chain is followed to its end (the refused row is picked by
+    # random ids; when it is the entry whose void is itself voided, the chain is two long)
+    rows = _entry_rows(b)
+    held = {refused}
+    while grown := {r[0] for r in rows if held & set(r[1:])} - held:
+        held |= grown
+    its_voids = held - {refused}
     assert report.entries_added == 40 + 8 + 1 - 1 - len(its_voids)
     assert any(refused[:8] in c and "refused here" in c for c in report.conflicts)
     expected = {r[0] for r in _entry_rows(b)} - {refused} - its_voids
