@@ -142,12 +142,14 @@ def register(book: Book) -> Register:
     unit_rows = {r[utag].upper(): r for r in units}
     cols, rows = _table(book, "SELECT * FROM filters ORDER BY tag")
     tag_i, unit_i, element_i = cols.index("tag"), cols.index("unit"), cols.index("element")
+    around = {  # what a position reads beyond its own row, once per unit
+        tag: _digest((u, fluid_rows.get((u[ufluid] or "").upper()), shifts))
+        for tag, u in unit_rows.items()
+    }
     digests, groups, by_unit = {}, {}, {}
     for r in rows:
         tag = r[tag_i].upper()
-        unit = unit_rows.get((r[unit_i] or "").upper())
-        fluid = fluid_rows.get((unit[ufluid] or "").upper()) if unit else None
-        digests[tag] = _digest((r, unit, fluid, shifts))
+        digests[tag] = _digest((r, around.get((r[unit_i] or "").upper())))
         if r[element_i]:
             groups.setdefault(r[element_i].lower(), []).append(tag)
         by_unit.setdefault((r[unit_i] or "").upper(), []).append(r)
