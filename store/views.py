@@ -15,6 +15,7 @@ from store.derived.statuscache import (
     kept_filters,
     kept_units,
     live_status,
+    register,
     stale_filters,
     watch_filters,
 )
@@ -38,9 +39,10 @@ def watch(book: Book, as_of: datetime | None = None, unit: str | None = None) ->
     for position in positions:
         by_unit.setdefault(position.unit.upper(), []).append(position)
     mine = [q for q in positions if unit is None or q.unit == unit]
-    filters = watch_filters(book, mine, now)
+    reg = register(book)  # the keys' register part, read once for the list
+    filters = watch_filters(book, mine, now, reg)
     units = cached_units(
-        book, [u for u in all_units if unit is None or u.tag == unit], by_unit, now
+        book, [u for u in all_units if unit is None or u.tag == unit], by_unit, now, reg
     )
     return status.watch_list(now, filters, status.breathers_at(book, now, unit), units)
 
@@ -52,8 +54,10 @@ def _watch_as_of(book: Book, as_of: datetime, unit: str | None) -> Watch:
     the computation from the entries alone."""
     p = status.plant(book, unit)
     positions = list_all(book, FilterPosition)
-    kept_f = kept_filters(book, [c.position.tag.upper() for c in p.contexts], as_of, audit=True)
-    kept_u = kept_units(book, list(p.units), p.positions_by_unit, as_of)
+    reg = register(book)
+    tags = [c.position.tag.upper() for c in p.contexts]
+    kept_f = kept_filters(book, tags, as_of, audit=True, reg=reg)
+    kept_u = kept_units(book, list(p.units), p.positions_by_unit, as_of, reg)
     rest = [c for c in p.contexts if c.position.tag.upper() not in kept_f]
     computed = iter(())
     if rest:

@@ -78,7 +78,9 @@ from store.physics.normalise import ColdStart
 
 # Bump when the rules that make a status change while what a row holds stays the same (a
 # change of its fields or of the notes' words changes FORMAT by itself).
-RULES = 7  # 7: one key per row, notes as codes, `pooled` only where like lives were used
+# Also when how a field is written changes while the fields stay.
+RULES = 8  # 7: one key per row, notes as codes, `pooled` only where like lives were used;
+# 8: the sparkline packed
 UNIT_RULES = 5  # 5: one key per row
 _utc = parse_stamp
 
@@ -115,12 +117,13 @@ class Register:
     digest (upper-case tags) and each position's like positions."""
 
     filters: dict[str, str]
-    like: dict[str, tuple[str, ...]]
+    like: dict[str, tuple[str, ...]]  # the positions taking its element, itself among them
+    like_digests: dict[str, str]
     units: dict[str, str]
     unit_limits: dict[str, float]  # each unit's temperature limit (a hot reading is an input)
 
     def filter_key(self, tag: str, pools: bool) -> str:
-        like = _digest(self.like.get(tag, ())) if pools else "own"
+        like = self.like_digests.get(tag, "none") if pools else "own"
         return f"{FORMAT}.{self.filters.get(tag, '?')}.{like}"
 
     def unit_key(self, tag: str) -> str:
@@ -153,11 +156,20 @@ def register(book: Book) -> Register:
         if r[element_i]:
             groups.setdefault(r[element_i].lower(), []).append(tag)
         by_unit.setdefault((r[unit_i] or "").upper(), []).append(r)
-    like = {tag: tuple(t for t in group if t != tag) for group in groups.values() for tag in group}
+    like: dict[str, tuple[str, ...]] = {}
+    like_digests: dict[str, str] = {}
+    for group in groups.values():
+        shared, digest = tuple(group), _digest(group)
+        for tag in group:
+            like[tag], like_digests[tag] = shared, digest
     return Register(
         digests,
         like,
-        {tag: _digest((u, by_unit.get(tag, []))) for tag, u in unit_rows.items()},
+        like_digests,
+        {
+            tag: _digest((u, [digests[r[tag_i].upper()] for r in by_unit.get(tag, [])]))
+            for tag, u in unit_rows.items()
+        },
         {tag: u[ulimit] for tag, u in unit_rows.items()},
     )
 
@@ -274,9 +286,13 @@ class Check:
     def __init__(self, book: Book, rows: dict[str, Kept], reg: Register | None = None) -> None:
         self.reg = reg or register(book)
         self.rows = rows
+        self._at: datetime | None = None
+        self._stamp = ""
         oldest = min((r.seen for r in rows.values()), default=0)
-        newest = max_rowid(book)
-        self.moved = _moved_since(book, oldest) if oldest < newest else _Moved({}, {}, {}, {}, {})
+        self.newest = max_rowid(book)
+        self.moved = (
+            _moved_since(book, oldest) if oldest < self.newest else _Moved({}, {}, {}, {}, {})
+        )
 
     def holds(self, tag: str, at: datetime, audit: bool = False) -> Kept | None:
         """The row of `tag` (upper case) if its key matches and it holds at `at` (an audit:
@@ -284,12 +300,16 @@ class Check:
         row = self.rows.get(tag)
         if row is None or row.seen < 0 or row.key != self.reg.filter_key(tag, row.pools):
             return None
-        stamp = format_utc(at)
+        if self._at != at:
+            self._at, self._stamp = at, format_utc(at)
+        stamp = self._stamp
         if stamp < row.computed_utc:  # the clock set back: the row may hold later readings
             return None
         if audit and row.newest_utc is not None and row.newest_utc > stamp:
             return None
-        if self.moved.filter_moved(tag, row.seen, row.pools, self.reg.like.get(tag, ())):
+        if row.seen < self.newest and self.moved.filter_moved(
+            tag, row.seen, row.pools, self.reg.like.get(tag, ())
+        ):
             return None
         return row
 
@@ -495,14 +515,14 @@ def stale_filters(book: Book) -> list[str]:
 
 
 def watch_filters(
-    book: Book, positions: Sequence[FilterPosition], now: datetime
+    book: Book, positions: Sequence[FilterPosition], now: datetime, reg: Register | None = None
 ) -> list[FilterStatus]:
     """Each position's status at `now`: its kept row where that holds (read as it is, no
     context built), else computed in memory (nothing written). Only when one must be computed
     are the plant's contexts built (they resolve each fluid's curve, which may load scipy),
     so the list read from rows that hold loads none of the fitting maths
     (tests/cli/test_lean_path.py)."""
-    kept = kept_filters(book, [p.tag.upper() for p in positions], now)
+    kept = kept_filters(book, [p.tag.upper() for p in positions], now, reg=reg)
     result: list[FilterStatus] = []
     ctxs: dict[str, FilterContext] | None = None
     for position in positions:
@@ -516,12 +536,17 @@ def watch_filters(
 
 
 def kept_filters(
-    book: Book, tags: Iterable[str], now: datetime, audit: bool = False
+    book: Book,
+    tags: Iterable[str],
+    now: datetime,
+    audit: bool = False,
+    reg: Register | None = None,
 ) -> dict[str, FilterStatus]:
     """The kept status at `now` of each of `tags` (upper case) whose row holds then (its key
-    matches; `audit`: as the entries stood at `now`), by tag; the rest are left out."""
+    matches; `audit`: as the entries stood at `now`), by tag; the rest are left out. `reg`:
+    the register as read for the same list."""
     rows = _kept_rows(book)
-    check = Check(book, rows)
+    check = Check(book, rows, reg)
     out = {}
     for tag in tags:
         row = check.holds(tag, now, audit)
@@ -535,10 +560,11 @@ def kept_units(
     units: Sequence[Unit],
     filters_by_unit: dict[str, list[FilterPosition]],
     now: datetime,
+    reg: Register | None = None,
 ) -> dict[str, UnitStatus]:
     """The status at `now` of each unit whose kept row holds then (its key matches, kept at
     or before `now`, no input dated in between), by upper-case tag; the rest are left out."""
-    reg = register(book)
+    reg = reg or register(book)
     seen = _seen(book, "unit")
     rows = {
         r[0].upper(): r[1:]
@@ -560,8 +586,10 @@ def kept_units(
         if stamp < computed or (until is not None and stamp >= until):
             continue
         row_data = json.loads(data)
-        if moved is not None and moved.unit_moved(
-            tag, seen[tag], reg.unit_limits.get(tag), row_data["first_at"]
+        if (
+            seen[tag] < newest
+            and moved is not None
+            and moved.unit_moved(tag, seen[tag], reg.unit_limits.get(tag), row_data["first_at"])
         ):
             continue
         clock = UnitClock.from_row(row_data, unit.tag)
@@ -635,10 +663,11 @@ def cached_units(
     units: Sequence[Unit],
     filters_by_unit: dict[str, list[FilterPosition]],
     now: datetime,
+    reg: Register | None = None,
 ) -> list[UnitStatus]:
     """Every unit's status at `now`: from its kept row where that holds, else computed in
     memory (nothing is written)."""
-    kept = kept_units(book, units, filters_by_unit, now)
+    kept = kept_units(book, units, filters_by_unit, now, reg)
     result = []
     for unit in units:
         status = kept.get(unit.tag.upper())

@@ -213,8 +213,9 @@ def pooling(book) -> tuple[str, str]:
     """A filter whose kept row leans on like positions' lives, and one of those positions."""
     reg = statuscache.register(book)
     for tag, key in book.conn.execute("SELECT filter, key FROM status_cache ORDER BY filter"):
-        if not key.endswith(".own") and reg.like.get(tag.upper()):
-            return tag.upper(), reg.like[tag.upper()][0]
+        others = [t for t in reg.like.get(tag.upper(), ()) if t != tag.upper()]
+        if not key.endswith(".own") and others:
+            return tag.upper(), others[0]
     raise AssertionError("the demo has no filter pooling like positions' lives")
 
 
