@@ -57,14 +57,13 @@ from store.derived.elementcache import (
 from store.health.conditions import FilterContext, context, contexts
 from store.health.elements import split_summaries
 from store.health.lives import like_lives, like_lives_from, live_changes
+from store.health.notes import NOTE_TEXT, Note
 from store.health.status import (
-    NOTE_TEXT,
     ROW_FIELDS,
     Clock,
     Due,
     FilterStatus,
     LifeSummary,
-    Note,
     UnitClock,
     UnitStatus,
     status_from,

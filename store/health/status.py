@@ -21,11 +21,10 @@ from datetime import datetime, timedelta
 from functools import partial
 from typing import TYPE_CHECKING, Any, NamedTuple
 
-from dateutil import tz
-
 from store.base.errors import BookError
-from store.base.timeutil import format_utc, iso_local
+from store.base.timeutil import format_utc
 from store.db.book import Book
+from store.health import rules
 from store.health import urgency as ranking
 from store.health.conditions import FilterContext, contexts_from, shortest_read_h
 from store.health.elements import (
@@ -49,6 +48,7 @@ from store.health.fluidcare import (
     topup_filtration_problem,
 )
 from store.health.lives import like_lives, like_lives_all, live_changes
+from store.health.notes import NOTE_TEXT, Note
 from store.ledger.entries import Entry, TopUp
 from store.ledger.journal import (
     breather_swaps,
@@ -227,63 +227,6 @@ class Clock:
 
 
 CLOCK_FLAGS = ("reading-overdue", "hot")  # the flags `at_time` sets (always the last ones)
-
-# The notes of a filter's status, by code: a status (and a kept row) holds each note as its
-# code and parameters (`Note`), and the words are made from these when it is read, so a kept
-# row never holds English to patch. Rewording one changes the kept rows' format
-# (store/derived/statuscache.py hashes this table): old rows are computed again.
-NOTE_TEXT = {
-    "no-limits": "set the change limit and bypass ΔP to get a due date",
-    "no-forecast": "no forecast: {error}",
-    "forecast": "{text}",  # the forecast's own sentence (store/forecast/trend.py) ...
-    "check-now": (  # ... followed by this once the element is past its likely age
-        " The limit was probably reached after the last reading (at {at_h:.0f} h): read the gauge."
-    ),
-    "fast-loading": (
-        "loading about {ratio:.1f}× the pace of the last {n} elements: something "
-        "changed (dirt getting in, a wrong or faulty element, wear upstream): take a fluid "
-        "sample, check the breather and recent top-ups"
-    ),
-    "service-life": (
-        "planned from earlier element lives: 10 % reach the limit by {b10_h:.0f} h of service"
-    ),
-    "gauge-at-bypass": "the gauge read at or over the bypass setting: unfiltered oil passed",
-    "dp-drop": "{reason}; {advice}",  # the words of store/forecast/anomaly.py's finding
-    "step-up": "{reason}; {advice}",
-    "no-cold-start": "cold start not computed: {error}",
-    "cold-start-bypass": (
-        "a start at {start_c:g} °C would give {dp_bar:.2f} bar and open the bypass "
-        "(below {below_c:.0f} °C)"
-    ),
-    "new-element-high": (
-        "a new element already at {percent:.0f} % of its change limit after "
-        "{age_h:.0f} h: check it is the right element, seated and undamaged, that the clean "
-        "ΔP setting is right, and where the dirt comes from (take a fluid sample)"
-    ),
-    "hot": "fluid at {temp_c:.0f} °C, over the unit's {limit_c:g} °C limit",
-}
-
-
-@dataclass(frozen=True)
-class Note:
-    """One note of a filter's status: a code of NOTE_TEXT and what fills its blanks. A
-    "forecast" note with `at_h` gets the check-now words when the status is check-now."""
-
-    code: str
-    params: dict[str, Any] = field(default_factory=dict)
-
-    def text(self, state: str) -> str:
-        words = NOTE_TEXT[self.code].format(**self.params)
-        if self.code == "forecast" and state == "check-now" and "at_h" in self.params:
-            words += NOTE_TEXT["check-now"].format(**self.params)
-        return words
-
-    def to_row(self) -> list[Any]:
-        return [self.code, self.params] if self.params else [self.code]
-
-    @classmethod
-    def from_row(cls, row: list[Any]) -> Note:
-        return cls(row[0], row[1] if len(row) > 1 else {})
 
 
 def at_time(status: FilterStatus, clock: Clock, now: datetime) -> FilterStatus:
@@ -703,57 +646,34 @@ def status_from(
 
     dp_ref = numeric[-1].dp_ref_bar if numeric else None
     percent = 100 * dp_ref / pos.limit_bar if dp_ref is not None and pos.limit_bar else None
-    if dp_ref is not None and pos.bypass_bar and dp_ref >= pos.bypass_bar:
-        flags.append("at-bypass")
-    elif dp_ref is not None and pos.limit_bar and dp_ref >= pos.limit_bar:
-        flags.append("over-limit")
-    if (
-        last
-        and last.dp_bar is not None
-        and pos.bypass_bar
-        and last.dp_bar >= pos.bypass_bar
-        and "at-bypass" not in flags
-    ):
-        flags.append("at-bypass")
-        notes.append(Note("gauge-at-bypass"))
-    if last and last.indicator == "bypass":
-        flags.append("indicator-bypass")
-    elif last and last.indicator == "dirty":
-        flags.append("indicator-dirty")
-    # In age order: a late entry or an hour meter read out of turn must not stop a save; at
-    # one age, in logging order (the newest last, whatever its value).
-    series = anomaly.age_ordered([(p.age_h, p.dp_ref_bar) for p in numeric])
-    drop = anomaly.drop_without_change(series)
-    if drop is not None:
-        flags.append("dp-drop")
-        notes.append(Note("dp-drop", {"reason": drop.reason, "advice": drop.advice}))
-    step = anomaly.step_up(series)
-    if step is not None:
-        flags.append("step-up")
-        notes.append(Note("step-up", {"reason": step.reason, "advice": step.advice}))
-    cold = None
+    cold, cold_error = None, None
     if dp_ref is not None and pos.bypass_bar and ctx.curve and ctx.reference:
         try:
             cold = cold_start(
                 dp_ref, pos.bypass_bar, unit.coldest_start_c, ctx.curve, ctx.reference
             )
         except BookError as exc:
-            notes.append(Note("no-cold-start", {"error": str(exc)}))
-        if cold and cold.bypasses:
-            flags.append("cold-start-bypass")
-            notes.append(
-                Note(
-                    "cold-start-bypass",
-                    {
-                        "start_c": unit.coldest_start_c,
-                        "dp_bar": cold.dp_at_start_bar,
-                        "below_c": cold.bypass_below_c,
-                    },
-                )
-            )
-    if numeric and (young := _young_high(percent, numeric[-1].age_h)) is not None:
-        flags.append("new-element-high")
-        notes.append(young)
+            cold_error = str(exc)
+    facts = rules.Facts(
+        pos.limit_bar,
+        pos.bypass_bar,
+        unit.coldest_start_c,
+        dp_ref,
+        last,
+        # In age order: a late entry or an hour meter read out of turn must not stop a save;
+        # at one age, in logging order (the newest last, whatever its value).
+        anomaly.age_ordered([(p.age_h, p.dp_ref_bar) for p in numeric]),
+        percent,
+        numeric[-1].age_h if numeric else None,
+        cold,
+        cold_error,
+    )
+    for rule in rules.READING_RULES:
+        for flag, note in rule(facts):
+            if flag:
+                flags.append(flag)
+            if note:
+                notes.append(note)
     last_seen = max(
         [p.at for p in points] + ([current.fitted_at] if current.fitted_at else []), default=None
     )
@@ -1139,25 +1059,10 @@ def unit_clock(book: Book, unit: Unit, now: datetime) -> UnitClock:
     )
 
 
-# A new element is clean: half its change limit within its first three days (of service
-# hours on an hour meter) says something is wrong with it or with the system, long before a
-# due date would. # common practice, no source
-YOUNG_ELEMENT_H = 72.0
-YOUNG_ELEMENT_SHARE = 0.5
-
-
-def _young_high(percent_of_limit: float | None, age_h: float) -> Note | None:
-    if percent_of_limit is None or age_h > YOUNG_ELEMENT_H:
-        return None
-    if percent_of_limit < 100 * YOUNG_ELEMENT_SHARE:
-        return None
-    return Note("new-element-high", {"percent": percent_of_limit, "age_h": age_h})
-
-
 def new_element_high(percent_of_limit: float | None, age_h: float) -> str | None:
     """The note of the new-element flag for the latest reading's share of the change limit at
     element age `age_h`, None when the element is older or still low."""
-    note = _young_high(percent_of_limit, age_h)
+    note = rules.young_high(percent_of_limit, age_h)
     return None if note is None else note.text("")
 
 
@@ -1225,104 +1130,3 @@ def unit_status(
 ) -> UnitStatus:
     """A unit's fluid care: top-up use, top-up filtration, latest sample, hot readings."""
     return unit_at(unit, filters, unit_clock(book, unit, now), now)
-
-
-# ---- JSON ----------------------------------------------------------------------------------------
-
-
-def _due_json(due: Due | None, local: Any) -> dict[str, str] | None:
-    if due is None:
-        return None
-    return {
-        k: iso_local(getattr(due, k), local) if getattr(due, k) else None
-        for k in ("earliest", "likely", "latest")
-    }
-
-
-def _r(value: float | None, digits: int = 3) -> float | None:
-    return None if value is None else round(value, digits)
-
-
-def to_json(w: Watch, local: Any = None) -> dict[str, Any]:
-    local = local or tz.UTC
-    return {
-        "as_of": iso_local(w.as_of, local),
-        "filters": [
-            {
-                "filter": f.filter,
-                "unit": f.unit,
-                "kind": f.kind,
-                "dp_bar": _r(f.dp_bar),
-                "dp_ref_bar": _r(f.dp_ref_bar),
-                "temp_c": _r(f.temp_c, 1),
-                "indicator": f.indicator,
-                "reading_at": iso_local(f.reading_at, local) if f.reading_at else None,
-                "reference": f.reference,
-                "limit_bar": f.limit_bar,
-                "bypass_bar": f.bypass_bar,
-                "percent_of_limit": _r(f.percent_of_limit, 1),
-                "due": _due_json(f.due, local),
-                "bypass_due": _due_json(f.bypass_due, local),
-                "basis": f.basis,
-                "state": f.state,
-                "flags": list(f.flags),
-                "notes": list(f.notes),
-                "readings_since_change": f.readings_since_change,
-                "element_age_h": _r(f.element_age_h, 1),
-                "pace_vs_earlier": _r(f.pace, 2),
-                "next_reading": None
-                if f.next_reading is None
-                else {"at": iso_local(f.next_reading, local), "rule": f.next_rule},
-                "cold_start": None
-                if f.cold is None
-                else {
-                    "start_temp_c": f.cold.start_temp_c,
-                    "dp_at_start_bar": _r(f.cold.dp_at_start_bar),
-                    "bypasses": f.cold.bypasses,
-                    "bypass_below_c": _r(f.cold.bypass_below_c, 1),
-                },
-                "service_life": None
-                if f.life is None
-                else {
-                    "b10_h": _r(f.life.b10_h, 0),
-                    "b50_h": _r(f.life.b50_h, 0),
-                    "failed": f.life.n_failed,
-                    "censored": f.life.n_censored,
-                },
-            }
-            for f in w.filters
-        ],
-        "breathers": [
-            {
-                "breather": b.breather,
-                "unit": b.unit,
-                "kind": b.kind,
-                "last_swap": iso_local(b.forecast.last_swap, local)
-                if b.forecast.last_swap
-                else None,
-                "due": iso_local(b.forecast.due, local) if b.forecast.due else None,
-                "interval_d": _r(b.forecast.interval_d, 1),
-                "basis": b.forecast.basis,
-                "flags": list(b.flags),
-            }
-            for b in w.breathers
-        ],
-        "units": [
-            {
-                "unit": u.unit,
-                "name": u.name,
-                "area": u.area,
-                "topup_l_per_week": _r(u.consumption.recent_l_per_week, 2)
-                if u.consumption
-                else None,
-                "topup_history_l_per_week": _r(u.consumption.history_l_per_week, 2)
-                if u.consumption
-                else None,
-                "latest_code": u.latest_code,
-                "target_code": u.target_code,
-                "flags": list(u.flags),
-                "notes": list(u.notes),
-            }
-            for u in w.units
-        ],
-    }

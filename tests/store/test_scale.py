@@ -22,7 +22,7 @@ from store import record, sheets, views
 from store.base.timeutil import format_utc
 from store.db.book import Book, open_book
 from store.derived import elementcache, statuscache
-from store.health import lives, status
+from store.health import lives, status, status_json
 from store.health.conditions import contexts
 from store.ledger import journal, register
 from store.ledger.entries import ElementChange, Note, Reading, Sample, TopUp, Void, from_row
@@ -321,7 +321,7 @@ def test_kept_rows_hold_later_on_and_reads_write_nothing(tmp_path: Path, later) 
         statuscache._encode(f) for f in audit.filters
     ]
     assert cached.units == audit.units
-    assert status.to_json(cached) == status.to_json(audit)
+    assert status_json.to_json(cached) == status_json.to_json(audit)
     # The clock's parts did move (the test is not comparing two unchanged lists).
     ages = {f.filter: f.element_age_h for f in before.filters}
     assert all(f.element_age_h > ages[f.filter] for f in cached.filters)

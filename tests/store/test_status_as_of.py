@@ -18,7 +18,7 @@ from store import record, views
 from store.base.timeutil import format_utc, parse_utc
 from store.db.book import open_book
 from store.derived import elementcache, statuscache
-from store.health import status
+from store.health import status, status_json
 from store.health.conditions import contexts
 from store.ledger import journal
 from store.ledger.entries import ElementChange, Reading, Void
@@ -52,7 +52,7 @@ def computed_as_of(book, now, unit=None) -> status.Watch:
 def assert_same(book, now, unit=None) -> None:
     audit = computed_as_of(book, now, unit)  # every row computed
     plain = status.watch_as_of(book, now, unit)  # ... and without the element cache
-    assert status.to_json(plain) == status.to_json(audit)
+    assert status_json.to_json(plain) == status_json.to_json(audit)
     one_by_one = by_position(book, now, unit)
     assert [f.filter for f in audit.filters] == [f.filter for f in one_by_one]
     for fast, slow in zip(audit.filters, one_by_one, strict=True):
@@ -61,7 +61,7 @@ def assert_same(book, now, unit=None) -> None:
         assert fast.history == slow.history, fast.filter
         assert fast.forecast == slow.forecast, fast.filter
     expected = status.Watch(now, tuple(one_by_one), audit.breathers, audit.units)
-    assert status.to_json(audit) == status.to_json(expected)
+    assert status_json.to_json(audit) == status_json.to_json(expected)
     # The list as `views.watch` gives it, kept rows standing in where their key holds for
     # the time: the same kept fields, units and JSON (a kept row has no reading history:
     # no watch list shows one).
@@ -70,7 +70,7 @@ def assert_same(book, now, unit=None) -> None:
         statuscache._encode(f) for f in one_by_one
     ]
     assert shown.units == audit.units
-    assert status.to_json(shown) == status.to_json(expected)
+    assert status_json.to_json(shown) == status_json.to_json(expected)
 
 
 @pytest.fixture
@@ -151,7 +151,7 @@ def test_as_of_the_last_entry_equals_the_kept_status(demo: Path) -> None:
     # through the same sums: element cache, entries since the last change).
     with open_book(demo, create=False) as book:
         kept, audit = views.watch(book), views.watch(book, as_of=book.now())
-    assert status.to_json(kept) == status.to_json(audit)
+    assert status_json.to_json(kept) == status_json.to_json(audit)
 
 
 def kept_before(book, now):

@@ -25,7 +25,7 @@ from store.db.book import open_book
 from store.derived import statuscache
 from store.exchange.demo import create_demo
 from store.forecast.life import WeibullFit
-from store.health import status
+from store.health import status, status_json
 from store.ledger import journal
 from store.ledger.entries import ElementChange, Reading, Void
 from store.ledger.register import Unit, list_all
@@ -87,7 +87,7 @@ def test_kept_rows_give_the_full_computation_later_on(kept: Path, tmp_path: Path
     assert [f.filter for f in cached.filters] == [f.filter for f in fresh.filters]
     assert cached.units == fresh.units
     assert cached.breathers == fresh.breathers
-    assert status.to_json(cached) == status.to_json(fresh)
+    assert status_json.to_json(cached) == status_json.to_json(fresh)
 
 
 DERIVED = ("element_state", "element_cache", "status_cache", "unit_cache")
@@ -122,7 +122,7 @@ def test_kept_rows_equal_a_computation_from_the_entries_alone(
     assert [f.filter for f in cached.filters] == [f.filter for f in fresh.filters]
     for quick, full in zip(cached.filters, fresh.filters, strict=True):
         assert statuscache._encode(quick) == statuscache._encode(full), quick.filter
-    assert status.to_json(cached) == status.to_json(fresh)
+    assert status_json.to_json(cached) == status_json.to_json(fresh)
 
 
 def test_the_clock_parts_do_move_on_the_demo(kept: Path, tmp_path: Path) -> None:
@@ -154,15 +154,15 @@ def test_a_write_protected_book_reads_a_week_later_and_stays_byte_identical(
                     book.conn.execute(f"DELETE FROM {table}")
             book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
     with open_book(path, create=False) as book:
-        expected = status.to_json(views.watch(book, as_of=book.now()))
+        expected = status_json.to_json(views.watch(book, as_of=book.now()))
         book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
     before = digest(path)
     os.chmod(path, stat.S_IRUSR | stat.S_IRGRP | stat.S_IROTH)  # 0444
     try:
         with open_book(path, create=False) as book:  # (root may write it all the same)
-            assert status.to_json(views.watch(book)) == expected
+            assert status_json.to_json(views.watch(book)) == expected
         with open_book(path, create=False, readonly=True) as book:
-            assert status.to_json(views.watch(book)) == expected
+            assert status_json.to_json(views.watch(book)) == expected
             assert statuscache.refresh_stale(book) == []  # nothing to keep it in
     finally:
         os.chmod(path, stat.S_IRUSR | stat.S_IWUSR)
