@@ -29,9 +29,10 @@ def after_write(book: Book, entries: Sequence[Entry]) -> None:
     last: dict[tuple[str, str], Entry] = {}
     for entry in entries:  # per kind too: what a refresh looks at beside its target differs
         last[(_target(book, entry), entry.kind)] = entry
+    reg = statuscache.register(book)  # entries do not move the register: read it once
     for entry in last.values():
-        statuscache.after_entry(book, entry)
-    statuscache.move_seen_on(book)
+        statuscache.after_entry(book, entry, reg)
+    statuscache.move_seen_on(book, reg)
 
 
 def _target(book: Book, entry: Entry) -> str:

@@ -411,14 +411,14 @@ def live_status(
     return status, els.changed
 
 
-def after_entry(book: Book, entry: Entry) -> None:
+def after_entry(book: Book, entry: Entry, reg: Register | None = None) -> None:
     """Called inside the write transaction: keep the status of the filter the entry touches
     and of the unit whose fluid-care status it can change. (Like positions that lean on this
     one's lives no longer match their key: a reader computes them until a refresh keeps
-    them.)"""
+    them.) `reg`: the register as read once for the whole save."""
     unit = _touches_unit(book, entry)
     if unit:
-        refresh_unit(book, unit)
+        refresh_unit(book, unit, reg=reg)
     tag = getattr(entry, "filter", None)
     if isinstance(entry, Void):
         row = book.conn.execute("SELECT filter FROM entries WHERE id = ?", [entry.voids]).fetchone()
@@ -427,10 +427,10 @@ def after_entry(book: Book, entry: Entry) -> None:
         return
     seen = max_rowid(book)
     status, _ = live_status(book, context(book, tag), keep=True)
-    store_status(book, status, book.now(), seen)
+    store_status(book, status, book.now(), seen, reg)
 
 
-def move_seen_on(book: Book) -> None:
+def move_seen_on(book: Book, reg: Register | None = None) -> None:
     """Inside a save's transaction, after its rows were kept: every kept row whose inputs the
     entries written since it was checked left as they were is checked up to the newest entry
     now (so that a reader compares only what was written after). Rows whose inputs moved keep
@@ -441,7 +441,7 @@ def move_seen_on(book: Book) -> None:
     if not behind:
         return
     moved = _moved_since(book, min(behind))
-    reg = register(book)
+    reg = reg or register(book)
     pools = {
         tag.upper(): not key.endswith(".own")
         for tag, key in book.conn.execute("SELECT filter, key FROM status_cache")
@@ -481,25 +481,27 @@ def _inputs_seen(book: Book) -> tuple[int, int]:
     return row[0], row[1]
 
 
-def refresh(book: Book, ctx: FilterContext) -> FilterStatus:
+def refresh(book: Book, ctx: FilterContext, reg: Register | None = None) -> FilterStatus:
     """An explicit refresh: recompute one filter's status now and keep it (with its element
     summaries) in one transaction, or in the caller's.
 
     The fitting runs before the write lock so that a writer is not held up by it; under the
     lock the inputs are compared with what the fitting saw, and if an entry or a register
     change landed in between, the status is computed again there: a kept row never holds a
-    view of the entries older than the moment it is stored."""
+    view of the entries older than the moment it is stored. `reg`: the register as read
+    together with `ctx` (a row keyed with an older register than it was computed from
+    would only fail its key)."""
     now = book.now()
     seen = _inputs_seen(book)
     status, _ = live_status(book, ctx, now)  # the fitting, before the write lock
     with book.atomic():
         if _inputs_seen(book) != seen:
-            ctx = context(book, ctx.position.tag)
+            ctx, reg = context(book, ctx.position.tag), None
             seen = _inputs_seen(book)
             status, _ = live_status(book, ctx, now, keep=True)
         else:
             elements_now(book, ctx, keep=True)
-        store_status(book, status, now, seen[0])
+        store_status(book, status, now, seen[0], reg)
     return status
 
 
@@ -602,15 +604,16 @@ def refresh_stale(book: Book, limit: int | None = None) -> list[str]:
     Returns the tags done."""
     if book.readonly:
         return []
-    ctxs = contexts(book)
+    reg, ctxs = register(book), contexts(book)
     tags = stale_filters(book)[:limit]
     for tag in tags:
-        refresh(book, ctxs[tag.upper()])
+        refresh(book, ctxs[tag.upper()], reg)
     units = _stale_units(book)
     if units:
         with book.atomic():
+            reg = register(book)
             for tag in units:
-                refresh_unit(book, tag)
+                refresh_unit(book, tag, reg=reg)
     return tags
 
 
@@ -677,7 +680,9 @@ def cached_units(
     return result
 
 
-def refresh_unit(book: Book, tag: str, now: datetime | None = None) -> UnitStatus | None:
+def refresh_unit(
+    book: Book, tag: str, now: datetime | None = None, reg: Register | None = None
+) -> UnitStatus | None:
     """Recompute one unit's kept entries and keep them (in a save: in its transaction)."""
     unit = find(book, Unit, tag)
     if unit is None:
@@ -687,7 +692,8 @@ def refresh_unit(book: Book, tag: str, now: datetime | None = None) -> UnitStatu
     with book.atomic():
         seen = max_rowid(book)
         clock = unit_clock(book, unit, now)
-        _store_unit(book, unit.tag, clock, register(book).unit_key(unit.tag.upper()), seen)
+        key = (reg or register(book)).unit_key(unit.tag.upper())
+        _store_unit(book, unit.tag, clock, key, seen)
     return unit_at(unit, filters, clock, now)
 
 
@@ -799,9 +805,10 @@ def rebuild(book: Book) -> int:
         with book.atomic():
             _store_rebuilt(book, rows[i : i + WRITE_CHUNK], now)
     with book.atomic():
+        reg = register(book)
         for unit in list_all(book, Unit):
-            refresh_unit(book, unit.tag, now)
+            refresh_unit(book, unit.tag, now, reg)
         # Entries written while we computed: the rows they touch no longer match their key
         # and stay behind (a reader computes them); every other row is checked up to now.
-        move_seen_on(book)
+        move_seen_on(book, reg)
     return len(rows)
