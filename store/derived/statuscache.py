@@ -41,7 +41,7 @@ from __future__ import annotations
 import hashlib
 import json
 from collections.abc import Iterable, Sequence
-from dataclasses import dataclass, fields
+from dataclasses import dataclass, field, fields
 from datetime import datetime
 from typing import Any
 
@@ -207,11 +207,17 @@ class _Moved:
     unit_events: dict[str, int]  # top-ups, samples (and voids of them)
     unit_hot: dict[str, list[tuple[int, float]]]  # (rowid, °C) of readings with a temperature
     unit_any: dict[str, list[tuple[int, str]]]  # (rowid, time) of every entry of the unit
+    _groups: dict[int, int] = field(default_factory=dict)  # newest change of a like group
 
     def filter_moved(self, tag: str, seen: int, pools: bool, like: Sequence[str]) -> bool:
         if self.own.get(tag, 0) > seen:
             return True
-        return pools and any(self.changes.get(t, 0) > seen for t in like)
+        if not pools or not self.changes:
+            return False
+        newest = self._groups.get(id(like))  # like groups are shared tuples: once each
+        if newest is None:
+            newest = self._groups[id(like)] = max(self.changes.get(t, 0) for t in like or ("",))
+        return newest > seen
 
     def unit_moved(self, tag: str, seen: int, limit_c: float | None, first: str | None) -> bool:
         if self.unit_events.get(tag, 0) > seen:

@@ -1,9 +1,12 @@
 """Time-proof status: the kept rows hold at any later time, and reads never write.
 
-The demo plant with its clock moved on a week and a year (a plant back from a shutdown week;
-a book opened after a long pause): the watch list read from the caches must be the one
-computed from every entry as of that time (`watch(as_of=...)`), flag by flag and date by
-date, and reading must leave the file as it was, whether the caches are filled or missing.
+The demo plant with its clock moved on a day, a week and a year (a plant back from a
+shutdown week; a book opened after a long pause): each kept row, read at that clock, must be
+the status computed from the entries alone (`status.watch_as_of`, which reads nothing kept),
+flag by flag and date by date; a row whose inputs moved since it was kept (an entry or void
+written behind the save hooks, the register changed in or outside sumpbook, a like
+position's element change, another row format) is never used by any reader; and reading must
+leave the file as it was, whether the caches are filled or missing.
 """
 
 from __future__ import annotations
