@@ -274,13 +274,16 @@ class Kept:
         return not self.key.endswith(".own")
 
 
-def _kept_rows(book: Book) -> dict[str, Kept]:
+def _kept_rows(book: Book, only: Sequence[str] | None = None) -> dict[str, Kept]:
+    """The kept filter rows (`only` these tags, when a few are asked for)."""
     seen = _seen(book, "filter")
+    sql, params = "SELECT filter, key, computed_utc, newest_utc, data FROM status_cache", []
+    if only is not None and len(only) <= 20:
+        sql += f" WHERE filter IN ({', '.join('?' for _ in only)})"
+        params = list(only)
     return {
         tag.upper(): Kept(key, computed, newest, data, seen.get(tag.upper(), -1))
-        for tag, key, computed, newest, data in book.conn.execute(
-            "SELECT filter, key, computed_utc, newest_utc, data FROM status_cache"
-        )
+        for tag, key, computed, newest, data in book.conn.execute(sql, params)
     }
 
 
@@ -552,7 +555,8 @@ def kept_filters(
     """The kept status at `now` of each of `tags` (upper case) whose row holds then (its key
     matches; `audit`: as the entries stood at `now`), by tag; the rest are left out. `reg`:
     the register as read for the same list."""
-    rows = _kept_rows(book)
+    tags = list(tags)
+    rows = _kept_rows(book, tags)
     check = Check(book, rows, reg)
     out = {}
     for tag in tags:
