@@ -96,7 +96,11 @@ def _stamp(moment: datetime | None) -> str | None:
 
 
 def _moment(text: str | None) -> datetime | None:
-    return None if text is None else parse_stamp(text)
+    """A time as a kept row holds it (format_utc's, so read as it is)."""
+    return None if text is None else _from_iso(text)
+
+
+_from_iso = datetime.fromisoformat
 
 
 @dataclass(frozen=True)
@@ -114,7 +118,7 @@ class Due:
 
     @classmethod
     def from_row(cls, row: dict[str, Any]) -> Due:
-        return cls(parse_stamp(row["earliest"]), parse_stamp(row["likely"]), _moment(row["latest"]))
+        return cls(_from_iso(row["earliest"]), _from_iso(row["likely"]), _moment(row["latest"]))
 
 
 MAX_AGE_H = 20 * 8766.0  # twenty years of element age: later "dates" are no dates
@@ -209,20 +213,18 @@ class Clock:
 
     @classmethod
     def from_row(cls, row: dict[str, Any]) -> Clock:
-        meter, due_ages, life = row["meter"], row["due_ages"], row["life"]
-        return cls(
-            valid_from=_moment(row["valid_from"]),
-            origin=_moment(row["origin"]),
-            meter=None if meter is None else (parse_stamp(meter[0]), meter[1], meter[2]),
-            due_ages=None
-            if due_ages is None
-            else tuple(None if a is None else _Ages(*a) for a in due_ages),  # type: ignore[arg-type]
-            last_age_h=row["last_age_h"],
-            state=row["state"],
-            check_after_h=row["check_after_h"],
-            life=None if life is None else (life[0], life[1]),
-            hot=tuple((parse_stamp(at), temp_c) for at, temp_c in row["hot"]),
-            max_temp_c=row["max_temp_c"],
+        meter, due_ages, life, hot = row["meter"], row["due_ages"], row["life"], row["hot"]
+        return cls(  # in field order
+            _moment(row["valid_from"]),
+            _moment(row["origin"]),
+            None if meter is None else (_from_iso(meter[0]), meter[1], meter[2]),
+            None if due_ages is None else tuple(None if a is None else _Ages(*a) for a in due_ages),  # type: ignore[arg-type]
+            row["last_age_h"],
+            row["state"],
+            row["check_after_h"],
+            None if life is None else (life[0], life[1]),
+            tuple([(_from_iso(at), temp_c) for at, temp_c in hot]) if hot else (),
+            row["max_temp_c"],
         )
 
 
@@ -360,35 +362,55 @@ class FilterStatus:
     @classmethod
     def from_row(cls, row: dict[str, Any], now: datetime) -> FilterStatus:
         """A kept row brought to `now` (`at_time`'s parts worked out in one go)."""
-        values = dict(row)
-        for name in _ROW_TIMES:
-            values[name] = _moment(values[name])
-        clock = values["clock"] = Clock.from_row(values["clock"])
+        clock = Clock.from_row(row["clock"])
+        due, bypass_due = row["due"], row["bypass_due"]
         if clock.due_ages is None:  # (otherwise clock_parts dates them again)
-            for name in ("due", "bypass_due"):
-                if values[name] is not None:
-                    values[name] = Due.from_row(values[name])
-        cold, life = values["cold"], values["life"]
-        values["cold"] = None if cold is None else ColdStart(**cold)
-        values["life"] = None if life is None else LifeSummary(**life)
-        values["flags"] = tuple(values["flags"])
+            due = None if due is None else Due.from_row(due)
+            bypass_due = None if bypass_due is None else Due.from_row(bypass_due)
+        cold, life = row["cold"], row["life"]
         spark = array("d")
-        spark.frombytes(b64decode(values["spark"]))
-        values["spark"] = tuple(spark)
-        codes = values["note_codes"] = tuple(Note.from_row(n) for n in values["note_codes"])
-        values.update(
-            clock_parts(
-                values["flags"],
-                codes,
-                values["due"],
-                values["bypass_due"],
-                values["gauge"],
-                values["overdue_at"],
-                clock,
-                now,
-            )  # fmt: skip
+        spark.frombytes(b64decode(row["spark"]))
+        codes = tuple([Note.from_row(n) for n in row["note_codes"]])
+        overdue_at = _moment(row["overdue_at"])
+        flags = tuple(row["flags"])
+        timed = clock_parts(flags, codes, due, bypass_due, row["gauge"], overdue_at, clock, now)
+        return cls(
+            row["filter"],
+            row["unit"],
+            row["kind"],
+            row["gauge"],
+            row["dp_bar"],
+            row["dp_ref_bar"],
+            row["temp_c"],
+            row["indicator"],
+            _moment(row["reading_at"]),
+            row["limit_bar"],
+            row["bypass_bar"],
+            row["clean_bar"],
+            row["percent_of_limit"],
+            timed["due"],
+            timed["bypass_due"],
+            row["basis"],
+            timed["state"],
+            timed["flags"],
+            timed["notes"],
+            row["readings_since_change"],
+            _moment(row["changed_at"]),
+            timed["element_age_h"],
+            row["reference"],
+            None if cold is None else ColdStart(**cold),
+            None if life is None else LifeSummary(**life),
+            (),  # history: no kept row has it
+            tuple(spark),
+            overdue_at,
+            row["pace"],
+            _moment(row["next_reading"]),
+            row["next_rule"],
+            codes,
+            None,
+            None,
+            clock,
         )
-        return cls(**values, history=())
 
 
 # What FilterStatus.to_row keeps (every field but these), and which of them are times.
