@@ -112,21 +112,53 @@ def preload() -> None:
 
 @dataclass(frozen=True)
 class Register:
-    """What the statuses read of the register, once per read: each position's and unit's
-    digest (upper-case tags) and each position's like positions."""
+    """What the statuses read of the register, once per read: the rows each position's and
+    unit's digest is made of (made when first asked for: a save needs two or three, a list
+    all of them), each position's like positions and each unit's temperature limit."""
 
-    filters: dict[str, str]
+    filter_rows: dict[str, tuple]  # by upper-case tag
+    filter_units: dict[str, str]
+    unit_rows: dict[str, tuple]
+    fluid_rows: dict[str, tuple | None]  # each unit's fluid
+    shifts: list[tuple]
+    unit_filters: dict[str, list[str]]  # each unit's positions, in tag order
     like: dict[str, tuple[str, ...]]  # the positions taking its element, itself among them
-    like_digests: dict[str, str]
-    units: dict[str, str]
     unit_limits: dict[str, float]  # each unit's temperature limit (a hot reading is an input)
+    _memo: dict[Any, str] = field(default_factory=dict, compare=False)
+
+    def _around(self, unit: str) -> str | None:
+        """What a position reads beyond its own row: its unit, that unit's fluid, the shifts."""
+        if unit not in self.unit_rows:
+            return None
+        key = ("around", unit)
+        if key not in self._memo:
+            row = self.unit_rows[unit]
+            self._memo[key] = _digest((row, self.fluid_rows.get(unit), self.shifts))
+        return self._memo[key]
+
+    def filter_digest(self, tag: str) -> str:
+        if tag not in self.filter_rows:
+            return "?"
+        key = ("filter", tag)
+        if key not in self._memo:
+            around = self._around(self.filter_units[tag])
+            self._memo[key] = _digest((self.filter_rows[tag], around))
+        return self._memo[key]
 
     def filter_key(self, tag: str, pools: bool) -> str:
-        like = self.like_digests.get(tag, "none") if pools else "own"
-        return f"{FORMAT}.{self.filters.get(tag, '?')}.{like}"
+        like = "own"
+        if pools:
+            group = self.like.get(tag)
+            like = "none" if group is None else self._memo.get(("like", group)) or ""
+            if not like:
+                like = self._memo["like", group] = _digest(list(group))  # type: ignore[index]
+        return f"{FORMAT}.{self.filter_digest(tag)}.{like}"
 
     def unit_key(self, tag: str) -> str:
-        return f"{UNIT_FORMAT}.{self.units.get(tag, '?')}"
+        if tag not in self.unit_rows:
+            return f"{UNIT_FORMAT}.?"
+        filters = [self.filter_digest(t) for t in self.unit_filters.get(tag, [])]
+        return f"{UNIT_FORMAT}.{_digest((self.unit_rows[tag], filters))}"
 
 
 def _table(book: Book, sql: str) -> tuple[list[str], list[tuple]]:
@@ -135,7 +167,7 @@ def _table(book: Book, sql: str) -> tuple[list[str], list[tuple]]:
 
 
 def register(book: Book) -> Register:
-    """The register rows the statuses read, as digests (a few queries, no contexts)."""
+    """The register rows the statuses read (a few queries, no contexts, no digest yet)."""
     shifts = book.conn.execute("SELECT * FROM shifts ORDER BY position, starts").fetchall()
     fcols, fluids = _table(book, "SELECT * FROM fluids")
     fluid_rows = {r[fcols.index("tag")].upper(): r for r in fluids}
@@ -144,31 +176,22 @@ def register(book: Book) -> Register:
     unit_rows = {r[utag].upper(): r for r in units}
     cols, rows = _table(book, "SELECT * FROM filters ORDER BY tag")
     tag_i, unit_i, element_i = cols.index("tag"), cols.index("unit"), cols.index("element")
-    around = {  # what a position reads beyond its own row, once per unit
-        tag: _digest((u, fluid_rows.get((u[ufluid] or "").upper()), shifts))
-        for tag, u in unit_rows.items()
-    }
-    digests, groups, by_unit = {}, {}, {}
+    filter_rows, filter_units, groups, by_unit = {}, {}, {}, {}
     for r in rows:
-        tag = r[tag_i].upper()
-        digests[tag] = _digest((r, around.get((r[unit_i] or "").upper())))
+        tag, unit = r[tag_i].upper(), (r[unit_i] or "").upper()
+        filter_rows[tag], filter_units[tag] = r, unit
         if r[element_i]:
             groups.setdefault(r[element_i].lower(), []).append(tag)
-        by_unit.setdefault((r[unit_i] or "").upper(), []).append(r)
-    like: dict[str, tuple[str, ...]] = {}
-    like_digests: dict[str, str] = {}
-    for group in groups.values():
-        shared, digest = tuple(group), _digest(group)
-        for tag in group:
-            like[tag], like_digests[tag] = shared, digest
+        by_unit.setdefault(unit, []).append(tag)
+    like = {tag: shared for group in groups.values() for shared in [tuple(group)] for tag in group}
     return Register(
-        digests,
+        filter_rows,
+        filter_units,
+        unit_rows,
+        {tag: fluid_rows.get((u[ufluid] or "").upper()) for tag, u in unit_rows.items()},
+        shifts,
+        by_unit,
         like,
-        like_digests,
-        {
-            tag: _digest((u, [digests[r[tag_i].upper()] for r in by_unit.get(tag, [])]))
-            for tag, u in unit_rows.items()
-        },
         {tag: u[ulimit] for tag, u in unit_rows.items()},
     )
 
@@ -451,19 +474,32 @@ def move_seen_on(book: Book, reg: Register | None = None) -> None:
         return
     moved = _moved_since(book, min(behind))
     reg = reg or register(book)
-    pools = {
-        tag.upper(): not key.endswith(".own")
-        for tag, key in book.conn.execute("SELECT filter, key FROM status_cache")
-    }
+    pools: dict[str, bool] = {}
+    if moved.changes:  # (which rows lean on like positions matters only after a change)
+        pools = {
+            tag.upper(): not key.endswith(".own")
+            for tag, key in book.conn.execute("SELECT filter, key FROM status_cache")
+        }
     good = [
         tag
         for tag, seen in filters.items()
         if seen < newest
         and not moved.filter_moved(tag, seen, pools.get(tag, True), reg.like.get(tag, ()))
     ]
+    touched = list(moved.unit_any)[:500]  # a unit's first entry matters only where written
     firsts = dict(
-        book.conn.execute("SELECT upper(unit), json_extract(data, '$.first_at') FROM unit_cache")
+        book.conn.execute(
+            "SELECT upper(unit), json_extract(data, '$.first_at') FROM unit_cache "
+            f"WHERE unit IN ({', '.join('?' for _ in touched)})",
+            touched,
+        )
     )
+    if len(moved.unit_any) > len(touched):
+        firsts = dict(
+            book.conn.execute(
+                "SELECT upper(unit), json_extract(data, '$.first_at') FROM unit_cache"
+            )
+        )
     good_units = [
         tag
         for tag, seen in units.items()
