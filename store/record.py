@@ -26,12 +26,15 @@ def preload() -> None:
 def after_write(book: Book, entries: Sequence[Entry]) -> None:
     """Inside the caller's write transaction: bring the derived rows up to date for the
     entries it wrote, once per filter, breather or unit touched (each refresh reads all the
-    entries of its target, so its newest entry is enough)."""
+    entries of its target, so its newest entry is enough); then every other kept row whose
+    inputs they left as they were is checked up to them."""
     last: dict[tuple[str, str], Entry] = {}
     for entry in entries:  # per kind too: what a refresh looks at beside its target differs
         last[(_target(book, entry), entry.kind)] = entry
+    reg = statuscache.register(book)  # entries do not move the register: read it once
     for entry in last.values():
-        statuscache.after_entry(book, entry)
+        statuscache.after_entry(book, entry, reg)
+    statuscache.move_seen_on(book, reg)
 
 
 def _target(book: Book, entry: Entry) -> str:
@@ -68,7 +71,9 @@ def save(book: Book, entry: Entry) -> Logged:
     preload()
     with book.atomic():
         entry = _append(book, entry, now)
-        status = statuscache.after_entry(book, entry)
+        reg = statuscache.register(book)
+        status = statuscache.after_entry(book, entry, reg)
+        statuscache.move_seen_on(book, reg)
     return Logged(entry, status)
 
 
@@ -91,8 +96,8 @@ def _append(book: Book, entry: Entry, now: datetime) -> Entry:
 
 
 def refresh_stale(book: Book, limit: int | None = None) -> list[str]:
-    """The explicit refresh behind a watch list: recompute and keep the derived rows that are
-    missing, of an old format or marked stale (at most `limit` filters). Returns the tags."""
+    """The explicit refresh behind a watch list: recompute and keep the derived rows that do
+    not hold now (at most `limit` filters). Returns the tags."""
     return statuscache.refresh_stale(book, limit)
 
 

@@ -19,7 +19,15 @@ from store.health import status, urgency
 from store.health.conditions import contexts
 from store.health.elements import Element, ElementSummary, meter_at, split_elements
 from store.health.fluidcare import Consumption, sample_verdict
-from store.health.status import URGENT_FLAGS, BreatherStatus, Due, FilterStatus, UnitStatus, Watch
+from store.health.status import (
+    URGENT_FLAGS,
+    BreatherStatus,
+    Due,
+    FilterStatus,
+    UnitStatus,
+    Watch,
+    status_as_of,
+)
 from store.ledger.entries import BreatherSwap, Entry, Reading, Sample, TopUp
 from store.ledger.journal import MAX_DP_BAR, find_entry, read
 from store.ledger.register import (
@@ -457,7 +465,7 @@ def filter_sheet(book: Book, tag: str, as_of: datetime | None = None) -> FilterS
         )
     ctx = contexts(book)[position.tag]
     now = as_of or book.now()
-    full = status_of(book, ctx, as_of)
+    full = status_as_of(book, ctx, now)  # in full: the chart needs the fitted curve
     until = now + timedelta(seconds=1) if as_of else None
     entries = [e for e in read(book, filter=position.tag, until=until) if not e.voided]
     elements = split_elements(ctx, entries)

@@ -1,14 +1,13 @@
-"""The watch list and each filter's status, as the screens and the command line ask for them:
-now from the status caches (what moves with the clock worked out at read time), as of a past
-time from the entries (kept rows standing in where nothing after that time touches them).
-Nothing here writes. The sheets built on them are in store/sheets.py."""
+"""The watch list and each filter's status, as the screens and the command line ask for them,
+now or as of a past time. Each reader uses a kept row (store/derived/statuscache.py) only where
+its key matches its inputs as they are (and, as of a time, as they stood then), and computes
+the rest from the entries; what moves with the clock is worked out at read time. Nothing here
+writes. The sheets built on them are in store/sheets.py."""
 
 from __future__ import annotations
 
-from collections.abc import Sequence
 from datetime import datetime, timedelta
 
-from store.base.timeutil import format_utc
 from store.db.book import Book
 from store.derived.elementcache import kept_before
 from store.derived.statuscache import (
@@ -16,29 +15,22 @@ from store.derived.statuscache import (
     kept_filters,
     kept_units,
     live_status,
+    register,
     stale_filters,
     watch_filters,
 )
 from store.health import status
 from store.health.conditions import FilterContext
-from store.health.status import FilterStatus, UnitStatus, Watch
+from store.health.status import FilterStatus, Watch
 from store.ledger.register import FilterPosition, Unit, list_all
 
 
-def watch(
-    book: Book,
-    as_of: datetime | None = None,
-    unit: str | None = None,
-    stale_ok: bool = False,
-) -> Watch:
-    """The watch list. Now: from the status caches (kept on every save; what moves with the
-    clock is worked out at read time). Rows marked stale (a like position's lives changed)
-    are recomputed in memory first, unless `stale_ok`: a screen that shows the list at once
-    and has `record.refresh_stale` catch up behind it. As of a past time: as the entries
-    stood then (`status.watch_as_of`), kept rows standing in where they provably hold
-    (`standing`, `kept_before`). Never writes."""
+def watch(book: Book, as_of: datetime | None = None, unit: str | None = None) -> Watch:
+    """The watch list. Now: each filter's and unit's kept row where it holds, the rest
+    computed in memory. As of a past time: as the entries stood then, kept rows used where
+    they hold for that time (`_watch_as_of`). Never writes."""
     if as_of is not None:
-        return status.watch_as_of(book, as_of, unit, kept_before, standing)
+        return _watch_as_of(book, as_of, unit)
     now = book.now()
     # The plant as status.plant covers it, without the contexts (built only for a row that
     # must be computed: see statuscache.watch_filters).
@@ -47,55 +39,56 @@ def watch(
     for position in positions:
         by_unit.setdefault(position.unit.upper(), []).append(position)
     mine = [q for q in positions if unit is None or q.unit == unit]
-    filters = watch_filters(book, mine, now, stale_ok)
+    reg = register(book)  # the keys' register part, read once for the list
+    filters = watch_filters(book, mine, now, reg)
     units = cached_units(
-        book, [u for u in all_units if unit is None or u.tag == unit], by_unit, now
+        book, [u for u in all_units if unit is None or u.tag == unit], by_unit, now, reg
     )
     return status.watch_list(now, filters, status.breathers_at(book, now, unit), units)
 
 
-def standing(
-    book: Book, p: status.Plant, positions: Sequence[FilterPosition], as_of: datetime
-) -> tuple[dict[str, FilterStatus], dict[str, UnitStatus]]:
-    """The kept statuses that stand for filters and units at `as_of`, by upper-case tag. A
-    filter's kept row does when nothing touching the filter (an entry, or a void of one) is
-    dated at or after that time, nor anything on a position taking the same element (whose
-    lives its forecast pools), and the row was kept by then: it was computed from exactly
-    the entries an audit reads, and the clock-dependent parts are worked out at `as_of` as
-    for any read. A unit's row likewise. tests/store/test_status_as_of.py holds the list
-    made with them to the one computed from the entries alone."""
-    late = touched_since(book, as_of + timedelta(seconds=1))
-    late_parts = {q.element.lower() for q in positions if q.element and q.tag.upper() in late}
-    quiet = [
-        c.position.tag.upper()
-        for c in p.contexts
-        if c.position.tag.upper() not in late
-        and (c.position.element or "").lower() not in late_parts
+def _watch_as_of(book: Book, as_of: datetime, unit: str | None) -> Watch:
+    """`status.watch_as_of` (every status from the entries as they stood at `as_of`), with
+    the kept rows whose key holds for that time standing in, and the element cache's
+    summaries where they provably hold then. tests/store/test_status_as_of.py holds it to
+    the computation from the entries alone."""
+    p = status.plant(book, unit)
+    positions = list_all(book, FilterPosition)
+    reg = register(book)
+    tags = [c.position.tag.upper() for c in p.contexts]
+    kept_f = kept_filters(book, tags, as_of, audit=True, reg=reg)
+    kept_u = kept_units(book, list(p.units), p.positions_by_unit, as_of, reg)
+    rest = [c for c in p.contexts if c.position.tag.upper() not in kept_f]
+    computed = iter(())
+    if rest:
+        changes = status.changes_as_of(book, as_of)
+        summaries, starts = kept_before(book, rest, changes, as_of + timedelta(seconds=1))
+        computed = iter(
+            status.filters_as_of(book, rest, positions, as_of, (changes, summaries, starts))
+        )
+    filters = [kept_f.get(c.position.tag.upper()) or next(computed) for c in p.contexts]
+    units = [
+        kept_u.get(u.tag.upper())
+        or status.unit_status(book, u, p.positions_by_unit.get(u.tag.upper(), []), as_of)
+        for u in p.units
     ]
-    units = [u for u in p.units if u.tag.upper() not in late]
-    return kept_filters(book, quiet, as_of), kept_units(book, units, p.positions_by_unit, as_of)
-
-
-def touched_since(book: Book, since: datetime) -> set[str]:
-    """Upper-case tags of the filters and units with an entry, or a void of one, dated at or
-    after `since`."""
-    rows = book.conn.execute(
-        "SELECT DISTINCT coalesce(t.filter, e.filter), coalesce(t.unit, e.unit) "
-        "FROM entries e LEFT JOIN entries t ON t.id = e.voids WHERE e.at_utc >= ?",
-        [format_utc(since)],
-    )
-    return {tag.upper() for row in rows for tag in row if tag}
+    return status.watch_list(as_of, filters, status.breathers_at(book, as_of, unit), units)
 
 
 def stale_count(book: Book) -> int:
-    """How many filters' kept rows a refresh would recompute (missing, old format, stale)."""
+    """How many filters' kept rows do not hold now (what a refresh would recompute)."""
     return len(stale_filters(book))
 
 
 def status_of(book: Book, ctx: FilterContext, as_of: datetime | None = None) -> FilterStatus:
-    """One filter's status. Now: from the element cache and the entries since the last
-    element change (the same result, see store.derived.statuscache); as of a past time: from
-    every entry as it stood then."""
+    """One filter's status, now or as of a past time: its kept row where that holds, else
+    computed (now: from the element cache and the entries since the last element change;
+    as of a time: from every entry as it stood then)."""
+    at = book.now() if as_of is None else as_of
+    tag = ctx.position.tag.upper()
+    kept = kept_filters(book, [tag], at, audit=as_of is not None).get(tag)
+    if kept is not None:
+        return kept
     if as_of is None:
         return live_status(book, ctx)[0]
     return status.status_as_of(book, ctx, as_of)

@@ -542,6 +542,41 @@ END;"""
 
 V5 = _v5()
 
+# ---- version 6: one validity key per kept status ---------------------------------------------
+# The status caches are derived (recomputed by `sumpbook rebuild` or a refresh), so they are
+# made again empty. Each row carries the key of what it was computed from (`key`: its row
+# format, a digest of the register rows it reads, and whether like positions' element changes
+# count), the time it was computed at, and the entries it saw (`kept_seen.seen_rowid`: no later
+# entry touches its inputs; a narrow table of its own, so that moving it on after a save does
+# not rewrite the rows). `newest_utc` (a filter): the newest input's date, from which on an
+# audit may use the row; `until_utc` (a unit): the first input dated after it was computed,
+# before which it holds. The stale and pools columns are gone: a row that does not match its
+# key is computed, whoever reads it (store/derived/statuscache.py).
+V6 = """
+DROP TABLE status_cache;
+DROP TABLE unit_cache;
+CREATE TABLE status_cache (
+    filter TEXT PRIMARY KEY COLLATE NOCASE REFERENCES filters(tag) ON DELETE CASCADE,
+    key TEXT NOT NULL,
+    computed_utc TEXT NOT NULL,
+    newest_utc TEXT,
+    data TEXT NOT NULL
+);
+CREATE TABLE unit_cache (
+    unit TEXT PRIMARY KEY COLLATE NOCASE REFERENCES units(tag) ON DELETE CASCADE,
+    key TEXT NOT NULL,
+    computed_utc TEXT NOT NULL,
+    until_utc TEXT,
+    data TEXT NOT NULL
+);
+CREATE TABLE kept_seen (
+    what TEXT NOT NULL CHECK (what IN ('filter', 'unit')),
+    tag TEXT NOT NULL COLLATE NOCASE,
+    seen_rowid INTEGER NOT NULL,
+    PRIMARY KEY (what, tag)
+) WITHOUT ROWID;
+"""
+
 # One SQL script per schema version, in order. Never edit a released step: add one.
-MIGRATIONS: list[str] = [V1, V2, V3, V4, V5]
+MIGRATIONS: list[str] = [V1, V2, V3, V4, V5, V6]
 SCHEMA_VERSION = len(MIGRATIONS)

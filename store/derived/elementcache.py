@@ -119,31 +119,40 @@ def max_rowid(book: Book) -> int:
     return book.conn.execute("SELECT coalesce(max(rowid), 0) FROM entries").fetchone()[0]
 
 
-def _still_valid(book: Book, tag: str, state: _State) -> bool:
-    """No entry or void written since the cache was checked reaches back into the cached
-    elements, and the change that ended the last of them still stands."""
-    if state.last_change is None:
-        return True  # nothing cached that a late entry could change
+def _reached_into(book: Book, states: dict[str, _State]) -> set[str]:
+    """The element cache's key check, for every position of `states` (by upper-case tag) at
+    once: those whose cached summaries no longer hold for the live entries, because an entry
+    written after the cache was checked (`seen_rowid`), or a void of one, is dated at or
+    before the change that ended the last cached element. Each position's own entries by its
+    index; the voids (few) in one walk."""
     conn = book.conn
-    late = conn.execute(
-        "SELECT 1 FROM entries WHERE filter = ? AND at_utc <= ? AND rowid > ? LIMIT 1",
-        [tag, state.last_change_utc, state.seen_rowid],
-    ).fetchone()
-    if late:
-        return False
+    late: set[str] = set()
+    cached = {tag: st for tag, st in states.items() if st.last_change is not None}
+    if not cached:
+        return late
+    for tag, st in cached.items():
+        if conn.execute(
+            "SELECT 1 FROM entries WHERE filter = ? AND at_utc <= ? AND rowid > ? LIMIT 1",
+            [tag, st.last_change_utc, st.seen_rowid],
+        ).fetchone():
+            late.add(tag)
+    since = min(st.seen_rowid for st in cached.values())
     # Voids are few: their own partial index answers "any since?" at once, and walks them.
     newest = conn.execute(
         "SELECT max(rowid) FROM entries INDEXED BY one_void_per_entry WHERE voids IS NOT NULL"
     ).fetchone()[0]
-    if newest is None or newest <= state.seen_rowid:
-        return True
-    voided = conn.execute(
-        "SELECT 1 FROM entries v INDEXED BY one_void_per_entry CROSS JOIN entries e "
-        "ON e.id = v.voids WHERE v.voids IS NOT NULL AND v.rowid > ? AND e.filter = ? "
-        "AND e.at_utc <= ? LIMIT 1",
-        [state.seen_rowid, tag, state.last_change_utc],
-    ).fetchone()
-    return voided is None
+    if newest is None or newest <= since:
+        return late
+    for tag, at, rowid in conn.execute(
+        "SELECT e.filter, e.at_utc, v.rowid FROM entries v INDEXED BY one_void_per_entry "
+        "CROSS JOIN entries e ON e.id = v.voids WHERE v.voids IS NOT NULL AND v.rowid > ? "
+        "AND e.filter IS NOT NULL",
+        [since],
+    ):
+        st = cached.get(tag.upper())
+        if st is not None and rowid > st.seen_rowid and at <= st.last_change_utc:
+            late.add(tag.upper())
+    return late
 
 
 def _write_elements(
@@ -204,7 +213,7 @@ def elements_now(book: Book, ctx: FilterContext, keep: bool = False) -> Elements
     key = context_key(ctx)
     seen = max_rowid(book)
     state = _state(book, tag)
-    if state is None or state.context != key or not _still_valid(book, tag, state):
+    if state is None or state.context != key or _reached_into(book, {tag.upper(): state}):
         past, current = split_summaries(ctx, element_items(book, tag))
         before = [
             r[0]
@@ -270,7 +279,7 @@ def kept_before(
     ):
         cached.setdefault(tag.upper(), []).append((text, curve))
     where = {entry.id: (at, rowid) for at, rowid, entry in changes}
-    late |= _reached_back(book, states)
+    late |= _reached_into(book, states)
     for ctx in ctxs:
         key = ctx.position.tag.upper()
         state = states.get(key)
@@ -291,30 +300,3 @@ def kept_before(
             kept[key] = past
             starts[key] = where[past[-1].removal_id]
     return kept, starts
-
-
-def _reached_back(book: Book, states: dict[str, Any]) -> set[str]:
-    """Upper-case tags whose element cache does not hold for the live entries:
-    `_still_valid` for every position with a cached element at once (an entry
-    or a void of one written after the cache was checked that reaches back to or before its
-    last cached change), from one walk over what was written since the oldest check."""
-    if not states:
-        return set()
-    since = min(state.seen_rowid for state in states.values())
-    written = book.conn.execute(
-        "SELECT filter, at_utc, rowid FROM entries WHERE rowid > ? AND filter IS NOT NULL",
-        [since],
-    ).fetchall()
-    written += book.conn.execute(
-        "SELECT e.filter, e.at_utc, v.rowid FROM entries v INDEXED BY one_void_per_entry "
-        "CROSS JOIN entries e ON e.id = v.voids WHERE v.voids IS NOT NULL AND v.rowid > ? "
-        "AND e.filter IS NOT NULL",
-        [since],
-    ).fetchall()
-    out = set()
-    for tag, at, rowid in written:
-        key = tag.upper()
-        state = states.get(key)
-        if state is not None and rowid > state.seen_rowid and at <= state.last_change_utc:
-            out.add(key)
-    return out

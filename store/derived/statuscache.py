@@ -1,33 +1,47 @@
-"""The status caches: each filter's and unit's computed status, kept fresh on every write.
+"""The status caches: each filter's and unit's computed status, kept on every write.
 
-- `status_cache`: each filter's status, refreshed inside every write (store.record ->
-  `after_entry`) from the element cache (store/derived/elementcache.py) and the entries since the
-  last element change;
-- `unit_cache`: each unit's fluid-care status (top-ups, samples, hot readings).
+- `status_cache`: each filter's status (`FilterStatus.to_row`), written inside every save
+  (store.record -> `after_entry`) from the element cache (store/derived/elementcache.py) and
+  the entries since the last element change;
+- `unit_cache`: each unit's fluid-care entries (`UnitClock.to_row`).
 
-Time-proof: a row holds what changes only with the entries (the fitted forecast as element
-ages and calendar dates, summaries, flags of the readings) and, for a filter, its
-`status.Clock`; the parts that move with the clock (element age, check-now, a service-life
-due given the age so far, reading-overdue, hot) are worked out from those at read time
-(`status.at_time`), and a unit's windows from its kept top-ups and hot readings
-(`status.unit_at`). A row is never too old to use.
+One key per row. A row holds the key of its inputs and is used by a reader (the list now, an
+audit as of a time, a filter's status after a save) only when that key is the one its inputs
+give now; otherwise the reader computes the status from the entries, in memory. The key:
+
+- `key`: the row format (`FORMAT`: a digest of the kept fields, their types, the note codes'
+  words and `RULES`), a digest of the register rows the status reads (the position, its unit,
+  that unit's fluid, the shift pattern; for a unit: its row and its positions' rows) and, for
+  a filter that leans on like positions' lives (too few of its own for a fit), the like
+  positions' tags;
+- `kept_seen.seen_rowid`: the entries were read up to this rowid, and no later entry (or void
+  of one) touches the row's inputs: the position's entries, like positions' element changes
+  where it leans on them, a unit's top-ups, samples, hot readings and anything dated before
+  its first entry. Entries are append-only, so comparing the inputs written after it is
+  comparing the newest input rowid. A save moves it on for every row its entries leave as
+  they were (`move_seen_on`, in the save's transaction);
+- the time span it holds for: a row is never read at a time before it was computed (the
+  clock set back); an audit uses a filter's row only from its newest input's date on
+  (`newest_utc`) and a unit's only before the first input dated after it was computed
+  (`until_utc`).
+
+Time-proof: a row holds what changes only with the entries and, for a filter, its
+`status.Clock`; what moves with the clock (element age, check-now, a service-life due given
+the age so far, reading-overdue, hot, the notes' words) is worked out at read time
+(`FilterStatus.from_row`, `status.unit_at`). tests/store/test_timeproof.py holds the kept rows
+against a computation from the entries alone at several clocks.
 
 Reads never write. Rows are written by the write path (`after_entry`, in the save's
 transaction) and by an explicit refresh: `refresh_stale` (the app's catch-up behind a list
-with rows marked stale or of an old format) and `rebuild()` (`sumpbook rebuild`), which
-recomputes them and the element cache from the entries at any time. A read that finds a row
-missing, stale or of an old format computes it in memory and leaves the book as it was.
-An audit (`views.watch(as_of=...)`) uses a kept row only where nothing dated at or after its
-time touches the filter or a position that takes the same element (`views.standing`), and
-computes the rest from the entries; tests/store/test_timeproof.py holds the kept rows against
-a copy of the book with every derived row dropped.
+with rows that do not match their key) and `rebuild()` (`sumpbook rebuild`).
 """
 
 from __future__ import annotations
 
+import hashlib
 import json
-from collections.abc import Sequence
-from dataclasses import asdict, dataclass, fields
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass, field, fields
 from datetime import datetime
 from typing import Any
 
@@ -42,17 +56,16 @@ from store.derived.elementcache import (
 )
 from store.health.conditions import FilterContext, context, contexts
 from store.health.elements import split_summaries
-from store.health.lives import like_lives, like_lives_from, like_positions, live_changes
+from store.health.lives import like_lives, like_lives_from, live_changes
+from store.health.notes import NOTE_TEXT, Note
 from store.health.status import (
+    ROW_FIELDS,
     Clock,
     Due,
     FilterStatus,
     LifeSummary,
     UnitClock,
     UnitStatus,
-    _Ages,
-    clock_parts,
-    own_failures,
     status_from,
     unit_at,
     unit_clock,
@@ -62,12 +75,30 @@ from store.ledger.journal import element_items, parse_stamp
 from store.ledger.register import FilterPosition, Unit, find, list_all
 from store.physics.normalise import ColdStart
 
-FORMAT = 7  # bump when the stored status shape or its rules change: old rows are recomputed
-# (4: next-reading time; 5: the ΔP drop on same-minute readings and steep rises, STEP UP
-# words, NEW HIGH; 6: the next reading's two-reading earliest date and the change visit)
-_SKIP = ("history", "forecast", "age_to_time", "clock")
-_TIMES = ("reading_at", "changed_at", "overdue_at", "next_reading")
+# Bump when the rules that make a status change while what a row holds stays the same (a
+# change of its fields or of the notes' words changes FORMAT by itself).
+# Also when how a field is written changes while the fields stay.
+RULES = 9  # 7: one key per row, notes as codes, `pooled` only where like lives were used;
+# 8: the sparkline packed; 9: the visit at the last gauge step is the change
+UNIT_RULES = 5  # 5: one key per row
 _utc = parse_stamp
+
+
+def _digest(value: Any) -> str:
+    return hashlib.blake2b(repr(value).encode(), digest_size=8).hexdigest()
+
+
+def _shape(*classes: type) -> list[Any]:
+    return [[c.__name__, [(f.name, str(f.type)) for f in fields(c)]] for c in classes]
+
+
+# The row formats, derived from what the rows hold: a field added, renamed or retyped, or a
+# note reworded, and every old row is computed again (no number to forget to bump).
+FORMAT = _digest(
+    [RULES, ROW_FIELDS, _shape(FilterStatus, Clock, Due, LifeSummary, ColdStart, Note)]
+    + sorted(NOTE_TEXT.items())
+)
+UNIT_FORMAT = _digest([UNIT_RULES, _shape(UnitClock, TopUp)])
 
 
 def preload() -> None:
@@ -76,113 +107,315 @@ def preload() -> None:
     from store.forecast import anomaly, life, trend  # noqa: F401
 
 
-# ---- the status rows -----------------------------------------------------------------------------
+# ---- the keys ------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Register:
+    """What the statuses read of the register, once per read: the rows each position's and
+    unit's digest is made of (made when first asked for: a save needs two or three, a list
+    all of them), each position's like positions and each unit's temperature limit."""
+
+    filter_rows: dict[str, tuple]  # by upper-case tag
+    filter_units: dict[str, str]
+    unit_rows: dict[str, tuple]
+    fluid_rows: dict[str, tuple | None]  # each unit's fluid
+    shifts: list[tuple]
+    unit_filters: dict[str, list[str]]  # each unit's positions, in tag order
+    like: dict[str, tuple[str, ...]]  # the positions taking its element, itself among them
+    unit_limits: dict[str, float]  # each unit's temperature limit (a hot reading is an input)
+    _memo: dict[Any, str] = field(default_factory=dict, compare=False)
+
+    def _around(self, unit: str) -> str | None:
+        """What a position reads beyond its own row: its unit, that unit's fluid, the shifts."""
+        if unit not in self.unit_rows:
+            return None
+        key = ("around", unit)
+        if key not in self._memo:
+            row = self.unit_rows[unit]
+            self._memo[key] = _digest((row, self.fluid_rows.get(unit), self.shifts))
+        return self._memo[key]
+
+    def filter_digest(self, tag: str) -> str:
+        if tag not in self.filter_rows:
+            return "?"
+        key = ("filter", tag)
+        if key not in self._memo:
+            around = self._around(self.filter_units[tag])
+            self._memo[key] = _digest((self.filter_rows[tag], around))
+        return self._memo[key]
+
+    def filter_key(self, tag: str, pools: bool) -> str:
+        like = "own"
+        if pools:
+            group = self.like.get(tag)
+            like = "none" if group is None else self._memo.get(("like", group)) or ""
+            if not like:
+                like = self._memo["like", group] = _digest(list(group))  # type: ignore[index]
+        return f"{FORMAT}.{self.filter_digest(tag)}.{like}"
+
+    def unit_key(self, tag: str) -> str:
+        if tag not in self.unit_rows:
+            return f"{UNIT_FORMAT}.?"
+        filters = [self.filter_digest(t) for t in self.unit_filters.get(tag, [])]
+        return f"{UNIT_FORMAT}.{_digest((self.unit_rows[tag], filters))}"
+
+
+def _table(book: Book, sql: str) -> tuple[list[str], list[tuple]]:
+    cur = book.conn.execute(sql)
+    return [d[0] for d in cur.description], cur.fetchall()
+
+
+def register(book: Book) -> Register:
+    """The register rows the statuses read (a few queries, no contexts, no digest yet)."""
+    shifts = book.conn.execute("SELECT * FROM shifts ORDER BY position, starts").fetchall()
+    fcols, fluids = _table(book, "SELECT * FROM fluids")
+    fluid_rows = {r[fcols.index("tag")].upper(): r for r in fluids}
+    ucols, units = _table(book, "SELECT * FROM units")
+    utag, ufluid, ulimit = ucols.index("tag"), ucols.index("fluid"), ucols.index("max_temp_c")
+    unit_rows = {r[utag].upper(): r for r in units}
+    cols, rows = _table(book, "SELECT * FROM filters ORDER BY tag")
+    tag_i, unit_i, element_i = cols.index("tag"), cols.index("unit"), cols.index("element")
+    filter_rows, filter_units, groups, by_unit = {}, {}, {}, {}
+    for r in rows:
+        tag, unit = r[tag_i].upper(), (r[unit_i] or "").upper()
+        filter_rows[tag], filter_units[tag] = r, unit
+        if r[element_i]:
+            groups.setdefault(r[element_i].lower(), []).append(tag)
+        by_unit.setdefault(unit, []).append(tag)
+    like = {tag: shared for group in groups.values() for shared in [tuple(group)] for tag in group}
+    return Register(
+        filter_rows,
+        filter_units,
+        unit_rows,
+        {tag: fluid_rows.get((u[ufluid] or "").upper()) for tag, u in unit_rows.items()},
+        shifts,
+        by_unit,
+        like,
+        {tag: u[ulimit] for tag, u in unit_rows.items()},
+    )
+
+
+@dataclass(frozen=True)
+class _Touch:
+    """An entry written after some rowid, or the entry a void written then voids."""
+
+    rowid: int  # the new row's (an entry or a void)
+    filter: str  # upper case, "" for none
+    unit: str
+    kind: str  # the entry's kind (a void: the voided entry's)
+    at_utc: str  # the entry's time (a void: the voided entry's)
+    temp_c: float | None
+
+
+def _written_since(book: Book, rowid: int) -> list[_Touch]:
+    rows = book.conn.execute(
+        "SELECT e.rowid, upper(coalesce(t.filter, e.filter, '')), "
+        "upper(coalesce(t.unit, e.unit, '')), coalesce(t.kind, e.kind), "
+        "coalesce(t.at_utc, e.at_utc), coalesce(t.temp_c, e.temp_c) "
+        "FROM entries e LEFT JOIN entries t ON e.voids IS NOT NULL AND t.id = e.voids "
+        "WHERE e.rowid > ?",
+        [rowid],
+    ).fetchall()
+    return [_Touch(*r) for r in rows]
+
+
+@dataclass
+class _Moved:
+    """The newest rowid written after the oldest row's seen rowid that touches each input,
+    by upper-case tag: a position's entries, its element changes, a unit's inputs."""
+
+    own: dict[str, int]
+    changes: dict[str, int]
+    unit_events: dict[str, int]  # top-ups, samples (and voids of them)
+    unit_hot: dict[str, list[tuple[int, float]]]  # (rowid, °C) of readings with a temperature
+    unit_any: dict[str, list[tuple[int, str]]]  # (rowid, time) of every entry of the unit
+    _groups: dict[int, int] = field(default_factory=dict)  # newest change of a like group
+
+    def filter_moved(self, tag: str, seen: int, pools: bool, like: Sequence[str]) -> bool:
+        if self.own.get(tag, 0) > seen:
+            return True
+        if not pools or not self.changes:
+            return False
+        newest = self._groups.get(id(like))  # like groups are shared tuples: once each
+        if newest is None:
+            newest = self._groups[id(like)] = max(self.changes.get(t, 0) for t in like or ("",))
+        return newest > seen
+
+    def unit_moved(self, tag: str, seen: int, limit_c: float | None, first: str | None) -> bool:
+        if self.unit_events.get(tag, 0) > seen:
+            return True
+        if any(
+            r > seen and (limit_c is None or t > limit_c) for r, t in self.unit_hot.get(tag, ())
+        ):
+            return True
+        return any(
+            r > seen and (first is None or at <= first) for r, at in self.unit_any.get(tag, ())
+        )
+
+
+def _moved_since(book: Book, rowid: int) -> _Moved:
+    moved = _Moved({}, {}, {}, {}, {})
+    for t in _written_since(book, rowid):
+        if t.filter:
+            moved.own[t.filter] = max(moved.own.get(t.filter, 0), t.rowid)
+            if t.kind == "change":
+                moved.changes[t.filter] = max(moved.changes.get(t.filter, 0), t.rowid)
+        if t.unit:
+            if t.kind in ("topup", "sample"):
+                moved.unit_events[t.unit] = max(moved.unit_events.get(t.unit, 0), t.rowid)
+            if t.kind == "reading" and t.temp_c is not None:
+                moved.unit_hot.setdefault(t.unit, []).append((t.rowid, t.temp_c))
+            moved.unit_any.setdefault(t.unit, []).append((t.rowid, t.at_utc))
+    return moved
+
+
+def _seen(book: Book, what: str) -> dict[str, int]:
+    return {
+        tag.upper(): seen
+        for tag, seen in book.conn.execute(
+            "SELECT tag, seen_rowid FROM kept_seen WHERE what = ?", [what]
+        )
+    }
+
+
+# ---- the kept rows -------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Kept:
+    """One kept filter row as read, before its key is checked."""
+
+    key: str
+    computed_utc: str
+    newest_utc: str | None
+    data: str
+    seen: int
+
+    @property
+    def pools(self) -> bool:
+        return not self.key.endswith(".own")
+
+
+def _kept_rows(book: Book, only: Sequence[str] | None = None) -> dict[str, Kept]:
+    """The kept filter rows (`only` these tags, when a few are asked for)."""
+    seen = _seen(book, "filter")
+    sql, params = "SELECT filter, key, computed_utc, newest_utc, data FROM status_cache", []
+    if only is not None and len(only) <= 20:
+        sql += f" WHERE filter IN ({', '.join('?' for _ in only)})"
+        params = list(only)
+    return {
+        tag.upper(): Kept(key, computed, newest, data, seen.get(tag.upper(), -1))
+        for tag, key, computed, newest, data in book.conn.execute(sql, params)
+    }
+
+
+class Check:
+    """Which kept rows hold: the register digests and what was written since the oldest row
+    was kept, read once for a whole list."""
+
+    def __init__(self, book: Book, rows: dict[str, Kept], reg: Register | None = None) -> None:
+        self.reg = reg or register(book)
+        self.rows = rows
+        self._at: datetime | None = None
+        self._stamp = ""
+        oldest = min((r.seen for r in rows.values()), default=0)
+        self.newest = max_rowid(book)
+        self.moved = (
+            _moved_since(book, oldest) if oldest < self.newest else _Moved({}, {}, {}, {}, {})
+        )
+
+    def holds(self, tag: str, at: datetime, audit: bool = False) -> Kept | None:
+        """The row of `tag` (upper case) if its key matches and it holds at `at` (an audit:
+        as the entries stood then), else None."""
+        row = self.rows.get(tag)
+        if row is None or row.seen < 0 or row.key != self.reg.filter_key(tag, row.pools):
+            return None
+        if self._at != at:
+            self._at, self._stamp = at, format_utc(at)
+        stamp = self._stamp
+        if stamp < row.computed_utc:  # the clock set back: the row may hold later readings
+            return None
+        if audit and row.newest_utc is not None and row.newest_utc > stamp:
+            return None
+        if row.seen < self.newest and self.moved.filter_moved(
+            tag, row.seen, row.pools, self.reg.like.get(tag, ())
+        ):
+            return None
+        return row
+
+
+def store_status(
+    book: Book, status: FilterStatus, now: datetime, seen: int, reg: Register | None = None
+) -> None:
+    """Keep one status row with its key (inside the caller's transaction): `reg`, the
+    register it was computed from (read now when not given), and `seen`, the newest entry
+    rowid it was computed from."""
+    tag = status.filter
+    pools = status.life is None or status.life.pooled
+    reg = reg or register(book)
+    key = reg.filter_key(tag.upper(), pools)
+    like = reg.like.get(tag.upper(), ()) if pools else ()
+    book.conn.execute(
+        "INSERT OR REPLACE INTO status_cache(filter, key, computed_utc, newest_utc, data) "
+        "VALUES (?, ?, ?, ?, ?)",
+        [tag, key, format_utc(now), _newest_input(book, tag, like), _encode(status)],
+    )
+    _store_seen(book, "filter", [tag], seen)
+
+
+def _store_seen(book: Book, what: str, tags: Sequence[str], seen: int) -> None:
+    book.conn.executemany(
+        "INSERT OR REPLACE INTO kept_seen(what, tag, seen_rowid) VALUES (?, ?, ?)",
+        [(what, tag, seen) for tag in tags],
+    )
+
+
+def _newest_input(book: Book, tag: str, like: Sequence[str]) -> str | None:
+    """The newest date among a filter's inputs: its entries, the voids of them, and the
+    element changes of the like positions it leans on (and their voids)."""
+    conn = book.conn
+    dates = [
+        conn.execute("SELECT max(at_utc) FROM entries WHERE filter = ?", [tag]).fetchone()[0],
+        conn.execute(
+            "SELECT max(v.at_utc) FROM entries v INDEXED BY one_void_per_entry "
+            "CROSS JOIN entries e ON e.id = v.voids WHERE v.voids IS NOT NULL AND e.filter = ?",
+            [tag],
+        ).fetchone()[0],
+    ]
+    for i in range(0, len(like), 500):
+        part = list(like[i : i + 500])
+        marks = ", ".join("?" for _ in part)
+        dates.append(
+            conn.execute(
+                "SELECT max(at_utc) FROM entries INDEXED BY entries_filter_changes "
+                f"WHERE kind = 'change' AND filter IN ({marks})",
+                part,
+            ).fetchone()[0]
+        )
+        dates.append(
+            conn.execute(
+                "SELECT max(v.at_utc) FROM entries v INDEXED BY one_void_per_entry "
+                "CROSS JOIN entries e ON e.id = v.voids WHERE v.voids IS NOT NULL "
+                f"AND e.kind = 'change' AND e.filter IN ({marks})",
+                part,
+            ).fetchone()[0]
+        )
+    return max((d for d in dates if d), default=None)
 
 
 def _encode(status: FilterStatus) -> str:
-    data: dict[str, Any] = {}
-    for f in fields(status):
-        if f.name in _SKIP:
-            continue
-        value = getattr(status, f.name)
-        if f.name in _TIMES:
-            value = format_utc(value) if value else None
-        elif f.name in ("due", "bypass_due"):
-            value = (
-                None
-                if value is None
-                else {k: format_utc(v) if v else None for k, v in asdict(value).items()}
-            )
-        elif f.name in ("cold", "life"):
-            value = None if value is None else asdict(value)
-        data[f.name] = value
-    data["clock"] = _encode_clock(status.clock) if status.clock else None
-    return json.dumps(data, ensure_ascii=False)
+    return json.dumps(status.to_row(), ensure_ascii=False)
 
 
-def _ages(ages: Any) -> list[float] | None:
-    return None if ages is None else [ages.earliest_h, ages.likely_h, ages.latest_h]
-
-
-def _encode_clock(clock: Clock) -> list[Any]:
-    """In field order, as a list (a row is decoded on every read). Floats as they are: JSON
-    keeps a float64 exactly (inf too)."""
-    return [
-        format_utc(clock.valid_from) if clock.valid_from else None,
-        format_utc(clock.origin) if clock.origin else None,
-        [format_utc(clock.meter[0]), *clock.meter[1:]] if clock.meter else None,
-        [_ages(a) for a in clock.due_ages] if clock.due_ages else None,
-        clock.last_age_h,
-        clock.state,
-        clock.check_after_h,
-        clock.note_at,
-        clock.check_words,
-        clock.notes,
-        clock.life,
-        [[format_utc(at), temp_c] for at, temp_c in clock.hot],
-        clock.max_temp_c,
-    ]
-
-
-def _decode_clock(data: list[Any]) -> Clock:
-    valid_from, origin, meter, due_ages, *middle, life, hot, max_temp_c = data
-    return Clock(
-        _utc(valid_from) if valid_from else None,
-        _utc(origin) if origin else None,
-        (_utc(meter[0]), *meter[1:]) if meter else None,  # type: ignore[arg-type]
-        tuple(None if a is None else _Ages(*a) for a in due_ages) if due_ages else None,
-        *middle,
-        tuple(life) if life else None,  # type: ignore[arg-type]
-        tuple((_utc(at), temp_c) for at, temp_c in hot),
-        max_temp_c,
-    )
-
-
-def _decode(text: str, now: datetime | None = None) -> FilterStatus:
-    """A kept row; with `now`, brought to that time (`status.at_time`, in one go)."""
-    data = json.loads(text)
-    for name in _TIMES:
-        data[name] = _utc(data[name]) if data.get(name) else None
-    for name in ("due", "bypass_due"):
-        if data.get(name):
-            data[name] = Due(**{k: _utc(v) if v else None for k, v in data[name].items()})
-    data["cold"] = ColdStart(**data["cold"]) if data.get("cold") else None
-    data["life"] = LifeSummary(**data["life"]) if data.get("life") else None
-    for name in ("flags", "notes", "spark"):
-        data[name] = tuple(data.get(name) or ())
-    clock = data["clock"] = _decode_clock(data["clock"]) if data.get("clock") else None
-    if now is not None and clock is not None:
-        data.update(
-            clock_parts(
-                data["flags"],
-                data["notes"],
-                data["due"],
-                data["bypass_due"],
-                data["gauge"],
-                data["overdue_at"],
-                clock,
-                now,
-            )  # fmt: skip
-        )
-    return FilterStatus(**data, history=())
-
-
-def store_status(book: Book, status: FilterStatus, now: datetime, pools: bool = True) -> None:
-    """Keep one status row. `pools`: the status leans on like positions' lives (it has fewer
-    than three failures of its own, or no like lives yet), so a change there makes it stale."""
-    book.conn.execute(
-        "INSERT INTO status_cache(filter, computed_utc, format, data, pools, stale) "
-        "VALUES (?, ?, ?, ?, ?, 0) "
-        "ON CONFLICT(filter) DO UPDATE SET computed_utc = excluded.computed_utc, "
-        "format = excluded.format, data = excluded.data, pools = excluded.pools, stale = 0",
-        [status.filter, format_utc(now), FORMAT, _encode(status), int(pools)],
-    )
+def _decode(text: str, now: datetime) -> FilterStatus:
+    return FilterStatus.from_row(json.loads(text), now)
 
 
 def filter_view(book: Book, tag: str) -> tuple[FilterStatus, Elements]:
-    """What the filter sheet shows, now: the full status (curve, history, forecast) and every
-    element's summary, from the element cache and the entries since the last change (no
-    rereading of the position's history; nothing written)."""
+    """What the filter sheet shows, now: the full status (curve, history, forecast, which no
+    kept row holds) and every element's summary, from the element cache and the entries since
+    the last change (no rereading of the position's history; nothing written)."""
     ctx = context(book, tag)
     els = elements_now(book, ctx)
     status = status_from(ctx, els.past, els.current, book.now(), like_lives(book, ctx, None))
@@ -198,46 +431,91 @@ def live_status(
     now: datetime | None = None,
     like: Sequence[tuple[float, bool]] | None = None,
     keep: bool = False,
-) -> tuple[FilterStatus, bool, bool]:
-    """One filter's status now (the same as `filter_status` computes from every live entry);
-    whether it leans on like positions' lives; whether its removed elements changed.
-    `keep`: bring the element cache up to date (the write path and a refresh only, inside
-    their transaction); otherwise nothing is written."""
+) -> tuple[FilterStatus, bool]:
+    """One filter's status now (the same as `filter_status` computes from every live entry)
+    and whether its removed elements changed. `keep`: bring the element cache up to date (the
+    write path and a refresh only, inside their transaction); otherwise nothing is written."""
     now = now or book.now()
     els = elements_now(book, ctx, keep=keep)
     if like is None:
         like = like_lives(book, ctx, None)
     status = status_from(ctx, els.past, els.current, now, like)
-    return status, own_failures(ctx, els.past) < 3 or not like, els.changed
+    return status, els.changed
 
 
-def after_entry(book: Book, entry: Entry) -> FilterStatus | None:
-    """Called inside the write transaction: refresh the filter the entry touches (when its
-    removed elements changed, mark stale the like positions whose status leans on its
-    lives) and the unit whose fluid-care status it can change. Returns the filter's status
+def after_entry(book: Book, entry: Entry, reg: Register | None = None) -> FilterStatus | None:
+    """Called inside the write transaction: keep the status of the filter the entry touches
+    and of the unit whose fluid-care status it can change. (Like positions that lean on this
+    one's lives no longer match their key: a reader computes them until a refresh keeps
+    them.) `reg`: the register as read once for the whole save. Returns the filter's status
     as kept (None when the entry is on no filter)."""
     unit = _touches_unit(book, entry)
     if unit:
-        refresh_unit(book, unit)
+        refresh_unit(book, unit, reg=reg)
     tag = getattr(entry, "filter", None)
     if isinstance(entry, Void):
         row = book.conn.execute("SELECT filter FROM entries WHERE id = ?", [entry.voids]).fetchone()
         tag = row[0] if row else None
     if not tag:
         return None
-    ctx = context(book, tag)
-    status, pools, changed = live_status(book, ctx, keep=True)
-    store_status(book, status, book.now(), pools)
-    if changed:
-        like = [p.tag for p in like_positions(list_all(book, FilterPosition), ctx)]
-        for i in range(0, len(like), 500):
-            part = like[i : i + 500]
-            book.conn.execute(
-                "UPDATE status_cache SET stale = 1 WHERE pools = 1 AND filter IN "
-                f"({', '.join('?' for _ in part)})",
-                part,
-            )
+    seen = max_rowid(book)
+    status, _ = live_status(book, context(book, tag), keep=True)
+    store_status(book, status, book.now(), seen, reg)
     return status
+
+
+def move_seen_on(book: Book, reg: Register | None = None) -> None:
+    """Inside a save's transaction, after its rows were kept: every kept row whose inputs the
+    entries written since it was checked left as they were is checked up to the newest entry
+    now (so that a reader compares only what was written after). Rows whose inputs moved keep
+    their rowid, and a reader computes them."""
+    newest = max_rowid(book)
+    filters, units = _seen(book, "filter"), _seen(book, "unit")
+    behind = [s for s in (*filters.values(), *units.values()) if s < newest]
+    if not behind:
+        return
+    moved = _moved_since(book, min(behind))
+    reg = reg or register(book)
+    pools: dict[str, bool] = {}
+    if moved.changes:  # (which rows lean on like positions matters only after a change)
+        pools = {
+            tag.upper(): not key.endswith(".own")
+            for tag, key in book.conn.execute("SELECT filter, key FROM status_cache")
+        }
+    good = [
+        tag
+        for tag, seen in filters.items()
+        if seen < newest
+        and not moved.filter_moved(tag, seen, pools.get(tag, True), reg.like.get(tag, ()))
+    ]
+    touched = list(moved.unit_any)[:500]  # a unit's first entry matters only where written
+    firsts = dict(
+        book.conn.execute(
+            "SELECT upper(unit), json_extract(data, '$.first_at') FROM unit_cache "
+            f"WHERE unit IN ({', '.join('?' for _ in touched)})",
+            touched,
+        )
+    )
+    if len(moved.unit_any) > len(touched):
+        firsts = dict(
+            book.conn.execute(
+                "SELECT upper(unit), json_extract(data, '$.first_at') FROM unit_cache"
+            )
+        )
+    good_units = [
+        tag
+        for tag, seen in units.items()
+        if seen < newest
+        and not moved.unit_moved(tag, seen, reg.unit_limits.get(tag), firsts.get(tag))
+    ]
+    for what, tags in (("filter", good), ("unit", good_units)):
+        for i in range(0, len(tags), 500):
+            part = tags[i : i + 500]
+            book.conn.execute(
+                f"UPDATE kept_seen SET seen_rowid = ? WHERE what = ? AND tag IN "
+                f"({', '.join('?' for _ in part)})",
+                [newest, what, *part],
+            )
 
 
 def _inputs_seen(book: Book) -> tuple[int, int]:
@@ -250,102 +528,53 @@ def _inputs_seen(book: Book) -> tuple[int, int]:
     return row[0], row[1]
 
 
-def refresh(book: Book, ctx: FilterContext) -> FilterStatus:
+def refresh(book: Book, ctx: FilterContext, reg: Register | None = None) -> FilterStatus:
     """An explicit refresh: recompute one filter's status now and keep it (with its element
     summaries) in one transaction, or in the caller's.
 
     The fitting runs before the write lock so that a writer is not held up by it; under the
     lock the inputs are compared with what the fitting saw, and if an entry or a register
     change landed in between, the status is computed again there: a kept row never holds a
-    view of the entries older than the moment it is stored."""
+    view of the entries older than the moment it is stored. `reg`: the register as read
+    together with `ctx` (a row keyed with an older register than it was computed from
+    would only fail its key)."""
     now = book.now()
     seen = _inputs_seen(book)
-    status, pools, _ = live_status(book, ctx, now)  # the fitting, before the write lock
+    status, _ = live_status(book, ctx, now)  # the fitting, before the write lock
     with book.atomic():
         if _inputs_seen(book) != seen:
-            ctx = context(book, ctx.position.tag)
-            status, pools, _ = live_status(book, ctx, now, keep=True)
+            ctx, reg = context(book, ctx.position.tag), None
+            seen = _inputs_seen(book)
+            status, _ = live_status(book, ctx, now, keep=True)
         else:
             elements_now(book, ctx, keep=True)
-        store_status(book, status, now, pools)
+        store_status(book, status, now, seen[0], reg)
     return status
 
 
-_Row = tuple[str, int, str, int]  # computed_utc, format, data, stale
-
-
-def _rows(book: Book) -> dict[str, _Row]:
-    return {
-        r[0].upper(): (r[1], r[2], r[3], r[4])
-        for r in book.conn.execute(
-            "SELECT filter, computed_utc, format, data, stale FROM status_cache"
-        )
-    }
-
-
-def _timed(row: _Row | None, now: datetime, stale_ok: bool) -> FilterStatus | None:
-    """The kept status at `now`, or None where it must be recomputed: missing, of another
-    format, marked stale (unless stale_ok), or read at a time before it holds for (the clock
-    set back past its newest reading)."""
-    if row is None or row[1] != FORMAT or (row[3] and not stale_ok):
-        return None
-    if now < _utc(row[0]):  # the clock set back: the row may hold later readings
-        return None
-    status = _decode(row[2], now)
-    return status if status.clock is not None else None
-
-
 def stale_filters(book: Book) -> list[str]:
-    """Tags whose kept status is missing, of an old format or marked stale: what a refresh
-    should recompute (no contexts built: a screen that shows the kept rows at once counts
-    them too). Age alone never makes a row stale."""
-    rows = _rows(book)
+    """Tags whose kept status does not hold now (missing, another key, inputs written since):
+    what a refresh should recompute (no contexts built)."""
+    rows = _kept_rows(book)
+    check = Check(book, rows)
+    now = book.now()
     tags = book.conn.execute("SELECT tag FROM filters ORDER BY tag")
-    return [
-        tag
-        for (tag,) in tags
-        if (row := rows.get(tag.upper())) is None or row[1] != FORMAT or row[3]
-    ]
-
-
-def cached_filters(
-    book: Book,
-    ctxs: Sequence[FilterContext],
-    now: datetime,
-    stale_ok: bool = False,
-) -> list[FilterStatus]:
-    """Every filter's status at `now` from the cache, however long ago it was kept; rows
-    that are missing, of an old format or marked stale are computed in memory (nothing is
-    written: `refresh_stale` keeps them).
-
-    stale_ok takes rows marked stale as they are: a screen can show that at once and let
-    `refresh_stale` catch up in the background."""
-    rows = _rows(book)
-    result: list[FilterStatus] = []
-    for ctx in ctxs:
-        status = _timed(rows.get(ctx.position.tag.upper()), now, stale_ok)
-        if status is None:
-            status = live_status(book, ctx, now)[0]
-        result.append(status)
-    return result
+    return [tag for (tag,) in tags if check.holds(tag.upper(), now) is None]
 
 
 def watch_filters(
-    book: Book,
-    positions: Sequence[FilterPosition],
-    now: datetime,
-    stale_ok: bool = False,
+    book: Book, positions: Sequence[FilterPosition], now: datetime, reg: Register | None = None
 ) -> list[FilterStatus]:
-    """`cached_filters` for register positions, without their contexts: a kept row is read
-    as it is, and only when one must be computed (missing, old format, marked stale unless
-    `stale_ok`, the clock set back) are the plant's contexts built (they resolve each fluid's
-    curve, which may load scipy). So the list read from fresh rows loads none of the fitting
-    maths (tests/cli/test_lean_path.py)."""
-    rows = _rows(book)
+    """Each position's status at `now`: its kept row where that holds (read as it is, no
+    context built), else computed in memory (nothing written). Only when one must be computed
+    are the plant's contexts built (they resolve each fluid's curve, which may load scipy),
+    so the list read from rows that hold loads none of the fitting maths
+    (tests/cli/test_lean_path.py)."""
+    kept = kept_filters(book, [p.tag.upper() for p in positions], now, reg=reg)
     result: list[FilterStatus] = []
     ctxs: dict[str, FilterContext] | None = None
     for position in positions:
-        status = _timed(rows.get(position.tag.upper()), now, stale_ok)
+        status = kept.get(position.tag.upper())
         if status is None:
             if ctxs is None:
                 ctxs = {tag.upper(): c for tag, c in contexts(book).items()}
@@ -354,15 +583,24 @@ def watch_filters(
     return result
 
 
-def kept_filters(book: Book, tags: Sequence[str], now: datetime) -> dict[str, FilterStatus]:
-    """The kept status at `now` of each of `tags` (upper case) whose row can be read then: one
-    of this format, not marked stale, kept at or before `now`. The rest are left out."""
-    rows = _rows(book)
+def kept_filters(
+    book: Book,
+    tags: Iterable[str],
+    now: datetime,
+    audit: bool = False,
+    reg: Register | None = None,
+) -> dict[str, FilterStatus]:
+    """The kept status at `now` of each of `tags` (upper case) whose row holds then (its key
+    matches; `audit`: as the entries stood at `now`), by tag; the rest are left out. `reg`:
+    the register as read for the same list."""
+    tags = list(tags)
+    rows = _kept_rows(book, tags)
+    check = Check(book, rows, reg)
     out = {}
     for tag in tags:
-        status = _timed(rows.get(tag), now, stale_ok=False)
-        if status is not None:
-            out[tag] = status
+        row = check.holds(tag, now, audit)
+        if row is not None:
+            out[tag] = _decode(row.data, now)
     return out
 
 
@@ -371,108 +609,103 @@ def kept_units(
     units: Sequence[Unit],
     filters_by_unit: dict[str, list[FilterPosition]],
     now: datetime,
+    reg: Register | None = None,
 ) -> dict[str, UnitStatus]:
-    """`cached_units` for the units whose kept row can be read at `now` (made from the same
-    register rows, kept at or before `now`), by upper-case tag; the rest are left out."""
+    """The status at `now` of each unit whose kept row holds then (its key matches, kept at
+    or before `now`, no input dated in between), by upper-case tag; the rest are left out."""
+    reg = reg or register(book)
+    seen = _seen(book, "unit")
     rows = {
-        r[0].upper(): (r[1], r[2], r[3])
-        for r in book.conn.execute("SELECT unit, computed_utc, register, data FROM unit_cache")
+        r[0].upper(): r[1:]
+        for r in book.conn.execute(
+            "SELECT unit, key, computed_utc, until_utc, data FROM unit_cache"
+        )
     }
+    oldest = min(seen.values(), default=0)
+    newest = max_rowid(book)
+    moved = _moved_since(book, oldest) if oldest < newest else None
+    stamp = format_utc(now)
     out = {}
     for unit in units:
-        filters = filters_by_unit.get(unit.tag.upper(), [])
-        row = rows.get(unit.tag.upper())
-        if row is not None and row[1] == _unit_key(unit, filters) and _utc(row[0]) <= now:
-            clock = _decode_unit(row[2], unit.tag)
-            out[unit.tag.upper()] = unit_at(unit, filters, clock, now)
+        tag = unit.tag.upper()
+        row = rows.get(tag)
+        if row is None or tag not in seen or row[0] != reg.unit_key(tag):
+            continue
+        key, computed, until, data = row
+        if stamp < computed or (until is not None and stamp >= until):
+            continue
+        row_data = json.loads(data)
+        if (
+            seen[tag] < newest
+            and moved is not None
+            and moved.unit_moved(tag, seen[tag], reg.unit_limits.get(tag), row_data["first_at"])
+        ):
+            continue
+        clock = UnitClock.from_row(row_data, unit.tag)
+        out[tag] = unit_at(unit, filters_by_unit.get(tag, []), clock, now)
     return out
 
 
 def refresh_stale(book: Book, limit: int | None = None) -> list[str]:
-    """The explicit refresh behind a watch list: recompute (at most `limit`) rows that are
-    missing, of an old format or marked stale, and keep them, each in its own transaction.
-    A read-only book is left as it is. Returns the tags done."""
+    """The explicit refresh behind a watch list: recompute (at most `limit`) rows that do not
+    hold now, and keep them, each in its own transaction. A read-only book is left as it is.
+    Returns the tags done."""
     if book.readonly:
         return []
-    ctxs = contexts(book)
+    reg, ctxs = register(book), contexts(book)
     tags = stale_filters(book)[:limit]
     for tag in tags:
-        refresh(book, ctxs[tag.upper()])
+        refresh(book, ctxs[tag.upper()], reg)
     units = _stale_units(book)
     if units:
         with book.atomic():
+            reg = register(book)
             for tag in units:
-                refresh_unit(book, tag)
+                refresh_unit(book, tag, reg=reg)
     return tags
 
 
 # ---- units ---------------------------------------------------------------------------------------
 
-UNIT_FORMAT = 4  # 4: the newest sample's water content kept (a key on old rows recomputes them)
 
-
-def _unit_key(unit: Unit, filters: Sequence[FilterPosition]) -> str:
-    """The register rows a unit's status depends on (its own, its filters' ratings)."""
-    own = {f.name: getattr(unit, f.name) for f in fields(unit)}  # asdict, without its deep copy
-    return json.dumps(
-        [UNIT_FORMAT, own, [[f.tag, f.rating_um] for f in filters]], ensure_ascii=False
+def _store_unit(book: Book, tag: str, clock: UnitClock, key: str, seen: int) -> None:
+    """Keep one unit's row, with the first input dated after it was computed (it holds
+    until then)."""
+    stamp = format_utc(clock.valid_from)
+    conn = book.conn
+    later = [
+        conn.execute(
+            "SELECT min(at_utc) FROM entries WHERE unit = ? AND at_utc > ?", [tag, stamp]
+        ).fetchone()[0],
+        conn.execute(
+            "SELECT min(v.at_utc) FROM entries v INDEXED BY one_void_per_entry "
+            "CROSS JOIN entries e ON e.id = v.voids WHERE v.voids IS NOT NULL AND e.unit = ? "
+            "AND v.at_utc > ?",
+            [tag, stamp],
+        ).fetchone()[0],
+    ]
+    conn.execute(
+        "INSERT OR REPLACE INTO unit_cache(unit, key, computed_utc, until_utc, data) "
+        "VALUES (?, ?, ?, ?, ?)",
+        [
+            tag,
+            key,
+            stamp,
+            min((d for d in later if d), default=None),
+            json.dumps(clock.to_row(), ensure_ascii=False),
+        ],
     )
-
-
-def _encode_unit(clock: UnitClock) -> str:
-    return json.dumps(
-        {
-            "valid_from": format_utc(clock.valid_from),
-            "first_at": format_utc(clock.first_at) if clock.first_at else None,
-            "early_l": clock.early_l,
-            "early_n": clock.early_n,
-            "topups": [
-                [t.id, format_utc(t.at), t.volume_l, t.filtered_um, t.hours]  # type: ignore[arg-type]
-                for t in clock.topups
-            ],
-            "sample": clock.sample,
-            "hot": [format_utc(at) for at in clock.hot],
-            "water": clock.water_ppm,
-        },
-        ensure_ascii=False,
-    )
-
-
-def _decode_unit(text: str, tag: str) -> UnitClock:
-    data = json.loads(text)
-    return UnitClock(
-        valid_from=_utc(data["valid_from"]),
-        first_at=_utc(data["first_at"]) if data["first_at"] else None,
-        early_l=data["early_l"],
-        early_n=data["early_n"],
-        topups=tuple(
-            TopUp(id=i, at=_utc(at), unit=tag, volume_l=v, filtered_um=um, hours=h)
-            for i, at, v, um, h in data["topups"]
-        ),
-        sample=tuple(data["sample"]) if data["sample"] else None,  # type: ignore[arg-type]
-        hot=tuple(_utc(at) for at in data["hot"]),
-        water_ppm=data.get("water"),
-    )
-
-
-def _store_unit(book: Book, tag: str, clock: UnitClock, key: str) -> None:
-    book.conn.execute(
-        "INSERT OR REPLACE INTO unit_cache(unit, computed_utc, register, data) VALUES (?, ?, ?, ?)",
-        [tag, format_utc(clock.valid_from), key, _encode_unit(clock)],
-    )
+    _store_seen(book, "unit", [tag], seen)
 
 
 def _stale_units(book: Book) -> list[str]:
-    """Units whose kept row is missing or made from other register rows or another format."""
-    rows = dict(book.conn.execute("SELECT upper(unit), register FROM unit_cache").fetchall())
+    """Units whose kept row does not hold now."""
+    units = list_all(book, Unit)
     by_unit: dict[str, list[FilterPosition]] = {}
     for position in list_all(book, FilterPosition):
         by_unit.setdefault(position.unit.upper(), []).append(position)
-    return [
-        u.tag
-        for u in list_all(book, Unit)
-        if rows.get(u.tag.upper()) != _unit_key(u, by_unit.get(u.tag.upper(), []))
-    ]
+    kept = kept_units(book, units, by_unit, book.now())
+    return [u.tag for u in units if u.tag.upper() not in kept]
 
 
 def cached_units(
@@ -480,11 +713,11 @@ def cached_units(
     units: Sequence[Unit],
     filters_by_unit: dict[str, list[FilterPosition]],
     now: datetime,
+    reg: Register | None = None,
 ) -> list[UnitStatus]:
-    """Every unit's status at `now` from its kept entries, however long ago they were kept;
-    rows missing, made from other register rows or read before they hold for are computed
-    in memory (nothing is written)."""
-    kept = kept_units(book, units, filters_by_unit, now)
+    """Every unit's status at `now`: from its kept row where that holds, else computed in
+    memory (nothing is written)."""
+    kept = kept_units(book, units, filters_by_unit, now, reg)
     result = []
     for unit in units:
         status = kept.get(unit.tag.upper())
@@ -495,22 +728,26 @@ def cached_units(
     return result
 
 
-def refresh_unit(book: Book, tag: str, now: datetime | None = None) -> UnitStatus | None:
+def refresh_unit(
+    book: Book, tag: str, now: datetime | None = None, reg: Register | None = None
+) -> UnitStatus | None:
     """Recompute one unit's kept entries and keep them (in a save: in its transaction)."""
     unit = find(book, Unit, tag)
     if unit is None:
         return None
     now = now or book.now()
     filters = list_all(book, FilterPosition, unit.tag)
-    clock = unit_clock(book, unit, now)
     with book.atomic():
-        _store_unit(book, unit.tag, clock, _unit_key(unit, filters))
+        seen = max_rowid(book)
+        clock = unit_clock(book, unit, now)
+        key = (reg or register(book)).unit_key(unit.tag.upper())
+        _store_unit(book, unit.tag, clock, key, seen)
     return unit_at(unit, filters, clock, now)
 
 
 def _touches_unit(book: Book, entry: Entry) -> str | None:
-    """The unit whose status this entry can change: top-ups, samples and notes (and a void
-    of anything) always, a reading if it is hot, anything dated before the unit's first
+    """The unit whose status this entry can change: top-ups and samples (and a void of
+    anything) always, a reading if it is hot, anything dated at or before the unit's first
     entry (the top-up history starts there)."""
     if isinstance(entry, Void):
         row = book.conn.execute("SELECT unit FROM entries WHERE id = ?", [entry.voids]).fetchone()
@@ -540,11 +777,11 @@ class _Rebuilt:
     tag: str
     context: str
     seen_rowid: int
-    elements: list[tuple[str, bytes, str]]  # (removal id, data, curve) oldest first
+    elements: list[tuple[str, str, bytes]]  # (removal id, data, curve) oldest first
     last_change: str | None
     last_change_utc: str | None
-    status: str  # encoded status row
-    pools: bool
+    status: FilterStatus
+    register: Register
 
 
 def _compute(book: Book, tags: Sequence[str], now: datetime) -> list[_Rebuilt]:
@@ -553,12 +790,12 @@ def _compute(book: Book, tags: Sequence[str], now: datetime) -> list[_Rebuilt]:
     positions = list_all(book, FilterPosition)
     changes = live_changes(book, None)
     seen = max_rowid(book)
+    reg = register(book)
     out = []
     for tag in tags:
         ctx = ctxs[tag.upper()]
         past, current = split_summaries(ctx, element_items(book, ctx.position.tag))
         like = like_lives_from(changes, positions, ctx)
-        status = status_from(ctx, past, current, now, like)
         last = past[-1] if past else None
         out.append(
             _Rebuilt(
@@ -568,8 +805,8 @@ def _compute(book: Book, tags: Sequence[str], now: datetime) -> list[_Rebuilt]:
                 [(el.removal_id, *encode_element(el)) for el in past],
                 last.removal_id if last else None,
                 format_utc(last.removed_at) if last else None,
-                _encode(status),
-                own_failures(ctx, past) < 3 or not like,
+                status_from(ctx, past, current, now, like),
+                reg,
             )
         )
     return out
@@ -600,11 +837,7 @@ def _store_rebuilt(book: Book, rows: Sequence[_Rebuilt], now: datetime) -> None:
             "last_change_utc, elements) VALUES (?, ?, ?, ?, ?, ?)",
             [r.tag, r.context, r.seen_rowid, r.last_change, r.last_change_utc, len(r.elements)],
         )
-        conn.execute(
-            "INSERT OR REPLACE INTO status_cache(filter, computed_utc, format, data, pools, "
-            "stale) VALUES (?, ?, ?, ?, ?, 0)",
-            [r.tag, format_utc(now), FORMAT, r.status, int(r.pools)],
-        )
+        store_status(book, r.status, now, r.seen_rowid, r.register)
 
 
 def rebuild(book: Book) -> int:
@@ -613,30 +846,17 @@ def rebuild(book: Book) -> int:
     now = book.now()
     tags = [ctx.position.tag for ctx in contexts(book).values()]
     with book.atomic():
-        for table in ("element_state", "element_cache", "status_cache", "unit_cache"):
+        for table in ("element_state", "element_cache", "status_cache", "unit_cache", "kept_seen"):
             book.conn.execute(f"DELETE FROM {table}")
     rows = _compute_in_snapshot(book, tags, now)
     for i in range(0, len(rows), WRITE_CHUNK):
         with book.atomic():
             _store_rebuilt(book, rows[i : i + WRITE_CHUNK], now)
-    # Entries written while we computed: their filters again, from the cache just kept.
-    seen = min((r.seen_rowid for r in rows), default=0)
-    touched = {
-        row[0].upper()
-        for row in book.conn.execute(
-            "SELECT e.filter FROM entries v JOIN entries e ON e.id = coalesce(v.voids, v.id) "
-            "WHERE v.rowid > ? AND e.filter IS NOT NULL",
-            [seen],
-        )
-    }
-    if touched:
-        ctxs = contexts(book)
-        with book.atomic():
-            for tag in touched:
-                if tag in ctxs:
-                    status, pools, _ = live_status(book, ctxs[tag], now, keep=True)
-                    store_status(book, status, now, pools)
     with book.atomic():
+        reg = register(book)
         for unit in list_all(book, Unit):
-            refresh_unit(book, unit.tag, now)
+            refresh_unit(book, unit.tag, now, reg)
+        # Entries written while we computed: the rows they touch no longer match their key
+        # and stay behind (a reader computes them); every other row is checked up to now.
+        move_seen_on(book, reg)
     return len(rows)

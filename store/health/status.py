@@ -13,17 +13,18 @@ Flag codes (also listed in the README):
 from __future__ import annotations
 
 import math
+from array import array
+from base64 import b64decode, b64encode
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass, field, replace
+from dataclasses import asdict, dataclass, field, fields, replace
 from datetime import datetime, timedelta
 from functools import partial
 from typing import TYPE_CHECKING, Any, NamedTuple
 
-from dateutil import tz
-
 from store.base.errors import BookError
-from store.base.timeutil import iso_local
+from store.base.timeutil import format_utc
 from store.db.book import Book
+from store.health import rules
 from store.health import urgency as ranking
 from store.health.conditions import FilterContext, contexts_from, shortest_read_h
 from store.health.elements import (
@@ -47,8 +48,15 @@ from store.health.fluidcare import (
     topup_filtration_problem,
 )
 from store.health.lives import like_lives, like_lives_all, live_changes
+from store.health.notes import NOTE_TEXT, Note
 from store.ledger.entries import Entry, TopUp
-from store.ledger.journal import breather_swaps, element_items_until, live_changes_until, read
+from store.ledger.journal import (
+    breather_swaps,
+    element_items_until,
+    live_changes_until,
+    parse_stamp,
+    read,
+)
 from store.ledger.register import Breather, FilterPosition, Fluid, Unit, list_all
 from store.physics.normalise import ColdStart, cold_start
 
@@ -83,11 +91,34 @@ FLAG_WORDS = {
 }
 
 
+def _stamp(moment: datetime | None) -> str | None:
+    return None if moment is None else format_utc(moment)
+
+
+def _moment(text: str | None) -> datetime | None:
+    """A time as a kept row holds it (format_utc's, so read as it is)."""
+    return None if text is None else _from_iso(text)
+
+
+_from_iso = datetime.fromisoformat
+
+
 @dataclass(frozen=True)
 class Due:
     earliest: datetime
     likely: datetime
     latest: datetime | None  # None: no upper bound the data can support
+
+    def to_row(self) -> dict[str, Any]:
+        return {
+            "earliest": format_utc(self.earliest),
+            "likely": format_utc(self.likely),
+            "latest": _stamp(self.latest),
+        }
+
+    @classmethod
+    def from_row(cls, row: dict[str, Any]) -> Due:
+        return cls(_from_iso(row["earliest"]), _from_iso(row["likely"]), _moment(row["latest"]))
 
 
 MAX_AGE_H = 20 * 8766.0  # twenty years of element age: later "dates" are no dates
@@ -119,7 +150,7 @@ class LifeSummary:
     b50_h: float
     n_failed: int
     n_censored: int
-    pooled: bool  # includes like positions (same element)
+    pooled: bool  # fitted with like positions' lives (same element): too few of its own
 
 
 def weibull_remaining_h(shape: float, scale_h: float, age_h: float, p: float) -> float:
@@ -145,9 +176,6 @@ class Clock:
     last_age_h: float  # the newest reading's age: the forecast's "now" is never earlier
     state: str  # the state before the clock's say (check-now, indicator-only)
     check_after_h: float | None  # an "ok" element is "check-now" once older than this
-    note_at: int  # index of the forecast's note in the notes (-1: none) ...
-    check_words: str  # ... and what it says after its "ok" words once it is "check-now"
-    notes: int  # notes that do not move with the clock (the hot note follows them)
     life: tuple[float, float] | None  # Weibull (shape, scale_h): service-life due, given age
     hot: tuple[tuple[datetime, float], ...]  # (time, °C) of hot readings that can still count
     max_temp_c: float
@@ -166,6 +194,39 @@ class Clock:
             return last_t + timedelta(days=(age_h - age_then) / rate)
         return (self.origin or now) + timedelta(hours=age_h)
 
+    def to_row(self) -> dict[str, Any]:
+        """By field name; floats as they are (JSON keeps a float64 exactly, inf too)."""
+        return {
+            "valid_from": _stamp(self.valid_from),
+            "origin": _stamp(self.origin),
+            "meter": [format_utc(self.meter[0]), *self.meter[1:]] if self.meter else None,
+            "due_ages": None
+            if self.due_ages is None
+            else [None if a is None else list(a) for a in self.due_ages],
+            "last_age_h": self.last_age_h,
+            "state": self.state,
+            "check_after_h": self.check_after_h,
+            "life": list(self.life) if self.life else None,
+            "hot": [[format_utc(at), temp_c] for at, temp_c in self.hot],
+            "max_temp_c": self.max_temp_c,
+        }
+
+    @classmethod
+    def from_row(cls, row: dict[str, Any]) -> Clock:
+        meter, due_ages, life, hot = row["meter"], row["due_ages"], row["life"], row["hot"]
+        return cls(  # in field order
+            _moment(row["valid_from"]),
+            _moment(row["origin"]),
+            None if meter is None else (_from_iso(meter[0]), meter[1], meter[2]),
+            None if due_ages is None else tuple(None if a is None else _Ages(*a) for a in due_ages),  # type: ignore[arg-type]
+            row["last_age_h"],
+            row["state"],
+            row["check_after_h"],
+            None if life is None else (life[0], life[1]),
+            tuple([(_from_iso(at), temp_c) for at, temp_c in hot]) if hot else (),
+            row["max_temp_c"],
+        )
+
 
 CLOCK_FLAGS = ("reading-overdue", "hot")  # the flags `at_time` sets (always the last ones)
 
@@ -175,7 +236,7 @@ def at_time(status: FilterStatus, clock: Clock, now: datetime) -> FilterStatus:
     a service-life due given the age so far, reading-overdue and hot, from the status
     computed at any other time."""
     parts = clock_parts(
-        status.flags, status.notes, status.due, status.bypass_due, status.gauge,
+        status.flags, status.note_codes, status.due, status.bypass_due, status.gauge,
         status.overdue_at, clock, now,
     )  # fmt: skip
     return replace(status, **parts, clock=clock)
@@ -183,7 +244,7 @@ def at_time(status: FilterStatus, clock: Clock, now: datetime) -> FilterStatus:
 
 def clock_parts(
     flags_then: Sequence[str],
-    notes_then: Sequence[str],
+    note_codes: Sequence[Note],
     due: Due | None,
     bypass_due: Due | None,
     gauge: bool,
@@ -192,7 +253,7 @@ def clock_parts(
     now: datetime,
 ) -> dict[str, Any]:
     """The fields of a status that `at_time` sets, from the ones it reads (a kept row is
-    decoded straight into them)."""
+    decoded straight into them): the notes' words among them."""
     age_now = clock.age_h(now)
     state = clock.state
     time_at = partial(clock.time_at, now=now)
@@ -210,18 +271,14 @@ def clock_parts(
     if not gauge and due is None and state in ("no-readings", "too-few-readings"):
         state = "indicator-only"
     flags = [f for f in flags_then if f not in CLOCK_FLAGS]
-    notes = list(notes_then[: clock.notes])
-    if clock.note_at >= 0:
-        note = notes[clock.note_at].removesuffix(clock.check_words)
-        notes[clock.note_at] = note + clock.check_words if state == "check-now" else note
+    notes = [note.text(state) for note in note_codes]
     if overdue_at and now > overdue_at:
         flags.append("reading-overdue")
     recent_hot = [temp_c for at, temp_c in clock.hot if now - at <= HOT_LOOKBACK]
     if recent_hot:
         flags.append("hot")
-        notes.append(
-            f"fluid at {max(recent_hot):.0f} °C, over the unit's {clock.max_temp_c:g} °C limit"
-        )
+        hot = Note("hot", {"temp_c": max(recent_hot), "limit_c": clock.max_temp_c})
+        notes.append(hot.text(state))
     return {
         "state": state,
         "due": due,
@@ -265,6 +322,7 @@ class FilterStatus:
     pace: float | None = None  # earlier lives / this element's likely life (> 1: faster)
     next_reading: datetime | None = None  # read again by then (store/forecast/readplan.py)
     next_rule: str = ""  # what set it: readplan.RULES
+    note_codes: tuple[Note, ...] = ()  # the notes as codes (`notes` are their words, at_time)
     forecast: trend.Forecast | None = field(default=None, compare=False)
     age_to_time: Any = field(default=None, compare=False)  # element age (h) -> datetime
     clock: Clock | None = field(default=None, compare=False)  # what moves with the clock
@@ -276,6 +334,89 @@ class FilterStatus:
         overdue = self.state in ranking.OVERDUE_STATES
         due = self.due.likely if self.due else None
         return ranking.order_key(self.flags, overdue, due, self.percent_of_limit, self.filter)
+
+    def to_row(self) -> dict[str, Any]:
+        """What a kept row holds, by field name: everything but what `at_time` works out when
+        the row is read (the notes' words, the element's age) and what only a computation
+        has (history, forecast, age_to_time); the notes as their codes."""
+        row: dict[str, Any] = {}
+        for name in ROW_FIELDS:
+            value = getattr(self, name)
+            if name in _ROW_TIMES:
+                value = _stamp(value)
+            elif name in ("due", "bypass_due"):
+                value = None if value is None else value.to_row()
+            elif name in ("cold", "life"):
+                value = None if value is None else asdict(value)
+            elif name == "note_codes":
+                value = [note.to_row() for note in value]
+            elif name == "clock":
+                value = None if value is None else value.to_row()
+            elif name == "flags":
+                value = list(value)
+            elif name == "spark":  # float64 exactly, packed: JSON reads 40 numbers slowly
+                value = b64encode(array("d", value).tobytes()).decode()
+            row[name] = value
+        return row
+
+    @classmethod
+    def from_row(cls, row: dict[str, Any], now: datetime) -> FilterStatus:
+        """A kept row brought to `now` (`at_time`'s parts worked out in one go)."""
+        clock = Clock.from_row(row["clock"])
+        due, bypass_due = row["due"], row["bypass_due"]
+        if clock.due_ages is None:  # (otherwise clock_parts dates them again)
+            due = None if due is None else Due.from_row(due)
+            bypass_due = None if bypass_due is None else Due.from_row(bypass_due)
+        cold, life = row["cold"], row["life"]
+        spark = array("d")
+        spark.frombytes(b64decode(row["spark"]))
+        codes = tuple([Note.from_row(n) for n in row["note_codes"]])
+        overdue_at = _moment(row["overdue_at"])
+        flags = tuple(row["flags"])
+        timed = clock_parts(flags, codes, due, bypass_due, row["gauge"], overdue_at, clock, now)
+        return cls(
+            row["filter"],
+            row["unit"],
+            row["kind"],
+            row["gauge"],
+            row["dp_bar"],
+            row["dp_ref_bar"],
+            row["temp_c"],
+            row["indicator"],
+            _moment(row["reading_at"]),
+            row["limit_bar"],
+            row["bypass_bar"],
+            row["clean_bar"],
+            row["percent_of_limit"],
+            timed["due"],
+            timed["bypass_due"],
+            row["basis"],
+            timed["state"],
+            timed["flags"],
+            timed["notes"],
+            row["readings_since_change"],
+            _moment(row["changed_at"]),
+            timed["element_age_h"],
+            row["reference"],
+            None if cold is None else ColdStart(**cold),
+            None if life is None else LifeSummary(**life),
+            (),  # history: no kept row has it
+            tuple(spark),
+            overdue_at,
+            row["pace"],
+            _moment(row["next_reading"]),
+            row["next_rule"],
+            codes,
+            None,
+            None,
+            clock,
+        )
+
+
+# What FilterStatus.to_row keeps (every field but these), and which of them are times.
+_NOT_KEPT = ("notes", "element_age_h", "history", "forecast", "age_to_time")
+ROW_FIELDS = tuple(f.name for f in fields(FilterStatus) if f.name not in _NOT_KEPT)
+_ROW_TIMES = ("reading_at", "changed_at", "overdue_at", "next_reading")
 
 
 @dataclass(frozen=True)
@@ -318,8 +459,9 @@ class Watch:
 
 def _life(
     ctx: FilterContext, past: Sequence[ElementSummary], like: Sequence[tuple[float, bool]]
-) -> WeibullFit | None:
-    """Weibull of this position's element lives; pooled with like positions if it has few."""
+) -> tuple[WeibullFit | None, bool]:
+    """Weibull of this position's element lives, pooled with like positions' if it has too
+    few for a fit of its own; and whether it was pooled."""
     from store.forecast.life import fit_weibull  # deferred: numpy/scipy load on first fit
 
     failed, censored = [], []
@@ -330,10 +472,11 @@ def _life(
         (failed if el.reached_limit(ctx.position.limit_bar) else censored).append(life)
     fit = fit_weibull(failed, censored) if len(failed) >= 3 else None
     if fit is None and like:
-        fit = fit_weibull(
+        pooled = fit_weibull(
             failed + [h for h, r in like if r], censored + [h for h, r in like if not r]
         )
-    return fit
+        return pooled, pooled is not None
+    return fit, False
 
 
 def own_failures(ctx: FilterContext, past: Sequence[ElementSummary]) -> int:
@@ -436,9 +579,6 @@ def status_from(
         last_age_h=max((p.age_h for p in numeric), default=0.0),
         state="",
         check_after_h=None,
-        note_at=-1,
-        check_words="",
-        notes=0,
         life=None,
         hot=tuple(
             (p.at, p.temp_c)
@@ -452,8 +592,8 @@ def status_from(
     age_now, age_to_time = clock.age_h(now), partial(clock.time_at, now=now)
 
     flags: list[str] = []
-    notes: list[str] = []
-    fit = _life(ctx, past, like)
+    notes: list[Note] = []
+    fit, pooled = _life(ctx, past, like)
     life = None
     if fit is not None:
         life = LifeSummary(
@@ -461,7 +601,7 @@ def status_from(
             fit.age_at_fraction_h(0.50),
             fit.n_failed,
             fit.n_censored,
-            pooled=bool(like),
+            pooled=pooled,
         )
 
     forecast = None
@@ -470,7 +610,7 @@ def status_from(
     if not pos.limit_bar or not pos.bypass_bar:
         state = "no-limits"
         flags.append("no-limits")
-        notes.append("set the change limit and bypass ΔP to get a due date")
+        notes.append(Note("no-limits"))
     if pos.limit_bar:
         readings = trend.ElementReadings(
             ages_h=tuple(p.age_h for p in numeric),
@@ -489,21 +629,20 @@ def status_from(
         except BookError as exc:  # settings the forecast cannot use: say so, keep the rest
             forecast = None
             state = "no-forecast"
-            notes.append(f"no forecast: {exc}")
+            notes.append(Note("no-forecast", {"error": str(exc)}))
         if forecast is not None:
             basis, state = forecast.basis, forecast.state
+            note = Note("forecast", {"text": forecast.note})
             if state in ("ok", "check-now") and forecast.to_limit is not None:
-                # check-now moves with the clock: keep the "ok" state and both notes.
-                words = trend._state_text("check-now", clock.last_age_h)
+                # check-now moves with the clock: keep the "ok" state, and the forecast's
+                # sentence without the check-now words (`Note.text` adds them when due).
+                at_h = clock.last_age_h
+                words = NOTE_TEXT["check-now"].format(at_h=at_h)
                 state = "ok"
-                clock = replace(
-                    clock,
-                    check_after_h=forecast.to_limit.likely_h,
-                    note_at=len(notes),
-                    check_words=words,
-                )
+                clock = replace(clock, check_after_h=forecast.to_limit.likely_h)
+                note = Note("forecast", {"text": forecast.note.removesuffix(words), "at_h": at_h})
             if forecast.note:
-                notes.append(forecast.note)
+                notes.append(note)
             due = _due(forecast.to_limit, age_to_time)
             bypass_due = _due(forecast.to_bypass, age_to_time)
             if clock.origin is None:  # dated from now: at_time dates them again
@@ -511,11 +650,7 @@ def status_from(
     pace = _pace(ctx, past, forecast)
     if pace is not None and pace.fast:
         flags.append("fast-loading")
-        notes.append(
-            f"loading about {pace.ratio:.1f}× the pace of the last {pace.n} elements: something "
-            "changed (dirt getting in, a wrong or faulty element, wear upstream): take a fluid "
-            "sample, check the breather and recent top-ups"
-        )
+        notes.append(Note("fast-loading", {"ratio": pace.ratio, "n": pace.n}))
     if (
         due is None
         and state in ("too-few-readings", "no-readings", "flat")
@@ -527,60 +662,40 @@ def status_from(
         # Given it has lasted this long: the 5 %, 10 % (the planned change) and 50 % points
         # (at_time works them out for the age now).
         clock = replace(clock, life=(fit.shape, fit.scale_h))
-        notes.append(
-            f"planned from earlier element lives: 10 % reach the limit by {b10:.0f} h of service"
-        )
+        notes.append(Note("service-life", {"b10_h": b10}))
     if due is None and basis == "none" and not pos.gauge:
         basis = "interval"
 
     dp_ref = numeric[-1].dp_ref_bar if numeric else None
     percent = 100 * dp_ref / pos.limit_bar if dp_ref is not None and pos.limit_bar else None
-    if dp_ref is not None and pos.bypass_bar and dp_ref >= pos.bypass_bar:
-        flags.append("at-bypass")
-    elif dp_ref is not None and pos.limit_bar and dp_ref >= pos.limit_bar:
-        flags.append("over-limit")
-    if (
-        last
-        and last.dp_bar is not None
-        and pos.bypass_bar
-        and last.dp_bar >= pos.bypass_bar
-        and "at-bypass" not in flags
-    ):
-        flags.append("at-bypass")
-        notes.append("the gauge read at or over the bypass setting: unfiltered oil passed")
-    if last and last.indicator == "bypass":
-        flags.append("indicator-bypass")
-    elif last and last.indicator == "dirty":
-        flags.append("indicator-dirty")
-    # In age order: a late entry or an hour meter read out of turn must not stop a save; at
-    # one age, in logging order (the newest last, whatever its value).
-    series = anomaly.age_ordered([(p.age_h, p.dp_ref_bar) for p in numeric])
-    drop = anomaly.drop_without_change(series)
-    if drop is not None:
-        flags.append("dp-drop")
-        notes.append(f"{drop.reason}; {drop.advice}")
-    step = anomaly.step_up(series)
-    if step is not None:
-        flags.append("step-up")
-        notes.append(f"{step.reason}; {step.advice}")
-    cold = None
+    cold, cold_error = None, None
     if dp_ref is not None and pos.bypass_bar and ctx.curve and ctx.reference:
         try:
             cold = cold_start(
                 dp_ref, pos.bypass_bar, unit.coldest_start_c, ctx.curve, ctx.reference
             )
         except BookError as exc:
-            notes.append(f"cold start not computed: {exc}")
-        if cold and cold.bypasses:
-            flags.append("cold-start-bypass")
-            notes.append(
-                f"a start at {unit.coldest_start_c:g} °C would give "
-                f"{cold.dp_at_start_bar:.2f} bar and open the bypass "
-                f"(below {cold.bypass_below_c:.0f} °C)"
-            )
-    if numeric and (young := new_element_high(percent, numeric[-1].age_h)) is not None:
-        flags.append("new-element-high")
-        notes.append(young)
+            cold_error = str(exc)
+    facts = rules.Facts(
+        pos.limit_bar,
+        pos.bypass_bar,
+        unit.coldest_start_c,
+        dp_ref,
+        last,
+        # In age order: a late entry or an hour meter read out of turn must not stop a save;
+        # at one age, in logging order (the newest last, whatever its value).
+        anomaly.age_ordered([(p.age_h, p.dp_ref_bar) for p in numeric]),
+        percent,
+        numeric[-1].age_h if numeric else None,
+        cold,
+        cold_error,
+    )
+    for rule in rules.READING_RULES:
+        for flag, note in rule(facts):
+            if flag:
+                flags.append(flag)
+            if note:
+                notes.append(note)
     last_seen = max(
         [p.at for p in points] + ([current.fitted_at] if current.fitted_at else []), default=None
     )
@@ -593,7 +708,7 @@ def status_from(
     overdue_at = None
     if last_seen and next_reading:
         overdue_at = last_seen + 1.5 * (next_reading - last_seen)
-    clock = replace(clock, state=state, notes=len(notes))
+    clock = replace(clock, state=state)
     status = FilterStatus(
         filter=pos.tag,
         unit=pos.unit,
@@ -613,7 +728,7 @@ def status_from(
         basis=basis,
         state=state,
         flags=tuple(dict.fromkeys(flags)),
-        notes=tuple(notes),
+        notes=(),  # their words: at_time
         readings_since_change=len(points),
         changed_at=current.fitted_at,
         element_age_h=age_now,
@@ -626,6 +741,7 @@ def status_from(
         pace=None if pace is None else round(pace.ratio, 3),
         next_reading=next_reading,
         next_rule=next_rule,
+        note_codes=tuple(notes),
         forecast=forecast,
         age_to_time=age_to_time,
     )
@@ -773,31 +889,34 @@ def filters_as_of(
     ctxs: Sequence[FilterContext],
     positions: Sequence[FilterPosition],
     now: datetime,
-    kept_before: KeptBefore | None = None,
+    kept: KeptSummaries | None = None,
 ) -> list[FilterStatus]:
     """`status_as_of(book, ctx, now)` of each of `ctxs` (`positions` being every position in
     the register): the same sums, from a few reads for the whole plant instead of three
-    queries and an entry per reading for each position. `kept_before` (from a layer that may
-    read the element cache: store.derived.elementcache.kept_before) gives the summaries of elements taken
-    out before `now` where they are provably what the entries give as they stood then, and
-    where each position's entries must be read from; without it every history is read."""
+    queries and an entry per reading for each position. `kept` (worked out by a layer that may
+    read the element cache, store.derived.elementcache.kept_before, from `changes_as_of`)
+    gives the summaries of elements taken out before `now` where they are provably what the
+    entries give as they stood then, and where each position's entries must be read from;
+    without it every history is read."""
     until = now + timedelta(seconds=1)
-    changes = live_changes_until(book, until)
-    kept: dict[str, list[ElementSummary]] = {}
-    starts = {c.position.tag.upper(): ("", 0) for c in ctxs}
-    if kept_before is not None:
-        kept, starts = kept_before(book, ctxs, changes, until)
-    whole = not kept and len(ctxs) == len(positions)  # every history from its beginning
+    changes, summaries, starts = kept or (live_changes_until(book, until), {}, {})
+    starts = {c.position.tag.upper(): starts.get(c.position.tag.upper(), ("", 0)) for c in ctxs}
+    whole = not summaries and len(ctxs) == len(positions)  # every history from its beginning
     items = element_items_until(book, until, None if whole else starts, changes)
     like = like_lives_all(live_changes(book, until), positions)
     out = []
     for ctx in ctxs:
         key = ctx.position.tag.upper()
         past, current = split_summaries(ctx, items.get(key, []))
-        if key in kept:
-            past = kept[key] + past[1:]  # the first ended with the change read from
+        if key in summaries:
+            past = summaries[key] + past[1:]  # the first ended with the change read from
         out.append(status_from(ctx, past, current, now, like[ctx.position.tag]))
     return out
+
+
+def changes_as_of(book: Book, now: datetime) -> list[tuple[str, int, Entry]]:
+    """The live element changes as the book stood at `now`: (at_utc, rowid, entry)."""
+    return live_changes_until(book, now + timedelta(seconds=1))
 
 
 # ---- the whole book ------------------------------------------------------------------------------
@@ -851,43 +970,23 @@ def watch_list(
     return Watch(now, tuple(filters), tuple(breathers), tuple(units))
 
 
-# (book, contexts, live changes as of a time, that time + 1 s) -> (summaries kept, starts)
-KeptBefore = Callable[
-    [Book, Sequence[FilterContext], Sequence[tuple[str, int, Entry]], datetime],
-    tuple[dict[str, list[ElementSummary]], dict[str, tuple[str, int]]],
+# (live changes as of a time, element summaries kept by upper-case tag, where each
+# position's entries are read from): what filters_as_of may start from
+KeptSummaries = tuple[
+    Sequence[tuple[str, int, Entry]],
+    dict[str, list[ElementSummary]],
+    dict[str, tuple[str, int]],
 ]
 
 
-# (book, the plant, every position, the time) -> the statuses that stand for some filters and
-# some units then, by upper-case tag (a layer that may read the status cache decides which)
-Standing = Callable[
-    [Book, "Plant", Sequence[FilterPosition], datetime],
-    tuple[dict[str, FilterStatus], dict[str, UnitStatus]],
-]
-
-
-def watch_as_of(
-    book: Book,
-    as_of: datetime,
-    unit: str | None = None,
-    kept_before: KeptBefore | None = None,
-    standing: Standing | None = None,
-) -> Watch:
-    """The watch list as of a past time, computed from the entries as they stood then. With
-    `kept_before`, element summaries the element cache provably holds for that time; with
-    `standing`, statuses that provably stand for some filters and units then (store.views
-    gives both); without them nothing kept is read. The list now is store.views.watch."""
+def watch_as_of(book: Book, as_of: datetime, unit: str | None = None) -> Watch:
+    """The watch list as of a past time, computed from the entries as they stood then,
+    nothing kept read (store.views.watch uses the kept rows that hold then)."""
     p = plant(book, unit)
     positions = list_all(book, FilterPosition)
-    kept_f, kept_u = standing(book, p, positions, as_of) if standing else ({}, {})
-    rest = [c for c in p.contexts if c.position.tag.upper() not in kept_f]
-    # `status_as_of` of each other filter, for the whole plant at once (the same sums).
-    computed = iter(filters_as_of(book, rest, positions, as_of, kept_before))
-    filters = [kept_f.get(c.position.tag.upper()) or next(computed) for c in p.contexts]
+    filters = filters_as_of(book, p.contexts, positions, as_of)
     units = [
-        kept_u.get(u.tag.upper())
-        or unit_status(book, u, p.positions_by_unit.get(u.tag.upper(), []), as_of)
-        for u in p.units
+        unit_status(book, u, p.positions_by_unit.get(u.tag.upper(), []), as_of) for u in p.units
     ]
     return watch_list(as_of, filters, breathers_at(book, as_of, unit), units)
 
@@ -919,6 +1018,37 @@ class UnitClock:
     sample: tuple[str | None, str, bool | None] | None  # latest sample: code, words, meets
     hot: tuple[datetime, ...]  # readings over the unit's limit that can still count
     water_ppm: float | None = None  # water in the newest sample that says
+
+    def to_row(self) -> dict[str, Any]:
+        return {
+            "valid_from": format_utc(self.valid_from),
+            "first_at": _stamp(self.first_at),
+            "early_l": self.early_l,
+            "early_n": self.early_n,
+            "topups": [
+                [t.id, format_utc(t.at), t.volume_l, t.filtered_um, t.hours]  # type: ignore[arg-type]
+                for t in self.topups
+            ],
+            "sample": list(self.sample) if self.sample else None,
+            "hot": [format_utc(at) for at in self.hot],
+            "water_ppm": self.water_ppm,
+        }
+
+    @classmethod
+    def from_row(cls, row: dict[str, Any], unit: str) -> UnitClock:
+        return cls(
+            valid_from=parse_stamp(row["valid_from"]),
+            first_at=_moment(row["first_at"]),
+            early_l=row["early_l"],
+            early_n=row["early_n"],
+            topups=tuple(
+                TopUp(id=i, at=parse_stamp(at), unit=unit, volume_l=v, filtered_um=um, hours=h)
+                for i, at, v, um, h in row["topups"]
+            ),
+            sample=tuple(row["sample"]) if row["sample"] else None,  # type: ignore[arg-type]
+            hot=tuple(parse_stamp(at) for at in row["hot"]),
+            water_ppm=row["water_ppm"],
+        )
 
 
 def unit_clock(book: Book, unit: Unit, now: datetime) -> UnitClock:
@@ -977,25 +1107,11 @@ def unit_clock(book: Book, unit: Unit, now: datetime) -> UnitClock:
     )
 
 
-# A new element is clean: half its change limit within its first three days (of service
-# hours on an hour meter) says something is wrong with it or with the system, long before a
-# due date would. # common practice, no source
-YOUNG_ELEMENT_H = 72.0
-YOUNG_ELEMENT_SHARE = 0.5
-
-
 def new_element_high(percent_of_limit: float | None, age_h: float) -> str | None:
     """The note of the new-element flag for the latest reading's share of the change limit at
     element age `age_h`, None when the element is older or still low."""
-    if percent_of_limit is None or age_h > YOUNG_ELEMENT_H:
-        return None
-    if percent_of_limit < 100 * YOUNG_ELEMENT_SHARE:
-        return None
-    return (
-        f"a new element already at {percent_of_limit:.0f} % of its change limit after "
-        f"{age_h:.0f} h: check it is the right element, seated and undamaged, that the clean "
-        "ΔP setting is right, and where the dirt comes from (take a fluid sample)"
-    )
+    note = rules.young_high(percent_of_limit, age_h)
+    return None if note is None else note.text("")
 
 
 # Water in mineral hydraulic oil above about 300 ppm is past what the oil holds dissolved near
@@ -1062,104 +1178,3 @@ def unit_status(
 ) -> UnitStatus:
     """A unit's fluid care: top-up use, top-up filtration, latest sample, hot readings."""
     return unit_at(unit, filters, unit_clock(book, unit, now), now)
-
-
-# ---- JSON ----------------------------------------------------------------------------------------
-
-
-def _due_json(due: Due | None, local: Any) -> dict[str, str] | None:
-    if due is None:
-        return None
-    return {
-        k: iso_local(getattr(due, k), local) if getattr(due, k) else None
-        for k in ("earliest", "likely", "latest")
-    }
-
-
-def _r(value: float | None, digits: int = 3) -> float | None:
-    return None if value is None else round(value, digits)
-
-
-def to_json(w: Watch, local: Any = None) -> dict[str, Any]:
-    local = local or tz.UTC
-    return {
-        "as_of": iso_local(w.as_of, local),
-        "filters": [
-            {
-                "filter": f.filter,
-                "unit": f.unit,
-                "kind": f.kind,
-                "dp_bar": _r(f.dp_bar),
-                "dp_ref_bar": _r(f.dp_ref_bar),
-                "temp_c": _r(f.temp_c, 1),
-                "indicator": f.indicator,
-                "reading_at": iso_local(f.reading_at, local) if f.reading_at else None,
-                "reference": f.reference,
-                "limit_bar": f.limit_bar,
-                "bypass_bar": f.bypass_bar,
-                "percent_of_limit": _r(f.percent_of_limit, 1),
-                "due": _due_json(f.due, local),
-                "bypass_due": _due_json(f.bypass_due, local),
-                "basis": f.basis,
-                "state": f.state,
-                "flags": list(f.flags),
-                "notes": list(f.notes),
-                "readings_since_change": f.readings_since_change,
-                "element_age_h": _r(f.element_age_h, 1),
-                "pace_vs_earlier": _r(f.pace, 2),
-                "next_reading": None
-                if f.next_reading is None
-                else {"at": iso_local(f.next_reading, local), "rule": f.next_rule},
-                "cold_start": None
-                if f.cold is None
-                else {
-                    "start_temp_c": f.cold.start_temp_c,
-                    "dp_at_start_bar": _r(f.cold.dp_at_start_bar),
-                    "bypasses": f.cold.bypasses,
-                    "bypass_below_c": _r(f.cold.bypass_below_c, 1),
-                },
-                "service_life": None
-                if f.life is None
-                else {
-                    "b10_h": _r(f.life.b10_h, 0),
-                    "b50_h": _r(f.life.b50_h, 0),
-                    "failed": f.life.n_failed,
-                    "censored": f.life.n_censored,
-                },
-            }
-            for f in w.filters
-        ],
-        "breathers": [
-            {
-                "breather": b.breather,
-                "unit": b.unit,
-                "kind": b.kind,
-                "last_swap": iso_local(b.forecast.last_swap, local)
-                if b.forecast.last_swap
-                else None,
-                "due": iso_local(b.forecast.due, local) if b.forecast.due else None,
-                "interval_d": _r(b.forecast.interval_d, 1),
-                "basis": b.forecast.basis,
-                "flags": list(b.flags),
-            }
-            for b in w.breathers
-        ],
-        "units": [
-            {
-                "unit": u.unit,
-                "name": u.name,
-                "area": u.area,
-                "topup_l_per_week": _r(u.consumption.recent_l_per_week, 2)
-                if u.consumption
-                else None,
-                "topup_history_l_per_week": _r(u.consumption.history_l_per_week, 2)
-                if u.consumption
-                else None,
-                "latest_code": u.latest_code,
-                "target_code": u.target_code,
-                "flags": list(u.flags),
-                "notes": list(u.notes),
-            }
-            for u in w.units
-        ],
-    }

@@ -9,6 +9,7 @@ pattern here. The history refuses to be edited or deleted.
 from __future__ import annotations
 
 import difflib
+import functools
 import sqlite3
 import uuid
 from dataclasses import asdict, dataclass, fields
@@ -139,8 +140,13 @@ def normalise_tag(tag: str, what: str = "tag") -> str:
     return validate.tag(tag, what)
 
 
+@functools.cache
+def _names(cls: type) -> frozenset[str]:
+    return frozenset(f.name for f in fields(cls))
+
+
 def _from_row(cls: type[R], row: dict[str, Any]) -> R:
-    names = {f.name for f in fields(cls)}  # type: ignore[arg-type]
+    names = _names(cls)  # (fields() of each row took a third of reading a big register)
     values = {k: (bool(v) if k in BOOL_FIELDS else v) for k, v in row.items() if k in names}
     return cls(**values)
 
@@ -265,26 +271,7 @@ def _check(book: Book, record: Any) -> Any:
     return type(record)(**{**asdict(record), **changes})
 
 
-# Which cached filter statuses a register change can move (settings drive the predictions).
-_STALE_SQL = {
-    # the filter itself, and those whose life statistics pool like positions' lives
-    "filters": "UPDATE status_cache SET stale = 1 WHERE filter = ? OR pools = 1",
-    "units": "UPDATE status_cache SET stale = 1 WHERE filter IN "
-    "(SELECT tag FROM filters WHERE unit = ?)",
-    "fluids": "UPDATE status_cache SET stale = 1 WHERE filter IN (SELECT f.tag FROM filters f "
-    "JOIN units u ON u.tag = f.unit WHERE u.fluid = ?)",
-    # the shortest shift bounds every filter's next-reading time (store/forecast/readplan.py)
-    "shifts": "UPDATE status_cache SET stale = 1 WHERE ? IS NOT NULL",
-}
-
-
-def _mark_stale(book: Book, table: str, tag: str) -> None:
-    if table in _STALE_SQL:
-        book.conn.execute(_STALE_SQL[table], [tag])
-
-
 def _log_change(book: Book, table: str, tag: str, field: str, old: Any, new: Any, by: str) -> None:
-    _mark_stale(book, table, tag)
     book.conn.execute(
         "INSERT INTO register_log(id, at_utc, by, tbl, tag, field, old, new) "
         "VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
@@ -351,7 +338,6 @@ def update(book: Book, cls: type[R], tag: str, changes: dict[str, Any], by: str 
             except sqlite3.IntegrityError as exc:  # the schema's last line held
                 raise BookError(f"cannot change {current.tag}: {exc}") from exc
             book.conn.execute("DELETE FROM register_editor")
-            _mark_stale(book, table, current.tag)
     return updated
 
 

@@ -375,16 +375,18 @@ def store_calls(path: Path, repeat: int = 5) -> dict[str, float]:
 
     ctxs = None
 
-    def recompute(book: Book) -> None:  # what a stale row costs (marked, or an old format)
+    def recompute(book: Book) -> None:  # what a row that does not hold costs
         nonlocal ctxs
         ctxs = ctxs or list(contexts(book).values())
         statuscache.live_status(book, rng.choice(ctxs))
 
     def same_rows(book: Book) -> None:  # what views.watch reads, in one query each
         book.conn.execute(
-            "SELECT filter, computed_utc, format, data, stale FROM status_cache"
+            "SELECT filter, key, computed_utc, newest_utc, data FROM status_cache"
         ).fetchall()
-        book.conn.execute("SELECT unit, computed_utc, register, data FROM unit_cache").fetchall()
+        book.conn.execute(
+            "SELECT unit, key, computed_utc, until_utc, data FROM unit_cache"
+        ).fetchall()
 
     out = {
         "recompute": timed(recompute, 3 * repeat),
@@ -683,10 +685,11 @@ def notes(f: dict) -> list[str]:
         f"{percentile(f['save_ms'], 99):.0f} ms, the forecast update and the commit included."
     )
     out.append(
-        f"- Not in the targets: a status row marked stale (a like position's lives changed) or "
-        f"of an old format is recomputed ({f['calls']['recompute']:.0f} ms each, about "
+        f"- Not in the targets: a status row whose key no longer holds (a like position's "
+        f"lives or the register changed, an old format) is recomputed "
+        f"({f['calls']['recompute']:.0f} ms each, about "
         f"{f['calls']['recompute'] * f['facts']['filters'] / 1000:.0f} s for all "
-        f"{f['facts']['filters']}); age alone never makes a row stale (figure 7)."
+        f"{f['facts']['filters']}); age alone never makes a row fail its key (figure 7)."
     )
     return out
 

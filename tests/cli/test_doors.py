@@ -401,11 +401,11 @@ def test_merge_holds_back_and_lists_every_row_no_one_could_type(demo, tmp_path):
     assert "\x1b" not in text
     # and the book still reads whole
     with open_book(demo) as book:
-        from store.health import status
+        from store.health import status_json
 
         assert journal.read(book)
         json.loads(
-            json.dumps(status.to_json(views.watch(book), book.local_zone())),
+            json.dumps(status_json.to_json(views.watch(book), book.local_zone())),
             parse_constant=lambda c: pytest.fail(f"{c} in status JSON"),
         )
 

@@ -88,7 +88,12 @@ def start(settings: str = TEST_SETTINGS) -> PgServer:
     initdb, pg_ctl = find_binary("initdb"), find_binary("pg_ctl")
     if not initdb or not pg_ctl:
         raise RuntimeError("PostgreSQL's initdb/pg_ctl are not installed (see .ci/run)")
-    folder = Path(tempfile.mkdtemp(prefix="sumpbook-pg-"))
+    # The server's unix socket lives in its folder, and a socket's path has at most 107
+    # bytes: under a long TMPDIR (or one the postgres user cannot enter) it goes to /tmp.
+    base = tempfile.gettempdir()
+    if len(base) > 60 or not os.stat(base).st_mode & 0o001:
+        base = "/tmp"
+    folder = Path(tempfile.mkdtemp(prefix="sumpbook-pg-", dir=base))
     as_user: list[str] = []
     if os.geteuid() == 0:
         pw = pwd.getpwnam("postgres")

@@ -297,7 +297,7 @@ def _fingerprint(book) -> tuple:
     tables = [
         r[0]
         for r in book.conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")
-        if r[0] != "status_cache"  # a derived cache that legitimately changes on writes
+        if r[0] not in ("status_cache", "kept_seen")  # derived: legitimately change on writes
     ]
     counts = {t: book.conn.execute(f"SELECT count(*) FROM {t}").fetchone()[0] for t in tables}
     return _schema(book), counts, book.conn.execute("PRAGMA database_list").fetchall()

@@ -118,8 +118,11 @@ def _in_child_as_nobody(work) -> dict:
 
 @pytest.fixture
 def shelf():
-    """A folder outside root-only places, so that an unprivileged child can read it."""
-    folder = Path(tempfile.mkdtemp(prefix="sumpbook-ro-"))
+    """A folder outside root-only places, so that an unprivileged child can read it (in
+    /tmp where the temporary folder is one others cannot enter)."""
+    base = tempfile.gettempdir()
+    base = base if os.stat(base).st_mode & 0o001 else "/tmp"
+    folder = Path(tempfile.mkdtemp(prefix="sumpbook-ro-", dir=base))
     folder.chmod(0o755)
     yield folder
     for p in [folder, *folder.rglob("*")]:

@@ -146,7 +146,8 @@ def test_voids_of_one_filter_refresh_it_once(book, monkeypatch):
     )
     calls = []
     monkeypatch.setattr(
-        "store.derived.statuscache.after_entry", lambda b, e: calls.append(type(e).__name__)
+        "store.derived.statuscache.after_entry",
+        lambda b, e, reg=None: calls.append(type(e).__name__),
     )
     record.log_many(book, [Void(voids=r.id, note="typed twice", by="AB") for r in readings[:5]])
     assert calls == ["Void"]

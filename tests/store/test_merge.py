@@ -235,7 +235,7 @@ def test_merge_is_all_or_nothing(tmp_path, monkeypatch):
     before = {t: _dump(a, t) for t in (*TABLES, "entries")}
     calls = []
 
-    def failing_hook(book, entry):
+    def failing_hook(book, entry, reg=None):
         calls.append(entry.id)
         raise RuntimeError("power cut in the middle of the merge")
 

@@ -10,7 +10,7 @@ from scipy import stats
 from store import record, views
 from store.db.book import open_book
 from store.forecast import readplan
-from store.health import status
+from store.health import status, status_json
 from store.ledger import register
 from store.ledger.entries import ElementChange, Reading
 from store.ledger.register import FilterPosition, Fluid, Technician, Unit
@@ -90,7 +90,7 @@ def test_status_plans_the_next_reading_from_the_earliest_date(tmp_path):
     assert "reading-overdue" not in before.flags
     assert "reading-overdue" in after.flags
     # one documented key in the JSON
-    data = status.to_json(views.watch(book))
+    data = status_json.to_json(views.watch(book))
     (row,) = data["filters"]
     assert row["next_reading"]["rule"] == "forecast"
     assert json.dumps(row["next_reading"])

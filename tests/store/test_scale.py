@@ -22,7 +22,7 @@ from store import record, sheets, views
 from store.base.timeutil import format_utc
 from store.db.book import Book, open_book
 from store.derived import elementcache, statuscache
-from store.health import lives, status
+from store.health import lives, status, status_json
 from store.health.conditions import contexts
 from store.ledger import journal, register
 from store.ledger.entries import ElementChange, Note, Reading, Sample, TopUp, Void, from_row
@@ -72,16 +72,13 @@ def assert_cache_is_fresh(book: Book) -> None:
     now = book.now()
     ctxs = contexts(book)
     fresh = {tag: fresh_status(book, ctx) for tag, ctx in ctxs.items()}
-    # The rows the hooks kept (those not marked stale), brought to the clock, say what a
-    # fresh computation says.
-    rows = book.conn.execute("SELECT filter, computed_utc, format, data, stale FROM status_cache")
-    for tag, *row in rows:
-        kept = statuscache._timed(tuple(row), now, False)  # type: ignore[arg-type]
-        if kept is not None:
-            assert statuscache._encode(kept) == statuscache._encode(fresh[tag.upper()]), tag
+    # The rows the hooks kept whose key holds, brought to the clock, say what a fresh
+    # computation says.
+    for tag, kept in statuscache.kept_filters(book, list(fresh), now).items():
+        assert statuscache._encode(kept) == statuscache._encode(fresh[tag]), tag
     # The live path (element cache + the element in service) gives the very same status.
     for tag, ctx in ctxs.items():
-        live, _, _ = statuscache.live_status(book, ctx, now)
+        live, _ = statuscache.live_status(book, ctx, now)
         assert live == fresh[tag], tag
         assert live.history == fresh[tag].history
     # The watch list read from the caches is the one computed as of now from the entries.
@@ -211,7 +208,7 @@ def test_entries_written_without_the_hooks_are_noticed(tmp_path: Path) -> None:
         journal.insert(book, late)
         journal.insert(book, void)
     ctx = contexts(book)["U1-RF"]
-    live, _, _ = statuscache.live_status(book, ctx)
+    live, _ = statuscache.live_status(book, ctx)
     assert live == fresh_status(book, ctx)
     summaries = elementcache.elements_now(book, ctx).past
     assert second.id not in [el.removal_id for el in summaries]
@@ -236,12 +233,18 @@ def test_a_change_on_a_like_position_stales_those_that_pool_with_it(tmp_path: Pa
                                         hours=1000 + 10 * days))  # fmt: skip
     for days in (0, 25, 52, 70):
         record.log(book, ElementChange(filter="U1-RF", by="AB", at=t + timedelta(days=days)))
-    row = book.conn.execute("SELECT pools FROM status_cache WHERE filter = 'U2-RF'").fetchone()
-    assert row == (1,)
+    # U1-RF's changes came after U2-RF's row was kept: it does not hold until refreshed
+    stale = statuscache.stale_filters(book)
+    assert "U2-RF" in stale and "U1-RF" not in stale
+    statuscache.refresh_stale(book)
+    assert "U2-RF" in statuscache.kept_filters(book, ["U2-RF"], book.now())
     record.log(book, ElementChange(filter="U1-RF", by="AB", at=t + timedelta(days=90)))
-    stale = book.conn.execute("SELECT stale FROM status_cache WHERE filter = 'U2-RF'").fetchone()
-    assert stale == (1,)  # marked stale: the next watch recomputes it
+    # its key no longer holds (a like position's lives moved): every reader computes it
+    assert statuscache.kept_filters(book, ["U2-RF", "U1-RF"], book.now()).keys() == {"U1-RF"}
+    assert statuscache.stale_filters(book) == ["U2-RF"]
     assert_cache_is_fresh(book)
+    statuscache.refresh_stale(book)
+    assert statuscache.stale_filters(book) == []
 
 
 def test_reading_back_builds_the_entries_from_row_builds(tmp_path: Path) -> None:
@@ -296,7 +299,7 @@ def test_generated_big_book_in_small(tmp_path: Path) -> None:
 def derived_rows(book: Book) -> list:
     return [
         book.conn.execute(f"SELECT * FROM {table} ORDER BY 1, 2").fetchall()
-        for table in ("status_cache", "unit_cache", "element_cache", "element_state")
+        for table in ("status_cache", "unit_cache", "element_cache", "element_state", "kept_seen")
     ]
 
 
@@ -318,7 +321,7 @@ def test_kept_rows_hold_later_on_and_reads_write_nothing(tmp_path: Path, later) 
         statuscache._encode(f) for f in audit.filters
     ]
     assert cached.units == audit.units
-    assert status.to_json(cached) == status.to_json(audit)
+    assert status_json.to_json(cached) == status_json.to_json(audit)
     # The clock's parts did move (the test is not comparing two unchanged lists).
     ages = {f.filter: f.element_age_h for f in before.filters}
     assert all(f.element_age_h > ages[f.filter] for f in cached.filters)
@@ -327,20 +330,20 @@ def test_kept_rows_hold_later_on_and_reads_write_nothing(tmp_path: Path, later) 
     assert derived_rows(book) == kept  # reading wrote nothing
 
 
-def test_rows_marked_stale_are_shown_at_once_and_caught_up_behind(tmp_path: Path) -> None:
+def test_rows_whose_key_moved_are_computed_and_caught_up_behind(tmp_path: Path) -> None:
     book = plant(tmp_path / "book.db")
     writer = Writer(book, 13)
     for _ in range(40):
         writer.step()
-    with book.atomic():  # as a change on a like position marks them
-        book.conn.execute("UPDATE status_cache SET stale = 1")
+    with book.atomic():  # rows of another format: none holds
+        book.conn.execute("UPDATE status_cache SET key = 'x' || key")
     ctxs = list(contexts(book).values())
     stale = statuscache.stale_filters(book)
     assert sorted(stale) == sorted(c.position.tag for c in ctxs)
     kept = derived_rows(book)
-    shown = views.watch(book, stale_ok=True)  # the rows as kept, no recomputation
+    shown = views.watch(book)  # computed in memory, nothing written
     assert {f.filter for f in shown.filters} == {c.position.tag for c in ctxs}
-    assert_cache_is_fresh(book)  # recomputed in memory where marked stale
+    assert_cache_is_fresh(book)
     assert derived_rows(book) == kept
     done = statuscache.refresh_stale(book)  # the explicit refresh keeps them
     assert sorted(done) == sorted(stale)

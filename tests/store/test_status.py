@@ -8,7 +8,7 @@ from store import record, views
 from store.base.units import to_bar
 from store.db.book import open_book
 from store.derived.statuscache import rebuild
-from store.health import status
+from store.health import status, status_json
 from store.ledger import register
 from store.ledger.entries import BreatherSwap, ElementChange, Reading, Sample, TopUp, Void
 from store.ledger.register import FilterPosition, Fluid, Technician, Unit
@@ -360,7 +360,7 @@ def test_an_element_loading_much_faster_than_the_last_six_is_flagged(tmp_path):
         assert "the pace of the last 6 elements" in note
         assert "fluid sample" in note and "breather" in note and "top-ups" in note
         assert 1.3 <= f.pace <= 1.7  # 1000 / 650 = 1.54
-        data = status.to_json(views.watch(book))["filters"][0]
+        data = status_json.to_json(views.watch(book))["filters"][0]
         assert "fast-loading" in data["flags"] and data["pace_vs_earlier"] == round(f.pace, 2)
         assert f"about {f.pace:.1f}×" in note
 
@@ -448,7 +448,7 @@ def test_basis_names_what_the_note_says(tmp_path):
         f, _ = filter_view(book, "M2-RF")
         assert f.basis == f.forecast.basis
         assert NOTE_OF_BASIS[f.basis] in " ".join(f.notes)
-        data = status.to_json(views.watch(book))["filters"][0]
+        data = status_json.to_json(views.watch(book))["filters"][0]
         assert data["basis"] == f.basis
         # a new element without readings: planned from the earlier lives
         record.log(book, ElementChange(filter="M2-RF", by="AB", at=book.now()))

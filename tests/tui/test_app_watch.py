@@ -242,6 +242,8 @@ async def test_after_a_weekend_the_kept_rows_show_as_they_are_now(plant, monkeyp
     from tui.screens import watch as watch_module
 
     with open_book(plant, create=False) as book:  # the plant's clock, three days on
+        book.set_setting("clock", format_utc(kit.CLOCK))  # kept at the plant's clock (the
+        statuscache.refresh_stale(book)  # plant was logged at the machine's)
         book.set_setting("clock", format_utc(kit.CLOCK + timedelta(days=3)))
         kept = book.conn.execute("SELECT * FROM status_cache ORDER BY filter").fetchall()
     shown = []

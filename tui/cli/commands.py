@@ -30,7 +30,7 @@ from store.base.units import (
     parse_volume_l,
 )
 from store.base.validate import plant_setting
-from store.health import status
+from store.health import status_json
 from store.ledger import entry_input, journal, register
 from store.ledger.entries import Reading
 from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
@@ -393,7 +393,7 @@ def cmd_status(args: argparse.Namespace) -> int:
         if args.json:
             # One line, no indent: json's C encoder does it (an indent means the pure-Python
             # one, ten times slower on a big plant); pipe it to a pretty-printer to read it.
-            sys.stdout.write(json_inert(strict_json(status.to_json(watch, book.local_zone()))))
+            sys.stdout.write(json_inert(strict_json(status_json.to_json(watch, book.local_zone()))))
             sys.stdout.write("\n")
         else:
             out = console()

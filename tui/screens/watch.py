@@ -38,10 +38,10 @@ class WatchData:
 
 
 def read_watch(book: Book, fresh: bool = False) -> WatchData:
-    """The list as kept in the caches (what moves with the clock worked out now), at once:
-    rows marked stale are shown as they are and counted, for `catch_up` to recompute behind.
-    `fresh`: recompute such rows first (in memory)."""
-    w = views.watch(book) if fresh else views.watch(book, stale_ok=True)
+    """The list: the kept rows that hold, the rest computed in memory (what moves with the
+    clock worked out now). Unless `fresh`, the rows that did not hold are counted, for
+    `catch_up` to keep behind."""
+    w = views.watch(book)
     rows = watch_rows(w)
     local = book.local_zone()
     span = shift_at(w.as_of, book.shift_pattern(), local)
