@@ -89,7 +89,8 @@ class RowTable(DataTable):
         self.clear(columns=True)
         labels = [h[0] for h in self.headers]
         flex = next((i for i, h in enumerate(self.headers) if h[1] == self.flexible), None)
-        width = self.size.width or self.app.size.width
+        width = self.size.width or self.app.size.width  # not laid out yet: the screen's
+        self.fitted_width = width
         width = max(width - self.scrollbar_room(), 10)
         chosen, widths = choose_columns(
             labels, self.rows_shown, width, self.cell_padding, flex, self.flex_min
@@ -115,9 +116,14 @@ class RowTable(DataTable):
         return [str(c.key.value) for c in self.columns.values()]
 
     def on_resize(self, event: events.Resize) -> None:
-        if self.headers and event.size.width != self.fitted_width:
-            self.fitted_width = event.size.width
-            self.show(self.headers, self.rows_shown)
+        if event.size.width == self.fitted_width:
+            # Only the height moved (the line under the list wraps to another count of
+            # lines): every cell renders as it did. DataTable's own handler would count it
+            # as an update and throw away every rendered cell, so the whole visible list
+            # was drawn again on such a key.
+            event.prevent_default()
+        elif self.headers:
+            self.show(self.headers, self.rows_shown)  # the columns are chosen again
 
     def action_first_row(self) -> None:
         if self.row_count:
