@@ -21,7 +21,7 @@ from tui.screens.common import ENTRY_BINDINGS, BookScreen, Target
 from tui.widgets import fmt
 from tui.widgets.banner import DemoBanner
 from tui.widgets.keystrip import KeyStrip
-from tui.widgets.rowtable import RowTable
+from tui.widgets.rowtable import Cell, RowTable
 from tui.widgets.wrapped import Wrapped
 
 ALL = "*"
@@ -146,8 +146,8 @@ class WatchScreen(BookScreen):
             area.value = current if current in values else ALL
         self.fill()
         self.query_one(DataTable).loading = False
-        if not self.loaded:
-            self.sb.first_paint_done()
+        if not self.loaded:  # what runs behind the list starts once it is on the screen
+            self.call_after_refresh(self.sb.first_paint_done)
         self.loaded = True
         if data.stale and not self.catching_up:
             self.catching_up = True
@@ -192,16 +192,16 @@ class WatchScreen(BookScreen):
                 due = "by indicator"
             if now := act_now(r.flags):
                 due = now  # INSPECT NOW / CHANGE NOW
-            cells = (
-                Text(r.tag, style=urgent),
-                Text(due, style=urgent),
+            cells = (  # Cell: a Text as the table holds it (built so, not copied into one)
+                Cell(r.tag, style=urgent),
+                Cell(due, style=urgent),
                 fmt.limit_bar(r.percent_of_limit),
-                Text(fmt.pressure(r.dp_ref_bar, prefs, unit=False) if r.what == "filter" else ""),
+                Cell(fmt.pressure(r.dp_ref_bar, prefs, unit=False) if r.what == "filter" else ""),
                 fmt.flag_text(r.flags),
-                Text(fmt.sparkline(r.trend_bar, r.limit_bar)),
-                Text(r.unit),
-                Text(r.kind if r.what != "breather" else "breather"),
-                Text(r.basis),
+                Cell(fmt.sparkline(r.trend_bar, r.limit_bar)),
+                Cell(r.unit),
+                Cell(r.kind if r.what != "breather" else "breather"),
+                Cell(r.basis),
             )
             rows.append((r.tag, tuple(fmt.shown(c) for c in cells)))
         table.show(watch_columns(prefs), rows)
