@@ -315,7 +315,7 @@ class SumpbookApp(App[None]):
             return
         if what != "filter":
             self.push_screen(_lazy("screens.unit_sheet", "UnitSheetScreen")(unit or tag))
-        elif self.kept_sheet_free() and self.kept_filter_sheet.is_mounted:
+        elif self.kept_filter_sheet is None or self.kept_sheet_free():
             self.open_kept_sheet(tag)
         else:
             self.push_screen(self.filter_sheet_for(tag))
@@ -339,8 +339,9 @@ class SumpbookApp(App[None]):
         def filled(sheet: Any) -> None:
             if awaited():
                 self.sheet_request += 1
-                self.kept_filter_sheet.show_filled(tag, sheet, stamp)
-                self.push_screen(self.kept_filter_sheet)
+                kept = self.kept_sheet(tag)
+                kept.show_filled(tag, sheet, stamp)  # the first time: shown as it is mounted
+                self.push_screen(kept)
 
         def read() -> None:
             try:
@@ -359,15 +360,19 @@ class SumpbookApp(App[None]):
         widgets costs Textual more than reading the sheet, so a sheet opened again only
         changes its content. A second sheet open at the same time (from the unit sheet on
         top of one) is a new screen."""
-        kept = self.kept_filter_sheet
-        if kept is None:
+        if self.kept_filter_sheet is not None and not self.kept_sheet_free():
+            return _lazy("screens.filter_sheet", "FilterSheetScreen")(tag)
+        kept = self.kept_sheet(tag)
+        kept.show_tag(tag)
+        return kept
+
+    def kept_sheet(self, tag: str) -> Any:
+        """The kept filter sheet, made (for `tag`) and installed the first time."""
+        if self.kept_filter_sheet is None:
             kept = _lazy("screens.filter_sheet", "FilterSheetScreen")(tag)
             self.install_screen(kept, name="filter-sheet")
             self.kept_filter_sheet = kept
-        elif not self.kept_sheet_free():
-            return _lazy("screens.filter_sheet", "FilterSheetScreen")(tag)
-        kept.show_tag(tag)
-        return kept
+        return self.kept_filter_sheet
 
     def kept_sheet_free(self) -> bool:
         """The kept filter sheet exists and is not on show (in no mode's stack)."""
