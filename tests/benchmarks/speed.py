@@ -520,6 +520,7 @@ def same_answers(path: Path, env: dict[str, str], roots: dict[str, Path], span: 
             status = subprocess.run([*base, "status", "--json"], env=run_env, cwd=root,
                                     check=True, capture_output=True).stdout  # fmt: skip
             csv_path = work / f"{name}.csv"
+            csv_path.unlink(missing_ok=True)  # the last book's: export refuses to overwrite
             subprocess.run([*base, "export", *export_args, "-o", str(csv_path)], env=run_env,
                            cwd=root, check=True, capture_output=True)  # fmt: skip
             outputs[name] = {"status --json": status, "export": csv_path.read_bytes()}
