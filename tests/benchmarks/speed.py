@@ -24,6 +24,12 @@ Figures (median of several runs where it is cheap):
    `--compare DIR` (a checkout of older code with its own .venv) the same figures for that
    code, in turns, each code on its own copy with its own `rebuild` (`--only-later`: these
    figures alone).
+8. The long reads with the collector held (`journal._no_gc_pauses`, as the code has it) and
+   without, each in a fresh process, in turns: every entry (`journal.read`) and the whole
+   plant a week before the book's clock (`--gc-runs N`, 0 leaves it out).
+Figure 1 is also given as the process's CPU to the painted list (threads included), less
+moved than the wall time by other work on a shared machine. `--only-app`: figures 1 and 6
+alone, the app and the bare app in turns (a minute or so).
 
 The book file is read once before measuring, so every figure is with the file in the
 operating system's cache (a laptop that has the book open all shift).
