@@ -5,6 +5,7 @@ from __future__ import annotations
 import gc
 import os
 import sqlite3
+import sys
 import time
 from collections.abc import Sequence
 from concurrent.futures import Future
@@ -39,19 +40,16 @@ from store.sheets import (
 from tui.base.keys import KEYS, bind
 from tui.base.workers import guarded, read_early
 from tui.screens.common import long_name
-from tui.screens.first_run import FirstRunScreen
-from tui.screens.help import HelpScreen
-from tui.screens.sign_in import SignInScreen
 from tui.screens.watch import WatchData, WatchScreen, read_watch
 from tui.widgets import fmt
 from tui.widgets.inert import INERT_LINES
-from tui.widgets.palette import BookCommands
 
 if TYPE_CHECKING:
     from tui.forms.base import EntrySaved
 
-# Screens and forms beyond the watch list are imported when first opened: the app's start
-# (to a painted watch list) loads only what that list needs.
+# Screens and forms beyond the watch list (the first-run guide, sign-in and help too) and the
+# command palette's provider are imported when first opened: the app's start (to a painted
+# watch list) loads only what that list needs (tests/tui/test_app_lean_start.py).
 
 FORMS = {  # entry kind -> (module under tui.forms, class)
     "reading": ("reading", "ReadingForm"),
@@ -66,6 +64,15 @@ FORMS = {  # entry kind -> (module under tui.forms, class)
 
 def _lazy(module: str, name: str) -> Any:
     return getattr(import_module(f"tui.{module}"), name)
+
+
+def book_commands() -> Any:
+    """The palette's provider of the book's commands (Textual takes a callable in COMMANDS)."""
+    return _lazy("widgets.palette", "BookCommands")
+
+
+def first_run_screen(new_path: Path | None = None) -> Screen:
+    return _lazy("screens.first_run", "FirstRunScreen")(new_path)
 
 
 def shift_log_screen() -> Screen:
@@ -140,7 +147,7 @@ NAV = ("go", "quick_tag", "sign_in", "quit", "entry")
 class SumpbookApp(App[None]):
     TITLE = "sumpbook"
     CSS_PATH = "app.tcss"
-    COMMANDS = App.COMMANDS | {BookCommands}
+    COMMANDS = App.COMMANDS | {book_commands}
     MODES = {
         "watch": WatchScreen,
         "shift": shift_log_screen,
@@ -213,9 +220,9 @@ class SumpbookApp(App[None]):
         if self.demo:
             self.say_demo()
         if self.new_path is not None:
-            self.push_screen(FirstRunScreen(self.new_path), self.first_run_choice)
+            self.push_screen(first_run_screen(self.new_path), self.first_run_choice)
         elif not register.list_all(self.book, Unit):
-            self.push_screen(FirstRunScreen(), self.first_run_choice)
+            self.push_screen(first_run_screen(), self.first_run_choice)
         elif not self.tech:
             self.action_sign_in()
 
@@ -273,9 +280,13 @@ class SumpbookApp(App[None]):
             return False  # keys typed after q (a fast typist, a scanner) open nothing
         if action in NAV and isinstance(self.screen, ModalScreen):
             return False
-        if action == "help" and isinstance(self.screen, HelpScreen):
+        if action == "help" and self.showing_help():
             return False
         return True
+
+    def showing_help(self) -> bool:
+        shown = sys.modules.get("tui.screens.help")  # not imported yet: never shown
+        return shown is not None and isinstance(self.screen, shown.HelpScreen)
 
     @guarded
     def action_go(self, mode: str) -> None:
@@ -299,7 +310,7 @@ class SumpbookApp(App[None]):
             return
         if what != "filter":
             self.push_screen(_lazy("screens.unit_sheet", "UnitSheetScreen")(unit or tag))
-        elif self.kept_sheet_free() and self.kept_filter_sheet.is_mounted:
+        elif self.kept_filter_sheet is None or self.kept_sheet_free():
             self.open_kept_sheet(tag)
         else:
             self.push_screen(self.filter_sheet_for(tag))
@@ -323,8 +334,9 @@ class SumpbookApp(App[None]):
         def filled(sheet: Any) -> None:
             if awaited():
                 self.sheet_request += 1
-                self.kept_filter_sheet.show_filled(tag, sheet, stamp)
-                self.push_screen(self.kept_filter_sheet)
+                kept = self.kept_sheet(tag)
+                kept.show_filled(tag, sheet, stamp)  # the first time: shown as it is mounted
+                self.push_screen(kept)
 
         def read() -> None:
             try:
@@ -343,15 +355,19 @@ class SumpbookApp(App[None]):
         widgets costs Textual more than reading the sheet, so a sheet opened again only
         changes its content. A second sheet open at the same time (from the unit sheet on
         top of one) is a new screen."""
-        kept = self.kept_filter_sheet
-        if kept is None:
+        if self.kept_filter_sheet is not None and not self.kept_sheet_free():
+            return _lazy("screens.filter_sheet", "FilterSheetScreen")(tag)
+        kept = self.kept_sheet(tag)
+        kept.show_tag(tag)
+        return kept
+
+    def kept_sheet(self, tag: str) -> Any:
+        """The kept filter sheet, made (for `tag`) and installed the first time."""
+        if self.kept_filter_sheet is None:
             kept = _lazy("screens.filter_sheet", "FilterSheetScreen")(tag)
             self.install_screen(kept, name="filter-sheet")
             self.kept_filter_sheet = kept
-        elif not self.kept_sheet_free():
-            return _lazy("screens.filter_sheet", "FilterSheetScreen")(tag)
-        kept.show_tag(tag)
-        return kept
+        return self.kept_filter_sheet
 
     def kept_sheet_free(self) -> bool:
         """The kept filter sheet exists and is not on show (in no mode's stack)."""
@@ -392,7 +408,8 @@ class SumpbookApp(App[None]):
 
     @guarded
     def action_sign_in(self) -> None:
-        self.push_screen(SignInScreen(self.tech, self.cursor_blink), self.signed_in)
+        sign_in = _lazy("screens.sign_in", "SignInScreen")
+        self.push_screen(sign_in(self.tech, self.cursor_blink), self.signed_in)
 
     def signed_in(self, tag: str | None) -> None:
         if tag:
@@ -413,7 +430,7 @@ class SumpbookApp(App[None]):
         for module, cls in HELP_SCREENS:
             other = _lazy(module, cls)
             elsewhere[other.HELP_NAME] = [b for b in other.BINDINGS if isinstance(b, Binding)]
-        self.push_screen(HelpScreen(name, here, anywhere, elsewhere))
+        self.push_screen(_lazy("screens.help", "HelpScreen")(name, here, anywhere, elsewhere))
 
     def get_system_commands(self, screen: Screen) -> Any:
         """Every action of the app and of the screen, by name, in the command palette: ours
@@ -543,7 +560,7 @@ class SumpbookApp(App[None]):
             open_book(path, clock=self.session.clock).close()
         except (BookError, OSError, sqlite3.Error) as exc:
             self.notify(f"No logbook at {path}: {exc}", severity="error", timeout=15)
-            self.push_screen(FirstRunScreen(path), self.first_run_choice)
+            self.push_screen(first_run_screen(path), self.first_run_choice)
             return False
         self.new_path = None
         self.switch_book(path, False, sign_in=False)

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import gc
 import sqlite3
+import threading
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import fields, replace
@@ -397,17 +398,37 @@ def entries_from_rows(book: Book, rows: Iterable[Sequence[Any]]) -> list[Entry]:
         return out
 
 
+# The cyclic collector is one switch for the whole process, and reads run in several threads
+# at once (the app's workers). One count under one lock: the first read to come in holds the
+# collector (if it was running), the last to leave lets it run again, whatever the order in
+# which they end; code that had switched it off itself finds it off after the reads.
+_gc_lock = threading.Lock()
+_gc_readers = 0
+_gc_was_on = False
+
+
 @contextmanager
 def _no_gc_pauses() -> Iterator[None]:
-    """Hold the cyclic garbage collector while a long read builds its entries: they hold no
-    cycles, and on a year of entries its passes over the growing heap cost twice the build."""
-    was = gc.isenabled()
-    gc.disable()
+    """Hold the cyclic garbage collector while `read` builds its entries: they hold no
+    cycles, but each is a dataclass instance the collector tracks, so its passes over the
+    growing heap are paid for nothing. tests/benchmarks/speed.py measures both ways on each
+    run (figure 8: fresh processes, in turns); on the one-year book (0.9 M entries, December
+    2026, a 2-core machine shared with other work) every entry read took 1.26 and 2.0 times
+    as long without the hold in two runs. Safe to nest and to enter from several threads
+    (see above); never left off by a read."""
+    global _gc_readers, _gc_was_on
+    with _gc_lock:
+        if _gc_readers == 0:
+            _gc_was_on = gc.isenabled()
+            gc.disable()
+        _gc_readers += 1
     try:
         yield
     finally:
-        if was:
-            gc.enable()
+        with _gc_lock:
+            _gc_readers -= 1
+            if _gc_readers == 0 and _gc_was_on:
+                gc.enable()
 
 
 def find_entry(book: Book, entry_id: str) -> Entry:
@@ -542,21 +563,24 @@ def element_items_until(
             params = [value for tag, (at, rowid) in part for value in (tag, at, rowid)]
             queries.append((sql, [*params, stamp, stamp]))
     keyed: dict[str, list[tuple[str, int, Any]]] = {}
+    # No held collector here (unlike `read`): the rows become tuples of plain values, which
+    # the collector stops tracking once they have lived through one pass, so its passes stay
+    # short. The whole plant as of a week back (speed.py's figure 8, one-year book) took
+    # 0.96 and 0.94 times as long without the hold in two runs (1.26 in a third, single run).
     for sql, params in queries:
         rows = book.conn.execute(sql, params).fetchall()
-        with _no_gc_pauses():
-            for tag, at, rowid, logged, hours, dp, temp, indicator, flow, entry_id in rows:
-                try:
-                    item = (parse_stamp(at), hours, dp, temp, indicator, flow, entry_id)
-                    parse_stamp(logged)  # a row `read` cannot build is left out, as there
-                except ROW_ERRORS as exc:
-                    note_unreadable(book, entry_id, _row_problem(exc))
-                    continue
-                key = tag.upper()
-                found = keyed.get(key)
-                if found is None:
-                    found = keyed[key] = []
-                found.append((at, rowid, item))
+        for tag, at, rowid, logged, hours, dp, temp, indicator, flow, entry_id in rows:
+            try:
+                item = (parse_stamp(at), hours, dp, temp, indicator, flow, entry_id)
+                parse_stamp(logged)  # a row `read` cannot build is left out, as there
+            except ROW_ERRORS as exc:
+                note_unreadable(book, entry_id, _row_problem(exc))
+                continue
+            key = tag.upper()
+            found = keyed.get(key)
+            if found is None:
+                found = keyed[key] = []
+            found.append((at, rowid, item))
     if changes is None:
         changes = live_changes_until(book, until)
     changed: set[str] = set()

@@ -24,6 +24,12 @@ Figures (median of several runs where it is cheap):
    `--compare DIR` (a checkout of older code with its own .venv) the same figures for that
    code, in turns, each code on its own copy with its own `rebuild` (`--only-later`: these
    figures alone).
+8. The long reads with the collector held (`journal._no_gc_pauses`, as the code has it) and
+   without, each in a fresh process, in turns: every entry (`journal.read`) and the whole
+   plant a week before the book's clock (`--gc-runs N`, 0 leaves it out).
+Figure 1 is also given as the process's CPU to the painted list (threads included), less
+moved than the wall time by other work on a shared machine. `--only-app`: figures 1 and 6
+alone, the app and the bare app in turns (a minute or so).
 
 The book file is read once before measuring, so every figure is with the file in the
 operating system's cache (a laptop that has the book open all shift).
@@ -108,10 +114,10 @@ async def _timed(pilot, key: str, done) -> tuple[float, float]:
 
 
 async def _drive_app(path: Path, started: float, sheets_too: bool) -> dict:
-    from store import sheets
+    # Only what the app itself imports before its list is painted: the filter sheet's
+    # module (and the chart library under it) is imported when a sheet is timed.
     from store.db.book import open_book
     from tui.app import SumpbookApp
-    from tui.screens.filter_sheet import FilterSheetScreen
     from tui.screens.watch import WatchScreen
 
     out: dict = {"imported_s": time.time() - started}
@@ -123,6 +129,7 @@ async def _drive_app(path: Path, started: float, sheets_too: bool) -> dict:
 
         await _painted(app, watch_ready)
         out["start_to_paint_s"] = time.time() - started
+        out["cpu_to_paint_s"] = time.process_time()  # the process's own CPU, threads included
         # The actions are timed once the check behind the list has finished (it takes a core
         # for a few seconds on a big book); how long it ran is reported on its own.
         await _settle(pilot, lambda: watch_ready() and app.book_checked)
@@ -132,7 +139,7 @@ async def _drive_app(path: Path, started: float, sheets_too: bool) -> dict:
         out["scroll"] = [await _timed(pilot, key, watch_ready) for key in SCROLL_KEYS]
 
         def sheet_ready() -> bool:
-            return isinstance(app.screen, FilterSheetScreen) and app.screen.loaded
+            return type(app.screen).__name__ == "FilterSheetScreen" and app.screen.loaded
 
         sheets, back = [], []
         filter_rows = [i for i, r in enumerate(app.screen.shown) if r.what == "filter"]
@@ -208,6 +215,7 @@ async def _drive_bare(rows: int, started: float) -> dict:
     async with app.run_test(size=SIZE) as pilot:
         await _painted(app, lambda: app.ready)
         out["start_to_paint_s"] = time.time() - started
+        out["cpu_to_paint_s"] = time.process_time()  # the process's own CPU, threads included
         out["scroll"] = [await _timed(pilot, key, lambda: app.ready) for key in SCROLL_KEYS]
         sheet_ready = lambda: isinstance(app.screen, BareSheet) and app.screen.ready  # noqa: E731
         list_ready = lambda: not isinstance(app.screen, BareSheet)  # noqa: E731
@@ -221,7 +229,46 @@ async def _drive_bare(rows: int, started: float) -> dict:
     return out
 
 
+def _gc_read(path: Path, what: str, guard: str) -> dict:
+    """Seconds of one long read in a fresh process: `full`, every entry of the book
+    (`journal.read`), or `asof`, the whole plant's watch list as of the book's clock
+    (`views.watch(as_of=...)`, which reads every filter's readings). `guard` "off" reads
+    without `journal._no_gc_pauses` (the collector running as it always does)."""
+    from contextlib import nullcontext
+
+    from store import views
+    from store.db.book import open_book
+    from store.ledger import journal
+
+    if guard == "off":
+        journal._no_gc_pauses = nullcontext  # type: ignore[assignment]
+    with open_book(path, create=False) as book:
+        now = book.now()
+        t, cpu = time.perf_counter(), time.process_time()
+        if what == "full":
+            count = len(journal.read(book))
+        else:
+            count = len(views.watch(book, as_of=now - timedelta(days=7)).filters)
+        return {"s": time.perf_counter() - t, "cpu_s": time.process_time() - cpu, "n": count}
+
+
+def gc_figures(path: Path, env: dict[str, str], runs: int) -> dict[str, dict[str, float]]:
+    """Median seconds of each long read with the collector held (`_no_gc_pauses`, as the
+    code has it) and without, each run in a fresh process, in turns."""
+    out: dict[str, dict[str, float]] = {}
+    for what in ("full", "asof"):
+        times: dict[str, list[float]] = {"on": [], "off": []}
+        for _ in range(runs):
+            for guard in ("on", "off"):
+                times[guard].append(_run_child("gc", str(path), what, guard, env=env)["s"])
+        out[what] = {guard: _med(values) for guard, values in times.items()}
+    return out
+
+
 def _child(argv: list[str]) -> int:
+    if argv[0] == "gc":
+        print("SPEED " + json.dumps(_gc_read(Path(argv[1]), argv[2], argv[3])))
+        return 0
     started = float(os.environ["SPEED_STARTED"])
     if argv[0] in ("app", "app-start"):
         out = asyncio.run(_drive_app(Path(argv[1]), started, argv[0] == "app"))
@@ -481,6 +528,7 @@ def same_answers(path: Path, env: dict[str, str], roots: dict[str, Path], span: 
             status = subprocess.run([*base, "status", "--json"], env=run_env, cwd=root,
                                     check=True, capture_output=True).stdout  # fmt: skip
             csv_path = work / f"{name}.csv"
+            csv_path.unlink(missing_ok=True)  # the last book's: export refuses to overwrite
             subprocess.run([*base, "export", *export_args, "-o", str(csv_path)], env=run_env,
                            cwd=root, check=True, capture_output=True)  # fmt: skip
             outputs[name] = {"status --json": status, "export": csv_path.read_bytes()}
@@ -614,6 +662,54 @@ def issue_table(f: dict, app_s: float, bare_s: float) -> list[str]:
     return out
 
 
+def gc_lines(hold: dict[str, dict[str, float]], runs: int) -> list[str]:
+    """Figure 8: why the long reads hold the collector (journal._no_gc_pauses)."""
+    words = {"full": "every entry of the book (`journal.read`)",
+             "asof": "the whole plant a week before the book's clock (`views.watch(as_of=)`)"}  # fmt: skip
+    out = [
+        "",
+        f"Long reads with the cyclic collector held while their rows are built "
+        f"(`journal._no_gc_pauses`, as shipped) and without (figure 8; median of {runs} "
+        "fresh processes each, in turns):",
+        "",
+        "| read | held | not held | not held / held |",
+        "|---|---|---|---|",
+    ]
+    for what, t in hold.items():
+        out.append(f"| {words[what]} | {t['on']:.2f} s | {t['off']:.2f} s | "
+                   f"{t['off'] / t['on']:.2f} |")  # fmt: skip
+    return out
+
+
+def app_only_text(app_runs: list[dict], bare_runs: list[dict]) -> str:
+    """`--only-app`: the app's figures against the bare app's, for a quick look."""
+
+    def actions(runs: list[dict], key: str) -> list[float]:
+        return [c for r in runs for _, c in r.get(key, [])]
+
+    app_s = _med([r["start_to_paint_s"] for r in app_runs])
+    bare_s = _med([r["start_to_paint_s"] for r in bare_runs])
+    start_cpu = _med([r["cpu_to_paint_s"] for r in app_runs])
+    start_cpu_bare = _med([r["cpu_to_paint_s"] for r in bare_runs])
+    scroll, bare_scroll = actions(app_runs, "scroll"), actions(bare_runs, "scroll")
+    sheet, bare_sheet = actions(app_runs, "sheet"), actions(bare_runs, "sheet")
+    rows = [
+        ("app start → painted list, wall", app_s, bare_s, TARGETS["app"]),
+        ("app start → painted list, CPU", start_cpu, start_cpu_bare, TARGETS["app"]),
+        ("scroll the watch list, CPU per key (median)", _med(scroll), _med(bare_scroll),
+         TARGETS["scroll"]),
+        ("open a filter sheet, CPU (median)", _med(sheet), _med(bare_sheet), TARGETS["sheet"]),
+    ]  # fmt: skip
+    out = ["| figure | sumpbook | bare | ratio | target | verdict |", "|---|---|---|---|---|---|"]
+    for label, ours, bare, target in rows:
+        ratio = ours / bare
+        out.append(f"| {label} | {ours:.3g} | {bare:.3g} | {ratio:.2f}× | ≤ {target}× | "
+                   f"{'held' if ratio <= target else 'MISSED'} |")  # fmt: skip
+    out.append(f"scroll keys, CPU ms: app max {max(scroll):.0f}, bare max {max(bare_scroll):.0f}; "
+               f"runs: {len(app_runs)} of each, in turns")  # fmt: skip
+    return "\n".join(out)
+
+
 def percentile(values: list[float], p: float) -> float:
     ordered = sorted(values)
     k = (len(ordered) - 1) * p / 100
@@ -730,6 +826,14 @@ def main(argv: list[str] | None = None) -> int:
     )  # fmt: skip
     parser.add_argument("--only-later", action="store_true", help="figure 7 alone")
     parser.add_argument("--no-later", action="store_true", help="leave figure 7 out")
+    parser.add_argument(
+        "--only-app",
+        action="store_true",
+        help="figures 1 and 6 alone (the app and the bare app, in turns)",
+    )
+    parser.add_argument("--gc-runs", type=int, default=3,
+                        help="runs of each long read with and without the held collector "
+                        "(figure 8; 0 leaves it out)")  # fmt: skip
     args = parser.parse_args(argv)
     path = args.path.resolve()
     began = time.perf_counter()
@@ -769,12 +873,19 @@ def main(argv: list[str] | None = None) -> int:
     # The app and the bare app take turns, so that a slow spell of the machine hits both.
     app_runs, bare_runs = [], []
     for i in range(args.app_runs):
-        app_runs.append(_run_child("app" if i == 0 else "app-start", str(path), env=env))
+        kind = "app" if i == 0 or args.only_app else "app-start"
+        app_runs.append(_run_child(kind, str(path), env=env))
         bare_runs.append(_run_child("bare", str(app_runs[0]["rows"]), env=env))
     rows = app_runs[0]["rows"]
     app_s = _med([r["start_to_paint_s"] for r in app_runs])
     bare_s = _med([r["start_to_paint_s"] for r in bare_runs])
-    print(f"app start: {app_s:.2f} s, bare: {bare_s:.2f} s", flush=True)
+    start_cpu = _med([r["cpu_to_paint_s"] for r in app_runs])
+    start_cpu_bare = _med([r["cpu_to_paint_s"] for r in bare_runs])
+    print(f"app start: {app_s:.2f} s, bare: {bare_s:.2f} s; CPU {start_cpu:.2f} s, bare "
+          f"{start_cpu_bare:.2f} s", flush=True)  # fmt: skip
+    if args.only_app:
+        print(app_only_text(app_runs, bare_runs))
+        return 0
 
     status_cmd = [sys.executable, "-m", "tui", "--db", str(path), "status", "--json"]
     code = (
@@ -802,6 +913,8 @@ def main(argv: list[str] | None = None) -> int:
     print(f"saves: median {_med(save_ms):.0f} ms", flush=True)
     calls = store_calls(path)
     print(f"store calls: {calls}", flush=True)
+    gc_hold = None if args.gc_runs == 0 else gc_figures(path, env, args.gc_runs)
+    print(f"long reads with the collector held and not: {gc_hold}", flush=True)
     later = None if args.no_later else later_on(path, env, args.runs, roots)
     print(f"later on: {later}", flush=True)
     answers = same_answers(path, env, roots, export) if args.compare else []
@@ -816,6 +929,8 @@ def main(argv: list[str] | None = None) -> int:
     bare_wall, bare_cpu = actions(bare_runs, "scroll")
     figures = {
         "app": app_s / bare_s,
+        "start_cpu": start_cpu,
+        "start_cpu_bare": start_cpu_bare,
         "status": status_s / query_s,
         "export": ratio_export,
         "imported_s": _med([r["imported_s"] for r in app_runs]),
@@ -925,6 +1040,13 @@ def main(argv: list[str] | None = None) -> int:
         f"| {calls['recompute']:.0f} |",
     ]
     lines += issue_table(figures, app_s, bare_s)
+    lines.append(
+        f"\nApp start, the process's CPU to the painted list (threads included; less moved "
+        f"by the other work on the machine than the wall time): {start_cpu:.2f} s against the "
+        f"bare app's {start_cpu_bare:.2f} s, {start_cpu / start_cpu_bare:.2f}×."
+    )
+    if gc_hold is not None:
+        lines += gc_lines(gc_hold, args.gc_runs)
     if answers:
         lines += [
             "",

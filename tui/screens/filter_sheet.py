@@ -62,6 +62,8 @@ class FilterSheetScreen(BookScreen):
 
     def on_mount(self) -> None:
         self.query_one("#filter-body").focus()
+        if self.sheet is not None:  # read before the screen was first shown (show_filled)
+            self.show_sheet(self.sheet)
 
     def show_tag(self, tag: str) -> None:
         """Make this (kept) sheet show another filter: nothing of the one before stays on show
@@ -79,11 +81,15 @@ class FilterSheetScreen(BookScreen):
 
     def show_filled(self, tag: str, sheet: FilterSheet, stamp: tuple[object, ...]) -> None:
         """Make this (kept) sheet show another filter, read already (as the book stood at
-        `stamp`): shown again, it reads again only if the book has changed since."""
+        `stamp`): shown again, it reads again only if the book has changed since. Not
+        mounted yet (its first showing), it is drawn once as it is mounted."""
         self.tag = tag
+        self.shown_stamp, self.shown_at = stamp, time.monotonic()
+        if not self.is_mounted:
+            self.sheet = sheet
+            return
         self.show_sheet(sheet)
         self.query_one("#filter-body", VerticalScroll).scroll_home(animate=False)
-        self.shown_stamp, self.shown_at = stamp, time.monotonic()
 
     def reload(self) -> None:
         tag = self.tag

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 
 from rich.text import Text
@@ -21,7 +22,7 @@ from tui.screens.common import ENTRY_BINDINGS, BookScreen, Target
 from tui.widgets import fmt
 from tui.widgets.banner import DemoBanner
 from tui.widgets.keystrip import KeyStrip
-from tui.widgets.rowtable import RowTable
+from tui.widgets.rowtable import Cell, RowTable
 from tui.widgets.wrapped import Wrapped
 
 ALL = "*"
@@ -146,8 +147,8 @@ class WatchScreen(BookScreen):
             area.value = current if current in values else ALL
         self.fill()
         self.query_one(DataTable).loading = False
-        if not self.loaded:
-            self.sb.first_paint_done()
+        if not self.loaded:  # what runs behind the list starts once it is on the screen
+            self.call_after_refresh(self.sb.first_paint_done)
         self.loaded = True
         if data.stale and not self.catching_up:
             self.catching_up = True
@@ -185,6 +186,16 @@ class WatchScreen(BookScreen):
         prefs, local = self.sb.prefs, self.sb.book.local_zone()
         self.shown = self.visible()
         rows = []
+        # One cell for each distinct text of the columns that repeat (a unit's tag, a kind,
+        # a basis, a set of flags): a table holds its cells as they are, never changes one.
+        repeated: dict[object, Text] = {}
+
+        def once(key: object, make: Callable[[], Text]) -> Text:
+            found = repeated.get(key)
+            if found is None:
+                found = repeated[key] = fmt.shown(make())
+            return found
+
         for r in self.shown:
             urgent = "bold" if r.tier <= 1 else ""
             due = fmt.due_cell(r.due, r.state, r.overdue, local)
@@ -192,18 +203,23 @@ class WatchScreen(BookScreen):
                 due = "by indicator"
             if now := act_now(r.flags):
                 due = now  # INSPECT NOW / CHANGE NOW
-            cells = (
-                Text(r.tag, style=urgent),
-                Text(due, style=urgent),
-                fmt.limit_bar(r.percent_of_limit),
-                Text(fmt.pressure(r.dp_ref_bar, prefs, unit=False) if r.what == "filter" else ""),
-                fmt.flag_text(r.flags),
-                Text(fmt.sparkline(r.trend_bar, r.limit_bar)),
-                Text(r.unit),
-                Text(r.kind if r.what != "breather" else "breather"),
-                Text(r.basis),
+            kind = r.kind if r.what != "breather" else "breather"
+            cells = (  # Cell: a Text as the table holds it (built so, not copied into one)
+                fmt.shown(Cell(r.tag, style=urgent)),
+                fmt.shown(Cell(due, style=urgent)),
+                fmt.shown(fmt.limit_bar(r.percent_of_limit)),
+                fmt.shown(
+                    Cell(
+                        fmt.pressure(r.dp_ref_bar, prefs, unit=False) if r.what == "filter" else ""
+                    )
+                ),
+                once(("flags", *r.flags), lambda r=r: fmt.flag_text(r.flags)),
+                fmt.shown(Cell(fmt.sparkline(r.trend_bar, r.limit_bar))),
+                once(("unit", r.unit), lambda r=r: Cell(r.unit)),
+                once(("kind", kind), lambda kind=kind: Cell(kind)),
+                once(("basis", r.basis), lambda r=r: Cell(r.basis)),
             )
-            rows.append((r.tag, tuple(fmt.shown(c) for c in cells)))
+            rows.append((r.tag, cells))
         table.show(watch_columns(prefs), rows)
         if keep and any(r.tag == keep for r in self.shown):
             table.move_cursor(row=table.get_row_index(keep))

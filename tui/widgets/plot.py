@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import math
 
+from textual.app import RenderResult
 from textual_plotext import PlotextPlot
 
 from store.base.prefs import Prefs
@@ -42,15 +43,26 @@ class FilterPlot(PlotextPlot):
         super().__init__(**kwargs)
         self.sheet: FilterSheet | None = None
         self.prefs = Prefs()
+        self.drawn = 0  # counts `draw`s: what `render` built is used until the next one
+        self.built: tuple[tuple[object, ...], RenderResult] | None = None
 
     def show(self, sheet: FilterSheet | None, prefs: Prefs) -> None:
         self.sheet, self.prefs = sheet, prefs
         self.draw()
 
     def on_resize(self) -> None:
-        self.draw()
+        self.refresh()  # built again at the new size (`render`); the data are as drawn
+
+    def render(self) -> RenderResult:
+        """The chart as plotext builds it, once for each drawing, size and theme (the widget
+        builds it again on every render: a screen laid out twice built it twice)."""
+        key = (self.drawn, self.size, self.app.theme)
+        if self.built is None or self.built[0] != key:
+            self.built = (key, super().render())
+        return self.built[1]
 
     def draw(self) -> None:
+        self.drawn += 1
         plt = self.plt
         plt.clear_data()
         plt.clear_figure()

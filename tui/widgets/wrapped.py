@@ -23,6 +23,7 @@ class Wrapped(Static):
         self.max_lines = max_lines  # more are left out, the last line shown ends in '…'
         self.blocks: list[Block] = [text] if text else []
         self.wrapped_at = 0
+        self.line_count = -1  # lines shown by the last `show` (-1: none yet)
 
     def on_mount(self) -> None:
         if self.blocks:
@@ -46,7 +47,13 @@ class Wrapped(Static):
             last = lines[-1]
             last.truncate(width - 1)
             lines[-1] = last + Text("…")
-        self.update(Text("\n").join(lines))
+        # As many lines as before, each fitting the width: the widget keeps its size, so
+        # only it is drawn again, not the screen laid out (and the list beside it redrawn)
+        # on every key that changes the text.
+        fits = all(line.cell_len <= width for line in lines)
+        same_size = fits and len(lines) == self.line_count
+        self.line_count = len(lines) if fits else -1
+        self.update(Text("\n").join(lines), layout=not same_size)
 
     def on_resize(self, event: events.Resize) -> None:
         if self.blocks and self.content_region.width != self.wrapped_at:

@@ -1,0 +1,66 @@
+"""The collector held by long reads (journal._no_gc_pauses) is one switch for the whole
+process: reads in several threads, nested or ending in any order, leave it as they found it
+(issue 25, item 4). Why it is held at all is measured by tests/benchmarks/speed.py."""
+
+from __future__ import annotations
+
+import gc
+import threading
+
+import pytest
+
+from store.ledger.journal import _no_gc_pauses
+
+
+@pytest.fixture(autouse=True)
+def _collector_on():
+    gc.enable()
+    yield
+    gc.enable()
+
+
+def test_nested_holds_let_the_collector_run_again_only_when_the_outer_one_ends():
+    with _no_gc_pauses():
+        with _no_gc_pauses():
+            assert not gc.isenabled()
+        assert not gc.isenabled()  # the outer read is still building
+    assert gc.isenabled()
+
+
+def test_two_threads_ending_in_the_other_order_keep_it_held_until_the_last_one_ends():
+    a_in, b_in, a_out, b_checked = (threading.Event() for _ in range(4))
+    seen: dict[str, bool] = {}
+
+    def a() -> None:
+        with _no_gc_pauses():
+            a_in.set()
+            b_in.wait(5)
+        a_out.set()  # A ends first, B is still reading
+
+    def b() -> None:
+        a_in.wait(5)
+        with _no_gc_pauses():
+            b_in.set()
+            a_out.wait(5)
+            seen["during B after A"] = gc.isenabled()
+        b_checked.set()
+
+    threads = [threading.Thread(target=a), threading.Thread(target=b)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join(10)
+    assert b_checked.is_set()
+    assert seen["during B after A"] is False  # the first version switched it on here
+    assert gc.isenabled()
+
+
+def test_a_collector_switched_off_by_its_owner_stays_off_and_an_error_lets_it_go():
+    gc.disable()
+    with _no_gc_pauses():
+        pass
+    assert not gc.isenabled()
+    gc.enable()
+    with pytest.raises(ValueError), _no_gc_pauses():
+        raise ValueError("a row that cannot be read")
+    assert gc.isenabled()

@@ -1,0 +1,81 @@
+"""The app's start loads what the watch list needs and no more (issue 21, item 3).
+
+The app is started in a fresh interpreter on a copy of the demo plant whose kept rows are
+fresh, and the modules loaded by the moment its list is painted (`first_paint_done`, which
+then starts the work behind the list) are listed: no other screen, no form, no chart library,
+no fitting maths. Then a filter sheet is opened in the same run, and its screen, the chart
+library and the forecast show up (so the check is not blind). How long a start takes is
+measured by tests/benchmarks/speed.py, not here.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+from store import record
+from store.base.session import fixed_clock
+from store.db.book import open_book
+from tests.kit.plant import write_prefs
+
+ROOT = Path(__file__).resolve().parents[2]
+
+# Run in the child: start the app, note sys.modules at the first paint (the work behind the
+# list is not started: it loads the fitting maths on purpose), then open a filter sheet.
+CHILD = """
+import asyncio, json, sys
+from store.db.book import open_book
+from tui.app import SumpbookApp
+
+at_paint = []
+SumpbookApp.first_paint_done = lambda self: at_paint.append(sorted(sys.modules))
+
+async def main():
+    app = SumpbookApp(open_book(sys.argv[1], create=False), cursor_blink=False)
+    async with app.run_test(size=(80, 24)) as pilot:
+        while not at_paint:
+            await pilot.pause(0.01)
+        app.screen.query_one("#watch-table").move_cursor(row=0)
+        await pilot.press("enter")
+        for _ in range(500):
+            await pilot.pause(0.01)
+            if type(app.screen).__name__ == "FilterSheetScreen" and app.screen.loaded:
+                break
+        print(json.dumps({"paint": at_paint[0], "sheet": sorted(sys.modules)}))
+
+asyncio.run(main())
+"""
+
+NOT_AT_START = ("numpy", "scipy", "plotext", "textual_plotext", "sqlite_utils", "store.forecast",
+                "tui.forms", "tui.widgets.plot", "tui.screens.filter_sheet",
+                "tui.screens.unit_sheet", "tui.screens.shift_log", "tui.screens.register",
+                "tui.screens.round_sheet", "tui.screens.help", "tui.screens.first_run",
+                "tui.screens.sign_in", "tui.screens.tag_prompt")  # fmt: skip
+
+
+def loaded_of(names: list[str], packages: tuple[str, ...]) -> list[str]:
+    return sorted(n for n in names if any(n == p or n.startswith(p + ".") for p in packages))
+
+
+def test_the_painted_list_loads_no_other_screen_form_chart_or_fitting_maths(demo_file, tmp_path):
+    path = tmp_path / "demo.db"
+    path.write_bytes(demo_file.read_bytes())
+    with open_book(path, create=False) as book:
+        now = book.now()
+    with open_book(path, create=False, clock=fixed_clock(now)) as book:
+        record.rebuild(book)  # fresh kept rows: the list is read, not computed
+    env = {**os.environ, "SUMPBOOK_CONFIG": str(write_prefs(tmp_path, tech="AK")),
+           "SUMPBOOK_NOW": now.isoformat(), "PYTHONPATH": str(ROOT)}  # fmt: skip
+    done = subprocess.run([sys.executable, "-c", CHILD, str(path)], capture_output=True,
+                          text=True, env=env, cwd=ROOT, timeout=240, check=False)  # fmt: skip
+    assert done.returncode == 0, done.stderr[-3000:]
+    seen = json.loads(done.stdout.strip().splitlines()[-1])
+    assert "tui.screens.watch" in seen["paint"]
+    assert loaded_of(seen["paint"], NOT_AT_START) == []
+    # Not blind: the filter sheet brings its screen, the chart and the forecast.
+    sheet = loaded_of(seen["sheet"], NOT_AT_START)
+    for name in ("tui.screens.filter_sheet", "textual_plotext", "store.forecast.trend", "numpy"):
+        assert name in sheet
