@@ -11,6 +11,10 @@ form, an hour holding a change of offset, a reading the normalising maths would 
 done the slow, plain way for that row. tests/store/test_csvexport.py holds it byte for byte to the
 plain entry-by-entry writer kept in tests/kit/csv_oracle.py.
 
+After the entries, when asked (`status=True`, what `sumpbook export` and the shift-log
+screen do unless told `--entries-only`), come the status rows of the handover
+(`status_rows`): as of the end of the span, read through `views.watch(as_of=...)`.
+
 One process: a span once shared with a forked second process measured 0.8x (slower) on a busy
 2-core machine, so the fork went.
 """
@@ -33,21 +37,26 @@ from typing import IO, Any
 
 from store.base.errors import BookError
 from store.base.prefs import Prefs
-from store.base.timeutil import format_utc, iso_local, shift_at
+from store.base.timeutil import format_utc, iso_local, next_shift, shift_at
 from store.base.units import from_bar, pressure_key, temperature_key, to_bar
 from store.db.book import Book
 from store.db.targets import refuse_input_as_output
 from store.exchange.csvcolumns import (
     COLUMNS,
     FORMULA_START,
+    STATUS_COLUMNS,
+    STATUS_KIND,
     VALUE_COLUMNS,
     header,
     reference_cell,
 )
 from store.exchange.csvcolumns import number_text as _num
+from store.health import urgency
 from store.health.conditions import FilterContext, contexts, normalise
+from store.health.status import FLAG_WORDS, Watch
 from store.ledger.entries import KINDS, TARGET_COLUMN, Reading, entry_columns
 from store.ledger.journal import ROW_ERRORS, note_unreadable, parse_stamp
+from store.views import watch
 
 # Reading a column costs even when it is NULL, and the later in the table row the more, so
 # the span query reads only what a reading needs (readings are nearly every entry); the columns
@@ -417,16 +426,141 @@ def write_span(
     prefs: Prefs,
     local: tzinfo,
     pattern: list[tuple[str, str]],
+    status: bool = False,
 ) -> int:
     """Write the entries logged in [start, end) as the shift-log CSV (header first); returns
-    how many. None leaves that end of the span open."""
+    how many. None leaves that end of the span open. With `status`, the status rows of the
+    handover follow the entries (`status_rows`) and the header has their columns."""
     start_text = None if start is None else format_utc(start)
     end_text = None if end is None else format_utc(end)
     with read_snapshot(book.conn):
         span_lines = SpanLines(book, prefs, local, pattern)
-        out.write(span_lines.header)
         sql, params = _span_sql(start_text, end_text)
-        return _write_lines(out, span_lines.lines(book.conn.execute(sql, params)))
+        lines = span_lines.lines(book.conn.execute(sql, params))
+        if not status:
+            out.write(span_lines.header)
+            return _write_lines(out, lines)
+        out.write(csv_line(header(prefs, status=True)))
+        pad = "," * len(STATUS_COLUMNS)  # an entry leaves the status columns empty
+        count = _write_lines(out, (line + pad for line in lines))
+        as_of = status_as_at(start, end, book.now())
+        if as_of is not None:
+            _write_lines(out, iter(status_rows(book, as_of, prefs, local, pattern)))
+        return count
+
+
+# ---- the status rows ------------------------------------------------------------------------------
+
+
+def status_as_at(start: datetime | None, end: datetime | None, now: datetime) -> datetime | None:
+    """The moment the status rows describe: the span's last second, or now for a span that
+    has not ended (the current shift); None for a span that has not begun."""
+    as_of = now if end is None else min(end - timedelta(seconds=1), now)
+    return None if start is not None and as_of < start else as_of
+
+
+def status_rows(
+    book: Book, as_of: datetime, prefs: Prefs, local: tzinfo, pattern: list[tuple[str, str]]
+) -> list[str]:
+    """The handover as CSV lines (no line ends), most urgent first (store/health/urgency.py):
+    every filter and breather that is flagged, or whose change or swap window opens (earliest
+    date), or whose next reading falls, before the end of the shift after the one holding
+    `as_of` (`handover_end`); and every unit with a flag. Read as of that moment
+    (`views.watch(as_of=...)`, from the entries as they stood then), so the same span
+    exported again later gives the same rows."""
+    return [
+        _status_line(row, prefs, local, pattern, as_of)
+        for row in handover(book, as_of, pattern, local)
+    ]
+
+
+def handover_end(as_of: datetime, pattern: list[tuple[str, str]], local: tzinfo) -> datetime:
+    """The horizon of the handover: the end of the shift after the one holding `as_of`."""
+    return next_shift(shift_at(as_of, pattern, local), pattern, local).end
+
+
+@dataclass(frozen=True)
+class StatusRow:
+    """One position (or unit) of the handover, as the status rows write it."""
+
+    tag: str
+    unit: str
+    flags: tuple[str, ...]
+    earliest: datetime | None
+    due: datetime | None  # the likely date of a change or swap
+    next_reading: datetime | None
+    dp_ref_bar: float | None
+    notes: tuple[str, ...]
+    key: tuple  # its place in the one order (urgency.order_key)
+
+
+def handover(
+    book: Book, as_of: datetime, pattern: list[tuple[str, str]], local: tzinfo
+) -> list[StatusRow]:
+    """What the status rows hold, in the one order (see `status_rows`). Overdue as the watch
+    list has it (store/sheets.py filter_row): an overdue state, or a likely date passed."""
+    horizon = handover_end(as_of, pattern, local)
+    w: Watch = watch(book, as_of=as_of)
+    rows = []
+    for f in w.filters:
+        earliest, likely = (f.due.earliest, f.due.likely) if f.due else (None, None)
+        soon = [t for t in (earliest, f.next_reading) if t is not None and t < horizon]
+        if not (f.flags or soon):
+            continue
+        overdue = f.state in urgency.OVERDUE_STATES or (likely is not None and likely <= as_of)
+        key = urgency.order_key(f.flags, overdue, likely, f.percent_of_limit, f.filter)
+        rows.append(
+            StatusRow(
+                f.filter,
+                f.unit,
+                f.flags,
+                earliest,
+                likely,
+                f.next_reading,
+                f.dp_ref_bar,
+                f.notes,
+                key,
+            )  # fmt: skip
+        )
+    for b in w.breathers:
+        due = b.forecast.due
+        if not (b.flags or (due is not None and due < horizon)):
+            continue
+        key = urgency.order_key(b.flags, b.forecast.overdue, due, None, b.breather)
+        rows.append(StatusRow(b.breather, b.unit, b.flags, due, due, None, None, (), key))
+    for u in w.units:
+        if u.flags:
+            key = urgency.order_key(u.flags, False, None, None, u.unit)
+            rows.append(StatusRow(u.unit, u.unit, u.flags, None, None, None, None, u.notes, key))
+    rows.sort(key=lambda r: r.key)
+    return rows
+
+
+def _status_line(
+    row: StatusRow, prefs: Prefs, local: tzinfo, pattern: list[tuple[str, str]], as_of: datetime
+) -> str:
+    names = header(prefs, status=True)
+    cells = dict.fromkeys(names, "")
+
+    def when(moment: datetime | None) -> str:
+        return "" if moment is None else iso_local(moment, local)
+
+    pressure = pressure_key(prefs.pressure)
+    cells |= {
+        "time": iso_local(as_of, local),
+        "shift": csv_field(shift_at(as_of, pattern, local).name),
+        "kind": STATUS_KIND,
+        "target": csv_field(row.tag),
+        "unit": csv_field(row.unit),
+        "flags": csv_field("; ".join(FLAG_WORDS.get(f, f) for f in row.flags)),
+        "due_earliest": when(row.earliest),
+        "due": when(row.due),
+        "next_reading": when(row.next_reading),
+        "note": csv_field("; ".join(row.notes)),
+    }
+    if row.dp_ref_bar is not None:
+        cells[f"dp_ref_{pressure}"] = _num(from_bar(row.dp_ref_bar, pressure))
+    return ",".join(cells[name] for name in names)
 
 
 BOM = "\ufeff"  # UTF-8's byte-order mark: an office spreadsheet then reads ν, °C, µm as written
@@ -441,6 +575,7 @@ def export_file(
     local: tzinfo,
     pattern: list[tuple[str, str]],
     bom: bool = True,
+    status: bool = False,
 ) -> int:
     """`write_span` into the regular file `dest` (made or replaced); returns the count.
 
@@ -461,7 +596,7 @@ def export_file(
         with open(os.open(part, flags, 0o666), "w", encoding="utf-8", newline="") as out:
             if bom:
                 out.write(BOM)
-            count = write_span(out, book, start, end, prefs, local, pattern)
+            count = write_span(out, book, start, end, prefs, local, pattern, status)
             out.flush()
             os.fsync(out.fileno())
         refuse_odd_destination(dest)  # nothing was put there meanwhile

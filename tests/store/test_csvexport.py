@@ -30,10 +30,11 @@ from hypothesis import strategies as st
 from store import record
 from store.base.prefs import Prefs
 from store.base.session import fixed_clock
-from store.base.timeutil import format_utc, iso_local, shift_at, zone
+from store.base.timeutil import format_utc, iso_local, next_shift, previous_shift, shift_at, zone
 from store.db.book import Book, open_book
 from store.exchange.csvcolumns import header
 from store.exchange.csvexport import FilterReference, LocalClock, csv_field, write_span
+from store.exchange.csvio import import_csv
 from store.exchange.demo import create_demo
 from store.health.conditions import contexts
 from store.ledger import journal, register
@@ -48,8 +49,10 @@ from store.ledger.entries import (
     Void,
 )
 from store.ledger.register import FilterPosition, Fluid, Unit
+from store.sheets import shift_log, watch_rows
+from store.views import watch
 from tests.kit.csv_oracle import export_rows, neutralise, write_csv
-from tests.kit.plant import fill_register
+from tests.kit.plant import fill_register, raw_entry_count, run_cli
 
 ZONES = (
     "Europe/Berlin",
@@ -172,22 +175,37 @@ def demo(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Book]:
 
 
 def exports(
-    book: Book, start: datetime | None, end: datetime | None, prefs: Prefs
+    book: Book,
+    start: datetime | None,
+    end: datetime | None,
+    prefs: Prefs,
+    status: bool = False,
 ) -> tuple[str, str]:
-    """(entry-based export, fast export) of the same span."""
+    """(entry-based export, fast export) of the same span; with `status`, the status rows as
+    of the span's last second (or now), as the shift-log screen's handover reads them."""
     local, pattern = book.local_zone(), book.shift_pattern()
     old, new = io.StringIO(), io.StringIO()
     entries = journal.read(book, since=start, until=end)
-    old_count = write_csv(old, book, entries, prefs, local, pattern)
-    new_count = write_span(new, book, start, end, prefs, local, pattern)
+    now = book.now()
+    as_of = now if end is None else min(end - timedelta(seconds=1), now)
+    if start is not None and as_of < start:
+        as_of = None  # a span that has not begun: no handover yet
+    old_count = write_csv(old, book, entries, prefs, local, pattern, as_of, status)
+    new_count = write_span(new, book, start, end, prefs, local, pattern, status)
     assert new_count == old_count == len(entries)
     assert not book.conn.in_transaction
     return old.getvalue(), new.getvalue()
 
 
-def assert_same(book: Book, start: datetime | None, end: datetime | None, prefs: Prefs) -> str:
+def assert_same(
+    book: Book,
+    start: datetime | None,
+    end: datetime | None,
+    prefs: Prefs,
+    status: bool = False,
+) -> str:
     """The fast export equals the entry-based one (the reference: no typed-in result)."""
-    old, new = exports(book, start, end, prefs)
+    old, new = exports(book, start, end, prefs, status)
     assert new.splitlines(keepends=True) == old.splitlines(keepends=True)
     assert new == old
     return old
@@ -272,12 +290,17 @@ def test_the_command_line_writes_the_same_file(plant, tmp_path, monkeypatch):
     from tui.cli import main
 
     plant.set_setting("timezone", "America/Chicago")
-    out = tmp_path / "year.csv"
+    out, bare = tmp_path / "year.csv", tmp_path / "entries.csv"
     monkeypatch.setenv("SUMPBOOK_NOW", NOW)
-    args = ["--db", str(plant.path), "export", "--from", f"{YEAR}-01-01T00:00", "-o", str(out)]
-    assert main(args) == 0
-    old, _ = exports(plant, local_moment(plant, f"{YEAR}-01-01T00:00"), None, Prefs())
-    assert out.read_bytes() == b"\xef\xbb\xbf" + old.encode("utf-8")  # UTF-8's BOM first
+    args = ["--db", str(plant.path), "export", "--from", f"{YEAR}-01-01T00:00", "-o"]
+    assert main([*args, str(out)]) == 0
+    assert main([*args, str(bare), "--entries-only"]) == 0
+    start = local_moment(plant, f"{YEAR}-01-01T00:00")
+    with_status, _ = exports(plant, start, None, Prefs(), status=True)
+    entries_only, _ = exports(plant, start, None, Prefs())
+    assert out.read_bytes() == b"\xef\xbb\xbf" + with_status.encode("utf-8")  # UTF-8's BOM first
+    assert bare.read_bytes() == b"\xef\xbb\xbf" + entries_only.encode("utf-8")
+    assert with_status.startswith(entries_only.partition("\r\n")[0] + ",flags,")
     assert not (tmp_path / "year.csv.part").exists()
 
 
@@ -290,11 +313,92 @@ def test_the_shift_log_screen_writes_the_same_file(plant, tmp_path):
     out = tmp_path / "night.csv"
     units = Prefs(pressure="psi", temperature="F", volume="gal")
     count = export_file(str(plant.path), out, span, units, plant.clock)
-    old, _ = exports(
-        plant, span.start, span.end, Prefs(pressure="psi", temperature="F", volume="gal")
-    )
-    assert count == old.count("\r\n") - 1 > 0
+    old, _ = exports(plant, span.start, span.end, units, status=True)
+    assert count == len(journal.read(plant, since=span.start, until=span.end)) > 0
     assert out.read_bytes() == b"\xef\xbb\xbf" + old.encode("utf-8")
+
+
+# ---- the status rows of the handover ------------------------------------------------------------
+
+
+def status_lines(text: str) -> list[dict[str, str]]:
+    return [r for r in csv.DictReader(io.StringIO(text)) if r["kind"] == "status"]
+
+
+@pytest.mark.parametrize("prefs", UNIT_CHOICES)
+def test_the_demo_plants_handover_exports_the_same(demo, prefs):
+    local, pattern = demo.local_zone(), demo.shift_pattern()
+    current = shift_at(demo.now(), pattern, local)
+    previous = previous_shift(current, pattern, local)
+    week_ago = shift_at(demo.now() - timedelta(days=7), pattern, local)
+    spans = [(None, None), (current.start, current.end), (previous.start, previous.end)]
+    spans += [(week_ago.start, week_ago.end), (week_ago.start, None)]
+    for start, end in spans:
+        text = assert_same(demo, start, end, prefs, status=True)
+        rows = status_lines(text)
+        assert rows, (start, end)  # the demo plant always has something flagged
+        assert len({r["time"] for r in rows}) == 1
+    later = next_shift(current, pattern, local)  # has not begun: no handover yet
+    text = assert_same(demo, later.start, later.end, prefs, status=True)
+    assert text.count("\r\n") == 1 and text.rstrip().endswith(
+        ",flags,due_earliest,due,next_reading"
+    )
+
+
+def test_the_status_rows_hold_the_screens_handover_most_urgent_first(demo):
+    # the shift-log screen's own lists (store.sheets.shift_log) against the file's rows
+    pattern, local = demo.shift_pattern(), demo.local_zone()
+    span = previous_shift(shift_at(demo.now(), pattern, local), pattern, local)
+    screen = shift_log(demo, span)
+    _, text = exports(demo, span.start, span.end, Prefs(), status=True)
+    rows = status_lines(text)
+    tags = [r["target"] for r in rows]
+    assert {r.tag for r in screen.open_flags} | {r.tag for r in screen.due_next} <= set(tags)
+    assert all(r["time"] == iso_local(screen.as_of, local) for r in rows)
+    order = [r.tag for r in watch_rows(watch(demo, as_of=screen.as_of)) if r.tag in tags]
+    assert tags == order  # the watch list's order: store/health/urgency.py
+    assert any(r["flags"] and r["due"] for r in rows)
+    assert any(r["next_reading"] for r in rows)
+
+
+def test_a_past_shift_exported_again_later_is_the_same_file(live, monkeypatch):
+    with open_book(live, create=False) as book:
+        pattern, local, now = book.shift_pattern(), book.local_zone(), book.now()
+        span = previous_shift(shift_at(now, pattern, local), pattern, local)
+        first = io.StringIO()
+        write_span(first, book, span.start, span.end, Prefs(), local, pattern, status=True)
+        assert status_lines(first.getvalue())
+        # a week on, with a reading and an element change logged since on a filter it lists
+        tag = next(r["target"] for r in status_lines(first.getvalue()) if r["next_reading"])
+        later = now + timedelta(days=7)
+        book.set_setting("clock", format_utc(later))  # the demo's frozen clock moved on
+        record.log(book, Reading(filter=tag, dp_bar=0.4, by="AK", at=later - timedelta(days=2)))
+        change = ElementChange(filter=tag, reason="limit", by="AK", at=later - timedelta(days=1))
+        record.log(book, change)
+        again = io.StringIO()
+        write_span(again, book, span.start, span.end, Prefs(), local, pattern, status=True)
+    assert again.getvalue() == first.getvalue()
+
+
+def test_an_exported_shift_log_imports_as_nothing_new_and_says_so(live, tmp_path, capsys):
+    out = tmp_path / "shift.csv"
+    code, _, _ = run_cli(capsys, "--db", str(live), "export", "--shift", "previous", "-o", str(out))
+    assert code == 0
+    text = out.read_text(encoding="utf-8-sig")
+    entries = sum(1 for r in csv.DictReader(io.StringIO(text)) if r["kind"] != "status")
+    statuses = len(status_lines(text))
+    assert entries > 0 and statuses > 0
+    before = raw_entry_count(live)
+    code, said, err = run_cli(capsys, "--db", str(live), "import", str(out))
+    assert code == 0, err
+    assert said.strip() == (
+        f"imported 0 entries; {entries} were in the book already; {statuses} status rows "
+        "passed over (a shift log's handover, not entries)"
+    )
+    assert raw_entry_count(live) == before
+    with open_book(live, create=False) as book:  # the same, through the store
+        result = import_csv(book, out.read_bytes(), book.local_zone())
+    assert (result.added, result.skipped, result.status_rows) == (0, entries, statuses)
 
 
 def test_stamps_not_in_the_books_own_form_export_the_same(book, monkeypatch):
