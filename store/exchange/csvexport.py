@@ -88,6 +88,35 @@ _OTHER_COLUMNS = tuple(
 _COL = {name: i for i, name in enumerate((*_READING_COLUMNS, *_OTHER_COLUMNS))}
 # Range and order both from the index entries_by_time (no sort).
 _SELECT = "SELECT " + ", ".join(f"e.{c}" for c in _READING_COLUMNS) + " FROM entries e"
+# ... and whether the stamp is in the book's own form (`_is_stamp`), tested by SQLite
+_SELECT_FAST = (
+    "SELECT " + ", ".join(f"e.{c}" for c in _READING_COLUMNS) + ", e.at_utc GLOB "
+    "'[0-9][0-9][0-9][0-9]-[0-9][0-9]-[0-9][0-9]T[0-9][0-9]:[0-9][0-9]:[0-9][0-9]Z' "
+    "FROM entries e"
+)
+_NAMES = {i: name for name, i in _COL.items()}
+# What a reading's cells are made from in `SpanLines.span` (the pieces' keys, id and time)
+_READING_LAYOUT = (
+    *("id", "time", "shift", "kind", "target", "unit", "by"),
+    *("dp", "indicator", "temp", "dp_ref", "reference", "flow_lpm", "hours"),
+)
+_READING_PIECES = {
+    "filter",
+    "unit",
+    "by",
+    "dp_bar",
+    "indicator",
+    "temp_c",
+    "flow_lpm",
+    "hours",
+    "note",
+}
+
+
+class _Whole(Exception):
+    """A row `SpanLines.span` writes through `SpanLines.cells` whole."""
+
+
 _SELECT_OTHER = "SELECT " + ", ".join(_OTHER_COLUMNS) + " FROM entries WHERE id = ?"
 # From the partial index one_void_per_entry.
 _SELECT_VOIDS = "SELECT voids, id FROM entries WHERE voids IS NOT NULL"
@@ -101,17 +130,18 @@ _INF = float("inf")
 _BATCH = 4096  # lines written to the file at a time
 
 
-def _span_sql(start: str | None, end: str | None) -> tuple[str, list[Any]]:
+def _span_sql(start: str | None, end: str | None, fast: bool = False) -> tuple[str, list[Any]]:
     """The SQL and parameters for every entry in [start, end) (stored stamps; None leaves
     that end open), ordered as `journal.read` orders them (time, then the order they were
-    written)."""
+    written). `fast`: each row ends with whether its stamp is in the book's own form."""
     where: list[str] = []
     params: list[Any] = []
     for bound, test in ((start, "e.at_utc >= ?"), (end, "e.at_utc < ?")):
         if bound is not None:
             where.append(test)
             params.append(bound)
-    sql = _SELECT + (" WHERE " + " AND ".join(where) if where else "")
+    select = _SELECT_FAST if fast else _SELECT
+    sql = select + (" WHERE " + " AND ".join(where) if where else "")
     return sql + " ORDER BY e.at_utc, e.rowid", params
 
 
@@ -219,6 +249,7 @@ class FilterReference:
         self.problem = ""
         if ctx.curve is None or ctx.reference is None:
             self.problem = csv_field(f"not normalised: {ctx.problem}")
+            self.signature: tuple[Any, ...] = (self.problem,)
             return
         self.normal_temp_c = ctx.unit.normal_temp_c
         self.nu_ref_cst = ctx.reference.nu_ref_cst
@@ -228,6 +259,16 @@ class FilterReference:
             for temp in (False, True)
             for flow in (False, True)
         }
+        # what `fast_cells` depends on: positions alike in it give the same cells
+        self.signature = (
+            ctx.curve.nu40_cst,
+            ctx.curve.nu100_cst,
+            self.nu_ref_cst,
+            self.flow_ref_lpm,
+            self.normal_temp_c,
+            self.bar_per_unit,
+            tuple(sorted(self.labels.items())),
+        )
 
     def cells(self, dp_bar: float, temp_c: float | None, flow_lpm: float | None) -> tuple[str, str]:
         """(dp_ref cell, reference cell) for a reading with a ΔP value, remembered per values
@@ -241,21 +282,30 @@ class FilterReference:
     def _cells(
         self, dp_bar: float, temp_c: float | None, flow_lpm: float | None
     ) -> tuple[str, str]:
+        found = self.fast_cells(dp_bar, temp_c, flow_lpm)
+        return self._slow(dp_bar, temp_c, flow_lpm) if found is None else found
+
+    def fast_cells(
+        self, dp_bar: float, temp_c: float | None, flow_lpm: float | None
+    ) -> tuple[str, str] | None:
+        """The cells from the position's constants alone (its `signature`); None for the
+        values only `conditions.normalise` words (the `_slow` path, which reads the whole
+        context)."""
         if self.problem:
             return "", self.problem
         ratio = self._nu_ratio(self.normal_temp_c if temp_c is None else temp_c)
         if isinstance(ratio, str):
             return "", ratio
         if ratio is None or not 0.0 <= dp_bar < _INF:
-            return self._slow(dp_bar, temp_c, flow_lpm)
+            return None
         flow_ratio = 1.0
         if flow_lpm is not None:
             if not 0.0 < flow_lpm < _INF:
-                return self._slow(dp_bar, temp_c, flow_lpm)
+                return None
             if self.flow_ref_lpm is not None:
                 flow_ratio = flow_lpm / self.flow_ref_lpm
                 if not 1e-100 < flow_ratio < 1e100:  # flow_ratio**2 in normalise_dp_bar
-                    return self._slow(dp_bar, temp_c, flow_lpm)
+                    return None
         # normalise_dp_bar with no housing part (the element's ΔP is the whole ΔP), in its order
         dp_ref_bar = dp_bar * ratio / flow_ratio
         flow_assumed = flow_lpm is None or self.flow_ref_lpm is None
@@ -306,6 +356,21 @@ class KindPlan:
     cells: tuple[tuple[int, int, dict[Any, str], Callable[[Any], str]], ...]
     reading: bool  # a reading: its ΔP gets a reference value
     other: bool  # needs columns the span query does not read
+
+    def memo(self, column: str) -> dict[Any, str]:
+        """The memo of a column's cells (value -> cell)."""
+        return next(memo for _, at, memo, _ in self.cells if at == _COL[column])
+
+    def piece(self, row: Sequence[Any], lo: int, hi: int) -> list[str]:
+        """The cells lo to hi - 1 of the row, as `fill` makes them."""
+        cells = self.blank[lo:hi]
+        for cell, column, memo, make in self.cells:
+            if lo <= cell < hi:
+                value = row[column]
+                if value is not None:
+                    text = memo.get(value)
+                    cells[cell - lo] = remember(memo, value, make(value)) if text is None else text
+        return cells
 
     def fill(self, row: Sequence[Any]) -> list[str]:
         """The row's cells, but for those worked out beyond its own columns (time, shift,
@@ -370,44 +435,148 @@ class SpanLines:
         self.void = columns.index("voided_by")
         self.dp_ref = columns.index(f"dp_ref_{self.pressure}")
         self.reference = columns.index("reference")
+        # `span`'s pieces of a reading: the cells up to the hour meter's, and from it on
+        self.split = columns.index("hours")
+        reading = self.plans["reading"]
+        used = {_NAMES[column] for _, column, _, _ in reading.cells}
+        self.fast = [c.name for c in COLUMNS[:14]] == list(
+            _READING_LAYOUT
+        ) and used <= _READING_PIECES
 
     def lines(self, rows: Iterable[Sequence[Any]]) -> Iterator[str]:
-        """Each row's CSV line, without its CR LF. One loop with its lookups bound once: it
-        runs for every entry of the span."""
-        plans, voided_by, references = self.plans, self.voided_by, self.references
-        clock, shifts, conn = self.clock, self.shifts, self.conn
-        time_cell, shift_cell, void_cell = self.time, self.shift, self.void
-        dp_ref_cell, reference_cell = self.dp_ref, self.reference
+        """Each row's CSV line, without its CR LF (rows as the span query reads them)."""
         for row in rows:
             try:
-                stamp = row[_AT]
-                if not _is_stamp(stamp):
-                    stamp = canonical_stamp(stamp)
-                plan = plans[row[_KIND]]
-                if plan.other:
-                    row = (*row, *conn.execute(_SELECT_OTHER, [row[_ID]]).fetchone())
-                cells = plan.fill(row)
-                if row[_ID] in voided_by:
-                    cells[void_cell] = csv_field(voided_by[row[_ID]])
-                if stamp[:13] == clock.hour and clock.prefix is not None:  # clock.text, inlined
-                    cells[time_cell] = clock.prefix + stamp[13:19] + clock.suffix
-                else:
-                    cells[time_cell] = clock.text(stamp)
-                cells[shift_cell] = (
-                    shifts.cell if shifts.start <= stamp < shifts.end else shifts.name(stamp)
-                )
-                if plan.reading and row[_DP] is not None:
-                    reference = references.get(row[_FILTER], _UNSEEN)
-                    if reference is _UNSEEN:
-                        reference = self._reference(row[_FILTER])
-                    if reference is not None:
-                        cells[dp_ref_cell], cells[reference_cell] = reference.cells(
-                            row[_DP], row[_TEMP], row[_FLOW]
-                        )
+                cells = self.cells(row)
             except ROW_ERRORS as exc:  # a row planted past the checks: skipped, reported
                 note_unreadable(self.book, row[_ID], f"{type(exc).__name__}: {exc}")
                 continue
             yield ",".join(cells)
+
+    def cells(self, row: Sequence[Any]) -> list[str]:
+        """One row's cells, ready for the line; a row planted past the checks raises one of
+        ROW_ERRORS."""
+        clock, shifts = self.clock, self.shifts
+        stamp = row[_AT]
+        if not _is_stamp(stamp):
+            stamp = canonical_stamp(stamp)
+        plan = self.plans[row[_KIND]]
+        if plan.other:
+            row = (*row, *self.conn.execute(_SELECT_OTHER, [row[_ID]]).fetchone())
+        cells = plan.fill(row)
+        if row[_ID] in self.voided_by:
+            cells[self.void] = csv_field(self.voided_by[row[_ID]])
+        if stamp[:13] == clock.hour and clock.prefix is not None:  # clock.text, inlined
+            cells[self.time] = clock.prefix + stamp[13:19] + clock.suffix
+        else:
+            cells[self.time] = clock.text(stamp)
+        cells[self.shift] = (
+            shifts.cell if shifts.start <= stamp < shifts.end else shifts.name(stamp)
+        )
+        if plan.reading and row[_DP] is not None:
+            reference = self.references.get(row[_FILTER], _UNSEEN)
+            if reference is _UNSEEN:
+                reference = self._reference(row[_FILTER])
+            if reference is not None:
+                cells[self.dp_ref], cells[self.reference] = reference.cells(
+                    row[_DP], row[_TEMP], row[_FLOW]
+                )
+        return cells
+
+    def span(self, start_text: str | None, end_text: str | None) -> Iterator[str]:
+        """Every line of the entries in [start_text, end_text), in the export's order.
+
+        A reading (nearly every entry) is put together from remembered text after its id,
+        time and shift: the filter, unit and who cells (the plan's memos); the ΔP, indicator
+        and temperature cells as one piece; the reference cells, remembered across positions
+        alike in what they come from (`FilterReference.signature`: the fluid's curve, the
+        reference condition) by ΔP, temperature and flow; the flow cell; the cells from the
+        hour meter on. A piece is made once, from the first row that needs it, as `cells`
+        makes it; a row that is voided, has a stamp in another form or is of another kind
+        goes through `cells` whole, and so does one whose values only
+        `conditions.normalise` words."""
+        sql, params = _span_sql(start_text, end_text, fast=True)
+        rows = self.conn.execute(sql, params)
+        if not self.fast:
+            yield from self.lines(row[:-1] for row in rows)
+            return
+        clock, shifts, voided_by = self.clock, self.shifts, self.voided_by
+        plan = self.plans["reading"]
+        kind_cell = plan.blank[3]
+        # the plan's own memos of single cells (plan.piece fills them)
+        targets, units, bys, flows = (
+            plan.memo(name) for name in ("filter", "unit", "by", "flow_lpm")
+        )
+        readings: dict[tuple[Any, ...], str] = {}  # (ΔP, indicator, temperature) -> cells
+        pairs: dict[tuple[Any, ...], str] = {}  # (signature, ΔP, temperature, flow) -> cells
+        tails: dict[tuple[Any, ...], str] = {}  # (hour meter, note) -> cells
+        signatures: dict[Any, int | None] = {}  # filter -> the number of its signature
+        kinds_of: dict[tuple[Any, ...], int] = {}  # signature -> its number
+        split, end = self.split, len(plan.blank)
+        for row in rows:
+            entry_id, stamp, kind, by, unit, note, tag, dp, indicator, temp, flow, hours, own = row
+            try:
+                if kind != "reading" or not own or entry_id in voided_by:
+                    raise _Whole
+                target_cell, unit_cell, by_cell = targets.get(tag), units.get(unit), bys.get(by)
+                if target_cell is None or unit_cell is None or by_cell is None:
+                    _, target_cell, unit_cell, by_cell = plan.piece(row, 3, 7)
+                reading = readings.get((dp, indicator, temp))
+                if reading is None:
+                    reading = remember(
+                        readings, (dp, indicator, temp), ",".join(plan.piece(row, 7, 10))
+                    )
+                pair = ","  # no ΔP, or a filter the register does not hold: both empty
+                if dp is not None:
+                    signature = signatures.get(tag, _UNSEEN)
+                    if signature is _UNSEEN:
+                        reference = self._reference(tag)
+                        signature = signatures[tag] = (
+                            None
+                            if reference is None
+                            else kinds_of.setdefault(reference.signature, len(kinds_of))
+                        )
+                    if signature is not None:
+                        pair = pairs.get((signature, dp, temp, flow))
+                        if pair is None:
+                            pair = self._pair(tag, signature, dp, temp, flow, pairs)
+                flow_cell = "" if flow is None else flows.get(flow)
+                if flow_cell is None:
+                    (flow_cell,) = plan.piece(row, 12, 13)
+                tail = tails.get((hours, note))
+                if tail is None:
+                    tail = remember(tails, (hours, note), ",".join(plan.piece(row, split, end)))
+                if stamp[:13] != clock.hour or clock.prefix is None:
+                    clock.text(stamp)
+                    if clock.prefix is None:
+                        raise _Whole
+                if not shifts.start <= stamp < shifts.end:
+                    shifts.name(stamp)
+                yield (
+                    f"{csv_field(entry_id)},{clock.prefix}{stamp[13:19]}{clock.suffix},"
+                    f"{shifts.cell},{kind_cell},{target_cell},{unit_cell},{by_cell},{reading},"
+                    f"{pair},{flow_cell},{tail}"
+                )
+            except (_Whole, *ROW_ERRORS):  # `lines` writes it (or reports it and leaves it out)
+                yield from self.lines([row[:-1]])
+
+    def _pair(
+        self,
+        tag: str,
+        signature: int,
+        dp_bar: Any,
+        temp_c: Any,
+        flow_lpm: Any,
+        pairs: dict[tuple[Any, ...], str],
+    ) -> str:
+        """The reference cells of a reading, remembered for its signature (by number) when
+        they come from it alone."""
+        reference = self.references[tag]
+        assert reference is not None
+        found = reference.fast_cells(dp_bar, temp_c, flow_lpm)
+        if found is None:  # through the position's own context, not shared
+            return ",".join(reference.cells(dp_bar, temp_c, flow_lpm))
+        return remember(pairs, (signature, dp_bar, temp_c, flow_lpm), ",".join(found))
 
     def _reference(self, tag: str) -> FilterReference | None:
         """The filter's reference; None when the register has no such filter (as csvio)."""
@@ -435,8 +604,7 @@ def write_span(
     end_text = None if end is None else format_utc(end)
     with read_snapshot(book.conn):
         span_lines = SpanLines(book, prefs, local, pattern)
-        sql, params = _span_sql(start_text, end_text)
-        lines = span_lines.lines(book.conn.execute(sql, params))
+        lines = span_lines.span(start_text, end_text)
         if not status:
             out.write(span_lines.header)
             return _write_lines(out, lines)
