@@ -123,6 +123,8 @@ _SELECT_VOIDS = "SELECT voids, id FROM entries WHERE voids IS NOT NULL"
 _ID, _AT, _KIND, _FILTER, _DP, _TEMP, _FLOW = (
     _COL[c] for c in ("id", "at_utc", "kind", "filter", "dp_bar", "temp_c", "flow_lpm")
 )
+# An id as the book writes them (a UUID's text): its cell is itself (csv_field changes nothing).
+_plain_id = re.compile(r"[0-9a-f]{8}-[0-9a-f]{4}-[0-9a-f]{4}-[0-9a-f]{4}-[0-9a-f]{12}").fullmatch
 _is_stamp = re.compile(r"[0-9]{4}-[0-9]{2}-[0-9]{2}T[0-9]{2}:[0-9]{2}:[0-9]{2}Z").fullmatch
 _UNSEEN = object()
 _MEMO_SIZE = 50_000  # distinct values remembered per column
@@ -503,80 +505,43 @@ class SpanLines:
         clock, shifts, voided_by = self.clock, self.shifts, self.voided_by
         plan = self.plans["reading"]
         kind_cell = plan.blank[3]
-        # the plan's own memos of single cells (plan.piece fills them)
-        targets, units, bys, flows = (
-            plan.memo(name) for name in ("filter", "unit", "by", "flow_lpm")
-        )
-        readings: dict[tuple[Any, ...], str] = {}  # (ΔP, indicator, temperature) -> cells
-        pairs: dict[tuple[Any, ...], str] = {}  # (signature, ΔP, temperature, flow) -> cells
+        whos: dict[tuple[Any, ...], tuple[str, int | None]] = {}  # -> (cells, signature)
+        values: dict[tuple[Any, ...], str] = {}  # (signature, ΔP ... flow) -> cells
         tails: dict[tuple[Any, ...], str] = {}  # (hour meter, note) -> cells
-        signatures: dict[Any, int | None] = {}  # filter -> the number of its signature
-        kinds_of: dict[tuple[Any, ...], int] = {}  # signature -> its number
+        pieces = _Pieces(self, plan)
         split, end = self.split, len(plan.blank)
+        hour = prefix = shift_from = shift_to = after_shift = ""
         for row in rows:
             entry_id, stamp, kind, by, unit, note, tag, dp, indicator, temp, flow, hours, own = row
             try:
                 if kind != "reading" or not own or entry_id in voided_by:
                     raise _Whole
-                target_cell, unit_cell, by_cell = targets.get(tag), units.get(unit), bys.get(by)
-                if target_cell is None or unit_cell is None or by_cell is None:
-                    _, target_cell, unit_cell, by_cell = plan.piece(row, 3, 7)
-                reading = readings.get((dp, indicator, temp))
-                if reading is None:
-                    reading = remember(
-                        readings, (dp, indicator, temp), ",".join(plan.piece(row, 7, 10))
-                    )
-                pair = ","  # no ΔP, or a filter the register does not hold: both empty
-                if dp is not None:
-                    signature = signatures.get(tag, _UNSEEN)
-                    if signature is _UNSEEN:
-                        reference = self._reference(tag)
-                        signature = signatures[tag] = (
-                            None
-                            if reference is None
-                            else kinds_of.setdefault(reference.signature, len(kinds_of))
-                        )
-                    if signature is not None:
-                        pair = pairs.get((signature, dp, temp, flow))
-                        if pair is None:
-                            pair = self._pair(tag, signature, dp, temp, flow, pairs)
-                flow_cell = "" if flow is None else flows.get(flow)
-                if flow_cell is None:
-                    (flow_cell,) = plan.piece(row, 12, 13)
+                who = whos.get((tag, unit, by))
+                if who is None:
+                    who = remember(whos, (tag, unit, by), pieces.who(row, tag))
+                value = values.get((who[1], dp, indicator, temp, flow))
+                if value is None:
+                    value, shared = pieces.value(row, tag, who[1], dp, temp, flow)
+                    if shared:
+                        remember(values, (who[1], dp, indicator, temp, flow), value)
                 tail = tails.get((hours, note))
                 if tail is None:
                     tail = remember(tails, (hours, note), ",".join(plan.piece(row, split, end)))
-                if stamp[:13] != clock.hour or clock.prefix is None:
+                if stamp[:13] != hour:  # the hour's local text and offset (LocalClock)
                     clock.text(stamp)
-                    if clock.prefix is None:
+                    if clock.prefix is None:  # an offset of part hours, or a change in it
                         raise _Whole
-                if not shifts.start <= stamp < shifts.end:
+                    hour, prefix = clock.hour, clock.prefix
+                    shift_to = ""  # the offset's text may have changed: made again below
+                if not shift_from <= stamp < shift_to:
                     shifts.name(stamp)
-                yield (
-                    f"{csv_field(entry_id)},{clock.prefix}{stamp[13:19]}{clock.suffix},"
-                    f"{shifts.cell},{kind_cell},{target_cell},{unit_cell},{by_cell},{reading},"
-                    f"{pair},{flow_cell},{tail}"
-                )
+                    shift_from, shift_to = shifts.start, shifts.end
+                    after_shift = f"{clock.suffix},{shifts.cell},{kind_cell},"
+                if not _plain_id(entry_id):
+                    entry_id = csv_field(entry_id)
+                yield f"{entry_id},{prefix}{stamp[13:19]}{after_shift}{who[0]},{value},{tail}"
             except (_Whole, *ROW_ERRORS):  # `lines` writes it (or reports it and leaves it out)
                 yield from self.lines([row[:-1]])
-
-    def _pair(
-        self,
-        tag: str,
-        signature: int,
-        dp_bar: Any,
-        temp_c: Any,
-        flow_lpm: Any,
-        pairs: dict[tuple[Any, ...], str],
-    ) -> str:
-        """The reference cells of a reading, remembered for its signature (by number) when
-        they come from it alone."""
-        reference = self.references[tag]
-        assert reference is not None
-        found = reference.fast_cells(dp_bar, temp_c, flow_lpm)
-        if found is None:  # through the position's own context, not shared
-            return ",".join(reference.cells(dp_bar, temp_c, flow_lpm))
-        return remember(pairs, (signature, dp_bar, temp_c, flow_lpm), ",".join(found))
 
     def _reference(self, tag: str) -> FilterReference | None:
         """The filter's reference; None when the register has no such filter (as csvio)."""
@@ -585,6 +550,55 @@ class SpanLines:
             None if ctx is None else FilterReference(tag, ctx, self.pressure, self.temperature)
         )
         return self.references[tag]
+
+
+class _Pieces:
+    """The pieces of a reading's line that `SpanLines.span` remembers, made as
+    `SpanLines.cells` makes those cells (plan.piece, FilterReference)."""
+
+    def __init__(self, lines: SpanLines, plan: KindPlan) -> None:
+        self.lines, self.plan = lines, plan
+        self.readings: dict[tuple[Any, ...], str] = {}  # (ΔP, indicator, temperature)
+        self.pairs: dict[tuple[Any, ...], str] = {}  # (signature, ΔP, temperature, flow)
+        self.signatures: dict[tuple[Any, ...], int] = {}  # signature -> its number
+        self.flow = lines.split - 1  # the flow cell, just before the hour meter's
+
+    def who(self, row: Sequence[Any], tag: str) -> tuple[str, int | None]:
+        """The kind, filter, unit and who cells, and the number of the filter's signature
+        (None: no such filter in the register, so no reference cells)."""
+        reference = self.lines.references.get(tag, _UNSEEN)
+        if reference is _UNSEEN:
+            reference = self.lines._reference(tag)
+        signature = (
+            None
+            if reference is None
+            else self.signatures.setdefault(reference.signature, len(self.signatures))
+        )
+        return ",".join(self.plan.piece(row, 4, 7)), signature
+
+    def value(
+        self, row: Sequence[Any], tag: str, signature: int | None, dp: Any, temp: Any, flow: Any
+    ) -> tuple[str, bool]:
+        """The ΔP to the flow cells, and whether they hold for every filter of the signature
+        (not when `conditions.normalise` worded the reference cells from the filter's own
+        context)."""
+        key = (dp, row[_COL["indicator"]], temp)
+        reading = self.readings.get(key)
+        if reading is None:
+            reading = remember(self.readings, key, ",".join(self.plan.piece(row, 7, 10)))
+        pair, shared = ",", True  # no ΔP, or a filter the register does not hold
+        if dp is not None and signature is not None:
+            pair = self.pairs.get((signature, dp, temp, flow))
+            if pair is None:
+                reference = self.lines.references[tag]
+                found = reference.fast_cells(dp, temp, flow)  # type: ignore[union-attr]
+                if found is None:  # through the filter's own context: not shared
+                    pair = ",".join(reference.cells(dp, temp, flow))  # type: ignore[union-attr]
+                    shared = False
+                else:
+                    pair = remember(self.pairs, (signature, dp, temp, flow), ",".join(found))
+        (flow_cell,) = self.plan.piece(row, self.flow, self.flow + 1)
+        return f"{reading},{pair},{flow_cell}", shared
 
 
 def write_span(
