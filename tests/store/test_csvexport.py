@@ -18,6 +18,8 @@ from __future__ import annotations
 
 import csv
 import io
+import random
+import uuid
 from collections.abc import Iterator
 from dataclasses import replace
 from datetime import UTC, datetime, timedelta
@@ -497,3 +499,80 @@ def test_an_export_inside_a_transaction_leaves_it_open(plant):
         assert plant.conn.in_transaction
     assert not plant.conn.in_transaction
     assert out.getvalue() == old
+
+
+# ---- the remembered pieces of a reading's line, against the oracle -------------------------------
+
+# ΔP, temperature, flow and hour-meter values that are hard to write: halfway cases of the
+# fourth (second) decimal as typed and as stored in binary (2.675 is 2.67499999... in binary,
+# 1.00005 is 1.000050000000000061...), tiny and large values, integers stored as integers,
+# zero and its negative twin; the exact decimal of each binary value is what Python rounds
+# from (IEEE 754 binary64), and the oracle writes it with Python's own formatting.
+AWKWARD_NUMBERS = (
+    0.0, -0.0, 1, 2, 0.00005, 0.00015, 0.00025, 1.00005, 1.00015, 2.675, 0.125, 1e-7,
+    3.99995, 9.99995, 99.99995, 123.45675, 0.1 + 0.2, 1 / 3, 2 / 3, 47.005, 47.015, 54,
+    12345.67895, 9999999.99995, 1e-300, 1e15, 1e16, 123456789012.5,
+)  # fmt: skip
+AWKWARD_TEXTS = (
+    "",
+    "plain words",
+    '=HYPERLINK("x")',
+    "+1 bar",
+    "-0.5 bar",
+    "@all",
+    "\tindented",
+    "'quoted already",
+    "comma, then more",
+    'a "quote" inside',
+    "two\nlines",
+    "carriage\rreturn",
+    "µm, °C, ν and ΔP",
+    'ends with a quote"',
+    "nul\x00inside, and a comma",  # planted past the checks
+)
+
+
+def plant_awkward_readings(book: Book) -> None:
+    """Readings with every awkward value above, each on several filters (positions alike and
+    unlike in their reference), some stored past the checks as a hand edit would."""
+    rng = random.Random(4406)  # a fixed draw: the same rows every run
+    numbers = list(AWKWARD_NUMBERS) + [rng.uniform(0, 10) for _ in range(41)]
+    numbers += [round(rng.uniform(0, 100), rng.randint(0, 6)) for _ in range(40)]
+    filters = ("P1-RF", "P1-PF", "P2-RF", "P3-PF", "P4-RF")  # five: prime to the count of values
+    book.conn.execute("PRAGMA ignore_check_constraints = ON")
+    moment = datetime(YEAR, 3, 1, tzinfo=UTC)
+    rows = []
+    for i in range(600):
+        moment += timedelta(minutes=rng.choice((1, 7, 61, 479)))
+        tag = filters[i % len(filters)]
+        dp = numbers[i % len(numbers)] if i % 11 else None
+        temp = None if i % 5 == 0 else numbers[(i * 7) % len(numbers)]
+        flow = None if i % 3 else numbers[(i * 5) % len(numbers)]
+        hours = None if i % 4 else numbers[(i * 3) % len(numbers)]
+        indicator = None if dp is not None else ("clean", "dirty", "bypass")[i % 3]
+        note = AWKWARD_TEXTS[i % len(AWKWARD_TEXTS)] if i % 2 else ""
+        rows.append(
+            (str(uuid.UUID(int=rng.getrandbits(128), version=4)), format_utc(moment), tag,
+             tag.split("-")[0], ("AB", "CD")[i % 2], dp, indicator, temp, flow, hours, note)
+        )  # fmt: skip
+    with book.atomic():
+        book.conn.executemany(
+            "INSERT INTO entries (id, at_utc, logged_utc, kind, filter, unit, by, dp_bar, "
+            "indicator, temp_c, flow_lpm, hours, note) "
+            "VALUES (?, ?, ?2, 'reading', ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11)",
+            rows,
+        )
+    book.conn.execute("PRAGMA ignore_check_constraints = OFF")
+
+
+@pytest.mark.parametrize("zone_name", ("Europe/Berlin", "Asia/Kolkata"))
+@pytest.mark.parametrize("prefs", UNIT_CHOICES)
+def test_awkward_readings_export_as_the_oracle_writes_them(tmp_path, zone_name, prefs):
+    with open_book(tmp_path / "awkward.db", clock=fixed_clock(NOW)) as book:
+        add_plant(book)
+        book.set_setting("timezone", zone_name)
+        plant_awkward_readings(book)
+        text = assert_same(book, None, None, prefs)
+        text = assert_same(book, datetime(YEAR, 3, 2, tzinfo=UTC), None, prefs, status=True)
+    notes = {r["note"] for r in csv.DictReader(io.StringIO(text))}
+    assert {'\'=HYPERLINK("x")', "'+1 bar", "'@all", "two\nlines"} <= notes
