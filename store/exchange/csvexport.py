@@ -11,6 +11,16 @@ form, an hour holding a change of offset, a reading the normalising maths would 
 done the slow, plain way for that row. tests/store/test_csvexport.py holds it byte for byte to the
 plain entry-by-entry writer kept in tests/kit/csv_oracle.py.
 
+A reading's line (`SpanLines.span`) is put together from a few remembered pieces rather than
+cell by cell, and the reference cells are remembered across positions whose reference comes
+from the same constants (`FilterReference.signature`), not per position: on the year of a
+200-unit plant that cut the reference work from about 212,000 computations to a few hundred.
+Lines built by SQLite itself (printf, strftime and the quoting rules in SQL, with a check per
+cell for what SQLite would write otherwise than Python) were tried and measured slower
+(about 7 µs a row in SQLite alone against about 6 µs a row for this whole path, December
+2026): every cell is formatted per row there, where a remembered piece costs one lookup.
+SQLite does the span, the order and the test of each stamp's form.
+
 After the entries, when asked (`status=True`, what `sumpbook export` and the shift-log
 screen do unless told `--entries-only`), come the status rows of the handover
 (`status_rows`): as of the end of the span, read through `views.watch(as_of=...)`.

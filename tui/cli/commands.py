@@ -578,8 +578,7 @@ def cmd_import(args: argparse.Namespace) -> int:
         f"imported {result.added} entries"
         + (f"; {result.skipped} were in the book already" if result.skipped else "")
         + (
-            f"; {result.status_rows} status rows passed over (a shift log's handover, not "
-            "entries)"
+            f"; {result.status_rows} status rows passed over (a shift log's handover, not entries)"
             if result.status_rows
             else ""
         )
