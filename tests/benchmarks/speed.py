@@ -513,6 +513,7 @@ def same_answers(path: Path, env: dict[str, str], roots: dict[str, Path], span: 
                             str(csv_path)], env=run_env, cwd=root, check=True,
                            capture_output=True)  # fmt: skip
             outputs[name] = {"status --json": status, "export": csv_path.read_bytes()}
+            csv_path.unlink()  # the next book's export to the same name: export asks first
             for suffix in ("", "-wal", "-shm"):
                 Path(str(copy) + suffix).unlink(missing_ok=True)
         names = list(outputs)
