@@ -834,6 +834,7 @@ def main(argv: list[str] | None = None) -> int:
         text = "\n".join(export_lines(export, facts, host, args.runs) + answers)
         args.out.write_text(text + "\n", encoding="utf-8")
         print(text)
+        shutil.rmtree(home, ignore_errors=True)
         return 0
 
     # The app and the bare app take turns, so that a slow spell of the machine hits both.
