@@ -8,6 +8,12 @@ Cells for a spreadsheet: every text cell that a spreadsheet would run as a formu
 =, +, -, @, tab, CR) is written with a leading apostrophe, which import takes off again; an
 ISO 4406 code is written as `="18/16/13"` so that a spreadsheet shows it as text, not as a
 date; a top-up that went in unfiltered says `unfiltered` in `filtered_um`.
+
+After the entries, a shift log carries the status of the positions a handover needs
+(`csvexport.status_rows`): rows whose `kind` is `status` (`STATUS_KIND`), with four columns of
+their own at the end (`STATUS_COLUMNS`). They are written, never read back: import passes them
+over and says how many. A file without them (`export --entries-only`) has exactly the entry
+columns.
 """
 
 from __future__ import annotations
@@ -39,10 +45,11 @@ _CODE_TEXT = re.compile(r"[0-9<>-]{1,3}(/[0-9<>-]{1,3}){1,2}")
 _CODE_FORMULA = re.compile(r'="([0-9<>-]{1,3}(?:/[0-9<>-]{1,3}){1,2})"')
 
 
-def header(prefs: Prefs) -> list[str]:
-    """The header of a CSV shift log in the user's units, in order."""
+def header(prefs: Prefs, status: bool = False) -> list[str]:
+    """The header of a CSV shift log in the user's units, in order; with `status`, the
+    status rows' own columns at the end."""
     keys = prefs.unit_keys()
-    return [c.header(keys) for c in COLUMNS]
+    return [c.header(keys) for c in (*COLUMNS, *(STATUS_COLUMNS if status else ()))]
 
 
 def neutralise(text: str) -> str:
@@ -203,6 +210,16 @@ COLUMNS: tuple[Column, ...] = (
     Column("voided_by", derived=True),
     Column("note", "note"),
 )
+# The `kind` of a status row, and the columns only status rows fill (written after COLUMNS,
+# never read back): the flags in the words the app shows, the change (or swap) window's
+# earliest and likely dates, the next reading's time, all plant-local as `time` is.
+STATUS_KIND = "status"
+STATUS_COLUMNS: tuple[Column, ...] = (
+    Column("flags", derived=True),
+    Column("due_earliest", derived=True),
+    Column("due", derived=True),
+    Column("next_reading", derived=True),
+)
 # The columns that carry an entry field (the ones a new kind's new field adds to).
 VALUE_COLUMNS = tuple(c for c in COLUMNS if c.field is not None)
 
@@ -211,7 +228,7 @@ def known_headers() -> set[str]:
     """Every header import understands: what export writes in any units, plus value+unit
     pairs (dp + dp_unit ...)."""
     names: set[str] = set()
-    for c in COLUMNS:
+    for c in (*COLUMNS, *STATUS_COLUMNS):
         names |= c.headers()
         if c.quantity is not None and not c.derived:
             names |= {c.name, f"{c.name}_unit"}

@@ -23,7 +23,13 @@ from store.base.errors import BookError
 from store.base.prefs import Prefs
 from store.base.timeutil import parse_time
 from store.db.book import Book
-from store.exchange.csvcolumns import VALUE_COLUMNS, known_headers, neutralise, restore
+from store.exchange.csvcolumns import (
+    STATUS_KIND,
+    VALUE_COLUMNS,
+    known_headers,
+    neutralise,
+    restore,
+)
 from store.ledger.entries import KINDS, Entry
 from store.ledger.journal import insert, validate
 
@@ -40,6 +46,7 @@ MAX_PROBLEMS_SHOWN = 20
 class ImportResult:
     added: int
     skipped: int  # already in the book (same id)
+    status_rows: int = 0  # a shift log's status rows: not entries, passed over
 
 
 def decode(data: bytes) -> str:
@@ -151,6 +158,14 @@ def _header(cells: list[str]) -> list[str]:
 
 def parse_csv(text: str, local: tzinfo) -> tuple[list[tuple[int, Entry]], list[tuple[int, str]]]:
     """Rows -> entries with their line numbers, and every problem found (line, message)."""
+    entries, problems, _ = read_rows(text, local)
+    return entries, problems
+
+
+def read_rows(
+    text: str, local: tzinfo
+) -> tuple[list[tuple[int, Entry]], list[tuple[int, str]], int]:
+    """`parse_csv`, and how many status rows (csvcolumns.STATUS_KIND) were passed over."""
     old_limit = csv.field_size_limit(MAX_FIELD_CHARS)
     try:
         return _parse(csv.reader(io.StringIO(text, newline=""), strict=True), local)
@@ -158,10 +173,13 @@ def parse_csv(text: str, local: tzinfo) -> tuple[list[tuple[int, Entry]], list[t
         csv.field_size_limit(old_limit)
 
 
-def _parse(reader: Any, local: tzinfo) -> tuple[list[tuple[int, Entry]], list[tuple[int, str]]]:
+def _parse(
+    reader: Any, local: tzinfo
+) -> tuple[list[tuple[int, Entry]], list[tuple[int, str]], int]:
     entries: list[tuple[int, Entry]] = []
     problems: list[tuple[int, str]] = []
     seen: dict[str, int] = {}
+    status_rows = 0
 
     def problem(text: str) -> None:
         problems.append((reader.line_num, f"line {reader.line_num}: {one_line(text)}"))
@@ -184,6 +202,9 @@ def _parse(reader: Any, local: tzinfo) -> tuple[list[tuple[int, Entry]], list[tu
             row = {
                 h: restore(cells[i]) if i < len(cells) else "" for i, h in enumerate(header) if h
             }
+            if row.get("kind", "").strip().lower() == STATUS_KIND:
+                status_rows += 1  # the handover after the entries: written, never read back
+                continue
             try:
                 entry = entry_from_row(row, local)
             except (ValueError, OverflowError) as exc:  # BookError is a ValueError
@@ -204,13 +225,13 @@ def _parse(reader: Any, local: tzinfo) -> tuple[list[tuple[int, Entry]], list[tu
         elif "expected after" in message:
             message = f"a quoted cell goes on after its closing quote ({message})"
         problem(message)
-    return entries, problems
+    return entries, problems, status_rows
 
 
 def import_csv(book: Book, data: bytes, local: tzinfo) -> ImportResult:
     """Read entries from CSV bytes. One bad row rejects the file: nothing is written, and
     every problem (reading the file or checking it against the book) is named by line."""
-    entries, problems = parse_csv(decode(data), local)
+    entries, problems, status_rows = read_rows(decode(data), local)
     added = skipped = 0
     now = book.now()
     written: list[Entry] = []
@@ -241,7 +262,7 @@ def import_csv(book: Book, data: bytes, local: tzinfo) -> ImportResult:
         extra = len(lines) - MAX_PROBLEMS_SHOWN
         shown = lines[:MAX_PROBLEMS_SHOWN] + ([f"… and {extra} more"] if extra > 0 else [])
         raise BookError("nothing imported; " + "; ".join(shown))
-    return ImportResult(added, skipped)
+    return ImportResult(added, skipped, status_rows)
 
 
 # A row with no id gets one derived from what it says (README "Your data"): the same row

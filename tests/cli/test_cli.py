@@ -239,10 +239,15 @@ def test_import_minimal_columns_and_all_or_nothing(plant, tmp_path, capsys):
 
 def test_export_shift_choices(plant, capsys):
     run(capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "1.0")
-    code, out, _ = run(capsys, "--db", plant, "export", "--shift", "current")
+    code, out, _ = run(capsys, "--db", plant, "export", "--shift", "current", "--entries-only")
     assert code == 0 and len(out.strip().splitlines()) == 2
-    code, out, _ = run(capsys, "--db", plant, "export", "--shift", "previous")
+    code, out, _ = run(capsys, "--db", plant, "export", "--shift", "previous", "--entries-only")
     assert code == 0 and len(out.strip().splitlines()) == 1
+    # without --entries-only the reading's filter follows as a status row (its next reading)
+    code, out, _ = run(capsys, "--db", plant, "export", "--shift", "current")
+    assert code == 0 and [line.split(",")[3:5] for line in out.splitlines()[2:]] == [
+        ["status", "P1-RF"]
+    ]
     code, _, err = run(capsys, "--db", plant, "export", "--shift", "2026-01-05/lunch")
     assert code == 2 and "no shift named" in err
 

@@ -4,6 +4,10 @@ This was sumpbook's first exporter. It is kept here, and only here, as the oracl
 exporter (`store/exchange/csvexport.py`) is held to byte for byte (tests/store/test_csvexport.py). It does
 not use the column table of `store/exchange/csvcolumns.py`: the header and every cell rule are written
 out again below, so that a mistake in the table shows up as a difference.
+
+The status rows of a handover (`status_at`) are written from what the shift-log screen shows:
+`sheets.watch_rows` of `views.watch(as_of=...)`, in that list's order, kept when flagged or
+when a change window, a swap or a reading falls before the end of the next shift.
 """
 
 from __future__ import annotations
@@ -12,14 +16,15 @@ import csv
 import re
 from collections.abc import Iterable, Iterator
 from dataclasses import fields
-from datetime import tzinfo
+from datetime import datetime, tzinfo
 from typing import IO
 
 from store.base.prefs import Prefs
-from store.base.timeutil import iso_local, shift_at
+from store.base.timeutil import iso_local, next_shift, shift_at
 from store.base.units import from_bar, from_c, from_l, pressure_key, temperature_key, volume_key
 from store.db.book import Book
 from store.health.conditions import FilterContext, contexts, normalise
+from store.health.status import FLAG_WORDS
 from store.ledger.entries import Entry, Reading, TopUp
 
 FORMULA_START = ("=", "+", "-", "@", "\t", "\r", "'")
@@ -34,6 +39,9 @@ NUMBER_COLUMNS = (
 )
 TEXT_COLUMNS = ("indicator", "reason", "condition", "batch", "voids", "fluid")
 ISO_CODE = re.compile(r"[0-9<>-]{1,3}(/[0-9<>-]{1,3}){1,2}")
+
+
+STATUS_HEADER = ["flags", "due_earliest", "due", "next_reading"]
 
 
 def header(prefs: Prefs) -> list[str]:
@@ -132,6 +140,42 @@ def export_rows(
         }
 
 
+def status_dicts(
+    book: Book,
+    as_of: datetime,
+    prefs: Prefs,
+    local: tzinfo,
+    pattern: list[tuple[str, str]],
+) -> Iterator[dict[str, str]]:
+    """The handover's rows as of `as_of`, the plain way."""
+    from store.sheets import watch_rows
+    from store.views import watch
+
+    horizon = next_shift(shift_at(as_of, pattern, local), pattern, local).end
+    p = pressure_key(prefs.pressure)
+    columns = header(prefs) + STATUS_HEADER
+    for r in watch_rows(watch(book, as_of=as_of)):
+        earliest = r.due.earliest if r.due else None
+        soon = [t for t in (earliest, r.next_reading) if t is not None and t < horizon]
+        if not (r.flags or soon):
+            continue
+        row = dict.fromkeys(columns, "")
+        row.update(
+            time=iso_local(as_of, local),
+            shift=shift_at(as_of, pattern, local).name,
+            kind="status",
+            target=r.tag,
+            unit=r.unit,
+            flags="; ".join(FLAG_WORDS.get(f, f) for f in r.flags),
+            due_earliest=iso_local(earliest, local) if earliest else "",
+            due=iso_local(r.due.likely, local) if r.due else "",
+            next_reading=iso_local(r.next_reading, local) if r.next_reading else "",
+            note="" if r.what == "breather" else "; ".join(r.notes),
+        )
+        row[f"dp_ref_{p}"] = num(from_bar(r.dp_ref_bar, p)) if r.dp_ref_bar is not None else ""
+        yield {k: (cell if k == f"dp_ref_{p}" else neutralise(cell)) for k, cell in row.items()}
+
+
 def write_csv(
     out: IO[str],
     book: Book,
@@ -139,11 +183,19 @@ def write_csv(
     prefs: Prefs,
     local: tzinfo,
     pattern: list[tuple[str, str]],
+    status_at: datetime | None = None,
+    status: bool = False,
 ) -> int:
-    writer = csv.DictWriter(out, fieldnames=header(prefs), lineterminator="\r\n")
+    """The entries; with `status`, the status columns, and the status rows as of `status_at`
+    (none when it is None)."""
+    names = header(prefs) + (STATUS_HEADER if status else [])
+    writer = csv.DictWriter(out, fieldnames=names, lineterminator="\r\n", restval="")
     writer.writeheader()
     count = 0
     for row in export_rows(book, entries, prefs, local, pattern):
         writer.writerow(row)
         count += 1
+    if status and status_at is not None:
+        for row in status_dicts(book, status_at, prefs, local, pattern):
+            writer.writerow(row)
     return count

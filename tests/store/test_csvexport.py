@@ -18,6 +18,8 @@ from __future__ import annotations
 
 import csv
 import io
+import random
+import uuid
 from collections.abc import Iterator
 from dataclasses import replace
 from datetime import UTC, datetime, timedelta
@@ -30,10 +32,11 @@ from hypothesis import strategies as st
 from store import record
 from store.base.prefs import Prefs
 from store.base.session import fixed_clock
-from store.base.timeutil import format_utc, iso_local, shift_at, zone
+from store.base.timeutil import format_utc, iso_local, next_shift, previous_shift, shift_at, zone
 from store.db.book import Book, open_book
 from store.exchange.csvcolumns import header
 from store.exchange.csvexport import FilterReference, LocalClock, csv_field, write_span
+from store.exchange.csvio import import_csv
 from store.exchange.demo import create_demo
 from store.health.conditions import contexts
 from store.ledger import journal, register
@@ -48,8 +51,10 @@ from store.ledger.entries import (
     Void,
 )
 from store.ledger.register import FilterPosition, Fluid, Unit
+from store.sheets import shift_log, watch_rows
+from store.views import watch
 from tests.kit.csv_oracle import export_rows, neutralise, write_csv
-from tests.kit.plant import fill_register
+from tests.kit.plant import fill_register, raw_entry_count, run_cli
 
 ZONES = (
     "Europe/Berlin",
@@ -172,22 +177,37 @@ def demo(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Book]:
 
 
 def exports(
-    book: Book, start: datetime | None, end: datetime | None, prefs: Prefs
+    book: Book,
+    start: datetime | None,
+    end: datetime | None,
+    prefs: Prefs,
+    status: bool = False,
 ) -> tuple[str, str]:
-    """(entry-based export, fast export) of the same span."""
+    """(entry-based export, fast export) of the same span; with `status`, the status rows as
+    of the span's last second (or now), as the shift-log screen's handover reads them."""
     local, pattern = book.local_zone(), book.shift_pattern()
     old, new = io.StringIO(), io.StringIO()
     entries = journal.read(book, since=start, until=end)
-    old_count = write_csv(old, book, entries, prefs, local, pattern)
-    new_count = write_span(new, book, start, end, prefs, local, pattern)
+    now = book.now()
+    as_of = now if end is None else min(end - timedelta(seconds=1), now)
+    if start is not None and as_of < start:
+        as_of = None  # a span that has not begun: no handover yet
+    old_count = write_csv(old, book, entries, prefs, local, pattern, as_of, status)
+    new_count = write_span(new, book, start, end, prefs, local, pattern, status)
     assert new_count == old_count == len(entries)
     assert not book.conn.in_transaction
     return old.getvalue(), new.getvalue()
 
 
-def assert_same(book: Book, start: datetime | None, end: datetime | None, prefs: Prefs) -> str:
+def assert_same(
+    book: Book,
+    start: datetime | None,
+    end: datetime | None,
+    prefs: Prefs,
+    status: bool = False,
+) -> str:
     """The fast export equals the entry-based one (the reference: no typed-in result)."""
-    old, new = exports(book, start, end, prefs)
+    old, new = exports(book, start, end, prefs, status)
     assert new.splitlines(keepends=True) == old.splitlines(keepends=True)
     assert new == old
     return old
@@ -272,12 +292,17 @@ def test_the_command_line_writes_the_same_file(plant, tmp_path, monkeypatch):
     from tui.cli import main
 
     plant.set_setting("timezone", "America/Chicago")
-    out = tmp_path / "year.csv"
+    out, bare = tmp_path / "year.csv", tmp_path / "entries.csv"
     monkeypatch.setenv("SUMPBOOK_NOW", NOW)
-    args = ["--db", str(plant.path), "export", "--from", f"{YEAR}-01-01T00:00", "-o", str(out)]
-    assert main(args) == 0
-    old, _ = exports(plant, local_moment(plant, f"{YEAR}-01-01T00:00"), None, Prefs())
-    assert out.read_bytes() == b"\xef\xbb\xbf" + old.encode("utf-8")  # UTF-8's BOM first
+    args = ["--db", str(plant.path), "export", "--from", f"{YEAR}-01-01T00:00", "-o"]
+    assert main([*args, str(out)]) == 0
+    assert main([*args, str(bare), "--entries-only"]) == 0
+    start = local_moment(plant, f"{YEAR}-01-01T00:00")
+    with_status, _ = exports(plant, start, None, Prefs(), status=True)
+    entries_only, _ = exports(plant, start, None, Prefs())
+    assert out.read_bytes() == b"\xef\xbb\xbf" + with_status.encode("utf-8")  # UTF-8's BOM first
+    assert bare.read_bytes() == b"\xef\xbb\xbf" + entries_only.encode("utf-8")
+    assert with_status.startswith(entries_only.partition("\r\n")[0] + ",flags,")
     assert not (tmp_path / "year.csv.part").exists()
 
 
@@ -290,11 +315,92 @@ def test_the_shift_log_screen_writes_the_same_file(plant, tmp_path):
     out = tmp_path / "night.csv"
     units = Prefs(pressure="psi", temperature="F", volume="gal")
     count = export_file(str(plant.path), out, span, units, plant.clock)
-    old, _ = exports(
-        plant, span.start, span.end, Prefs(pressure="psi", temperature="F", volume="gal")
-    )
-    assert count == old.count("\r\n") - 1 > 0
+    old, _ = exports(plant, span.start, span.end, units, status=True)
+    assert count == len(journal.read(plant, since=span.start, until=span.end)) > 0
     assert out.read_bytes() == b"\xef\xbb\xbf" + old.encode("utf-8")
+
+
+# ---- the status rows of the handover ------------------------------------------------------------
+
+
+def status_lines(text: str) -> list[dict[str, str]]:
+    return [r for r in csv.DictReader(io.StringIO(text)) if r["kind"] == "status"]
+
+
+@pytest.mark.parametrize("prefs", UNIT_CHOICES)
+def test_the_demo_plants_handover_exports_the_same(demo, prefs):
+    local, pattern = demo.local_zone(), demo.shift_pattern()
+    current = shift_at(demo.now(), pattern, local)
+    previous = previous_shift(current, pattern, local)
+    week_ago = shift_at(demo.now() - timedelta(days=7), pattern, local)
+    spans = [(None, None), (current.start, current.end), (previous.start, previous.end)]
+    spans += [(week_ago.start, week_ago.end), (week_ago.start, None)]
+    for start, end in spans:
+        text = assert_same(demo, start, end, prefs, status=True)
+        rows = status_lines(text)
+        assert rows, (start, end)  # the demo plant always has something flagged
+        assert len({r["time"] for r in rows}) == 1
+    later = next_shift(current, pattern, local)  # has not begun: no handover yet
+    text = assert_same(demo, later.start, later.end, prefs, status=True)
+    assert text.count("\r\n") == 1 and text.rstrip().endswith(
+        ",flags,due_earliest,due,next_reading"
+    )
+
+
+def test_the_status_rows_hold_the_screens_handover_most_urgent_first(demo):
+    # the shift-log screen's own lists (store.sheets.shift_log) against the file's rows
+    pattern, local = demo.shift_pattern(), demo.local_zone()
+    span = previous_shift(shift_at(demo.now(), pattern, local), pattern, local)
+    screen = shift_log(demo, span)
+    _, text = exports(demo, span.start, span.end, Prefs(), status=True)
+    rows = status_lines(text)
+    tags = [r["target"] for r in rows]
+    assert {r.tag for r in screen.open_flags} | {r.tag for r in screen.due_next} <= set(tags)
+    assert all(r["time"] == iso_local(screen.as_of, local) for r in rows)
+    order = [r.tag for r in watch_rows(watch(demo, as_of=screen.as_of)) if r.tag in tags]
+    assert tags == order  # the watch list's order: store/health/urgency.py
+    assert any(r["flags"] and r["due"] for r in rows)
+    assert any(r["next_reading"] for r in rows)
+
+
+def test_a_past_shift_exported_again_later_is_the_same_file(live, monkeypatch):
+    with open_book(live, create=False) as book:
+        pattern, local, now = book.shift_pattern(), book.local_zone(), book.now()
+        span = previous_shift(shift_at(now, pattern, local), pattern, local)
+        first = io.StringIO()
+        write_span(first, book, span.start, span.end, Prefs(), local, pattern, status=True)
+        assert status_lines(first.getvalue())
+        # a week on, with a reading and an element change logged since on a filter it lists
+        tag = next(r["target"] for r in status_lines(first.getvalue()) if r["next_reading"])
+        later = now + timedelta(days=7)
+        book.set_setting("clock", format_utc(later))  # the demo's frozen clock moved on
+        record.log(book, Reading(filter=tag, dp_bar=0.4, by="AK", at=later - timedelta(days=2)))
+        change = ElementChange(filter=tag, reason="limit", by="AK", at=later - timedelta(days=1))
+        record.log(book, change)
+        again = io.StringIO()
+        write_span(again, book, span.start, span.end, Prefs(), local, pattern, status=True)
+    assert again.getvalue() == first.getvalue()
+
+
+def test_an_exported_shift_log_imports_as_nothing_new_and_says_so(live, tmp_path, capsys):
+    out = tmp_path / "shift.csv"
+    code, _, _ = run_cli(capsys, "--db", str(live), "export", "--shift", "previous", "-o", str(out))
+    assert code == 0
+    text = out.read_text(encoding="utf-8-sig")
+    entries = sum(1 for r in csv.DictReader(io.StringIO(text)) if r["kind"] != "status")
+    statuses = len(status_lines(text))
+    assert entries > 0 and statuses > 0
+    before = raw_entry_count(live)
+    code, said, err = run_cli(capsys, "--db", str(live), "import", str(out))
+    assert code == 0, err
+    assert said.strip() == (
+        f"imported 0 entries; {entries} were in the book already; {statuses} status rows "
+        "passed over (a shift log's handover, not entries)"
+    )
+    assert raw_entry_count(live) == before
+    with open_book(live, create=False) as book:  # the same, through the store
+        result = import_csv(book, out.read_bytes(), book.local_zone())
+    assert (result.added, result.skipped, result.status_rows) == (0, entries, statuses)
 
 
 def test_stamps_not_in_the_books_own_form_export_the_same(book, monkeypatch):
@@ -393,3 +499,80 @@ def test_an_export_inside_a_transaction_leaves_it_open(plant):
         assert plant.conn.in_transaction
     assert not plant.conn.in_transaction
     assert out.getvalue() == old
+
+
+# ---- the remembered pieces of a reading's line, against the oracle -------------------------------
+
+# ΔP, temperature, flow and hour-meter values that are hard to write: halfway cases of the
+# fourth (second) decimal as typed and as stored in binary (2.675 is 2.67499999... in binary,
+# 1.00005 is 1.000050000000000061...), tiny and large values, integers stored as integers,
+# zero and its negative twin; the exact decimal of each binary value is what Python rounds
+# from (IEEE 754 binary64), and the oracle writes it with Python's own formatting.
+AWKWARD_NUMBERS = (
+    0.0, -0.0, 1, 2, 0.00005, 0.00015, 0.00025, 1.00005, 1.00015, 2.675, 0.125, 1e-7,
+    3.99995, 9.99995, 99.99995, 123.45675, 0.1 + 0.2, 1 / 3, 2 / 3, 47.005, 47.015, 54,
+    12345.67895, 9999999.99995, 1e-300, 1e15, 1e16, 123456789012.5,
+)  # fmt: skip
+AWKWARD_TEXTS = (
+    "",
+    "plain words",
+    '=HYPERLINK("x")',
+    "+1 bar",
+    "-0.5 bar",
+    "@all",
+    "\tindented",
+    "'quoted already",
+    "comma, then more",
+    'a "quote" inside',
+    "two\nlines",
+    "carriage\rreturn",
+    "µm, °C, ν and ΔP",
+    'ends with a quote"',
+    "nul\x00inside, and a comma",  # planted past the checks
+)
+
+
+def plant_awkward_readings(book: Book) -> None:
+    """Readings with every awkward value above, each on several filters (positions alike and
+    unlike in their reference), some stored past the checks as a hand edit would."""
+    rng = random.Random(4406)  # a fixed draw: the same rows every run
+    numbers = list(AWKWARD_NUMBERS) + [rng.uniform(0, 10) for _ in range(41)]
+    numbers += [round(rng.uniform(0, 100), rng.randint(0, 6)) for _ in range(40)]
+    filters = ("P1-RF", "P1-PF", "P2-RF", "P3-PF", "P4-RF")  # five: prime to the count of values
+    book.conn.execute("PRAGMA ignore_check_constraints = ON")
+    moment = datetime(YEAR, 3, 1, tzinfo=UTC)
+    rows = []
+    for i in range(600):
+        moment += timedelta(minutes=rng.choice((1, 7, 61, 479)))
+        tag = filters[i % len(filters)]
+        dp = numbers[i % len(numbers)] if i % 11 else None
+        temp = None if i % 5 == 0 else numbers[(i * 7) % len(numbers)]
+        flow = None if i % 3 else numbers[(i * 5) % len(numbers)]
+        hours = None if i % 4 else numbers[(i * 3) % len(numbers)]
+        indicator = None if dp is not None else ("clean", "dirty", "bypass")[i % 3]
+        note = AWKWARD_TEXTS[i % len(AWKWARD_TEXTS)] if i % 2 else ""
+        rows.append(
+            (str(uuid.UUID(int=rng.getrandbits(128), version=4)), format_utc(moment), tag,
+             tag.split("-")[0], ("AB", "CD")[i % 2], dp, indicator, temp, flow, hours, note)
+        )  # fmt: skip
+    with book.atomic():
+        book.conn.executemany(
+            "INSERT INTO entries (id, at_utc, logged_utc, kind, filter, unit, by, dp_bar, "
+            "indicator, temp_c, flow_lpm, hours, note) "
+            "VALUES (?, ?, ?2, 'reading', ?3, ?4, ?5, ?6, ?7, ?8, ?9, ?10, ?11)",
+            rows,
+        )
+    book.conn.execute("PRAGMA ignore_check_constraints = OFF")
+
+
+@pytest.mark.parametrize("zone_name", ("Europe/Berlin", "Asia/Kolkata"))
+@pytest.mark.parametrize("prefs", UNIT_CHOICES)
+def test_awkward_readings_export_as_the_oracle_writes_them(tmp_path, zone_name, prefs):
+    with open_book(tmp_path / "awkward.db", clock=fixed_clock(NOW)) as book:
+        add_plant(book)
+        book.set_setting("timezone", zone_name)
+        plant_awkward_readings(book)
+        text = assert_same(book, None, None, prefs)
+        text = assert_same(book, datetime(YEAR, 3, 2, tzinfo=UTC), None, prefs, status=True)
+    notes = {r["note"] for r in csv.DictReader(io.StringIO(text))}
+    assert {'\'=HYPERLINK("x")', "'+1 bar", "'@all", "two\nlines"} <= notes

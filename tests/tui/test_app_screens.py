@@ -143,7 +143,11 @@ async def test_shift_log_void_and_export_match_the_command_line(plant, tmp_path)
     )
     assert code == 0
     assert (tmp_path / "app.csv").read_bytes() == (tmp_path / "cli.csv").read_bytes()
-    assert (tmp_path / "app.csv").read_text(encoding="utf-8").count("\n") == 3  # header + 2
+    lines = (tmp_path / "app.csv").read_text(encoding="utf-8").splitlines()
+    entries = [line for line in lines if line.split(",")[3] != "status"]
+    assert len(entries) == 3  # header + 2
+    # the handover the screen showed follows as status rows (P2-RF's flags are open)
+    assert "P2-RF" in [line.split(",")[4] for line in lines if line.split(",")[3] == "status"]
 
 
 async def test_register_add_edit_and_refuse(plant):

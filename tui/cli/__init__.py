@@ -286,6 +286,12 @@ def build_parser() -> argparse.ArgumentParser:
         "--force", action="store_true", help="overwrite the -o file if it exists, without asking"
     )
     p.add_argument(
+        "--entries-only",
+        action="store_true",
+        help="leave out the status rows (flags and due dates as at the end of the span) that "
+        "follow the entries, and their columns: the entries alone, for scripts",
+    )
+    p.add_argument(
         "--bom",
         action=argparse.BooleanOptionalAction,
         default=None,

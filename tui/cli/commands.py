@@ -459,20 +459,30 @@ def cmd_export(args: argparse.Namespace) -> int:
                 span = shift_named(args.shift, pattern, local)
             start, end = span.start, span.end
         csv_prefs = prefs
+        status = not args.entries_only  # the handover's status rows after the entries
         if args.output:
             _may_overwrite(args.output, book.path, args.force)
             count = export_file(
-                book, args.output, start, end, csv_prefs, local, pattern, bom=args.bom is not False
+                book,
+                args.output,
+                start,
+                end,
+                csv_prefs,
+                local,
+                pattern,
+                bom=args.bom is not False,
+                status=status,
             )
+            what = f"{count} {'entry' if count == 1 else 'entries'}"
             say(
                 stderr=True,
-                text=f"{count} {'entry' if count == 1 else 'entries'} written to {args.output}",
+                text=f"{what}{' and the status rows' if status else ''} written to {args.output}",
             )
         else:
             out: Any = _OnScreen(sys.stdout) if sys.stdout.isatty() else sys.stdout
             if args.bom:
                 out.write(BOM)
-            write_span(out, book, start, end, csv_prefs, local, pattern)
+            write_span(out, book, start, end, csv_prefs, local, pattern, status)
     return 0
 
 
@@ -526,6 +536,11 @@ def cmd_import(args: argparse.Namespace) -> int:
     say(
         f"imported {result.added} entries"
         + (f"; {result.skipped} were in the book already" if result.skipped else "")
+        + (
+            f"; {result.status_rows} status rows passed over (a shift log's handover, not entries)"
+            if result.status_rows
+            else ""
+        )
     )
     return 0
 

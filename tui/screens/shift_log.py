@@ -29,10 +29,11 @@ from tui.widgets.rowtable import ENTRY_COLUMNS, RowTable
 
 
 def export_file(path: str, dest: Path, span: ShiftSpan, prefs: Prefs, clock: Clock) -> int:
-    """Write one shift's entries as CSV (runs in a worker thread on its own connection)."""
+    """Write one shift's entries as CSV, the status rows of its handover after them (runs in a
+    worker thread on its own connection)."""
     with open_book(path, create=False, clock=clock) as book:
         local, pattern = book.local_zone(), book.shift_pattern()
-        return write_file(book, dest, span.start, span.end, prefs, local, pattern)
+        return write_file(book, dest, span.start, span.end, prefs, local, pattern, status=True)
 
 
 class ShiftLogScreen(BookScreen):
