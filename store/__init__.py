@@ -14,10 +14,27 @@ pyproject.toml). The screens and the command line reach the book file and the ke
 only through the names below; everything else they take from the upper layers directly.
 """
 
-from store.db.backup import copy_holding_lock, restore, rolling_backup
+from typing import TYPE_CHECKING, Any
+
 from store.db.book import Book, deep_check, full_check, open_book
 from store.db.connection import damaged_read
 from store.db.targets import refuse_input_as_output
+
+if TYPE_CHECKING:
+    from store.db.backup import copy_holding_lock, restore, rolling_backup
+
+_BACKUP = ("copy_holding_lock", "restore", "rolling_backup")
+
+
+def __getattr__(name: str) -> Any:
+    """The backup door, imported when first asked for: a command line answer that only
+    reads (status, list) never loads store.db.backup."""
+    if name in _BACKUP:
+        from store.db import backup
+
+        return getattr(backup, name)
+    raise AttributeError(f"module 'store' has no attribute {name!r}")
+
 
 __all__ = [
     "refuse_input_as_output",

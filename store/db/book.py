@@ -16,7 +16,6 @@ from typing import TYPE_CHECKING
 from store.base.errors import BookError, NotALogbook
 from store.base.timeutil import parse_utc, utc_now, zone
 from store.base.validate import plant_setting
-from store.db.backup import BookChanged, copy_to, remove_side_file, swap_in
 from store.db.connection import (
     CHECKED,
     check_header,
@@ -33,7 +32,6 @@ from store.db.connection import (
     write_error,
 )
 from store.db.places import backup_hint
-from store.db.proof import schema_findings
 from store.db.schema import APPLICATION_ID, MIGRATIONS, SCHEMA_VERSION
 
 PLANT_SETTINGS = ("name", "timezone", "backup_keep")
@@ -268,6 +266,14 @@ def _voided(conn: sqlite3.Connection, ids: list[str]) -> set[str]:
     return {r[0] for r in rows}
 
 
+def schema_findings(conn: sqlite3.Connection, version: int, migrations: list[str]) -> list[str]:
+    """`store.db.proof.schema_findings`, imported when called: opening a book whose header
+    is current (every command line answer) needs neither it nor store.db.backup."""
+    from store.db.proof import schema_findings as findings
+
+    return findings(conn, version, migrations)
+
+
 def migrate(conn: sqlite3.Connection, from_version: int) -> list[str]:
     """Apply every pending step in one transaction, with the version bump inside it.
 
@@ -365,7 +371,9 @@ def upgrade_beside(path: Path, version: int) -> list[str]:
     (the kept copy differs from it: another program saved or upgraded meanwhile) is not
     swapped (BookChanged). Any failure leaves the live file byte for byte as it was.
     Returns what the migration found (rows it could not carry, kept in `quarantine`)."""
-    from store.db.proof import prove_file  # deferred: only an upgrade and restores need it
+    # deferred: only an upgrade and restores need them
+    from store.db.backup import BookChanged, copy_to, remove_side_file, swap_in
+    from store.db.proof import prove_file
 
     untouched = f"; {path} was left as it was"
     tag = f"{os.getpid()}"
@@ -465,6 +473,8 @@ def open_book(
             conn.execute("PRAGMA journal_mode = WAL")
         if version < SCHEMA_VERSION:
             if version > 0:
+                from store.db.backup import BookChanged  # deferred: an upgrade only
+
                 wrong = schema_findings(conn, version, MIGRATIONS)
                 if wrong:
                     raise NotALogbook(

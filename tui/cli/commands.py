@@ -10,14 +10,13 @@ import sys
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+import store
 from store import (
     Book,
-    copy_holding_lock,
     full_check,
     open_book,
     record,
     refuse_input_as_output,
-    restore,
     views,
 )
 from store.base import prefs as laptop
@@ -31,7 +30,7 @@ from store.base.units import (
 )
 from store.base.validate import plant_setting
 from store.health import status_json
-from store.ledger import entry_input, journal, register
+from store.ledger import journal, register
 from store.ledger.entries import Reading
 from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
 from tui.base.quantities import pressure
@@ -310,6 +309,8 @@ def cmd_list(args: argparse.Namespace) -> int:
 
 
 def cmd_log(args: argparse.Namespace) -> int:
+    from store.ledger import entry_input  # deferred: only `log` builds entries
+
     prefs = laptop.load(args.session.config_path)
     with _book(args) as book:
         kind = args.kind
@@ -583,14 +584,14 @@ def cmd_plant(args: argparse.Namespace) -> int:
 
 def cmd_backup(args: argparse.Namespace) -> int:
     with _book(args) as book:
-        dest = copy_holding_lock(book.conn, book.path, args.dest)
+        dest = store.copy_holding_lock(book.conn, book.path, args.dest)
     say(f"backup written to {dest}")
     return 0
 
 
 def cmd_restore(args: argparse.Namespace) -> int:
     path = args.db or args.session.db_path
-    kept = restore(Path(args.file), path)
+    kept = store.restore(Path(args.file), path)
     say(
         f"restored {args.file} into {path}"
         + (f"; the previous logbook is kept as {kept}" if kept else "")
