@@ -12,7 +12,7 @@ from datetime import datetime
 
 from store.db.book import Book
 from store.derived import statuscache
-from store.health.status import FilterStatus
+from store.health.status_model import FilterStatus
 from store.ledger import journal
 from store.ledger.entries import Entry
 

@@ -19,7 +19,7 @@ from store.base.errors import BookError
 from store.base.timeutil import ShiftSpan, iso_local, next_shift, shift_at
 from store.base.validate import one_line
 from store.db.book import Book
-from store.health.status import FilterStatus
+from store.health.status_model import FilterStatus
 from store.ledger.entries import Note
 from store.ledger.journal import read
 from store.ledger.register import Unit, list_all

@@ -15,19 +15,20 @@ from store.db.book import Book
 from store.derived.statuscache import (
     filter_view,
 )
-from store.health import status, urgency
+from store.health import urgency
 from store.health.conditions import contexts
 from store.health.elements import Element, ElementSummary, meter_at, split_elements
 from store.health.fluidcare import Consumption, sample_verdict
-from store.health.status import (
+from store.health.status_model import (
+    FLAG_WORDS,
     URGENT_FLAGS,
     BreatherStatus,
     Due,
     FilterStatus,
     UnitStatus,
     Watch,
-    status_as_of,
 )
+from store.health.watchlist import status_as_of
 from store.ledger.entries import BreatherSwap, Entry, Reading, Sample, TopUp
 from store.ledger.journal import MAX_DP_BAR, find_entry, read
 from store.ledger.register import (
@@ -199,7 +200,7 @@ def row_matches(row: WatchRow, text: str) -> bool:
     """Free-text filter: every word must appear in the row's tag, unit, area, kind or flags."""
     hay = " ".join(
         [row.tag, row.unit, row.area, row.kind, row.what, row.state, *row.flags]
-        + [status.FLAG_WORDS.get(f, f) for f in row.flags]
+        + [FLAG_WORDS.get(f, f) for f in row.flags]
     ).lower()
     return all(word in hay for word in text.lower().split())
 

@@ -19,9 +19,17 @@ from store.derived.statuscache import (
     stale_filters,
     watch_filters,
 )
-from store.health import status
 from store.health.conditions import FilterContext
-from store.health.status import FilterStatus, Watch
+from store.health.status_model import FilterStatus, Watch
+from store.health.units import unit_status
+from store.health.watchlist import (
+    breathers_at,
+    changes_as_of,
+    filters_as_of,
+    plant,
+    status_as_of,
+    watch_list,
+)
 from store.ledger.register import FilterPosition, Unit, list_all
 
 
@@ -32,7 +40,7 @@ def watch(book: Book, as_of: datetime | None = None, unit: str | None = None) ->
     if as_of is not None:
         return _watch_as_of(book, as_of, unit)
     now = book.now()
-    # The plant as status.plant covers it, without the contexts (built only for a row that
+    # The plant as watchlist.plant covers it, without the contexts (built only for a row that
     # must be computed: see statuscache.watch_filters).
     all_units, positions = list_all(book, Unit), list_all(book, FilterPosition)
     by_unit: dict[str, list[FilterPosition]] = {}
@@ -44,15 +52,15 @@ def watch(book: Book, as_of: datetime | None = None, unit: str | None = None) ->
     units = cached_units(
         book, [u for u in all_units if unit is None or u.tag == unit], by_unit, now, reg
     )
-    return status.watch_list(now, filters, status.breathers_at(book, now, unit), units)
+    return watch_list(now, filters, breathers_at(book, now, unit), units)
 
 
 def _watch_as_of(book: Book, as_of: datetime, unit: str | None) -> Watch:
-    """`status.watch_as_of` (every status from the entries as they stood at `as_of`), with
+    """`watchlist.watch_as_of` (every status from the entries as they stood at `as_of`), with
     the kept rows whose key holds for that time standing in, and the element cache's
     summaries where they provably hold then. tests/store/test_status_as_of.py holds it to
     the computation from the entries alone."""
-    p = status.plant(book, unit)
+    p = plant(book, unit)
     positions = list_all(book, FilterPosition)
     reg = register(book)
     tags = [c.position.tag.upper() for c in p.contexts]
@@ -61,18 +69,16 @@ def _watch_as_of(book: Book, as_of: datetime, unit: str | None) -> Watch:
     rest = [c for c in p.contexts if c.position.tag.upper() not in kept_f]
     computed = iter(())
     if rest:
-        changes = status.changes_as_of(book, as_of)
+        changes = changes_as_of(book, as_of)
         summaries, starts = kept_before(book, rest, changes, as_of + timedelta(seconds=1))
-        computed = iter(
-            status.filters_as_of(book, rest, positions, as_of, (changes, summaries, starts))
-        )
+        computed = iter(filters_as_of(book, rest, positions, as_of, (changes, summaries, starts)))
     filters = [kept_f.get(c.position.tag.upper()) or next(computed) for c in p.contexts]
     units = [
         kept_u.get(u.tag.upper())
-        or status.unit_status(book, u, p.positions_by_unit.get(u.tag.upper(), []), as_of)
+        or unit_status(book, u, p.positions_by_unit.get(u.tag.upper(), []), as_of)
         for u in p.units
     ]
-    return status.watch_list(as_of, filters, status.breathers_at(book, as_of, unit), units)
+    return watch_list(as_of, filters, breathers_at(book, as_of, unit), units)
 
 
 def stale_count(book: Book) -> int:
@@ -91,4 +97,4 @@ def status_of(book: Book, ctx: FilterContext, as_of: datetime | None = None) -> 
         return kept
     if as_of is None:
         return live_status(book, ctx)[0]
-    return status.status_as_of(book, ctx, as_of)
+    return status_as_of(book, ctx, as_of)

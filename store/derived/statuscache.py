@@ -26,9 +26,9 @@ give now; otherwise the reader computes the status from the entries, in memory. 
   (`until_utc`).
 
 Time-proof: a row holds what changes only with the entries and, for a filter, its
-`status.Clock`; what moves with the clock (element age, check-now, a service-life due given
+`status_model.Clock`; what moves with the clock (element age, check-now, a service-life due given
 the age so far, reading-overdue, hot, the notes' words) is worked out at read time
-(`FilterStatus.from_row`, `status.unit_at`). tests/store/test_timeproof.py holds the kept rows
+(`FilterStatus.from_row`, `units.unit_at`). tests/store/test_timeproof.py holds the kept rows
 against a computation from the entries alone at several clocks.
 
 Reads never write. Rows are written by the write path (`after_entry`, in the save's
@@ -58,7 +58,8 @@ from store.health.conditions import FilterContext, context, contexts
 from store.health.elements import split_summaries
 from store.health.lives import like_lives, like_lives_from, live_changes
 from store.health.notes import NOTE_TEXT, Note
-from store.health.status import (
+from store.health.status import status_from
+from store.health.status_model import (
     ROW_FIELDS,
     Clock,
     Due,
@@ -66,10 +67,8 @@ from store.health.status import (
     LifeSummary,
     UnitClock,
     UnitStatus,
-    status_from,
-    unit_at,
-    unit_clock,
 )
+from store.health.units import unit_at, unit_clock
 from store.ledger.entries import Entry, Reading, TopUp, Void
 from store.ledger.journal import element_items, parse_stamp
 from store.ledger.register import FilterPosition, Unit, find, list_all

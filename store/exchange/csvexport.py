@@ -63,7 +63,7 @@ from store.exchange.csvcolumns import (
 from store.exchange.csvcolumns import number_text as _num
 from store.health import urgency
 from store.health.conditions import FilterContext, contexts, normalise
-from store.health.status import FLAG_WORDS, Watch
+from store.health.status_model import FLAG_WORDS, Watch
 from store.ledger.entries import KINDS, TARGET_COLUMN, Reading, entry_columns
 from store.ledger.journal import ROW_ERRORS, note_unreadable, parse_stamp
 from store.views import watch

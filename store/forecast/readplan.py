@@ -44,7 +44,7 @@ Why, part by part:
   date out (the closed loop's run 41: from about 1730 h to about 2490 h at 85 % of its life,
   the crossing at 1730 h) is weak evidence; the cost is one extra reading whenever the date
   moves out. The date before is rebuilt from the entries (the forecast from the readings up to
-  the previous one, at its age: store/health/status.py `_earliest_before`), so the kept row and
+  the previous one, at its age: store/health/next_reading.py `_earliest_before`), so the kept row and
   an as-of audit agree. Added after the closed loop showed the run-41 failure.
 - RCM's own applicability test (no number of its own): an on-condition check is worth
   planning only where it can come soon enough to leave time to spare. Where the share of the
@@ -77,7 +77,7 @@ hysteresis and the shift floor limit, not remove, how far an element can run pas
 and the hysteresis needs the reading before to have been early enough.
 tests/benchmarks/clogging.py measures it in closed loop (README, "When to read again").
 
-Pure functions over hours; calendar dates are the caller's job (store/health/status.py).
+Pure functions over hours; calendar dates are the caller's job (store/health/next_reading.py).
 """
 
 from __future__ import annotations

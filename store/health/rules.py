@@ -1,18 +1,51 @@
-"""The flag rules of a filter's status that read the element in service: one small function
-each, from what its readings show (`Facts`), giving its flags and notes as (flag, note)
-pairs (either may be None). `status.status_from` runs READING_RULES in their order, which is
-the order of the flags and notes in the status."""
+"""The flag rules of a filter's status: one small function each, giving its flags and notes
+as (flag, note) pairs (either may be None). `status.status_from` runs them in the order of
+the flags and notes in the status: `no_limits` (the settings), the forecast's own note,
+`fast_loading` (the pace against earlier elements), `service_life` (the plan from earlier
+lives, where the readings give no date), then READING_RULES in their order, each from what
+the element's readings show (`Facts`)."""
 
 from __future__ import annotations
 
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 from store.health.elements import Point
 from store.health.notes import Note
 from store.physics.normalise import ColdStart
 
+if TYPE_CHECKING:
+    from store.forecast import trend
+    from store.forecast.life import WeibullFit
+
 Found = list[tuple[str | None, Note | None]]
+
+
+def no_limits(limit_bar: float | None, bypass_bar: float | None) -> Found:
+    """No change limit or no bypass setting: no due date can be given."""
+    if not limit_bar or not bypass_bar:
+        return [("no-limits", Note("no-limits"))]
+    return []
+
+
+def fast_loading(pace: trend.Pace | None) -> Found:
+    """The element loads faster than the earlier ones on the position that ran to the limit."""
+    if pace is not None and pace.fast:
+        return [("fast-loading", Note("fast-loading", {"ratio": pace.ratio, "n": pace.n}))]
+    return []
+
+
+def service_life(
+    due_found: bool, state: str, fit: WeibullFit | None, limit_bar: float | None
+) -> Found:
+    """No date from the readings (too few, none, flat) but earlier lives to plan from: the
+    note of the service-life plan (its dates are worked out for the age at read time)."""
+    if due_found or state not in ("too-few-readings", "no-readings", "flat"):
+        return []
+    if not fit or not limit_bar:
+        return []
+    return [(None, Note("service-life", {"b10_h": fit.age_at_fraction_h(0.10)}))]
 
 
 @dataclass(frozen=True)

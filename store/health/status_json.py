@@ -1,5 +1,5 @@
 """The watch list as JSON (`sumpbook status --json`): every filter, breather and unit of a
-`status.Watch`, times in the plant's zone, numbers rounded as the answer shows them."""
+`status_model.Watch`, times in the plant's zone, numbers rounded as the answer shows them."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ from typing import Any
 from dateutil import tz
 
 from store.base.timeutil import iso_local
-from store.health.status import Due, FilterStatus, Watch
+from store.health.status_model import Due, FilterStatus, Watch
 
 
 def _due_json(due: Due | None, local: Any) -> dict[str, str] | None:

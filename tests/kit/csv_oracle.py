@@ -24,7 +24,7 @@ from store.base.timeutil import iso_local, next_shift, shift_at
 from store.base.units import from_bar, from_c, from_l, pressure_key, temperature_key, volume_key
 from store.db.book import Book
 from store.health.conditions import FilterContext, contexts, normalise
-from store.health.status import FLAG_WORDS
+from store.health.status_model import FLAG_WORDS
 from store.ledger.entries import Entry, Reading, TopUp
 
 FORMULA_START = ("=", "+", "-", "@", "\t", "\r", "'")

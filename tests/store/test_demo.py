@@ -17,7 +17,7 @@ from store.base.timeutil import parse_utc
 from store.db.book import Book
 from store.db.schema import FILTER_KINDS, SCHEMA_VERSION
 from store.exchange.demo import SQL_PATH, create_demo
-from store.health import status
+from store.health import status_model
 from store.health.conditions import contexts
 from store.health.elements import split_elements
 from store.ledger import journal, register
@@ -45,19 +45,19 @@ def book(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Book]:
 
 
 @pytest.fixture(scope="module")
-def watch(book: Book) -> status.Watch:
+def watch(book: Book) -> status_model.Watch:
     return views.watch(book)
 
 
-def _filter(watch: status.Watch, tag: str) -> status.FilterStatus:
+def _filter(watch: status_model.Watch, tag: str) -> status_model.FilterStatus:
     return next(f for f in watch.filters if f.filter == tag)
 
 
-def _unit(watch: status.Watch, tag: str) -> status.UnitStatus:
+def _unit(watch: status_model.Watch, tag: str) -> status_model.UnitStatus:
     return next(u for u in watch.units if u.unit == tag)
 
 
-def _breather(watch: status.Watch, tag: str) -> status.BreatherStatus:
+def _breather(watch: status_model.Watch, tag: str) -> status_model.BreatherStatus:
     return next(b for b in watch.breathers if b.breather == tag)
 
 
@@ -228,7 +228,7 @@ def test_cold_mornings_on_the_unheated_press(book: Book) -> None:
 # ---- the story, as the store reads it ----------------------------------------------------------
 
 
-def test_near_limit_filter(watch: status.Watch) -> None:
+def test_near_limit_filter(watch: status_model.Watch) -> None:
     f = _filter(watch, NEAR)
     assert 85 <= f.percent_of_limit <= 95  # demo story: ≈ 85-95 % of the limit, rising
     assert f.due is not None and f.due.likely > watch.as_of
@@ -237,12 +237,12 @@ def test_near_limit_filter(watch: status.Watch) -> None:
     assert "dp-drop" not in f.flags and "over-limit" not in f.flags
 
 
-def test_torn_element_shows_as_a_drop(watch: status.Watch) -> None:
+def test_torn_element_shows_as_a_drop(watch: status_model.Watch) -> None:
     assert "dp-drop" in _filter(watch, TORN).flags
     assert [f.filter for f in watch.filters if "dp-drop" in f.flags] == [TORN]
 
 
-def test_indicator_only_filter(book: Book, watch: status.Watch) -> None:
+def test_indicator_only_filter(book: Book, watch: status_model.Watch) -> None:
     f = _filter(watch, INDICATOR)
     assert not f.gauge and f.dp_ref_bar is None
     states = {e.indicator for e in journal.read(book, filter=INDICATOR, kinds=["reading"])}  # type: ignore[attr-defined]
@@ -253,7 +253,7 @@ def test_indicator_only_filter(book: Book, watch: status.Watch) -> None:
     assert f.due is not None
 
 
-def test_leaking_unit(watch: status.Watch) -> None:
+def test_leaking_unit(watch: status_model.Watch) -> None:
     for unit in watch.units:
         assert unit.consumption is not None, unit.unit
         rising = unit.unit == LEAKING
@@ -261,7 +261,7 @@ def test_leaking_unit(watch: status.Watch) -> None:
         assert ("leak-suspect" in unit.flags) is rising, unit.unit
 
 
-def test_unfiltered_top_up_and_dirty_sample(watch: status.Watch) -> None:
+def test_unfiltered_top_up_and_dirty_sample(watch: status_model.Watch) -> None:
     for unit in watch.units:
         problem = unit.unit == UNFILTERED
         assert ("unfiltered-topup" in unit.flags) is problem, unit.unit
@@ -269,21 +269,21 @@ def test_unfiltered_top_up_and_dirty_sample(watch: status.Watch) -> None:
         assert "coarse-topup" not in unit.flags
 
 
-def test_cold_start_would_open_the_bypass(watch: status.Watch) -> None:
+def test_cold_start_would_open_the_bypass(watch: status_model.Watch) -> None:
     f = _filter(watch, COLD)
     assert f.cold is not None and f.cold.bypasses and f.cold.dp_at_start_bar > f.bypass_bar
     assert "cold-start-bypass" in f.flags
     assert f.cold.bypass_below_c is not None and f.cold.bypass_below_c > f.cold.start_temp_c
 
 
-def test_breathers(book: Book, watch: status.Watch) -> None:
+def test_breathers(book: Book, watch: status_model.Watch) -> None:
     for b in watch.breathers:
         assert ("swap-overdue" in b.flags) is (b.breather == OVERDUE), b.breather
     conditions = {e.condition for e in journal.read(book, kinds=["breather"])}  # type: ignore[attr-defined]
     assert {"1/3 spent", "2/3 spent", "spent"} <= conditions
 
 
-def test_nothing_else_raises_an_alarm(watch: status.Watch) -> None:
+def test_nothing_else_raises_an_alarm(watch: status_model.Watch) -> None:
     """Apart from the scripted scenarios the plant is healthy at the end of the story."""
     for f in watch.filters:
         assert not {"at-bypass", "over-limit", "indicator-bypass", "reading-overdue", "hot"} & set(

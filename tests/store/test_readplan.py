@@ -10,7 +10,7 @@ from scipy import stats
 from store import record, views
 from store.db.book import open_book
 from store.forecast import readplan
-from store.health import status, status_json
+from store.health import status_json, watchlist
 from store.ledger import register
 from store.ledger.entries import ElementChange, Reading
 from store.ledger.register import FilterPosition, Fluid, Technician, Unit
@@ -149,7 +149,7 @@ def test_an_indicator_only_filter_is_planned_from_its_service_life(tmp_path):
     book.set_setting("clock", (t + timedelta(hours=301)).strftime("%Y-%m-%dT%H:%M:%SZ"))
     f = _filter(views.watch(book), "U1-PF")
     assert f.next_rule == "service-life"
-    shape, scale_h = views.status_of(book, status.plant(book).contexts[0]).clock.life
+    shape, scale_h = views.status_of(book, watchlist.plant(book).contexts[0]).clock.life
     gap_h = (f.next_reading - f.reading_at).total_seconds() / 3600
     # scipy's Weibull: the gap is the shipped share of the time, from age 300 h, to the point
     # where 5 % of the elements that lasted 300 h have tripped

@@ -22,7 +22,7 @@ from store import record, sheets, views
 from store.base.timeutil import format_utc
 from store.db.book import Book, open_book
 from store.derived import elementcache, statuscache
-from store.health import lives, status, status_json
+from store.health import lives, status, status_json, status_model
 from store.health.conditions import contexts
 from store.ledger import journal, register
 from store.ledger.entries import ElementChange, Note, Reading, Sample, TopUp, Void, from_row
@@ -62,10 +62,10 @@ def live_entries(book: Book, tag: str) -> list:
     return [e for e in journal.read(book, filter=tag) if not e.voided]
 
 
-def fresh_status(book: Book, ctx) -> status.FilterStatus:
+def fresh_status(book: Book, ctx) -> status_model.FilterStatus:
     """The reference: every live entry of the position, split and fitted from scratch."""
     entries = live_entries(book, ctx.position.tag)
-    return status.filter_status(ctx, entries, book.now(), status.like_lives(book, ctx, None))
+    return status.filter_status(ctx, entries, book.now(), lives.like_lives(book, ctx, None))
 
 
 def assert_cache_is_fresh(book: Book) -> None:

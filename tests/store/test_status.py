@@ -8,7 +8,7 @@ from store import record, views
 from store.base.units import to_bar
 from store.db.book import open_book
 from store.derived.statuscache import rebuild
-from store.health import status, status_json
+from store.health import status, status_json, units
 from store.ledger import register
 from store.ledger.entries import BreatherSwap, ElementChange, Reading, Sample, TopUp, Void
 from store.ledger.register import FilterPosition, Fluid, Technician, Unit
@@ -488,7 +488,7 @@ def test_water_over_the_limit_is_flagged_on_the_demo(demo_file, tmp_path):
         )
         pr3 = next(u for u in views.watch(book).units if u.unit == "PR-3")
         assert "water-high" not in pr3.flags  # the newest sample rules
-        assert status.water_flag(300.0) is None and status.water_flag(301.0) is not None
+        assert units.water_flag(300.0) is None and units.water_flag(301.0) is not None
 
 
 def test_a_new_element_already_high_is_flagged(book):

@@ -1,7 +1,7 @@
 """The watch list as of a past time, for the whole plant at once.
 
 `views.watch(book, as_of=T)` reads the plant's readings and changes in one go; each filter's
-row must be exactly what `status.status_as_of(book, ctx, T)` gives, which reads that position's
+row must be exactly what `watchlist.status_as_of(book, ctx, T)` gives, which reads that position's
 entries alone as the book stood at T (entries dated before T, voided only by voids dated
 before T). Checked on the demo plant at several times (at and just before element changes,
 the middle and the end of its story), with voids and entries dated after T, and for one unit.
@@ -18,40 +18,38 @@ from store import record, views
 from store.base.timeutil import format_utc, parse_utc
 from store.db.book import open_book
 from store.derived import elementcache, statuscache
-from store.health import status, status_json
+from store.health import status_json, status_model, watchlist
 from store.health.conditions import contexts
+from store.health.units import unit_status
 from store.ledger import journal
 from store.ledger.entries import ElementChange, Reading, Void
 from store.ledger.register import FilterPosition, list_all
 
 
-def by_position(book, now, unit=None) -> list[status.FilterStatus]:
+def by_position(book, now, unit=None) -> list[status_model.FilterStatus]:
     """Every filter's status at `now`, position by position (the per-filter computation)."""
     ctxs = [c for c in contexts(book).values() if unit is None or c.position.unit == unit]
-    return sorted((status.status_as_of(book, c, now) for c in ctxs), key=lambda s: s.urgency)
+    return sorted((watchlist.status_as_of(book, c, now) for c in ctxs), key=lambda s: s.urgency)
 
 
-def computed_as_of(book, now, unit=None) -> status.Watch:
+def computed_as_of(book, now, unit=None) -> status_model.Watch:
     """Every row computed from the entries as of `now`, from the element cache's summaries
     where they provably hold then (no kept status row)."""
-    p = status.plant(book, unit)
-    changes = status.changes_as_of(book, now)
+    p = watchlist.plant(book, unit)
+    changes = watchlist.changes_as_of(book, now)
     summaries, starts = elementcache.kept_before(
         book, p.contexts, changes, now + timedelta(seconds=1)
     )
-    filters = status.filters_as_of(
+    filters = watchlist.filters_as_of(
         book, p.contexts, list_all(book, FilterPosition), now, (changes, summaries, starts)
     )
-    units = [
-        status.unit_status(book, u, p.positions_by_unit.get(u.tag.upper(), []), now)
-        for u in p.units
-    ]
-    return status.watch_list(now, filters, status.breathers_at(book, now, unit), units)
+    units = [unit_status(book, u, p.positions_by_unit.get(u.tag.upper(), []), now) for u in p.units]
+    return watchlist.watch_list(now, filters, watchlist.breathers_at(book, now, unit), units)
 
 
 def assert_same(book, now, unit=None) -> None:
     audit = computed_as_of(book, now, unit)  # every row computed
-    plain = status.watch_as_of(book, now, unit)  # ... and without the element cache
+    plain = watchlist.watch_as_of(book, now, unit)  # ... and without the element cache
     assert status_json.to_json(plain) == status_json.to_json(audit)
     one_by_one = by_position(book, now, unit)
     assert [f.filter for f in audit.filters] == [f.filter for f in one_by_one]
@@ -60,7 +58,7 @@ def assert_same(book, now, unit=None) -> None:
         assert statuscache._encode(fast) == statuscache._encode(slow), fast.filter
         assert fast.history == slow.history, fast.filter
         assert fast.forecast == slow.forecast, fast.filter
-    expected = status.Watch(now, tuple(one_by_one), audit.breathers, audit.units)
+    expected = status_model.Watch(now, tuple(one_by_one), audit.breathers, audit.units)
     assert status_json.to_json(audit) == status_json.to_json(expected)
     # The list as `views.watch` gives it, kept rows standing in where their key holds for
     # the time: the same kept fields, units and JSON (a kept row has no reading history:
@@ -218,7 +216,7 @@ def test_where_nothing_came_after_the_time_the_kept_rows_stand_in(demo, monkeypa
     # At the clock nothing is dated later: every filter's kept row stands for it (no fit);
     # a week back, readings came after: those filters are computed from the entries.
     computed: list[str] = []
-    real = status.filters_as_of
+    real = watchlist.filters_as_of
 
     def spy(book, ctxs, *args):
         computed.extend(c.position.tag for c in ctxs)
@@ -226,7 +224,7 @@ def test_where_nothing_came_after_the_time_the_kept_rows_stand_in(demo, monkeypa
 
     with open_book(demo, create=False) as book:
         now = book.now()
-        monkeypatch.setattr(status, "filters_as_of", spy)
+        monkeypatch.setattr(views, "filters_as_of", spy)
         views.watch(book, as_of=now)
         assert computed == []
         views.watch(book, as_of=now - timedelta(days=7))

@@ -2,7 +2,7 @@
 
 The demo plant with its clock moved on a day, a week and a year (a plant back from a
 shutdown week; a book opened after a long pause): each kept row, read at that clock, must be
-the status computed from the entries alone (`status.watch_as_of`, which reads nothing kept),
+the status computed from the entries alone (`watchlist.watch_as_of`, which reads nothing kept),
 flag by flag and date by date; a row whose inputs moved since it was kept (an entry or void
 written behind the save hooks, the register changed in or outside sumpbook, a like
 position's element change, another row format) is never used by any reader; and reading must
@@ -28,7 +28,7 @@ from store.db.book import open_book
 from store.derived import statuscache
 from store.exchange.demo import create_demo
 from store.forecast.life import WeibullFit
-from store.health import status, status_json
+from store.health import status_json, status_model, watchlist
 from store.ledger import journal
 from store.ledger.entries import ElementChange, Reading, Void
 from store.ledger.register import Unit, list_all
@@ -64,16 +64,16 @@ def moved(path: Path, tmp_path: Path, later: timedelta) -> Path:
 @pytest.mark.parametrize("later", LATER, ids=["now", "next-day", "a-week", "a-year"])
 def test_kept_rows_give_the_full_computation_later_on(kept: Path, tmp_path: Path, later) -> None:
     # Each kept row, read at the clock, against the status computed at that clock from the
-    # entries (`status.watch_as_of` reads no kept row and no element summary), directly.
+    # entries (`watchlist.watch_as_of` reads no kept row and no element summary), directly.
     path = moved(kept, tmp_path, later)
     with open_book(path, create=False) as book:
         assert statuscache.stale_filters(book) == []  # no row is too old to use
         now = book.now()
-        fresh = status.watch_as_of(book, now)
+        fresh = watchlist.watch_as_of(book, now)
         tags = [f.filter.upper() for f in fresh.filters]
         rows = statuscache.kept_filters(book, tags, now)
         assert sorted(rows) == sorted(tags)  # every row holds, and is read
-        by_unit = status.plant(book).positions_by_unit
+        by_unit = watchlist.plant(book).positions_by_unit
         units = statuscache.kept_units(book, list_all(book, Unit), by_unit, now)
         cached = views.watch(book)
     assert len(units) == len(fresh.units)
@@ -201,7 +201,9 @@ def test_the_numpy_free_remaining_life_is_the_weibull_fit_s(age_h: float, p: flo
     # The read path works out a service-life due given the age so far without numpy; it must
     # give what life.WeibullFit gives, to the last bit (same sums). Shape/scale invented.
     fit = WeibullFit(shape=1.7, scale_h=1900.0, n_failed=5, n_censored=2, log_likelihood=0.0)
-    assert status.weibull_remaining_h(1.7, 1900.0, age_h, p) == fit.remaining_quantile_h(age_h, p)
+    assert status_model.weibull_remaining_h(1.7, 1900.0, age_h, p) == fit.remaining_quantile_h(
+        age_h, p
+    )
 
 
 def behind_the_hooks(book, entry) -> None:
@@ -263,9 +265,9 @@ def test_a_row_whose_inputs_moved_is_never_used(kept: Path, tmp_path: Path, move
         assert tag not in statuscache.kept_filters(book, [tag], now)
         assert tag not in statuscache.kept_filters(book, [tag], now, audit=True)
         assert tag in statuscache.stale_filters(book)
-        fresh = status.watch_as_of(book, now)
+        fresh = watchlist.watch_as_of(book, now)
         shown, audit = views.watch(book), views.watch(book, as_of=now)
-        ctx = [c for c in status.plant(book).contexts if c.position.tag == tag][0]
+        ctx = [c for c in watchlist.plant(book).contexts if c.position.tag == tag][0]
         one = views.status_of(book, ctx)
     expected = {f.filter: statuscache._encode(f) for f in fresh.filters}
     assert {f.filter: statuscache._encode(f) for f in shown.filters} == expected

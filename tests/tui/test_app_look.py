@@ -10,7 +10,7 @@ from textual.widgets import DataTable, Input, Label, Static
 
 from store import record
 from store.db.book import open_book
-from store.health.status import FLAG_WORDS, URGENT_FLAGS
+from store.health.status_model import FLAG_WORDS, URGENT_FLAGS
 from store.ledger import journal
 from store.ledger.entries import KINDS, TopUp, Void
 from store.ledger.register import FilterPosition, list_all

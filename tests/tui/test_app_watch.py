@@ -7,7 +7,7 @@ from textual.widgets import DataTable, Input
 
 from store import record, sheets, views
 from store.db.book import open_book
-from store.health import status
+from store.health import status_model
 from store.sheets import watch_rows
 from tests.kit import plant as kit
 from tests.kit.plant import app_for, settle
@@ -63,7 +63,8 @@ async def test_summary_line_counts_what_the_rows_say(plant):
         assert f"{overdue} overdue" in summary
         with open_book(plant, create=False) as book:
             urgent = sum(
-                any(f in status.URGENT_FLAGS for f in x.flags) for x in views.watch(book).filters
+                any(f in status_model.URGENT_FLAGS for f in x.flags)
+                for x in views.watch(book).filters
             )
         assert f"{urgent} urgent" in summary
 

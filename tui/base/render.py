@@ -13,7 +13,7 @@ from store.base.text import inert
 from store.base.timeutil import local_text
 from store.base.units import pressure_label
 from store.health.conditions import contexts, normalise
-from store.health.status import FLAG_WORDS, URGENT_FLAGS, Watch
+from store.health.status_model import FLAG_WORDS, URGENT_FLAGS, Watch
 from store.health.urgency import act_now
 from store.ledger import register
 from store.ledger.entries import (
@@ -281,7 +281,7 @@ def _num(value: float | None, suffix: str = "") -> str:
     return "–" if value is None else f"{value:g}{suffix}"
 
 
-def due_text(book: Book, due) -> str:  # noqa: ANN001 - status.Due | None
+def due_text(book: Book, due) -> str:  # noqa: ANN001 - status_model.Due | None
     if due is None:
         return "–"
     z = book.local_zone()
@@ -379,7 +379,7 @@ def round_table(book: Book, plan: Round) -> Table:
     return table
 
 
-def short_due(book: Book, due) -> str:  # noqa: ANN001 - status.Due
+def short_due(book: Book, due) -> str:  # noqa: ANN001 - status_model.Due
     """'16 Dec (10 Dec–11 Jan)': the likely day first, the years only where not this one."""
     z = book.local_zone()
     this_year = book.now().astimezone(z).year

@@ -18,7 +18,7 @@ from textual.containers import Vertical, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Static
 
-from store.health.status import FLAG_WORDS, URGENT_FLAGS
+from store.health.status_model import FLAG_WORDS, URGENT_FLAGS
 from tui.base.keys import ENTER, KEYS, Key, key_of
 
 FLAG_MEANING = {

@@ -17,7 +17,7 @@ from rich.text import Text
 from store.base.prefs import Prefs
 from store.base.text import inert
 from store.base.units import from_bar, from_c, from_l
-from store.health.status import FLAG_WORDS, URGENT_FLAGS, Due
+from store.health.status_model import FLAG_WORDS, URGENT_FLAGS, Due
 from store.health.urgency import NOTICE_FLAGS
 from tui.base.quantities import (  # noqa: F401 - the app's widgets take them from here
     p_digits,
