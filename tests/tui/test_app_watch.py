@@ -414,3 +414,42 @@ async def test_a_kept_sheet_shows_the_newest_read_when_an_older_one_ends_last(pl
         assert kept.tag == "P2-RF" and kept.sheet.position.tag == "P2-RF"
         title = kept.query_one("#sheet-title")
         assert "P2-RF" in str(title.render()) and "P1-RF" not in str(title.render())
+
+
+async def test_a_catch_up_read_before_a_newer_list_is_not_shown_after_it(plant, monkeypatch):
+    # The list's catch-up (kept rows brought up to date behind it) reads the list; F5 reads
+    # it anew meanwhile and shows it; only then does the catch-up end: the older list must
+    # not replace the newer one. The order is forced with events, not with time.
+    import asyncio
+    import threading
+    from dataclasses import replace
+
+    import tui.screens.watch as watch_module
+
+    caught_up = watch_module.catch_up
+    started, release, calls = threading.Event(), threading.Event(), []
+
+    def held(book):
+        data = caught_up(book)
+        calls.append(1)
+        if len(calls) > 1:
+            return data  # a later catch-up ends at once
+        started.set()
+        release.wait(timeout=30)
+        return replace(data, as_of_text="older")
+
+    monkeypatch.setattr(views, "stale_count", lambda book: 1)  # every list has rows to keep
+    monkeypatch.setattr(watch_module, "catch_up", held)
+    app = app_for(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        assert await asyncio.to_thread(started.wait, 30)  # the first catch-up is held
+        watch = app.screen
+        await pilot.press("f5")  # a newer list, read and shown while the catch-up waits
+        reading = [w for w in app.workers if w.group == "watch"]
+        if reading:  # the F5 read, if it has not ended yet (never the held catch-up)
+            await app.workers.wait_for_complete(reading)
+        await pilot.pause()
+        assert watch.data is not None and watch.data.as_of_text != "older"
+        release.set()
+        await settle(pilot, WatchScreen)
+        assert watch.data is not None and watch.data.as_of_text != "older"
