@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import asyncio
 import gc
 import os
 import sqlite3
@@ -195,7 +196,6 @@ class SumpbookApp(App[None]):
         self.changes = 0  # counted by book_changed
         self.check_seconds = 0.0  # how long the last whole-file check (and preload) took
         self.kept_filter_sheet: Any = None  # see filter_sheet_for
-        self.sheet_request = 0  # counts the kept sheet's openings (see open_kept_sheet)
         self.early_watch: Future[WatchData] | None = None  # the first list, read at load
         for theme in THEMES.values():
             self.register_theme(theme)
@@ -319,36 +319,35 @@ class SumpbookApp(App[None]):
         """Read first, then show the kept sheet filled: drawn once instead of emptied and then
         filled. A read that takes longer than SHEET_WAIT_S shows the sheet at once, emptied,
         and it fills in when its own read is done."""
-        self.sheet_request += 1
-        request, origin, stamp = self.sheet_request, self.screen, self.book_stamp()
-        path = self.book.path
+        self.read_kept_sheet(tag, self.screen, self.book_stamp())
 
-        def awaited() -> bool:
-            return self.sheet_request == request and self.screen is origin
+    @work(exclusive=True, group="sheet-read", exit_on_error=False)
+    async def read_kept_sheet(self, tag: str, origin: Screen, stamp: tuple[object, ...]) -> None:
+        """One opening of the kept sheet. Exclusive: a newer opening cancels this one, waiting
+        or not, so only the newest is shown; and nothing is shown once another screen is on
+        top of the one it was asked from."""
+        path, clock = self.book.path, self.session.clock
 
-        def at_once() -> None:
-            if awaited():
-                self.sheet_request += 1  # the read below is no longer waited for
-                self.push_screen(self.filter_sheet_for(tag))
+        def read() -> Any:
+            with open_book(path, create=False, clock=clock) as book:
+                return filter_sheet(book, tag)
 
-        def filled(sheet: Any) -> None:
-            if awaited():
-                self.sheet_request += 1
-                kept = self.kept_sheet(tag)
-                kept.show_filled(tag, sheet, stamp)  # the first time: shown as it is mounted
-                self.push_screen(kept)
-
-        def read() -> None:
-            try:
-                with open_book(path, create=False, clock=self.session.clock) as book:
-                    sheet = filter_sheet(book, tag)
-            except Exception:  # noqa: BLE001 - the sheet reads again and says what is wrong
-                self.call_from_thread(at_once)
-                return
-            self.call_from_thread(filled, sheet)
-
-        self.set_timer(SHEET_WAIT_S, at_once)
-        self.run_worker(read, thread=True, group="sheet-read", exit_on_error=False)
+        reading = asyncio.ensure_future(asyncio.to_thread(read))  # runs on if this is cancelled
+        reading.add_done_callback(_retrieved)
+        try:
+            sheet = await asyncio.wait_for(asyncio.shield(reading), SHEET_WAIT_S)
+        except TimeoutError:
+            sheet = None  # slow: shown at once, emptied, and the sheet reads itself
+        except Exception:  # noqa: BLE001 - the sheet reads again and says what is wrong
+            sheet = None
+        if self.screen is not origin:
+            return
+        if sheet is None:
+            self.push_screen(self.filter_sheet_for(tag))
+            return
+        kept = self.kept_sheet(tag)
+        kept.show_filled(tag, sheet, stamp)  # the first time: shown as it is mounted
+        self.push_screen(kept)
 
     def filter_sheet_for(self, tag: str) -> Screen:
         """One filter sheet is made once and kept (installed): building a screen of a dozen
@@ -667,6 +666,13 @@ def due_change(after: WatchRow, before: Any, local: Any) -> str:
     if gained:
         text += ". New flag: " + fmt.flag_text(gained).plain
     return text
+
+
+def _retrieved(done: asyncio.Future[Any]) -> None:
+    """Take a finished read's outcome, so that the read of an opening given up (cancelled
+    or shown without it) ends without asyncio's "exception was never retrieved"."""
+    if not done.cancelled():
+        done.exception()
 
 
 def plant_clock(book: Book) -> Any:

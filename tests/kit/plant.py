@@ -4,6 +4,7 @@ them: a tiny register (fill_register), the app tests' plant with a frozen clock
 
 from __future__ import annotations
 
+import asyncio
 import json
 import os
 from datetime import UTC, datetime, timedelta
@@ -142,17 +143,32 @@ def build_plant(book: Book) -> None:
 
 
 async def settle(pilot, screen_type=None, timeout: float = 10.0) -> None:
-    """Wait until the top screen (of `screen_type`, if given) has shown its data."""
-    waited = 0.0
-    while waited < timeout:
-        await pilot.pause()
-        screen = pilot.app.screen
-        ok = screen_type is None or isinstance(screen, screen_type)
-        if ok and getattr(screen, "loaded", True) and not pilot.app.workers:  # none left
-            return
-        await pilot.pause(0.02)
-        waited += 0.02
-    raise AssertionError(f"{pilot.app.screen} did not settle")
+    """Wait until the top screen (of `screen_type`, if given) has shown its data: on the
+    workers themselves (their completion, then a pause for what they handed to the UI loop),
+    again while a worker or what it handed back started another (the list's catch-up, the
+    check behind the first paint, a sheet's read once it is on top)."""
+    from textual.worker import WorkerError  # a worker failed or cancelled: ended all the same
+
+    app = pilot.app
+
+    async def until_settled() -> None:
+        while True:
+            await pilot.pause()
+            if app.workers:
+                try:
+                    await app.workers.wait_for_complete()
+                except WorkerError:
+                    pass  # what failed is shown by its screen; the tests look there
+                continue
+            screen = app.screen
+            ok = screen_type is None or isinstance(screen, screen_type)
+            if ok and getattr(screen, "loaded", True):
+                return
+
+    try:
+        await asyncio.wait_for(until_settled(), timeout)
+    except TimeoutError:
+        raise AssertionError(f"{app.screen} did not settle") from None
 
 
 async def register_row(pilot, tab: str, tag: str):

@@ -33,17 +33,21 @@ from tui.app import SumpbookApp
 at_paint = []
 SumpbookApp.first_paint_done = lambda self: at_paint.append(sorted(sys.modules))
 
+async def quiet(pilot):  # every worker ended, and what it handed to the UI loop handled
+    await pilot.pause()
+    while pilot.app.workers:
+        await pilot.app.workers.wait_for_complete()
+        await pilot.pause()
+
 async def main():
     app = SumpbookApp(open_book(sys.argv[1], create=False), cursor_blink=False)
     async with app.run_test(size=(80, 24)) as pilot:
-        while not at_paint:
-            await pilot.pause(0.01)
+        while not at_paint:  # the list's read, then the paint that calls the hook
+            await quiet(pilot)
         app.screen.query_one("#watch-table").move_cursor(row=0)
         await pilot.press("enter")
-        for _ in range(500):
-            await pilot.pause(0.01)
-            if type(app.screen).__name__ == "FilterSheetScreen" and app.screen.loaded:
-                break
+        await quiet(pilot)  # the opening's read (and the sheet's own, had it been slow)
+        assert type(app.screen).__name__ == "FilterSheetScreen" and app.screen.loaded
         print(json.dumps({"paint": at_paint[0], "sheet": sorted(sys.modules)}))
 
 asyncio.run(main())

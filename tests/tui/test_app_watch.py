@@ -355,3 +355,102 @@ async def test_a_kept_sheet_is_read_before_it_shows_or_shows_at_once_when_slow(p
         assert kept.sheet.position.tag == "P1-RF" and reloads == ["P1-RF"]  # its own read
         assert finished == ["P1-RF"]  # the slow read ran to its end and was then ignored
         assert len(app.screen_stack) == 2  # shown once
+
+
+async def test_a_kept_sheet_shows_the_newest_read_when_an_older_one_ends_last(plant, monkeypatch):
+    # The kept sheet reads P1-RF again (shown again after a change to the book), the user goes
+    # back and opens P2-RF, which is read and shown; only then does the P1-RF read end: it
+    # must not overwrite the sheet. The order is forced with events, not with time.
+    import asyncio
+    import threading
+
+    import tui.screens.filter_sheet as sheet_module
+
+    held_threads: list[threading.Thread] = []
+    started, release, delivered = threading.Event(), threading.Event(), threading.Event()
+
+    def held(book, tag):
+        if tag == "P1-RF":
+            held_threads.append(threading.current_thread())
+            started.set()
+            release.wait(timeout=30)
+        return sheets.filter_sheet(book, tag)
+
+    app = app_for(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        tags, table = tags_shown(app), app.screen.query_one(DataTable)
+        table.move_cursor(row=tags.index("P1-RF"))
+        await pilot.press("enter")
+        await settle(pilot, FilterSheetScreen)
+        kept = app.screen
+        monkeypatch.setattr(sheet_module, "filter_sheet", held)
+        to_loop = app.call_from_thread
+
+        def traced(callback, *args, **kwargs):  # tells when the held thread handed back
+            try:
+                return to_loop(callback, *args, **kwargs)
+            finally:
+                if threading.current_thread() in held_threads:
+                    delivered.set()
+
+        monkeypatch.setattr(app, "call_from_thread", traced)
+        app.book_changed()  # as after a save from this sheet: shown again, it reads again
+        await pilot.press("u")
+        await settle(pilot, UnitSheetScreen)
+        await pilot.press("escape")  # the kept sheet is back: its read of P1-RF is held
+        assert await asyncio.to_thread(started.wait, 30) and app.screen is kept
+        await pilot.press("escape")
+        assert isinstance(app.screen, WatchScreen)
+        table.move_cursor(row=tags.index("P2-RF"))
+        await pilot.press("enter")
+        opening = [w for w in app.workers if w.group == "sheet-read"]
+        if opening:  # the read of P2-RF (not held), if it has not ended yet
+            await app.workers.wait_for_complete(opening)
+        await pilot.pause()
+        assert app.screen is kept and kept.sheet.position.tag == "P2-RF"  # the newest read
+        release.set()  # the older read ends now
+        await asyncio.to_thread(delivered.wait, 5)  # its result handed back (or not at all)
+        await settle(pilot, FilterSheetScreen)
+        assert kept.tag == "P2-RF" and kept.sheet.position.tag == "P2-RF"
+        title = kept.query_one("#sheet-title")
+        assert "P2-RF" in str(title.render()) and "P1-RF" not in str(title.render())
+
+
+async def test_a_catch_up_read_before_a_newer_list_is_not_shown_after_it(plant, monkeypatch):
+    # The list's catch-up (kept rows brought up to date behind it) reads the list; F5 reads
+    # it anew meanwhile and shows it; only then does the catch-up end: the older list must
+    # not replace the newer one. The order is forced with events, not with time.
+    import asyncio
+    import threading
+    from dataclasses import replace
+
+    import tui.screens.watch as watch_module
+
+    caught_up = watch_module.catch_up
+    started, release, calls = threading.Event(), threading.Event(), []
+
+    def held(book):
+        data = caught_up(book)
+        calls.append(1)
+        if len(calls) > 1:
+            return data  # a later catch-up ends at once
+        started.set()
+        release.wait(timeout=30)
+        return replace(data, as_of_text="older")
+
+    monkeypatch.setattr(views, "stale_count", lambda book: 1)  # every list has rows to keep
+    monkeypatch.setattr(watch_module, "catch_up", held)
+    app = app_for(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        assert await asyncio.to_thread(started.wait, 30)  # the first catch-up is held
+        watch = app.screen
+        await pilot.press("f5")  # a newer list, read and shown while the catch-up waits
+        reading = [w for w in app.workers if w.group == "watch"]
+        if reading:  # the F5 read, if it has not ended yet (never the held catch-up)
+            await app.workers.wait_for_complete(reading)
+        await pilot.pause()
+        assert watch.data is not None and watch.data.as_of_text != "older"
+        release.set()
+        await settle(pilot, WatchScreen)
+        assert watch.data is not None and watch.data.as_of_text != "older"

@@ -79,12 +79,20 @@ class BookScreen(Screen):
         """Run `read` on a connection of its own in a worker thread, then `show` the result;
         with `early`, a read already under way (see `read_early`), wait for it instead.
 
-        A failure is shown as a notification, never as a traceback.
+        The worker is exclusive in `group`: a newer read of the group cancels this one, and a
+        cancelled read's result is dropped on the UI loop, where it would be shown (a check in
+        the thread could pass just before the cancel). `drop_reads` cancels without a newer
+        read. A failure is shown as a notification, never as a traceback.
         """
         path, clock = self.sb.book.path, self.sb.book.clock
 
         def job() -> None:
             worker = get_current_worker()
+
+            def unless_cancelled(then: Callable[..., None], *args: Any) -> None:
+                if not worker.is_cancelled:
+                    then(*args)
+
             try:
                 if early is not None:
                     result = early.result()
@@ -94,15 +102,17 @@ class BookScreen(Screen):
                         result = read(book)
                         left_out = unreadable_report(book)
             except Exception as exc:  # noqa: BLE001 - shown to the user, not raised
-                if not worker.is_cancelled:
-                    self.app.call_from_thread(self.failed, exc)
+                self.app.call_from_thread(unless_cancelled, self.failed, exc)
                 return
-            if not worker.is_cancelled:
-                self.app.call_from_thread(show, result)
-                if left_out:
-                    self.app.call_from_thread(self.name_left_out, left_out)
+            self.app.call_from_thread(unless_cancelled, show, result)
+            if left_out:
+                self.app.call_from_thread(unless_cancelled, self.name_left_out, left_out)
 
         self.run_worker(job, thread=True, exclusive=True, group=group, exit_on_error=False)
+
+    def drop_reads(self, group: str) -> None:
+        """Cancel this screen's reads of `group` under way: their results are not shown."""
+        self.workers.cancel_group(self, group)
 
     def name_left_out(self, report: str) -> None:
         """Say once per app which entry rows a read left out (they could not be read: made

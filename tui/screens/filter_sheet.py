@@ -28,6 +28,7 @@ BASIS_WORDS = {
     "interval": "the reading interval only",
     "none": "no basis yet",
 }
+READ_GROUP = "filter-sheet"  # the sheet's own reads: one at a time, the newest shown
 
 
 class FilterSheetScreen(BookScreen):
@@ -67,7 +68,8 @@ class FilterSheetScreen(BookScreen):
 
     def show_tag(self, tag: str) -> None:
         """Make this (kept) sheet show another filter: nothing of the one before stays on show
-        while the new one is read."""
+        while the new one is read, and no read of the one before shows when it ends."""
+        self.drop_reads(READ_GROUP)
         self.tag, self.sheet, self.loaded, self.shown_stamp = tag, None, False, None
         if not self.is_mounted:
             return
@@ -82,7 +84,9 @@ class FilterSheetScreen(BookScreen):
     def show_filled(self, tag: str, sheet: FilterSheet, stamp: tuple[object, ...]) -> None:
         """Make this (kept) sheet show another filter, read already (as the book stood at
         `stamp`): shown again, it reads again only if the book has changed since. Not
-        mounted yet (its first showing), it is drawn once as it is mounted."""
+        mounted yet (its first showing), it is drawn once as it is mounted. A read of its
+        own still under way (of the filter before) is dropped."""
+        self.drop_reads(READ_GROUP)
         self.tag = tag
         self.shown_stamp, self.shown_at = stamp, time.monotonic()
         if not self.is_mounted:
@@ -93,7 +97,7 @@ class FilterSheetScreen(BookScreen):
 
     def reload(self) -> None:
         tag = self.tag
-        self.read_in_thread(lambda b: filter_sheet(b, tag), self.show_sheet, "filter-sheet")
+        self.read_in_thread(lambda b: filter_sheet(b, tag), self.show_sheet, READ_GROUP)
 
     def action_reload(self) -> None:
         self.reload()

@@ -26,6 +26,7 @@ from tui.widgets.rowtable import Cell, RowTable
 from tui.widgets.wrapped import Wrapped
 
 ALL = "*"
+CATCH_UP = "watch-catch-up"  # the read group of the catch-up behind the list
 
 
 @dataclass(frozen=True)
@@ -129,6 +130,10 @@ class WatchScreen(BookScreen):
     # ---- loading ----
 
     def reload(self) -> None:
+        # A catch-up under way read the list before this read: its list is not shown (it
+        # goes on keeping rows in its thread), and this read's list starts one if needed.
+        self.drop_reads(CATCH_UP)
+        self.catching_up = False
         self.query_one("#summary", Wrapped).show("recomputing…")
         early, self.sb.early_watch = self.sb.early_watch, None
         self.read_in_thread(read_watch, self.show_data, "watch", early=early)
@@ -152,7 +157,7 @@ class WatchScreen(BookScreen):
         self.loaded = True
         if data.stale and not self.catching_up:
             self.catching_up = True
-            self.read_in_thread(catch_up, self.caught_up, "watch-catch-up")
+            self.read_in_thread(catch_up, self.caught_up, CATCH_UP)
 
     def caught_up(self, data: WatchData) -> None:
         self.show_data(data)
