@@ -69,3 +69,20 @@ async def test_a_skip_is_kept_as_a_note_with_its_reason(demo_app):
     with open_book(demo_app.path, create=False) as book:
         notes = [parse_skip(e.note) for e in read(book, kinds=["note"])]
     assert (first.filter, "no access") in notes
+
+
+async def test_esc_leaves_the_round_and_what_was_typed_waits(demo_app):
+    # digits go into the round's fields, so the `1` of every other screen cannot lead back
+    app = demo_app()
+    before = count_entries(demo_app.path, "reading")
+    async with app.run_test(size=(80, 24)) as pilot:
+        screen = await _round(pilot)
+        await pilot.press(*"1.7")
+        await pilot.press("escape")
+        await settle(pilot, WatchScreen)
+        assert isinstance(app.screen, WatchScreen)
+        await pilot.press("4")
+        await settle(pilot, RoundScreen)
+        assert app.screen is screen
+        assert screen.query_one("#round-value", Input).value == "1.7"
+    assert count_entries(demo_app.path, "reading") == before  # leaving saves nothing

@@ -44,6 +44,15 @@ KEYS: dict[str, Key] = {
     "round-next": Key(
         "ctrl+n", "next shift", "The next shift's round (again: this one's)", "look", 3
     ),
+    "round-leave": Key(
+        "esc",
+        "watch",
+        "Back to the watch list; what is typed stays for when you come back",
+        "look",
+        1,
+    ),
+    "round-up": Key("↑", "before", "The filter before on the round", "look", 2),
+    "round-down": Key("↓", "after", "The next filter on the round", "look", 2),
     "unit-sheet": Key("u", "unit", "Open the unit sheet", "look", 3),
     "find": Key("/", "find", "Find by text", "look", 4),
     "area": Key("a", "area", "Show one area or unit", "look", 6),

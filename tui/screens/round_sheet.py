@@ -53,11 +53,13 @@ class RoundScreen(BookScreen):
     BINDINGS = [
         bind("ctrl+o", "skip", "round-skip"),
         bind("ctrl+n", "following", "round-next"),
+        # digits go into the fields here, so `1` cannot lead back: Esc does
+        bind("escape", "app.go('watch')", "round-leave"),
         bind("f5", "recompute", "recompute"),
         # Seen the moment they arrive, in the order typed (tui/widgets/inorder.py): the stop
         # and the values a save takes are the ones shown at its key.
-        Binding("up", "move(-1)", "up", show=False, priority=True),
-        Binding("down", "move(1)", "down", show=False, priority=True),
+        bind("up", "move(-1)", "round-up", show=False, priority=True),
+        bind("down", "move(1)", "round-down", show=False, priority=True),
         Binding("enter", "save", show=False, priority=True),
         *FIELD_KEYS,
     ]
