@@ -98,7 +98,7 @@ BYPASSING_NOW = urgency.URGENT_FLAGS
 def filter_row(f: FilterStatus, area: str, now: datetime) -> WatchRow:
     spark = f.spark or tuple(p.dp_ref_bar for p in f.history if p.dp_ref_bar is not None)
     trend = tuple(spark)[-TREND_POINTS:]
-    overdue = f.state in OVERDUE_STATES or bool(f.due and f.due.likely <= now)
+    overdue = urgency.filter_overdue(f.state, f.due.likely if f.due else None, now)
     return WatchRow(
         tag=f.filter,
         what="filter",

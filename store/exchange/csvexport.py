@@ -689,8 +689,8 @@ class StatusRow:
 def handover(
     book: Book, as_of: datetime, pattern: list[tuple[str, str]], local: tzinfo
 ) -> list[StatusRow]:
-    """What the status rows hold, in the one order (see `status_rows`). Overdue as the watch
-    list has it (store/sheets.py filter_row): an overdue state, or a likely date passed."""
+    """What the status rows hold, in the one order (see `status_rows`), overdue by the watch
+    list's own rule (`urgency.filter_overdue`)."""
     horizon = handover_end(as_of, pattern, local)
     w: Watch = watch(book, as_of=as_of)
     rows = []
@@ -699,7 +699,7 @@ def handover(
         soon = [t for t in (earliest, f.next_reading) if t is not None and t < horizon]
         if not (f.flags or soon):
             continue
-        overdue = f.state in urgency.OVERDUE_STATES or (likely is not None and likely <= as_of)
+        overdue = urgency.filter_overdue(f.state, likely, as_of)
         key = urgency.order_key(f.flags, overdue, likely, f.percent_of_limit, f.filter)
         rows.append(
             StatusRow(

@@ -298,12 +298,11 @@ class FilterStatus:
     age_to_time: Any = field(default=None, compare=False)  # element age (h) -> datetime
     clock: Clock | None = field(default=None, compare=False)  # what moves with the clock
 
-    @property
-    def urgency(self) -> tuple:
-        """Its place in the one order (store/health/urgency.py); overdue as the clock the
-        status was worked out at saw it (at_time sets check-now)."""
-        overdue = self.state in ranking.OVERDUE_STATES
+    def urgency(self, now: datetime) -> tuple:
+        """Its place in the one order at `now` (store/health/urgency.py), overdue by the same
+        rule as the watch list's rows and the shift log's status rows."""
         due = self.due.likely if self.due else None
+        overdue = ranking.filter_overdue(self.state, due, now)
         return ranking.order_key(self.flags, overdue, due, self.percent_of_limit, self.filter)
 
     def to_row(self) -> dict[str, Any]:

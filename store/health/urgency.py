@@ -42,6 +42,11 @@ def act_now(flags: Iterable[str]) -> str:
     return next((ACT_NOW[f] for f in flags if f in ACT_NOW), "")
 
 
+def filter_overdue(state: str, due_likely: datetime | None, now: datetime) -> bool:
+    """A filter is overdue in an overdue state, or once its likely change date has passed."""
+    return state in OVERDUE_STATES or (due_likely is not None and due_likely <= now)
+
+
 def tier(flags: Iterable[str], overdue: bool) -> int:
     """0 inspect now, 1 overdue or over the limit, 2 another flag, 3 nothing pressing."""
     flags = tuple(flags)

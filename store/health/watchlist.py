@@ -115,7 +115,7 @@ def watch_list(
     breathers: list[BreatherStatus],
     units: list[UnitStatus],
 ) -> Watch:
-    filters.sort(key=lambda s: s.urgency)
+    filters.sort(key=lambda s: s.urgency(now))
     return Watch(now, tuple(filters), tuple(breathers), tuple(units))
 
 

@@ -84,3 +84,26 @@ def test_status_at_80_columns_keeps_each_line_on_one_line(demo_file, tmp_path, m
     assert [s for s in starts if s in tags] == tags  # every line starts with its tag, in order
     d2r = next(line for line in lines if line.split()[:1] == ["D2-R"])
     assert "29 Nov (29 Nov–" in d2r  # the due date on the tag's own line
+
+
+def test_the_order_holds_once_likely_dates_have_passed(demo_file, tmp_path, monkeypatch, capsys):
+    # three weeks on, likely change dates lie in the past (M1-R's with no overdue state of
+    # its own): the JSON's order and the app's are still the one order, both now taking
+    # "overdue" from urgency.filter_overdue
+    from datetime import timedelta
+
+    path = tmp_path / "demo.db"
+    shutil.copy(demo_file, path)
+    with open_book(path, create=False) as book:  # the demo's clock stands in its settings
+        later = book.now() + timedelta(days=21)
+        with book.atomic():
+            book.set_setting("clock", later.strftime("%Y-%m-%dT%H:%M:%SZ"))
+    assert main(["--db", str(path), "status", "--json"]) == 0
+    filters = [f["filter"] for f in json.loads(capsys.readouterr().out)["filters"]]
+    with open_book(path, create=False) as book:
+        assert book.now() == later
+        w = watch(book)
+        passed = [f for f in w.filters if f.due and f.due.likely <= later]
+        assert passed and any(f.state not in urgency.OVERDUE_STATES for f in passed)
+        rows = [r.tag for r in watch_rows(w) if r.what == "filter"]
+    assert filters == rows

@@ -29,7 +29,9 @@ from store.ledger.register import FilterPosition, list_all
 def by_position(book, now, unit=None) -> list[status_model.FilterStatus]:
     """Every filter's status at `now`, position by position (the per-filter computation)."""
     ctxs = [c for c in contexts(book).values() if unit is None or c.position.unit == unit]
-    return sorted((watchlist.status_as_of(book, c, now) for c in ctxs), key=lambda s: s.urgency)
+    return sorted(
+        (watchlist.status_as_of(book, c, now) for c in ctxs), key=lambda s: s.urgency(now)
+    )
 
 
 def computed_as_of(book, now, unit=None) -> status_model.Watch:
