@@ -23,18 +23,23 @@ def preload() -> None:
     statuscache.preload()
 
 
-def after_write(book: Book, entries: Sequence[Entry]) -> None:
+def after_write(book: Book, entries: Sequence[Entry]) -> dict[str, FilterStatus]:
     """Inside the caller's write transaction: bring the derived rows up to date for the
     entries it wrote, once per filter, breather or unit touched (each refresh reads all the
     entries of its target, so its newest entry is enough); then every other kept row whose
-    inputs they left as they were is checked up to them."""
+    inputs they left as they were is checked up to them. Returns the filter statuses kept,
+    by upper-case tag."""
     last: dict[tuple[str, str], Entry] = {}
     for entry in entries:  # per kind too: what a refresh looks at beside its target differs
         last[(_target(book, entry), entry.kind)] = entry
     reg = statuscache.register(book)  # entries do not move the register: read it once
+    kept: dict[str, FilterStatus] = {}
     for entry in last.values():
-        statuscache.after_entry(book, entry, reg)
+        status = statuscache.after_entry(book, entry, reg)
+        if status is not None:
+            kept[status.filter.upper()] = status
     statuscache.move_seen_on(book, reg)
+    return kept
 
 
 def _target(book: Book, entry: Entry) -> str:
@@ -71,10 +76,8 @@ def save(book: Book, entry: Entry) -> Logged:
     preload()
     with book.atomic():
         entry = _append(book, entry, now)
-        reg = statuscache.register(book)
-        status = statuscache.after_entry(book, entry, reg)
-        statuscache.move_seen_on(book, reg)
-    return Logged(entry, status)
+        kept = after_write(book, [entry])
+    return Logged(entry, next(iter(kept.values()), None))
 
 
 def log_many(book: Book, entries: Iterable[Entry]) -> list[Entry]:
