@@ -38,18 +38,6 @@ def life_fit(
     return fit, False
 
 
-def own_failures(ctx: FilterContext, past: Sequence[ElementSummary]) -> int:
-    """Removed elements that reached the limit: with fewer than 3 the status pools the lives
-    of like positions (so a change on one of those can change it)."""
-    return sum(
-        1
-        for el in past
-        if (life := el.life_h()) is not None
-        and life > 0
-        and el.reached_limit(ctx.position.limit_bar)
-    )
-
-
 def past_curves(ctx: FilterContext, past: Sequence[ElementSummary]) -> list[trend.PastElement]:
     from store.forecast import trend  # deferred: numpy/scipy load on first fit
 
