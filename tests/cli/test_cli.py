@@ -407,6 +407,10 @@ def test_a_reading_nobody_made_is_refused_with_the_reason_unless_as_read(plant, 
     code, _, err = run(capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "1.2", *at)
     assert code == 2 and "a reading in this minute already" in err and "--as-read" in err
     assert entries(plant) == 1
+    # a value refused outright is said as such, not asked about as a second reading
+    code, _, err = run(capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "-1", *at)
+    assert code == 2 and "outside its range" in err and "this minute" not in err
+    assert entries(plant) == 1
     code, _, err = run(
         capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "1.2", *at, "--as-read"
     )

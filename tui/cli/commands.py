@@ -333,6 +333,7 @@ def cmd_log(args: argparse.Namespace) -> int:
         if isinstance(entry, Reading) and not args.as_read:
             from store.sheets import reading_doubts  # deferred: off the start path of status
 
+            journal.validate(book, entry)  # a value refused outright is said before a doubt
             doubts = reading_doubts(book, entry)
             if doubts:
                 raise BookError(
