@@ -10,8 +10,9 @@ checked is that reading fewer columns changes no answer (common practice, no sou
 
 from __future__ import annotations
 
+import sqlite3
 from collections.abc import Iterator
-from dataclasses import replace
+from dataclasses import fields, replace
 from datetime import timedelta
 from pathlib import Path
 
@@ -19,11 +20,13 @@ import pytest
 
 from store import sheets, views
 from store.base.timeutil import format_utc, parse_utc
+from store.db import schema
 from store.db.book import open_book
 from store.derived import statuscache
 from store.exchange.demo import create_demo
 from store.health import status_json
 from store.health.conditions import contexts
+from store.health.status_model import FilterStatus
 from store.health.watchlist import watch_list
 
 DEMO_CLOCK = "2026-11-27T12:30:00Z"  # where the demo's story ends (demo.db.sql)
@@ -133,8 +136,48 @@ def test_the_sparkline_and_note_codes_are_read_when_asked(kept: Path) -> None:
         lean = statuscache.lean_filters(book, tags, now)
         whole = statuscache.kept_filters(book, tags, now)
     assert not any("spark" in vars(s) or "note_codes" in vars(s) for s in lean.values())
+    every = {f.name for f in fields(FilterStatus)}  # a field added must be read too
+    assert all(every - {"spark", "note_codes"} <= set(vars(s)) for s in lean.values())
     assert any(lean[t].spark for t in tags) and any(lean[t].note_codes for t in tags)
     for t in tags:
         assert lean[t].spark == whole[t].spark == lean[t].spark
         assert lean[t].note_codes == whole[t].note_codes
         assert replace(lean[t], notes=()) == replace(whole[t], notes=())
+
+
+def test_the_upgrade_to_schema_7_empties_the_filter_rows_alone(kept: Path, tmp_path: Path) -> None:
+    # A book of schema 6 with its rows kept (the table as version 6 made it, its rows
+    # copied): the upgrade leaves the filters' rows to a rebuild or a refresh and keeps the
+    # units'; the list read from it is the same, computed; a rebuild keeps them with columns.
+    path = tmp_path / "v6.db"
+    path.write_bytes(kept.read_bytes())
+    conn = sqlite3.connect(path)
+    units = conn.execute("SELECT * FROM unit_cache ORDER BY unit").fetchall()
+    seen = conn.execute("SELECT * FROM kept_seen WHERE what = 'unit' ORDER BY tag").fetchall()
+    conn.executescript(
+        "BEGIN; ALTER TABLE status_cache RENAME TO v7_rows;"
+        + schema.V6.split("DROP TABLE unit_cache;")[1].split("CREATE TABLE unit_cache")[0]
+        + "INSERT INTO status_cache SELECT filter, key, computed_utc, newest_utc, data "
+        "FROM v7_rows; DROP TABLE v7_rows; PRAGMA user_version = 6; COMMIT;"
+    )
+    assert conn.execute("SELECT count(*) FROM status_cache").fetchone()[0] > 0
+    conn.close()
+    with open_book(kept, create=False) as book:
+        before = status_json.to_json(views.watch(book))
+    with open_book(path, create=False) as book:
+        conn = book.conn
+        assert conn.execute("PRAGMA user_version").fetchone()[0] == schema.SCHEMA_VERSION == 7
+        assert conn.execute("SELECT count(*) FROM status_cache").fetchone()[0] == 0
+        assert (
+            conn.execute("SELECT count(*) FROM kept_seen WHERE what = 'filter'").fetchone()[0] == 0
+        )
+        assert conn.execute("SELECT * FROM unit_cache ORDER BY unit").fetchall() == units
+        assert (
+            conn.execute("SELECT * FROM kept_seen WHERE what = 'unit' ORDER BY tag").fetchall()
+            == seen
+        )
+        assert status_json.to_json(views.watch(book)) == before
+        statuscache.rebuild(book)
+        count, lean = conn.execute("SELECT count(*), sum(lean) FROM status_cache").fetchone()
+        assert count == lean > 0
+        assert status_json.to_json(views.watch(book)) == before
