@@ -2,7 +2,8 @@
 
 - `status_cache`: each filter's status (`FilterStatus.to_row`), written inside every save
   (store.record -> `after_entry`) from the element cache (store/derived/elementcache.py) and
-  the entries since the last element change;
+  the entries since the last element change; the same fields also as plain columns
+  (`LEAN_COLUMNS`), which the watch list reads in one query (`lean_filters`);
 - `unit_cache`: each unit's fluid-care entries (`UnitClock.to_row`).
 
 One key per row. A row holds the key of its inputs and is used by a reader (the list now, an
@@ -28,7 +29,7 @@ give now; otherwise the reader computes the status from the entries, in memory. 
 Time-proof: a row holds what changes only with the entries and, for a filter, its
 `status_model.Clock`; what moves with the clock (element age, check-now, a service-life due given
 the age so far, reading-overdue, hot, the notes' words) is worked out at read time
-(`FilterStatus.from_row`, `units.unit_at`). tests/store/test_timeproof.py holds the kept rows
+(`FilterStatus.from_row`, `_from_lean`, `units.unit_at`). tests/store/test_timeproof.py holds the kept rows
 against a computation from the entries alone at several clocks.
 
 Reads never write. Rows are written by the write path (`after_entry`, in the save's
