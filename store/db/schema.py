@@ -577,6 +577,40 @@ CREATE TABLE kept_seen (
 ) WITHOUT ROWID;
 """
 
+# ---- version 7: the kept filter rows' watch-list fields as columns ------------------------------
+# What the watch list, `status`, `status --json` and the app's list read of a kept filter row,
+# as plain columns ahead of `data` (which keeps the whole row, FilterStatus.to_row, for the
+# readers that need all of it): one query gives them without decoding JSON, and what moves
+# with the clock is worked out from the `clock_*` columns (store/derived/statuscache.py
+# `lean_filters`). Times as format_utc writes them; `flags` the codes joined by spaces;
+# `spark` the packed float64s; `cold_*`, `life_*`, `clock_*` the fields of `data`'s `cold`,
+# `life` and `clock` (`note_codes`, `clock_due_ages`, `clock_hot` as JSON); `words`,
+# `words_check`: the notes' words, apart by U+001F (the second where a check-now status
+# says more, else NULL). `lean` 0: read the row through `data` alone. The
+# cache is derived, so it is made again empty (`sumpbook rebuild` or a refresh fills it); the
+# kept units and the element cache stay.
+V7 = """
+DROP TABLE status_cache;
+DELETE FROM kept_seen WHERE what = 'filter';
+CREATE TABLE status_cache (
+    filter TEXT PRIMARY KEY COLLATE NOCASE REFERENCES filters(tag) ON DELETE CASCADE,
+    key TEXT NOT NULL,
+    computed_utc TEXT NOT NULL,
+    newest_utc TEXT,
+    lean INTEGER NOT NULL DEFAULT 0,
+    unit, kind, gauge, dp_bar, dp_ref_bar, temp_c, indicator, reading_at, limit_bar,
+    bypass_bar, clean_bar, percent_of_limit, due_earliest, due_likely, due_latest,
+    bypass_earliest, bypass_likely, bypass_latest, basis, flags, readings_since_change,
+    changed_at, reference, cold_start_temp_c, cold_dp_at_start_bar, cold_bypass_bar,
+    cold_bypasses, cold_bypass_below_c, life_b10_h, life_b50_h, life_n_failed,
+    life_n_censored, life_pooled, spark, overdue_at, pace, next_reading, next_rule,
+    note_codes, words, words_check, clock_valid_from, clock_origin, clock_meter_at,
+    clock_meter_age_h, clock_meter_rate, clock_due_ages, clock_last_age_h, clock_state,
+    clock_check_after_h, clock_life_shape, clock_life_scale_h, clock_hot, clock_max_temp_c,
+    data TEXT NOT NULL
+);
+"""
+
 # One SQL script per schema version, in order. Never edit a released step: add one.
-MIGRATIONS: list[str] = [V1, V2, V3, V4, V5, V6]
+MIGRATIONS: list[str] = [V1, V2, V3, V4, V5, V6, V7]
 SCHEMA_VERSION = len(MIGRATIONS)

@@ -2,7 +2,8 @@
 
 - `status_cache`: each filter's status (`FilterStatus.to_row`), written inside every save
   (store.record -> `after_entry`) from the element cache (store/derived/elementcache.py) and
-  the entries since the last element change;
+  the entries since the last element change; the same fields also as plain columns
+  (`LEAN_COLUMNS`), which the watch list reads in one query (`lean_filters`);
 - `unit_cache`: each unit's fluid-care entries (`UnitClock.to_row`).
 
 One key per row. A row holds the key of its inputs and is used by a reader (the list now, an
@@ -28,7 +29,7 @@ give now; otherwise the reader computes the status from the entries, in memory. 
 Time-proof: a row holds what changes only with the entries and, for a filter, its
 `status_model.Clock`; what moves with the clock (element age, check-now, a service-life due given
 the age so far, reading-overdue, hot, the notes' words) is worked out at read time
-(`FilterStatus.from_row`, `units.unit_at`). tests/store/test_timeproof.py holds the kept rows
+(`FilterStatus.from_row`, `_from_lean`, `units.unit_at`). tests/store/test_timeproof.py holds the kept rows
 against a computation from the entries alone at several clocks.
 
 Reads never write. Rows are written by the write path (`after_entry`, in the save's
@@ -40,9 +41,12 @@ from __future__ import annotations
 
 import hashlib
 import json
+import math
+from array import array
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field, fields
 from datetime import datetime
+from functools import cached_property
 from typing import Any
 
 from store.base.timeutil import format_utc
@@ -67,6 +71,7 @@ from store.health.status_model import (
     LifeSummary,
     UnitClock,
     UnitStatus,
+    clock_parts,
 )
 from store.health.units import unit_at, unit_clock
 from store.ledger.entries import Entry, Reading, TopUp, Void
@@ -288,24 +293,37 @@ class Kept:
     key: str
     computed_utc: str
     newest_utc: str | None
-    data: str
+    data: str  # "" where the row was read by its columns (`cols`)
     seen: int
+    cols: tuple = ()  # its tag and LEAN_COLUMNS, where it was read by them and they hold it
 
     @property
     def pools(self) -> bool:
         return not self.key.endswith(".own")
 
 
-def _kept_rows(book: Book, only: Sequence[str] | None = None) -> dict[str, Kept]:
-    """The kept filter rows (`only` these tags, when a few are asked for)."""
+def _kept_rows(
+    book: Book, only: Sequence[str] | None = None, lean: bool = False
+) -> dict[str, Kept]:
+    """The kept filter rows (`only` these tags, when a few are asked for). `lean`: their
+    columns (`cols`, empty where the row must be read through `data`) instead of `data`."""
     seen = _seen(book, "filter")
-    sql, params = "SELECT filter, key, computed_utc, newest_utc, data FROM status_cache", []
+    what = _LEAN_SELECT if lean else "data"
+    sql, params = f"SELECT filter, key, computed_utc, newest_utc, {what} FROM status_cache", []
     if only is not None and len(only) <= 20:
         sql += f" WHERE filter IN ({', '.join('?' for _ in only)})"
         params = list(only)
+    rows = book.conn.execute(sql, params)
+    if lean:
+        return {
+            r[0].upper(): Kept(
+                r[1], r[2], r[3], "", seen.get(r[0].upper(), -1), r[:1] + r[5:] if r[4] else ()
+            )
+            for r in rows
+        }
     return {
         tag.upper(): Kept(key, computed, newest, data, seen.get(tag.upper(), -1))
-        for tag, key, computed, newest, data in book.conn.execute(sql, params)
+        for tag, key, computed, newest, data in rows
     }
 
 
@@ -355,10 +373,20 @@ def store_status(
     reg = reg or register(book)
     key = reg.filter_key(tag.upper(), pools)
     like = reg.like.get(tag.upper(), ()) if pools else ()
+    row = status.to_row()
+    lean = _lean(status, row)
     book.conn.execute(
-        "INSERT OR REPLACE INTO status_cache(filter, key, computed_utc, newest_utc, data) "
-        "VALUES (?, ?, ?, ?, ?)",
-        [tag, key, format_utc(now), _newest_input(book, tag, like), _encode(status)],
+        f"INSERT OR REPLACE INTO status_cache(filter, key, computed_utc, newest_utc, data, "
+        f"lean, {', '.join(LEAN_COLUMNS)}) VALUES (?, ?, ?, ?, ?, {_LEAN_MARKS})",
+        [
+            tag,
+            key,
+            format_utc(now),
+            _newest_input(book, tag, like),
+            json.dumps(row, ensure_ascii=False),
+            lean is not None,
+            *(lean or [None] * len(LEAN_COLUMNS)),
+        ],
     )
     _store_seen(book, "filter", [tag], seen)
 
@@ -409,6 +437,213 @@ def _encode(status: FilterStatus) -> str:
 
 def _decode(text: str, now: datetime) -> FilterStatus:
     return FilterStatus.from_row(json.loads(text), now)
+
+
+# ---- the kept rows' columns (schema version 7) ----------------------------------------------------
+# What the watch list reads of a kept filter row, as plain columns beside `data` (the whole
+# row): each is a piece of FilterStatus.to_row, so that `_from_lean` gives what `_decode` gives
+# (tests/store/test_lean_rows.py holds them together, and to a computation, at several clocks).
+LEAN_COLUMNS = (
+    "unit", "kind", "gauge", "dp_bar", "dp_ref_bar", "temp_c", "indicator", "reading_at",
+    "limit_bar", "bypass_bar", "clean_bar", "percent_of_limit", "due_earliest", "due_likely",
+    "due_latest", "bypass_earliest", "bypass_likely", "bypass_latest", "basis", "flags",
+    "readings_since_change", "changed_at", "reference", "cold_start_temp_c",
+    "cold_dp_at_start_bar", "cold_bypass_bar", "cold_bypasses", "cold_bypass_below_c",
+    "life_b10_h", "life_b50_h", "life_n_failed", "life_n_censored", "life_pooled", "spark",
+    "overdue_at", "pace", "next_reading", "next_rule", "note_codes", "words", "words_check",
+    "clock_valid_from", "clock_origin", "clock_meter_at", "clock_meter_age_h",
+    "clock_meter_rate", "clock_due_ages", "clock_last_age_h", "clock_state",
+    "clock_check_after_h", "clock_life_shape", "clock_life_scale_h", "clock_hot",
+    "clock_max_temp_c",
+)  # fmt: skip
+_LEAN_SELECT = "lean, " + ", ".join(LEAN_COLUMNS)
+_LEAN_MARKS = ", ".join("?" for _ in range(len(LEAN_COLUMNS) + 1))
+_NONE2, _NONE3, _NONE5 = (None,) * 2, (None,) * 3, (None,) * 5
+WORDS_APART = "\x1f"  # between the notes' words in `words` (no text of the book holds it)
+
+
+def _json(value: Any) -> str | None:
+    return None if value is None else json.dumps(value, ensure_ascii=False)
+
+
+def _lean(status: FilterStatus, row: dict[str, Any]) -> list[Any] | None:
+    """The columns of a kept row (`row`: status.to_row()), None where they would not hold
+    its values as they are (a number that is not a number: SQLite keeps NaN as NULL)."""
+    clock, due, bypass, cold, life = (
+        row["clock"], row["due"], row["bypass_due"], row["cold"], row["life"],
+    )  # fmt: skip
+    if clock is None:
+        return None
+    words = [n.text("") for n in status.note_codes]
+    check = [n.text("check-now") for n in status.note_codes]
+    meter = clock["meter"]
+    cols = [
+        row["unit"], row["kind"], row["gauge"], row["dp_bar"], row["dp_ref_bar"],
+        row["temp_c"], row["indicator"], row["reading_at"], row["limit_bar"],
+        row["bypass_bar"], row["clean_bar"], row["percent_of_limit"],
+        *((due["earliest"], due["likely"], due["latest"]) if due else _NONE3),
+        *((bypass["earliest"], bypass["likely"], bypass["latest"]) if bypass else _NONE3),
+        row["basis"], " ".join(row["flags"]), row["readings_since_change"], row["changed_at"],
+        row["reference"],
+        *((cold["start_temp_c"], cold["dp_at_start_bar"], cold["bypass_bar"],
+           cold["bypasses"], cold["bypass_below_c"]) if cold else _NONE5),
+        *((life["b10_h"], life["b50_h"], life["n_failed"], life["n_censored"],
+           life["pooled"]) if life else _NONE5),
+        array("d", status.spark).tobytes(), row["overdue_at"], row["pace"],
+        row["next_reading"], row["next_rule"], _json(row["note_codes"]),
+        WORDS_APART.join(words), None if check == words else WORDS_APART.join(check),
+        clock["valid_from"], clock["origin"], *(meter or _NONE3), _json(clock["due_ages"]),
+        clock["last_age_h"], clock["state"], clock["check_after_h"],
+        *(clock["life"] or _NONE2), _json(clock["hot"] or None), clock["max_temp_c"],
+    ]  # fmt: skip
+    if any(isinstance(v, float) and math.isnan(v) for v in cols):
+        return None
+    if any(" " in f for f in row["flags"]) or any(WORDS_APART in w for w in words + check):
+        return None
+    if any(not isinstance(v, str) for v in [*words, *check]):
+        return None
+    return cols
+
+
+_from_iso = datetime.fromisoformat
+_loads = json.loads
+_COMPARED = tuple(f.name for f in fields(FilterStatus) if f.compare)
+
+
+class _Lean(FilterStatus):
+    """A kept row's status as read by its columns: the fields the watch list, `status` and
+    `status --json` show, and those only a few readers need (the notes' codes, the sparkline)
+    decoded from the columns when first asked for. Equal to the same status decoded whole."""
+
+    @cached_property
+    def note_codes(self) -> tuple[Note, ...]:  # type: ignore[override]
+        return tuple([Note.from_row(n) for n in _loads(self.__dict__["_note_codes"])])
+
+    @cached_property
+    def spark(self) -> tuple[float, ...]:  # type: ignore[override]
+        points = array("d")
+        points.frombytes(self.__dict__["_spark"])
+        return tuple(points)
+
+    def __eq__(self, other: object) -> bool:
+        if not isinstance(other, FilterStatus):
+            return NotImplemented
+        return all(getattr(self, n) == getattr(other, n) for n in _COMPARED)
+
+    __hash__ = FilterStatus.__hash__
+
+
+def _words(text: str) -> list[str]:
+    return text.split(WORDS_APART) if text else []
+
+
+def _from_lean(cols: tuple, now: datetime) -> FilterStatus:
+    """A kept row read by its columns (its tag first), brought to `now`: what `_decode` gives
+    of its `data`, without decoding the whole row (the notes' words as kept, the clock's
+    parts worked out straight from the columns)."""
+    (
+        tag, unit, kind, gauge, dp_bar, dp_ref_bar, temp_c, indicator, reading_at, limit_bar,
+        bypass_bar, clean_bar, percent, due_e, due_l, due_x, bypass_e, bypass_l, bypass_x,
+        basis, flags, readings, changed_at, reference, cold_t, cold_dp, cold_bypass_bar,
+        cold_bypasses, cold_below, b10_h, b50_h, n_failed, n_censored, pooled, spark,
+        overdue_at, pace, next_reading, next_rule, note_codes, words, words_check,
+        valid_from, origin, meter_at, meter_age_h, meter_rate, due_ages, last_age_h, state,
+        check_after_h, life_shape, life_scale_h, hot, max_temp_c,
+    ) = cols  # fmt: skip
+    if due_ages is None:
+        clock = Clock(
+            None if valid_from is None else _from_iso(valid_from),
+            None if origin is None else _from_iso(origin),
+            None if meter_at is None else (_from_iso(meter_at), meter_age_h, meter_rate),
+            None,
+            last_age_h,
+            state,
+            check_after_h,
+            None if life_shape is None else (life_shape, life_scale_h),
+            () if hot is None else tuple([(_from_iso(at), t) for at, t in _loads(hot)]),
+            max_temp_c,
+        )
+    else:
+        clock = Clock.from_row(
+            {
+                "valid_from": valid_from,
+                "origin": origin,
+                "meter": None if meter_at is None else [meter_at, meter_age_h, meter_rate],
+                "due_ages": _loads(due_ages),
+                "last_age_h": last_age_h,
+                "state": state,
+                "check_after_h": check_after_h,
+                "life": None if life_shape is None else [life_shape, life_scale_h],
+                "hot": [] if hot is None else _loads(hot),
+                "max_temp_c": max_temp_c,
+            }
+        )
+    due = bypass_due = None
+    if due_ages is None and life_shape is None:  # (otherwise clock_parts dates them again)
+        if due_e is not None:
+            due = Due(_from_iso(due_e), _from_iso(due_l), _from_iso(due_x) if due_x else None)
+        if bypass_e is not None:
+            bypass_due = Due(
+                _from_iso(bypass_e), _from_iso(bypass_l), _from_iso(bypass_x) if bypass_x else None
+            )
+    elif due_ages is None and bypass_e is not None:
+        bypass_due = Due(
+            _from_iso(bypass_e), _from_iso(bypass_l), _from_iso(bypass_x) if bypass_x else None
+        )
+    said = _words(words)
+    kept_words = (said, said if words_check is None else _words(words_check))
+    overdue = None if overdue_at is None else _from_iso(overdue_at)
+    flags_then = tuple(flags.split()) if flags else ()
+    gauge = bool(gauge)
+    timed = clock_parts(flags_then, (), due, bypass_due, gauge, overdue, clock, now, kept_words)
+    status = _new(_Lean)
+    status.__dict__.update(
+        {
+            "filter": tag,
+            "unit": unit,
+            "kind": kind,
+            "gauge": gauge,
+            "dp_bar": dp_bar,
+            "dp_ref_bar": dp_ref_bar,
+            "temp_c": temp_c,
+            "indicator": indicator,
+            "reading_at": None if reading_at is None else _from_iso(reading_at),
+            "limit_bar": limit_bar,
+            "bypass_bar": bypass_bar,
+            "clean_bar": clean_bar,
+            "percent_of_limit": percent,
+            "due": timed["due"],
+            "bypass_due": timed["bypass_due"],
+            "basis": basis,
+            "state": timed["state"],
+            "flags": timed["flags"],
+            "notes": timed["notes"],
+            "readings_since_change": readings,
+            "changed_at": None if changed_at is None else _from_iso(changed_at),
+            "element_age_h": timed["element_age_h"],
+            "reference": reference,
+            "cold": None
+            if cold_t is None
+            else ColdStart(cold_t, cold_dp, cold_bypass_bar, bool(cold_bypasses), cold_below),
+            "life": None
+            if b10_h is None
+            else LifeSummary(b10_h, b50_h, n_failed, n_censored, bool(pooled)),
+            "history": (),  # no kept row has it
+            "overdue_at": overdue,
+            "pace": pace,
+            "next_reading": None if next_reading is None else _from_iso(next_reading),
+            "next_rule": next_rule,
+            "forecast": None,
+            "age_to_time": None,
+            "clock": clock,
+            "_note_codes": note_codes,
+            "_spark": spark,
+        }
+    )
+    return status
+
+
+_new = object.__new__
 
 
 def filter_view(book: Book, tag: str) -> tuple[FilterStatus, Elements]:
@@ -569,7 +804,7 @@ def watch_filters(
     are the plant's contexts built (they resolve each fluid's curve, which may load scipy),
     so the list read from rows that hold loads none of the fitting maths
     (tests/cli/test_lean_path.py)."""
-    kept = kept_filters(book, [p.tag.upper() for p in positions], now, reg=reg)
+    kept = lean_filters(book, [p.tag.upper() for p in positions], now, reg=reg)
     result: list[FilterStatus] = []
     ctxs: dict[str, FilterContext] | None = None
     for position in positions:
@@ -600,6 +835,35 @@ def kept_filters(
         row = check.holds(tag, now, audit)
         if row is not None:
             out[tag] = _decode(row.data, now)
+    return out
+
+
+def lean_filters(
+    book: Book, tags: Iterable[str], now: datetime, reg: Register | None = None
+) -> dict[str, FilterStatus]:
+    """`kept_filters(book, tags, now, reg=reg)` (the rows that hold now, not an audit), read
+    by their columns in one query: no row's `data` decoded but where its columns cannot
+    stand for it (`lean` 0)."""
+    tags = list(tags)
+    rows = _kept_rows(book, tags, lean=True)
+    check = Check(book, rows, reg)
+    out, whole = {}, []
+    for tag in tags:
+        row = check.holds(tag, now)
+        if row is None:
+            continue
+        if row.cols:
+            out[tag] = _from_lean(row.cols, now)
+        else:
+            whole.append(tag)
+    for i in range(0, len(whole), 500):
+        part = whole[i : i + 500]
+        for tag, data in book.conn.execute(
+            f"SELECT upper(filter), data FROM status_cache WHERE filter IN "
+            f"({', '.join('?' for _ in part)})",
+            part,
+        ):
+            out[tag] = _decode(data, now)
     return out
 
 

@@ -222,9 +222,11 @@ def clock_parts(
     overdue_at: datetime | None,
     clock: Clock,
     now: datetime,
+    words: tuple[Sequence[str], Sequence[str]] | None = None,
 ) -> dict[str, Any]:
     """The fields of a status that `at_time` sets, from the ones it reads (a kept row is
-    decoded straight into them): the notes' words among them."""
+    decoded straight into them): the notes' words among them. `words`: the words of
+    `note_codes` as already written out, (for any state but check-now, for check-now)."""
     age_now = clock.age_h(now)
     state = clock.state
     time_at = partial(clock.time_at, now=now)
@@ -242,7 +244,10 @@ def clock_parts(
     if not gauge and due is None and state in ("no-readings", "too-few-readings"):
         state = "indicator-only"
     flags = [f for f in flags_then if f not in CLOCK_FLAGS]
-    notes = [note.text(state) for note in note_codes]
+    if words is None:
+        notes = [note.text(state) for note in note_codes]
+    else:
+        notes = list(words[state == "check-now"])
     if overdue_at and now > overdue_at:
         flags.append("reading-overdue")
     recent_hot = [temp_c for at, temp_c in clock.hot if now - at <= HOT_LOOKBACK]
