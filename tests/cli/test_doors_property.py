@@ -48,6 +48,7 @@ def _report_counts():
     for door in sorted(TRIED):
         print(f"door {door}: {TRIED[door]} tried, {REFUSED[door]} refused")
 
+
 # Values a hostile or careless hand might type: numbers at and past every edge, words, escapes.
 NUMBERS = st.one_of(
     st.floats(min_value=0.05, max_value=3.0).map(lambda x: f"{x:.2f}"),  # plausible values
