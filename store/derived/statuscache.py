@@ -165,7 +165,36 @@ def _table(book: Book, sql: str) -> tuple[list[str], list[tuple]]:
     return [d[0] for d in cur.description], cur.fetchall()
 
 
+# What tells that the register rows a `Register` was read from may have moved, in one query
+# that reads no table through: the newest line of the register history (every change of a
+# register row is logged there, by the file's own triggers for a changed field and by
+# sumpbook for an added record and the shift pattern; with its id, a fresh uuid, so that a
+# line rolled back and another written at the same rowid still differs), each table's row
+# count and highest rowid (a row added or removed outside sumpbook), and the connection's
+# data_version (it moves whenever another connection, another program, commits anything).
+_REGISTER_STAMP = (
+    "SELECT (SELECT rowid || ' ' || id FROM register_log ORDER BY rowid DESC LIMIT 1), "
+    + ", ".join(
+        f"(SELECT count(*) || ' ' || coalesce(max(rowid), 0) FROM {table})"
+        for table in ("filters", "units", "fluids", "shifts")
+    )
+    + ", data_version FROM pragma_data_version"
+)
+
+
 def register(book: Book) -> Register:
+    """The register rows the statuses read: kept on the book between calls (saves one after
+    another read it once) and read again once its stamp (`_REGISTER_STAMP`) moved."""
+    stamp = book.conn.execute(_REGISTER_STAMP).fetchone()
+    kept = book.kept.get("register")
+    if kept is not None and kept[0] == stamp:
+        return kept[1]
+    reg = _read_register(book)
+    book.kept["register"] = (stamp, reg)
+    return reg
+
+
+def _read_register(book: Book) -> Register:
     """The register rows the statuses read (a few queries, no contexts, no digest yet)."""
     shifts = book.conn.execute("SELECT * FROM shifts ORDER BY position, starts").fetchall()
     fcols, fluids = _table(book, "SELECT * FROM fluids")
