@@ -403,14 +403,13 @@ def _newest_input(book: Book, tag: str, like: Sequence[str]) -> str | None:
     """The newest date among a filter's inputs: its entries, the voids of them, and the
     element changes of the like positions it leans on (and their voids)."""
     conn = book.conn
+    voids = _voids(book)
+    tag = tag.upper()
     dates = [
         conn.execute("SELECT max(at_utc) FROM entries WHERE filter = ?", [tag]).fetchone()[0],
-        conn.execute(
-            "SELECT max(v.at_utc) FROM entries v INDEXED BY one_void_per_entry "
-            "CROSS JOIN entries e ON e.id = v.voids WHERE v.voids IS NOT NULL AND e.filter = ?",
-            [tag],
-        ).fetchone()[0],
+        voids.any.get(tag),
     ]
+    dates += [voids.changes.get(t.upper()) for t in like]
     for i in range(0, len(like), 500):
         part = list(like[i : i + 500])
         marks = ", ".join("?" for _ in part)
@@ -421,15 +420,47 @@ def _newest_input(book: Book, tag: str, like: Sequence[str]) -> str | None:
                 part,
             ).fetchone()[0]
         )
-        dates.append(
-            conn.execute(
-                "SELECT max(v.at_utc) FROM entries v INDEXED BY one_void_per_entry "
-                "CROSS JOIN entries e ON e.id = v.voids WHERE v.voids IS NOT NULL "
-                f"AND e.kind = 'change' AND e.filter IN ({marks})",
-                part,
-            ).fetchone()[0]
-        )
     return max((d for d in dates if d), default=None)
+
+
+@dataclass(frozen=True)
+class _Voids:
+    """The newest void of each position's entries (`any`) and of its element changes
+    (`changes`), by upper-case tag: the voids are few and each save would otherwise join
+    them all with the entries they void, twice."""
+
+    any: dict[str, str]
+    changes: dict[str, str]
+
+
+# Entries are append-only (the schema refuses UPDATE, DELETE and REPLACE), so the voids grow
+# only: their count and newest rowid say whether one was added since. The newest void's own
+# fields too, for a void rolled back and another written at the same rowid (the book also
+# forgets what it kept when its transaction rolls back: `Book.atomic`).
+_VOIDS_STAMP = (
+    "SELECT n, r, (SELECT id || ' ' || voids || ' ' || at_utc FROM entries WHERE rowid = r) "
+    "FROM (SELECT count(*) AS n, max(rowid) AS r FROM entries INDEXED BY one_void_per_entry "
+    "WHERE voids IS NOT NULL)"
+)
+
+
+def _voids(book: Book) -> _Voids:
+    """The voids' newest dates by position, kept on the book while no void is added."""
+    stamp = book.conn.execute(_VOIDS_STAMP).fetchone()
+    kept = book.kept.get("voids")
+    if kept is not None and kept[0] == stamp:
+        return kept[1]
+    found = _Voids({}, {})
+    for tag, kind, newest in book.conn.execute(
+        "SELECT upper(e.filter), e.kind = 'change', max(v.at_utc) "
+        "FROM entries v INDEXED BY one_void_per_entry CROSS JOIN entries e ON e.id = v.voids "
+        "WHERE v.voids IS NOT NULL AND e.filter IS NOT NULL GROUP BY 1, 2"
+    ):
+        found.any[tag] = max(found.any.get(tag, newest), newest)
+        if kind:
+            found.changes[tag] = newest
+    book.kept["voids"] = (stamp, found)
+    return found
 
 
 def _encode(status: FilterStatus) -> str:
