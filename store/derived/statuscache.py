@@ -527,54 +527,109 @@ def move_seen_on(book: Book, reg: Register | None = None) -> None:
     """Inside a save's transaction, after its rows were kept: every kept row whose inputs the
     entries written since it was checked left as they were is checked up to the newest entry
     now (so that a reader compares only what was written after). Rows whose inputs moved keep
-    their rowid, and a reader computes them."""
+    their rowid, and a reader computes them.
+
+    After a save nearly every row stands at one rowid, the newest entry before the save
+    (`last`): the few positions and units the entries written since touch are worked out from
+    those entries, and every other row at `last` is moved on by one statement that leaves
+    them out. Rows further behind (their inputs moved earlier and they wait for a refresh)
+    are read and checked one by one, each against what was written after its own rowid: the
+    same rule for every row, whichever way it is applied."""
+    conn = book.conn
     newest = max_rowid(book)
-    filters, units = _seen(book, "filter"), _seen(book, "unit")
-    behind = [s for s in (*filters.values(), *units.values()) if s < newest]
-    if not behind:
+    oldest, last = conn.execute(
+        "SELECT min(seen_rowid), max(seen_rowid) FROM kept_seen WHERE seen_rowid < ?", [newest]
+    ).fetchone()
+    if last is None:
         return
-    moved = _moved_since(book, min(behind))
+    older = []
+    if oldest < last:
+        older = conn.execute(
+            "SELECT what, upper(tag), seen_rowid FROM kept_seen WHERE seen_rowid < ?", [last]
+        ).fetchall()
+    moved = _moved_since(book, min((seen for _, _, seen in older), default=last))
     reg = reg or register(book)
-    pools: dict[str, bool] = {}
-    if moved.changes:  # (which rows lean on like positions matters only after a change)
-        pools = {
-            tag.upper(): not key.endswith(".own")
-            for tag, key in book.conn.execute("SELECT filter, key FROM status_cache")
-        }
-    good = [
-        tag
-        for tag, seen in filters.items()
-        if seen < newest
-        and not moved.filter_moved(tag, seen, pools.get(tag, True), reg.like.get(tag, ()))
-    ]
-    touched = list(moved.unit_any)[:500]  # a unit's first entry matters only where written
-    firsts = dict(
+    units = set(moved.unit_events) | set(moved.unit_hot) | set(moved.unit_any)
+    firsts = _firsts(book, [u for u in units if u in moved.unit_any])
+
+    def unit_moved(tag: str, seen: int) -> bool:
+        return tag in units and moved.unit_moved(
+            tag, seen, reg.unit_limits.get(tag), firsts.get(tag)
+        )
+
+    # the rows at `last`: those the entries since moved, and one statement for the others
+    touched = {t for t, r in moved.own.items() if r > last}
+    groups = {reg.like[t] for t, r in moved.changes.items() if r > last and t in reg.like}
+    leaning = {t for group in groups for t in group} - touched
+    touched |= {t for t, pools in _pools(book, leaning).items() if pools}
+    left = {"filter": sorted(touched), "unit": sorted(u for u in units if unit_moved(u, last))}
+    sql, params = "UPDATE kept_seen SET seen_rowid = ? WHERE seen_rowid = ?", [newest, last]
+    for what, tags in left.items():
+        if tags:
+            tags_sql, tags_params = _among(tags)
+            sql += f" AND NOT (what = '{what}' AND tag IN {tags_sql})"
+            params += tags_params
+    conn.execute(sql, params)
+    if not older:
+        return
+    # the rows further behind, one by one
+    pools = _pools(book, {t for what, t, _ in older if what == "filter"}) if moved.changes else {}
+    good = {
+        "filter": [
+            t
+            for what, t, seen in older
+            if what == "filter"
+            and not moved.filter_moved(t, seen, pools.get(t, True), reg.like.get(t, ()))
+        ],
+        "unit": [t for what, t, seen in older if what == "unit" and not unit_moved(t, seen)],
+    }
+    for what, tags in good.items():
+        if tags:
+            tags_sql, tags_params = _among(tags)
+            conn.execute(
+                "UPDATE kept_seen SET seen_rowid = ? WHERE what = ? AND seen_rowid < ? "
+                f"AND tag IN {tags_sql}",
+                [newest, what, last, *tags_params],
+            )
+
+
+def _among(tags: Sequence[str]) -> tuple[str, list[str]]:
+    """The SQL of `IN` a list of tags and its parameters: placeholders for a few (a save
+    touches one or two), one JSON array for many (no limit on parameters)."""
+    if len(tags) <= 20:
+        return f"({', '.join('?' for _ in tags)})", list(tags)
+    return "(SELECT value FROM json_each(?))", [json.dumps(list(tags))]
+
+
+def _pools(book: Book, tags: Iterable[str]) -> dict[str, bool]:
+    """Whether each kept row of `tags` (upper case) leans on like positions' lives (True
+    where no row is kept, as a reader would take it)."""
+    tags = sorted(tags)
+    if not tags:
+        return {}
+    sql, params = _among(tags)
+    found = {
+        tag.upper(): not key.endswith(".own")
+        for tag, key in book.conn.execute(
+            f"SELECT filter, key FROM status_cache WHERE filter IN {sql}", params
+        )
+    }
+    return {tag: found.get(tag, True) for tag in tags}
+
+
+def _firsts(book: Book, units: Sequence[str]) -> dict[str, str | None]:
+    """The first entry's time each kept unit row holds, by upper-case tag (none kept: left
+    out)."""
+    if not units:
+        return {}
+    sql, params = _among(sorted(units))
+    return dict(
         book.conn.execute(
             "SELECT upper(unit), json_extract(data, '$.first_at') FROM unit_cache "
-            f"WHERE unit IN ({', '.join('?' for _ in touched)})",
-            touched,
+            f"WHERE unit IN {sql}",
+            params,
         )
     )
-    if len(moved.unit_any) > len(touched):
-        firsts = dict(
-            book.conn.execute(
-                "SELECT upper(unit), json_extract(data, '$.first_at') FROM unit_cache"
-            )
-        )
-    good_units = [
-        tag
-        for tag, seen in units.items()
-        if seen < newest
-        and not moved.unit_moved(tag, seen, reg.unit_limits.get(tag), firsts.get(tag))
-    ]
-    for what, tags in (("filter", good), ("unit", good_units)):
-        for i in range(0, len(tags), 500):
-            part = tags[i : i + 500]
-            book.conn.execute(
-                f"UPDATE kept_seen SET seen_rowid = ? WHERE what = ? AND tag IN "
-                f"({', '.join('?' for _ in part)})",
-                [newest, what, *part],
-            )
 
 
 def _inputs_seen(book: Book) -> tuple[int, int]:
