@@ -11,7 +11,7 @@ from contextlib import contextmanager
 from dataclasses import dataclass, field
 from datetime import datetime, tzinfo
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 from store.base.errors import BookError, NotALogbook
 from store.base.timeutil import parse_utc, utc_now, zone
@@ -57,6 +57,10 @@ class Book:
     unreadable: dict[str, str] = field(default_factory=dict)
     inode: tuple[int, int] | None = None  # (device, inode) of the file when it was opened
     clock: Callable[[], datetime] = utc_now  # this run's clock (store.base.session)
+    # What the derived layers keep between calls on this connection, each under its own name
+    # with the stamp it was read at; its owner checks the stamp before every use
+    # (store.derived.statuscache.register: the register rows the keys are made of).
+    kept: dict[str, Any] = field(default_factory=dict, repr=False, compare=False)
     _db: sqlite_utils.Database | None = field(default=None, repr=False, compare=False)
 
     @property
@@ -102,6 +106,7 @@ class Book:
             yield
             conn.execute("COMMIT")
         except BaseException as exc:
+            self.kept.clear()  # read inside what is now undone
             if conn.in_transaction:  # SQLite may have rolled back already (e.g. disk full)
                 try:
                     conn.execute("ROLLBACK")

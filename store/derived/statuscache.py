@@ -170,7 +170,36 @@ def _table(book: Book, sql: str) -> tuple[list[str], list[tuple]]:
     return [d[0] for d in cur.description], cur.fetchall()
 
 
+# What tells that the register rows a `Register` was read from may have moved, in one query
+# that reads no table through: the newest line of the register history (every change of a
+# register row is logged there, by the file's own triggers for a changed field and by
+# sumpbook for an added record and the shift pattern; with its id, a fresh uuid, so that a
+# line rolled back and another written at the same rowid still differs), each table's row
+# count and highest rowid (a row added or removed outside sumpbook), and the connection's
+# data_version (it moves whenever another connection, another program, commits anything).
+_REGISTER_STAMP = (
+    "SELECT (SELECT rowid || ' ' || id FROM register_log ORDER BY rowid DESC LIMIT 1), "
+    + ", ".join(
+        f"(SELECT count(*) || ' ' || coalesce(max(rowid), 0) FROM {table})"
+        for table in ("filters", "units", "fluids", "shifts")
+    )
+    + ", data_version FROM pragma_data_version"
+)
+
+
 def register(book: Book) -> Register:
+    """The register rows the statuses read: kept on the book between calls (saves one after
+    another read it once) and read again once its stamp (`_REGISTER_STAMP`) moved."""
+    stamp = book.conn.execute(_REGISTER_STAMP).fetchone()
+    kept = book.kept.get("register")
+    if kept is not None and kept[0] == stamp:
+        return kept[1]
+    reg = _read_register(book)
+    book.kept["register"] = (stamp, reg)
+    return reg
+
+
+def _read_register(book: Book) -> Register:
     """The register rows the statuses read (a few queries, no contexts, no digest yet)."""
     shifts = book.conn.execute("SELECT * FROM shifts ORDER BY position, starts").fetchall()
     fcols, fluids = _table(book, "SELECT * FROM fluids")
@@ -402,14 +431,13 @@ def _newest_input(book: Book, tag: str, like: Sequence[str]) -> str | None:
     """The newest date among a filter's inputs: its entries, the voids of them, and the
     element changes of the like positions it leans on (and their voids)."""
     conn = book.conn
+    voids = _voids(book)
+    tag = tag.upper()
     dates = [
         conn.execute("SELECT max(at_utc) FROM entries WHERE filter = ?", [tag]).fetchone()[0],
-        conn.execute(
-            "SELECT max(v.at_utc) FROM entries v INDEXED BY one_void_per_entry "
-            "CROSS JOIN entries e ON e.id = v.voids WHERE v.voids IS NOT NULL AND e.filter = ?",
-            [tag],
-        ).fetchone()[0],
+        voids.any.get(tag),
     ]
+    dates += [voids.changes.get(t.upper()) for t in like]
     for i in range(0, len(like), 500):
         part = list(like[i : i + 500])
         marks = ", ".join("?" for _ in part)
@@ -420,15 +448,47 @@ def _newest_input(book: Book, tag: str, like: Sequence[str]) -> str | None:
                 part,
             ).fetchone()[0]
         )
-        dates.append(
-            conn.execute(
-                "SELECT max(v.at_utc) FROM entries v INDEXED BY one_void_per_entry "
-                "CROSS JOIN entries e ON e.id = v.voids WHERE v.voids IS NOT NULL "
-                f"AND e.kind = 'change' AND e.filter IN ({marks})",
-                part,
-            ).fetchone()[0]
-        )
     return max((d for d in dates if d), default=None)
+
+
+@dataclass(frozen=True)
+class _Voids:
+    """The newest void of each position's entries (`any`) and of its element changes
+    (`changes`), by upper-case tag: the voids are few and each save would otherwise join
+    them all with the entries they void, twice."""
+
+    any: dict[str, str]
+    changes: dict[str, str]
+
+
+# Entries are append-only (the schema refuses UPDATE, DELETE and REPLACE), so the voids grow
+# only: their count and newest rowid say whether one was added since. The newest void's own
+# fields too, for a void rolled back and another written at the same rowid (the book also
+# forgets what it kept when its transaction rolls back: `Book.atomic`).
+_VOIDS_STAMP = (
+    "SELECT n, r, (SELECT id || ' ' || voids || ' ' || at_utc FROM entries WHERE rowid = r) "
+    "FROM (SELECT count(*) AS n, max(rowid) AS r FROM entries INDEXED BY one_void_per_entry "
+    "WHERE voids IS NOT NULL)"
+)
+
+
+def _voids(book: Book) -> _Voids:
+    """The voids' newest dates by position, kept on the book while no void is added."""
+    stamp = book.conn.execute(_VOIDS_STAMP).fetchone()
+    kept = book.kept.get("voids")
+    if kept is not None and kept[0] == stamp:
+        return kept[1]
+    found = _Voids({}, {})
+    for tag, kind, newest in book.conn.execute(
+        "SELECT upper(e.filter), e.kind = 'change', max(v.at_utc) "
+        "FROM entries v INDEXED BY one_void_per_entry CROSS JOIN entries e ON e.id = v.voids "
+        "WHERE v.voids IS NOT NULL AND e.filter IS NOT NULL GROUP BY 1, 2"
+    ):
+        found.any[tag] = max(found.any.get(tag, newest), newest)
+        if kind:
+            found.changes[tag] = newest
+    book.kept["voids"] = (stamp, found)
+    return found
 
 
 def _encode(status: FilterStatus) -> str:
@@ -702,54 +762,109 @@ def move_seen_on(book: Book, reg: Register | None = None) -> None:
     """Inside a save's transaction, after its rows were kept: every kept row whose inputs the
     entries written since it was checked left as they were is checked up to the newest entry
     now (so that a reader compares only what was written after). Rows whose inputs moved keep
-    their rowid, and a reader computes them."""
+    their rowid, and a reader computes them.
+
+    After a save nearly every row stands at one rowid, the newest entry before the save
+    (`last`): the few positions and units the entries written since touch are worked out from
+    those entries, and every other row at `last` is moved on by one statement that leaves
+    them out. Rows further behind (their inputs moved earlier and they wait for a refresh)
+    are read and checked one by one, each against what was written after its own rowid: the
+    same rule for every row, whichever way it is applied."""
+    conn = book.conn
     newest = max_rowid(book)
-    filters, units = _seen(book, "filter"), _seen(book, "unit")
-    behind = [s for s in (*filters.values(), *units.values()) if s < newest]
-    if not behind:
+    oldest, last = conn.execute(
+        "SELECT min(seen_rowid), max(seen_rowid) FROM kept_seen WHERE seen_rowid < ?", [newest]
+    ).fetchone()
+    if last is None:
         return
-    moved = _moved_since(book, min(behind))
+    older = []
+    if oldest < last:
+        older = conn.execute(
+            "SELECT what, upper(tag), seen_rowid FROM kept_seen WHERE seen_rowid < ?", [last]
+        ).fetchall()
+    moved = _moved_since(book, min((seen for _, _, seen in older), default=last))
     reg = reg or register(book)
-    pools: dict[str, bool] = {}
-    if moved.changes:  # (which rows lean on like positions matters only after a change)
-        pools = {
-            tag.upper(): not key.endswith(".own")
-            for tag, key in book.conn.execute("SELECT filter, key FROM status_cache")
-        }
-    good = [
-        tag
-        for tag, seen in filters.items()
-        if seen < newest
-        and not moved.filter_moved(tag, seen, pools.get(tag, True), reg.like.get(tag, ()))
-    ]
-    touched = list(moved.unit_any)[:500]  # a unit's first entry matters only where written
-    firsts = dict(
+    units = set(moved.unit_events) | set(moved.unit_hot) | set(moved.unit_any)
+    firsts = _firsts(book, [u for u in units if u in moved.unit_any])
+
+    def unit_moved(tag: str, seen: int) -> bool:
+        return tag in units and moved.unit_moved(
+            tag, seen, reg.unit_limits.get(tag), firsts.get(tag)
+        )
+
+    # the rows at `last`: those the entries since moved, and one statement for the others
+    touched = {t for t, r in moved.own.items() if r > last}
+    groups = {reg.like[t] for t, r in moved.changes.items() if r > last and t in reg.like}
+    leaning = {t for group in groups for t in group} - touched
+    touched |= {t for t, pools in _pools(book, leaning).items() if pools}
+    left = {"filter": sorted(touched), "unit": sorted(u for u in units if unit_moved(u, last))}
+    sql, params = "UPDATE kept_seen SET seen_rowid = ? WHERE seen_rowid = ?", [newest, last]
+    for what, tags in left.items():
+        if tags:
+            tags_sql, tags_params = _among(tags)
+            sql += f" AND NOT (what = '{what}' AND tag IN {tags_sql})"
+            params += tags_params
+    conn.execute(sql, params)
+    if not older:
+        return
+    # the rows further behind, one by one
+    pools = _pools(book, {t for what, t, _ in older if what == "filter"}) if moved.changes else {}
+    good = {
+        "filter": [
+            t
+            for what, t, seen in older
+            if what == "filter"
+            and not moved.filter_moved(t, seen, pools.get(t, True), reg.like.get(t, ()))
+        ],
+        "unit": [t for what, t, seen in older if what == "unit" and not unit_moved(t, seen)],
+    }
+    for what, tags in good.items():
+        if tags:
+            tags_sql, tags_params = _among(tags)
+            conn.execute(
+                "UPDATE kept_seen SET seen_rowid = ? WHERE what = ? AND seen_rowid < ? "
+                f"AND tag IN {tags_sql}",
+                [newest, what, last, *tags_params],
+            )
+
+
+def _among(tags: Sequence[str]) -> tuple[str, list[str]]:
+    """The SQL of `IN` a list of tags and its parameters: placeholders for a few (a save
+    touches one or two), one JSON array for many (no limit on parameters)."""
+    if len(tags) <= 20:
+        return f"({', '.join('?' for _ in tags)})", list(tags)
+    return "(SELECT value FROM json_each(?))", [json.dumps(list(tags))]
+
+
+def _pools(book: Book, tags: Iterable[str]) -> dict[str, bool]:
+    """Whether each kept row of `tags` (upper case) leans on like positions' lives (True
+    where no row is kept, as a reader would take it)."""
+    tags = sorted(tags)
+    if not tags:
+        return {}
+    sql, params = _among(tags)
+    found = {
+        tag.upper(): not key.endswith(".own")
+        for tag, key in book.conn.execute(
+            f"SELECT filter, key FROM status_cache WHERE filter IN {sql}", params
+        )
+    }
+    return {tag: found.get(tag, True) for tag in tags}
+
+
+def _firsts(book: Book, units: Sequence[str]) -> dict[str, str | None]:
+    """The first entry's time each kept unit row holds, by upper-case tag (none kept: left
+    out)."""
+    if not units:
+        return {}
+    sql, params = _among(sorted(units))
+    return dict(
         book.conn.execute(
             "SELECT upper(unit), json_extract(data, '$.first_at') FROM unit_cache "
-            f"WHERE unit IN ({', '.join('?' for _ in touched)})",
-            touched,
+            f"WHERE unit IN {sql}",
+            params,
         )
     )
-    if len(moved.unit_any) > len(touched):
-        firsts = dict(
-            book.conn.execute(
-                "SELECT upper(unit), json_extract(data, '$.first_at') FROM unit_cache"
-            )
-        )
-    good_units = [
-        tag
-        for tag, seen in units.items()
-        if seen < newest
-        and not moved.unit_moved(tag, seen, reg.unit_limits.get(tag), firsts.get(tag))
-    ]
-    for what, tags in (("filter", good), ("unit", good_units)):
-        for i in range(0, len(tags), 500):
-            part = tags[i : i + 500]
-            book.conn.execute(
-                f"UPDATE kept_seen SET seen_rowid = ? WHERE what = ? AND tag IN "
-                f"({', '.join('?' for _ in part)})",
-                [newest, what, *part],
-            )
 
 
 def _inputs_seen(book: Book) -> tuple[int, int]:

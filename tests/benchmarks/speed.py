@@ -14,7 +14,9 @@ Figures (median of several runs where it is cheap):
    shell's own CSV export of the same rows (target ≤ 3). Needs Debian's `sqlite3` package
    (`apt-get install sqlite3`); without the shell this ratio is skipped, and said so.
 4. Saving one reading, the prediction update included (journal.log on a copy of the book,
-   with its commit): median and 99th percentile in ms.
+   with its commit): median and 99th percentile in ms. `--only-saves`: this figure alone as
+   the CPU of each save (`time.process_time`), in fresh processes, in turns with the code of
+   `--compare DIR` on its own book (`--compare-book FILE`, e.g. older code's schema).
 5. Peak memory (max RSS) of the app process on the big book (target < 250 MB).
 6. Scrolling the watch list and opening a filter sheet, driven with Textual's Pilot: ms per
    action (target < 100 ms).
@@ -390,6 +392,84 @@ def saves(path: Path, count: int) -> list[float]:
                 record.log(book, reading)
                 times.append(1000 * (time.perf_counter() - t))
         return times
+
+
+# `--only-saves`: run in a fresh process of each code (its folder first on sys.path), so
+# that older code without this script can be measured: the saves of `saves` above, each
+# timed as the process's CPU (time.process_time) and wall time.
+_SAVES_CHILD = """
+import json, random, shutil, sys, tempfile, time
+from datetime import timedelta
+from pathlib import Path
+from store import record
+from store.db.book import open_book
+from store.ledger.entries import Reading
+from store.ledger.register import FilterPosition, Technician, list_all
+path, count = Path(sys.argv[1]), int(sys.argv[2])
+cpu, wall = [], []
+with tempfile.TemporaryDirectory(dir=path.parent) as folder:
+    copy = Path(folder) / "saves.db"
+    for suffix in ("", "-wal"):
+        if Path(str(path) + suffix).exists():
+            shutil.copyfile(str(path) + suffix, str(copy) + suffix)
+    with open_book(copy, create=False) as book:
+        book.ensure_checked()
+        record.preload()
+        tech = list_all(book, Technician)[0].tag
+        filters = [f for f in list_all(book, FilterPosition) if f.gauge]
+        rng = random.Random(4)
+        now = book.now()
+        for i in range(count):
+            pos = rng.choice(filters)
+            reading = Reading(filter=pos.tag, dp_bar=round(rng.uniform(0.3, 0.9) * pos.limit_bar, 2),
+                              temp_c=50.0, by=tech, at=now - timedelta(minutes=count - i))
+            c, t = time.process_time(), time.perf_counter()
+            record.log(book, reading)
+            cpu.append(1000 * (time.process_time() - c))
+            wall.append(1000 * (time.perf_counter() - t))
+print("SPEED " + json.dumps({"cpu_ms": cpu, "wall_ms": wall}))
+"""
+
+
+def save_cpu(books: dict[str, tuple[Path, Path]], env: dict[str, str], runs: int,
+             count: int) -> dict[str, list[dict]]:  # fmt: skip
+    """Figure 4 as CPU: for each code (name -> (its checkout, its book as that code keeps
+    it)), `runs` fresh processes, in turns, each saving `count` readings on a fresh copy."""
+    out: dict[str, list[dict]] = {name: [] for name in books}
+    for _ in range(runs):
+        for name, (root, book) in books.items():
+            python = root / ".venv" / "bin" / "python"
+            cmd = [str(python if python.exists() else sys.executable), "-c", _SAVES_CHILD,
+                   str(book), str(count)]  # fmt: skip
+            done = subprocess.run(cmd, env={**env, "PYTHONPATH": str(root)}, cwd=root,
+                                  capture_output=True, text=True, check=True)  # fmt: skip
+            line = [x for x in done.stdout.splitlines() if x.startswith("SPEED ")][-1]
+            out[name].append(json.loads(line[6:]))
+    return out
+
+
+def save_cpu_lines(figures: dict[str, list[dict]], runs: int, count: int) -> list[str]:
+    """The medians per run (the first save of each left out: the first write's work), and
+    each save's least CPU over the runs, compared save by save with the first code's."""
+    names = list(figures)
+    best = {n: [min(r["cpu_ms"][i] for r in figures[n]) for i in range(1, count)] for n in names}
+    lines = [
+        f"Saving one reading (figure 4 as CPU; {runs} processes of each code in turns, "
+        f"{count - 1} saves each after the first):",
+        "",
+        "| code | CPU per save, median of each run (ms) | median of runs | wall median | "
+        "least of the runs, median save | its sum | save by save ÷ first code |",
+        "|---|---|---|---|---|---|---|",
+    ]
+    for n in names:
+        per_run = [_med(r["cpu_ms"][1:]) for r in figures[n]]
+        wall = _med([_med(r["wall_ms"][1:]) for r in figures[n]])
+        ratio = _med([b / a for a, b in zip(best[names[0]], best[n], strict=True)])
+        lines.append(
+            f"| {n} | {', '.join(f'{v:.1f}' for v in per_run)} | {_med(per_run):.1f} | "
+            f"{wall:.1f} | {_med(best[n]):.1f} | {sum(best[n]):.0f} | {ratio:.3f} |"
+        )
+    return lines
 
 
 def store_calls(path: Path, repeat: int = 5) -> dict[str, float]:
@@ -892,6 +972,14 @@ def main(argv: list[str] | None = None) -> int:
     )  # fmt: skip
     parser.add_argument("--no-later", action="store_true", help="leave figure 7 out")
     parser.add_argument(
+        "--only-saves", action="store_true",
+        help="figure 4 alone, as CPU per save, in turns with --compare DIR on --compare-book",
+    )  # fmt: skip
+    parser.add_argument(
+        "--compare-book", type=Path, metavar="FILE",
+        help="--only-saves: the book as the compared code keeps it (default: PATH)",
+    )  # fmt: skip
+    parser.add_argument(
         "--only-app",
         action="store_true",
         help="figures 1 and 6 alone (the app and the bare app, in turns)",
@@ -925,6 +1013,19 @@ def main(argv: list[str] | None = None) -> int:
     roots = {"this code": ROOT}
     if args.compare:
         roots[f"{args.compare.name} (compared)"] = args.compare.resolve()
+    if args.only_saves:
+        books = {"this code": (ROOT, path)}
+        if args.compare:
+            books[f"{args.compare.name} (compared)"] = (
+                args.compare.resolve(),
+                (args.compare_book or path).resolve(),
+            )
+        count = max(args.saves, 2)
+        text = "\n".join(save_cpu_lines(save_cpu(books, env, args.runs, count), args.runs, count))
+        args.out.write_text(text + "\n", encoding="utf-8")
+        print(text)
+        shutil.rmtree(home, ignore_errors=True)
+        return 0
     if args.only_later:
         later = later_on(path, env, args.runs, roots)
         text = "\n".join(
