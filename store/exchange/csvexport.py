@@ -19,7 +19,11 @@ Lines built by SQLite itself (printf, strftime and the quoting rules in SQL, wit
 cell for what SQLite would write otherwise than Python) were tried and measured slower
 (about 7 µs a row in SQLite alone against about 6 µs a row for this whole path, December
 2026): every cell is formatted per row there, where a remembered piece costs one lookup.
-SQLite does the span, the order and the test of each stamp's form.
+SQLite does the span and the order. A stamp's form is tested in Python, once per hour by
+`_is_stamp` and for its minutes and seconds by one lookup (`_MINUTE_SECOND`); the GLOB in SQL
+that did it before cost more per row than the lookup. The rows come a batch at a time
+(`fetchmany`) and leave as one write per batch. The few entries of other kinds take their
+other columns from a second query over the same span (`OtherColumns`), not one query each.
 
 After the entries, when asked (`status=True`, what `sumpbook export` and the shift-log
 screen do unless told `--entries-only`), come the status rows of the handover
@@ -41,7 +45,6 @@ from collections.abc import Callable, Iterable, Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, fields
 from datetime import UTC, datetime, timedelta, tzinfo
-from itertools import islice
 from pathlib import Path
 from typing import IO, Any
 
@@ -98,12 +101,6 @@ _OTHER_COLUMNS = tuple(
 _COL = {name: i for i, name in enumerate((*_READING_COLUMNS, *_OTHER_COLUMNS))}
 # Range and order both from the index entries_by_time (no sort).
 _SELECT = "SELECT " + ", ".join(f"e.{c}" for c in _READING_COLUMNS) + " FROM entries e"
-# ... and whether the stamp is in the book's own form (`_is_stamp`), tested by SQLite
-_SELECT_FAST = (
-    "SELECT " + ", ".join(f"e.{c}" for c in _READING_COLUMNS) + ", e.at_utc GLOB "
-    "'[0-9][0-9][0-9][0-9]-[0-9][0-9]-[0-9][0-9]T[0-9][0-9]:[0-9][0-9]:[0-9][0-9]Z' "
-    "FROM entries e"
-)
 _NAMES = {i: name for name, i in _COL.items()}
 # What a reading's cells are made from in `SpanLines.span` (the pieces' keys, id and time)
 _READING_LAYOUT = (
@@ -128,31 +125,43 @@ class _Whole(Exception):
 
 
 _SELECT_OTHER = "SELECT " + ", ".join(_OTHER_COLUMNS) + " FROM entries WHERE id = ?"
+# ... and for every entry of the span that is not a reading, in the span's order (`OtherColumns`)
+_SELECT_OTHERS = (
+    "SELECT " + ", ".join(f"e.{c}" for c in ("id", *_OTHER_COLUMNS)) + " FROM entries e"
+)
 # From the partial index one_void_per_entry.
 _SELECT_VOIDS = "SELECT voids, id FROM entries WHERE voids IS NOT NULL"
 _ID, _AT, _KIND, _FILTER, _DP, _TEMP, _FLOW = (
     _COL[c] for c in ("id", "at_utc", "kind", "filter", "dp_bar", "temp_c", "flow_lpm")
 )
-# An id as the book writes them (a UUID's text): its cell is itself (csv_field changes nothing).
-_plain_id = re.compile(r"[0-9a-f]{8}-[0-9a-f]{4}-[0-9a-f]{4}-[0-9a-f]{4}-[0-9a-f]{12}").fullmatch
+# A text that is its own cell: `csv_field` changes nothing (no formula start, nothing to quote).
+_plain_cell = re.compile(
+    '[^",\r\n' + re.escape("".join(FORMULA_START)) + '][^",\r\n]*', re.DOTALL
+).fullmatch
 _is_stamp = re.compile(r"[0-9]{4}-[0-9]{2}-[0-9]{2}T[0-9]{2}:[0-9]{2}:[0-9]{2}Z").fullmatch
+# A stamp's ':MM:SSZ' as `_is_stamp` allows it -> its ':MM:SS' (the minute and second cell text)
+_TWO_DIGITS = [f":{n:02}" for n in range(100)]
+_MINUTE_SECOND = {m + s + "Z": m + s for m in _TWO_DIGITS for s in _TWO_DIGITS}
 _UNSEEN = object()
-_MEMO_SIZE = 50_000  # distinct values remembered per column
+_MEMO_SIZE = 200_000  # distinct values remembered per memo
 _INF = float("inf")
-_BATCH = 4096  # lines written to the file at a time
+_ZERO = timedelta(0)
+_BATCH = 4096  # rows read and lines written to the file at a time
+_OTHER_BATCH = 256  # rows `OtherColumns` reads at a time
 
 
-def _span_sql(start: str | None, end: str | None, fast: bool = False) -> tuple[str, list[Any]]:
+def _span_sql(
+    start: str | None, end: str | None, select: str = _SELECT, where: Sequence[str] = ()
+) -> tuple[str, list[Any]]:
     """The SQL and parameters for every entry in [start, end) (stored stamps; None leaves
-    that end open), ordered as `journal.read` orders them (time, then the order they were
-    written). `fast`: each row ends with whether its stamp is in the book's own form."""
-    where: list[str] = []
+    that end open) that meets `where`, ordered as `journal.read` orders them (time, then the
+    order they were written)."""
+    where = list(where)
     params: list[Any] = []
     for bound, test in ((start, "e.at_utc >= ?"), (end, "e.at_utc < ?")):
         if bound is not None:
             where.append(test)
             params.append(bound)
-    select = _SELECT_FAST if fast else _SELECT
     sql = select + (" WHERE " + " AND ".join(where) if where else "")
     return sql + " ORDER BY e.at_utc, e.rowid", params
 
@@ -207,6 +216,8 @@ class LocalClock:
         self.prefix: str | None = None  # the local 'YYYY-MM-DDTHH' when the offset is whole hours
         self.delta: timedelta | None = None  # local wall time minus UTC, when one holds all hour
         self.suffix = ""  # the offset as isoformat writes it
+        # utcoffset -> (delta, suffix, whether whole hours): the same for every hour it holds
+        self.offsets: dict[timedelta | None, tuple[timedelta, str, bool]] = {}
 
     def text(self, stamp: str) -> str:
         if stamp[:13] != self.hour:
@@ -221,13 +232,17 @@ class LocalClock:
         self.hour = hour
         first = datetime.fromisoformat(hour + ":00:00").replace(tzinfo=UTC)
         begins = first.astimezone(self.local)
-        ends = (first + timedelta(seconds=3599)).astimezone(self.local)
+        offset = begins.utcoffset()
         self.prefix = self.delta = None
-        if begins.utcoffset() != ends.utcoffset():
+        if offset != (first + timedelta(seconds=3599)).astimezone(self.local).utcoffset():
             return
-        self.delta = begins.replace(tzinfo=None) - first.replace(tzinfo=None)
-        self.suffix = begins.isoformat(timespec="seconds")[19:]
-        if self.delta % timedelta(hours=1) == timedelta(0):
+        known = self.offsets.get(offset)
+        if known is None:
+            delta = begins.replace(tzinfo=None) - first.replace(tzinfo=None)
+            suffix = begins.isoformat(timespec="seconds")[19:]
+            known = self.offsets[offset] = (delta, suffix, delta % timedelta(hours=1) == _ZERO)
+        self.delta, self.suffix, whole = known
+        if whole:
             self.prefix = begins.isoformat()[:13]
 
 
@@ -442,6 +457,7 @@ class SpanLines:
         self.contexts = contexts(book)
         self.book, self.conn = book, book.conn
         self.voided_by = dict(book.conn.execute(_SELECT_VOIDS).fetchall())
+        self.others = OtherColumns(book.conn)
         self.references: dict[str, FilterReference | None] = {}
         self.time, self.shift = columns.index("time"), columns.index("shift")
         self.void = columns.index("voided_by")
@@ -474,7 +490,7 @@ class SpanLines:
             stamp = canonical_stamp(stamp)
         plan = self.plans[row[_KIND]]
         if plan.other:
-            row = (*row, *self.conn.execute(_SELECT_OTHER, [row[_ID]]).fetchone())
+            row = (*row, *self.others.of(row[_ID]))
         cells = plan.fill(row)
         if row[_ID] in self.voided_by:
             cells[self.void] = csv_field(self.voided_by[row[_ID]])
@@ -495,7 +511,7 @@ class SpanLines:
                 )
         return cells
 
-    def span(self, start_text: str | None, end_text: str | None) -> Iterator[str]:
+    def span(self, start_text: str | None, end_text: str | None) -> Iterator[list[str]]:
         """Every line of the entries in [start_text, end_text), in the export's order.
 
         A reading (nearly every entry) is put together from remembered text after its id,
@@ -506,11 +522,13 @@ class SpanLines:
         hour meter on. A piece is made once, from the first row that needs it, as `cells`
         makes it; a row that is voided, has a stamp in another form or is of another kind
         goes through `cells` whole, and so does one whose values only
-        `conditions.normalise` words."""
-        sql, params = _span_sql(start_text, end_text, fast=True)
+        `conditions.normalise` words. Yields the lines a batch of rows (`_BATCH`) at a time."""
+        sql, params = _span_sql(start_text, end_text)
         rows = self.conn.execute(sql, params)
+        self.others = OtherColumns(self.conn, (start_text, end_text))
         if not self.fast:
-            yield from self.lines(row[:-1] for row in rows)
+            while batch := rows.fetchmany(_BATCH):
+                yield list(self.lines(batch))
             return
         clock, shifts, voided_by = self.clock, self.shifts, self.voided_by
         plan = self.plans["reading"]
@@ -520,38 +538,49 @@ class SpanLines:
         tails: dict[tuple[Any, ...], str] = {}  # (hour meter, note) -> cells
         pieces = _Pieces(self, plan)
         split, end = self.split, len(plan.blank)
+        minute_second = _MINUTE_SECOND
         hour = prefix = shift_from = shift_to = after_shift = ""
-        for row in rows:
-            entry_id, stamp, kind, by, unit, note, tag, dp, indicator, temp, flow, hours, own = row
-            try:
-                if kind != "reading" or not own or entry_id in voided_by:
-                    raise _Whole
-                who = whos.get((tag, unit, by))
-                if who is None:
-                    who = remember(whos, (tag, unit, by), pieces.who(row, tag))
-                value = values.get((who[1], dp, indicator, temp, flow))
-                if value is None:
-                    value, shared = pieces.value(row, tag, who[1], dp, temp, flow)
-                    if shared:
-                        remember(values, (who[1], dp, indicator, temp, flow), value)
-                tail = tails.get((hours, note))
-                if tail is None:
-                    tail = remember(tails, (hours, note), ",".join(plan.piece(row, split, end)))
-                if stamp[:13] != hour:  # the hour's local text and offset (LocalClock)
-                    clock.text(stamp)
-                    if clock.prefix is None:  # an offset of part hours, or a change in it
+        while batch := rows.fetchmany(_BATCH):
+            lines: list[str] = []
+            line = lines.append
+            for row in batch:
+                entry_id, stamp, kind, by, unit, note, tag, dp, indicator, temp, flow, hours = row
+                try:
+                    if kind != "reading" or entry_id in voided_by:
                         raise _Whole
-                    hour, prefix = clock.hour, clock.prefix
-                    shift_to = ""  # the offset's text may have changed: made again below
-                if not shift_from <= stamp < shift_to:
-                    shifts.name(stamp)
-                    shift_from, shift_to = shifts.start, shifts.end
-                    after_shift = f"{clock.suffix},{shifts.cell},{kind_cell},"
-                if not _plain_id(entry_id):
-                    entry_id = csv_field(entry_id)
-                yield f"{entry_id},{prefix}{stamp[13:19]}{after_shift}{who[0]},{value},{tail}"
-            except (_Whole, *ROW_ERRORS):  # `lines` writes it (or reports it and leaves it out)
-                yield from self.lines([row[:-1]])
+                    if stamp[:13] != hour:  # the hour's local text and offset (LocalClock)
+                        if not _is_stamp(stamp):
+                            raise _Whole
+                        clock.text(stamp)
+                        if clock.prefix is None:  # an offset of part hours, or a change in it
+                            raise _Whole
+                        hour, prefix = clock.hour, clock.prefix
+                        shift_to = ""  # the offset's text may have changed: made again below
+                    # the rest of the stamp, when in the book's own form (its hour is: above)
+                    minute = minute_second.get(stamp[13:])
+                    if minute is None:
+                        raise _Whole
+                    who = whos.get((tag, unit, by))
+                    if who is None:
+                        who = remember(whos, (tag, unit, by), pieces.who(row, tag))
+                    value = values.get((who[1], dp, indicator, temp, flow))
+                    if value is None:
+                        value, shared = pieces.value(row, tag, who[1], dp, temp, flow)
+                        if shared:
+                            remember(values, (who[1], dp, indicator, temp, flow), value)
+                    tail = tails.get((hours, note))
+                    if tail is None:
+                        tail = remember(tails, (hours, note), ",".join(plan.piece(row, split, end)))
+                    if not shift_from <= stamp < shift_to:
+                        shifts.name(stamp)
+                        shift_from, shift_to = shifts.start, shifts.end
+                        after_shift = f"{clock.suffix},{shifts.cell},{kind_cell},"
+                    if not _plain_cell(entry_id):
+                        entry_id = csv_field(entry_id)
+                    line(f"{entry_id},{prefix}{minute}{after_shift}{who[0]},{value},{tail}")
+                except (_Whole, *ROW_ERRORS):  # `lines` writes it (or reports it and leaves it out)
+                    lines.extend(self.lines([row]))
+            yield lines
 
     def _reference(self, tag: str) -> FilterReference | None:
         """The filter's reference; None when the register has no such filter (as csvio)."""
@@ -560,6 +589,38 @@ class SpanLines:
             None if ctx is None else FilterReference(tag, ctx, self.pressure, self.temperature)
         )
         return self.references[tag]
+
+
+class OtherColumns:
+    """The columns beyond the span query's (`_OTHER_COLUMNS`) that an entry of another kind
+    than a reading needs. Given the span, they are read for all of its entries that are not
+    readings by one second query in the span's order, a window of rows at a time: the span's
+    rows ask for them in that order, so a window is left once an id is not in it. An id that
+    is not text, or not found that way, is read by itself (as without a span)."""
+
+    def __init__(
+        self, conn: sqlite3.Connection, span: tuple[str | None, str | None] | None = None
+    ) -> None:
+        self.conn = conn
+        self.rows: sqlite3.Cursor | None = None
+        self.window: dict[str, tuple[Any, ...]] = {}
+        if span is not None:
+            sql, params = _span_sql(*span, _SELECT_OTHERS, ["e.kind <> 'reading'"])
+            self.rows = conn.execute(sql, params)
+
+    def of(self, entry_id: Any) -> Any:
+        """The entry's other columns; None for an id that no entry has."""
+        if type(entry_id) is str:
+            found = self.window.pop(entry_id, None)
+            while found is None and self.rows is not None:
+                batch = self.rows.fetchmany(_OTHER_BATCH)
+                if not batch:
+                    self.rows = None
+                self.window = {row[0]: row[1:] for row in batch}
+                found = self.window.pop(entry_id, None)
+            if found is not None:
+                return found
+        return self.conn.execute(_SELECT_OTHER, [entry_id]).fetchone()
 
 
 class _Pieces:
@@ -572,6 +633,7 @@ class _Pieces:
         self.pairs: dict[tuple[Any, ...], str] = {}  # (signature, ΔP, temperature, flow)
         self.signatures: dict[tuple[Any, ...], int] = {}  # signature -> its number
         self.flow = lines.split - 1  # the flow cell, just before the hour meter's
+        self.flows: dict[Any, str] = {}  # flow -> its cell
 
     def who(self, row: Sequence[Any], tag: str) -> tuple[str, int | None]:
         """The kind, filter, unit and who cells, and the number of the filter's signature
@@ -607,7 +669,10 @@ class _Pieces:
                     shared = False
                 else:
                     pair = remember(self.pairs, (signature, dp, temp, flow), ",".join(found))
-        (flow_cell,) = self.plan.piece(row, self.flow, self.flow + 1)
+        flow_cell = self.flows.get(flow)
+        if flow_cell is None:
+            (flow_cell,) = self.plan.piece(row, self.flow, self.flow + 1)
+            remember(self.flows, flow, flow_cell)
         return f"{reading},{pair},{flow_cell}", shared
 
 
@@ -628,16 +693,16 @@ def write_span(
     end_text = None if end is None else format_utc(end)
     with read_snapshot(book.conn):
         span_lines = SpanLines(book, prefs, local, pattern)
-        lines = span_lines.span(start_text, end_text)
+        batches = span_lines.span(start_text, end_text)
         if not status:
             out.write(span_lines.header)
-            return _write_lines(out, lines)
+            return _write_batches(out, batches)
         out.write(csv_line(header(prefs, status=True)))
         pad = "," * len(STATUS_COLUMNS)  # an entry leaves the status columns empty
-        count = _write_lines(out, (line + pad for line in lines))
+        count = _write_batches(out, batches, pad)
         as_of = status_as_at(start, end, book.now())
         if as_of is not None:
-            _write_lines(out, iter(status_rows(book, as_of, prefs, local, pattern)))
+            _write_batches(out, iter([status_rows(book, as_of, prefs, local, pattern)]))
         return count
 
 
@@ -835,11 +900,16 @@ def _remove(path: Path) -> None:
         pass
 
 
-def _write_lines(out: IO[str], lines: Iterator[str]) -> int:
+def _write_batches(out: IO[str], batches: Iterator[list[str]], pad: str = "") -> int:
+    """Each batch's lines, each with `pad` and CR LF after it, in one write a batch; returns
+    how many lines."""
     count = 0
-    while batch := list(islice(lines, _BATCH)):
-        out.write("\r\n".join(batch) + "\r\n")
-        count += len(batch)
+    end = pad + "\r\n"
+    for batch in batches:
+        if batch:
+            count += len(batch)
+            batch.append("")  # the last line's end
+            out.write(end.join(batch))
     return count
 
 

@@ -11,7 +11,7 @@ Figures (median of several runs where it is cheap):
 2. `sumpbook status --json` ÷ a `python -c` that opens the file with the sqlite3 module and
    runs one indexed query for the latest reading of every filter (target ≤ 3).
 3. Export of the book's last year as CSV (`sumpbook export --from --to -o`) ÷ the sqlite3
-   shell's own CSV export of the same rows (target ≤ 3). Needs Debian's `sqlite3` package
+   shell's own CSV export of the same rows (target ≤ 2.5). Needs Debian's `sqlite3` package
    (`apt-get install sqlite3`); without the shell this ratio is skipped, and said so.
 4. Saving one reading, the prediction update included (journal.log on a copy of the book,
    with its commit): median and 99th percentile in ms. `--only-saves`: this figure alone as
