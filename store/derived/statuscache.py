@@ -380,9 +380,14 @@ class Check:
         if self._at != at:
             self._at, self._stamp = at, format_utc(at)
         stamp = self._stamp
-        if stamp < row.computed_utc:  # the clock set back: the row may hold later readings
-            return None
-        if audit and row.newest_utc is not None and row.newest_utc > stamp:
+        if audit:
+            # As the entries stood at `at`: a row whose inputs are all dated at or before
+            # `at` stands for it, also where it was kept later (the previous shift's log read
+            # after the shift): its clock is good from its newest reading on
+            # (status_model.Clock), and nothing after `at` went into it.
+            if row.newest_utc is not None and row.newest_utc > stamp:
+                return None
+        elif stamp < row.computed_utc:  # the clock set back: the row may hold later readings
             return None
         if row.seen < self.newest and self.moved.filter_moved(
             tag, row.seen, row.pools, self.reg.like.get(tag, ())

@@ -234,3 +234,30 @@ def test_where_nothing_came_after_the_time_the_kept_rows_stand_in(demo, monkeypa
         monkeypatch.undo()
         assert_same(book, now)
         assert_same(book, now - timedelta(days=7))
+
+
+def test_rows_kept_later_stand_for_an_earlier_time_their_inputs_reach(demo, monkeypatch):
+    # The previous shift's log read after the shift: the kept rows were computed at the
+    # book's clock, later than the time asked for. A filter whose inputs are all dated at or
+    # before that time is not fitted again; one with a later input is. Either way the list
+    # is the computation from the entries as they stood (assert_same).
+    computed: list[str] = []
+    real = watchlist.filters_as_of
+
+    def spy(book, ctxs, *args):
+        computed.extend(c.position.tag for c in ctxs)
+        return real(book, ctxs, *args)
+
+    with open_book(demo, create=False) as book:
+        (last,) = book.conn.execute("SELECT max(at_utc) FROM entries").fetchone()
+        at = parse_utc(last)
+        assert at < book.now()  # the rows were kept after the time asked for
+        monkeypatch.setattr(views, "filters_as_of", spy)
+        views.watch(book, as_of=at)
+        assert computed == []
+        # An hour before the newest entry: its filter (at least) came later.
+        views.watch(book, as_of=at - timedelta(hours=1))
+        assert 0 < len(computed) < len(contexts(book))
+        monkeypatch.undo()
+        assert_same(book, at)
+        assert_same(book, at - timedelta(hours=1))
