@@ -199,7 +199,22 @@ class SumpbookApp(App[None]):
         self.early_watch: Future[WatchData] | None = None  # the first list, read at load
         for theme in THEMES.values():
             self.register_theme(theme)
-        self.theme = THEMES.get(self.prefs.theme, THEMES["dark"]).name
+        self.start_theme(THEMES.get(self.prefs.theme, THEMES["dark"]))
+
+    def start_theme(self, theme: Theme) -> None:
+        """The laptop's theme, set before the app runs. Not through the `theme` reactive:
+        its watcher queues a refresh of the whole CSS, on top of the one Textual runs when
+        the first screen (a mode's) is mounted, which reads the stylesheet again with the
+        theme's variables anyway. Here only what that watcher sets besides: the theme's
+        classes and the ANSI colours' filter (Textual's own method, as the watcher calls it).
+        A theme chosen later goes through the reactive (`change_prefs`);
+        tests/tui/test_app_start_theme.py checks that both draw the same."""
+        self.set_reactive(SumpbookApp.theme, theme.name)
+        self.update_classes(
+            {f"-theme-{theme.name}": True, "-dark-mode": theme.dark, "-light-mode": not theme.dark},
+            update=False,
+        )
+        self._refresh_truecolor_filter(self.ansi_theme)
 
     # ---- who and what ----
 
