@@ -123,6 +123,10 @@ class WatchScreen(BookScreen):
 
     def on_mount(self) -> None:
         table = self.query_one(DataTable)
+        # The line under the list follows the cursor as it moves, in the same turn of the
+        # event loop: from DataTable's RowHighlighted message it came a turn later, and the
+        # screen was drawn twice for every key (once for the table, once for the line).
+        self.watch(table, "cursor_coordinate", self.show_detail, init=False)
         table.loading = True
         self.query_one("#find", Input).cursor_blink = self.sb.cursor_blink
         table.focus()
@@ -287,9 +291,6 @@ class WatchScreen(BookScreen):
             fmt.STATE_WORDS.get(row.state, row.state)
         ]
         detail.show([inert(h) for h in head], [inert(n) for n in notes])
-
-    def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
-        self.show_detail()
 
     def on_data_table_row_selected(self, event: DataTable.RowSelected) -> None:
         row = self.current()
