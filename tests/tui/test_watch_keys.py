@@ -56,3 +56,25 @@ async def test_a_cursor_key_draws_the_screen_once(plant, monkeypatch):
             await pilot.pause()
             await pilot.pause()
         assert 0 < len(draws) <= len(keys)
+
+
+async def test_filling_the_list_works_out_the_line_once(plant, monkeypatch):
+    """DataTable sets its cursor again for every row it adds: the line follows the rows the
+    cursor moves to, not each setting (on the big book's 1,078 rows that was 1,078 lines
+    worked out and drawn on the way to the first paint)."""
+    calls: list[int] = []
+    show_detail = WatchScreen.show_detail
+
+    def counted(self):
+        calls.append(1)
+        return show_detail(self)
+
+    monkeypatch.setattr(WatchScreen, "show_detail", counted)
+    app = app_for(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot, WatchScreen)
+        assert app.screen.query_one(DataTable).row_count == 5
+        calls.clear()
+        app.screen.fill()
+        await pilot.pause()
+        assert len(calls) == 1

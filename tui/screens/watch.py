@@ -8,6 +8,7 @@ from dataclasses import dataclass
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.containers import Horizontal
+from textual.coordinate import Coordinate
 from textual.widgets import DataTable, Header, Input, Select
 
 from store import Book, record, views
@@ -126,7 +127,7 @@ class WatchScreen(BookScreen):
         # The line under the list follows the cursor as it moves, in the same turn of the
         # event loop: from DataTable's RowHighlighted message it came a turn later, and the
         # screen was drawn twice for every key (once for the table, once for the line).
-        self.watch(table, "cursor_coordinate", self.show_detail, init=False)
+        self.watch(table, "cursor_coordinate", self.cursor_moved, init=False)
         table.loading = True
         self.query_one("#find", Input).cursor_blink = self.sb.cursor_blink
         table.focus()
@@ -266,6 +267,11 @@ class WatchScreen(BookScreen):
     def current_tag(self) -> str | None:
         row = self.current()
         return row.tag if row else None
+
+    def cursor_moved(self, old: Coordinate, new: Coordinate) -> None:
+        # DataTable sets its cursor again (to the same place) for every row it adds
+        if new.row != old.row:
+            self.show_detail()
 
     def show_detail(self) -> None:
         row = self.current()
