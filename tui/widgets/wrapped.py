@@ -47,20 +47,13 @@ class Wrapped(Static):
             last = lines[-1]
             last.truncate(width - 1)
             lines[-1] = last + Text("…")
-        # As many lines as before, each fitting the width, or a height set in cells (the
-        # line under the watch list): the widget keeps its size, so only it is drawn again,
-        # not the screen laid out (and the list beside it redrawn) on every key that
-        # changes the text.
+        # As many lines as before, each fitting the width: the widget keeps its size, so
+        # only it is drawn again, not the screen laid out (and the list beside it redrawn)
+        # on every key that changes the text.
         fits = all(line.cell_len <= width for line in lines)
-        same_size = self.fixed_size() or (fits and len(lines) == self.line_count)
+        same_size = fits and len(lines) == self.line_count
         self.line_count = len(lines) if fits else -1
         self.update(Text("\n").join(lines), layout=not same_size)
-
-    def fixed_size(self) -> bool:
-        """Its height is a number of lines and its width not its text's: no text changes
-        its size."""
-        height, width = self.styles.height, self.styles.width
-        return height is not None and height.is_cells and not (width and width.is_auto)
 
     def on_resize(self, event: events.Resize) -> None:
         if self.blocks and self.content_region.width != self.wrapped_at:
