@@ -5,7 +5,6 @@ here; nothing else writes derived rows except an explicit refresh or rebuild."""
 
 from __future__ import annotations
 
-import uuid
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, replace
 from datetime import datetime
@@ -92,6 +91,8 @@ def log_many(book: Book, entries: Iterable[Entry]) -> list[Entry]:
 
 
 def _append(book: Book, entry: Entry, now: datetime) -> Entry:
+    import uuid  # only a save makes an id: kept off the lean path (`status`, `list`)
+
     entry = journal.validate(book, entry, now)
     entry = replace(entry, id=entry.id or str(uuid.uuid4()), logged=entry.logged or now)
     journal.insert(book, entry)

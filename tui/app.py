@@ -23,13 +23,12 @@ from textual.reactive import reactive
 from textual.screen import ModalScreen, Screen
 from textual.theme import Theme
 
-from store import Book, deep_check, open_book, record, rolling_backup
+from store import Book, deep_check, open_book, record
 from store.base import prefs as laptop
 from store.base.errors import BookError
 from store.base.session import Session, from_environ
 from store.base.text import inert_line
 from store.base.timeutil import parse_utc
-from store.exchange.demo import discard, is_throwaway, throwaway_demo, throwaway_empty
 from store.ledger import register
 from store.ledger.register import Technician, Unit
 from store.sheets import (
@@ -49,7 +48,8 @@ if TYPE_CHECKING:
     from tui.forms.base import EntrySaved
 
 # Screens and forms beyond the watch list (the first-run guide, sign-in and help too) and the
-# command palette's provider are imported when first opened: the app's start (to a painted
+# command palette's provider are imported when first opened, the backups and the throw-away
+# books (store.db.backup, store.exchange.demo) when first used: the app's start (to a painted
 # watch list) loads only what that list needs (tests/tui/test_app_lean_start.py).
 
 FORMS = {  # entry kind -> (module under tui.forms, class)
@@ -199,7 +199,22 @@ class SumpbookApp(App[None]):
         self.early_watch: Future[WatchData] | None = None  # the first list, read at load
         for theme in THEMES.values():
             self.register_theme(theme)
-        self.theme = THEMES.get(self.prefs.theme, THEMES["dark"]).name
+        self.start_theme(THEMES.get(self.prefs.theme, THEMES["dark"]))
+
+    def start_theme(self, theme: Theme) -> None:
+        """The laptop's theme, set before the app runs. Not through the `theme` reactive:
+        its watcher queues a refresh of the whole CSS, on top of the one Textual runs when
+        the first screen (a mode's) is mounted, which reads the stylesheet again with the
+        theme's variables anyway. Here only what that watcher sets besides: the theme's
+        classes and the ANSI colours' filter (Textual's own method, as the watcher calls it).
+        A theme chosen later goes through the reactive (`change_prefs`);
+        tests/tui/test_app_start_theme.py checks that both draw the same."""
+        self.set_reactive(SumpbookApp.theme, theme.name)
+        self.update_classes(
+            {f"-theme-{theme.name}": True, "-dark-mode": theme.dark, "-light-mode": not theme.dark},
+            update=False,
+        )
+        self._refresh_truecolor_filter(self.ansi_theme)
 
     # ---- who and what ----
 
@@ -570,6 +585,8 @@ class SumpbookApp(App[None]):
     def open_demo(self) -> None:
         self.call_from_thread(self.notify, "Opening the demo plant…")
         try:
+            from store.exchange.demo import throwaway_demo
+
             book = throwaway_demo(self.session.clock)
         except Exception as exc:  # noqa: BLE001 - shown to the user
             self.call_from_thread(self.notify, f"No demo: {exc}", severity="error")
@@ -587,6 +604,8 @@ class SumpbookApp(App[None]):
         old, self.book = self.book, book
         fmt.clock = plant_clock(book)
         old.close()
+        from store.exchange.demo import discard, is_throwaway
+
         if is_throwaway(old.path) and old.path != path:
             discard(old.path)  # a throw-away demo or empty book left behind is gone
         self.demo = demo
@@ -682,6 +701,14 @@ def plant_clock(book: Book) -> Any:
     return (lambda: frozen) if frozen is not None else book.clock
 
 
+def rolling_backup(conn: sqlite3.Connection, path: Path, why: str) -> Path:
+    """store.rolling_backup, its module (and what it takes) imported on first use: not on
+    the way to the painted list."""
+    from store import rolling_backup as backup
+
+    return backup(conn, path, why)
+
+
 def backup_on_close(book: Book) -> str | None:
     """A rolling copy beside the logbook; returns the problem instead of raising."""
     try:
@@ -698,6 +725,8 @@ def open_for_app(db: Path | None, session: Session) -> tuple[Book, bool, Path | 
     path = db or session.db_path
     if path.exists() and path.stat().st_size > 0:
         return open_book(path, clock=session.clock), False, None
+    from store.exchange.demo import throwaway_demo, throwaway_empty
+
     if db is not None or session.db_named:
         return throwaway_empty(session.clock), False, path
     return throwaway_demo(session.clock), True, None
@@ -710,5 +739,7 @@ def run_app(db: Path | None, session: Session) -> int:
         app.run()
     finally:
         app.book.close()
+        from store.exchange.demo import discard
+
         discard(app.book.path)  # only a throw-away book's folder is removed
     return 0

@@ -8,10 +8,8 @@ pattern here. The history refuses to be edited or deleted.
 
 from __future__ import annotations
 
-import difflib
 import functools
 import sqlite3
-import uuid
 from dataclasses import asdict, dataclass, fields
 from datetime import datetime
 from typing import Any, TypeVar
@@ -164,6 +162,8 @@ def tags(book: Book, table: str) -> list[str]:
 def unknown_tag(book: Book, table: str, tag: str) -> BookError:
     """An error naming the closest known tags."""
     known = tags(book, table)
+    import difflib  # only a tag not found asks for its neighbours
+
     close = difflib.get_close_matches(tag.upper(), known, n=3, cutoff=0.5)
     hint = f": did you mean {' or '.join(close)}?" if close else ""
     if not known:
@@ -272,6 +272,8 @@ def _check(book: Book, record: Any) -> Any:
 
 
 def _log_change(book: Book, table: str, tag: str, field: str, old: Any, new: Any, by: str) -> None:
+    import uuid  # a change to the register: kept off the lean path, as in record._append
+
     book.conn.execute(
         "INSERT INTO register_log(id, at_utc, by, tbl, tag, field, old, new) "
         "VALUES (?, ?, ?, ?, ?, ?, ?, ?)",

@@ -29,6 +29,11 @@ HEAVY_PACKAGES = ("numpy", "scipy", "textual")
 # what only an upgrade, a backup or restore, or `log` needs (deferred in store/__init__.py,
 # store/db/book.py and tui/cli/commands.py)
 UPKEEP_MODULES = ("store.db.backup", "store.db.proof", "store.ledger.entry_input")
+# what only a save (a new entry's id), a change to the register or an id typed by hand needs,
+# and the neighbours of a tag not found (deferred in store/record.py, store/ledger/register.py
+# and store/base/validate.py); `status` as a table shows the watch list through store.sheets,
+# which takes difflib for its own look-ups
+WRITE_ONLY = ("uuid", "difflib")
 LEAN_COMMANDS = [
     ["status"],
     ["status", "--json"],
@@ -53,6 +58,12 @@ def heavy(names: set[str]) -> list[str]:
     )
 
 
+def write_only(names: set[str], args: list[str]) -> list[str]:
+    """The modules among `names` that only writing needs (see WRITE_ONLY)."""
+    kept_off = [m for m in WRITE_ONLY if not (args == ["status"] and m == "difflib")]
+    return sorted(n for n in names if n in kept_off)
+
+
 def imported(book: Path, args: list[str], now: str | None = None) -> set[str]:
     """Every module a `sumpbook` run loaded (from `python -X importtime`'s report)."""
     env = {**os.environ, "SUMPBOOK_DB": str(book)}
@@ -64,9 +75,14 @@ def imported(book: Path, args: list[str], now: str | None = None) -> set[str]:
         capture_output=True, text=True, env=env, cwd=ROOT, check=False, timeout=120,
     )  # fmt: skip
     assert done.returncode == 0, done.stderr[-3000:]
+    return modules_of(done.stderr)
+
+
+def modules_of(report: str) -> set[str]:
+    """The modules named in `python -X importtime`'s report."""
     return {
         line.split("|")[2].strip()
-        for line in done.stderr.splitlines()
+        for line in report.splitlines()
         if line.startswith("import time:") and "|" in line and "imported package" not in line
     }
 
@@ -88,7 +104,9 @@ def kept_demo(tmp_path_factory) -> tuple[Path, str]:
 @pytest.mark.parametrize("args", LEAN_COMMANDS, ids=" ".join)
 def test_quick_answers_load_no_fitting_maths_nor_textual(kept_demo, args):
     book, _ = kept_demo
-    assert heavy(imported(book, args)) == []
+    loaded = imported(book, args)
+    assert heavy(loaded) == []
+    assert write_only(loaded, args) == []
 
 
 def test_status_a_week_on_loads_no_fitting_maths(kept_demo, tmp_path):
@@ -131,6 +149,24 @@ def test_a_backup_still_loads_what_it_defers(kept_demo, tmp_path):
     """The upkeep modules are deferred, not gone: `backup` loads store.db.backup (so the
     check above would see them come back onto the lean path)."""
     book, _ = kept_demo
-    loaded = heavy(imported(book, ["backup", str(tmp_path / "copy.db")]))
-    assert "store.db.backup" in loaded
+    loaded = imported(book, ["backup", str(tmp_path / "copy.db")])
+    assert "store.db.backup" in heavy(loaded)
     assert (tmp_path / "copy.db").stat().st_size > 0
+
+
+def test_a_note_logged_and_a_tag_not_found_load_what_they_defer(kept_demo, tmp_path):
+    """The write-only modules are deferred, not gone: a note logged makes its entry's id
+    (uuid), a tag the book does not know is answered with its neighbours (difflib)."""
+    book, now = kept_demo
+    copy = tmp_path / "note.db"
+    shutil.copy(book, copy)
+    note = ["log", "note", "--unit", "DCC-2", "--by", "AK", "hose chafing at the clamp"]
+    loaded = imported(copy, note, now)
+    assert "uuid" in write_only(loaded, ["log"])
+    env = {**os.environ, "SUMPBOOK_DB": str(copy), "SUMPBOOK_NOW": now}
+    done = subprocess.run(
+        [sys.executable, "-X", "importtime", "-m", "tui", "log", "reading", "D2-RX", "--dp", "1", "--by", "AK"],
+        capture_output=True, text=True, env=env, cwd=ROOT, check=False, timeout=120,
+    )  # fmt: skip
+    assert done.returncode == 2 and "did you mean D2-R" in done.stderr
+    assert "difflib" in modules_of(done.stderr)

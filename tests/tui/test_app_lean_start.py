@@ -57,7 +57,9 @@ NOT_AT_START = ("numpy", "scipy", "plotext", "textual_plotext", "sqlite_utils", 
                 "tui.forms", "tui.widgets.plot", "tui.screens.filter_sheet",
                 "tui.screens.unit_sheet", "tui.screens.shift_log", "tui.screens.register",
                 "tui.screens.round_sheet", "tui.screens.help", "tui.screens.first_run",
-                "tui.screens.sign_in", "tui.screens.tag_prompt")  # fmt: skip
+                "tui.screens.sign_in", "tui.screens.tag_prompt",
+                # the backups and the throw-away books: after the paint, on close, on demand
+                "store.db.backup", "store.db.proof", "store.exchange.demo")  # fmt: skip
 
 
 def loaded_of(names: list[str], packages: tuple[str, ...]) -> list[str]:

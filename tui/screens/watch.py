@@ -8,6 +8,7 @@ from dataclasses import dataclass
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.containers import Horizontal
+from textual.coordinate import Coordinate
 from textual.widgets import DataTable, Header, Input, Select
 
 from store import Book, record, views
@@ -123,6 +124,10 @@ class WatchScreen(BookScreen):
 
     def on_mount(self) -> None:
         table = self.query_one(DataTable)
+        # The line under the list follows the cursor as it moves, in the same turn of the
+        # event loop: from DataTable's RowHighlighted message it came a turn later, and the
+        # screen was drawn twice for every key (once for the table, once for the line).
+        self.watch(table, "cursor_coordinate", self.cursor_moved, init=False)
         table.loading = True
         self.query_one("#find", Input).cursor_blink = self.sb.cursor_blink
         table.focus()
@@ -263,6 +268,11 @@ class WatchScreen(BookScreen):
         row = self.current()
         return row.tag if row else None
 
+    def cursor_moved(self, old: Coordinate, new: Coordinate) -> None:
+        # DataTable sets its cursor again (to the same place) for every row it adds
+        if new.row != old.row:
+            self.show_detail()
+
     def show_detail(self) -> None:
         row = self.current()
         detail = self.query_one("#detail", Wrapped)
@@ -287,9 +297,6 @@ class WatchScreen(BookScreen):
             fmt.STATE_WORDS.get(row.state, row.state)
         ]
         detail.show([inert(h) for h in head], [inert(n) for n in notes])
-
-    def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
-        self.show_detail()
 
     def on_data_table_row_selected(self, event: DataTable.RowSelected) -> None:
         row = self.current()
