@@ -14,11 +14,13 @@ import zoneinfo
 from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import UTC, date, datetime, time, timedelta, tzinfo
-
-from dateutil import tz
+from typing import TYPE_CHECKING
 
 from store.base.errors import BookError
 from store.base.validate import EARLIEST, one_line, timezone_name
+
+if TYPE_CHECKING:
+    from types import ModuleType
 
 UTC_FORMAT = "%Y-%m-%dT%H:%M:%SZ"
 MAX_AHEAD = timedelta(days=1)
@@ -28,6 +30,14 @@ def utc_now() -> datetime:
     """This computer's clock, UTC, whole seconds (a fixed clock for demos and tests is a
     store.base.session.Session's, handed to the book)."""
     return datetime.now(UTC).replace(microsecond=0)
+
+
+def _tz() -> ModuleType:
+    """python-dateutil's tz, imported on first use: the watch list and status --json read
+    stored UTC stamps and the plant's zoneinfo zone, and need none of its rules."""
+    from dateutil import tz
+
+    return tz
 
 
 def parse_iso(text: str) -> datetime:
@@ -51,11 +61,11 @@ def to_utc(moment: datetime, local: tzinfo, notes: list[str] | None = None) -> d
         raise BookError(f"the year {moment.year:04d} is outside 1970 … 9998: check the year")
     if moment.tzinfo is None:
         moment = moment.replace(tzinfo=local)
-        if not tz.datetime_exists(moment):
+        if not _tz().datetime_exists(moment):
             raise BookError(
                 f"{moment:%Y-%m-%d %H:%M} does not exist in local time (clocks went forward)"
             )
-        if tz.datetime_ambiguous(moment):
+        if _tz().datetime_ambiguous(moment):
             moment = moment.replace(fold=0)
             if notes is not None:
                 first = moment.utcoffset()
@@ -92,9 +102,9 @@ def zone(name: str | None) -> tzinfo:
     conversions are about 15 times quicker, which counts in a year's export), python-dateutil's
     own copy otherwise (Windows without the tzdata package)."""
     if not name:
-        return tz.tzlocal()
+        return _tz().tzlocal()
     name = _zone_name(name)  # never a path: a stored '../../etc/passwd' is refused
-    found = _zoneinfo(name) or tz.gettz(name)
+    found = _zoneinfo(name) or _tz().gettz(name)
     if found is None:
         raise BookError(f"unknown time zone '{name}': use an IANA name such as Europe/Berlin")
     return found
@@ -216,7 +226,7 @@ def _wall(day: date, hhmm: str, local: tzinfo) -> datetime:
     hour, minute = (int(x) for x in hhmm.split(":"))
     moment = datetime.combine(day, time(hour, minute), tzinfo=local)
     # A start inside the spring-forward gap begins at the first valid local minute after it.
-    while not tz.datetime_exists(moment):
+    while not _tz().datetime_exists(moment):
         moment = (moment + timedelta(minutes=1)).replace(tzinfo=local)
     return moment.astimezone(UTC)
 

@@ -16,8 +16,6 @@ from dataclasses import dataclass
 from datetime import UTC, datetime, timedelta
 from typing import Any
 
-from dateutil import tz
-
 from store.base.errors import BookError
 from store.base.units import AmbiguousNumberError, read_number
 
@@ -232,6 +230,8 @@ def timezone_name(name: Any) -> str:
             zoneinfo.ZoneInfo(clean)
             return clean
         except (zoneinfo.ZoneInfoNotFoundError, ValueError, OSError):
+            from dateutil import tz  # deferred: only a zone zoneinfo does not know needs it
+
             if tz.gettz(clean) is not None:
                 return clean
     raise BookError(
