@@ -12,11 +12,11 @@ import functools
 import re
 import zoneinfo
 from collections.abc import Sequence
-from dataclasses import dataclass
 from datetime import UTC, date, datetime, time, timedelta, tzinfo
 from typing import TYPE_CHECKING
 
 from store.base.errors import BookError
+from store.base.records import frozen_record
 from store.base.validate import EARLIEST, one_line, timezone_name
 
 if TYPE_CHECKING:
@@ -159,7 +159,7 @@ def parse_time(
 CLOCK_RE = re.compile(r"^(?:(today|yesterday)\s+)?([01]?\d|2[0-3]):([0-5]\d)$", re.IGNORECASE)
 
 
-@dataclass(frozen=True)
+@frozen_record
 class TypedTime:
     at: datetime  # UTC
     day: str  # "today" or "yesterday" when the date was taken for the person, else ""
@@ -207,7 +207,7 @@ def iso_local(moment: datetime, local: tzinfo) -> str:
     return moment.astimezone(local).isoformat(timespec="seconds")
 
 
-@dataclass(frozen=True)
+@frozen_record
 class ShiftSpan:
     name: str
     day: date  # local date on which the shift starts

@@ -12,11 +12,11 @@ from __future__ import annotations
 import math
 import re
 import zoneinfo
-from dataclasses import dataclass
 from datetime import UTC, datetime, timedelta
 from typing import Any
 
 from store.base.errors import BookError
+from store.base.records import frozen_record
 from store.base.units import AmbiguousNumberError, read_number
 
 # The kinds a book knows; the schema's CHECK constraints are written from these.
@@ -27,7 +27,7 @@ ENTRY_KINDS = ("reading", "change", "topup", "breather", "sample", "note", "void
 # ---- numbers --------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
+@frozen_record
 class Range:
     """A field's physical range: `low`..`high` in `unit`; `open_low` refuses `low` itself."""
 

@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import re
 from collections.abc import Sequence
-from dataclasses import dataclass
 from datetime import datetime, timedelta
 
+from store.base.records import frozen_record
 from store.ledger.entries import BreatherSwap, Entry, Reading, Sample, TopUp
 from store.ledger.register import Breather, FilterPosition, Unit
 from store.physics.cleanliness import compare_to_target, parse_code
@@ -17,7 +17,7 @@ LEAK_FACTOR = 2.0  # recent use this many times the unit's own history counts as
 MIN_HISTORY_DAYS = 56
 
 
-@dataclass(frozen=True)
+@frozen_record
 class Consumption:
     """Fluid added per week (calendar) and per 100 operating hours where known."""
 
@@ -95,7 +95,7 @@ def hot_readings(unit: Unit, readings: Sequence[Reading]) -> list[Reading]:
     ]
 
 
-@dataclass(frozen=True)
+@frozen_record
 class SampleVerdict:
     sample: Sample
     code: str | None
@@ -144,7 +144,7 @@ def spent_fraction(condition: str) -> float | None:
     return None
 
 
-@dataclass(frozen=True)
+@frozen_record
 class BreatherForecast:
     last_swap: datetime | None
     due: datetime | None
