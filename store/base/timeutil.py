@@ -88,8 +88,20 @@ def format_utc(moment: datetime) -> str:
     return moment.astimezone(UTC).strftime(UTC_FORMAT)
 
 
+_STAMP = re.compile(r"(\d{4})-(\d\d)-(\d\d)T(\d\d):(\d\d):(\d\d)(?:\.(\d{6}))?Z", re.ASCII)
+
+
 def parse_utc(text: str) -> datetime:
-    """A stored stamp, 'YYYY-MM-DDTHH:MM:SSZ' (or with six decimals of a second)."""
+    """A stored stamp, 'YYYY-MM-DDTHH:MM:SSZ' (or with six decimals of a second).
+
+    One in exactly that form is built from its digits; anything else, and a stamp whose
+    numbers are out of range, goes to strptime, which answers or refuses it as it always has
+    (the first strptime loads _strptime and locale, a few ms off the start path)."""
+    if (found := _STAMP.fullmatch(text)) is not None:
+        try:
+            return datetime(*map(int, found.groups("0")), tzinfo=UTC)
+        except ValueError:
+            pass  # strptime's own refusal follows
     if len(text) == 27 and text[19] == ".":
         return datetime.strptime(text, "%Y-%m-%dT%H:%M:%S.%fZ").replace(tzinfo=UTC)
     return datetime.strptime(text, UTC_FORMAT).replace(tzinfo=UTC)
