@@ -6,9 +6,10 @@ here; nothing else writes derived rows except an explicit refresh or rebuild."""
 from __future__ import annotations
 
 from collections.abc import Iterable, Sequence
-from dataclasses import dataclass, replace
+from dataclasses import replace
 from datetime import datetime
 
+from store.base.records import frozen_record
 from store.db.book import Book
 from store.derived import statuscache
 from store.health.status_model import FilterStatus
@@ -53,7 +54,7 @@ def _target(book: Book, entry: Entry) -> str:
     return (entry.target or entry.unit or "").upper()
 
 
-@dataclass(frozen=True)
+@frozen_record
 class Logged:
     """One saved entry as the book holds it (id and times filled in), and the status its save
     kept for the entry's filter in the same transaction (None for an entry on no filter):

@@ -8,16 +8,17 @@ from __future__ import annotations
 
 import json
 import re
-from dataclasses import asdict, dataclass, replace
+from dataclasses import asdict, replace
 from pathlib import Path
 
 from store.base.errors import BookError
+from store.base.records import frozen_record
 from store.base.units import pressure_key, temperature_key, volume_key
 
 THEMES = ("dark", "light", "contrast")
 
 
-@dataclass(frozen=True)
+@frozen_record
 class Prefs:
     tech: str = ""
     pressure: str = "bar"

@@ -11,13 +11,13 @@ a Session: the store itself never reads it.
 from __future__ import annotations
 
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
 
 from platformdirs import user_config_dir, user_data_dir
 
 from store.base.errors import BookError
+from store.base.records import frozen_record
 from store.base.timeutil import parse_iso, to_utc, utc_now
 from store.base.validate import one_line
 
@@ -45,7 +45,7 @@ def fixed_clock(moment: datetime | str) -> Clock:
     return lambda: utc
 
 
-@dataclass(frozen=True)
+@frozen_record
 class Session:
     db_path: Path  # the logbook when none is named on the command line
     db_named: bool  # SUMPBOOK_DB named it (not the user's default)

@@ -12,13 +12,15 @@ import functools
 import re
 import zoneinfo
 from collections.abc import Sequence
-from dataclasses import dataclass
 from datetime import UTC, date, datetime, time, timedelta, tzinfo
-
-from dateutil import tz
+from typing import TYPE_CHECKING
 
 from store.base.errors import BookError
+from store.base.records import frozen_record
 from store.base.validate import EARLIEST, one_line, timezone_name
+
+if TYPE_CHECKING:
+    from types import ModuleType
 
 UTC_FORMAT = "%Y-%m-%dT%H:%M:%SZ"
 MAX_AHEAD = timedelta(days=1)
@@ -28,6 +30,14 @@ def utc_now() -> datetime:
     """This computer's clock, UTC, whole seconds (a fixed clock for demos and tests is a
     store.base.session.Session's, handed to the book)."""
     return datetime.now(UTC).replace(microsecond=0)
+
+
+def _tz() -> ModuleType:
+    """python-dateutil's tz, imported on first use: the watch list and status --json read
+    stored UTC stamps and the plant's zoneinfo zone, and need none of its rules."""
+    from dateutil import tz
+
+    return tz
 
 
 def parse_iso(text: str) -> datetime:
@@ -51,11 +61,11 @@ def to_utc(moment: datetime, local: tzinfo, notes: list[str] | None = None) -> d
         raise BookError(f"the year {moment.year:04d} is outside 1970 … 9998: check the year")
     if moment.tzinfo is None:
         moment = moment.replace(tzinfo=local)
-        if not tz.datetime_exists(moment):
+        if not _tz().datetime_exists(moment):
             raise BookError(
                 f"{moment:%Y-%m-%d %H:%M} does not exist in local time (clocks went forward)"
             )
-        if tz.datetime_ambiguous(moment):
+        if _tz().datetime_ambiguous(moment):
             moment = moment.replace(fold=0)
             if notes is not None:
                 first = moment.utcoffset()
@@ -78,8 +88,20 @@ def format_utc(moment: datetime) -> str:
     return moment.astimezone(UTC).strftime(UTC_FORMAT)
 
 
+_STAMP = re.compile(r"(\d{4})-(\d\d)-(\d\d)T(\d\d):(\d\d):(\d\d)(?:\.(\d{6}))?Z", re.ASCII)
+
+
 def parse_utc(text: str) -> datetime:
-    """A stored stamp, 'YYYY-MM-DDTHH:MM:SSZ' (or with six decimals of a second)."""
+    """A stored stamp, 'YYYY-MM-DDTHH:MM:SSZ' (or with six decimals of a second).
+
+    One in exactly that form is built from its digits; anything else, and a stamp whose
+    numbers are out of range, goes to strptime, which answers or refuses it as it always has
+    (the first strptime loads _strptime and locale, a few ms off the start path)."""
+    if (found := _STAMP.fullmatch(text)) is not None:
+        try:
+            return datetime(*map(int, found.groups("0")), tzinfo=UTC)
+        except ValueError:
+            pass  # strptime's own refusal follows
     if len(text) == 27 and text[19] == ".":
         return datetime.strptime(text, "%Y-%m-%dT%H:%M:%S.%fZ").replace(tzinfo=UTC)
     return datetime.strptime(text, UTC_FORMAT).replace(tzinfo=UTC)
@@ -92,9 +114,9 @@ def zone(name: str | None) -> tzinfo:
     conversions are about 15 times quicker, which counts in a year's export), python-dateutil's
     own copy otherwise (Windows without the tzdata package)."""
     if not name:
-        return tz.tzlocal()
+        return _tz().tzlocal()
     name = _zone_name(name)  # never a path: a stored '../../etc/passwd' is refused
-    found = _zoneinfo(name) or tz.gettz(name)
+    found = _zoneinfo(name) or _tz().gettz(name)
     if found is None:
         raise BookError(f"unknown time zone '{name}': use an IANA name such as Europe/Berlin")
     return found
@@ -149,7 +171,7 @@ def parse_time(
 CLOCK_RE = re.compile(r"^(?:(today|yesterday)\s+)?([01]?\d|2[0-3]):([0-5]\d)$", re.IGNORECASE)
 
 
-@dataclass(frozen=True)
+@frozen_record
 class TypedTime:
     at: datetime  # UTC
     day: str  # "today" or "yesterday" when the date was taken for the person, else ""
@@ -197,7 +219,7 @@ def iso_local(moment: datetime, local: tzinfo) -> str:
     return moment.astimezone(local).isoformat(timespec="seconds")
 
 
-@dataclass(frozen=True)
+@frozen_record
 class ShiftSpan:
     name: str
     day: date  # local date on which the shift starts
@@ -216,7 +238,7 @@ def _wall(day: date, hhmm: str, local: tzinfo) -> datetime:
     hour, minute = (int(x) for x in hhmm.split(":"))
     moment = datetime.combine(day, time(hour, minute), tzinfo=local)
     # A start inside the spring-forward gap begins at the first valid local minute after it.
-    while not tz.datetime_exists(moment):
+    while not _tz().datetime_exists(moment):
         moment = (moment + timedelta(minutes=1)).replace(tzinfo=local)
     return moment.astimezone(UTC)
 

@@ -12,13 +12,11 @@ from __future__ import annotations
 import math
 import re
 import zoneinfo
-from dataclasses import dataclass
 from datetime import UTC, datetime, timedelta
 from typing import Any
 
-from dateutil import tz
-
 from store.base.errors import BookError
+from store.base.records import frozen_record
 from store.base.units import AmbiguousNumberError, read_number
 
 # The kinds a book knows; the schema's CHECK constraints are written from these.
@@ -29,7 +27,7 @@ ENTRY_KINDS = ("reading", "change", "topup", "breather", "sample", "note", "void
 # ---- numbers --------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
+@frozen_record
 class Range:
     """A field's physical range: `low`..`high` in `unit`; `open_low` refuses `low` itself."""
 
@@ -232,6 +230,8 @@ def timezone_name(name: Any) -> str:
             zoneinfo.ZoneInfo(clean)
             return clean
         except (zoneinfo.ZoneInfoNotFoundError, ValueError, OSError):
+            from dateutil import tz  # deferred: only a zone zoneinfo does not know needs it
+
             if tz.gettz(clean) is not None:
                 return clean
     raise BookError(

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import os
-import shutil
 import sqlite3
 import threading
 from collections.abc import Callable, Iterator
@@ -393,6 +392,8 @@ def upgrade_beside(path: Path, version: int) -> list[str]:
                 copy_to(current, original)
             finally:
                 current.close()
+            import shutil  # deferred: only an upgrade copies the file
+
             shutil.copyfile(original, side)
         except (OSError, sqlite3.Error) as exc:
             raise BookError(f"could not copy {path} for its upgrade: {exc}") from exc

@@ -14,10 +14,10 @@ from __future__ import annotations
 import json
 from array import array
 from collections.abc import Sequence
-from dataclasses import dataclass
 from datetime import datetime
 from typing import Any
 
+from store.base.records import frozen_record
 from store.base.timeutil import format_utc
 from store.db.book import Book
 from store.health.conditions import FilterContext
@@ -97,7 +97,7 @@ def _decode_element(text: str, curve: bytes) -> ElementSummary:
     )
 
 
-@dataclass(frozen=True)
+@frozen_record
 class _State:
     context: str
     seen_rowid: int
@@ -189,7 +189,7 @@ def _write_elements(
     )
 
 
-@dataclass(frozen=True)
+@frozen_record
 class Elements:
     """A position's elements as the live entries stand."""
 

@@ -9,9 +9,10 @@ are said in the result.
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import field
 
 from store.base.errors import BookError
+from store.base.records import frozen_record
 from store.db.book import Book
 from store.ledger.entries import Reading
 from store.ledger.register import FilterPosition, Fluid, Unit, find, get, list_all, list_shifts
@@ -19,7 +20,7 @@ from store.physics.fluid import FluidSpec, ViscosityCurve, resolve_curve
 from store.physics.normalise import ReferenceCondition, normalise_dp_bar, reference_for
 
 
-@dataclass(frozen=True)
+@frozen_record
 class FilterContext:
     position: FilterPosition
     unit: Unit
@@ -33,7 +34,7 @@ class FilterContext:
     )
 
 
-@dataclass(frozen=True)
+@frozen_record
 class Normalised:
     """One reading with its reference value, or the reason there is none."""
 

@@ -11,16 +11,17 @@ from __future__ import annotations
 
 import bisect
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import field
 from datetime import datetime
 
+from store.base.records import frozen_record
 from store.health.conditions import FilterContext, dp_ref_bar
 from store.ledger.entries import ElementChange, Entry, Reading
 
 REACHED_REASONS = ("limit", "indicator", "bypass")
 
 
-@dataclass(frozen=True)
+@frozen_record
 class Point:
     """One reading of an element, at its age."""
 
@@ -35,7 +36,7 @@ class Point:
     entry_id: str
 
 
-@dataclass(frozen=True)
+@frozen_record
 class Element:
     """One element's time on the housing."""
 
@@ -289,7 +290,7 @@ def split_summaries(
     return past, _element(*groups[-1], hour_meter)
 
 
-@dataclass(frozen=True)
+@frozen_record
 class ElementSummary:
     """What the status needs of an element that has been taken out: kept in the derived
     element cache so that a status never rereads the history of earlier elements.

@@ -3,11 +3,10 @@
 from __future__ import annotations
 
 import re
-import statistics
 from collections.abc import Sequence
-from dataclasses import dataclass
 from datetime import datetime, timedelta
 
+from store.base.records import frozen_record
 from store.ledger.entries import BreatherSwap, Entry, Reading, Sample, TopUp
 from store.ledger.register import Breather, FilterPosition, Unit
 from store.physics.cleanliness import compare_to_target, parse_code
@@ -18,7 +17,7 @@ LEAK_FACTOR = 2.0  # recent use this many times the unit's own history counts as
 MIN_HISTORY_DAYS = 56
 
 
-@dataclass(frozen=True)
+@frozen_record
 class Consumption:
     """Fluid added per week (calendar) and per 100 operating hours where known."""
 
@@ -96,7 +95,7 @@ def hot_readings(unit: Unit, readings: Sequence[Reading]) -> list[Reading]:
     ]
 
 
-@dataclass(frozen=True)
+@frozen_record
 class SampleVerdict:
     sample: Sample
     code: str | None
@@ -118,6 +117,17 @@ def sample_verdict(unit: Unit, sample: Sample) -> SampleVerdict:
 _FRACTION = re.compile(r"(\d+)\s*/\s*(\d+)|(\d+(?:\.\d+)?)\s*%")
 
 
+def _median(values: Sequence[float]) -> float:
+    """The middle value, or the mean of the two middle ones: statistics.median's own rule
+    (Python 3.11's source), without loading statistics (and fractions, decimal) on the start
+    path."""
+    ordered = sorted(values)
+    half = len(ordered) // 2
+    if len(ordered) % 2 == 1:
+        return ordered[half]
+    return (ordered[half - 1] + ordered[half]) / 2
+
+
 def spent_fraction(condition: str) -> float | None:
     """'2/3 spent' -> 0.67, '80 %' -> 0.8, 'spent'/'exhausted' -> 1.0, 'fresh' -> 0.0."""
     text = condition.lower()
@@ -134,7 +144,7 @@ def spent_fraction(condition: str) -> float | None:
     return None
 
 
-@dataclass(frozen=True)
+@frozen_record
 class BreatherForecast:
     last_swap: datetime | None
     due: datetime | None
@@ -158,7 +168,7 @@ def breather_forecast(
         if fraction and fraction >= 0.2 and days > 0:
             lives.append(days / fraction)
     if lives:
-        interval_d = min(0.9 * statistics.median(lives), 2 * breather.swap_interval_d)
+        interval_d = min(0.9 * _median(lives), 2 * breather.swap_interval_d)
         basis = "condition"
     last = live[-1].at if live else None
     due = last + timedelta(days=interval_d) if last else None

@@ -5,8 +5,10 @@ row never holds English to patch. Rewording one changes the kept rows' format
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import field
 from typing import Any
+
+from store.base.records import frozen_record
 
 NOTE_TEXT = {
     "no-limits": "set the change limit and bypass ΔP to get a due date",
@@ -40,7 +42,7 @@ NOTE_TEXT = {
 }
 
 
-@dataclass(frozen=True)
+@frozen_record
 class Note:
     """One note of a filter's status: a code of NOTE_TEXT and what fills its blanks. A
     "forecast" note with `at_h` gets the check-now words when the status is check-now."""

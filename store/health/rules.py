@@ -8,9 +8,9 @@ the element's readings show (`Facts`)."""
 from __future__ import annotations
 
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
+from store.base.records import frozen_record
 from store.health.elements import Point
 from store.health.notes import Note
 from store.physics.normalise import ColdStart
@@ -48,7 +48,7 @@ def service_life(
     return [(None, Note("service-life", {"b10_h": fit.age_at_fraction_h(0.10)}))]
 
 
-@dataclass(frozen=True)
+@frozen_record
 class Facts:
     limit_bar: float | None
     bypass_bar: float | None

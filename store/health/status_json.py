@@ -5,8 +5,6 @@ from __future__ import annotations
 
 from typing import Any
 
-from dateutil import tz
-
 from store.base.timeutil import iso_local
 from store.health.status_model import Due, FilterStatus, Watch
 
@@ -80,7 +78,10 @@ def _filter_json(f: FilterStatus, local: Any) -> dict[str, Any]:
 
 
 def to_json(w: Watch, local: Any = None) -> dict[str, Any]:
-    local = local or tz.UTC
+    if not local:
+        from dateutil import tz  # deferred: status --json is always given the plant's zone
+
+        local = tz.UTC
     return {
         "as_of": iso_local(w.as_of, local),
         "filters": [_filter_json(f, local) for f in w.filters],

@@ -18,11 +18,12 @@ import math
 from array import array
 from base64 import b64decode, b64encode
 from collections.abc import Sequence
-from dataclasses import asdict, dataclass, field, fields, replace
+from dataclasses import asdict, field, fields, replace
 from datetime import datetime, timedelta
 from functools import partial
 from typing import TYPE_CHECKING, Any, NamedTuple
 
+from store.base.records import frozen_record
 from store.base.timeutil import format_utc
 from store.health import urgency as ranking
 from store.health.elements import Point
@@ -74,7 +75,7 @@ def _moment(text: str | None) -> datetime | None:
 _from_iso = datetime.fromisoformat
 
 
-@dataclass(frozen=True)
+@frozen_record
 class Due:
     earliest: datetime
     likely: datetime
@@ -115,7 +116,7 @@ def due_of(interval: trend.AgeInterval | _Ages | None, age_to_time: Any) -> Due 
     return Due(at(interval.earliest_h), at(interval.likely_h), latest)
 
 
-@dataclass(frozen=True)
+@frozen_record
 class LifeSummary:
     b10_h: float
     b50_h: float
@@ -131,7 +132,7 @@ def weibull_remaining_h(shape: float, scale_h: float, age_h: float, p: float) ->
     return scale_h * (z - math.log1p(-p)) ** (1.0 / shape) - max(age_h, 0.0)
 
 
-@dataclass(frozen=True)
+@frozen_record
 class Clock:
     """What of a filter's status moves with the clock alone, and what it moves from (the
     entries only). The status cache keeps it beside the row, so that `at_time` gives the
@@ -265,7 +266,7 @@ def clock_parts(
     }
 
 
-@dataclass(frozen=True)
+@frozen_record
 class FilterStatus:
     filter: str
     unit: str
@@ -394,7 +395,7 @@ ROW_FIELDS = tuple(f.name for f in fields(FilterStatus) if f.name not in _NOT_KE
 _ROW_TIMES = ("reading_at", "changed_at", "overdue_at", "next_reading")
 
 
-@dataclass(frozen=True)
+@frozen_record
 class BreatherStatus:
     breather: str
     unit: str
@@ -408,7 +409,7 @@ class BreatherStatus:
         return ranking.order_key(self.flags, fc.overdue, fc.due, None, self.breather)
 
 
-@dataclass(frozen=True)
+@frozen_record
 class UnitStatus:
     unit: str
     name: str
@@ -421,7 +422,7 @@ class UnitStatus:
     notes: tuple[str, ...]
 
 
-@dataclass(frozen=True)
+@frozen_record
 class Watch:
     as_of: datetime
     filters: tuple[FilterStatus, ...]
@@ -429,7 +430,7 @@ class Watch:
     units: tuple[UnitStatus, ...]
 
 
-@dataclass(frozen=True)
+@frozen_record
 class UnitClock:
     """What a unit's status is worked out from at any time from `valid_from` on (when it was
     computed): the entries only, so the status cache keeps it instead of the status."""

@@ -6,14 +6,15 @@ it; both stay in the book. Adding a kind: see DEVELOPERS.md.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field, fields
+from dataclasses import field, fields
 from datetime import datetime
 from typing import Any, ClassVar
 
+from store.base.records import frozen_record
 from store.base.timeutil import parse_utc
 
 
-@dataclass(frozen=True, kw_only=True)
+@frozen_record(kw_only=True)
 class Entry:
     """What every entry has. `id` and `at` are filled in by `journal.log` when left empty."""
 
@@ -37,7 +38,7 @@ class Entry:
         return self.voided_by is not None
 
 
-@dataclass(frozen=True, kw_only=True)
+@frozen_record(kw_only=True)
 class Reading(Entry):
     """A ΔP gauge value and/or the indicator's state, with the fluid temperature."""
 
@@ -55,7 +56,7 @@ class Reading(Entry):
         return self.filter
 
 
-@dataclass(frozen=True, kw_only=True)
+@frozen_record(kw_only=True)
 class ElementChange(Entry):
     kind: ClassVar[str] = "change"
     target_table: ClassVar[str | None] = "filters"
@@ -70,7 +71,7 @@ class ElementChange(Entry):
         return self.filter
 
 
-@dataclass(frozen=True, kw_only=True)
+@frozen_record(kw_only=True)
 class TopUp(Entry):
     kind: ClassVar[str] = "topup"
     target_table: ClassVar[str | None] = "units"
@@ -80,7 +81,7 @@ class TopUp(Entry):
     hours: float | None = None
 
 
-@dataclass(frozen=True, kw_only=True)
+@frozen_record(kw_only=True)
 class BreatherSwap(Entry):
     kind: ClassVar[str] = "breather"
     target_table: ClassVar[str | None] = "breathers"
@@ -93,7 +94,7 @@ class BreatherSwap(Entry):
         return self.breather
 
 
-@dataclass(frozen=True, kw_only=True)
+@frozen_record(kw_only=True)
 class Sample(Entry):
     """A fluid sample result: counts per mL at ≥4/≥6/≥14 µm(c) and/or the code, water."""
 
@@ -106,13 +107,13 @@ class Sample(Entry):
     water_ppm: float | None = None
 
 
-@dataclass(frozen=True, kw_only=True)
+@frozen_record(kw_only=True)
 class Note(Entry):
     kind: ClassVar[str] = "note"
     target_table: ClassVar[str | None] = "units"
 
 
-@dataclass(frozen=True, kw_only=True)
+@frozen_record(kw_only=True)
 class Void(Entry):
     """Cancels an earlier entry; `note` holds the reason."""
 

@@ -10,12 +10,13 @@ from __future__ import annotations
 
 import functools
 import sqlite3
-from dataclasses import asdict, dataclass, fields
+from dataclasses import asdict, fields
 from datetime import datetime
 from typing import Any, TypeVar
 
 from store.base import validate
 from store.base.errors import BookError
+from store.base.records import frozen_record
 from store.base.timeutil import format_utc, parse_utc
 from store.base.validate import FILTER_KINDS
 from store.db.book import Book
@@ -25,14 +26,14 @@ from store.physics.fluid import iso_vg_limits
 TAG_RE = validate.TAG_RE
 
 
-@dataclass(frozen=True, kw_only=True)
+@frozen_record(kw_only=True)
 class Technician:
     tag: str
     name: str = ""
     active: bool = True
 
 
-@dataclass(frozen=True, kw_only=True)
+@frozen_record(kw_only=True)
 class Fluid:
     tag: str
     name: str = ""
@@ -43,7 +44,7 @@ class Fluid:
     density_kg_l: float | None = None
 
 
-@dataclass(frozen=True, kw_only=True)
+@frozen_record(kw_only=True)
 class Unit:
     tag: str
     name: str = ""
@@ -57,7 +58,7 @@ class Unit:
     target_code: str | None = None
 
 
-@dataclass(frozen=True, kw_only=True)
+@frozen_record(kw_only=True)
 class FilterPosition:
     tag: str
     unit: str
@@ -99,7 +100,7 @@ def sizing_doubt(position: FilterPosition) -> str | None:
     )
 
 
-@dataclass(frozen=True, kw_only=True)
+@frozen_record(kw_only=True)
 class Breather:
     tag: str
     unit: str
@@ -108,7 +109,7 @@ class Breather:
     swap_interval_d: float = 90.0
 
 
-@dataclass(frozen=True, kw_only=True)
+@frozen_record(kw_only=True)
 class Shift:
     name: str
     starts: str  # local wall-clock "HH:MM"
@@ -347,7 +348,7 @@ def register_history(book: Book, tag: str) -> list[dict[str, Any]]:
     return _rows(book, "SELECT * FROM register_log WHERE tag = ? ORDER BY at_utc", [tag])
 
 
-@dataclass(frozen=True)
+@frozen_record
 class RegisterChange:
     """One recorded change of the register: who, when, which field, old -> new (as stored,
     canonical units). `field` is '*' for a record added; the shift pattern has tag PATTERN."""

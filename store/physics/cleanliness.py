@@ -5,9 +5,9 @@ from __future__ import annotations
 import math
 import re
 from bisect import bisect_left
-from dataclasses import dataclass
 
 from store.base.errors import BookError
+from store.base.records import frozen_record
 
 # ISO 4406 Table 1: upper limit (inclusive) of particles per mL for scale numbers 0..28.
 # The limits are rounded, not exact doublings (e.g. 1.3, 2.5, 80, 1 300), so use the table.
@@ -34,7 +34,7 @@ def _part(number: int | None) -> str:
     return ">28" if number == OVER_28 else str(number)
 
 
-@dataclass(frozen=True)
+@frozen_record
 class CleanlinessCode:
     """An ISO 4406 code; c4 is None for a two-part (microscope) code such as -/18/13."""
 
@@ -90,7 +90,7 @@ def parse_code(text: str) -> CleanlinessCode:
     return CleanlinessCode(_parse_part(c4, True), _parse_part(c6, False), _parse_part(c14, False))
 
 
-@dataclass(frozen=True)
+@frozen_record
 class CodeComparison:
     """A code against a target; excess_steps holds only the sizes over target (steps > 0)."""
 

@@ -8,9 +8,9 @@ from __future__ import annotations
 
 import math
 from bisect import bisect_left
-from dataclasses import dataclass
 
 from store.base.errors import BookError
+from store.base.records import frozen_record
 
 KELVIN_OFFSET = 273.15
 MIN_NU_CST = 2.0  # ASTM D341: below this the simple Walther form (Z = ν + 0.7) does not hold
@@ -232,7 +232,7 @@ def iso_vg_limits(grade: int) -> tuple[float, float, float]:
     return round(0.9 * mid, 6), mid, round(1.1 * mid, 6)
 
 
-@dataclass(frozen=True)
+@frozen_record
 class FluidSpec:
     """What is known about a fluid, as typed from its data sheet."""
 
@@ -243,7 +243,7 @@ class FluidSpec:
     vi: float | None = None
 
 
-@dataclass(frozen=True)
+@frozen_record
 class ViscosityCurve:
     """A Walther curve through ν40 and ν100, with how those two were found."""
 

@@ -9,13 +9,13 @@ reference flow; leave it 0 when it is not known.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 
 from store.base.errors import BookError
+from store.base.records import frozen_record
 from store.physics.fluid import MIN_NU_CST, TEMP_MAX_C, TEMP_MIN_C, ViscosityCurve
 
 
-@dataclass(frozen=True)
+@frozen_record
 class ReferenceCondition:
     """The condition every ΔP is corrected to, with a label to show beside the numbers."""
 
@@ -29,7 +29,7 @@ class ReferenceCondition:
             _check_positive("reference flow", self.flow_ref_lpm, "L/min")
 
 
-@dataclass(frozen=True)
+@frozen_record
 class NormalisedReading:
     """A ΔP reading and the same reading at the reference condition."""
 
@@ -41,7 +41,7 @@ class NormalisedReading:
     reference: ReferenceCondition
 
 
-@dataclass(frozen=True)
+@frozen_record
 class ColdStart:
     """ΔP at the coldest expected start, and whether the bypass then opens."""
 

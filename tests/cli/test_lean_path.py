@@ -34,6 +34,13 @@ UPKEEP_MODULES = ("store.db.backup", "store.db.proof", "store.ledger.entry_input
 # and store/base/validate.py); `status` as a table shows the watch list through store.sheets,
 # which takes difflib for its own look-ups
 WRITE_ONLY = ("uuid", "difflib")
+# what only a typed time, a local time near a clock change, a plant without a zone or an
+# upgrade needs (deferred in store/base/timeutil.py, store/base/validate.py,
+# store/health/status_json.py and store/db/book.py); the breathers' median is worked out
+# without `statistics` (store/health/fluidcare.py); a stored stamp in its one form is read
+# without strptime (store/base/timeutil.py: parse_utc). A fixed clock (SUMPBOOK_NOW) is read
+# by dateutil's ISO parser, so the runs below that set one are not checked for it.
+TIME_RULES = ("dateutil", "statistics", "_strptime")
 LEAN_COMMANDS = [
     ["status"],
     ["status", "--json"],
@@ -56,6 +63,11 @@ def heavy(names: set[str]) -> list[str]:
         or n in UPKEEP_MODULES
         or n.startswith("store.forecast.")
     )
+
+
+def time_rules(names: set[str]) -> list[str]:
+    """The modules among `names` that only typed times and clock changes need (see TIME_RULES)."""
+    return sorted(n for n in names if n.split(".")[0] in TIME_RULES)
 
 
 def write_only(names: set[str], args: list[str]) -> list[str]:
@@ -107,6 +119,7 @@ def test_quick_answers_load_no_fitting_maths_nor_textual(kept_demo, args):
     loaded = imported(book, args)
     assert heavy(loaded) == []
     assert write_only(loaded, args) == []
+    assert time_rules(loaded) == []
 
 
 def test_status_a_week_on_loads_no_fitting_maths(kept_demo, tmp_path):
@@ -170,3 +183,11 @@ def test_a_note_logged_and_a_tag_not_found_load_what_they_defer(kept_demo, tmp_p
     )  # fmt: skip
     assert done.returncode == 2 and "did you mean D2-R" in done.stderr
     assert "difflib" in modules_of(done.stderr)
+
+
+def test_a_typed_time_loads_what_the_time_rules_defer(kept_demo):
+    """The time rules are deferred, not gone: `--as-of` is read by dateutil's ISO parser (so
+    the check above would see dateutil come back onto the lean path)."""
+    book, now = kept_demo
+    loaded = imported(book, ["status", "--json", "--as-of", now])
+    assert "dateutil.parser.isoparser" in time_rules(loaded)

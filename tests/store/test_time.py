@@ -21,7 +21,7 @@ from store import record
 from store.base.errors import BookError
 from store.base.prefs import Prefs
 from store.base.session import fixed_clock
-from store.base.timeutil import parse_time, shift_at, shift_named, zone
+from store.base.timeutil import parse_time, parse_utc, shift_at, shift_named, zone
 from store.exchange.csvexport import write_span
 from store.exchange.csvio import import_csv
 from store.ledger import journal
@@ -183,3 +183,52 @@ def test_a_bare_clock_is_today_or_yesterday_when_still_ahead():
         parse_typed_time("2026-05-15 08:00", local, now=now)
     with pytest.raises(BookError, match="'24:10' is not a time: type HH:MM"):
         parse_typed_time("24:10", local, now=now)
+
+
+def test_parse_utc_answers_as_strptime_does():
+    """A stored stamp in its one form is built from its digits (no strptime on the start
+    path); every answer and every refusal is strptime's (Python's standard library, the
+    reference here), on stamps in range and out of it, in other forms and other digits."""
+    import random
+
+    def by_strptime(text: str) -> tuple[str, object]:
+        try:
+            if len(text) == 27 and text[19] == ".":
+                found = datetime.strptime(text, "%Y-%m-%dT%H:%M:%S.%fZ")
+            else:
+                found = datetime.strptime(text, "%Y-%m-%dT%H:%M:%SZ")
+        except ValueError as exc:
+            return "refused", str(exc)
+        return "read", found.replace(tzinfo=UTC)
+
+    def by_parse_utc(text: str) -> tuple[str, object]:
+        try:
+            return "read", parse_utc(text)
+        except ValueError as exc:
+            return "refused", str(exc)
+
+    rng = random.Random(21)
+    stamps = [
+        "2026-06-01T04:00:00Z",
+        "2026-06-01T04:00:00.123456Z",
+        "2026-02-30T00:00:00Z",
+        "0000-01-01T00:00:00Z",
+        "2026-06-01T24:00:00Z",
+        "2026-06-01T23:59:60Z",
+        "2026-06-01t04:00:00z",
+        "2026-6-01T04:00:00Z",
+        "2026-06-01T04:00:00.12Z",
+        "\u0662\u0660\u0662\u0666-06-01T04:00:00Z",  # Arabic-Indic digits: strptime reads them
+        "2026-06-01T04:00:00",
+        "9999-12-31T23:59:59.999999Z",
+    ]
+    for _ in range(3000):
+        stamp = (
+            f"{rng.randint(0, 9999):04d}-{rng.randint(0, 14):02d}-{rng.randint(0, 32):02d}"
+            f"T{rng.randint(0, 25):02d}:{rng.randint(0, 61):02d}:{rng.randint(0, 62):02d}"
+        )
+        if rng.random() < 0.3:
+            stamp += f".{rng.randint(0, 999_999):06d}"
+        stamps.append(stamp + "Z")
+    assert [by_parse_utc(s) for s in stamps] == [by_strptime(s) for s in stamps]
+    assert by_parse_utc(stamps[0]) == ("read", datetime(2026, 6, 1, 4, tzinfo=UTC))
