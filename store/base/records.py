@@ -76,12 +76,8 @@ def _add_methods(cls: type) -> None:
     for fn in (__repr__, __eq__, __hash__):
         fn.__qualname__ = f"{cls.__qualname__}.{fn.__name__}"
         setattr(cls, fn.__name__, fn)
+    # The parameters as `dataclass` would have recorded them: every one as given, repr and eq
+    # on (3.12 and later record more of them than 3.11: take whatever the class holds).
     params = cls.__dataclass_params__  # type: ignore[attr-defined]
-    cls.__dataclass_params__ = type(params)(  # type: ignore[attr-defined]
-        init=params.init,
-        repr=True,
-        eq=True,
-        order=params.order,
-        unsafe_hash=params.unsafe_hash,
-        frozen=params.frozen,
-    )
+    given = {name: getattr(params, name) for name in type(params).__slots__}
+    cls.__dataclass_params__ = type(params)(**{**given, "repr": True, "eq": True})  # type: ignore[attr-defined]
