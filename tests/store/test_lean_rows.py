@@ -19,17 +19,15 @@ from pathlib import Path
 import pytest
 
 from store import sheets, views
-from store.base.timeutil import format_utc, parse_utc
 from store.db import schema
 from store.db.book import open_book
 from store.derived import statuscache
-from store.exchange.demo import create_demo
 from store.health import status_json
 from store.health.conditions import contexts
 from store.health.status_model import FilterStatus
 from store.health.watchlist import watch_list
+from tests.kit.kept_demo import kept_demo, moved
 
-DEMO_CLOCK = "2026-11-27T12:30:00Z"  # where the demo's story ends (demo.db.sql)
 LATER = [
     timedelta(0),
     timedelta(hours=5),
@@ -43,21 +41,7 @@ IDS = ["now", "5-hours", "next-day", "a-week", "40-days", "a-year"]
 
 @pytest.fixture(scope="module")
 def kept(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Path]:
-    """The demo with its caches filled at the end of its story (as `sumpbook rebuild`)."""
-    path = tmp_path_factory.mktemp("lean") / "demo.db"
-    with create_demo(path) as book:
-        statuscache.rebuild(book)
-        book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
-    yield path
-
-
-def moved(path: Path, tmp_path: Path, later: timedelta) -> Path:
-    copy = tmp_path / "later.db"
-    copy.write_bytes(path.read_bytes())
-    with open_book(copy, create=False) as book:
-        book.set_setting("clock", format_utc(parse_utc(DEMO_CLOCK) + later))
-        book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
-    return copy
+    yield kept_demo(tmp_path_factory.mktemp("lean"))
 
 
 def test_every_demo_row_is_kept_with_its_columns(kept: Path) -> None:

@@ -13,9 +13,7 @@ the next save. The demo plant, its caches filled as `sumpbook rebuild` leaves th
 from __future__ import annotations
 
 import sqlite3
-import uuid
 from collections.abc import Iterator
-from dataclasses import replace
 from datetime import timedelta
 from pathlib import Path
 
@@ -28,9 +26,10 @@ from store.db.book import open_book
 from store.derived import statuscache
 from store.exchange.demo import create_demo
 from store.health import watchlist
-from store.ledger import journal, register
+from store.ledger import register
 from store.ledger.entries import ElementChange, Reading, TopUp, Void
 from store.ledger.register import FilterPosition
+from tests.kit.kept_demo import behind_the_hooks, pooling
 
 DEMO_CLOCK = "2026-11-27T12:30:00Z"  # where the demo's story ends (demo.db.sql)
 
@@ -130,24 +129,6 @@ def checked(monkeypatch: pytest.MonkeyPatch) -> list[dict[tuple[str, str], bool]
     return steps
 
 
-def behind_the_hooks(book, entry) -> None:
-    """Write an entry as a bulk load or another program would: no derived row kept."""
-    entry = journal.validate(book, entry, book.now())
-    entry = replace(entry, id=str(uuid.uuid4()), logged=book.now())
-    with book.atomic():
-        journal.insert(book, entry)
-
-
-def pooled_pair(book) -> tuple[str, str]:
-    """A position whose kept row leans on like positions' lives, and another of its group."""
-    reg = statuscache.register(book)
-    for tag, key in book.conn.execute("SELECT filter, key FROM status_cache ORDER BY filter"):
-        others = [t for t in reg.like.get(tag.upper(), ()) if t != tag.upper()]
-        if not key.endswith(".own") and others:
-            return tag.upper(), others[0]
-    raise AssertionError("the demo has no filter pooling like positions' lives")
-
-
 def unrelated(book, *away: str) -> str:
     """A gauged position on another unit than `away`'s, not in their like groups."""
     reg = statuscache.register(book)
@@ -193,7 +174,7 @@ def held_rows_are_the_computation(book) -> int:
 
 def test_a_reading_moves_every_row_but_its_own_filter_s_and_unit_s(path: Path, checked) -> None:
     with open_book(path, create=False) as book:
-        tag = pooled_pair(book)[0]
+        tag = pooling(book)[0]
         unit = statuscache.register(book).filter_units[tag]
         record.log(book, reading(book, tag))
         assert seen(book, "filter", tag) == newest(book)  # kept again by the save
@@ -208,7 +189,7 @@ def test_a_saved_element_change_leaves_the_positions_leaning_on_it(path: Path, c
     # must stay where they were (a reader computes them); rows of their group with enough
     # lives of their own, and every other row, move on.
     with open_book(path, create=False) as book:
-        tag, like = pooled_pair(book)
+        tag, like = pooling(book)
         before = seen(book, "filter", tag)
         record.log(book, ElementChange(filter=like, by="BM", at=book.now(), reason="limit"))
         assert seen(book, "filter", tag) == before
@@ -219,7 +200,7 @@ def test_a_saved_element_change_leaves_the_positions_leaning_on_it(path: Path, c
 
 def test_a_saved_void_moves_nothing_it_touches(path: Path, checked) -> None:
     with open_book(path, create=False) as book:
-        tag = pooled_pair(book)[0]
+        tag = pooling(book)[0]
         last = book.conn.execute(
             "SELECT id FROM entries WHERE kind = 'reading' AND filter = ? "
             "ORDER BY at_utc DESC, rowid DESC LIMIT 1",
@@ -242,7 +223,7 @@ def test_an_entry_behind_the_hooks_holds_its_rows_back_through_later_saves(
     # readings elsewhere: the rows it touched must never move on (the first save meets them
     # at the newest rowid before it, later saves further behind), the others do.
     with open_book(path, create=False) as book:
-        tag, like = pooled_pair(book)
+        tag, like = pooling(book)
         unit = statuscache.register(book).filter_units[tag]
         if write == "reading":
             behind_the_hooks(book, reading(book, tag))
@@ -274,7 +255,7 @@ def test_a_row_behind_whose_inputs_stayed_moves_on(path: Path, checked) -> None:
     # A row left a few entries back though none of them touches it (as a refresh keeps it
     # while another save lands) is checked against what came after its own rowid and moves.
     with open_book(path, create=False) as book:
-        tag, like = pooled_pair(book)
+        tag, like = pooling(book)
         other = unrelated(book, tag, like)
         record.log(book, reading(book, other, 5))
         record.log(book, reading(book, other, 4))
@@ -312,14 +293,14 @@ def limit_of(book, tag: str) -> float:
 def test_the_register_is_read_once_for_saves_one_after_another(path: Path) -> None:
     with open_book(path, create=False) as book:
         first = statuscache.register(book)
-        tag = pooled_pair(book)[0]
+        tag = pooling(book)[0]
         record.log(book, reading(book, tag))
         assert statuscache.register(book) is first
 
 
 def test_a_register_edit_on_the_same_book_is_seen_by_the_next_save(path: Path) -> None:
     with open_book(path, create=False) as book:
-        tag = pooled_pair(book)[0]
+        tag = pooling(book)[0]
         old = limit_of(book, tag)
         register.update(book, FilterPosition, tag, {"limit_bar": round(0.9 * old, 3)}, by="BM")
         assert limit_of(book, tag) == round(0.9 * old, 3)
@@ -335,7 +316,7 @@ def test_a_register_edit_by_another_connection_is_seen(path: Path) -> None:
     # Two programs on one book: the register kept by the first must not outlive an edit by
     # the second, through sumpbook or straight into the file (no history line).
     with open_book(path, create=False) as book, open_book(path, create=False) as other:
-        tag = pooled_pair(book)[0]
+        tag = pooling(book)[0]
         old = limit_of(book, tag)
         record.log(book, reading(book, tag, 2))
         register.update(other, FilterPosition, tag, {"limit_bar": round(0.8 * old, 3)}, by="AK")
@@ -364,7 +345,7 @@ def test_a_register_edit_rolled_back_is_not_kept(path: Path) -> None:
     # Read inside a transaction that is then undone, the register must be read again; and an
     # edit written afterwards at the same place in the history is seen.
     with open_book(path, create=False) as book:
-        tag = pooled_pair(book)[0]
+        tag = pooling(book)[0]
         old = limit_of(book, tag)
         with pytest.raises(BookError), book.atomic():
             register.update(book, FilterPosition, tag, {"limit_bar": round(0.7 * old, 3)})
@@ -387,7 +368,7 @@ def test_a_void_by_another_connection_dates_the_next_kept_row(path: Path) -> Non
         ).fetchone()[0]
 
     with open_book(path, create=False) as book, open_book(path, create=False) as other:
-        tag = pooled_pair(book)[0]
+        tag = pooling(book)[0]
         record.log(book, reading(book, tag, 30))
         assert statuscache._newest_input(book, tag, ()) >= (joined(book, tag) or "")
         last = other.conn.execute(

@@ -214,9 +214,8 @@ def test_kept_summaries_are_used_only_where_they_hold(demo: Path) -> None:
         assert_same(book, now)
 
 
-def test_where_nothing_came_after_the_time_the_kept_rows_stand_in(demo, monkeypatch):
-    # At the clock nothing is dated later: every filter's kept row stands for it (no fit);
-    # a week back, readings came after: those filters are computed from the entries.
+def fitted_again(monkeypatch) -> list[str]:
+    """The filters `views.watch` computes from the entries from now on (no kept row stood)."""
     computed: list[str] = []
     real = watchlist.filters_as_of
 
@@ -224,9 +223,16 @@ def test_where_nothing_came_after_the_time_the_kept_rows_stand_in(demo, monkeypa
         computed.extend(c.position.tag for c in ctxs)
         return real(book, ctxs, *args)
 
+    monkeypatch.setattr(views, "filters_as_of", spy)
+    return computed
+
+
+def test_where_nothing_came_after_the_time_the_kept_rows_stand_in(demo, monkeypatch):
+    # At the clock nothing is dated later: every filter's kept row stands for it (no fit);
+    # a week back, readings came after: those filters are computed from the entries.
+    computed = fitted_again(monkeypatch)
     with open_book(demo, create=False) as book:
         now = book.now()
-        monkeypatch.setattr(views, "filters_as_of", spy)
         views.watch(book, as_of=now)
         assert computed == []
         views.watch(book, as_of=now - timedelta(days=7))
@@ -241,18 +247,11 @@ def test_rows_kept_later_stand_for_an_earlier_time_their_inputs_reach(demo, monk
     # book's clock, later than the time asked for. A filter whose inputs are all dated at or
     # before that time is not fitted again; one with a later input is. Either way the list
     # is the computation from the entries as they stood (assert_same).
-    computed: list[str] = []
-    real = watchlist.filters_as_of
-
-    def spy(book, ctxs, *args):
-        computed.extend(c.position.tag for c in ctxs)
-        return real(book, ctxs, *args)
-
+    computed = fitted_again(monkeypatch)
     with open_book(demo, create=False) as book:
         (last,) = book.conn.execute("SELECT max(at_utc) FROM entries").fetchone()
         at = parse_utc(last)
         assert at < book.now()  # the rows were kept after the time asked for
-        monkeypatch.setattr(views, "filters_as_of", spy)
         views.watch(book, as_of=at)
         assert computed == []
         # An hour before the newest entry: its filter (at least) came later.

@@ -14,7 +14,6 @@ from __future__ import annotations
 import hashlib
 import os
 import stat
-import uuid
 from collections.abc import Iterator
 from dataclasses import replace
 from datetime import timedelta
@@ -23,17 +22,14 @@ from pathlib import Path
 import pytest
 
 from store import record, sheets, views
-from store.base.timeutil import format_utc, parse_utc
 from store.db.book import open_book
 from store.derived import statuscache
-from store.exchange.demo import create_demo
 from store.forecast.life import WeibullFit
 from store.health import status_json, status_model, watchlist
-from store.ledger import journal
 from store.ledger.entries import ElementChange, Reading, Void
 from store.ledger.register import Unit, list_all
+from tests.kit.kept_demo import behind_the_hooks, kept_demo, moved, pooling
 
-DEMO_CLOCK = "2026-11-27T12:30:00Z"  # where the demo's story ends (demo.db.sql)
 LATER = [timedelta(0), timedelta(days=1, hours=3), timedelta(weeks=1), timedelta(days=365)]
 
 
@@ -43,22 +39,7 @@ def digest(path: Path) -> str:
 
 @pytest.fixture(scope="module")
 def kept(tmp_path_factory: pytest.TempPathFactory) -> Iterator[Path]:
-    """The demo with its caches filled at the end of its story (as `sumpbook rebuild`)."""
-    path = tmp_path_factory.mktemp("timeproof") / "demo.db"
-    with create_demo(path) as book:
-        statuscache.rebuild(book)
-        book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
-    yield path
-
-
-def moved(path: Path, tmp_path: Path, later: timedelta) -> Path:
-    """A copy of the book with its frozen clock moved on."""
-    copy = tmp_path / "later.db"
-    copy.write_bytes(path.read_bytes())
-    with open_book(copy, create=False) as book:
-        book.set_setting("clock", format_utc(parse_utc(DEMO_CLOCK) + later))
-        book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
-    return copy
+    yield kept_demo(tmp_path_factory.mktemp("timeproof"))
 
 
 @pytest.mark.parametrize("later", LATER, ids=["now", "next-day", "a-week", "a-year"])
@@ -204,24 +185,6 @@ def test_the_numpy_free_remaining_life_is_the_weibull_fit_s(age_h: float, p: flo
     assert status_model.weibull_remaining_h(1.7, 1900.0, age_h, p) == fit.remaining_quantile_h(
         age_h, p
     )
-
-
-def behind_the_hooks(book, entry) -> None:
-    """Write an entry as a bulk load or another program would: no derived row kept."""
-    entry = journal.validate(book, entry, book.now())
-    entry = replace(entry, id=str(uuid.uuid4()), logged=book.now())
-    with book.atomic():
-        journal.insert(book, entry)
-
-
-def pooling(book) -> tuple[str, str]:
-    """A filter whose kept row leans on like positions' lives, and one of those positions."""
-    reg = statuscache.register(book)
-    for tag, key in book.conn.execute("SELECT filter, key FROM status_cache ORDER BY filter"):
-        others = [t for t in reg.like.get(tag.upper(), ()) if t != tag.upper()]
-        if not key.endswith(".own") and others:
-            return tag.upper(), others[0]
-    raise AssertionError("the demo has no filter pooling like positions' lives")
 
 
 MOVES = ["reading", "void", "register", "outside-register", "like-change", "format"]
