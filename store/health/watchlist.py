@@ -20,8 +20,14 @@ from store.health.status import filter_status, status_from
 from store.health.status_model import BreatherStatus, FilterStatus, UnitStatus, Watch
 from store.health.units import unit_status
 from store.ledger.entries import Entry
-from store.ledger.journal import breather_swaps, element_items_until, live_changes_until, read
-from store.ledger.register import Breather, FilterPosition, Fluid, Unit, list_all
+from store.ledger.journal import (
+    SwapMark,
+    breather_swap_marks,
+    element_items_until,
+    live_changes_until,
+    read,
+)
+from store.ledger.register import Breather, FilterPosition, Fluid, Unit, list_all, read_all
 
 
 def status_as_of(book: Book, ctx: FilterContext, as_of: datetime) -> FilterStatus:
@@ -101,9 +107,9 @@ def breathers_at(book: Book, now: datetime, unit: str | None = None) -> list[Bre
     """Every breather's status at `now` (of one unit), most urgent first."""
     until = now + timedelta(seconds=1)
     breathers = []
-    all_swaps = breather_swaps(book, until)
-    for b in list_all(book, Breather, unit):
-        swaps = [e for e in all_swaps.get(b.tag.upper(), []) if not e.voided]
+    all_swaps = breather_swap_marks(book, until)  # only what the forecast reads
+    for b in read_all(book, Breather) if unit is None else list_all(book, Breather, unit):
+        swaps = [s for s in all_swaps.get(b.tag.upper(), []) if not s.voided]
         breathers.append(_breather_status(b, swaps, now))
     breathers.sort(key=lambda s: s.urgency)
     return breathers
@@ -140,7 +146,9 @@ def watch_as_of(book: Book, as_of: datetime, unit: str | None = None) -> Watch:
     return watch_list(as_of, filters, breathers_at(book, as_of, unit), units)
 
 
-def _breather_status(breather: Breather, swaps: Sequence[Entry], now: datetime) -> BreatherStatus:
+def _breather_status(
+    breather: Breather, swaps: Sequence[SwapMark], now: datetime
+) -> BreatherStatus:
     forecast = breather_forecast(breather, swaps, now)  # type: ignore[arg-type]
     flags = []
     if forecast.overdue:

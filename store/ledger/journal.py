@@ -8,7 +8,7 @@ import sqlite3
 import threading
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from contextlib import contextmanager
-from dataclasses import fields, replace
+from dataclasses import dataclass, fields, replace
 from datetime import datetime
 from typing import Any
 
@@ -614,6 +614,52 @@ def breather_swaps(book: Book, until: datetime | None = None) -> dict[str, list[
     out: dict[str, list[Entry]] = {}
     for entry in entries_from_rows(book, book.conn.execute(sql, params).fetchall()):
         out.setdefault(entry.breather.upper(), []).append(entry)  # type: ignore[attr-defined]
+    return out
+
+
+@dataclass(frozen=True, slots=True)
+class SwapMark:
+    """What a breather's forecast reads of a swap (store.health.fluidcare.breather_forecast):
+    when it was, the desiccant as found ("" when not said), and whether it is voided."""
+
+    at: datetime
+    condition: str
+    voided: bool
+
+
+_SWAP_MARKS = (
+    f"SELECT e.breather, {_SOUND_AT}, e.logged_utc, e.condition, e.id, v.id "
+    "FROM entries e LEFT JOIN entries v ON v.voids = e.id{void_until} "
+    "WHERE e.breather IS NOT NULL AND e.kind = 'breather'{until} "
+    "ORDER BY e.breather, e.at_utc, e.rowid"
+)
+
+
+def breather_swap_marks(book: Book, until: datetime | None = None) -> dict[str, list[SwapMark]]:
+    """`breather_swaps` read as only what a forecast needs: the same swaps in the same order,
+    keyed the same, a row that cannot be read noted and left out as there (a voided one left
+    out silently), with no entry built (a third of the time on the year's book)."""
+    params: list[Any] = []
+    void_until = until_sql = ""
+    if until is not None:
+        stamp = format_utc(until)
+        void_until, until_sql, params = " AND v.at_utc < ?", " AND e.at_utc < ?", [stamp, stamp]
+    sql = _SWAP_MARKS.format(void_until=void_until, until=until_sql)
+    out: dict[str, list[SwapMark]] = {}
+    for tag, at, logged, condition, entry_id, voided_by in book.conn.execute(sql, params):
+        try:  # what `_entry` parses, in its order: the same rows fail with the same message
+            when = parse_stamp(at)
+            parse_stamp(logged)
+        except ROW_ERRORS as exc:
+            if voided_by is None:
+                note_unreadable(book, entry_id, _row_problem(exc))
+            continue
+        mark = SwapMark(when, "" if condition is None else condition, voided_by is not None)
+        found = out.get(tag.upper())
+        if found is None:
+            out[tag.upper()] = [mark]
+        else:
+            found.append(mark)
     return out
 
 
