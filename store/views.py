@@ -30,7 +30,7 @@ from store.health.watchlist import (
     status_as_of,
     watch_list,
 )
-from store.ledger.register import FilterPosition, Unit, list_all, read_all
+from store.ledger.register import FilterPosition, Unit, list_all
 
 
 def watch(book: Book, as_of: datetime | None = None, unit: str | None = None) -> Watch:
@@ -42,7 +42,7 @@ def watch(book: Book, as_of: datetime | None = None, unit: str | None = None) ->
     now = book.now()
     # The plant as watchlist.plant covers it, without the contexts (built only for a row that
     # must be computed: see statuscache.watch_filters).
-    all_units, positions = read_all(book, Unit), read_all(book, FilterPosition)
+    all_units, positions = list_all(book, Unit), list_all(book, FilterPosition)
     by_unit: dict[str, list[FilterPosition]] = {}
     for position in positions:
         by_unit.setdefault(position.unit.upper(), []).append(position)

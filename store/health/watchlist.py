@@ -27,7 +27,7 @@ from store.ledger.journal import (
     live_changes_until,
     read,
 )
-from store.ledger.register import Breather, FilterPosition, Fluid, Unit, list_all, read_all
+from store.ledger.register import Breather, FilterPosition, Fluid, Unit, list_all
 
 
 def status_as_of(book: Book, ctx: FilterContext, as_of: datetime) -> FilterStatus:
@@ -108,7 +108,7 @@ def breathers_at(book: Book, now: datetime, unit: str | None = None) -> list[Bre
     until = now + timedelta(seconds=1)
     breathers = []
     all_swaps = breather_swap_marks(book, until)  # only what the forecast reads
-    for b in read_all(book, Breather) if unit is None else list_all(book, Breather, unit):
+    for b in list_all(book, Breather, unit):
         swaps = [s for s in all_swaps.get(b.tag.upper(), []) if not s.voided]
         breathers.append(_breather_status(b, swaps, now))
     breathers.sort(key=lambda s: s.urgency)

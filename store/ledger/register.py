@@ -188,20 +188,15 @@ def find(book: Book, cls: type[R], tag: str) -> R | None:
 
 
 def list_all(book: Book, cls: type[R], unit: str | None = None) -> list[R]:
+    """Every record of a register (of one unit's positions or breathers), by tag: each filled
+    in from its row tuple, as its __init__ would set it (no dict per row, no keyword call: half
+    the time for the year's book's 800 positions, read on every watch list). A record class
+    with more than plain fields, or a table without one of its fields, goes through __init__."""
     table = TABLES[cls]
+    sql, params = f"SELECT * FROM {table} ORDER BY tag", []
     if unit is not None and cls in (FilterPosition, Breather):
-        rows = _rows(book, f"SELECT * FROM {table} WHERE unit = ? ORDER BY tag", [unit])
-    else:
-        rows = _rows(book, f"SELECT * FROM {table} ORDER BY tag", [])
-    return [_from_row(cls, r) for r in rows]
-
-
-def read_all(book: Book, cls: type[R]) -> list[R]:
-    """`list_all(book, cls)`: the same records in the same order, each filled in from its row
-    tuple (no dict per row, no keyword __init__; half the time for the year's book's 800
-    positions, read on every watch list). A record class with more than plain fields, or a
-    table without one of its fields, is built as `list_all` builds it."""
-    cursor = book.conn.execute(f"SELECT * FROM {TABLES[cls]} ORDER BY tag")
+        sql, params = f"SELECT * FROM {table} WHERE unit = ? ORDER BY tag", [unit]
+    cursor = book.conn.execute(sql, params)
     index = {d[0]: i for i, d in enumerate(cursor.description)}
     names = [f.name for f in fields(cls)]  # in the order __init__ sets them
     cols = [(index[n], n, n in BOOL_FIELDS) for n in names if n in index]
