@@ -597,26 +597,6 @@ def element_items_until(
     return {key: [item for _, _, item in items] for key, items in keyed.items()}
 
 
-def breather_swaps(book: Book, until: datetime | None = None) -> dict[str, list[Entry]]:
-    """Every breather's swaps in time order, keyed by upper-case tag; with `until`, as the
-    book stood then (swaps before it, voided only by voids dated before it). One pass over the
-    breather index instead of a query per breather."""
-    params: list[Any] = []
-    sql = _SELECT
-    if until is not None:
-        sql += " AND v.at_utc < ?"
-        params.append(format_utc(until))
-    sql += " WHERE e.breather IS NOT NULL AND e.kind = 'breather'"
-    if until is not None:
-        sql += " AND e.at_utc < ?"
-        params.append(format_utc(until))
-    sql += " ORDER BY e.breather, e.at_utc, e.rowid"
-    out: dict[str, list[Entry]] = {}
-    for entry in entries_from_rows(book, book.conn.execute(sql, params).fetchall()):
-        out.setdefault(entry.breather.upper(), []).append(entry)  # type: ignore[attr-defined]
-    return out
-
-
 @dataclass(frozen=True, slots=True)
 class SwapMark:
     """What a breather's forecast reads of a swap (store.health.fluidcare.breather_forecast):
@@ -636,9 +616,10 @@ _SWAP_MARKS = (
 
 
 def breather_swap_marks(book: Book, until: datetime | None = None) -> dict[str, list[SwapMark]]:
-    """`breather_swaps` read as only what a forecast needs: the same swaps in the same order,
-    keyed the same, a row that cannot be read noted and left out as there (a voided one left
-    out silently), with no entry built (a third of the time on the year's book)."""
+    """Every breather's swaps in time order, keyed by upper-case tag, as only what a forecast
+    needs (no entry built: a third of the time on the year's book); with `until`, as the book
+    stood then (swaps before it, voided only by voids dated before it). A row that cannot be
+    read is noted and left out, as `read` does (a voided one left out silently)."""
     params: list[Any] = []
     void_until = until_sql = ""
     if until is not None:

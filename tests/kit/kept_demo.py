@@ -27,6 +27,15 @@ def kept_demo(folder: Path) -> Path:
     return path
 
 
+def kept_copy(demo_file: Path, tmp_path: Path) -> Path:
+    """A copy of the demo file with its caches made (as `sumpbook rebuild`)."""
+    path = tmp_path / "demo.db"
+    path.write_bytes(demo_file.read_bytes())
+    with open_book(path, create=False) as book:
+        statuscache.rebuild(book)
+    return path
+
+
 def moved(path: Path, tmp_path: Path, later: timedelta) -> Path:
     """A copy of the book with its frozen clock moved on."""
     copy = tmp_path / "later.db"

@@ -1,6 +1,6 @@
 """The breathers of the watch list read lean: `journal.breather_swap_marks` reads only what a
 breather's forecast needs (when, the desiccant as found, voided or not). It must give what the
-swaps built as full entries (`journal.breather_swaps`) give: the same swaps in the same order,
+swaps built as full entries (`full_swaps`, through the journal's own entry reader) give: the same swaps in the same order,
 the same rows noted as unreadable, and so the same breather statuses, now and as of earlier
 times, with a voided swap, a void dated later than the time asked, unreadable rows (one of
 them voided) and for one unit.
@@ -17,11 +17,11 @@ import pytest
 from store import record, views
 from store.base.timeutil import format_utc, parse_utc
 from store.db.book import open_book
-from store.derived import statuscache
 from store.health import status_json, watchlist
 from store.ledger import journal
 from store.ledger.entries import BreatherSwap, Void
 from store.ledger.register import Breather, list_all
+from tests.kit.kept_demo import kept_copy
 
 # Rows stored past the schema's checks (as a hand edit could): a blob where a text belongs,
 # a written-at stamp that is no stamp; the last is voided, so it is left out without a word.
@@ -34,17 +34,32 @@ BAD = {
 
 @pytest.fixture
 def demo(demo_file: Path, tmp_path: Path) -> Path:
-    path = tmp_path / "demo.db"
-    path.write_bytes(demo_file.read_bytes())
-    with open_book(path, create=False) as book:
-        statuscache.rebuild(book)
-    return path
+    """The demo with its caches made; the writes the tests make keep them."""
+    return kept_copy(demo_file, tmp_path)
+
+
+def full_swaps(book, until=None) -> dict[str, list]:
+    """Every breather's swaps built as full entries by the journal's reader (the reference)."""
+    params = []
+    sql = journal._SELECT
+    if until is not None:
+        sql += " AND v.at_utc < ?"
+        params.append(format_utc(until))
+    sql += " WHERE e.breather IS NOT NULL AND e.kind = 'breather'"
+    if until is not None:
+        sql += " AND e.at_utc < ?"
+        params.append(format_utc(until))
+    sql += " ORDER BY e.breather, e.at_utc, e.rowid"
+    out: dict[str, list] = {}
+    for entry in journal.entries_from_rows(book, book.conn.execute(sql, params).fetchall()):
+        out.setdefault(entry.breather.upper(), []).append(entry)
+    return out
 
 
 def full_way(book, now, unit=None):
     """The breathers' statuses from swaps built as full entries (the reference)."""
     until = now + timedelta(seconds=1)
-    swaps = journal.breather_swaps(book, until)
+    swaps = full_swaps(book, until)
     out = [
         watchlist._breather_status(  # type: ignore[arg-type]
             b, [e for e in swaps.get(b.tag.upper(), []) if not e.voided], now
@@ -60,7 +75,7 @@ def assert_same(book, now, unit=None) -> None:
         book.unreadable.clear()
         full = {
             tag: [(e.at, e.condition, e.voided) for e in swaps]  # type: ignore[attr-defined]
-            for tag, swaps in journal.breather_swaps(book, bound).items()
+            for tag, swaps in full_swaps(book, bound).items()
         }
         noted_full = dict(book.unreadable)
         book.unreadable.clear()

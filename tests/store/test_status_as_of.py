@@ -24,6 +24,7 @@ from store.health.units import unit_status
 from store.ledger import journal
 from store.ledger.entries import ElementChange, Reading, Void
 from store.ledger.register import FilterPosition, list_all
+from tests.kit.kept_demo import kept_copy
 
 
 def by_position(book, now, unit=None) -> list[status_model.FilterStatus]:
@@ -75,13 +76,8 @@ def assert_same(book, now, unit=None) -> None:
 
 @pytest.fixture
 def demo(demo_file: Path, tmp_path: Path) -> Path:
-    """A copy of the demo with its caches made (as `sumpbook rebuild`); the writes the tests
-    make keep them."""
-    path = tmp_path / "demo.db"
-    path.write_bytes(demo_file.read_bytes())
-    with open_book(path, create=False) as book:
-        statuscache.rebuild(book)
-    return path
+    """The demo with its caches made; the writes the tests make keep them."""
+    return kept_copy(demo_file, tmp_path)
 
 
 def change_times(book) -> list:
