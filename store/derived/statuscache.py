@@ -598,6 +598,12 @@ class _Lean(FilterStatus):
     __hash__ = FilterStatus.__hash__
 
 
+def _due(earliest: str | None, likely: str, latest: str | None) -> Due | None:
+    if earliest is None:
+        return None
+    return Due(_from_iso(earliest), _from_iso(likely), _from_iso(latest) if latest else None)
+
+
 def _words(text: str) -> list[str]:
     return text.split(WORDS_APART) if text else []
 
@@ -643,18 +649,10 @@ def _from_lean(cols: tuple, now: datetime) -> FilterStatus:
                 "max_temp_c": max_temp_c,
             }
         )
-    due = bypass_due = None
-    if due_ages is None and life_shape is None:  # (otherwise clock_parts dates them again)
-        if due_e is not None:
-            due = Due(_from_iso(due_e), _from_iso(due_l), _from_iso(due_x) if due_x else None)
-        if bypass_e is not None:
-            bypass_due = Due(
-                _from_iso(bypass_e), _from_iso(bypass_l), _from_iso(bypass_x) if bypass_x else None
-            )
-    elif due_ages is None and bypass_e is not None:
-        bypass_due = Due(
-            _from_iso(bypass_e), _from_iso(bypass_l), _from_iso(bypass_x) if bypass_x else None
-        )
+    # The dates as kept, where clock_parts does not date them again from the due ages (both)
+    # or from the service life (the change's).
+    bypass_due = None if due_ages is not None else _due(bypass_e, bypass_l, bypass_x)
+    due = None if due_ages is not None or life_shape is not None else _due(due_e, due_l, due_x)
     said = _words(words)
     kept_words = (said, said if words_check is None else _words(words_check))
     overdue = None if overdue_at is None else _from_iso(overdue_at)
@@ -976,12 +974,10 @@ def lean_filters(
             out[tag] = _from_lean(row.cols, now)
         else:
             whole.append(tag)
-    for i in range(0, len(whole), 500):
-        part = whole[i : i + 500]
+    if whole:
+        sql, params = _among(whole)
         for tag, data in book.conn.execute(
-            f"SELECT upper(filter), data FROM status_cache WHERE filter IN "
-            f"({', '.join('?' for _ in part)})",
-            part,
+            f"SELECT upper(filter), data FROM status_cache WHERE filter IN {sql}", params
         ):
             out[tag] = _decode(data, now)
     return out
