@@ -41,13 +41,10 @@ import os
 import re
 import sqlite3
 import stat
-from bisect import bisect_left
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, fields
 from datetime import UTC, datetime, timedelta, tzinfo
-from itertools import compress, repeat
-from operator import itemgetter
 from pathlib import Path
 from typing import IO, Any
 
@@ -146,11 +143,6 @@ _is_stamp = re.compile(r"[0-9]{4}-[0-9]{2}-[0-9]{2}T[0-9]{2}:[0-9]{2}:[0-9]{2}Z"
 _TWO_DIGITS = [f":{n:02}" for n in range(100)]
 _MINUTE_SECOND = {m + s + "Z": m + s for m in _TWO_DIGITS for s in _TWO_DIGITS}
 _UNSEEN = object()
-_UNSHARED = object()  # what `_Memo` does not keep
-_FORMULA_SET = frozenset(FORMULA_START)
-_FIRST = itemgetter(0)
-_AFTER_HOUR = itemgetter(slice(13, None))  # a stamp's ':MM:SSZ'
-_NOT_READING = "reading".__ne__
 _MEMO_SIZE = 200_000  # distinct values remembered per memo
 _INF = float("inf")
 _ZERO = timedelta(0)
@@ -548,12 +540,7 @@ class SpanLines:
         split, end = self.split, len(plan.blank)
         minute_second = _MINUTE_SECOND
         hour = prefix = shift_from = shift_to = after_shift = ""
-        columns = _Columns(self, pieces)
         while batch := rows.fetchmany(_BATCH):
-            found = columns.lines(batch)
-            if found is not None:
-                yield found
-                continue
             lines: list[str] = []
             line = lines.append
             for row in batch:
@@ -602,156 +589,6 @@ class SpanLines:
             None if ctx is None else FilterReference(tag, ctx, self.pressure, self.temperature)
         )
         return self.references[tag]
-
-
-class _Memo(dict):
-    """A memo that makes what it lacks (`make(key)`) and keeps it as `remember` does (not
-    when made `_UNSHARED`): read with `__getitem__` through `map`, a batch's lookups run
-    without a Python call per row."""
-
-    def __init__(self, make: Callable[[Any], Any]) -> None:
-        super().__init__()
-        self.make = make
-
-    def __missing__(self, key: Any) -> Any:
-        value = self.make(key)
-        return value if value is _UNSHARED else remember(self, key, value)
-
-
-class _Columns:
-    """A batch of the span's rows made into lines a column at a time, with the pieces of
-    `SpanLines.span` (`_Pieces`): the rows are turned into columns, each column's cells are
-    looked up in a memo by `map` (made there by the row-by-row path's own code the first time),
-    and the lines are joined from the columns. The time cell's hour and the shift cell hold
-    over runs of rows that `bisect` finds in the batch (the rows are in time order).
-
-    Every reading row's cells in a batch are made the same way; the rows of other kinds and
-    the voided ones are then made whole by `SpanLines.lines` in their places. A batch with
-    anything else unusual (a stamp not in the book's own form, an hour whose offset is not
-    whole hours or changes, an id that needs quoting, values that only
-    `conditions.normalise` words, a value that fails) is left to the row-by-row path
-    (`lines` returns None)."""
-
-    def __init__(self, span_lines: SpanLines, pieces: _Pieces) -> None:
-        self.span_lines, self.pieces, self.plan = span_lines, pieces, pieces.plan
-        self.kind_cell = self.plan.blank[3]
-        self.tag_of: dict[int, str] = {}  # a signature's number -> a filter that has it
-        self.signatures = _Memo(self._signature)  # filter -> its signature's number, or None
-        self.whos = _Memo(self._who)  # (filter, unit, who) -> their cells and a comma
-        self.values = _Memo(self._value)  # (signature, ΔP, indicator, temp, flow) -> cells + ','
-        self.tails = _Memo(self._tail)  # (hour meter, note) -> the cells from the hour meter on
-        self.hour = self.prefix = self.suffix = ""  # an hour's UTC text -> ',' + local, offset
-        self.shift_from = self.shift_to = self.after = ""  # offset, shift and kind cells + ','
-
-    def lines(self, batch: list[tuple[Any, ...]]) -> list[str] | None:
-        """The batch's lines; None when the row-by-row path is to make them."""
-        try:
-            lines = self._readings(batch)
-        except Exception:  # anything unusual: the row-by-row path makes (or reports) it
-            return None
-        kinds, ids = [row[_KIND] for row in batch], [row[_ID] for row in batch]
-        odd = list(compress(range(len(batch)), map(_NOT_READING, kinds)))
-        voided = self.span_lines.voided_by
-        if voided and not voided.keys().isdisjoint(ids):
-            odd = sorted({*odd, *(i for i, entry_id in enumerate(ids) if entry_id in voided)})
-        if not odd:
-            return lines
-        whole, out, at = self.span_lines.lines, [], 0
-        for i in odd:
-            out += lines[at:i]
-            out += whole([batch[i]])
-            at = i + 1
-        out += lines[at:]
-        return out
-
-    def _readings(self, batch: list[tuple[Any, ...]]) -> list[str]:
-        """Every row's line as a reading's (see `lines`); raises _Whole for what this cannot
-        make."""
-        n = len(batch)
-        ids, stamps, _, bys, units, notes, tags, dps, indicators, temps, flows, hours = zip(
-            *batch, strict=True
-        )
-        joined = "\n".join(ids)  # the ids are their own cells: `_plain_cell` of each
-        if (
-            '"' in joined
-            or "," in joined
-            or "\r" in joined
-            or joined.count("\n") != n - 1
-            or not _FORMULA_SET.isdisjoint(map(_FIRST, ids))
-        ):
-            raise _Whole
-        minutes = list(map(_MINUTE_SECOND.get, map(_AFTER_HOUR, stamps)))
-        if None in minutes:
-            raise _Whole
-        prefixes: list[str] = []
-        afters: list[str] = []
-        clock, shifts = self.span_lines.clock, self.span_lines.shifts
-        lo = 0
-        while lo < n:
-            stamp = stamps[lo]
-            if stamp[:13] != self.hour:  # the hour's local text and offset (LocalClock)
-                if not _is_stamp(stamp):
-                    raise _Whole
-                clock.text(stamp)
-                if clock.prefix is None:  # an offset of part hours, or a change in it
-                    raise _Whole
-                self.hour, self.prefix, self.suffix = clock.hour, "," + clock.prefix, clock.suffix
-                self.shift_to = ""  # the offset's text may have changed: made again below
-            if not self.shift_from <= stamp < self.shift_to:
-                shifts.name(stamp)
-                self.shift_from, self.shift_to = shifts.start, shifts.end
-                self.after = f"{self.suffix},{shifts.cell},{self.kind_cell},"
-            # the run of rows in this hour and shift: every stamp in it begins with the hour
-            stop = min(self.hour + ";", self.shift_to)
-            hi = bisect_left(stamps, stop, lo, n)
-            prefixes += repeat(self.prefix, hi - lo)
-            afters += repeat(self.after, hi - lo)
-            lo = hi
-        signatures = map(self.signatures.__getitem__, tags)
-        values = list(
-            map(
-                self.values.__getitem__, zip(signatures, dps, indicators, temps, flows, strict=True)
-            )
-        )
-        if _UNSHARED in values:
-            raise _Whole
-        whos = map(self.whos.__getitem__, zip(tags, units, bys, strict=True))
-        tails = map(self.tails.__getitem__, zip(hours, notes, strict=True))
-        return list(
-            map("".join, zip(ids, prefixes, minutes, afters, whos, values, tails, strict=True))
-        )
-
-    def _signature(self, tag: Any) -> int | None:
-        signature = self.pieces.who(_row(filter=tag), tag)[1]
-        if signature is not None:
-            self.tag_of.setdefault(signature, tag)
-        return signature
-
-    def _who(self, key: tuple[Any, Any, Any]) -> str:
-        tag, unit, by = key
-        return self.pieces.who(_row(filter=tag, unit=unit, by=by), tag)[0] + ","
-
-    def _value(self, key: tuple[Any, ...]) -> Any:
-        signature, dp, indicator, temp, flow = key
-        tag = None if signature is None else self.tag_of[signature]
-        row = _row(filter=tag, dp_bar=dp, indicator=indicator, temp_c=temp, flow_lpm=flow)
-        text, shared = self.pieces.value(row, tag, signature, dp, temp, flow)  # type: ignore[arg-type]
-        return text + "," if shared else _UNSHARED
-
-    def _tail(self, key: tuple[Any, Any]) -> str:
-        hours, note = key
-        plan = self.plan
-        return ",".join(
-            plan.piece(_row(hours=hours, note=note), self.span_lines.split, len(plan.blank))
-        )
-
-
-def _row(**values: Any) -> list[Any]:
-    """A span query's row holding only the given columns (the rest NULL)."""
-    row: list[Any] = [None] * len(_READING_COLUMNS)
-    for name, value in values.items():
-        row[_COL[name]] = value
-    return row
 
 
 class OtherColumns:
