@@ -22,7 +22,13 @@ cell for what SQLite would write otherwise than Python) were tried and measured 
 SQLite does the span and the order. A stamp's form is tested in Python, once per hour by
 `_is_stamp` and for its minutes and seconds by one lookup (`_MINUTE_SECOND`); the GLOB in SQL
 that did it before cost more per row than the lookup. The rows come a batch at a time
-(`fetchmany`) and leave as one write per batch. The few entries of other kinds take their
+(`fetchmany`) and leave as one write per batch. An id is its own cell unless it needs quotes
+or the formula guard: that is tested for a batch's ids at once (`_plain_ids`), and id by id
+only in a batch holding such an id. Making a batch's lines a column at a time instead (memo
+lookups through `map`, the hour's runs found by `bisect`) was tried and counted under
+cachegrind: as many instructions as this loop, half again the (simulated) cache misses (December
+2026). Most of what is left lies below Python: SQLite's calls per column, the interpreter
+lock let go per row, the text encoded to UTF-8. The few entries of other kinds take their
 other columns from a second query over the same span (`OtherColumns`), not one query each.
 
 After the entries, when asked (`status=True`, what `sumpbook export` and the shift-log
