@@ -22,7 +22,13 @@ cell for what SQLite would write otherwise than Python) were tried and measured 
 SQLite does the span and the order. A stamp's form is tested in Python, once per hour by
 `_is_stamp` and for its minutes and seconds by one lookup (`_MINUTE_SECOND`); the GLOB in SQL
 that did it before cost more per row than the lookup. The rows come a batch at a time
-(`fetchmany`) and leave as one write per batch. The few entries of other kinds take their
+(`fetchmany`) and leave as one write per batch. An id is its own cell unless it needs quotes
+or the formula guard: that is tested for a batch's ids at once (`_plain_ids`), and id by id
+only in a batch holding such an id. Making a batch's lines a column at a time instead (memo
+lookups through `map`, the hour's runs found by `bisect`) was tried and counted under
+cachegrind: as many instructions as this loop, half again the (simulated) cache misses (December
+2026). Most of what is left lies below Python: SQLite's calls per column, the interpreter
+lock let go per row, the text encoded to UTF-8. The few entries of other kinds take their
 other columns from a second query over the same span (`OtherColumns`), not one query each.
 
 After the entries, when asked (`status=True`, what `sumpbook export` and the shift-log
@@ -45,6 +51,7 @@ from collections.abc import Callable, Iterable, Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, fields
 from datetime import UTC, datetime, timedelta, tzinfo
+from operator import itemgetter
 from pathlib import Path
 from typing import IO, Any
 
@@ -68,7 +75,7 @@ from store.health import urgency
 from store.health.conditions import FilterContext, contexts, normalise
 from store.health.status_model import FLAG_WORDS, Watch
 from store.ledger.entries import KINDS, TARGET_COLUMN, Reading, entry_columns
-from store.ledger.journal import ROW_ERRORS, note_unreadable, parse_stamp
+from store.ledger.journal import ROW_ERRORS, _no_gc_pauses, note_unreadable, parse_stamp
 from store.views import watch
 
 # Reading a column costs even when it is NULL, and the later in the table row the more, so
@@ -138,6 +145,29 @@ _ID, _AT, _KIND, _FILTER, _DP, _TEMP, _FLOW = (
 _plain_cell = re.compile(
     '[^",\r\n' + re.escape("".join(FORMULA_START)) + '][^",\r\n]*', re.DOTALL
 ).fullmatch
+_FIRST = itemgetter(0)
+_FORMULA_SET = frozenset(FORMULA_START)
+
+
+def _plain_ids(batch: Sequence[Sequence[Any]]) -> bool:
+    """Whether every row's id (its first column) is its own cell (`_plain_cell`), found for
+    the batch at once: no quote, comma or line break in the ids joined, and no id starting
+    as a formula does."""
+    try:
+        ids = list(map(_FIRST, batch))
+        joined = "\n".join(ids)
+        starts = set(map(_FIRST, ids))  # IndexError for an empty id
+    except (TypeError, IndexError):  # an id that is not text, or empty: row by row
+        return False
+    return (
+        '"' not in joined
+        and "," not in joined
+        and "\r" not in joined
+        and joined.count("\n") == len(ids) - 1
+        and starts.isdisjoint(_FORMULA_SET)
+    )
+
+
 _is_stamp = re.compile(r"[0-9]{4}-[0-9]{2}-[0-9]{2}T[0-9]{2}:[0-9]{2}:[0-9]{2}Z").fullmatch
 # A stamp's ':MM:SSZ' as `_is_stamp` allows it -> its ':MM:SS' (the minute and second cell text)
 _TWO_DIGITS = [f":{n:02}" for n in range(100)]
@@ -543,6 +573,7 @@ class SpanLines:
         while batch := rows.fetchmany(_BATCH):
             lines: list[str] = []
             line = lines.append
+            check_ids = not _plain_ids(batch)
             for row in batch:
                 entry_id, stamp, kind, by, unit, note, tag, dp, indicator, temp, flow, hours = row
                 try:
@@ -575,7 +606,7 @@ class SpanLines:
                         shifts.name(stamp)
                         shift_from, shift_to = shifts.start, shifts.end
                         after_shift = f"{clock.suffix},{shifts.cell},{kind_cell},"
-                    if not _plain_cell(entry_id):
+                    if check_ids and not _plain_cell(entry_id):
                         entry_id = csv_field(entry_id)
                     line(f"{entry_id},{prefix}{minute}{after_shift}{who[0]},{value},{tail}")
                 except (_Whole, *ROW_ERRORS):  # `lines` writes it (or reports it and leaves it out)
@@ -691,7 +722,8 @@ def write_span(
     handover follow the entries (`status_rows`) and the header has their columns."""
     start_text = None if start is None else format_utc(start)
     end_text = None if end is None else format_utc(end)
-    with read_snapshot(book.conn):
+    # the cyclic collector held as journal.read holds it: its passes would find no cycles
+    with read_snapshot(book.conn), _no_gc_pauses():
         span_lines = SpanLines(book, prefs, local, pattern)
         batches = span_lines.span(start_text, end_text)
         if not status:

@@ -35,7 +35,14 @@ from store.base.session import fixed_clock
 from store.base.timeutil import format_utc, iso_local, next_shift, previous_shift, shift_at, zone
 from store.db.book import Book, open_book
 from store.exchange.csvcolumns import header
-from store.exchange.csvexport import FilterReference, LocalClock, csv_field, write_span
+from store.exchange.csvexport import (
+    FilterReference,
+    LocalClock,
+    _plain_cell,
+    _plain_ids,
+    csv_field,
+    write_span,
+)
 from store.exchange.csvio import import_csv
 from store.exchange.demo import create_demo
 from store.health.conditions import contexts
@@ -635,3 +642,18 @@ def test_the_second_query_read_a_few_rows_at_a_time_changes_nothing(plant, monke
     assert_same(plant, None, None, Prefs())
     assert_same(plant, datetime(YEAR, 4, 1, tzinfo=UTC), datetime(YEAR, 11, 1, tzinfo=UTC), Prefs())
     assert_same(plant, datetime(YEAR, 6, 1, tzinfo=UTC), None, Prefs(), status=True)
+
+
+@settings(max_examples=300, deadline=None)
+@given(
+    st.lists(
+        st.uuids().map(str) | st.text(alphabet=st.sampled_from("ab1-=+@'\t\r\n,\"é"), max_size=5),
+        min_size=1,
+        max_size=8,
+    )
+)
+def test_a_batch_of_ids_is_found_plain_only_when_every_id_is(ids):
+    # the reference is the rule for one id (`_plain_cell`), which the byte-for-byte tests
+    # above hold to the csv module's writer
+    rows = [(entry_id, "2026-01-01T00:00:00Z") for entry_id in ids]
+    assert _plain_ids(rows) == all(_plain_cell(entry_id) for entry_id in ids)
