@@ -369,6 +369,24 @@ def _add_server_commands(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--json", action="store_true", help="machine-readable output")
 
 
+NO_TERMINAL = (
+    "the app needs a terminal to read keys from and draw on, and this has none (a script, a "
+    "pipe, a scheduled job?); nothing was opened. In a script, ask with `sumpbook status`, "
+    "`sumpbook list` or `sumpbook export` (`sumpbook --help` lists them all)"
+)
+
+
+def _has_terminal() -> bool:
+    """Whether the app can run here: Textual reads keys from stdin and draws on stderr (a
+    stdout sent to a file does not stop it). Without them it would wait on a closed input
+    for ever, a core busy, drawing into whatever stderr is."""
+    streams = (sys.stdin, sys.stderr)
+    try:
+        return all(s is not None and s.isatty() for s in streams)
+    except (AttributeError, ValueError):  # replaced or closed streams
+        return False
+
+
 def run(args: argparse.Namespace) -> int:
     from tui.cli import commands  # deferred: --help, --version and the app need none of it
 
@@ -390,6 +408,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         print(f"sumpbook: {inert(str(exc))}", file=sys.stderr)
         return EXIT_BAD_INPUT
     if args.command in (None, "app"):
+        if not _has_terminal():
+            print(f"sumpbook: {NO_TERMINAL}", file=sys.stderr)
+            return EXIT_BAD_INPUT
         from tui.app import run_app  # textual loads only when the app runs
 
         try:
