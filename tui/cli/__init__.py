@@ -9,6 +9,7 @@ import sqlite3
 import sys
 from collections.abc import Callable, Sequence
 from pathlib import Path
+from typing import Any
 
 from store import damaged_read
 from store.base.errors import BookError
@@ -117,7 +118,60 @@ class _Version(argparse.Action):
         parser.exit()
 
 
-def build_parser() -> argparse.ArgumentParser:
+# The commands, as build_parser names them (tests/cli/test_parser_one_command.py holds the two
+# together): a run that names one of them builds that command's parser alone.
+COMMANDS = frozenset(
+    {
+        "app", "demo", "register", "list", "log", "status", "round", "export", "import", "prefs",
+        "plant", "backup", "restore", "merge", "check", "rebuild", "server", "sync", "fleet",
+    }
+)  # fmt: skip
+
+
+class _Unbuilt:
+    """Stands for a command's parser that is not built: takes every call, gives itself back."""
+
+    def __getattr__(self, name: str) -> Callable[..., _Unbuilt]:
+        return self._take
+
+    def _take(self, *args: object, **kwargs: object) -> _Unbuilt:
+        return self
+
+
+class _OneCommand:
+    """The commands' subparsers action, where the run names `command`: its parser is built as
+    always, every other one is skipped. The whole parser, thirty-odd of them with their
+    options, took some ten milliseconds of every run."""
+
+    def __init__(self, action: argparse._SubParsersAction, command: str) -> None:
+        self.action, self.command = action, command
+
+    def add_parser(self, name: str, **kwargs: Any) -> argparse.ArgumentParser:
+        if name == self.command:
+            return self.action.add_parser(name, **kwargs)
+        return _Unbuilt()  # type: ignore[return-value]
+
+
+def named_command(words: Sequence[str]) -> str | None:
+    """The command `words` name, where that is sure (the words before it are --db's); else
+    None (help, the version, no command, an unknown or shortened word): the whole parser,
+    whose messages name every command."""
+    i = 0
+    while i < len(words):
+        word = words[i]
+        if word == "--db":
+            i += 2
+        elif word.startswith("--db="):
+            i += 1
+        elif word.startswith("-"):
+            return None
+        else:
+            return word if word in COMMANDS else None
+    return None
+
+
+def build_parser(only: str | None = None) -> argparse.ArgumentParser:
+    """The command line's parser; with `only` (one of COMMANDS), that command's alone."""
     parser = argparse.ArgumentParser(
         prog="sumpbook",
         description="Offline logbook for hydraulic filters, breathers and fluid care. "
@@ -127,7 +181,9 @@ def build_parser() -> argparse.ArgumentParser:
         "--db", type=Path, help=f"logbook file (default: ${ENV_DB} or {user_book_path()})"
     )
     parser.add_argument("--version", action=_Version, help="print the version and stop")
-    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    sub: Any = parser.add_subparsers(dest="command", metavar="COMMAND")
+    if only is not None:
+        sub = _OneCommand(sub, only)
 
     p = sub.add_parser("app", help="open the terminal app (the default)")
     p = sub.add_parser("demo", help="create a logbook holding the demo plant")
@@ -341,7 +397,7 @@ def _add_server_option(p: argparse.ArgumentParser) -> None:
     )
 
 
-def _add_server_commands(sub: argparse._SubParsersAction) -> None:
+def _add_server_commands(sub: Any) -> None:  # the subparsers action, or _OneCommand
     """The central PostgreSQL store (the optional 'server' extra)."""
     srv = sub.add_parser("server", help="the central PostgreSQL store: set it up, point at it")
     ssub = srv.add_subparsers(dest="action", metavar="ACTION", required=True)
@@ -397,8 +453,8 @@ def run(args: argparse.Namespace) -> int:
 
 
 def main(argv: Sequence[str] | None = None) -> int:
-    parser = build_parser()
-    args = parser.parse_args(join_negative_values(sys.argv[1:] if argv is None else argv))
+    words = join_negative_values(sys.argv[1:] if argv is None else argv)
+    args = build_parser(named_command(words)).parse_args(words)
     if (bad := _bad_number(args)) is not None:
         print(f"sumpbook: {inert(bad)}; nothing was written", file=sys.stderr)
         return EXIT_BAD_INPUT
