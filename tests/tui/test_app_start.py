@@ -134,6 +134,7 @@ def test_cli_db_with_a_new_path_starts_the_guide_not_the_demo(tmp_path, monkeypa
         seen.update(demo=self.demo, new_path=self.new_path, path=self.book.path)
 
     monkeypatch.setattr(SumpbookApp, "run", run)
+    monkeypatch.setattr(cli, "_has_terminal", lambda: True)  # as on a terminal
     new = tmp_path / "NEW.db"
     assert cli.main(["--db", str(new)]) == 0
     assert seen["new_path"] == new and not seen["demo"] and seen["path"] != new
