@@ -2,7 +2,7 @@
 
 import sys
 
-from tui.cli import main
+from tui.launch import main
 
 if __name__ == "__main__":
     sys.exit(main())

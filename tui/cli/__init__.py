@@ -452,9 +452,15 @@ def run(args: argparse.Namespace) -> int:
     return code
 
 
-def main(argv: Sequence[str] | None = None) -> int:
+def main(
+    argv: Sequence[str] | None = None, loaded: Callable[[str | None], None] | None = None
+) -> int:
+    """The command line. `loaded`: told the command once the words are parsed (tui/launch.py
+    lets the cyclic collector run again there, but for the short answers)."""
     words = join_negative_values(sys.argv[1:] if argv is None else argv)
     args = build_parser(named_command(words)).parse_args(words)
+    if loaded is not None:
+        loaded(args.command)
     if (bad := _bad_number(args)) is not None:
         print(f"sumpbook: {inert(bad)}; nothing was written", file=sys.stderr)
         return EXIT_BAD_INPUT
