@@ -5,11 +5,17 @@ was found whatever the command did (an answer, a refusal, --help)."""
 from __future__ import annotations
 
 import gc
+import os
+import subprocess
+import sys
+from pathlib import Path
 
 import pytest
 
 from tui import launch
 from tui.cli import commands
+
+ROOT = Path(__file__).resolve().parents[2]
 
 
 @pytest.fixture
@@ -73,3 +79,45 @@ def test_the_held_answer_is_the_same_answer(live, capsys):
 
     assert cli.main(["--db", str(live), "status", "--json"]) == 0
     assert capsys.readouterr().out == held
+
+
+def _door(live, *words: str, **kw) -> subprocess.CompletedProcess:
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    env.pop("PYTHONUNBUFFERED", None)  # the output buffered, as a user's is
+    return subprocess.run(
+        [sys.executable, "-m", "tui", "--db", str(live), *words],
+        capture_output=True, env=env, timeout=120, **kw,
+    )  # fmt: skip
+
+
+def test_the_door_as_a_process_gives_the_whole_answer_and_its_exit_code(live, capsys):
+    """A held answer leaves without the interpreter's teardown: all of it must be out first."""
+    from tui import cli
+
+    assert cli.main(["--db", str(live), "status", "--json"]) == 0
+    expected = capsys.readouterr().out.encode()
+    done = _door(live, "status", "--json")
+    assert (done.returncode, done.stdout, done.stderr) == (0, expected, b"")
+    assert cli.main(["--db", str(live), "list", "filters"]) == 0
+    listed = capsys.readouterr().out
+    done = _door(live, "list", "filters")
+    assert done.returncode == 0 and done.stdout.decode().splitlines() == listed.splitlines()
+    refused = _door(live, "status", "--unit", "NO-SUCH")
+    assert refused.returncode == 2 and refused.stdout == b""
+    assert b"NO-SUCH" in refused.stderr and b"Traceback" not in refused.stderr
+
+
+def test_the_door_into_a_pipe_nobody_reads_says_nothing_more(live):
+    """`status --json | head`, the reader gone before the answer: an answer shorter than the
+    output buffer (one unit's) first meets the closed pipe at the flush before leaving; the
+    exit code is the command's, no trace is printed."""
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    env.pop("PYTHONUNBUFFERED", None)  # the answer waits in the buffer, as a user's does
+    door = subprocess.Popen(
+        [sys.executable, "-m", "tui", "--db", str(live), "status", "--json", "--unit", "PR-3"],
+        stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=env,
+    )  # fmt: skip
+    door.stdout.close()  # the only reader, gone before a byte is written
+    err = door.stderr.read()
+    assert door.wait(timeout=120) == 0, err
+    assert err == b""
