@@ -177,9 +177,10 @@ def build_parser(only: str | None = None) -> argparse.ArgumentParser:
         description="Offline logbook for hydraulic filters, breathers and fluid care. "
         "Without a command it opens the terminal app.",
     )
-    parser.add_argument(
-        "--db", type=Path, help=f"logbook file (default: ${ENV_DB} or {user_book_path()})"
-    )
+    # The default folder is asked of platformdirs only for the whole parser's help: the
+    # parser of one named command never prints it (named_command: nothing but --db before it).
+    default = user_book_path() if only is None else "the user's data folder"
+    parser.add_argument("--db", type=Path, help=f"logbook file (default: ${ENV_DB} or {default})")
     parser.add_argument("--version", action=_Version, help="print the version and stop")
     sub: Any = parser.add_subparsers(dest="command", metavar="COMMAND")
     if only is not None:
