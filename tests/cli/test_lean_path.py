@@ -216,3 +216,13 @@ def test_a_script_naming_its_book_loads_no_folder_lookup(kept_demo, how):
 
     assert "platformdirs" not in loaded("status", "--json")
     assert "platformdirs" in loaded("status")  # the check is not blind
+
+
+@pytest.mark.parametrize("args", [["--help"], ["--version"], ["status", "--help"]], ids=" ".join)
+def test_help_and_version_load_no_book_code(kept_demo, args):
+    """Nothing is opened for them, so nothing of the book file's code is loaded (store's
+    door imports each of its names when first asked for)."""
+    book, _ = kept_demo
+    loaded = imported(book, args)
+    assert sorted(n for n in loaded if n.startswith(("store.db", "store.ledger"))) == []
+    assert "tui.cli" in loaded  # the report is read (the check is not blind)

@@ -11,12 +11,11 @@ from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
 
-from store import damaged_read
 from store.base.errors import BookError
 from store.base.session import ENV_DB, from_environ, user_book_path
 from store.base.text import inert
 from store.base.units import read_number
-from store.ledger import journal
+from store.base.validate import BREATHER_REASONS, CHANGE_REASONS
 
 EXIT_BAD_INPUT = 2
 MAX_LIST_LIMIT = 1_000_000
@@ -280,7 +279,7 @@ def build_parser(only: str | None = None) -> argparse.ArgumentParser:
     _add_time_and_by(p)
     p = lsub.add_parser("change", help="an element change")
     p.add_argument("tag", help="filter tag")
-    p.add_argument("--reason", default="limit", choices=journal.CHANGE_REASONS)
+    p.add_argument("--reason", default="limit", choices=CHANGE_REASONS)
     p.add_argument("--condition", default="", help="the old element as found")
     p.add_argument("--batch", default="", help="the new element's batch or lot")
     p.add_argument("--hours", help="hour-meter reading")
@@ -296,7 +295,7 @@ def build_parser(only: str | None = None) -> argparse.ArgumentParser:
     _add_time_and_by(p)
     p = lsub.add_parser("breather", help="a breather swap")
     p.add_argument("tag", help="breather tag")
-    p.add_argument("--reason", default="interval", choices=journal.BREATHER_REASONS)
+    p.add_argument("--reason", default="interval", choices=BREATHER_REASONS)
     p.add_argument("--condition", default="", help="desiccant as found, e.g. '2/3 spent'")
     _add_time_and_by(p)
     p = lsub.add_parser("sample", help="a fluid sample result")
@@ -509,6 +508,8 @@ def main(
         )
         return EXIT_BAD_INPUT
     except sqlite3.DatabaseError as exc:  # a read met a damaged page (writes are checked first)
+        from store import damaged_read
+
         print(
             f"sumpbook: {inert(str(damaged_read(exc, args.db or session.db_path)))}",
             file=sys.stderr,
