@@ -75,16 +75,26 @@ def topup_consumption(
 
 def topup_filtration_problem(topup: TopUp, filters: Sequence[FilterPosition]) -> str | None:
     """Why a top-up may have brought dirt in, or None."""
+    return filtration_problem(topup, finest_rating_um(filters))
+
+
+def finest_rating_um(filters: Sequence[FilterPosition]) -> float | None:
+    """The finest rating among a unit's filters (those that give one), None for none."""
+    ratings = [f.rating_um for f in filters if f.rating_um]
+    return min(ratings) if ratings else None
+
+
+def filtration_problem(topup: TopUp, finest_um: float | None) -> str | None:
+    """`topup_filtration_problem` given the unit's finest rating (`finest_rating_um`)."""
     if topup.filtered_um is None:
         return (
             f"{topup.volume_l:g} L went in unfiltered: new oil is often only about "
             f"{DRUM_OIL_UM:g}-70 µm clean"
         )
-    ratings = [f.rating_um for f in filters if f.rating_um]
-    if ratings and topup.filtered_um > min(ratings):
+    if finest_um is not None and topup.filtered_um > finest_um:
         return (
             f"{topup.volume_l:g} L went in through {topup.filtered_um:g} µm, coarser than "
-            f"the unit's finest filter ({min(ratings):g} µm)"
+            f"the unit's finest filter ({finest_um:g} µm)"
         )
     return None
 
