@@ -281,11 +281,16 @@ _COLUMNS = ("kind", "at_utc", "logged_utc", *_FIELDS)
 # A row whose numbers are not numbers or texts not texts (stored past the schema's checks, by
 # hand) reads back
 # with no time (`_SOUND_AT`): building it fails, so every reader notes it and skips it, at the
-# cost of a type test in SQLite rather than one per value in Python.
+# cost of a type test in SQLite rather than one per value in Python. Each test is "empty, or
+# of its kind" (`typeof` only where the value is there: most columns of a row are empty, and
+# it reads the same as `typeof(...) IN (..., 'null')` at two thirds of the cost).
 _SOUND = " AND ".join(
-    [f"typeof(e.{c}) IN ('real', 'integer', 'null')" for c in validate_value.ENTRY_NUMBERS]
+    [
+        f"(e.{c} IS NULL OR typeof(e.{c}) IN ('real', 'integer'))"
+        for c in validate_value.ENTRY_NUMBERS
+    ]
     + [
-        f"typeof(e.{c}) IN ('text', 'null')"
+        f"(e.{c} IS NULL OR typeof(e.{c}) = 'text')"
         for c in _FIELDS
         if c not in validate_value.ENTRY_NUMBERS and c != "id"
     ]
