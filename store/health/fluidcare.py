@@ -5,6 +5,8 @@ from __future__ import annotations
 import re
 from collections.abc import Sequence
 from datetime import datetime, timedelta
+from functools import lru_cache
+from operator import attrgetter
 
 from store.base.records import frozen_record
 from store.ledger.entries import BreatherSwap, Entry, Reading, Sample, TopUp
@@ -138,6 +140,7 @@ def _median(values: Sequence[float]) -> float:
     return (ordered[half - 1] + ordered[half]) / 2
 
 
+@lru_cache(maxsize=512)  # a plant's swaps say the same few words: each read once
 def spent_fraction(condition: str) -> float | None:
     """'2/3 spent' -> 0.67, '80 %' -> 0.8, 'spent'/'exhausted' -> 1.0, 'fresh' -> 0.0."""
     text = condition.lower()
@@ -164,11 +167,14 @@ class BreatherForecast:
     last_condition: str
 
 
+_at = attrgetter("at")
+
+
 def breather_forecast(
     breather: Breather, swaps: Sequence[BreatherSwap], now: datetime
 ) -> BreatherForecast:
     """Next swap: the set interval, shortened or stretched by how spent earlier cartridges were."""
-    live = sorted((s for s in swaps if not s.voided), key=lambda s: s.at)  # type: ignore[arg-type, return-value]
+    live = sorted([s for s in swaps if not s.voided], key=_at)
     interval_d = breather.swap_interval_d
     basis = "interval"
     lives = []
