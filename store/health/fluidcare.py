@@ -17,6 +17,7 @@ DRUM_OIL_UM = 50.0  # common practice, no source: new oil from a drum is often o
 RECENT_DAYS = 28
 LEAK_FACTOR = 2.0  # recent use this many times the unit's own history counts as a rise
 MIN_HISTORY_DAYS = 56
+_RECENT = timedelta(days=RECENT_DAYS)
 
 
 @frozen_record
@@ -44,8 +45,9 @@ def topup_consumption(
     live = [t for t in topups if not t.voided and t.at <= now]  # type: ignore[operator]
     if not (live or earlier_n) or first_entry is None:
         return None
-    recent_start = now - timedelta(days=RECENT_DAYS)
-    recent = sum(t.volume_l for t in live if t.at > recent_start)  # type: ignore[operator]
+    recent_start = now - _RECENT
+    recent_live = [t for t in live if t.at > recent_start]  # type: ignore[operator]
+    recent = sum([t.volume_l for t in recent_live])
     recent_rate = recent / (RECENT_DAYS / 7)
     history_days = (recent_start - first_entry).total_seconds() / 86400
     history_rate = None
@@ -56,8 +58,8 @@ def topup_consumption(
                 earlier += t.volume_l
         history_rate = earlier / (history_days / 7)
     per_100h = None
-    with_hours = [t for t in live if t.hours is not None and t.at > recent_start]  # type: ignore[operator]
-    if unit.hour_meter and len(with_hours) >= 2:
+    with_hours = [t for t in recent_live if t.hours is not None] if unit.hour_meter else []
+    if len(with_hours) >= 2:
         span_h = with_hours[-1].hours - with_hours[0].hours  # type: ignore[operator]
         if span_h > 0:
             per_100h = sum(t.volume_l for t in with_hours[1:]) / span_h * 100
