@@ -35,13 +35,30 @@ def run() -> None:
     """The process: `main()`, then out, at once after a held answer (see above)."""
     code = main()
     if _answered and _answered[-1] in HELD_TO_THE_END:
-        try:
-            sys.stdout.flush()
-        except BrokenPipeError:  # the reader left early (`| head`): as the command line does
-            os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
-        sys.stderr.flush()
+        code = _flushed(code)
         os._exit(code)
     sys.exit(code)
+
+
+def _flushed(code: int) -> int:
+    """Write out what the answer left buffered (the interpreter's teardown would have); the
+    exit code, 1 where the answer could not be written out (a full disk), as the command
+    line says of a write that fails before."""
+    try:
+        if sys.stdout is not None:  # None: started with stdout closed (said already)
+            sys.stdout.flush()
+    except BrokenPipeError:  # the reader left early (`| head`): as the command line does
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+    except (OSError, ValueError) as exc:
+        why = getattr(exc, "strerror", None) or str(exc)
+        print(f"sumpbook: the answer could not be written out ({why})", file=sys.stderr)
+        code = code or 1
+    try:
+        if sys.stderr is not None:
+            sys.stderr.flush()
+    except (OSError, ValueError):  # nowhere left to say anything
+        pass
+    return code
 
 
 def main(argv: Sequence[str] | None = None) -> int:

@@ -121,3 +121,31 @@ def test_the_door_into_a_pipe_nobody_reads_says_nothing_more(live):
     err = door.stderr.read()
     assert door.wait(timeout=120) == 0, err
     assert err == b""
+
+
+@pytest.mark.skipif(not Path("/dev/full").exists(), reason="needs Linux's /dev/full")
+def test_the_door_onto_a_full_disk_says_so_in_one_line(live):
+    """The answer left in the buffer meets the full disk at the flush before leaving: one line
+    and exit code 1, never a trace nor a success."""
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    env.pop("PYTHONUNBUFFERED", None)  # the answer waits in the buffer, as a user's does
+    with open("/dev/full", "w") as full:
+        done = subprocess.run(
+            [sys.executable, "-m", "tui", "--db", str(live), "status", "--json", "--unit", "PR-3"],
+            stdout=full, stderr=subprocess.PIPE, env=env, timeout=120,
+        )  # fmt: skip
+    lines = done.stderr.decode().strip().splitlines()
+    assert done.returncode == 1
+    assert len(lines) == 1 and "could not be written" in lines[0], lines
+
+
+def test_the_door_with_stdout_closed_gives_no_trace(live):
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    env.pop("PYTHONUNBUFFERED", None)
+    done = subprocess.run(
+        [sys.executable, "-m", "tui", "--db", str(live), "status", "--json"],
+        stderr=subprocess.PIPE, env=env, timeout=120,
+        preexec_fn=lambda: os.close(1),
+    )  # fmt: skip
+    assert done.returncode != 0
+    assert b"Traceback" not in done.stderr and len(done.stderr.splitlines()) == 1, done.stderr
