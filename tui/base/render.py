@@ -30,6 +30,7 @@ from store.ledger.register import Breather, FilterPosition, Fluid, Technician, U
 from store.physics.cleanliness import compare_to_target, parse_code
 from store.rounds import Round
 from tui.base.quantities import pressure, temperature, volume
+from tui.base.tables import LeanTable
 
 CAUTION_SHORT = (
     "Safety: isolate and lock out, relieve pressure and accumulators, let hot oil cool, wear "
@@ -129,7 +130,7 @@ def saved_line(book: Book, entry: Entry, prefs: Prefs) -> str:
 
 def entries_table(book: Book, entries: list[Entry], prefs: Prefs) -> Table:
     ctxs = contexts(book)
-    table = Table(title=f"Entries ({len(entries)})", title_justify="left")
+    table = LeanTable(title=f"Entries ({len(entries)})", title_justify="left")
     for name in (
         "id",
         "time",
@@ -168,7 +169,7 @@ def entries_table(book: Book, entries: list[Entry], prefs: Prefs) -> Table:
 
 def register_table(book: Book, what: str, unit: str | None, prefs: Prefs) -> Table:
     if what == "shifts":
-        table = Table(title="Shift pattern", title_justify="left")
+        table = LeanTable(title="Shift pattern", title_justify="left")
         table.add_column("shift")
         table.add_column("starts")
         for shift in register.list_shifts(book):
@@ -182,7 +183,7 @@ def register_table(book: Book, what: str, unit: str | None, prefs: Prefs) -> Tab
         "techs": Technician,
     }[what]
     rows = register.list_all(book, cls, unit)
-    table = Table(title=f"{what.capitalize()} ({len(rows)})", title_justify="left")
+    table = LeanTable(title=f"{what.capitalize()} ({len(rows)})", title_justify="left")
     if cls is FilterPosition:
         cols = [
             "tag",
@@ -312,7 +313,7 @@ def watch_table(book: Book, watch: Watch, prefs: Prefs, width: int | None = None
     from store.sheets import watch_rows  # deferred: `status --json` prints no table
 
     narrow = width is not None and width < NARROW_COLUMNS
-    table = Table(
+    table = LeanTable(
         title=f"Watch list as of {when(book, watch.as_of)}",
         title_justify="left",
         box=box.SIMPLE_HEAD if narrow else box.HEAVY_HEAD,
@@ -360,7 +361,7 @@ def round_table(book: Book, plan: Round) -> Table:
         f"Round, shift {plan.span.name} {plan.span.start.astimezone(z):%d %b %H:%M}–"
         f"{plan.span.end.astimezone(z):%H:%M}: {len(plan.stops)} to read"
     )
-    table = Table(title=title, title_justify="left")
+    table = LeanTable(title=title, title_justify="left")
     for c in ("#", "unit", "filter", "read", "why", "read by", "% limit"):
         table.add_column(c)
     for i, s in enumerate(plan.stops, 1):
@@ -404,7 +405,7 @@ def change_text(change: register.RegisterChange) -> str:
 
 def history_table(book: Book, changes: list[register.RegisterChange], tag: str | None) -> Table:
     title = f"Register history of {tag.upper()}" if tag else "Register history"
-    table = Table(title=f"{title} ({len(changes)})", title_justify="left")
+    table = LeanTable(title=f"{title} ({len(changes)})", title_justify="left")
     for name in ("time", "by", "record", "field", "change"):
         table.add_column(name, overflow="fold")
     for c in changes:
