@@ -112,6 +112,9 @@ def watch_like(rows: int = 6, **options: object) -> LeanTable:
 @pytest.mark.parametrize("width", WIDTHS)
 def test_a_watch_like_table_is_drawn_as_rich_draws_it(width):
     assert_same_drawing(watch_like(), width)  # type: ignore[arg-type]
+    # the same texts again and again, in rows of another style: a wrapped cell drawn once
+    # for all its like must still take each row's style
+    assert_same_drawing(watch_like(rows=26), width)  # type: ignore[arg-type]
 
 
 @pytest.mark.parametrize("width", (40, 80, 120, 250))

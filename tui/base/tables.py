@@ -50,6 +50,29 @@ def _one_line(cell: object) -> Text | None:
     return cell
 
 
+def _drawing_key(cell: object, column, width: int, style: Style) -> tuple | None:  # noqa: ANN001
+    """All that rich's drawing of a Text cell depends on, or None for another kind of cell."""
+    if type(cell) is not Text:
+        return None
+    text: Text = cell
+    return (
+        text.plain,
+        text.style,
+        tuple(text.spans),
+        text.justify,
+        text.overflow,
+        text.no_wrap,
+        text.end,
+        text.tab_size,
+        width,
+        column.justify,
+        column.no_wrap,
+        column.overflow,
+        column.highlight,
+        style,
+    )
+
+
 class LeanTable(Table):
     """rich.table.Table, faster on many rows: see the module's docstring."""
 
@@ -132,6 +155,10 @@ class LeanTable(Table):
             (box.mid_left, box.mid_vertical, box.mid_right),
             (box.foot_left, box.foot_vertical, box.foot_right),
         )
+        # A cell rich draws (wrapped, mostly) is drawn once for all the cells like it: a
+        # plant's tables repeat their kinds, limits and flags down a column. Nothing changes
+        # the lines drawn afterwards (rich's shaping copies them).
+        drawings: dict[tuple, list[list[Segment]]] = {}
         for index in range(count + 1):
             if index == 0:  # the header
                 row_style = _NULL
@@ -153,11 +180,16 @@ class LeanTable(Table):
             for column, width, (style, cell) in zip(columns, widths, cells, strict=True):
                 line = self._quick_line(console, column, width, style, cell)
                 quick.append(line is not None)
-                lines.append(
-                    [line]
-                    if line is not None
-                    else self._rich_lines(console, options, column, width, style, cell)
-                )
+                if line is not None:
+                    lines.append([line])
+                    continue
+                key = _drawing_key(cell, column, width, style)
+                drawn = drawings.get(key) if key is not None else None
+                if drawn is None:
+                    drawn = self._rich_lines(console, options, column, width, style, cell)
+                    if key is not None:
+                        drawings[key] = drawn
+                lines.append(drawn)
             tallest = max(len(cell_lines) for cell_lines in lines)  # 0 if no cell drew a line
             height = max(1, tallest)
             if height > 1 or not all(quick):  # rich's shaping: as tall and wide as the row
