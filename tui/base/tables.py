@@ -242,17 +242,21 @@ class LeanTable(Table):
         # cells here (combining accents), as rich's wrapping trims trailing spaces by count
         if room < 0 or inner < 1 or len(plain) > inner:
             return None
+        # widths that do not add up (joiners, emoji selectors) are left to rich
         if text.spans or text.style:
             filled = text.copy()
             filled.pad_right(room)
             # joined as rich joins a cell's lines: the text's own style becomes a span
             body = list(_LINES.join([filled]).render(console))
+            if sum(cell_len(part.text) for part in body) != inner:
+                return None
             if style:
                 body = [Segment(part, style + part_style) for part, part_style, _ in body]
         else:
-            body = [Segment(plain + " " * room, style if style else None)]
-        if sum(cell_len(part.text) for part in body) != inner:
-            return None  # widths that do not add up (joiners, emoji selectors): rich draws it
+            filled_plain = plain + " " * room
+            if cell_len(filled_plain) != inner:
+                return None
+            body = [Segment(filled_plain, style if style else None)]
         side = Segment(" ", style if style else _NULL)
         return [side, *body, side]
 
