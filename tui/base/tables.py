@@ -9,10 +9,14 @@ leaves everything else to rich:
   whole length), other cells by rich; rich then sets the column widths from these as always
   (a table too wide for the console is collapsed and its cells wrapped, as before);
 * drawing: a one-line `Text` cell that fits its column, left-justified, is drawn as rich would
-  (a space either side, the text padded to the column); any other cell is drawn by rich.
-  Tables with footers, lines between rows, sections or without a box are drawn by rich.
+  (a space either side, the text padded to the column); any other cell is drawn by rich, once
+  for all the Text cells alike (same text, styles, column and width);
+* tables of another shape (no header, a footer, lines between rows, sections, no box, other
+  padding, collapsed padding) are measured and drawn by rich alone.
 
-tests/cli/test_lean_table.py holds the two drawings equal, segment for segment.
+It overrides two of rich's private methods (`_measure_column`, `_render`) and reads a column's
+cells (`Column._cells`): tests/cli/test_lean_table.py holds the two drawings equal, segment for
+segment, on the installed rich, and fails when a new rich draws otherwise.
 """
 
 from __future__ import annotations
