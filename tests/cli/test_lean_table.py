@@ -316,3 +316,30 @@ def test_the_demo_tables_are_drawn_as_rich_draws_them(demo_book, pressure):
         assert_same_drawing(render.watch_table(demo_book, now, prefs, width), width)
         for what in ("units", "filters", "breathers", "fluids", "techs", "shifts"):
             assert_same_drawing(render.register_table(demo_book, what, None, prefs), width)
+
+
+def test_the_installed_rich_is_the_one_lean_table_knows():
+    """The segment-for-segment tests above exercise the quick drawing only while the installed
+    rich has the private parts it reaches into; a rich without them is caught here (and every
+    table is then rich's own drawing)."""
+    from tui.base import tables
+
+    assert tables.RICH_AS_KNOWN
+
+
+def test_a_rich_it_does_not_know_gets_rich_s_own_drawing(monkeypatch):
+    from tui.base import tables
+
+    monkeypatch.setattr(tables, "RICH_AS_KNOWN", False)
+    table = watch_like(rows=12)
+    drawn_by = []
+    real = Table._render
+
+    def spy(self, console, options, widths):  # noqa: ANN001
+        drawn_by.append(type(self).__name__)
+        return real(self, console, options, widths)
+
+    monkeypatch.setattr(Table, "_render", spy)
+    for width in (40, 120, 200):
+        assert_same_drawing(table, width)
+    assert "LeanTable" in drawn_by  # the lean table went through rich's own drawing

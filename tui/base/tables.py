@@ -16,11 +16,14 @@ leaves everything else to rich:
 
 It overrides two of rich's private methods (`_measure_column`, `_render`) and reads a column's
 cells (`Column._cells`): tests/cli/test_lean_table.py holds the two drawings equal, segment for
-segment, on the installed rich, and fails when a new rich draws otherwise.
+segment, on the installed rich, and fails when a new rich draws otherwise. Where the installed
+rich no longer has those parts as written against (`RICH_AS_KNOWN`, checked once at import),
+LeanTable is rich's Table and nothing else: slower, never broken.
 """
 
 from __future__ import annotations
 
+import inspect
 import re
 from typing import TYPE_CHECKING
 
@@ -29,12 +32,29 @@ from rich.measure import Measurement
 from rich.padding import Padding
 from rich.segment import Segment
 from rich.style import Style
-from rich.table import Table
+from rich.table import Column, Table
 from rich.text import Text
 
 if TYPE_CHECKING:
     from rich.console import Console, ConsoleOptions, RenderResult
 
+
+def _rich_as_known() -> bool:
+    """Whether rich's private parts that LeanTable overrides and reads are there as written
+    against (rich 13.7 to 15): the two methods with these parameters, a column's cells."""
+    try:
+        render = list(inspect.signature(Table._render).parameters)
+        measure = list(inspect.signature(Table._measure_column).parameters)
+        return (
+            render == ["self", "console", "options", "widths"]
+            and measure == ["self", "console", "options", "column"]
+            and isinstance(Column()._cells, list)
+        )
+    except (AttributeError, TypeError, ValueError):
+        return False
+
+
+RICH_AS_KNOWN = _rich_as_known()
 CELL_PADDING = (0, 1, 0, 1)  # rich's default: one space left and right, none above or below
 # Characters that break a text into lines for rich's measuring (str.splitlines) or that rich
 # expands (tabs): a text holding one is measured and drawn by rich.
@@ -81,9 +101,10 @@ class LeanTable(Table):
     """rich.table.Table, faster on many rows: see the module's docstring."""
 
     def _simple(self) -> bool:
-        """Padding, box and rows of the kind drawn here."""
+        """Padding, box and rows of the kind drawn here (and a rich it knows how to)."""
         return (
-            self.padding == CELL_PADDING
+            RICH_AS_KNOWN
+            and self.padding == CELL_PADDING
             and not self.collapse_padding
             and self.pad_edge
             and self.box is not None
