@@ -16,24 +16,37 @@ only through the names below; everything else they take from the upper layers di
 
 from typing import TYPE_CHECKING, Any
 
-from store.db.book import Book, deep_check, full_check, open_book
-from store.db.connection import damaged_read
-from store.db.targets import refuse_input_as_output
-
 if TYPE_CHECKING:
     from store.db.backup import copy_holding_lock, restore, rolling_backup
+    from store.db.book import Book, deep_check, full_check, open_book
+    from store.db.connection import damaged_read
+    from store.db.targets import refuse_input_as_output
 
-_BACKUP = ("copy_holding_lock", "restore", "rolling_backup")
+# Each name of the door is imported when first asked for: importing any part of store (the
+# command line's errors, its session) loads none of the file's code, so that `--version` and
+# `--help` start with no book code at all, and a command line answer that only reads (status,
+# list) never loads store.db.backup.
+_DOOR = {
+    "Book": "store.db.book",
+    "deep_check": "store.db.book",
+    "full_check": "store.db.book",
+    "open_book": "store.db.book",
+    "damaged_read": "store.db.connection",
+    "refuse_input_as_output": "store.db.targets",
+    "copy_holding_lock": "store.db.backup",
+    "restore": "store.db.backup",
+    "rolling_backup": "store.db.backup",
+}
 
 
 def __getattr__(name: str) -> Any:
-    """The backup door, imported when first asked for: a command line answer that only
-    reads (status, list) never loads store.db.backup."""
-    if name in _BACKUP:
-        from store.db import backup
-
-        return getattr(backup, name)
-    raise AttributeError(f"module 'store' has no attribute {name!r}")
+    """A name of the door, from its module (imported now if it was not)."""
+    module = _DOOR.get(name)
+    if module is None:
+        raise AttributeError(f"module 'store' has no attribute {name!r}")
+    # The import statement's own door (not importlib.import_module, which `python -X
+    # importtime` does not see: tests/cli/test_lean_path.py reads what a run loaded from it).
+    return getattr(__import__(module, fromlist=[name]), name)
 
 
 __all__ = [

@@ -1,8 +1,6 @@
 """`python -m tui` is the same as the `sumpbook` command."""
 
-import sys
-
-from tui.cli import main
+from tui.launch import run
 
 if __name__ == "__main__":
-    sys.exit(main())
+    run()

@@ -14,8 +14,6 @@ from collections.abc import Callable, Mapping
 from datetime import UTC, datetime
 from pathlib import Path
 
-from platformdirs import user_config_dir, user_data_dir
-
 from store.base.errors import BookError
 from store.base.records import frozen_record
 from store.base.timeutil import parse_iso, to_utc, utc_now
@@ -29,11 +27,19 @@ ENV_DEBUG = "SUMPBOOK_DEBUG"
 Clock = Callable[[], datetime]
 
 
+# platformdirs is imported where a default folder is asked for: a run given its book and its
+# preferences (--db, the variables; a script's `status --json`) never needs it (7 ms of imports).
+
+
 def user_book_path() -> Path:
+    from platformdirs import user_data_dir
+
     return Path(user_data_dir("sumpbook", appauthor=False)) / "logbook.db"
 
 
 def user_config_path() -> Path:
+    from platformdirs import user_config_dir
+
     return Path(user_config_dir("sumpbook", appauthor=False)) / "prefs.json"
 
 
@@ -47,11 +53,25 @@ def fixed_clock(moment: datetime | str) -> Clock:
 
 @frozen_record
 class Session:
-    db_path: Path  # the logbook when none is named on the command line
-    db_named: bool  # SUMPBOOK_DB named it (not the user's default)
-    config_path: Path
+    db_given: Path | None  # SUMPBOOK_DB: the logbook when none is named on the command line
+    config_given: Path | None  # SUMPBOOK_CONFIG
     clock: Clock = utc_now
     debug: bool = False
+
+    @property
+    def db_path(self) -> Path:
+        """The logbook when none is named on the command line: SUMPBOOK_DB, else the user's."""
+        return self.db_given or user_book_path()
+
+    @property
+    def db_named(self) -> bool:
+        """SUMPBOOK_DB named the logbook (it is not the user's default)."""
+        return self.db_given is not None
+
+    @property
+    def config_path(self) -> Path:
+        """The laptop's preferences file: SUMPBOOK_CONFIG, else the user's."""
+        return self.config_given or user_config_path()
 
 
 def _clock(text: str) -> Clock:
@@ -71,9 +91,8 @@ def from_environ(environ: Mapping[str, str]) -> Session:
     config = environ.get(ENV_CONFIG)
     now = environ.get(ENV_NOW)
     return Session(
-        db_path=Path(db).expanduser() if db else user_book_path(),
-        db_named=bool(db),
-        config_path=Path(config).expanduser() if config else user_config_path(),
+        db_given=Path(db).expanduser() if db else None,
+        config_given=Path(config).expanduser() if config else None,
         clock=_clock(now) if now else utc_now,
         debug=bool(environ.get(ENV_DEBUG)),
     )

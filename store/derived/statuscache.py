@@ -39,7 +39,6 @@ with rows that do not match their key) and `rebuild()` (`sumpbook rebuild`).
 
 from __future__ import annotations
 
-import hashlib
 import json
 import math
 from array import array
@@ -79,6 +78,11 @@ from store.ledger.journal import element_items, parse_stamp
 from store.ledger.register import FilterPosition, Unit, find, list_all
 from store.physics.normalise import ColdStart
 
+try:  # hashlib's own blake2b, without hashlib loading OpenSSL's hashes (3 ms of every start)
+    from _blake2 import blake2b
+except ImportError:  # an interpreter without the module: hashlib's, whatever it is built from
+    from hashlib import blake2b
+
 # Bump when the rules that make a status change while what a row holds stays the same (a
 # change of its fields or of the notes' words changes FORMAT by itself).
 # Also when how a field is written changes while the fields stay.
@@ -89,7 +93,7 @@ _utc = parse_stamp
 
 
 def _digest(value: Any) -> str:
-    return hashlib.blake2b(repr(value).encode(), digest_size=8).hexdigest()
+    return blake2b(repr(value).encode(), digest_size=8).hexdigest()
 
 
 def _shape(*classes: type) -> list[Any]:

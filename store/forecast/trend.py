@@ -25,6 +25,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -405,10 +406,36 @@ def _templates(earlier: Sequence[PastElement], level_bar: float) -> list[Templat
             break
         if not e.reached_limit:
             continue
-        tpl = make_template(e.ages_h, e.dp_ref_bar, e.life_h, level_bar)
+        tpl = _template(e.ages_h, e.dp_ref_bar, e.life_h, level_bar)
         if tpl is not None:
             out.append(tpl)
     return out[::-1]
+
+
+# An earlier element's curve is the same for every forecast that reads it: the two of each
+# status (now, and at the previous reading for the next-reading plan), every like position
+# pooling that element, every save on the position until its next change. make_template is a
+# pure function of the element's readings, so its curves are kept (with the interpolant each
+# builds on first use) for the next forecast that asks. 512 hold a big plant's like groups
+# over a whole-plant pass (an as-of list, a rebuild); a template is a few kilobytes.
+@lru_cache(maxsize=512)
+def _kept_template(
+    ages_h: tuple[float, ...], dp_ref_bar: tuple[float, ...], life_h: float, level_bar: float
+) -> Template | None:
+    tpl = make_template(ages_h, dp_ref_bar, life_h, level_bar)
+    if tpl is not None:  # shared from now on: no reader may change it in place
+        tpl.f.flags.writeable = tpl.g.flags.writeable = False
+    return tpl
+
+
+def _template(
+    ages_h: Sequence[float], dp_ref_bar: Sequence[float], life_h: float, level_bar: float
+) -> Template | None:
+    """`make_template`, kept for the next forecast where the readings are tuples (as the
+    element summaries give them); made afresh where they are not."""
+    if type(ages_h) is tuple and type(dp_ref_bar) is tuple:
+        return _kept_template(ages_h, dp_ref_bar, life_h, level_bar)
+    return make_template(ages_h, dp_ref_bar, life_h, level_bar)
 
 
 def _lives_text(weib: WeibullFit) -> str:

@@ -5,6 +5,8 @@ from __future__ import annotations
 import re
 from collections.abc import Sequence
 from datetime import datetime, timedelta
+from functools import lru_cache
+from operator import attrgetter
 
 from store.base.records import frozen_record
 from store.ledger.entries import BreatherSwap, Entry, Reading, Sample, TopUp
@@ -15,6 +17,7 @@ DRUM_OIL_UM = 50.0  # common practice, no source: new oil from a drum is often o
 RECENT_DAYS = 28
 LEAK_FACTOR = 2.0  # recent use this many times the unit's own history counts as a rise
 MIN_HISTORY_DAYS = 56
+_RECENT = timedelta(days=RECENT_DAYS)
 
 
 @frozen_record
@@ -42,8 +45,9 @@ def topup_consumption(
     live = [t for t in topups if not t.voided and t.at <= now]  # type: ignore[operator]
     if not (live or earlier_n) or first_entry is None:
         return None
-    recent_start = now - timedelta(days=RECENT_DAYS)
-    recent = sum(t.volume_l for t in live if t.at > recent_start)  # type: ignore[operator]
+    recent_start = now - _RECENT
+    recent_live = [t for t in live if t.at > recent_start]  # type: ignore[operator]
+    recent = sum([t.volume_l for t in recent_live])
     recent_rate = recent / (RECENT_DAYS / 7)
     history_days = (recent_start - first_entry).total_seconds() / 86400
     history_rate = None
@@ -54,8 +58,8 @@ def topup_consumption(
                 earlier += t.volume_l
         history_rate = earlier / (history_days / 7)
     per_100h = None
-    with_hours = [t for t in live if t.hours is not None and t.at > recent_start]  # type: ignore[operator]
-    if unit.hour_meter and len(with_hours) >= 2:
+    with_hours = [t for t in recent_live if t.hours is not None] if unit.hour_meter else []
+    if len(with_hours) >= 2:
         span_h = with_hours[-1].hours - with_hours[0].hours  # type: ignore[operator]
         if span_h > 0:
             per_100h = sum(t.volume_l for t in with_hours[1:]) / span_h * 100
@@ -75,16 +79,26 @@ def topup_consumption(
 
 def topup_filtration_problem(topup: TopUp, filters: Sequence[FilterPosition]) -> str | None:
     """Why a top-up may have brought dirt in, or None."""
+    return filtration_problem(topup, finest_rating_um(filters))
+
+
+def finest_rating_um(filters: Sequence[FilterPosition]) -> float | None:
+    """The finest rating among a unit's filters (those that give one), None for none."""
+    ratings = [f.rating_um for f in filters if f.rating_um]
+    return min(ratings) if ratings else None
+
+
+def filtration_problem(topup: TopUp, finest_um: float | None) -> str | None:
+    """`topup_filtration_problem` given the unit's finest rating (`finest_rating_um`)."""
     if topup.filtered_um is None:
         return (
             f"{topup.volume_l:g} L went in unfiltered: new oil is often only about "
             f"{DRUM_OIL_UM:g}-70 µm clean"
         )
-    ratings = [f.rating_um for f in filters if f.rating_um]
-    if ratings and topup.filtered_um > min(ratings):
+    if finest_um is not None and topup.filtered_um > finest_um:
         return (
             f"{topup.volume_l:g} L went in through {topup.filtered_um:g} µm, coarser than "
-            f"the unit's finest filter ({min(ratings):g} µm)"
+            f"the unit's finest filter ({finest_um:g} µm)"
         )
     return None
 
@@ -128,6 +142,7 @@ def _median(values: Sequence[float]) -> float:
     return (ordered[half - 1] + ordered[half]) / 2
 
 
+@lru_cache(maxsize=512)  # a plant's swaps say the same few words: each read once
 def spent_fraction(condition: str) -> float | None:
     """'2/3 spent' -> 0.67, '80 %' -> 0.8, 'spent'/'exhausted' -> 1.0, 'fresh' -> 0.0."""
     text = condition.lower()
@@ -154,11 +169,14 @@ class BreatherForecast:
     last_condition: str
 
 
+_at = attrgetter("at")
+
+
 def breather_forecast(
     breather: Breather, swaps: Sequence[BreatherSwap], now: datetime
 ) -> BreatherForecast:
     """Next swap: the set interval, shortened or stretched by how spent earlier cartridges were."""
-    live = sorted((s for s in swaps if not s.voided), key=lambda s: s.at)  # type: ignore[arg-type, return-value]
+    live = sorted([s for s in swaps if not s.voided], key=_at)
     interval_d = breather.swap_interval_d
     basis = "interval"
     lives = []

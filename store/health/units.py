@@ -10,10 +10,11 @@ from datetime import datetime, timedelta
 
 from store.db.book import Book
 from store.health.fluidcare import (
+    filtration_problem,
+    finest_rating_um,
     hot_readings,
     sample_verdict,
     topup_consumption,
-    topup_filtration_problem,
 )
 from store.health.status_model import HOT_LOOKBACK, UnitClock, UnitStatus
 from store.ledger.journal import read
@@ -107,9 +108,11 @@ def unit_at(
     if consumption and consumption.rising:
         flags.append("leak-suspect")
         notes.append(f"fluid use is rising: {consumption.note}; look for a leak (never by hand)")
+    window_start = now - TOPUP_WINDOW  # a top-up at or after it: now - at <= TOPUP_WINDOW
+    finest_um = finest_rating_um(filters)
     for t in clock.topups:
-        if t.at and now - t.at <= TOPUP_WINDOW:
-            problem = topup_filtration_problem(t, filters)
+        if t.at and t.at >= window_start:
+            problem = filtration_problem(t, finest_um)
             if problem:
                 flags.append("unfiltered-topup" if t.filtered_um is None else "coarse-topup")
                 notes.append(problem)

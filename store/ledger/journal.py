@@ -281,11 +281,16 @@ _COLUMNS = ("kind", "at_utc", "logged_utc", *_FIELDS)
 # A row whose numbers are not numbers or texts not texts (stored past the schema's checks, by
 # hand) reads back
 # with no time (`_SOUND_AT`): building it fails, so every reader notes it and skips it, at the
-# cost of a type test in SQLite rather than one per value in Python.
+# cost of a type test in SQLite rather than one per value in Python. Each test is "empty, or
+# of its kind" (`typeof` only where the value is there: most columns of a row are empty, and
+# it reads the same as `typeof(...) IN (..., 'null')` at two thirds of the cost).
 _SOUND = " AND ".join(
-    [f"typeof(e.{c}) IN ('real', 'integer', 'null')" for c in validate_value.ENTRY_NUMBERS]
+    [
+        f"(e.{c} IS NULL OR typeof(e.{c}) IN ('real', 'integer'))"
+        for c in validate_value.ENTRY_NUMBERS
+    ]
     + [
-        f"typeof(e.{c}) IN ('text', 'null')"
+        f"(e.{c} IS NULL OR typeof(e.{c}) = 'text')"
         for c in _FIELDS
         if c not in validate_value.ENTRY_NUMBERS and c != "id"
     ]
@@ -627,20 +632,30 @@ def breather_swap_marks(book: Book, until: datetime | None = None) -> dict[str, 
         void_until, until_sql, params = " AND v.at_utc < ?", " AND e.at_utc < ?", [stamp, stamp]
     sql = _SWAP_MARKS.format(void_until=void_until, until=until_sql)
     out: dict[str, list[SwapMark]] = {}
+    last, found = None, []
     for tag, at, logged, condition, entry_id, voided_by in book.conn.execute(sql, params):
         try:  # what `_entry` parses, in its order: the same rows fail with the same message
-            when = parse_stamp(at)
-            parse_stamp(logged)
+            # parse_stamp, its usual case in line (a call less for each of two stamps a row)
+            if at.__class__ is str and len(at) == 20 and at[10] == "T" and at[19] == "Z":
+                when = _parse_iso(at)
+            else:
+                when = parse_stamp(at)
+            if (
+                logged.__class__ is str
+                and len(logged) == 20
+                and logged[10] == "T"
+                and logged[19] == "Z"
+            ):
+                _parse_iso(logged)  # only to find a row that cannot be read
+            else:
+                parse_stamp(logged)
         except ROW_ERRORS as exc:
             if voided_by is None:
                 note_unreadable(book, entry_id, _row_problem(exc))
             continue
-        mark = SwapMark(when, "" if condition is None else condition, voided_by is not None)
-        found = out.get(tag.upper())
-        if found is None:
-            out[tag.upper()] = [mark]
-        else:
-            found.append(mark)
+        if tag != last:  # the rows come by tag: look its list up once
+            last, found = tag, out.setdefault(tag.upper(), [])
+        found.append(SwapMark(when, "" if condition is None else condition, voided_by is not None))
     return out
 
 

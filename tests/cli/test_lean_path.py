@@ -191,3 +191,38 @@ def test_a_typed_time_loads_what_the_time_rules_defer(kept_demo):
     book, now = kept_demo
     loaded = imported(book, ["status", "--json", "--as-of", now])
     assert "dateutil.parser.isoparser" in time_rules(loaded)
+
+
+@pytest.mark.parametrize("how", ["--db", "SUMPBOOK_DB"])
+def test_a_script_naming_its_book_loads_no_folder_lookup(kept_demo, how):
+    """`status --json` told where the book is (--db or SUMPBOOK_DB), without SUMPBOOK_CONFIG:
+    it reads no preferences, so platformdirs (the user's folders) is never loaded; `status`
+    as a table reads the preferences and finds them in the user's config folder."""
+    book, _ = kept_demo
+    env = {k: v for k, v in os.environ.items() if k not in ("SUMPBOOK_CONFIG", "SUMPBOOK_NOW")}
+    env.pop("SUMPBOOK_DB", None)
+    env["HOME"] = env["XDG_CONFIG_HOME"] = str(book.parent)  # no user prefs of the machine
+    named = ["--db", str(book)] if how == "--db" else []
+    if how == "SUMPBOOK_DB":
+        env["SUMPBOOK_DB"] = str(book)
+
+    def loaded(*args: str) -> set[str]:
+        done = subprocess.run(
+            [sys.executable, "-X", "importtime", "-m", "tui", *named, *args],
+            capture_output=True, text=True, env=env, cwd=ROOT, check=False, timeout=120,
+        )  # fmt: skip
+        assert done.returncode == 0, done.stderr[-3000:]
+        return modules_of(done.stderr)
+
+    assert "platformdirs" not in loaded("status", "--json")
+    assert "platformdirs" in loaded("status")  # the check is not blind
+
+
+@pytest.mark.parametrize("args", [["--help"], ["--version"], ["status", "--help"]], ids=" ".join)
+def test_help_and_version_load_no_book_code(kept_demo, args):
+    """Nothing is opened for them, so nothing of the book file's code is loaded (store's
+    door imports each of its names when first asked for)."""
+    book, _ = kept_demo
+    loaded = imported(book, args)
+    assert sorted(n for n in loaded if n.startswith(("store.db", "store.ledger"))) == []
+    assert "tui.cli" in loaded  # the report is read (the check is not blind)

@@ -522,3 +522,33 @@ def test_few_clearly_accelerating_readings_do_not_put_the_earliest_after_the_cro
     # candidates it should come after the crossing in well under 1 log in 200.
     assert late <= logs / 200, (late, logs)
     assert line_led == 0
+
+
+def test_a_kept_earlier_curve_answers_as_a_fresh_one():
+    """The earlier elements' curves are kept between forecasts (a pure function's results,
+    `trend._kept_template`): the second forecast on the same history, and one given the
+    history as lists (never kept), answer exactly as the first; a kept curve is read-only.
+    # the cache's transparency: the reference is the uncached computation itself"""
+    from store.forecast import trend
+
+    trend._kept_template.cache_clear()
+    earlier = history(exp_curve, [900.0, 950.0, 1000.0, 1050.0, 1100.0], seed=3)
+    t, y = readings(exp_curve, 500.0, life_h=1000.0)
+    first = run(t, y, clean=0.3, bypass=BYPASS, earlier=earlier)
+    assert trend._kept_template.cache_info().hits == 0
+    again = run(t, y, clean=0.3, bypass=BYPASS, earlier=earlier)
+    assert trend._kept_template.cache_info().hits >= len(earlier)
+    as_lists = [PastElement(list(e.ages_h), list(e.dp_ref_bar), e.life_h, True) for e in earlier]
+    fresh = run(t, y, clean=0.3, bypass=BYPASS, earlier=as_lists)
+    ages = [float(a) for a in np.linspace(0.0, 1500.0, 31)]
+    for fc in (again, fresh):
+        assert (fc.state, fc.basis, fc.to_limit, fc.to_bypass) == (
+            first.state, first.basis, first.to_limit, first.to_bypass,
+        )  # fmt: skip
+        assert np.array_equal(
+            [fc.dp_at(a) for a in ages], [first.dp_at(a) for a in ages], equal_nan=True
+        )
+    assert first.basis == "earlier-curves"  # the curves were read
+    kept = trend._kept_template(earlier[0].ages_h, earlier[0].dp_ref_bar, 900.0, LIMIT)
+    with pytest.raises(ValueError):
+        kept.g[0] = 0.0

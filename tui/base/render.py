@@ -2,7 +2,8 @@
 
 from __future__ import annotations
 
-from datetime import datetime
+from dataclasses import dataclass
+from datetime import datetime, tzinfo
 
 from rich.table import Table
 from rich.text import Text
@@ -30,6 +31,7 @@ from store.ledger.register import Breather, FilterPosition, Fluid, Technician, U
 from store.physics.cleanliness import compare_to_target, parse_code
 from store.rounds import Round
 from tui.base.quantities import pressure, temperature, volume
+from tui.base.tables import LeanTable
 
 CAUTION_SHORT = (
     "Safety: isolate and lock out, relieve pressure and accumulators, let hot oil cool, wear "
@@ -129,7 +131,8 @@ def saved_line(book: Book, entry: Entry, prefs: Prefs) -> str:
 
 def entries_table(book: Book, entries: list[Entry], prefs: Prefs) -> Table:
     ctxs = contexts(book)
-    table = Table(title=f"Entries ({len(entries)})", title_justify="left")
+    days = LocalDays.of(book)
+    table = LeanTable(title=f"Entries ({len(entries)})", title_justify="left")
     for name in (
         "id",
         "time",
@@ -153,7 +156,7 @@ def entries_table(book: Book, entries: list[Entry], prefs: Prefs) -> Table:
         style = "strike dim" if e.voided else ""
         row = [
             e.id[:8],
-            when(book, e.at),
+            days.when(e.at),
             e.kind + (" (void)" if e.voided else ""),
             e.target or e.unit or "",
             e.by,
@@ -168,7 +171,7 @@ def entries_table(book: Book, entries: list[Entry], prefs: Prefs) -> Table:
 
 def register_table(book: Book, what: str, unit: str | None, prefs: Prefs) -> Table:
     if what == "shifts":
-        table = Table(title="Shift pattern", title_justify="left")
+        table = LeanTable(title="Shift pattern", title_justify="left")
         table.add_column("shift")
         table.add_column("starts")
         for shift in register.list_shifts(book):
@@ -182,7 +185,7 @@ def register_table(book: Book, what: str, unit: str | None, prefs: Prefs) -> Tab
         "techs": Technician,
     }[what]
     rows = register.list_all(book, cls, unit)
-    table = Table(title=f"{what.capitalize()} ({len(rows)})", title_justify="left")
+    table = LeanTable(title=f"{what.capitalize()} ({len(rows)})", title_justify="left")
     if cls is FilterPosition:
         cols = [
             "tag",
@@ -281,18 +284,46 @@ def _num(value: float | None, suffix: str = "") -> str:
     return "–" if value is None else f"{value:g}{suffix}"
 
 
+@dataclass(frozen=True)
+class LocalDays:
+    """The plant's time zone and this year there, read once for a whole table: each read is a
+    query of the book's settings, a thousand rows asked them a few thousand times."""
+
+    zone: tzinfo
+    this_year: int
+
+    @classmethod
+    def of(cls, book: Book) -> LocalDays:
+        zone = book.local_zone()
+        return cls(zone, book.now().astimezone(zone).year)
+
+    def when(self, moment: datetime | None) -> str:
+        return local_text(moment, self.zone) if moment else "–"
+
+    def due_text(self, due) -> str:  # noqa: ANN001 - status_model.Due | None
+        if due is None:
+            return "–"
+        last = self._day(due.latest, "%Y") if due.latest else "open"
+        return f"{self._day(due.earliest, '%Y')}–{last} (likely {self._day(due.likely, '%Y')})"
+
+    def short_due(self, due) -> str:  # noqa: ANN001 - status_model.Due
+        """'16 Dec (10 Dec–11 Jan)': the likely day first, the years only where not this one."""
+        last = self._day(due.latest, "%y") if due.latest else "open"
+        first = self._day(due.earliest, "%y")
+        if due.latest and first.endswith(last[-3:]) and len(first) > 6:
+            first = first[:6]  # one year for both ends: '06 Feb–01 May 27'
+        return f"{self._day(due.likely, '%y')} ({first}–{last})"
+
+    def due_day(self, moment: datetime | None) -> str:
+        return f"{moment.astimezone(self.zone):%d %b %Y}" if moment else "–"
+
+    def _day(self, moment: datetime, year: str) -> str:
+        local = moment.astimezone(self.zone)
+        return f"{local:%d %b}" if local.year == self.this_year else local.strftime(f"%d %b {year}")
+
+
 def due_text(book: Book, due) -> str:  # noqa: ANN001 - status_model.Due | None
-    if due is None:
-        return "–"
-    z = book.local_zone()
-    this_year = book.now().astimezone(z).year
-
-    def day(moment: datetime) -> str:
-        local = moment.astimezone(z)
-        return f"{local:%d %b}" if local.year == this_year else f"{local:%d %b %Y}"
-
-    last = day(due.latest) if due.latest else "open"
-    return f"{day(due.earliest)}–{last} (likely {day(due.likely)})"
+    return "–" if due is None else LocalDays.of(book).due_text(due)
 
 
 def due_day(book: Book, moment: datetime | None) -> str:
@@ -312,8 +343,9 @@ def watch_table(book: Book, watch: Watch, prefs: Prefs, width: int | None = None
     from store.sheets import watch_rows  # deferred: `status --json` prints no table
 
     narrow = width is not None and width < NARROW_COLUMNS
-    table = Table(
-        title=f"Watch list as of {when(book, watch.as_of)}",
+    days = LocalDays.of(book)
+    table = LeanTable(
+        title=f"Watch list as of {days.when(watch.as_of)}",
         title_justify="left",
         box=box.SIMPLE_HEAD if narrow else box.HEAVY_HEAD,
     )
@@ -330,11 +362,11 @@ def watch_table(book: Book, watch: Watch, prefs: Prefs, width: int | None = None
         if any(x in URGENT_FLAGS for x in r.flags):
             flags.stylize("bold reverse")
         if r.what == "breather":
-            due = due_day(book, r.due.likely if r.due else None)
+            due = days.due_day(r.due.likely if r.due else None)
             kind = f"breather ({r.kind})"
         else:
             due = (
-                (short_due(book, r.due) if narrow else due_text(book, r.due))
+                (days.short_due(r.due) if narrow else days.due_text(r.due))
                 if r.due
                 else ("" if r.what == "unit" else r.state)
             )
@@ -348,7 +380,7 @@ def watch_table(book: Book, watch: Watch, prefs: Prefs, width: int | None = None
         if narrow:
             _add_row(table, r.tag, dp, percent, due, flags)
         else:
-            read_by = when(book, r.next_reading) if r.next_reading else ""
+            read_by = days.when(r.next_reading) if r.next_reading else ""
             _add_row(table, r.tag, r.unit, kind, dp, percent, due, read_by, r.basis, flags)
     return table
 
@@ -360,7 +392,7 @@ def round_table(book: Book, plan: Round) -> Table:
         f"Round, shift {plan.span.name} {plan.span.start.astimezone(z):%d %b %H:%M}–"
         f"{plan.span.end.astimezone(z):%H:%M}: {len(plan.stops)} to read"
     )
-    table = Table(title=title, title_justify="left")
+    table = LeanTable(title=title, title_justify="left")
     for c in ("#", "unit", "filter", "read", "why", "read by", "% limit"):
         table.add_column(c)
     for i, s in enumerate(plan.stops, 1):
@@ -381,18 +413,7 @@ def round_table(book: Book, plan: Round) -> Table:
 
 def short_due(book: Book, due) -> str:  # noqa: ANN001 - status_model.Due
     """'16 Dec (10 Dec–11 Jan)': the likely day first, the years only where not this one."""
-    z = book.local_zone()
-    this_year = book.now().astimezone(z).year
-
-    def day(moment: datetime) -> str:
-        local = moment.astimezone(z)
-        return f"{local:%d %b}" if local.year == this_year else f"{local:%d %b %y}"
-
-    last = day(due.latest) if due.latest else "open"
-    first = day(due.earliest)
-    if due.latest and first.endswith(last[-3:]) and len(first) > 6:
-        first = first[:6]  # one year for both ends: '06 Feb–01 May 27'
-    return f"{day(due.likely)} ({first}–{last})"
+    return LocalDays.of(book).short_due(due)
 
 
 def change_text(change: register.RegisterChange) -> str:
@@ -404,12 +425,13 @@ def change_text(change: register.RegisterChange) -> str:
 
 def history_table(book: Book, changes: list[register.RegisterChange], tag: str | None) -> Table:
     title = f"Register history of {tag.upper()}" if tag else "Register history"
-    table = Table(title=f"{title} ({len(changes)})", title_justify="left")
+    table = LeanTable(title=f"{title} ({len(changes)})", title_justify="left")
     for name in ("time", "by", "record", "field", "change"):
         table.add_column(name, overflow="fold")
+    days = LocalDays.of(book)
     for c in changes:
         table.add_row(
-            when(book, c.at),
+            days.when(c.at),
             c.by or "–",
             f"{c.what} {c.tag}",
             "(new record)" if c.field == "*" else c.field,

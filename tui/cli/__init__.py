@@ -11,12 +11,11 @@ from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
 
-from store import damaged_read
 from store.base.errors import BookError
 from store.base.session import ENV_DB, from_environ, user_book_path
 from store.base.text import inert
 from store.base.units import read_number
-from store.ledger import journal
+from store.base.validate import BREATHER_REASONS, CHANGE_REASONS
 
 EXIT_BAD_INPUT = 2
 MAX_LIST_LIMIT = 1_000_000
@@ -177,9 +176,10 @@ def build_parser(only: str | None = None) -> argparse.ArgumentParser:
         description="Offline logbook for hydraulic filters, breathers and fluid care. "
         "Without a command it opens the terminal app.",
     )
-    parser.add_argument(
-        "--db", type=Path, help=f"logbook file (default: ${ENV_DB} or {user_book_path()})"
-    )
+    # The default folder is asked of platformdirs only for the whole parser's help: the
+    # parser of one named command never prints it (named_command: nothing but --db before it).
+    default = user_book_path() if only is None else "the user's data folder"
+    parser.add_argument("--db", type=Path, help=f"logbook file (default: ${ENV_DB} or {default})")
     parser.add_argument("--version", action=_Version, help="print the version and stop")
     sub: Any = parser.add_subparsers(dest="command", metavar="COMMAND")
     if only is not None:
@@ -279,7 +279,7 @@ def build_parser(only: str | None = None) -> argparse.ArgumentParser:
     _add_time_and_by(p)
     p = lsub.add_parser("change", help="an element change")
     p.add_argument("tag", help="filter tag")
-    p.add_argument("--reason", default="limit", choices=journal.CHANGE_REASONS)
+    p.add_argument("--reason", default="limit", choices=CHANGE_REASONS)
     p.add_argument("--condition", default="", help="the old element as found")
     p.add_argument("--batch", default="", help="the new element's batch or lot")
     p.add_argument("--hours", help="hour-meter reading")
@@ -295,7 +295,7 @@ def build_parser(only: str | None = None) -> argparse.ArgumentParser:
     _add_time_and_by(p)
     p = lsub.add_parser("breather", help="a breather swap")
     p.add_argument("tag", help="breather tag")
-    p.add_argument("--reason", default="interval", choices=journal.BREATHER_REASONS)
+    p.add_argument("--reason", default="interval", choices=BREATHER_REASONS)
     p.add_argument("--condition", default="", help="desiccant as found, e.g. '2/3 spent'")
     _add_time_and_by(p)
     p = lsub.add_parser("sample", help="a fluid sample result")
@@ -452,9 +452,15 @@ def run(args: argparse.Namespace) -> int:
     return code
 
 
-def main(argv: Sequence[str] | None = None) -> int:
+def main(
+    argv: Sequence[str] | None = None, loaded: Callable[[str | None], None] | None = None
+) -> int:
+    """The command line. `loaded`: told the command once the words are parsed (tui/launch.py
+    lets the cyclic collector run again there, but for the short answers)."""
     words = join_negative_values(sys.argv[1:] if argv is None else argv)
     args = build_parser(named_command(words)).parse_args(words)
+    if loaded is not None:
+        loaded(args.command)
     if (bad := _bad_number(args)) is not None:
         print(f"sumpbook: {inert(bad)}; nothing was written", file=sys.stderr)
         return EXIT_BAD_INPUT
@@ -502,6 +508,8 @@ def main(argv: Sequence[str] | None = None) -> int:
         )
         return EXIT_BAD_INPUT
     except sqlite3.DatabaseError as exc:  # a read met a damaged page (writes are checked first)
+        from store import damaged_read
+
         print(
             f"sumpbook: {inert(str(damaged_read(exc, args.db or session.db_path)))}",
             file=sys.stderr,

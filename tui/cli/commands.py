@@ -387,7 +387,6 @@ def strict_json(data: Any) -> str:
 
 
 def cmd_status(args: argparse.Namespace) -> int:
-    prefs = laptop.load(args.session.config_path)
     with _book(args) as book:
         as_of = _time(book, args.as_of) if args.as_of else None
         unit = register.get(book, Unit, args.unit).tag if args.unit else None
@@ -398,7 +397,7 @@ def cmd_status(args: argparse.Namespace) -> int:
             sys.stdout.write(json_inert(strict_json(status_json.to_json(watch, book.local_zone()))))
             sys.stdout.write("\n")
         else:
-            out = console()
+            out, prefs = console(), laptop.load(args.session.config_path)
             out.print(_render().watch_table(book, watch, prefs, out.width))
     return 0
 
