@@ -30,6 +30,7 @@ from store.health.watchlist import (
     status_as_of,
     watch_list,
 )
+from store.ledger.journal import _no_gc_pauses
 from store.ledger.register import FilterPosition, Unit, list_all
 
 
@@ -39,6 +40,14 @@ def watch(book: Book, as_of: datetime | None = None, unit: str | None = None) ->
     they hold for that time (`_watch_as_of`). Never writes."""
     if as_of is not None:
         return _watch_as_of(book, as_of, unit)
+    # The list of a big plant is a hundred thousand objects without cycles: the collector
+    # is held while they are made, as journal.read holds it (not for an as-of list: it
+    # computes every status, with the fitting maths' own objects, for seconds).
+    with _no_gc_pauses():
+        return _watch_now(book, unit)
+
+
+def _watch_now(book: Book, unit: str | None) -> Watch:
     now = book.now()
     # The plant as watchlist.plant covers it, without the contexts (built only for a row that
     # must be computed: see statuscache.watch_filters).

@@ -64,3 +64,31 @@ def test_a_collector_switched_off_by_its_owner_stays_off_and_an_error_lets_it_go
     with pytest.raises(ValueError), _no_gc_pauses():
         raise ValueError("a row that cannot be read")
     assert gc.isenabled()
+
+
+def test_the_watch_list_now_is_built_with_the_collector_held_and_as_of_without(
+    monkeypatch, demo_file, tmp_path
+):
+    """views.watch holds it while it builds the list now (as journal.read does), not for an
+    as-of list, which computes every status for seconds; either way it is left running."""
+    import shutil
+
+    from store import views
+    from store.db.book import open_book
+    from store.health import watchlist
+
+    path = tmp_path / "demo.db"
+    shutil.copy(demo_file, path)
+    seen: list[bool] = []
+    real = watchlist.watch_list
+
+    def spy(*args, **kwargs):  # noqa: ANN002, ANN003
+        seen.append(gc.isenabled())
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(views, "watch_list", spy)
+    with open_book(path, create=False) as book:
+        views.watch(book)
+        views.watch(book, as_of=book.now())
+    assert seen == [False, True]
+    assert gc.isenabled()
