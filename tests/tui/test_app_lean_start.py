@@ -85,3 +85,37 @@ def test_the_painted_list_loads_no_other_screen_form_chart_or_fitting_maths(demo
     sheet = loaded_of(seen["sheet"], NOT_AT_START)
     for name in ("tui.screens.filter_sheet", "textual_plotext", "store.forecast.trend", "numpy"):
         assert name in sheet
+
+
+BEHIND_THE_LIST = """
+import asyncio, json, sys
+from store.db.book import open_book
+from tui.app import SumpbookApp
+
+async def main():
+    app = SumpbookApp(open_book(sys.argv[1], create=False), cursor_blink=False)
+    async with app.run_test(size=(80, 24)) as pilot:
+        while not app.book_checked:  # the check behind the painted list, and what follows it
+            await pilot.pause(0.05)
+        print(json.dumps({"screen": type(app.screen).__name__, "loaded": sorted(sys.modules)}))
+
+asyncio.run(main())
+"""
+
+
+def test_behind_the_list_the_first_sheet_s_imports_are_made(demo_file, tmp_path):
+    """Once the check behind the list has run, the fitting maths and the filter sheet's screen
+    with its chart library are loaded, before any sheet is opened: the first Enter on a
+    filter waits for no import."""
+    path = tmp_path / "demo.db"
+    path.write_bytes(demo_file.read_bytes())
+    env = {**os.environ, "SUMPBOOK_CONFIG": str(write_prefs(tmp_path, tech="AK")),
+           "PYTHONPATH": str(ROOT)}  # fmt: skip
+    done = subprocess.run([sys.executable, "-c", BEHIND_THE_LIST, str(path)],
+                          capture_output=True, text=True, env=env, cwd=ROOT, timeout=240,
+                          check=False)  # fmt: skip
+    assert done.returncode == 0, done.stderr[-3000:]
+    seen = json.loads(done.stdout.strip().splitlines()[-1])
+    assert seen["screen"] != "FilterSheetScreen"
+    for name in ("tui.screens.filter_sheet", "textual_plotext", "store.forecast.trend"):
+        assert name in seen["loaded"], name
