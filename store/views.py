@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from datetime import datetime, timedelta
 
+from store.base.collector import collector_held
 from store.db.book import Book
 from store.derived.elementcache import kept_before
 from store.derived.statuscache import (
@@ -30,7 +31,6 @@ from store.health.watchlist import (
     status_as_of,
     watch_list,
 )
-from store.ledger.journal import _no_gc_pauses
 from store.ledger.register import FilterPosition, Unit, list_all
 
 
@@ -43,7 +43,7 @@ def watch(book: Book, as_of: datetime | None = None, unit: str | None = None) ->
     # The list of a big plant is a hundred thousand objects without cycles: the collector
     # is held while they are made, as journal.read holds it (not for an as-of list: it
     # computes every status, with the fitting maths' own objects, for seconds).
-    with _no_gc_pauses():
+    with collector_held():
         return _watch_now(book, unit)
 
 

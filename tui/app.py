@@ -8,7 +8,7 @@ import os
 import sqlite3
 import sys
 import time
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from concurrent.futures import Future
 from dataclasses import replace
 from importlib import import_module
@@ -25,6 +25,7 @@ from textual.theme import Theme
 
 from store import Book, deep_check, open_book, record
 from store.base import prefs as laptop
+from store.base.collector import hold_collector
 from store.base.errors import BookError
 from store.base.session import Session, from_environ
 from store.base.text import inert_line
@@ -198,7 +199,7 @@ class SumpbookApp(App[None]):
         self.check_seconds = 0.0  # how long the last whole-file check (and preload) took
         self.kept_filter_sheet: Any = None  # see filter_sheet_for
         self.early_watch: Future[WatchData] | None = None  # the first list, read at load
-        self.collector_held = False  # see on_load
+        self.let_collector_run: Callable[[], None] = lambda: None  # on_load holds it
         for theme in THEMES.values():
             self.register_theme(theme)
         self.start_theme(THEMES.get(self.prefs.theme, THEMES["dark"]))
@@ -236,16 +237,8 @@ class SumpbookApp(App[None]):
         # are paid for nothing (about a tenth of the start's CPU on a big plant). It is held
         # until the list is painted (`first_paint_done`), or LET_COLLECTOR_RUN_S at the
         # latest, or the app's end, whichever comes first.
-        if gc.isenabled():
-            gc.disable()
-            self.collector_held = True
-            self.set_timer(LET_COLLECTOR_RUN_S, self.let_collector_run)
-
-    def let_collector_run(self) -> None:
-        """Undo `on_load`'s hold of the cyclic collector (once; nothing if it held none)."""
-        if self.collector_held:
-            self.collector_held = False
-            gc.enable()
+        self.let_collector_run = hold_collector()
+        self.set_timer(LET_COLLECTOR_RUN_S, self.let_collector_run)
 
     def on_unmount(self) -> None:
         self.let_collector_run()

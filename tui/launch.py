@@ -18,26 +18,46 @@ the exit code, in a pipe that closes early too)."""
 
 from __future__ import annotations
 
-import gc
 import os
 import sys
 from collections.abc import Sequence
+
+from store.base.collector import hold_collector
 
 # The answers given with the collector held to the end: read-only, a bounded size (the
 # plant's list), done in well under a second.
 HELD_TO_THE_END = frozenset({"status", "list"})
 
 
-_answered: list[str | None] = []  # the command main() ran, once its words were parsed
-
-
 def run() -> None:
-    """The process: `main()`, then out, at once after a held answer (see above)."""
-    code = main()
-    if _answered and _answered[-1] in HELD_TO_THE_END:
-        code = _flushed(code)
-        os._exit(code)
+    """The process: the command line's answer, then out, at once after a held answer."""
+    code, command = _answer(None)
+    if command in HELD_TO_THE_END:
+        os._exit(_flushed(code))
     sys.exit(code)
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """The command line with the collector held as above; leaves it as it found it."""
+    return _answer(argv)[0]
+
+
+def _answer(argv: Sequence[str] | None) -> tuple[int, str | None]:
+    """The command line's exit code, and the command it ran (None: the app)."""
+    let_go = hold_collector()
+    named: list[str | None] = [None]
+
+    def loaded(command: str | None) -> None:  # the words are parsed
+        named[0] = command
+        if command not in HELD_TO_THE_END:
+            let_go()
+
+    try:
+        from tui import cli
+
+        return cli.main(argv, loaded=loaded), named[0]
+    finally:
+        let_go()
 
 
 def _flushed(code: int) -> int:
@@ -59,24 +79,3 @@ def _flushed(code: int) -> int:
     except (OSError, ValueError):  # nowhere left to say anything
         pass
     return code
-
-
-def main(argv: Sequence[str] | None = None) -> int:
-    """The command line with the collector held as above; leaves it as it found it."""
-    was_on = gc.isenabled()
-    gc.disable()
-    try:
-        from tui import cli
-
-        return cli.main(argv, loaded=_loaded if was_on else _answered.append)
-    finally:
-        if was_on:
-            gc.enable()
-
-
-def _loaded(command: str | None) -> None:
-    """Called by the command line once it knows the command: lets the collector run again
-    unless the command is one of HELD_TO_THE_END."""
-    _answered.append(command)
-    if command not in HELD_TO_THE_END:
-        gc.enable()

@@ -55,6 +55,7 @@ from operator import itemgetter
 from pathlib import Path
 from typing import IO, Any
 
+from store.base.collector import collector_held
 from store.base.errors import BookError
 from store.base.prefs import Prefs
 from store.base.timeutil import format_utc, iso_local, next_shift, shift_at
@@ -75,7 +76,7 @@ from store.health import urgency
 from store.health.conditions import FilterContext, contexts, normalise
 from store.health.status_model import FLAG_WORDS, Watch
 from store.ledger.entries import KINDS, TARGET_COLUMN, Reading, entry_columns
-from store.ledger.journal import ROW_ERRORS, _no_gc_pauses, note_unreadable, parse_stamp
+from store.ledger.journal import ROW_ERRORS, note_unreadable, parse_stamp
 from store.views import watch
 
 # Reading a column costs even when it is NULL, and the later in the table row the more, so
@@ -723,7 +724,7 @@ def write_span(
     start_text = None if start is None else format_utc(start)
     end_text = None if end is None else format_utc(end)
     # the cyclic collector held as journal.read holds it: its passes would find no cycles
-    with read_snapshot(book.conn), _no_gc_pauses():
+    with read_snapshot(book.conn), collector_held():
         span_lines = SpanLines(book, prefs, local, pattern)
         batches = span_lines.span(start_text, end_text)
         if not status:

@@ -3,16 +3,14 @@ here touch the entries table only; a save goes through store.record."""
 
 from __future__ import annotations
 
-import gc
 import sqlite3
-import threading
-from collections.abc import Callable, Iterable, Iterator, Sequence
-from contextlib import contextmanager
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, fields, replace
 from datetime import datetime
 from typing import Any
 
 from store.base import validate as validate_value
+from store.base.collector import collector_held
 from store.base.errors import BookError
 from store.base.timeutil import format_utc, parse_utc, utc_now
 from store.base.validate import ENTRY_KINDS, INDICATOR_STATES
@@ -403,37 +401,11 @@ def entries_from_rows(book: Book, rows: Iterable[Sequence[Any]]) -> list[Entry]:
         return out
 
 
-# The cyclic collector is one switch for the whole process, and reads run in several threads
-# at once (the app's workers). One count under one lock: the first read to come in holds the
-# collector (if it was running), the last to leave lets it run again, whatever the order in
-# which they end; code that had switched it off itself finds it off after the reads.
-_gc_lock = threading.Lock()
-_gc_readers = 0
-_gc_was_on = False
-
-
-@contextmanager
-def _no_gc_pauses() -> Iterator[None]:
-    """Hold the cyclic garbage collector while `read` builds its entries: they hold no
-    cycles, but each is a dataclass instance the collector tracks, so its passes over the
-    growing heap are paid for nothing. tests/benchmarks/speed.py measures both ways on each
-    run (figure 8: fresh processes, in turns); on the one-year book (0.9 M entries, December
-    2026, a 2-core machine shared with other work) every entry read took 1.26 and 2.0 times
-    as long without the hold in two runs. Safe to nest and to enter from several threads
-    (see above); never left off by a read."""
-    global _gc_readers, _gc_was_on
-    with _gc_lock:
-        if _gc_readers == 0:
-            _gc_was_on = gc.isenabled()
-            gc.disable()
-        _gc_readers += 1
-    try:
-        yield
-    finally:
-        with _gc_lock:
-            _gc_readers -= 1
-            if _gc_readers == 0 and _gc_was_on:
-                gc.enable()
+# `read` holds the cyclic collector while it builds its entries (store/base/collector.py):
+# every entry read of the one-year book (0.9 M entries, December 2026, a 2-core machine shared
+# with other work) took 1.26 and 2.0 times as long without the hold in two runs (speed.py's
+# figure 8, which switches it off through this name).
+_no_gc_pauses = collector_held
 
 
 def find_entry(book: Book, entry_id: str) -> Entry:

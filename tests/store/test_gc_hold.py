@@ -1,4 +1,4 @@
-"""The collector held by long reads (journal._no_gc_pauses) is one switch for the whole
+"""The collector held by long reads (store/base/collector.py) is one switch for the whole
 process: reads in several threads, nested or ending in any order, leave it as they found it
 (issue 25, item 4). Why it is held at all is measured by tests/benchmarks/speed.py."""
 
@@ -9,7 +9,7 @@ import threading
 
 import pytest
 
-from store.ledger.journal import _no_gc_pauses
+from store.base.collector import collector_held, hold_collector
 
 
 @pytest.fixture(autouse=True)
@@ -20,8 +20,8 @@ def _collector_on():
 
 
 def test_nested_holds_let_the_collector_run_again_only_when_the_outer_one_ends():
-    with _no_gc_pauses():
-        with _no_gc_pauses():
+    with collector_held():
+        with collector_held():
             assert not gc.isenabled()
         assert not gc.isenabled()  # the outer read is still building
     assert gc.isenabled()
@@ -32,14 +32,14 @@ def test_two_threads_ending_in_the_other_order_keep_it_held_until_the_last_one_e
     seen: dict[str, bool] = {}
 
     def a() -> None:
-        with _no_gc_pauses():
+        with collector_held():
             a_in.set()
             b_in.wait(5)
         a_out.set()  # A ends first, B is still reading
 
     def b() -> None:
         a_in.wait(5)
-        with _no_gc_pauses():
+        with collector_held():
             b_in.set()
             a_out.wait(5)
             seen["during B after A"] = gc.isenabled()
@@ -57,11 +57,11 @@ def test_two_threads_ending_in_the_other_order_keep_it_held_until_the_last_one_e
 
 def test_a_collector_switched_off_by_its_owner_stays_off_and_an_error_lets_it_go():
     gc.disable()
-    with _no_gc_pauses():
+    with collector_held():
         pass
     assert not gc.isenabled()
     gc.enable()
-    with pytest.raises(ValueError), _no_gc_pauses():
+    with pytest.raises(ValueError), collector_held():
         raise ValueError("a row that cannot be read")
     assert gc.isenabled()
 
@@ -91,4 +91,20 @@ def test_the_watch_list_now_is_built_with_the_collector_held_and_as_of_without(
         views.watch(book)
         views.watch(book, as_of=book.now())
     assert seen == [False, True]
+    assert gc.isenabled()
+
+
+def test_a_hold_let_go_twice_counts_once_and_spans_the_blocks_inside_it():
+    """The app's start holds it across callbacks (`hold_collector`) while its workers' reads
+    hold it in blocks: letting the app's hold go again (the paint, then the timer, then the
+    end) must not let a read's hold go."""
+    let_go = hold_collector()
+    with collector_held():
+        assert not gc.isenabled()
+    assert not gc.isenabled()  # the outer hold is still on
+    let_go()
+    assert gc.isenabled()
+    with collector_held():
+        let_go()  # a second call: nothing
+        assert not gc.isenabled()
     assert gc.isenabled()
