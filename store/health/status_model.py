@@ -18,7 +18,7 @@ import math
 from array import array
 from base64 import b64decode, b64encode
 from collections.abc import Sequence
-from dataclasses import asdict, field, fields, replace
+from dataclasses import MISSING, asdict, field, fields, replace
 from datetime import datetime, timedelta
 from functools import partial
 from typing import TYPE_CHECKING, Any, NamedTuple
@@ -30,7 +30,7 @@ from store.health.elements import Point
 from store.health.fluidcare import BreatherForecast, Consumption
 from store.health.notes import Note
 from store.ledger.entries import TopUp
-from store.ledger.journal import parse_stamp
+from store.ledger.journal import filled_entry, parse_stamp
 from store.physics.normalise import ColdStart
 
 if TYPE_CHECKING:  # the fitting maths (numpy, scipy) load on first use: a watch list read
@@ -474,64 +474,17 @@ class UnitClock:
 
 
 # A kept top-up is the entry as `unit_clock` read it back, less what the row leaves out (it
-# was read back with those at their defaults). Its fields are filled in directly, as
-# store.ledger.journal fills a plain entry in: the same object as `TopUp(...)` (the same
-# fields in the same order, equal, the same repr), in a third of the time; that holds while
-# TopUp is nothing but these fields with these defaults (`_TOPUP_PLAIN`), else its
-# constructor builds them.
-_TOPUP_FIELDS = (  # as `_kept_topups` fills them in, in TopUp's order
-    "id",
-    "at",
-    "by",
-    "note",
-    "unit",
-    "logged",
-    "voided_by",
-    "volume_l",
-    "fluid",
-    "filtered_um",
-    "hours",
-)
-_TOPUP_DEFAULTS = {"by": "", "note": "", "logged": None, "voided_by": None, "fluid": None}
-_TOPUP_PLAIN = (
-    not hasattr(TopUp, "__post_init__")
-    and not any("__slots__" in vars(k) for k in TopUp.__mro__ if k is not object)
-    and [f.name for f in fields(TopUp) if f.init] == list(_TOPUP_FIELDS)
-    and len(fields(TopUp)) == len(_TOPUP_FIELDS)
-    and all(
-        f.default == _TOPUP_DEFAULTS[f.name] for f in fields(TopUp) if f.name in _TOPUP_DEFAULTS
-    )
-)
-_new = object.__new__
-_set = object.__setattr__
+# was read back with those at their defaults): TopUp's fields in order, at their defaults, and
+# the row's values over them, filled in as journal fills an entry it reads
+# (`journal.filled_entry`: directly where TopUp is nothing but its fields, else its constructor).
+_TOPUP_BLANK = {f.name: None if f.default is MISSING else f.default for f in fields(TopUp)}
 
 
 def _kept_topups(rows: list[list[Any]], unit: str) -> tuple[TopUp, ...]:
     """The top-ups of a kept unit row (`UnitClock.to_row`'s `topups`)."""
-    if not _TOPUP_PLAIN:
-        return tuple(
-            TopUp(id=i, at=parse_stamp(at), unit=unit, volume_l=v, filtered_um=um, hours=h)
-            for i, at, v, um, h in rows
-        )
     out = []
     for i, at, v, um, h in rows:
-        topup = _new(TopUp)
-        _set(
-            topup,
-            "__dict__",
-            {
-                "id": i,
-                "at": parse_stamp(at),
-                "by": "",
-                "note": "",
-                "unit": unit,
-                "logged": None,
-                "voided_by": None,
-                "volume_l": v,
-                "fluid": None,
-                "filtered_um": um,
-                "hours": h,
-            },
-        )
-        out.append(topup)
+        values = _TOPUP_BLANK.copy()
+        values.update(id=i, at=parse_stamp(at), unit=unit, volume_l=v, filtered_um=um, hours=h)
+        out.append(filled_entry(TopUp, values))
     return tuple(out)

@@ -10,6 +10,7 @@ from pathlib import Path
 from store.db.book import open_book
 from store.health import fluidcare, status_model
 from store.health.units import unit_clock
+from store.ledger import journal
 from store.ledger.entries import TopUp
 from store.ledger.register import FilterPosition, Unit, list_all
 
@@ -22,7 +23,7 @@ def _by_constructor(row: dict, unit: str) -> tuple[TopUp, ...]:
 
 
 def test_kept_top_ups_are_the_constructor_s_objects(live: Path) -> None:
-    assert status_model._TOPUP_PLAIN  # else the constructor builds them and this proves nothing
+    assert TopUp in journal._FIELD_NAMES  # else the constructor builds them: this proves nothing
     with open_book(live, create=False) as book:
         now = book.now()
         units = list_all(book, Unit)
@@ -44,11 +45,14 @@ def test_kept_top_ups_are_the_constructor_s_objects(live: Path) -> None:
 
 
 def test_a_top_up_with_a_field_more_falls_back_to_its_constructor(monkeypatch) -> None:
-    # the shortcut is taken only while TopUp holds exactly the fields it fills in
+    # the shortcut is taken only while the values name exactly TopUp's fields, in order
     names = [f.name for f in fields(TopUp)]
-    assert list(status_model._TOPUP_FIELDS) == names
-    monkeypatch.setattr(status_model, "_TOPUP_PLAIN", False)
+    assert list(status_model._TOPUP_BLANK) == names
     row = {"topups": [["a" * 8, "2026-01-02T03:04:05Z", 12.0, None, 7.0]]}
+    some = {"id": "b" * 8, "at": status_model.parse_stamp("2026-01-02T03:04:05Z"), "unit": "U1",
+            "volume_l": 3.0, "filtered_um": 10.0, "hours": None}  # fmt: skip
+    assert journal.filled_entry(TopUp, some) == TopUp(**some)  # not every field: constructor
+    monkeypatch.setattr(journal, "_FIELD_NAMES", {})  # as for a class that is not plain
     assert status_model._kept_topups(row["topups"], "U1") == _by_constructor(row, "U1")
 
 
