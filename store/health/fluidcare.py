@@ -77,11 +77,6 @@ def topup_consumption(
     return Consumption(recent_rate, history_rate, per_100h, rising, note)
 
 
-def topup_filtration_problem(topup: TopUp, filters: Sequence[FilterPosition]) -> str | None:
-    """Why a top-up may have brought dirt in, or None."""
-    return filtration_problem(topup, finest_rating_um(filters))
-
-
 def finest_rating_um(filters: Sequence[FilterPosition]) -> float | None:
     """The finest rating among a unit's filters (those that give one), None for none."""
     ratings = [f.rating_um for f in filters if f.rating_um]
@@ -89,7 +84,8 @@ def finest_rating_um(filters: Sequence[FilterPosition]) -> float | None:
 
 
 def filtration_problem(topup: TopUp, finest_um: float | None) -> str | None:
-    """`topup_filtration_problem` given the unit's finest rating (`finest_rating_um`)."""
+    """Why a top-up may have brought dirt in, or None, given the finest rating of its unit's
+    filters (`finest_rating_um`)."""
     if topup.filtered_um is None:
         return (
             f"{topup.volume_l:g} L went in unfiltered: new oil is often only about "

@@ -621,20 +621,8 @@ def breather_swap_marks(book: Book, until: datetime | None = None) -> dict[str, 
     last, found = None, []
     for tag, at, logged, condition, entry_id, voided_by in book.conn.execute(sql, params):
         try:  # what `_entry` parses, in its order: the same rows fail with the same message
-            # parse_stamp, its usual case in line (a call less for each of two stamps a row)
-            if at.__class__ is str and len(at) == 20 and at[10] == "T" and at[19] == "Z":
-                when = _parse_iso(at)
-            else:
-                when = parse_stamp(at)
-            if (
-                logged.__class__ is str
-                and len(logged) == 20
-                and logged[10] == "T"
-                and logged[19] == "Z"
-            ):
-                _parse_iso(logged)  # only to find a row that cannot be read
-            else:
-                parse_stamp(logged)
+            when = parse_stamp(at)
+            parse_stamp(logged)
         except ROW_ERRORS as exc:
             if voided_by is None:
                 note_unreadable(book, entry_id, _row_problem(exc))

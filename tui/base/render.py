@@ -322,14 +322,6 @@ class LocalDays:
         return f"{local:%d %b}" if local.year == self.this_year else local.strftime(f"%d %b {year}")
 
 
-def due_text(book: Book, due) -> str:  # noqa: ANN001 - status_model.Due | None
-    return "–" if due is None else LocalDays.of(book).due_text(due)
-
-
-def due_day(book: Book, moment: datetime | None) -> str:
-    return f"{moment.astimezone(book.local_zone()):%d %b %Y}" if moment else "–"
-
-
 NARROW_COLUMNS = 120  # below this many columns `status` leaves out unit, kind and basis
 
 
@@ -409,11 +401,6 @@ def round_table(book: Book, plan: Round) -> Table:
     if not plan.stops:
         _add_row(table, "", "", "nothing to read this shift", "", "", "", "")
     return table
-
-
-def short_due(book: Book, due) -> str:  # noqa: ANN001 - status_model.Due
-    """'16 Dec (10 Dec–11 Jan)': the likely day first, the years only where not this one."""
-    return LocalDays.of(book).short_due(due)
 
 
 def change_text(change: register.RegisterChange) -> str:
