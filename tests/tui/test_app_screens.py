@@ -284,6 +284,24 @@ async def test_sign_in_by_typing_the_initials(plant, tmp_path, monkeypatch):
         assert app.tech == "CD"
 
 
+async def test_initials_nobody_has_sign_in_nobody(plant, tmp_path, monkeypatch):
+    """Typed initials that match no technician leave no one highlighted: Enter signs in
+    nobody (it signed in whoever was highlighted), the screen says why and stays."""
+    monkeypatch.setenv("SUMPBOOK_CONFIG", str(write_prefs(tmp_path, tech="")))
+    app = app_for(plant)
+    async with app.run_test(size=(80, 24)) as pilot:
+        await pilot.pause()
+        await pilot.press("z", "q", "enter")  # AB, CD in the list: nobody's begin ZQ
+        await pilot.pause()
+        assert isinstance(app.screen, SignInScreen)
+        assert app.tech == ""
+        said = str(app.screen.query_one("#sign-msg").render())
+        assert "No technician's initials begin ZQ" in said
+        await pilot.press("down", "enter")  # the list still works: the first one, AB
+        await pilot.pause()
+        assert app.tech == "AB"
+
+
 async def test_first_run_on_an_empty_logbook(tmp_path):
     with open_book(tmp_path / "empty.db"):
         pass

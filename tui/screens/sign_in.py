@@ -54,17 +54,26 @@ class SignInScreen(ModalScreen[str | None]):
 
     def on_key(self, event: events.Key) -> None:
         """Typed letters on the list jump to the first technician whose initials begin so
-        (a pause of a second starts a new prefix)."""
+        (a pause of a second starts a new prefix). Initials nobody's begin with leave no one
+        highlighted, so that Enter signs in nobody else, and say so."""
         options = self.query_one(OptionList)
         if not (options.has_focus and event.character and event.character.isalnum()):
             return
         now = time.monotonic()
         self.typed = (self.typed if now - self.typed_at < 1.0 else "") + event.character.upper()
         self.typed_at = now
+        message = self.query_one("#sign-msg", Static)
         for i in range(options.option_count):
             if str(options.get_option_at_index(i).id).startswith(self.typed):
                 options.highlighted = i
+                message.update("")
                 break
+        else:
+            options.highlighted = None
+            message.update(
+                f"No technician's initials begin {self.typed}: pick yours with ↑↓, or add "
+                "yourself below"
+            )
         event.stop()
 
     def on_option_list_option_selected(self, event: OptionList.OptionSelected) -> None:
