@@ -31,7 +31,7 @@ from store.health.watchlist import (
     status_as_of,
     watch_list,
 )
-from store.ledger.register import FilterPosition, Unit, list_all
+from store.ledger.register import FilterPosition, list_all
 
 
 def watch(book: Book, as_of: datetime | None = None, unit: str | None = None) -> Watch:
@@ -51,12 +51,12 @@ def _watch_now(book: Book, unit: str | None) -> Watch:
     now = book.now()
     # The plant as watchlist.plant covers it, without the contexts (built only for a row that
     # must be computed: see statuscache.watch_filters).
-    all_units, positions = list_all(book, Unit), list_all(book, FilterPosition)
+    reg = register(book)  # the keys' register part, read once for the list
+    all_units, positions = reg.units(), reg.positions()  # list_all's, from the rows read
     by_unit: dict[str, list[FilterPosition]] = {}
     for position in positions:
         by_unit.setdefault(position.unit.upper(), []).append(position)
     mine = [q for q in positions if unit is None or q.unit == unit]
-    reg = register(book)  # the keys' register part, read once for the list
     filters = watch_filters(book, mine, now, reg)
     units = cached_units(
         book, [u for u in all_units if unit is None or u.tag == unit], by_unit, now, reg

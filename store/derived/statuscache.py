@@ -46,7 +46,7 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field, fields
 from datetime import datetime
 from functools import cached_property
-from typing import Any
+from typing import Any, NamedTuple
 
 from store.base.timeutil import format_utc
 from store.db.book import Book
@@ -75,7 +75,7 @@ from store.health.status_model import (
 from store.health.units import unit_at, unit_clock
 from store.ledger.entries import Entry, Reading, TopUp, Void
 from store.ledger.journal import element_items, parse_stamp
-from store.ledger.register import FilterPosition, Unit, find, list_all
+from store.ledger.register import FilterPosition, Unit, find, list_all, records_from
 from store.physics.normalise import ColdStart
 
 try:  # hashlib's own blake2b, without hashlib loading OpenSSL's hashes (3 ms of every start)
@@ -124,15 +124,24 @@ class Register:
     unit's digest is made of (made when first asked for: a save needs two or three, a list
     all of them), each position's like positions and each unit's temperature limit."""
 
-    filter_rows: dict[str, tuple]  # by upper-case tag
+    filter_rows: dict[str, tuple]  # by upper-case tag, in tag order
     filter_units: dict[str, str]
-    unit_rows: dict[str, tuple]
+    unit_rows: dict[str, tuple]  # by upper-case tag, in tag order
     fluid_rows: dict[str, tuple | None]  # each unit's fluid
     shifts: list[tuple]
     unit_filters: dict[str, list[str]]  # each unit's positions, in tag order
     like: dict[str, tuple[str, ...]]  # the positions taking its element, itself among them
     unit_limits: dict[str, float]  # each unit's temperature limit (a hot reading is an input)
+    columns: dict[str, list[str]] = field(default_factory=dict)  # "filters", "units": names
     _memo: dict[Any, str] = field(default_factory=dict, compare=False)
+
+    def positions(self) -> list[FilterPosition]:
+        """Every filter position, by tag: `list_all(book, FilterPosition)` from the rows read."""
+        return records_from(FilterPosition, self.columns["filters"], self.filter_rows.values())
+
+    def units(self) -> list[Unit]:
+        """Every unit, by tag: `list_all(book, Unit)` from the rows read."""
+        return records_from(Unit, self.columns["units"], self.unit_rows.values())
 
     def _around(self, unit: str) -> str | None:
         """What a position reads beyond its own row: its unit, that unit's fluid, the shifts."""
@@ -208,7 +217,7 @@ def _read_register(book: Book) -> Register:
     shifts = book.conn.execute("SELECT * FROM shifts ORDER BY position, starts").fetchall()
     fcols, fluids = _table(book, "SELECT * FROM fluids")
     fluid_rows = {r[fcols.index("tag")].upper(): r for r in fluids}
-    ucols, units = _table(book, "SELECT * FROM units")
+    ucols, units = _table(book, "SELECT * FROM units ORDER BY tag")
     utag, ufluid, ulimit = ucols.index("tag"), ucols.index("fluid"), ucols.index("max_temp_c")
     unit_rows = {r[utag].upper(): r for r in units}
     cols, rows = _table(book, "SELECT * FROM filters ORDER BY tag")
@@ -230,6 +239,7 @@ def _read_register(book: Book) -> Register:
         by_unit,
         like,
         {tag: u[ulimit] for tag, u in unit_rows.items()},
+        {"filters": cols, "units": ucols},
     )
 
 
@@ -319,9 +329,9 @@ def _seen(book: Book, what: str) -> dict[str, int]:
 # ---- the kept rows -------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
-class Kept:
-    """One kept filter row as read, before its key is checked."""
+class Kept(NamedTuple):
+    """One kept filter row as read, before its key is checked (a named tuple: a list reads
+    one per position, and a tuple is made in a fifth of a frozen dataclass's time)."""
 
     key: str
     computed_utc: str

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import functools
 import sqlite3
+from collections.abc import Iterable, Sequence
 from dataclasses import asdict, fields
 from datetime import datetime
 from typing import Any, TypeVar
@@ -197,14 +198,20 @@ def list_all(book: Book, cls: type[R], unit: str | None = None) -> list[R]:
     if unit is not None and cls in (FilterPosition, Breather):
         sql, params = f"SELECT * FROM {table} WHERE unit = ? ORDER BY tag", [unit]
     cursor = book.conn.execute(sql, params)
-    index = {d[0]: i for i, d in enumerate(cursor.description)}
+    return records_from(cls, [d[0] for d in cursor.description], cursor)
+
+
+def records_from(cls: type[R], columns: Sequence[str], rows: Iterable[tuple]) -> list[R]:
+    """Records of `cls` from rows of its table as `SELECT *` gives them (`columns`, their
+    names): what `list_all` makes of them, for a reader that has the rows already."""
+    index = {name: i for i, name in enumerate(columns)}
     names = [f.name for f in fields(cls)]  # in the order __init__ sets them
     cols = [(index[n], n, n in BOOL_FIELDS) for n in names if n in index]
     if hasattr(cls, "__post_init__") or "__slots__" in vars(cls) or len(cols) != len(names):
-        return [cls(**{n: (bool(r[i]) if b else r[i]) for i, n, b in cols}) for r in cursor]
+        return [cls(**{n: (bool(r[i]) if b else r[i]) for i, n, b in cols}) for r in rows]
     new = object.__new__
     out = []
-    for row in cursor:
+    for row in rows:
         record = new(cls)
         record.__dict__.update({n: (bool(row[i]) if b else row[i]) for i, n, b in cols})
         out.append(record)

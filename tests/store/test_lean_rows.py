@@ -26,6 +26,7 @@ from store.health import status_json
 from store.health.conditions import contexts
 from store.health.status_model import FilterStatus
 from store.health.watchlist import watch_list
+from store.ledger.register import FilterPosition, Unit, list_all
 from tests.kit.kept_demo import kept_demo, moved
 
 LATER = [
@@ -165,3 +166,13 @@ def test_the_upgrade_to_schema_7_empties_the_filter_rows_alone(kept: Path, tmp_p
         count, lean = conn.execute("SELECT count(*), sum(lean) FROM status_cache").fetchone()
         assert count == lean > 0
         assert status_json.to_json(views.watch(book)) == before
+
+
+def test_the_list_s_positions_and_units_are_the_register_s(kept: Path) -> None:
+    # The list makes its positions and units from the rows its key check read
+    # (Register.positions, Register.units), not from a second read of the tables: they must
+    # be list_all's, field for field and in the same order (common practice, no source).
+    with open_book(kept, create=False) as book:
+        reg = statuscache.register(book)
+        assert reg.positions() == list_all(book, FilterPosition)
+        assert reg.units() == list_all(book, Unit)
