@@ -48,6 +48,7 @@ from datetime import datetime
 from functools import cached_property
 from typing import Any, NamedTuple
 
+from store.base.records import filled_record
 from store.base.timeutil import format_utc
 from store.db.book import Book
 from store.derived.elementcache import (
@@ -615,7 +616,14 @@ class _Lean(FilterStatus):
 def _due(earliest: str | None, likely: str, latest: str | None) -> Due | None:
     if earliest is None:
         return None
-    return Due(_from_iso(earliest), _from_iso(likely), _from_iso(latest) if latest else None)
+    return filled_record(
+        Due,
+        {
+            "earliest": _from_iso(earliest),
+            "likely": _from_iso(likely),
+            "latest": _from_iso(latest) if latest else None,
+        },
+    )
 
 
 def _words(text: str) -> list[str]:
@@ -636,17 +644,22 @@ def _from_lean(cols: tuple, now: datetime) -> FilterStatus:
         check_after_h, life_shape, life_scale_h, hot, max_temp_c,
     ) = cols  # fmt: skip
     if due_ages is None:
-        clock = Clock(
-            None if valid_from is None else _from_iso(valid_from),
-            None if origin is None else _from_iso(origin),
-            None if meter_at is None else (_from_iso(meter_at), meter_age_h, meter_rate),
-            None,
-            last_age_h,
-            state,
-            check_after_h,
-            None if life_shape is None else (life_shape, life_scale_h),
-            () if hot is None else tuple([(_from_iso(at), t) for at, t in _loads(hot)]),
-            max_temp_c,
+        clock = filled_record(
+            Clock,
+            {
+                "valid_from": None if valid_from is None else _from_iso(valid_from),
+                "origin": None if origin is None else _from_iso(origin),
+                "meter": None
+                if meter_at is None
+                else (_from_iso(meter_at), meter_age_h, meter_rate),
+                "due_ages": None,
+                "last_age_h": last_age_h,
+                "state": state,
+                "check_after_h": check_after_h,
+                "life": None if life_shape is None else (life_shape, life_scale_h),
+                "hot": () if hot is None else tuple([(_from_iso(at), t) for at, t in _loads(hot)]),
+                "max_temp_c": max_temp_c,
+            },
         )
     else:
         clock = Clock.from_row(
@@ -673,8 +686,8 @@ def _from_lean(cols: tuple, now: datetime) -> FilterStatus:
     flags_then = tuple(flags.split()) if flags else ()
     gauge = bool(gauge)
     timed = clock_parts(flags_then, (), due, bypass_due, gauge, overdue, clock, now, kept_words)
-    status = _new(_Lean)
-    status.__dict__.update(
+    return filled_record(
+        _Lean,
         {
             "filter": tag,
             "unit": unit,
@@ -701,10 +714,28 @@ def _from_lean(cols: tuple, now: datetime) -> FilterStatus:
             "reference": reference,
             "cold": None
             if cold_t is None
-            else ColdStart(cold_t, cold_dp, cold_bypass_bar, bool(cold_bypasses), cold_below),
+            else filled_record(
+                ColdStart,
+                {
+                    "start_temp_c": cold_t,
+                    "dp_at_start_bar": cold_dp,
+                    "bypass_bar": cold_bypass_bar,
+                    "bypasses": bool(cold_bypasses),
+                    "bypass_below_c": cold_below,
+                },
+            ),
             "life": None
             if b10_h is None
-            else LifeSummary(b10_h, b50_h, n_failed, n_censored, bool(pooled)),
+            else filled_record(
+                LifeSummary,
+                {
+                    "b10_h": b10_h,
+                    "b50_h": b50_h,
+                    "n_failed": n_failed,
+                    "n_censored": n_censored,
+                    "pooled": bool(pooled),
+                },
+            ),
             "history": (),  # no kept row has it
             "overdue_at": overdue,
             "pace": pace,
@@ -715,12 +746,8 @@ def _from_lean(cols: tuple, now: datetime) -> FilterStatus:
             "clock": clock,
             "_note_codes": note_codes,
             "_spark": spark,
-        }
+        },
     )
-    return status
-
-
-_new = object.__new__
 
 
 def filter_view(book: Book, tag: str) -> tuple[FilterStatus, Elements]:

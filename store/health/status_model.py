@@ -23,7 +23,7 @@ from datetime import datetime, timedelta
 from functools import partial
 from typing import TYPE_CHECKING, Any, NamedTuple
 
-from store.base.records import frozen_record
+from store.base.records import filled_record, frozen_record
 from store.base.timeutil import format_utc
 from store.health import urgency as ranking
 from store.health.elements import Point
@@ -106,14 +106,19 @@ class _Ages(NamedTuple):  # an age interval, as trend.AgeInterval (without numpy
 def due_of(interval: trend.AgeInterval | _Ages | None, age_to_time: Any) -> Due | None:
     if interval is None:
         return None
-
-    def at(age_h: float) -> datetime:
-        return age_to_time(age_h).replace(microsecond=0)
-
     if not interval.likely_h < MAX_AGE_H:  # beyond any sensible plan: no date
         return None
-    latest = at(interval.latest_h) if interval.latest_h < MAX_AGE_H else None
-    return Due(at(interval.earliest_h), at(interval.likely_h), latest)
+    latest_h = interval.latest_h
+    return filled_record(  # Due(earliest, likely, latest), made for every row of a list
+        Due,
+        {
+            "earliest": age_to_time(interval.earliest_h).replace(microsecond=0),
+            "likely": age_to_time(interval.likely_h).replace(microsecond=0),
+            "latest": age_to_time(latest_h).replace(microsecond=0)
+            if latest_h < MAX_AGE_H
+            else None,
+        },
+    )
 
 
 @frozen_record
@@ -130,6 +135,20 @@ def weibull_remaining_h(shape: float, scale_h: float, age_h: float, p: float) ->
     age_h by which a share p of elements that survived to age_h reach the limit."""
     z = (max(age_h, 0.0) / scale_h) ** shape
     return scale_h * (z - math.log1p(-p)) ** (1.0 / shape) - max(age_h, 0.0)
+
+
+def _life_ages(shape: float, scale_h: float, age_h: float) -> _Ages:
+    """The ages at which `_LIFE_P` of elements that survived to age_h reach the limit: age_h
+    + `weibull_remaining_h` at each share, the same sums with the survival term worked
+    out once (tests/store/test_timeproof.py holds them equal)."""
+    aged = max(age_h, 0.0)
+    z, power = (aged / scale_h) ** shape, 1.0 / shape
+    p5, p10, p50 = _LIFE_P
+    return _Ages(
+        age_h + (scale_h * (z - math.log1p(-p5)) ** power - aged),
+        age_h + (scale_h * (z - math.log1p(-p10)) ** power - aged),
+        age_h + (scale_h * (z - math.log1p(-p50)) ** power - aged),
+    )
 
 
 @frozen_record
@@ -238,10 +257,7 @@ def clock_parts(
             state = "check-now"
     if clock.life is not None:
         shape, scale_h = clock.life
-        due = due_of(
-            _Ages(*(age_now + weibull_remaining_h(shape, scale_h, age_now, p) for p in _LIFE_P)),
-            time_at,
-        )
+        due = due_of(_life_ages(shape, scale_h, age_now), time_at)
     if not gauge and due is None and state in ("no-readings", "too-few-readings"):
         state = "indicator-only"
     flags = [f for f in flags_then if f not in CLOCK_FLAGS]

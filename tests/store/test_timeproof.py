@@ -187,6 +187,18 @@ def test_the_numpy_free_remaining_life_is_the_weibull_fit_s(age_h: float, p: flo
     )
 
 
+@pytest.mark.parametrize("age_h", [-3.0, 0.0, 150.0, 2400.0, 40000.0])
+def test_the_three_due_ages_are_the_remaining_lives_at_each_share(age_h: float) -> None:
+    # A kept row's service-life due is dated from three ages worked out together (the
+    # survival term once); each must be the age plus weibull_remaining_h at its share, to the
+    # last bit, and so the WeibullFit's (the previous test). Shape/scale invented.
+    ages = status_model._life_ages(1.7, 1900.0, age_h)
+    assert list(ages) == [
+        age_h + status_model.weibull_remaining_h(1.7, 1900.0, age_h, p)
+        for p in status_model._LIFE_P
+    ]
+
+
 MOVES = ["reading", "void", "register", "outside-register", "like-change", "format"]
 
 
