@@ -135,6 +135,11 @@ class Register:
     unit_limits: dict[str, float]  # each unit's temperature limit (a hot reading is an input)
     columns: dict[str, list[str]] = field(default_factory=dict)  # "filters", "units": names
     _memo: dict[Any, str] = field(default_factory=dict, compare=False)
+    # each position's key as made, for a row that leans on like positions and for one that
+    # does not (a list asks once per position)
+    _keys: tuple[dict[str, str], dict[str, str]] = field(
+        default_factory=lambda: ({}, {}), compare=False
+    )
 
     def positions(self) -> list[FilterPosition]:
         """Every filter position, by tag: `list_all(book, FilterPosition)` from the rows read."""
@@ -164,6 +169,13 @@ class Register:
         return self._memo[key]
 
     def filter_key(self, tag: str, pools: bool) -> str:
+        made = self._keys[pools]
+        key = made.get(tag)
+        if key is None:
+            key = made[tag] = self._filter_key(tag, pools)
+        return key
+
+    def _filter_key(self, tag: str, pools: bool) -> str:
         like = "own"
         if pools:
             group = self.like.get(tag)

@@ -25,6 +25,7 @@ from datetime import datetime
 URGENT_FLAGS = ("dp-drop", "at-bypass", "indicator-bypass")
 NOTICE_FLAGS = ("cold-start-bypass", "no-limits")
 OVERDUE_STATES = ("check-now", "past-limit", "past-bypass")
+_URGENT, _NOTICE = frozenset(URGENT_FLAGS), frozenset(NOTICE_FLAGS)  # asked of every line
 
 
 # What a line in group 1 asks for, in place of its due date (the first urgent flag decides);
@@ -50,11 +51,11 @@ def filter_overdue(state: str, due_likely: datetime | None, now: datetime) -> bo
 def tier(flags: Iterable[str], overdue: bool) -> int:
     """0 inspect now, 1 overdue or over the limit, 2 another flag, 3 nothing pressing."""
     flags = tuple(flags)
-    if any(f in URGENT_FLAGS for f in flags):
+    if not _URGENT.isdisjoint(flags):
         return 0
     if overdue or "over-limit" in flags:
         return 1
-    if any(f not in NOTICE_FLAGS for f in flags):
+    if not _NOTICE.issuperset(flags):
         return 2
     return 3
 

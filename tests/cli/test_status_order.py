@@ -3,6 +3,7 @@ store/health/urgency.py."""
 
 from __future__ import annotations
 
+import itertools
 import json
 import shutil
 
@@ -107,3 +108,23 @@ def test_the_order_holds_once_likely_dates_have_passed(demo_file, tmp_path, monk
         assert passed and any(f.state not in urgency.OVERDUE_STATES for f in passed)
         rows = [r.tag for r in watch_rows(w) if r.what == "filter"]
     assert filters == rows
+
+
+def test_the_tiers_follow_their_rule_for_every_mix_of_flags():
+    # The rule in tier's docstring, spelled out over every mix of up to two flags (common
+    # practice, no source): any urgent flag first, then overdue or over the limit, then any
+    # flag that is more than a notice, then nothing pressing.
+    names = [*urgency.URGENT_FLAGS, *urgency.NOTICE_FLAGS, "over-limit", "hot", "leak-suspect"]
+    mixes = [()] + [(f,) for f in names] + list(itertools.permutations(names, 2))
+    for flags in mixes:
+        for overdue in (False, True):
+            if any(f in urgency.URGENT_FLAGS for f in flags):
+                want = 0
+            elif overdue or "over-limit" in flags:
+                want = 1
+            elif any(f not in urgency.NOTICE_FLAGS for f in flags):
+                want = 2
+            else:
+                want = 3
+            assert urgency.tier(flags, overdue) == want, (flags, overdue)
+            assert urgency.tier(iter(flags), overdue) == want  # any iterable of flags
