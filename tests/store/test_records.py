@@ -10,6 +10,7 @@ from typing import Any, ClassVar
 
 import pytest
 
+from store.base import records
 from store.base.records import frozen_record
 
 
@@ -163,3 +164,58 @@ def test_a_class_with_its_own_methods_is_left_to_dataclass():
 
     assert repr(Own(1)) == "own"
     assert Own(1) == Own(1) and hash(Own(1)) == hash(Own(1))
+
+
+def _refusal(action) -> tuple[type, str]:
+    try:
+        action()
+    except Exception as exc:  # what is refused, and how it is said
+        return type(exc), str(exc)
+    return type(None), ""
+
+
+def test_the_frozen_guards_refuse_and_hand_on_as_dataclass_s():
+    # frozen_record makes __setattr__ and __delattr__ as closures (on 3.11); each must refuse
+    # what dataclass's own refuse, with the same error and words, and hand the rest on to the
+    # base class as they do (Python 3.11's standard library, run beside it).
+    for plain, lean in twins():
+        args = _ARGS[plain.__name__][0]
+        p, q = made(plain, args), made(lean, args)
+        for name in [*args, "a", "other"]:
+            assert _refusal(lambda o=q, n=name: setattr(o, n, 5)) == _refusal(
+                lambda o=p, n=name: setattr(o, n, 5)
+            )
+            assert _refusal(lambda o=q, n=name: delattr(o, n)) == _refusal(
+                lambda o=p, n=name: delattr(o, n)
+            )
+
+        class Sub(lean):  # type: ignore[misc,valid-type]  # a plain subclass, as _Lean is
+            pass
+
+        class PlainSub(plain):  # type: ignore[misc,valid-type]
+            pass
+
+        s, t = Sub(**args), PlainSub(**args)
+        s.extra, t.extra = 1, 1  # not a field, not the frozen class itself: allowed
+        del s.extra, t.extra
+        for name in args:
+            assert _refusal(lambda o=s, n=name: setattr(o, n, 5)) == _refusal(
+                lambda o=t, n=name: setattr(o, n, 5)
+            )
+        assert lean.__setattr__.__qualname__ == f"{lean.__qualname__}.__setattr__"
+        if records.GUARDS_AS_KNOWN:  # the closures were asked, not dataclass's source text
+            assert lean.__setattr__.__code__.co_filename == records.__file__
+
+
+def test_the_maker_of_the_guards_is_put_back():
+    frozen_record(_one())
+    assert dataclasses._frozen_get_del_attr is records._MAKER  # type: ignore[attr-defined]
+    with pytest.raises(TypeError):  # dataclass refuses the class: the maker is put back too
+
+        @frozen_record
+        class Bad:
+            a: int = 0
+            b: int
+
+    assert dataclasses._frozen_get_del_attr is records._MAKER  # type: ignore[attr-defined]
+    assert records.GUARDS_AS_KNOWN == (records.sys.version_info[:2] == (3, 11))
