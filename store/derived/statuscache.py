@@ -70,10 +70,11 @@ from store.health.status_model import (
     FilterStatus,
     LifeSummary,
     UnitClock,
+    UnitInputs,
     UnitStatus,
     clock_parts,
 )
-from store.health.units import unit_at, unit_clock
+from store.health.units import unit_at, unit_clock, unit_status_from
 from store.ledger.entries import Entry, Reading, TopUp, Void
 from store.ledger.journal import element_items, parse_stamp
 from store.ledger.register import FilterPosition, Unit, find, list_all, records_from
@@ -1061,10 +1062,14 @@ def kept_units(
     for unit in units:
         tag = unit.tag.upper()
         row = rows.get(tag)
-        if row is None or tag not in seen or row[0] != reg.unit_key(tag):
+        if row is None or tag not in seen:
             continue
         key, computed, until, data = row
+        # the times first: a row kept after `now` or holding only until before it is left
+        # out without its key's digest
         if stamp < computed or (until is not None and stamp >= until):
+            continue
+        if key != reg.unit_key(tag):
             continue
         row_data = json.loads(data)
         if (
@@ -1073,8 +1078,8 @@ def kept_units(
             and moved.unit_moved(tag, seen[tag], reg.unit_limits.get(tag), row_data["first_at"])
         ):
             continue
-        clock = UnitClock.from_row(row_data, unit.tag)
-        out[tag] = unit_at(unit, filters_by_unit.get(tag, []), clock, now)
+        inputs = UnitInputs.from_row(row_data)
+        out[tag] = unit_status_from(unit, filters_by_unit.get(tag, []), inputs, now)
     return out
 
 

@@ -7,6 +7,7 @@ from collections.abc import Sequence
 from datetime import datetime, timedelta
 from functools import lru_cache
 from operator import attrgetter
+from typing import NamedTuple
 
 from store.base.records import frozen_record
 from store.ledger.entries import BreatherSwap, Entry, Reading, Sample, TopUp
@@ -31,31 +32,46 @@ class Consumption:
     note: str
 
 
+class Fill(NamedTuple):
+    """A live top-up as the fluid-care windows read it: when, how much, how finely filtered,
+    at what hour-meter reading (of a TopUp, or straight from a kept unit row)."""
+
+    at: datetime
+    volume_l: float
+    filtered_um: float | None
+    hours: float | None
+
+
 def topup_consumption(
     unit: Unit,
-    topups: Sequence[TopUp],
+    fills: Sequence[Fill],
     now: datetime,
     first_entry: datetime | None,
     earlier_l: float = 0,
     earlier_n: int = 0,
 ) -> Consumption | None:
-    """Compare the last four weeks' top-ups with the unit's own earlier rate. `earlier_l`,
-    `earlier_n`: the volume (added up in time order) and count of live top-ups before
-    `topups` and before the last four weeks (a kept status holds those as one sum)."""
-    live = [t for t in topups if not t.voided and t.at <= now]  # type: ignore[operator]
-    if not (live or earlier_n) or first_entry is None:
-        return None
+    """Compare the last four weeks' top-ups with the unit's own earlier rate. `fills`: live
+    top-ups, oldest first; `earlier_l`, `earlier_n`: the volume (added up in time order) and
+    count of live top-ups before `fills` and before the last four weeks (a kept status holds
+    those as one sum)."""
     recent_start = now - _RECENT
-    recent_live = [t for t in live if t.at > recent_start]  # type: ignore[operator]
+    before: list[Fill] = []  # the live top-ups before the last four weeks
+    recent_live: list[Fill] = []  # ... and in them, up to now
+    for t in fills:
+        if t.at <= recent_start:
+            before.append(t)
+        elif t.at <= now:
+            recent_live.append(t)
+    if not (before or recent_live or earlier_n) or first_entry is None:
+        return None
     recent = sum([t.volume_l for t in recent_live])
     recent_rate = recent / (RECENT_DAYS / 7)
     history_days = (recent_start - first_entry).total_seconds() / 86400
     history_rate = None
     if history_days >= MIN_HISTORY_DAYS:
         earlier = earlier_l  # added up in order, so that a kept sum carries on exactly
-        for t in live:
-            if t.at <= recent_start:  # type: ignore[operator]
-                earlier += t.volume_l
+        for t in before:
+            earlier += t.volume_l
         history_rate = earlier / (history_days / 7)
     per_100h = None
     with_hours = [t for t in recent_live if t.hours is not None] if unit.hour_meter else []
@@ -83,7 +99,7 @@ def finest_rating_um(filters: Sequence[FilterPosition]) -> float | None:
     return min(ratings) if ratings else None
 
 
-def filtration_problem(topup: TopUp, finest_um: float | None) -> str | None:
+def filtration_problem(topup: Fill | TopUp, finest_um: float | None) -> str | None:
     """Why a top-up may have brought dirt in, or None, given the finest rating of its unit's
     filters (`finest_rating_um`)."""
     if topup.filtered_um is None:

@@ -18,7 +18,7 @@ import math
 from array import array
 from base64 import b64decode, b64encode
 from collections.abc import Sequence
-from dataclasses import MISSING, asdict, field, fields, replace
+from dataclasses import asdict, field, fields, replace
 from datetime import datetime, timedelta
 from functools import partial
 from typing import TYPE_CHECKING, Any, NamedTuple
@@ -27,10 +27,9 @@ from store.base.records import filled_record, frozen_record
 from store.base.timeutil import format_utc
 from store.health import urgency as ranking
 from store.health.elements import Point
-from store.health.fluidcare import BreatherForecast, Consumption
+from store.health.fluidcare import BreatherForecast, Consumption, Fill
 from store.health.notes import Note
 from store.ledger.entries import TopUp
-from store.ledger.journal import filled_entry, parse_stamp
 from store.physics.normalise import ColdStart
 
 if TYPE_CHECKING:  # the fitting maths (numpy, scipy) load on first use: a watch list read
@@ -475,32 +474,43 @@ class UnitClock:
             "water_ppm": self.water_ppm,
         }
 
-    @classmethod
-    def from_row(cls, row: dict[str, Any], unit: str) -> UnitClock:
-        return cls(
-            valid_from=parse_stamp(row["valid_from"]),
-            first_at=_moment(row["first_at"]),
-            early_l=row["early_l"],
-            early_n=row["early_n"],
-            topups=_kept_topups(row["topups"], unit),
-            sample=tuple(row["sample"]) if row["sample"] else None,  # type: ignore[arg-type]
-            hot=tuple(parse_stamp(at) for at in row["hot"]),
-            water_ppm=row["water_ppm"],
+    def inputs(self) -> UnitInputs:
+        """What a status at a time is worked out from (`units.unit_at`)."""
+        fills = [Fill(t.at, t.volume_l, t.filtered_um, t.hours) for t in self.topups]  # type: ignore[arg-type]
+        return UnitInputs(
+            self.first_at,
+            self.early_l,
+            self.early_n,
+            tuple(fills),
+            self.sample,
+            self.hot,
+            self.water_ppm,
         )
 
 
-# A kept top-up is the entry as `unit_clock` read it back, less what the row leaves out (it
-# was read back with those at their defaults): TopUp's fields in order, at their defaults, and
-# the row's values over them, filled in as journal fills an entry it reads
-# (`journal.filled_entry`: directly where TopUp is nothing but its fields, else its constructor).
-_TOPUP_BLANK = {f.name: None if f.default is MISSING else f.default for f in fields(TopUp)}
+class UnitInputs(NamedTuple):
+    """A `UnitClock` as a status at a time reads it (`units.unit_status_from`): all but
+    `valid_from`, its top-ups as `Fill`s. `from_row` reads one straight from a kept row
+    (`UnitClock.to_row`'s) with no TopUp built: a status reads four of a top-up's fields."""
 
+    first_at: datetime | None
+    early_l: float
+    early_n: int
+    fills: tuple[Fill, ...]
+    sample: tuple[str | None, str, bool | None] | None
+    hot: tuple[datetime, ...]
+    water_ppm: float | None
 
-def _kept_topups(rows: list[list[Any]], unit: str) -> tuple[TopUp, ...]:
-    """The top-ups of a kept unit row (`UnitClock.to_row`'s `topups`)."""
-    out = []
-    for i, at, v, um, h in rows:
-        values = _TOPUP_BLANK.copy()
-        values.update(id=i, at=parse_stamp(at), unit=unit, volume_l=v, filtered_um=um, hours=h)
-        out.append(filled_entry(TopUp, values))
-    return tuple(out)
+    @classmethod
+    def from_row(cls, row: dict[str, Any]) -> UnitInputs:
+        # the row's times are format_utc's, read as they are (as `_moment` reads them)
+        fills = [Fill(_from_iso(at), v, um, h) for _, at, v, um, h in row["topups"]]
+        return cls(
+            _moment(row["first_at"]),
+            row["early_l"],
+            row["early_n"],
+            tuple(fills),
+            tuple(row["sample"]) if row["sample"] else None,  # type: ignore[arg-type]
+            tuple([_from_iso(at) for at in row["hot"]]),
+            row["water_ppm"],
+        )

@@ -16,7 +16,7 @@ from store.health.fluidcare import (
     sample_verdict,
     topup_consumption,
 )
-from store.health.status_model import HOT_LOOKBACK, UnitClock, UnitStatus
+from store.health.status_model import HOT_LOOKBACK, UnitClock, UnitInputs, UnitStatus
 from store.ledger.journal import read
 from store.ledger.register import FilterPosition, Unit
 
@@ -100,32 +100,39 @@ def unit_at(
 ) -> UnitStatus:
     """A unit's status at `now` (not before `clock.valid_from`): the windows of top-up use,
     top-up filtration and hot readings laid over its kept entries."""
+    return unit_status_from(unit, filters, clock.inputs(), now)
+
+
+def unit_status_from(
+    unit: Unit, filters: Sequence[FilterPosition], inputs: UnitInputs, now: datetime
+) -> UnitStatus:
+    """`unit_at` over a clock's inputs (as a kept row reads back: `UnitInputs.from_row`)."""
     flags: list[str] = []
     notes: list[str] = []
     consumption = topup_consumption(
-        unit, clock.topups, now, clock.first_at, clock.early_l, clock.early_n
+        unit, inputs.fills, now, inputs.first_at, inputs.early_l, inputs.early_n
     )
     if consumption and consumption.rising:
         flags.append("leak-suspect")
         notes.append(f"fluid use is rising: {consumption.note}; look for a leak (never by hand)")
     window_start = now - TOPUP_WINDOW  # a top-up at or after it: now - at <= TOPUP_WINDOW
     finest_um = finest_rating_um(filters)
-    for t in clock.topups:
-        if t.at and t.at >= window_start:
+    for t in inputs.fills:
+        if t.at >= window_start:
             problem = filtration_problem(t, finest_um)
             if problem:
                 flags.append("unfiltered-topup" if t.filtered_um is None else "coarse-topup")
                 notes.append(problem)
     code = sample_text = None
-    if clock.sample:
-        code, sample_text, meets = clock.sample
+    if inputs.sample:
+        code, sample_text, meets = inputs.sample
         if meets is False:
             flags.append("over-target")
             notes.append(f"latest sample {sample_text}")
-    if (water := water_flag(clock.water_ppm)) is not None:
+    if (water := water_flag(inputs.water_ppm)) is not None:
         flags.append("water-high")
         notes.append(water)
-    if any(now - at <= HOT_LOOKBACK for at in clock.hot):
+    if any(now - at <= HOT_LOOKBACK for at in inputs.hot):
         flags.append("hot")
     return UnitStatus(
         unit.tag,

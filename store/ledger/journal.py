@@ -323,19 +323,7 @@ def _plain(cls: type[Entry]) -> bool:
 
 
 _PLAIN = {kind for kind, cls in KINDS.items() if _plain(cls)}
-_FIELD_NAMES = {cls: tuple(f.name for f in fields(cls)) for cls in KINDS.values() if _plain(cls)}
 _new = object.__new__
-
-
-def filled_entry(cls: type[Entry], values: dict[str, Any]) -> Entry:
-    """`cls(**values)`, filled in directly where the class is nothing but its fields (`_plain`)
-    and `values` name every field in the class's order: the same object, five times faster
-    than its frozen __init__. `_entry` does the same in line (every entry read)."""
-    if _FIELD_NAMES.get(cls) == tuple(values):
-        entry = _new(cls)
-        entry.__dict__.update(values)
-        return entry
-    return cls(**values)
 
 
 _parse_iso = datetime.fromisoformat
