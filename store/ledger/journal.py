@@ -280,15 +280,15 @@ _COLUMNS = ("kind", "at_utc", "logged_utc", *_FIELDS)
 # hand) reads back
 # with no time (`_SOUND_AT`): building it fails, so every reader notes it and skips it, at the
 # cost of a type test in SQLite rather than one per value in Python. Each test is "empty, or
-# of its kind" (`typeof` only where the value is there: most columns of a row are empty, and
-# it reads the same as `typeof(...) IN (..., 'null')` at two thirds of the cost).
+# of its kind", told by where the value sorts: SQLite orders any number before any text and
+# any text before any blob, '' being the least text and x'' the least blob (whatever the
+# column's affinity or collation). It reads as `typeof` does (the test holds them equal) at
+# a fraction of the cost of the function call: the swaps of the year's book read in 0.88
+# of the time with the comparisons.
 _SOUND = " AND ".join(
-    [
-        f"(e.{c} IS NULL OR typeof(e.{c}) IN ('real', 'integer'))"
-        for c in validate_value.ENTRY_NUMBERS
-    ]
+    [f"(e.{c} IS NULL OR e.{c} < '')" for c in validate_value.ENTRY_NUMBERS]
     + [
-        f"(e.{c} IS NULL OR typeof(e.{c}) = 'text')"
+        f"(e.{c} IS NULL OR (e.{c} >= '' AND e.{c} < x''))"
         for c in _FIELDS
         if c not in validate_value.ENTRY_NUMBERS and c != "id"
     ]
