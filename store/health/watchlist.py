@@ -10,6 +10,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import datetime, timedelta
+from operator import attrgetter
 
 from store.db.book import Book
 from store.health.conditions import FilterContext, contexts_from, shortest_read_h
@@ -22,9 +23,9 @@ from store.health.units import unit_status
 from store.ledger.entries import Entry
 from store.ledger.journal import (
     SwapMark,
-    breather_swap_marks,
     element_items_until,
     live_changes_until,
+    live_swap_marks,
     read,
 )
 from store.ledger.register import Breather, FilterPosition, Fluid, Unit, list_all
@@ -105,14 +106,16 @@ def plant(book: Book, unit: str | None = None) -> Plant:
 
 def breathers_at(book: Book, now: datetime, unit: str | None = None) -> list[BreatherStatus]:
     """Every breather's status at `now` (of one unit), most urgent first."""
-    until = now + timedelta(seconds=1)
-    breathers = []
-    all_swaps = breather_swap_marks(book, until)  # only what the forecast reads
-    for b in list_all(book, Breather, unit):
-        swaps = [s for s in all_swaps.get(b.tag.upper(), []) if not s.voided]
-        breathers.append(_breather_status(b, swaps, now))
-    breathers.sort(key=lambda s: s.urgency)
+    swaps = live_swap_marks(book, now + timedelta(seconds=1))  # only what the forecast reads
+    breathers = [
+        _breather_status(b, swaps.get(b.tag.upper(), ()), now)
+        for b in list_all(book, Breather, unit)
+    ]
+    breathers.sort(key=_urgency)
     return breathers
+
+
+_urgency = attrgetter("urgency")
 
 
 def watch_list(

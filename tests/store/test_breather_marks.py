@@ -1,6 +1,6 @@
-"""The breathers of the watch list read lean: `journal.breather_swap_marks` reads only what a
-breather's forecast needs (when, the desiccant as found, voided or not). It must give what the
-swaps built as full entries (`full_swaps`, through the journal's own entry reader) give: the same swaps in the same order,
+"""The breathers of the watch list read lean: `journal.live_swap_marks` reads only what a
+breather's forecast needs of the live swaps (when, the desiccant as found). It must give what the
+live swaps built as full entries (`full_swaps`, through the journal's own entry reader) give: the same swaps in the same order,
 the same rows noted as unreadable, and so the same breather statuses, now and as of earlier
 times, with a voided swap, a void dated later than the time asked, unreadable rows (one of
 them voided) and for one unit.
@@ -74,14 +74,15 @@ def assert_same(book, now, unit=None) -> None:
     for bound in (until, None):
         book.unreadable.clear()
         full = {
-            tag: [(e.at, e.condition, e.voided) for e in swaps]  # type: ignore[attr-defined]
+            tag: live
             for tag, swaps in full_swaps(book, bound).items()
+            if (live := [(e.at, e.condition, False) for e in swaps if not e.voided])  # type: ignore[attr-defined]
         }
         noted_full = dict(book.unreadable)
         book.unreadable.clear()
         lean = {
             tag: [(m.at, m.condition, m.voided) for m in marks]
-            for tag, marks in journal.breather_swap_marks(book, bound).items()
+            for tag, marks in journal.live_swap_marks(book, bound).items()
         }
         assert lean == full
         assert list(lean) == list(full)

@@ -157,27 +157,38 @@ def test_voids_of_one_filter_refresh_it_once(book, monkeypatch):
 def test_the_sound_row_test_reads_as_each_column_s_type_test():
     # SQLite's documentation of typeof(): a value is 'null', 'integer', 'real', 'text' or
     # 'blob' (from memory); a row is sound when each number column holds a number or nothing
-    # and each text column a text or nothing, whatever the other columns hold
+    # and each text column a text or nothing, whatever the other columns hold. _SOUND tells
+    # them by SQLite's order of values, NULL < numbers < texts < blobs, texts by collation and
+    # blobs by memcmp (SQLite's "Datatypes In SQLite", from memory). The columns typed as
+    # none, and as the book types them (numbers REAL, texts TEXT COLLATE NOCASE).
     import sqlite3
 
     from store.base import validate
 
     columns = [c for c in journal._FIELDS if c != "id"]
-    values = ["NULL", "7", "2.5", "'x'", "x'00ff'"]
-    conn = sqlite3.connect(":memory:")
-    conn.execute(f"CREATE TABLE e ({', '.join(columns)})")
-    rows = [{c: "NULL" for c in columns}]
-    rows += [{**rows[0], c: v} for c in columns for v in values]
-    rows += [{c: values[(i + j) % 5] for j, c in enumerate(columns)} for i in range(5)]
-    for row in rows:
-        conn.execute(f"INSERT INTO e VALUES ({', '.join(row[c] for c in columns)})")
+    values = ["NULL", "7", "-3", "2.5", "-1e999", "''", "'x'", "'7'", "' '", "x''", "x'00ff'"]
     kinds = {c: ("real", "integer") if c in validate.ENTRY_NUMBERS else ("text",) for c in columns}
-    got = [r[0] for r in conn.execute(f"SELECT {journal._SOUND} FROM e ORDER BY rowid")]
-    typed = conn.execute(
-        f"SELECT {', '.join(f'typeof({c})' for c in columns)} FROM e ORDER BY rowid"
-    ).fetchall()
-    expected = [
-        int(all(t in (*kinds[c], "null") for c, t in zip(columns, r, strict=True))) for r in typed
-    ]
-    assert got == expected
-    assert 0 in got and 1 in got
+    declared = {
+        c: "REAL" if c in validate.ENTRY_NUMBERS else "TEXT COLLATE NOCASE" for c in columns
+    }
+    for types in ({c: "" for c in columns}, declared):
+        conn = sqlite3.connect(":memory:")
+        conn.execute(f"CREATE TABLE e ({', '.join(f'{c} {types[c]}' for c in columns)})")
+        rows = [{c: "NULL" for c in columns}]
+        rows += [{**rows[0], c: v} for c in columns for v in values]
+        rows += [
+            {c: values[(i + j) % len(values)] for j, c in enumerate(columns)}
+            for i in range(len(values))
+        ]
+        for row in rows:
+            conn.execute(f"INSERT INTO e VALUES ({', '.join(row[c] for c in columns)})")
+        got = [r[0] for r in conn.execute(f"SELECT {journal._SOUND} FROM e ORDER BY rowid")]
+        typed = conn.execute(
+            f"SELECT {', '.join(f'typeof({c})' for c in columns)} FROM e ORDER BY rowid"
+        ).fetchall()
+        expected = [
+            int(all(t in (*kinds[c], "null") for c, t in zip(columns, r, strict=True)))
+            for r in typed
+        ]
+        assert got == expected
+        assert 0 in got and 1 in got
