@@ -48,7 +48,7 @@ from datetime import datetime
 from functools import cached_property
 from typing import Any, NamedTuple
 
-from store.base.records import filled_record
+from store.base.records import filled_record, frozen_record
 from store.base.timeutil import format_utc
 from store.db.book import Book
 from store.derived.elementcache import (
@@ -120,7 +120,7 @@ def preload() -> None:
 # ---- the keys ------------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
+@frozen_record
 class Register:
     """What the statuses read of the register, once per read: the rows each position's and
     unit's digest is made of (made when first asked for: a save needs two or three, a list
@@ -257,7 +257,7 @@ def _read_register(book: Book) -> Register:
     )
 
 
-@dataclass(frozen=True)
+@frozen_record
 class _Touch:
     """An entry written after some rowid, or the entry a void written then voids."""
 
@@ -484,7 +484,7 @@ def _newest_input(book: Book, tag: str, like: Sequence[str]) -> str | None:
     return max((d for d in dates if d), default=None)
 
 
-@dataclass(frozen=True)
+@frozen_record
 class _Voids:
     """The newest void of each position's entries (`any`) and of its element changes
     (`changes`), by upper-case tag: the voids are few and each save would otherwise join
@@ -1209,7 +1209,7 @@ def _touches_unit(book: Book, entry: Entry) -> str | None:
 WRITE_CHUNK = 100  # positions per write transaction: other writers wait a moment at most
 
 
-@dataclass(frozen=True)
+@frozen_record
 class _Rebuilt:
     tag: str
     context: str

@@ -8,10 +8,10 @@ rows where their key holds and from these where it does not."""
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass
 from datetime import datetime, timedelta
 from operator import attrgetter
 
+from store.base.records import frozen_record
 from store.db.book import Book
 from store.health.conditions import FilterContext, contexts_from, shortest_read_h
 from store.health.elements import ElementSummary, split_summaries
@@ -78,7 +78,7 @@ def changes_as_of(book: Book, now: datetime) -> list[tuple[str, int, Entry]]:
     return live_changes_until(book, now + timedelta(seconds=1))
 
 
-@dataclass(frozen=True)
+@frozen_record
 class Plant:
     """What a watch list covers: the filters (with their operating conditions), the units and
     each unit's filter positions, all of the plant or of one unit."""
