@@ -54,24 +54,20 @@ def topup_consumption(
     top-ups, oldest first; `earlier_l`, `earlier_n`: the volume (added up in time order) and
     count of live top-ups before `fills` and before the last four weeks (a kept status holds
     those as one sum)."""
-    recent_start = now - _RECENT
-    before: list[Fill] = []  # the live top-ups before the last four weeks
-    recent_live: list[Fill] = []  # ... and in them, up to now
-    for t in fills:
-        if t.at <= recent_start:
-            before.append(t)
-        elif t.at <= now:
-            recent_live.append(t)
-    if not (before or recent_live or earlier_n) or first_entry is None:
+    live = [t for t in fills if t.at <= now]
+    if not (live or earlier_n) or first_entry is None:
         return None
+    recent_start = now - _RECENT
+    recent_live = [t for t in live if t.at > recent_start]
     recent = sum([t.volume_l for t in recent_live])
     recent_rate = recent / (RECENT_DAYS / 7)
     history_days = (recent_start - first_entry).total_seconds() / 86400
     history_rate = None
     if history_days >= MIN_HISTORY_DAYS:
         earlier = earlier_l  # added up in order, so that a kept sum carries on exactly
-        for t in before:
-            earlier += t.volume_l
+        for t in live:
+            if t.at <= recent_start:
+                earlier += t.volume_l
         history_rate = earlier / (history_days / 7)
     per_100h = None
     with_hours = [t for t in recent_live if t.hours is not None] if unit.hour_meter else []
