@@ -1,7 +1,8 @@
 """The watch list and each filter's status, as the screens and the command line ask for them,
 now or as of a past time. Each reader uses a kept row (store/derived/statuscache.py) only where
 its key matches its inputs as they are (and, as of a time, as they stood then), and computes
-the rest from the entries; what moves with the clock is worked out at read time. Nothing here
+the rest from the entries (as of a past time, a filter's earlier kept row where it provably
+stands for that time); what moves with the clock is worked out at read time. Nothing here
 writes. The sheets built on them are in store/sheets.py."""
 
 from __future__ import annotations
@@ -13,6 +14,7 @@ from store.db.book import Book
 from store.derived.elementcache import kept_before
 from store.derived.statuscache import (
     cached_units,
+    kept_earlier,
     kept_filters,
     kept_units,
     live_status,
@@ -74,6 +76,7 @@ def _watch_as_of(book: Book, as_of: datetime, unit: str | None) -> Watch:
     reg = register(book)
     tags = [c.position.tag.upper() for c in p.contexts]
     kept_f = kept_filters(book, tags, as_of, audit=True, reg=reg)
+    kept_f |= kept_earlier(book, [t for t in tags if t not in kept_f], as_of, reg)
     kept_u = kept_units(book, list(p.units), p.positions_by_unit, as_of, reg)
     rest = [c for c in p.contexts if c.position.tag.upper() not in kept_f]
     computed = iter(())
@@ -106,4 +109,5 @@ def status_of(book: Book, ctx: FilterContext, as_of: datetime | None = None) -> 
         return kept
     if as_of is None:
         return live_status(book, ctx)[0]
-    return status_as_of(book, ctx, as_of)
+    earlier = kept_earlier(book, [tag], as_of).get(tag)
+    return earlier if earlier is not None else status_as_of(book, ctx, as_of)

@@ -26,6 +26,8 @@ from store.db.connection import (
     clear_damage,
     connect,
     forget_check,
+    integrity_verdict,
+    quick_verdict,
     writable,
     write_error,
 )
@@ -54,9 +56,11 @@ def keep_count(conn: sqlite3.Connection) -> int:
         return DEFAULT_KEEP
 
 
-def copy_to(conn: sqlite3.Connection, dest: Path) -> Path:
+def copy_to(conn: sqlite3.Connection, dest: Path, values_ok: bool = False) -> Path:
     """Write a consistent copy of the open logbook to `dest` (a new file, or a new dated file
-    inside `dest` when it is a folder); never over an existing file."""
+    inside `dest` when it is a folder); never over an existing file. `values_ok` (an
+    upgrade's copies of the book itself): rows that break a CHECK or NOT NULL pass the
+    copy's check (`quick_verdict`); any other finding still refuses it."""
     dest = Path(dest)
     if dest.is_dir():
         dest = dest / f"logbook-{_stamp()}.db"
@@ -70,7 +74,7 @@ def copy_to(conn: sqlite3.Connection, dest: Path) -> Path:
         try:
             conn.backup(target)
             target.execute("PRAGMA journal_mode = DELETE")
-            ok = target.execute("PRAGMA quick_check").fetchone()[0]
+            ok = quick_verdict(target) if values_ok else _quick(target)
         finally:
             target.close()
         if ok != "ok":
@@ -146,9 +150,10 @@ def _same_file(a: Path, b: Path) -> bool:
         return False
 
 
-def open_checked(path: Path) -> sqlite3.Connection:
+def open_checked(path: Path, values_ok: bool = False) -> sqlite3.Connection:
     """A read-only connection to a file that passed every check a restore or merge needs:
-    a sumpbook logbook (application id), not damaged (integrity check), not too new."""
+    a sumpbook logbook (application id), not damaged (integrity check), not too new.
+    `values_ok`: rows that break a CHECK or NOT NULL are no damage (an upgrade's book)."""
     path = Path(path)
     if not path.is_file() or path.stat().st_size == 0:
         raise BookError(f"{path} is not a file holding a logbook")
@@ -157,8 +162,8 @@ def open_checked(path: Path) -> sqlite3.Connection:
     except sqlite3.Error as exc:
         raise NotALogbook(f"{path} cannot be read as a logbook ({exc})") from exc
     try:
-        check_header(conn, path)
-        ok = conn.execute("PRAGMA integrity_check(1)").fetchone()[0]
+        check_header(conn, path, values_ok=values_ok)
+        ok = integrity_verdict(conn) if values_ok else _integrity(conn)
         if ok != "ok":
             raise NotALogbook(f"{path} is damaged (integrity check: {ok})")
     except sqlite3.DatabaseError as exc:
@@ -170,9 +175,17 @@ def open_checked(path: Path) -> sqlite3.Connection:
     return conn
 
 
-def _healthy(book_path: Path) -> bool:
+def _quick(conn: sqlite3.Connection) -> str:
+    return conn.execute("PRAGMA quick_check").fetchone()[0]
+
+
+def _integrity(conn: sqlite3.Connection) -> str:
+    return conn.execute("PRAGMA integrity_check(1)").fetchone()[0]
+
+
+def _healthy(book_path: Path, values_ok: bool = False) -> bool:
     try:
-        open_checked(book_path).close()
+        open_checked(book_path, values_ok=values_ok).close()
     except BookError:
         return False
     return True
@@ -257,7 +270,11 @@ class BookChanged(BookError):
 
 
 def swap_in(
-    side: Path, book_path: Path, why: str, unchanged: Callable[[Path], bool] | None = None
+    side: Path,
+    book_path: Path,
+    why: str,
+    unchanged: Callable[[Path], bool] | None = None,
+    values_ok: bool = False,
 ) -> Path | None:
     """Put the proven file `side` in the place of the logbook at `book_path`.
 
@@ -275,16 +292,17 @@ def swap_in(
 
     `unchanged(kept)`, when given, is asked under the lock once the kept copy is made: False
     (the book is not what the side file was made from) ends the swap with nothing written
-    (BookChanged). A damaged book is then refused too.
+    (BookChanged). A damaged book is then refused too. `values_ok` (an upgrade): the book's
+    rows that break a CHECK or NOT NULL are no damage, in it and in its kept copy.
     """
     side, book_path = Path(side), Path(book_path)
     kept = None
     if book_path.exists() and book_path.stat().st_size > 0:
         kept = backup_dir(book_path) / f"{book_path.stem}-{why}-{_stamp()}.db"
-        if _healthy(book_path):
+        if _healthy(book_path, values_ok):
             source = read_only(side)  # proven: its pages are copied, nothing run
             try:
-                _overwrite(source, book_path, kept, unchanged)
+                _overwrite(source, book_path, kept, unchanged, values_ok)
             finally:
                 source.close()
         elif unchanged is not None:
@@ -307,6 +325,7 @@ def _overwrite(
     book_path: Path,
     kept: Path,
     unchanged: Callable[[Path], bool] | None = None,
+    values_ok: bool = False,
 ) -> None:
     """Keep the live logbook as `kept`, then copy `source` into it, as one write transaction
     that holds the book's write lock from before the kept copy is read to the end.
@@ -343,11 +362,11 @@ def _overwrite(
         try:
             if _held_exclusively(book_path):
                 raw.append(os.open(book_path, os.O_RDONLY | getattr(os, "O_BINARY", 0)))
-                _keep_bytes(raw[0], kept)
+                _keep_bytes(raw[0], kept, values_ok=values_ok)
             else:
                 current = connect(book_path, readonly=True)
                 try:
-                    copy_to(current, kept)
+                    copy_to(current, kept, values_ok=values_ok)
                 finally:
                     current.close()
             if unchanged is not None and not unchanged(kept):
@@ -359,7 +378,7 @@ def _overwrite(
 
     try:
         source.backup(target, pages=RESTORE_STEP_PAGES, progress=keep_current)
-        ok = target.execute("PRAGMA quick_check").fetchone()[0]
+        ok = quick_verdict(target) if values_ok else _quick(target)
     except sqlite3.Error as exc:
         if problems:  # the kept copy failed: the backup was ended, nothing was committed
             raise problems[0] from exc
@@ -393,7 +412,7 @@ def _held_exclusively(book_path: Path) -> bool:
     return False
 
 
-def _keep_bytes(raw: int, kept: Path) -> None:
+def _keep_bytes(raw: int, kept: Path, values_ok: bool = False) -> None:
     """Copy the book's bytes from the open descriptor `raw` to `kept` (a new file), checked."""
     tmp = kept.with_name(kept.name + ".part")
     try:
@@ -407,7 +426,7 @@ def _keep_bytes(raw: int, kept: Path) -> None:
             os.fsync(out.fileno())
         check = sqlite3.connect(tmp)
         try:
-            ok = check.execute("PRAGMA quick_check").fetchone()[0]
+            ok = quick_verdict(check) if values_ok else _quick(check)
         finally:
             check.close()
         if ok != "ok":

@@ -24,6 +24,7 @@ from store.db.connection import (
     file_id,
     is_empty_file,
     no_new_side_files,
+    quick_verdict,
     record_damage,
     refuse_known_damage,
     refused_write,
@@ -308,8 +309,10 @@ def migrate(conn: sqlite3.Connection, from_version: int) -> list[str]:
         found = _quarantined(conn) - before
         wrong = schema_findings(conn, SCHEMA_VERSION, MIGRATIONS)
         if not wrong and from_version > 0:  # the upgraded content, checked before it counts
-            wrong = [r[0] for r in conn.execute("PRAGMA quick_check(3)").fetchall()]
-            wrong = [] if wrong == ["ok"] else wrong
+            # bad values the book held are carried as they are; upgrade_beside's proof
+            # holds them to the book's own (a new one is refused there)
+            verdict = quick_verdict(conn)
+            wrong = [] if verdict == "ok" else [verdict]
         if wrong:  # the steps did not make what this version makes: keep the file as it was
             conn.execute("ROLLBACK")
             raise BookError(
@@ -389,7 +392,7 @@ def upgrade_beside(path: Path, version: int) -> list[str]:
         try:
             current = connect(path)  # only reads; closing it last tidies the -wal away
             try:
-                copy_to(current, original)
+                copy_to(current, original, values_ok=True)  # the book's own values
             finally:
                 current.close()
             import shutil  # deferred: only an upgrade copies the file
@@ -406,12 +409,17 @@ def upgrade_beside(path: Path, version: int) -> list[str]:
             raise BookError(f"could not upgrade {path}: {exc}") from exc
         finally:
             conn.close()
-        prove_file(side, f"{path} as upgraded to schema {SCHEMA_VERSION}", migrations=MIGRATIONS)
+        prove_file(
+            side,
+            f"{path} as upgraded to schema {SCHEMA_VERSION}",
+            migrations=MIGRATIONS,
+            held=original,
+        )
 
         def unchanged(kept: Path) -> bool:
             return same_pages(kept, original)
 
-        swap_in(side, path, f"before-v{version}-upgrade", unchanged=unchanged)
+        swap_in(side, path, f"before-v{version}-upgrade", unchanged=unchanged, values_ok=True)
     except BookChanged:
         raise
     except BookError as exc:
@@ -588,11 +596,6 @@ def _checking_connection(path: Path, readonly: bool) -> sqlite3.Connection:
         ) from exc
 
 
-# quick_check also reports rows that break a CHECK or NOT NULL constraint (a hand-made edit):
-# those are bad values, not a damaged file; readers skip them and they can be voided.
-_ROW_FINDINGS = ("CHECK constraint failed", "NOT NULL constraint failed")
-
-
 _CHECKING: dict[str, threading.Lock] = {}  # one whole-file check of a file at a time
 
 
@@ -609,8 +612,7 @@ def _quick_check(conn: sqlite3.Connection, path: Path) -> None:
 
 def _quick_check_now(conn: sqlite3.Connection, path: Path) -> None:
     try:
-        found = [row[0] for row in conn.execute("PRAGMA quick_check").fetchall()]
-        ok = "ok" if all(f == "ok" or f.startswith(_ROW_FINDINGS) for f in found) else found[0]
+        ok = quick_verdict(conn)
     except sqlite3.DatabaseError as exc:
         ok = str(exc)
     if ok != "ok":

@@ -185,7 +185,30 @@ def is_empty_file(path: Path) -> bool:
     return not path.exists() or path.stat().st_size == 0
 
 
-def check_header(conn: sqlite3.Connection, path: Path, quick: bool = True) -> int:
+# quick_check also reports rows that break a CHECK or NOT NULL constraint (a hand-made edit):
+# those are bad values, not a damaged file; readers skip and note them, and they can be voided.
+ROW_FINDINGS = ("CHECK constraint failed", "NOT NULL constraint failed")
+
+
+def quick_verdict(conn: sqlite3.Connection) -> str:
+    """`PRAGMA quick_check` of the file: "ok", or the first finding that is not a row breaking
+    a CHECK or NOT NULL (a bad value the readers skip and note: no damage of the file)."""
+    return _verdict(conn, "quick_check")
+
+
+def integrity_verdict(conn: sqlite3.Connection) -> str:
+    """`quick_verdict` by the whole integrity check."""
+    return _verdict(conn, "integrity_check")
+
+
+def _verdict(conn: sqlite3.Connection, check: str) -> str:
+    found = [row[0] for row in conn.execute(f"PRAGMA {check}").fetchall()]
+    return "ok" if all(f == "ok" or f.startswith(ROW_FINDINGS) for f in found) else found[0]
+
+
+def check_header(
+    conn: sqlite3.Connection, path: Path, quick: bool = True, values_ok: bool = False
+) -> int:
     """Return the schema version; refuse files that are not ours or are damaged.
 
     A database with no tables and a blank header is an empty start (a first creation that was
@@ -195,7 +218,14 @@ def check_header(conn: sqlite3.Connection, path: Path, quick: bool = True) -> in
         app_id = conn.execute("PRAGMA application_id").fetchone()[0]
         version = conn.execute("PRAGMA user_version").fetchone()[0]
         blank = conn.execute("SELECT count(*) FROM sqlite_master").fetchone()[0] == 0
-        ok = conn.execute("PRAGMA quick_check").fetchone()[0] if quick else "ok"
+        if not quick:
+            ok = "ok"
+        else:  # `values_ok`: rows that break a CHECK or NOT NULL are no damage (an upgrade)
+            ok = (
+                quick_verdict(conn)
+                if values_ok
+                else conn.execute("PRAGMA quick_check").fetchone()[0]
+            )
     except sqlite3.DatabaseError as exc:
         raise NotALogbook(f"{path} is not a sumpbook logbook or is damaged ({exc})") from exc
     if app_id == 0 and version == 0 and blank and ok == "ok":

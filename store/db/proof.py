@@ -209,12 +209,19 @@ def checking(path: Path) -> sqlite3.Connection:
 
 
 def prove_file(
-    path: Path, label: str, rows_ok: bool = False, migrations: list[str] | None = None
+    path: Path,
+    label: str,
+    rows_ok: bool = False,
+    migrations: list[str] | None = None,
+    held: Path | None = None,
 ) -> int:
     """The schema version of the file at `path`, proven good; NotALogbook naming `label`
     (how the person knows the file) and everything found otherwise. `rows_ok`: rows that
     break a CHECK or NOT NULL are let through, and indexes, views and triggers other than
-    ours (a merge reads the base tables only, and checks every row itself)."""
+    ours (a merge reads the base tables only, and checks every row itself). `held`: the file
+    `path` was upgraded from (at its own version); rows that break a CHECK or NOT NULL are
+    let through where it held the very same ones (their keys, table by table): the upgrade
+    carried them as they were, and every reader skips and notes them, as before it."""
     path = Path(path)
     found = header_findings(path)
     version = 0
@@ -226,6 +233,9 @@ def prove_file(
         else:
             try:
                 version, found = prove_connection(conn, migrations)
+                if held is not None and found and all(_ROW_FINDING.match(f) for f in found):
+                    if _carried(conn, version, held, row_findings(found)):
+                        found = text_findings(conn)  # what the row findings kept unread
             finally:
                 conn.close()
             if rows_ok:  # what a merge reads: the base tables, each row checked by itself
@@ -248,6 +258,26 @@ def row_findings(findings: list[str]) -> set[str]:
     """The tables named by the integrity check's row findings (a CHECK or NOT NULL broken
     by a row: a bad value, not a damaged file)."""
     return {m.group(2) for f in findings if (m := _ROW_FINDING.match(f))}
+
+
+def _carried(conn: sqlite3.Connection, version: int, held: Path, tables: set[str]) -> bool:
+    """Whether every row of `tables` that breaks its constraints in the upgraded file
+    (`conn`, at `version`) is one that broke them in the file it was upgraded from."""
+    try:
+        before = checking(held)
+    except sqlite3.Error:
+        return False
+    try:
+        was = before.execute("PRAGMA user_version").fetchone()[0]
+        every = 1 << 40
+        return all(
+            set(bad_rows(conn, table, version, every)) <= set(bad_rows(before, table, was, every))
+            for table in tables
+        )
+    except sqlite3.Error:
+        return False
+    finally:
+        before.close()
 
 
 def bad_rows(conn: sqlite3.Connection, table: str, version: int, limit: int = 5) -> list[str]:

@@ -611,6 +611,25 @@ CREATE TABLE status_cache (
 );
 """
 
+# ---- version 8: each filter's last few kept rows before the one kept now ------------------------
+# When a save (or a refresh) keeps a filter's status again, the row it replaces is kept here
+# with the rowid it was checked up to (`seen_rowid`, from kept_seen), the last EARLIER_KEPT of
+# each filter (store/derived/statuscache.py). An audit of a past time (the shift log of an
+# earlier shift, `status --as-of`) uses one where its key holds now and every entry written
+# after it that touches its inputs is dated after that time; otherwise it computes the status
+# from the entries, as before. Derived, like the caches: a rebuild empties it.
+V8 = """
+CREATE TABLE status_earlier (
+    filter TEXT NOT NULL COLLATE NOCASE REFERENCES filters(tag) ON DELETE CASCADE,
+    seen_rowid INTEGER NOT NULL,
+    key TEXT NOT NULL,
+    computed_utc TEXT NOT NULL,
+    newest_utc TEXT,
+    data TEXT NOT NULL,
+    PRIMARY KEY (filter, seen_rowid)
+) WITHOUT ROWID;
+"""
+
 # One SQL script per schema version, in order. Never edit a released step: add one.
-MIGRATIONS: list[str] = [V1, V2, V3, V4, V5, V6, V7]
+MIGRATIONS: list[str] = [V1, V2, V3, V4, V5, V6, V7, V8]
 SCHEMA_VERSION = len(MIGRATIONS)

@@ -44,7 +44,7 @@ import math
 from array import array
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field, fields
-from datetime import datetime
+from datetime import datetime, timedelta
 from functools import cached_property
 from typing import Any, NamedTuple
 
@@ -437,6 +437,7 @@ def store_status(
     like = reg.like.get(tag.upper(), ()) if pools else ()
     row = status.to_row()
     lean = _lean(status, row)
+    _keep_earlier(book, tag)
     book.conn.execute(
         f"INSERT OR REPLACE INTO status_cache(filter, key, computed_utc, newest_utc, data, "
         f"lean, {', '.join(LEAN_COLUMNS)}) VALUES (?, ?, ?, ?, ?, {_LEAN_MARKS})",
@@ -451,6 +452,29 @@ def store_status(
         ],
     )
     _store_seen(book, "filter", [tag], seen)
+
+
+EARLIER_KEPT = 9  # a filter's rows kept before its row now: three days of a reading a shift
+EARLIER_SCAN = 50_000  # entries read at most to check an earlier row (three weeks of 800 filters)
+
+
+def _keep_earlier(book: Book, tag: str) -> None:
+    """Before a filter's kept row is replaced: keep it among its earlier rows, with the rowid
+    it was checked up to (a row of an older format never holds again, and is not kept), and
+    let only the last EARLIER_KEPT stay (`kept_earlier` reads them)."""
+    conn = book.conn
+    conn.execute(
+        "INSERT OR REPLACE INTO status_earlier(filter, seen_rowid, key, computed_utc, "
+        "newest_utc, data) SELECT c.filter, s.seen_rowid, c.key, c.computed_utc, c.newest_utc, "
+        "c.data FROM status_cache c JOIN kept_seen s ON s.what = 'filter' AND s.tag = c.filter "
+        "WHERE c.filter = ? AND substr(c.key, 1, ?) = ?",
+        [tag, len(FORMAT) + 1, f"{FORMAT}."],
+    )
+    conn.execute(
+        "DELETE FROM status_earlier WHERE filter = ? AND seen_rowid NOT IN (SELECT seen_rowid "
+        "FROM status_earlier WHERE filter = ? ORDER BY seen_rowid DESC LIMIT ?)",
+        [tag, tag, EARLIER_KEPT],
+    )
 
 
 def _store_seen(book: Book, what: str, tags: Sequence[str], seen: int) -> None:
@@ -1010,6 +1034,63 @@ def kept_filters(
     return out
 
 
+def kept_earlier(
+    book: Book, tags: Iterable[str], at: datetime, reg: Register | None = None
+) -> dict[str, FilterStatus]:
+    """The status as of `at` (an audit) of each of `tags` (upper case) that one of its earlier
+    kept rows (`_keep_earlier`) stands for, by tag; the rest are left out. A row stands for
+    `at` where its key holds now, every input it was computed from is dated at or before `at`
+    (`newest_utc`), and no entry written after its seen rowid that touches its inputs (an
+    entry of the position or a void of one; where it leans on like positions, their element
+    changes and voids of them) is dated before `at` + 1 s, which is what an audit counts: its
+    inputs then are the row's. Of several, the one checked up to the newest rowid."""
+    wanted = set(tags)
+    if not wanted:
+        return {}
+    stamp = format_utc(at)
+    until = format_utc(at + timedelta(seconds=1))
+    # A row checked up to a rowid far behind (kept while its inputs had moved and nothing
+    # refreshed it) would cost a read of every entry since: such a one is left to the
+    # computation.
+    floor = max_rowid(book) - EARLIER_SCAN
+    rows: dict[str, list[tuple]] = {}
+    for row in book.conn.execute(
+        "SELECT upper(filter), seen_rowid, key, data FROM status_earlier "
+        "WHERE (newest_utc IS NULL OR newest_utc <= ?) AND seen_rowid >= ? "
+        "ORDER BY filter, seen_rowid DESC",
+        [stamp, floor],
+    ):
+        if row[0] in wanted:
+            rows.setdefault(row[0], []).append(row[1:])
+    if not rows:
+        return {}
+    reg = reg or register(book)
+    oldest = min(seen for found in rows.values() for seen, _, _ in found)
+    own: dict[str, int] = {}  # the newest rowid after `oldest` dated before `until`, by tag
+    changes: dict[str, int] = {}  # ... of an element change or a void of one
+    for rowid, tag, change in book.conn.execute(
+        "SELECT e.rowid, upper(coalesce(t.filter, e.filter)), coalesce(t.kind, e.kind) = "
+        "'change' FROM entries e LEFT JOIN entries t ON e.voids IS NOT NULL AND t.id = e.voids "
+        "WHERE e.rowid > ? AND e.at_utc < ? AND coalesce(t.filter, e.filter) IS NOT NULL",
+        [oldest, until],
+    ):
+        own[tag] = max(own.get(tag, rowid), rowid)
+        if change:
+            changes[tag] = max(changes.get(tag, rowid), rowid)
+    out = {}
+    for tag, found in rows.items():
+        for seen, key, data in found:
+            pools = not key.endswith(".own")
+            if key != reg.filter_key(tag, pools) or own.get(tag, 0) > seen:
+                continue
+            like = reg.like.get(tag, ()) if pools else ()
+            if any(changes.get(t, 0) > seen for t in like):
+                continue
+            out[tag] = _decode(data, at)
+            break
+    return out
+
+
 def lean_filters(
     book: Book, tags: Iterable[str], now: datetime, reg: Register | None = None
 ) -> dict[str, FilterStatus]:
@@ -1283,7 +1364,10 @@ def rebuild(book: Book) -> int:
     now = book.now()
     tags = [ctx.position.tag for ctx in contexts(book).values()]
     with book.atomic():
-        for table in ("element_state", "element_cache", "status_cache", "unit_cache", "kept_seen"):
+        for table in (
+            "element_state", "element_cache", "status_cache", "status_earlier", "unit_cache",
+            "kept_seen",
+        ):  # fmt: skip
             book.conn.execute(f"DELETE FROM {table}")
     rows = _compute_in_snapshot(book, tags, now)
     for i in range(0, len(rows), WRITE_CHUNK):

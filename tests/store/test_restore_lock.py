@@ -72,8 +72,8 @@ def test_a_writer_waits_while_the_restore_holds_the_book(tmp_path, book, monkeyp
 
     original = backup_module.copy_to
 
-    def copy_and_probe(conn, dest):
-        result = original(conn, dest)
+    def copy_and_probe(conn, dest, **how):
+        result = original(conn, dest, **how)
         try:
             other.execute("BEGIN IMMEDIATE")
             other.execute("ROLLBACK")
@@ -100,14 +100,14 @@ def test_the_backup_command_holds_the_book_while_it_copies(tmp_path, book, monke
     seen: list[str] = []
     original = backup_module.copy_to
 
-    def copy_and_probe(conn, where):
+    def copy_and_probe(conn, where, **how):
         try:
             other.execute("BEGIN IMMEDIATE")
             other.execute("ROLLBACK")
             seen.append("a writer got in")
         except sqlite3.OperationalError as exc:
             seen.append(f"writer: {exc}")
-        return original(conn, where)
+        return original(conn, where, **how)
 
     monkeypatch.setattr(backup_module, "copy_to", copy_and_probe)
     assert main(["--db", str(book.path), "backup", str(dest)]) == 0
@@ -185,8 +185,8 @@ def test_a_save_meeting_a_restore_of_a_rollback_mode_book_is_kept_or_restored(
     writer: list[subprocess.Popen] = []
 
     def then_race(keep):  # once the kept copy is made, a writer process starts waiting
-        def keep_then_race(*args):
-            result = keep(*args)
+        def keep_then_race(*args, **how):
+            result = keep(*args, **how)
             if "before-restore" in str(args[-1]) and not writer:
                 writer.append(
                     subprocess.Popen([sys.executable, "-c", writer_code, str(live), str(saved)])
