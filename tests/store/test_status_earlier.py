@@ -61,6 +61,20 @@ def read_shifts(book, tags: list[str], shifts: int) -> list:
     return times
 
 
+def computed_at(book, monkeypatch, times: list) -> list[list[str]]:
+    """The filters the list as of each of `times` computes from the entries (no kept or
+    earlier row stood), each list then held to the computation (`assert_same`)."""
+    out = []
+    for at in times:
+        computed = fitted_again(monkeypatch)
+        views.watch(book, as_of=at)
+        out.append(list(computed))
+        monkeypatch.undo()
+    for at in times:
+        assert_same(book, at)
+    return out
+
+
 def test_a_past_shift_is_read_from_the_rows_kept_then(demo, monkeypatch):
     with open_book(demo, create=False) as book:
         tags = gauged(book, 4)
@@ -100,14 +114,9 @@ def test_a_reading_written_later_but_dated_before_the_time_is_seen(demo, monkeyp
         tech = book.conn.execute("SELECT tag FROM technicians ORDER BY tag").fetchone()[0]
         late = times[0] + SHIFT / 4  # written after the second shift's readings
         record.log(book, Reading(filter=tags[0], dp_bar=0.47, temp_c=44, by=tech, at=late))
-        computed = fitted_again(monkeypatch)
-        views.watch(book, as_of=late + timedelta(minutes=10))
-        assert computed == [tags[0]]  # its rows kept before the late one do not hold then
-        views.watch(book, as_of=late - timedelta(minutes=10))
-        assert computed == [tags[0]]  # before it: the row kept after the first shift holds
-        monkeypatch.undo()
-        for at in (late - timedelta(minutes=10), late + timedelta(minutes=10), times[1]):
-            assert_same(book, at)
+        before, after = late - timedelta(minutes=10), late + timedelta(minutes=10)
+        # before it the row kept after the first shift holds; after it, none kept before it
+        assert computed_at(book, monkeypatch, [before, after, times[1]]) == [[], [tags[0]], []]
 
 
 def test_a_void_counts_from_its_own_time(demo, monkeypatch):
@@ -121,14 +130,9 @@ def test_a_void_counts_from_its_own_time(demo, monkeypatch):
         ).fetchone()[0]
         voided_at = times[0] + SHIFT / 2  # dated between the readings, written after both
         record.log(book, Void(voids=first, note="wrong filter", by=tech, at=voided_at))
-        computed = fitted_again(monkeypatch)
-        views.watch(book, as_of=voided_at - timedelta(minutes=5))  # not voided yet then
-        assert computed == []
-        views.watch(book, as_of=voided_at + timedelta(minutes=5))  # voided: computed
-        assert computed == [tags[1]]
-        monkeypatch.undo()
-        for at in (voided_at - timedelta(minutes=5), voided_at + timedelta(minutes=5), times[1]):
-            assert_same(book, at)
+        before, after = voided_at - timedelta(minutes=5), voided_at + timedelta(minutes=5)
+        # not voided yet before it: the rows kept then hold; voided after it: computed
+        assert computed_at(book, monkeypatch, [before, after, times[1]]) == [[], [tags[1]], []]
 
 
 def test_a_register_change_leaves_the_earlier_rows(demo, monkeypatch):
