@@ -269,14 +269,20 @@ class _Touch:
     temp_c: float | None
 
 
-def _written_since(book: Book, rowid: int) -> list[_Touch]:
+def _written_since(book: Book, rowid: int, before: str | None = None) -> list[_Touch]:
+    """What was written after `rowid`; with `before` (a time as format_utc writes it), only
+    what counts in an audit of an earlier time: an entry dated before it, a void dated
+    before it (by its own date, not the voided entry's)."""
+    sql, params = "", [rowid]
+    if before is not None:
+        sql, params = " AND e.at_utc < ?", [rowid, before]
     rows = book.conn.execute(
         "SELECT e.rowid, upper(coalesce(t.filter, e.filter, '')), "
         "upper(coalesce(t.unit, e.unit, '')), coalesce(t.kind, e.kind), "
         "coalesce(t.at_utc, e.at_utc), coalesce(t.temp_c, e.temp_c) "
         "FROM entries e LEFT JOIN entries t ON e.voids IS NOT NULL AND t.id = e.voids "
-        "WHERE e.rowid > ?",
-        [rowid],
+        f"WHERE e.rowid > ?{sql}",
+        params,
     ).fetchall()
     return [_Touch(*r) for r in rows]
 
@@ -315,9 +321,9 @@ class _Moved:
         )
 
 
-def _moved_since(book: Book, rowid: int) -> _Moved:
+def _moved_since(book: Book, rowid: int, before: str | None = None) -> _Moved:
     moved = _Moved({}, {}, {}, {}, {})
-    for t in _written_since(book, rowid):
+    for t in _written_since(book, rowid, before):
         if t.filter:
             moved.own[t.filter] = max(moved.own.get(t.filter, 0), t.rowid)
             if t.kind == "change":
@@ -356,7 +362,12 @@ class Kept(NamedTuple):
 
     @property
     def pools(self) -> bool:
-        return not self.key.endswith(".own")
+        return _leans(self.key)
+
+
+def _leans(key: str) -> bool:
+    """Whether the row of this key leans on like positions' lives (`Register.filter_key`)."""
+    return not key.endswith(".own")
 
 
 def _kept_rows(
@@ -1066,28 +1077,16 @@ def kept_earlier(
         return {}
     reg = reg or register(book)
     oldest = min(seen for found in rows.values() for seen, _, _ in found)
-    own: dict[str, int] = {}  # the newest rowid after `oldest` dated before `until`, by tag
-    changes: dict[str, int] = {}  # ... of an element change or a void of one
-    for rowid, tag, change in book.conn.execute(
-        "SELECT e.rowid, upper(coalesce(t.filter, e.filter)), coalesce(t.kind, e.kind) = "
-        "'change' FROM entries e LEFT JOIN entries t ON e.voids IS NOT NULL AND t.id = e.voids "
-        "WHERE e.rowid > ? AND e.at_utc < ? AND coalesce(t.filter, e.filter) IS NOT NULL",
-        [oldest, until],
-    ):
-        own[tag] = max(own.get(tag, rowid), rowid)
-        if change:
-            changes[tag] = max(changes.get(tag, rowid), rowid)
+    moved = _moved_since(book, oldest, before=until)  # only what counts at `at`
     out = {}
     for tag, found in rows.items():
         for seen, key, data in found:
-            pools = not key.endswith(".own")
-            if key != reg.filter_key(tag, pools) or own.get(tag, 0) > seen:
-                continue
-            like = reg.like.get(tag, ()) if pools else ()
-            if any(changes.get(t, 0) > seen for t in like):
-                continue
-            out[tag] = _decode(data, at)
-            break
+            pools = _leans(key)
+            if key == reg.filter_key(tag, pools) and not moved.filter_moved(
+                tag, seen, pools, reg.like.get(tag, ())
+            ):
+                out[tag] = _decode(data, at)
+                break
     return out
 
 
