@@ -23,11 +23,10 @@ from store.base.errors import BookError, NotALogbook
 from store.db.connection import (
     BUSY_TIMEOUT_MS,
     check_header,
+    check_verdict,
     clear_damage,
     connect,
     forget_check,
-    integrity_verdict,
-    quick_verdict,
     writable,
     write_error,
 )
@@ -60,7 +59,7 @@ def copy_to(conn: sqlite3.Connection, dest: Path, values_ok: bool = False) -> Pa
     """Write a consistent copy of the open logbook to `dest` (a new file, or a new dated file
     inside `dest` when it is a folder); never over an existing file. `values_ok` (an
     upgrade's copies of the book itself): rows that break a CHECK or NOT NULL pass the
-    copy's check (`quick_verdict`); any other finding still refuses it."""
+    copy's check (`check_verdict`); any other finding still refuses it."""
     dest = Path(dest)
     if dest.is_dir():
         dest = dest / f"logbook-{_stamp()}.db"
@@ -74,7 +73,7 @@ def copy_to(conn: sqlite3.Connection, dest: Path, values_ok: bool = False) -> Pa
         try:
             conn.backup(target)
             target.execute("PRAGMA journal_mode = DELETE")
-            ok = quick_verdict(target) if values_ok else _quick(target)
+            ok = check_verdict(target, values_ok)
         finally:
             target.close()
         if ok != "ok":
@@ -163,7 +162,7 @@ def open_checked(path: Path, values_ok: bool = False) -> sqlite3.Connection:
         raise NotALogbook(f"{path} cannot be read as a logbook ({exc})") from exc
     try:
         check_header(conn, path, values_ok=values_ok)
-        ok = integrity_verdict(conn) if values_ok else _integrity(conn)
+        ok = check_verdict(conn, values_ok, whole=True)
         if ok != "ok":
             raise NotALogbook(f"{path} is damaged (integrity check: {ok})")
     except sqlite3.DatabaseError as exc:
@@ -173,14 +172,6 @@ def open_checked(path: Path, values_ok: bool = False) -> sqlite3.Connection:
         conn.close()
         raise
     return conn
-
-
-def _quick(conn: sqlite3.Connection) -> str:
-    return conn.execute("PRAGMA quick_check").fetchone()[0]
-
-
-def _integrity(conn: sqlite3.Connection) -> str:
-    return conn.execute("PRAGMA integrity_check(1)").fetchone()[0]
 
 
 def _healthy(book_path: Path, values_ok: bool = False) -> bool:
@@ -378,7 +369,7 @@ def _overwrite(
 
     try:
         source.backup(target, pages=RESTORE_STEP_PAGES, progress=keep_current)
-        ok = quick_verdict(target) if values_ok else _quick(target)
+        ok = check_verdict(target, values_ok)
     except sqlite3.Error as exc:
         if problems:  # the kept copy failed: the backup was ended, nothing was committed
             raise problems[0] from exc
@@ -426,7 +417,7 @@ def _keep_bytes(raw: int, kept: Path, values_ok: bool = False) -> None:
             os.fsync(out.fileno())
         check = sqlite3.connect(tmp)
         try:
-            ok = quick_verdict(check) if values_ok else _quick(check)
+            ok = check_verdict(check, values_ok)
         finally:
             check.close()
         if ok != "ok":

@@ -19,12 +19,12 @@ from store.db.connection import (
     CHECKED,
     check_header,
     check_key,
+    check_verdict,
     clear_damage,
     connect,
     file_id,
     is_empty_file,
     no_new_side_files,
-    quick_verdict,
     record_damage,
     refuse_known_damage,
     refused_write,
@@ -311,7 +311,7 @@ def migrate(conn: sqlite3.Connection, from_version: int) -> list[str]:
         if not wrong and from_version > 0:  # the upgraded content, checked before it counts
             # bad values the book held are carried as they are; upgrade_beside's proof
             # holds them to the book's own (a new one is refused there)
-            verdict = quick_verdict(conn)
+            verdict = check_verdict(conn, values_ok=True)
             wrong = [] if verdict == "ok" else [verdict]
         if wrong:  # the steps did not make what this version makes: keep the file as it was
             conn.execute("ROLLBACK")
@@ -612,7 +612,7 @@ def _quick_check(conn: sqlite3.Connection, path: Path) -> None:
 
 def _quick_check_now(conn: sqlite3.Connection, path: Path) -> None:
     try:
-        ok = quick_verdict(conn)
+        ok = check_verdict(conn, values_ok=True)
     except sqlite3.DatabaseError as exc:
         ok = str(exc)
     if ok != "ok":

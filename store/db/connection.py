@@ -190,20 +190,16 @@ def is_empty_file(path: Path) -> bool:
 ROW_FINDINGS = ("CHECK constraint failed", "NOT NULL constraint failed")
 
 
-def quick_verdict(conn: sqlite3.Connection) -> str:
-    """`PRAGMA quick_check` of the file: "ok", or the first finding that is not a row breaking
-    a CHECK or NOT NULL (a bad value the readers skip and note: no damage of the file)."""
-    return _verdict(conn, "quick_check")
-
-
-def integrity_verdict(conn: sqlite3.Connection) -> str:
-    """`quick_verdict` by the whole integrity check."""
-    return _verdict(conn, "integrity_check")
-
-
-def _verdict(conn: sqlite3.Connection, check: str) -> str:
+def check_verdict(conn: sqlite3.Connection, values_ok: bool = False, whole: bool = False) -> str:
+    """SQLite's check of the file (`whole`: the integrity check, else the quick check): "ok"
+    or its first finding. `values_ok`: rows that break a CHECK or NOT NULL count as sound (a
+    bad value the readers skip and note is no damage of the file), and the first other
+    finding is the answer."""
+    check = "integrity_check" if whole else "quick_check"
+    if not values_ok:
+        return conn.execute(f"PRAGMA {check}(1)" if whole else f"PRAGMA {check}").fetchone()[0]
     found = [row[0] for row in conn.execute(f"PRAGMA {check}").fetchall()]
-    return "ok" if all(f == "ok" or f.startswith(ROW_FINDINGS) for f in found) else found[0]
+    return next((f for f in found if f != "ok" and not f.startswith(ROW_FINDINGS)), "ok")
 
 
 def check_header(
@@ -218,14 +214,7 @@ def check_header(
         app_id = conn.execute("PRAGMA application_id").fetchone()[0]
         version = conn.execute("PRAGMA user_version").fetchone()[0]
         blank = conn.execute("SELECT count(*) FROM sqlite_master").fetchone()[0] == 0
-        if not quick:
-            ok = "ok"
-        else:  # `values_ok`: rows that break a CHECK or NOT NULL are no damage (an upgrade)
-            ok = (
-                quick_verdict(conn)
-                if values_ok
-                else conn.execute("PRAGMA quick_check").fetchone()[0]
-            )
+        ok = check_verdict(conn, values_ok) if quick else "ok"
     except sqlite3.DatabaseError as exc:
         raise NotALogbook(f"{path} is not a sumpbook logbook or is damaged ({exc})") from exc
     if app_id == 0 and version == 0 and blank and ok == "ok":
