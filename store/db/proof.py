@@ -269,9 +269,8 @@ def _carried(conn: sqlite3.Connection, version: int, held: Path, tables: set[str
         return False
     try:
         was = before.execute("PRAGMA user_version").fetchone()[0]
-        every = 1 << 40
         return all(
-            set(bad_rows(conn, table, version, every)) <= set(bad_rows(before, table, was, every))
+            set(bad_rows(conn, table, version, None)) <= set(bad_rows(before, table, was, None))
             for table in tables
         )
     except sqlite3.Error:
@@ -280,10 +279,12 @@ def _carried(conn: sqlite3.Connection, version: int, held: Path, tables: set[str
         before.close()
 
 
-def bad_rows(conn: sqlite3.Connection, table: str, version: int, limit: int = 5) -> list[str]:
+def bad_rows(
+    conn: sqlite3.Connection, table: str, version: int, limit: int | None = 5
+) -> list[str]:
     """The keys of rows of `table` that break its constraints, found by inserting each row
     into an empty copy of the table as this version makes it (in memory, no triggers, no
-    foreign keys): `limit` of them at most. Reads the base table only."""
+    foreign keys): `limit` of them at most (None: every one). Reads the base table only."""
     want = reference_schema(version).get(("table", table))
     if want is None or want[1] is None:
         return []
@@ -300,7 +301,7 @@ def bad_rows(conn: sqlite3.Connection, table: str, version: int, limit: int = 5)
                 probe.execute(f'INSERT INTO "{table}" ({names}) VALUES ({marks})', row)
             except sqlite3.IntegrityError:
                 found.append(str(row[columns.index(key)]))
-                if len(found) >= limit:
+                if limit is not None and len(found) >= limit:
                     break
             else:
                 probe.execute(f'DELETE FROM "{table}"')
