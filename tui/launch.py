@@ -68,7 +68,9 @@ def _flushed(code: int) -> int:
         if sys.stdout is not None:  # None: started with stdout closed (said already)
             sys.stdout.flush()
     except BrokenPipeError:  # the reader left early (`| head`): as the command line does
-        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        from tui.cli import reader_gone
+
+        reader_gone()
     except (OSError, ValueError) as exc:
         why = getattr(exc, "strerror", None) or str(exc)
         print(f"sumpbook: the answer could not be written out ({why})", file=sys.stderr)

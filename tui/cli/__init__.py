@@ -452,6 +452,12 @@ def run(args: argparse.Namespace) -> int:
     return code
 
 
+def reader_gone() -> None:
+    """The reader of the answer left early (`| head`): what is still to be written goes to
+    the null device, so that no later flush fails on the closed pipe."""
+    os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+
+
 def main(
     argv: Sequence[str] | None = None, loaded: Callable[[str | None], None] | None = None
 ) -> int:
@@ -518,7 +524,7 @@ def main(
     except KeyboardInterrupt:
         return 130
     except BrokenPipeError:
-        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        reader_gone()
         return 0
     except Exception as exc:  # a bug: one line for the user, the trace on request
         if session.debug:
