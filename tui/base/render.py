@@ -62,8 +62,9 @@ def line(text: str) -> Text:
     return Text(inert(text))
 
 
-def when(book: Book, moment: datetime | None) -> str:
-    return local_text(moment, book.local_zone()) if moment else "–"
+def when(moment: datetime | None, zone: tzinfo) -> str:
+    """A moment in the plant's zone, "–" for none."""
+    return local_text(moment, zone) if moment else "–"
 
 
 def describe(entry: Entry, prefs: Prefs, target_code: str | None = None) -> str:
@@ -124,7 +125,7 @@ def _target_code(book: Book, entry: Entry) -> str | None:
 def saved_line(book: Book, entry: Entry, prefs: Prefs) -> str:
     target = entry.target or entry.unit or ""
     return (
-        f"saved {entry.kind} {entry.id[:8]} {target} {when(book, entry.at)} by {entry.by}: "
+        f"saved {entry.kind} {entry.id[:8]} {target} {when(entry.at, book.local_zone())} by {entry.by}: "
         f"{describe(entry, prefs, _target_code(book, entry))}"
     )
 
@@ -298,7 +299,7 @@ class LocalDays:
         return cls(zone, book.now().astimezone(zone).year)
 
     def when(self, moment: datetime | None) -> str:
-        return local_text(moment, self.zone) if moment else "–"
+        return when(moment, self.zone)
 
     def due_text(self, due) -> str:  # noqa: ANN001 - status_model.Due | None
         if due is None:
