@@ -534,13 +534,17 @@ def store_calls(path: Path, repeat: int = 5) -> dict[str, float]:
     return out
 
 
+def python(root: Path) -> str:
+    """The interpreter of the code at `root`: its own virtual environment's, else this one."""
+    venv = root / ".venv" / "bin" / "python"
+    return str(venv) if venv.exists() else sys.executable
+
+
 def entries_only(root: Path, env: dict[str, str]) -> list[str]:
     """`--entries-only` when the code at `root` knows it (the status rows after the entries
     came with it): the entries alone, the rows the sqlite3 shell writes and the file older
     code writes."""
-    venv = root / ".venv" / "bin" / "python"
-    python = str(venv) if venv.exists() else sys.executable
-    done = subprocess.run([python, "-m", "tui", "export", "--help"], env={**env,
+    done = subprocess.run([python(root), "-m", "tui", "export", "--help"], env={**env,
                           "PYTHONPATH": str(root)}, cwd=root, capture_output=True, text=True,
                           check=False)  # fmt: skip
     return ["--entries-only"] if "--entries-only" in done.stdout else []
@@ -620,10 +624,6 @@ def same_answers(path: Path, env: dict[str, str], roots: dict[str, Path], span: 
     fresh copy. Lines for the report."""
     work = Path(tempfile.mkdtemp(prefix="speed-cmp-"))
     first = next(iter(roots.values()))
-
-    def python(root: Path) -> str:
-        venv = root / ".venv" / "bin" / "python"
-        return str(venv) if venv.exists() else sys.executable
 
     demo = work / "demo.db"
     subprocess.run([python(first), "-m", "tui", "--db", str(demo), "demo"], env=env, cwd=first,

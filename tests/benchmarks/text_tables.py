@@ -32,12 +32,12 @@ import time
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[2]
+if str(ROOT) not in sys.path:  # run as a script from anywhere
+    sys.path.insert(0, str(ROOT))
+
+from tests.benchmarks.speed import python  # noqa: E402  (the interpreter of a code folder)
+
 COMMANDS = (["status"], ["list", "filters"], ["list", "units"], ["status", "--json"])
-
-
-def python(root: Path) -> str:
-    venv = root / ".venv" / "bin" / "python"
-    return str(venv) if venv.exists() else sys.executable
 
 
 def run_piped(cmd: list[str], env: dict[str, str], cwd: Path) -> tuple[float, float, bytes]:
