@@ -10,7 +10,8 @@ from operator import attrgetter
 from typing import NamedTuple
 
 from store.base.records import frozen_record
-from store.ledger.entries import BreatherSwap, Entry, Reading, Sample, TopUp
+from store.ledger.entries import Entry, Reading, Sample, TopUp
+from store.ledger.journal import SwapMark
 from store.ledger.register import Breather, FilterPosition, Unit
 from store.physics.cleanliness import compare_to_target, parse_code
 
@@ -181,10 +182,11 @@ _at = attrgetter("at")
 
 
 def breather_forecast(
-    breather: Breather, swaps: Sequence[BreatherSwap], now: datetime
+    breather: Breather, swaps: Sequence[SwapMark], now: datetime
 ) -> BreatherForecast:
-    """Next swap: the set interval, shortened or stretched by how spent earlier cartridges were."""
-    live = sorted([s for s in swaps if not s.voided], key=_at)
+    """Next swap: the set interval, shortened or stretched by how spent earlier cartridges were
+    (`swaps`: the breather's live swaps, `journal.live_swap_marks`)."""
+    live = sorted(swaps, key=_at)
     interval_d = breather.swap_interval_d
     basis = "interval"
     lives = []

@@ -152,7 +152,7 @@ def watch_as_of(book: Book, as_of: datetime, unit: str | None = None) -> Watch:
 def _breather_status(
     breather: Breather, swaps: Sequence[SwapMark], now: datetime
 ) -> BreatherStatus:
-    forecast = breather_forecast(breather, swaps, now)  # type: ignore[arg-type]
+    forecast = breather_forecast(breather, swaps, now)
     flags = []
     if forecast.overdue:
         flags.append("swap-overdue")

@@ -578,12 +578,10 @@ def element_items_until(
 
 class SwapMark(NamedTuple):
     """What a breather's forecast reads of a live swap (store.health.fluidcare.breather_forecast):
-    when it was and the desiccant as found ("" when not said). `voided` is there because the
-    forecast asks; a mark is never of a voided swap."""
+    when it was and the desiccant as found ("" when not said)."""
 
     at: datetime
     condition: str
-    voided: bool = False
 
 
 _LIVE_SWAPS = (

@@ -76,12 +76,12 @@ def assert_same(book, now, unit=None) -> None:
         full = {
             tag: live
             for tag, swaps in full_swaps(book, bound).items()
-            if (live := [(e.at, e.condition, False) for e in swaps if not e.voided])  # type: ignore[attr-defined]
+            if (live := [(e.at, e.condition) for e in swaps if not e.voided])  # type: ignore[attr-defined]
         }
         noted_full = dict(book.unreadable)
         book.unreadable.clear()
         lean = {
-            tag: [(m.at, m.condition, m.voided) for m in marks]
+            tag: [(m.at, m.condition) for m in marks]
             for tag, marks in journal.live_swap_marks(book, bound).items()
         }
         assert lean == full
