@@ -17,7 +17,7 @@ from typing import Any, TypeVar
 
 from store.base import validate
 from store.base.errors import BookError
-from store.base.records import frozen_record
+from store.base.records import filled_record, frozen_record
 from store.base.timeutil import format_utc, parse_utc
 from store.base.validate import FILTER_KINDS
 from store.db.book import Book
@@ -209,13 +209,10 @@ def records_from(cls: type[R], columns: Sequence[str], rows: Iterable[tuple]) ->
     cols = [(index[n], n, n in BOOL_FIELDS) for n in names if n in index]
     if hasattr(cls, "__post_init__") or "__slots__" in vars(cls) or len(cols) != len(names):
         return [cls(**{n: (bool(r[i]) if b else r[i]) for i, n, b in cols}) for r in rows]
-    new = object.__new__
-    out = []
-    for row in rows:
-        record = new(cls)
-        record.__dict__.update({n: (bool(row[i]) if b else row[i]) for i, n, b in cols})
-        out.append(record)
-    return out
+    return [
+        filled_record(cls, {n: (bool(row[i]) if b else row[i]) for i, n, b in cols})
+        for row in rows
+    ]
 
 
 _TEXT_FIELDS = ("name", "area", "element")
