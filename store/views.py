@@ -14,7 +14,7 @@ from store.db.book import Book
 from store.derived.elementcache import kept_before
 from store.derived.statuscache import (
     cached_units,
-    kept_earlier,
+    kept_as_of,
     kept_filters,
     kept_units,
     live_status,
@@ -75,8 +75,7 @@ def _watch_as_of(book: Book, as_of: datetime, unit: str | None) -> Watch:
     positions = list_all(book, FilterPosition)
     reg = register(book)
     tags = [c.position.tag.upper() for c in p.contexts]
-    kept_f = kept_filters(book, tags, as_of, audit=True, reg=reg)
-    kept_f |= kept_earlier(book, [t for t in tags if t not in kept_f], as_of, reg)
+    kept_f = kept_as_of(book, tags, as_of, reg)
     kept_u = kept_units(book, list(p.units), p.positions_by_unit, as_of, reg)
     rest = [c for c in p.contexts if c.position.tag.upper() not in kept_f]
     computed = iter(())
@@ -102,12 +101,9 @@ def status_of(book: Book, ctx: FilterContext, as_of: datetime | None = None) -> 
     """One filter's status, now or as of a past time: its kept row where that holds, else
     computed (now: from the element cache and the entries since the last element change;
     as of a time: from every entry as it stood then)."""
-    at = book.now() if as_of is None else as_of
     tag = ctx.position.tag.upper()
-    kept = kept_filters(book, [tag], at, audit=as_of is not None).get(tag)
-    if kept is not None:
-        return kept
     if as_of is None:
-        return live_status(book, ctx)[0]
-    earlier = kept_earlier(book, [tag], as_of).get(tag)
-    return earlier if earlier is not None else status_as_of(book, ctx, as_of)
+        kept = kept_filters(book, [tag], book.now()).get(tag)
+        return kept if kept is not None else live_status(book, ctx)[0]
+    kept = kept_as_of(book, [tag], as_of).get(tag)
+    return kept if kept is not None else status_as_of(book, ctx, as_of)

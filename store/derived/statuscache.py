@@ -410,23 +410,15 @@ class Check:
             _moved_since(book, oldest) if oldest < self.newest else _Moved({}, {}, {}, {}, {})
         )
 
-    def holds(self, tag: str, at: datetime, audit: bool = False) -> Kept | None:
-        """The row of `tag` (upper case) if its key matches and it holds at `at` (an audit:
-        as the entries stood then), else None."""
+    def holds(self, tag: str, at: datetime) -> Kept | None:
+        """The row of `tag` (upper case) if its key matches and it holds at `at`, else None
+        (as the entries stood at a past time: `kept_as_of`)."""
         row = self.rows.get(tag)
         if row is None or row.seen < 0 or row.key != self.reg.filter_key(tag, row.pools):
             return None
         if self._at != at:
             self._at, self._stamp = at, format_utc(at)
-        stamp = self._stamp
-        if audit:
-            # As the entries stood at `at`: a row whose inputs are all dated at or before
-            # `at` stands for it, also where it was kept later (the previous shift's log read
-            # after the shift): its clock is good from its newest reading on
-            # (status_model.Clock), and nothing after `at` went into it.
-            if row.newest_utc is not None and row.newest_utc > stamp:
-                return None
-        elif stamp < row.computed_utc:  # the clock set back: the row may hold later readings
+        if self._stamp < row.computed_utc:  # the clock set back: it may hold later readings
             return None
         if row.seen < self.newest and self.moved.filter_moved(
             tag, row.seen, row.pools, self.reg.like.get(tag, ())
@@ -472,7 +464,7 @@ EARLIER_SCAN = 50_000  # entries read at most to check an earlier row (three wee
 def _keep_earlier(book: Book, tag: str) -> None:
     """Before a filter's kept row is replaced: keep it among its earlier rows, with the rowid
     it was checked up to (a row of an older format never holds again, and is not kept), and
-    let only the last EARLIER_KEPT stay (`kept_earlier` reads them)."""
+    let only the last EARLIER_KEPT stay (`kept_as_of` reads them)."""
     conn = book.conn
     conn.execute(
         "INSERT OR REPLACE INTO status_earlier(filter, seen_rowid, key, computed_utc, "
@@ -1025,68 +1017,76 @@ def watch_filters(
 
 
 def kept_filters(
-    book: Book,
-    tags: Iterable[str],
-    now: datetime,
-    audit: bool = False,
-    reg: Register | None = None,
+    book: Book, tags: Iterable[str], now: datetime, reg: Register | None = None
 ) -> dict[str, FilterStatus]:
     """The kept status at `now` of each of `tags` (upper case) whose row holds then (its key
-    matches; `audit`: as the entries stood at `now`), by tag; the rest are left out. `reg`:
-    the register as read for the same list."""
+    matches), by tag; the rest are left out. `reg`: the register as read for the same list."""
     tags = list(tags)
     rows = _kept_rows(book, tags)
     check = Check(book, rows, reg)
     out = {}
     for tag in tags:
-        row = check.holds(tag, now, audit)
+        row = check.holds(tag, now)
         if row is not None:
             out[tag] = _decode(row.data, now)
     return out
 
 
-def kept_earlier(
+# The rows an audit may take, a filter's row kept now and then those kept before it, each
+# with the rowid it was checked up to: only those whose inputs are all dated by the time asked
+# (`newest_utc`) and not checked up to a rowid too far behind (EARLIER_SCAN).
+_ROWS_NOW = (
+    "SELECT upper(c.filter), s.seen_rowid, c.key, c.data FROM status_cache c JOIN kept_seen s "
+    "ON s.what = 'filter' AND s.tag = c.filter WHERE (c.newest_utc IS NULL OR c.newest_utc <= "
+    "?) AND s.seen_rowid >= ? AND c.filter IN {tags}"
+)
+_ROWS_EARLIER = (
+    "SELECT upper(filter), seen_rowid, key, data FROM status_earlier WHERE (newest_utc IS NULL "
+    "OR newest_utc <= ?) AND seen_rowid >= ? AND filter IN {tags} ORDER BY filter, "
+    "seen_rowid DESC"
+)
+
+
+def kept_as_of(
     book: Book, tags: Iterable[str], at: datetime, reg: Register | None = None
 ) -> dict[str, FilterStatus]:
-    """The status as of `at` (an audit) of each of `tags` (upper case) that one of its earlier
-    kept rows (`_keep_earlier`) stands for, by tag; the rest are left out. A row stands for
-    `at` where its key holds now, every input it was computed from is dated at or before `at`
-    (`newest_utc`), and no entry written after its seen rowid that touches its inputs (an
-    entry of the position or a void of one; where it leans on like positions, their element
-    changes and voids of them) is dated before `at` + 1 s, which is what an audit counts: its
-    inputs then are the row's. Of several, the one checked up to the newest rowid."""
-    wanted = set(tags)
-    if not wanted:
-        return {}
+    """The status as of `at` (an audit: as the entries stood then) of each of `tags` (upper
+    case) that one of its kept rows stands for, by tag; the rest are left out. The row kept
+    now is asked first, then those kept before it (`_keep_earlier`), newest first. A row
+    stands for `at` where its key holds now, every input it was computed from is dated at or
+    before `at` (`newest_utc`; so also a row kept later, the previous shift's log read after
+    the shift: its clock is good from its newest reading on, status_model.Clock), and no
+    entry written after its seen rowid that touches its inputs (an entry of the position or
+    a void of one; where it leans on like positions, their element changes and voids of
+    them) is dated before `at` + 1 s, which is what an audit counts: its inputs then are the
+    row's."""
     stamp = format_utc(at)
     until = format_utc(at + timedelta(seconds=1))
     # A row checked up to a rowid far behind (kept while its inputs had moved and nothing
-    # refreshed it) would cost a read of every entry since: such a one is left to the
-    # computation.
+    # refreshed it) would cost a read of every entry since: it is left to the computation.
     floor = max_rowid(book) - EARLIER_SCAN
-    rows: dict[str, list[tuple]] = {}
-    for row in book.conn.execute(
-        "SELECT upper(filter), seen_rowid, key, data FROM status_earlier "
-        "WHERE (newest_utc IS NULL OR newest_utc <= ?) AND seen_rowid >= ? "
-        "ORDER BY filter, seen_rowid DESC",
-        [stamp, floor],
-    ):
-        if row[0] in wanted:
-            rows.setdefault(row[0], []).append(row[1:])
-    if not rows:
-        return {}
     reg = reg or register(book)
-    oldest = min(seen for found in rows.values() for seen, _, _ in found)
-    moved = _moved_since(book, oldest, before=until)  # only what counts at `at`
-    out = {}
-    for tag, found in rows.items():
-        for seen, key, data in found:
-            pools = _leans(key)
-            if key == reg.filter_key(tag, pools) and not moved.filter_moved(
-                tag, seen, pools, reg.like.get(tag, ())
-            ):
-                out[tag] = _decode(data, at)
-                break
+    out: dict[str, FilterStatus] = {}
+    for sql in (_ROWS_NOW, _ROWS_EARLIER):
+        left = sorted(set(tags) - out.keys())
+        if not left:
+            break
+        tags_sql, params = _among(left)
+        rows: dict[str, list[tuple]] = {}
+        for tag, *row in book.conn.execute(sql.format(tags=tags_sql), [stamp, floor, *params]):
+            rows.setdefault(tag, []).append(row)
+        if not rows:
+            continue
+        oldest = min(seen for found in rows.values() for seen, _, _ in found)
+        moved = _moved_since(book, oldest, before=until)  # only what counts at `at`
+        for tag, found in rows.items():
+            for seen, key, data in found:
+                pools = _leans(key)
+                if key == reg.filter_key(tag, pools) and not moved.filter_moved(
+                    tag, seen, pools, reg.like.get(tag, ())
+                ):
+                    out[tag] = _decode(data, at)
+                    break
     return out
 
 

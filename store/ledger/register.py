@@ -210,8 +210,7 @@ def records_from(cls: type[R], columns: Sequence[str], rows: Iterable[tuple]) ->
     if hasattr(cls, "__post_init__") or "__slots__" in vars(cls) or len(cols) != len(names):
         return [cls(**{n: (bool(r[i]) if b else r[i]) for i, n, b in cols}) for r in rows]
     return [
-        filled_record(cls, {n: (bool(row[i]) if b else row[i]) for i, n, b in cols})
-        for row in rows
+        filled_record(cls, {n: (bool(row[i]) if b else row[i]) for i, n, b in cols}) for row in rows
     ]
 
 

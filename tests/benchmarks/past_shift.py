@@ -1,5 +1,5 @@
 """The list as of a past shift's end (the shift log of an earlier shift, `status --as-of`):
-with each filter's earlier kept rows (schema 8, `statuscache.kept_earlier`) against the same
+with each filter's earlier kept rows (schema 8, `statuscache.kept_as_of`) against the same
 book with them emptied, which computes every filter read since from its entries, as before.
 
     python tests/benchmarks/past_shift.py BOOK [--shifts 2] [--runs 3]

@@ -1,4 +1,4 @@
-"""A filter's earlier kept rows (`statuscache.kept_earlier`, schema 8) stand for a past time
+"""A filter's earlier kept rows (`statuscache.kept_as_of`, schema 8) stand for a past time
 only where they provably hold then: the list as of that time is the computation from the
 entries as they stood (`assert_same`, tests/store/test_status_as_of.py), whether a row stood
 in or not. What is checked here is that the rows are used where they hold (no fit) and left

@@ -238,7 +238,7 @@ def test_a_row_whose_inputs_moved_is_never_used(kept: Path, tmp_path: Path, move
                     [tag],
                 )
         assert tag not in statuscache.kept_filters(book, [tag], now)
-        assert tag not in statuscache.kept_filters(book, [tag], now, audit=True)
+        assert tag not in statuscache.kept_as_of(book, [tag], now)
         assert tag in statuscache.stale_filters(book)
         fresh = watchlist.watch_as_of(book, now)
         shown, audit = views.watch(book), views.watch(book, as_of=now)
