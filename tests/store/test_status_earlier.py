@@ -45,10 +45,15 @@ def gauged(book, count: int) -> list[str]:
     ]
 
 
+def technician(book) -> str:
+    """The first technician of the register, who logs the tests' entries."""
+    return book.conn.execute("SELECT tag FROM technicians ORDER BY tag").fetchone()[0]
+
+
 def read_shifts(book, tags: list[str], shifts: int) -> list:
     """A reading of each of `tags` at the start of each of `shifts` shifts after the book's
     end (the clock moved on with them); the times of the shifts."""
-    tech = book.conn.execute("SELECT tag FROM technicians ORDER BY tag").fetchone()[0]
+    tech = technician(book)
     start = book.now()
     times = []
     for i in range(shifts):
@@ -73,6 +78,13 @@ def computed_at(book, monkeypatch, times: list) -> list[list[str]]:
     for at in times:
         assert_same(book, at)
     return out
+
+
+def moved_only_from(book, monkeypatch, dated, end) -> list[list[str]]:
+    """`computed_at` five minutes before an entry written late but `dated` back, five minutes
+    after, and at `end`."""
+    near = timedelta(minutes=5)
+    return computed_at(book, monkeypatch, [dated - near, dated + near, end])
 
 
 def test_a_past_shift_is_read_from_the_rows_kept_then(demo, monkeypatch):
@@ -111,28 +123,26 @@ def test_a_reading_written_later_but_dated_before_the_time_is_seen(demo, monkeyp
     with open_book(demo, create=False) as book:
         tags = gauged(book, 2)
         times = read_shifts(book, tags, 2)
-        tech = book.conn.execute("SELECT tag FROM technicians ORDER BY tag").fetchone()[0]
+        tech = technician(book)
         late = times[0] + SHIFT / 4  # written after the second shift's readings
         record.log(book, Reading(filter=tags[0], dp_bar=0.47, temp_c=44, by=tech, at=late))
-        before, after = late - timedelta(minutes=10), late + timedelta(minutes=10)
         # before it the row kept after the first shift holds; after it, none kept before it
-        assert computed_at(book, monkeypatch, [before, after, times[1]]) == [[], [tags[0]], []]
+        assert moved_only_from(book, monkeypatch, late, times[1]) == [[], [tags[0]], []]
 
 
 def test_a_void_counts_from_its_own_time(demo, monkeypatch):
     with open_book(demo, create=False) as book:
         tags = gauged(book, 2)
         times = read_shifts(book, tags, 2)
-        tech = book.conn.execute("SELECT tag FROM technicians ORDER BY tag").fetchone()[0]
+        tech = technician(book)
         first = book.conn.execute(
             "SELECT id FROM entries WHERE filter = ? AND at_utc = ?",
             [tags[1], format_utc(times[0])],
         ).fetchone()[0]
         voided_at = times[0] + SHIFT / 2  # dated between the readings, written after both
         record.log(book, Void(voids=first, note="wrong filter", by=tech, at=voided_at))
-        before, after = voided_at - timedelta(minutes=5), voided_at + timedelta(minutes=5)
         # not voided yet before it: the rows kept then hold; voided after it: computed
-        assert computed_at(book, monkeypatch, [before, after, times[1]]) == [[], [tags[1]], []]
+        assert moved_only_from(book, monkeypatch, voided_at, times[1]) == [[], [tags[1]], []]
 
 
 def test_a_register_change_leaves_the_earlier_rows(demo, monkeypatch):
@@ -152,7 +162,7 @@ def test_a_like_position_s_change_reaches_the_rows_that_lean_on_it(demo, monkeyp
     with open_book(demo, create=False) as book:
         leaning, like = pooling(book)
         times = read_shifts(book, [leaning], 2)
-        tech = book.conn.execute("SELECT tag FROM technicians ORDER BY tag").fetchone()[0]
+        tech = technician(book)
         changed = times[0] + SHIFT / 2  # dated between the readings, written after both
         record.log(book, ElementChange(filter=like, by=tech, at=changed))
         computed = fitted_again(monkeypatch)
