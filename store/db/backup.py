@@ -31,7 +31,13 @@ from store.db.connection import (
     write_error,
 )
 from store.db.places import backup_dir, latest_backup, rolling_backups
-from store.db.proof import header_findings, prove_file, read_only
+from store.db.proof import (
+    carried_rows,
+    carry_bad_rows,
+    header_findings,
+    prove_file,
+    read_only,
+)
 from store.db.targets import refuse_input_as_output
 
 DEFAULT_KEEP = 10
@@ -55,11 +61,12 @@ def keep_count(conn: sqlite3.Connection) -> int:
         return DEFAULT_KEEP
 
 
-def copy_to(conn: sqlite3.Connection, dest: Path, values_ok: bool = False) -> Path:
+def copy_to(conn: sqlite3.Connection, dest: Path) -> Path:
     """Write a consistent copy of the open logbook to `dest` (a new file, or a new dated file
-    inside `dest` when it is a folder); never over an existing file. `values_ok` (an
-    upgrade's copies of the book itself): rows that break a CHECK or NOT NULL pass the
-    copy's check (`check_verdict`); any other finding still refuses it."""
+    inside `dest` when it is a folder); never over an existing file. The copy is checked:
+    rows that break a CHECK or NOT NULL (values stored outside sumpbook) pass where the book
+    holds the very same ones, and the copy names them for a restore (`carry_bad_rows`);
+    anything else found refuses it."""
     dest = Path(dest)
     if dest.is_dir():
         dest = dest / f"logbook-{_stamp()}.db"
@@ -73,7 +80,7 @@ def copy_to(conn: sqlite3.Connection, dest: Path, values_ok: bool = False) -> Pa
         try:
             conn.backup(target)
             target.execute("PRAGMA journal_mode = DELETE")
-            ok = check_verdict(target, values_ok)
+            ok = carry_bad_rows(target, conn)
         finally:
             target.close()
         if ok != "ok":
@@ -149,37 +156,24 @@ def _same_file(a: Path, b: Path) -> bool:
         return False
 
 
-def open_checked(path: Path, values_ok: bool = False) -> sqlite3.Connection:
-    """A read-only connection to a file that passed every check a restore or merge needs:
-    a sumpbook logbook (application id), not damaged (integrity check), not too new.
-    `values_ok`: rows that break a CHECK or NOT NULL are no damage (an upgrade's book)."""
-    path = Path(path)
+def _healthy(book_path: Path) -> bool:
+    """Whether the live book is a logbook (application id, not too new) and not damaged
+    (integrity check). Rows that break a CHECK or NOT NULL (values stored outside sumpbook,
+    which readers skip and note) are no damage: its kept copy carries them (`copy_to`)."""
+    path = Path(book_path)
     if not path.is_file() or path.stat().st_size == 0:
-        raise BookError(f"{path} is not a file holding a logbook")
+        return False
     try:
         conn = connect(path, readonly=True)
-    except sqlite3.Error as exc:
-        raise NotALogbook(f"{path} cannot be read as a logbook ({exc})") from exc
-    try:
-        check_header(conn, path, values_ok=values_ok)
-        ok = check_verdict(conn, values_ok, whole=True)
-        if ok != "ok":
-            raise NotALogbook(f"{path} is damaged (integrity check: {ok})")
-    except sqlite3.DatabaseError as exc:
-        conn.close()
-        raise NotALogbook(f"{path} is damaged ({exc})") from exc
-    except BaseException:
-        conn.close()
-        raise
-    return conn
-
-
-def _healthy(book_path: Path, values_ok: bool = False) -> bool:
-    try:
-        open_checked(book_path, values_ok=values_ok).close()
-    except BookError:
+    except sqlite3.Error:
         return False
-    return True
+    try:
+        check_header(conn, path, values_ok=True)
+        return check_verdict(conn, values_ok=True, whole=True) == "ok"
+    except (BookError, sqlite3.DatabaseError):
+        return False
+    finally:
+        conn.close()
 
 
 def side_copy(file: Path, book_path: Path, label: str | None = None) -> Path:
@@ -246,10 +240,12 @@ def restore(file: Path, book_path: Path) -> Path | None:
         raise type(exc)(f"{exc}{untouched}") from exc
     try:
         try:
-            prove_file(side, str(file))
+            prove_file(side, str(file), carried=True)
         except BookError as exc:
             raise type(exc)(f"{exc}{untouched}") from exc
-        kept = swap_in(side, book_path, KEPT_BEFORE_RESTORE)
+        # a copy that carries its book's bad values (proven to be only those) goes in with
+        # them: the restored book's checks let them through, as the book's own did
+        kept = swap_in(side, book_path, KEPT_BEFORE_RESTORE, values_ok=_carries(side))
     finally:
         remove_side_file(side)
     return kept
@@ -283,14 +279,18 @@ def swap_in(
 
     `unchanged(kept)`, when given, is asked under the lock once the kept copy is made: False
     (the book is not what the side file was made from) ends the swap with nothing written
-    (BookChanged). A damaged book is then refused too. `values_ok` (an upgrade): the book's
-    rows that break a CHECK or NOT NULL are no damage, in it and in its kept copy.
+    (BookChanged). A damaged book is then refused too.
+
+    Rows of the book that break a CHECK or NOT NULL (values stored outside sumpbook) are no
+    damage: the book is overwritten as a healthy one, and its kept copy carries them, named
+    (`copy_to`). `values_ok` (a side file proven to carry such rows: an upgrade's, a restored
+    copy that names them): the book as overwritten may hold them too.
     """
     side, book_path = Path(side), Path(book_path)
     kept = None
     if book_path.exists() and book_path.stat().st_size > 0:
         kept = backup_dir(book_path) / f"{book_path.stem}-{why}-{_stamp()}.db"
-        if _healthy(book_path, values_ok):
+        if _healthy(book_path):
             source = read_only(side)  # proven: its pages are copied, nothing run
             try:
                 _overwrite(source, book_path, kept, unchanged, values_ok)
@@ -353,11 +353,11 @@ def _overwrite(
         try:
             if _held_exclusively(book_path):
                 raw.append(os.open(book_path, os.O_RDONLY | getattr(os, "O_BINARY", 0)))
-                _keep_bytes(raw[0], kept, values_ok=values_ok)
+                _keep_bytes(raw[0], kept)
             else:
                 current = connect(book_path, readonly=True)
                 try:
-                    copy_to(current, kept, values_ok=values_ok)
+                    copy_to(current, kept)
                 finally:
                     current.close()
             if unchanged is not None and not unchanged(kept):
@@ -388,6 +388,15 @@ def _overwrite(
         raise BookError(f"{book_path} did not check out after the restore ({ok})")
 
 
+def _carries(side: Path) -> bool:
+    """Whether a proven file names bad values it carries (`carry_bad_rows`)."""
+    conn = read_only(side)
+    try:
+        return carried_rows(conn) is not None
+    finally:
+        conn.close()
+
+
 def _held_exclusively(book_path: Path) -> bool:
     """Rollback-journal mode with our target holding the EXCLUSIVE lock: its journal stands
     beside the book and a reader is refused at once. (In WAL mode a reader always gets in.)"""
@@ -403,8 +412,9 @@ def _held_exclusively(book_path: Path) -> bool:
     return False
 
 
-def _keep_bytes(raw: int, kept: Path, values_ok: bool = False) -> None:
-    """Copy the book's bytes from the open descriptor `raw` to `kept` (a new file), checked."""
+def _keep_bytes(raw: int, kept: Path) -> None:
+    """Copy the book's bytes from the open descriptor `raw` to `kept` (a new file), checked
+    as `copy_to` checks a copy (its bad values, the book's own, named in it)."""
     tmp = kept.with_name(kept.name + ".part")
     try:
         kept.parent.mkdir(parents=True, exist_ok=True)
@@ -417,7 +427,7 @@ def _keep_bytes(raw: int, kept: Path, values_ok: bool = False) -> None:
             os.fsync(out.fileno())
         check = sqlite3.connect(tmp)
         try:
-            ok = check_verdict(check, values_ok)
+            ok = carry_bad_rows(check, None)
         finally:
             check.close()
         if ok != "ok":

@@ -392,7 +392,7 @@ def upgrade_beside(path: Path, version: int) -> list[str]:
         try:
             current = connect(path)  # only reads; closing it last tidies the -wal away
             try:
-                copy_to(current, original, values_ok=True)  # the book's own values
+                copy_to(current, original)  # bad values the book holds named in it
             finally:
                 current.close()
             import shutil  # deferred: only an upgrade copies the file

@@ -17,6 +17,7 @@ version in a database in memory: the same scripts that made (or upgraded) the fi
 
 from __future__ import annotations
 
+import json
 import re
 import sqlite3
 from functools import lru_cache
@@ -92,9 +93,9 @@ def header_findings(path: Path) -> list[str]:
     return []
 
 
-def integrity_findings(conn: sqlite3.Connection) -> list[str]:
+def integrity_findings(conn: sqlite3.Connection, limit: int = MAX_FINDINGS) -> list[str]:
     try:
-        rows = conn.execute(f"PRAGMA integrity_check({MAX_FINDINGS})").fetchall()
+        rows = conn.execute(f"PRAGMA integrity_check({limit})").fetchall()
     except sqlite3.DatabaseError as exc:
         return [f"SQLite cannot read it ({exc})"]
     found = [str(r[0]) for r in rows]
@@ -214,6 +215,7 @@ def prove_file(
     rows_ok: bool = False,
     migrations: list[str] | None = None,
     held: Path | None = None,
+    carried: bool = False,
 ) -> int:
     """The schema version of the file at `path`, proven good; NotALogbook naming `label`
     (how the person knows the file) and everything found otherwise. `rows_ok`: rows that
@@ -221,7 +223,10 @@ def prove_file(
     ours (a merge reads the base tables only, and checks every row itself). `held`: the file
     `path` was upgraded from (at its own version); rows that break a CHECK or NOT NULL are
     let through where it held the very same ones (their keys, table by table): the upgrade
-    carried them as they were, and every reader skips and notes them, as before it."""
+    carried them as they were, and every reader skips and notes them, as before it.
+    `carried` (a restore): such rows are let through where the file names the very same ones
+    itself (`CARRIED_SETTING`, written by `carry_bad_rows` into a copy of a book holding
+    them); a bit flipped in a copy reads as another bad row, or as damage, and is refused."""
     path = Path(path)
     found = header_findings(path)
     version = 0
@@ -233,9 +238,8 @@ def prove_file(
         else:
             try:
                 version, found = prove_connection(conn, migrations)
-                if held is not None and found and all(_ROW_FINDING.match(f) for f in found):
-                    if _carried(conn, version, held, row_findings(found)):
-                        found = text_findings(conn)  # what the row findings kept unread
+                if (held is not None or carried) and found and all(map(_ROW_FINDING.match, found)):
+                    found = _beyond_carried(conn, version, held, carried)
             finally:
                 conn.close()
             if rows_ok:  # what a merge reads: the base tables, each row checked by itself
@@ -260,9 +264,26 @@ def row_findings(findings: list[str]) -> set[str]:
     return {m.group(2) for f in findings if (m := _ROW_FINDING.match(f))}
 
 
-def _carried(conn: sqlite3.Connection, version: int, held: Path, tables: set[str]) -> bool:
-    """Whether every row of `tables` that breaks its constraints in the upgraded file
-    (`conn`, at `version`) is one that broke them in the file it was upgraded from."""
+def _beyond_carried(
+    conn: sqlite3.Connection, version: int, held: Path | None, carried: bool
+) -> list[str]:
+    """What the integrity check finds in the open file beyond rows that break a CHECK or NOT
+    NULL which are carried (`prove_file`'s `held` and `carried`), then what those rows kept
+    unread (`text_findings`). The check runs again without a limit on its findings, so that
+    damage listed after the rows is not missed."""
+    found = integrity_findings(conn, EVERY_FINDING)
+    damage = [f for f in found if not _ROW_FINDING.match(f)]
+    if damage:
+        return damage[:MAX_FINDINGS]
+    rows = bad_row_keys(conn, version, row_findings(found))
+    kept = (held is not None and _held_too(rows, held)) or (carried and rows == carried_rows(conn))
+    if not kept:
+        return found[:MAX_FINDINGS]
+    return text_findings(conn)
+
+
+def _held_too(rows: dict[str, list[str]], held: Path) -> bool:
+    """Whether every row of `rows` (by table) broke its constraints in the file `held` too."""
     try:
         before = checking(held)
     except sqlite3.Error:
@@ -270,13 +291,64 @@ def _carried(conn: sqlite3.Connection, version: int, held: Path, tables: set[str
     try:
         was = before.execute("PRAGMA user_version").fetchone()[0]
         return all(
-            set(bad_rows(conn, table, version, None)) <= set(bad_rows(before, table, was, None))
-            for table in tables
+            set(keys) <= set(bad_rows(before, table, was, None)) for table, keys in rows.items()
         )
     except sqlite3.Error:
         return False
     finally:
         before.close()
+
+
+# A copy of a book that holds rows breaking a CHECK or NOT NULL (values stored outside
+# sumpbook: every reader skips and notes them, and entries stay for good, voided or not)
+# names those rows in its own settings, as {table: [keys]}: a restore of it lets through
+# those rows and no others.
+CARRIED_SETTING = "carried_bad_rows"
+EVERY_FINDING = 1_000_000  # the integrity check's limit where every finding is wanted
+
+
+def bad_row_keys(conn: sqlite3.Connection, version: int, tables: set[str]) -> dict[str, list[str]]:
+    """`bad_rows` of each of `tables`, every one, sorted: {table: [keys]}."""
+    return {t: sorted(bad_rows(conn, t, version, None)) for t in sorted(tables)}
+
+
+def carried_rows(conn: sqlite3.Connection) -> dict[str, list[str]] | None:
+    """The rows a copy names as carried (`CARRIED_SETTING`), or None (none named, or not
+    readable as such)."""
+    try:
+        row = conn.execute("SELECT value FROM settings WHERE key = ?", [CARRIED_SETTING]).fetchone()
+        named = json.loads(row[0]) if row else None
+    except (sqlite3.Error, ValueError, TypeError):
+        return None
+    if not isinstance(named, dict) or not all(
+        isinstance(keys, list) and all(isinstance(k, str) for k in keys) for keys in named.values()
+    ):
+        return None
+    return named
+
+
+def carry_bad_rows(copy: sqlite3.Connection, source: sqlite3.Connection | None) -> str:
+    """The check of a fresh copy of a book (open for writing): "ok", or its first finding.
+    Rows that break a CHECK or NOT NULL pass where `source`, the book the copy was made
+    from, holds the very same ones (None: the copy is the book's bytes), and are then named
+    in the copy (`CARRIED_SETTING`) for a restore to let through. Anything else found, or a
+    bad row the book does not hold, refuses the copy."""
+    found = [str(r[0]) for r in copy.execute(f"PRAGMA quick_check({EVERY_FINDING})")]
+    if found == ["ok"]:
+        return "ok"
+    damage = next((f for f in found if not _ROW_FINDING.match(f)), None)
+    if damage is not None:
+        return damage
+    version = copy.execute("PRAGMA user_version").fetchone()[0]
+    rows = bad_row_keys(copy, version, row_findings(found))
+    if source is not None and rows != bad_row_keys(source, version, set(rows)):
+        return found[0]
+    with copy:
+        copy.execute(
+            "INSERT OR REPLACE INTO settings(key, value) VALUES (?, ?)",
+            [CARRIED_SETTING, json.dumps(rows, sort_keys=True)],
+        )
+    return "ok"
 
 
 def bad_rows(

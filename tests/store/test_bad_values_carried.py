@@ -2,8 +2,13 @@
 edit) opens with that entry skipped and noted; an upgrade to this schema carries the entry
 as it is (its copies and its proof let through the bad values the book held) instead of
 refusing the book. An upgrade that gave a bad value the book did not hold is still refused,
-and a damaged file still is. Backups and restores stay strict: a bit flipped in a copy can
-read as a bad value (tests/store/test_proven_files.py). Common practice, no source."""
+and a damaged file still is.
+
+Backups carry such values too, named in the copy (`proof.CARRIED_SETTING`): entries stay for
+good, voided or not, so a strict copy would refuse every backup of the book from then on.
+A restore lets through the rows a copy names and no others: a bit flipped in a copy reads
+as another bad row or as damage, and is refused (also tests/store/test_proven_files.py).
+Common practice, no source."""
 
 from __future__ import annotations
 
@@ -15,10 +20,18 @@ import pytest
 
 from store.base.errors import BookError, NotALogbook
 from store.db import schema
-from store.db.backup import copy_to
+from store.db.backup import copy_to, rolling_backup
 from store.db.book import open_book
-from store.db.proof import prove_file
+from store.db.places import backup_dir
+from store.db.proof import (
+    CARRIED_SETTING,
+    MAX_FINDINGS,
+    carried_rows,
+    carry_bad_rows,
+    prove_file,
+)
 from store.ledger import journal
+from tests.kit.plant import run_cli
 
 
 def with_bad_value(path: Path, entry_id: str) -> None:
@@ -97,8 +110,147 @@ def test_a_damaged_book_is_not_upgraded(bad, tmp_path):
     assert bad.read_bytes() == damaged  # left as it was
 
 
-def test_a_backup_of_a_book_holding_a_bad_value_stays_strict(bad, tmp_path):
-    # A copy's check cannot tell a hand edit from a flipped bit: a backup refuses both.
+def carried(path: Path) -> dict[str, list[str]] | None:
+    conn = sqlite3.connect(path)
+    try:
+        return carried_rows(conn)
+    finally:
+        conn.close()
+
+
+def test_a_backup_carries_the_bad_values_the_book_holds_and_names_them(bad, tmp_path):
+    before = bad.read_bytes()
     with open_book(bad, create=False) as book:
-        with pytest.raises(BookError, match="did not check out"):
-            copy_to(book.conn, tmp_path / "backup.db")
+        copy = copy_to(book.conn, tmp_path / "backup.db")
+    assert carried(copy) == {"entries": ["bad-00000001"]}
+    assert carried(bad) is None  # nothing written into the book itself
+    assert bad.read_bytes() == before
+    shutil.copy(copy, tmp_path / "opened.db")
+    assert skipped(tmp_path / "opened.db") == ["bad-00000001"]  # the copy reads as the book
+
+
+def test_a_copy_with_a_bad_value_the_book_does_not_hold_is_refused(bad, tmp_path):
+    with open_book(bad, create=False) as book:
+        copy = copy_to(book.conn, tmp_path / "backup.db")
+        with_bad_value(copy, "bad-00000002")  # as a flipped bit could read
+        conn = sqlite3.connect(copy)
+        try:
+            assert carry_bad_rows(conn, book.conn).startswith("CHECK constraint failed")
+            assert carry_bad_rows(conn, None) == "ok"  # the book's bytes: taken as they are
+        finally:
+            conn.close()
+
+
+def test_a_voided_bad_entry_does_not_stop_the_backups(demo_file, tmp_path, capsys):
+    # the way out `sumpbook check` names: void it; the row stays, so must the backups
+    book_path, bad_id = tmp_path / "book.db", "0badc0de-0000-4000-8000-000000000001"
+    shutil.copy(demo_file, book_path)
+    with_bad_value(book_path, bad_id)
+    code, _, err = run_cli(
+        capsys, "--db", str(book_path), "log", "void", bad_id, "--reason", "hand edit",
+        "--by", "AK",
+    )  # fmt: skip
+    assert code == 0, err
+    code, out, err = run_cli(capsys, "--db", str(book_path), "check")
+    assert code == 0 and f"entry {bad_id} breaks a check of the book; it is voided" in out
+    one = tmp_path / "one.db"
+    code, _, err = run_cli(capsys, "--db", str(book_path), "backup", str(one))
+    assert code == 0, err
+    assert carried(one) == {"entries": [bad_id]}
+    with open_book(book_path, create=False) as book:
+        kept = rolling_backup(book.conn, book_path, "on-close")
+    assert carried(kept) == {"entries": [bad_id]}
+
+
+def test_the_backup_restores_with_its_bad_values_even_with_the_book_gone(bad, tmp_path, capsys):
+    with open_book(bad, create=False) as book:
+        copy = copy_to(book.conn, tmp_path / "backup.db")
+    lost = tmp_path / "lost.db"  # the book gone: what a backup is for
+    code, out, err = run_cli(capsys, "--db", str(lost), "restore", str(copy))
+    assert code == 0, err
+    assert skipped(lost) == ["bad-00000001"]
+    code, out, err = run_cli(capsys, "--db", str(bad), "restore", str(copy))  # over the book
+    assert code == 0, err
+    assert skipped(bad) == ["bad-00000001"]
+    kept = sorted(backup_dir(bad).glob("*before-restore*.db"))
+    assert len(kept) == 1 and carried(kept[0]) == {"entries": ["bad-00000001"]}
+
+
+def test_a_restore_refuses_a_carried_copy_with_another_bad_value_or_damage(bad, tmp_path, capsys):
+    with open_book(bad, create=False) as book:
+        copy = copy_to(book.conn, tmp_path / "backup.db")
+    other = tmp_path / "other.db"
+    shutil.copy(copy, other)
+    with_bad_value(other, "bad-00000002")  # a row the copy does not name
+    renamed = tmp_path / "renamed.db"
+    shutil.copy(copy, renamed)
+    conn = sqlite3.connect(renamed)
+    conn.execute(  # the name changed (a flipped bit in the setting): no row is named
+        "UPDATE settings SET value = ? WHERE key = ?",
+        ['{"entries": ["bad-00000003"]}', CARRIED_SETTING],
+    )
+    conn.commit()
+    conn.close()
+    for refused in (other, renamed):
+        before = bad.read_bytes()
+        code, _, err = run_cli(capsys, "--db", str(bad), "restore", str(refused))
+        assert code == 2, err
+        assert "CHECK constraint failed in entries" in err and "was left as it was" in err
+        assert bad.read_bytes() == before
+
+
+def test_the_upgrades_kept_copy_names_the_bad_values_and_restores(bad, tmp_path, capsys):
+    schema_7(bad)
+    assert skipped(bad) == ["bad-00000001"]  # upgraded
+    kept = sorted(backup_dir(bad).glob("*before-v7-upgrade*.db"))
+    assert len(kept) == 1 and carried(kept[0]) == {"entries": ["bad-00000001"]}
+    back = tmp_path / "back.db"
+    code, _, err = run_cli(capsys, "--db", str(back), "restore", str(kept[0]))
+    assert code == 0, err
+    assert skipped(back) == ["bad-00000001"]  # schema 7 again, upgraded as it opens
+
+
+def with_index_astray(path: Path) -> None:
+    """A new entry whose index entry (entries_by_time) is filed under another time: damage
+    that SQLite's integrity check reports as a row missing from the index, after the rows
+    before it (as a bit flipped in an index page could read)."""
+
+    def index_on(column: str) -> None:
+        conn = sqlite3.connect(path, isolation_level=None)
+        version = conn.execute("PRAGMA schema_version").fetchone()[0]
+        conn.execute("PRAGMA writable_schema = ON")
+        conn.execute(
+            "UPDATE sqlite_master SET sql = ? WHERE name = 'entries_by_time'",
+            [f"CREATE INDEX entries_by_time ON entries({column})"],
+        )
+        conn.execute(f"PRAGMA schema_version = {version + 1}")
+        conn.close()
+
+    index_on("logged_utc")
+    conn = sqlite3.connect(path, isolation_level=None)
+    cols = [r[1] for r in conn.execute("PRAGMA table_info(entries)")]
+    row = dict(
+        zip(cols, conn.execute("SELECT * FROM entries WHERE kind = 'note'").fetchone(), strict=True)
+    )
+    row["id"] = "0badc0de-0000-4000-8000-0000000000ff"
+    row["logged_utc"] = conn.execute("SELECT max(at_utc) FROM entries").fetchone()[0]
+    marks = ", ".join("?" for _ in row)
+    conn.execute(f"INSERT INTO entries ({', '.join(row)}) VALUES ({marks})", list(row.values()))
+    conn.close()
+    index_on("at_utc")  # the schema as sumpbook makes it again
+
+
+def test_damage_listed_after_many_carried_rows_is_still_refused(bad, tmp_path, capsys):
+    # The proof's check lists MAX_FINDINGS findings; with that many bad rows ahead of it,
+    # the damage shows only in the check run again in full.
+    for i in range(2, MAX_FINDINGS + 2):
+        with_bad_value(bad, f"bad-{i:08d}")
+    with open_book(bad, create=False) as book:
+        copy = copy_to(book.conn, tmp_path / "backup.db")
+    assert len(carried(copy)["entries"]) == MAX_FINDINGS + 1
+    with_index_astray(copy)
+    before = bad.read_bytes()
+    code, _, err = run_cli(capsys, "--db", str(bad), "restore", str(copy))
+    assert code == 2, err
+    assert "missing from index entries_by_time" in err
+    assert bad.read_bytes() == before
