@@ -242,6 +242,14 @@ def _voidable(book: Book, entry_id: str) -> str:
         raise BookError("a void cannot be voided: log the entry again instead")
     if voided_by is not None:
         raise BookError(f"entry {target_id[:8]} is voided already")
+    try:  # a void names its entry by the id the book writes (the book's own CHECK says so)
+        validate_value.entry_id(target_id)
+    except BookError:
+        raise BookError(
+            f"entry {validate_value.one_line(target_id, 40)} has an id sumpbook does not make "
+            "(it was written outside sumpbook), so no void can name it: listings already "
+            "leave it out; to be rid of it, restore a backup from before it was written"
+        ) from None
     return target_id
 
 
