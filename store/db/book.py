@@ -28,6 +28,7 @@ from store.db.connection import (
     record_damage,
     refuse_known_damage,
     refused_write,
+    row_table,
     writable,
     write_error,
 )
@@ -221,7 +222,7 @@ def full_check(path: Path) -> list[str]:
                 try:
                     version, found = prove_connection(conn)
                     tables = row_findings(found)
-                    found = [f for f in found if not f.startswith(("CHECK ", "NOT NULL "))]
+                    found = [f for f in found if row_table(f) is None]
                     if not found:
                         found = history_findings(conn)
                     if not found:

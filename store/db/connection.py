@@ -4,6 +4,7 @@ and plain words for a write the file refused. Below the book and its backups; bo
 from __future__ import annotations
 
 import os
+import re
 import sqlite3
 from collections.abc import Iterator
 from contextlib import contextmanager
@@ -185,21 +186,33 @@ def is_empty_file(path: Path) -> bool:
     return not path.exists() or path.stat().st_size == 0
 
 
-# quick_check also reports rows that break a CHECK or NOT NULL constraint (a hand-made edit):
-# those are bad values, not a damaged file; readers skip and note them, and they can be voided.
-ROW_FINDINGS = ("CHECK constraint failed", "NOT NULL constraint failed")
+# The checks also report rows that break a CHECK or NOT NULL constraint (a hand-made edit):
+# those are bad values, not a damaged file; readers skip and note them. SQLite words them
+# "CHECK constraint failed in T" and "NULL value in T.C" (3.40; older ones "NOT NULL
+# constraint failed in T"), one line per row.
+_ROW_FINDING = re.compile(
+    r"^(?:(?:CHECK|NOT NULL) constraint failed in (\w+)|NULL value in (\w+)\.)"
+)
+EVERY_FINDING = 1_000_000  # a check's limit where every finding is wanted
+
+
+def row_table(finding: str) -> str | None:
+    """The table a check's finding names when it is a row breaking a CHECK or NOT NULL
+    (a bad value), else None (damage)."""
+    m = _ROW_FINDING.match(finding)
+    return None if m is None else m.group(1) or m.group(2)
 
 
 def check_verdict(conn: sqlite3.Connection, values_ok: bool = False, whole: bool = False) -> str:
     """SQLite's check of the file (`whole`: the integrity check, else the quick check): "ok"
     or its first finding. `values_ok`: rows that break a CHECK or NOT NULL count as sound (a
     bad value the readers skip and note is no damage of the file), and the first other
-    finding is the answer."""
+    finding is the answer (the check reads on past any number of such rows)."""
     check = "integrity_check" if whole else "quick_check"
     if not values_ok:
         return conn.execute(f"PRAGMA {check}(1)" if whole else f"PRAGMA {check}").fetchone()[0]
-    found = [row[0] for row in conn.execute(f"PRAGMA {check}").fetchall()]
-    return next((f for f in found if f != "ok" and not f.startswith(ROW_FINDINGS)), "ok")
+    found = conn.execute(f"PRAGMA {check}({EVERY_FINDING})").fetchall()
+    return next((f for (f,) in found if f != "ok" and row_table(f) is None), "ok")
 
 
 def check_header(

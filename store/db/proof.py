@@ -24,6 +24,7 @@ from functools import lru_cache
 from pathlib import Path
 
 from store.base.errors import NotALogbook, TooNew
+from store.db.connection import EVERY_FINDING, row_table
 from store.db.schema import APPLICATION_ID, MIGRATIONS, SCHEMA_VERSION
 
 SQLITE_MAGIC = b"SQLite format 3\x00"
@@ -120,13 +121,23 @@ def prove_connection(
             f"its schema version {version} is not one this sumpbook knows (1 to {known})"
         ]
     found = integrity_findings(conn)
+    if any(row_table(f) for f in found):  # bad values listed: read on past every one of them
+        found = damage_first(integrity_findings(conn, EVERY_FINDING))
     try:
         found += schema_findings(conn, version, migrations)
         if not found:
             found += text_findings(conn)
     except sqlite3.DatabaseError as exc:
         found.append(f"its schema cannot be read ({exc})")
-    return version, found[:MAX_FINDINGS]
+    damage = [f for f in found if row_table(f) is None]
+    return version, damage[:MAX_FINDINGS] + [f for f in found if row_table(f)]
+
+
+def damage_first(found: list[str]) -> list[str]:
+    """A check's findings with the damage first, then one line for each table holding rows
+    that break a CHECK or NOT NULL (SQLite writes one line per row)."""
+    rows = {row_table(f): f for f in found if row_table(f)}
+    return [f for f in found if row_table(f) is None] + list(rows.values())
 
 
 def text_findings(conn: sqlite3.Connection, limit: int = 3) -> list[str]:
@@ -238,12 +249,12 @@ def prove_file(
         else:
             try:
                 version, found = prove_connection(conn, migrations)
-                if (held is not None or carried) and found and all(map(_ROW_FINDING.match, found)):
-                    found = _beyond_carried(conn, version, held, carried)
+                if (held is not None or carried) and found and all(map(row_table, found)):
+                    found = _beyond_carried(conn, version, held, carried, found)
             finally:
                 conn.close()
             if rows_ok:  # what a merge reads: the base tables, each row checked by itself
-                found = [f for f in found if not _ROW_FINDING.match(f) and not _NOT_READ.match(f)]
+                found = [f for f in found if not row_table(f) and not _NOT_READ.match(f)]
     if found and version > SCHEMA_VERSION and found[0].startswith("its schema version"):
         raise TooNew(
             f"{label} was written by a newer sumpbook (schema {version}, this one knows "
@@ -255,31 +266,23 @@ def prove_file(
 
 
 _NOT_READ = re.compile(r"^(a|the) (index|view|trigger) ")
-_ROW_FINDING = re.compile(r"^(CHECK|NOT NULL) constraint failed in (\w+)")
 
 
 def row_findings(findings: list[str]) -> set[str]:
     """The tables named by the integrity check's row findings (a CHECK or NOT NULL broken
     by a row: a bad value, not a damaged file)."""
-    return {m.group(2) for f in findings if (m := _ROW_FINDING.match(f))}
+    return {t for f in findings if (t := row_table(f))}
 
 
 def _beyond_carried(
-    conn: sqlite3.Connection, version: int, held: Path | None, carried: bool
+    conn: sqlite3.Connection, version: int, held: Path | None, carried: bool, found: list[str]
 ) -> list[str]:
-    """What the integrity check finds in the open file beyond rows that break a CHECK or NOT
-    NULL which are carried (`prove_file`'s `held` and `carried`), then what those rows kept
-    unread (`text_findings`). The check runs again without a limit on its findings, so that
-    damage listed after the rows is not missed."""
-    found = integrity_findings(conn, EVERY_FINDING)
-    damage = [f for f in found if not _ROW_FINDING.match(f)]
-    if damage:
-        return damage[:MAX_FINDINGS]
+    """`found` (only rows that break a CHECK or NOT NULL, every table of them: see
+    `prove_connection`) where those rows are not all carried (`prove_file`'s `held` and
+    `carried`), else what the rows kept unread (`text_findings`)."""
     rows = bad_row_keys(conn, version, row_findings(found))
     kept = (held is not None and _held_too(rows, held)) or (carried and rows == carried_rows(conn))
-    if not kept:
-        return found[:MAX_FINDINGS]
-    return text_findings(conn)
+    return text_findings(conn) if kept else found
 
 
 def _held_too(rows: dict[str, list[str]], held: Path) -> bool:
@@ -304,7 +307,6 @@ def _held_too(rows: dict[str, list[str]], held: Path) -> bool:
 # names those rows in its own settings, as {table: [keys]}: a restore of it lets through
 # those rows and no others.
 CARRIED_SETTING = "carried_bad_rows"
-EVERY_FINDING = 1_000_000  # the integrity check's limit where every finding is wanted
 
 
 def bad_row_keys(conn: sqlite3.Connection, version: int, tables: set[str]) -> dict[str, list[str]]:
@@ -336,7 +338,7 @@ def carry_bad_rows(copy: sqlite3.Connection, source: sqlite3.Connection | None) 
     found = [str(r[0]) for r in copy.execute(f"PRAGMA quick_check({EVERY_FINDING})")]
     if found == ["ok"]:
         return "ok"
-    damage = next((f for f in found if not _ROW_FINDING.match(f)), None)
+    damage = next((f for f in found if row_table(f) is None), None)
     if damage is not None:
         return damage
     version = copy.execute("PRAGMA user_version").fetchone()[0]

@@ -267,3 +267,55 @@ def test_an_entry_with_an_id_sumpbook_does_not_make_is_refused_a_void_in_words(b
     assert "has an id sumpbook does not make" in err and "GLOB" not in err
     assert "Traceback" not in err
     assert bad.read_bytes() == before
+
+
+def with_null_note(path: Path, entry_id: str) -> None:
+    """An entry with no note at all (NULL where the table says NOT NULL), written while the
+    table's definition was loosened by hand and then put back: SQLite's check words it
+    "NULL value in entries.note", not as a constraint that failed."""
+
+    def table_sql(old: str, new: str) -> None:
+        conn = sqlite3.connect(path, isolation_level=None)
+        version = conn.execute("PRAGMA schema_version").fetchone()[0]
+        conn.execute("PRAGMA writable_schema = ON")
+        conn.execute(
+            "UPDATE sqlite_master SET sql = replace(sql, ?, ?) WHERE name = 'entries'", [old, new]
+        )
+        conn.execute(f"PRAGMA schema_version = {version + 1}")
+        conn.close()
+
+    strict, loose = "note TEXT NOT NULL DEFAULT ''", "note TEXT          DEFAULT ''"
+    table_sql(strict, loose)
+    conn = sqlite3.connect(path, isolation_level=None)
+    cols = [r[1] for r in conn.execute("PRAGMA table_info(entries)")]
+    row = dict(
+        zip(cols, conn.execute("SELECT * FROM entries WHERE kind = 'note'").fetchone(), strict=True)
+    )
+    row.update(id=entry_id, note=None)
+    marks = ", ".join("?" for _ in row)
+    conn.execute(f"INSERT INTO entries ({', '.join(row)}) VALUES ({marks})", list(row.values()))
+    conn.close()
+    table_sql(loose, strict)
+
+
+def test_a_null_where_a_value_belongs_is_a_bad_value_not_damage(demo_file, tmp_path, capsys):
+    book_path, null_id = tmp_path / "book.db", "0badc0de-0000-4000-8000-00000000000e"
+    shutil.copy(demo_file, book_path)
+    with_null_note(book_path, null_id)
+    code, _, err = run_cli(capsys, "--db", str(book_path), "check")
+    assert code == 2 and f"entries row {null_id}" in err and "damaged" not in err
+    copy = tmp_path / "copy.db"
+    code, _, err = run_cli(capsys, "--db", str(book_path), "backup", str(copy))
+    assert code == 0, err
+    assert carried(copy) == {"entries": [null_id]}
+    code, _, err = run_cli(capsys, "--db", str(tmp_path / "back.db"), "restore", str(copy))
+    assert code == 0, err
+
+
+def test_check_reads_past_many_bad_rows_to_the_damage(bad, capsys):
+    for i in range(2, MAX_FINDINGS + 2):
+        with_bad_value(bad, f"bad-{i:08d}")
+    with_index_astray(bad)
+    code, _, err = run_cli(capsys, "--db", str(bad), "check")
+    assert code == 2
+    assert "damaged" in err and "missing from index entries_by_time" in err
