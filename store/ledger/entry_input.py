@@ -120,9 +120,12 @@ def build(
             **common,
         )
     if kind == "change":
+        reason = _text(typed, "reason")
+        if not reason:  # no default: it decides how the life counts in the service-life figures
+            raise FieldError("say why the element came out", "reason")
         return ElementChange(
             filter=_text(typed, "filter"),
-            reason=_text(typed, "reason") or "limit",
+            reason=reason,
             condition=_text(typed, "condition"),
             batch=_text(typed, "batch"),
             hours=hours,

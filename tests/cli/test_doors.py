@@ -156,7 +156,8 @@ UNCLEAR_BEFORE = [
     ("log", "note", "x", "--at", "0001-01-01T00:00"),
     ("log", "note", "x", "--at", "9999-12-31T23:59-12:00"),
     ("log", "reading", "D2-R", "--dp", "1", "--at", "1900-01-01T00:00"),
-    ("log", "change", "D2-R", "--at", "1900-01-01T00:00"),
+    ("log", "change", "D2-R", "--reason", "limit", "--at", "1900-01-01T00:00"),
+    ("log", "change", "D2-R"),  # no reason: it decides how the life counts
     ("status", "--as-of", "0001-01-01T00:00"),
     ("export", "--shift", "9999-12-31/night"),
     ("export", "--from", "0001-01-01T00:00"),

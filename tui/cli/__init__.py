@@ -279,7 +279,11 @@ def build_parser(only: str | None = None) -> argparse.ArgumentParser:
     _add_time_and_by(p)
     p = lsub.add_parser("change", help="an element change")
     p.add_argument("tag", help="filter tag")
-    p.add_argument("--reason", default="limit", choices=CHANGE_REASONS)
+    p.add_argument(  # no default: it decides how the life counts (the app's form asks too)
+        "--reason",
+        choices=CHANGE_REASONS,
+        help="why it came out: it decides how its life counts in the service-life figures",
+    )
     p.add_argument("--condition", default="", help="the old element as found")
     p.add_argument("--batch", default="", help="the new element's batch or lot")
     p.add_argument("--hours", help="hour-meter reading")
