@@ -15,6 +15,7 @@ from typing import TYPE_CHECKING, Any
 from store.base.errors import BookError, NotALogbook
 from store.base.timeutil import parse_utc, utc_now, zone
 from store.base.validate import plant_setting
+from store.db import checknote
 from store.db.connection import (
     CHECKED,
     check_header,
@@ -77,7 +78,13 @@ class Book:
         return self._db
 
     def close(self) -> None:
+        """Close the connection. SQLite's last connection to a file folds the -wal into it
+        as it closes: the check note follows the file when this process vouched for it."""
+        key = check_key(self.path)
+        vouch = not self.readonly and key in CHECKED and checknote.unchanged(self.path, key)
         self.conn.close()
+        if vouch:
+            checknote.saved(self.path, key)
 
     def __enter__(self) -> Book:
         return self
@@ -102,8 +109,12 @@ class Book:
             conn.execute("BEGIN IMMEDIATE")
         except sqlite3.Error as exc:
             raise write_error(exc, self.path) from exc
+        key = check_key(self.path)
         try:
             self._refuse_replaced()
+            # under the write lock: is the file as this process (or a check's note) last saw
+            # it? Only then does the check note follow the file past this save.
+            vouch = checknote.unchanged(self.path, key)
             yield
             conn.execute("COMMIT")
         except BaseException as exc:
@@ -123,6 +134,10 @@ class Book:
                     "nothing was saved"
                 ) from exc
             raise
+        if vouch:
+            checknote.saved(self.path, key)
+        else:
+            checknote.forget(key)
 
     def content_stamp(self) -> tuple[object, ...]:
         """Differs from an earlier stamp once anything a screen shows may have changed: a new
@@ -141,8 +156,12 @@ class Book:
         if self.readonly:
             return
         refuse_known_damage(self.path)
-        if check_key(self.path) not in CHECKED:
-            _quick_check(self.conn, self.path)
+        key = check_key(self.path)
+        if key not in CHECKED:
+            if checknote.holds(self.path, key):  # the computer's clock, not the plant's
+                CHECKED.add(key)  # checked as it stands by an earlier process
+            else:
+                _quick_check(self.conn, self.path)
 
     def _refuse_replaced(self) -> None:
         """Under the write lock: the file at `path` is still the one this connection opened (a
@@ -612,6 +631,7 @@ def _quick_check(conn: sqlite3.Connection, path: Path) -> None:
 
 
 def _quick_check_now(conn: sqlite3.Connection, path: Path) -> None:
+    seen = checknote.look(path)  # before: a write during the check makes the note not hold
     try:
         ok = check_verdict(conn, values_ok=True)
     except sqlite3.DatabaseError as exc:
@@ -622,3 +642,4 @@ def _quick_check_now(conn: sqlite3.Connection, path: Path) -> None:
             f"{path} is damaged (quick check: {ok}); nothing was written to it; {backup_hint(path)}"
         )
     CHECKED.add(check_key(path))
+    checknote.checked(path, check_key(path), seen)

@@ -12,6 +12,7 @@ from pathlib import Path
 from urllib.parse import quote
 
 from store.base.errors import BookError, NotALogbook, TooNew
+from store.db import checknote
 from store.db.places import backup_hint, damage_marker
 from store.db.schema import APPLICATION_ID, SCHEMA_VERSION
 
@@ -75,7 +76,9 @@ def damaged_read(exc: sqlite3.DatabaseError, path: Path) -> BookError:
 
 
 def record_damage(path: Path, problem: str) -> None:
-    """Note that a check found `path` damaged (best effort: a read-only folder keeps none)."""
+    """Note that a check found `path` damaged (best effort: a read-only folder keeps none),
+    and drop any note that it was found sound."""
+    checknote.drop(path, check_key(path))
     device, inode = file_id(path) or (0, 0)
     line = f"{device}:{inode} " + problem.replace("\n", " ")[:500]
     try:
@@ -210,9 +213,19 @@ def check_verdict(conn: sqlite3.Connection, values_ok: bool = False, whole: bool
     finding is the answer (the check reads on past any number of such rows)."""
     check = "integrity_check" if whole else "quick_check"
     if not values_ok:
-        return conn.execute(f"PRAGMA {check}(1)" if whole else f"PRAGMA {check}").fetchone()[0]
+        found = conn.execute(f"PRAGMA {check}(1)" if whole else f"PRAGMA {check}").fetchone()[0]
+        return found if found == "ok" else one_line(found)
     found = conn.execute(f"PRAGMA {check}({EVERY_FINDING})").fetchall()
-    return next((f for (f,) in found if f != "ok" and row_table(f) is None), "ok")
+    return one_line(next((f for (f,) in found if f != "ok" and row_table(f) is None), "ok"))
+
+
+def one_line(finding: str) -> str:
+    """A check's finding as one line for a message: SQLite may give one finding as many lines
+    (a damaged page, cell by cell), under a heading naming the database."""
+    lines = [line for line in finding.splitlines() if line and not line.startswith("*** ")]
+    if len(lines) <= 1:
+        return lines[0] if lines else finding.strip()
+    return f"{lines[0]} (and {len(lines) - 1} more)"
 
 
 def check_header(
@@ -261,3 +274,4 @@ CHECKED: set[str] = set()
 def forget_check(path: Path) -> None:
     """The file at `path` was replaced (a restore): check it again before the next write."""
     CHECKED.discard(check_key(path))
+    checknote.drop(path, check_key(path))

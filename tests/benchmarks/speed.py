@@ -29,6 +29,9 @@ Figures (median of several runs where it is cheap):
 8. The long reads with the collector held (`journal._no_gc_pauses`, as the code has it) and
    without, each in a fresh process, in turns: every entry (`journal.read`) and the whole
    plant a week before the book's clock (`--gc-runs N`, 0 leaves it out).
+9. `--only-cli-saves`: `sumpbook log reading` in fresh processes, in turns, with the check note
+   a checked session leaves beside the book and without it (a whole-file check first, as
+   every session's first save ran before the note): seconds each, and the ratio.
 Figure 1 is also given as the process's CPU to the painted list (threads included), less
 moved than the wall time by other work on a shared machine. `--only-app`: figures 1 and 6
 alone, the app and the bare app in turns (a minute or so).
@@ -318,6 +321,47 @@ def _time_cmd(
             return -float(limit_s)  # type: ignore[arg-type]
         times.append(time.perf_counter() - t)
     return statistics.median(times)
+
+
+def cli_saves(path: Path, env: dict[str, str], runs: int) -> dict[str, list[float]]:
+    """`sumpbook log reading` on a copy of the book, a fresh process each time, in turns: with
+    the check note a checked session left (the file as it left it) and without (the note
+    deleted first: the whole-file check before the save, as every session ran it before the
+    note). Wall seconds of each run."""
+    work = Path(tempfile.mkdtemp(prefix="speed-saves-"))
+    book = work / "book.db"
+    shutil.copyfile(path, book)
+    conn = sqlite3.connect(book)
+    tags = [t for (t,) in conn.execute("SELECT tag FROM filters WHERE gauge = 1 "
+                                       "ORDER BY tag LIMIT 20")]  # fmt: skip
+    conn.close()
+    cmd = [sys.executable, "-m", "tui", "--db", str(book), "log", "reading"]
+    out: dict[str, list[float]] = {"noted": [], "checked": []}
+    note = Path(f"{book}.checked")
+    for i in range(2 * runs + 1):
+        which = "checked" if i % 2 == 0 else "noted"
+        if which == "checked":
+            note.unlink(missing_ok=True)
+        t = time.perf_counter()
+        subprocess.run([*cmd, tags[i % len(tags)], "--dp", "0.9", "--temp", "45", "--as-read"],
+                       env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+                       check=True)  # fmt: skip
+        if i:  # the first run makes the note the next one finds
+            out[which].append(time.perf_counter() - t)
+    shutil.rmtree(work, ignore_errors=True)
+    return out
+
+
+def cli_save_lines(saves: dict[str, list[float]]) -> list[str]:
+    noted, checked = _med(saves["noted"]), _med(saves["checked"])
+    return [
+        "",
+        "### A save from the command line (`sumpbook log reading`, a fresh process each)",
+        "",
+        f"With the check note of the session before: {noted:.2f} s (median of "
+        f"{len(saves['noted'])}); with the whole-file check first (no note): {checked:.2f} s "
+        f"(median of {len(saves['checked'])}); {checked / noted:.1f} × faster with the note.",
+    ]
 
 
 def machine() -> dict[str, str]:
@@ -980,6 +1024,9 @@ def main(argv: list[str] | None = None) -> int:
         help="figure 7 also for the code checked out in DIR (with DIR/.venv), e.g. main",
     )  # fmt: skip
     parser.add_argument("--only-later", action="store_true", help="figure 7 alone")
+    parser.add_argument("--only-cli-saves", action="store_true",
+                        help="saves from the command line with and without the check note "
+                        "(figure 9) alone")  # fmt: skip
     parser.add_argument(
         "--only-export", action="store_true",
         help="figure 3 alone (and, with --compare, the `cmp` of the outputs)",
@@ -1036,6 +1083,12 @@ def main(argv: list[str] | None = None) -> int:
             )
         count = max(args.saves, 2)
         text = "\n".join(save_cpu_lines(save_cpu(books, env, args.runs, count), args.runs, count))
+        args.out.write_text(text + "\n", encoding="utf-8")
+        print(text)
+        shutil.rmtree(home, ignore_errors=True)
+        return 0
+    if args.only_cli_saves:
+        text = "\n".join(cli_save_lines(cli_saves(path, env, args.runs)))
         args.out.write_text(text + "\n", encoding="utf-8")
         print(text)
         shutil.rmtree(home, ignore_errors=True)
