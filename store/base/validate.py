@@ -285,6 +285,15 @@ _KIND_NEEDS = {
 _KIND_REASONS = {"change": CHANGE_REASONS, "breather": BREATHER_REASONS}
 
 
+def voidable(value: Any) -> bool:
+    """Whether a void can name an entry of this id (one the book writes: `entry_id`)."""
+    try:
+        entry_id(value)
+    except BookError:
+        return False
+    return True
+
+
 def entry_id(value: Any) -> str:
     """An entry id as the book writes them: a UUID in its 36-character lower-case form."""
     if isinstance(value, str) and len(value) == 36:

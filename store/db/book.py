@@ -14,7 +14,7 @@ from typing import TYPE_CHECKING, Any
 
 from store.base.errors import BookError, NotALogbook
 from store.base.timeutil import parse_utc, utc_now, zone
-from store.base.validate import plant_setting
+from store.base.validate import plant_setting, voidable
 from store.db import checknote
 from store.db.connection import (
     CHECKED,
@@ -266,19 +266,32 @@ def full_check(path: Path) -> list[str]:
             "(SQLite skips them on a read-only connection); copy it somewhere writable to"
             " test them"
         )
-    open_rows = []
+    to_void, to_restore = [], []
     for table, keys in bad.items():
         for key in keys:
             if table == "entries" and key in voided:
                 notes.append(f"entry {key} breaks a check of the book; it is voided and left out")
-            else:
-                open_rows.append(f"{table} row {key}")
-    if open_rows:
+            elif table == "entries" and voidable(key):
+                to_void.append(f"entries row {key}")
+            else:  # a register row, or an entry whose id no void can name
+                to_restore.append(f"{table} row {key}")
+    if to_void or to_restore:
+        if not to_restore:
+            way = "void them with 'sumpbook log void ID --reason ...', or restore a backup"
+        else:
+            way = (
+                (
+                    f"void {', '.join(to_void)} with 'sumpbook log void ID --reason ...'; "
+                    if to_void
+                    else ""
+                )
+                + f"no void can name {'the others' if to_void else 'them'} (a register row, "
+                "or an id sumpbook does not make): restore a backup from before they were written"
+            )
         raise BookError(
             f"{path} holds rows that break the book's checks (made outside sumpbook): "
-            + ", ".join(open_rows)
-            + "; listings leave them out; void an entry with 'sumpbook log void ID --reason "
-            "...', or restore a backup (" + backup_hint(path) + ")"
+            f"{', '.join(to_void + to_restore)}; listings leave them out; {way} "
+            f"({backup_hint(path)})"
         )
     return notes
 

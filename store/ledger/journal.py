@@ -384,8 +384,25 @@ def unreadable_report(book: Book) -> str | None:
     more = f"; and {len(items) - 5} more" if len(items) > 5 else ""
     return (
         f"{len(items)} {'entry' if len(items) == 1 else 'entries'} could not be read and "
-        f"{'was' if len(items) == 1 else 'were'} left out ({shown}{more}); void "
-        f"{'it' if len(items) == 1 else 'them'} with 'sumpbook log void ID --reason ...'"
+        f"{'was' if len(items) == 1 else 'were'} left out ({shown}{more}); "
+        + way_out([entry_id for entry_id, _ in items])
+    )
+
+
+def way_out(entry_ids: Sequence[str]) -> str:
+    """What to do about entries that cannot be read: a void where one can name them, else a
+    backup from before they were written (an id sumpbook does not make)."""
+    if all(validate_value.voidable(i) for i in entry_ids):
+        return f"void {'it' if len(entry_ids) == 1 else 'them'} with 'sumpbook log void ID --reason ...'"
+    if not any(validate_value.voidable(i) for i in entry_ids):
+        return (
+            f"{'its id was' if len(entry_ids) == 1 else 'their ids were'} written outside "
+            "sumpbook, so no void can name "
+            f"{'it' if len(entry_ids) == 1 else 'them'}: restore a backup from before"
+        )
+    return (
+        "void those whose ids sumpbook made with 'sumpbook log void ID --reason ...'; no void "
+        "can name the others (ids written outside sumpbook): restore a backup from before"
     )
 
 
@@ -434,8 +451,8 @@ def find_entry(book: Book, entry_id: str) -> Entry:
         return _entry(rows[0])
     except ROW_ERRORS as exc:
         raise BookError(
-            f"entry {rows[0][_ID][:8]} cannot be read ({validate_value.one_line(_row_problem(exc), 80)})"
-            ": void it with 'sumpbook log void ID --reason ...'"
+            f"entry {validate_value.one_line(str(rows[0][_ID]), 36)[:8]} cannot be read "
+            f"({validate_value.one_line(_row_problem(exc), 80)}): {way_out([rows[0][_ID]])}"
         ) from exc
 
 

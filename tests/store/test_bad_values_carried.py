@@ -319,3 +319,30 @@ def test_check_reads_past_many_bad_rows_to_the_damage(bad, capsys):
     code, _, err = run_cli(capsys, "--db", str(bad), "check")
     assert code == 2
     assert "damaged" in err and "missing from index entries_by_time" in err
+
+
+def test_check_says_which_rows_a_void_can_take_and_which_need_a_backup(bad, capsys):
+    # `bad-00000001` has an id sumpbook does not make: no void can name it (the void refuses
+    # it in words, above), so `check` must not send the technician there
+    code, _, err = run_cli(capsys, "--db", str(bad), "check")
+    assert code == 2 and "entries row bad-00000001" in err
+    assert "no void can name them" in err and "void them with" not in err
+    mine = "0badc0de-0000-4000-8000-000000000001"  # the form sumpbook writes
+    with_bad_value(bad, mine)
+    code, _, err = run_cli(capsys, "--db", str(bad), "check")
+    assert f"void entries row {mine} with 'sumpbook log void ID" in err
+    assert "no void can name the others" in err
+    code, out, err = run_cli(
+        capsys, "--db", str(bad), "log", "void", mine[:13], "--reason", "hand edit", "--by", "AK"
+    )
+    assert code == 0, err
+
+
+def test_an_entry_that_cannot_be_read_names_the_way_out_it_can_take(bad):
+    with open_book(bad, create=False) as book:
+        with pytest.raises(BookError, match="no void can name it") as found:
+            journal.find_entry(book, "bad-00000001")
+        assert "void it with" not in str(found.value)
+    mine = "0badc0de-0000-4000-8000-000000000001"  # the form sumpbook writes
+    assert journal.way_out([mine]) == "void it with 'sumpbook log void ID --reason ...'"
+    assert "void those whose ids sumpbook made" in journal.way_out([mine, "bad-00000001"])
