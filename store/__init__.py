@@ -17,7 +17,7 @@ only through the names below; everything else they take from the upper layers di
 from typing import TYPE_CHECKING, Any
 
 if TYPE_CHECKING:
-    from store.db.backup import copy_holding_lock, restore, rolling_backup
+    from store.db.backup import carried_in, copy_holding_lock, restore, rolling_backup
     from store.db.book import Book, deep_check, full_check, open_book
     from store.db.connection import damaged_read
     from store.db.targets import refuse_input_as_output
@@ -34,6 +34,7 @@ _DOOR = {
     "damaged_read": "store.db.connection",
     "refuse_input_as_output": "store.db.targets",
     "copy_holding_lock": "store.db.backup",
+    "carried_in": "store.db.backup",
     "restore": "store.db.backup",
     "rolling_backup": "store.db.backup",
 }
@@ -52,6 +53,7 @@ def __getattr__(name: str) -> Any:
 __all__ = [
     "refuse_input_as_output",
     "Book",
+    "carried_in",
     "copy_holding_lock",
     "damaged_read",
     "deep_check",

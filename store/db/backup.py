@@ -119,6 +119,16 @@ def copy_holding_lock(conn: sqlite3.Connection, book_path: Path, dest: Path) -> 
         lock.close()
 
 
+def carried_in(copy: Path) -> dict[str, list[str]]:
+    """The rows breaking the book's checks that a copy carries as the book held them (named
+    in it by `carry_bad_rows`), by table; empty for none."""
+    conn = read_only(copy)
+    try:
+        return carried_rows(conn) or {}
+    finally:
+        conn.close()
+
+
 def rolling_backup(
     conn: sqlite3.Connection, book_path: Path, why: str, keep: int | None = None
 ) -> Path:

@@ -154,9 +154,14 @@ def test_a_voided_bad_entry_does_not_stop_the_backups(demo_file, tmp_path, capsy
     code, out, err = run_cli(capsys, "--db", str(book_path), "check")
     assert code == 0 and f"entry {bad_id} breaks a check of the book; it is voided" in out
     one = tmp_path / "one.db"
-    code, _, err = run_cli(capsys, "--db", str(book_path), "backup", str(one))
+    code, out, err = run_cli(capsys, "--db", str(book_path), "backup", str(one))
     assert code == 0, err
     assert carried(one) == {"entries": [bad_id]}
+    # said, not only written into the copy
+    assert (
+        f"it carries 1 row breaking the book's checks, as the book holds them (entries row {bad_id})"
+        in out + err
+    )
     with open_book(book_path, create=False) as book:
         kept = rolling_backup(book.conn, book_path, "on-close")
     assert carried(kept) == {"entries": [bad_id]}

@@ -586,6 +586,16 @@ def cmd_backup(args: argparse.Namespace) -> int:
     with _book(args) as book:
         dest = store.copy_holding_lock(book.conn, book.path, args.dest)
     say(f"backup written to {dest}")
+    carried = [
+        f"{table} row {key}" for table, keys in store.carried_in(dest).items() for key in keys
+    ]
+    if carried:
+        say(
+            f"it carries {len(carried)} {'row' if len(carried) == 1 else 'rows'} breaking the "
+            f"book's checks, as the book holds them ({', '.join(carried[:5])}"
+            + (f" and {len(carried) - 5} more" if len(carried) > 5 else "")
+            + "): 'sumpbook check' says what to do about them"
+        )
     return 0
 
 
