@@ -93,6 +93,19 @@ def test_log_every_kind_and_list(plant, capsys):
     assert entries(db) == 6
 
 
+def test_the_saved_line_says_the_note_as_typed_back(plant, capsys):
+    code, out, _ = run(capsys, "--db", plant, "log", "note", "hose weeps", "--unit", "P1")
+    assert code == 0 and out.strip().endswith('by AB: "hose weeps"')
+    code, out, err = run(
+        capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "1.1", "--note",
+        "glass cracked\nreplace it",
+    )  # fmt: skip
+    assert code == 0, err
+    # one line: the note's line break shown as a mark (control characters are refused)
+    assert out.count("\n") == 1
+    assert 'ΔP 1.10 bar; note "glass cracked␊replace it"' in out
+
+
 def test_void_through_the_cli(plant, capsys):
     _, out, _ = run(capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "9")
     entry_id = out.split()[2]

@@ -10,7 +10,7 @@ from rich.text import Text
 
 from store import Book
 from store.base.prefs import Prefs
-from store.base.text import inert
+from store.base.text import inert, inert_line
 from store.base.timeutil import local_text
 from store.base.units import pressure_label
 from store.health.conditions import contexts, normalise
@@ -123,10 +123,16 @@ def _target_code(book: Book, entry: Entry) -> str | None:
 
 
 def saved_line(book: Book, entry: Entry, prefs: Prefs) -> str:
+    """What was saved, as the technician typed it back: its values and its note's text (made
+    harmless for the terminal, on one line)."""
     target = entry.target or entry.unit or ""
+    what = describe(entry, prefs, _target_code(book, entry))
+    said = inert_line(entry.note or "").strip()
+    if said:
+        what = f'"{said}"' if isinstance(entry, Note) else f'{what}; note "{said}"'
     return (
         f"saved {entry.kind} {entry.id[:8]} {target} {when(entry.at, book.local_zone())} by {entry.by}: "
-        f"{describe(entry, prefs, _target_code(book, entry))}"
+        f"{what}"
     )
 
 
