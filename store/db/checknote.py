@@ -43,6 +43,9 @@ def look(path: Path) -> str:
         except FileNotFoundError:
             parts.append("-")
             continue
+        except OSError:  # cannot be looked at: matches no note (never a failed save)
+            parts.append("?")
+            continue
         if st.st_size == 0 and name != str(path):
             parts.append("-")
             continue
@@ -77,7 +80,7 @@ def holds(path: Path, key: str, now: datetime | None = None) -> bool:
     if found is None:
         return False
     seen, checked_at = found
-    if seen != look(path) or not _fresh(checked_at, now or datetime.now(UTC)):
+    if "?" in seen or seen != look(path) or not _fresh(checked_at, now or datetime.now(UTC)):
         return False
     with _lock:
         _VOUCHED[key] = (seen, checked_at)
@@ -97,6 +100,8 @@ def unchanged(path: Path, key: str) -> bool:
     """Before a save (under the write lock): the file looks as this process last vouched
     for it, or as a note of another process that checked it says."""
     now_look = look(path)
+    if "?" in now_look:
+        return False
     with _lock:
         mine = _VOUCHED.get(key)
     if mine is not None and mine[0] == now_look:

@@ -189,3 +189,13 @@ def test_a_finding_of_many_lines_is_said_in_one():
     )
     assert one_line(finding) == "On tree page 20001 cell 25: Rowid 7246 out of order (and 2 more)"
     assert one_line("row 3 missing from index x") == "row 3 missing from index x"
+
+
+def test_a_file_that_cannot_be_looked_at_matches_no_note(tmp_path):
+    # stat fails with an error other than "no such file" (here: a file used as a folder)
+    odd = tmp_path / "plain-file"
+    odd.write_text("x", encoding="utf-8")
+    path = odd / "plant.db"
+    assert checknote.look(path) == "? ?"
+    assert not checknote.unchanged(path, "odd")  # a save goes on, vouching for nothing
+    assert not checknote.holds(path, "odd")
