@@ -30,6 +30,7 @@ from store.ledger.entries import (
 from store.ledger.register import Breather, FilterPosition, Fluid, Technician, Unit
 from store.physics.cleanliness import compare_to_target, parse_code
 from store.rounds import Round
+from tui.base import dates
 from tui.base.quantities import pressure, temperature, volume
 from tui.base.tables import LeanTable
 
@@ -308,10 +309,8 @@ class LocalDays:
         return when(moment, self.zone)
 
     def due_text(self, due) -> str:  # noqa: ANN001 - status_model.Due | None
-        if due is None:
-            return "–"
-        last = self._day(due.latest, "%Y") if due.latest else "open"
-        return f"{self._day(due.earliest, '%Y')}–{last} (likely {self._day(due.likely, '%Y')})"
+        """The due window as the app writes it (`tui.base.dates.due_text`)."""
+        return dates.due_text(due, self.zone, self.this_year)
 
     def short_due(self, due) -> str:  # noqa: ANN001 - status_model.Due
         """'16 Dec (10 Dec–11 Jan)': the likely day first, the years only where not this one."""

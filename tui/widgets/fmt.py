@@ -19,6 +19,7 @@ from store.base.text import inert
 from store.base.units import from_bar, from_c, from_l
 from store.health.status_model import FLAG_WORDS, URGENT_FLAGS, Due
 from store.health.urgency import NOTICE_FLAGS
+from tui.base import dates
 from tui.base.quantities import (  # noqa: F401 - the app's widgets take them from here
     p_digits,
     p_unit,
@@ -82,11 +83,13 @@ def input_volume(value_l: float | None, prefs: Prefs) -> str:
 clock: Callable[[], datetime] = partial(datetime.now, UTC)
 
 
+def _year(local: tzinfo, now: datetime | None) -> int:
+    return (now or clock()).astimezone(local).year
+
+
 def _date(moment: datetime, local: tzinfo, now: datetime | None) -> str:
     """'13 May', or '16 May 2028' when the day is in another year than today."""
-    here = moment.astimezone(local)
-    today = (now or clock()).astimezone(local)
-    return f"{here:%d %b}" if here.year == today.year else f"{here:%d %b %Y}"
+    return dates.day_text(moment, local, _year(local, now))
 
 
 def day(moment: datetime | None, local: tzinfo, now: datetime | None = None) -> str:
@@ -143,25 +146,8 @@ def read_again_text(moment: datetime | None, rule: str, local: tzinfo) -> str:
 
 
 def due_text(due: Due | None, local: tzinfo, now: datetime | None = None) -> str:
-    """'12–15 May (likely 13 May)' for lines with room; an open end says so; days in
-    another year show their year."""
-    if due is None:
-        return "–"
-    first, likely = due.earliest.astimezone(local), due.likely.astimezone(local)
-    sure = _date(likely, local, now)
-    if due.latest is None:
-        return f"from {_date(first, local, now)} (likely {sure}, no upper bound yet)"
-    last = due.latest.astimezone(local)
-    if first.date() == last.date():
-        return sure
-    end = _date(last, local, now)
-    if first.year != last.year:
-        left = _date(first, local, now)
-    elif first.month != last.month:
-        left = f"{first:%d %b}"
-    else:
-        left = f"{first:%d}"
-    return f"{left}–{end} (likely {sure})"
+    """'12–15 May (likely 13 May)' for lines with room (`tui.base.dates.due_text`)."""
+    return dates.due_text(due, local, _year(local, now))
 
 
 def flag_text(flags: Sequence[str]) -> Text:
