@@ -609,8 +609,15 @@ def deep_check(path: Path) -> None:
 
     Not the full integrity check (`full_check`, `sumpbook check`): that one also compares
     every index with its table and took 10x as long on the 1.4 GB benchmark book (114 s
-    against 11 s on a busy 2-core machine), too long to run behind every start."""
-    if check_key(path) in CHECKED:
+    against 11 s on a busy 2-core machine), too long to run behind every start.
+
+    A file that looks exactly as a checked session left it, less than a day ago (the check
+    note, store/db/checknote.py), is taken as checked."""
+    key = check_key(path)
+    if key in CHECKED:
+        return
+    if checknote.holds(path, key):  # as a checked session left it, less than a day ago
+        CHECKED.add(key)
         return
     conn = _checking_connection(path, readonly=True)
     try:

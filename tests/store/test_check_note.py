@@ -199,3 +199,21 @@ def test_a_file_that_cannot_be_looked_at_matches_no_note(tmp_path):
     assert checknote.look(path) == "? ?"
     assert not checknote.unchanged(path, "odd")  # a save goes on, vouching for nothing
     assert not checknote.holds(path, "odd")
+
+
+def test_the_apps_check_behind_its_list_takes_the_note_too(book_path, checks):
+    from store.db.book import deep_check
+
+    deep_check(book_path)  # the app's first start: checks, notes
+    assert checks == [book_path] and check_note(book_path).exists()
+    _new_process(book_path)
+    deep_check(book_path)  # the next start: the file as it was left
+    _save(book_path)  # and its first save does not wait for a check either
+    assert checks == [book_path]
+    _new_process(book_path)
+    conn = sqlite3.connect(book_path)
+    with conn:
+        conn.execute("INSERT OR REPLACE INTO settings(key, value) VALUES ('name', 'By hand')")
+    conn.close()
+    deep_check(book_path)
+    assert checks == [book_path, book_path]
