@@ -227,6 +227,7 @@ def full_check(path: Path) -> list[str]:
     if not path.is_file():
         raise BookError(f"no logbook at {path}")
     notes: list[str] = []
+    seen = checknote.look(path)  # before: a write during the check makes its note not hold
     with no_new_side_files(path):
         inspect(path)
         found = header_findings(path)
@@ -260,6 +261,7 @@ def full_check(path: Path) -> list[str]:
             )
     clear_damage(path)
     CHECKED.add(check_key(path))
+    checknote.checked(path, check_key(path), seen)
     if not writable(path):  # proof.checking fell back to a read-only connection
         notes.append(
             "the file is write-protected, so its CHECK constraints were not tested again "

@@ -217,3 +217,11 @@ def test_the_apps_check_behind_its_list_takes_the_note_too(book_path, checks):
     conn.close()
     deep_check(book_path)
     assert checks == [book_path, book_path]
+
+
+def test_a_passed_full_check_notes_the_file_too(book_path, checks, capsys):
+    assert run(capsys, "--db", str(book_path), "check")[0] == 0
+    assert check_note(book_path).exists()
+    _new_process(book_path)
+    _save(book_path)
+    assert checks == []  # the full check vouched for it: no quick check after it
