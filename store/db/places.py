@@ -51,10 +51,13 @@ def backup_hint(path: Path) -> str:
     return f"the latest backup is {latest}: sumpbook restore '{latest}'"
 
 
+CHECK_SUFFIX = ".checked"
+
+
 def check_note(path: Path) -> Path:
     """The file beside the logbook that says it passed the whole-file check as it stands
     (store/db/checknote.py)."""
-    return Path(f"{path}.checked")
+    return Path(f"{path}{CHECK_SUFFIX}")
 
 
 DAMAGE_SUFFIX = ".damaged"

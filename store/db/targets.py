@@ -1,6 +1,6 @@
 """Where an output may go: never onto an input. Export and backup write new files; these
 refuse a target that is the live logbook, one of its companion files (-wal, -shm,
--journal, the damage record), one of its backups, or any existing SQLite file."""
+-journal, the damage record, the check note), one of its backups, or any existing SQLite file."""
 
 from __future__ import annotations
 
@@ -8,10 +8,10 @@ import os
 from pathlib import Path
 
 from store.base.errors import BookError
-from store.db.places import DAMAGE_SUFFIX, backup_dir
+from store.db.places import CHECK_SUFFIX, DAMAGE_SUFFIX, backup_dir
 
 SQLITE_MAGIC = b"SQLite format 3\x00"
-_COMPANIONS = ("-wal", "-shm", "-journal", DAMAGE_SUFFIX, ".incoming", ".loading")
+_COMPANIONS = ("-wal", "-shm", "-journal", DAMAGE_SUFFIX, CHECK_SUFFIX, ".incoming", ".loading")
 
 
 def _real(path: Path) -> Path:

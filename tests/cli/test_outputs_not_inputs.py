@@ -26,6 +26,7 @@ def _targets(live: Path, tmp_path: Path) -> list[Path]:
         Path(f"{live}-wal"),
         Path(f"{live}-journal"),
         Path(f"{live}-shm"),
+        Path(f"{live}.checked"),  # the check note (store/db/checknote.py)
         tmp_path / "kept.db",
         backups / "b-20260101T000000000000Z-on-close.db",
         other,
