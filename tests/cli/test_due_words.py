@@ -44,3 +44,11 @@ def test_the_app_and_the_command_line_write_a_due_window_alike(earliest, likely,
 
 def test_no_due_is_a_dash_in_both():
     assert fmt.due_text(None, BERLIN, NOW) == LocalDays(BERLIN, 2026).due_text(None) == "–"
+
+
+def test_a_breathers_due_day_shows_its_year_only_when_not_this_one():
+    days = LocalDays(BERLIN, 2026)
+    assert days.due_day(_utc("2026-11-05T10:00")) == fmt.day(_utc("2026-11-05T10:00"), BERLIN, NOW)
+    assert days.due_day(_utc("2026-11-05T10:00")) == "05 Nov"
+    assert days.due_day(_utc("2027-01-30T10:00")) == "30 Jan 2027"
+    assert days.due_day(None) == "–"

@@ -321,7 +321,8 @@ class LocalDays:
         return f"{self._day(due.likely, '%y')} ({first}–{last})"
 
     def due_day(self, moment: datetime | None) -> str:
-        return f"{moment.astimezone(self.zone):%d %b %Y}" if moment else "–"
+        """A due day as the app writes it: its year only when not this one."""
+        return dates.day_text(moment, self.zone, self.this_year) if moment else "–"
 
     def _day(self, moment: datetime, year: str) -> str:
         local = moment.astimezone(self.zone)

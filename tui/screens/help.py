@@ -50,7 +50,7 @@ COLUMNS = (
     (
         "Due",
         "likely day, then how many days earlier / later it may come (13 May −1/+2d); "
-        "a day more than half a year away also shows its year; OVERDUE when the likely "
+        "a day in another year than today also shows its year; OVERDUE when the likely "
         "day has passed or the limit is reached",
     ),
     ("Limit", "latest reference ΔP as a share of the change limit"),
