@@ -104,6 +104,10 @@ def test_the_saved_line_says_the_note_as_typed_back(plant, capsys):
     # one line: the note's line break shown as a mark (control characters are refused)
     assert out.count("\n") == 1
     assert 'ΔP 1.10 bar; note "glass cracked␊replace it"' in out
+    long = "weep at the fitting " * 30  # 600 characters
+    code, out, _ = run(capsys, "--db", plant, "log", "note", long, "--unit", "P1")
+    said = out.split(": ", 1)[1].strip()
+    assert code == 0 and len(said) == 202 and said.endswith('…"')  # 200 and the quotes
 
 
 def test_void_through_the_cli(plant, capsys):

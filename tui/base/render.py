@@ -123,12 +123,17 @@ def _target_code(book: Book, entry: Entry) -> str | None:
     return unit.target_code if unit else None
 
 
+SAID_BACK = 200  # characters of a note the saved line says back
+
+
 def saved_line(book: Book, entry: Entry, prefs: Prefs) -> str:
     """What was saved, as the technician typed it back: its values and its note's text (made
     harmless for the terminal, on one line)."""
     target = entry.target or entry.unit or ""
     what = describe(entry, prefs, _target_code(book, entry))
     said = inert_line(entry.note or "").strip()
+    if len(said) > SAID_BACK:
+        said = said[: SAID_BACK - 1] + "…"  # the whole note is in the book and the listing
     if said:
         what = f'"{said}"' if isinstance(entry, Note) else f'{what}; note "{said}"'
     return (
