@@ -3,9 +3,10 @@ quick check: so that the next process's first write does not read every page aga
 
 A process checks a book once before its first write (`Book.ensure_checked`): seconds on a
 big plant, paid by every `sumpbook log` before this note. The note holds what the file
-looked like to the operating system after the check, or after a later save of a process
-that had checked it (or met a note that held): device, inode, size, change and modification
-times of the book and of its `-wal`. A process whose first write finds the file looking
+looked like to the operating system as the check found it (taken before the check began, so
+that a write during it makes the note not hold), or after a later save of a process that had
+checked it (or met a note that held): device, inode, size, change and modification times of
+the book and of its `-wal`. A process whose first write finds the file looking
 exactly so takes the note's word; any other look (another program wrote to it, copied over
 it, damaged it, put it back with its old modification time) and it checks again.
 
@@ -133,8 +134,8 @@ def forget(key: str) -> None:
 
 
 def drop(path: Path, key: str) -> None:
-    """No note, nothing vouched for (a restore put another file there, a check found damage,
-    or the file changed under a save)."""
+    """No note, nothing vouched for (a restore put another file there, or a check found
+    damage)."""
     forget(key)
     try:
         check_note(path).unlink(missing_ok=True)
