@@ -110,6 +110,14 @@ def test_the_saved_line_says_the_note_as_typed_back(plant, capsys):
     assert code == 0 and len(said) == 202 and said.endswith('…"')  # 200 and the quotes
 
 
+def test_a_top_up_on_the_command_line_ends_with_its_caution(plant, capsys):
+    # common practice, no source: an opened reservoir may be pressurised and hot
+    code, out, _ = run(capsys, "--db", plant, "log", "topup", "P1", "--volume", "5",
+                       "--filtered", "3")  # fmt: skip
+    assert code == 0
+    assert out.splitlines()[-1].startswith("Safety: vent a pressurised reservoir")
+
+
 def test_void_through_the_cli(plant, capsys):
     _, out, _ = run(capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "9")
     entry_id = out.split()[2]

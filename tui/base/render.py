@@ -39,6 +39,10 @@ CAUTION_SHORT = (
     "eye and skin protection, never feel for leaks by hand. The maker's manual and site "
     "procedures rule."
 )
+TOPUP_CAUTION_SHORT = (
+    "Safety: vent a pressurised reservoir to zero before opening it; hot oil and tank walls "
+    "burn. The maker's manual and site procedures rule."
+)
 
 
 def _add_row(table: Table, *cells: object, style: str = "") -> None:

@@ -350,6 +350,8 @@ def cmd_log(args: argparse.Namespace) -> int:
                 say(f"CAUTION: {caution}")
         if kind in ("change", "breather"):
             say(_render().CAUTION_SHORT)
+        elif kind == "topup":
+            say(_render().TOPUP_CAUTION_SHORT)
     return 0
 
 

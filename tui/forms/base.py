@@ -142,6 +142,8 @@ class EntryForm(SavesAtKey, ModalScreen[Saved | None]):
     heading = "Entry"
     kind = ""  # the entry kind (Entry.kind) this form builds
     caution = False
+    # a caution shown without a tick: the work the entry records carries hazards of its own
+    caution_text = ""
     first = ""
     # words in a refusal -> the field it is about (see fault_field); forms add their own
     clues: dict[str, str] = {
@@ -247,11 +249,13 @@ class EntryForm(SavesAtKey, ModalScreen[Saved | None]):
         except (BookError, sqlite3.Error, OSError) as exc:
             specs, self.first = [], ""
             self.load_problem = f"The form could not be filled: {write_problem(exc)}"
-        classes = "form-box -caution" if self.caution else "form-box"
+        classes = "form-box -caution" if self.caution or self.caution_text else "form-box"
         with Vertical(id="form-box", classes=classes):
             yield Static(self.heading, id="form-title", classes="form-title", markup=False)
             if self.caution:
                 yield Caution()
+            elif self.caution_text:
+                yield Caution(self.caution_text)
             with VerticalScroll(id="form-fields"):
                 for spec in specs:
                     yield FieldRow(spec)

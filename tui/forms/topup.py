@@ -6,6 +6,7 @@ from store.ledger.register import Fluid, Unit, find, list_all
 from tui.forms.base import EntryForm
 from tui.forms.validators import RangeValidator, VolumeValidator
 from tui.widgets import fmt
+from tui.widgets.caution import TOPUP_CAUTION_TEXT
 from tui.widgets.field import Spec
 
 HOW = [("through a filter cart", "filtered"), ("unfiltered (from the drum)", "unfiltered")]
@@ -14,6 +15,7 @@ HOW = [("through a filter cart", "filtered"), ("unfiltered (from the drum)", "un
 class TopUpForm(EntryForm):
     kind = "topup"
     heading = "Top-up"
+    caution_text = TOPUP_CAUTION_TEXT
 
     def specs(self) -> list[Spec]:
         book, prefs = self.sb.book, self.sb.prefs

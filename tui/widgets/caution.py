@@ -1,4 +1,5 @@
-"""The safety block shown before an element change or a breather swap."""
+"""The safety blocks: before an element change or a breather swap (acknowledged with a tick),
+and on a top-up (shown, no tick)."""
 
 from __future__ import annotations
 
@@ -11,6 +12,13 @@ CAUTION_TEXT = (
     "• Never feel for leaks by hand: injected oil needs emergency care.\n"
     "• Catch spilt oil; dispose of it and the old element properly.\n"
     "• The maker's manual, site procedures and local rules come first."
+)
+
+TOPUP_CAUTION_TEXT = (  # each line within an 80-column form
+    "TOPPING UP (the maker's manual and site rules come first):\n"
+    "• Vent a pressurised reservoir to zero before its cap comes off.\n"
+    "• Hot oil and tank walls burn: eye protection, oil-proof gloves.\n"
+    "• Fill through a filter, from clean closed cans of the unit's fluid."
 )
 
 
