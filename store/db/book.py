@@ -152,16 +152,12 @@ class Book:
     def ensure_checked(self) -> None:
         """Before a write: refuse a book known to be damaged (a check of any process found
         damage: `damage_marker`), and run the whole-file quick check once per process before
-        the first write (see `deep_check`); damage raises NotALogbook, nothing is written."""
+        the first write (`deep_check`: unless the check note vouches for the file as it
+        stands); damage raises NotALogbook, nothing is written."""
         if self.readonly:
             return
         refuse_known_damage(self.path)
-        key = check_key(self.path)
-        if key not in CHECKED:
-            if checknote.holds(self.path, key):  # the computer's clock, not the plant's
-                CHECKED.add(key)  # checked as it stands by an earlier process
-            else:
-                _quick_check(self.conn, self.path)
+        deep_check(self.path)
 
     def _refuse_replaced(self) -> None:
         """Under the write lock: the file at `path` is still the one this connection opened (a
@@ -614,7 +610,12 @@ def deep_check(path: Path) -> None:
     against 11 s on a busy 2-core machine), too long to run behind every start.
 
     A file that looks exactly as a checked session left it, less than a day ago (the check
-    note, store/db/checknote.py), is taken as checked."""
+    note, store/db/checknote.py), is taken as checked.
+
+    Read-only, SQLite's check does not evaluate the tables' CHECK constraints row by row:
+    15 times as fast on the one-year book (0.24 s against 3.66 s), and the same verdict, since
+    a row breaking a CHECK is a bad value the readers skip and note, not damage
+    (`check_verdict(values_ok=True)` passes over such findings anyway)."""
     key = check_key(path)
     if key in CHECKED:
         return
