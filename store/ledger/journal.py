@@ -392,9 +392,10 @@ def unreadable_report(book: Book) -> str | None:
 def way_out(entry_ids: Sequence[str]) -> str:
     """What to do about entries that cannot be read: a void where one can name them, else a
     backup from before they were written (an id sumpbook does not make)."""
-    if all(validate_value.voidable(i) for i in entry_ids):
+    can = [validate_value.voidable(i) for i in entry_ids]
+    if all(can):
         return f"void {'it' if len(entry_ids) == 1 else 'them'} with 'sumpbook log void ID --reason ...'"
-    if not any(validate_value.voidable(i) for i in entry_ids):
+    if not any(can):
         return (
             f"{'its id was' if len(entry_ids) == 1 else 'their ids were'} written outside "
             "sumpbook, so no void can name "
