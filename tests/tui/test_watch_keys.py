@@ -7,7 +7,9 @@ tests/benchmarks/speed.py."""
 
 from __future__ import annotations
 
-from textual.widgets import DataTable
+from textual import messages
+from textual.app import App, ComposeResult
+from textual.widgets import DataTable, Static
 
 from tests.kit.plant import app_for, settle
 from tui.screens.watch import WatchScreen
@@ -78,3 +80,54 @@ async def test_filling_the_list_works_out_the_line_once(plant, monkeypatch):
         app.screen.fill()
         await pilot.pause()
         assert len(calls) == 1
+
+
+class _LineUnderAList(App[None]):
+    """A list stand-in over a `Wrapped` line of the given height, as the watch list has
+    its line under it."""
+
+    def __init__(self, height: str) -> None:
+        super().__init__()
+        self.height = height
+
+    def compose(self) -> ComposeResult:
+        yield Static(id="list")
+        yield Wrapped(id="line", max_lines=3)
+
+    def on_mount(self) -> None:
+        self.query_one("#list").styles.height = "1fr"
+        self.query_one("#line").styles.height = self.height
+
+
+async def _layouts_on_new_line_counts(height: str, monkeypatch) -> int:
+    """How many times the screen is asked to lay itself out again while the line shows
+    texts of three lines, one, two and one."""
+    app = _LineUnderAList(height)
+    async with app.run_test(size=(60, 12)) as pilot:
+        line = app.query_one("#line", Wrapped)
+        line.show(("one line",))
+        await pilot.pause()
+        asked: list[object] = []
+        post = app.screen.post_message
+
+        def counted(message):
+            if isinstance(message, messages.Layout):
+                asked.append(message)
+            return post(message)
+
+        monkeypatch.setattr(app.screen, "post_message", counted)
+        for texts in (("a", "b", "c"), ("one line",), ("x", "y"), ("z",)):
+            line.show(*texts)  # each paragraph a line
+            await pilot.pause()
+        return len(asked)
+
+
+async def test_a_line_of_fixed_height_does_not_lay_the_screen_out_when_its_line_count_moves(
+    monkeypatch,
+):
+    """The line under the watch list is three lines tall whatever a row's detail holds: a
+    row of three lines after one of two laid the whole screen out again (speed.py: 20–35 ms
+    of CPU for such a key against 8 for the others). With an auto height the list must
+    move, and the screen is laid out again."""
+    assert await _layouts_on_new_line_counts("3", monkeypatch) == 0
+    assert await _layouts_on_new_line_counts("auto", monkeypatch) > 0

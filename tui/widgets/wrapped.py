@@ -47,13 +47,19 @@ class Wrapped(Static):
             last = lines[-1]
             last.truncate(width - 1)
             lines[-1] = last + Text("…")
-        # As many lines as before, each fitting the width: the widget keeps its size, so
-        # only it is drawn again, not the screen laid out (and the list beside it redrawn)
-        # on every key that changes the text.
+        # As many lines as before, each fitting the width, or a size set by the style sheet
+        # (the line under the watch list is 3 lines tall whatever it holds): the widget keeps
+        # its size, so only it is drawn again, not the screen laid out (and the list beside
+        # it redrawn) on every key that changes the text.
         fits = all(line.cell_len <= width for line in lines)
         same_size = fits and len(lines) == self.line_count
         self.line_count = len(lines) if fits else -1
-        self.update(Text("\n").join(lines), layout=not same_size)
+        self.update(Text("\n").join(lines), layout=not same_size and self.sized_by_text())
+
+    def sized_by_text(self) -> bool:
+        """Whether the widget's size follows what it shows (an auto height or width)."""
+        height, width = self.styles.height, self.styles.width
+        return height is None or height.is_auto or (width is not None and width.is_auto)
 
     def on_resize(self, event: events.Resize) -> None:
         if self.blocks and self.content_region.width != self.wrapped_at:
