@@ -207,6 +207,16 @@ async def _drive_bare(rows: int, started: float) -> dict:
                 table.add_row("12 Jun", "14 Jul", "31 d", "limit", "yes", "62", "2.48", "", "B7")
             self.ready = True
 
+    class BareTable(DataTable):
+        """Textual's table, Home and End bound to its own first-row and last-row actions:
+        the app's list jumps to its first and last row on those keys (RowTable), where
+        DataTable's own Home and End scroll sideways, nothing on a table that fits."""
+
+        BINDINGS = [
+            Binding("home", "scroll_top", "First row", show=False),
+            Binding("end", "scroll_bottom", "Last row", show=False),
+        ]
+
     class Bare(App[None]):
         def on_data_table_row_selected(self) -> None:  # Enter on a row, as in the app
             sheet = BareSheet()
@@ -215,7 +225,7 @@ async def _drive_bare(rows: int, started: float) -> dict:
 
         def compose(self) -> ComposeResult:
             yield Header()
-            yield DataTable(id="t", cursor_type="row", zebra_stripes=True)
+            yield BareTable(id="t", cursor_type="row", zebra_stripes=True)
             yield Footer()
 
         def on_mount(self) -> None:
