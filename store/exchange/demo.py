@@ -6,6 +6,7 @@ import os
 import shutil
 import sqlite3
 import tempfile
+import time
 from pathlib import Path
 
 from store.base.errors import BookError
@@ -75,10 +76,41 @@ def create_demo(path: Path, force: bool = False, clock: Clock | None = None) -> 
 
 
 THROWAWAY_PREFIX = "sumpbook-throwaway-"  # the temporary folders of throw-away books
+# A throw-away folder with nothing written in it for this long was left by an app that never
+# closed (its terminal window shut under it, the laptop's power gone): the next one removes it.
+# (An app left open that long on a demo it has not written to loses that copy, which was
+# never kept anyway.)
+LEFT_BEHIND_S = 2 * 24 * 3600
 
 
 def _throwaway_folder() -> Path:
+    sweep_left_behind()
     return Path(tempfile.mkdtemp(prefix=THROWAWAY_PREFIX))
+
+
+def sweep_left_behind(now_s: float | None = None) -> list[Path]:
+    """Remove the throw-away folders in the temporary folder whose newest file is older
+    than LEFT_BEHIND_S (a demo copy is 1.4 MB, and a temporary folder that is never emptied
+    keeps every one an app killed left); nothing else, and nothing that cannot be looked
+    at. Returns the folders removed."""
+    now_s = time.time() if now_s is None else now_s
+    removed = []
+    try:
+        found = [p for p in Path(tempfile.gettempdir()).iterdir()
+                 if p.name.startswith(THROWAWAY_PREFIX)]  # fmt: skip
+    except OSError:
+        return removed
+    for folder in found:
+        try:
+            if not folder.is_dir() or folder.is_symlink() or not is_throwaway(folder / "x"):
+                continue
+            newest = max([folder.stat().st_mtime, *(p.stat().st_mtime for p in folder.iterdir())])
+        except OSError:
+            continue
+        if now_s - newest > LEFT_BEHIND_S:
+            shutil.rmtree(folder, ignore_errors=True)
+            removed.append(folder)
+    return removed
 
 
 def throwaway_demo(clock: Clock | None = None) -> Book:
