@@ -558,9 +558,9 @@ class SumpbookApp(App[None]):
         # The filter sheet's screen and its chart library too (about 20 ms of imports): the
         # first Enter on a filter opens as quickly as the ones after it.
         _lazy("screens.filter_sheet", "FilterSheetScreen")
-        # What was just loaded (numpy, scipy, the sheet's screen: a hundred thousand objects)
-        # lives as long as the app too: out of the collector's full passes with the rest. A
-        # full pass over it stalled the app for 45–50 ms at whatever key it fell on.
+        # What was just loaded (numpy, scipy, the sheet's screen: some 35,000 objects) lives as
+        # long as the app too: out of the collector's full passes with the rest. A full pass
+        # over it stalled the app for 45–50 ms at whatever key it fell on.
         gc.freeze()
         self.check_seconds = time.perf_counter() - started  # the speed benchmark reports it
         self.call_from_thread(setattr, self, "book_checked", True)

@@ -88,13 +88,12 @@ def _throwaway_folder() -> Path:
     return Path(tempfile.mkdtemp(prefix=THROWAWAY_PREFIX))
 
 
-def sweep_left_behind(now_s: float | None = None) -> list[Path]:
+def sweep_left_behind() -> list[Path]:
     """Remove the throw-away folders in the temporary folder whose newest file is older
     than LEFT_BEHIND_S (a demo copy is 1.4 MB, and a temporary folder that is never emptied
     keeps every one an app killed left); nothing else, and nothing that cannot be looked
     at. Returns the folders removed."""
-    now_s = time.time() if now_s is None else now_s
-    removed = []
+    now_s, removed = time.time(), []
     try:
         found = [p for p in Path(tempfile.gettempdir()).iterdir()
                  if p.name.startswith(THROWAWAY_PREFIX)]  # fmt: skip
