@@ -4,7 +4,10 @@ any other day with it, and a due window in one form everywhere."""
 from __future__ import annotations
 
 from datetime import datetime, tzinfo
-from typing import Any
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:
+    from store.health.status_model import Due
 
 
 def day_text(moment: datetime, local: tzinfo, this_year: int) -> str:
@@ -13,7 +16,7 @@ def day_text(moment: datetime, local: tzinfo, this_year: int) -> str:
     return f"{here:%d %b}" if here.year == this_year else f"{here:%d %b %Y}"
 
 
-def due_text(due: Any, local: tzinfo, this_year: int) -> str:  # status_model.Due | None
+def due_text(due: Due | None, local: tzinfo, this_year: int) -> str:
     """'12–15 May (likely 13 May)'; an open end says so; days in another year show their
     year."""
     if due is None:
