@@ -95,13 +95,13 @@ def sweep_left_behind() -> list[Path]:
     at. Returns the folders removed."""
     now_s, removed = time.time(), []
     try:
-        found = [p for p in Path(tempfile.gettempdir()).iterdir()
+        found = [p for p in Path(tempfile.gettempdir()).resolve().iterdir()
                  if p.name.startswith(THROWAWAY_PREFIX)]  # fmt: skip
     except OSError:
         return removed
     for folder in found:
         try:
-            if not folder.is_dir() or folder.is_symlink() or not is_throwaway(folder / "x"):
+            if folder.is_symlink() or not folder.is_dir() or not _throwaway_folder_is(folder):
                 continue
             newest = max([folder.stat().st_mtime, *(p.stat().st_mtime for p in folder.iterdir())])
         except OSError:
@@ -126,7 +126,11 @@ def throwaway_empty(clock: Clock | None = None) -> Book:
 
 
 def is_throwaway(path: Path) -> bool:
-    folder = Path(path).resolve().parent
+    return _throwaway_folder_is(Path(path).resolve().parent)
+
+
+def _throwaway_folder_is(folder: Path) -> bool:
+    """Whether `folder` (resolved) is one of ours: named so, directly in the temporary folder."""
     return (
         folder.name.startswith(THROWAWAY_PREFIX)
         and folder.parent == Path(tempfile.gettempdir()).resolve()
