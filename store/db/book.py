@@ -256,8 +256,9 @@ def full_check(path: Path) -> list[str]:
                 f"written to it; {backup_hint(path)}"
             )
     clear_damage(path)
-    CHECKED.add(check_key(path))
-    checknote.checked(path, check_key(path), seen)
+    checked = check_key(path)
+    CHECKED.add(checked)
+    checknote.checked(path, checked, seen)
     if not writable(path):  # proof.checking fell back to a read-only connection
         notes.append(
             "the file is write-protected, so its CHECK constraints were not tested again "
