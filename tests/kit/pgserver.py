@@ -2,7 +2,8 @@
 local port (and a unix socket in the same folder), stopped at the end of the test session.
 
 PostgreSQL refuses to run as root: as root the server runs as the `postgres` user. The
-binaries are found on PATH, in /usr/local/bin or in Debian's /usr/lib/postgresql/*/bin.
+binaries (and runuser) are found on PATH, in /usr/local/bin, in Debian's
+/usr/lib/postgresql/*/bin or in /usr/sbin and /sbin.
 """
 
 from __future__ import annotations
@@ -26,7 +27,13 @@ def find_binary(name: str) -> str | None:
     found = shutil.which(name)
     if found:
         return found
-    for candidate in ["/usr/local/bin", *sorted(glob.glob("/usr/lib/postgresql/*/bin"))]:
+    places = [
+        "/usr/local/bin",
+        *sorted(glob.glob("/usr/lib/postgresql/*/bin")),
+        "/usr/sbin",
+        "/sbin",
+    ]
+    for candidate in places:
         path = Path(candidate) / name
         if path.is_file():
             return str(path)
@@ -98,7 +105,10 @@ def start(settings: str = TEST_SETTINGS) -> PgServer:
     if os.geteuid() == 0:
         pw = pwd.getpwnam("postgres")
         os.chown(folder, pw.pw_uid, pw.pw_gid)
-        as_user = ["runuser", "-u", "postgres", "--"]
+        runuser = find_binary("runuser")  # in sbin, which a root shell's PATH may leave out
+        if not runuser:
+            raise RuntimeError("runuser (util-linux) is needed to start PostgreSQL as root")
+        as_user = [runuser, "-u", "postgres", "--"]
     folder.chmod(0o700)
     data = folder / "data"
     subprocess.run(
