@@ -103,6 +103,10 @@ class WatchScreen(BookScreen):
         self.data: WatchData | None = None
         self.shown: list[WatchRow] = []
         self.catching_up = False  # stale rows are being recomputed behind the list
+        # each row's cells by its tag, with the row they were made from, and what else
+        # they were made from (`fill`)
+        self.row_cells: dict[str, tuple[WatchRow, tuple[Text, ...]]] = {}
+        self.cells_made_for: tuple = ()
 
     def compose(self) -> ComposeResult:
         yield Header(icon="≋")
@@ -195,6 +199,13 @@ class WatchScreen(BookScreen):
         keep = self.current_tag()
         prefs, local = self.sb.prefs, self.sb.book.local_zone()
         self.shown = self.visible()
+        # A row's cells are made from the row, the units of measure, the zone and this year
+        # (a due day of another year shows its year): a row read again alike keeps the cells
+        # made for it (a save changes a row or two of the list).
+        made_for = (prefs, local, fmt.clock().astimezone(local).year)
+        if made_for != self.cells_made_for:
+            self.cells_made_for, self.row_cells = made_for, {}
+        row_cells = self.row_cells
         rows = []
         # One cell for each distinct text of the columns that repeat (a unit's tag, a kind,
         # a basis, a set of flags): a table holds its cells as they are, never changes one.
@@ -207,34 +218,41 @@ class WatchScreen(BookScreen):
             return found
 
         for r in self.shown:
-            urgent = "bold" if r.tier <= 1 else ""
-            due = fmt.due_cell(r.due, r.state, r.overdue, local)
-            if r.what == "filter" and not r.gauge and r.due is None and not r.overdue:
-                due = "by indicator"
-            if now := act_now(r.flags):
-                due = now  # INSPECT NOW / CHANGE NOW
-            kind = r.kind if r.what != "breather" else "breather"
-            cells = (  # Cell: a Text as the table holds it (built so, not copied into one)
-                fmt.shown(Cell(r.tag, style=urgent)),
-                fmt.shown(Cell(due, style=urgent)),
-                fmt.shown(fmt.limit_bar(r.percent_of_limit)),
-                fmt.shown(
-                    Cell(
-                        fmt.pressure(r.dp_ref_bar, prefs, unit=False) if r.what == "filter" else ""
-                    )
-                ),
-                once(("flags", *r.flags), lambda r=r: fmt.flag_text(r.flags)),
-                fmt.shown(Cell(fmt.sparkline(r.trend_bar, r.limit_bar))),
-                once(("unit", r.unit), lambda r=r: Cell(r.unit)),
-                once(("kind", kind), lambda kind=kind: Cell(kind)),
-                once(("basis", r.basis), lambda r=r: Cell(r.basis)),
-            )
-            rows.append((r.tag, cells))
+            made = row_cells.get(r.tag)
+            if made is None or made[0] != r:
+                made = row_cells[r.tag] = (r, self.row_cells_of(r, once))
+            rows.append((r.tag, made[1]))
         table.show(watch_columns(prefs), rows)
         if keep and any(r.tag == keep for r in self.shown):
             table.move_cursor(row=table.get_row_index(keep))
         self.show_summary()
         self.show_detail()
+
+    def row_cells_of(
+        self, r: WatchRow, once: Callable[[object, Callable[[], Text]], Text]
+    ) -> tuple[Text, ...]:
+        """One row's cells, in the order of `watch_columns`."""
+        prefs, local = self.sb.prefs, self.sb.book.local_zone()
+        urgent = "bold" if r.tier <= 1 else ""
+        due = fmt.due_cell(r.due, r.state, r.overdue, local)
+        if r.what == "filter" and not r.gauge and r.due is None and not r.overdue:
+            due = "by indicator"
+        if now := act_now(r.flags):
+            due = now  # INSPECT NOW / CHANGE NOW
+        kind = r.kind if r.what != "breather" else "breather"
+        return (  # Cell: a Text as the table holds it (built so, not copied into one)
+            fmt.shown(Cell(r.tag, style=urgent)),
+            fmt.shown(Cell(due, style=urgent)),
+            fmt.shown(fmt.limit_bar(r.percent_of_limit)),
+            fmt.shown(
+                Cell(fmt.pressure(r.dp_ref_bar, prefs, unit=False) if r.what == "filter" else "")
+            ),
+            once(("flags", *r.flags), lambda r=r: fmt.flag_text(r.flags)),
+            fmt.shown(Cell(fmt.sparkline(r.trend_bar, r.limit_bar))),
+            once(("unit", r.unit), lambda r=r: Cell(r.unit)),
+            once(("kind", kind), lambda kind=kind: Cell(kind)),
+            once(("basis", r.basis), lambda r=r: Cell(r.basis)),
+        )
 
     def show_summary(self) -> None:
         data = self.data
