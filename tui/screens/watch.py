@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass
+from datetime import tzinfo
 
 from rich.text import Text
 from textual.app import ComposeResult
@@ -85,6 +86,33 @@ def watch_columns(prefs: Prefs) -> list[tuple[str, str]]:
         ("Kind", "kind"),
         ("Basis", "basis"),
     ]
+
+
+def row_cells_of(
+    r: WatchRow, prefs: Prefs, local: tzinfo, once: Callable[[object, Callable[[], Text]], Text]
+) -> tuple[Text, ...]:
+    """One row's cells, in the order of `watch_columns` (`once`: a cell shared by the rows
+    of one text)."""
+    urgent = "bold" if r.tier <= 1 else ""
+    due = fmt.due_cell(r.due, r.state, r.overdue, local)
+    if r.what == "filter" and not r.gauge and r.due is None and not r.overdue:
+        due = "by indicator"
+    if now := act_now(r.flags):
+        due = now  # INSPECT NOW / CHANGE NOW
+    kind = r.kind if r.what != "breather" else "breather"
+    return (  # Cell: a Text as the table holds it (built so, not copied into one)
+        fmt.shown(Cell(r.tag, style=urgent)),
+        fmt.shown(Cell(due, style=urgent)),
+        fmt.shown(fmt.limit_bar(r.percent_of_limit)),
+        fmt.shown(
+            Cell(fmt.pressure(r.dp_ref_bar, prefs, unit=False) if r.what == "filter" else "")
+        ),
+        once(("flags", *r.flags), lambda r=r: fmt.flag_text(r.flags)),
+        fmt.shown(Cell(fmt.sparkline(r.trend_bar, r.limit_bar))),
+        once(("unit", r.unit), lambda r=r: Cell(r.unit)),
+        once(("kind", kind), lambda kind=kind: Cell(kind)),
+        once(("basis", r.basis), lambda r=r: Cell(r.basis)),
+    )
 
 
 class WatchScreen(BookScreen):
@@ -220,39 +248,13 @@ class WatchScreen(BookScreen):
         for r in self.shown:
             made = row_cells.get(r.tag)
             if made is None or made[0] != r:
-                made = row_cells[r.tag] = (r, self.row_cells_of(r, once))
+                made = row_cells[r.tag] = (r, row_cells_of(r, prefs, local, once))
             rows.append((r.tag, made[1]))
         table.show(watch_columns(prefs), rows)
         if keep and any(r.tag == keep for r in self.shown):
             table.move_cursor(row=table.get_row_index(keep))
         self.show_summary()
         self.show_detail()
-
-    def row_cells_of(
-        self, r: WatchRow, once: Callable[[object, Callable[[], Text]], Text]
-    ) -> tuple[Text, ...]:
-        """One row's cells, in the order of `watch_columns`."""
-        prefs, local = self.sb.prefs, self.sb.book.local_zone()
-        urgent = "bold" if r.tier <= 1 else ""
-        due = fmt.due_cell(r.due, r.state, r.overdue, local)
-        if r.what == "filter" and not r.gauge and r.due is None and not r.overdue:
-            due = "by indicator"
-        if now := act_now(r.flags):
-            due = now  # INSPECT NOW / CHANGE NOW
-        kind = r.kind if r.what != "breather" else "breather"
-        return (  # Cell: a Text as the table holds it (built so, not copied into one)
-            fmt.shown(Cell(r.tag, style=urgent)),
-            fmt.shown(Cell(due, style=urgent)),
-            fmt.shown(fmt.limit_bar(r.percent_of_limit)),
-            fmt.shown(
-                Cell(fmt.pressure(r.dp_ref_bar, prefs, unit=False) if r.what == "filter" else "")
-            ),
-            once(("flags", *r.flags), lambda r=r: fmt.flag_text(r.flags)),
-            fmt.shown(Cell(fmt.sparkline(r.trend_bar, r.limit_bar))),
-            once(("unit", r.unit), lambda r=r: Cell(r.unit)),
-            once(("kind", kind), lambda kind=kind: Cell(kind)),
-            once(("basis", r.basis), lambda r=r: Cell(r.basis)),
-        )
 
     def show_summary(self) -> None:
         data = self.data
