@@ -32,6 +32,10 @@ Figures (median of several runs where it is cheap):
 9. `--only-cli-saves`: `sumpbook log reading` in fresh processes, in turns, with the check note
    a checked session leaves beside the book and without it (a whole-file check first, as
    every session's first save ran before the note): seconds each, and the ratio.
+10. A reading saved through the app's form (t, the tag, Enter, the ΔP, Enter) on a copy of the
+   book, to its list painted: wall and CPU, and the UI thread's part (putting the list in
+   place, the refresh after), against a bare DataTable that changes one cell and sorts its
+   rows again (no target). Run with the app's figures (also with `--only-app`).
 Figure 1 is also given as the process's CPU to the painted list (threads included), less
 moved than the wall time by other work on a shared machine. `--only-app`: figures 1 and 6
 alone, the app and the bare app in turns (a minute or so).
@@ -176,6 +180,58 @@ async def _drive_app(path: Path, started: float) -> dict:
     return out
 
 
+SAVES_IN_APP = 8  # readings saved through the app's form in each run of figure 10
+
+
+async def _drive_saves(path: Path, count: int) -> dict:
+    """Figure 10: readings saved through the app as a technician saves them (t, the tag,
+    Enter, the ΔP, Enter) on a copy of the book, each timed from the Enter that saves to the
+    list showing the new reading, painted: wall and CPU of the whole process (the save and
+    the list's read run in worker threads), and the CPU of the UI thread alone in the
+    screen's `show_data` and in the refresh after it (`time.thread_time`)."""
+    from store.db.book import open_book
+    from tui.app import SumpbookApp
+    from tui.screens.watch import WatchScreen
+
+    ui: dict[str, list[float]] = {"show": [], "paint": []}
+    show_data = WatchScreen.show_data
+
+    def timed_show(screen: WatchScreen, data) -> None:
+        began = time.thread_time()
+        show_data(screen, data)
+        shown = time.thread_time()
+        ui["show"].append(1000 * (shown - began))
+        screen.call_after_refresh(lambda: ui["paint"].append(1000 * (time.thread_time() - shown)))
+
+    WatchScreen.show_data = timed_show  # type: ignore[method-assign]
+    app = SumpbookApp(open_book(path, create=False), cursor_blink=False)
+    out: dict = {"saves": []}
+    async with app.run_test(size=SIZE) as pilot:
+        watch = app.screen
+
+        def watch_ready() -> bool:
+            return app.screen is watch and watch.loaded
+
+        await _painted(app, watch_ready)
+        await _settle(pilot, lambda: watch_ready() and app.book_checked)
+        rows = [r for r in watch.data.rows if r.what == "filter" and r.gauge and r.limit_bar
+                and r.dp_ref_bar and not r.flags]  # fmt: skip
+        for row in rows[:: max(len(rows) // count, 1)][:count]:
+            dp_bar = round(min(row.dp_ref_bar * 1.02, 0.9 * row.limit_bar), 2)
+            await pilot.press("t", *row.tag, "enter")
+            await _settle(pilot, lambda: type(app.screen).__name__ == "ReadingForm")
+            await pilot.press(*f"{dp_bar:.2f}")
+            before = watch.data
+            ui["show"].clear()
+            ui["paint"].clear()
+            wall, cpu = await _timed(pilot, "enter", lambda b=before: watch_ready()
+                                     and watch.data is not b and len(ui["paint"]) > 0)  # fmt: skip
+            out["saves"].append({"wall": wall, "cpu": cpu, "show": ui["show"][0],
+                                 "paint": ui["paint"][0]})  # fmt: skip
+    app.book.close()
+    return out
+
+
 async def _drive_bare(rows: int, started: float) -> dict:
     from textual.app import App, ComposeResult
     from textual.binding import Binding
@@ -218,10 +274,20 @@ async def _drive_bare(rows: int, started: float) -> dict:
         ]
 
     class Bare(App[None]):
+        BINDINGS = [Binding("s", "save", "Save")]
+
         def on_data_table_row_selected(self) -> None:  # Enter on a row, as in the app
             sheet = BareSheet()
             sheet.ready = False
             self.push_screen(sheet)
+
+        def action_save(self) -> None:
+            """What a save is to a bare table (figure 10's baseline): one row's reading
+            changed in place, and the rows put in order again."""
+            table = self.query_one(DataTable)
+            column = table.ordered_columns[2].key
+            table.update_cell(str(rng.randrange(rows)), column, f"{rng.random():.2f} bar")
+            table.sort(column)
 
         def compose(self) -> ComposeResult:
             yield Header()
@@ -231,13 +297,13 @@ async def _drive_bare(rows: int, started: float) -> dict:
         def on_mount(self) -> None:
             table = self.query_one(DataTable)
             table.add_columns(*(f"column {i}" for i in range(COLUMNS)))
-            rng = random.Random(1)
             for i in range(rows):
                 table.add_row(f"U{i:03d}-RF", "12 Jun–14 Jun", f"{rng.random():.2f} bar",
                               "▁▂▃▅▆", "", f"U{i // 4:03d}", "return", "trend", "",
                               key=str(i))  # fmt: skip
             self.ready = True
 
+    rng = random.Random(1)
     app = Bare()
     app.ready = False
     out: dict = {}
@@ -252,6 +318,7 @@ async def _drive_bare(rows: int, started: float) -> dict:
         for _ in range(SHEETS):
             out["sheet"].append(await _timed(pilot, "enter", sheet_ready))
             out["back"].append(await _timed(pilot, "escape", list_ready))
+        out["save"] = [await _timed(pilot, "s", lambda: app.ready) for _ in range(SAVES_IN_APP)]
     import resource
 
     out["max_rss_mb"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
@@ -301,6 +368,8 @@ def _child(argv: list[str]) -> int:
     started = float(os.environ["SPEED_STARTED"])
     if argv[0] == "app":
         out = asyncio.run(_drive_app(Path(argv[1]), started))
+    elif argv[0] == "saves":
+        out = asyncio.run(_drive_saves(Path(argv[1]), int(argv[2])))
     else:
         out = asyncio.run(_drive_bare(int(argv[1]), started))
     print("SPEED " + json.dumps(out))
@@ -890,6 +959,35 @@ def app_only_text(app_runs: list[dict], bare_runs: list[dict]) -> str:
     return "\n".join(out)
 
 
+def list_save_lines(save_runs: list[dict], bare_runs: list[dict]) -> list[str]:
+    """Figure 10: a reading saved in the app to its list painted, against a bare table that
+    changes one cell and sorts its rows again (no target: reported)."""
+    saves = [s for run in save_runs for s in run["saves"]]
+    bare = [c for run in bare_runs for _, c in run.get("save", [])]
+    if not saves or not bare:
+        return ["", "Figure 10 (a save to its list painted): no saves were timed."]
+    cpu, bare_cpu = _med([s["cpu"] for s in saves]), _med(bare)
+    show, paint = [s["show"] for s in saves], [s["paint"] for s in saves]
+    bare_wall = _med([w for run in bare_runs for w, _ in run.get("save", [])])
+    return [
+        "",
+        "### A reading saved in the app, to its list painted (no target)",
+        "",
+        f"{len(saves)} readings typed into the app's form ({len(save_runs)} runs on a copy of "
+        "the book), each from the Enter that saves it to the list showing it, painted: wall "
+        f"median {_med([s['wall'] for s in saves]):.0f} ms (longest "
+        f"{max(s['wall'] for s in saves):.0f} ms; through Pilot, whose pauses add to it: the "
+        f"bare table's key below takes {bare_wall:.0f} ms so), CPU of the process median "
+        f"{cpu:.0f} ms (the save, its forecast update and the list read again run in worker "
+        f"threads). Of it, the UI thread: median {_med(show):.1f} ms putting the list in place "
+        f"(`show_data`; longest {max(show):.0f} ms), {_med(paint):.1f} ms from there to the "
+        "screen refreshed. A bare DataTable of as many rows that changes one cell and sorts "
+        f"its rows again takes median {bare_cpu:.1f} ms of CPU to the screen refreshed "
+        f"({len(bare)} keys); the UI thread's part of a save is "
+        f"{(_med(show) + _med(paint)) / bare_cpu:.2f} × that.",
+    ]
+
+
 def percentile(values: list[float], p: float) -> float:
     ordered = sorted(values)
     k = (len(ordered) - 1) * p / 100
@@ -1131,9 +1229,19 @@ def main(argv: list[str] | None = None) -> int:
     # Every app run opens its SHEETS filter sheets, as every bare run opens its screens: the
     # sheet's figure is a median over as many openings on both sides (it was three of the
     # app's, the first building the kept screen, against nine of the bare app's).
+    # Figure 10 saves readings: on a copy of the book, made once (each run adds its own).
+    saves_copy = home / "saves.db"
+    src, dst = sqlite3.connect(f"file:{path}?mode=ro", uri=True), sqlite3.connect(saves_copy)
+    try:
+        src.backup(dst)
+    finally:
+        src.close()
+        dst.close()
+    save_runs = []
     for _ in range(args.app_runs):
         app_runs.append(_run_child("app", str(path), env=env))
         bare_runs.append(_run_child("bare", str(app_runs[0]["rows"]), env=env))
+        save_runs.append(_run_child("saves", str(saves_copy), str(SAVES_IN_APP), env=env))
     rows = app_runs[0]["rows"]
     app_s = _med([r["start_to_paint_s"] for r in app_runs])
     bare_s = _med([r["start_to_paint_s"] for r in bare_runs])
@@ -1141,8 +1249,10 @@ def main(argv: list[str] | None = None) -> int:
     start_cpu_bare = _med([r["cpu_to_paint_s"] for r in bare_runs])
     print(f"app start: {app_s:.2f} s, bare: {bare_s:.2f} s; CPU {start_cpu:.2f} s, bare "
           f"{start_cpu_bare:.2f} s", flush=True)  # fmt: skip
+    saves_text = list_save_lines(save_runs, bare_runs)
     if args.only_app:
-        print(app_only_text(app_runs, bare_runs))
+        print(app_only_text(app_runs, bare_runs) + "\n" + "\n".join(saves_text))
+        shutil.rmtree(home, ignore_errors=True)
         return 0
 
     status_cmd = [sys.executable, "-m", "tui", "--db", str(path), "status", "--json"]
@@ -1321,6 +1431,7 @@ def main(argv: list[str] | None = None) -> int:
     if later is not None:
         lines += later_lines(later, args.runs)
     lines += notes(figures)
+    lines += saves_text
     lines += ["", f"Benchmark run time: {time.perf_counter() - began:.0f} s."]
     text = "\n".join(lines) + "\n"
     args.out.write_text(text, encoding="utf-8")
