@@ -106,7 +106,7 @@ async def _settle(pilot, done, timeout: float = 120.0) -> None:
             await pilot.pause()
             return
         await asyncio.sleep(0.005)
-    raise RuntimeError("the screen did not settle")
+    raise RuntimeError(f"the screen did not settle: {type(pilot.app.screen).__name__}")
 
 
 async def _painted(app, done, timeout: float = 120.0) -> None:
@@ -117,7 +117,7 @@ async def _painted(app, done, timeout: float = 120.0) -> None:
     end = time.monotonic() + timeout
     while not (done() and not [w for w in app.workers if w.group not in BEHIND]):
         if time.monotonic() > end:
-            raise RuntimeError("the screen did not settle")
+            raise RuntimeError(f"the screen did not settle: {type(app.screen).__name__}")
         await asyncio.sleep(0.002)
     refreshed = asyncio.Event()
     app.call_after_refresh(refreshed.set)
@@ -190,6 +190,8 @@ async def _drive_saves(path: Path, count: int) -> dict:
     the list's read run in worker threads), and the CPU of the UI thread alone in the
     screen's `show_data` and in the refresh after it (`time.thread_time`)."""
     from store.db.book import open_book
+    from store.ledger.entries import Reading
+    from store.sheets import reading_doubts
     from tui.app import SumpbookApp
     from tui.screens.watch import WatchScreen
 
@@ -214,10 +216,25 @@ async def _drive_saves(path: Path, count: int) -> dict:
 
         await _painted(app, watch_ready)
         await _settle(pilot, lambda: watch_ready() and app.book_checked)
+
+        def typed(row) -> float:  # what is typed: a little over its last, below the limit
+            return round(min(row.dp_ref_bar * 1.02, 0.9 * row.limit_bar), 2)
+
+        # Readings the form saves without a question (one asked would be timed with it):
+        # runs on the same copy, at the book's frozen clock, leave those filters a reading
+        # of this very minute (a doubt), so each run takes others.
         rows = [r for r in watch.data.rows if r.what == "filter" and r.gauge and r.limit_bar
                 and r.dp_ref_bar and not r.flags]  # fmt: skip
-        for row in rows[:: max(len(rows) // count, 1)][:count]:
-            dp_bar = round(min(row.dp_ref_bar * 1.02, 0.9 * row.limit_bar), 2)
+        step = max(len(rows) // count, 1)
+        spread = [r for start in range(step) for r in rows[start::step]]
+        picked = []
+        for r in spread:
+            if len(picked) < count and not reading_doubts(
+                app.book, Reading(filter=r.tag, dp_bar=typed(r))
+            ):
+                picked.append(r)
+        for row in picked:
+            dp_bar = typed(row)
             await pilot.press("t", *row.tag, "enter")
             await _settle(pilot, lambda: type(app.screen).__name__ == "ReadingForm")
             await pilot.press(*f"{dp_bar:.2f}")
