@@ -15,7 +15,7 @@ from importlib import import_module
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from textual import work
+from textual import events, work
 from textual.app import App, SystemCommand
 from textual.binding import Binding
 from textual.filter import LineFilter
@@ -25,7 +25,7 @@ from textual.theme import Theme
 
 from store import Book, deep_check, open_book, record
 from store.base import prefs as laptop
-from store.base.collector import hold_collector
+from store.base.collector import held_full_pass, hold_collector, hold_full_passes
 from store.base.errors import BookError
 from store.base.session import Session, from_environ
 from store.base.text import inert_line
@@ -135,6 +135,7 @@ THEMES = {
     ),
 }
 SHEET_WAIT_S = 0.15  # a filter sheet read by then is shown filled, see open_kept_sheet
+IDLE_CHECK_S = 0.5  # how often the app looks whether a held full pass is due, see idle_pass
 LET_COLLECTOR_RUN_S = 10.0  # the cyclic collector held at start at most this long, see on_load
 HELP_SCREENS = (  # every full screen, for the help's "keys on other screens"
     ("screens.watch", "WatchScreen"),
@@ -200,6 +201,8 @@ class SumpbookApp(App[None]):
         self.kept_filter_sheet: Any = None  # see filter_sheet_for
         self.early_watch: Future[WatchData] | None = None  # the first list, read at load
         self.let_collector_run: Callable[[], None] = lambda: None  # on_load holds it
+        self.let_full_passes: Callable[[], None] | None = None  # first_paint_done holds them
+        self.last_input = time.monotonic()  # the last key or mouse event (see idle_pass)
         for theme in THEMES.values():
             self.register_theme(theme)
         self.start_theme(THEMES.get(self.prefs.theme, THEMES["dark"]))
@@ -242,6 +245,18 @@ class SumpbookApp(App[None]):
 
     def on_unmount(self) -> None:
         self.let_collector_run()
+        if self.let_full_passes is not None:
+            self.let_full_passes()
+
+    async def on_event(self, event: events.Event) -> None:
+        if isinstance(event, events.InputEvent) and not event.is_forwarded:
+            self.last_input = time.monotonic()
+        await super().on_event(event)
+
+    def idle_pass(self) -> None:
+        """The collector's full pass, held since the list was painted, run once it is due and
+        nobody has typed for a while (store/base/collector.py)."""
+        held_full_pass(time.monotonic() - self.last_input)
 
     def on_mount(self) -> None:
         self.update_subtitle()
@@ -535,6 +550,11 @@ class SumpbookApp(App[None]):
         # (about 0.1 s on a plant of a thousand rows, felt as a stall on the next key).
         gc.freeze()
         self.let_collector_run()
+        # From now on a full pass waits for a pause in the typing: one that fell on a save
+        # or a key held the screen 20–50 ms on a big plant (the young passes run as always).
+        if self.let_full_passes is None:
+            self.let_full_passes = hold_full_passes()
+            self.set_interval(IDLE_CHECK_S, self.idle_pass)
 
     @work(thread=True, exit_on_error=False, group="book-check", exclusive=True)
     def check_book(self, path: Path) -> None:

@@ -6,10 +6,19 @@ from __future__ import annotations
 
 import gc
 import threading
+import weakref
 
 import pytest
 
-from store.base.collector import collector_held, hold_collector
+from store.base.collector import (
+    FORCE_TIMES,
+    IDLE_S,
+    collector_held,
+    full_pass_due,
+    held_full_pass,
+    hold_collector,
+    hold_full_passes,
+)
 
 
 @pytest.fixture(autouse=True)
@@ -108,3 +117,104 @@ def test_a_hold_let_go_twice_counts_once_and_spans_the_blocks_inside_it():
         let_go()  # a second call: nothing
         assert not gc.isenabled()
     assert gc.isenabled()
+
+
+# ---- the full passes held for an idle moment --------------------------------------------------
+# What a threshold means is CPython's, as its gc module documents it (gc.set_threshold: the
+# third is how many passes of the middle generation come before a full one; gc.get_count:
+# the counts so far) and the interpreter shows it (`gc.callbacks` names the generation of
+# each pass); the default thresholds (700, 10, 10) are from memory, read here, not assumed.
+
+
+@pytest.fixture
+def passes():
+    """The generation of every pass the collector starts, in order."""
+    seen: list[int] = []
+
+    def note(phase: str, info: dict) -> None:
+        if phase == "start":
+            seen.append(info["generation"])
+
+    gc.callbacks.append(note)
+    yield seen
+    gc.callbacks.remove(note)
+
+
+def _young_passes(count: int) -> list[list[int]]:
+    """Objects kept alive until `count` passes of the middle generation have run since the
+    last full pass (each new container object counts towards the young passes)."""
+    kept: list[list[int]] = []
+    while gc.get_count()[2] < count:
+        kept.extend([i] for i in range(1000))
+    return kept
+
+
+def test_held_full_passes_leave_the_young_ones_and_the_thresholds_come_back(passes):
+    before = gc.get_threshold()
+    let_go = hold_full_passes()
+    try:
+        gc.collect()
+        passes.clear()
+        kept = _young_passes(3 * before[2])  # three times what starts a full pass unheld
+        assert 2 not in passes and 1 in passes  # young passes ran, no full one
+        assert len(kept) > 0
+    finally:
+        let_go()
+    assert gc.get_threshold() == before
+    gc.collect()
+    passes.clear()
+    kept = []
+    while 2 not in passes and len(kept) < 3_000_000:  # unheld, Python starts its own again
+        kept.extend([i] for i in range(1000))
+    assert 2 in passes
+
+
+def test_nested_holds_of_the_full_passes_put_the_thresholds_back_once_the_last_goes():
+    before = gc.get_threshold()
+    first, second = hold_full_passes(), hold_full_passes()
+    first()
+    assert gc.get_threshold()[2] != before[2]  # the second hold is still on
+    first()  # a second call: nothing
+    assert gc.get_threshold()[2] != before[2]
+    second()
+    assert gc.get_threshold() == before
+
+
+def test_a_held_full_pass_runs_when_idle_or_when_too_many_are_due_and_frees_the_cycles(passes):
+    every = gc.get_threshold()[2]
+
+    class Node:
+        def __init__(self) -> None:
+            self.me = self  # a cycle: only a pass of the collector frees it
+
+    let_go = hold_full_passes()
+    try:
+        gc.collect()
+        node = Node()
+        gone = weakref.ref(node)
+        kept = _young_passes(every + 1)  # the node, older than these, reaches the oldest gen
+        del node
+        passes.clear()
+        assert not held_full_pass(idle_s=0.0)  # due, but somebody is typing
+        assert 2 not in passes and gone() is not None
+        assert held_full_pass(idle_s=IDLE_S)  # a pause: it runs
+        assert passes.count(2) == 1 and gone() is None
+        assert gc.get_count()[2] == 0
+        assert not held_full_pass(idle_s=60.0)  # nothing due after it
+        kept += _young_passes(FORCE_TIMES * every)
+        passes.clear()
+        assert held_full_pass(idle_s=0.0)  # typing without a pause: run all the same
+        assert passes == [2]
+    finally:
+        let_go()
+    assert not held_full_pass(idle_s=60.0)  # no hold taken: never run from here
+
+
+def test_full_pass_due_follows_the_interpreters_own_threshold():
+    # common practice, no source: move the work, keep its cadence (the interpreter's count)
+    assert not full_pass_due(9, 10, 5.0)
+    assert not full_pass_due(10, 10, IDLE_S / 2)
+    assert full_pass_due(10, 10, IDLE_S)
+    assert full_pass_due(10 * FORCE_TIMES, 10, 0.0)
+    assert full_pass_due(3, 3, IDLE_S) and not full_pass_due(3, 4, IDLE_S)
+    assert full_pass_due(1, 0, IDLE_S)  # a threshold of 0 is taken as 1, not as "always"
