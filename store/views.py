@@ -59,11 +59,11 @@ def _watch_now(book: Book, unit: str | None) -> Watch:
     for position in positions:
         by_unit.setdefault(position.unit.upper(), []).append(position)
     mine = [q for q in positions if unit is None or q.unit == unit]
-    filters = watch_filters(book, mine, now, reg)
+    filters, computed = watch_filters(book, mine, now, reg)
     units = cached_units(
         book, [u for u in all_units if unit is None or u.tag == unit], by_unit, now, reg
     )
-    return watch_list(now, filters, breathers_at(book, now, unit), units)
+    return watch_list(now, filters, breathers_at(book, now, unit), units, computed)
 
 
 def _watch_as_of(book: Book, as_of: datetime, unit: str | None) -> Watch:
@@ -95,6 +95,12 @@ def _watch_as_of(book: Book, as_of: datetime, unit: str | None) -> Watch:
 def stale_count(book: Book) -> int:
     """How many filters' kept rows do not hold now (what a refresh would recompute)."""
     return len(stale_filters(book))
+
+
+def stale_in(w: Watch) -> int:
+    """`stale_count` as the list read now `w` found it, without reading the kept rows again
+    (the filters it had to compute; of its unit alone, where it was read for one)."""
+    return len(w.recomputed)
 
 
 def status_of(book: Book, ctx: FilterContext, as_of: datetime | None = None) -> FilterStatus:

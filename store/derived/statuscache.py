@@ -997,14 +997,16 @@ def stale_filters(book: Book) -> list[str]:
 
 def watch_filters(
     book: Book, positions: Sequence[FilterPosition], now: datetime, reg: Register | None = None
-) -> list[FilterStatus]:
+) -> tuple[list[FilterStatus], list[str]]:
     """Each position's status at `now`: its kept row where that holds (read as it is, no
-    context built), else computed in memory (nothing written). Only when one must be computed
-    are the plant's contexts built (they resolve each fluid's curve, which may load scipy),
-    so the list read from rows that hold loads none of the fitting maths
+    context built), else computed in memory (nothing written); and the tags of those
+    computed (the ones `stale_filters` names). Only when one must be computed are the
+    plant's contexts built (they resolve each fluid's curve, which may load scipy), so the
+    list read from rows that hold loads none of the fitting maths
     (tests/cli/test_lean_path.py)."""
     kept = lean_filters(book, [p.tag.upper() for p in positions], now, reg=reg)
     result: list[FilterStatus] = []
+    computed: list[str] = []
     ctxs: dict[str, FilterContext] | None = None
     for position in positions:
         status = kept.get(position.tag.upper())
@@ -1012,8 +1014,9 @@ def watch_filters(
             if ctxs is None:
                 ctxs = {tag.upper(): c for tag, c in contexts(book).items()}
             status = live_status(book, ctxs[position.tag.upper()], now)[0]
+            computed.append(position.tag)
         result.append(status)
-    return result
+    return result, computed
 
 
 def kept_filters(

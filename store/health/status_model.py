@@ -443,6 +443,9 @@ class Watch:
     filters: tuple[FilterStatus, ...]
     breathers: tuple[BreatherStatus, ...]
     units: tuple[UnitStatus, ...]
+    # A list read now: the filters whose kept rows did not hold, computed in memory (what a
+    # refresh would recompute); empty for a list as of a past time.
+    recomputed: tuple[str, ...] = field(default=(), compare=False)
 
 
 @frozen_record

@@ -123,9 +123,10 @@ def watch_list(
     filters: list[FilterStatus],
     breathers: list[BreatherStatus],
     units: list[UnitStatus],
+    recomputed: Sequence[str] = (),
 ) -> Watch:
     filters.sort(key=lambda s: s.urgency(now))
-    return Watch(now, tuple(filters), tuple(breathers), tuple(units))
+    return Watch(now, tuple(filters), tuple(breathers), tuple(units), tuple(recomputed))
 
 
 # (live changes as of a time, element summaries kept by upper-case tag, where each

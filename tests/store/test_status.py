@@ -7,7 +7,7 @@ import pytest
 from store import record, views
 from store.base.units import to_bar
 from store.db.book import open_book
-from store.derived.statuscache import rebuild
+from store.derived.statuscache import rebuild, stale_filters
 from store.health import status, status_json, units
 from store.ledger import register
 from store.ledger.entries import BreatherSwap, ElementChange, Reading, Sample, TopUp, Void
@@ -345,6 +345,36 @@ def test_a_register_change_reaches_the_cached_watch_list(book):
     before = one(views.watch(book), "P1-RF").dp_ref_bar
     register.update(book, Unit, "P1", {"normal_temp_c": 40.0}, by="AB")
     assert one(views.watch(book), "P1-RF").dp_ref_bar > before
+
+
+def test_the_list_read_now_names_the_rows_a_refresh_would_recompute(book):
+    """What the list read now had to compute is what `stale_filters` finds on its own pass
+    over the kept rows (read in full, not by their columns): the screen counts it from the
+    list instead of reading every kept row again."""
+
+    def agree() -> list[str]:
+        w = views.watch(book)
+        found = sorted(t.upper() for t in w.recomputed)
+        assert found == sorted(t.upper() for t in stale_filters(book))
+        assert views.stale_in(w) == views.stale_count(book) == len(found)
+        return found
+
+    t = book.now() - timedelta(days=10)
+    record.log(book, ElementChange(filter="P1-RF", by="AB", at=t))
+    record.log(
+        book, Reading(filter="P1-RF", dp_bar=2.0, temp_c=50, by="AB", at=t + timedelta(days=1))
+    )
+    agree()
+    record.refresh_stale(book)
+    assert agree() == []
+    register.update(book, Unit, "P1", {"normal_temp_c": 40.0}, by="AB")
+    p1 = sorted(p.tag.upper() for p in register.list_all(book, FilterPosition, "P1"))
+    assert agree() == p1 and p1  # the unit's positions read its temperature
+    one_unit = views.watch(book, unit="P1")
+    assert sorted(t.upper() for t in one_unit.recomputed) == p1
+    assert views.watch(book, as_of=book.now()).recomputed == ()  # an audit keeps nothing
+    record.refresh_stale(book)
+    assert agree() == []
 
 
 # ---- an element loading faster than the earlier ones (fast-loading) -----------------------------

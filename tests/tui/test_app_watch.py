@@ -439,7 +439,7 @@ async def test_a_catch_up_read_before_a_newer_list_is_not_shown_after_it(plant, 
         release.wait(timeout=30)
         return replace(data, as_of_text="older")
 
-    monkeypatch.setattr(views, "stale_count", lambda book: 1)  # every list has rows to keep
+    monkeypatch.setattr(views, "stale_in", lambda w: 1)  # every list has rows to keep
     monkeypatch.setattr(watch_module, "catch_up", held)
     app = app_for(plant)
     async with app.run_test(size=(80, 24)) as pilot:
