@@ -106,6 +106,7 @@ def read_number(text: str) -> float:
     A comma may stand for the decimal point ('12,5' is 12.5); a comma with exactly three
     digits after it and no other sign ('1,250') could be a thousands separator, so it is
     refused with a question rather than read either way. Words, 'inf' and 'nan' are refused.
+    A typed '-0' is zero (never a negative zero, shown and kept as '-0.00').
     """
     t = (text or "").strip()
     both = _AMBIGUOUS_COMMA.match(t)
@@ -116,7 +117,7 @@ def read_number(text: str) -> float:
         )
     if not re.fullmatch(_NUMBER, t):
         raise UnitError(f"'{text}' is not a number")
-    return float(t.replace(",", "."))
+    return float(t.replace(",", ".")) + 0.0  # IEEE 754: -0 + 0 is +0
 
 
 def split_quantity(text: str, default_unit: str) -> tuple[float, str]:

@@ -93,7 +93,7 @@ def filtered_value(cell: str) -> float | None:
 
 def parse_number(text: str, name: str) -> float:
     try:
-        return float(text.strip().replace(",", "."))
+        return float(text.strip().replace(",", ".")) + 0.0  # a cell of '-0' is zero
     except ValueError as exc:
         raise BookError(f"{name} '{text[:30]}' is not a number") from exc
 

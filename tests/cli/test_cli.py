@@ -1,6 +1,7 @@
 """The `sumpbook` command line, end to end as a technician would type it."""
 
 import json
+import math
 from datetime import datetime
 
 import pytest
@@ -108,6 +109,21 @@ def test_the_saved_line_says_the_note_as_typed_back(plant, capsys):
     code, out, _ = run(capsys, "--db", plant, "log", "note", long, "--unit", "P1")
     said = out.split(": ", 1)[1].strip()
     assert code == 0 and len(said) == 202 and said.endswith('…"')  # 200 and the quotes
+
+
+def test_a_typed_minus_zero_is_saved_and_shown_as_zero(plant, capsys):
+    # IEEE 754-2008 §6.3: in round-to-nearest, -0 + +0 is +0; a gauge never reads "-0.00"
+    code, out, err = run(capsys, "--db", plant, "log", "reading", "P1-RF", "--dp", "-0")
+    assert code == 0, err
+    assert "ΔP 0.00 bar" in out and "-0" not in out.split("ΔP", 1)[1]
+    import sqlite3
+
+    kept = (
+        sqlite3.connect(plant)
+        .execute("SELECT dp_bar FROM entries WHERE kind = 'reading' ORDER BY rowid DESC LIMIT 1")
+        .fetchone()[0]
+    )
+    assert kept == 0 and math.copysign(1.0, kept) == 1.0
 
 
 def test_a_top_up_on_the_command_line_ends_with_its_caution(plant, capsys):

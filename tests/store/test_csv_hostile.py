@@ -418,3 +418,14 @@ def test_text_that_is_not_text_is_refused_clearly(book):
         with pytest.raises(BookError, match="not (valid )?text"):
             attempt()
     assert _count(book) == 0 and not book.conn.in_transaction
+
+
+def test_a_cell_of_minus_zero_is_read_as_zero():
+    # IEEE 754-2008 §6.3: -0 + +0 is +0; a spreadsheet may write "-0" for a rounded -0.001
+    import math
+
+    from store.exchange.csvcolumns import parse_number
+
+    for cell in ("-0", "-0.0", " -0,00 "):
+        value = parse_number(cell, "dp_bar")
+        assert value == 0 and math.copysign(1.0, value) == 1.0, cell

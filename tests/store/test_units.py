@@ -1,5 +1,7 @@
 """Unit conversions at the edges, checked against pint (an independent units library)."""
 
+import math
+
 import pint
 import pytest
 from hypothesis import given
@@ -66,6 +68,10 @@ def test_one_reading_of_a_typed_number_for_every_door():
     for text in ("1,250", "12,500", "-3,000"):
         with pytest.raises(AmbiguousNumberError, match="reads two ways"):
             read_number(text)
+    # IEEE 754-2008 §6.3 (-0 + +0 is +0 in round-to-nearest): a typed "-0" is plain zero
+    for text in ("-0", "-0,0", "-0.00", "-0e5"):
+        assert math.copysign(1.0, read_number(text)) == 1.0 and read_number(text) == 0, text
+    assert math.copysign(1.0, units.parse_pressure_bar("-0 psi")) == 1.0
     for text in ("1..3", "1,2,3", "inf", "nan", "", "1 250"):
         with pytest.raises(units.UnitError):
             read_number(text)
