@@ -123,21 +123,31 @@ def test_a_hold_let_go_twice_counts_once_and_spans_the_blocks_inside_it():
 # What a threshold means is CPython's, as its gc module documents it (gc.set_threshold: the
 # third is how many passes of the middle generation come before a full one; gc.get_count:
 # the counts so far) and the interpreter shows it (`gc.callbacks` names the generation of
-# each pass); the default thresholds (700, 10, 10) are from memory, read here, not assumed.
+# each pass). The tests set small thresholds and freeze what the process holds already, so
+# that a few thousand objects drive the counts (Python's defaults, 700/10/10, from memory,
+# would need hundreds of thousands here, and a full pass unheld waits until the objects
+# added since the last one are a quarter of those it kept).
 
 
 @pytest.fixture
 def passes():
-    """The generation of every pass the collector starts, in order."""
+    """The generation of every pass the collector starts, in order, with small thresholds
+    and the process's objects frozen meanwhile (all as they were afterwards)."""
     seen: list[int] = []
 
     def note(phase: str, info: dict) -> None:
         if phase == "start":
             seen.append(info["generation"])
 
+    before = gc.get_threshold()
+    gc.collect()
+    gc.freeze()
+    gc.set_threshold(100, 2, 3)
     gc.callbacks.append(note)
     yield seen
     gc.callbacks.remove(note)
+    gc.set_threshold(*before)
+    gc.unfreeze()
 
 
 def _young_passes(count: int) -> list[list[int]]:
@@ -145,7 +155,7 @@ def _young_passes(count: int) -> list[list[int]]:
     last full pass (each new container object counts towards the young passes)."""
     kept: list[list[int]] = []
     while gc.get_count()[2] < count:
-        kept.extend([i] for i in range(1000))
+        kept.extend([i] for i in range(50))
     return kept
 
 
@@ -164,8 +174,8 @@ def test_held_full_passes_leave_the_young_ones_and_the_thresholds_come_back(pass
     gc.collect()
     passes.clear()
     kept = []
-    while 2 not in passes and len(kept) < 3_000_000:  # unheld, Python starts its own again
-        kept.extend([i] for i in range(1000))
+    while 2 not in passes and len(kept) < 200_000:  # unheld, Python starts its own again
+        kept.extend([i] for i in range(50))
     assert 2 in passes
 
 
