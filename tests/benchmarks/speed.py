@@ -186,17 +186,33 @@ SAVES_IN_APP = 8  # readings saved through the app's form in each run of figure 
 async def _drive_saves(path: Path, count: int) -> dict:
     """Figure 10: readings saved through the app as a technician saves them (t, the tag,
     Enter, the ΔP, Enter) on a copy of the book, each timed from the Enter that saves to the
-    list showing the new reading, painted: wall and CPU of the whole process (the save and
-    the list's read run in worker threads), and the CPU of the UI thread alone in the
-    screen's `show_data` and in the refresh after it (`time.thread_time`)."""
+    list showing the new reading, painted: wall and CPU of the whole process; the CPU of
+    the worker threads' parts (`record.save`, the save with its forecast update and commit;
+    `read_watch`, the list read again) and of the UI thread in the screen's `show_data` and
+    in the refresh after it (each by `time.thread_time` in its own thread)."""
+    from store import record
     from store.db.book import open_book
     from store.ledger.entries import Reading
     from store.sheets import reading_doubts
     from tui.app import SumpbookApp
+    from tui.screens import watch as watch_module
     from tui.screens.watch import WatchScreen
 
-    ui: dict[str, list[float]] = {"show": [], "paint": []}
+    ui: dict[str, list[float]] = {"show": [], "paint": [], "save": [], "read": []}
     show_data = WatchScreen.show_data
+
+    def thread_cpu(call, part: str):  # noqa: ANN001, ANN202
+        def timed(*args, **kwargs):  # noqa: ANN002, ANN003, ANN202
+            began = time.thread_time()
+            try:
+                return call(*args, **kwargs)
+            finally:
+                ui[part].append(1000 * (time.thread_time() - began))
+
+        return timed
+
+    record.save = thread_cpu(record.save, "save")  # type: ignore[method-assign]
+    watch_module.read_watch = thread_cpu(watch_module.read_watch, "read")
 
     def timed_show(screen: WatchScreen, data) -> None:
         began = time.thread_time()
@@ -239,12 +255,13 @@ async def _drive_saves(path: Path, count: int) -> dict:
             await _settle(pilot, lambda: type(app.screen).__name__ == "ReadingForm")
             await pilot.press(*f"{dp_bar:.2f}")
             before = watch.data
-            ui["show"].clear()
-            ui["paint"].clear()
+            for times in ui.values():
+                times.clear()
             wall, cpu = await _timed(pilot, "enter", lambda b=before: watch_ready()
                                      and watch.data is not b and len(ui["paint"]) > 0)  # fmt: skip
             out["saves"].append({"wall": wall, "cpu": cpu, "show": ui["show"][0],
-                                 "paint": ui["paint"][0]})  # fmt: skip
+                                 "paint": ui["paint"][0], "save": sum(ui["save"]),
+                                 "read": ui["read"][0] if ui["read"] else 0.0})  # fmt: skip
     app.book.close()
     return out
 
@@ -996,7 +1013,9 @@ def list_save_lines(save_runs: list[dict], bare_runs: list[dict]) -> list[str]:
         f"{max(s['wall'] for s in saves):.0f} ms; through Pilot, whose pauses add to it: the "
         f"bare table's key below takes {bare_wall:.0f} ms so), CPU of the process median "
         f"{cpu:.0f} ms (the save, its forecast update and the list read again run in worker "
-        f"threads). Of it, the UI thread: median {_med(show):.1f} ms putting the list in place "
+        f"threads: `record.save` median {_med([s['save'] for s in saves]):.0f} ms, "
+        f"`read_watch` {_med([s['read'] for s in saves]):.0f} ms). Of it, the UI thread: median "
+        f"{_med(show):.1f} ms putting the list in place "
         f"(`show_data`; longest {max(show):.0f} ms), {_med(paint):.1f} ms from there to the "
         "screen refreshed. A bare DataTable of as many rows that changes one cell and sorts "
         f"its rows again takes median {bare_cpu:.1f} ms of CPU to the screen refreshed "
