@@ -224,7 +224,6 @@ class WatchScreen(BookScreen):
 
     def fill(self) -> None:
         table = self.query_one(RowTable)
-        keep = self.current_tag()
         prefs, local = self.sb.prefs, self.sb.book.local_zone()
         self.shown = self.visible()
         # A row's cells are made from the row, the units of measure, the zone and this year
@@ -250,9 +249,7 @@ class WatchScreen(BookScreen):
             if made is None or made[0] != r:
                 made = row_cells[r.tag] = (r, row_cells_of(r, prefs, local, once))
             rows.append((r.tag, made[1]))
-        table.show(watch_columns(prefs), rows)
-        if keep and any(r.tag == keep for r in self.shown):
-            table.move_cursor(row=table.get_row_index(keep))
+        table.show(watch_columns(prefs), rows)  # the cursor stays on its row's tag
         self.show_summary()
         self.show_detail()
 
