@@ -19,7 +19,6 @@ from store.derived.statuscache import (
     kept_units,
     live_status,
     register,
-    stale_filters,
     watch_filters,
 )
 from store.health.conditions import FilterContext
@@ -90,17 +89,6 @@ def _watch_as_of(book: Book, as_of: datetime, unit: str | None) -> Watch:
         for u in p.units
     ]
     return watch_list(as_of, filters, breathers_at(book, as_of, unit), units)
-
-
-def stale_count(book: Book) -> int:
-    """How many filters' kept rows do not hold now (what a refresh would recompute)."""
-    return len(stale_filters(book))
-
-
-def stale_in(w: Watch) -> int:
-    """`stale_count` as the list read now `w` found it, without reading the kept rows again
-    (the filters it had to compute; of its unit alone, where it was read for one)."""
-    return len(w.recomputed)
 
 
 def status_of(book: Book, ctx: FilterContext, as_of: datetime | None = None) -> FilterStatus:

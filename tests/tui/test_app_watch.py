@@ -439,7 +439,11 @@ async def test_a_catch_up_read_before_a_newer_list_is_not_shown_after_it(plant, 
         release.wait(timeout=30)
         return replace(data, as_of_text="older")
 
-    monkeypatch.setattr(views, "stale_in", lambda w: 1)  # every list has rows to keep
+    read = views.watch  # every list has a row to keep: the catch-up runs behind each
+
+    monkeypatch.setattr(
+        views, "watch", lambda *a, **k: replace(read(*a, **k), recomputed=("P1-RF",))
+    )
     monkeypatch.setattr(watch_module, "catch_up", held)
     app = app_for(plant)
     async with app.run_test(size=(80, 24)) as pilot:

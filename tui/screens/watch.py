@@ -61,7 +61,7 @@ def read_watch(book: Book, fresh: bool = False) -> WatchData:
         as_of_text=f"{w.as_of.astimezone(local):%H:%M}",  # the list is read anew each day
         shift_text=f"{span.name} to {span.end.astimezone(local):%H:%M}",
         areas=options,
-        stale=0 if fresh else views.stale_in(w),
+        stale=0 if fresh else len(w.recomputed),
     )
 
 
