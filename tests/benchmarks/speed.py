@@ -525,6 +525,15 @@ def book_facts(path: Path) -> dict:
     return facts
 
 
+def copy_book(path: Path, copy: Path) -> Path:
+    """A copy of the book file and its write-ahead log, if it has one (nothing has it open
+    for writing while the benchmark runs)."""
+    for suffix in ("", "-wal"):
+        if Path(str(path) + suffix).exists():
+            shutil.copyfile(str(path) + suffix, str(copy) + suffix)
+    return copy
+
+
 def warm(path: Path) -> None:
     for suffix in ("", "-wal"):
         f = Path(str(path) + suffix)
@@ -543,10 +552,7 @@ def saves(path: Path, count: int) -> list[float]:
     from store.ledger.register import FilterPosition, Technician, list_all
 
     with tempfile.TemporaryDirectory(dir=path.parent) as folder:
-        copy = Path(folder) / "saves.db"
-        for suffix in ("", "-wal"):
-            if Path(str(path) + suffix).exists():
-                shutil.copyfile(str(path) + suffix, str(copy) + suffix)
+        copy = copy_book(path, Path(folder) / "saves.db")
         times = []
         with open_book(copy, create=False) as book:
             book.ensure_checked()  # the whole-file check before the first write, not timed:
@@ -800,10 +806,7 @@ def same_answers(path: Path, env: dict[str, str], roots: dict[str, Path], span: 
     for label, (book, export_args) in books.items():
         outputs: dict[str, dict[str, bytes]] = {}
         for name, root in roots.items():
-            copy = work / "copy.db"
-            for suffix in ("", "-wal"):
-                if Path(str(book) + suffix).exists():
-                    shutil.copyfile(str(book) + suffix, str(copy) + suffix)
+            copy = copy_book(book, work / "copy.db")
             run_env = {**env, "PYTHONPATH": str(root)}
             base = [python(root), "-m", "tui", "--db", str(copy)]
             status = subprocess.run([*base, "status", "--json"], env=run_env, cwd=root,
@@ -1266,13 +1269,7 @@ def main(argv: list[str] | None = None) -> int:
     # sheet's figure is a median over as many openings on both sides (it was three of the
     # app's, the first building the kept screen, against nine of the bare app's).
     # Figure 10 saves readings: on a copy of the book, made once (each run adds its own).
-    saves_copy = home / "saves.db"
-    src, dst = sqlite3.connect(f"file:{path}?mode=ro", uri=True), sqlite3.connect(saves_copy)
-    try:
-        src.backup(dst)
-    finally:
-        src.close()
-        dst.close()
+    saves_copy = copy_book(path, home / "saves.db")
     save_runs = []
     for _ in range(args.app_runs):
         app_runs.append(_run_child("app", str(path), env=env))
