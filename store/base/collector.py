@@ -20,33 +20,59 @@ import threading
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 
-_lock = threading.Lock()
-_holders = 0
+
+class _CountedHold:
+    """A process-wide setting held by a count under one lock: the first hold to come in
+    calls `take` (which may note what it found), the last one let go calls `give_back`,
+    whatever the order in which holds end and whichever threads they are in."""
+
+    def __init__(self, take: Callable[[], None], give_back: Callable[[], None]) -> None:
+        self._lock = threading.Lock()
+        self._holders = 0
+        self._take, self._give_back = take, give_back
+
+    def hold(self) -> Callable[[], None]:
+        """Hold from now until the returned function is called (the first call lets this
+        hold go; later ones do nothing)."""
+        with self._lock:
+            if self._holders == 0:
+                self._take()
+            self._holders += 1
+        held = [True]
+
+        def let_go() -> None:
+            with self._lock:
+                if not held[0]:
+                    return
+                held[0] = False
+                self._holders -= 1
+                if self._holders == 0:
+                    self._give_back()
+
+        return let_go
+
+
 _was_on = False
+
+
+def _switch_off() -> None:
+    global _was_on
+    _was_on = gc.isenabled()
+    gc.disable()
+
+
+def _switch_back() -> None:
+    if _was_on:
+        gc.enable()
+
+
+_collector = _CountedHold(_switch_off, _switch_back)
 
 
 def hold_collector() -> Callable[[], None]:
     """Hold the collector from now until the returned function is called (the first call lets
     this hold go; later ones do nothing)."""
-    global _holders, _was_on
-    with _lock:
-        if _holders == 0:
-            _was_on = gc.isenabled()
-            gc.disable()
-        _holders += 1
-    held = [True]
-
-    def let_go() -> None:
-        global _holders
-        with _lock:
-            if not held[0]:
-                return
-            held[0] = False
-            _holders -= 1
-            if _holders == 0 and _was_on:
-                gc.enable()
-
-    return let_go
+    return _collector.hold()
 
 
 @contextmanager
@@ -70,9 +96,23 @@ IDLE_S = 1.0  # no key or mouse event for this long: the app is idle
 FORCE_TIMES = 10  # a full pass runs anyway, idle or not, once this many are due at once
 _NEVER = 2**31 - 1  # a threshold the count of young passes never reaches
 
-_full_lock = threading.Lock()
-_full_holders = 0
-_thresholds: tuple[int, int, int] | None = None
+_thresholds: tuple[int, int, int] | None = None  # as the first hold of the full passes found them
+
+
+def _full_passes_off() -> None:
+    global _thresholds
+    _thresholds = gc.get_threshold()
+    gc.set_threshold(_thresholds[0], _thresholds[1], _NEVER)
+
+
+def _full_passes_back() -> None:
+    global _thresholds
+    if _thresholds is not None:
+        gc.set_threshold(*_thresholds)
+        _thresholds = None
+
+
+_full_passes = _CountedHold(_full_passes_off, _full_passes_back)
 
 
 def hold_full_passes() -> Callable[[], None]:
@@ -80,26 +120,7 @@ def hold_full_passes() -> Callable[[], None]:
     is called (the first call lets this hold go; later ones do nothing). Holds nest, across
     threads and in any order: the last one let go puts the thresholds back as the first one
     found them. Young passes are not held."""
-    global _full_holders, _thresholds
-    with _full_lock:
-        if _full_holders == 0:
-            _thresholds = gc.get_threshold()
-            gc.set_threshold(_thresholds[0], _thresholds[1], _NEVER)
-        _full_holders += 1
-    held = [True]
-
-    def let_go() -> None:
-        global _full_holders, _thresholds
-        with _full_lock:
-            if not held[0]:
-                return
-            held[0] = False
-            _full_holders -= 1
-            if _full_holders == 0 and _thresholds is not None:
-                gc.set_threshold(*_thresholds)
-                _thresholds = None
-
-    return let_go
+    return _full_passes.hold()
 
 
 def full_pass_due(young_passes: int, every: int, idle_s: float) -> bool:
@@ -118,8 +139,7 @@ def held_full_pass(idle_s: float) -> bool:
     """Run the full pass a hold keeps waiting (`hold_full_passes`) if it is due now, the app
     idle for `idle_s` seconds; True if one ran. Nothing while no hold is taken or while the
     collector itself is held (`hold_collector`)."""
-    with _full_lock:
-        thresholds = _thresholds
+    thresholds = _thresholds
     if thresholds is None or not gc.isenabled():
         return False
     if not full_pass_due(gc.get_count()[2], thresholds[2], idle_s):
