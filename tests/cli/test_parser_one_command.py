@@ -11,7 +11,14 @@ import io
 
 import pytest
 
-from tui.cli import COMMANDS, build_parser, join_negative_values, named_command
+from tui.cli import (
+    COMMANDS,
+    build_parser,
+    join_negative_values,
+    main,
+    named_command,
+    stray_option,
+)
 
 
 def _subcommands(parser: argparse.ArgumentParser) -> dict[str, argparse.ArgumentParser]:
@@ -94,3 +101,34 @@ def test_the_named_commands_are_the_parsers():
 )
 def test_named_command(words, named):
     assert named_command(words) == named
+
+
+@pytest.mark.parametrize(
+    ("words", "stray"),
+    [
+        (["--book", "plant.db", "status"], "--book"),  # a wrong name for --db
+        (["--json", "status"], "--json"),  # a command's option before its name
+        (["--db", "x.db", "--unit", "U1", "status"], "--unit"),
+        (["-x"], "-x"),
+        (["--db", "x.db", "status", "--book"], None),  # after the command: argparse's to say
+        (["--d", "x.db", "status"], None),  # argparse takes "--d" for --db
+        (["--db=x.db", "status"], None),
+        (["--ver"], None),
+        (["-h"], None),
+        (["--", "status"], None),
+        (["--db"], None),  # argparse says --db wants its file
+        ([], None),
+    ],
+)
+def test_stray_option(words, stray):
+    assert stray_option(words) == stray
+
+
+def test_a_stray_option_is_named_and_nothing_runs(capsys, tmp_path):
+    book = tmp_path / "plant.db"
+    assert main(["--book", str(book), "demo"]) == 2
+    err = capsys.readouterr().err
+    # Before the check argparse said "invalid choice: '<the file>'", naming the wrong word.
+    assert err.startswith("sumpbook: unknown option --book: before the command only --db FILE")
+    assert str(book) not in err
+    assert not book.exists()

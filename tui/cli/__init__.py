@@ -169,6 +169,30 @@ def named_command(words: Sequence[str]) -> str | None:
     return None
 
 
+# What the command line reads before the command's name (argparse also takes a shortened
+# option: "--d" for --db).
+_BEFORE_COMMAND = ("--db", "--version", "--help")
+
+
+def stray_option(words: Sequence[str]) -> str | None:
+    """The first word before the command that is an option the command line does not read
+    there (`--book plant.db status`, `--json status`); else None. argparse would go on and
+    take the word after it for the command ("invalid choice: 'plant.db'")."""
+    i = 0
+    while i < len(words):
+        word = words[i]
+        if word == "--" or not word.startswith("-") or word == "-h":
+            return None  # the command, or what argparse reads after "--", or the help
+        name = word.split("=", 1)[0]
+        known = [o for o in _BEFORE_COMMAND if name.startswith("--") and o.startswith(name)]
+        if not known:
+            return word
+        if known != ["--db"]:
+            return None  # --version, --help: argparse answers them and stops
+        i += 1 if "=" in word else 2
+    return None
+
+
 def build_parser(only: str | None = None) -> argparse.ArgumentParser:
     """The command line's parser; with `only` (one of COMMANDS), that command's alone."""
     parser = argparse.ArgumentParser(
@@ -468,6 +492,14 @@ def main(
     """The command line. `loaded`: told the command once the words are parsed (tui/launch.py
     lets the cyclic collector run again there, but for the short answers)."""
     words = join_negative_values(sys.argv[1:] if argv is None else argv)
+    if (stray := stray_option(words)) is not None:
+        print(
+            f"sumpbook: unknown option {inert(stray)}: before the command only --db FILE, "
+            "--version and --help are read; a command's own options go after its name "
+            "(sumpbook --help lists the commands)",
+            file=sys.stderr,
+        )
+        return EXIT_BAD_INPUT
     args = build_parser(named_command(words)).parse_args(words)
     if loaded is not None:
         loaded(args.command)
