@@ -45,7 +45,7 @@ from array import array
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field, fields
 from datetime import datetime, timedelta
-from functools import cached_property
+from functools import cached_property, partial
 from typing import Any, NamedTuple
 
 from store.base.records import filled_record, frozen_record
@@ -59,6 +59,7 @@ from store.derived.elementcache import (
     max_rowid,
 )
 from store.health.conditions import FilterContext, context, contexts
+from store.health.earlier import LikeLives
 from store.health.elements import split_summaries
 from store.health.lives import like_lives, like_lives_from, live_changes
 from store.health.notes import NOTE_TEXT, Note
@@ -796,7 +797,8 @@ def filter_view(book: Book, tag: str) -> tuple[FilterStatus, Elements]:
     the last change (no rereading of the position's history; nothing written)."""
     ctx = context(book, tag)
     els = elements_now(book, ctx)
-    status = status_from(ctx, els.past, els.current, book.now(), like_lives(book, ctx, None))
+    like = partial(like_lives, book, ctx, None)  # read only if its own lives are too few
+    status = status_from(ctx, els.past, els.current, book.now(), like)
     return status, els
 
 
@@ -807,7 +809,7 @@ def live_status(
     book: Book,
     ctx: FilterContext,
     now: datetime | None = None,
-    like: Sequence[tuple[float, bool]] | None = None,
+    like: LikeLives | None = None,
     keep: bool = False,
 ) -> tuple[FilterStatus, bool]:
     """One filter's status now (the same as `filter_status` computes from every live entry)
@@ -816,7 +818,7 @@ def live_status(
     now = now or book.now()
     els = elements_now(book, ctx, keep=keep)
     if like is None:
-        like = like_lives(book, ctx, None)
+        like = partial(like_lives, book, ctx, None)  # read only if its own lives are too few
     status = status_from(ctx, els.past, els.current, now, like)
     return status, els.changed
 
@@ -1315,7 +1317,7 @@ def _compute(book: Book, tags: Sequence[str], now: datetime) -> list[_Rebuilt]:
     for tag in tags:
         ctx = ctxs[tag.upper()]
         past, current = split_summaries(ctx, element_items(book, ctx.position.tag))
-        like = like_lives_from(changes, positions, ctx)
+        like = partial(like_lives_from, changes, positions, ctx)
         last = past[-1] if past else None
         out.append(
             _Rebuilt(

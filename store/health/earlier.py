@@ -5,7 +5,7 @@ as the forecast takes them, and this element's loading pace against them. The fi
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from typing import TYPE_CHECKING
 
 from store.health.conditions import FilterContext
@@ -15,12 +15,17 @@ if TYPE_CHECKING:
     from store.forecast import trend
     from store.forecast.life import WeibullFit
 
+# (life_h, reached_limit) of like positions' removed elements, or what reads them: a position
+# with lives enough of its own never asks. Reading every change of a big like group (a part
+# number on two hundred units, five years of changes) was a sixth of a status's time.
+LikeLives = Sequence[tuple[float, bool]] | Callable[[], Sequence[tuple[float, bool]]]
+
 
 def life_fit(
-    ctx: FilterContext, past: Sequence[ElementSummary], like: Sequence[tuple[float, bool]]
+    ctx: FilterContext, past: Sequence[ElementSummary], like: LikeLives
 ) -> tuple[WeibullFit | None, bool]:
     """Weibull of this position's element lives, pooled with like positions' if it has too
-    few for a fit of its own; and whether it was pooled."""
+    few for a fit of its own (`like` read only then); and whether it was pooled."""
     from store.forecast.life import fit_weibull  # deferred: numpy/scipy load on first fit
 
     failed, censored = [], []
@@ -30,7 +35,11 @@ def life_fit(
             continue
         (failed if el.reached_limit(ctx.position.limit_bar) else censored).append(life)
     fit = fit_weibull(failed, censored) if len(failed) >= 3 else None
-    if fit is None and like:
+    if fit is not None:
+        return fit, False
+    if callable(like):
+        like = like()
+    if like:
         pooled = fit_weibull(
             failed + [h for h, r in like if r], censored + [h for h, r in like if not r]
         )

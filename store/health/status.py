@@ -20,7 +20,7 @@ from typing import TYPE_CHECKING, NamedTuple
 from store.base.errors import BookError
 from store.health import rules
 from store.health.conditions import FilterContext
-from store.health.earlier import life_fit, pace, past_curves
+from store.health.earlier import LikeLives, life_fit, pace, past_curves
 from store.health.elements import (
     Element,
     ElementSummary,
@@ -53,7 +53,7 @@ def filter_status(
     ctx: FilterContext,
     entries: Sequence[Entry],
     now: datetime,
-    like: Sequence[tuple[float, bool]] = (),
+    like: LikeLives = (),
 ) -> FilterStatus:
     """Status of one filter position from its live entries (time order, up to `now`)."""
     elements = split_elements(ctx, entries)
@@ -66,7 +66,7 @@ def status_from(
     past: Sequence[ElementSummary],
     current: Element,
     now: datetime,
-    like: Sequence[tuple[float, bool]] = (),
+    like: LikeLives = (),
 ) -> FilterStatus:
     """Status from the summaries of the removed elements and the element in service."""
     pos, unit = ctx.position, ctx.unit

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from datetime import datetime, timedelta
+from functools import partial
 from operator import attrgetter
 
 from store.base.records import frozen_record
@@ -40,7 +41,7 @@ def status_as_of(book: Book, ctx: FilterContext, as_of: datetime) -> FilterStatu
     entries = [
         e for e in read(book, filter=ctx.position.tag, until=until, as_of=until) if not e.voided
     ]
-    return filter_status(ctx, entries, now, like_lives(book, ctx, until))
+    return filter_status(ctx, entries, now, partial(like_lives, book, ctx, until))
 
 
 def filters_as_of(
