@@ -89,7 +89,14 @@ class Template:
     def at(self, f: np.ndarray) -> np.ndarray:
         """ΔP at life fractions f, continued beyond the end along the last slope."""
         out = np.interp(f, self.f_fine, self.g_fine)
-        return np.where(f > self.f[-1], self.g[-1] + self.end_slope * (f - self.f[-1]), out)
+        beyond = f > self.f[-1]
+        if out.ndim == 0:
+            return np.where(beyond, self.g[-1] + self.end_slope * (f - self.f[-1]), out)
+        # The line only where it is needed (a match asks for 200 lives x every reading, few
+        # of them past the curve's end): the same values as working it out everywhere.
+        if beyond.any():
+            out[beyond] = self.g[-1] + self.end_slope * (f[beyond] - self.f[-1])
+        return out
 
     def inverse(self, dp: np.ndarray) -> np.ndarray:
         """Life fraction at which the curve reaches dp (0 below its start)."""
@@ -275,7 +282,7 @@ def fit_history(
     sigma_b = max(float(np.std(starts, ddof=1)) if starts.size > 1 else 0.0, sigma_floor_bar)
     # Each stretched curve's residuals and prior do not depend on the scatter: made once.
     f = t[None, :] / grid[:, None]  # (G, n)
-    curves = [(y[None, :] - tpl.at(f), _log_prior(grid, tpl.life_h, taus)) for tpl in templates]
+    curves = [(_minus(y, tpl.at(f)), _log_prior(grid, tpl.life_h, taus)) for tpl in templates]
     fit = _match(w, templates, curves, grid, sigma_bar, sigma_b)
     # The curves of earlier elements are not the current element's: when the best match leaves
     # more scatter than the readings' own noise, score with that larger scatter.
@@ -284,6 +291,11 @@ def fit_history(
     if sigma_match > 1.1 * sigma_bar:
         fit = _match(w, templates, curves, grid, sigma_match, sigma_b)
     return fit
+
+
+def _minus(y: np.ndarray, curve: np.ndarray) -> np.ndarray:
+    """y - curve on every row, in the curve's own array (which is not used again)."""
+    return np.subtract(y[None, :], curve, out=curve)
 
 
 def _match(
@@ -299,16 +311,26 @@ def _match(
     ridge = (sigma_bar / sigma_b) ** 2
     log_post = np.empty((len(templates), grid.size))
     offsets = np.empty_like(log_post)
+    w_first = w.sum() + ridge  # the first pass's weights are w on every row
     for j, (r, prior) in enumerate(curves):
-        # Offset b: Huber-weighted mean of the residuals, shrunk towards 0.
-        rw = np.ones_like(r)
-        for i in range(2):
-            ww = w * rw
-            b = (ww * r).sum(1) / (ww.sum(1) + ridge)
-            if i == 0:  # the weights after the last pass would not be used
-                z = np.abs(r - b[:, None]) / (HUBER_K * sigma_bar)
-                rw = np.where(z <= 1.0, 1.0, 1.0 / np.maximum(z, 1e-300))
-        loss = (w * huber_rho((r - b[:, None]) / sigma_bar)).sum(1) + 0.5 * b * b / sigma_b**2
+        # Offset b: Huber-weighted mean of the residuals, shrunk towards 0. Two passes: the
+        # first with the readings' own weights, the second with Huber's weights on them
+        # (1 within HUBER_K scatters, HUBER_K scatters / |residual| beyond).
+        # (In place where a step's array is not needed again: the same values, without a
+        # new (lives x readings) array at each step.)
+        b = (w * r).sum(1) / w_first
+        ww = np.subtract(r, b[:, None])
+        np.abs(ww, out=ww)
+        ww /= HUBER_K * sigma_bar  # |residual| in Huber scatters
+        np.maximum(ww, 1.0, out=ww)
+        np.divide(1.0, ww, out=ww)
+        ww *= w
+        b = (ww * r).sum(1) / (ww.sum(1) + ridge)
+        scaled = np.subtract(r, b[:, None])
+        scaled /= sigma_bar
+        rho = huber_rho(scaled)
+        rho *= w
+        loss = rho.sum(1) + 0.5 * b * b / sigma_b**2
         log_post[j] = prior - loss
         offsets[j] = b
     return HistoryFit(tuple(templates), grid, log_post, offsets, sigma_bar)

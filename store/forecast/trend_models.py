@@ -93,7 +93,17 @@ def _grid(family: _Family) -> np.ndarray:
 def huber_rho(z: np.ndarray) -> np.ndarray:
     """Huber loss of standardised residuals (z²/2 in the middle, linear in the tails)."""
     a = np.abs(z)
-    return np.where(a <= HUBER_K, 0.5 * z * z, HUBER_K * a - 0.5 * HUBER_K**2)
+    if a.ndim == 0:
+        return np.where(a <= HUBER_K, 0.5 * z * z, HUBER_K * a - 0.5 * HUBER_K**2)
+    # The same values, worked out in place: a forecast's match asks for this on 200 lives x
+    # every reading x every earlier curve, where making each step's array anew was half of it.
+    tails = a > HUBER_K  # (a NaN: z²/2 here, the linear part there; NaN either way)
+    out = 0.5 * z
+    out *= z
+    a *= HUBER_K
+    a -= 0.5 * HUBER_K**2
+    np.copyto(out, a, where=tails)
+    return out
 
 
 def robust_sd(x: np.ndarray) -> float:
