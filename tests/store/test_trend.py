@@ -552,3 +552,31 @@ def test_a_kept_earlier_curve_answers_as_a_fresh_one():
     kept = trend._kept_template(earlier[0].ages_h, earlier[0].dp_ref_bar, 900.0, LIMIT)
     with pytest.raises(ValueError):
         kept.g[0] = 0.0
+
+
+def _huber_by_definition(z: float, k: float) -> float:
+    # Huber (1964), "Robust estimation of a location parameter": z²/2 for |z| <= k,
+    # k|z| - k²/2 beyond; written out here one value at a time.
+    if math.isnan(z):
+        return math.nan
+    return 0.5 * z * z if abs(z) <= k else k * abs(z) - 0.5 * k * k
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    st.lists(st.floats(allow_nan=True, allow_infinity=True, width=64), min_size=1, max_size=40),
+    st.integers(1, 3),
+)
+def test_huber_loss_is_the_definition_on_every_value_and_leaves_its_input(values, rows):
+    from store.forecast.trend_models import HUBER_K, huber_rho
+
+    z = np.array(values * rows, dtype=float).reshape(rows, len(values))
+    before = z.copy()
+    with np.errstate(all="ignore"):  # squares of values near the float limit overflow to inf
+        got = huber_rho(z)
+    want = np.array([[_huber_by_definition(v, HUBER_K) for v in row] for row in z.tolist()])
+    assert np.array_equal(got, want, equal_nan=True)
+    assert np.array_equal(z, before, equal_nan=True)  # worked in place, but not in its input
+    edges = np.array([HUBER_K, -HUBER_K, 0.0, -0.0])
+    assert huber_rho(edges).tolist() == [_huber_by_definition(v, HUBER_K) for v in edges]
+    assert float(huber_rho(np.float64(3.5))) == _huber_by_definition(3.5, HUBER_K)
