@@ -42,7 +42,8 @@ from __future__ import annotations
 import json
 import math
 from array import array
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Iterator, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass, field, fields
 from datetime import datetime, timedelta
 from functools import cached_property, partial
@@ -62,6 +63,7 @@ from store.health.conditions import FilterContext, context, contexts
 from store.health.earlier import LikeLives
 from store.health.elements import split_summaries
 from store.health.lives import like_lives, like_lives_from, live_changes
+from store.health.next_reading import Plan
 from store.health.notes import NOTE_TEXT, Note
 from store.health.status import status_from
 from store.health.status_model import (
@@ -794,12 +796,38 @@ def _from_lean(cols: tuple, now: datetime) -> FilterStatus:
 def filter_view(book: Book, tag: str) -> tuple[FilterStatus, Elements]:
     """What the filter sheet shows, now: the full status (curve, history, forecast, which no
     kept row holds) and every element's summary, from the element cache and the entries since
-    the last change (no rereading of the position's history; nothing written)."""
-    ctx = context(book, tag)
-    els = elements_now(book, ctx)
-    like = partial(like_lives, book, ctx, None)  # read only if its own lives are too few
-    status = status_from(ctx, els.past, els.current, book.now(), like)
+    the last change (no rereading of the position's history; nothing written). The next
+    reading is the kept row's where that holds (the list shows the same; working it out again
+    is a second forecast, half of a sheet's time on a long history)."""
+    with _read_snapshot(book):  # the kept row and the entries as of one state of the book
+        ctx = context(book, tag)
+        els = elements_now(book, ctx)
+        now = book.now()
+        kept = lean_filters(book, [ctx.position.tag.upper()], now).get(ctx.position.tag.upper())
+        like = partial(like_lives, book, ctx, None)  # read only if its own lives are too few
+        status = status_from(ctx, els.past, els.current, now, like, _kept_plan(kept))
     return status, els
+
+
+def _kept_plan(kept: FilterStatus | None) -> Plan | None:
+    if kept is None:
+        return None
+    return Plan(kept.next_reading, kept.next_rule, kept.overdue_at)
+
+
+@contextmanager
+def _read_snapshot(book: Book) -> Iterator[None]:
+    """Reads inside see one state of the book (writers go on beside it), unless the caller's
+    transaction already does."""
+    conn = book.conn
+    own = not conn.in_transaction
+    if own:
+        conn.execute("BEGIN")
+    try:
+        yield
+    finally:
+        if own:
+            conn.execute("COMMIT")
 
 
 # ---- live status ---------------------------------------------------------------------------------
@@ -1335,15 +1363,8 @@ def _compute(book: Book, tags: Sequence[str], now: datetime) -> list[_Rebuilt]:
 
 
 def _compute_in_snapshot(book: Book, tags: Sequence[str], now: datetime) -> list[_Rebuilt]:
-    conn = book.conn
-    own = not conn.in_transaction
-    if own:
-        conn.execute("BEGIN")  # a read snapshot: writers go on, we see one state of the book
-    try:
+    with _read_snapshot(book):
         return _compute(book, tags, now)
-    finally:
-        if own:
-            conn.execute("COMMIT")
 
 
 def _store_rebuilt(book: Book, rows: Sequence[_Rebuilt], now: datetime) -> None:

@@ -30,7 +30,7 @@ from store.health.elements import (
     summarise,
     with_running_rate,
 )
-from store.health.next_reading import plan
+from store.health.next_reading import Plan, plan
 from store.health.notes import NOTE_TEXT, Note
 from store.health.status_model import (
     HOT_LOOKBACK,
@@ -67,8 +67,11 @@ def status_from(
     current: Element,
     now: datetime,
     like: LikeLives = (),
+    kept_plan: Plan | None = None,
 ) -> FilterStatus:
-    """Status from the summaries of the removed elements and the element in service."""
+    """Status from the summaries of the removed elements and the element in service.
+    `kept_plan`: the next reading as a kept status row of the same inputs holds it (what
+    `plan` would work out again: a second forecast, at the reading before the newest)."""
     pos, unit = ctx.position, ctx.unit
     rate = hours_per_day([*past[-2:], current], now) if unit.hour_meter else None
     # A reading without the meter is aged at the unit's running rate, not in calendar hours.
@@ -105,7 +108,9 @@ def status_from(
     facts = _facts(ctx, numeric, last)
     for rule in rules.READING_RULES:
         _take(rule(facts), flags, notes)
-    next_reading = plan(ctx, current, numeric, past, fit, clock, due, basis, state, flags)
+    next_reading = kept_plan
+    if next_reading is None:
+        next_reading = plan(ctx, current, numeric, past, fit, clock, due, basis, state, flags)
     clock = replace(clock, state=state)
     status = FilterStatus(
         filter=pos.tag,

@@ -214,6 +214,35 @@ def test_entries_written_without_the_hooks_are_noticed(tmp_path: Path) -> None:
     assert second.id not in [el.removal_id for el in summaries]
 
 
+def test_the_sheet_takes_the_next_reading_of_a_kept_row_only_where_it_holds(
+    tmp_path: Path, monkeypatch
+) -> None:
+    """The filter sheet works out everything but its next reading, which is the kept row's
+    where the row holds (the list shows that one too): the same as computing it again."""
+    book = plant(tmp_path / "book.db")
+    writer = Writer(book, 7)
+    for _ in range(80):
+        writer.step()
+    taken: list[bool] = []
+    real = statuscache._kept_plan
+    monkeypatch.setattr(
+        statuscache, "_kept_plan", lambda kept: taken.append(kept is not None) or real(kept)
+    )
+    ctxs = contexts(book)
+    for tag, ctx in ctxs.items():
+        assert statuscache.filter_view(book, tag)[0] == fresh_status(book, ctx), tag
+    assert taken == [True] * len(ctxs)  # the hooks kept every row
+    last = journal.read(book, filter="U1-RF", kinds=["reading"], newest_first=True, limit=1)[0]
+    late = Reading(id="00000000-0000-4000-8000-000000000003", filter="U1-RF", unit="U1",
+                   dp_bar=1.0, temp_c=50.0, by="AB", at=last.at - timedelta(minutes=5),
+                   logged=CLOCK)  # fmt: skip
+    with book.atomic():  # the row only: U1-RF's kept row no longer holds
+        journal.insert(book, late)
+    taken.clear()
+    assert statuscache.filter_view(book, "U1-RF")[0] == fresh_status(book, ctxs["U1-RF"])
+    assert taken == [False]
+
+
 def test_a_register_change_that_alters_normalising_is_noticed(tmp_path: Path) -> None:
     book = plant(tmp_path / "book.db")
     writer = Writer(book, 5)
