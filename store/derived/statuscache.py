@@ -7,8 +7,9 @@
 - `unit_cache`: each unit's fluid-care entries (`UnitClock.to_row`).
 
 One key per row. A row holds the key of its inputs and is used by a reader (the list now, an
-audit as of a time, a filter's status after a save) only when that key is the one its inputs
-give now; otherwise the reader computes the status from the entries, in memory. The key:
+audit as of a time, a filter's status after a save, the filter sheet's next reading) only when
+that key is the one its inputs give now; otherwise the reader computes the status from the
+entries, in memory. The key:
 
 - `key`: the row format (`FORMAT`: a digest of the kept fields, their types, the note codes'
   words and `RULES`), a digest of the register rows the status reads (the position, its unit,
