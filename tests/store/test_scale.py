@@ -243,6 +243,41 @@ def test_the_sheet_takes_the_next_reading_of_a_kept_row_only_where_it_holds(
     assert taken == [False]
 
 
+def test_a_save_landing_while_the_sheet_reads_is_not_half_seen(tmp_path: Path, monkeypatch) -> None:
+    """The sheet reads its entries and the kept row in one snapshot: a save committed by
+    another connection between the two reads (a laptop's second window, the command line)
+    is seen by neither, not by the kept row alone (whose next reading would then be the new
+    reading's, beside the older readings)."""
+    path = tmp_path / "book.db"
+    book = plant(path)
+    writer = Writer(book, 7)
+    for _ in range(80):
+        writer.step()
+    before, _ = statuscache.filter_view(book, "U1-RF")
+    other = open_book(path)
+    last = journal.read(other, filter="U1-RF", kinds=["reading"], newest_first=True, limit=1)[0]
+    real = statuscache.elements_now
+    saved: list[bool] = []
+
+    def then_a_save(book_, ctx, **kwargs):  # noqa: ANN001, ANN202
+        els = real(book_, ctx, **kwargs)
+        if book_ is book and not saved:  # once, from the sheet's read (the save reads too)
+            saved.append(True)
+            record.log(other, replace(last, id=None, dp_bar=last.dp_bar + 0.05,
+                                      at=last.at + timedelta(hours=2), logged=None))  # fmt: skip
+        return els
+
+    monkeypatch.setattr(statuscache, "elements_now", then_a_save)
+    during, _ = statuscache.filter_view(book, "U1-RF")
+    monkeypatch.setattr(statuscache, "elements_now", real)
+    after, _ = statuscache.filter_view(book, "U1-RF")
+    other.close()
+    assert saved
+    assert during == before  # the book as it stood when the sheet began to read
+    assert after.next_reading != before.next_reading  # the save did move it
+    assert after == fresh_status(book, contexts(book)["U1-RF"])
+
+
 def test_a_register_change_that_alters_normalising_is_noticed(tmp_path: Path) -> None:
     book = plant(tmp_path / "book.db")
     writer = Writer(book, 5)
