@@ -12,6 +12,7 @@ from datetime import datetime, timedelta
 
 from store.base.timeutil import ShiftSpan, format_utc, next_shift
 from store.db.book import Book
+from store.db.connection import read_snapshot
 from store.derived.statuscache import (
     filter_view,
 )
@@ -451,10 +452,11 @@ def filter_sheet(book: Book, tag: str, as_of: datetime | None = None) -> FilterS
     """Everything the filter sheet shows, computed in full (with the fitted curve). Now: from
     the element cache and the readings of the element in service (`statuscache.filter_view`);
     as of a past time: from the entries as they stood then."""
-    position = get(book, FilterPosition, tag)
     if as_of is None:
-        full, els = filter_view(book, position.tag)
-        ctx_unit = get(book, Unit, position.unit)
+        with read_snapshot(book.conn):  # the register rows and the status of one moment
+            position = get(book, FilterPosition, tag)
+            full, els = filter_view(book, position.tag)
+            ctx_unit = get(book, Unit, position.unit)
         return FilterSheet(
             position=position,
             unit=ctx_unit,
@@ -464,6 +466,7 @@ def filter_sheet(book: Book, tag: str, as_of: datetime | None = None) -> FilterS
             uses_hours=ctx_unit.hour_meter
             and (els.current.uses_hours or any(s.uses_hours for s in els.past)),
         )
+    position = get(book, FilterPosition, tag)
     ctx = contexts(book)[position.tag]
     now = as_of or book.now()
     full = status_as_of(book, ctx, now)  # in full: the chart needs the fitted curve

@@ -140,6 +140,21 @@ def no_new_side_files(path: Path) -> Iterator[None]:
         raise
 
 
+@contextmanager
+def read_snapshot(conn: sqlite3.Connection) -> Iterator[None]:
+    """Every read inside sees the book as it stood at the first one (a deferred transaction;
+    inside the caller's transaction when there is one). Writers go on beside it."""
+    if conn.in_transaction:
+        yield
+        return
+    conn.execute("BEGIN")
+    try:
+        yield
+    finally:
+        if conn.in_transaction:
+            conn.execute("ROLLBACK")  # nothing was written: ending it is all
+
+
 def _uri(path: Path, mode: str) -> str:
     if os.name == "nt":  # drive letters; urllib.request costs ~15 ms of imports elsewhere
         from urllib.request import pathname2url

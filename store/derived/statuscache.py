@@ -43,8 +43,7 @@ from __future__ import annotations
 import json
 import math
 from array import array
-from collections.abc import Iterable, Iterator, Sequence
-from contextlib import contextmanager
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field, fields
 from datetime import datetime, timedelta
 from functools import cached_property, partial
@@ -53,6 +52,7 @@ from typing import Any, NamedTuple
 from store.base.records import filled_record, frozen_record
 from store.base.timeutil import format_utc
 from store.db.book import Book
+from store.db.connection import read_snapshot
 from store.derived.elementcache import (
     Elements,
     context_key,
@@ -800,7 +800,7 @@ def filter_view(book: Book, tag: str) -> tuple[FilterStatus, Elements]:
     the last change (no rereading of the position's history; nothing written). The next
     reading is the kept row's where that holds (the list shows the same; working it out again
     is a second forecast, half of a sheet's time on a long history)."""
-    with _read_snapshot(book):  # the kept row and the entries as of one state of the book
+    with read_snapshot(book.conn):  # the kept row and the entries as of one state of the book
         ctx = context(book, tag)
         els = elements_now(book, ctx)
         now = book.now()
@@ -814,21 +814,6 @@ def _kept_plan(kept: FilterStatus | None) -> Plan | None:
     if kept is None:
         return None
     return Plan(kept.next_reading, kept.next_rule, kept.overdue_at)
-
-
-@contextmanager
-def _read_snapshot(book: Book) -> Iterator[None]:
-    """Reads inside see one state of the book (writers go on beside it), unless the caller's
-    transaction already does."""
-    conn = book.conn
-    own = not conn.in_transaction
-    if own:
-        conn.execute("BEGIN")
-    try:
-        yield
-    finally:
-        if own:
-            conn.execute("COMMIT")
 
 
 # ---- live status ---------------------------------------------------------------------------------
@@ -1364,7 +1349,7 @@ def _compute(book: Book, tags: Sequence[str], now: datetime) -> list[_Rebuilt]:
 
 
 def _compute_in_snapshot(book: Book, tags: Sequence[str], now: datetime) -> list[_Rebuilt]:
-    with _read_snapshot(book):
+    with read_snapshot(book.conn):
         return _compute(book, tags, now)
 
 

@@ -48,7 +48,6 @@ import re
 import sqlite3
 import stat
 from collections.abc import Callable, Iterable, Iterator, Sequence
-from contextlib import contextmanager
 from dataclasses import dataclass, fields
 from datetime import UTC, datetime, timedelta, tzinfo
 from operator import itemgetter
@@ -61,6 +60,7 @@ from store.base.prefs import Prefs
 from store.base.timeutil import format_utc, iso_local, next_shift, shift_at
 from store.base.units import from_bar, pressure_key, temperature_key, to_bar
 from store.db.book import Book
+from store.db.connection import read_snapshot
 from store.db.targets import refuse_input_as_output
 from store.exchange.csvcolumns import (
     COLUMNS,
@@ -944,18 +944,3 @@ def _write_batches(out: IO[str], batches: Iterator[list[str]], pad: str = "") ->
             batch.append("")  # the last line's end
             out.write(end.join(batch))
     return count
-
-
-@contextmanager
-def read_snapshot(conn: sqlite3.Connection) -> Iterator[None]:
-    """Every read inside sees the book as it stood at the first one (a deferred transaction;
-    inside the caller's transaction when there is one)."""
-    if conn.in_transaction:
-        yield
-        return
-    conn.execute("BEGIN")
-    try:
-        yield
-    finally:
-        if conn.in_transaction:
-            conn.execute("ROLLBACK")  # nothing was written: ending it is all
