@@ -92,6 +92,7 @@ def _grid(family: _Family) -> np.ndarray:
 
 def huber_rho(z: np.ndarray) -> np.ndarray:
     """Huber loss of standardised residuals (z²/2 in the middle, linear in the tails)."""
+    z = np.asarray(z, dtype=float)  # (no copy of a float array: what the forecast passes)
     a = np.abs(z)
     if a.ndim == 0:
         return np.where(a <= HUBER_K, 0.5 * z * z, HUBER_K * a - 0.5 * HUBER_K**2)

@@ -580,3 +580,5 @@ def test_huber_loss_is_the_definition_on_every_value_and_leaves_its_input(values
     edges = np.array([HUBER_K, -HUBER_K, 0.0, -0.0])
     assert huber_rho(edges).tolist() == [_huber_by_definition(v, HUBER_K) for v in edges]
     assert float(huber_rho(np.float64(3.5))) == _huber_by_definition(3.5, HUBER_K)
+    whole = np.array([-3, 0, 1, 2])  # whole numbers: the same as their floats
+    assert huber_rho(whole).tolist() == [_huber_by_definition(v, HUBER_K) for v in whole]
