@@ -88,10 +88,9 @@ class Template:
 
     def at(self, f: np.ndarray) -> np.ndarray:
         """ΔP at life fractions f, continued beyond the end along the last slope."""
-        out = np.interp(f, self.f_fine, self.g_fine)
+        f = np.asarray(f, dtype=float)
+        out = np.asarray(np.interp(f, self.f_fine, self.g_fine))  # (an array for one f too)
         beyond = f > self.f[-1]
-        if out.ndim == 0:
-            return np.where(beyond, self.g[-1] + self.end_slope * (f - self.f[-1]), out)
         # The line only where it is needed (a match asks for 200 lives x every reading, few
         # of them past the curve's end): the same values as working it out everywhere.
         if beyond.any():

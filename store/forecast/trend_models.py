@@ -93,13 +93,12 @@ def _grid(family: _Family) -> np.ndarray:
 def huber_rho(z: np.ndarray) -> np.ndarray:
     """Huber loss of standardised residuals (z²/2 in the middle, linear in the tails)."""
     z = np.asarray(z, dtype=float)  # (no copy of a float array: what the forecast passes)
-    a = np.abs(z)
-    if a.ndim == 0:
-        return np.where(a <= HUBER_K, 0.5 * z * z, HUBER_K * a - 0.5 * HUBER_K**2)
     # The same values, worked out in place: a forecast's match asks for this on 200 lives x
     # every reading x every earlier curve, where making each step's array anew was half of it.
+    # (Each result an array, a single value's too, as np.where gave.)
+    a = np.abs(z, out=np.empty_like(z))
     tails = a > HUBER_K  # (a NaN: z²/2 here, the linear part there; NaN either way)
-    out = 0.5 * z
+    out = np.multiply(0.5, z, out=np.empty_like(z))
     out *= z
     a *= HUBER_K
     a -= 0.5 * HUBER_K**2
