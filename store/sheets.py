@@ -455,12 +455,13 @@ def filter_sheet(book: Book, tag: str, as_of: datetime | None = None) -> FilterS
     if as_of is None:
         with read_snapshot(book.conn):  # the register rows and the status of one moment
             position = get(book, FilterPosition, tag)
-            full, els = filter_view(book, position.tag)
+            now = book.now()  # the sheet's time and its status's
+            full, els = filter_view(book, position.tag, now)
             ctx_unit = get(book, Unit, position.unit)
         return FilterSheet(
             position=position,
             unit=ctx_unit,
-            as_of=book.now(),
+            as_of=now,
             status=full,
             elements=tuple(summary_rows(els.past, els.current, position.limit_bar)),
             uses_hours=ctx_unit.hour_meter

@@ -794,7 +794,7 @@ def _from_lean(cols: tuple, now: datetime) -> FilterStatus:
     )
 
 
-def filter_view(book: Book, tag: str) -> tuple[FilterStatus, Elements]:
+def filter_view(book: Book, tag: str, now: datetime | None = None) -> tuple[FilterStatus, Elements]:
     """What the filter sheet shows, now: the full status (curve, history, forecast, which no
     kept row holds) and every element's summary, from the element cache and the entries since
     the last change (no rereading of the position's history; nothing written). The next
@@ -803,7 +803,7 @@ def filter_view(book: Book, tag: str) -> tuple[FilterStatus, Elements]:
     with read_snapshot(book.conn):  # the kept row and the entries as of one state of the book
         ctx = context(book, tag)
         els = elements_now(book, ctx)
-        now = book.now()
+        now = now or book.now()
         kept = lean_filters(book, [ctx.position.tag.upper()], now).get(ctx.position.tag.upper())
         like = partial(like_lives, book, ctx, None)  # read only if its own lives are too few
         status = status_from(ctx, els.past, els.current, now, like, _kept_plan(kept))

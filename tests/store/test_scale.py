@@ -278,6 +278,21 @@ def test_a_save_landing_while_the_sheet_reads_is_not_half_seen(tmp_path: Path, m
     assert after == fresh_status(book, contexts(book)["U1-RF"])
 
 
+def test_the_sheet_and_its_status_are_of_one_time(tmp_path: Path, monkeypatch) -> None:
+    """A sheet says the time it is of (`as_of`) and shows the status worked out at that very
+    time: on a clock that moves between two reads, the element's age is its age then."""
+    book = plant(tmp_path / "book.db")
+    writer = Writer(book, 3)
+    for _ in range(40):
+        writer.step()
+    ticks = iter(range(1000))
+    start = book.now()
+    monkeypatch.setattr(Book, "now", lambda self: start + timedelta(minutes=next(ticks)))
+    sheet = sheets.filter_sheet(book, "U1-RF")
+    clock = sheet.status.clock
+    assert sheet.status.element_age_h == clock.age_h(sheet.as_of)
+
+
 def test_a_register_change_that_alters_normalising_is_noticed(tmp_path: Path) -> None:
     book = plant(tmp_path / "book.db")
     writer = Writer(book, 5)
