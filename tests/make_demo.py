@@ -34,8 +34,9 @@ from pathlib import Path
 from zoneinfo import ZoneInfo
 
 ROOT = Path(__file__).resolve().parent.parent
-if str(ROOT) not in sys.path:  # run as a script from anywhere
-    sys.path.insert(0, str(ROOT))
+# Run as a script, Python puts tests/ first on the path, where tests/store would stand in for
+# the package: the repository's top goes before it, whatever else is installed.
+sys.path.insert(0, str(ROOT))
 
 
 from store import record  # noqa: E402
