@@ -11,7 +11,7 @@ from datetime import datetime
 
 from store.base.records import frozen_record
 from store.db.book import Book
-from store.derived import statuscache
+from store.derived import breathercache, statuscache
 from store.health.status_model import FilterStatus
 from store.ledger import journal
 from store.ledger.entries import Entry
@@ -39,6 +39,8 @@ def after_write(book: Book, entries: Sequence[Entry]) -> dict[str, FilterStatus]
         if status is not None:
             kept[status.filter.upper()] = status
     statuscache.move_seen_on(book, reg)
+    if entries:  # a write that added nothing leaves the file as it was
+        breathercache.keep_touched(book)
     return kept
 
 

@@ -1,5 +1,6 @@
 """The watch list and each filter's status, as the screens and the command line ask for them,
-now or as of a past time. Each reader uses a kept row (store/derived/statuscache.py) only where
+now or as of a past time. Each reader uses a kept row (store/derived/statuscache.py; a
+breather's, store/derived/breathercache.py) only where
 its key matches its inputs as they are (and, as of a time, as they stood then), and computes
 the rest from the entries (as of a past time, a filter's earlier kept row where it provably
 stands for that time); what moves with the clock is worked out at read time. Nothing here
@@ -11,6 +12,7 @@ from datetime import datetime, timedelta
 
 from store.base.collector import collector_held
 from store.db.book import Book
+from store.derived.breathercache import records_now
 from store.derived.elementcache import kept_before
 from store.derived.statuscache import (
     cached_units,
@@ -26,13 +28,14 @@ from store.health.status_model import FilterStatus, Watch
 from store.health.units import unit_status
 from store.health.watchlist import (
     breathers_at,
+    breathers_from,
     changes_as_of,
     filters_as_of,
     plant,
     status_as_of,
     watch_list,
 )
-from store.ledger.register import FilterPosition, list_all
+from store.ledger.register import Breather, FilterPosition, list_all
 
 
 def watch(book: Book, as_of: datetime | None = None, unit: str | None = None) -> Watch:
@@ -62,7 +65,9 @@ def _watch_now(book: Book, unit: str | None) -> Watch:
     units = cached_units(
         book, [u for u in all_units if unit is None or u.tag == unit], by_unit, now, reg
     )
-    return watch_list(now, filters, breathers_at(book, now, unit), units, computed)
+    breathers = list_all(book, Breather, unit)
+    records = records_now(book, now, [b.tag for b in breathers])
+    return watch_list(now, filters, breathers_from(breathers, records, now), units, computed)
 
 
 def _watch_as_of(book: Book, as_of: datetime, unit: str | None) -> Watch:

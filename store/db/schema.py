@@ -630,6 +630,33 @@ CREATE TABLE status_earlier (
 ) WITHOUT ROWID;
 """
 
+# ---- version 9: what each breather's swaps come to --------------------------------------------
+# A breather's next swap is read from every live swap it ever had (the lives its desiccant
+# told), so the watch list read them all, more with every year. `breather_cache` keeps, per
+# breather, what its forecast takes of them: the median life in days (NULL: no swap told
+# one), the last live swap's time and condition; and the span of the clock it holds for: the
+# swaps dated before `bound_utc` were read, and none of its swaps or their voids is dated
+# from `bound_utc` to before `until_utc` (NULL: none later). `breather_seen` (one row): every
+# kept row holds for the entries up to `seen_rowid`, in the row format `format`; the entries
+# written after it name the breathers a reader computes (store/derived/breathercache.py).
+# Derived: created empty, filled by the next save, refresh or `sumpbook rebuild`; until then
+# the list reads the swaps as before.
+V9 = """
+CREATE TABLE breather_cache (
+    breather TEXT PRIMARY KEY COLLATE NOCASE REFERENCES breathers(tag) ON DELETE CASCADE,
+    bound_utc TEXT NOT NULL,
+    until_utc TEXT,
+    median_life_d REAL,
+    last_at TEXT,
+    last_condition TEXT NOT NULL
+);
+CREATE TABLE breather_seen (
+    one INTEGER PRIMARY KEY CHECK (one = 1),
+    seen_rowid INTEGER NOT NULL,
+    format TEXT NOT NULL
+);
+"""
+
 # One SQL script per schema version, in order. Never edit a released step: add one.
-MIGRATIONS: list[str] = [V1, V2, V3, V4, V5, V6, V7, V8]
+MIGRATIONS: list[str] = [V1, V2, V3, V4, V5, V6, V7, V8, V9]
 SCHEMA_VERSION = len(MIGRATIONS)

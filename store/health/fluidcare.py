@@ -181,27 +181,43 @@ class BreatherForecast:
 _at = attrgetter("at")
 
 
-def breather_forecast(
-    breather: Breather, swaps: Sequence[SwapMark], now: datetime
-) -> BreatherForecast:
-    """Next swap: the set interval, shortened or stretched by how spent earlier cartridges were
-    (`swaps`: the breather's live swaps, `journal.live_swap_marks`)."""
+class SwapRecord(NamedTuple):
+    """What a breather's forecast takes of its live swaps: the median of its cartridges'
+    lives in days as their desiccant told them (days in service ÷ the fraction spent; None
+    where no swap told one), and the last swap's time and condition. Kept per breather
+    (store/derived/breathercache.py), so that a list need not read every swap."""
+
+    median_life_d: float | None
+    last_at: datetime | None
+    last_condition: str
+
+
+def swap_record(swaps: Sequence[SwapMark]) -> SwapRecord:
+    """`swaps`: a breather's live swaps (`journal.live_swap_marks`), in any order."""
     live = sorted(swaps, key=_at)
-    interval_d = breather.swap_interval_d
-    basis = "interval"
     lives = []
     for prev, cur in zip(live, live[1:], strict=False):
         days = (cur.at - prev.at).total_seconds() / 86400  # type: ignore[operator]
         fraction = spent_fraction(cur.condition)
         if fraction and fraction >= 0.2 and days > 0:
             lives.append(days / fraction)
-    if lives:
-        interval_d = min(0.9 * _median(lives), 2 * breather.swap_interval_d)
+    if not live:
+        return SwapRecord(None, None, "")
+    return SwapRecord(_median(lives) if lives else None, live[-1].at, live[-1].condition)
+
+
+def forecast_from(breather: Breather, record: SwapRecord, now: datetime) -> BreatherForecast:
+    """Next swap: the set interval, shortened or stretched by how spent earlier cartridges were
+    (`record`: what the breather's live swaps come to, `swap_record`)."""
+    interval_d = breather.swap_interval_d
+    basis = "interval"
+    if record.median_life_d is not None:
+        interval_d = min(0.9 * record.median_life_d, 2 * breather.swap_interval_d)
         basis = "condition"
-    last = live[-1].at if live else None
+    last = record.last_at
     due = last + timedelta(days=interval_d) if last else None
     return BreatherForecast(
-        last, due, interval_d, basis, bool(due and due < now), live[-1].condition if live else ""
+        last, due, interval_d, basis, bool(due and due < now), record.last_condition
     )
 
 

@@ -16,7 +16,7 @@ from store.base.records import frozen_record
 from store.db.book import Book
 from store.health.conditions import FilterContext, contexts_from, shortest_read_h
 from store.health.elements import ElementSummary, split_summaries
-from store.health.fluidcare import breather_forecast, spent_fraction
+from store.health.fluidcare import SwapRecord, forecast_from, spent_fraction, swap_record
 from store.health.lives import like_lives, like_lives_all, live_changes
 from store.health.status import filter_status, status_from
 from store.health.status_model import BreatherStatus, FilterStatus, UnitStatus, Watch
@@ -154,7 +154,21 @@ def watch_as_of(book: Book, as_of: datetime, unit: str | None = None) -> Watch:
 def _breather_status(
     breather: Breather, swaps: Sequence[SwapMark], now: datetime
 ) -> BreatherStatus:
-    forecast = breather_forecast(breather, swaps, now)
+    return breather_status_from(breather, swap_record(swaps), now)
+
+
+def breathers_from(
+    breathers: Sequence[Breather], records: dict[str, SwapRecord], now: datetime
+) -> list[BreatherStatus]:
+    """`breathers_at` from what each breather's swaps come to (`records`, by upper-case tag,
+    as store/derived/breathercache.py keeps them), most urgent first."""
+    found = [breather_status_from(b, records[b.tag.upper()], now) for b in breathers]
+    found.sort(key=_urgency)
+    return found
+
+
+def breather_status_from(breather: Breather, record: SwapRecord, now: datetime) -> BreatherStatus:
+    forecast = forecast_from(breather, record, now)
     flags = []
     if forecast.overdue:
         flags.append("swap-overdue")

@@ -3,6 +3,7 @@ here touch the entries table only; a save goes through store.record."""
 
 from __future__ import annotations
 
+import json
 import sqlite3
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import fields, replace
@@ -603,7 +604,7 @@ def element_items_until(
 
 
 class SwapMark(NamedTuple):
-    """What a breather's forecast reads of a live swap (store.health.fluidcare.breather_forecast):
+    """What a breather's forecast reads of a live swap (store.health.fluidcare.swap_record):
     when it was and the desiccant as found ("" when not said)."""
 
     at: datetime
@@ -618,16 +619,22 @@ _LIVE_SWAPS = (
 )
 
 
-def live_swap_marks(book: Book, until: datetime | None = None) -> dict[str, list[SwapMark]]:
+def live_swap_marks(
+    book: Book, until: datetime | None = None, breathers: Sequence[str] | None = None
+) -> dict[str, list[SwapMark]]:
     """Every breather's live swaps in time order, keyed by upper-case tag, as only what a
     forecast needs (no entry built: a third of the time on the year's book); with `until`, as
-    the book stood then (swaps before it, voided only by voids dated before it). A voided swap
-    is not read; a live row that cannot be read is noted and left out, as `read` does."""
+    the book stood then (swaps before it, voided only by voids dated before it); with
+    `breathers`, of those tags only. A voided swap is not read; a live row that cannot be
+    read is noted and left out, as `read` does."""
     params: list[Any] = []
     void_until = until_sql = ""
     if until is not None:
         stamp = format_utc(until)
         until_sql, void_until, params = " AND e.at_utc < ?", " AND v.at_utc < ?", [stamp, stamp]
+    if breathers is not None:
+        until_sql += " AND e.breather IN (SELECT value FROM json_each(?))"
+        params.insert(1 if until is not None else 0, json.dumps(list(breathers)))
     sql = _LIVE_SWAPS.format(until=until_sql, void_until=void_until)
     out: dict[str, list[SwapMark]] = {}
     last, found = None, []

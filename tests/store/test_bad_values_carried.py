@@ -32,6 +32,7 @@ from store.db.proof import (
 )
 from store.ledger import journal
 from tests.kit.plant import run_cli
+from tests.kit.schema_steps import drop_tables_after
 
 
 def with_bad_value(path: Path, entry_id: str) -> None:
@@ -53,9 +54,9 @@ def with_bad_value(path: Path, entry_id: str) -> None:
 
 
 def schema_7(path: Path) -> None:
-    """The book as the previous schema left it (the step this version adds undone)."""
+    """The book as schema 7 left it (the tables the steps since added, dropped)."""
     conn = sqlite3.connect(path, isolation_level=None)
-    conn.executescript("DROP TABLE status_earlier; PRAGMA user_version = 7;")
+    conn.executescript(drop_tables_after(7) + "PRAGMA user_version = 7;")
     conn.close()
 
 

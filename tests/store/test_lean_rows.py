@@ -28,6 +28,7 @@ from store.health.status_model import FilterStatus
 from store.health.watchlist import watch_list
 from store.ledger.register import FilterPosition, Unit, list_all
 from tests.kit.kept_demo import kept_demo, moved
+from tests.kit.schema_steps import drop_tables_after
 
 LATER = [
     timedelta(0),
@@ -140,7 +141,9 @@ def test_the_upgrade_to_schema_7_empties_the_filter_rows_alone(kept: Path, tmp_p
     units = conn.execute("SELECT * FROM unit_cache ORDER BY unit").fetchall()
     seen = conn.execute("SELECT * FROM kept_seen WHERE what = 'unit' ORDER BY tag").fetchall()
     conn.executescript(
-        "BEGIN; DROP TABLE status_earlier; ALTER TABLE status_cache RENAME TO v7_rows;"
+        "BEGIN; "
+        + drop_tables_after(7)
+        + "ALTER TABLE status_cache RENAME TO v7_rows;"
         + schema.V6.split("DROP TABLE unit_cache;")[1].split("CREATE TABLE unit_cache")[0]
         + "INSERT INTO status_cache SELECT filter, key, computed_utc, newest_utc, data "
         "FROM v7_rows; DROP TABLE v7_rows; PRAGMA user_version = 6; COMMIT;"

@@ -23,6 +23,7 @@ from store.ledger import register as registry
 from store.ledger.entries import ElementChange, Reading, Void
 from store.ledger.register import FilterPosition
 from tests.kit.kept_demo import kept_copy, pooling
+from tests.kit.schema_steps import drop_tables_after
 from tests.store.test_status_as_of import assert_same, fitted_again
 
 SHIFT = timedelta(hours=8)
@@ -203,7 +204,7 @@ def test_a_schema_7_book_gets_the_table_and_keeps_its_rows(demo: Path, tmp_path:
     path.write_bytes(demo.read_bytes())
     conn = sqlite3.connect(path)
     rows = conn.execute("SELECT * FROM status_cache ORDER BY filter").fetchall()
-    conn.executescript("DROP TABLE status_earlier; PRAGMA user_version = 7;")
+    conn.executescript(drop_tables_after(7) + "PRAGMA user_version = 7;")
     conn.close()
     with open_book(path, create=False) as book:
         assert book.conn.execute("PRAGMA user_version").fetchone()[0] == schema.SCHEMA_VERSION
