@@ -759,13 +759,18 @@ def backup_on_close(book: Book) -> str | None:
     return None
 
 
+def _upgrading(text: str) -> None:
+    """Before the screen is taken: an older book's upgrade can take minutes."""
+    print(f"sumpbook: {inert_line(text)}", file=sys.stderr, flush=True)
+
+
 def open_for_app(db: Path | None, session: Session) -> tuple[Book, bool, Path | None]:
     """(book, demo, new path). The logbook when it exists. One named (--db or SUMPBOOK_DB)
     that does not exist yet: an empty throw-away book to stand on while the app offers to
     create it. Neither: a fresh throw-away copy of the demo plant, nothing of it kept."""
     path = db or session.db_path
     if path.exists() and path.stat().st_size > 0:
-        return open_book(path, clock=session.clock), False, None
+        return open_book(path, clock=session.clock, on_upgrade=_upgrading), False, None
     from store.exchange.demo import throwaway_demo, throwaway_empty
 
     if db is not None or session.db_named:

@@ -71,10 +71,14 @@ def _render() -> Any:
 OPENED: list[Book] = []
 
 
+def _upgrading(text: str) -> None:
+    say(f"note: {text}", stderr=True)
+
+
 def _book(args: argparse.Namespace, create: bool = False) -> Book:
     path = Path(args.db or args.session.db_path)
     new = create and not (path.exists() and path.stat().st_size > 0)
-    book = open_book(path, create=create, clock=args.session.clock)
+    book = open_book(path, create=create, clock=args.session.clock, on_upgrade=_upgrading)
     if new:  # a mistyped path must not become a second logbook without a word
         say(f"note: there was no logbook at {path}: a new, empty one was created", stderr=True)
     for notice in book.notices:  # e.g. rows an upgrade could not carry over
