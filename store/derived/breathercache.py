@@ -191,7 +191,8 @@ def keep_touched(book: Book) -> None:
     if mark >= newest:
         return
     touched = _touched_since(book, mark)
-    _keep(book, [t for t in _register_tags(book) if t.upper() in touched], book.now())
+    if touched:  # most saves are readings: no breather to read again, only the mark moves
+        _keep(book, [t for t in _register_tags(book) if t.upper() in touched], book.now())
     _set_mark(book, newest)
 
 
