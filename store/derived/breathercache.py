@@ -28,8 +28,10 @@ from hashlib import blake2b
 
 from store.base.timeutil import format_utc, parse_utc
 from store.db.book import Book
-from store.health.fluidcare import SwapRecord, swap_record
+from store.derived.elementcache import max_rowid
+from store.health.fluidcare import NO_SWAPS, SwapRecord, swap_record
 from store.ledger.journal import live_swap_marks
+from store.ledger.register import Breather, list_all
 
 RULES = 1  # what a row's numbers mean; a change here, and every kept row is read again
 FORMAT = blake2b(repr([RULES, SwapRecord._fields]).encode(), digest_size=8).hexdigest()
@@ -131,8 +133,7 @@ def records_now(book: Book, now: datetime, tags: Sequence[str]) -> dict[str, Swa
     rest = [t for t in tags if t.upper() not in kept]
     if rest:
         kept.update(computed(book, now, rest if kept else None))
-    empty = SwapRecord(None, None, "")
-    return {t.upper(): kept.get(t.upper(), empty) for t in tags}
+    return {t.upper(): kept.get(t.upper(), NO_SWAPS) for t in tags}
 
 
 # ---- writing -------------------------------------------------------------------------------------
@@ -159,7 +160,7 @@ def _keep(book: Book, tags: Sequence[str], now: datetime) -> None:
                 record.last_condition,
             )
             for tag in tags
-            for record in [records.get(tag.upper(), SwapRecord(None, None, ""))]
+            for record in [records.get(tag.upper(), NO_SWAPS)]
         ],
     )
 
@@ -171,19 +172,15 @@ def _set_mark(book: Book, rowid: int) -> None:
     )
 
 
-def _newest(book: Book) -> int:
-    return book.conn.execute("SELECT coalesce(max(rowid), 0) FROM entries").fetchone()[0]
-
-
 def _register_tags(book: Book) -> list[str]:
-    return [tag for (tag,) in book.conn.execute("SELECT tag FROM breathers ORDER BY tag")]
+    return [b.tag for b in list_all(book, Breather)]
 
 
 def keep_touched(book: Book) -> None:
     """Inside a save's transaction, after its entries: the breathers the entries written
     since the mark touch are read again and kept, and the mark moves to the newest entry (no
     mark yet, or of another format: every breather is read)."""
-    newest = _newest(book)
+    newest = max_rowid(book)
     mark = _mark(book)
     if mark is None:
         _keep_all(book, newest)
@@ -217,7 +214,7 @@ def refresh(book: Book) -> None:
 
 def _all_held(book: Book) -> bool:
     mark = _mark(book)
-    if mark is None or mark < _newest(book):
+    if mark is None or mark < max_rowid(book):
         return False
     held = kept_records(book, book.now())
     return all(t.upper() in held for t in _register_tags(book))
@@ -226,4 +223,4 @@ def _all_held(book: Book) -> bool:
 def rebuild(book: Book) -> None:
     """Every row again from the swaps (`sumpbook rebuild`), in one transaction."""
     with book.atomic():
-        _keep_all(book, _newest(book))
+        _keep_all(book, max_rowid(book))

@@ -192,6 +192,9 @@ class SwapRecord(NamedTuple):
     last_condition: str
 
 
+NO_SWAPS = SwapRecord(None, None, "")  # a breather never swapped: the set interval from nothing
+
+
 def swap_record(swaps: Sequence[SwapMark]) -> SwapRecord:
     """`swaps`: a breather's live swaps (`journal.live_swap_marks`), in any order."""
     live = sorted(swaps, key=_at)
@@ -202,7 +205,7 @@ def swap_record(swaps: Sequence[SwapMark]) -> SwapRecord:
         if fraction and fraction >= 0.2 and days > 0:
             lives.append(days / fraction)
     if not live:
-        return SwapRecord(None, None, "")
+        return NO_SWAPS
     return SwapRecord(_median(lives) if lives else None, live[-1].at, live[-1].condition)
 
 

@@ -20,6 +20,7 @@ from store.base.timeutil import format_utc
 from store.db.book import open_book
 from store.derived import breathercache
 from store.health import watchlist
+from store.health.fluidcare import NO_SWAPS
 from store.ledger.entries import BreatherSwap, Void
 from tests.kit.kept_demo import kept_copy
 from tests.kit.schema_steps import drop_tables_after
@@ -41,7 +42,7 @@ def assert_kept_rows_true(book, now) -> dict:
     kept = breathercache.kept_records(book, now)
     computed = breathercache.computed(book, now, None)
     for tag, rec in kept.items():
-        assert rec == computed.get(tag, breathercache.SwapRecord(None, None, "")), tag
+        assert rec == computed.get(tag, NO_SWAPS), tag
     assert tuple(views.watch(book).breathers) == tuple(watchlist.breathers_at(book, book.now()))
     return kept
 
@@ -184,7 +185,7 @@ def test_kept_rows_hold_at_every_clock_they_claim(demo: Path) -> None:
             kept = breathercache.kept_records(book, now)
             computed = breathercache.computed(book, now, None)
             for tag, rec in kept.items():
-                assert rec == computed.get(tag, breathercache.SwapRecord(None, None, "")), (
+                assert rec == computed.get(tag, NO_SWAPS), (
                     tag,
                     now,
                 )
