@@ -23,7 +23,6 @@ from store.health.status_model import BreatherStatus, FilterStatus, UnitStatus, 
 from store.health.units import unit_status
 from store.ledger.entries import Entry
 from store.ledger.journal import (
-    SwapMark,
     element_items_until,
     live_changes_until,
     live_swap_marks,
@@ -108,12 +107,9 @@ def plant(book: Book, unit: str | None = None) -> Plant:
 def breathers_at(book: Book, now: datetime, unit: str | None = None) -> list[BreatherStatus]:
     """Every breather's status at `now` (of one unit), most urgent first."""
     swaps = live_swap_marks(book, now + timedelta(seconds=1))  # only what the forecast reads
-    breathers = [
-        _breather_status(b, swaps.get(b.tag.upper(), ()), now)
-        for b in list_all(book, Breather, unit)
-    ]
-    breathers.sort(key=_urgency)
-    return breathers
+    breathers = list_all(book, Breather, unit)
+    records = {b.tag.upper(): swap_record(swaps.get(b.tag.upper(), ())) for b in breathers}
+    return breathers_from(breathers, records, now)
 
 
 _urgency = attrgetter("urgency")
@@ -149,12 +145,6 @@ def watch_as_of(book: Book, as_of: datetime, unit: str | None = None) -> Watch:
         unit_status(book, u, p.positions_by_unit.get(u.tag.upper(), []), as_of) for u in p.units
     ]
     return watch_list(as_of, filters, breathers_at(book, as_of, unit), units)
-
-
-def _breather_status(
-    breather: Breather, swaps: Sequence[SwapMark], now: datetime
-) -> BreatherStatus:
-    return breather_status_from(breather, swap_record(swaps), now)
 
 
 def breathers_from(

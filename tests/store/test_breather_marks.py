@@ -18,6 +18,7 @@ from store import record, views
 from store.base.timeutil import format_utc, parse_utc
 from store.db.book import open_book
 from store.health import status_json, watchlist
+from store.health.fluidcare import swap_record
 from store.ledger import journal
 from store.ledger.entries import BreatherSwap, Void
 from store.ledger.register import Breather, list_all
@@ -61,8 +62,10 @@ def full_way(book, now, unit=None):
     until = now + timedelta(seconds=1)
     swaps = full_swaps(book, until)
     out = [
-        watchlist._breather_status(  # type: ignore[arg-type]
-            b, [e for e in swaps.get(b.tag.upper(), []) if not e.voided], now
+        watchlist.breather_status_from(
+            b,
+            swap_record([e for e in swaps.get(b.tag.upper(), []) if not e.voided]),  # type: ignore[misc]
+            now,
         )
         for b in list_all(book, Breather, unit)
     ]
