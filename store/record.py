@@ -104,11 +104,16 @@ def _append(book: Book, entry: Entry, now: datetime) -> Entry:
 
 def refresh_stale(book: Book, limit: int | None = None) -> list[str]:
     """The explicit refresh behind a watch list: recompute and keep the derived rows that do
-    not hold now (at most `limit` filters). Returns the tags."""
-    return statuscache.refresh_stale(book, limit)
+    not hold now (at most `limit` filters; every unit and breather). Returns the filters'
+    tags."""
+    done = statuscache.refresh_stale(book, limit)
+    breathercache.refresh(book)
+    return done
 
 
 def rebuild(book: Book) -> int:
     """Drop and recompute every derived row from the entries (`sumpbook rebuild`); returns
     how many filters were done."""
-    return statuscache.rebuild(book)
+    count = statuscache.rebuild(book)
+    breathercache.rebuild(book)
+    return count

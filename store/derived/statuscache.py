@@ -53,7 +53,6 @@ from store.base.records import filled_record, frozen_record
 from store.base.timeutil import format_utc
 from store.db.book import Book
 from store.db.connection import read_snapshot
-from store.derived import breathercache
 from store.derived.elementcache import (
     Elements,
     context_key,
@@ -1199,7 +1198,6 @@ def refresh_stale(book: Book, limit: int | None = None) -> list[str]:
             reg = register(book)
             for tag in units:
                 refresh_unit(book, tag, reg=reg)
-    breathercache.refresh(book)
     return tags
 
 
@@ -1372,9 +1370,8 @@ def _store_rebuilt(book: Book, rows: Sequence[_Rebuilt], now: datetime) -> None:
 
 
 def rebuild(book: Book) -> int:
-    """Drop and recompute the derived tables (element summaries, statuses, the breathers'
-    kept swaps) from the entries (in this process: no worker processes, see DEVELOPERS.md
-    "Keeping it quick")."""
+    """Drop and recompute the derived tables (element summaries and statuses) from the entries
+    (in this process: no worker processes, see DEVELOPERS.md "Keeping it quick")."""
     now = book.now()
     tags = [ctx.position.tag for ctx in contexts(book).values()]
     with book.atomic():
@@ -1394,5 +1391,4 @@ def rebuild(book: Book) -> int:
         # Entries written while we computed: the rows they touch no longer match their key
         # and stay behind (a reader computes them); every other row is checked up to now.
         move_seen_on(book, reg)
-    breathercache.rebuild(book)
     return len(rows)

@@ -21,8 +21,8 @@ How the numbers are made (seeded, so the same arguments give the same book):
   wrong, voided and logged again.
 
 Speed: rows are made with numpy per filter, sorted by time, and written in one transaction with
-the secondary indexes dropped and made again afterwards. The status cache is then rebuilt
-through the store (store.derived.statuscache.rebuild), as `sumpbook rebuild` would. The book is frozen
+the secondary indexes dropped and made again afterwards. The derived rows are then rebuilt
+through the store (store.record.rebuild), as `sumpbook rebuild` would. The book is frozen
 at the end of its last shift (setting 'clock'), so every run of the benchmark sees the same
 "now"; delete that setting to let the book age.
 """
@@ -499,7 +499,7 @@ def build(
     times["filters"] = len(register["filters"])
     times["rebuild_s"] = 0.0
     if cache:
-        from store.derived.statuscache import rebuild
+        from store.record import rebuild
 
         mark = time.perf_counter()
         with open_book(path) as book:

@@ -9,6 +9,7 @@ from dataclasses import replace
 from datetime import timedelta
 from pathlib import Path
 
+from store import record
 from store.base.timeutil import format_utc, parse_utc
 from store.db.book import open_book
 from store.derived import statuscache
@@ -22,7 +23,7 @@ def kept_demo(folder: Path) -> Path:
     """The demo with its caches filled at the end of its story (as `sumpbook rebuild`)."""
     path = folder / "demo.db"
     with create_demo(path) as book:
-        statuscache.rebuild(book)
+        record.rebuild(book)
         book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
     return path
 
@@ -32,7 +33,7 @@ def kept_copy(demo_file: Path, tmp_path: Path) -> Path:
     path = tmp_path / "demo.db"
     path.write_bytes(demo_file.read_bytes())
     with open_book(path, create=False) as book:
-        statuscache.rebuild(book)
+        record.rebuild(book)
     return path
 
 

@@ -129,7 +129,7 @@ def test_a_swap_dated_ahead_counts_from_its_time_on(demo: Path) -> None:
         assert_kept_rows_true(book, later)
         shown = {b.breather: b for b in views.watch(book).breathers}
         assert shown[tag].forecast.last_swap == end + timedelta(hours=12)
-        breathercache.refresh(book)  # the app's catch-up reads it again at this clock
+        record.refresh_stale(book)  # the app's catch-up reads it again at this clock
         assert tag.upper() in assert_kept_rows_true(book, later)
 
 
