@@ -627,15 +627,18 @@ def live_swap_marks(
     the book stood then (swaps before it, voided only by voids dated before it); with
     `breathers`, of those tags only. A voided swap is not read; a live row that cannot be
     read is noted and left out, as `read` does."""
-    params: list[Any] = []
-    void_until = until_sql = ""
+    where = void_until = ""
+    params: list[Any] = []  # in the order the SQL reads them: the swap's, then the void's
+    void_params: list[Any] = []
     if until is not None:
         stamp = format_utc(until)
-        until_sql, void_until, params = " AND e.at_utc < ?", " AND v.at_utc < ?", [stamp, stamp]
+        where, params = " AND e.at_utc < ?", [stamp]
+        void_until, void_params = " AND v.at_utc < ?", [stamp]
     if breathers is not None:
-        until_sql += " AND e.breather IN (SELECT value FROM json_each(?))"
-        params.insert(1 if until is not None else 0, json.dumps(list(breathers)))
-    sql = _LIVE_SWAPS.format(until=until_sql, void_until=void_until)
+        where += " AND e.breather IN (SELECT value FROM json_each(?))"
+        params.append(json.dumps(list(breathers)))
+    sql = _LIVE_SWAPS.format(until=where, void_until=void_until)
+    params += void_params
     out: dict[str, list[SwapMark]] = {}
     last, found = None, []
     for tag, at, logged, condition, entry_id in book.conn.execute(sql, params):
