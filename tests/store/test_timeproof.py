@@ -26,6 +26,7 @@ from store.db.book import open_book
 from store.derived import statuscache
 from store.forecast.life import WeibullFit
 from store.health import status_json, status_model, watchlist
+from store.health.conditions import contexts
 from store.ledger.entries import ElementChange, Reading, Void
 from store.ledger.register import Unit, list_all
 from tests.kit.kept_demo import behind_the_hooks, kept_demo, moved, pooling
@@ -124,6 +125,34 @@ def test_the_clock_parts_do_move_on_the_demo(kept: Path, tmp_path: Path) -> None
     assert {f.filter: f.element_age_h for f in week.filters} != {
         f.filter: f.element_age_h for f in then.filters
     }
+
+
+def test_a_clock_set_back_before_the_rows_were_kept_computes_them(
+    kept: Path, tmp_path: Path
+) -> None:
+    # A laptop's clock corrected backwards, two days before the end of the story: a row
+    # kept at the later clock may hold readings dated after the earlier one, and its clock
+    # parts hold only from when it was kept (status_model.at_time). Each filter is then
+    # computed, as statuscache.live_status computes it at that clock.
+    path = moved(kept, tmp_path, timedelta(days=-2))
+    with open_book(path, create=False) as book:
+        now = book.now()
+        listed = {f.filter: f for f in views.watch(book).filters}
+        ctxs = contexts(book)
+        computed = {tag: statuscache.live_status(book, ctx, now)[0] for tag, ctx in ctxs.items()}
+        rows = statuscache._kept_rows(book, lean=True)
+        as_kept = {tag: statuscache._from_lean(row.cols, now) for tag, row in rows.items()}
+    assert sorted(listed) == sorted(computed)
+    for tag, full in computed.items():
+        assert exact(listed[tag]) == exact(full), tag
+    # ... which matters: read at that clock, most kept rows would not be the computation
+    differ = [t for t, full in computed.items() if exact(as_kept[t.upper()]) != exact(full)]
+    assert len(differ) > len(computed) // 2
+
+
+def exact(status: status_model.FilterStatus) -> tuple:
+    """A status whole: what a kept row holds and what the clock works out when it is read."""
+    return (statuscache._encode(status), status.notes, status.element_age_h, status.flags)
 
 
 @pytest.mark.parametrize("caches", ["kept", "missing"])
