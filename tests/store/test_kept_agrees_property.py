@@ -4,10 +4,10 @@ through.
 Every answer a technician reads now (`views.watch`: the watch list, its filters', units' and
 breathers' rows) comes from derived rows kept beside the entries, moved on by the saves and
 read only where they provably hold. Whatever the order of saves, voids, register edits,
-entries written by another program, a second laptop's book merged in, catch-ups and a clock
-that moves on (or is set back), the list must be the one computed from the entries alone
-(`watchlist.watch_as_of`, which reads nothing kept): the same JSON, byte for byte, and each
-filter's status unrounded, after every step. The list as of a past time (an audit, kept rows
+entries written by another program, a spreadsheet imported, a second laptop's book merged
+in, catch-ups and a clock that moves on (or is set back), the list must be the one computed
+from the entries alone (`watchlist.watch_as_of`, which reads nothing kept): the same JSON,
+byte for byte, and each filter's status unrounded, after every step. The list as of a past time (an audit, kept rows
 of earlier saves standing in where they hold then) must be the list computed from the entries
 as they stood then; the filter sheet's status (a full computation from the element summaries
 kept), that position's status from the entries alone.
@@ -36,6 +36,7 @@ from store.base.errors import BookError
 from store.base.timeutil import format_utc, parse_utc
 from store.db.book import open_book
 from store.derived.statuscache import _encode
+from store.exchange.csvio import import_csv
 from store.exchange.merge import merge
 from store.health import status_json, watchlist
 from store.health.conditions import contexts
@@ -230,6 +231,33 @@ class KeptAgainstEntries(RuleBasedStateMachine):
             behind_the_hooks(
                 self.book, Void(voids=target.id, note=WHY, at=self.book.now(), by="CD")
             )
+
+    @rule(
+        rows=st.lists(
+            st.tuples(
+                st.sampled_from(GAUGED),
+                st.floats(0.2, 4.0).map(lambda v: round(v, 2)),
+                st.integers(0, 60 * 24 * 10),
+            ),
+            min_size=1,
+            max_size=4,
+        )
+    )
+    def import_a_spreadsheet(self, rows) -> None:
+        # readings typed into a spreadsheet and imported (`sumpbook import`): one batch
+        lines = ["time,kind,target,by,dp_bar,temp_c"] + [
+            f"{format_utc(self._at(minutes_back))},reading,{tag},AB,{dp_bar},46"
+            for tag, dp_bar, minutes_back in rows
+        ]
+        data = ("\n".join(lines) + "\n").encode()
+        before = self.book.conn.execute("SELECT count(*) FROM entries").fetchone()
+        try:
+            import_csv(self.book, data, self.book.local_zone())
+        except BookError:
+            REFUSED["import"] += 1
+            assert self.book.conn.execute("SELECT count(*) FROM entries").fetchone() == before
+        else:
+            SAVED["import"] += 1
 
     # ---- a second laptop of the same plant, merged in (`sumpbook merge`; a sync's pull)
 
