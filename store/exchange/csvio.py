@@ -89,7 +89,9 @@ def _entry_id(text: str) -> str:
     raise BookError(f"id '{text[:40]}' is not an entry id (a UUID such as sumpbook writes)")
 
 
-def entry_from_row(row: dict[str, str], local: tzinfo) -> Entry:
+def entry_from_row(row: dict[str, str], local: tzinfo, now: datetime | None = None) -> Entry:
+    """One row as an entry; its time within a day ahead of `now`, the book's clock (the
+    computer's when not given), as every door measures it."""
     kind = row.get("kind", "").strip().lower()
     if kind not in KINDS:
         raise BookError(f"kind '{kind[:20]}' is unknown: use {', '.join(KINDS)}")
@@ -98,7 +100,7 @@ def entry_from_row(row: dict[str, str], local: tzinfo) -> Entry:
     if not time_text:
         raise BookError("time is empty")
     values: dict[str, Any] = {
-        "at": parse_time(time_text, local),
+        "at": parse_time(time_text, local, now=now),
         "by": row.get("by", "").strip(),
         "note": row.get("note", ""),
     }
@@ -156,25 +158,27 @@ def _header(cells: list[str]) -> list[str]:
     return header
 
 
-def parse_csv(text: str, local: tzinfo) -> tuple[list[tuple[int, Entry]], list[tuple[int, str]]]:
+def parse_csv(
+    text: str, local: tzinfo, now: datetime | None = None
+) -> tuple[list[tuple[int, Entry]], list[tuple[int, str]]]:
     """Rows -> entries with their line numbers, and every problem found (line, message)."""
-    entries, problems, _ = read_rows(text, local)
+    entries, problems, _ = read_rows(text, local, now)
     return entries, problems
 
 
 def read_rows(
-    text: str, local: tzinfo
+    text: str, local: tzinfo, now: datetime | None = None
 ) -> tuple[list[tuple[int, Entry]], list[tuple[int, str]], int]:
     """`parse_csv`, and how many status rows (csvcolumns.STATUS_KIND) were passed over."""
     old_limit = csv.field_size_limit(MAX_FIELD_CHARS)
     try:
-        return _parse(csv.reader(io.StringIO(text, newline=""), strict=True), local)
+        return _parse(csv.reader(io.StringIO(text, newline=""), strict=True), local, now)
     finally:
         csv.field_size_limit(old_limit)
 
 
 def _parse(
-    reader: Any, local: tzinfo
+    reader: Any, local: tzinfo, now: datetime | None
 ) -> tuple[list[tuple[int, Entry]], list[tuple[int, str]], int]:
     entries: list[tuple[int, Entry]] = []
     problems: list[tuple[int, str]] = []
@@ -206,7 +210,7 @@ def _parse(
                 status_rows += 1  # the handover after the entries: written, never read back
                 continue
             try:
-                entry = entry_from_row(row, local)
+                entry = entry_from_row(row, local, now)
             except (ValueError, OverflowError) as exc:  # BookError is a ValueError
                 problem(str(exc))
                 continue
@@ -231,9 +235,9 @@ def _parse(
 def import_csv(book: Book, data: bytes, local: tzinfo) -> ImportResult:
     """Read entries from CSV bytes. One bad row rejects the file: nothing is written, and
     every problem (reading the file or checking it against the book) is named by line."""
-    entries, problems, status_rows = read_rows(decode(data), local)
+    now = book.now()  # the times are judged by the book's clock, as every door judges them
+    entries, problems, status_rows = read_rows(decode(data), local, now)
     added = skipped = 0
-    now = book.now()
     written: list[Entry] = []
     record.preload()
     try:
