@@ -69,6 +69,13 @@ def exact(status) -> tuple:
     )  # fmt: skip
 
 
+def same_list(kept, alone) -> None:
+    """The list as read (kept rows where they hold) and as computed from the entries alone:
+    the same `status --json` answer, and each filter's status unrounded."""
+    assert status_json.to_json(kept) == status_json.to_json(alone)
+    assert [exact(f) for f in kept.filters] == [exact(f) for f in alone.filters]
+
+
 def _plant_file(folder: Path) -> Path:
     """The small plant, built once per test process (each sequence starts on a copy)."""
     if "path" not in _plant:
@@ -338,10 +345,7 @@ class KeptAgainstEntries(RuleBasedStateMachine):
         # kept rows of earlier saves stand in where they provably hold for that time
         # (statuscache.kept_as_of); the reference reads nothing kept
         at = self.book.now() - timedelta(minutes=minutes_back)
-        audit = views.watch(self.book, as_of=at)
-        alone = watchlist.watch_as_of(self.book, at)
-        assert status_json.to_json(audit) == status_json.to_json(alone)
-        assert [exact(f) for f in audit.filters] == [exact(f) for f in alone.filters]
+        same_list(views.watch(self.book, as_of=at), watchlist.watch_as_of(self.book, at))
 
     # ---- the invariant
 
@@ -350,12 +354,7 @@ class KeptAgainstEntries(RuleBasedStateMachine):
         if not hasattr(self, "book"):
             return
         book = self.book
-        now = book.now()
-        kept = views.watch(book)
-        alone = watchlist.watch_as_of(book, now)  # reads nothing kept
-        assert status_json.to_json(kept) == status_json.to_json(alone)
-        # ... and each filter's row exactly, not only as the answer rounds it
-        assert [exact(f) for f in kept.filters] == [exact(f) for f in alone.filters]
+        same_list(views.watch(book), watchlist.watch_as_of(book, book.now()))
 
     @invariant()
     def the_sheet_s_status_is_the_entries_status(self) -> None:
