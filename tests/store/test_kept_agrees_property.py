@@ -35,14 +35,14 @@ from store import record, sheets, views
 from store.base.errors import BookError
 from store.base.timeutil import format_utc, parse_utc
 from store.db.book import open_book
-from store.derived.statuscache import _encode
 from store.exchange.csvio import import_csv
 from store.exchange.merge import merge
-from store.health import status_json, watchlist
+from store.health import watchlist
 from store.health.conditions import contexts
 from store.ledger import journal, register
 from store.ledger.entries import BreatherSwap, ElementChange, Reading, Sample, TopUp, Void
 from store.ledger.register import FilterPosition, Unit
+from tests.kit.agree import exact, same_list
 from tests.kit.kept_demo import behind_the_hooks
 from tests.kit.plant import build_plant
 
@@ -58,22 +58,6 @@ SAVED: Counter[str] = Counter()
 REFUSED: Counter[str] = Counter()
 
 _plant: dict[str, Path] = {}
-
-
-def exact(status) -> tuple:
-    """A filter's status whole and unrounded: what a kept row holds (its `to_row`) and what
-    is worked out at the clock when it is read."""
-    return (
-        _encode(status), status.state, status.flags, status.notes, status.due,
-        status.bypass_due, status.element_age_h,
-    )  # fmt: skip
-
-
-def same_list(kept, alone) -> None:
-    """The list as read (kept rows where they hold) and as computed from the entries alone:
-    the same `status --json` answer, and each filter's status unrounded."""
-    assert status_json.to_json(kept) == status_json.to_json(alone)
-    assert [exact(f) for f in kept.filters] == [exact(f) for f in alone.filters]
 
 
 def _plant_file(folder: Path) -> Path:
