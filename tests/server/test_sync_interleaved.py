@@ -1,0 +1,120 @@
+"""Two laptops of one plant writing and syncing through a real PostgreSQL server in any
+interleaving: once each has synced after the last write (A, B, then A again), both books
+hold the same entries, row for row, and each book's watch list read from its kept rows is
+the list computed from its entries alone, and the same list on both laptops.
+
+The interleavings are generated (hypothesis): readings, top-ups, breather swaps, element
+changes and voids on either laptop, syncs in between. Both laptops start from one copy of the
+app tests' small plant, with its frozen clock; every entry is dated at or before it.
+"""
+
+from __future__ import annotations
+
+import itertools
+import os
+import shutil
+import sqlite3
+from datetime import timedelta
+from pathlib import Path
+
+import psycopg
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from store import record, views
+from store.db.book import open_book
+from store.health import status_json, watchlist
+from store.ledger import journal
+from store.ledger.entries import BreatherSwap, ElementChange, Reading, TopUp, Void
+from store.server import sync as syncing
+from store.server.setup import initialise
+from tests.kit.agree import same_list
+from tests.kit.plant import build_plant
+
+# SUMPBOOK_SYNC_EXAMPLES=100 explores further (then with fresh random interleavings).
+EXAMPLES = int(os.environ.get("SUMPBOOK_SYNC_EXAMPLES", "8"))
+PLANT = "NORTH"
+_databases = itertools.count()
+_plant: dict[str, Path] = {}
+
+STEP = st.tuples(
+    st.sampled_from("AB"),
+    st.sampled_from(["reading", "reading", "topup", "swap", "change", "void", "sync", "sync"]),
+    st.integers(0, 60 * 24 * 12),  # minutes before the clock
+    st.floats(0.2, 3.0).map(lambda v: round(v, 2)),
+)
+
+
+def _plant_file(folder: Path) -> Path:
+    if "path" not in _plant:
+        path = folder / "plant.db"
+        with open_book(path) as book:
+            build_plant(book)
+            book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+        _plant["path"] = path
+    return _plant["path"]
+
+
+def _entries(path: Path) -> list[tuple]:
+    conn = sqlite3.connect(path)
+    try:
+        return conn.execute("SELECT * FROM entries ORDER BY id").fetchall()
+    finally:
+        conn.close()
+
+
+def _write(path: Path, what: str, minutes_back: int, value: float) -> None:
+    with open_book(path, create=False) as book:
+        at = book.now() - timedelta(minutes=minutes_back)
+        if what == "reading":
+            entry = Reading(filter="P1-RF", dp_bar=value, temp_c=46.0, at=at, by="AB")
+        elif what == "topup":
+            entry = TopUp(unit="P1", volume_l=value * 10, filtered_um=3.0, at=at, by="CD")
+        elif what == "swap":
+            entry = BreatherSwap(breather="P1-BR", condition="2/3 spent", at=at, by="CD")
+        elif what == "change":
+            entry = ElementChange(filter="P2-RF", reason="interval", at=at, by="CD")
+        else:
+            live = [e for e in journal.read(book) if not e.voided and e.kind != "void"]
+            entry = Void(voids=live[minutes_back % len(live)].id, note="wrong unit", by="AB")
+        record.save(book, entry)
+
+
+def _sync(path: Path, url: str) -> None:
+    with open_book(path, create=False) as book:
+        syncing.sync(book, url, plant=PLANT)
+
+
+@settings(
+    max_examples=EXAMPLES,
+    deadline=None,
+    database=None,
+    derandomize="SUMPBOOK_SYNC_EXAMPLES" not in os.environ,
+    suppress_health_check=[HealthCheck.too_slow],
+)
+@given(steps=st.lists(STEP, min_size=1, max_size=10))
+def test_any_interleaving_of_writes_and_syncs_ends_as_one_book(tmp_path_factory, pg, steps):
+    name = f"interleaved{next(_databases)}"
+    with psycopg.connect(pg.admin(), autocommit=True) as conn:
+        conn.execute(f"CREATE DATABASE {name}")
+    initialise(pg.admin(name))
+    url = pg.url(name)
+    folder = tmp_path_factory.mktemp("laptops")
+    books = {who: folder / f"{who}.db" for who in "AB"}
+    for path in books.values():
+        shutil.copy(_plant_file(tmp_path_factory.getbasetemp()), path)
+    for who, what, minutes_back, value in steps:
+        if what == "sync":
+            _sync(books[who], url)
+        else:
+            _write(books[who], what, minutes_back, value)
+    for who in "ABA":  # A's second sync brings what B pushed after A's first
+        _sync(books[who], url)
+    assert _entries(books["A"]) == _entries(books["B"])
+    answers = []
+    for path in books.values():
+        with open_book(path, create=False) as book:
+            kept = views.watch(book)
+            same_list(kept, watchlist.watch_as_of(book, book.now()))
+            answers.append(status_json.to_json(kept))
+    assert answers[0] == answers[1]
