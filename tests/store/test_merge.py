@@ -14,7 +14,7 @@ import pytest
 from store import record
 from store.base.errors import BookError, NotALogbook
 from store.base.session import fixed_clock
-from store.base.timeutil import utc_now
+from store.base.timeutil import format_utc, utc_now
 from store.db import schema
 from store.db.book import open_book
 from store.exchange.merge import merge
@@ -336,3 +336,37 @@ def test_an_older_logbook_is_merged_from_an_upgraded_copy(tmp_path, monkeypatch)
         notes = [e.note for e in journal.read(book)]
     assert report.entries_added == 1 and "from an older sumpbook" in notes
     assert old.read_bytes() == raw  # the other laptop's file is never written
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="known gap: entries dated the same second are ordered by each book's own insertion "
+    "order (rowid), which a merge or a sync does not carry over; the fix orders them by what "
+    "both books hold (logged time, id) everywhere an order is read",
+)
+def test_two_readings_at_one_second_read_the_same_on_both_laptops(tmp_path):
+    # Laptop A logs two readings of one filter typed with the same time (a gauge read again
+    # and logged a second time); laptop B gets them by a merge (a sync's pull is a merge).
+    # The ids are chosen so that B's order (by id, within the same time and logged second)
+    # is the opposite of A's insertion order.
+    from store import views
+
+    a, b = _laptops(tmp_path)
+    later = format_utc(utc_now() + timedelta(hours=1))  # both laptops' clocks, after the base
+    for path in (a, b):
+        with _open(path) as book:
+            book.set_setting("clock", later)
+    with _open(a) as book:
+        at = book.now() - timedelta(minutes=5)
+        for entry_id, dp_bar in (("ffffffff-0000-4000-8000-000000000001", 1.71),
+                                 ("00000000-0000-4000-8000-000000000002", 0.91)):  # fmt: skip
+            record.save(book, Reading(id=entry_id, filter="P1-RF", dp_bar=dp_bar, at=at, by="AB"))
+    with _open(b) as book:
+        merge(book, a)
+    shown = []
+    for path in (a, b):
+        with _open(path) as book:
+            row = next(f for f in views.watch(book).filters if f.filter == "P1-RF")
+            shown.append((row.dp_bar, row.percent_of_limit))
+    assert _ids(a) == _ids(b)
+    assert shown[0] == shown[1]
