@@ -126,9 +126,14 @@ def _read(conn: sqlite3.Connection) -> _Snapshot:
                 list(PLANT_SETTINGS),
             )
         }
-        # Voids after everything else: a void points at an entry that must land first.
+        # Voids after everything else: a void points at an entry that must land first. Entries
+        # of the same time and logging second in the order the other book wrote them (its
+        # rowid): a book reads same-second entries in the order it wrote them, and this book
+        # then reads them as the other does (a ΔP reading typed twice with one time shows
+        # the same latest value on both laptops; tests/store/test_merge.py). A sync's pull
+        # file holds the server's rows in the order they reached it, the pushing book's.
         entries = _voids_after_their_targets(
-            _rows(conn, "SELECT * FROM entries ORDER BY (kind = 'void'), at_utc, logged_utc, id")
+            _rows(conn, "SELECT * FROM entries ORDER BY (kind = 'void'), at_utc, logged_utc, rowid")
         )
     finally:
         conn.execute("COMMIT")
@@ -137,7 +142,7 @@ def _read(conn: sqlite3.Connection) -> _Snapshot:
 
 def _voids_after_their_targets(rows: list[dict[str, Any]]) -> list[dict[str, Any]]:
     """The rows in their order, except that a void of a void comes after the void it voids
-    (stamped in the same second, their ids alone would order them at random)."""
+    (the other book may hold them in any order: a file put together by another program)."""
     placed: set[Any] = set()
     waiting: dict[Any, list[dict[str, Any]]] = {}  # voided id -> voids waiting for it
     out: list[dict[str, Any]] = []
