@@ -36,6 +36,8 @@ DUE_SOON = timedelta(days=7)
 
 # One row per flagged or due position: filters by their newest live reading (of the element
 # now in: not older than its newest change) and reading interval, breathers by their swap.
+# Readings of one time: the one that reached the server last (`seq`), as a book reads them,
+# the one written last (a laptop pushes in its writing order).
 WATCH_SQL = """
 WITH pos AS (
     SELECT f.plant, f.tag, f.unit, f.limit_bar, f.bypass_bar, f.reading_interval_h
@@ -59,7 +61,7 @@ LEFT JOIN LATERAL (
     WHERE e.plant = p.plant AND e.filter = p.tag AND e.kind = 'reading'
       AND e.at_utc <= %(now_text)s
       AND NOT EXISTS (SELECT 1 FROM entries v WHERE v.plant = e.plant AND v.voids = e.id)
-    ORDER BY e.at_utc DESC LIMIT 1
+    ORDER BY e.at_utc DESC, e.seq DESC LIMIT 1
 ) r ON true
 LEFT JOIN LATERAL (
     SELECT e.at_utc FROM entries e

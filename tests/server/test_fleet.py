@@ -118,3 +118,25 @@ def test_fleet_on_the_command_line(fleet_server, capsys, monkeypatch):
     assert main(["fleet", "due", "--server", server.url, "--plant", "SOUTH"]) == 0
     out = capsys.readouterr().out
     assert "SOUTH" in out and "NORTH" not in out
+
+
+def test_two_readings_of_one_time_show_as_the_book_shows_them(tmp_path, server):
+    # A gauge read again and logged with the same time, in one batch: the book's latest is the
+    # one written last (0.4 bar, under the 2.5 bar limit), and so is the fleet's. The ids are
+    # chosen so that their own order would put the first one (2.6 bar, at the limit) last.
+    from store import views
+
+    with open_book(tmp_path / "w.db", clock=fixed_clock(NOW)) as book:
+        fill_register(book)
+        at = NOW - timedelta(hours=2)
+        record.log_many(book, [
+            Reading(id="ffffffff-0000-4000-8000-000000000001", filter="P1-RF", dp_bar=2.6,
+                    temp_c=50, at=at, by="AB"),
+            Reading(id="00000000-0000-4000-8000-000000000002", filter="P1-RF", dp_bar=0.4,
+                    temp_c=50, at=at, by="AB"),
+        ])  # fmt: skip
+        sync(book, server.url, plant="WEST")
+        row = next(f for f in views.watch(book).filters if f.filter == "P1-RF")
+    assert row.dp_bar == 0.4
+    fleet_row = {(r.plant, r.tag): r for r in fleet.watch(server.url, NOW)}[("WEST", "P1-RF")]
+    assert fleet_row.dp_bar == 0.4 and fleet_row.flag == "reading due"
