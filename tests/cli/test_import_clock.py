@@ -16,15 +16,7 @@ from datetime import timedelta
 import pytest
 
 from store.base.timeutil import utc_now
-from tests.kit.plant import run_cli
-
-
-def _count(path) -> int:
-    conn = sqlite3.connect(path)
-    try:
-        return conn.execute("SELECT count(*) FROM entries").fetchone()[0]
-    finally:
-        conn.close()
+from tests.kit.plant import raw_entry_count, run_cli
 
 
 @pytest.fixture
@@ -47,7 +39,7 @@ def test_an_import_takes_what_log_at_takes_and_refuses_what_it_refuses(
     monkeypatch.setenv("SUMPBOOK_NOW", clock.isoformat())
     for hours, ok in ((-2, True), (30, False)):  # two hours before the clock; a day and more after
         at = (clock + timedelta(hours=hours)).strftime("%Y-%m-%dT%H:%M:%SZ")
-        before = _count(unfrozen)
+        before = raw_entry_count(unfrozen)
         logged, _, log_err = run_cli(
             capsys, "--db", str(unfrozen), "log", "reading", "M1-R", "--dp", "0.4", "--temp", "45",
             "--at", at, "--by", "AK",
@@ -56,7 +48,7 @@ def test_an_import_takes_what_log_at_takes_and_refuses_what_it_refuses(
         sheet.write_text(f"time,kind,target,by,dp_bar,temp_c\n{at},reading,M1-R,AK,0.5,46\n")
         imported, _, import_err = run_cli(capsys, "--db", str(unfrozen), "import", str(sheet))
         assert (logged == 0, imported == 0) == (ok, ok), (log_err, import_err)
-        assert _count(unfrozen) == before + (2 if ok else 0)
+        assert raw_entry_count(unfrozen) == before + (2 if ok else 0)
         if not ok:  # both name the clock they measured from: the session's
             assert f"({clock:%Y-%m-%d %H:%M} UTC)" in log_err
             assert f"({clock:%Y-%m-%d %H:%M} UTC)" in import_err

@@ -197,6 +197,32 @@ def run_cli(capsys, *args: str) -> tuple[int, str, str]:
     return code, out, err
 
 
+_plant_files: dict[str, Path] = {}
+
+
+def plant_file(folder: Path) -> Path:
+    """`build_plant` written once per test process into `folder` (the first one asked with):
+    tests that start many books from it copy the file."""
+    if "path" not in _plant_files:
+        path = folder / "plant.db"
+        with open_book(path) as book:
+            build_plant(book)
+            book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+        _plant_files["path"] = path
+    return _plant_files["path"]
+
+
+def entry_rows(path: Path) -> list[tuple]:
+    """Every row of `entries` as stored, by id, read with plain sqlite3."""
+    import sqlite3
+
+    conn = sqlite3.connect(path)
+    try:
+        return conn.execute("SELECT * FROM entries ORDER BY id").fetchall()
+    finally:
+        conn.close()
+
+
 def raw_entry_count(path: Path) -> int:
     """Rows in `entries`, read with plain sqlite3 (no checks, no migration: a damaged or
     refused file is counted as it is)."""

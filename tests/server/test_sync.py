@@ -6,7 +6,6 @@ from __future__ import annotations
 
 import itertools
 import shutil
-import sqlite3
 from datetime import UTC, datetime, timedelta
 from pathlib import Path
 
@@ -21,21 +20,13 @@ from store.ledger import journal, register
 from store.ledger.entries import Note, Reading, Sample, TopUp, Void
 from store.ledger.register import Breather, FilterPosition, Unit
 from store.server import sync as syncing
-from tests.kit.plant import fill_register
+from tests.kit.plant import entry_rows, fill_register
 
 
 def _open(path: Path):
     book = open_book(path)
     book.conn.execute("PRAGMA synchronous = OFF")  # test speed only
     return book
-
-
-def _entries(path: Path) -> list[tuple]:
-    conn = sqlite3.connect(path)
-    try:
-        return conn.execute("SELECT * FROM entries ORDER BY id").fetchall()
-    finally:
-        conn.close()
 
 
 def _three(tmp_path: Path) -> dict[str, Path]:
@@ -95,7 +86,7 @@ def test_any_order_ends_as_a_file_merge(tmp_path, pg, order):
     shutil.copy(books["A"], merged)
     with _open(merged) as book:
         merge(book, books["B"])
-    south = _entries(books["C"])
+    south = entry_rows(books["C"])
     name = "o" + "".join(order).lower()
     with psycopg.connect(pg.admin(), autocommit=True) as conn:
         conn.execute(f"CREATE DATABASE {name}")
@@ -103,20 +94,20 @@ def test_any_order_ends_as_a_file_merge(tmp_path, pg, order):
     url = pg.url(name)
     for who in order + order:  # every laptop twice: the first round leaves someone behind
         _sync(books[who], url, who)
-    assert _entries(books["A"]) == _entries(books["B"]) == _entries(merged)
-    assert _entries(books["C"]) == south  # another plant's rows never come in
+    assert entry_rows(books["A"]) == entry_rows(books["B"]) == entry_rows(merged)
+    assert entry_rows(books["C"]) == south  # another plant's rows never come in
     for who in "ABC":  # a further sync moves nothing
         report = _sync(books[who], url, who)
         assert (report.pushed_entries, report.pulled_entries, report.pulled_log) == (0, 0, 0)
     with psycopg.connect(pg.admin(name)) as conn:
         counts = dict(conn.execute("SELECT plant, count(*) FROM entries GROUP BY plant"))
-    assert counts == {"NORTH": len(_entries(merged)), "SOUTH": len(south)}
+    assert counts == {"NORTH": len(entry_rows(merged)), "SOUTH": len(south)}
 
 
 def test_second_sync_moves_nothing_and_register_changes_travel(tmp_path, server):
     books = _three(tmp_path)
     first = _sync(books["A"], server.url, "A")
-    assert first.pushed_entries == len(_entries(books["A"])) and first.pulled_entries == 0
+    assert first.pushed_entries == len(entry_rows(books["A"])) and first.pulled_entries == 0
     again = _sync(books["A"], server.url, "A")
     assert (again.pushed_entries, again.pushed_known, again.pulled_entries) == (0, 0, 0)
     b = _sync(books["B"], server.url, "B")
@@ -164,10 +155,10 @@ def test_a_killed_sync_loses_nothing_and_the_next_completes(tmp_path, server, mo
     with _open(books["B"]) as book:
         assert book.conn.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
         assert book.conn.execute("PRAGMA foreign_key_check").fetchall() == []
-    assert set(_entries(books["B"])) <= set(_entries(merged))
+    assert set(entry_rows(books["B"])) <= set(entry_rows(merged))
     _sync(books["B"], server.url, "B", batch_rows=2)
     _sync(books["A"], server.url, "A")
-    assert _entries(books["A"]) == _entries(books["B"]) == _entries(merged)
+    assert entry_rows(books["A"]) == entry_rows(books["B"]) == entry_rows(merged)
 
 
 def test_every_other_command_works_with_an_unreachable_server(tmp_path, capsys):
@@ -252,4 +243,4 @@ def test_a_push_cursor_naming_another_row_sends_everything_again(tmp_path, serve
         rowid = book.conn.execute("SELECT max(rowid) FROM entries").fetchone()[0]
         book.set_setting(syncing.PUSHED_KEY, f"{rowid} 00000000-0000-4000-8000-000000000000")
     report = _sync(books["A"], server.url, "A")
-    assert report.pushed_entries == 1 and report.pushed_known == len(_entries(books["A"])) - 1
+    assert report.pushed_entries == 1 and report.pushed_known == len(entry_rows(books["A"])) - 1

@@ -32,13 +32,12 @@ from store.ledger.entries import BreatherSwap, ElementChange, Reading, TopUp, Vo
 from store.server import sync as syncing
 from store.server.setup import initialise
 from tests.kit.agree import same_list
-from tests.kit.plant import build_plant
+from tests.kit.plant import entry_rows, plant_file
 
 # SUMPBOOK_SYNC_EXAMPLES=100 explores further (then with fresh random interleavings).
 EXAMPLES = int(os.environ.get("SUMPBOOK_SYNC_EXAMPLES", "8"))
 PLANT = "NORTH"
 _databases = itertools.count()
-_plant: dict[str, Path] = {}
 
 STEP = st.tuples(
     st.sampled_from("AB"),
@@ -46,24 +45,6 @@ STEP = st.tuples(
     st.integers(1, 60 * 24 * 12),  # minutes before the clock
     st.floats(0.2, 3.0).map(lambda v: round(v, 2)),
 )
-
-
-def _plant_file(folder: Path) -> Path:
-    if "path" not in _plant:
-        path = folder / "plant.db"
-        with open_book(path) as book:
-            build_plant(book)
-            book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
-        _plant["path"] = path
-    return _plant["path"]
-
-
-def _entries(path: Path) -> list[tuple]:
-    conn = sqlite3.connect(path)
-    try:
-        return conn.execute("SELECT * FROM entries ORDER BY id").fetchall()
-    finally:
-        conn.close()
 
 
 def _write(path: Path, laptop: int, what: str, minutes_back: int, value: float) -> None:
@@ -119,7 +100,7 @@ def test_any_interleaving_of_writes_and_syncs_ends_as_one_book(tmp_path_factory,
     folder = tmp_path_factory.mktemp("laptops")
     books = {who: folder / f"{who}.db" for who in "AB"}
     for path in books.values():
-        shutil.copy(_plant_file(tmp_path_factory.getbasetemp()), path)
+        shutil.copy(plant_file(tmp_path_factory.getbasetemp()), path)
     conflicts: list[str] = []
     for who, what, minutes_back, value in steps:
         if what == "sync":
@@ -130,7 +111,7 @@ def test_any_interleaving_of_writes_and_syncs_ends_as_one_book(tmp_path_factory,
         conflicts += _sync(books[who], url)
     # What one laptop holds and the other does not can only be a void of an entry the other
     # voided with a void of its own: merge leaves that for a person to settle and says so.
-    rows = {who: set(_entries(path)) for who, path in books.items()}
+    rows = {who: set(entry_rows(path)) for who, path in books.items()}
     voids = {who: _voids(path) for who, path in books.items()}
     for mine, other in ("AB", "BA"):
         for row in rows[mine] - rows[other]:

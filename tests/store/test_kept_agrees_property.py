@@ -44,7 +44,7 @@ from store.ledger.entries import BreatherSwap, ElementChange, Reading, Sample, T
 from store.ledger.register import FilterPosition, Unit
 from tests.kit.agree import exact, same_list
 from tests.kit.kept_demo import behind_the_hooks
-from tests.kit.plant import build_plant
+from tests.kit.plant import plant_file
 
 # SUMPBOOK_PROPERTY_EXAMPLES=200 explores further (then with fresh random sequences).
 EXAMPLES = int(os.environ.get("SUMPBOOK_PROPERTY_EXAMPLES", "60"))
@@ -52,23 +52,16 @@ GAUGED = ("P1-RF", "P2-RF")
 ALL_FILTERS = ("P1-RF", "P2-RF", "P1-PF")
 CONDITIONS = ("", "1/3 spent", "2/3 spent", "spent")
 WHY = "typed on the wrong filter"
+# a reading as another door brings it: (filter, ΔP bar, minutes before the clock)
+READING = st.tuples(
+    st.sampled_from(GAUGED),
+    st.floats(0.2, 4.0).map(lambda v: round(v, 2)),
+    st.integers(0, 60 * 24 * 10),
+)
 # Each kind of entry saved and refused over the whole run, and the entries merges brought in:
 # a rule whose entries were all refused would compare nothing.
 SAVED: Counter[str] = Counter()
 REFUSED: Counter[str] = Counter()
-
-_plant: dict[str, Path] = {}
-
-
-def _plant_file(folder: Path) -> Path:
-    """The small plant, built once per test process (each sequence starts on a copy)."""
-    if "path" not in _plant:
-        path = folder / "plant.db"
-        with open_book(path) as book:
-            build_plant(book)
-            book.conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
-        _plant["path"] = path
-    return _plant["path"]
 
 
 class KeptAgainstEntries(RuleBasedStateMachine):
@@ -80,7 +73,7 @@ class KeptAgainstEntries(RuleBasedStateMachine):
     @initialize()
     def open_the_plant(self) -> None:
         path = self.folder / f"run{os.getpid()}-{id(self)}.db"
-        shutil.copy(_plant_file(self.folder), path)
+        shutil.copy(plant_file(self.folder), path)
         self.path = path
         self.book = open_book(path, create=False)
 
@@ -223,17 +216,7 @@ class KeptAgainstEntries(RuleBasedStateMachine):
                 self.book, Void(voids=target.id, note=WHY, at=self.book.now(), by="CD")
             )
 
-    @rule(
-        rows=st.lists(
-            st.tuples(
-                st.sampled_from(GAUGED),
-                st.floats(0.2, 4.0).map(lambda v: round(v, 2)),
-                st.integers(0, 60 * 24 * 10),
-            ),
-            min_size=1,
-            max_size=4,
-        )
-    )
+    @rule(rows=st.lists(READING, min_size=1, max_size=4))
     def import_a_spreadsheet(self, rows) -> None:
         # readings typed into a spreadsheet and imported (`sumpbook import`): one batch
         lines = ["time,kind,target,by,dp_bar,temp_c"] + [
@@ -257,26 +240,16 @@ class KeptAgainstEntries(RuleBasedStateMachine):
         book's (its entries are dated at or before this book's clock)."""
         if getattr(self, "b_path", None) is None:
             self.b_path = self.path.with_name(self.path.stem + "-b.db")
-            shutil.copy(_plant_file(self.folder), self.b_path)
+            shutil.copy(plant_file(self.folder), self.b_path)
         book = open_book(self.b_path, create=False)
         book.set_setting("clock", format_utc(self.book.now()))
         return book
 
-    @rule(
-        logged=st.lists(
-            st.tuples(
-                st.sampled_from(GAUGED),
-                st.floats(0.2, 4.0).map(lambda v: round(v, 2)),
-                st.integers(0, 60 * 24 * 10),
-                st.sampled_from([None, *CONDITIONS]),
-            ),
-            max_size=3,
-        )
-    )
+    @rule(logged=st.lists(st.tuples(READING, st.sampled_from([None, *CONDITIONS])), max_size=3))
     def merge_a_second_laptop(self, logged) -> None:
         # what the second laptop logged since (a reading, maybe a swap, each), then merged
         with self._laptop_b() as b:
-            for tag, dp_bar, minutes_back, swap in logged:
+            for (tag, dp_bar, minutes_back), swap in logged:
                 at = self.book.now() - timedelta(minutes=minutes_back)
                 record.save(b, Reading(filter=tag, dp_bar=dp_bar, temp_c=47.0, at=at, by="CD"))
                 if swap is not None:
