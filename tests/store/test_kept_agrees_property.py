@@ -5,12 +5,13 @@ Every answer a technician reads now (`views.watch`: the watch list, its filters'
 breathers' rows) comes from derived rows kept beside the entries, moved on by the saves and
 read only where they provably hold. Whatever the order of saves, voids, register edits,
 entries written by another program, a spreadsheet imported, a second laptop's book merged
-in, catch-ups and a clock that moves on (or is set back), the list must be the one computed
-from the entries alone (`watchlist.watch_as_of`, which reads nothing kept): the same JSON,
-byte for byte, and each filter's status unrounded, after every step. The list as of a past time (an audit, kept rows
-of earlier saves standing in where they hold then) must be the list computed from the entries
-as they stood then; the filter sheet's status (a full computation from the element summaries
-kept), that position's status from the entries alone.
+in, a backup restored, catch-ups and a clock that moves on (or is set back), the list must
+be the one computed from the entries alone (`watchlist.watch_as_of`, which reads nothing
+kept): the same JSON, byte for byte, and each filter's status unrounded, after every step.
+The list as of a past time (an audit, kept rows of earlier saves standing in where they hold
+then) must be the list computed from the entries as they stood then; the filter sheet's
+status (a full computation from the element summaries kept), that position's status from
+the entries alone.
 
 The plant is the app tests' small one (tests/kit/plant.py: two units, three filters, two of
 them taking the same element, a breather). The entries are dated at or before the book's
@@ -34,7 +35,9 @@ from hypothesis.stateful import RuleBasedStateMachine, initialize, invariant, ru
 from store import record, sheets, views
 from store.base.errors import BookError
 from store.base.timeutil import format_utc, parse_utc
+from store.db.backup import copy_to, restore
 from store.db.book import open_book
+from store.db.places import backup_dir
 from store.exchange.csvio import import_csv
 from store.exchange.merge import merge
 from store.health import watchlist
@@ -81,9 +84,10 @@ class KeptAgainstEntries(RuleBasedStateMachine):
         book = getattr(self, "book", None)
         if book is not None:
             book.close()
-            for path in (self.path, getattr(self, "b_path", None)):
+            for path in (self.path, getattr(self, "b_path", None), *getattr(self, "backups", [])):
                 for suffix in ("", "-wal", "-shm") if path else ():
                     Path(f"{path}{suffix}").unlink(missing_ok=True)
+            shutil.rmtree(backup_dir(self.path), ignore_errors=True)  # what a restore kept
 
     def _at(self, minutes_back: int):
         return self.book.now() - timedelta(minutes=minutes_back)
@@ -232,6 +236,26 @@ class KeptAgainstEntries(RuleBasedStateMachine):
             assert self.book.conn.execute("SELECT count(*) FROM entries").fetchone() == before
         else:
             SAVED["import"] += 1
+
+    # ---- a backup taken, and later restored (`sumpbook backup`, `sumpbook restore`)
+
+    @rule()
+    def back_up(self) -> None:
+        self.backups = getattr(self, "backups", [])
+        dest = self.path.with_name(f"{self.path.stem}-backup{len(self.backups)}.db")
+        self.backups.append(copy_to(self.book.conn, dest))
+
+    @rule(pick=st.integers(0, 100))
+    def restore_a_backup(self, pick) -> None:
+        backups = getattr(self, "backups", [])
+        if not backups:
+            return
+        # the book as it was then, its kept rows and its clock with it; the app opens the
+        # book again after a restore
+        self.book.close()
+        restore(backups[pick % len(backups)], self.path)
+        self.book = open_book(self.path, create=False)
+        SAVED["restored"] += 1
 
     # ---- a second laptop of the same plant, merged in (`sumpbook merge`; a sync's pull)
 
