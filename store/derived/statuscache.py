@@ -886,17 +886,23 @@ def move_seen_on(book: Book, reg: Register | None = None) -> None:
     reg = reg or register(book)
     units = set(moved.unit_events) | set(moved.unit_hot) | set(moved.unit_any)
     firsts = _firsts(book, [u for u in units if u in moved.unit_any])
+    # A row whose key no longer matches the register stays where it is: what touches its
+    # inputs is judged by the register as it is now (like positions, a unit's temperature
+    # limit), not as the row's key has it, and an edit undone makes the key match again (an
+    # element change on a position that was not alike then would be passed over).
+    stale = _unkeyed(book, reg)
 
     def unit_moved(tag: str, seen: int) -> bool:
-        return tag in units and moved.unit_moved(
-            tag, seen, reg.unit_limits.get(tag), firsts.get(tag)
+        return tag in stale["unit"] or (
+            tag in units and moved.unit_moved(tag, seen, reg.unit_limits.get(tag), firsts.get(tag))
         )
 
     # the rows at `last`: those the entries since moved, and one statement for the others
-    touched = {t for t, r in moved.own.items() if r > last}
+    touched = {t for t, r in moved.own.items() if r > last} | stale["filter"]
     groups = {reg.like[t] for t, r in moved.changes.items() if r > last and t in reg.like}
     leaning = {t for group in groups for t in group} - touched
     touched |= {t for t, pools in _pools(book, leaning).items() if pools}
+    units |= stale["unit"]
     left = {"filter": sorted(touched), "unit": sorted(u for u in units if unit_moved(u, last))}
     sql, params = "UPDATE kept_seen SET seen_rowid = ? WHERE seen_rowid = ?", [newest, last]
     for what, tags in left.items():
@@ -914,6 +920,7 @@ def move_seen_on(book: Book, reg: Register | None = None) -> None:
             t
             for what, t, seen in older
             if what == "filter"
+            and t not in stale["filter"]
             and not moved.filter_moved(t, seen, pools.get(t, True), reg.like.get(t, ()))
         ],
         "unit": [t for what, t, seen in older if what == "unit" and not unit_moved(t, seen)],
@@ -926,6 +933,22 @@ def move_seen_on(book: Book, reg: Register | None = None) -> None:
                 f"AND tag IN {tags_sql}",
                 [newest, what, last, *tags_params],
             )
+
+
+def _unkeyed(book: Book, reg: Register) -> dict[str, set[str]]:
+    """The kept filter and unit rows (upper-case tags) whose key does not match the register
+    as it is: no reader uses them, and they wait for a refresh."""
+    filters = {
+        tag.upper()
+        for tag, key in book.conn.execute("SELECT filter, key FROM status_cache")
+        if key != reg.filter_key(tag.upper(), _leans(key))
+    }
+    units = {
+        tag.upper()
+        for tag, key in book.conn.execute("SELECT unit, key FROM unit_cache")
+        if key != reg.unit_key(tag.upper())
+    }
+    return {"filter": filters, "unit": units}
 
 
 def _among(tags: Sequence[str]) -> tuple[str, list[str]]:
