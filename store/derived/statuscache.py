@@ -862,7 +862,9 @@ def move_seen_on(book: Book, reg: Register | None = None) -> None:
     """Inside a save's transaction, after its rows were kept: every kept row whose inputs the
     entries written since it was checked left as they were is checked up to the newest entry
     now (so that a reader compares only what was written after). Rows whose inputs moved keep
-    their rowid, and a reader computes them.
+    their rowid, and a reader computes them; so do rows whose key does not match the register
+    as it is (what touched them is judged by the register, which an undone edit brings back
+    to their key).
 
     After a save nearly every row stands at one rowid, the newest entry before the save
     (`last`): the few positions and units the entries written since touch are worked out from
