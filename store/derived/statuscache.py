@@ -895,8 +895,8 @@ def move_seen_on(book: Book, reg: Register | None = None) -> None:
     stale = _unkeyed(book, reg)
 
     def unit_moved(tag: str, seen: int) -> bool:
-        return tag in stale["unit"] or (
-            tag in units and moved.unit_moved(tag, seen, reg.unit_limits.get(tag), firsts.get(tag))
+        return tag in units and moved.unit_moved(
+            tag, seen, reg.unit_limits.get(tag), firsts.get(tag)
         )
 
     # the rows at `last`: those the entries since moved, and one statement for the others
@@ -904,8 +904,8 @@ def move_seen_on(book: Book, reg: Register | None = None) -> None:
     groups = {reg.like[t] for t, r in moved.changes.items() if r > last and t in reg.like}
     leaning = {t for group in groups for t in group} - touched
     touched |= {t for t, pools in _pools(book, leaning).items() if pools}
-    units |= stale["unit"]
-    left = {"filter": sorted(touched), "unit": sorted(u for u in units if unit_moved(u, last))}
+    left_units = {u for u in units if unit_moved(u, last)} | stale["unit"]
+    left = {"filter": sorted(touched), "unit": sorted(left_units)}
     sql, params = "UPDATE kept_seen SET seen_rowid = ? WHERE seen_rowid = ?", [newest, last]
     for what, tags in left.items():
         if tags:
@@ -925,7 +925,11 @@ def move_seen_on(book: Book, reg: Register | None = None) -> None:
             and t not in stale["filter"]
             and not moved.filter_moved(t, seen, pools.get(t, True), reg.like.get(t, ()))
         ],
-        "unit": [t for what, t, seen in older if what == "unit" and not unit_moved(t, seen)],
+        "unit": [
+            t
+            for what, t, seen in older
+            if what == "unit" and t not in stale["unit"] and not unit_moved(t, seen)
+        ],
     }
     for what, tags in good.items():
         if tags:
