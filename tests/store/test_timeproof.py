@@ -29,6 +29,7 @@ from store.health import status_json, status_model, watchlist
 from store.health.conditions import contexts
 from store.ledger.entries import ElementChange, Reading, Void
 from store.ledger.register import Unit, list_all
+from tests.kit.agree import exact
 from tests.kit.kept_demo import behind_the_hooks, kept_demo, moved, pooling
 
 LATER = [timedelta(0), timedelta(days=1, hours=3), timedelta(weeks=1), timedelta(days=365)]
@@ -148,11 +149,6 @@ def test_a_clock_set_back_before_the_rows_were_kept_computes_them(
     # ... which matters: read at that clock, most kept rows would not be the computation
     differ = [t for t, full in computed.items() if exact(as_kept[t.upper()]) != exact(full)]
     assert len(differ) > len(computed) // 2
-
-
-def exact(status: status_model.FilterStatus) -> tuple:
-    """A status whole: what a kept row holds and what the clock works out when it is read."""
-    return (statuscache._encode(status), status.notes, status.element_age_h, status.flags)
 
 
 @pytest.mark.parametrize("caches", ["kept", "missing"])
